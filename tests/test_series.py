@@ -252,3 +252,34 @@ def test_data_dir_found():
     d = series._data_dir()
     assert (d / "E24.csv").is_file()
     assert "IEC 60063:2015" in (d / "E24.csv").read_text(encoding="utf-8")
+
+
+def test_tables_load_from_wheel_layout(tmp_path):
+    # The wheel maps series_data/ to picker/series_data (pyproject force-include);
+    # rebuild that layout without the top-level copy and load a table from it.
+    import shutil
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    root = Path(series.__file__).resolve().parent.parent
+    pkg = tmp_path / "picker"
+    pkg.mkdir()
+    (pkg / "__init__.py").write_text("", encoding="utf-8")  # only the modules series needs
+    for module in ("errors.py", "series.py"):
+        shutil.copy(root / "picker" / module, pkg / module)
+    shutil.copytree(root / "series_data", pkg / "series_data")
+    code = (
+        "from picker import series; d = series._data_dir(); "
+        "print(d); print(series.series_values('E192')[185], series.default_tolerance('E96'))"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code],
+        cwd=tmp_path,
+        env={"PYTHONPATH": str(tmp_path), "PATH": ""},
+        capture_output=True,
+        text=True,
+        check=True,
+    ).stdout.split("\n")
+    assert Path(out[0]) == pkg / "series_data"
+    assert out[1] == "9.2 0.01"
