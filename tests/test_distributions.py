@@ -1,0 +1,181 @@
+"""Tolerance distributions and measured lots.
+
+Reference statistics come from outside the module: scipy.stats distributions
+(uniform, norm, truncnorm), scipy.integrate.quad for second moments, and the
+GUM (JCGM 100:2008) conventions t/√3 and t/3 (99.73 % coverage).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+from scipy import integrate, stats
+
+from picker.distributions import KINDS, deviation, mean_of, std_of
+from picker.errors import SpecError
+from picker.lots import MIN_LOT_SIZE, load_lot_csv, lot_deviations
+
+N = 200_000
+TOLS = np.array([0.01, 0.05, 0.2])
+
+
+def _u(seed=1, n=N):
+    return np.random.default_rng(seed).random(n)
+
+
+def _se_std(n):
+    # relative standard error of a sample standard deviation is about 1/√(2n)
+    # for a distribution close to normal; 5 of them is a generous bound.
+    return 5.0 / np.sqrt(2 * n)
+
+
+def test_shapes_and_monotone_in_u():
+    # Every kind is an inverse CDF: non-decreasing in u, so common random
+    # numbers and Sobol points keep their meaning (JCGM 101:2008, 6.4 / C.2).
+    u = np.linspace(0.001, 0.999, 500)
+    lot = np.random.default_rng(3).normal(0, 0.02, 40)
+    for kind in KINDS:
+        d = deviation(u[:, None], TOLS, kind, grade=TOLS / 2, lot=lot)
+        assert d.shape == (500, 3)
+        assert np.all(np.diff(d, axis=0) >= 0), kind
+
+
+def test_uniform_std_is_t_over_sqrt3():
+    # GUM JCGM 100:2008, 4.3.7: rectangular over ±t has sigma = t/√3.
+    d = deviation(_u(), TOLS, "uniform")
+    assert_allclose(std_of("uniform", TOLS), TOLS / np.sqrt(3), rtol=1e-12)
+    assert_allclose(d.std(axis=0), TOLS / np.sqrt(3), rtol=_se_std(N))
+    assert np.all(np.abs(d) <= TOLS)
+
+
+def test_normal_coverage_is_99_73_percent():
+    # GUM JCGM 100:2008, G.1: k = 3 gives 99.73 % coverage (2Φ(3) - 1 from scipy).
+    p = 2 * stats.norm.cdf(3.0) - 1
+    d = deviation(_u(2), TOLS, "normal")
+    inside = np.mean(np.abs(d) <= TOLS, axis=0)
+    se = np.sqrt(p * (1 - p) / N)
+    assert np.all(np.abs(inside - p) < 4 * se)
+    assert_allclose(std_of("normal", TOLS), TOLS / 3, rtol=1e-12)
+    assert_allclose(d.std(axis=0), TOLS / 3, rtol=_se_std(N))
+
+
+def test_truncated_normal_matches_scipy_truncnorm():
+    # scipy.stats.truncnorm(-3, 3) is the reference for the cut-at-±tol variant.
+    ref = stats.truncnorm(-3, 3)
+    assert_allclose(std_of("normal", TOLS, truncate=True), TOLS / 3 * ref.std(), rtol=1e-10)
+    d = deviation(_u(4), TOLS, "normal", truncate=True)
+    assert np.all(np.abs(d) <= TOLS * (1 + 1e-12))
+    ks = stats.kstest(d[:, 1] / (TOLS[1] / 3), ref.cdf)
+    assert ks.pvalue > 1e-3
+
+
+def test_graded_uniform_reproduces_its_definition():
+    # Graded parts: |d| uniform on [g, t], sign fair (definition; common practice).
+    t, g = 0.10, 0.05
+    d = deviation(_u(5), t, "graded", grade=g)[:, 0]
+    assert np.all((np.abs(d) >= g) & (np.abs(d) <= t))
+    frac_neg = np.mean(d < 0)
+    assert abs(frac_neg - 0.5) < 4 * np.sqrt(0.25 / N)
+    ks = stats.kstest(np.abs(d), stats.uniform(loc=g, scale=t - g).cdf)
+    assert ks.pvalue > 1e-3
+    # closed form against a numerical second moment (scipy.integrate.quad) of the density
+    m2, _ = integrate.quad(lambda x: x * x / (t - g), g, t)
+    assert_allclose(std_of("graded", t, grade=g), np.sqrt(m2), rtol=1e-10)
+    assert_allclose(d.std(), np.sqrt(m2), rtol=_se_std(N))
+    assert_allclose(std_of("graded", t, grade=0.0), t / np.sqrt(3), rtol=1e-12)
+
+
+def test_graded_normal_matches_truncnorm_band():
+    # |d|/sigma follows a normal restricted to [g/sigma, 3]: scipy truncnorm(a, 3).
+    t, g = 0.10, 0.02
+    sigma = t / 3
+    ref = stats.truncnorm(g / sigma, 3.0)
+    d = deviation(_u(6), t, "graded-normal", grade=g)[:, 0]
+    assert np.all((np.abs(d) >= g * (1 - 1e-12)) & (np.abs(d) <= t * (1 + 1e-12)))
+    ks = stats.kstest(np.abs(d) / sigma, ref.cdf)
+    assert ks.pvalue > 1e-3
+    assert_allclose(std_of("graded-normal", t, grade=g), sigma * np.sqrt(ref.moment(2)), rtol=1e-9)
+
+
+def test_empirical_reproduces_lot_statistics():
+    # Resampling a lot (Efron's bootstrap) gives each value weight 1/n, so with
+    # stratified u (n·m equally spaced points) mean and population std are exact.
+    rng = np.random.default_rng(7)
+    lot = rng.normal(0.012, 0.015, 37)
+    m = 50
+    u = (np.arange(lot.size * m) + 0.5) / (lot.size * m)
+    d = deviation(u, [0.05, 0.1], "empirical", lot=lot)
+    assert_allclose(d.mean(axis=0), lot.mean(), rtol=1e-12)
+    assert_allclose(d.std(axis=0), lot.std(), rtol=1e-12)
+    assert_allclose(np.sort(np.unique(d[:, 0])), np.sort(lot), rtol=0)
+    assert_allclose(std_of("empirical", 0.05, lot=lot), lot.std(), rtol=1e-12)
+    assert_allclose(mean_of("empirical", 0.05, lot=lot), lot.mean(), rtol=1e-12)
+    # random u: each lot value drawn with probability 1/n (chi-square, scipy)
+    idx = np.searchsorted(np.sort(lot), deviation(_u(8), 0.05, "empirical", lot=lot)[:, 0])
+    counts = np.bincount(idx, minlength=lot.size)
+    assert stats.chisquare(counts).pvalue > 1e-3
+
+
+@pytest.mark.parametrize(
+    "kwargs",
+    [
+        {"kind": "triangle"},
+        {"kind": "graded"},
+        {"kind": "graded", "grade": 0.05},  # grade equal to the tolerance
+        {"kind": "empirical"},
+    ],
+)
+def test_bad_parameters_are_spec_errors(kwargs):
+    with pytest.raises(SpecError):
+        deviation(_u(n=10), 0.05, **kwargs)
+
+
+# --- measured lots -------------------------------------------------------------------
+
+
+def _write(tmp_path, text, name="lot.csv"):
+    p = tmp_path / name
+    p.write_text(text, encoding="utf-8")
+    return p
+
+
+def test_load_lot_csv_reads_values_with_prefixes(tmp_path):
+    vals = np.round(np.linspace(4.6, 4.8, 25), 4) * 1e-9
+    lines = ["# incoming inspection, invented lot", "serial,value,note"]
+    lines += [f"{i},{v * 1e9:.4f} nF,ok" for i, v in enumerate(vals)]
+    p = _write(tmp_path, "\n".join(lines) + "\n")
+    d = load_lot_csv(p, 4.7e-9, "F", tol=0.05)
+    assert_allclose(d, vals / 4.7e-9 - 1, rtol=1e-9)
+
+
+def test_single_column_without_header(tmp_path):
+    p = _write(tmp_path, "\n".join(f"{100 + i % 5}u" for i in range(30)), "l.csv")
+    d = load_lot_csv(p, 102e-6, "H", tol=0.1)
+    assert d.shape == (30,)
+
+
+def test_lot_errors_name_file_row_and_column(tmp_path):
+    lines = ["value"] + ["4.7n"] * 24 + ["4.7uH"]
+    p = _write(tmp_path, "\n".join(lines))
+    with pytest.raises(SpecError) as exc:
+        load_lot_csv(p, 4.7e-9, "F", tol=0.05)
+    msg = str(exc.value)
+    assert "lot.csv" in msg and "row 26, column 1" in msg and "\n" not in msg
+
+    p = _write(tmp_path, "serial,reading\n1,4.7n\n", "nohdr.csv")
+    with pytest.raises(SpecError, match="'value' column"):
+        load_lot_csv(p, 4.7e-9, "F", tol=0.05)
+
+
+def test_lot_plausibility():
+    good = np.full(MIN_LOT_SIZE, 1.02e-9)
+    assert_allclose(lot_deviations(good, 1e-9, 0.05), 0.02, rtol=1e-12)
+    with pytest.raises(SpecError, match="at least"):
+        lot_deviations(good[:-1], 1e-9, 0.05)
+    with pytest.raises(SpecError, match="median"):
+        lot_deviations(good * 10, 1e-9, 0.05)  # a lot of 10 nF parts for a 1 nF position
+    bad = good.copy()
+    bad[3] = -1e-9
+    with pytest.raises(SpecError, match="positive"):
+        lot_deviations(bad, 1e-9, 0.05)
