@@ -293,7 +293,7 @@ def parse_quantity(text: str | float | int, unit: str, *, key: str | None = None
         raise _fail(f"expected a single value, {what}, got a tolerance {_quote(raw)}", key)
 
     m = _NUMBER_RE.match(s)
-    number: float
+    number: Decimal
     suffix: str
     rkm_power: int | None = None
     if m is not None and not _RKM_RE.match(s):
