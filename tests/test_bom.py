@@ -1,0 +1,131 @@
+"""BOM export: CSV-injection guard, number round trip, safe writes.
+
+The guard follows OWASP's "CSV Injection" guidance (cells starting with
+= + - @ tab or carriage return are prefixed with a single quote; common
+practice). CSV quoting follows RFC 4180 and is read back with Python's csv
+module; JSON is read back with the json module.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+
+import pytest
+
+from picker.bom import COLUMNS, bom_csv, bom_json, bom_rows, write_bom
+from picker.consolidate import BomLine
+from picker.errors import SpecError
+
+HOSTILE = [
+    "=cmd|' /C calc'!A0",
+    "=1+1",
+    "+SUM(A1:A9)",
+    "-2+3",
+    "@SUM(1)",
+    "\t=1",
+    "\r=1",
+    '=HYPERLINK("http://example.invalid","x")',
+]
+
+
+def _line(part_id="C-1", material="C0G", **kw):
+    base = dict(
+        part_id=part_id,
+        kind="C",
+        value=4.7e-9,
+        tol=0.05,
+        qty_per_board=2,
+        qty_build=200,
+        unit_price=0.01,
+        extended_price=2.0000000000000004,  # 0.01 x 200 with float noise
+        on_hand=math.inf,
+        short_by=0,
+        material=material,
+    )
+    base.update(kw)
+    return BomLine(**base)
+
+
+def _read_csv(text):
+    return list(csv.reader(io.StringIO(text, newline="")))
+
+
+@pytest.mark.parametrize("bad", HOSTILE)
+def test_hostile_cells_are_neutralised(bad):
+    rows = _read_csv(bom_csv([_line(part_id=bad, material=bad)]))
+    assert rows[0] == list(COLUMNS)
+    got = dict(zip(COLUMNS, rows[1], strict=True))
+    for col in ("part_id", "material"):
+        assert got[col] == "'" + bad  # the original text survives behind the quote
+        assert got[col][0] not in "=+-@\t\r"
+
+
+def test_every_cell_is_safe_and_numbers_round_trip():
+    lines = [_line(part_id=h, material=h) for h in HOSTILE] + [
+        _line(
+            "L-9",
+            kind="L",
+            value=2.2e-5,
+            tol=0.1,
+            material="ferrite",
+            unit_price=math.nan,
+            extended_price=math.nan,
+            on_hand=150.0,
+            short_by=50,
+        )
+    ]
+    rows = _read_csv(bom_csv(lines))
+    for r in rows[1:]:
+        for cell in r:
+            assert not cell or cell[0] not in "=+-@\t\r"
+    last = dict(zip(COLUMNS, rows[-1], strict=True))
+    assert last["value"] == "22 µH"
+    assert float(last["value_si"]) == 2.2e-5  # repr round-trips exactly
+    assert last["unit_price"] == "" and last["extended_price"] == ""
+    assert last["on_hand"] == "150" and last["short_by"] == "50"
+    first = dict(zip(COLUMNS, rows[1], strict=True))
+    assert first["value"] == "4.7 nF" and first["tolerance"] == "5 %"
+    assert first["extended_price"] == "2.0"  # float noise rounded away
+    assert first["on_hand"] == ""  # not tracked
+
+
+def test_plain_cells_unchanged():
+    rows = _read_csv(bom_csv([_line(part_id="CAP 0042, rev B", material='X7R "soft"')]))
+    got = dict(zip(COLUMNS, rows[1], strict=True))
+    assert got["part_id"] == "CAP 0042, rev B"
+    assert got["material"] == 'X7R "soft"'
+
+
+def test_json_round_trip():
+    data = json.loads(bom_json([_line(on_hand=500.0)], build_quantity=100))
+    assert data["build_quantity"] == 100
+    row = data["bom"][0]
+    assert set(row) == set(COLUMNS)
+    assert row["value_si"] == 4.7e-9 and row["on_hand"] == 500
+    assert row["extended_price"] == 2.0
+    assert bom_rows([_line(unit_price=math.nan)])[0]["unit_price"] is None
+
+
+def test_write_bom_safety(tmp_path):
+    out = tmp_path / "bom.csv"
+    write_bom(out, [_line()])
+    first = out.read_bytes()
+    assert first.startswith(b"part_id,kind,value")
+    with pytest.raises(SpecError, match="exists"):
+        write_bom(out, [_line(part_id="X")])
+    assert out.read_bytes() == first  # untouched
+    write_bom(out, [_line(part_id="X")], force=True)
+    assert b"X," in out.read_bytes()
+    plan = tmp_path / "plan.toml"
+    plan.write_text("x = 1\n")
+    with pytest.raises(SpecError, match="input"):
+        write_bom(plan.with_suffix(".json"), [_line()], inputs=[plan.with_suffix(".json")])
+    with pytest.raises(SpecError, match=r"\.csv or \.json"):
+        write_bom(tmp_path / "bom.xlsx", [_line()])
+    assert not list(tmp_path.glob(".*.tmp"))  # no temporary file left behind
+    j = tmp_path / "bom.json"
+    write_bom(j, [_line()])
+    assert json.loads(j.read_text())["bom"][0]["part_id"] == "C-1"
