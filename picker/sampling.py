@@ -1,0 +1,279 @@
+"""Uniform variates for the Monte Carlo: plain random or scrambled Sobol, and batching.
+
+Axis convention: samples on axis 0, variates (part positions, drift columns)
+on axis 1. Every variate is strictly inside (0, 1), so inverse CDFs such as
+``scipy.stats.norm.ppf`` stay finite.
+
+Sobol points keep their balance only in blocks of n = 2^m (scipy.stats.qmc.Sobol
+documentation; REFERENCES.md), so ``method="sobol"`` rounds the sample count up
+to the next power of two, and :func:`adaptive_batches` grows a Sobol run in
+doubling batches so that the running total stays a power of two. Scrambling
+(Owen-type, scipy's ``scramble=True``) makes the estimate unbiased and lets the
+binomial interval be used as for plain sampling (a conservative reading: the
+true error of a scrambled Sobol estimate is usually smaller).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.stats import binomtest, qmc
+
+METHODS = ("random", "sobol")
+_EPS = 2.0**-53
+
+
+def _open_interval(u: np.ndarray) -> np.ndarray:
+    """Map [0, 1) variates into (0, 1) by nudging exact zeros (probability 2^-53 each)."""
+    return np.clip(u, _EPS, 1.0 - _EPS)
+
+
+def sobol_size(n: int) -> int:
+    """Smallest power of two >= n (the Sobol block size used for n samples).
+
+    Examples
+    --------
+    >>> sobol_size(1000), sobol_size(1024), sobol_size(1)
+    (1024, 1024, 1)
+    """
+    if n < 1:
+        raise ValueError(f"expected at least one sample, got {n}")
+    return 1 << (int(n) - 1).bit_length()
+
+
+def uniform_matrix(
+    n: int, k: int, *, method: str = "random", rng: np.random.Generator
+) -> np.ndarray:
+    """A matrix of uniform variates in (0, 1).
+
+    Parameters
+    ----------
+    n : int
+        Samples wanted. With ``method="sobol"`` the result has
+        ``sobol_size(n)`` rows (n rounded up to a power of two).
+    k : int
+        Number of columns (independent variates per sample).
+    method : {"random", "sobol"}
+        ``"random"``: ``rng.random((n, k))``. ``"sobol"``: scrambled Sobol points,
+        ``scipy.stats.qmc.Sobol(k, scramble=True, rng=rng).random_base2(m)``.
+    rng : numpy.random.Generator
+        Source of randomness (the Sobol scrambling is drawn from it too).
+
+    Returns
+    -------
+    numpy.ndarray, shape (n', k)
+        ``n' = n`` for random, ``sobol_size(n)`` for Sobol.
+    """
+    if method == "random":
+        return _open_interval(rng.random((int(n), int(k))))
+    if method == "sobol":
+        m = sobol_size(n).bit_length() - 1
+        return _open_interval(qmc.Sobol(int(k), scramble=True, rng=rng).random_base2(m))
+    raise ValueError(f"expected a sampling method, one of {', '.join(METHODS)}; got {method!r}")
+
+
+def uniform_batches(
+    k: int,
+    *,
+    method: str = "random",
+    rng: np.random.Generator,
+    first: int = 4096,
+    max_batch: int = 1 << 16,
+) -> Iterator[np.ndarray]:
+    """An endless stream of batches of uniform variates, shape (batch, k) each.
+
+    ``"random"`` yields ``first`` rows, then doubles the batch up to
+    ``max_batch`` rows (few batches, bounded memory). ``"sobol"`` continues one
+    scrambled Sobol sequence in doubling batches (first, first, 2·first,
+    4·first, ...; ``max_batch`` does not apply), so that after every batch the
+    total is a power of two and the points stay balanced.
+    """
+    if method == "random":
+        size = int(first)
+        while True:
+            yield _open_interval(rng.random((size, int(k))))
+            size = min(2 * size, max(int(max_batch), int(first)))
+    elif method == "sobol":
+        size = sobol_size(first)
+        engine = qmc.Sobol(int(k), scramble=True, rng=rng)
+        yield _open_interval(engine.random_base2(size.bit_length() - 1))
+        total = size
+        while True:
+            yield _open_interval(engine.random(total))
+            total *= 2
+    else:
+        raise ValueError(f"expected a sampling method, one of {', '.join(METHODS)}; got {method!r}")
+
+
+def wilson_half_width(k, n: int, confidence: float = 0.95) -> np.ndarray:
+    """Half-width of the Wilson score interval (Wilson 1927) for each count in ``k``.
+
+    Uses ``scipy.stats.binomtest(k, n).proportion_ci(method="wilson")``.
+
+    Returns
+    -------
+    numpy.ndarray, shape of ``k``
+    """
+    ks = np.atleast_1d(np.asarray(k, dtype=np.int64))
+    out = np.empty(ks.shape, dtype=float)
+    for i, kk in enumerate(ks.ravel()):
+        ci = binomtest(int(kk), int(n)).proportion_ci(confidence_level=confidence, method="wilson")
+        out.flat[i] = (ci.high - ci.low) / 2.0
+    return out.reshape(np.shape(k)) if np.ndim(k) else out[0]
+
+
+@dataclass(frozen=True)
+class BatchResult:
+    """Outcome of an adaptive Monte Carlo run.
+
+    Attributes
+    ----------
+    passed : numpy.ndarray, shape (candidates,)
+        Passing boards per candidate.
+    samples : int
+        Boards simulated per candidate.
+    half_width : numpy.ndarray, shape (candidates,)
+        Wilson half-width at ``confidence`` after the last batch.
+    batches : int
+    converged : bool
+        ``True`` when every tracked half-width reached ``precision``.
+    """
+
+    passed: np.ndarray
+    samples: int
+    half_width: np.ndarray
+    batches: int
+    converged: bool
+
+
+def adaptive_batches(
+    count: Callable[[np.ndarray], np.ndarray],
+    k: int,
+    *,
+    precision: float,
+    max_samples: int,
+    rng: np.random.Generator,
+    method: str = "random",
+    first: int = 4096,
+    confidence: float = 0.95,
+    track: Callable[[np.ndarray, int], np.ndarray] | None = None,
+    progress: Callable[[int, int, float], None] | None = None,
+) -> BatchResult:
+    """Run Monte Carlo batches until the yield interval is narrow enough.
+
+    Parameters
+    ----------
+    count : callable
+        ``count(u) -> passed``: given a batch of uniform variates, shape
+        (batch, k), return the passing boards per candidate, shape
+        (candidates,). The same batch serves every candidate (common random
+        numbers).
+    k : int
+        Columns of each batch.
+    precision : float
+        Stop when the Wilson half-width (``scipy.stats.binomtest(...).proportion_ci``)
+        of every tracked candidate is at most this (0.005 = ±0.5 %).
+    max_samples : int
+        Stop once this many boards are simulated (the last batch may be
+        trimmed so the cap holds; for Sobol the cap is rounded down to a power
+        of two so balance is kept).
+    rng, method, first
+        As for :func:`uniform_batches`.
+    confidence : float
+        Confidence level of the interval.
+    track : callable, optional
+        ``track(passed, samples) -> mask`` of the candidates whose precision
+        matters (default: all), e.g. only those that can still be the best.
+    progress : callable, optional
+        ``progress(samples, max_samples, worst_half_width)`` after every batch
+        (the CLI draws its progress bar from this; the core prints nothing).
+
+    Returns
+    -------
+    BatchResult
+    """
+    if not 0 < precision < 1:
+        raise ValueError(f"expected a precision in (0, 1), got {precision}")
+    cap = int(max_samples)
+    if method == "sobol":
+        cap = 1 << (cap.bit_length() - 1)  # a power of two <= max_samples
+    passed = None
+    n = 0
+    batches = 0
+    half = np.array([1.0])
+    for u in uniform_batches(k, method=method, rng=rng, first=first):
+        if n + u.shape[0] > cap:
+            u = u[: cap - n]
+        if u.shape[0] == 0:
+            break
+        got = np.asarray(count(u), dtype=np.int64)
+        passed = got if passed is None else passed + got
+        n += u.shape[0]
+        batches += 1
+        mask = np.ones(passed.shape, bool) if track is None else np.asarray(track(passed, n))
+        half = wilson_half_width(passed, n, confidence)
+        worst = float(np.max(half[mask])) if np.any(mask) else 0.0
+        if progress is not None:
+            progress(n, cap, worst)
+        if worst <= precision or n >= cap:
+            break
+    assert passed is not None
+    return BatchResult(passed, n, np.atleast_1d(half), batches, bool(worst <= precision))
+
+
+def samples_for_precision(p: float, precision: float, confidence: float = 0.95) -> int:
+    """Rough sample count for a ±precision interval at yield p (normal approximation).
+
+    n ≈ z²·p(1 − p)/precision², z the two-sided normal quantile; a planning
+    figure only, the run itself checks the Wilson interval.
+    """
+    from scipy.stats import norm
+
+    z = norm.ppf(0.5 + confidence / 2.0)
+    p = min(max(p, 1e-6), 1 - 1e-6)
+    return int(math.ceil(z * z * p * (1 - p) / (precision * precision)))
+
+
+def compare_methods(
+    indicator: Callable[[np.ndarray], np.ndarray],
+    exact: float,
+    k: int,
+    ns,
+    *,
+    reps: int = 20,
+    seed: int = 0,
+) -> dict[str, np.ndarray]:
+    """Root-mean-square error of random and Sobol yield estimates against a known answer.
+
+    Parameters
+    ----------
+    indicator : callable
+        ``indicator(u) -> bool array (n,)``: does each sample pass.
+    exact : float
+        The known yield.
+    k : int
+        Columns of U.
+    ns : sequence of int
+        Sample counts (powers of two, so both methods use the same n).
+    reps : int
+        Independent repetitions per method and n (seeds derived from ``seed``).
+
+    Returns
+    -------
+    dict
+        ``{"n": array, "random": rms errors, "sobol": rms errors}``, each shape (len(ns),).
+    """
+    ns = [int(n) for n in ns]
+    out = {"n": np.asarray(ns), "random": np.empty(len(ns)), "sobol": np.empty(len(ns))}
+    for method in METHODS:
+        ss = np.random.SeedSequence([seed, METHODS.index(method)])
+        gens = [np.random.default_rng(s) for s in ss.spawn(reps)]
+        for j, n in enumerate(ns):
+            err = [
+                np.mean(indicator(uniform_matrix(n, k, method=method, rng=g))) - exact for g in gens
+            ]
+            out[method][j] = float(np.sqrt(np.mean(np.square(err))))
+    return out
