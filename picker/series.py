@@ -306,3 +306,8 @@ def denser(name: str) -> str | None:
     """
     i = SERIES_NAMES.index(_canonical(name))
     return SERIES_NAMES[i + 1] if i + 1 < len(SERIES_NAMES) else None
+
+
+def canonical_name(name: object, key: str | None = None) -> str:
+    """The series name in its standard spelling ("e24" -> "E24"); SpecError if unknown."""
+    return _canonical(name, key)

@@ -88,3 +88,55 @@ def get_topology(name: str) -> Topology:
         raise SpecError(
             f"expected a topology, one of {', '.join(TOPOLOGIES)}; got {name!r}", key="topology"
         ) from None
+
+
+@dataclass(frozen=True)
+class Parasitics:
+    """Board and device parasitics (SI): see :class:`picker.spec.ParasiticsSpec`."""
+
+    stray: float = 0.0
+    c1_shunt: float = 0.0
+    c2_shunt: float = 0.0
+    l_scale: float = 1.0
+
+
+def board_values(values: Mapping[str, np.ndarray], par: Parasitics) -> dict[str, np.ndarray]:
+    """Part values as the tank sees them: shunts added across C1/C2, L scaled.
+
+    A position with no parasitic is passed through unchanged (the same array).
+    """
+    out = dict(values)
+    if par.c1_shunt:
+        out["C1"] = values["C1"] + par.c1_shunt
+    if par.c2_shunt:
+        out["C2"] = values["C2"] + par.c2_shunt
+    if par.l_scale != 1.0:
+        out["L"] = values["L"] * par.l_scale
+    return out
+
+
+def board_frequency(topology: Topology, values: Mapping[str, np.ndarray], par: Parasitics):
+    """Ideal-tank frequency of a board with its parasitics, Hz."""
+    return topology.frequency(board_values(values, par), par.stray)
+
+
+def board_beta(values: Mapping[str, np.ndarray], par: Parasitics):
+    """Feedback fraction of a board, (C1 + c1_shunt) / (C2 + c2_shunt)."""
+    return (np.asarray(values["C1"]) + par.c1_shunt) / (np.asarray(values["C2"]) + par.c2_shunt)
+
+
+def board_sensitivities(
+    topology: Topology, values: Mapping[str, np.ndarray], par: Parasitics
+) -> dict[str, np.ndarray]:
+    """S_x = ∂ln f / ∂ln x with respect to each *marked* part value.
+
+    The chain rule through the shunt gives an extra factor x / (x + shunt)
+    for C1 and C2; the inductance scale does not change S_L = -1/2.
+    """
+    bv = board_values(values, par)
+    s = topology.sensitivities(bv, par.stray)
+    if par.c1_shunt:
+        s["C1"] = s["C1"] * (np.asarray(values["C1"]) / bv["C1"])
+    if par.c2_shunt:
+        s["C2"] = s["C2"] * (np.asarray(values["C2"]) / bv["C2"])
+    return s

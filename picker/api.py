@@ -1,0 +1,315 @@
+"""What a notebook user imports: load a spec, solve it, evaluate a given design.
+
+>>> from picker.api import load_spec, solve          # doctest: +SKIP
+>>> result = solve(load_spec("demo_specs/probe_exciter.toml"))  # doctest: +SKIP
+>>> result.candidates[0].values                      # doctest: +SKIP
+
+The CLI is a thin client of these functions.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from picker import series as series_mod
+from picker.errors import SpecError
+from picker.montecarlo import (
+    YieldEstimate,
+    count_passing,
+    draw_uniform,
+    estimate_yield,
+    unit_deviation,
+)
+from picker.ranking import monte_carlo_rank
+from picker.screen import corner_span, screen_yield
+from picker.search import Designs, Problem, ValueTable, search, uniform_table
+from picker.spec import Spec, load_spec, position_unit, spec_from_dict
+from picker.topology import Parasitics, board_beta, board_frequency, board_sensitivities
+
+__all__ = [
+    "Candidate",
+    "Miss",
+    "PartPick",
+    "SolveResult",
+    "build_problem",
+    "evaluate",
+    "load_spec",
+    "solve",
+    "spec_from_dict",
+]
+
+
+@dataclass(frozen=True)
+class PartPick:
+    """One chosen part: its value (SI), where it comes from and its tolerance."""
+
+    position: str
+    value: float
+    unit: str
+    source: str
+    tolerance: float
+    part_id: str = ""
+    price: float = float("nan")
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """A ranked design with its figures."""
+
+    rank: int
+    parts: dict[str, PartPick]
+    f_nominal_hz: float
+    error: float
+    feedback_fraction: float
+    yield_: YieldEstimate
+    screen_yield: float
+    f_worst_low_hz: float
+    f_worst_high_hz: float
+    sensitivities: dict[str, float]
+    in_window: bool = True
+    feedback_ok: bool = True
+
+    @property
+    def values(self) -> dict[str, float]:
+        return {p: pp.value for p, pp in self.parts.items()}
+
+    @property
+    def part_ids(self) -> dict[str, str]:
+        return {p: pp.part_id for p, pp in self.parts.items()}
+
+    @property
+    def yield_estimate(self) -> float:
+        return self.yield_.estimate
+
+    @property
+    def ci_low(self) -> float:
+        return self.yield_.ci_low
+
+    @property
+    def ci_high(self) -> float:
+        return self.yield_.ci_high
+
+
+@dataclass(frozen=True)
+class Miss:
+    """A near-feasible design and the constraint it fails."""
+
+    values: dict[str, float]
+    f_nominal_hz: float
+    feedback_fraction: float
+    failed: str
+
+
+@dataclass(frozen=True)
+class SolveResult:
+    """Everything ``solve`` or ``evaluate`` found, best design first."""
+
+    spec: Spec
+    status: str
+    candidates: list[Candidate]
+    space_size: int = 0
+    feasible: int = 0
+    screened: int = 0
+    misses: list[Miss] = field(default_factory=list)
+    advice: list[str] = field(default_factory=list)
+    distribution: str = "uniform"
+    samples: int = 0
+    seed: int = 0
+
+
+def part_table(spec: Spec, pos: str) -> ValueTable:
+    """The value table of one position, from its series range or value list."""
+    part = spec.parts[pos]
+    if part.series is not None:
+        vals = series_mod.expand(part.series, part.min, part.max)
+        return uniform_table(vals, part.tolerance, part.series)
+    return uniform_table(np.asarray(part.values), part.tolerance, "list")
+
+
+def parasitics_of(spec: Spec) -> Parasitics:
+    p = spec.parasitics
+    return Parasitics(p.stray, p.c1_shunt, p.c2_shunt, p.l_scale)
+
+
+def build_problem(spec: Spec, *, f_min=None, f_max=None, beta_min=None, beta_max=None) -> Problem:
+    """Turn a validated spec into the core's search problem (optionally relaxed)."""
+    topo = spec.topo
+    return Problem(
+        topology=topo,
+        tables={p: part_table(spec, p) for p in topo.positions},
+        f_min=spec.frequency.f_min if f_min is None else f_min,
+        f_max=spec.frequency.f_max if f_max is None else f_max,
+        beta_min=spec.feedback.min if beta_min is None else beta_min,
+        beta_max=spec.feedback.max if beta_max is None else beta_max,
+        parasitics=parasitics_of(spec),
+    )
+
+
+def _candidates(
+    spec: Spec,
+    problem: Problem,
+    designs: Designs,
+    passed: np.ndarray,
+    screen: np.ndarray,
+    samples: int,
+    seed: int,
+) -> list[Candidate]:
+    ys = spec.yield_
+    lo, hi = corner_span(problem, designs)
+    vals = designs.values(problem)
+    sens = board_sensitivities(problem.topology, vals, problem.parasitics)
+    target = spec.frequency.target
+    out = []
+    for r in range(len(designs)):
+        parts = {}
+        for p in problem.topology.positions:
+            t = problem.tables[p]
+            i = designs.idx[p][r]
+            parts[p] = PartPick(
+                p,
+                float(t.values[i]),
+                position_unit(p),
+                t.source,
+                float(t.tol[i]),
+                str(t.part_id[i]),
+                float(t.price[i]),
+            )
+        f = float(designs.f_nominal[r])
+        beta = float(designs.beta[r])
+        out.append(
+            Candidate(
+                rank=r + 1,
+                parts=parts,
+                f_nominal_hz=f,
+                error=f / target - 1.0,
+                feedback_fraction=beta,
+                yield_=estimate_yield(
+                    int(passed[r]),
+                    samples,
+                    confidence=ys.confidence,
+                    method=ys.ci_method,
+                    seed=seed,
+                ),
+                screen_yield=float(screen[r]),
+                f_worst_low_hz=float(lo[r]),
+                f_worst_high_hz=float(hi[r]),
+                sensitivities={p: float(s[r]) for p, s in sens.items()},
+                in_window=bool(problem.f_min <= f <= problem.f_max),
+                feedback_ok=bool(problem.beta_min <= beta <= problem.beta_max),
+            )
+        )
+    return out
+
+
+def solve(
+    spec: Spec,
+    *,
+    top: int | None = None,
+    samples: int | None = None,
+    seed: int | None = None,
+    candidates: int | None = None,
+) -> SolveResult:
+    """Search, screen, Monte Carlo and rank; the best ``top`` designs first."""
+    ys = spec.yield_
+    top = spec.report.top if top is None else top
+    samples = ys.samples if samples is None else samples
+    seed = ys.seed if seed is None else seed
+    m = ys.candidates if candidates is None else candidates
+    problem = build_problem(spec)
+    designs = search(problem, max_designs=spec.search.max_designs)
+    common = dict(
+        spec=spec,
+        space_size=problem.space_size(),
+        feasible=len(designs),
+        distribution=ys.distribution,
+        samples=samples,
+        seed=seed,
+    )
+    if len(designs) == 0:
+        from picker.misses import explain_infeasible
+
+        misses, advice = explain_infeasible(spec, problem)
+        return SolveResult(
+            status="infeasible", candidates=[], misses=misses, advice=advice, **common
+        )
+    dev = unit_deviation(
+        draw_uniform(seed, samples, len(problem.topology.positions)), ys.distribution
+    )
+    ranked, passed, screen = monte_carlo_rank(
+        problem,
+        designs,
+        dev,
+        distribution=ys.distribution,
+        m=m,
+        top=top,
+        target=spec.frequency.target,
+    )
+    best = designs.take(ranked[:top])
+    cands = _candidates(spec, problem, best, passed[:top], screen[:top], samples, seed)
+    return SolveResult(status="ok", candidates=cands, screened=len(ranked), **common)
+
+
+def evaluate(
+    spec: Spec,
+    values: dict[str, float],
+    *,
+    tolerances: dict[str, float] | None = None,
+    samples: int | None = None,
+    seed: int | None = None,
+) -> SolveResult:
+    """The same figures as ``solve`` for one given design (an existing board)."""
+    ys = spec.yield_
+    samples = ys.samples if samples is None else samples
+    seed = ys.seed if seed is None else seed
+    topo = spec.topo
+    missing = [p for p in topo.positions if p not in values]
+    if missing:
+        raise SpecError(
+            f"expected a value for every position ({', '.join(topo.positions)}); "
+            f"missing {', '.join(missing)}",
+            key="--set",
+        )
+    extra = [p for p in values if p not in topo.positions]
+    if extra:
+        raise SpecError(
+            f"unknown position {', '.join(extra)} for a {topo.name} tank; "
+            f"expected {', '.join(topo.positions)}",
+            key="--set",
+        )
+    tolerances = tolerances or {}
+    tables = {}
+    for p in topo.positions:
+        part = spec.parts[p]
+        tol = tolerances.get(p, part.tolerance)
+        src = (
+            part.series if part.series and series_mod.is_member(part.series, values[p]) else "given"
+        )
+        tables[p] = uniform_table(np.array([values[p]]), tol, src)
+    base = build_problem(spec)
+    problem = Problem(
+        topo, tables, base.f_min, base.f_max, base.beta_min, base.beta_max, base.parasitics
+    )
+    idx = {p: np.zeros(1, dtype=np.int64) for p in topo.positions}
+    vals = {p: tables[p].values for p in topo.positions}
+    designs = Designs(
+        idx,
+        np.asarray(board_frequency(topo, vals, problem.parasitics), dtype=float),
+        np.asarray(board_beta(vals, problem.parasitics), dtype=float),
+    )
+    dev = unit_deviation(draw_uniform(seed, samples, len(topo.positions)), ys.distribution)
+    passed = count_passing(problem, designs, dev)
+    screen = screen_yield(problem, designs, ys.distribution)
+    cands = _candidates(spec, problem, designs, passed, screen, samples, seed)
+    return SolveResult(
+        spec=spec,
+        status="ok",
+        candidates=cands,
+        space_size=1,
+        feasible=int(cands[0].in_window and cands[0].feedback_ok),
+        screened=1,
+        distribution=ys.distribution,
+        samples=samples,
+        seed=seed,
+    )

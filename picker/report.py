@@ -1,0 +1,211 @@
+"""Render results: JSON (one object), CSV (one row per design) and a rich table.
+
+JSON layout (ARCHITECTURE.md; names are stable, new fields may be added):
+``candidates`` best first, each with ``parts.<pos>.value`` in SI units,
+``series``, ``tolerance``; ``f_nominal_hz``; ``feedback_fraction``;
+``yield.estimate/ci_low/ci_high/samples``. No timings or dates go into JSON,
+so the same spec and seed give byte-identical output.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+
+from rich.console import Console
+from rich.table import Table
+
+from picker import __version__
+from picker.api import Candidate, SolveResult
+from picker.safe_io import csv_safe
+from picker.units import format_percent, format_quantity
+
+
+def _num(x: float) -> float | None:
+    return float(x) if math.isfinite(x) else None
+
+
+def candidate_dict(c: Candidate) -> dict:
+    parts = {}
+    for p, pp in c.parts.items():
+        parts[p] = {
+            "value": pp.value,
+            "display": format_quantity(pp.value, pp.unit),
+            "series": pp.source,
+            "tolerance": pp.tolerance,
+        }
+        if pp.part_id:
+            parts[p]["part_id"] = pp.part_id
+        if math.isfinite(pp.price):
+            parts[p]["price"] = pp.price
+    return {
+        "rank": c.rank,
+        "parts": parts,
+        "f_nominal_hz": c.f_nominal_hz,
+        "error": c.error,
+        "feedback_fraction": c.feedback_fraction,
+        "in_window": c.in_window,
+        "feedback_ok": c.feedback_ok,
+        "yield": c.yield_.as_dict(),
+        "screen_yield": c.screen_yield,
+        "worst_case": {"f_low_hz": c.f_worst_low_hz, "f_high_hz": c.f_worst_high_hz},
+        "sensitivities": c.sensitivities,
+    }
+
+
+def result_dict(r: SolveResult) -> dict:
+    s = r.spec
+    out = {
+        "picker_version": __version__,
+        "title": s.title,
+        "topology": s.topology,
+        "status": r.status,
+        "window": {
+            "target_hz": s.frequency.target,
+            "f_min_hz": s.frequency.f_min,
+            "f_max_hz": s.frequency.f_max,
+        },
+        "feedback_window": {"min": s.feedback.min, "max": s.feedback.max},
+        "search": {"space_size": r.space_size, "feasible": r.feasible, "screened": r.screened},
+        "monte_carlo": {
+            "samples": r.samples,
+            "seed": r.seed,
+            "distribution": r.distribution,
+            "confidence": s.yield_.confidence,
+            "ci_method": s.yield_.ci_method,
+        },
+        "candidates": [candidate_dict(c) for c in r.candidates],
+    }
+    if r.status != "ok":
+        out["misses"] = [
+            {
+                "parts": {p: {"value": v} for p, v in m.values.items()},
+                "f_nominal_hz": m.f_nominal_hz,
+                "feedback_fraction": m.feedback_fraction,
+                "failed": m.failed,
+            }
+            for m in r.misses
+        ]
+        out["advice"] = list(r.advice)
+    return out
+
+
+def to_json(r: SolveResult) -> str:
+    return json.dumps(result_dict(r), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def to_csv(r: SolveResult) -> str:
+    positions = r.spec.topo.positions
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(
+        [
+            "rank",
+            *positions,
+            *(f"{p}_value" for p in positions),
+            "f_nominal_hz",
+            "error",
+            "feedback_fraction",
+            "yield",
+            "yield_ci_low",
+            "yield_ci_high",
+            "samples",
+            "f_worst_low_hz",
+            "f_worst_high_hz",
+        ]
+    )
+    for c in r.candidates:
+        w.writerow(
+            [c.rank]
+            + [csv_safe(format_quantity(c.parts[p].value, c.parts[p].unit)) for p in positions]
+            + [repr(c.parts[p].value) for p in positions]
+            + [
+                repr(c.f_nominal_hz),
+                repr(c.error),
+                repr(c.feedback_fraction),
+                repr(c.yield_.estimate),
+                repr(c.yield_.ci_low),
+                repr(c.yield_.ci_high),
+                c.yield_.samples,
+                repr(c.f_worst_low_hz),
+                repr(c.f_worst_high_hz),
+            ]
+        )
+    return buf.getvalue()
+
+
+def _span(c: Candidate, target: float) -> str:
+    lo = c.f_worst_low_hz / target - 1
+    hi = c.f_worst_high_hz / target - 1
+    return f"{lo * 100:+.2f} %..{hi * 100:+.2f} %"
+
+
+def print_table(r: SolveResult, console: Console) -> None:
+    s = r.spec
+    f = s.frequency
+    console.print(
+        f"[bold]{s.title or 'picker'}[/bold]  {s.topology}, target "
+        f"{format_quantity(f.target, 'Hz', digits=6)}, window "
+        f"{format_quantity(f.f_min, 'Hz', digits=6)} .. {format_quantity(f.f_max, 'Hz', digits=6)}, "
+        f"feedback {s.feedback.min:g}..{s.feedback.max:g}"
+    )
+    if r.status != "ok":
+        console.print("[bold red]No design meets the spec.[/bold red] Nearest misses:")
+        t = Table(show_lines=False)
+        for p in s.topo.positions:
+            t.add_column(p, justify="right")
+        t.add_column("f nominal", justify="right")
+        t.add_column("beta", justify="right")
+        t.add_column("fails")
+        for m in r.misses:
+            t.add_row(
+                *(
+                    format_quantity(m.values[p], "F" if p[0] == "C" else "H")
+                    for p in s.topo.positions
+                ),
+                format_quantity(m.f_nominal_hz, "Hz", digits=5),
+                f"{m.feedback_fraction:.3g}",
+                m.failed,
+            )
+        console.print(t)
+        console.print("What to relax:")
+        for a in r.advice:
+            console.print(f"  - {a}")
+        return
+    console.print(
+        f"searched {r.space_size:,} combinations exactly: {r.feasible:,} feasible, "
+        f"{r.screened:,} Monte Carlo checked with {r.samples:,} boards each "
+        f"({r.distribution}, seed {r.seed})"
+    )
+    t = Table(show_lines=False, pad_edge=False)
+    t.add_column("#", justify="right")
+    for p in s.topo.positions:
+        t.add_column(p, justify="right")
+    t.add_column("f nominal", justify="right")
+    t.add_column("error", justify="right")
+    t.add_column("beta", justify="right")
+    t.add_column(f"yield ({s.yield_.confidence:.0%} CI)", justify="right")
+    t.add_column("worst-case span", justify="right")
+    for c in r.candidates:
+        t.add_row(
+            str(c.rank),
+            *(
+                f"{format_quantity(c.parts[p].value, c.parts[p].unit)} "
+                f"{format_percent(c.parts[p].tolerance)}"
+                for p in s.topo.positions
+            ),
+            format_quantity(c.f_nominal_hz, "Hz", digits=6),
+            f"{c.error * 100:+.3f} %",
+            f"{c.feedback_fraction:.3f}" + ("" if c.feedback_ok else " !"),
+            f"{c.yield_.estimate:.1%} ({c.yield_.ci_low:.1%}..{c.yield_.ci_high:.1%})",
+            _span(c, f.target),
+        )
+    for col in t.columns:
+        col.no_wrap = True
+    console.print(t)
+    if any(not c.in_window for c in r.candidates):
+        console.print("Note: the nominal frequency lies outside the window.")
+    if any(not c.feedback_ok for c in r.candidates):
+        console.print("Note: '!' marks a feedback fraction outside the feedback window.")

@@ -1,0 +1,276 @@
+"""Exact search of the discrete value space.
+
+Every combination of table values whose nominal board frequency lies in
+``[f_min, f_max]`` and whose feedback fraction lies in ``[beta_min, beta_max]``
+is found, without enumerating the full cube:
+
+1. the (C1, C2) pairs that satisfy the feedback window are found per C1 with
+   ``searchsorted`` (beta is monotone in C2);
+2. the remaining positions but one are enumerated with those pairs, in chunks;
+3. for the last ("solved") position the frequency window is solved
+   analytically into a value interval, and ``searchsorted`` gives its index
+   range;
+4. the hits are re-checked with the very same frequency function a brute force
+   would use, so the result set is exactly the brute-force set (a property test
+   shows this).
+
+The solved position is L, or C3 in a Clapp tank when that makes the outer
+enumeration smaller. Results are a struct of arrays, sorted by index tuple.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from picker.errors import SpecError
+from picker.topology import TWO_PI, Parasitics, Topology, board_beta, board_frequency
+
+#: Outer combinations handled per chunk (bounds memory to a few tens of MB).
+CHUNK = 1 << 20
+#: Relative widening of analytic bounds before the exact re-check.
+_WIDEN = 1e-9
+
+
+@dataclass(frozen=True)
+class ValueTable:
+    """The values one position may take, sorted ascending, with per-value facts.
+
+    Attributes
+    ----------
+    values : (n,) float, SI units, sorted ascending.
+    tol : (n,) float, relative tolerance of each value.
+    source : str, series name ("E12"), "list" or "stock".
+    part_id : (n,) object, a stock part id or "" for a series value.
+    price : (n,) float, unit price (NaN when unknown).
+    stock_qty : (n,) float, quantity on hand (inf when unlimited).
+    """
+
+    values: np.ndarray
+    tol: np.ndarray
+    source: str = "list"
+    part_id: np.ndarray | None = None
+    price: np.ndarray | None = None
+    stock_qty: np.ndarray | None = None
+
+    def __post_init__(self) -> None:
+        n = len(self.values)
+        if self.part_id is None:
+            object.__setattr__(self, "part_id", np.full(n, "", dtype=object))
+        if self.price is None:
+            object.__setattr__(self, "price", np.full(n, np.nan))
+        if self.stock_qty is None:
+            object.__setattr__(self, "stock_qty", np.full(n, np.inf))
+        if n and np.any(np.diff(self.values) < 0):
+            raise ValueError("ValueTable.values must be sorted ascending")
+
+    def __len__(self) -> int:
+        return len(self.values)
+
+
+def uniform_table(values: np.ndarray, tol: float, source: str) -> ValueTable:
+    """A table where every value carries the same relative tolerance."""
+    v = np.asarray(values, dtype=float)
+    return ValueTable(v, np.full(v.shape, float(tol)), source)
+
+
+@dataclass(frozen=True)
+class Problem:
+    """What the search needs: topology, value tables, windows and parasitics."""
+
+    topology: Topology
+    tables: dict[str, ValueTable]
+    f_min: float
+    f_max: float
+    beta_min: float
+    beta_max: float
+    parasitics: Parasitics = field(default_factory=Parasitics)
+
+    def space_size(self) -> int:
+        """Size of the full cube of combinations (what brute force would visit)."""
+        return int(np.prod([len(self.tables[p]) for p in self.topology.positions], dtype=float))
+
+
+@dataclass(frozen=True)
+class Designs:
+    """Feasible designs as a struct of arrays (length n, sorted by index tuple).
+
+    Attributes
+    ----------
+    idx : dict position -> (n,) int64 index into that position's table.
+    f_nominal : (n,) float, nominal board frequency, Hz.
+    beta : (n,) float, feedback fraction.
+    """
+
+    idx: dict[str, np.ndarray]
+    f_nominal: np.ndarray
+    beta: np.ndarray
+
+    def __len__(self) -> int:
+        return len(self.f_nominal)
+
+    def take(self, sel: np.ndarray) -> Designs:
+        return Designs(
+            {p: a[sel] for p, a in self.idx.items()}, self.f_nominal[sel], self.beta[sel]
+        )
+
+    def values(self, problem: Problem) -> dict[str, np.ndarray]:
+        """Nominal part values of every design, position -> (n,) float."""
+        return {p: problem.tables[p].values[i] for p, i in self.idx.items()}
+
+
+def _beta_pairs(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
+    """All (i1, i2) with beta_min <= beta(C1, C2) <= beta_max, exactly."""
+    par = problem.parasitics
+    c1 = problem.tables["C1"].values
+    c2 = problem.tables["C2"].values
+    c1e = c1 + par.c1_shunt
+    # beta = c1e / (c2 + c2_shunt) falls as C2 grows.
+    lo = c1e / problem.beta_max * (1 - _WIDEN) - par.c2_shunt
+    hi = c1e / problem.beta_min * (1 + _WIDEN) - par.c2_shunt
+    a = np.searchsorted(c2, lo, side="left")
+    b = np.searchsorted(c2, hi, side="right")
+    i1, i2 = _expand_ranges(np.arange(len(c1)), a, b)
+    beta = board_beta({"C1": c1[i1], "C2": c2[i2]}, par)
+    ok = (beta >= problem.beta_min) & (beta <= problem.beta_max)
+    return i1[ok], i2[ok]
+
+
+def _expand_ranges(owner: np.ndarray, start: np.ndarray, stop: np.ndarray):
+    """For each owner k, emit (owner[k], j) for j in [start[k], stop[k])."""
+    count = np.maximum(stop - start, 0)
+    total = int(count.sum())
+    rep_owner = np.repeat(owner, count)
+    # j = start[k] + (position within the run)
+    offsets = np.arange(total) - np.repeat(np.cumsum(count) - count, count)
+    return rep_owner, np.repeat(start, count) + offsets
+
+
+def _solved_position(problem: Problem, n_pairs: int) -> str:
+    t = problem.topology
+    if "C3" not in t.positions:
+        return "L"
+    # Outer size when solving L is pairs*|C3|; when solving C3 it is pairs*|L|.
+    return "C3" if len(problem.tables["L"]) < len(problem.tables["C3"]) else "L"
+
+
+def _solve_interval(problem: Problem, solved: str, vals: dict[str, np.ndarray]):
+    """Interval [lo, hi] of the solved position's value that puts f in the window."""
+    par = problem.parasitics
+    w_min = (TWO_PI * problem.f_min) ** 2
+    w_max = (TWO_PI * problem.f_max) ** 2
+    topo = problem.topology
+    c1e = vals["C1"] + par.c1_shunt
+    c2e = vals["C2"] + par.c2_shunt
+    if solved == "L":
+        caps = [c1e, c2e] + ([vals["C3"]] if "C3" in topo.positions else [])
+        ce = 1.0 / sum(1.0 / c for c in caps) + par.stray
+        lo = 1.0 / (w_max * ce * par.l_scale)
+        hi = 1.0 / (w_min * ce * par.l_scale)
+        return lo, hi
+    # solved == "C3": need C_series in [cs_lo, cs_hi]
+    lt = vals["L"] * par.l_scale
+    cs_lo = 1.0 / (w_max * lt) - par.stray
+    cs_hi = 1.0 / (w_min * lt) - par.stray
+    a = 1.0 / c1e + 1.0 / c2e
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv_lo = 1.0 / cs_hi - a  # smallest 1/C3 -> largest C3
+        inv_hi = 1.0 / cs_lo - a
+        c3_hi = np.where((cs_hi > 0) & (inv_lo > 0), 1.0 / inv_lo, np.inf)
+        c3_lo = np.where((cs_lo > 0) & (inv_hi > 0), 1.0 / inv_hi, np.inf)
+    c3_lo = np.where(cs_hi <= 0, np.inf, np.where(cs_lo <= 0, 0.0, c3_lo))
+    return c3_lo, c3_hi
+
+
+def estimate_outer(problem: Problem) -> tuple[int, str]:
+    """Outer combinations the search will visit, and the solved position."""
+    i1, _ = _beta_pairs(problem)
+    solved = _solved_position(problem, len(i1))
+    rest = [p for p in problem.topology.positions if p not in ("C1", "C2", solved)]
+    n = len(i1)
+    for p in rest:
+        n *= len(problem.tables[p])
+    return n, solved
+
+
+def search(problem: Problem, *, max_designs: int = 5_000_000) -> Designs:
+    """Every feasible design of ``problem``, exactly (see the module docstring).
+
+    Raises
+    ------
+    SpecError
+        When the feasible set would exceed ``max_designs`` (narrow the ranges
+        or the window, or raise ``search.max_designs``).
+    """
+    topo = problem.topology
+    tabs = problem.tables
+    i1, i2 = _beta_pairs(problem)
+    solved = _solved_position(problem, len(i1))
+    rest = [p for p in topo.positions if p not in ("C1", "C2", solved)]
+    # Outer grid: pairs x rest (at most one rest position: C3 or L for Clapp).
+    outer_sizes = [len(i1)] + [len(tabs[p]) for p in rest]
+    n_outer = int(np.prod(outer_sizes))
+    found: list[dict[str, np.ndarray]] = []
+    total = 0
+    sol_vals = tabs[solved].values
+    for start in range(0, n_outer, CHUNK):
+        flat = np.arange(start, min(start + CHUNK, n_outer), dtype=np.int64)
+        idx: dict[str, np.ndarray] = {}
+        if rest:
+            k = len(tabs[rest[0]])
+            pair = flat // k
+            idx[rest[0]] = flat % k
+        else:
+            pair = flat
+        idx["C1"], idx["C2"] = i1[pair], i2[pair]
+        vals = {p: tabs[p].values[i] for p, i in idx.items()}
+        lo, hi = _solve_interval(problem, solved, vals)
+        a = np.searchsorted(sol_vals, lo * (1 - _WIDEN), side="left")
+        b = np.searchsorted(sol_vals, hi * (1 + _WIDEN), side="right")
+        total += int(np.maximum(b - a, 0).sum())
+        if total > max_designs * 1.01 + 100:
+            raise SpecError(
+                f"the search holds more than {max_designs:,} feasible designs; narrow the part "
+                "ranges or the frequency window, or raise search.max_designs",
+                key="search.max_designs",
+            )
+        owner, js = _expand_ranges(np.arange(len(flat)), a, b)
+        if len(owner) == 0:
+            continue
+        hit = {p: i[owner] for p, i in idx.items()}
+        hit[solved] = js
+        found.append(hit)
+    if found:
+        idx_all = {p: np.concatenate([h[p] for h in found]) for p in topo.positions}
+    else:
+        idx_all = {p: np.zeros(0, dtype=np.int64) for p in topo.positions}
+    return finish(problem, idx_all, max_designs=max_designs)
+
+
+def finish(problem: Problem, idx: dict[str, np.ndarray], *, max_designs: int) -> Designs:
+    """Exact re-check of candidate index tuples, then a deterministic order."""
+    vals = {p: problem.tables[p].values[i] for p, i in idx.items()}
+    f = board_frequency(problem.topology, vals, problem.parasitics)
+    beta = board_beta(vals, problem.parasitics)
+    ok = (f >= problem.f_min) & (f <= problem.f_max)
+    ok &= (beta >= problem.beta_min) & (beta <= problem.beta_max)
+    idx = {p: i[ok].astype(np.int64) for p, i in idx.items()}
+    if len(idx["L"]) > max_designs:
+        raise SpecError(
+            f"the search holds {len(idx['L']):,} feasible designs, more than {max_designs:,}; "
+            "narrow the part ranges or the frequency window, or raise search.max_designs",
+            key="search.max_designs",
+        )
+    order = np.lexsort([idx[p] for p in reversed(problem.topology.positions)])
+    idx = {p: i[order] for p, i in idx.items()}
+    return Designs(idx, f[ok][order], beta[ok][order])
+
+
+def brute_force(problem: Problem) -> Designs:
+    """Full-cube enumeration: the reference the exact search must equal (tests, benchmark)."""
+    topo = problem.topology
+    sizes = [len(problem.tables[p]) for p in topo.positions]
+    grids = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
+    idx = {p: g.ravel() for p, g in zip(topo.positions, grids, strict=True)}
+    return finish(problem, idx, max_designs=int(np.prod(sizes)) + 1)

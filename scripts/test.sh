@@ -1,0 +1,25 @@
+#!/usr/bin/env bash
+# Run the whole test suite from a clean checkout: makes its own virtual
+# environment, installs picker (non-editable) with its test needs, installs
+# ngspice (Debian package) when it is missing, then runs pytest.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+VENV="${PICKER_VENV:-.venv-test}"
+if ! command -v ngspice >/dev/null 2>&1; then
+  if command -v apt-get >/dev/null 2>&1; then
+    echo "test.sh: installing ngspice (Debian package) for the circuit cross-checks"
+    SUDO=""; [ "$(id -u)" -ne 0 ] && SUDO="sudo"
+    $SUDO apt-get update -qq >/dev/null
+    DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -qq ngspice >/dev/null
+  else
+    echo "test.sh: ngspice is missing and apt-get is not available; install ngspice first" >&2
+    exit 1
+  fi
+fi
+python3 -m venv "$VENV"
+"$VENV/bin/python" -m pip install -q --upgrade pip
+"$VENV/bin/python" -m pip install -q ".[test]"
+# Run from a scratch folder so the tests import the installed package, not the source tree.
+ROOT="$(pwd)"
+cd "$(mktemp -d)"
+"$ROOT/$VENV/bin/python" -m pytest "$ROOT/tests" -c "$ROOT/pyproject.toml" --rootdir "$ROOT" "$@"
