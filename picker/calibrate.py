@@ -623,6 +623,11 @@ def fit_parasitics(
                     f"{name} came out negative ({_fmt_value(name, est)}): not physical; the "
                     "marked values may be biased, or the data do not support this parameter."
                 )
+            if UNITS[name] == "F" and est - q * se < 0 < est + q * se and not at_bound:
+                notes.append(
+                    f"{name} cannot be told from 0 at {100 * confidence:g} % with these units; "
+                    f"leave it out of the fit, or build units that vary more."
+                )
         else:
             nan = float("nan")
             estimates.append(ParameterEstimate(name, base[name], nan, nan, nan, UNITS[name], False))
@@ -696,11 +701,10 @@ def fragment_toml(result: CalibrationResult, *, source: str | None = None) -> st
     """
     n = len(result.unit_ids)
     head = [
-        "# Board parasitics learnt by `picker calibrate`"
-        + (f" from {source}" if source else "")
-        + f" ({n} units, {result.topology} tank, {result.loss} loss).",
-        f"# Fitted: {', '.join(result.fitted)}; residual scale s = {result.residual_scale:.3g}"
-        f" ({'sigma units' if result.sigma is not None else 'ppm'}).",
+        "# Board parasitics learnt by `picker calibrate`" + (f" from {source}" if source else ""),
+        f"# ({n} units, {result.topology} tank, {result.loss} loss). Fitted: "
+        f"{', '.join(result.fitted)}; residual scale s = {result.residual_scale:.3g}"
+        f"{' (sigma units)' if result.sigma is not None else ' ppm'}.",
     ]
     lines = ["[parasitics]"]
     for p in result.parameters:
