@@ -7,11 +7,11 @@ given); 3 a solver or simulator failed.
 
 from __future__ import annotations
 
+import importlib
 import io
 import sys
 from pathlib import Path
 
-import click
 import typer
 from rich.console import Console
 
@@ -217,8 +217,25 @@ def _error(msg: str) -> None:
     sys.stderr.write(f"picker: error: {' '.join(msg.split())}\n")
 
 
+def _click_exceptions(name: str) -> tuple[type[BaseException], ...]:
+    """Exception classes of the click that typer runs on (vendored or not)."""
+    found = []
+    for mod_name in ("typer._click.exceptions", "click.exceptions"):
+        try:
+            mod = importlib.import_module(mod_name)
+        except ImportError:
+            continue
+        cls = getattr(mod, name, None)
+        if cls is not None and cls not in found:
+            found.append(cls)
+    return tuple(found)
+
+
 def main(argv: list[str] | None = None) -> None:
     """Entry point: run the app and map errors to one line and an exit status."""
+    no_args = _click_exceptions("NoArgsIsHelpError")
+    usage = _click_exceptions("UsageError")
+    abort = _click_exceptions("Abort")
     try:
         rv = app(args=argv, prog_name="picker", standalone_mode=False)
     except SpecError as exc:
@@ -233,13 +250,14 @@ def main(argv: list[str] | None = None) -> None:
     except PickerError as exc:
         _error(str(exc))
         sys.exit(2)
-    except click.exceptions.NoArgsIsHelpError as exc:
-        sys.stdout.write(exc.ctx.get_help() + "\n" if exc.ctx else "")
+    except no_args as exc:
+        ctx = getattr(exc, "ctx", None)
+        sys.stdout.write((ctx.get_help() + "\n") if ctx else "")
         sys.exit(2)
-    except click.exceptions.UsageError as exc:
-        _error(exc.format_message())
+    except usage as exc:
+        _error(exc.format_message())  # type: ignore[attr-defined]
         sys.exit(2)
-    except click.exceptions.Abort:
+    except abort:
         _error("aborted")
         sys.exit(130)
     except KeyboardInterrupt:

@@ -19,7 +19,6 @@ from picker import series as series_mod
 from picker.search import Problem, search
 from picker.units import format_percent
 
-_WIDEN_STEPS = (1.5, 2.0, 3.0, 5.0, 10.0, 20.0)
 _MISSES = 5
 
 
@@ -48,7 +47,9 @@ def explain_infeasible(spec, problem: Problem):
             return f"frequency {format_percent(1 - f / f_lo)} below the window"
         return f"frequency {format_percent(f / f_hi - 1)} above the window"
 
-    for k in _WIDEN_STEPS:
+    k = 1.0
+    while half * k < np.log(2.0):
+        k *= 2.0
         lo, hi = centre * np.exp(-half * k), centre * np.exp(half * k)
         relaxed = Problem(
             problem.topology,
