@@ -100,7 +100,7 @@ def test_dielectric_swap_wins_when_drift_dominates():
 
     ranked = rank_changes(base_tol, mc_yield, materials=base_mat)
     assert (ranked[0].position, ranked[0].kind, ranked[0].after) == ("C2", "material", "C0G")
-    assert ranked[0].gain > 0.05 and ranked[0].gain > 2 * ranked[1].gain
+    assert ranked[0].gain > 0.05 and ranked[0].gain > ranked[1].gain + 0.01
     kinds = {(c.position, c.kind) for c in ranked}
     assert ("C1", "material") not in kinds  # C0G has nothing steadier
     assert ("L", "material") not in kinds  # air core neither
