@@ -48,6 +48,12 @@ import numpy as np
 from scipy import optimize, stats
 
 from picker.errors import SpecError
+from picker.fit_diagnostics import (
+    loss_weights,
+    normalised_singular_values,
+    select_estimable,
+    studentized,
+)
 from picker.topology import Parasitics, Topology, board_values, resonant_frequency
 from picker.units import format_quantity
 
@@ -236,23 +242,6 @@ def _fmt_value(name: str, x: float) -> str:
     return f"{x:.6g}"
 
 
-def _normalise(j: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    norms = np.linalg.norm(j, axis=0)
-    safe = np.where(norms > 0, norms, 1.0)
-    return j / safe, norms
-
-
-def _rel_min_sv(j: np.ndarray) -> float:
-    """Smallest singular value over the largest of the column-normalised matrix."""
-    if j.shape[1] == 0:
-        return 1.0
-    jn, norms = _normalise(j)
-    if np.any(norms == 0):
-        return 0.0
-    s = np.linalg.svd(jn, compute_uv=False)
-    return float(s[-1] / s[0])
-
-
 def _combination(kept: str, terms: Sequence[tuple[str, float]]) -> str:
     """Words for 'the estimate of ``kept`` stands for kept + Σ a·(q − held)'."""
     out = kept
@@ -289,35 +278,6 @@ def _reason(topology: Topology, values, names: Sequence[str]) -> str:
         if r < 0.05:
             return f"the capacitor chain hardly varies between units (spread {100 * r:.2g} %)"
     return "these units' part values do not vary in a way that separates them"
-
-
-def _loss_weights(r: np.ndarray, loss: str, f_scale: float) -> np.ndarray:
-    """IRLS weights ρ'(z), z = (r/f_scale)², for scipy's loss functions."""
-    if loss == "linear":
-        return np.ones_like(r)
-    z = (r / f_scale) ** 2
-    if loss == "soft_l1":  # ρ(z) = 2((1+z)^½ − 1)
-        return 1.0 / np.sqrt(1.0 + z)
-    return np.where(z <= 1.0, 1.0, 1.0 / np.sqrt(np.maximum(z, 1.0)))  # huber
-
-
-def _studentized(e: np.ndarray, j: np.ndarray) -> np.ndarray:
-    """Externally studentised residuals e_i / (s_(i)·√(1 − h_ii)).
-
-    ``e`` are weighted residuals, ``j`` the weighted Jacobian (n, p). The
-    leave-one-out variance uses (n−p−1)·s_(i)² = SSE − e_i²/(1−h_ii)
-    (Belsley, Kuh & Welsch 1980, eq. 2.26).
-    """
-    n, p = j.shape
-    u, sv, _ = np.linalg.svd(j, full_matrices=False)
-    h = np.sum(u[:, sv > sv[0] * 1e-12] ** 2, axis=1)  # leverages, diag of the hat matrix
-    sse = float(np.sum(e**2))
-    one_h = np.clip(1.0 - h, 1e-12, None)
-    s2_i = np.clip(sse - e**2 / one_h, 0.0, None) / (n - p - 1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        t = e / np.sqrt(s2_i * one_h)
-    t[(s2_i == 0) & (e == 0)] = 0.0
-    return t
 
 
 # --------------------------------------------------------------------------- the fit
@@ -472,48 +432,25 @@ def fit_parasitics(
         return np.stack(cols, axis=1) / w_sigma[:, None]
 
     # ---- identifiability at the starting point: keep parameters in order of preference
-    j0 = jac_natural(base, fit)
-    kept: list[str] = []
-    dropped: list[str] = []
-    for i, name in enumerate(fit):
-        idx = [fit.index(k) for k in kept] + [i]
-        if _rel_min_sv(j0[:, idx]) >= rcond:
-            kept.append(name)
-            continue
-        dropped.append(name)
-        if not np.any(j0[:, i]):
+    sel = select_estimable(jac_natural(base, fit), fit, rcond=rcond)
+    kept, dropped = list(sel.kept), [*sel.aliased, *sel.no_effect]
+    for name in fit:
+        if name in sel.no_effect:
             notes.append(
                 f"{name} has no effect on any unit's frequency; held at "
                 f"{_fmt_value(name, base[name])}."
             )
-        else:
-            why = _reason(topology, vals, kept + [name])
+        elif name in sel.aliased:
+            before = [k for k in kept if fit.index(k) < fit.index(name)]
+            why = _reason(topology, vals, before + [name])
             notes.append(
-                f"{name} cannot be told apart from {' and '.join(kept)} with these units: "
+                f"{name} cannot be told apart from {' and '.join(before)} with these units: "
                 f"{why}; it is held at {_fmt_value(name, base[name])}."
             )
-    aliased = [q for q in dropped if np.any(j0[:, fit.index(q)])]
-    exprs: dict[str, str] = {}  # kept name -> the combination its estimate stands for
-    aliases: dict[str, dict[str, float]] = {}
-    if kept and aliased:
-        ik = [fit.index(k) for k in kept]
-        iq = [fit.index(q) for q in aliased]
-        coef, *_ = np.linalg.lstsq(j0[:, ik], j0[:, iq], rcond=None)
-        norm_k = np.linalg.norm(j0[:, ik], axis=0)
-        norm_q = np.linalg.norm(j0[:, iq], axis=0)
-        for a, k in enumerate(kept):
-            terms = [
-                (q, coef[a, b])
-                for b, q in enumerate(aliased)
-                if abs(coef[a, b]) * norm_k[a] > 1e-3 * norm_q[b]  # visible effect only
-            ]
-            if terms:
-                exprs[k] = _combination(k, terms)
-                aliases[k] = {q: float(a) for q, a in terms}
-        if exprs:
-            notes.append(
-                "Only these combinations can be estimated: " + "; ".join(exprs.values()) + "."
-            )
+    aliases = sel.aliases
+    exprs = {k: _combination(k, list(t.items())) for k, t in aliases.items()}
+    if exprs:
+        notes.append("Only these combinations can be estimated: " + "; ".join(exprs.values()) + ".")
     min_dof = 0 if absolute_sigma else 1
     while kept and len(kept) > n - min_dof:
         name = kept.pop()
@@ -569,7 +506,7 @@ def fit_parasitics(
     j_u = jac(u)
 
     # ---- covariance (Gauss-Newton / IRLS), Seber & Wild eq. 2.10
-    w = _loss_weights(r, loss, float(f_scale or 1.0))
+    w = loss_weights(r, loss, float(f_scale or 1.0))
     p = len(kept)
     dof = n - p
     jw = j_u * np.sqrt(w)[:, None]
@@ -588,8 +525,7 @@ def fit_parasitics(
     )
 
     # conditioning at the solution
-    jn, _ = _normalise(j_u)
-    svn = np.linalg.svd(jn, compute_uv=False)
+    svn = normalised_singular_values(j_u)
     if p > 1 and svn[-1] / svn[0] < WEAK_RCOND:
         corr = cov / np.sqrt(np.outer(np.diag(cov), np.diag(cov)))
         i, k = np.unravel_index(np.argmax(np.abs(corr - np.eye(p))), corr.shape)
@@ -639,7 +575,7 @@ def fit_parasitics(
     s = float(np.sqrt(s2)) if np.isfinite(s2) else float("nan")
     standardized = -r / s if s > 0 else np.zeros_like(r)
     if dof >= 2 and np.sum(r**2) > 0:
-        z = _studentized(-r, j_u)
+        z = studentized(-r, j_u)
         t_crit = float(stats.t.ppf(1.0 - OUTLIER_ALPHA / (2 * n), dof - 1))
         out = tuple(uid for uid, zi in zip(unit_ids, z, strict=True) if abs(zi) > t_crit)
     else:

@@ -351,3 +351,38 @@ def test_csv_errors_name_row_and_column(text, where, what):
 def test_csv_missing_file(tmp_path):
     with pytest.raises(SpecError, match="no such file"):
         load_measurements(tmp_path / "nope.csv", COLPITTS)
+
+
+# --------------------------------------------------------------------------- diagnostics
+
+
+def test_studentized_residuals_match_leave_one_out_refits():
+    """t_i from the closed form equals the definition: refit without unit i, then
+    t_i = e_i / (s_(i)·√(1 − h_ii)) (Belsley, Kuh & Welsch 1980, §2.1)."""
+    from picker.fit_diagnostics import studentized
+
+    rng = np.random.default_rng(21)
+    x = rng.standard_normal((15, 3))
+    y = x @ np.array([1.0, -2.0, 0.5]) + 0.1 * rng.standard_normal(15)
+    beta, *_ = np.linalg.lstsq(x, y, rcond=None)
+    e = y - x @ beta
+    h = np.diag(x @ np.linalg.inv(x.T @ x) @ x.T)
+    expected = []
+    for i in range(15):
+        keep = np.arange(15) != i
+        b_i, *_ = np.linalg.lstsq(x[keep], y[keep], rcond=None)
+        s_i = np.sqrt(np.sum((y[keep] - x[keep] @ b_i) ** 2) / (15 - 3 - 1))
+        expected.append(e[i] / (s_i * np.sqrt(1 - h[i])))
+    assert_allclose(studentized(e, x), expected, rtol=1e-10)  # exact algebra, rounding only
+
+
+def test_select_estimable_on_a_dependent_column():
+    from picker.fit_diagnostics import select_estimable
+
+    a = np.array([1.0, 2.0, 3.0, 4.0])
+    b = np.array([1.0, -1.0, 1.0, -1.0])
+    j = np.column_stack([a, 2.5 * a, b, np.zeros(4)])
+    sel = select_estimable(j, ["p", "q", "r", "s"], rcond=1e-3)
+    assert sel.kept == ("p", "r") and sel.aliased == ("q",) and sel.no_effect == ("s",)
+    assert_allclose(sel.aliases["p"]["q"], 2.5, rtol=1e-12)  # J_q = 2.5·J_p exactly
+    assert "r" not in sel.aliases
