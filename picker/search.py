@@ -15,7 +15,8 @@ is found, without enumerating the full cube:
    shows this).
 
 The solved position is L, or C3 in a Clapp tank when that makes the outer
-enumeration smaller. Results are a struct of arrays, sorted by index tuple.
+enumeration smaller. Results are a struct of arrays in a deterministic order
+(the order of the enumeration; :func:`sort_designs` orders by index tuple).
 """
 
 from __future__ import annotations
@@ -94,11 +95,11 @@ class Problem:
 
 @dataclass(frozen=True)
 class Designs:
-    """Feasible designs as a struct of arrays (length n, sorted by index tuple).
+    """Feasible designs as a struct of arrays (length n, in a deterministic order).
 
     Attributes
     ----------
-    idx : dict position -> (n,) int64 index into that position's table.
+    idx : dict position -> (n,) int32 index into that position's table.
     f_nominal : (n,) float, nominal board frequency, Hz.
     beta : (n,) float, feedback fraction.
     """
@@ -238,39 +239,50 @@ def search(problem: Problem, *, max_designs: int = 5_000_000) -> Designs:
         owner, js = _expand_ranges(np.arange(len(flat)), a, b)
         if len(owner) == 0:
             continue
-        hit = {p: i[owner] for p, i in idx.items()}
-        hit[solved] = js
-        found.append(hit)
-    if found:
-        idx_all = {p: np.concatenate([h[p] for h in found]) for p in topo.positions}
-    else:
-        idx_all = {p: np.zeros(0, dtype=np.int64) for p in topo.positions}
-    return finish(problem, idx_all, max_designs=max_designs)
+        hit = {p: i[owner].astype(np.int32) for p, i in idx.items()}
+        hit[solved] = js.astype(np.int32)
+        del owner, js, idx, vals
+        found.append(_exact(problem, hit))
+    if not found:
+        empty = np.zeros(0)
+        return Designs({p: np.zeros(0, dtype=np.int32) for p in topo.positions}, empty, empty)
+    out = Designs(
+        {p: np.concatenate([d.idx[p] for d in found]) for p in topo.positions},
+        np.concatenate([d.f_nominal for d in found]),
+        np.concatenate([d.beta for d in found]),
+    )
+    if len(out) > max_designs:
+        raise SpecError(
+            f"the search holds {len(out):,} feasible designs, more than {max_designs:,}; "
+            "narrow the part ranges or the frequency window, or raise search.max_designs",
+            key="search.max_designs",
+        )
+    return out
 
 
-def finish(problem: Problem, idx: dict[str, np.ndarray], *, max_designs: int) -> Designs:
-    """Exact re-check of candidate index tuples, then a deterministic order."""
+def _exact(problem: Problem, idx: dict[str, np.ndarray]) -> Designs:
+    """Keep the index tuples whose frequency and feedback fraction really meet the spec.
+
+    Uses the same functions as :func:`brute_force`, so both agree bit for bit.
+    """
     vals = {p: problem.tables[p].values[i] for p, i in idx.items()}
     f = board_frequency(problem.topology, vals, problem.parasitics)
     beta = board_beta(vals, problem.parasitics)
     ok = (f >= problem.f_min) & (f <= problem.f_max)
     ok &= (beta >= problem.beta_min) & (beta <= problem.beta_max)
-    idx = {p: i[ok].astype(np.int64) for p, i in idx.items()}
-    if len(idx["L"]) > max_designs:
-        raise SpecError(
-            f"the search holds {len(idx['L']):,} feasible designs, more than {max_designs:,}; "
-            "narrow the part ranges or the frequency window, or raise search.max_designs",
-            key="search.max_designs",
-        )
-    order = np.lexsort([idx[p] for p in reversed(problem.topology.positions)])
-    idx = {p: i[order] for p, i in idx.items()}
-    return Designs(idx, f[ok][order], beta[ok][order])
+    return Designs({p: i[ok] for p, i in idx.items()}, f[ok], beta[ok])
+
+
+def sort_designs(problem: Problem, d: Designs) -> Designs:
+    """The same designs ordered by their index tuple (positions in topology order)."""
+    order = np.lexsort([d.idx[p] for p in reversed(problem.topology.positions)])
+    return d.take(order)
 
 
 def brute_force(problem: Problem) -> Designs:
-    """Full-cube enumeration: the reference the exact search must equal (tests, benchmark)."""
+    """Full-cube enumeration: the reference the exact search must equal (tests only)."""
     topo = problem.topology
     sizes = [len(problem.tables[p]) for p in topo.positions]
-    grids = np.meshgrid(*[np.arange(n) for n in sizes], indexing="ij")
+    grids = np.meshgrid(*[np.arange(n, dtype=np.int32) for n in sizes], indexing="ij")
     idx = {p: g.ravel() for p, g in zip(topo.positions, grids, strict=True)}
-    return finish(problem, idx, max_designs=int(np.prod(sizes)) + 1)
+    return _exact(problem, idx)
