@@ -563,6 +563,41 @@ def _bessel_ratio(x):
     return np.where(x > 1e-8, 2.0 * i1e(safe) / (safe * i0e(safe)), 1.0 - x * x / 8.0)
 
 
+def _bias_shift(params: AmplifierParams, vt: float):
+    """x ↦ G_m(x)/gm for a bjt driven with a base-emitter sine of peak x·V_T.
+
+    Describing function 2·I1(x)/(x·I0(x)) (Clarke & Hess) times the rise of the DC
+    collector current the drive causes: the mean of exp(v_be/V_T) grows by I0(x), so
+    the DC base-emitter voltage falls by V_T·ln I0(x) and the bias network
+    (V_th, R_th, R_E) lets the current rise. DC loop, with I_C the mean collector
+    current: V_th − V_T·ln(I_C/(IS·I0(x))) = I_C·(R_th/β + R_E·(1 + 1/β)). Without a
+    bias network (gm given directly), the DC current is taken as fixed.
+    """
+    b = params.bias()
+    if b is None or params.gm is not None or params.i_bias is not None:
+        return _bessel_ratio
+    dev = params.effective_device()
+    if params.r_b2 is None:
+        v_th, r_th = params.vcc, params.r_b1
+    else:
+        v_th = params.vcc * params.r_b2 / (params.r_b1 + params.r_b2)
+        r_th = params.r_b1 * params.r_b2 / (params.r_b1 + params.r_b2)
+    r_dc = r_th / dev.bf + (params.r_e or 0.0) * (1.0 + 1.0 / dev.bf)
+    ic0 = b.ic
+
+    def gain(x):
+        x = np.asarray(x, dtype=float)
+        ln_i0 = np.log(i0e(x)) + x  # ln I0(x), overflow-free
+        y = np.full(x.shape, math.log(ic0))  # ln I_C, Newton on f(y) = 0
+        for _ in range(40):
+            ic = np.exp(y)
+            f = v_th - vt * (y - math.log(dev.is_) - ln_i0) - ic * r_dc
+            y = y + f / (vt + ic * r_dc)
+        return np.exp(y) / ic0 * _bessel_ratio(x)
+
+    return gain
+
+
 @dataclass(frozen=True)
 class Amplitude:
     """Estimated steady-state peak AC voltages (V) at the nodes, and flags; broadcast shape.
@@ -592,10 +627,13 @@ def amplitude_estimate(
 
     Assumption 7: in steady state the fundamental transconductance falls to
     G_m = gm/margin (T is proportional to gm, so the frequency is unchanged).
-    For a bjt with its DC current held by the bias network and a bypassed
-    emitter, G_m/gm = 2·I1(x)/(x·I0(x)) with x = V_be,peak/V_T (Clarke & Hess);
-    for large x this is the familiar limit of a fundamental collector current
-    of 2·I_C (the 2·I_C·R_L of Toumazou, Moschytz & Gilbert's estimate). For a
+    For a bjt, G_m/gm = 2·I1(x)/(x·I0(x)) with x = V_be,peak/V_T (Clarke & Hess),
+    times the rise of the DC current the bias network allows (:func:`_bias_shift`);
+    with the DC current held fixed and large x this is the familiar limit of a
+    fundamental collector current of 2·I_C (the 2·I_C·R_L of Toumazou, Moschytz &
+    Gilbert's estimate). Where even a very large drive cannot bring G_m down to
+    gm/margin, the swing is limited by saturation instead and the design is
+    flagged overdriven. For a
     fet the same current limit is used: V_gs,peak = margin·2·I_D/gm (cruder).
     Node amplitudes follow from the linear node responses at the oscillation
     frequency. Margin ≤ 1 gives zero amplitude.
@@ -610,14 +648,16 @@ def amplitude_estimate(
     s = 1j * TWO_PI * np.where(ok, f, 1.0)
     t, x = _solve(s, el, topology, params, ss, nodes=True)
     vt = thermal_voltage(params.temperature_c)
+    clipped = np.zeros(margin.shape, dtype=bool)
     if params.kind == "bjt":
         target = 1.0 / np.where(ok, margin, 2.0)
-        lo, hi = np.zeros_like(target), np.full_like(target, 1.0)
-        while np.any(_bessel_ratio(hi) > target):  # grow the bracket (ratio ~ 2/x at large x)
-            hi = np.where(_bessel_ratio(hi) > target, 2 * hi, hi)
-        for _ in range(60):  # bisection on a monotone function
+        gain = _bias_shift(params, vt)
+        x_max = 400.0
+        clipped = gain(np.array(x_max)) > target  # the bias shift cannot limit the swing
+        lo, hi = np.zeros_like(target), np.full_like(target, x_max)
+        for _ in range(50):  # bisection; gain(x) decreases monotonically
             mid = 0.5 * (lo + hi)
-            big = _bessel_ratio(mid) > target
+            big = gain(mid) > target
             lo, hi = np.where(big, mid, lo), np.where(big, hi, mid)
         v_be = 0.5 * (lo + hi) * vt
     else:
@@ -641,7 +681,7 @@ def amplitude_estimate(
     # the collector may swing down to about V_E + 0.3 V before saturating (V_CE,sat of a
     # small-signal bjt, common practice, no source)
     headroom = np.inf if b is None else b.vc - b.ve - 0.3
-    over = (margin > OVERDRIVE_MARGIN) | (node["c"] > headroom)
+    over = (margin > OVERDRIVE_MARGIN) | (node["c"] > headroom) | (clipped & ok)
     rs = {k: v.reshape(shape) for k, v in node.items()}
     return Amplitude(
         tank=rs["t"],
