@@ -1,0 +1,221 @@
+"""Plots of a design's Monte Carlo result (edge module: matplotlib, PNG files).
+
+Figures are drawn on ``matplotlib.figure.Figure`` with the Agg canvas, so no
+global backend or pyplot state is touched (safe in a CLI, a test run or a
+notebook). Axes carry units with SI prefixes (``matplotlib.ticker.EngFormatter``)
+or per cent.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.ticker import EngFormatter, FuncFormatter, MaxNLocator, PercentFormatter
+
+from picker.units import format_quantity
+
+_SIZE = (7.0, 4.2)  # inches; at 120 dpi a 840 x 504 PNG
+_DPI = 120
+_WINDOW = "#2a9d8f"
+_OUT = "#e76f51"
+_IN = "#264653"
+
+
+def _save(fig: Figure, path: str | Path) -> Path:
+    p = Path(path)
+    p.parent.mkdir(parents=True, exist_ok=True)
+    FigureCanvasAgg(fig)
+    fig.savefig(p, format="png", dpi=_DPI, metadata={"Software": None})
+    return p
+
+
+def _places(span: float, centre: float) -> int:
+    """Decimal places EngFormatter needs so that ticks over ``span`` stay distinct."""
+    if span <= 0 or centre <= 0:
+        return 1
+    scale = 10 ** (3 * np.floor(np.log10(centre) / 3))  # the engineering prefix's unit
+    return int(min(6, max(0, np.ceil(-np.log10(span / scale / 5)))))
+
+
+def plot_histogram(
+    f_samples,
+    f_min: float,
+    f_max: float,
+    target: float,
+    path: str | Path,
+    title: str = "Monte Carlo frequency spread",
+    *,
+    bins: int = 80,
+) -> Path:
+    """Histogram of the simulated boards' frequencies with the window marked.
+
+    Parameters
+    ----------
+    f_samples : array_like, shape (samples,)
+        Frequency of each simulated board, Hz (at the worst temperature, or 25 °C).
+    f_min, f_max : float
+        The frequency window, Hz.
+    target : float
+        Target frequency, Hz.
+    path : str or pathlib.Path
+        PNG file to write.
+    title : str
+    bins : int
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
+    f = np.asarray(f_samples, dtype=float).ravel()
+    f = f[np.isfinite(f)]
+    inside = (f >= f_min) & (f <= f_max)
+    lo = min(f.min(initial=f_min), f_min)
+    hi = max(f.max(initial=f_max), f_max)
+    pad = 0.04 * (hi - lo) if hi > lo else 0.01 * target
+    edges = np.linspace(lo - pad, hi + pad, bins + 1)
+    fig = Figure(figsize=_SIZE)
+    ax = fig.add_subplot()
+    weights = np.full(f.size, 100.0 / max(f.size, 1))
+    ax.hist(f[inside], edges, weights=weights[inside], color=_IN, label="in window")
+    ax.hist(f[~inside], edges, weights=weights[~inside], color=_OUT, label="outside")
+    ax.axvspan(f_min, f_max, color=_WINDOW, alpha=0.15, lw=0)
+    for x in (f_min, f_max):
+        ax.axvline(x, color=_WINDOW, lw=1.5)
+    ax.axvline(
+        target, color="black", lw=1, ls="--", label=f"target {format_quantity(target, 'Hz')}"
+    )
+    ax.xaxis.set_major_locator(MaxNLocator(nbins=5))
+    ax.xaxis.set_major_formatter(EngFormatter(unit="Hz", places=_places(hi - lo, target)))
+    ax.set_ylim(0, 1.4 * ax.get_ylim()[1])  # head room for the legend and the note
+    ax.set_xlabel("board frequency")
+    ax.set_ylabel("share of boards per bin")
+    ax.yaxis.set_major_formatter(PercentFormatter(decimals=1))
+    top = ax.secondary_xaxis(
+        "top", functions=(lambda x: (x / target - 1) * 100, lambda d: target * (1 + d / 100))
+    )
+    top.set_xlabel("deviation from target (%)")
+    share = inside.mean() if f.size else 0.0
+    ax.text(
+        0.01,
+        0.97,
+        f"window {format_quantity(f_min, 'Hz')} – {format_quantity(f_max, 'Hz')}\n"
+        f"{share:.2%} of {f.size} boards inside",
+        transform=ax.transAxes,
+        va="top",
+        fontsize=9,
+        bbox={"facecolor": "white", "alpha": 0.8, "lw": 0},
+    )
+    ax.legend(loc="upper right", fontsize=8, framealpha=0.8)
+    ax.set_title(title, fontsize=11)
+    fig.tight_layout()
+    return _save(fig, path)
+
+
+def plot_yield_vs_tolerance(
+    data: Mapping[str, Sequence[Sequence[float]]],
+    path: str | Path,
+    title: str = "Yield against tolerance class",
+    *,
+    current: Mapping[str, float] | None = None,
+) -> Path:
+    """Yield against the tolerance of each position (others kept as they are).
+
+    Parameters
+    ----------
+    data : mapping position -> sequence of rows
+        Each row is ``(tolerance, yield)`` or ``(tolerance, yield, ci_low, ci_high)``,
+        fractions (0.05 = 5 %).
+    path : str or pathlib.Path
+    title : str
+    current : mapping position -> float, optional
+        The design's present tolerance per position, marked with a ring.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    fig = Figure(figsize=_SIZE)
+    ax = fig.add_subplot()
+    markers = "osD^vP*X"
+    ticks: set[float] = set()
+    for i, (pos, rows) in enumerate(data.items()):
+        arr = np.asarray(sorted(rows), dtype=float)
+        if arr.size == 0:
+            continue
+        t, y = arr[:, 0] * 100, arr[:, 1] * 100
+        ticks.update(float(v) for v in t)
+        line = ax.plot(t, y, marker=markers[i % len(markers)], label=pos)[0]
+        if arr.shape[1] >= 4:
+            err = np.vstack([y - arr[:, 2] * 100, arr[:, 3] * 100 - y])
+            ax.errorbar(t, y, yerr=np.clip(err, 0, None), fmt="none", ecolor=line.get_color(),
+                        capsize=3)  # fmt: skip
+        if current and pos in current:
+            k = np.argmin(np.abs(arr[:, 0] - current[pos]))
+            ax.plot(t[k], y[k], "o", ms=12, mfc="none", mec=line.get_color(), mew=1.5)
+    ax.set_xscale("log")
+    ax.invert_xaxis()  # tighter parts to the right
+    ax.set_xticks(sorted(ticks))  # one labelled tick per tolerance class plotted
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g} %"))
+    ax.xaxis.set_minor_formatter(FuncFormatter(lambda v, _: ""))
+    ax.tick_params(axis="x", which="minor", length=0)
+    ax.set_xlabel("tolerance of the position (±, tighter →)")
+    ax.set_ylabel("yield")
+    ax.yaxis.set_major_formatter(PercentFormatter(decimals=0))
+    ax.set_ylim(top=min(100.0, ax.get_ylim()[1]) + 2)
+    ax.grid(True, alpha=0.3)
+    ax.legend(title="position", fontsize=9)
+    ax.set_title(title, fontsize=11)
+    fig.tight_layout()
+    return _save(fig, path)
+
+
+def plot_drivers(
+    shares: Mapping[str, float],
+    path: str | Path,
+    title: str = "What drives the frequency spread",
+    *,
+    confirm: Mapping[str, float] | None = None,
+) -> Path:
+    """Horizontal bars: each input's share of the frequency variance.
+
+    Parameters
+    ----------
+    shares : mapping name -> float
+        First-order shares (fractions summing to one).
+    path : str or pathlib.Path
+    title : str
+    confirm : mapping name -> float, optional
+        Monte Carlo shares, drawn as markers beside the bars.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    names = sorted(shares, key=lambda k: (float(shares[k]), k))
+    vals = np.array([float(shares[k]) for k in names]) * 100
+    fig = Figure(figsize=(_SIZE[0], max(2.4, 0.55 * len(names) + 1.4)))
+    ax = fig.add_subplot()
+    y = np.arange(len(names))
+    ax.barh(y, vals, color=_IN, label="first order")
+    cv = np.array([float(confirm.get(k, np.nan)) * 100 for k in names]) if confirm else None
+    for i, (yi, v) in enumerate(zip(y, vals, strict=True)):
+        right = v if cv is None or not np.isfinite(cv[i]) else max(v, cv[i])
+        label = f"{v:.1f} %" if cv is None else f"{v:.1f} % (MC {cv[i]:.1f} %)"
+        ax.text(right + 2.5, yi, label, va="center", fontsize=9)
+    if cv is not None:
+        ax.plot(cv, y, "D", color=_OUT, ms=6, label="Monte Carlo", zorder=3)
+        ax.legend(loc="lower right", fontsize=8)
+    ax.set_yticks(y, names)
+    ax.set_xlim(0, 125)
+    ax.set_xticks(np.arange(0, 101, 20))
+    ax.xaxis.set_major_formatter(PercentFormatter(decimals=0))
+    ax.set_xlabel("share of the variance of ln f")
+    ax.set_title(title, fontsize=11)
+    ax.grid(True, axis="x", alpha=0.3)
+    fig.tight_layout()
+    return _save(fig, path)
