@@ -15,6 +15,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import EngFormatter, FuncFormatter, MaxNLocator, PercentFormatter
+from numpy.typing import ArrayLike
 
 from picker.units import format_quantity
 
@@ -81,8 +82,8 @@ def plot_histogram(
     fig = Figure(figsize=_SIZE)
     ax = fig.add_subplot()
     weights = np.full(f.size, 100.0 / max(f.size, 1))
-    ax.hist(f[inside], edges, weights=weights[inside], color=_IN, label="in window")
-    ax.hist(f[~inside], edges, weights=weights[~inside], color=_OUT, label="outside")
+    ax.hist(f[inside], edges.tolist(), weights=weights[inside], color=_IN, label="in window")
+    ax.hist(f[~inside], edges.tolist(), weights=weights[~inside], color=_OUT, label="outside")
     ax.axvspan(f_min, f_max, color=_WINDOW, alpha=0.15, lw=0)
     for x in (f_min, f_max):
         ax.axvline(x, color=_WINDOW, lw=1.5)
@@ -95,9 +96,14 @@ def plot_histogram(
     ax.set_xlabel("board frequency")
     ax.set_ylabel("share of boards per bin")
     ax.yaxis.set_major_formatter(PercentFormatter(decimals=1))
-    top = ax.secondary_xaxis(
-        "top", functions=(lambda x: (x / target - 1) * 100, lambda d: target * (1 + d / 100))
-    )
+
+    def to_dev(x: ArrayLike) -> np.ndarray:
+        return (np.asarray(x, dtype=float) / target - 1.0) * 100.0
+
+    def from_dev(d: ArrayLike) -> np.ndarray:
+        return target * (1.0 + np.asarray(d, dtype=float) / 100.0)
+
+    top = ax.secondary_xaxis("top", functions=(to_dev, from_dev))
     top.set_xlabel("deviation from target (%)")
     share = inside.mean() if f.size else 0.0
     ax.text(
@@ -144,7 +150,7 @@ def plot_yield_vs_tolerance(
     markers = "osD^vP*X"
     ticks: set[float] = set()
     for i, (pos, rows) in enumerate(data.items()):
-        arr = np.asarray(sorted(rows), dtype=float)
+        arr = np.asarray(sorted(tuple(map(float, r)) for r in rows), dtype=float)
         if arr.size == 0:
             continue
         t, y = arr[:, 0] * 100, arr[:, 1] * 100
@@ -206,7 +212,7 @@ def plot_drivers(
     for i, (yi, v) in enumerate(zip(y, vals, strict=True)):
         right = v if cv is None or not np.isfinite(cv[i]) else max(v, cv[i])
         label = f"{v:.1f} %" if cv is None else f"{v:.1f} % (MC {cv[i]:.1f} %)"
-        ax.text(right + 2.5, yi, label, va="center", fontsize=9)
+        ax.text(float(right) + 2.5, float(yi), label, va="center", fontsize=9)
     if cv is not None:
         ax.plot(cv, y, "D", color=_OUT, ms=6, label="Monte Carlo", zorder=3)
         ax.legend(loc="lower right", fontsize=8)

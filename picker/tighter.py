@@ -123,7 +123,7 @@ def candidate_changes(
             out.append((p, "tolerance", tol, t))
         m = materials.get(p)
         s = swap_for(m)
-        if s is not None:
+        if m is not None and s is not None:
             out.append((p, "material", m, s))
     return out
 

@@ -316,7 +316,7 @@ def size_trimmer(
     best = None
     for v in cands:
         nom = dict(nominal)
-        if v is not None:
+        if v is not None and recentre is not None:
             nom[recentre] = v
         vals = {p: nom[p] * np.asarray(factors[p], dtype=float) for p in topology.positions}
         lo, hi, _ = _needs(topology, vals, placement, f_min, f_max, stray, recentre)
@@ -330,5 +330,6 @@ def size_trimmer(
         )
         if best is None or rank < best[0]:
             best = (rank, v, trim, got, lo, hi)
+    assert best is not None  # cands is never empty
     _, v, trim, got, lo, hi = best
     return TrimmerAdvice(placement, recentre, v, trim, got, required_range(lo, hi, share), share)
