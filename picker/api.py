@@ -16,11 +16,12 @@ import numpy as np
 from picker import series as series_mod
 from picker.errors import SpecError
 from picker.montecarlo import (
+    PartVariation,
+    Simulation,
     YieldEstimate,
     count_passing,
     draw_uniform,
     estimate_yield,
-    unit_deviation,
 )
 from picker.ranking import monte_carlo_rank
 from picker.screen import corner_span, screen_yield
@@ -147,6 +148,17 @@ def build_problem(spec: Spec, *, f_min=None, f_max=None, beta_min=None, beta_max
     )
 
 
+def simulation_of(spec: Spec, problem: Problem) -> Simulation:
+    """How the spec's boards vary: per-position distributions, drift, board model."""
+    dist = spec.yield_.distribution
+    return Simulation(problem, {p: PartVariation(dist) for p in problem.topology.positions})
+
+
+def random_inputs(spec: Spec, sim: Simulation, samples: int, seed: int) -> np.ndarray:
+    """The run's common random numbers, shape (samples, sim.n_columns)."""
+    return draw_uniform(seed, samples, sim.n_columns)
+
+
 def _candidates(
     spec: Spec,
     problem: Problem,
@@ -234,17 +246,10 @@ def solve(
         return SolveResult(
             status="infeasible", candidates=[], misses=misses, advice=advice, **common
         )
-    dev = unit_deviation(
-        draw_uniform(seed, samples, len(problem.topology.positions)), ys.distribution
-    )
+    sim = simulation_of(spec, problem)
+    u = random_inputs(spec, sim, samples, seed)
     ranked, passed, screen = monte_carlo_rank(
-        problem,
-        designs,
-        dev,
-        distribution=ys.distribution,
-        m=m,
-        top=top,
-        target=spec.frequency.target,
+        sim, designs, u, m=m, top=top, target=spec.frequency.target
     )
     best = designs.take(ranked[:top])
     cands = _candidates(spec, problem, best, passed[:top], screen[:top], samples, seed)
@@ -298,9 +303,10 @@ def evaluate(
         np.asarray(board_frequency(topo, vals, problem.parasitics), dtype=float),
         np.asarray(board_beta(vals, problem.parasitics), dtype=float),
     )
-    dev = unit_deviation(draw_uniform(seed, samples, len(topo.positions)), ys.distribution)
-    passed = count_passing(problem, designs, dev)
-    screen = screen_yield(problem, designs, ys.distribution)
+    sim = simulation_of(spec, problem)
+    u = random_inputs(spec, sim, samples, seed)
+    passed = count_passing(sim, designs, u)
+    screen = screen_yield(sim, designs)
     cands = _candidates(spec, problem, designs, passed, screen, samples, seed)
     return SolveResult(
         spec=spec,

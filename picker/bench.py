@@ -15,7 +15,7 @@ import tracemalloc
 
 import numpy as np
 
-from picker.montecarlo import count_passing, draw_uniform, unit_deviation
+from picker.montecarlo import Simulation, count_passing, draw_uniform
 from picker.ranking import monte_carlo_rank
 from picker.search import Problem, search, uniform_table
 from picker.series import expand
@@ -84,8 +84,9 @@ def run(quick: bool = False, naive_budget_s: float = 60.0) -> dict:
     t_search = time.perf_counter() - t0
     samples, m = 20_000, 200
     t1 = time.perf_counter()
-    dev = unit_deviation(draw_uniform(1, samples, 3), "uniform")
-    ranked, passed, _ = monte_carlo_rank(p, d, dev, distribution="uniform", m=m, top=10, target=1e6)
+    sim = Simulation.simple(p, "uniform")
+    u = draw_uniform(1, samples, sim.n_columns)
+    ranked, passed, _ = monte_carlo_rank(sim, d, u, m=m, top=10, target=1e6)
     t_mc = time.perf_counter() - t1
     out["colpitts"] = dict(
         space=p.space_size(),
@@ -97,11 +98,11 @@ def run(quick: bool = False, naive_budget_s: float = 60.0) -> dict:
     )
     # --- Monte Carlo throughput on exactly 200 candidates x 20,000 boards
     sub = d.take(np.arange(min(200, len(d))))
-    count_passing(p, sub, dev)  # warm-up
+    count_passing(sim, sub, u)  # warm-up
     t2 = time.perf_counter()
     reps = 3
     for _ in range(reps):
-        count_passing(p, sub, dev)
+        count_passing(sim, sub, u)
     t_thr = (time.perf_counter() - t2) / reps
     out["throughput_boards_per_s"] = len(sub) * samples / t_thr
     # --- Clapp search

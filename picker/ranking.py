@@ -14,9 +14,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from picker.montecarlo import BoardModel, count_passing
+from picker.montecarlo import Simulation, count_passing
 from picker.screen import select_for_montecarlo
-from picker.search import Designs, Problem
+from picker.search import Designs
 
 #: At most this many times m designs are Monte Carlo checked.
 TOP_UP_CAP = 20
@@ -29,15 +29,13 @@ def rank_order(passed: np.ndarray, f_nominal: np.ndarray, target: float) -> np.n
 
 
 def monte_carlo_rank(
-    problem: Problem,
+    sim: Simulation,
     designs: Designs,
-    dev: np.ndarray,
+    u: np.ndarray,
     *,
-    distribution: str,
     m: int,
     top: int,
     target: float,
-    model: BoardModel | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Rank designs by Monte Carlo yield.
 
@@ -48,12 +46,12 @@ def monte_carlo_rank(
     passed : (k,) int, passing boards of each, same order.
     screen : (k,) float, screen yield of each, same order.
     """
-    n = dev.shape[0]
-    order, screen = select_for_montecarlo(problem, designs, distribution, len(designs))
+    n = u.shape[0]
+    order, screen = select_for_montecarlo(sim, designs, len(designs))
     checked = np.zeros(len(designs), dtype=bool)
     passed = np.zeros(len(designs), dtype=np.int64)
     first = order[:m]
-    passed[first] = count_passing(problem, designs.take(first), dev, model)
+    passed[first] = count_passing(sim, designs.take(first), u)
     checked[first] = True
     cap = min(len(designs), TOP_UP_CAP * m)
     while checked.sum() < cap:
@@ -67,7 +65,7 @@ def monte_carlo_rank(
         if len(more) == 0:
             break
         more = more[: cap - int(checked.sum())]
-        passed[more] = count_passing(problem, designs.take(more), dev, model)
+        passed[more] = count_passing(sim, designs.take(more), u)
         checked[more] = True
     idx = np.flatnonzero(checked)
     ranked = idx[rank_order(passed[idx], designs.f_nominal[idx], target)]

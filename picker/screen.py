@@ -10,10 +10,15 @@ JCGM 100:2008 §4.3.7; normal with σ = t/3, the 99.73 % convention).
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 from scipy.special import ndtr
 
 from picker.search import Designs, Problem
+
+if TYPE_CHECKING:
+    from picker.montecarlo import Simulation
 from picker.topology import board_frequency, board_sensitivities
 
 SQRT3 = np.sqrt(3.0)
@@ -28,35 +33,57 @@ def relative_sigma(tol, distribution: str):
     raise ValueError(f"unknown distribution {distribution!r}")
 
 
-def sigma_lnf(problem: Problem, designs: Designs, distribution: str, extra_var=0.0) -> np.ndarray:
+def part_sigmas(sim: Simulation, designs: Designs) -> dict[str, np.ndarray]:
+    """Relative standard deviation of each position's value, position -> (n,).
+
+    A parallel pair a + b with independent parts has σ = √((a·σa)² + (b·σb)²)/(a + b).
+    """
+    out = {}
+    for p, var in sim.parts.items():
+        t = sim.problem.tables[p]
+        i = designs.idx[p]
+        sig = np.asarray(var.std(t.tol[i]), dtype=float)
+        if t.second is not None:
+            b = t.second[i]
+            a = t.values[i] - b
+            sb = np.asarray(var.std(t.second_tol[i]), dtype=float)
+            sig = np.sqrt((a * sig) ** 2 + (b * sb) ** 2) / (a + b)
+        out[p] = sig
+    return out
+
+
+def sigma_lnf(sim: Simulation, designs: Designs, extra_var=0.0) -> np.ndarray:
     """First-order standard deviation of ln f for every design, shape (n,)."""
+    problem = sim.problem
     vals = designs.values(problem)
     sens = board_sensitivities(problem.topology, vals, problem.parasitics)
+    sigs = part_sigmas(sim, designs)
     var = np.zeros(len(designs)) + extra_var
     for p, s in sens.items():
-        sig = relative_sigma(problem.tables[p].tol[designs.idx[p]], distribution)
-        var = var + (s * sig) ** 2
+        var = var + (s * sigs[p]) ** 2
     return np.sqrt(var)
 
 
-def lnf_bias(problem: Problem, designs: Designs, distribution: str) -> np.ndarray:
+def lnf_bias(sim: Simulation, designs: Designs) -> np.ndarray:
     """Second-order shift of the mean of ln f: Σ S_i·E[ln(1 + d_i)] ≈ -Σ S_i·σ_i²/2.
 
     (Taylor expansion of ln(1 + d) to second order; E[d] = 0, E[d²] = σ².)
     """
+    problem = sim.problem
     vals = designs.values(problem)
     sens = board_sensitivities(problem.topology, vals, problem.parasitics)
+    sigs = part_sigmas(sim, designs)
     out = np.zeros(len(designs))
     for p, s in sens.items():
-        sig = relative_sigma(problem.tables[p].tol[designs.idx[p]], distribution)
-        out = out - s * sig**2 / 2
+        out = out - s * sigs[p] ** 2 / 2
     return out
 
 
-def screen_yield(problem: Problem, designs: Designs, distribution: str) -> np.ndarray:
+def screen_yield(sim: Simulation, designs: Designs) -> np.ndarray:
     """Approximate yield (share in window) of every design from the log-normal model."""
-    sig = sigma_lnf(problem, designs, distribution)
-    mu = np.log(designs.f_nominal) + lnf_bias(problem, designs, distribution)
+    problem = sim.problem
+    sig = sigma_lnf(sim, designs)
+    mu = np.log(designs.f_nominal) + lnf_bias(sim, designs)
     with np.errstate(divide="ignore", invalid="ignore"):
         hi = (np.log(problem.f_max) - mu) / sig
         lo = (np.log(problem.f_min) - mu) / sig
@@ -66,14 +93,15 @@ def screen_yield(problem: Problem, designs: Designs, distribution: str) -> np.nd
 
 
 def select_for_montecarlo(
-    problem: Problem, designs: Designs, distribution: str, m: int
+    sim: Simulation, designs: Designs, m: int
 ) -> tuple[np.ndarray, np.ndarray]:
     """Indices of the best ``m`` designs by screen yield, and every screen yield.
 
     Order: screen yield (descending), then |nominal error| (ascending), then
     the design's position in the index-sorted list (deterministic).
     """
-    y = screen_yield(problem, designs, distribution)
+    problem = sim.problem
+    y = screen_yield(sim, designs)
     target = np.sqrt(problem.f_min * problem.f_max)
     err = np.abs(np.log(designs.f_nominal / target))
     order = np.lexsort((np.arange(len(designs)), err, -np.round(y, 12)))

@@ -46,6 +46,10 @@ class ValueTable:
     part_id : (n,) object, a stock part id or "" for a series value.
     price : (n,) float, unit price (NaN when unknown).
     stock_qty : (n,) float, quantity on hand (inf when unlimited).
+    second : (n,) float or None, value of a second part in parallel (0 where
+        the entry is a single part); ``values`` is then the pair's total and
+        ``values - second`` the first part.
+    second_tol : (n,) float or None, relative tolerance of the second part.
     """
 
     values: np.ndarray
@@ -54,6 +58,8 @@ class ValueTable:
     part_id: np.ndarray | None = None
     price: np.ndarray | None = None
     stock_qty: np.ndarray | None = None
+    second: np.ndarray | None = None
+    second_tol: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         n = len(self.values)

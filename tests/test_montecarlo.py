@@ -8,6 +8,7 @@ from numpy.testing import assert_allclose
 from scipy.stats import binomtest
 
 from picker.montecarlo import (
+    Simulation,
     binomial_interval,
     count_passing,
     draw_uniform,
@@ -47,8 +48,8 @@ def test_only_l_varies_uniform_yield_is_interval_ratio():
     l_hi = 1 / ((2 * np.pi * f_min) ** 2 * c)
     exact = (min(l_hi, l0 * (1 + t)) - max(l_lo, l0 * (1 - t))) / (2 * t * l0)
     n = 200_000
-    dev = unit_deviation(draw_uniform(42, n, 3), "uniform")
-    k = int(count_passing(p, d, dev)[0])
+    sim = Simulation.simple(p, "uniform")
+    k = int(count_passing(sim, d, draw_uniform(42, n, 3))[0])
     se = np.sqrt(exact * (1 - exact) / n)
     assert abs(k / n - exact) < 4 * se  # 4 binomial standard errors
     lo, hi = binomial_interval(k, n, 0.9999, "wilson")
@@ -110,7 +111,7 @@ def test_rss_reference_example():
 
     p, d = _one_design(1e-9, 1e-9, 1e-5, (0.05, 0.05, 0.05), 1.0, 1e12)
     # With sigma = t (distribution "normal" gives t/3, so scale by 3).
-    assert_allclose(sigma_lnf(p, d, "normal")[0] * 3, 0.03062, atol=5e-6)
+    assert_allclose(sigma_lnf(Simulation.simple(p, "normal"), d)[0] * 3, 0.03062, atol=5e-6)
 
 
 @pytest.mark.parametrize("distribution", ["uniform", "normal"])
@@ -125,11 +126,12 @@ def test_screen_never_drops_a_monte_carlo_top_design(distribution, window):
     p = Problem(COLPITTS, tabs, f0 * (1 - window), f0 * (1 + window), 0.1, 0.5, Parasitics(15e-12))
     d = search(p)
     assert len(d) > 50
-    dev = unit_deviation(draw_uniform(1, 20000, 3), distribution)
-    passed = count_passing(p, d, dev)
+    sim = Simulation.simple(p, distribution)
+    u = draw_uniform(1, 20000, 3)
+    passed = count_passing(sim, d, u)
     err = np.abs(np.log(d.f_nominal / f0))
     mc_top = set(np.lexsort((np.arange(len(d)), err, -passed))[:10].tolist())
-    ranked, _, _ = monte_carlo_rank(p, d, dev, distribution=distribution, m=25, top=10, target=f0)
+    ranked, _, _ = monte_carlo_rank(sim, d, u, m=25, top=10, target=f0)
     assert mc_top <= set(ranked.tolist())
     assert set(ranked[:10].tolist()) == mc_top
 
@@ -138,7 +140,7 @@ def test_screen_agrees_with_monte_carlo_roughly():
     p, d = _one_design(1e-9, 2.2e-9, 47e-6, (0.02, 0.02, 0.02), 0, 0)
     f0 = d.f_nominal[0]
     p = Problem(p.topology, p.tables, f0 * 0.985, f0 * 1.015, 0, np.inf, p.parasitics)
-    dev = unit_deviation(draw_uniform(2, 100_000, 3), "normal")
-    mc = count_passing(p, d, dev)[0] / 100_000
+    sim = Simulation.simple(p, "normal")
+    mc = count_passing(sim, d, draw_uniform(2, 100_000, 3))[0] / 100_000
     # log-normal first-order model is near-exact for small normal tolerances
-    assert abs(screen_yield(p, d, "normal")[0] - mc) < 0.01
+    assert abs(screen_yield(sim, d)[0] - mc) < 0.01

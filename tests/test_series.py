@@ -262,12 +262,13 @@ def test_tables_load_from_wheel_layout(tmp_path):
     import sys
     from pathlib import Path
 
-    root = Path(series.__file__).resolve().parent.parent
+    root = Path(__file__).resolve().parent.parent  # the source checkout
+    installed = Path(series.__file__).resolve().parent  # source tree or site-packages
     pkg = tmp_path / "picker"
     pkg.mkdir()
     (pkg / "__init__.py").write_text("", encoding="utf-8")  # only the modules series needs
     for module in ("errors.py", "series.py"):
-        shutil.copy(root / "picker" / module, pkg / module)
+        shutil.copy(installed / module, pkg / module)
     shutil.copytree(root / "series_data", pkg / "series_data")
     code = (
         "from picker import series; d = series._data_dir(); "
