@@ -16,6 +16,7 @@ import numpy as np
 from picker import series as series_mod
 from picker.errors import SpecError
 from picker.montecarlo import (
+    REFERENCE_TEMPERATURE,
     PartVariation,
     Simulation,
     YieldEstimate,
@@ -71,6 +72,7 @@ class Candidate:
     sensitivities: dict[str, float]
     in_window: bool = True
     feedback_ok: bool = True
+    extra: dict = field(default_factory=dict)
 
     @property
     def values(self) -> dict[str, float]:
@@ -148,10 +150,46 @@ def build_problem(spec: Spec, *, f_min=None, f_max=None, beta_min=None, beta_max
     )
 
 
+def part_variations(spec: Spec, problem: Problem) -> dict[str, PartVariation]:
+    """Per-position tolerance distribution and drift class (production view)."""
+    dist = spec.yield_.distribution
+    return {p: PartVariation(dist) for p in problem.topology.positions}
+
+
+def temperature_grid_of(spec: Spec, parts: dict[str, PartVariation]) -> np.ndarray:
+    """Temperatures a board must stay in the window at (°C)."""
+    return np.array([REFERENCE_TEMPERATURE])
+
+
+def board_model_of(spec: Spec, problem: Problem):
+    """The pass test for one board: None means the ideal tank (circuit-aware model: issue 3)."""
+    return None
+
+
 def simulation_of(spec: Spec, problem: Problem) -> Simulation:
     """How the spec's boards vary: per-position distributions, drift, board model."""
-    dist = spec.yield_.distribution
-    return Simulation(problem, {p: PartVariation(dist) for p in problem.topology.positions})
+    parts = part_variations(spec, problem)
+    return Simulation(
+        problem, parts, temperature_grid_of(spec, parts), board_model_of(spec, problem)
+    )
+
+
+def circuit_extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:
+    """Extra per-candidate figures of the circuit-aware model (JSON fields), one dict each."""
+    return [{} for _ in range(len(designs))]
+
+
+def production_extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:
+    """Extra per-candidate figures of the production view (JSON fields), one dict each."""
+    return [{} for _ in range(len(designs))]
+
+
+def _extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:
+    out = [{} for _ in range(len(designs))]
+    for hook in (circuit_extras, production_extras):
+        for d, more in zip(out, hook(spec, sim, designs, u), strict=True):
+            d.update(more)
+    return out
 
 
 def random_inputs(spec: Spec, sim: Simulation, samples: int, seed: int) -> np.ndarray:
@@ -167,6 +205,7 @@ def _candidates(
     screen: np.ndarray,
     samples: int,
     seed: int,
+    extras: list[dict] | None = None,
 ) -> list[Candidate]:
     ys = spec.yield_
     lo, hi = corner_span(problem, designs)
@@ -210,6 +249,7 @@ def _candidates(
                 sensitivities={p: float(s[r]) for p, s in sens.items()},
                 in_window=bool(problem.f_min <= f <= problem.f_max),
                 feedback_ok=bool(problem.beta_min <= beta <= problem.beta_max),
+                extra=extras[r] if extras else {},
             )
         )
     return out
@@ -252,7 +292,9 @@ def solve(
         sim, designs, u, m=m, top=top, target=spec.frequency.target
     )
     best = designs.take(ranked[:top])
-    cands = _candidates(spec, problem, best, passed[:top], screen[:top], samples, seed)
+    cands = _candidates(
+        spec, problem, best, passed[:top], screen[:top], samples, seed, _extras(spec, sim, best, u)
+    )
     return SolveResult(status="ok", candidates=cands, screened=len(ranked), **common)
 
 
@@ -307,7 +349,9 @@ def evaluate(
     u = random_inputs(spec, sim, samples, seed)
     passed = count_passing(sim, designs, u)
     screen = screen_yield(sim, designs)
-    cands = _candidates(spec, problem, designs, passed, screen, samples, seed)
+    cands = _candidates(
+        spec, problem, designs, passed, screen, samples, seed, _extras(spec, sim, designs, u)
+    )
     return SolveResult(
         spec=spec,
         status="ok",

@@ -52,6 +52,7 @@ def candidate_dict(c: Candidate) -> dict:
         "screen_yield": c.screen_yield,
         "worst_case": {"f_low_hz": c.f_worst_low_hz, "f_high_hz": c.f_worst_high_hz},
         "sensitivities": c.sensitivities,
+        **c.extra,
     }
 
 
