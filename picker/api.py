@@ -16,12 +16,10 @@ import numpy as np
 from picker import series as series_mod
 from picker.errors import SpecError
 from picker.montecarlo import (
-    REFERENCE_TEMPERATURE,
     PartVariation,
     Simulation,
     YieldEstimate,
     count_passing,
-    draw_uniform,
     estimate_yield,
 )
 from picker.ranking import monte_carlo_rank
@@ -120,6 +118,12 @@ class SolveResult:
     distribution: str = "uniform"
     samples: int = 0
     seed: int = 0
+    #: Production view: warnings (e.g. a temperature outside a part's rating),
+    #: run facts for the JSON ``monte_carlo`` object, and arrays for the plots
+    #: (``plot_data``, only when asked for; never in the JSON).
+    warnings: list[str] = field(default_factory=list)
+    production: dict = field(default_factory=dict)
+    plot_data: dict | None = None
 
 
 def part_table(spec: Spec, pos: str) -> ValueTable:
@@ -152,13 +156,16 @@ def build_problem(spec: Spec, *, f_min=None, f_max=None, beta_min=None, beta_max
 
 def part_variations(spec: Spec, problem: Problem) -> dict[str, PartVariation]:
     """Per-position tolerance distribution and drift class (production view)."""
-    dist = spec.yield_.distribution
-    return {p: PartVariation(dist) for p in problem.topology.positions}
+    from picker import production
+
+    return production.variations(spec, problem)
 
 
 def temperature_grid_of(spec: Spec, parts: dict[str, PartVariation]) -> np.ndarray:
     """Temperatures a board must stay in the window at (°C)."""
-    return np.array([REFERENCE_TEMPERATURE])
+    from picker import production
+
+    return production.grid(spec, parts)
 
 
 def board_model_of(spec: Spec, problem: Problem):
@@ -180,8 +187,15 @@ def circuit_extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray)
 
 
 def production_extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:
-    """Extra per-candidate figures of the production view (JSON fields), one dict each."""
-    return [{} for _ in range(len(designs))]
+    """Extra per-candidate figures of the production view (JSON fields), one dict each.
+
+    ``drivers`` (name -> first-order variance share), ``drivers_mc``,
+    ``yield_over_temperature``, ``tighter`` (best few), ``tighter_plan`` and
+    ``trimmer`` (best design, below the yield target): see :mod:`picker.production`.
+    """
+    from picker import production
+
+    return production.extras(spec, sim, designs, u)
 
 
 def _extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:
@@ -193,8 +207,17 @@ def _extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> lis
 
 
 def random_inputs(spec: Spec, sim: Simulation, samples: int, seed: int) -> np.ndarray:
-    """The run's common random numbers, shape (samples, sim.n_columns)."""
-    return draw_uniform(seed, samples, sim.n_columns)
+    """The run's common random numbers, shape (samples', sim.n_columns).
+
+    ``[yield] sampling = "random"``: ``samples`` rows from a seeded
+    generator; ``"sobol"``: scrambled Sobol points, ``samples`` rounded up to
+    a power of two (:func:`picker.sampling.uniform_matrix`). Callers take the
+    actual count from ``u.shape[0]``.
+    """
+    from picker.sampling import uniform_matrix
+
+    rng = np.random.default_rng(seed)
+    return uniform_matrix(samples, sim.n_columns, method=spec.yield_.sampling, rng=rng)
 
 
 def _candidates(
@@ -255,6 +278,52 @@ def _candidates(
     return out
 
 
+def _with_run_settings(spec: Spec, precision: float | None, sampling: str | None) -> Spec:
+    """The spec with ``[yield] precision`` / ``sampling`` overridden (None keeps the spec's)."""
+    upd: dict = {}
+    if precision is not None:
+        if not 0 < precision <= 0.5:
+            raise SpecError(f"expected a half-width above 0 and at most 50 %; got {precision!r}",
+                            key="--precision")  # fmt: skip
+        upd["precision"] = float(precision)
+    if sampling is not None:
+        if sampling not in ("random", "sobol"):
+            raise SpecError(f"expected random or sobol; got {sampling!r}", key="--sampling")
+        upd["sampling"] = sampling
+    if not upd:
+        return spec
+    return spec.model_copy(update={"yield_": spec.yield_.model_copy(update=upd)})
+
+
+def _refined(spec, sim, designs, u, passed, seed, progress):
+    """Precision on demand: more batches for ``designs`` until the CI is narrow enough.
+
+    Returns (order, passed, u, converged); ``order`` re-ranks ``designs``.
+    """
+    from picker import production
+
+    ys = spec.yield_
+    if ys.precision is None:
+        return np.arange(len(designs)), passed, u, None
+    passed, u, converged = production.refine(
+        sim, designs, u, passed, seed=seed, method=ys.sampling, precision=ys.precision,
+        max_samples=max(ys.max_samples, u.shape[0]), confidence=ys.confidence,
+        progress=progress,
+    )  # fmt: skip
+    order = production.reorder(passed, designs, spec.frequency.target)
+    return order, passed[order], u, converged
+
+
+def _production_fields(spec, sim, best, u, converged, plot_data: bool) -> dict:
+    from picker import production
+
+    return dict(
+        warnings=production.warnings_for(spec),
+        production=production.summary(spec, sim, u.shape[0], converged),
+        plot_data=production.plot_inputs(spec, sim, best, u) if plot_data else None,
+    )
+
+
 def solve(
     spec: Spec,
     *,
@@ -262,8 +331,20 @@ def solve(
     samples: int | None = None,
     seed: int | None = None,
     candidates: int | None = None,
+    precision: float | None = None,
+    sampling: str | None = None,
+    progress=None,
+    plot_data: bool = False,
 ) -> SolveResult:
-    """Search, screen, Monte Carlo and rank; the best ``top`` designs first."""
+    """Search, screen, Monte Carlo and rank; the best ``top`` designs first.
+
+    ``precision`` (a CI half-width, 0.005 = ±0.5 %) continues the Monte Carlo
+    of the reported designs in batches until every interval is that narrow or
+    ``[yield] max_samples`` is reached; ``progress(samples, cap, half_width)``
+    is called after each batch. ``sampling`` is "random" or "sobol".
+    ``plot_data`` keeps the arrays the plots need in ``result.plot_data``.
+    """
+    spec = _with_run_settings(spec, precision, sampling)
     ys = spec.yield_
     top = spec.report.top if top is None else top
     samples = ys.samples if samples is None else samples
@@ -292,10 +373,19 @@ def solve(
         sim, designs, u, m=m, top=top, target=spec.frequency.target
     )
     best = designs.take(ranked[:top])
+    order, passed, u, converged = _refined(spec, sim, best, u, passed[:top], seed, progress)
+    best, screen = best.take(order), screen[:top][order]
+    samples = common["samples"] = u.shape[0]
     cands = _candidates(
-        spec, problem, best, passed[:top], screen[:top], samples, seed, _extras(spec, sim, best, u)
+        spec, problem, best, passed, screen, samples, seed, _extras(spec, sim, best, u)
     )
-    return SolveResult(status="ok", candidates=cands, screened=len(ranked), **common)
+    return SolveResult(
+        status="ok",
+        candidates=cands,
+        screened=len(ranked),
+        **common,
+        **_production_fields(spec, sim, best, u, converged, plot_data),
+    )
 
 
 def evaluate(
@@ -305,8 +395,16 @@ def evaluate(
     tolerances: dict[str, float] | None = None,
     samples: int | None = None,
     seed: int | None = None,
+    precision: float | None = None,
+    sampling: str | None = None,
+    progress=None,
+    plot_data: bool = False,
 ) -> SolveResult:
-    """The same figures as ``solve`` for one given design (an existing board)."""
+    """The same figures as ``solve`` for one given design (an existing board).
+
+    ``precision``, ``sampling``, ``progress`` and ``plot_data`` as for :func:`solve`.
+    """
+    spec = _with_run_settings(spec, precision, sampling)
     ys = spec.yield_
     samples = ys.samples if samples is None else samples
     seed = ys.seed if seed is None else seed
@@ -348,6 +446,8 @@ def evaluate(
     sim = simulation_of(spec, problem)
     u = random_inputs(spec, sim, samples, seed)
     passed = count_passing(sim, designs, u)
+    _, passed, u, converged = _refined(spec, sim, designs, u, passed, seed, progress)
+    samples = u.shape[0]
     screen = screen_yield(sim, designs)
     cands = _candidates(
         spec, problem, designs, passed, screen, samples, seed, _extras(spec, sim, designs, u)
@@ -362,4 +462,5 @@ def evaluate(
         distribution=ys.distribution,
         samples=samples,
         seed=seed,
+        **_production_fields(spec, sim, designs, u, converged, plot_data),
     )

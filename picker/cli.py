@@ -100,13 +100,27 @@ def solve(
     ),
     output: Path | None = typer.Option(None, "--output", "-o", help="Write to this file instead."),
     force: bool = typer.Option(False, "--force", help="Replace an existing output file."),
+    precision: str | None = typer.Option(
+        None, "--precision", help="Run until each yield's CI half-width is this, e.g. 0.5%."
+    ),
+    sampling: str | None = typer.Option(None, "--sampling", help="random or sobol."),
+    plot: Path | None = typer.Option(
+        None, "--plot", help="Write PNG plots of the best design into this folder."
+    ),
 ) -> None:
     """Search every standard-value design in the window and rank them by yield."""
     from picker import api
+    from picker import production_cli as pc
 
     fmt = _check_format(format)
+    prec, samp = pc.parse_precision(precision), pc.parse_sampling(sampling)
     s = api.load_spec(spec)
-    result = api.solve(s, top=top, samples=samples, seed=seed, candidates=candidates)
+    with pc.progress_bar() as progress:
+        result = api.solve(s, top=top, samples=samples, seed=seed, candidates=candidates,
+                           precision=prec, sampling=samp, progress=progress,
+                           plot_data=plot is not None)  # fmt: skip
+    if plot is not None and result.status == "ok":
+        pc.write_plots(result, plot, force=force)
     _emit(result, fmt, output, force, [spec])
     if result.status != "ok":
         raise typer.Exit(1)
@@ -124,12 +138,21 @@ def evaluate(
     seed: int | None = typer.Option(None, "--seed", min=0),
     output: Path | None = typer.Option(None, "--output", "-o"),
     force: bool = typer.Option(False, "--force"),
+    precision: str | None = typer.Option(
+        None, "--precision", help="Run until the yield's CI half-width is this, e.g. 0.5%."
+    ),
+    sampling: str | None = typer.Option(None, "--sampling", help="random or sobol."),
+    plot: Path | None = typer.Option(
+        None, "--plot", help="Write PNG plots of the design into this folder."
+    ),
 ) -> None:
     """The same figures as solve for one given design (an existing board)."""
     from picker import api
+    from picker import production_cli as pc
     from picker.units import parse_tolerance
 
     fmt = _check_format(format)
+    prec, samp = pc.parse_precision(precision), pc.parse_sampling(sampling)
     s = api.load_spec(spec)
     values = parse_assignments(set_, "--set", _unit_of)
     tols = {}
@@ -140,7 +163,12 @@ def evaluate(
         tols[pos.strip().upper()] = parse_tolerance(
             text.strip(), key=f"--tol {pos.strip().upper()}"
         )
-    result = api.evaluate(s, values, tolerances=tols, samples=samples, seed=seed)
+    with pc.progress_bar() as progress:
+        result = api.evaluate(s, values, tolerances=tols, samples=samples, seed=seed,
+                              precision=prec, sampling=samp, progress=progress,
+                              plot_data=plot is not None)  # fmt: skip
+    if plot is not None:
+        pc.write_plots(result, plot, force=force)
     _emit(result, fmt, output, force, [spec])
 
 

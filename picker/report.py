@@ -76,7 +76,9 @@ def result_dict(r: SolveResult) -> dict:
             "distribution": r.distribution,
             "confidence": s.yield_.confidence,
             "ci_method": s.yield_.ci_method,
+            **r.production,
         },
+        "warnings": list(r.warnings),
         "candidates": [candidate_dict(c) for c in r.candidates],
     }
     if r.status != "ok":
@@ -210,3 +212,6 @@ def print_table(r: SolveResult, console: Console) -> None:
         console.print("Note: the nominal frequency lies outside the window.")
     if any(not c.feedback_ok for c in r.candidates):
         console.print("Note: '!' marks a feedback fraction outside the feedback window.")
+    from picker.production_report import print_production
+
+    print_production(r, console)

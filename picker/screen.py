@@ -79,17 +79,55 @@ def lnf_bias(sim: Simulation, designs: Designs) -> np.ndarray:
     return out
 
 
-def screen_yield(sim: Simulation, designs: Designs) -> np.ndarray:
-    """Approximate yield (share in window) of every design from the log-normal model."""
+def temperature_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndarray]:
+    """First-order drift of ln f at each grid temperature: mean shift and variance.
+
+    Δln f(T) ≈ Σ S_i·Δ_i(T) with the drift Δ_i of each drifting part
+    (:func:`picker.drivers.temperature_shift`; its variance Σ S_i²·std(Δ_i)²,
+    JCGM 100:2008, 5.1.2, parts drifting independently).
+
+    Returns
+    -------
+    (shift, var) : arrays, shape (n_temps, n); (1, n) zeros without drift.
+    """
+    n = len(designs)
+    mats = {p: v.material for p, v in sim.parts.items() if v.material is not None}
+    if not mats:
+        return np.zeros((1, n)), np.zeros((1, n))
+    from picker.drift import drift_moments
+    from picker.drivers import temperature_shift
+
     problem = sim.problem
-    sig = sigma_lnf(sim, designs)
-    mu = np.log(designs.f_nominal) + lnf_bias(sim, designs)
+    sens = board_sensitivities(problem.topology, designs.values(problem), problem.parasitics)
+    temps = np.asarray(sim.temperatures, dtype=float)
+    shift = temperature_shift(sens, mats, temps).reshape(len(temps), n)
+    var = np.zeros((len(temps), n))
+    for p, m in mats.items():
+        _, std = drift_moments(m, temps)
+        var = var + (np.asarray(sens[p])[None, :] * std[:, None]) ** 2
+    return shift, var
+
+
+def screen_yield(sim: Simulation, designs: Designs) -> np.ndarray:
+    """Approximate yield (share in window) of every design from the log-normal model.
+
+    With drifting parts the window probability is evaluated at every grid
+    temperature (mean shifted and variance widened by :func:`temperature_terms`)
+    and the smallest is taken: a board must pass at every temperature, so the
+    true yield is at most this (the top-up in :mod:`picker.ranking` absorbs
+    the difference).
+    """
+    problem = sim.problem
+    shift, tvar = temperature_terms(sim, designs)
+    sig = np.sqrt(sigma_lnf(sim, designs) ** 2 + tvar)
+    mu = np.log(designs.f_nominal) + lnf_bias(sim, designs) + shift
     with np.errstate(divide="ignore", invalid="ignore"):
         hi = (np.log(problem.f_max) - mu) / sig
         lo = (np.log(problem.f_min) - mu) / sig
     y = ndtr(hi) - ndtr(lo)
-    # A design with zero spread is in the window for sure (it is feasible).
-    return np.where(sig > 0, y, 1.0)
+    # A design with zero spread is in the window for sure if its centre is.
+    inside = (mu >= np.log(problem.f_min)) & (mu <= np.log(problem.f_max))
+    return np.min(np.where(sig > 0, y, inside.astype(float)), axis=0)
 
 
 def select_for_montecarlo(

@@ -22,6 +22,8 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_valida
 from picker import series as series_mod
 from picker import units
 from picker.errors import SpecError
+from picker.production_spec import check_part as _check_production_keys
+from picker.production_spec import parse_part_keys as _parse_production_keys
 from picker.topology import TOPOLOGIES, get_topology
 
 try:  # optional sections written alongside this module
@@ -148,8 +150,18 @@ class PartSpec(_Strict):
     voltage_rating: float | None = None
     polarised: bool = False
     price: float | None = None
+    # Production view (README "Production view"): drift class, distribution, lot, prices.
+    dielectric: str | None = None
+    tempco: float | None = None
+    tempco_spread: float | None = None
+    distribution: Literal["uniform", "normal", "graded", "graded-normal", "empirical"] | None = None
+    grade: float | None = None
+    lot: str | None = None
+    prices: tuple[tuple[float | str, float], ...] | None = None
     # Filled in by Spec from the position name before validation.
     unit: Literal["F", "H"] = Field("F", exclude=True)
+    # Filled in by spec_from_dict from the ``lot`` file (relative deviations).
+    lot_deviations: tuple[float, ...] | None = Field(None, exclude=True)
 
     @model_validator(mode="before")
     @classmethod
@@ -222,7 +234,7 @@ class PartSpec(_Strict):
                 d["series"] = series_mod.canonical_name(d["series"])
             except SpecError as exc:
                 raise _KeyedError("series", exc.message) from None
-        return d
+        return _parse_production_keys(d, unit)
 
     @model_validator(mode="after")
     def _complete(self) -> PartSpec:
@@ -245,6 +257,7 @@ class PartSpec(_Strict):
                     "tolerance", "expected a tolerance (e.g. '5 %' or 'J') for a value list"
                 )
             object.__setattr__(self, "tolerance", series_mod.default_tolerance(self.series))
+        _check_production_keys(self)
         return self
 
 
@@ -291,16 +304,62 @@ class YieldSpec(_Strict):
 
     samples: int = Field(20000, ge=100, le=10_000_000)
     seed: int = Field(1, ge=0, le=2**63 - 1)
-    distribution: Literal["uniform", "normal"] = "uniform"
+    distribution: Literal["uniform", "normal", "graded", "graded-normal"] = "uniform"
     candidates: int = Field(200, ge=1, le=100_000)
     confidence: float = Field(0.95, gt=0.5, lt=1.0)
     ci_method: Literal["wilson", "exact"] = "wilson"
+    # Production view (README "Production view"; parsed by picker.production_spec).
+    temperature: tuple[float, float] | None = None
+    temperature_points: int = Field(5, ge=2, le=101)
+    precision: float | None = None
+    max_samples: int = Field(1_000_000, ge=100, le=100_000_000)
+    sampling: Literal["random", "sobol"] = "random"
+    target: float | None = None
+    trimmer: Literal["across", "C3", "none"] = "across"
+    trimmer_share: float = 0.997
 
-    @field_validator("samples", "seed", "candidates", mode="before")
+    @field_validator("samples", "seed", "candidates", "temperature_points", "max_samples",
+                     mode="before")  # fmt: skip
     @classmethod
     def _int(cls, v: Any) -> int:
         if isinstance(v, bool) or not isinstance(v, int):
             raise ValueError(f"expected a whole number; got {v!r}")
+        return v
+
+    @field_validator("temperature", mode="before")
+    @classmethod
+    def _temperature(cls, v: Any) -> tuple[float, float] | None:
+        from picker.production_spec import parse_temperature_range
+
+        return parse_temperature_range(v)
+
+    @field_validator("precision", mode="before")
+    @classmethod
+    def _precision(cls, v: Any) -> float | None:
+        from picker.production_spec import parse_share
+
+        return parse_share(v, "a confidence-interval half-width such as '0.5 %'", top=0.5)
+
+    @field_validator("target", mode="before")
+    @classmethod
+    def _target(cls, v: Any) -> float | None:
+        from picker.production_spec import parse_share
+
+        return parse_share(v, "a yield target such as '99 %'")
+
+    @field_validator("trimmer_share", mode="before")
+    @classmethod
+    def _trimmer_share(cls, v: Any) -> float | None:
+        from picker.production_spec import parse_share
+
+        return parse_share(v, "a share of boards such as '99.7 %'", upper_open=True)
+
+    @field_validator("trimmer", "sampling", mode="before")
+    @classmethod
+    def _word(cls, v: Any) -> Any:
+        if isinstance(v, str):
+            w = v.strip().lower()
+            return "C3" if w == "c3" else w
         return v
 
 
@@ -382,6 +441,13 @@ class Spec(_Strict):
                     )
         return self
 
+    @model_validator(mode="after")
+    def _production_keys(self) -> Spec:
+        from picker.production_spec import check_spec
+
+        check_spec(self)
+        return self
+
     @property
     def topo(self):
         return get_topology(self.topology)
@@ -433,7 +499,9 @@ def spec_from_dict(data: dict, *, file: str | None = None) -> Spec:
         raise SpecError(exc.message, file=file, key=exc.key) from None
     except SpecError as exc:
         raise exc.located(file=file) from None
-    return spec.model_copy(update={"source": file or ""})
+    from picker.production_spec import load_lots
+
+    return load_lots(spec, file).model_copy(update={"source": file or ""})
 
 
 def load_spec(path: str | Path, overrides: dict | None = None) -> Spec:

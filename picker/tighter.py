@@ -188,11 +188,15 @@ def greedy_plan(
     target: float,
     materials: Mapping[str, str | None] | None = None,
     max_steps: int = 8,
+    prices: Mapping[str, Mapping[float | str, float]] | None = None,
+    parts_per_board: Mapping[str, int] | None = None,
 ) -> list[Change]:
     """Apply the best single change repeatedly until ``target`` yield is reached.
 
     Greedy (each step takes the largest gain given the earlier steps), so not
     guaranteed to be the cheapest set; stops when no change gains anything.
+    ``prices`` and ``parts_per_board`` are as for :func:`rank_changes` and give
+    each step its extra cost.
 
     Returns
     -------
@@ -212,7 +216,9 @@ def greedy_plan(
     for _ in range(max_steps):
         if y >= target:
             break
-        ranked = rank_changes(tol, fn, materials=mat, base_yield=y)
+        ranked = rank_changes(
+            tol, fn, materials=mat, base_yield=y, prices=prices, parts_per_board=parts_per_board
+        )
         if not ranked or ranked[0].gain <= 0:
             break
         best = ranked[0]

@@ -237,6 +237,27 @@ class TrimmerAdvice:
     share: float
 
 
+def intersect_needs(need_lo, need_hi) -> tuple[np.ndarray, np.ndarray]:
+    """Needs over a temperature axis: one trimmer setting must serve every temperature.
+
+    Parameters
+    ----------
+    need_lo, need_hi : arrays, shape (n_temps, samples)
+        Each board's needed interval at each temperature (the trimmer's own
+        drift is not modelled).
+
+    Returns
+    -------
+    (need_lo, need_hi) : arrays, shape (samples,)
+        The intersection [max lo, min hi]; a board whose intervals do not
+        overlap gets [inf, inf], which no trimmer reaches.
+    """
+    lo = np.max(np.asarray(need_lo, dtype=float), axis=0)
+    hi = np.min(np.asarray(need_hi, dtype=float), axis=0)
+    empty = ~(lo <= hi)
+    return np.where(empty, np.inf, lo), np.where(empty, np.inf, hi)
+
+
 def _needs(topology, values, placement, f_min, f_max, stray, position):
     if placement == "across":
         return across_need(topology.c_eff(values, stray), values["L"], f_min, f_max)
@@ -267,9 +288,11 @@ def size_trimmer(
     topology : Topology
     nominal : mapping position -> float
         The design's nominal values, SI units.
-    factors : mapping position -> array, shape (samples,)
+    factors : mapping position -> array, shape (samples,) or (n_temps, samples)
         Each simulated board's value / nominal (1 + tolerance deviation, times
-        1 + drift at the temperature of interest).
+        1 + drift at the temperature of interest). With a temperature axis a
+        board counts as tunable when one trimmer setting keeps it in the
+        window at every temperature (:func:`intersect_needs`).
     f_min, f_max : float
         The window, Hz.
     placement : {"across", "C3"}
@@ -320,6 +343,8 @@ def size_trimmer(
             nom[recentre] = v
         vals = {p: nom[p] * np.asarray(factors[p], dtype=float) for p in topology.positions}
         lo, hi, _ = _needs(topology, vals, placement, f_min, f_max, stray, recentre)
+        if np.ndim(lo) == 2:
+            lo, hi = intersect_needs(lo, hi)
         trim, got = choose_trimmer(lo, hi, share, table, margin)
         rank = (
             trim is None,
