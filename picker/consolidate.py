@@ -299,6 +299,8 @@ class _Model:
         self.eligible = eligible  # channel name -> list of candidate indices
         self.x: dict[tuple[int, int], cp_model.IntVar] = {}
         uses: dict[str, list[tuple[cp_model.IntVar, int]]] = {}
+        by_channel: dict[tuple[int, str], list[cp_model.IntVar]] = {}
+        most_in: dict[tuple[int, str], int] = {}
         for c, ch in enumerate(channels):
             lits = []
             for j in eligible[ch.name]:
@@ -307,25 +309,31 @@ class _Model:
                 lits.append(v)
                 for p, k in ch.counts(j).items():
                     uses.setdefault(p, []).append((v, k))
+                    by_channel.setdefault((c, p), []).append(v)
+                    most_in[c, p] = max(most_in.get((c, p), 0), k)
             self.m.add_exactly_one(lits)
         self.parts = sorted(uses)
         self.n: dict[str, cp_model.LinearExpr] = {}
         self.u: dict[str, cp_model.IntVar] = {}
         self.cost_terms = []
+        self.cost_table: dict[str, list[int]] = {}
         self.stock_lit: dict[str, cp_model.IntVar] = {}
         self.limit: dict[str, int] = {}
+        channels_of: dict[str, list[int]] = {}
+        for c, p in by_channel:
+            channels_of.setdefault(p, []).append(c)
         for p in self.parts:
             # the most of part p one board can hold: the largest count per channel, summed
-            most = sum(
-                max((ch.counts(j).get(p, 0) for j in eligible[ch.name]), default=0)
-                for ch in channels
-            )
+            most = sum(most_in[c, p] for c in channels_of[p])
             n = self.m.new_int_var(0, most, f"n_{p}")
             self.m.add(n == sum(k * v for v, k in uses[p]))
             self.n[p] = n
+            # u[p] <=> part p used. Per channel at most one candidate is chosen, so
+            # sum_j x[c, j] (over the candidates holding p) <= u[p] is valid and tight.
             u = self.m.new_bool_var(f"u_{p}")
-            self.m.add(n >= 1).only_enforce_if(u)
-            self.m.add(n == 0).only_enforce_if(~u)
+            for c in channels_of[p]:
+                self.m.add(sum(by_channel[c, p]) <= u)
+            self.m.add_bool_or([v for v, _ in uses[p]] + [~u])
             self.u[p] = u
             on_hand = _on_hand(p, catalogue, stock_on_hand)
             if not math.isinf(on_hand):
@@ -342,12 +350,14 @@ class _Model:
             if info is None or not info.break_qty:
                 continue
             table = [_scaled_cost(info, k * build_qty) for k in range(most + 1)]
-            if len(info.break_qty) == 1:
+            if len(info.break_qty) == 1:  # one flat price: linear in n
+                table = [k * table[1] for k in range(most + 1)] if most else table
                 self.cost_terms.append(table[1] * n if most else 0)
             else:
                 cvar = self.m.new_int_var(0, max(table), f"cost_{p}")
                 self.m.add_element(n, table, cvar)
                 self.cost_terms.append(cvar)
+            self.cost_table[p] = table
         self.loss = {
             (c, j): round((1.0 - float(ch.yield_estimate[j])) * YIELD_SCALE)
             for c, ch in enumerate(channels)
@@ -358,6 +368,11 @@ class _Model:
             "cost": sum(self.cost_terms),
             "yield": sum(w * self.x[key] for key, w in self.loss.items()),
         }
+
+    def cost_of(self, p: str, n: int) -> int:
+        """Integer-scaled extended price of ``n`` per board of part ``p`` (0 if unpriced)."""
+        table = self.cost_table.get(p)
+        return 0 if table is None or n == 0 else table[n]
 
     def solve(self, objective, *, time_limit, workers, assumptions=()):
         m = self.m
@@ -488,34 +503,45 @@ def consolidate(
     bounds: dict[str, float] = {}
     status = "optimal"
     choice: dict[str, int] | None = None
-    for prio in priorities:
+    for s_i, prio in enumerate(priorities):
         left = time_limit - (time.perf_counter() - t0)
-        solver, st = model.solve(model.objectives[prio], time_limit=left, workers=workers)
-        if st == cp_model.INFEASIBLE:
+        if choice is not None and left <= 0:
+            status = "feasible"
+            break
+        # share what is left between this stage and the ones after it; a stage that
+        # proves its optimum early hands its unused time on
+        budget = left if s_i == len(priorities) - 1 else left / (len(priorities) - s_i)
+        if choice is not None:
+            budget = max(budget, 0.5)
+        solver, st = model.solve(model.objectives[prio], time_limit=budget, workers=workers)
+        if st == cp_model.INFEASIBLE and choice is None:
             return infeasible(
                 _explain(channels, eligible, catalogue, build_qty, stock_on_hand), counts
             )
         if st not in (cp_model.OPTIMAL, cp_model.FEASIBLE):
-            return PlanResult(
-                "unknown",
-                priorities,
-                objective,
-                bounds,
-                None,
-                base,
-                {},
-                "no plan found within the time limit",
-                time.perf_counter() - t0,
-                counts,
-            )
+            if choice is None:
+                return PlanResult(
+                    "unknown",
+                    priorities,
+                    objective,
+                    bounds,
+                    None,
+                    base,
+                    {},
+                    "no plan found within the time limit",
+                    time.perf_counter() - t0,
+                    counts,
+                )
+            status = "feasible"  # keep the previous stage's plan; later priorities unproven
+            break
         value = round(solver.objective_value)
-        bound = math.ceil(solver.best_objective_bound - 1e-9)
         obj = model.objectives[prio]
         if st == cp_model.OPTIMAL:
             model.m.add(obj == value)
             bound = value
         else:
             model.m.add(obj <= value)
+            bound = math.ceil(solver.best_objective_bound - 1e-9)
             status = "feasible"
         objective[prio] = _unscale(prio, value)
         bounds[prio] = _unscale(prio, bound)
@@ -539,6 +565,9 @@ def consolidate(
 
     assert choice is not None
     plan = evaluate_plan(channels, choice, catalogue, build_qty, stock_on_hand)
+    for prio in priorities:  # priorities the time limit did not reach: the plan's value
+        if prio not in objective:
+            objective[prio] = _unscale(prio, _scaled_value(model, prio, choice))
     saving = {
         "parts": base.distinct_parts - plan.distinct_parts,
         "cost": base.cost - plan.cost,
@@ -556,6 +585,20 @@ def consolidate(
         time.perf_counter() - t0,
         counts,
     )
+
+
+def _scaled_value(model: _Model, prio: str, choice: dict[str, int]) -> int:
+    """Integer objective ``prio`` of a choice, evaluated exactly as in the model."""
+    chosen = {(c, choice[ch.name]) for c, ch in enumerate(model.channels)}
+    n = {p: 0 for p in model.parts}
+    for c, j in chosen:
+        for p, k in model.channels[c].counts(j).items():
+            n[p] += k
+    if prio == "parts":
+        return sum(1 for v in n.values() if v)
+    if prio == "yield":
+        return sum(model.loss[key] for key in chosen)
+    return sum(model.cost_of(p, n[p]) for p in model.parts)
 
 
 def _unscale(prio: str, value: int) -> float:
