@@ -115,7 +115,7 @@ def solve(
     fmt = _check_format(format)
     prec, samp = pc.parse_precision(precision), pc.parse_sampling(sampling)
     s = api.load_spec(spec)
-    with pc.progress_bar() as progress:
+    with pc.progress_bar(prec or s.yield_.precision) as progress:
         result = api.solve(s, top=top, samples=samples, seed=seed, candidates=candidates,
                            precision=prec, sampling=samp, progress=progress,
                            plot_data=plot is not None)  # fmt: skip
@@ -163,7 +163,7 @@ def evaluate(
         tols[pos.strip().upper()] = parse_tolerance(
             text.strip(), key=f"--tol {pos.strip().upper()}"
         )
-    with pc.progress_bar() as progress:
+    with pc.progress_bar(prec or s.yield_.precision) as progress:
         result = api.evaluate(s, values, tolerances=tols, samples=samples, seed=seed,
                               precision=prec, sampling=samp, progress=progress,
                               plot_data=plot is not None)  # fmt: skip

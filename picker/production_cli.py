@@ -51,10 +51,11 @@ def parse_sampling(text: str | None) -> str | None:
 
 
 @contextlib.contextmanager
-def progress_bar(stream=None) -> Iterator[object]:
+def progress_bar(precision: float | None = None, stream=None) -> Iterator[object]:
     """A ``progress(samples, cap, half_width)`` callback drawing a rich bar, or ``None``.
 
-    ``None`` when ``stream`` (default stderr) is not a terminal.
+    ``None`` when ``stream`` (default stderr) is not a terminal. The bar goes
+    away once the batches are done: ``half_width <= precision`` or the cap.
     """
     stream = sys.stderr if stream is None else stream
     if not (hasattr(stream, "isatty") and stream.isatty()):
@@ -82,11 +83,14 @@ def progress_bar(stream=None) -> Iterator[object]:
             prog.start()
             state["task"] = prog.add_task("mc", total=cap, half="")
         prog.update(state["task"], completed=samples, half=f"{half:.2%}")
+        if samples >= cap or (precision is not None and half <= precision):
+            prog.stop()
+            state["done"] = True
 
     try:
         yield update
     finally:
-        if "task" in state:
+        if "task" in state and "done" not in state:
             prog.stop()
 
 
