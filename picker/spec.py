@@ -400,7 +400,7 @@ class Spec(_Strict):
         parts = d.get("parts")
         if (
             isinstance(parts, dict)
-            and isinstance(d["topology"], str)
+            and isinstance(d.get("topology"), str)
             and d["topology"] in TOPOLOGIES
         ):
             want = get_topology(d["topology"]).positions
