@@ -499,6 +499,11 @@ def spec_from_dict(data: dict, *, file: str | None = None) -> Spec:
         raise SpecError(exc.message, file=file, key=exc.key) from None
     except SpecError as exc:
         raise exc.located(file=file) from None
+    if spec.amplifier is not None:  # a bias network that cannot work is bad input too
+        try:
+            spec.amplifier.to_params(spec.parts)
+        except SpecError as exc:
+            raise exc.located(file=file) from None
     from picker.production_spec import load_lots
 
     return load_lots(spec, file).model_copy(update={"source": file or ""})
