@@ -108,26 +108,63 @@ def temperature_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np
     return shift, var
 
 
+#: Gauss-Legendre nodes over the dominant drifting part's curve variate (screen only).
+DRIFT_NODES = 16
+
+
+def _window(mu, sig, lo, hi) -> np.ndarray:
+    """P(lo <= N(mu, sig²) <= hi), 0 for an empty interval; a point mass when sig = 0."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = ndtr((hi - mu) / sig) - ndtr((lo - mu) / sig)
+    point = ((mu >= lo) & (mu <= hi)).astype(float)
+    return np.where(sig > 0, np.maximum(y, 0.0), point)
+
+
 def screen_yield(sim: Simulation, designs: Designs) -> np.ndarray:
     """Approximate yield (share in window) of every design from the log-normal model.
 
-    With drifting parts the window probability is evaluated at every grid
-    temperature (mean shifted and variance widened by :func:`temperature_terms`)
-    and the smallest is taken: a board must pass at every temperature, so the
-    true yield is at most this (the top-up in :mod:`picker.ranking` absorbs
-    the difference).
+    Without drift: P(ln f_min <= ln f <= ln f_max) with ln f normal, mean
+    ln f_nominal + :func:`lnf_bias`, sd :func:`sigma_lnf`.
+
+    With drifting parts a board must pass at every grid temperature. Both
+    drift models are affine in their part's curve variate u (Δ_i(T, u) =
+    c_i(T) + e_i(T)·u, :func:`picker.drift.drift_factor`), so for a given u
+    of the design's dominant drifting part (largest |S_i·e_i(T)|) the shift
+    of ln f at each T is known and a board passes everywhere exactly when
+    ln f(25 °C) lies in the intersection of the shifted windows,
+    [ln f_min − min_T shift_T, ln f_max − max_T shift_T]. The other drifting
+    parts enter through their mean shift and, as extra variance, their
+    largest variance over T (first order, JCGM 100:2008, 5.1.2); u is
+    integrated by Gauss-Legendre quadrature (:data:`DRIFT_NODES` nodes).
     """
     problem = sim.problem
-    shift, tvar = temperature_terms(sim, designs)
-    sig = np.sqrt(sigma_lnf(sim, designs) ** 2 + tvar)
-    mu = np.log(designs.f_nominal) + lnf_bias(sim, designs) + shift
-    with np.errstate(divide="ignore", invalid="ignore"):
-        hi = (np.log(problem.f_max) - mu) / sig
-        lo = (np.log(problem.f_min) - mu) / sig
-    y = ndtr(hi) - ndtr(lo)
-    # A design with zero spread is in the window for sure if its centre is.
-    inside = (mu >= np.log(problem.f_min)) & (mu <= np.log(problem.f_max))
-    return np.min(np.where(sig > 0, y, inside.astype(float)), axis=0)
+    sig = sigma_lnf(sim, designs)
+    mu = np.log(designs.f_nominal) + lnf_bias(sim, designs)
+    lo, hi = np.log(problem.f_min), np.log(problem.f_max)
+    drifting = [p for p, v in sim.parts.items() if v.material is not None]
+    if not drifting:
+        return _window(mu, sig, lo, hi)
+    from picker.drift import drift_factor
+
+    n = len(designs)
+    temps = np.asarray(sim.temperatures, dtype=float)
+    sens = board_sensitivities(problem.topology, designs.values(problem), problem.parasitics)
+    s = np.stack([np.broadcast_to(sens[p], (n,)) for p in drifting])  # (P, n)
+    d01 = [drift_factor(sim.parts[p].material, temps, [0.0, 1.0]) for p in drifting]
+    c = np.stack([d[:, 0] for d in d01])  # (P, T): drift at u = 0
+    e = np.stack([d[:, 1] - d[:, 0] for d in d01])  # (P, T): slope in u
+    mean_shift = np.einsum("pn,pt->tn", s, c + e / 2)  # (T, n)
+    amp = s[:, None, :] * e[:, :, None]  # (P, T, n)
+    dom = np.argmax(np.max(np.abs(amp), axis=1), axis=0)  # (n,)
+    amp_d = amp[dom, :, np.arange(n)].T  # (T, n)
+    var_other = (amp**2).sum(axis=0) / 12 - amp_d**2 / 12  # uniform u: var = e²/12
+    sd = np.sqrt(sig**2 + np.max(np.maximum(var_other, 0.0), axis=0))
+    x, w = np.polynomial.legendre.leggauss(DRIFT_NODES)
+    y = np.zeros(n)
+    for xk, wk in zip(x, w, strict=True):
+        shift = mean_shift + amp_d * ((xk + 1) / 2 - 0.5)
+        y += wk / 2 * _window(mu, sd, lo - shift.min(axis=0), hi - shift.max(axis=0))
+    return y
 
 
 def select_for_montecarlo(
