@@ -12,6 +12,7 @@ Example (every quantity accepts engineering strings; bare numbers are SI)::
     c_emitter = "100 nF"         # omit: unbypassed emitter (degeneration)
     c_coupling = "10 nF"         # collector-to-tank blocking capacitor; omit: none (flagged)
     min_margin = 2.0             # smallest acceptable start-up margin (default 2)
+    monte_carlo = "surrogate"    # or "full": the loaded model on every simulated board
 
 Optional device keys: ``bias_current`` (A; bjt default: solved from the bias
 network), ``gm`` (S), ``current_gain``, ``early_voltage`` (V), ``r_out`` (ohm),
@@ -80,6 +81,7 @@ class AmplifierSpec(BaseModel):
     c_emitter: float | None = None
     c_coupling: float | None = None
     min_margin: float = 2.0
+    monte_carlo: Literal["surrogate", "full"] = "surrogate"
 
     @field_validator(*_UNITS, mode="before")
     @classmethod

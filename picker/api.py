@@ -168,9 +168,69 @@ def temperature_grid_of(spec: Spec, parts: dict[str, PartVariation]) -> np.ndarr
     return production.grid(spec, parts)
 
 
+def amplifier_params_of(spec: Spec):
+    """The loaded model's amplifier (``[amplifier]`` with the parts' Q/ESR), or None."""
+    if spec.amplifier is None:
+        return None
+    return spec.amplifier.to_params(spec.parts)
+
+
 def board_model_of(spec: Spec, problem: Problem):
-    """The pass test for one board: None means the ideal tank (circuit-aware model: issue 3)."""
-    return None
+    """The pass test for one board: None means the ideal tank.
+
+    With an ``[amplifier]`` section: :class:`picker.loaded.LoadedModel` (a board
+    passes when it starts, margin > 1, and its loaded frequency is in the
+    window), by the surrogate or the full model (``amplifier.monte_carlo``).
+    """
+    params = amplifier_params_of(spec)
+    if params is None:
+        return None
+    from picker.loaded import LoadedModel
+
+    return LoadedModel(problem, params, spec.amplifier.monte_carlo)
+
+
+def _nominal_designs(spec: Spec, problem: Problem):
+    """Feasible designs, and the loaded search (None without an amplifier).
+
+    With an amplifier the designs are the loaded-feasible ones
+    (:func:`picker.loaded.loaded_search`: loaded nominal frequency in the window,
+    start-up margin >= ``amplifier.min_margin``) and their ``f_nominal`` holds the
+    *loaded* frequency, so the screen, the ranking's error tie-break and the
+    reported error use the frequency the board runs at; :func:`_loaded_view` puts
+    the ideal frequency back into each candidate's ``f_nominal_hz``.
+    """
+    params = amplifier_params_of(spec)
+    if params is None:
+        return search(problem, max_designs=spec.search.max_designs), None
+    from picker.loaded import loaded_search
+
+    ls = loaded_search(problem, params, min_margin=spec.amplifier.min_margin,
+                       max_designs=spec.search.max_designs)  # fmt: skip
+    return Designs(ls.designs.idx, ls.f_loaded, ls.designs.beta), ls
+
+
+def _loaded_view(spec: Spec, cands: list[Candidate]) -> list[Candidate]:
+    """With an amplifier: ``f_nominal_hz`` is the ideal frequency; ``error``,
+    ``in_window`` and the worst-case corners follow the loaded one (the ideal
+    corners times the nominal loaded/ideal ratio); ``extra`` has both."""
+    if spec.amplifier is None:
+        return cands
+    from dataclasses import replace
+
+    out = []
+    f = spec.frequency
+    for c in cands:
+        fl = c.extra.get("f_loaded_hz")
+        upd: dict = {"f_nominal_hz": c.extra["f_ideal_hz"]}
+        if fl is None:
+            upd.update(error=c.extra["f_ideal_hz"] / f.target - 1.0, in_window=False)
+        else:
+            r = fl / c.extra["f_ideal_hz"]  # corners scaled by the nominal loading ratio
+            upd.update(error=fl / f.target - 1.0, in_window=bool(f.f_min <= fl <= f.f_max),
+                       f_worst_low_hz=c.f_worst_low_hz * r, f_worst_high_hz=c.f_worst_high_hz * r)  # fmt: skip
+        out.append(replace(c, **upd))
+    return out
 
 
 def simulation_of(spec: Spec, problem: Problem) -> Simulation:
@@ -182,8 +242,30 @@ def simulation_of(spec: Spec, problem: Problem) -> Simulation:
 
 
 def circuit_extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:
-    """Extra per-candidate figures of the circuit-aware model (JSON fields), one dict each."""
-    return [{} for _ in range(len(designs))]
+    """Extra per-candidate figures of the circuit-aware model (JSON fields), one dict each.
+
+    Empty without an ``[amplifier]`` section. Otherwise (:func:`picker.loaded.nominal_figures`):
+    ``f_ideal_hz``, ``f_loaded_hz``, ``startup_margin`` (nominal),
+    ``startup_margin_worst`` (smallest over every Monte Carlo board and
+    temperature), ``amplitude_v``, ``overdriven``, ``peak_voltage_v``, ``cautions``.
+    """
+    params = amplifier_params_of(spec)
+    if params is None:
+        return [{} for _ in range(len(designs))]
+    from picker.loaded import nominal_figures, worst_margins
+
+    pb = sim.problem
+    vals = designs.values(pb)
+    rating = {p: spec.parts[p].voltage_rating for p in pb.topology.positions}
+    polar = {p: spec.parts[p].polarised for p in pb.topology.positions}
+    worst = worst_margins(sim, designs, u)
+    out = []
+    for r in range(len(designs)):
+        fig = nominal_figures(pb.topology, {p: float(v[r]) for p, v in vals.items()},
+                              pb.parasitics, params, voltage_rating=rating, polarised=polar)  # fmt: skip
+        fig["startup_margin_worst"] = float(worst[r])
+        out.append(fig)
+    return out
 
 
 def production_extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:
@@ -351,7 +433,7 @@ def solve(
     seed = ys.seed if seed is None else seed
     m = ys.candidates if candidates is None else candidates
     problem = build_problem(spec)
-    designs = search(problem, max_designs=spec.search.max_designs)
+    designs, loaded = _nominal_designs(spec, problem)
     common = dict(
         spec=spec,
         space_size=problem.space_size(),
@@ -361,9 +443,12 @@ def solve(
         seed=seed,
     )
     if len(designs) == 0:
-        from picker.misses import explain_infeasible
+        from picker.misses import explain_infeasible, explain_loaded_infeasible
 
-        misses, advice = explain_infeasible(spec, problem)
+        if loaded is None:
+            misses, advice = explain_infeasible(spec, problem)
+        else:
+            misses, advice = explain_loaded_infeasible(spec, problem, loaded)
         return SolveResult(
             status="infeasible", candidates=[], misses=misses, advice=advice, **common
         )
@@ -379,6 +464,7 @@ def solve(
     cands = _candidates(
         spec, problem, best, passed, screen, samples, seed, _extras(spec, sim, best, u)
     )
+    cands = _loaded_view(spec, cands)
     return SolveResult(
         status="ok",
         candidates=cands,
@@ -452,6 +538,7 @@ def evaluate(
     cands = _candidates(
         spec, problem, designs, passed, screen, samples, seed, _extras(spec, sim, designs, u)
     )
+    cands = _loaded_view(spec, cands)
     return SolveResult(
         spec=spec,
         status="ok",

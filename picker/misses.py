@@ -13,6 +13,8 @@ A denser series is suggested for every position whose series has one.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from picker import series as series_mod
@@ -95,4 +97,74 @@ def explain_infeasible(spec, problem: Problem):
                 advice.append(f"use a denser series for {pos} ({denser} instead of {part.series})")
     if not misses:
         advice.append("widen the part ranges: no combination comes near the target")
+    return misses, advice
+
+
+def explain_loaded_infeasible(spec, problem: Problem, loaded):
+    """Misses and advice when no design passes the loaded model (``[amplifier]``).
+
+    ``loaded`` is the :class:`picker.loaded.LoadedSearch` of the spec's window.
+    Designs whose loaded frequency is in the window but whose start-up margin is
+    below ``amplifier.min_margin`` are "start-up margin" misses; otherwise the
+    window is widened step by step (as for the ideal tank) and the designs closest
+    to it by loaded frequency, margin kept, are frequency misses.
+    """
+    from picker.api import Miss
+    from picker.loaded import loaded_search
+
+    params = spec.amplifier.to_params(spec.parts)
+    need = spec.amplifier.min_margin
+    misses, advice = [], []
+
+    def rows(designs, f_l, m, failed_fn):
+        out = []
+        for r in range(len(designs)):
+            vals = {p: float(problem.tables[p].values[designs.idx[p][r]]) for p in designs.idx}
+            out.append(Miss(vals, float(designs.f_nominal[r]), float(designs.beta[r]),
+                            failed_fn(float(f_l[r]), float(m[r]))))  # fmt: skip
+        return out
+
+    if len(loaded.low_margin):
+        best = float(loaded.low_margin_m[0])
+        misses += rows(loaded.low_margin, loaded.low_margin_f, loaded.low_margin_m,
+                       lambda f, m: f"start-up margin {m:.3g} below the minimum {need:g}")  # fmt: skip
+        advice.append(
+            f"{loaded.in_window:,} designs run in the window but none starts with a margin of "
+            f"{need:g} (best {best:.3g}): raise the loop gain (more bias current or a larger "
+            f"collector load) or lower amplifier.min_margin to {math.floor(best * 100) / 100:g}"
+        )
+    f_lo, f_hi = problem.f_min, problem.f_max
+    centre = np.sqrt(f_lo * f_hi)
+    half = np.log(f_hi / centre)
+    k = 1.0
+    while not misses and half * k < np.log(2.0):
+        k *= 2.0
+        relaxed = Problem(problem.topology, problem.tables, centre * np.exp(-half * k),
+                          centre * np.exp(half * k), problem.beta_min, problem.beta_max,
+                          problem.parasitics)  # fmt: skip
+        ls = loaded_search(relaxed, params, min_margin=need, max_designs=2_000_000)
+        if len(ls.designs):
+            dist = np.abs(np.log(ls.f_loaded / centre))
+            sel = np.lexsort((np.arange(len(dist)), dist))[:_MISSES]
+
+            def failed(f, m):
+                if f < f_lo:
+                    return f"loaded frequency {format_percent(1 - f / f_lo)} below the window"
+                return f"loaded frequency {format_percent(f / f_hi - 1)} above the window"
+
+            misses += rows(ls.designs.take(sel), ls.f_loaded[sel], ls.margin[sel], failed)
+            need_w = float(np.abs(ls.f_loaded[sel[0]] / spec.frequency.target - 1))
+            advice.append(
+                f"widen the frequency window to about ±{format_percent(need_w * 1.01)} "
+                "(the closest design that starts, by its loaded frequency)"
+            )
+    for pos, part in spec.parts.items():
+        if part.series:
+            denser = series_mod.denser(part.series)
+            if denser:
+                advice.append(f"use a denser series for {pos} ({denser} instead of {part.series})")
+    if not misses:
+        advice.append(
+            "no design near the window starts: widen the part ranges or raise the loop gain"
+        )
     return misses, advice

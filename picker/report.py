@@ -101,6 +101,7 @@ def to_json(r: SolveResult) -> str:
 
 def to_csv(r: SolveResult) -> str:
     positions = r.spec.topo.positions
+    loaded = r.spec.amplifier is not None
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(
@@ -117,9 +118,11 @@ def to_csv(r: SolveResult) -> str:
             "samples",
             "f_worst_low_hz",
             "f_worst_high_hz",
+            *(_LOADED_CSV if loaded else ()),
         ]
     )
     for c in r.candidates:
+        more = [_csv_num(c.extra.get(k)) for k in _LOADED_CSV] if loaded else []
         w.writerow(
             [c.rank]
             + [csv_safe(format_quantity(c.parts[p].value, c.parts[p].unit)) for p in positions]
@@ -135,14 +138,54 @@ def to_csv(r: SolveResult) -> str:
                 repr(c.f_worst_low_hz),
                 repr(c.f_worst_high_hz),
             ]
+            + more
         )
     return buf.getvalue()
+
+
+#: CSV columns added when the spec has an [amplifier] section (circuit-aware model).
+_LOADED_CSV = ("f_loaded_hz", "startup_margin", "startup_margin_worst")
+
+
+def _csv_num(x) -> str:
+    return "" if x is None else repr(float(x))
 
 
 def _span(c: Candidate, target: float) -> str:
     lo = c.f_worst_low_hz / target - 1
     hi = c.f_worst_high_hz / target - 1
     return f"{lo * 100:+.2f} %..{hi * 100:+.2f} %"
+
+
+def _loaded_freqs(c: Candidate) -> tuple[str, str]:
+    fl = c.extra.get("f_loaded_hz")
+    return (
+        format_quantity(c.f_nominal_hz, "Hz", digits=6),
+        "none" if fl is None else format_quantity(fl, "Hz", digits=6),
+    )
+
+
+def _margins(c: Candidate) -> str:
+    m, w = c.extra.get("startup_margin"), c.extra.get("startup_margin_worst")
+    return f"{m:.2f} ({w:.2f})"
+
+
+def _print_cautions(r: SolveResult, console: Console) -> None:
+    """Circuit-model cautions under the table: each text once, with the ranks it applies to."""
+    seen: dict[str, list[int]] = {}
+    for c in r.candidates:
+        for text in c.extra.get("cautions", ()):
+            seen.setdefault(text, []).append(c.rank)
+    console.print(
+        "f loaded: the loaded model (transistor, bias network, losses); error is against "
+        "the loaded frequency. margin: loop gain at start-up, nominal (worst board)."
+    )
+    if not seen:
+        return
+    console.print("Cautions (circuit model):")
+    for text, ranks in seen.items():
+        which = ", ".join(f"#{k}" for k in ranks)
+        console.print(f"  - {which}: {text}", markup=False, highlight=False)
 
 
 def print_table(r: SolveResult, console: Console) -> None:
@@ -186,9 +229,16 @@ def print_table(r: SolveResult, console: Console) -> None:
     t.add_column("#", justify="right")
     for p in s.topo.positions:
         t.add_column(p, justify="right")
-    t.add_column("f nominal", justify="right")
+    loaded = s.amplifier is not None
+    if loaded:
+        t.add_column("f ideal", justify="right")
+        t.add_column("f loaded", justify="right")
+    else:
+        t.add_column("f nominal", justify="right")
     t.add_column("error", justify="right")
     t.add_column("beta", justify="right")
+    if loaded:
+        t.add_column("margin (worst)", justify="right")
     t.add_column(f"yield ({s.yield_.confidence:.0%} CI)", justify="right")
     t.add_column("worst-case span", justify="right")
     for c in r.candidates:
@@ -199,9 +249,10 @@ def print_table(r: SolveResult, console: Console) -> None:
                 f"{format_percent(c.parts[p].tolerance)}"
                 for p in s.topo.positions
             ),
-            format_quantity(c.f_nominal_hz, "Hz", digits=6),
+            *(_loaded_freqs(c) if loaded else (format_quantity(c.f_nominal_hz, "Hz", digits=6),)),
             f"{c.error * 100:+.3f} %",
             f"{c.feedback_fraction:.3f}" + ("" if c.feedback_ok else " !"),
+            *((_margins(c),) if loaded else ()),
             f"{c.yield_.estimate:.1%} ({c.yield_.ci_low:.1%}..{c.yield_.ci_high:.1%})",
             _span(c, f.target),
         )
@@ -212,6 +263,8 @@ def print_table(r: SolveResult, console: Console) -> None:
         console.print("Note: the nominal frequency lies outside the window.")
     if any(not c.feedback_ok for c in r.candidates):
         console.print("Note: '!' marks a feedback fraction outside the feedback window.")
+    if loaded:
+        _print_cautions(r, console)
     from picker.production_report import print_production
 
     print_production(r, console)

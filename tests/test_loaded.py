@@ -1,0 +1,349 @@
+"""The loaded model inside solve/evaluate: surrogate accuracy, loaded-feasible search against
+brute force, the board model, the per-candidate figures and the CLI/JSON surface."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from conftest import DEMO
+from numpy.testing import assert_allclose
+
+from picker import api
+from picker.circuit import AmplifierParams, ideal_params
+from picker.drift import get_material
+from picker.loaded import (
+    SQUEGGING_RATIO,
+    LoadedModel,
+    fit_surrogate,
+    loaded_brute_force,
+    loaded_nominal,
+    loaded_search,
+    nominal_figures,
+    squegging_caution,
+    surrogate_response,
+)
+from picker.montecarlo import PartVariation, Simulation, count_passing, draw_uniform
+from picker.search import Designs, Problem, search, uniform_table
+from picker.series import expand
+from picker.topology import CLAPP, COLPITTS, TWO_PI, Parasitics, board_frequency
+
+# Invented amplifiers (typical small-signal values, not a check value themselves).
+BJT = AmplifierParams(
+    vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_e=47e-9, c_block=10e-9,
+    inductor_q=50.0,
+)  # fmt: skip
+LOSSY = AmplifierParams(
+    vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_e=47e-9, c_block=10e-9,
+    inductor_q=8.0,
+)  # fmt: skip
+PAR = Parasitics(stray=3e-12)
+
+
+def _keys(d: Designs, positions) -> set:
+    return set(zip(*[d.idx[p].tolist() for p in positions], strict=True))
+
+
+# --------------------------------------------------------------------- nominal model
+
+
+def test_idealised_amplifier_gives_textbook_frequency_and_margin_on_board_values():
+    # Sedra & Smith, Microelectronic Circuits, Colpitts section: ω0² = (C1+C2)/(L·C1·C2)
+    # and loop gain gm·R·C1/C2, here on the *board* values C1 + c1_shunt, C2 + c2_shunt,
+    # L·l_scale (the parasitics are applied before the loaded model).
+    par = Parasitics(stray=0.0, c1_shunt=5e-12, c2_shunt=12e-12, l_scale=1.04)
+    vals = {"C1": np.array([330e-12, 1e-9]), "C2": np.array([1e-9, 2.2e-9]),
+            "L": np.array([47e-6, 10e-6])}  # fmt: skip
+    gm, r = 0.03, 1200.0
+    f, m = loaded_nominal(COLPITTS, vals, par, ideal_params(gm, r))
+    c1, c2, l_ = vals["C1"] + 5e-12, vals["C2"] + 12e-12, vals["L"] * 1.04
+    assert_allclose(f, 1 / (TWO_PI * np.sqrt(l_ * c1 * c2 / (c1 + c2))), rtol=1e-9)
+    assert_allclose(m, gm * r * c1 / c2, rtol=1e-9)  # root finder tolerance 1e-11
+
+
+# --------------------------------------------------------------------- surrogate
+
+
+def _agreement(nominal, params, window, n=4000, seed=5, tol=0.05):
+    """The board model (surrogate) against the full model on the same boards.
+
+    Returns (share of boards with the same pass/fail, max |df/f| of the raw expansion (S1),
+    share passing by the full model).
+    """
+    rng = np.random.default_rng(seed)
+    one = {k: np.array([v]) for k, v in nominal.items()}
+    sur = fit_surrogate(COLPITTS, one, PAR, params)
+    assert sur.valid[0]
+    vals = {k: v * (1 + rng.uniform(-tol, tol, (n, 1))) for k, v in nominal.items()}
+    f_s, _ = surrogate_response(COLPITTS, sur, vals, PAR)
+    f_f, m_f = loaded_nominal(COLPITTS, vals, PAR, params)
+    lo, hi = window
+    pb = Problem(COLPITTS, {k: uniform_table(v, tol, "list") for k, v in one.items()},
+                 lo, hi, 0.0, 10.0, PAR)  # fmt: skip
+    d = Designs({k: np.zeros(1, dtype=np.int32) for k in one}, np.zeros(1), np.zeros(1))
+    ps = LoadedModel(pb, params, "surrogate")(vals, d)
+    pf = (m_f > 1) & (f_f >= lo) & (f_f <= hi)
+    return float(np.mean(ps == pf)), float(np.nanmax(np.abs(f_s / f_f - 1))), pf.mean()
+
+
+@pytest.mark.parametrize(
+    ("nominal", "params", "f_tol"),
+    [
+        # a typical design: loading moves f by about -0.1 %
+        ({"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}, BJT, 5e-5),
+        # lossy inductor (Q = 8)
+        ({"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}, LOSSY, 5e-5),
+        # small capacitors against the device: loading +29 %, the hardest case measured
+        ({"C1": 47e-12, "C2": 100e-12, "L": 1e-3}, BJT, 1e-3),
+    ],
+)
+def test_surrogate_agrees_with_full_model(nominal, params, f_tol):
+    # Reference: the full loaded model (picker.circuit) on the very same boards. Window
+    # ±3 % around the loaded nominal frequency, parts ±5 % uniform, so boards fall on both
+    # sides of both edges. Measured: agreement >= 99.98 %, |df/f| <= 8.5e-6 for the first
+    # two designs and 6.5e-4 for the heavily loaded one.
+    f0, _ = loaded_nominal(COLPITTS, {k: np.array([v]) for k, v in nominal.items()}, PAR, params)
+    agree, df, share = _agreement(nominal, params, (0.97 * f0[0], 1.03 * f0[0]))
+    assert 0.2 < share < 0.99  # the window edges really cut through the boards
+    assert agree >= 0.995
+    assert df <= f_tol
+
+
+def test_surrogate_at_the_start_up_edge():
+    # A very lossy inductor (Q = 4) leaves a nominal margin of about 1.09, so with ±20 %
+    # parts about a fifth of the boards fail to start: the margin expansion (S2) must sort
+    # them like the full model (reference: the full model on the same boards).
+    nominal = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
+    params = AmplifierParams(vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0,
+                             c_e=47e-9, c_block=10e-9, inductor_q=4.0)  # fmt: skip
+    f0, m0 = loaded_nominal(COLPITTS, {k: np.array([v]) for k, v in nominal.items()}, PAR, params)
+    assert 1.0 < m0[0] < 1.2
+    agree, _, share = _agreement(nominal, params, (0.5 * f0[0], 2.0 * f0[0]), tol=0.2)
+    assert 0.05 < share < 0.95
+    assert agree >= 0.995
+
+
+def _small_problem(topology=COLPITTS, f0=1e6, window=0.03, c_range=(10e-12, 10e-9),
+                   l_range=(1e-6, 1e-3)) -> Problem:  # fmt: skip
+    tabs = {p: uniform_table(expand("E12", *c_range), 0.05, "E12") for p in topology.capacitors}
+    tabs["L"] = uniform_table(expand("E12", *l_range), 0.05, "E12")
+    return Problem(topology, tabs, f0 * (1 - window), f0 * (1 + window), 0.1, 1.0, PAR)
+
+
+def test_board_model_surrogate_and_full_count_alike_with_drift():
+    # Drift: the model receives the values at each temperature; an X7R C2 and a ferrite-like
+    # tempco make the boards move. Same random numbers, two models: per-design counts must
+    # agree to within 0.5 % of the boards (the surrogate's measured pass/fail agreement).
+    pb = _small_problem()
+    ls = loaded_search(pb, BJT, min_margin=2.0)
+    d = ls.designs.take(np.arange(0, len(ls.designs), max(1, len(ls.designs) // 6)))
+    parts = {p: PartVariation("uniform") for p in COLPITTS.positions}
+    parts["C2"] = PartVariation("uniform", material=get_material("X7R"))
+    temps = np.array([-20.0, 25.0, 70.0])
+    sims = {m: Simulation(pb, parts, temps, LoadedModel(pb, BJT, m)) for m in ("surrogate", "full")}
+    u = draw_uniform(3, 3000, sims["full"].n_columns)
+    a = count_passing(sims["surrogate"], d, u)
+    b = count_passing(sims["full"], d, u)
+    assert np.any(b > 0) and np.any(b < 3000)
+    assert np.max(np.abs(a - b)) <= 0.005 * 3000
+
+
+# --------------------------------------------------------------------- loaded search
+
+
+@pytest.mark.parametrize(
+    ("pb", "params", "min_margin"),
+    [
+        (_small_problem(), BJT, 2.0),
+        (_small_problem(f0=2e6), LOSSY, 1.5),
+        # capacitors down to a few pF: the device dominates, loaded/ideal from 0.8 to 1.4
+        (
+            _small_problem(f0=5e6, window=0.05, c_range=(2.2e-12, 220e-12), l_range=(1e-6, 10e-3)),
+            BJT,
+            1.5,
+        ),  # fmt: skip
+        (
+            _small_problem(CLAPP, f0=3e6, c_range=(47e-12, 4.7e-9), l_range=(2.2e-6, 220e-6)),
+            BJT,
+            2.0,
+        ),  # fmt: skip
+    ],
+)
+def test_loaded_search_equals_brute_force(pb, params, min_margin):
+    # Reference: every combination of the cube through the full loaded model.
+    got = loaded_search(pb, params, min_margin=min_margin)
+    ref = loaded_brute_force(pb, params, min_margin=min_margin)
+    pos = pb.topology.positions
+    assert len(ref.designs) > 0
+    assert _keys(got.designs, pos) == _keys(ref.designs, pos)
+    # the loaded set really differs from the ideal one (so the test has teeth)
+    assert _keys(search(pb), pos) != _keys(ref.designs, pos)
+    # reported figures are the full model's, and meet the constraints
+    assert np.all(got.margin >= min_margin)
+    assert np.all((got.f_loaded >= pb.f_min) & (got.f_loaded <= pb.f_max))
+    f, m = loaded_nominal(pb.topology, got.designs.values(pb), pb.parasitics, params)
+    assert_allclose(got.f_loaded, f, rtol=1e-12)
+    assert_allclose(got.designs.f_nominal,
+                    board_frequency(pb.topology, got.designs.values(pb), pb.parasitics))  # fmt: skip
+
+
+def test_loaded_search_reaches_designs_whose_ideal_frequency_is_outside_the_window():
+    pb = _small_problem(f0=5e6, window=0.05, c_range=(2.2e-12, 220e-12), l_range=(1e-6, 10e-3))
+    got = loaded_search(pb, BJT, min_margin=1.5)
+    outside = (got.designs.f_nominal < pb.f_min) | (got.designs.f_nominal > pb.f_max)
+    assert outside.sum() > len(got.designs) // 4
+
+
+# --------------------------------------------------------------------- figures
+
+
+def test_squegging_rule():
+    # Rule (common practice, no source): flag when R_E·C_E > 10 × 2Q/ω. Q = 50 at the
+    # design's ideal frequency (q_frequency None) gives 2Q/ω at f = f_ideal exactly.
+    board = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
+    f = float(COLPITTS.frequency(board, 0.0))
+    tau_tank = 2 * 50.0 / (TWO_PI * f)
+    c_edge = SQUEGGING_RATIO * tau_tank / 2200.0
+    base = dict(vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_block=10e-9,
+                inductor_q=50.0)  # fmt: skip
+    assert squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base, c_e=0.9 * c_edge),
+                             f, 3.0) is None  # fmt: skip
+    text = squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base, c_e=1.1 * c_edge),
+                             f, 3.0)  # fmt: skip
+    assert text is not None and "squegging" in text and "11 times" in text
+    # no bypass capacitor, or a board that does not start: nothing to flag
+    assert squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base), f, 3.0) is None
+    assert squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base, c_e=1e-6),
+                             f, 0.5) is None  # fmt: skip
+
+
+def test_nominal_figures_flag_a_missing_blocking_capacitor_and_a_polarised_part():
+    params = AmplifierParams(vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0,
+                             c_e=47e-9, inductor_q=50.0)  # fmt: skip
+    fig = nominal_figures(COLPITTS, {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}, PAR, params,
+                          polarised={"C2": True})  # fmt: skip
+    text = " ".join(fig["cautions"])
+    assert "DC-blocking" in text and "C2 is marked polarised" in text
+    assert set(fig["peak_voltage_v"]) == {"C1", "C2"}
+
+
+# --------------------------------------------------------------------- api and CLI
+
+DEMO_SPEC = DEMO / "colpitts_bjt.toml"
+
+
+@pytest.fixture(scope="module")
+def demo_result():
+    spec = api.load_spec(DEMO_SPEC)
+    return api.solve(spec, samples=2000, top=4)
+
+
+def test_demo_solve_reports_ideal_and_loaded(demo_result):
+    r = demo_result
+    spec = r.spec
+    assert r.status == "ok" and r.candidates
+    params = spec.amplifier.to_params(spec.parts)
+    for c in r.candidates:
+        x = c.extra
+        f_l, m = loaded_nominal(spec.topo, {p: np.array([v]) for p, v in c.values.items()},
+                                api.parasitics_of(spec), params)  # fmt: skip
+        assert_allclose(x["f_loaded_hz"], f_l[0], rtol=1e-12)
+        assert_allclose(x["startup_margin"], m[0], rtol=1e-12)
+        assert c.f_nominal_hz == x["f_ideal_hz"]
+        assert_allclose(c.error, x["f_loaded_hz"] / spec.frequency.target - 1, rtol=1e-12)
+        assert spec.frequency.f_min <= x["f_loaded_hz"] <= spec.frequency.f_max
+        assert x["startup_margin"] >= spec.amplifier.min_margin
+        assert 0 < x["startup_margin_worst"] < x["startup_margin"]
+    # visibly different: at least one design runs more than 1 % off the ideal formula
+    assert max(abs(c.extra["f_loaded_hz"] / c.f_nominal_hz - 1) for c in r.candidates) > 0.01
+
+
+def test_solve_and_evaluate_json_carry_loaded_fields(run_cli, tmp_path):
+    code, out, err = run_cli("solve", str(DEMO_SPEC), "--format", "json", "--samples", "1000",
+                             "--top", "2")  # fmt: skip
+    assert code == 0, err
+    doc = json.loads(out)
+    c = doc["candidates"][0]
+    for key in ("f_loaded_hz", "startup_margin", "startup_margin_worst", "f_ideal_hz"):
+        assert isinstance(c[key], float)
+    sets = [f"{p}={c['parts'][p]['value']!r}" for p in ("C1", "C2", "L")]
+    argv = ["evaluate", str(DEMO_SPEC), "--format", "json", "--samples", "1000"]
+    for s in sets:
+        argv += ["--set", s]
+    code, out2, err = run_cli(*argv)
+    assert code == 0, err
+    e = json.loads(out2)["candidates"][0]
+    assert_allclose(e["f_loaded_hz"], c["f_loaded_hz"], rtol=1e-12)
+    assert_allclose(e["startup_margin"], c["startup_margin"], rtol=1e-12)
+    # same input and seed: byte-identical JSON
+    assert run_cli("solve", str(DEMO_SPEC), "--format", "json", "--samples", "1000",
+                   "--top", "2")[1] == out  # fmt: skip
+
+
+def test_table_and_csv_show_loaded_columns(run_cli):
+    code, out, err = run_cli("solve", str(DEMO_SPEC), "--samples", "1000", "--top", "3")
+    assert code == 0, err
+    assert "f ideal" in out and "f loaded" in out and "margin (worst)" in out
+    assert "Cautions (circuit model)" in out
+    code, out, _ = run_cli("solve", str(DEMO_SPEC), "--format", "csv", "--samples", "1000",
+                           "--top", "3")  # fmt: skip
+    header = out.splitlines()[0].split(",")
+    assert header[-3:] == ["f_loaded_hz", "startup_margin", "startup_margin_worst"]
+
+
+def test_no_amplifier_leaves_json_without_loaded_fields(run_cli):
+    code, out, _ = run_cli("solve", str(DEMO / "probe_exciter.toml"), "--format", "json",
+                           "--samples", "500", "--top", "1")  # fmt: skip
+    assert code == 0
+    assert "f_loaded_hz" not in json.loads(out)["candidates"][0]
+
+
+def test_margin_infeasible_names_the_start_up_margin(run_cli, tmp_path):
+    text = DEMO_SPEC.read_text(encoding="utf-8").replace("min_margin = 2.0", "min_margin = 40")
+    p = tmp_path / "hard.toml"
+    p.write_text(text, encoding="utf-8")
+    code, out, _ = run_cli("solve", str(p), "--format", "json", "--samples", "500")
+    assert code == 1
+    doc = json.loads(out)
+    assert doc["misses"] and all("start-up margin" in m["failed"] for m in doc["misses"])
+    assert any("amplifier.min_margin" in a for a in doc["advice"])
+
+
+def test_full_monte_carlo_option_and_bad_value(run_cli, tmp_path):
+    text = DEMO_SPEC.read_text(encoding="utf-8")
+    full = tmp_path / "full.toml"
+    full.write_text(text.replace("min_margin = 2.0", 'min_margin = 2.0\nmonte_carlo = "full"'),
+                    encoding="utf-8")  # fmt: skip
+    spec_f = api.load_spec(full)
+    spec_s = api.load_spec(DEMO_SPEC)
+    assert isinstance(api.board_model_of(spec_f, api.build_problem(spec_f)), LoadedModel)
+    rf = api.solve(spec_f, samples=1000, top=2)
+    rs = api.solve(spec_s, samples=1000, top=2)
+    for a, b in zip(rf.candidates, rs.candidates, strict=True):
+        assert a.values == b.values
+        assert abs(a.yield_.passed - b.yield_.passed) <= 0.005 * 1000
+    bad = tmp_path / "bad.toml"
+    bad.write_text(text.replace("min_margin = 2.0", 'min_margin = 2.0\nmonte_carlo = "fast"'),
+                   encoding="utf-8")  # fmt: skip
+    code, _, err = run_cli("solve", str(bad))
+    assert code == 2 and "amplifier.monte_carlo" in err and len(err.strip().splitlines()) == 1
+
+
+def test_worst_margin_is_the_minimum_over_boards():
+    spec = api.load_spec(DEMO_SPEC)
+    pb = api.build_problem(spec)
+    params = spec.amplifier.to_params(spec.parts)
+    ls = loaded_search(pb, params, min_margin=2.0)
+    d = ls.designs.take(np.arange(2))
+    sim = Simulation(pb, {p: PartVariation("uniform") for p in pb.topology.positions},
+                     model=LoadedModel(pb, params, "full"))  # fmt: skip
+    u = draw_uniform(1, 500, sim.n_columns)
+    extras = api.circuit_extras(spec, sim, d, u)
+    from picker.montecarlo import sampled_values
+
+    vals = sampled_values(sim, d, u)
+    _, m = loaded_nominal(pb.topology, vals, pb.parasitics, params)
+    assert_allclose([e["startup_margin_worst"] for e in extras], m.min(axis=0), rtol=1e-12)
+    assert all(math.isfinite(e["amplitude_v"]) for e in extras)
