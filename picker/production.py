@@ -21,11 +21,12 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Callable
+from typing import cast
 
 import numpy as np
 
 from picker import drivers, tighter, trimmer
-from picker.drift import check_range, explicit_tempco, get_material, temperature_grid
+from picker.drift import Material, check_range, explicit_tempco, get_material, temperature_grid
 from picker.errors import SpecError
 from picker.montecarlo import (
     REFERENCE_TEMPERATURE,
@@ -54,6 +55,11 @@ TIGHTER_CANDIDATES = 3
 
 
 # ---------------------------------------------------------------- spec -> simulation
+
+
+def _mat(v: PartVariation) -> Material | None:
+    """A variation's drift class (``PartVariation.material`` is typed loosely)."""
+    return cast("Material | None", v.material)
 
 
 def material_of(part, with_drift: bool):
@@ -138,8 +144,9 @@ def summary(spec, sim: Simulation, samples: int, converged: bool | None) -> dict
             d["grade"] = v.grade
         if v.lot is not None:
             d["lot_size"] = int(np.size(v.lot))
-        if v.material is not None:
-            d["material"] = v.material.name
+        m = _mat(v)
+        if m is not None:
+            d["material"] = m.name
         parts[p] = d
     out = {
         "sampling": ys.sampling,
@@ -356,12 +363,15 @@ def _key(x: float | str) -> float | str:
 
 def _current(spec, sim: Simulation, d1: Designs):
     """Tolerance, swappable material, price table and part count of each position."""
-    tols, mats, prices, counts = {}, {}, {}, {}
+    tols: dict[str, float | str] = {}
+    mats: dict[str, str | None] = {}
+    prices: dict[str, dict[float | str, float]] = {}
+    counts: dict[str, int] = {}
     for p in sim.problem.topology.positions:
         t = sim.problem.tables[p]
         i = int(d1.idx[p][0])
         tols[p] = _key(float(t.tol[i]))
-        m = sim.parts[p].material
+        m = _mat(sim.parts[p])
         mats[p] = m.name if m is not None and m.name != "tempco" else None
         part = spec.parts.get(p)
         table = {_key(k): v for k, v in (part.prices or ())} if part is not None else {}
@@ -371,10 +381,11 @@ def _current(spec, sim: Simulation, d1: Designs):
         for k in (tols[p], mats[p]):
             if now is None and k is not None:
                 now = table.get(k)
+        mat = mats[p]
         if now is not None:
             table.setdefault(tols[p], now)
-            if mats[p] is not None:
-                table.setdefault(mats[p], now)
+            if mat is not None:
+                table.setdefault(mat, now)
         if table:
             prices[p] = table
         counts[p] = 2 if t.second is not None and t.second[i] > 0 else 1
@@ -424,13 +435,14 @@ def buy_plan(spec, sim: Simulation, d1: Designs, u: np.ndarray, target: float, f
     )
     final = steps[-1].yield_after if steps else fn({}, {})
     costs = [s.extra_cost for s in steps]
+    known = [c for c in costs if c is not None]
     return {
         "target": target,
         "steps": [_tidy(s.as_dict()) for s in steps],
         "yield": final,
         "reaches_target": bool(final >= target),
         "extra_cost_per_board": (
-            float(f"{sum(costs):.12g}") if steps and all(c is not None for c in costs) else None
+            float(f"{sum(known):.12g}") if steps and len(known) == len(costs) else None
         ),
     }
 
@@ -536,7 +548,7 @@ def trimmer_advice(spec, sim: Simulation, d1: Designs, u: np.ndarray) -> dict | 
     best = min(found, key=rank)
     pos = best.position
     scale = par.l_scale if pos == "L" else 1.0
-    new = best.fixed_value / scale
+    new = (best.fixed_value or 0.0) / scale
     t = best.trimmer
     return {
         "placement": best.placement,

@@ -10,7 +10,7 @@ JCGM 100:2008 §4.3.7; normal with σ = t/3, the 99.73 % convention).
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, cast
 
 import numpy as np
 from scipy.special import ndtr
@@ -18,6 +18,7 @@ from scipy.special import ndtr
 from picker.search import Designs, Problem
 
 if TYPE_CHECKING:
+    from picker.drift import Material
     from picker.montecarlo import Simulation
 from picker.topology import board_frequency, board_sensitivities
 
@@ -91,7 +92,7 @@ def temperature_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np
     (shift, var) : arrays, shape (n_temps, n); (1, n) zeros without drift.
     """
     n = len(designs)
-    mats = {p: v.material for p, v in sim.parts.items() if v.material is not None}
+    mats = {p: cast("Material", v.material) for p, v in sim.parts.items() if v.material is not None}
     if not mats:
         return np.zeros((1, n)), np.zeros((1, n))
     from picker.drift import drift_moments
@@ -150,7 +151,8 @@ def screen_yield(sim: Simulation, designs: Designs) -> np.ndarray:
     temps = np.asarray(sim.temperatures, dtype=float)
     sens = board_sensitivities(problem.topology, designs.values(problem), problem.parasitics)
     s = np.stack([np.broadcast_to(sens[p], (n,)) for p in drifting])  # (P, n)
-    d01 = [drift_factor(sim.parts[p].material, temps, [0.0, 1.0]) for p in drifting]
+    d01 = [drift_factor(cast("Material", sim.parts[p].material), temps, [0.0, 1.0])
+           for p in drifting]  # fmt: skip
     c = np.stack([d[:, 0] for d in d01])  # (P, T): drift at u = 0
     e = np.stack([d[:, 1] - d[:, 0] for d in d01])  # (P, T): slope in u
     mean_shift = np.einsum("pn,pt->tn", s, c + e / 2)  # (T, n)
