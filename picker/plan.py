@@ -213,7 +213,8 @@ def load_plan(path: str | Path) -> Plan:
         spec = PlanSpec.model_validate(data)
     except ValidationError as exc:
         err = exc.errors()[0]
-        key = ".".join(str(x) for x in err["loc"]) or None
+        # the plan-level check (no loc) is about the channels table
+        key = ".".join(str(x) for x in err["loc"]) or "channels"
         msg = err["msg"].removeprefix("Value error, ")
         if err["type"] == "extra_forbidden":
             msg = f"unknown key (a typo?); got {err.get('input')!r}"

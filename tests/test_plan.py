@@ -59,7 +59,7 @@ def _small_plan(tmp_path: Path, extra: str = "", channels: str | None = None) ->
         ("build_quantity = 10\ncolour = 1\n[channels.a]\nspec = 'x.toml'\n", "colour", "unknown"),
         ("[channels.a]\nspec = 'x.toml'\n", "build_quantity", "missing"),
         ("build_quantity = 10\n[channels.a]\nwindow = '1 %'\n", "channels.a", "spec"),
-        ("build_quantity = 10\n[channels.a]\ntarget = '1 MHz'\n", None, "no base spec"),
+        ("build_quantity = 10\n[channels.a]\ntarget = '1 MHz'\n", "channels", "no base spec"),
         (
             "build_quantity = 10\npriorities = ['parts', 'speed']\n[channels.a]\nspec = 'x'\n",
             "priorities",
