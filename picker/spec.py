@@ -19,8 +19,8 @@ from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
 
+from picker import limits, units
 from picker import series as series_mod
-from picker import units
 from picker.errors import SpecError
 from picker.production_spec import check_part as _check_production_keys
 from picker.production_spec import parse_part_keys as _parse_production_keys
@@ -70,6 +70,8 @@ class FrequencySpec(_Strict):
         f = _q(v, "Hz")
         if not f > 0:
             raise ValueError(f"expected a positive frequency such as '250 kHz'; got {v!r}")
+        if (why := limits.frequency_problem(f)) is not None:
+            raise ValueError(f"{why}; got {v!r}")
         return f
 
     @field_validator("window", mode="before")
@@ -180,6 +182,8 @@ class PartSpec(_Strict):
                     raise _KeyedError(key, exc.message) from None
                 if not d[key] > 0:
                     raise _KeyedError(key, f"expected a positive value; got {data[key]!r}")
+                if (why := limits.value_problem(d[key], unit)) is not None:
+                    raise _KeyedError(key, f"{why}; got {data[key]!r}")
         if d.get("values") is not None:
             raw = d["values"]
             if not isinstance(raw, list) or not raw:
@@ -192,6 +196,8 @@ class PartSpec(_Strict):
                     raise _KeyedError(f"values[{i}]", exc.message) from None
                 if not x > 0:
                     raise _KeyedError(f"values[{i}]", f"expected a positive value; got {v!r}")
+                if (why := limits.value_problem(x, unit)) is not None:
+                    raise _KeyedError(f"values[{i}]", f"{why}; got {v!r}")
                 parsed.append(x)
             d["values"] = tuple(sorted(set(parsed)))
         if d.get("tolerance") is not None:
