@@ -201,12 +201,15 @@ def _nominal_designs(spec: Spec, problem: Problem):
     the ideal frequency back into each candidate's ``f_nominal_hz``.
     """
     params = amplifier_params_of(spec)
-    if params is None:
-        return search(problem, max_designs=spec.search.max_designs), None
-    from picker.loaded import loaded_search
+    try:  # a search too large for its limit is a fault of the spec: name its file
+        if params is None:
+            return search(problem, max_designs=spec.search.max_designs), None
+        from picker.loaded import loaded_search
 
-    ls = loaded_search(problem, params, min_margin=spec.amplifier.min_margin,
-                       max_designs=spec.search.max_designs)  # fmt: skip
+        ls = loaded_search(problem, params, min_margin=spec.amplifier.min_margin,
+                           max_designs=spec.search.max_designs)  # fmt: skip
+    except SpecError as exc:
+        raise exc.located(file=spec.source or None) from None
     return Designs(ls.designs.idx, ls.f_loaded, ls.designs.beta), ls
 
 
