@@ -54,8 +54,7 @@ def value_problem(x: float, unit: str) -> str | None:
     lo, hi = VALUE_RANGE[unit]
     if not (math.isfinite(x) and lo <= x <= hi):
         return (
-            f"expected a value between {format_quantity(lo, unit)} and "
-            f"{format_quantity(hi, unit)}"
+            f"expected a value between {format_quantity(lo, unit)} and {format_quantity(hi, unit)}"
         )
     return None
 
