@@ -204,7 +204,7 @@ def _nominal_designs(spec: Spec, problem: Problem):
     try:  # a search too large for its limit is a fault of the spec: name its file
         if params is None:
             return search(problem, max_designs=spec.search.max_designs), None
-        from picker.loaded import loaded_search
+        from picker.loaded_search import loaded_search
 
         ls = loaded_search(problem, params, min_margin=spec.amplifier.min_margin,
                            max_designs=spec.search.max_designs)  # fmt: skip
@@ -255,7 +255,7 @@ def circuit_extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray)
     params = amplifier_params_of(spec)
     if params is None:
         return [{} for _ in range(len(designs))]
-    from picker.loaded import nominal_figures, worst_margins
+    from picker.loaded_figures import nominal_figures, worst_margins
 
     pb = sim.problem
     vals = designs.values(pb)

@@ -78,7 +78,9 @@ def main(quick: bool = False) -> dict[str, float]:
 def solve_figures(quick: bool = False) -> dict[str, float]:
     """Item 4 of the module docstring; prints and returns the figures."""
     from picker.bench import colpitts_problem
-    from picker.loaded import LoadedModel, loaded_search, nominal_figures, worst_margins
+    from picker.loaded import LoadedModel
+    from picker.loaded_figures import nominal_figures, worst_margins
+    from picker.loaded_search import loaded_search
     from picker.montecarlo import PartVariation, Simulation, count_passing, draw_uniform
     from picker.ranking import monte_carlo_rank
     from picker.search import Designs, Problem, uniform_table

@@ -110,7 +110,7 @@ def explain_loaded_infeasible(spec, problem: Problem, loaded):
     to it by loaded frequency, margin kept, are frequency misses.
     """
     from picker.api import Miss
-    from picker.loaded import loaded_search
+    from picker.loaded_search import loaded_search
 
     params = spec.amplifier.to_params(spec.parts)
     need = spec.amplifier.min_margin

@@ -14,17 +14,9 @@ from numpy.testing import assert_allclose
 from picker import api
 from picker.circuit import AmplifierParams, ideal_params
 from picker.drift import get_material
-from picker.loaded import (
-    SQUEGGING_RATIO,
-    LoadedModel,
-    fit_surrogate,
-    loaded_brute_force,
-    loaded_nominal,
-    loaded_search,
-    nominal_figures,
-    squegging_caution,
-    surrogate_response,
-)
+from picker.loaded import LoadedModel, fit_surrogate, loaded_nominal, surrogate_response
+from picker.loaded_figures import SQUEGGING_RATIO, nominal_figures, squegging_caution
+from picker.loaded_search import loaded_brute_force, loaded_search
 from picker.montecarlo import PartVariation, Simulation, count_passing, draw_uniform
 from picker.search import Designs, Problem, search, uniform_table
 from picker.series import expand
