@@ -28,6 +28,10 @@ from picker.units import format_quantity
 #: Frequencies accepted as input, Hz.
 F_MIN_HZ = 1e-3
 F_MAX_HZ = 1e11
+#: Narrowest frequency window accepted, relative (max / min - 1): 1 ppm. Below
+#: it no part tolerance or frequency counter gives a meaningful answer, and a
+#: window of a few ulp breaks the arithmetic (common practice, no source).
+MIN_WINDOW = 1e-6
 #: Above this the lumped model gets a warning, Hz (common practice, no source).
 LUMPED_MAX_HZ = 300e6
 #: Part values accepted as input, per SI unit.

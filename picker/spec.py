@@ -104,6 +104,13 @@ class FrequencySpec(_Strict):
                 f"target={units.format_quantity(self.target, 'Hz')}, "
                 f"max={units.format_quantity(self.max, 'Hz')}"
             )
+        if not self.f_max / self.f_min - 1 >= limits.MIN_WINDOW:
+            raise ValueError(
+                f"expected a window at least {limits.MIN_WINDOW * 1e6:g} ppm wide (narrower is "
+                "below what any part or instrument resolves); got "
+                f"{units.format_quantity(self.f_min, 'Hz', digits=12)} to "
+                f"{units.format_quantity(self.f_max, 'Hz', digits=12)}"
+            )
         return self
 
     @property
