@@ -128,10 +128,14 @@ def explain_loaded_infeasible(spec, problem: Problem, loaded):
         best = float(loaded.low_margin_m[0])
         misses += rows(loaded.low_margin, loaded.low_margin_f, loaded.low_margin_m,
                        lambda f, m: f"start-up margin {m:.3g} below the minimum {need:g}")  # fmt: skip
+        gain = "raise the loop gain (more bias current or a larger collector load)"
+        if best > 1.0:
+            gain += f" or lower amplifier.min_margin to {math.floor(best * 100) / 100:g}"
+        else:
+            gain += ", or use a better inductor (higher Q): none of them starts at all"
         advice.append(
             f"{loaded.in_window:,} designs run in the window but none starts with a margin of "
-            f"{need:g} (best {best:.3g}): raise the loop gain (more bias current or a larger "
-            f"collector load) or lower amplifier.min_margin to {math.floor(best * 100) / 100:g}"
+            f"{need:g} (best {best:.3g}): {gain}"
         )
     f_lo, f_hi = problem.f_min, problem.f_max
     centre = np.sqrt(f_lo * f_hi)

@@ -339,3 +339,18 @@ def test_worst_margin_is_the_minimum_over_boards():
     _, m = loaded_nominal(pb.topology, vals, pb.parasitics, params)
     assert_allclose([e["startup_margin_worst"] for e in extras], m.min(axis=0), rtol=1e-12)
     assert all(math.isfinite(e["amplitude_v"]) for e in extras)
+
+
+def test_no_design_starts_at_all_advice():
+    # A very lossy inductor (Q = 1.5): designs run in the window but every margin is below 1,
+    # so lowering min_margin cannot help and the advice must not suggest it.
+    spec = api.load_spec(DEMO_SPEC, overrides={"parts": {"L": {"q": 1.5}}})
+    r = api.solve(spec, samples=500)
+    assert r.status == "infeasible"
+    assert r.misses and all("start-up margin" in m.failed for m in r.misses)
+    first = r.advice[0]
+    assert "none of them starts" in first and "min_margin to" not in first
+    e = api.evaluate(spec, r.misses[0].values, samples=500)
+    c = e.candidates[0]
+    # in the window by its loaded frequency, yet no board starts
+    assert c.in_window and c.extra["startup_margin"] < 1.0 and c.yield_.passed == 0
