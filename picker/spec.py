@@ -466,6 +466,13 @@ class Spec(_Strict):
         return get_topology(self.topology)
 
 
+def _toml_key(k: str) -> str:
+    """A key as TOML writes it: bare when it can be, else quoted (so '' shows as "")."""
+    if k and all(c.isascii() and (c.isalnum() or c in "_-") for c in k):
+        return k
+    return '"' + k.replace("\\", "\\\\").replace('"', '\\"') + '"'
+
+
 def _format_error(err: dict, file: str | None) -> SpecError:
     loc = [str(x) for x in err.get("loc", ()) if not str(x).startswith("function-")]
     # pydantic puts the model name in loc for tagged validators; drop internal markers
@@ -473,7 +480,7 @@ def _format_error(err: dict, file: str | None) -> SpecError:
     msg = err.get("msg", "invalid value")
     ctx = err.get("ctx") or {}
     exc = ctx.get("error")
-    key = ".".join("yield" if x == "yield_" else x for x in loc)
+    key = ".".join("yield" if x == "yield_" else _toml_key(x) for x in loc)
     if isinstance(exc, _KeyedError):
         key = f"{key}.{exc.key}" if key else exc.key
         msg = exc.message
