@@ -279,7 +279,8 @@ class LoadedModel:
         """Loaded frequency (Hz, NaN where none) and margin of every board, (samples, c)."""
         if self.method == "full":
             pb = self.problem
-            return loaded_nominal(pb.topology, vals, pb.parasitics, self.params)
+            f, m = loaded_nominal(pb.topology, vals, pb.parasitics, self.params)
+            return f, m
         ln_f, ln_m = self._logs(vals, designs)
         with np.errstate(invalid="ignore"):
             return np.exp(ln_f), np.exp(ln_m)

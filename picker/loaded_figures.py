@@ -36,7 +36,7 @@ def inductor_q(topology: Topology, board: Mapping[str, float], stray: float,
     if params.inductor_q is not None:
         fq = params.q_frequency
         if fq is None:
-            fq = float(topology.frequency(board, stray))
+            fq = float(topology.frequency({k: np.asarray(v) for k, v in board.items()}, stray))
         esr = 2 * math.pi * fq * l_ / params.inductor_q
     else:
         esr = params.inductor_esr
@@ -111,7 +111,7 @@ def nominal_figures(
             "estimate is not reliable there (threshold: common practice)"
         )
     return {
-        "f_ideal_hz": float(topology.frequency(scal, st)),
+        "f_ideal_hz": float(topology.frequency(board, st)[0]),
         "f_loaded_hz": f if math.isfinite(f) else None,
         "startup_margin": m,
         "amplitude_v": float(amp.tank[0]),

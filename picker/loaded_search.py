@@ -206,9 +206,9 @@ def loaded_search(
         idx["C1"], idx["C2"] = i1[pair], i2[pair]
         vals = {p: tabs[p].values[i] for p, i in idx.items()}
         r = _estimated_ratio(problem, params, solved, vals)
-        lo, hi = _solve_interval(
-            replace(problem, f_min=problem.f_min / r, f_max=problem.f_max / r), solved, vals
-        )
+        # per-element windows: _solve_interval's formulas are elementwise
+        scaled = replace(problem, f_min=problem.f_min / r, f_max=problem.f_max / r)  # type: ignore[arg-type]
+        lo, hi = _solve_interval(scaled, solved, vals)
         a = np.searchsorted(sv, lo * (1 - 1e-9), side="left")
         b = np.searchsorted(sv, hi * (1 + 1e-9), side="right")
         b = np.maximum(a, b)
