@@ -205,6 +205,37 @@ def check_spec(spec) -> None:
             "yield.max_samples",
             f"expected max_samples >= samples ({ys.samples}); got {ys.max_samples}",
         )
+    if ys.temperature is not None:
+        _check_drift_size(spec)
+
+
+#: Highest temperature accepted in [yield] temperature, °C (solder reflow peaks
+#: near 260 °C; common practice, no source).
+MAX_TEMPERATURE = 500.0
+
+#: Largest linear drift accepted over the temperature range (relative). A part
+#: that moves more than this is a tempco typed in the wrong unit, and beyond
+#: 100 % the part value would turn negative (common practice, no source).
+MAX_DRIFT = 0.5
+
+
+def _check_drift_size(spec) -> None:
+    from picker.production import material_of
+
+    lo, hi = spec.yield_.temperature
+    span = max(abs(lo - drift.T_REF), abs(hi - drift.T_REF))
+    for pos, part in spec.parts.items():
+        m = material_of(part, True)
+        if m is None or m.kind != "linear":
+            continue
+        worst = (abs(m.tempco) + m.spread) * span
+        if worst > MAX_DRIFT:
+            key = "tempco" if part.tempco is not None else "dielectric"
+            raise _keyed(
+                f"parts.{pos}.{key}",
+                f"this part would drift by {worst:.0%} between {lo:g} °C and {hi:g} °C; "
+                f"expected at most {MAX_DRIFT:.0%} (a tempco is in ppm/°C, e.g. '+250 ppm/°C')",
+            )
 
 
 def parse_temperature_range(v: Any) -> tuple[float, float] | None:
@@ -223,6 +254,11 @@ def parse_temperature_range(v: Any) -> tuple[float, float] | None:
             raise ValueError(exc.message) from None
     if not out[0] <= out[1]:
         raise ValueError(f"expected low <= high; got {v!r}")
+    if out[1] > MAX_TEMPERATURE:
+        raise ValueError(
+            f"expected temperatures up to {MAX_TEMPERATURE:g} °C (no tank part works beyond); "
+            f"got {v!r}"
+        )
     return (out[0], out[1])
 
 
