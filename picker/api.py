@@ -9,7 +9,7 @@ The CLI is a thin client of these functions.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -52,6 +52,21 @@ class PartPick:
     tolerance: float
     part_id: str = ""
     price: float = float("nan")
+    #: A parallel pair: ``value`` is the total, the first part (``value -
+    #: second_value``, ``tolerance``, ``part_id``) the larger one, the second part
+    #: ``second_value`` (0 for a single part), ``second_part_id``, ``second_tolerance``.
+    #: ``price`` is the pair's (both parts).
+    second_value: float = 0.0
+    second_part_id: str = ""
+    second_tolerance: float = float("nan")
+
+    @property
+    def is_pair(self) -> bool:
+        return self.second_value > 0
+
+    @property
+    def first_value(self) -> float:
+        return self.value - self.second_value
 
 
 @dataclass(frozen=True)
@@ -127,12 +142,39 @@ class SolveResult:
 
 
 def part_table(spec: Spec, pos: str) -> ValueTable:
-    """The value table of one position, from its series range or value list."""
+    """The value table of one position: its series range, value list or stock parts.
+
+    A stock position holds the stock list's parts of its kind within ``min`` /
+    ``max`` (tolerance at most ``tolerance``, its ``dielectric``, rated at least
+    ``voltage_rating``), with their ids, on-hand quantities and unit prices at
+    the ``[cost] build_quantity`` break. A series or list position takes its
+    ``price`` key (NaN without). With ``parallel = true`` the table holds every
+    single part and every pair (:func:`picker.pairs.pair_table`).
+    """
     part = spec.parts[pos]
-    if part.series is not None:
-        vals = series_mod.expand(part.series, part.min, part.max)
-        return uniform_table(vals, part.tolerance, part.series)
-    return uniform_table(np.asarray(part.values), part.tolerance, "list")
+    if part.stock_list is not None:
+        from picker.spec import _materials_like
+        from picker.stock import stock_table
+
+        st = stock_table(part.stock_list, pos[0], part.min or 0.0, part.max or np.inf,
+                         tolerance_max=part.tolerance, dielectric=_materials_like(part.stock_list, part),
+                         min_voltage=part.voltage_rating, qty=spec.cost.build_quantity)  # fmt: skip
+        table = ValueTable(st["values"], st["tol"], "stock", st["part_id"], st["price"],
+                           st["stock_qty"])  # fmt: skip
+    else:
+        if part.series is not None:
+            vals = series_mod.expand(part.series, part.min, part.max)
+            source = part.series
+        else:
+            vals, source = np.asarray(part.values, dtype=float), "list"
+        price = np.nan if part.price is None else part.price
+        table = ValueTable(vals, np.full(vals.shape, float(part.tolerance)), source,
+                           price=np.full(vals.shape, float(price)))  # fmt: skip
+    if part.parallel:
+        from picker.pairs import pair_table
+
+        table = pair_table(table, part.pair_ratio_max)
+    return table
 
 
 def parasitics_of(spec: Spec) -> Parasitics:
@@ -283,9 +325,81 @@ def production_extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarr
     return production.extras(spec, sim, designs, u)
 
 
+def cost_extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:
+    """Per-candidate ``cost`` {per_board, build, build_quantity, stock_ok, short}
+    (:func:`picker.costing.cost_figures`)."""
+    from picker.costing import cost_figures
+
+    on_hand: dict[str, float] = {}
+    for part in spec.parts.values():
+        if part.stock_list is not None:
+            sl = part.stock_list
+            on_hand.update({str(i): float(q) for i, q in zip(sl.ids, sl.on_hand, strict=True)})
+    return cost_figures(sim.problem, designs, spec.cost.build_quantity, on_hand)
+
+
+def _cost_limited(spec: Spec, problem: Problem, designs: Designs):
+    """Designs within ``[cost] max_per_board``, and the ones dropped (None without a limit)."""
+    limit = spec.cost.max_per_board
+    if limit is None or len(designs) == 0:
+        return designs, None
+    from picker.costing import within_cost
+
+    ok = within_cost(problem, designs, limit)
+    return designs.take(np.flatnonzero(ok)), designs.take(np.flatnonzero(~ok))
+
+
+def _over_cost(spec: Spec, problem: Problem, dropped: Designs) -> tuple[list[Miss], list[str]]:
+    """Nearest misses and advice when every feasible design is over the cost limit."""
+    from picker.costing import design_costs
+
+    cost = design_costs(problem, dropped)
+    key = np.where(np.isfinite(cost), cost, np.inf)
+    sel = np.lexsort((np.arange(len(dropped)), key))[:5]
+    vals = dropped.values(problem)
+    misses = [
+        Miss({p: float(v[r]) for p, v in vals.items()}, float(dropped.f_nominal[r]),
+             float(dropped.beta[r]),
+             f"cost {cost[r]:.4g} per board" if np.isfinite(cost[r]) else "no price")  # fmt: skip
+        for r in sel
+    ]
+    limit = spec.cost.max_per_board
+    if np.isfinite(key[sel[0]]):
+        advice = [f"raise cost.max_per_board from {limit:g} to at least {key[sel[0]]:.4g} "
+                  "(the cheapest design in the window)"]  # fmt: skip
+    else:
+        advice = ["give every position a price (parts.X.price or priced stock parts): "
+                  "a design without a cost cannot meet cost.max_per_board"]  # fmt: skip
+    return misses, advice
+
+
+def _rank(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray, m: int, top: int):
+    """Monte Carlo ranking by yield, or by cost with ``[cost] rank_by = "cost"``.
+
+    Returns (ranked, passed, screen, warnings).
+    """
+    if spec.cost.rank_by != "cost":
+        ranked, passed, screen = monte_carlo_rank(
+            sim, designs, u, m=m, top=top, target=spec.frequency.target
+        )
+        return ranked, passed, screen, []
+    from picker.costing import cost_rank
+
+    ys = spec.yield_
+    floor = spec.cost.min_yield if spec.cost.min_yield is not None else ys.target
+    ranked, passed, screen, met = cost_rank(sim, designs, u, m=m, top=top, floor=floor,
+                                            confidence=ys.confidence, method=ys.ci_method)  # fmt: skip
+    if met:
+        return ranked, passed, screen, []
+    return ranked, passed, screen, [
+        f"no design checked reaches the yield floor {floor:.4g} (confidence interval low end); "
+        "ranked by yield instead of cost"
+    ]
+
+
 def _extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:
     out = [{} for _ in range(len(designs))]
-    for hook in (circuit_extras, production_extras):
+    for hook in (circuit_extras, production_extras, cost_extras):
         for d, more in zip(out, hook(spec, sim, designs, u), strict=True):
             d.update(more)
     return out
@@ -326,6 +440,10 @@ def _candidates(
         for p in problem.topology.positions:
             t = problem.tables[p]
             i = designs.idx[p][r]
+            pair = {}
+            if t.second is not None and t.second[i] > 0:
+                pair = dict(second_value=float(t.second[i]), second_part_id=str(t.second_id[i]),
+                            second_tolerance=float(t.second_tol[i]))  # fmt: skip
             parts[p] = PartPick(
                 p,
                 float(t.values[i]),
@@ -334,6 +452,7 @@ def _candidates(
                 float(t.tol[i]),
                 str(t.part_id[i]),
                 float(t.price[i]),
+                **pair,
             )
         f = float(designs.f_nominal[r])
         beta = float(designs.beta[r])
@@ -437,6 +556,7 @@ def solve(
     m = ys.candidates if candidates is None else candidates
     problem = build_problem(spec)
     designs, loaded = _nominal_designs(spec, problem)
+    designs, over_cost = _cost_limited(spec, problem, designs)
     common = dict(
         spec=spec,
         space_size=problem.space_size(),
@@ -448,7 +568,9 @@ def solve(
     if len(designs) == 0:
         from picker.misses import explain_infeasible, explain_loaded_infeasible
 
-        if loaded is None:
+        if over_cost is not None and len(over_cost):
+            misses, advice = _over_cost(spec, problem, over_cost)
+        elif loaded is None:
             misses, advice = explain_infeasible(spec, problem)
         else:
             misses, advice = explain_loaded_infeasible(spec, problem, loaded)
@@ -457,24 +579,28 @@ def solve(
         )
     sim = simulation_of(spec, problem)
     u = random_inputs(spec, sim, samples, seed)
-    ranked, passed, screen = monte_carlo_rank(
-        sim, designs, u, m=m, top=top, target=spec.frequency.target
-    )
+    ranked, passed, screen, notes = _rank(spec, sim, designs, u, m, top)
     best = designs.take(ranked[:top])
     order, passed, u, converged = _refined(spec, sim, best, u, passed[:top], seed, progress)
     best, screen = best.take(order), screen[:top][order]
+    if spec.cost.rank_by == "cost" and not notes:
+        from picker.costing import cost_order
+
+        order = cost_order(problem, best, passed)
+        best, screen, passed = best.take(order), screen[order], passed[order]
     samples = common["samples"] = u.shape[0]
     cands = _candidates(
         spec, problem, best, passed, screen, samples, seed, _extras(spec, sim, best, u)
     )
     cands = _loaded_view(spec, cands)
-    return SolveResult(
+    res = SolveResult(
         status="ok",
         candidates=cands,
         screened=len(ranked),
         **common,
         **_production_fields(spec, sim, best, u, converged, plot_data),
     )
+    return replace(res, warnings=[*res.warnings, *notes]) if notes else res
 
 
 def evaluate(

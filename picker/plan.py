@@ -108,6 +108,7 @@ class PlanSpec(BaseModel):
     candidates: int = Field(200, ge=1, le=10_000)
     time_limit: float = Field(10.0, gt=0, le=3600)
     match_stock: bool = True
+    stock_only: bool = False
     channels: dict[str, ChannelSpec]
 
     @field_validator("min_yield", mode="before")
@@ -138,6 +139,8 @@ class PlanSpec(BaseModel):
     def _channels(self) -> PlanSpec:
         if not self.channels:
             raise ValueError("expected at least one [channels.NAME] table")
+        if self.stock_only and self.stock is None:
+            raise ValueError("stock_only = true needs stock = 'list.csv'")
         for name, ch in self.channels.items():
             if ch.spec is None and self.base is None:
                 raise ValueError(f"channel {name!r} gives a target but the plan has no base spec")
@@ -161,6 +164,7 @@ class Plan:
         for name, ch in self.spec.channels.items():
             path = self.resolve(ch.spec if ch.spec is not None else self.spec.base)  # type: ignore[arg-type]
             over: dict[str, Any] = _nested(ch.set)
+            self._plan_paths(over, path)
             if ch.target is not None:
                 freq = dict(over.get("frequency", {}))
                 freq["target"] = ch.target
@@ -170,6 +174,36 @@ class Plan:
             over.setdefault("title", f"{self.spec.title or self.path.stem}: {name}")
             out.append((name, path, over))
         return out
+
+    def _plan_paths(self, over: dict, spec_path: Path) -> None:
+        """Make the overrides' ``parts.X.stock`` / ``lot`` paths relative to the plan file
+        (absolute), and with ``stock_only`` fill every position from the plan's stock list
+        (the spec's series is dropped; its min, max, tolerance, dielectric and
+        voltage_rating become the stock filters)."""
+        parts = over.get("parts")
+        if isinstance(parts, dict):
+            for table in parts.values():
+                if not isinstance(table, dict):
+                    continue
+                for key in ("stock", "lot"):
+                    if isinstance(table.get(key), str):
+                        table[key] = str(self.resolve(table[key]).resolve())
+        if not self.spec.stock_only:
+            return
+        from picker.topology import get_topology
+
+        try:
+            topo = tomllib.loads(spec_path.read_text(encoding="utf-8")).get("topology", "")
+            positions = get_topology(str(over.get("topology", topo))).positions
+        except (OSError, ValueError, SpecError):
+            return  # the spec's own load reports the fault
+        stock = str(self.resolve(self.spec.stock).resolve())  # type: ignore[arg-type]
+        parts = over.setdefault("parts", {})
+        for pos in positions:
+            table = parts.setdefault(pos, {})
+            table.setdefault("stock", stock)
+            for key in ("series", "values", "price", "prices"):
+                table[key] = None
 
     def inputs(self) -> list[Path]:
         """Every file the plan reads (never to be written over)."""
@@ -248,15 +282,25 @@ class PlanRun:
     result: PlanResult
 
 
+def _position_parts(pp) -> list[tuple[str, float, float]]:
+    """(part id or "", value, tolerance) of each part at one chosen position (two for a pair)."""
+    if getattr(pp, "is_pair", False):
+        return [
+            (pp.part_id, pp.first_value, pp.tolerance),
+            (pp.second_part_id, pp.second_value, pp.second_tolerance),
+        ]
+    return [(pp.part_id, pp.value, pp.tolerance)]
+
+
 def _position_ids(pp, kind: str, matcher) -> tuple[str, ...]:
-    """Part ids of one chosen position: a stock id, two for a pair, or a generic id."""
-    pid = getattr(pp, "part_id", "")
-    if isinstance(pid, tuple | list):
-        return tuple(str(x) for x in pid)
-    if pid:
-        return (str(pid),)
-    gid = generic_part_id(kind, pp.value, pp.tolerance)
-    return (matcher(kind, pp.value, pp.tolerance, gid),)
+    """Part ids of one chosen position: stock ids (two for a pair) or generic ids."""
+    out = []
+    for pid, value, tol in _position_parts(pp):
+        if pid:
+            out.append(str(pid))
+        else:
+            out.append(matcher(kind, value, tol, generic_part_id(kind, value, tol)))
+    return tuple(out)
 
 
 class _StockMatcher:
@@ -356,9 +400,9 @@ def run_plan(plan: Plan, *, time_limit: float | None = None, workers: int = 2) -
             for pos in positions:
                 pp = c.parts[pos]
                 ids = _position_ids(pp, pos[0], matcher)
-                for g in ids:
+                for g, (_, value, tol) in zip(ids, _position_parts(pp), strict=True):
                     if g not in generic:
-                        generic[g] = (pos[0], float(pp.value), float(pp.tolerance))
+                        generic[g] = (pos[0], float(value), float(tol))
                 row.append(ids)
             parts.append(tuple(row))
         cc = ChannelCandidates(

@@ -27,12 +27,22 @@ def _num(x: float) -> float | None:
     return float(x) if math.isfinite(x) else None
 
 
+def part_text(pp) -> str:
+    """A position's value as shown: "4.7 nF", or "4.7 nF ∥ 1 nF" for a parallel pair."""
+    if pp.is_pair:
+        return (
+            f"{format_quantity(pp.first_value, pp.unit)} ∥ "
+            f"{format_quantity(pp.second_value, pp.unit)}"
+        )
+    return format_quantity(pp.value, pp.unit)
+
+
 def candidate_dict(c: Candidate) -> dict:
     parts = {}
     for p, pp in c.parts.items():
         parts[p] = {
             "value": pp.value,
-            "display": format_quantity(pp.value, pp.unit),
+            "display": part_text(pp),
             "series": pp.source,
             "tolerance": pp.tolerance,
         }
@@ -40,6 +50,13 @@ def candidate_dict(c: Candidate) -> dict:
             parts[p]["part_id"] = pp.part_id
         if math.isfinite(pp.price):
             parts[p]["price"] = pp.price
+        if pp.is_pair:  # value is the total; the two parts, larger first
+            parts[p]["pair"] = [
+                {"value": pp.first_value, "part_id": pp.part_id or None,
+                 "tolerance": pp.tolerance},
+                {"value": pp.second_value, "part_id": pp.second_part_id or None,
+                 "tolerance": pp.second_tolerance},
+            ]  # fmt: skip
     return {
         "rank": c.rank,
         "parts": parts,
@@ -102,6 +119,7 @@ def to_json(r: SolveResult) -> str:
 def to_csv(r: SolveResult) -> str:
     positions = r.spec.topo.positions
     loaded = r.spec.amplifier is not None
+    buyer = _has_buyer_view(r)
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(
@@ -119,13 +137,15 @@ def to_csv(r: SolveResult) -> str:
             "f_worst_low_hz",
             "f_worst_high_hz",
             *(_LOADED_CSV if loaded else ()),
+            *(_buyer_csv_header(positions) if buyer else ()),
         ]
     )
     for c in r.candidates:
         more = [_csv_num(c.extra.get(k)) for k in _LOADED_CSV] if loaded else []
+        more += _buyer_csv_row(c, positions) if buyer else []
         w.writerow(
             [c.rank]
-            + [csv_safe(format_quantity(c.parts[p].value, c.parts[p].unit)) for p in positions]
+            + [csv_safe(part_text(c.parts[p])) for p in positions]
             + [repr(c.parts[p].value) for p in positions]
             + [
                 repr(c.f_nominal_hz),
@@ -141,6 +161,55 @@ def to_csv(r: SolveResult) -> str:
             + more
         )
     return buf.getvalue()
+
+
+def _table_part(pp) -> str:
+    """Table cell of a position: "4.7 nF 5 %", "4.7 nF ∥ 1 nF 5 %" or "... 5 % ∥ 1 nF 2 %"."""
+    tol = format_percent(pp.tolerance)
+    if not pp.is_pair:
+        return f"{format_quantity(pp.value, pp.unit)} {tol}"
+    a = format_quantity(pp.first_value, pp.unit)
+    b = format_quantity(pp.second_value, pp.unit)
+    tol2 = format_percent(pp.second_tolerance)
+    return f"{a} ∥ {b} {tol}" if tol2 == tol else f"{a} {tol} ∥ {b} {tol2}"
+
+
+def _cost_cell(c: Candidate) -> str:
+    cost = c.extra.get("cost") or {}
+    x = cost.get("per_board")
+    if x is None:
+        return "?"
+    return f"{x:.4g}" + ("" if cost.get("stock_ok", True) else " short")
+
+
+def _has_buyer_view(r: SolveResult) -> bool:
+    """Part ids or prices to show: a stock position or a priced design."""
+    return any(pp.part_id for c in r.candidates for pp in c.parts.values()) or any(
+        _cost_of(c) is not None for c in r.candidates
+    )
+
+
+def _cost_of(c: Candidate) -> float | None:
+    return (c.extra.get("cost") or {}).get("per_board")
+
+
+def _buyer_csv_header(positions) -> list[str]:
+    return [f"{p}_part_id" for p in positions] + ["cost_per_board", "cost_build", "stock_ok"]
+
+
+def _buyer_csv_row(c: Candidate, positions) -> list[str]:
+    """Part ids ("A+B" for a pair), cost per board, build cost and stock sufficiency."""
+    ids = []
+    for p in positions:
+        pp = c.parts[p]
+        ids.append(csv_safe(pp.part_id + (f"+{pp.second_part_id}" if pp.second_part_id else "")))
+    cost = c.extra.get("cost") or {}
+    ok = cost.get("stock_ok")
+    return ids + [
+        _csv_num(cost.get("per_board")),
+        _csv_num(cost.get("build")),
+        "" if ok is None else str(bool(ok)).lower(),
+    ]
 
 
 #: CSV columns added when the spec has an [amplifier] section (circuit-aware model).
@@ -241,20 +310,20 @@ def print_table(r: SolveResult, console: Console) -> None:
         t.add_column("margin (worst)", justify="right")
     t.add_column(f"yield ({s.yield_.confidence:.0%} CI)", justify="right")
     t.add_column("worst-case span", justify="right")
+    priced = any(_cost_of(c) is not None for c in r.candidates)
+    if priced:
+        t.add_column("cost/board", justify="right")
     for c in r.candidates:
         t.add_row(
             str(c.rank),
-            *(
-                f"{format_quantity(c.parts[p].value, c.parts[p].unit)} "
-                f"{format_percent(c.parts[p].tolerance)}"
-                for p in s.topo.positions
-            ),
+            *(_table_part(c.parts[p]) for p in s.topo.positions),
             *(_loaded_freqs(c) if loaded else (format_quantity(c.f_nominal_hz, "Hz", digits=6),)),
             f"{c.error * 100:+.3f} %",
             f"{c.feedback_fraction:.3f}" + ("" if c.feedback_ok else " !"),
             *((_margins(c),) if loaded else ()),
             f"{c.yield_.estimate:.1%} ({c.yield_.ci_low:.1%}..{c.yield_.ci_high:.1%})",
             _span(c, f.target),
+            *((_cost_cell(c),) if priced else ()),
         )
     for col in t.columns:
         col.no_wrap = True

@@ -190,10 +190,14 @@ def corner_span(problem: Problem, designs: Designs) -> tuple[np.ndarray, np.ndar
 
     Each part is set to nominal·(1 ± t) in all 2^k combinations (the
     worst-case method; the extremes of a monotone function lie at corners).
+    A parallel pair a + b is monotone in each of its parts, so its corners are
+    a + b ± (a·ta + b·tb) (:func:`picker.pairs.effective_tolerance`).
     """
+    from picker.pairs import effective_tolerance
+
     topo = problem.topology
     vals = designs.values(problem)
-    tols = {p: problem.tables[p].tol[designs.idx[p]] for p in topo.positions}
+    tols = {p: effective_tolerance(problem.tables[p], designs.idx[p]) for p in topo.positions}
     lo = np.full(len(designs), np.inf)
     hi = np.full(len(designs), -np.inf)
     k = len(topo.positions)

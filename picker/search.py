@@ -50,6 +50,8 @@ class ValueTable:
         the entry is a single part); ``values`` is then the pair's total and
         ``values - second`` the first part.
     second_tol : (n,) float or None, relative tolerance of the second part.
+    second_id : (n,) object or None, stock part id of the second part ("" for a
+        series value or a single part); set with ``second``.
     """
 
     values: np.ndarray
@@ -60,9 +62,12 @@ class ValueTable:
     stock_qty: np.ndarray | None = None
     second: np.ndarray | None = None
     second_tol: np.ndarray | None = None
+    second_id: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         n = len(self.values)
+        if self.second is not None and self.second_id is None:
+            object.__setattr__(self, "second_id", np.full(n, "", dtype=object))
         if self.part_id is None:
             object.__setattr__(self, "part_id", np.full(n, "", dtype=object))
         if self.price is None:

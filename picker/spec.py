@@ -167,6 +167,14 @@ class PartSpec(_Strict):
     grade: float | None = None
     lot: str | None = None
     prices: tuple[tuple[float | str, float], ...] | None = None
+    # Buyer's view (README "Stock lists, parallel pairs and cost"): the position's
+    # parts from a stock-list CSV (path relative to the spec file), two parts in
+    # parallel, and the largest ratio between the two parts of a pair.
+    stock: str | None = None
+    parallel: bool = False
+    pair_ratio_max: float = 10.0
+    # Filled in by spec_from_dict from the ``stock`` file (a picker.stock.StockList).
+    stock_list: Any = Field(None, exclude=True, repr=False)
     # Filled in by Spec from the position name before validation.
     unit: Literal["F", "H"] = Field("F", exclude=True)
     # Filled in by spec_from_dict from the ``lot`` file (relative deviations).
@@ -247,14 +255,23 @@ class PartSpec(_Strict):
                 d["series"] = series_mod.canonical_name(d["series"])
             except SpecError as exc:
                 raise _KeyedError("series", exc.message) from None
+        _parse_buyer_keys(d)
         return _parse_production_keys(d, unit)
 
     @model_validator(mode="after")
     def _complete(self) -> PartSpec:
+        if self.stock is not None:
+            _check_stock_part(self)
+            _check_production_keys(self)
+            return self
         if self.series is None and self.values is None:
-            raise ValueError("expected a series (e.g. series = 'E12') or a list of values")
+            raise ValueError(
+                "expected a series (e.g. series = 'E12'), a list of values or a stock list"
+            )
         if self.series is not None and self.values is not None:
             raise ValueError("give either series or values, not both")
+        if self.parallel and self.unit != "F":
+            raise _KeyedError("parallel", "parallel pairs are for capacitors only")
         if self.series is not None:
             if self.min is None or self.max is None:
                 missing = "min" if self.min is None else "max"
@@ -272,6 +289,44 @@ class PartSpec(_Strict):
             object.__setattr__(self, "tolerance", series_mod.default_tolerance(self.series))
         _check_production_keys(self)
         return self
+
+
+def _parse_buyer_keys(d: dict) -> None:
+    """Parse ``stock``, ``parallel`` and ``pair_ratio_max`` of one part table in place."""
+    if "stock_list" in d:
+        raise _KeyedError("stock_list", "unknown key (a typo?); a stock list is stock = 'file.csv'")
+    if d.get("stock") is not None and not (isinstance(d["stock"], str) and d["stock"].strip()):
+        raise _KeyedError("stock", f"expected the path of a stock-list CSV; got {d['stock']!r}")
+    if "parallel" in d and not isinstance(d["parallel"], bool):
+        raise _KeyedError("parallel", f"expected true or false; got {d['parallel']!r}")
+    if d.get("pair_ratio_max") is not None:
+        r = d["pair_ratio_max"]
+        if isinstance(r, bool) or not isinstance(r, int | float) or not (1 <= r < math.inf):
+            raise _KeyedError(
+                "pair_ratio_max", f"expected a ratio of at least 1 such as 10; got {r!r}"
+            )
+        if not d.get("parallel"):
+            raise _KeyedError("pair_ratio_max", "pair_ratio_max needs parallel = true")
+
+
+def _check_stock_part(part: PartSpec) -> None:
+    """Cross-key checks of a position filled from a stock list."""
+    for key in ("series", "values"):
+        if getattr(part, key) is not None:
+            raise _KeyedError(key, f"give either {key} or stock, not both")
+    for key in ("price", "prices", "lot"):
+        if getattr(part, key) is not None:
+            why = "prices come from the stock list" if key != "lot" else "a lot is one value"
+            raise _KeyedError(key, f"{key} does not go with stock ({why})")
+    if part.parallel and part.unit != "F":
+        raise _KeyedError("parallel", "parallel pairs are for capacitors only")
+    if part.min is not None and part.max is not None and part.min > part.max:
+        raise ValueError(
+            f"expected min <= max; got min={units.format_quantity(part.min, part.unit)}, "
+            f"max={units.format_quantity(part.max, part.unit)}"
+        )
+    if part.grade is not None and part.tolerance is None:
+        raise _KeyedError("grade", "a graded stock position needs tolerance (the outer class)")
 
 
 class _KeyedError(ValueError):
@@ -376,6 +431,48 @@ class YieldSpec(_Strict):
         return v
 
 
+class CostSpec(_Strict):
+    """Buyer's view: the build quantity, a cost limit per board and the ranking objective.
+
+    ``rank_by = "cost"`` lists the cheapest designs whose yield confidence
+    interval lies at or above ``min_yield`` (default ``[yield] target``), the
+    cheapest first.
+    """
+
+    build_quantity: int = Field(1, ge=1, le=100_000_000)
+    max_per_board: float | None = None
+    rank_by: Literal["yield", "cost"] = "yield"
+    min_yield: float | None = None
+
+    @field_validator("build_quantity", mode="before")
+    @classmethod
+    def _whole(cls, v: Any) -> int:
+        if isinstance(v, bool) or not isinstance(v, int):
+            raise ValueError(f"expected a whole number of boards such as 1000; got {v!r}")
+        return v
+
+    @field_validator("max_per_board", mode="before")
+    @classmethod
+    def _money(cls, v: Any) -> float | None:
+        if v is None:
+            return None
+        if isinstance(v, bool) or not isinstance(v, int | float) or not (0 < v < math.inf):
+            raise ValueError(f"expected a cost per board above 0 such as 0.25; got {v!r}")
+        return float(v)
+
+    @field_validator("min_yield", mode="before")
+    @classmethod
+    def _share(cls, v: Any) -> float | None:
+        from picker.production_spec import parse_share
+
+        return parse_share(v, "a yield such as '95 %'")
+
+    @field_validator("rank_by", mode="before")
+    @classmethod
+    def _word(cls, v: Any) -> Any:
+        return v.strip().lower() if isinstance(v, str) else v
+
+
 class ReportSpec(_Strict):
     top: int = Field(10, ge=1, le=10_000)
 
@@ -398,6 +495,7 @@ class Spec(_Strict):
     yield_: YieldSpec = Field(YieldSpec(), alias="yield")
     report: ReportSpec = ReportSpec()
     search: SearchSpec = SearchSpec()
+    cost: CostSpec = CostSpec()
     amplifier: _AmplifierField = None
     source: str = Field("", exclude=True)
 
@@ -526,7 +624,73 @@ def spec_from_dict(data: dict, *, file: str | None = None) -> Spec:
             raise exc.located(file=file) from None
     from picker.production_spec import load_lots
 
+    spec = _load_stock_lists(spec, file)
     return load_lots(spec, file).model_copy(update={"source": file or ""})
+
+
+def _load_stock_lists(spec: Spec, file: str | None) -> Spec:
+    """Read every part's ``stock`` file (relative to the spec file; each path once).
+
+    Also checks that each stock position keeps at least one part after its
+    filters, and that ``[cost] rank_by = "cost"`` has a yield threshold.
+    """
+    c = spec.cost
+    if c.rank_by == "cost" and c.min_yield is None and spec.yield_.target is None:
+        raise SpecError(
+            'rank_by = "cost" needs a yield floor: give cost.min_yield or yield.target',
+            file=file,
+            key="cost.rank_by",
+        )
+    if not any(p.stock is not None for p in spec.parts.values()):
+        return spec
+    from picker.stock import load_stock, stock_table
+
+    base = Path(file).parent if file else Path.cwd()
+    cache: dict[Path, Any] = {}
+    parts = dict(spec.parts)
+    for pos, part in spec.parts.items():
+        if part.stock is None:
+            continue
+        path = Path(part.stock)
+        path = (path if path.is_absolute() else base / path).resolve()
+        if path not in cache:
+            try:
+                cache[path] = load_stock(path)
+            except SpecError as exc:
+                raise SpecError(
+                    f"{exc.message} (stock list of parts.{pos})",
+                    file=exc.file or str(path),
+                    key=exc.key,
+                ) from None
+        stock = cache[path]
+        t = stock_table(stock, pos[0], part.min or 0.0, part.max or math.inf,
+                        tolerance_max=part.tolerance, dielectric=_materials_like(stock, part),
+                        min_voltage=part.voltage_rating, qty=c.build_quantity)  # fmt: skip
+        if len(t["values"]) == 0:
+            raise SpecError(
+                f"the stock list {part.stock!r} holds no {pos[0]} part within this position's "
+                "min, max, tolerance, dielectric and voltage_rating",
+                file=file,
+                key=f"parts.{pos}.stock",
+            )
+        parts[pos] = part.model_copy(update={"stock_list": stock})
+    return spec.model_copy(update={"parts": parts})
+
+
+def _materials_like(stock, part: PartSpec) -> list[str] | None:
+    """The stock list's dielectric/core texts that name the position's material."""
+    if part.dielectric is None:
+        return None
+    from picker import drift
+
+    out = []
+    for text in {str(m) for m in stock.material}:
+        try:
+            if text and drift.get_material(text).name == part.dielectric:
+                out.append(text)
+        except SpecError:
+            continue
+    return out
 
 
 def load_spec(path: str | Path, overrides: dict | None = None) -> Spec:
