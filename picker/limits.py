@@ -36,6 +36,9 @@ MIN_WINDOW = 1e-6
 LUMPED_MAX_HZ = 300e6
 #: Part values accepted as input, per SI unit.
 VALUE_RANGE = {"F": (1e-18, 1e3), "H": (1e-12, 1e3)}
+#: Feedback fractions beta = C1/C2 accepted: the amplifier needs a gain of at
+#: least 1/beta, and no single stage gives 1000 at the tank (common practice, no source).
+BETA_RANGE = (1e-3, 1e3)
 #: Outer combinations a search may visit (the Clapp benchmark space visits
 #: about 1e8 in 1.5 s, so this is about a minute on the 2-core benchmark machine).
 MAX_OUTER = 4_000_000_000

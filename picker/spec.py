@@ -135,6 +135,11 @@ class FeedbackSpec(_Strict):
             raise ValueError(f"expected a number (a ratio C1/C2 such as 0.25); got {v!r}")
         if not (math.isfinite(v) and v > 0):
             raise ValueError(f"expected a positive finite ratio; got {v!r}")
+        if not limits.BETA_RANGE[0] <= v <= limits.BETA_RANGE[1]:
+            raise ValueError(
+                f"expected a ratio C1/C2 between {limits.BETA_RANGE[0]:g} and "
+                f"{limits.BETA_RANGE[1]:g} (a loop gain of at most 1000); got {v!r}"
+            )
         return float(v)
 
     @model_validator(mode="after")
