@@ -388,7 +388,8 @@ def _rank(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray, m: int, 
     ys = spec.yield_
     floor = spec.cost.min_yield if spec.cost.min_yield is not None else ys.target
     ranked, passed, screen, met = cost_rank(sim, designs, u, m=m, top=top, floor=floor,
-                                            confidence=ys.confidence, method=ys.ci_method)  # fmt: skip
+                                            confidence=ys.confidence, method=ys.ci_method,
+                                            target=spec.frequency.target)  # fmt: skip
     if met:
         return ranked, passed, screen, []
     return ranked, passed, screen, [

@@ -33,7 +33,7 @@ import math
 import numpy as np
 
 from picker.montecarlo import Simulation, binomial_interval, count_passing
-from picker.ranking import TOP_UP_CAP
+from picker.ranking import TOP_UP_CAP, monte_carlo_rank
 from picker.screen import screen_yield
 from picker.search import Designs, Problem
 
@@ -115,6 +115,7 @@ def cost_rank(
     floor: float,
     confidence: float,
     method: str,
+    target: float,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, bool]:
     """The cheapest ``top`` designs whose yield interval lies at or above ``floor``.
 
@@ -125,6 +126,7 @@ def cost_rank(
     top : designs wanted.
     floor : yield floor on the interval's lower end.
     confidence, method : of the binomial interval.
+    target : target frequency (the yield ranking's tie-break, for the fall-back).
 
     Returns
     -------
@@ -132,7 +134,8 @@ def cost_rank(
     passed : (k,) int, passing boards of each, same order.
     screen : (k,) float, screen yield of each, same order.
     met : bool, False when no checked design reaches the floor (then ``ranked``
-        holds the checked designs by yield; the caller warns).
+        is the yield ranking of :func:`picker.ranking.monte_carlo_rank`; the
+        caller warns).
     """
     n_boards = u.shape[0]
     n = len(designs)
@@ -152,6 +155,23 @@ def cost_rank(
         idx = idx[ci_low[idx] >= floor]
         return idx[np.lexsort((np.arange(len(idx)), -passed[idx], key[idx]))]
 
+    def check(batch: np.ndarray) -> float:
+        """Monte Carlo ``batch``; returns the screen's largest seen error + 4 SE."""
+        passed[batch] = count_passing(sim, designs.take(batch), u)
+        for b in batch:
+            k = int(passed[b])
+            if k not in lows:
+                lows[k] = binomial_interval(k, n_boards, confidence, method)[0]
+            ci_low[b] = lows[k]
+        chk = np.flatnonzero(passed >= 0)
+        y = passed[chk] / n_boards
+        se = np.sqrt(np.maximum(y * (1 - y), 1.0 / n_boards) / n_boards)
+        return max(delta, float(np.max(np.abs(screen[chk] - y) + 4 * se)))
+
+    # calibrate the screen on the best m designs by screen yield (they are likely
+    # entries anyway), then walk the designs in cost order
+    best = np.lexsort((np.arange(n), -np.round(screen, 12)))[: min(m, cap)]
+    delta = check(best)
     while True:
         q = qualified()
         # designs not yet checked that could still make the list: cheaper than the
@@ -163,27 +183,13 @@ def cost_rank(
         room = cap - int((passed >= 0).sum())
         if len(todo) == 0 or room <= 0:
             break
-        batch = todo[: min(m, room)]
-        passed[batch] = count_passing(sim, designs.take(batch), u)
-        for b in batch:
-            k = int(passed[b])
-            if k not in lows:
-                lows[k] = binomial_interval(k, n_boards, confidence, method)[0]
-            ci_low[b] = lows[k]
-        chk = np.flatnonzero(passed >= 0)
-        y = passed[chk] / n_boards
-        se = np.sqrt(np.maximum(y * (1 - y), 1.0 / n_boards) / n_boards)
-        delta = max(delta, float(np.max(np.abs(screen[chk] - y) + 4 * se)))
+        delta = check(todo[: min(m, room)])
     q = qualified()
     if len(q):
         q = q[:top]
         return q, passed[q], screen[q], True
-    chk = np.flatnonzero(passed >= 0)
-    from picker.ranking import rank_order
-
-    target = math.sqrt(sim.problem.f_min * sim.problem.f_max)
-    ranked = chk[rank_order(passed[chk], designs.f_nominal[chk], target)][:top]
-    return ranked, passed[ranked], screen[ranked], False
+    ranked, got, scr = monte_carlo_rank(sim, designs, u, m=m, top=top, target=target)
+    return ranked, got, scr, False
 
 
 def cost_order(problem: Problem, designs: Designs, passed: np.ndarray) -> np.ndarray:
