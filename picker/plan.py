@@ -68,6 +68,13 @@ def _fraction(v: Any) -> float:
     return x
 
 
+def _path_text(v: Any) -> Any:
+    """A file path must be non-blank text (a blank one would name the plan's folder)."""
+    if v is not None and not (isinstance(v, str) and v.strip()):
+        raise ValueError(f"expected the path of a file, relative to the plan; got {v!r}")
+    return v
+
+
 class ChannelSpec(BaseModel):
     """One channel of a plan: a spec of its own, or a target on top of the base."""
 
@@ -84,6 +91,11 @@ class ChannelSpec(BaseModel):
     @classmethod
     def _yield(cls, v: Any) -> float | None:
         return None if v is None else _fraction(v)
+
+    @field_validator("spec", mode="before")
+    @classmethod
+    def _spec_path(cls, v: Any) -> Any:
+        return _path_text(v)
 
     @model_validator(mode="after")
     def _one_source(self) -> ChannelSpec:
@@ -115,6 +127,11 @@ class PlanSpec(BaseModel):
     @classmethod
     def _yield(cls, v: Any) -> float:
         return _fraction(v)
+
+    @field_validator("base", "stock", mode="before")
+    @classmethod
+    def _path(cls, v: Any) -> Any:
+        return _path_text(v)
 
     @field_validator("build_quantity", "candidates", mode="before")
     @classmethod
