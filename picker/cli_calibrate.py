@@ -106,16 +106,19 @@ def run_calibrate(
     inputs = [measurements] + ([spec] if spec is not None else [])
     if fragment is not None and plot is not None and fragment.resolve() == plot.resolve():
         raise SpecError("--fragment and --plot name the same file", file=str(plot), key="--plot")
-    result = calibrate.fit_parasitics(
-        topo,
-        m.values,
-        m.frequency,
-        sigma=m.sigma(),
-        fit=names,
-        fixed=fixed,
-        loss=loss,
-        unit_ids=m.unit_ids,
-    )
+    try:
+        result = calibrate.fit_parasitics(
+            topo,
+            m.values,
+            m.frequency,
+            sigma=m.sigma(),
+            fit=names,
+            fixed=fixed,
+            loss=loss,
+            unit_ids=m.unit_ids,
+        )
+    except SpecError as exc:  # too few or unusable units: a fault of the measurements file
+        raise exc.located(file=str(measurements)) from None
     extra += _marked_note(m)
 
     # write files first, so a refused write leaves no half-finished report behind

@@ -35,6 +35,8 @@ def test_corpus_case(case, tmp_path, monkeypatch):
     args = [a.format(file=file, demo=DEMO, tmp=tmp_path) for a in case["args"]]
     code, out, err = run_cli(args)
     names = (file,) if file and case.get("names_file", True) else ()
-    text = assert_clean_exit(code, out, err, files=names, allowed=(case["exit"],))
+    text = assert_clean_exit(
+        code, out, err, files=names, allowed=(case["exit"],), location=case.get("location", True)
+    )
     for want in case.get("stderr", []):
         assert text is not None and want in text, (want, text)
