@@ -373,6 +373,20 @@ def _catalogue(ids: set[str], stock, generic: dict[str, tuple[str, float, float]
     return out
 
 
+def _check_files(plan: Plan) -> None:
+    """Every file the plan names exists (else the error names the plan and the key)."""
+    ps = plan.spec
+    named = [("base", ps.base), ("stock", ps.stock)]
+    named += [(f"channels.{n}.spec", ch.spec) for n, ch in ps.channels.items()]
+    for key, rel in named:
+        if rel is not None and not plan.resolve(rel).is_file():
+            raise SpecError(
+                f"expected an existing file; no such file {str(plan.resolve(rel))!r}",
+                file=str(plan.path),
+                key=key,
+            )
+
+
 def run_plan(plan: Plan, *, time_limit: float | None = None, workers: int = 2) -> PlanRun:
     """Solve every channel, then consolidate them with CP-SAT.
 
@@ -386,6 +400,7 @@ def run_plan(plan: Plan, *, time_limit: float | None = None, workers: int = 2) -
     from picker import api
 
     ps = plan.spec
+    _check_files(plan)
     stock = None
     if ps.stock:
         from picker.stock import load_stock
