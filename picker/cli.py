@@ -90,13 +90,19 @@ def _emit(result, fmt: str, output: Path | None, force: bool, inputs) -> None:
 def solve(
     spec: Path = typer.Argument(..., help="Spec file (TOML)."),
     format: str = typer.Option("table", "--format", "-f", help="table, json or csv."),
-    top: int | None = typer.Option(None, "--top", min=1, help="How many designs to show."),
-    samples: int | None = typer.Option(
-        None, "--samples", min=100, help="Monte Carlo boards per design."
+    top: int | None = typer.Option(
+        None, "--top", min=1, max=10_000, help="How many designs to show."
     ),
-    seed: int | None = typer.Option(None, "--seed", min=0, help="Random seed."),
+    samples: int | None = typer.Option(
+        None, "--samples", min=100, max=10_000_000, help="Monte Carlo boards per design."
+    ),
+    seed: int | None = typer.Option(None, "--seed", min=0, max=2**63 - 1, help="Random seed."),
     candidates: int | None = typer.Option(
-        None, "--candidates", min=1, help="Designs the Monte Carlo pass checks (after the screen)."
+        None,
+        "--candidates",
+        min=1,
+        max=100_000,
+        help="Designs the Monte Carlo pass checks (after the screen).",
     ),
     output: Path | None = typer.Option(None, "--output", "-o", help="Write to this file instead."),
     force: bool = typer.Option(False, "--force", help="Replace an existing output file."),
@@ -134,8 +140,8 @@ def evaluate(
         [], "--tol", help="Override a tolerance, e.g. --tol L=5% (repeat)."
     ),
     format: str = typer.Option("table", "--format", "-f", help="table, json or csv."),
-    samples: int | None = typer.Option(None, "--samples", min=100),
-    seed: int | None = typer.Option(None, "--seed", min=0),
+    samples: int | None = typer.Option(None, "--samples", min=100, max=10_000_000),
+    seed: int | None = typer.Option(None, "--seed", min=0, max=2**63 - 1),
     output: Path | None = typer.Option(None, "--output", "-o"),
     force: bool = typer.Option(False, "--force"),
     precision: str | None = typer.Option(
