@@ -108,6 +108,8 @@ def simulate(
     from picker.units import format_quantity
 
     fmt = _check_format(fmt, ("table", "json"))
+    if not 0 < timeout <= 3600:  # also refuses nan
+        raise SpecError(f"expected seconds between 0 and 3600; got {timeout}", key="--timeout")
     spec, topo, values, board, stray, params = _design(spec_path, set_)
     model = _figures(topo, board, stray, params)
     try:
