@@ -38,6 +38,7 @@ def _check_format(fmt: str, allowed=FORMATS) -> str:
 
 def parse_assignments(items: list[str], key: str, unit_of) -> dict[str, float]:
     """Parse ``POS=VALUE`` pairs (``--set C1=4.7n``) into SI floats."""
+    from picker import limits
     from picker.units import parse_quantity
 
     out: dict[str, float] = {}
@@ -54,6 +55,8 @@ def parse_assignments(items: list[str], key: str, unit_of) -> dict[str, float]:
         out[pos] = parse_quantity(text.strip(), unit, key=f"{key} {pos}")
         if not out[pos] > 0:
             raise SpecError(f"expected a positive value; got {text!r}", key=f"{key} {pos}")
+        if (why := limits.value_problem(out[pos], unit)) is not None:
+            raise SpecError(f"{why}; got {text!r}", key=f"{key} {pos}")
     return out
 
 
