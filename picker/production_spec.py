@@ -273,7 +273,9 @@ def parse_share(v: Any, what: str, *, upper_open: bool = False, top: float = 1.0
     ok = 0 < x < top if upper_open else 0 < x <= top
     if not ok:
         bound = f"below {top:.0%}" if upper_open else f"at most {top:.0%}"
-        raise ValueError(f"expected {what} above 0 and {bound}; got {v!r}")
+        raise ValueError(
+            f"expected {what} above 0 and {bound}; got {v!r}" + units.percent_hint(v, x)
+        )
     return x
 
 

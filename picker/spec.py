@@ -86,6 +86,7 @@ class FrequencySpec(_Strict):
         if not 0 < w < 1:
             raise ValueError(
                 f"expected a window narrower than the target itself, e.g. '±3 %'; got {v!r}"
+                + units.percent_hint(v, w)
             )
         return w
 

@@ -578,8 +578,28 @@ def parse_tolerance(text: str | float | int, *, key: str | None = None) -> float
     except SpecError as exc:
         raise _fail(f"expected {what}, got {_quote(text)}", key) from exc
     if not 0.0 < t < 1.0:
-        raise _fail(f"expected {what}, greater than 0 and below 100 %, got {_quote(text)}", key)
+        raise _fail(
+            f"expected {what}, greater than 0 and below 100 %, got {_quote(text)}"
+            + percent_hint(text, t),
+            key,
+        )
     return t
+
+
+def percent_hint(text: object, fraction: float) -> str:
+    """A hint for a bare number that was meant in per cent ("5" for 5 %), else "".
+
+    The rule is that a bare number is a fraction (0.05 = 5 %); a bare number
+    from 1 to 100 where a fraction below 1 is expected was almost surely
+    meant in per cent, so the message suggests the text with "%".
+    """
+    bare = (isinstance(text, numbers.Real) and not isinstance(text, bool | np.bool_)) or (
+        isinstance(text, str) and re.fullmatch(rf"\s*{_NUMBER}\s*", text) is not None
+    )
+    if bare and 1.0 <= fraction < 100.0:
+        shown = text.strip() if isinstance(text, str) else f"{text:g}"
+        return f" (a bare number is a fraction, 0.05 = 5 %; did you mean '{shown} %'?)"
+    return ""
 
 
 # --------------------------------------------------------------------------- formatting
