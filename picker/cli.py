@@ -55,7 +55,7 @@ def parse_assignments(items: list[str], key: str, unit_of) -> dict[str, float]:
         out[pos] = parse_quantity(text.strip(), unit, key=f"{key} {pos}")
         if not out[pos] > 0:
             raise SpecError(f"expected a positive value; got {text!r}", key=f"{key} {pos}")
-        if (why := limits.value_problem(out[pos], unit)) is not None:
+        if (why := limits.value_problem(out[pos], unit, text.strip())) is not None:
             raise SpecError(f"{why}; got {text!r}", key=f"{key} {pos}")
     return out
 

@@ -11,9 +11,11 @@ Rules (README, "Limits"):
   lumped formula is not to be trusted (common practice, no source; the figure
   is a round number at which ordinary SMD parts' self-resonance, from a few
   hundred MHz to a few GHz, comes within a decade of the tank frequency).
-* **Part values** outside 1 aF .. 1 kF (capacitors) and 1 pH .. 1 kH
-  (inductors) are refused for the same reason (no such part exists; a value
-  beyond them is a unit typed wrongly).
+* **Part values** outside 1 aF .. 10 F (capacitors) and 1 pH .. 100 H
+  (inductors) are refused for the same reason: no tank part exists there, and
+  a value beyond them is a unit typed wrongly. The upper ends also catch the
+  three-digit capacitor code, which picker does not decode: a bare "103"
+  would be 103 F under the bare-number rule, and is refused with a hint.
 * **Search size**: :func:`search_cost` says, before a search runs, how many
   outer combinations it visits; above :data:`MAX_OUTER` it is refused with
   advice on how to narrow it, instead of running for hours.
@@ -22,6 +24,7 @@ Rules (README, "Limits"):
 from __future__ import annotations
 
 import math
+import re
 
 from picker.units import format_quantity
 
@@ -35,7 +38,7 @@ MIN_WINDOW = 1e-6
 #: Above this the lumped model gets a warning, Hz (common practice, no source).
 LUMPED_MAX_HZ = 300e6
 #: Part values accepted as input, per SI unit.
-VALUE_RANGE = {"F": (1e-18, 1e3), "H": (1e-12, 1e3)}
+VALUE_RANGE = {"F": (1e-18, 10.0), "H": (1e-12, 100.0)}
 #: Feedback fractions beta = C1/C2 accepted: the amplifier needs a gain of at
 #: least 1/beta, and no single stage gives 1000 at the tank (common practice, no source).
 BETA_RANGE = (1e-3, 1e3)
@@ -54,15 +57,25 @@ def frequency_problem(f: float) -> str | None:
     return None
 
 
-def value_problem(x: float, unit: str) -> str | None:
-    """Why ``x`` (F or H) is not a part value picker accepts, or None."""
+def value_problem(x: float, unit: str, text: object = None) -> str | None:
+    """Why ``x`` (F or H) is not a part value picker accepts, or None.
+
+    ``text`` is what was written; a bare whole number of three digits gets a
+    note that the three-digit capacitor code is not decoded.
+    """
     if unit not in VALUE_RANGE:
         return None
     lo, hi = VALUE_RANGE[unit]
     if not (math.isfinite(x) and lo <= x <= hi):
-        return (
+        why = (
             f"expected a value between {format_quantity(lo, unit)} and {format_quantity(hi, unit)}"
         )
+        if isinstance(text, int | str) and re.fullmatch(r"\s*\d{3}\s*", str(text)):
+            why += (
+                " (a bare number is in base units; the three-digit code is not read: "
+                "write '10 nF' for 103)"
+            )
+        return why
     return None
 
 

@@ -203,7 +203,7 @@ class PartSpec(_Strict):
                     raise _KeyedError(key, exc.message) from None
                 if not d[key] > 0:
                     raise _KeyedError(key, f"expected a positive value; got {data[key]!r}")
-                if (why := limits.value_problem(d[key], unit)) is not None:
+                if (why := limits.value_problem(d[key], unit, data[key])) is not None:
                     raise _KeyedError(key, f"{why}; got {data[key]!r}")
         if d.get("values") is not None:
             raw = d["values"]
@@ -217,7 +217,7 @@ class PartSpec(_Strict):
                     raise _KeyedError(f"values[{i}]", exc.message) from None
                 if not x > 0:
                     raise _KeyedError(f"values[{i}]", f"expected a positive value; got {v!r}")
-                if (why := limits.value_problem(x, unit)) is not None:
+                if (why := limits.value_problem(x, unit, v)) is not None:
                     raise _KeyedError(f"values[{i}]", f"{why}; got {v!r}")
                 parsed.append(x)
             d["values"] = tuple(sorted(set(parsed)))

@@ -150,3 +150,25 @@ def test_forms_that_could_be_misread_are_refused(value, why):
 def test_no_base_spec_was_changed_by_the_cases():
     assert COLPITTS == cheap(load_demo("probe_exciter.toml"))
     assert copy.deepcopy(AMPLIFIED) == cheap(load_demo("colpitts_bjt.toml"))
+
+
+def test_the_three_digit_capacitor_code_is_refused_not_read_as_farads():
+    # IEC 60062: "103" marks 10 000 pF; picker does not decode it, and 103 F
+    # (the bare-number reading) lies beyond the accepted range, so it is refused.
+    exc = _error(COLPITTS, ("parts", "C1", "max"), "103")
+    assert exc.key == "parts.C1.max"
+    assert "three-digit code is not read" in exc.message and "10 nF" in exc.message
+
+
+@pytest.mark.parametrize(
+    ("path", "value"),
+    [
+        (("parts", "C1", "max"), "11 F"),
+        (("parts", "C1", "min"), 1e-19),
+        (("parts", "L", "max"), "101 H"),
+        (("parts", "L", "min"), "0.5 pH"),
+    ],
+)
+def test_part_values_beyond_any_tank_part_are_refused(path, value):
+    exc = _error(COLPITTS, path, value)
+    assert exc.key == ".".join(path) and "expected a value between" in exc.message
