@@ -34,6 +34,7 @@ from pathlib import Path
 import numpy as np
 
 from picker.errors import SpecError
+from picker.limits import value_problem
 from picker.topology import Topology
 from picker.units import parse_quantity
 
@@ -111,6 +112,8 @@ def _positive(text: str, unit: str, file: str, key: str) -> float:
         raise SpecError(exc.message, file=file, key=key) from None
     if not x > 0:
         raise SpecError(f"expected a value > 0; got {text!r}", file=file, key=key)
+    if (why := value_problem(x, unit, text)) is not None:
+        raise SpecError(f"{why}; got {text!r}", file=file, key=key)
     return x
 
 

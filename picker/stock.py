@@ -486,6 +486,13 @@ def _build(by_index, lines, cols, src) -> StockList:
     )
     if (i := _first_bad(~(value > 0))) is not None:
         raise c_val.error(i, "a positive finite value")
+    from picker.limits import VALUE_RANGE, value_problem
+
+    lo = np.where(kind == "C", VALUE_RANGE["F"][0], VALUE_RANGE["H"][0])
+    hi = np.where(kind == "C", VALUE_RANGE["F"][1], VALUE_RANGE["H"][1])
+    if (i := _first_bad((value < lo) | (value > hi))) is not None:
+        why = value_problem(float(value[i]), KIND_UNIT[str(kind[i])], c_val.cells[i])
+        raise c_val._at(i, f"{why}; got {c_val.cells[i]!r}")
 
     c_tol = col("tolerance")
     # every tolerance text goes through units.parse_tolerance (few distinct texts)

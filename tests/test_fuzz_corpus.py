@@ -35,6 +35,8 @@ def test_corpus_case(case, tmp_path, monkeypatch):
     args = [a.format(file=file, demo=DEMO, tmp=tmp_path) for a in case["args"]]
     code, out, err = run_cli(args)
     names = (file,) if file and case.get("names_file", True) else ()
+    if "names" in case:  # the fault is in another file the case reads
+        names = (str(CORPUS / case["names"]),)
     text = assert_clean_exit(
         code, out, err, files=names, allowed=(case["exit"],), location=case.get("location", True)
     )
