@@ -19,10 +19,16 @@ Model (CP-SAT, Google OR-Tools)
 -------------------------------
 * one boolean ``x[c, j]`` per channel and candidate, exactly one true per channel;
   candidates below the channel's minimum yield are dropped before the model is
-  built (a channel with none left makes the plan infeasible, and says so);
+  built (a channel with none left makes the plan infeasible, and says so), and
+  so are the candidates the exact reductions of :mod:`picker.reductions` rule
+  out (stock-impossible, dominated, and, with parts first, those outside every
+  fewest-parts cover, whose size the branch and bound of
+  :mod:`picker.partcover` proves and adds as ``Σ u[p] ≥ k``);
 * ``n[p] = Σ x[c, j] · count[c, j, p]``: part p's quantity per board (a
   parallel pair of the same id counts twice); a part-used boolean ``u[p]``
-  with ``u[p] ⇔ n[p] ≥ 1``;
+  with ``u[p] ⇔ n[p] ≥ 1``, linked per channel in aggregate,
+  ``Σ_{j ∋ p} x[c, j] ≤ u[p]`` (valid since one j per channel is chosen, and
+  tighter in the linear relaxation than one link per candidate);
 * stock: ``n[p] ≤ floor(on_hand[p] / build_qty)``;
 * cost: ``cost[p] = table_p[n[p]]`` through an element constraint, the table
   holding the integer-scaled extended price for each possible quantity (so price
@@ -41,10 +47,9 @@ deterministically: channel by channel, the lowest candidate index (the input
 order, normally best yield first) among the optimal plans, so the same input
 gives the same plan whatever the number of solver workers.
 
-Infeasible plans are explained by relaxing constraint groups: first the
-minimum-yield filter per channel, then each channel's stock on its own, then
-the stock constraints together, shrunk with CP-SAT's assumption core and a
-deletion filter to a minimal set of parts whose stock cannot all be honoured.
+Status "optimal" means every priority's value is proven: by CP-SAT, or for
+"parts" by the cover search's bound meeting CP-SAT's plan. Infeasible plans
+name their binding constraint (:mod:`picker.binding`).
 """
 
 from __future__ import annotations
@@ -65,6 +70,7 @@ COST_SCALE = 10_000
 #: Integer yield-loss units per unit of yield.
 YIELD_SCALE = 1_000_000
 PRIORITIES = ("parts", "cost", "yield")
+REDUCTIONS = ("stock", "dominated", "covers")
 
 
 @dataclass(frozen=True)
@@ -202,6 +208,10 @@ class PlanResult:
     binding: str | None = None
     solve_seconds: float = 0.0
     eligible: dict[str, int] = field(default_factory=dict)
+    #: How the model was reduced before CP-SAT (:mod:`picker.reductions`):
+    #: candidate counts after each step, ``parts_lower_bound`` proven by the
+    #: cover search, ``optimal_covers``, ``reduce_seconds``.
+    reductions: dict = field(default_factory=dict)
 
     @property
     def gap(self) -> dict[str, float]:
@@ -416,6 +426,7 @@ def consolidate(
     priorities: Sequence[str] = PRIORITIES,
     time_limit: float = 10.0,
     workers: int = 2,
+    reduce: Sequence[str] = REDUCTIONS,
 ) -> PlanResult:
     """Pick one candidate per channel, lexicographically optimal in ``priorities``.
 
@@ -437,6 +448,10 @@ def consolidate(
         Seconds for all solver stages together.
     workers:
         CP-SAT worker threads.
+    reduce:
+        Exact model reductions to apply (:mod:`picker.reductions`): any of
+        "stock", "dominated", "covers" (all by default; fewer only to measure
+        what each one buys).
 
     Returns
     -------
@@ -497,7 +512,12 @@ def consolidate(
                 f"{ch.min_yield:.4g} (best {best:.4g} of {len(ch)} candidates)"
             )
     counts = {k: len(v) for k, v in eligible.items()}
-    model = _Model(channels, eligible, catalogue, build_qty, stock_on_hand)
+    from picker.binding import explain_infeasible
+    from picker.reductions import reduced_model
+
+    model, lower, info = reduced_model(
+        channels, eligible, catalogue, build_qty, stock_on_hand, priorities, time_limit, reduce
+    )
 
     objective: dict[str, float] = {}
     bounds: dict[str, float] = {}
@@ -514,9 +534,17 @@ def consolidate(
         if choice is not None:
             budget = max(budget, 0.5)
         solver, st = model.solve(model.objectives[prio], time_limit=budget, workers=workers)
+        if st == cp_model.INFEASIBLE and choice is None and info.get("cover_filter"):
+            # no fewest-parts cover fits the stock: more parts are needed; drop the filter
+            model = _Model(channels, info["undominated_candidates"], catalogue, build_qty,
+                           stock_on_hand)  # fmt: skip
+            lower += 1
+            model.m.add(model.objectives["parts"] >= lower)
+            info = {**info, "cover_filter": False, "parts_lower_bound": lower}
+            solver, st = model.solve(model.objectives[prio], time_limit=budget, workers=workers)
         if st == cp_model.INFEASIBLE and choice is None:
             return infeasible(
-                _explain(channels, eligible, catalogue, build_qty, stock_on_hand), counts
+                explain_infeasible(channels, eligible, catalogue, build_qty, stock_on_hand), counts
             )
         if st not in (cp_model.OPTIMAL, cp_model.FEASIBLE):
             if choice is None:
@@ -542,7 +570,12 @@ def consolidate(
         else:
             model.m.add(obj <= value)
             bound = math.ceil(solver.best_objective_bound - 1e-9)
-            status = "feasible"
+            if prio == "parts" and lower is not None:
+                bound = max(bound, lower)  # proven by the cover search
+            if bound < value:
+                status = "feasible"
+            else:  # the cover search's bound closes the gap
+                model.m.add(obj == value)
         objective[prio] = _unscale(prio, value)
         bounds[prio] = _unscale(prio, bound)
         choice = model.choice(solver)
@@ -554,7 +587,7 @@ def consolidate(
             left = time_limit - (time.perf_counter() - t0)
             if left <= 0:
                 break
-            idx = sum(j * model.x[c, j] for j in eligible[ch.name])
+            idx = sum(j * model.x[c, j] for j in model.eligible[ch.name])
             solver, st = model.solve(idx, time_limit=left, workers=workers)
             if st != cp_model.OPTIMAL:
                 break
@@ -584,6 +617,7 @@ def consolidate(
         None,
         time.perf_counter() - t0,
         counts,
+        {k: v for k, v in info.items() if k != "undominated_candidates"},
     )
 
 
@@ -607,54 +641,3 @@ def _unscale(prio: str, value: int) -> float:
     if prio == "cost":
         return value / COST_SCALE
     return value / YIELD_SCALE
-
-
-def _explain(channels, eligible, catalogue, build_qty, stock_on_hand) -> str:
-    """Name the constraint that makes the plan infeasible (the min-yield filter passed)."""
-    # 2. a channel that cannot be built from stock even on its own
-    for ch in channels:
-        fits = False
-        worst: tuple[int, str, int, float] | None = None
-        for j in eligible[ch.name]:
-            over = []
-            for p, k in ch.counts(j).items():
-                on_hand = _on_hand(p, catalogue, stock_on_hand)
-                if k * build_qty > on_hand:
-                    over.append((p, k, on_hand))
-            if not over:
-                fits = True
-                break
-            if worst is None:
-                p, k, on_hand = over[0]
-                worst = (j, p, k, on_hand)
-        if not fits and worst is not None:
-            j, p, k, on_hand = worst
-            return (
-                f"channel {ch.name!r}: every eligible candidate needs more stock than is on hand; "
-                f"candidate {j} needs part {p!r} x{k} per board = {k * build_qty} for "
-                f"{build_qty} boards, on hand {on_hand:g}"
-            )
-    # 3. stock constraints together: assumption core, then a deletion filter
-    model = _Model(channels, eligible, catalogue, build_qty, stock_on_hand, relaxable=True)
-    solver, st = model.solve(
-        None, time_limit=5.0, workers=1, assumptions=list(model.stock_lit.values())
-    )
-    lit_part = {lit.index: p for p, lit in model.stock_lit.items()}
-    core = [lit_part[i] for i in solver.sufficient_assumptions_for_infeasibility() if i in lit_part]
-    if not core:
-        core = list(model.stock_lit)
-    needed = list(core)
-    for p in list(core):
-        trial = [model.stock_lit[q] for q in needed if q != p]
-        _, st = model.solve(None, time_limit=5.0, workers=1, assumptions=trial)
-        if st == cp_model.INFEASIBLE:
-            needed.remove(p)
-    parts = ", ".join(
-        f"{p!r} (on hand {_on_hand(p, catalogue, stock_on_hand):g}, "
-        f"at most {model.limit[p]} per board)"
-        for p in needed
-    )
-    return (
-        f"stock on hand cannot cover {build_qty} boards: the channels together need more of "
-        f"{parts} than is on hand"
-    )

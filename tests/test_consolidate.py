@@ -310,3 +310,37 @@ def test_generic_part_id_and_evaluate():
     # 2 per board x 5 boards = 10 units at the 10-unit break: 10 x 0.01
     assert s.bom[0].qty_build == 10 and s.cost == pytest.approx(0.10)
     assert s.yield_loss == pytest.approx(0.3)
+
+
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(inst=instances(), priorities=orders)
+def test_reductions_change_nothing(inst, priorities):
+    # the exact reductions (stock-impossible, dominated, outside every fewest-parts
+    # cover) must give the very plan the unreduced model gives, tie-break included
+    channels, catalogue = _to_model(inst)
+    kw = dict(build_qty=inst["build"], catalogue=catalogue, priorities=priorities,
+              time_limit=20.0, workers=1)  # fmt: skip
+    full = consolidate(channels, reduce=(), **kw)
+    fast = consolidate(channels, **kw)
+    assert fast.status == full.status
+    if full.plan is None:
+        return
+    assert fast.plan.choice == full.plan.choice
+    assert fast.objective == full.objective
+    assert fast.reductions["undominated"] <= full.reductions["undominated"]
+
+
+def test_fewest_parts_cover_short_of_stock_falls_back():
+    # sharing S gives one part, but S's stock covers one channel only: the proven
+    # cover size (1) cannot be built, and the plan needs 2 parts
+    channels, cat = _simple(
+        [[[("S",)], [("A",)]], [[("S",)], [("B",)]]], [[0.9, 0.8], [0.9, 0.7]], on_hand={"S": 100}
+    )
+    res = consolidate(channels, build_qty=100, catalogue=cat)
+    assert res.status == "optimal"
+    assert res.plan.distinct_parts == 2 and res.bounds["parts"] == 2
+    assert res.reductions["parts_lower_bound"] == 2 and not res.reductions["cover_filter"]
+    # cost next: S alone 100 x 0.01 + A or B 100 x 0.01 are equal; yield decides:
+    # ch0 on S (0.9) and ch1 on B (0.7), or ch0 on A (0.8) and ch1 on S (0.9)
+    assert res.plan.choice == {"ch0": 1, "ch1": 0}
+    assert res.plan.stock_ok
