@@ -376,26 +376,26 @@ def _over_cost(spec: Spec, problem: Problem, dropped: Designs) -> tuple[list[Mis
 def _rank(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray, m: int, top: int):
     """Monte Carlo ranking by yield, or by cost with ``[cost] rank_by = "cost"``.
 
-    Returns (ranked, passed, screen, warnings).
+    Returns (ranked, passed, screen, warnings, designs Monte Carlo checked).
     """
     if spec.cost.rank_by != "cost":
         ranked, passed, screen = monte_carlo_rank(
             sim, designs, u, m=m, top=top, target=spec.frequency.target
         )
-        return ranked, passed, screen, []
+        return ranked, passed, screen, [], len(ranked)
     from picker.costing import cost_rank
 
     ys = spec.yield_
     floor = spec.cost.min_yield if spec.cost.min_yield is not None else ys.target
-    ranked, passed, screen, met = cost_rank(sim, designs, u, m=m, top=top, floor=floor,
-                                            confidence=ys.confidence, method=ys.ci_method,
-                                            target=spec.frequency.target)  # fmt: skip
+    ranked, passed, screen, met, checked = cost_rank(sim, designs, u, m=m, top=top, floor=floor,
+                                                     confidence=ys.confidence, method=ys.ci_method,
+                                                     target=spec.frequency.target)  # fmt: skip
     if met:
-        return ranked, passed, screen, []
+        return ranked, passed, screen, [], checked
     return ranked, passed, screen, [
         f"no design checked reaches the yield floor {floor:.4g} (confidence interval low end); "
         "ranked by yield instead of cost"
-    ]
+    ], checked
 
 
 def _extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:
@@ -580,7 +580,7 @@ def solve(
         )
     sim = simulation_of(spec, problem)
     u = random_inputs(spec, sim, samples, seed)
-    ranked, passed, screen, notes = _rank(spec, sim, designs, u, m, top)
+    ranked, passed, screen, notes, screened = _rank(spec, sim, designs, u, m, top)
     best = designs.take(ranked[:top])
     order, passed, u, converged = _refined(spec, sim, best, u, passed[:top], seed, progress)
     best, screen = best.take(order), screen[:top][order]
@@ -597,7 +597,7 @@ def solve(
     res = SolveResult(
         status="ok",
         candidates=cands,
-        screened=len(ranked),
+        screened=screened,
         **common,
         **_production_fields(spec, sim, best, u, converged, plot_data),
     )

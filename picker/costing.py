@@ -116,7 +116,7 @@ def cost_rank(
     confidence: float,
     method: str,
     target: float,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, bool]:
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, bool, int]:
     """The cheapest ``top`` designs whose yield interval lies at or above ``floor``.
 
     Parameters
@@ -136,6 +136,7 @@ def cost_rank(
     met : bool, False when no checked design reaches the floor (then ``ranked``
         is the yield ranking of :func:`picker.ranking.monte_carlo_rank`; the
         caller warns).
+    checked : int, designs Monte Carlo checked.
     """
     n_boards = u.shape[0]
     n = len(designs)
@@ -185,11 +186,12 @@ def cost_rank(
             break
         delta = check(todo[: min(m, room)])
     q = qualified()
+    checked = int((passed >= 0).sum())
     if len(q):
         q = q[:top]
-        return q, passed[q], screen[q], True
+        return q, passed[q], screen[q], True, checked
     ranked, got, scr = monte_carlo_rank(sim, designs, u, m=m, top=top, target=target)
-    return ranked, got, scr, False
+    return ranked, got, scr, False, len(ranked)
 
 
 def cost_order(problem: Problem, designs: Designs, passed: np.ndarray) -> np.ndarray:
