@@ -204,7 +204,11 @@ def series_cmd(
     hi = parse_quantity(max, unit, key="--max")
     if not 0 < lo <= hi:
         raise SpecError(f"expected 0 < min <= max; got {min!r} and {max!r}", key="--min")
-    vals = series_mod.expand(name, lo, hi)
+    try:
+        series_mod.canonical_name(name)
+    except SpecError as exc:
+        raise exc.located(key="NAME") from None
+    vals = series_mod.expand(name, lo, hi, key="--min/--max")
     if fmt == "json":
         sys.stdout.write(
             json.dumps(
