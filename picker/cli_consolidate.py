@@ -9,8 +9,9 @@ JSON output keys: ``status``, ``distinct_parts``, ``objective``, ``bounds``,
 ``saving``, ``baseline``, ``channels`` (each with ``name``, ``candidate`` (0-based
 index in the channel's ranking), ``parts.<pos>.value`` (SI),
 ``parts.<pos>.part_id``, ``yield.estimate``, ``yield.ci_low``, ``yield.ci_high``),
-``bom``, ``binding``. No timing is printed in JSON, so the same plan gives the
-same bytes.
+``bom``, ``binding``, ``reductions`` (candidate counts after each exact
+reduction, the proven fewest-parts bound; :mod:`picker.reductions`). No timing
+is printed in JSON, so the same plan gives the same bytes.
 """
 
 from __future__ import annotations
@@ -64,6 +65,8 @@ def plan_dict(run) -> dict:
         "saving": {k: v if k == "parts" else _num(round(v, 9)) for k, v in r.saving.items()},
         "baseline": _summary(r.baseline),
         "eligible_candidates": dict(r.eligible),
+        # no timings in JSON (same plan, same bytes)
+        "reductions": {k: v for k, v in r.reductions.items() if not k.endswith("_seconds")},
         "channels": [],
         "bom": bom_rows(r.plan.bom) if r.plan else [],
     }

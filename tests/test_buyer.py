@@ -477,3 +477,36 @@ def test_build_problem_uses_pair_tables(tmp_path):
     n = len(_options(base, True, 10.0))
     assert len(pb.tables["C1"]) == n
     assert np.all(np.diff(pb.tables["C1"].values) >= 0)
+
+
+def test_stock_only_plan_consolidates_on_stock_ids(tmp_path):
+    import shutil
+    from pathlib import Path
+
+    from picker.cli_consolidate import plan_dict
+    from picker.plan import load_plan, run_plan
+
+    demo = Path(__file__).resolve().parent.parent / "demo_specs"
+    for f in ("plan_sensor_base.toml", "stock_demo.csv"):
+        shutil.copy(demo / f, tmp_path / f)
+    plan = tmp_path / "plan.toml"
+    plan.write_text(
+        'base = "plan_sensor_base.toml"\nstock = "stock_demo.csv"\nstock_only = true\n'
+        "build_quantity = 100\ncandidates = 30\n"
+        '[channels.a]\ntarget = "280 kHz"\n[channels.a.set]\nyield.samples = 1000\n'
+        '[channels.b]\ntarget = "390 kHz"\n[channels.b.set]\nyield.samples = 1000\n',
+        encoding="utf-8",
+    )
+    run = run_plan(load_plan(plan), time_limit=10.0, workers=1)
+    rows = _stock_rows(tmp_path / "stock_demo.csv")
+    assert run.result.status == "optimal"
+    for ch in run.channels:
+        for cand in ch.result.candidates:
+            assert all(pp.source == "stock" and pp.part_id in rows for pp in cand.parts.values())
+    d = plan_dict(run)
+    assert d["distinct_parts"] == len(d["bom"]) <= d["baseline"]["distinct_parts"]
+    for b in d["bom"]:
+        row = rows[b["part_id"]]
+        assert b["qty_build"] == 100 * b["qty_per_board"] <= int(row["on_hand"])
+        assert b["unit_price"] == pytest.approx(_unit_price(row, b["qty_build"]), abs=1e-12)
+    assert d["reductions"]["parts_lower_bound"] <= d["distinct_parts"]
