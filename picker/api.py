@@ -177,6 +177,40 @@ def part_table(spec: Spec, pos: str) -> ValueTable:
     return table
 
 
+def given_table(spec: Spec, pos: str, value: float, tol: float | None = None) -> ValueTable:
+    """A one-entry table for a given value at ``pos`` (``evaluate``).
+
+    A stock position takes the cheapest stock part of that value within its
+    filters (its id, tolerance, price); ``tol`` overrides the tolerance. A
+    value the stock list does not hold needs ``tol`` or the position's
+    ``tolerance`` key.
+    """
+    part = spec.parts[pos]
+    v = np.array([float(value)])
+    if part.stock_list is not None:
+        single = spec.model_copy(
+            update={"parts": {**spec.parts, pos: part.model_copy(update={"parallel": False})}}
+        )
+        t = part_table(single, pos)
+        hit = np.flatnonzero(np.abs(t.values / value - 1) < 1e-9)
+        if hit.size:
+            i = hit[:1]
+            tt = t.tol[i] if tol is None else np.array([float(tol)])
+            return ValueTable(v, tt, "stock", t.part_id[i], t.price[i], t.stock_qty[i])
+        tol = part.tolerance if tol is None else tol
+        if tol is None:
+            raise SpecError(
+                f"{value!r} is not in the stock list of parts.{pos}; give its tolerance "
+                f"(--tol {pos}=5%)",
+                key="--set",
+            )
+        return uniform_table(v, tol, "given")
+    tol = part.tolerance if tol is None else tol
+    src = part.series if part.series and series_mod.is_member(part.series, value) else "given"
+    price = np.nan if part.price is None else float(part.price)
+    return ValueTable(v, np.array([float(tol)]), src, price=np.array([price]))
+
+
 def parasitics_of(spec: Spec) -> Parasitics:
     p = spec.parasitics
     return Parasitics(p.stray, p.c1_shunt, p.c2_shunt, p.l_scale)
@@ -640,14 +674,7 @@ def evaluate(
             key="--set",
         )
     tolerances = tolerances or {}
-    tables = {}
-    for p in topo.positions:
-        part = spec.parts[p]
-        tol = tolerances.get(p, part.tolerance)
-        src = (
-            part.series if part.series and series_mod.is_member(part.series, values[p]) else "given"
-        )
-        tables[p] = uniform_table(np.array([values[p]]), tol, src)
+    tables = {p: given_table(spec, p, values[p], tolerances.get(p)) for p in topo.positions}
     base = build_problem(spec)
     problem = Problem(
         topo, tables, base.f_min, base.f_max, base.beta_min, base.beta_max, base.parasitics

@@ -510,3 +510,20 @@ def test_stock_only_plan_consolidates_on_stock_ids(tmp_path):
         assert b["qty_build"] == 100 * b["qty_per_board"] <= int(row["on_hand"])
         assert b["unit_price"] == pytest.approx(_unit_price(row, b["qty_build"]), abs=1e-12)
     assert d["reductions"]["parts_lower_bound"] <= d["distinct_parts"]
+
+
+def test_evaluate_a_stock_design(tmp_path):
+    from picker.api import evaluate
+
+    spec = load_spec(_write(tmp_path, STOCK_PARTS, "[cost]\nbuild_quantity = 1000\n"))
+    rows = _stock_rows(tmp_path / "stock.csv")
+    res = evaluate(spec, {"C1": 2.2e-9, "C2": 4.7e-9, "L": 150e-6})
+    c = res.candidates[0]
+    # C1: two C0G 2.2 nF parts (C-C 2 %, C-H 5 %); the cheaper at 1000 is C-C (0.012)
+    assert c.parts["C1"].part_id == "C-C"
+    assert c.parts["C1"].tolerance == pytest.approx(0.02)
+    assert c.parts["L"].part_id == "L-B"
+    want = sum(_unit_price(rows[i], 1000) for i in ("C-C", "C-E", "L-B"))
+    assert c.extra["cost"]["per_board"] == pytest.approx(want, abs=1e-12)
+    with pytest.raises(SpecError, match="not in the stock list"):
+        evaluate(spec, {"C1": 2.7e-9, "C2": 4.7e-9, "L": 150e-6})
