@@ -64,6 +64,16 @@ def _unit_of(pos: str):
     return {"C1": "F", "C2": "F", "C3": "F", "L": "H"}.get(pos)
 
 
+def _check_outputs(output: Path | None, plot: Path | None, force: bool, spec: Path) -> None:
+    """Refuse a bad --output or --plot before the (slow) run, not after it."""
+    from picker.safe_io import check_output
+
+    if output is not None:
+        check_output(output, force=force, inputs=[spec])
+    if plot is not None and plot.exists() and not plot.is_dir():
+        raise SpecError("expected a folder for the plots, got a file", file=str(plot), key="--plot")
+
+
 def _emit(result, fmt: str, output: Path | None, force: bool, inputs) -> None:
     from picker import report
 
@@ -123,6 +133,7 @@ def solve(
 
     fmt = _check_format(format)
     prec, samp = pc.parse_precision(precision), pc.parse_sampling(sampling)
+    _check_outputs(output, plot, force, spec)
     s = api.load_spec(spec)
     with pc.progress_bar(prec or s.yield_.precision) as progress:
         result = api.solve(s, top=top, samples=samples, seed=seed, candidates=candidates,
@@ -162,6 +173,7 @@ def evaluate(
 
     fmt = _check_format(format)
     prec, samp = pc.parse_precision(precision), pc.parse_sampling(sampling)
+    _check_outputs(output, plot, force, spec)
     s = api.load_spec(spec)
     values = parse_assignments(set_, "--set", _unit_of)
     tols = {}

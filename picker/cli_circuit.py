@@ -81,8 +81,9 @@ def netlist(
 ) -> None:
     """Write a SPICE netlist of the whole oscillator (bias network, transient, measurements)."""
     from picker.netlist import write_netlist
-    from picker.safe_io import atomic_write
+    from picker.safe_io import atomic_write, check_output
 
+    check_output(output, force=force, inputs=[spec_path])  # before the solve, not after
     spec, topo, values, board, stray, params = _design(spec_path, set_)
     title = f"{spec.title or spec_path.stem}: " + " ".join(
         f"{p}={values[p]:.6g}" for p in topo.positions

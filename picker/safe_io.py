@@ -29,6 +29,42 @@ def csv_safe(cell: object) -> str:
     return text
 
 
+def check_output(
+    path: str | Path,
+    *,
+    force: bool = False,
+    inputs: Iterable[str | Path] = (),
+    key: str = "--output",
+) -> Path:
+    """Refuse an output path before any work is done (the checks of :func:`atomic_write`).
+
+    Raises SpecError (exit status 2) for a path that is one of ``inputs``, an
+    existing file without ``force``, a directory, a missing folder, or a name
+    the system refuses (too long, no permission). Returns the resolved path.
+    """
+    p = Path(path)
+    try:
+        target = p.resolve()
+        for i in inputs:
+            try:
+                same = Path(i).resolve() == target
+            except OSError:
+                continue
+            if same:
+                raise SpecError("refusing to write over an input file", file=str(p), key=key)
+        if p.is_dir():
+            raise SpecError("expected a file name, got a directory", file=str(p), key=key)
+        if p.exists() and not force:
+            raise SpecError("the file exists; pass --force to replace it", file=str(p), key=key)
+        if not target.parent.is_dir():
+            raise SpecError("the folder does not exist", file=str(p), key=key)
+    except OSError as exc:
+        raise SpecError(
+            f"cannot write here ({exc.strerror or exc})", file=str(p), key=key
+        ) from None
+    return target
+
+
 def atomic_write(
     path: str | Path,
     data: str | bytes,
@@ -40,35 +76,33 @@ def atomic_write(
     """Write ``data`` to ``path`` through a temporary file and a rename.
 
     Refuses (SpecError, exit status 2) to write over any of ``inputs``, and
-    over an existing file unless ``force`` is given.
+    over an existing file unless ``force`` is given (:func:`check_output`).
+    A failure while writing (disk full, permission) is a SpecError too, and
+    leaves neither the temporary file nor a half-written output behind.
     """
     p = Path(path)
-    target = p.resolve()
-    for i in inputs:
-        try:
-            if Path(i).resolve() == target:
-                raise SpecError("refusing to write over an input file", file=str(p), key=key)
-        except OSError:
-            continue
-    if p.exists() and not force:
-        raise SpecError("the file exists; pass --force to replace it", file=str(p), key=key)
-    if p.exists() and p.is_dir():
-        raise SpecError("expected a file name, got a directory", file=str(p), key=key)
-    parent = target.parent
-    if not parent.is_dir():
-        raise SpecError("the folder does not exist", file=str(p), key=key)
+    target = check_output(p, force=force, inputs=inputs, key=key)
     mode = "wb" if isinstance(data, bytes) else "w"
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=parent)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=target.parent)
+    except OSError as exc:
+        raise SpecError(
+            f"cannot write here ({exc.strerror or exc})", file=str(p), key=key
+        ) from None
     try:
         with os.fdopen(
             fd, mode, **({} if mode == "wb" else {"encoding": "utf-8", "newline": ""})
         ) as fh:
             fh.write(data)
         os.replace(tmp, target)
-    except BaseException:
+    except BaseException as exc:
         try:
             os.unlink(tmp)
         except OSError:
             pass
+        if isinstance(exc, OSError):
+            raise SpecError(
+                f"cannot write the file ({exc.strerror or exc})", file=str(p), key=key
+            ) from None
         raise
     return p
