@@ -158,12 +158,17 @@ class _Search:
             raise _Deadline
         piv = min(range(len(lists)), key=lambda i: len(lists[i]))
         rest = lists[:piv] + lists[piv + 1 :]
+        # per other channel: every part its options need, and its smallest need; a child
+        # that adds none of those parts leaves that need as it is (a quick test first)
+        quick = [(_union(lst), min(k for _, k in lst)) for lst in rest]
         for n, k in _minimal(lists[piv]):
             state = s | n
             if state in self.seen:
                 continue
             self.seen.add(state)
             l2 = left - k
+            if any(m > l2 and not n & u for u, m in quick):
+                continue
             new = _filter(rest, n, l2)
             if new is None or (new and l2 == 0):
                 continue
@@ -188,21 +193,30 @@ def _minimal(opts):
     return out
 
 
+def _union(lst) -> int:
+    u = 0
+    for o, _ in lst:
+        u |= o
+    return u
+
+
 def _filter(lists, n: int, left: int):
     """Needs after adding parts ``n``: channels now covered drop out; None if one cannot fit."""
     new = []
     for lst in lists:
         out = []
+        add = out.append
         for o, k in lst:
             y = o & n
-            if y:
-                if y == o:
-                    break  # covered
-                k2 = k - (y.bit_count())
+            if not y:
+                if k <= left:
+                    add((o, k))
+            elif y == o:
+                break  # covered
+            else:
+                k2 = k - y.bit_count()
                 if k2 <= left:
-                    out.append((o ^ y, k2))
-            elif k <= left:
-                out.append((o, k))
+                    add((o ^ y, k2))
         else:
             if not out:
                 return None
