@@ -75,12 +75,19 @@ def cost_figures(
     build_quantity: int,
     on_hand: dict[str, float],
 ) -> list[dict]:
-    """Per design: ``cost`` = {per_board, build, stock_ok, short} (JSON-ready).
+    """Per design: ``cost`` = {per_board, build, build_quantity, parts_per_board (a
+    parallel pair counts two), stock_ok, short} (JSON-ready).
 
     ``on_hand`` maps a stock part id to its quantity on hand (ids missing from
     it are not tracked).
     """
     per_board = design_costs(problem, designs)
+    pairs = np.zeros(len(designs), dtype=int)
+    for p in problem.topology.positions:
+        t = problem.tables[p]
+        if t.second is not None:
+            pairs += t.second[designs.idx[p]] > 0
+    n_parts = len(problem.topology.positions) + pairs
     out = []
     for r in range(len(designs)):
         short = {}
@@ -97,6 +104,7 @@ def cost_figures(
                     "per_board": round(c, 9) if ok else None,
                     "build": round(c * build_quantity, 9) if ok else None,
                     "build_quantity": int(build_quantity),
+                    "parts_per_board": int(n_parts[r]),
                     "stock_ok": not short,
                     "short": short,
                 }

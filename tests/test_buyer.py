@@ -461,6 +461,7 @@ def test_pair_counts_as_two_parts_in_cost_and_plan(tmp_path):
         ids = [pp.part_id, pp.second_part_id, c.parts["C2"].part_id, c.parts["L"].part_id]
         want = sum(_unit_price(rows[i], 100) for i in ids)
         assert c.extra["cost"]["per_board"] == pytest.approx(want, abs=1e-9)
+        assert c.extra["cost"]["parts_per_board"] == 4
     from picker.consolidate import ChannelCandidates
     from picker.plan import _position_ids
 
