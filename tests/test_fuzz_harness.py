@@ -67,16 +67,18 @@ def fuzz_settings(examples: int) -> settings:
 # --------------------------------------------------------------------------- running
 
 
-def run_cli(argv: list[str]) -> tuple[int, str, str]:
+def run_cli(argv: list[str], *, cwd: str | Path | None = None) -> tuple[int, str, str]:
     """Run ``picker`` in-process: (exit status, stdout, stderr).
 
     Exceptions other than SystemExit are not caught: each one is a bug (a
-    traceback the user would see).
+    traceback the user would see). ``cwd`` is the working folder during the
+    run (fuzzed output names land there, not in the checkout).
     """
     from picker.cli import main
 
     out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+    where = contextlib.chdir(cwd) if cwd is not None else contextlib.nullcontext()
+    with where, contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
         try:
             main([str(a) for a in argv])
             code = 0
