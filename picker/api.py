@@ -15,6 +15,7 @@ import numpy as np
 
 from picker import series as series_mod
 from picker.errors import SpecError
+from picker.limits import lumped_warnings
 from picker.montecarlo import (
     PartVariation,
     Simulation,
@@ -24,7 +25,7 @@ from picker.montecarlo import (
 )
 from picker.ranking import monte_carlo_rank
 from picker.screen import corner_span, screen_yield
-from picker.search import Designs, Problem, ValueTable, search, uniform_table
+from picker.search import Designs, Problem, ValueTable, check_size, search, uniform_table
 from picker.spec import Spec, load_spec, position_unit, spec_from_dict
 from picker.topology import Parasitics, board_beta, board_frequency, board_sensitivities
 
@@ -278,12 +279,15 @@ def _nominal_designs(spec: Spec, problem: Problem):
     """
     params = amplifier_params_of(spec)
     try:  # a search too large for its limit is a fault of the spec: name its file
+        lim = spec.search
         if params is None:
-            return search(problem, max_designs=spec.search.max_designs), None
+            return search(problem, max_designs=lim.max_designs,
+                          max_combinations=lim.max_combinations), None  # fmt: skip
         from picker.loaded_search import loaded_search
 
+        check_size(problem, max_designs=None, max_combinations=lim.max_combinations)
         ls = loaded_search(problem, params, min_margin=spec.amplifier.min_margin,
-                           max_designs=spec.search.max_designs)  # fmt: skip
+                           max_designs=lim.max_designs)  # fmt: skip
     except SpecError as exc:
         raise exc.located(file=spec.source or None) from None
     return Designs(ls.designs.idx, ls.f_loaded, ls.designs.beta), ls
@@ -557,7 +561,7 @@ def _production_fields(spec, sim, best, u, converged, plot_data: bool) -> dict:
     from picker import production
 
     return dict(
-        warnings=production.warnings_for(spec),
+        warnings=production.warnings_for(spec) + lumped_warnings(spec.frequency.f_max),
         production=production.summary(spec, sim, u.shape[0], converged),
         plot_data=production.plot_inputs(spec, sim, best, u) if plot_data else None,
     )
@@ -610,8 +614,9 @@ def solve(
         else:
             misses, advice = explain_loaded_infeasible(spec, problem, loaded)
         return SolveResult(
-            status="infeasible", candidates=[], misses=misses, advice=advice, **common
-        )
+            status="infeasible", candidates=[], misses=misses, advice=advice, **common,
+            warnings=lumped_warnings(spec.frequency.f_max),
+        )  # fmt: skip
     sim = simulation_of(spec, problem)
     u = random_inputs(spec, sim, samples, seed)
     ranked, passed, screen, notes, screened = _rank(spec, sim, designs, u, m, top)

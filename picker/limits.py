@@ -88,3 +88,40 @@ def lumped_warnings(f_max: float) -> list[str]:
         "trustworthy (parts' self-resonance, lead and board inductance and layout capacitance "
         "dominate); treat these values as a starting point for an RF layout simulation"
     ]
+
+
+def reach(problem) -> tuple[float, float]:
+    """Lowest and highest nominal frequency any combination of the value tables gives, Hz.
+
+    The tank frequency falls as any capacitor or the inductor grows (Thomson's
+    formula, f = 1/(2π√(L·C_eff)), with C_eff rising in every capacitor), so
+    the extremes are every part at its largest and every part at its smallest
+    value. The feedback window is ignored: it can only narrow the range.
+    """
+    from picker.topology import board_frequency
+
+    tabs = problem.tables
+    lows = {p: tabs[p].values[:1] for p in problem.topology.positions}
+    highs = {p: tabs[p].values[-1:] for p in problem.topology.positions}
+    f_hi = float(board_frequency(problem.topology, lows, problem.parasitics)[0])
+    f_lo = float(board_frequency(problem.topology, highs, problem.parasitics)[0])
+    return f_lo, f_hi
+
+
+def unreachable(problem) -> str | None:
+    """Advice when no combination of the part ranges can reach the window at all, or None."""
+    f_lo, f_hi = reach(problem)
+    names = ", ".join(problem.topology.positions)
+    if f_hi < problem.f_min:
+        return (
+            f"the part ranges cannot reach the window: the highest frequency any combination "
+            f"gives is {format_quantity(f_hi, 'Hz')} (every part at its minimum), below "
+            f"{format_quantity(problem.f_min, 'Hz')}; lower the minimum of {names} (or the stray)"
+        )
+    if f_lo > problem.f_max:
+        return (
+            f"the part ranges cannot reach the window: the lowest frequency any combination "
+            f"gives is {format_quantity(f_lo, 'Hz')} (every part at its maximum), above "
+            f"{format_quantity(problem.f_max, 'Hz')}; raise the maximum of {names}"
+        )
+    return None

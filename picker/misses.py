@@ -36,8 +36,24 @@ def _miss(problem, designs, sel, failed_fn):
     return out
 
 
+def _search_or_none(problem: Problem, max_designs: int = 2_000_000):
+    """A relaxed search, or empty designs when it would be too large to run (no misses)."""
+    from picker.errors import SpecError
+    from picker.search import Designs
+
+    try:
+        return search(problem, max_designs=max_designs)
+    except SpecError:
+        empty = np.zeros(0, dtype=np.int32)
+        return Designs({p: empty for p in problem.topology.positions}, np.zeros(0), np.zeros(0))
+
+
 def explain_infeasible(spec, problem: Problem):
     """Nearest misses (list of Miss) and advice lines for an infeasible spec."""
+    from picker.limits import unreachable
+
+    if (why := unreachable(problem)) is not None:
+        return [], [why]  # no relaxation of the windows can help
     misses = []
     advice = []
     f_lo, f_hi = problem.f_min, problem.f_max
@@ -62,7 +78,7 @@ def explain_infeasible(spec, problem: Problem):
             problem.beta_max,
             problem.parasitics,
         )
-        d = search(relaxed, max_designs=2_000_000)
+        d = _search_or_none(relaxed)
         if len(d):
             dist = np.abs(np.log(d.f_nominal / centre))
             sel = np.lexsort((np.arange(len(d)), dist))[:_MISSES]
@@ -74,7 +90,7 @@ def explain_infeasible(spec, problem: Problem):
             )
             break
     relaxed = Problem(problem.topology, problem.tables, f_lo, f_hi, 1e-12, 1e12, problem.parasitics)
-    d = search(relaxed, max_designs=2_000_000)
+    d = _search_or_none(relaxed)
     if len(d):
         b = d.beta
         dist = np.where(
@@ -110,8 +126,12 @@ def explain_loaded_infeasible(spec, problem: Problem, loaded):
     to it by loaded frequency, margin kept, are frequency misses.
     """
     from picker.api import Miss
+    from picker.errors import SpecError
+    from picker.limits import unreachable
     from picker.loaded_search import loaded_search
 
+    if (why := unreachable(problem)) is not None:
+        return [], [why]  # the ideal tank cannot reach the window: the loaded one neither
     params = spec.amplifier.to_params(spec.parts)
     need = spec.amplifier.min_margin
     misses, advice = [], []
@@ -146,7 +166,10 @@ def explain_loaded_infeasible(spec, problem: Problem, loaded):
         relaxed = Problem(problem.topology, problem.tables, centre * np.exp(-half * k),
                           centre * np.exp(half * k), problem.beta_min, problem.beta_max,
                           problem.parasitics)  # fmt: skip
-        ls = loaded_search(relaxed, params, min_margin=need, max_designs=2_000_000)
+        try:
+            ls = loaded_search(relaxed, params, min_margin=need, max_designs=2_000_000)
+        except SpecError:  # too large to explore: no misses from this relaxation
+            break
         if len(ls.designs):
             dist = np.abs(np.log(ls.f_loaded / centre))
             sel = np.lexsort((np.arange(len(dist)), dist))[:_MISSES]

@@ -267,7 +267,8 @@ def print_table(r: SolveResult, console: Console) -> None:
         f"feedback {s.feedback.min:g}..{s.feedback.max:g}"
     )
     if r.status != "ok":
-        console.print("[bold red]No design meets the spec.[/bold red] Nearest misses:")
+        near = " Nearest misses:" if r.misses else ""
+        console.print(f"[bold red]No design meets the spec.[/bold red]{near}")
         t = Table(show_lines=False)
         for p in s.topo.positions:
             t.add_column(p, justify="right")
@@ -284,7 +285,8 @@ def print_table(r: SolveResult, console: Console) -> None:
                 f"{m.feedback_fraction:.3g}",
                 m.failed,
             )
-        console.print(t)
+        if r.misses:
+            console.print(t)
         console.print("What to relax:")
         for a in r.advice:
             console.print(f"  - {a}")

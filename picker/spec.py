@@ -484,9 +484,10 @@ class ReportSpec(_Strict):
 
 
 class SearchSpec(_Strict):
-    """Limits of the exact search."""
+    """Limits of the exact search (README, "Large spaces")."""
 
     max_designs: int = Field(5_000_000, ge=1)
+    max_combinations: int = Field(1_000_000_000, ge=1)
 
 
 class Spec(_Strict):
