@@ -169,6 +169,10 @@ def screen_yield(sim: Simulation, designs: Designs) -> np.ndarray:
     return y
 
 
+#: Designs screened at a time (bounds the screen's temporaries to a few tens of MB).
+SCREEN_CHUNK = 1 << 18
+
+
 def select_for_montecarlo(
     sim: Simulation, designs: Designs, m: int
 ) -> tuple[np.ndarray, np.ndarray]:
@@ -178,7 +182,13 @@ def select_for_montecarlo(
     the design's position in the index-sorted list (deterministic).
     """
     problem = sim.problem
-    y = screen_yield(sim, designs)
+    n = len(designs)
+    # in chunks: the per-design temporaries stay bounded however many designs there are
+    parts = [
+        screen_yield(sim, designs.take(slice(i, i + SCREEN_CHUNK)))
+        for i in range(0, n, SCREEN_CHUNK)
+    ]
+    y = np.concatenate(parts) if parts else np.zeros(0)
     target = np.sqrt(problem.f_min * problem.f_max)
     err = np.abs(np.log(designs.f_nominal / target))
     order = np.lexsort((np.arange(len(designs)), err, -np.round(y, 12)))

@@ -189,3 +189,19 @@ def test_frequencies_outside_the_lumped_range_are_refused(tmp_path, target):
     code, out, err = run_cli(["solve", str(p)])
     text = assert_clean_exit(code, out, err, files=(p,), allowed=(2,))
     assert "frequency.target: expected a frequency between 1 mHz and 100 GHz" in text
+
+
+def test_the_chunked_screen_gives_the_same_yields_as_one_pass(monkeypatch):
+    # the screen is elementwise per design, so chunking must not change a single bit
+    from picker import screen
+
+    spec = api.spec_from_dict(cheap(load_demo("production_exciter.toml")))
+    problem = api.build_problem(spec)
+    designs = search(problem)
+    sim = api.simulation_of(spec, problem)
+    order_one, y_one = screen.select_for_montecarlo(sim, designs, 50)
+    monkeypatch.setattr(screen, "SCREEN_CHUNK", 7)
+    order_chunked, y_chunked = screen.select_for_montecarlo(sim, designs, 50)
+    assert len(designs) > 7 * 3
+    np.testing.assert_array_equal(y_chunked, y_one)
+    np.testing.assert_array_equal(order_chunked, order_one)
