@@ -221,6 +221,11 @@ def series_cmd(
     except SpecError as exc:
         raise exc.located(key="NAME") from None
     vals = series_mod.expand(name, lo, hi, key="--min/--max")
+    if len(vals) == 0:  # a valid range that holds no value: exit status 1, as for solve
+        raise InfeasibleError(
+            f"no {series_mod.canonical_name(name)} value lies between "
+            f"{format_quantity(lo, unit)} and {format_quantity(hi, unit)}"
+        )
     if fmt == "json":
         sys.stdout.write(
             json.dumps(

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import typer
 
-from picker.errors import SpecError
+from picker.errors import InfeasibleError, SpecError
 
 
 def _design(spec_path: Path, sets: list[str]):
@@ -42,9 +42,9 @@ def _design(spec_path: Path, sets: list[str]):
     else:
         result = api.solve(spec)
         if not result.candidates:
-            raise SpecError(
-                "no design meets the spec, so there is no top design; give the values with --set",
-                file=str(spec_path),
+            raise InfeasibleError(  # a valid spec that nothing meets: exit status 1
+                f"{spec_path}: no design meets the spec, so there is no top design; run "
+                "'picker solve' on it for the nearest misses, or give the values with --set"
             )
         values = dict(result.candidates[0].values)
     params = spec.amplifier.to_params(spec.parts)

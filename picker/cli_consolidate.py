@@ -181,6 +181,14 @@ def run_consolidate(
 
         con = Console()
         _table(run, con if con.is_terminal else Console(width=200, file=sys.stdout))
+    if run.result.status == "unknown":  # the solver ran out of time before any plan
+        from picker.errors import SolverError
+
+        limit = time_limit if time_limit is not None else plan.spec.time_limit
+        raise SolverError(
+            f"{plan_path}: CP-SAT found no plan within the time limit ({limit:g} s); "
+            "raise --time-limit or the plan's time_limit"
+        )
     return 0 if run.result.plan is not None else 1
 
 
