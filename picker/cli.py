@@ -70,8 +70,10 @@ def _check_outputs(output: Path | None, plot: Path | None, force: bool, spec: Pa
 
     if output is not None:
         check_output(output, force=force, inputs=[spec])
-    if plot is not None and plot.exists() and not plot.is_dir():
-        raise SpecError("expected a folder for the plots, got a file", file=str(plot), key="--plot")
+    if plot is not None:
+        from picker.production_cli import check_plot_folder
+
+        check_plot_folder(plot, force=force, inputs=[spec])
 
 
 def _emit(result, fmt: str, output: Path | None, force: bool, inputs) -> None:
@@ -140,7 +142,7 @@ def solve(
                            precision=prec, sampling=samp, progress=progress,
                            plot_data=plot is not None)  # fmt: skip
     if plot is not None and result.status == "ok":
-        pc.write_plots(result, plot, force=force)
+        pc.write_plots(result, plot, force=force, inputs=[spec])
     _emit(result, fmt, output, force, [spec])
     if result.status != "ok":
         raise typer.Exit(1)
@@ -189,7 +191,7 @@ def evaluate(
                               precision=prec, sampling=samp, progress=progress,
                               plot_data=plot is not None)  # fmt: skip
     if plot is not None:
-        pc.write_plots(result, plot, force=force)
+        pc.write_plots(result, plot, force=force, inputs=[spec])
     _emit(result, fmt, output, force, [spec])
 
 

@@ -106,30 +106,43 @@ def format_value(value: float, unit: str) -> str:
     return format_quantity(value, unit)
 
 
-def write_plots(result, directory: Path, *, force: bool = False) -> list[Path]:
+def check_plot_folder(directory: Path, *, force: bool = False, inputs=()) -> list[Path]:
+    """Refuse a --plot folder before any work: a file, an existing PNG without
+    ``force``, a PNG that is one of ``inputs``. Returns the PNG paths."""
+    from picker.safe_io import check_output
+
+    d = Path(directory)
+    if d.exists() and not d.is_dir():
+        raise SpecError("expected a folder for the plots, got a file", file=str(d), key="--plot")
+    targets = [d / name for name in PLOT_FILES]
+    if d.is_dir():
+        for t in targets:
+            check_output(t, force=force, inputs=inputs, key="--plot")
+    return targets
+
+
+def write_plots(result, directory: Path, *, force: bool = False, inputs=()) -> list[Path]:
     """Write the histogram, yield-vs-tolerance and driver PNGs of the best design.
 
     Raises
     ------
     SpecError
-        ``directory`` is a file, a PNG exists and ``force`` is not given, or
-        the result holds no design.
+        ``directory`` is a file, a PNG exists and ``force`` is not given, a PNG
+        would replace one of ``inputs``, the folder cannot be made or written,
+        or the result holds no design.
     """
     from picker import plots
 
     d = Path(directory)
-    if d.exists() and not d.is_dir():
-        raise SpecError("expected a folder for the plots, got a file", file=str(d), key="--plot")
+    targets = check_plot_folder(d, force=force, inputs=inputs)
     if not result.candidates or result.plot_data is None:
         raise SpecError("no design to plot", key="--plot")
-    targets = [d / name for name in PLOT_FILES]
-    if not force:
-        for t in targets:
-            if t.exists():
-                raise SpecError(
-                    "the file exists; pass --force to replace it", file=str(t), key="--plot"
-                )
-    d.mkdir(parents=True, exist_ok=True)
+    try:
+        d.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise SpecError(
+            f"cannot make the folder ({exc.strerror or exc})", file=str(d), key="--plot"
+        ) from None
     pd = result.plot_data
     title = _title(result)
     temp = pd["temperature_c"]
@@ -156,9 +169,13 @@ def write_plots(result, directory: Path, *, force: bool = False) -> list[Path]:
         try:
             draw[t.name](tmp)
             os.replace(tmp, t)
-        except BaseException:
+        except BaseException as exc:
             with contextlib.suppress(OSError):
                 os.unlink(tmp)
+            if isinstance(exc, OSError):
+                raise SpecError(
+                    f"cannot write the file ({exc.strerror or exc})", file=str(t), key="--plot"
+                ) from None
             raise
         written.append(t)
     return written

@@ -21,6 +21,7 @@ from pathlib import Path
 
 import numpy as np
 
+from picker.safe_io import atomic_write
 from picker.topology import COLPITTS, Parasitics, board_frequency
 from picker.units import format_quantity
 
@@ -75,7 +76,8 @@ def main() -> None:
             )
         )
     out = Path(__file__).resolve().parent.parent / "demo_specs" / "bench_units.csv"
-    out.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    # regenerating the demo file is the point of the script, hence force=True
+    atomic_write(out, "\n".join(lines) + "\n", force=True, key="bench_units.csv")
     print(f"wrote {out}")
 
 
