@@ -660,6 +660,12 @@ def _load_stock_lists(spec: Spec, file: str | None) -> Spec:
             continue
         path = Path(part.stock)
         path = (path if path.is_absolute() else base / path).resolve()
+        if not path.is_file():  # a fault of the spec's key, not of a file that is not there
+            raise SpecError(
+                f"expected an existing stock-list file; no such file {str(path)!r}",
+                file=file,
+                key=f"parts.{pos}.stock",
+            )
         if path not in cache:
             try:
                 cache[path] = load_stock(path)
