@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import tomllib
 
+from conftest import DEMO
 from hypothesis import event, given
 from hypothesis import strategies as st
 from test_fuzz_harness import (
@@ -39,8 +40,18 @@ BASES = {
         "tone_source.toml",
         "colpitts_bjt.toml",
         "production_exciter.toml",
+        "buyer_exciter.toml",  # stock positions, a parallel pair, [cost]
     )
 }
+
+
+def _write(folder, name: str, text: str):
+    """The spec, and the stock list the buyer's demo names beside it."""
+    (folder / "stock_demo.csv").write_text((DEMO / "stock_demo.csv").read_text("utf-8"))
+    p = folder / name
+    p.write_bytes(text.encode("utf-8", "surrogatepass"))
+    return p
+
 
 #: Keys whose mutation could make a case slow rather than wrong; they only get
 #: values that are invalid or small.
@@ -122,8 +133,7 @@ def _damage(draw, text: str) -> str:
 @given(case=mutated_spec(), fmt=st.sampled_from(["json", "table", "csv"]))
 def test_solve_on_a_mutated_spec_never_tracebacks(tmp_path_factory, case, fmt):
     name, text, notes = case
-    p = tmp_path_factory.mktemp("spec") / name
-    p.write_text(text, encoding="utf-8")
+    p = _write(tmp_path_factory.mktemp("spec"), name, text)
     code, out, err = run_cli(
         ["solve", str(p), "-f", fmt, "--samples", "200", "--candidates", "5"], cwd=p.parent
     )
@@ -137,8 +147,7 @@ def test_solve_on_a_mutated_spec_never_tracebacks(tmp_path_factory, case, fmt):
 @given(case=mutated_spec())
 def test_evaluate_on_a_mutated_spec_never_tracebacks(tmp_path_factory, case):
     name, text, _ = case
-    p = tmp_path_factory.mktemp("spec") / name
-    p.write_bytes(text.encode("utf-8", "surrogatepass"))
+    p = _write(tmp_path_factory.mktemp("spec"), name, text)
     try:
         topo = tomllib.loads(text).get("topology", "colpitts")
     except tomllib.TOMLDecodeError:
