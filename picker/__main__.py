@@ -1,0 +1,5 @@
+"""``python -m picker``: the same as the ``picker`` command."""
+
+from picker.cli import main
+
+main()

@@ -1,0 +1,198 @@
+"""Record (or check) the output of every command on every demo spec.
+
+The golden files in ``tests/goldens/`` pin what picker prints, so a change meant
+to move code without changing behaviour can be shown to change nothing:
+``tests/test_goldens.py`` reruns the same commands and compares byte for byte
+(the version field aside).
+
+Regenerate after an intended change of output::
+
+    python scripts/make_goldens.py          # rewrite tests/goldens/
+    python scripts/make_goldens.py --check  # compare only; exit 1 on a difference
+
+Every command runs in a fresh process (``python -m picker``) from the
+``demo_specs/`` folder, with a wide, colourless terminal so tables do not wrap.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import subprocess
+import sys
+import tempfile
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+DEMO = ROOT / "demo_specs"
+GOLDEN = ROOT / "tests" / "goldens"
+
+SOLVABLE = [
+    "buyer_exciter",
+    "clapp_vfo",
+    "colpitts_bjt",
+    "plan_sensor_base",
+    "probe_exciter",
+    "production_exciter",
+    "tone_source",
+]
+AMPLIFIER = ["colpitts_bjt"]
+
+# name -> (arguments after "picker", output file the command writes or None)
+COMMANDS: dict[str, tuple[list[str], str | None]] = {}
+for _s in SOLVABLE:
+    COMMANDS[f"solve_{_s}.json"] = (["solve", f"{_s}.toml", "--format", "json"], None)
+    COMMANDS[f"solve_{_s}.csv"] = (["solve", f"{_s}.toml", "--format", "csv"], None)
+    COMMANDS[f"solve_{_s}.txt"] = (["solve", f"{_s}.toml"], None)
+COMMANDS["solve_probe_exciter_sobol.json"] = (
+    ["solve", "probe_exciter.toml", "--format", "json", "--sampling", "sobol", "--top", "3"],
+    None,
+)
+COMMANDS["solve_production_exciter_precision.json"] = (
+    ["solve", "production_exciter.toml", "--format", "json", "--precision", "1%", "--top", "3"],
+    None,
+)
+COMMANDS["evaluate_probe_exciter.json"] = (
+    ["evaluate", "probe_exciter.toml", "--set", "C1=1.5n", "--set", "C2=6.8n", "--set", "L=220u"]
+    + ["--format", "json"],
+    None,
+)
+COMMANDS["evaluate_probe_exciter.txt"] = (
+    ["evaluate", "probe_exciter.toml", "--set", "C1=1.5n", "--set", "C2=6.8n", "--set", "L=220u"]
+    + ["--tol", "L=2%"],
+    None,
+)
+COMMANDS["evaluate_clapp_vfo.json"] = (
+    ["evaluate", "clapp_vfo.toml", "--set", "C1=1n", "--set", "C2=1n", "--set", "C3=100p"]
+    + ["--set", "L=10u", "--format", "json"],
+    None,
+)
+COMMANDS["evaluate_colpitts_bjt.json"] = (
+    ["evaluate", "colpitts_bjt.toml", "--set", "C1=220p", "--set", "C2=680p", "--set", "L=10u"]
+    + ["--format", "json"],
+    None,
+)
+COMMANDS["evaluate_production_exciter.json"] = (
+    ["evaluate", "production_exciter.toml", "--format", "json"]
+    + ["--set", "C1=1.5n", "--set", "C2=6.8n", "--set", "L=220u"],
+    None,
+)
+for _s in AMPLIFIER:
+    COMMANDS[f"netlist_{_s}.cir"] = (["netlist", f"{_s}.toml", "-o", "{out}"], "out.cir")
+COMMANDS["series_E24.txt"] = (["series", "E24", "--min", "1n", "--max", "10n"], None)
+COMMANDS["series_E96_ohm.txt"] = (
+    ["series", "E96", "--min", "1k", "--max", "2k", "--unit", "ohm"],
+    None,
+)
+COMMANDS["calibrate_bench_units.json"] = (
+    ["calibrate", "bench_units.csv", "--spec", "probe_exciter.toml", "--format", "json"],
+    None,
+)
+COMMANDS["calibrate_bench_units.txt"] = (
+    ["calibrate", "bench_units.csv", "--spec", "probe_exciter.toml"],
+    None,
+)
+COMMANDS["calibrate_bench_units_fragment.toml"] = (
+    ["calibrate", "bench_units.csv", "--spec", "probe_exciter.toml", "--fragment", "{out}"],
+    "out.toml",
+)
+COMMANDS["consolidate_plan_demo.json"] = (["consolidate", "plan_demo.toml", "-f", "json"], None)
+COMMANDS["consolidate_plan_demo.txt"] = (["consolidate", "plan_demo.toml"], None)
+COMMANDS["consolidate_plan_demo_bom.csv"] = (
+    ["consolidate", "plan_demo.toml", "--bom", "{out}"],
+    "out.csv",
+)
+
+# The simulate command's model side (no ngspice): the loaded-model figures it prints.
+SIMULATE_MODEL = """
+import json, sys
+from pathlib import Path
+from picker.cli.circuit import _design, _figures
+spec, topo, values, board, stray, params = _design(Path(sys.argv[1]), [])
+print(json.dumps(_figures(topo, board, stray, params), sort_keys=True))
+"""
+SIMULATE_MODEL_OLD = SIMULATE_MODEL.replace("picker.cli.circuit", "picker.cli_circuit")
+
+VERSION = re.compile(r'("version": ?)"[^"]*"')
+SOLVER_TIME = re.compile(r"solver [0-9.]+ s")  # wall-clock time of CP-SAT, not a result
+
+
+def _normalise(text: str) -> str:
+    return SOLVER_TIME.sub("solver * s", VERSION.sub(r'\1"*"', text))
+
+
+def _env() -> dict[str, str]:
+    env = dict(os.environ)
+    env.update(
+        {"COLUMNS": "200", "LINES": "100", "NO_COLOR": "1", "TERM": "dumb", "PYTHONHASHSEED": "0"}
+    )
+    env.pop("FORCE_COLOR", None)
+    return env
+
+
+def run(name: str) -> str:
+    """The output of one golden command, as text."""
+    if name.startswith("simulate_model_"):
+        spec = name.removeprefix("simulate_model_").removesuffix(".json") + ".toml"
+        code = SIMULATE_MODEL
+        try:
+            import picker.cli.circuit  # noqa: F401
+        except ImportError:
+            code = SIMULATE_MODEL_OLD
+        proc = subprocess.run(
+            [sys.executable, "-c", code, spec],
+            cwd=DEMO,
+            env=_env(),
+            capture_output=True,
+            text=True,
+            check=False,
+        )
+        return f"exit {proc.returncode}\n{_normalise(proc.stdout)}"
+    args, out_name = COMMANDS[name]
+    with tempfile.TemporaryDirectory() as tmp:
+        out = Path(tmp) / out_name if out_name else None
+        argv = [a.replace("{out}", str(out)) for a in args]
+        proc = subprocess.run(
+            [sys.executable, "-m", "picker", *argv],
+            cwd=DEMO,
+            env=_env(),
+            capture_output=True,
+            text=True,
+            check=False,
+        )
+        text = f"exit {proc.returncode}\n"
+        if out is not None:
+            stdout = proc.stdout.replace(str(out), "{out}")
+            text += stdout + "--- file ---\n" + out.read_text(encoding="utf-8")
+        else:
+            text += proc.stdout
+        if proc.stderr:
+            text += "--- stderr ---\n" + proc.stderr
+    return _normalise(text)
+
+
+def names() -> list[str]:
+    return sorted(COMMANDS) + [f"simulate_model_{s}.json" for s in AMPLIFIER]
+
+
+def main(argv: list[str]) -> int:
+    check = "--check" in argv
+    GOLDEN.mkdir(parents=True, exist_ok=True)
+    bad = 0
+    for name in names():
+        text = run(name)
+        path = GOLDEN / name
+        if check:
+            if not path.exists() or path.read_text(encoding="utf-8") != text:
+                print(f"differs: {name}")
+                bad += 1
+        else:
+            path.write_text(text, encoding="utf-8")
+            print(f"wrote {path.relative_to(ROOT)}")
+    if check:
+        print(f"{len(names()) - bad} of {len(names())} goldens identical")
+    return 1 if bad else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1:]))
