@@ -1,6 +1,6 @@
 """picker: standard-value part picking and Monte Carlo yield for LC oscillators.
 
-The notebook API lives in :mod:`picker.api` and is re-exported here lazily:
+The notebook API lives in :mod:`picker.api.solve` and is re-exported here lazily:
 ``load_spec``, ``solve``, ``evaluate``.
 """
 
@@ -13,7 +13,7 @@ __all__ = ["__version__", "evaluate", "load_spec", "solve"]
 
 def __getattr__(name: str):
     if name in ("load_spec", "solve", "evaluate", "spec_from_dict"):
-        from picker import api
+        from picker.api import solve as api
 
         return getattr(api, name)
     raise AttributeError(name)

@@ -1,5 +1,5 @@
 """``python -m picker``: the same as the ``picker`` command."""
 
-from picker.cli import main
+from picker.cli.main import main
 
 main()

@@ -14,7 +14,7 @@ DEMO = ROOT / "demo_specs"
 @pytest.fixture
 def run_cli(capsys):
     """Run ``picker`` in-process; returns (exit status, stdout, stderr)."""
-    from picker.cli import main
+    from picker.cli.main import main
 
     def run(*argv: str):
         try:

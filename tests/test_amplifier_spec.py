@@ -8,9 +8,9 @@ from pathlib import Path
 import pytest
 from numpy.testing import assert_allclose
 
-from picker.amplifier_spec import AmplifierSpec
+from picker.spec.amplifier import AmplifierSpec
 from picker.errors import SpecError
-from picker.spec import spec_from_dict
+from picker.spec.model import spec_from_dict
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_specs" / "clapp_vfo.toml"
 AMP = {

@@ -15,8 +15,8 @@ import math
 
 import pytest
 
-from picker.bom import COLUMNS, bom_csv, bom_json, bom_rows, write_bom
-from picker.consolidate import BomLine
+from picker.report.bom import COLUMNS, bom_csv, bom_json, bom_rows, write_bom
+from picker.buyer.consolidate import BomLine
 from picker.errors import SpecError
 
 HOSTILE = [

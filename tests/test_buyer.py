@@ -25,14 +25,14 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from picker.api import build_problem, load_spec, solve
+from picker.api.solve import build_problem, load_spec, solve
 from picker.errors import SpecError
-from picker.montecarlo import PartVariation, Simulation, sampled_values
-from picker.pairs import pair_table
-from picker.screen import corner_span
-from picker.search import Designs, Problem, ValueTable, brute_force, search, sort_designs
-from picker.series import expand
-from picker.topology import COLPITTS, Parasitics, board_frequency
+from picker.core.montecarlo import PartVariation, Simulation, sampled_values
+from picker.parts.pairs import pair_table
+from picker.core.screen import corner_span
+from picker.core.search import Designs, Problem, ValueTable, brute_force, search, sort_designs
+from picker.parts.series import expand
+from picker.tank.base import COLPITTS, Parasitics, board_frequency
 
 STOCK = """id,kind,value,tolerance,dielectric,core,voltage,on_hand,price,price_breaks
 C-A,C,1 nF,5 %,C0G,,50 V,5000,0.010,100:0.008;1000:0.005
@@ -159,7 +159,7 @@ def test_stock_positions_end_to_end(tmp_path):
 
 
 def test_stock_json_and_csv_carry_ids_and_cost(tmp_path):
-    from picker.report import to_csv, to_json
+    from picker.report.designs import to_csv, to_json
 
     spec = load_spec(_write(tmp_path, STOCK_PARTS, "[cost]\nbuild_quantity = 10\n"))
     res = solve(spec, top=3)
@@ -305,7 +305,7 @@ def test_pairs_reach_values_between_series_steps(tmp_path):
     assert (pp.first_value, pp.second_value) == pytest.approx((4.7e-9, 1.0e-9), rel=1e-12)
     assert pp.value == pytest.approx(5.7e-9, rel=1e-12)
     assert res.candidates[0].f_nominal_hz == pytest.approx(f0, rel=1e-9)
-    from picker.report import candidate_dict
+    from picker.report.designs import candidate_dict
 
     d = candidate_dict(res.candidates[0])["parts"]["C1"]
     assert [x["value"] for x in d["pair"]] == pytest.approx([4.7e-9, 1e-9], rel=1e-12)
@@ -462,8 +462,8 @@ def test_pair_counts_as_two_parts_in_cost_and_plan(tmp_path):
         want = sum(_unit_price(rows[i], 100) for i in ids)
         assert c.extra["cost"]["per_board"] == pytest.approx(want, abs=1e-9)
         assert c.extra["cost"]["parts_per_board"] == 4
-    from picker.consolidate import ChannelCandidates
-    from picker.plan import _position_ids
+    from picker.buyer.consolidate import ChannelCandidates
+    from picker.spec.plan import _position_ids
 
     c = pairs[0]
     ids = tuple(_position_ids(c.parts[p], p[0], None) for p in ("C1", "C2", "L"))
@@ -484,8 +484,8 @@ def test_stock_only_plan_consolidates_on_stock_ids(tmp_path):
     import shutil
     from pathlib import Path
 
-    from picker.cli_consolidate import plan_dict
-    from picker.plan import load_plan, run_plan
+    from picker.cli.consolidate import plan_dict
+    from picker.spec.plan import load_plan, run_plan
 
     demo = Path(__file__).resolve().parent.parent / "demo_specs"
     for f in ("plan_sensor_base.toml", "stock_demo.csv"):
@@ -514,7 +514,7 @@ def test_stock_only_plan_consolidates_on_stock_ids(tmp_path):
 
 
 def test_evaluate_a_stock_design(tmp_path):
-    from picker.api import evaluate
+    from picker.api.solve import evaluate
 
     spec = load_spec(_write(tmp_path, STOCK_PARTS, "[cost]\nbuild_quantity = 1000\n"))
     rows = _stock_rows(tmp_path / "stock.csv")

@@ -15,11 +15,11 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import optimize, stats
 
-from picker import topology as topo_mod
-from picker.calibrate import _ideal_jacobian, apply_parasitics, fit_parasitics, fragment_toml
+from picker.tank import base as topo_mod
+from picker.calibration.fit import _ideal_jacobian, apply_parasitics, fit_parasitics, fragment_toml
 from picker.errors import SpecError
-from picker.measurements import load_measurements, parse_measurements
-from picker.topology import CLAPP, COLPITTS
+from picker.calibration.measurements import load_measurements, parse_measurements
+from picker.tank.base import CLAPP, COLPITTS
 
 
 def board_frequency(topology, values, **parasitics):
@@ -172,7 +172,7 @@ def test_custom_model_hook_gives_the_same_fit():
     f = board_frequency(COLPITTS, v, **TRUTH) * (1 + 100e-6 * rng.standard_normal(10))
     a = fit_parasitics(COLPITTS, v, f)
 
-    def model(eff):  # the ideal tank, written out independently of picker.topology
+    def model(eff):  # the ideal tank, written out independently of picker.tank.base
         return closed_form_f(eff["L"], eff["C1"], eff["C2"], eff["stray"])
 
     b = fit_parasitics(COLPITTS, v, f, model=model)
@@ -273,7 +273,7 @@ def test_outlier_false_alarm_rate():
 
 
 def test_fragment_is_accepted_by_the_spec_and_deterministic():
-    from picker.spec import ParasiticsSpec
+    from picker.spec.model import ParasiticsSpec
 
     rng = np.random.default_rng(4)
     v = design(10)
@@ -359,7 +359,7 @@ def test_csv_missing_file(tmp_path):
 def test_studentized_residuals_match_leave_one_out_refits():
     """t_i from the closed form equals the definition: refit without unit i, then
     t_i = e_i / (s_(i)·√(1 − h_ii)) (Belsley, Kuh & Welsch 1980, §2.1)."""
-    from picker.fit_diagnostics import studentized
+    from picker.calibration.diagnostics import studentized
 
     rng = np.random.default_rng(21)
     x = rng.standard_normal((15, 3))
@@ -377,7 +377,7 @@ def test_studentized_residuals_match_leave_one_out_refits():
 
 
 def test_select_estimable_on_a_dependent_column():
-    from picker.fit_diagnostics import select_estimable
+    from picker.calibration.diagnostics import select_estimable
 
     a = np.array([1.0, 2.0, 3.0, 4.0])
     b = np.array([1.0, -1.0, 1.0, -1.0])

@@ -8,8 +8,8 @@ import numpy as np
 from numpy.testing import assert_allclose
 from scipy.optimize import brentq
 
-from picker import circuit
-from picker.circuit import (
+from picker.circuit import amplifier as circuit
+from picker.circuit.amplifier import (
     AmplifierParams,
     amplitude_estimate,
     capacitor_stress,
@@ -19,7 +19,7 @@ from picker.circuit import (
     loop_gain,
     loop_gain_matrix,
 )
-from picker.topology import CLAPP, COLPITTS, TWO_PI
+from picker.tank.base import CLAPP, COLPITTS, TWO_PI
 
 REAL = AmplifierParams(
     vcc=9.0, r_c=2200.0, r_b1=47e3, r_b2=10e3, r_e=1000.0, c_e=100e-9, c_block=10e-9,

@@ -51,7 +51,7 @@ def test_json_is_byte_identical_across_runs():
     cmd = [
         PYTHON,
         "-m",
-        "picker.cli",
+        "picker.cli.main",
         "solve",
         str(DEMO / "clapp_vfo.toml"),
         "-f",
@@ -67,7 +67,7 @@ def test_json_is_byte_identical_across_runs():
 def test_bad_spec_exits_2_with_one_line(tmp_path):
     p = write_spec(tmp_path, BASE.replace('tolerance = "10 %"', 'tolerance = "ten"'))
     r = subprocess.run(
-        [PYTHON, "-m", "picker.cli", "solve", str(p)], capture_output=True, text=True
+        [PYTHON, "-m", "picker.cli.main", "solve", str(p)], capture_output=True, text=True
     )
     assert r.returncode == 2
     lines = r.stderr.strip().splitlines()

@@ -1,7 +1,7 @@
 """``picker calibrate``: output formats, safe writing, the spec fragment and errors.
 
 The command is registered on a bare typer app here, so these tests do not
-depend on the rest of the CLI; the last test goes through ``picker.cli.main``
+depend on the rest of the CLI; the last test goes through ``picker.cli.main.main``
 for the exit status.
 """
 
@@ -17,12 +17,12 @@ import typer
 from numpy.testing import assert_allclose
 from typer.testing import CliRunner
 
-from picker import topology as topo_mod
-from picker.calibrate import fit_parasitics
-from picker.cli_calibrate import register
+from picker.tank import base as topo_mod
+from picker.calibration.fit import fit_parasitics
+from picker.cli.calibrate import register
 from picker.errors import SpecError
-from picker.measurements import load_measurements
-from picker.topology import COLPITTS
+from picker.calibration.measurements import load_measurements
+from picker.tank.base import COLPITTS
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "demo_specs" / "bench_units.csv"
@@ -100,7 +100,7 @@ def test_table_names_the_outlier_and_robust_option(tmp_path):
 
 
 def test_fragment_is_accepted_by_the_spec_loader(tmp_path):
-    from picker.spec import load_spec
+    from picker.spec.model import load_spec
 
     frag = tmp_path / "board.toml"
     res = run(DEMO, "--spec", SPEC, "--fit", "stray,l_scale", "--fragment", frag)
@@ -160,7 +160,7 @@ def test_bad_options_are_spec_errors(tmp_path, args, key, what):
 
 
 def test_picker_main_exits_2_with_one_line(tmp_path, capsys):
-    cli = pytest.importorskip("picker.cli")  # the lead's CLI wires calibrate in
+    cli = pytest.importorskip("picker.cli.main")  # the lead's CLI wires calibrate in
     bad = tmp_path / "bad.csv"
     bad.write_text("unit,C1,C2,L,frequency\nU1,4n7,10 uH,100u,250k\n", encoding="utf-8")
     with pytest.raises(SystemExit) as exit_info:
@@ -177,11 +177,11 @@ def test_calibrated_spec_recentres_the_solve():
     with l_scale = 1 land near √(1/0.97) − 1 ≈ +1.5 % high on the board (derived,
     first order); after calibration the picks should land on the target.
     """
-    from picker.api import load_spec, solve
+    from picker.api.solve import load_spec, solve
 
     m = load_measurements(DEMO, COLPITTS)
     fit = fit_parasitics(COLPITTS, m.values, m.frequency, fit=("stray", "l_scale"))
-    from picker.calibrate import fragment_toml
+    from picker.calibration.fit import fragment_toml
 
     section = tomllib.loads(fragment_toml(fit))["parasitics"]
     before = load_spec(SPEC)

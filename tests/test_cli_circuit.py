@@ -6,7 +6,7 @@ import json
 
 import pytest
 
-from picker.cli import main
+from picker.cli.main import main
 
 SPEC = """title = "cli circuit test (invented)"
 topology = "colpitts"

@@ -1,7 +1,7 @@
 """CP-SAT consolidation checked against brute force over every combination.
 
 The reference is exhaustive enumeration (every choice of one candidate per
-channel), written here independently of picker.consolidate, in exact integer
+channel), written here independently of picker.buyer.consolidate, in exact integer
 arithmetic: prices are whole thousandths of a currency unit and yields whole
 thousandths, so the optimum is defined without rounding. Price-break rule:
 the unit price is that of the largest break not above the quantity bought,
@@ -18,7 +18,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from picker.consolidate import (
+from picker.buyer.consolidate import (
     ChannelCandidates,
     PartInfo,
     consolidate,

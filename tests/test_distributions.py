@@ -12,9 +12,9 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import integrate, stats
 
-from picker.distributions import KINDS, deviation, mean_of, std_of
+from picker.parts.distributions import KINDS, deviation, mean_of, std_of
 from picker.errors import SpecError
-from picker.lots import MIN_LOT_SIZE, load_lot_csv, lot_deviations
+from picker.spec.lots import MIN_LOT_SIZE, load_lot_csv, lot_deviations
 
 N = 200_000
 TOLS = np.array([0.01, 0.05, 0.2])

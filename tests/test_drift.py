@@ -7,7 +7,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from picker import units
-from picker.drift import (
+from picker.parts.drift import (
     T_REF,
     check_range,
     class2,

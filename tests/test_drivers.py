@@ -12,9 +12,9 @@ from numpy.testing import assert_allclose
 from scipy import stats
 from scipy.differentiate import derivative
 
-from picker.distributions import deviation, std_of
-from picker.drift import drift_factor, get_material
-from picker.drivers import (
+from picker.parts.distributions import deviation, std_of
+from picker.parts.drift import drift_factor, get_material
+from picker.production.drivers import (
     TEMPERATURE,
     first_order_shares,
     monte_carlo_shares,
@@ -22,8 +22,8 @@ from picker.drivers import (
     temperature_shift,
     temperature_std,
 )
-from picker.sampling import uniform_matrix
-from picker.topology import CLAPP, COLPITTS
+from picker.core.sampling import uniform_matrix
+from picker.tank.base import CLAPP, COLPITTS
 
 # Clapp example of REFERENCES.md [derived]: L = 10 µH, C1 = C2 = 1 nF, C3 = 100 pF,
 # S = (-0.5, -0.041667, -0.041667, -0.416667) for (L, C1, C2, C3).

@@ -11,7 +11,7 @@ make a valid run slow (``--samples``, ``--candidates``, ``--precision``,
 ``--time-limit``, ``--timeout``) only get invalid or small values.
 
 A few cases run as real subprocesses too, so the console script's own entry
-(``python -m picker.cli``) is covered, not only ``main()``.
+(``python -m picker.cli.main``) is covered, not only ``main()``.
 """
 
 from __future__ import annotations
@@ -220,7 +220,7 @@ def test_the_console_entry_reports_bad_input_in_one_line_as_a_subprocess(tmp_pat
     ]
     for argv, want in cases:
         r = subprocess.run(
-            [PYTHON, "-m", "picker.cli", *argv],
+            [PYTHON, "-m", "picker.cli.main", *argv],
             capture_output=True,
             text=True,
             timeout=120,

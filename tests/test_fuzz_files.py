@@ -105,7 +105,7 @@ def _assert_spec_error(exc: SpecError, path) -> str:
 @fuzz_settings(400)
 @given(text=_csv_text(STOCK_ROWS, header_names=list(STOCK_ROWS[0])), raw=st.booleans())
 def test_a_damaged_stock_list_loads_or_names_the_row(tmp_path_factory, text, raw):
-    from picker.stock import load_stock
+    from picker.spec.stock import load_stock
 
     p = tmp_path_factory.mktemp("stock") / "stock.csv"
     if raw:  # bytes that are not UTF-8 now and then
@@ -167,7 +167,7 @@ def test_calibrate_on_a_damaged_measurements_file(tmp_path_factory, text, fmt):
     header=st.sampled_from(["value", "Value", "serial,value", "", "x,y"]),
 )
 def test_a_damaged_lot_file_reads_or_names_the_row(tmp_path_factory, cells, bad, where, header):
-    from picker.lots import load_lot_csv
+    from picker.spec.lots import load_lot_csv
 
     if bad is not None:
         cells = [*cells[:where], bad, *cells[where:]]
@@ -193,7 +193,7 @@ PLAN = tomllib.loads((DEMO / "plan_demo.toml").read_text(encoding="utf-8"))
 @fuzz_settings(300)
 @given(data=st.data())
 def test_a_mutated_plan_loads_or_names_the_key(tmp_path_factory, data):
-    from picker.plan import load_plan
+    from picker.spec.plan import load_plan
 
     plan = copy.deepcopy(PLAN)
     for _ in range(data.draw(st.integers(1, 2))):

@@ -1,6 +1,6 @@
 """Shared machinery of the fuzz suite (tests/test_fuzz_*.py), and its own checks.
 
-* :func:`run_cli` runs ``picker.cli.main`` in-process (much faster than a
+* :func:`run_cli` runs ``picker.cli.main.main`` in-process (much faster than a
   subprocess) and returns (exit status, stdout, stderr). Any exception other
   than ``SystemExit`` propagates, so hypothesis reports it as a failure: a
   traceback the user would have seen.
@@ -74,7 +74,7 @@ def run_cli(argv: list[str], *, cwd: str | Path | None = None) -> tuple[int, str
     traceback the user would see). ``cwd`` is the working folder during the
     run (fuzzed output names land there, not in the checkout).
     """
-    from picker.cli import main
+    from picker.cli.main import main
 
     out, err = io.StringIO(), io.StringIO()
     where = contextlib.chdir(cwd) if cwd is not None else contextlib.nullcontext()

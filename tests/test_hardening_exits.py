@@ -97,7 +97,8 @@ def test_consolidate_exits_1_on_an_infeasible_plan(tmp_path):
 
 
 def test_consolidate_exits_3_when_the_solver_finds_no_plan_in_time(tmp_path, monkeypatch):
-    from picker import cli_consolidate, plan
+    from picker.cli import consolidate as cli_consolidate
+    from picker.spec import plan
 
     real = plan.run_plan
 

@@ -4,7 +4,7 @@
   estimated feasible set exceeds twice ``search.max_designs``, is refused
   before it runs, in one line naming the key and how to narrow it (exit 2);
 * the estimate of the feasible count agrees with brute force (the full-cube
-  enumeration, ``picker.search.brute_force``) on small spaces;
+  enumeration, ``picker.core.search.brute_force``) on small spaces;
 * extreme but valid specs work: 1 Hz and 1 GHz targets with parts from 1 pF to
   1 F; above 300 MHz every result carries the lumped-model warning;
 * a window the part ranges cannot reach at all is infeasible (exit 1) with
@@ -25,11 +25,11 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from test_fuzz_harness import assert_clean_exit, cheap, load_demo, run_cli, set_path, to_toml
 
-from picker import api
-from picker.limits import LUMPED_MAX_HZ, reach
-from picker.search import Problem, brute_force, estimate_designs, search, uniform_table
-from picker.series import expand
-from picker.topology import CLAPP, COLPITTS, Parasitics
+from picker.api import solve as api
+from picker.parts.limits import LUMPED_MAX_HZ, reach
+from picker.core.search import Problem, brute_force, estimate_designs, search, uniform_table
+from picker.parts.series import expand
+from picker.tank.base import CLAPP, COLPITTS, Parasitics
 
 
 def _spec(tmp_path, data: dict, name: str = "spec.toml"):
@@ -136,7 +136,7 @@ def test_extreme_but_valid_specs_work(tmp_path, topology, target, warned):
 
 
 def test_the_lumped_warning_starts_above_300_mhz():
-    from picker.limits import lumped_warnings
+    from picker.parts.limits import lumped_warnings
 
     assert LUMPED_MAX_HZ == 300e6  # the documented rule (common practice, no source)
     assert lumped_warnings(300e6) == [] and len(lumped_warnings(300.1e6)) == 1
@@ -193,7 +193,7 @@ def test_frequencies_outside_the_lumped_range_are_refused(tmp_path, target):
 
 def test_the_chunked_screen_gives_the_same_yields_as_one_pass(monkeypatch):
     # the screen is elementwise per design, so chunking must not change a single bit
-    from picker import screen
+    from picker.core import screen
 
     spec = api.spec_from_dict(cheap(load_demo("production_exciter.toml")))
     problem = api.build_problem(spec)

@@ -23,7 +23,7 @@ def _run_twice(argv: list[str], tmp_path) -> tuple[bytes, bytes]:
         env = {**os.environ, "PYTHONHASHSEED": hashseed, "PYTHONPATH": str(ROOT)}
         procs.append(
             subprocess.Popen(
-                [PYTHON, "-m", "picker.cli", *argv],
+                [PYTHON, "-m", "picker.cli.main", *argv],
                 stdout=subprocess.PIPE,
                 stderr=subprocess.PIPE,
                 cwd=cwd,

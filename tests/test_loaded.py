@@ -11,16 +11,16 @@ import pytest
 from conftest import DEMO
 from numpy.testing import assert_allclose
 
-from picker import api
-from picker.circuit import AmplifierParams, ideal_params
-from picker.drift import get_material
-from picker.loaded import LoadedModel, fit_surrogate, loaded_nominal, surrogate_response
-from picker.loaded_figures import SQUEGGING_RATIO, nominal_figures, squegging_caution
-from picker.loaded_search import loaded_brute_force, loaded_search
-from picker.montecarlo import PartVariation, Simulation, count_passing, draw_uniform
-from picker.search import Designs, Problem, search, uniform_table
-from picker.series import expand
-from picker.topology import CLAPP, COLPITTS, TWO_PI, Parasitics, board_frequency
+from picker.api import solve as api
+from picker.circuit.amplifier import AmplifierParams, ideal_params
+from picker.parts.drift import get_material
+from picker.circuit.loaded import LoadedModel, fit_surrogate, loaded_nominal, surrogate_response
+from picker.circuit.figures import SQUEGGING_RATIO, nominal_figures, squegging_caution
+from picker.circuit.loaded_search import loaded_brute_force, loaded_search
+from picker.core.montecarlo import PartVariation, Simulation, count_passing, draw_uniform
+from picker.core.search import Designs, Problem, search, uniform_table
+from picker.parts.series import expand
+from picker.tank.base import CLAPP, COLPITTS, TWO_PI, Parasitics, board_frequency
 
 # Invented amplifiers (typical small-signal values, not a check value themselves).
 BJT = AmplifierParams(
@@ -92,7 +92,7 @@ def _agreement(nominal, params, window, n=4000, seed=5, tol=0.05):
     ],
 )
 def test_surrogate_agrees_with_full_model(nominal, params, f_tol):
-    # Reference: the full loaded model (picker.circuit) on the very same boards. Window
+    # Reference: the full loaded model (picker.circuit.amplifier) on the very same boards. Window
     # ±3 % around the loaded nominal frequency, parts ±5 % uniform, so boards fall on both
     # sides of both edges. Measured: agreement >= 99.98 %, |df/f| <= 8.5e-6 for the first
     # two designs and 6.5e-4 for the heavily loaded one.
@@ -333,7 +333,7 @@ def test_worst_margin_is_the_minimum_over_boards():
                      model=LoadedModel(pb, params, "full"))  # fmt: skip
     u = draw_uniform(1, 500, sim.n_columns)
     extras = api.circuit_extras(spec, sim, d, u)
-    from picker.montecarlo import sampled_values
+    from picker.core.montecarlo import sampled_values
 
     vals = sampled_values(sim, d, u)
     _, m = loaded_nominal(pb.topology, vals, pb.parasitics, params)

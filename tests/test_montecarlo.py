@@ -7,7 +7,7 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy.stats import binomtest
 
-from picker.montecarlo import (
+from picker.core.montecarlo import (
     Simulation,
     binomial_interval,
     count_passing,
@@ -15,11 +15,11 @@ from picker.montecarlo import (
     estimate_yield,
     unit_deviation,
 )
-from picker.ranking import monte_carlo_rank
-from picker.screen import corner_span, screen_yield
-from picker.search import Designs, Problem, search, uniform_table
-from picker.series import expand
-from picker.topology import COLPITTS, Parasitics, board_frequency
+from picker.core.ranking import monte_carlo_rank
+from picker.core.screen import corner_span, screen_yield
+from picker.core.search import Designs, Problem, search, uniform_table
+from picker.parts.series import expand
+from picker.tank.base import COLPITTS, Parasitics, board_frequency
 
 
 def _one_design(c1, c2, l, tols, f_min, f_max):
@@ -107,7 +107,7 @@ def test_worst_case_corners_reference_example():
 
 def test_rss_reference_example():
     # REFERENCES.md: Colpitts, C1 = C2, all parts ±5 %: RSS = 3.062 % (of ±t, first order).
-    from picker.screen import sigma_lnf
+    from picker.core.screen import sigma_lnf
 
     p, d = _one_design(1e-9, 1e-9, 1e-5, (0.05, 0.05, 0.05), 1.0, 1e12)
     # With sigma = t (distribution "normal" gives t/3, so scale by 3).

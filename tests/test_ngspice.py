@@ -1,7 +1,7 @@
 """Cross-check of the loaded model against ngspice transient simulations.
 
 The designs below are invented test circuits (not reference data). The outside
-reference is ngspice itself: each netlist from picker.netlist is simulated and the
+reference is ngspice itself: each netlist from picker.circuit.netlist is simulated and the
 frequency and amplitude measured on the settled tail. Nothing is stored, so there is
 nothing to regenerate: the simulations run every time (about 10 s in total).
 These tests fail, never skip, when ngspice is missing: CI installs it.
@@ -12,11 +12,11 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from picker.circuit import AmplifierParams, amplitude_estimate, loaded_response
+from picker.circuit.amplifier import AmplifierParams, amplitude_estimate, loaded_response
 from picker.errors import SolverError
-from picker.netlist import write_netlist
-from picker.ngspice import ngspice_path, simulate
-from picker.topology import CLAPP, COLPITTS
+from picker.circuit.netlist import write_netlist
+from picker.circuit.ngspice import ngspice_path, simulate
+from picker.tank.base import CLAPP, COLPITTS
 
 pytestmark = pytest.mark.ngspice
 

@@ -1,7 +1,7 @@
 """The fewest-parts cover search checked against brute force over every choice.
 
 The reference enumerates every choice of one candidate per channel (written
-here independently of picker.partcover) and takes the size of the union of the
+here independently of picker.buyer.partcover) and takes the size of the union of the
 chosen part sets; the optimum is the smallest such size, and a candidate can
 be in an optimal plan when some optimal choice holds it.
 """
@@ -13,7 +13,7 @@ import itertools
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from picker.partcover import in_some_cover, min_part_covers, part_classes
+from picker.buyer.partcover import in_some_cover, min_part_covers, part_classes
 
 
 def _brute(channels):

@@ -19,9 +19,9 @@ import pytest
 import typer
 from typer.testing import CliRunner
 
-from picker.cli_consolidate import register
+from picker.cli.consolidate import register
 from picker.errors import SpecError
-from picker.plan import load_plan
+from picker.spec.plan import load_plan
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_specs"
 

@@ -6,7 +6,7 @@ import struct
 
 import numpy as np
 
-from picker.plots import plot_drivers, plot_histogram, plot_yield_vs_tolerance
+from picker.report.plots import plot_drivers, plot_histogram, plot_yield_vs_tolerance
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # RFC 2083, 3.1
 

@@ -18,12 +18,12 @@ import numpy as np
 import pytest
 from scipy.stats import binomtest
 
-from picker import api
-from picker.cli import main
-from picker.drift import drift_factor, get_material
+from picker.api import solve as api
+from picker.cli.main import main
+from picker.parts.drift import drift_factor, get_material
 from picker.errors import SpecError
-from picker.report import to_json
-from picker.topology import COLPITTS, TWO_PI
+from picker.report.designs import to_json
+from picker.tank.base import COLPITTS, TWO_PI
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_specs" / "production_exciter.toml"
 
@@ -389,10 +389,10 @@ def test_drift_aware_screen_tracks_monte_carlo_and_keeps_the_top(demo):
     # feasible design of the demo it must be close (0.05; it is 0.030, and the
     # per-temperature minimum it replaced was 0.163 off), and with only 3 designs checked first the top-up must
     # still find the Monte Carlo's own best 5 (ranked on the very same boards).
-    from picker.montecarlo import count_passing
-    from picker.ranking import rank_order
-    from picker.screen import screen_yield
-    from picker.search import search
+    from picker.core.montecarlo import count_passing
+    from picker.core.ranking import rank_order
+    from picker.core.screen import screen_yield
+    from picker.core.search import search
 
     r, _ = demo
     spec = r.spec

@@ -13,7 +13,7 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import integrate, stats
 
-from picker.sampling import (
+from picker.core.sampling import (
     adaptive_batches,
     compare_methods,
     sobol_size,

@@ -8,9 +8,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from picker.errors import SpecError
-from picker.search import Problem, brute_force, search, sort_designs, uniform_table
-from picker.series import expand
-from picker.topology import CLAPP, COLPITTS, Parasitics, board_frequency
+from picker.core.search import Problem, brute_force, search, sort_designs, uniform_table
+from picker.parts.series import expand
+from picker.tank.base import CLAPP, COLPITTS, Parasitics, board_frequency
 
 SERIES = ["E3", "E6", "E12", "E24"]
 
@@ -61,7 +61,7 @@ def test_search_equals_brute_force(topo):
 
 def test_search_is_not_a_full_cube():
     # A space of 145*145*49 combinations: the search visits only beta-feasible pairs.
-    from picker.search import estimate_outer
+    from picker.core.search import estimate_outer
 
     tabs = {
         "C1": uniform_table(expand("E24", 1e-12, 1e-6), 0.05, "E24"),

@@ -1,4 +1,4 @@
-"""Tests for picker.series against IEC 60063:2015 (values as quoted in REFERENCES.md).
+"""Tests for picker.parts.series against IEC 60063:2015 (values as quoted in REFERENCES.md).
 
 Sources: IEC 60063:2015 preferred-number tables (E3..E24 typed below from the
 standard's lists in REFERENCES.md); the standard's rule that E48/E96/E192 equal
@@ -17,9 +17,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_array_equal
 
-from picker import series
+from picker.parts import series
 from picker.errors import SpecError
-from picker.series import (
+from picker.parts.series import (
     SERIES_NAMES,
     default_tolerance,
     denser,
@@ -249,7 +249,7 @@ def test_denser():
 
 
 def test_data_dir_found():
-    d = series._data_dir()
+    d = series.data_dir()
     assert (d / "E24.csv").is_file()
     assert "IEC 60063:2015" in (d / "E24.csv").read_text(encoding="utf-8")
 
@@ -263,15 +263,16 @@ def test_tables_load_from_wheel_layout(tmp_path):
     from pathlib import Path
 
     root = Path(__file__).resolve().parent.parent  # the source checkout
-    installed = Path(series.__file__).resolve().parent  # source tree or site-packages
+    installed = Path(series.__file__).resolve().parents[1]  # source tree or site-packages
     pkg = tmp_path / "picker"
-    pkg.mkdir()
+    (pkg / "parts").mkdir(parents=True)
     (pkg / "__init__.py").write_text("", encoding="utf-8")  # only the modules series needs
-    for module in ("errors.py", "series.py"):
+    (pkg / "parts" / "__init__.py").write_text("", encoding="utf-8")
+    for module in ("errors.py", "parts/series.py"):
         shutil.copy(installed / module, pkg / module)
     shutil.copytree(root / "series_data", pkg / "series_data")
     code = (
-        "from picker import series; d = series._data_dir(); "
+        "from picker.parts import series; d = series.data_dir(); "
         "print(d); print(series.series_values('E192')[185], series.default_tolerance('E96'))"
     )
     out = subprocess.run(

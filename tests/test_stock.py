@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from picker.errors import SpecError
-from picker.stock import load_stock, stock_table, unit_price
+from picker.spec.stock import load_stock, stock_table, unit_price
 
 HEADER = "id,kind,value,tolerance,dielectric,core,voltage,on_hand,price,price_breaks\n"
 

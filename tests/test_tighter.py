@@ -11,16 +11,16 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from picker.distributions import deviation, std_of
-from picker.drift import drift_factor, get_material, temperature_grid
-from picker.tighter import (
+from picker.parts.distributions import deviation, std_of
+from picker.parts.drift import drift_factor, get_material, temperature_grid
+from picker.production.tighter import (
     TOLERANCE_LADDER,
     greedy_plan,
     next_tighter,
     rank_changes,
     swap_for,
 )
-from picker.topology import COLPITTS
+from picker.tank.base import COLPITTS
 
 # Colpitts, C1 = C2: S_L = -1/2, S_C1 = S_C2 = -1/4 (REFERENCES.md sensitivities).
 SENS = {"C1": -0.25, "C2": -0.25, "L": -0.5}

@@ -7,7 +7,7 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy.linalg import eigvals
 
-from picker.topology import CLAPP, COLPITTS, Parasitics, board_frequency, board_sensitivities
+from picker.tank.base import CLAPP, COLPITTS, Parasitics, board_frequency, board_sensitivities
 
 
 def tank_frequency_by_eigenvalues(c1, c2, l, c3=None, stray=0.0):

@@ -2,7 +2,7 @@
 
 The independent check draws fresh boards (another seed), tunes each one by
 scanning the trimmer's setting over its range and keeping the setting whose
-frequency (picker.topology, Thomson's formula) is nearest the window centre,
+frequency (picker.tank.base, Thomson's formula) is nearest the window centre,
 and counts the boards in the window; it shares no code with the sizing beyond
 the tank formula. Bounds: binomial standard error of that count.
 """
@@ -15,10 +15,10 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from picker.distributions import deviation
+from picker.parts.distributions import deviation
 from picker.errors import SpecError
-from picker.topology import CLAPP, COLPITTS, resonant_frequency, series_capacitance
-from picker.trimmer import (
+from picker.tank.base import CLAPP, COLPITTS, resonant_frequency, series_capacitance
+from picker.production.trimmer import (
     Trimmer,
     across_need,
     choose_trimmer,

@@ -1,0 +1,112 @@
+"""Benchmark: peak memory of a whole solve on the largest spaces the limits accept.
+
+Two specs sit just inside the default limits of ``[search]``:
+
+* **feasible**: a Clapp tank (C1, C2, C3 in E96 over 1 pF-1 µF, L in E24 over
+  1-10 µH, 10 MHz ±1.25 %) whose feasible set is close to ``max_designs``
+  (5,000,000): the screen and the Monte Carlo see the most designs;
+* **outer**: a Clapp tank in E192 over 1 pF-1 mF and 1 nH-10 mH, feedback
+  0.01-1, 10 MHz ±0.001 %: its outer grid is close to ``max_combinations``
+  (10^9), the longest search accepted (``--quick``: a tenth of it).
+
+Each runs ``picker.api.solve.solve`` end to end in a fresh process (so the peak is
+its own) with the spec's defaults (20,000 boards, 200 designs checked) and
+prints the feasible count, the time, the peak memory traced by ``tracemalloc``
+(numpy reports its buffers to it) and the process's peak resident set size
+(``resource.getrusage``). Figures are printed, never asserted.
+
+Run: ``python -m picker.bench.memory [--quick]``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import resource
+import subprocess
+import sys
+import time
+import tracemalloc
+
+
+def _spec(case: str, quick: bool) -> dict:
+    caps = ("C1", "C2", "C3")
+    if case == "feasible":
+        parts = {
+            c: {"series": "E96", "tolerance": "1 %", "min": "1 pF", "max": "1 uF"} for c in caps
+        }
+        parts["L"] = {"series": "E24", "tolerance": "5 %", "min": "1 uH", "max": "10 uH"}
+        return {
+            "title": "largest feasible set",
+            "topology": "clapp",
+            "frequency": {"target": "10 MHz", "window": "±1.25 %"},
+            "feedback": {"min": 0.05, "max": 1.0},
+            "parts": parts,
+            "parasitics": {"stray": "3 pF"},
+        }
+    c_max, l_max = ("10 uF", "100 uH") if quick else ("1 mF", "10 mH")
+    parts = {c: {"series": "E192", "tolerance": "1 %", "min": "1 pF", "max": c_max} for c in caps}
+    parts["L"] = {"series": "E192", "tolerance": "5 %", "min": "1 nH", "max": l_max}
+    return {
+        "title": "largest outer grid",
+        "topology": "clapp",
+        "frequency": {"target": "10 MHz", "window": "±0.001 %"},
+        "feedback": {"min": 0.01, "max": 1.0},
+        "parts": parts,
+        "parasitics": {"stray": "3 pF"},
+    }
+
+
+def measure(case: str, quick: bool = False) -> dict:
+    """Solve one case in this process; returns its figures (call in a fresh process)."""
+    from picker.api import solve as api
+    from picker.core.search import estimate_designs
+
+    spec = api.spec_from_dict(_spec(case, quick))
+    n_outer, _ = estimate_designs(api.build_problem(spec))
+    tracemalloc.start()
+    t = time.perf_counter()
+    result = api.solve(spec)
+    seconds = time.perf_counter() - t
+    _, traced = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    return {
+        "case": case,
+        "space": result.space_size,
+        "outer": n_outer,
+        "feasible": result.feasible,
+        "limit_designs": spec.search.max_designs,
+        "limit_combinations": spec.search.max_combinations,
+        "seconds": seconds,
+        "traced_mb": traced / 2**20,
+        "rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0,
+    }
+
+
+def main(argv: list[str] | None = None) -> None:
+    ap = argparse.ArgumentParser(prog="python -m picker.bench.memory", description=__doc__)
+    ap.add_argument("--quick", action="store_true", help="a tenth of the outer grid")
+    ap.add_argument("--case", choices=("feasible", "outer"), help=argparse.SUPPRESS)
+    args = ap.parse_args(argv)
+    if args.case:  # the child process
+        sys.stdout.write(json.dumps(measure(args.case, args.quick)) + "\n")
+        return
+    for case in ("feasible", "outer"):
+        cmd = [sys.executable, "-m", "picker.bench.memory", "--case", case]
+        r = subprocess.run(cmd + (["--quick"] if args.quick else []), capture_output=True,
+                           text=True, check=True)  # fmt: skip
+        m = json.loads(r.stdout.strip().splitlines()[-1])
+        print(
+            f"{m['case']:8s} {m['space']:.3g} combinations, outer grid {m['outer']:,} "
+            f"(limit {m['limit_combinations']:,}), {m['feasible']:,} feasible "
+            f"(limit {m['limit_designs']:,})"
+        )
+        print(f"  solve end to end            {m['seconds']:8.1f} s")
+        print(
+            f"  peak memory                 {m['traced_mb']:8.1f} MB traced (numpy and Python), "
+            f"{m['rss_mb']:.0f} MB process RSS"
+        )
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

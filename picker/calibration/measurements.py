@@ -1,0 +1,278 @@
+"""Measurements of built units: a CSV file in, a frozen struct of arrays out.
+
+This is an edge module: it reads a file and turns every fault into a
+:class:`~picker.errors.SpecError` naming the file, the row and the column.
+
+File format
+-----------
+UTF-8 CSV, comma separated, one header line then one line per built unit.
+Blank lines and lines whose first character is ``#`` are skipped. Column
+names are matched without regard to case or surrounding spaces.
+
+* One column per part position of the tank (``C1``, ``C2``, ``L``, plus ``C3``
+  for Clapp): the unit's part value as an engineering string ("4.7n", "4n7",
+  "100 uH") or a number in SI units (F, H).
+* ``frequency``: the measured oscillation frequency ("251.3 kHz", or Hz).
+* Optional: ``unit`` (an id, unique in the file; default "row N"),
+  ``measured`` (positions whose value was measured rather than read from the
+  marking, separated by spaces, ``;`` or ``|``; "all" or "none"),
+  ``frequency_sigma`` (standard deviation of the frequency reading, Hz) or
+  ``weight`` (a relative weight > 0; not both), and ``note`` (free text).
+
+Any other column is an error, so a typo is never silently ignored. "row N"
+in a message is the line number in the file (the header is row 1).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from picker.errors import SpecError
+from picker.parts.limits import value_problem
+from picker.tank.base import Topology
+from picker.units import parse_quantity
+
+__all__ = ["OPTIONAL_COLUMNS", "Measurements", "load_measurements", "parse_measurements"]
+
+#: Columns of our own that a measurements file may carry besides the positions.
+OPTIONAL_COLUMNS = ("unit", "measured", "frequency_sigma", "weight", "note")
+
+
+@dataclass(frozen=True)
+class Measurements:
+    """Built units and their measured frequencies. Arrays have shape (n_units,).
+
+    Attributes
+    ----------
+    values:
+        Position name -> part values in F or H.
+    frequency:
+        Measured frequencies, Hz.
+    unit_ids:
+        One id per unit (from the ``unit`` column, else "row N").
+    measured:
+        Position name -> bool array, True where that value was measured.
+    frequency_sigma, weight:
+        From the optional columns, else None.
+    rows:
+        Line number of each unit in the file.
+    """
+
+    file: str
+    topology: str
+    values: Mapping[str, np.ndarray]
+    frequency: np.ndarray
+    unit_ids: tuple[str, ...]
+    measured: Mapping[str, np.ndarray]
+    frequency_sigma: np.ndarray | None
+    weight: np.ndarray | None
+    notes: tuple[str, ...]
+    rows: tuple[int, ...]
+
+    def __len__(self) -> int:
+        return int(self.frequency.size)
+
+    def sigma(self) -> np.ndarray | None:
+        """Per-unit frequency sigma (Hz) for the fit, up to a common factor.
+
+        ``frequency_sigma`` as given; a ``weight`` w becomes a relative sigma
+        of 1 ppm of the unit's frequency / √w; None when neither column is given.
+        """
+        if self.frequency_sigma is not None:
+            return self.frequency_sigma
+        if self.weight is not None:
+            return 1e-6 * self.frequency / np.sqrt(self.weight)
+        return None
+
+
+def _number(text: str, key: str) -> float:
+    """A plain finite number (for the ``weight`` column)."""
+    try:
+        x = float(text)
+    except ValueError:
+        raise SpecError(f"expected a number such as 1 or 0.5; got {text!r}", key=key) from None
+    if not np.isfinite(x):
+        raise SpecError(f"expected a finite number; got {text!r}", key=key)
+    return x
+
+
+def _positive(text: str, unit: str, file: str, key: str) -> float:
+    """A cell holding a quantity > 0 in ``unit`` ("1": a plain number)."""
+    if not text:
+        raise SpecError("empty cell; expected a value", file=file, key=key)
+    try:
+        x = _number(text, key) if unit == "1" else parse_quantity(text, unit)
+    except SpecError as exc:
+        raise SpecError(exc.message, file=file, key=key) from None
+    if not x > 0:
+        raise SpecError(f"expected a value > 0; got {text!r}", file=file, key=key)
+    if (why := value_problem(x, unit, text)) is not None:
+        raise SpecError(f"{why}; got {text!r}", file=file, key=key)
+    return x
+
+
+def _parse_measured(text: str, positions: tuple[str, ...], file: str, key: str) -> set[str]:
+    words = [w for w in text.replace(";", " ").replace("|", " ").replace(",", " ").split() if w]
+    low = [w.lower() for w in words]
+    if not words or low == ["none"]:
+        return set()
+    if low == ["all"]:
+        return set(positions)
+    by_lower = {p.lower(): p for p in positions}
+    out = set()
+    for w in words:
+        if w.lower() not in by_lower:
+            raise SpecError(
+                f"expected position names ({', '.join(positions)}), 'all' or 'none'; got {w!r}",
+                file=file,
+                key=key,
+            )
+        out.add(by_lower[w.lower()])
+    return out
+
+
+def parse_measurements(text: str, topology: Topology, *, file: str = "<text>") -> Measurements:
+    """Parse the text of a measurements CSV (see the module docstring).
+
+    Raises
+    ------
+    SpecError
+        Naming the file and the row/column of the first fault.
+    """
+    lines = [
+        (i + 1, line)
+        for i, line in enumerate(text.splitlines())
+        if line.strip() and not line.lstrip().startswith("#")
+    ]
+    if not lines:
+        raise SpecError(
+            "the file is empty; expected a header line such as "
+            f"'unit,{','.join(topology.positions)},frequency'",
+            file=file,
+        )
+    rows = list(csv.reader(io.StringIO("\n".join(line for _, line in lines))))
+    if len(rows) != len(lines):  # a quoted field spanning lines
+        raise SpecError("expected one unit per line; a quoted field spans lines", file=file)
+    header_row, header = lines[0][0], rows[0]
+    wanted = {p.lower(): p for p in topology.positions}
+    wanted["frequency"] = "frequency"
+    wanted.update({c: c for c in OPTIONAL_COLUMNS})
+    columns: list[str] = []
+    for j, raw in enumerate(header):
+        name = raw.strip().lower()
+        if name not in wanted:
+            extra = " (C3 belongs to a Clapp tank)" if name == "c3" else ""
+            raise SpecError(
+                f"unknown column {raw.strip()!r}{extra}; expected "
+                f"{', '.join([*topology.positions, 'frequency', *OPTIONAL_COLUMNS])}",
+                file=file,
+                key=f"row {header_row}, column {j + 1}",
+            )
+        canon = wanted[name]
+        if canon in columns:
+            raise SpecError(
+                f"column {canon!r} appears twice",
+                file=file,
+                key=f"row {header_row}, column {j + 1}",
+            )
+        columns.append(canon)
+    missing = [c for c in (*topology.positions, "frequency") if c not in columns]
+    if missing:
+        raise SpecError(
+            f"missing column(s) {', '.join(missing)}: a {topology.name} tank needs "
+            f"{', '.join(topology.positions)} and frequency",
+            file=file,
+            key=f"row {header_row}",
+        )
+    if "weight" in columns and "frequency_sigma" in columns:
+        raise SpecError(
+            "give either a weight or a frequency_sigma column, not both",
+            file=file,
+            key=f"row {header_row}",
+        )
+    data = rows[1:]
+    if not data:
+        raise SpecError("the file has a header but no units", file=file)
+
+    values: dict[str, list[float]] = {p: [] for p in topology.positions}
+    freq: list[float] = []
+    extra: dict[str, list] = {c: [] for c in OPTIONAL_COLUMNS}
+    ids: list[str] = []
+    line_numbers: list[int] = []
+    seen: dict[str, int] = {}
+    for (line_no, _), row in zip(lines[1:], data, strict=True):
+        if len(row) != len(columns):
+            raise SpecError(
+                f"expected {len(columns)} fields as in the header; got {len(row)}",
+                file=file,
+                key=f"row {line_no}",
+            )
+        cells = {c: v.strip() for c, v in zip(columns, row, strict=True)}
+
+        def key(col: str, line_no: int = line_no) -> str:
+            return f"row {line_no}, column {col}"
+
+        def positive(col: str, unit: str, cells=cells, key=key) -> float:
+            return _positive(cells[col], unit, file, key(col))
+
+        for p in topology.positions:
+            values[p].append(positive(p, "F" if p.startswith("C") else "H"))
+        freq.append(positive("frequency", "Hz"))
+        uid = cells.get("unit") or f"row {line_no}"
+        if uid in seen:
+            raise SpecError(
+                f"unit id {uid!r} already used in row {seen[uid]}", file=file, key=key("unit")
+            )
+        seen[uid] = line_no
+        ids.append(uid)
+        line_numbers.append(line_no)
+        if "frequency_sigma" in cells:
+            extra["frequency_sigma"].append(positive("frequency_sigma", "Hz"))
+        if "weight" in cells:
+            extra["weight"].append(positive("weight", "1"))
+        extra["measured"].append(
+            _parse_measured(cells.get("measured", ""), topology.positions, file, key("measured"))
+        )
+        extra["note"].append(cells.get("note", ""))
+
+    measured = {
+        p: np.array([p in m for m in extra["measured"]], dtype=bool) for p in topology.positions
+    }
+    return Measurements(
+        file=file,
+        topology=topology.name,
+        values={p: np.array(v) for p, v in values.items()},
+        frequency=np.array(freq),
+        unit_ids=tuple(ids),
+        measured=measured,
+        frequency_sigma=np.array(extra["frequency_sigma"])
+        if "frequency_sigma" in columns
+        else None,
+        weight=np.array(extra["weight"]) if "weight" in columns else None,
+        notes=tuple(extra["note"]),
+        rows=tuple(line_numbers),
+    )
+
+
+def load_measurements(path: str | Path, topology: Topology) -> Measurements:
+    """Read a measurements CSV file (see the module docstring)."""
+    name = str(path)
+    try:
+        raw = Path(path).read_bytes()
+    except FileNotFoundError:
+        raise SpecError("no such file", file=name) from None
+    except IsADirectoryError:
+        raise SpecError("expected a CSV file, got a directory", file=name) from None
+    except OSError as exc:
+        raise SpecError(f"cannot read the file ({exc.strerror})", file=name) from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise SpecError(f"expected UTF-8 text; byte {exc.start} is not", file=name) from None
+    return parse_measurements(text, topology, file=name)

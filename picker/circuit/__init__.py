@@ -1,0 +1,1 @@
+"""picker.circuit.amplifier."""

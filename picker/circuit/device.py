@@ -1,0 +1,184 @@
+"""Active-device description: the generic NPN card, the DC bias point and the hybrid-pi values.
+
+The loaded oscillator model (:mod:`picker.circuit.amplifier`) needs the small-signal
+parameters of the transistor at its bias point: transconductance ``gm``, input
+resistance ``r_pi``, output resistance ``r_o`` and the capacitances ``c_pi``
+(base-emitter) and ``c_mu`` (base-collector). They come either straight from
+the user or from a *generic small-signal NPN* defined here, whose parameters
+are the project's own, chosen to be typical of the general-purpose small-signal
+NPN class (values of the order found in such parts' SPICE models; [memory],
+not any particular part). The same card is written into exported SPICE
+netlists (:mod:`picker.circuit.netlist`), so the linear model and the simulator see
+the same device.
+
+Equations (Gummel-Poon model reduced to forward-active operation with no
+high-injection or leakage terms, as in SPICE's BJT model; Massobrio &
+Antognetti, *Semiconductor Device Modeling with SPICE*, 2nd ed., ch. 2):
+
+* collector current  I_C = IS·exp(V_BE/V_T)·(1 − V_BC/VAF)          (D1)
+* base current       I_B = IS·exp(V_BE/V_T)/BF                       (D2)
+* gm = ∂I_C/∂V_BE = I_C/V_T − I_cc/VAF,  g_o = I_cc/VAF,
+  g_pi = I_cc/(BF·V_T), with I_cc = IS·exp(V_BE/V_T)                 (D3)
+* C_pi = TF·I_C/V_T + CJE, C_mu = CJC (the card takes MJE = MJC = 0, i.e.
+  voltage-independent junction capacitances, so the netlist and the linear
+  model agree at any bias)                                           (D4)
+* thermal voltage V_T = k·T/q at SPICE's default temperature 27 °C     (D5)
+
+All quantities are SI floats; functions are pure.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from scipy.optimize import brentq
+
+BOLTZMANN = 1.380649e-23  # J/K, SI 2019 exact
+ELEMENTARY_CHARGE = 1.602176634e-19  # C, SI 2019 exact
+SPICE_TNOM_C = 27.0  # SPICE's default nominal temperature, °C
+
+
+def thermal_voltage(temperature_c: float = SPICE_TNOM_C) -> float:
+    """V_T = k·T/q in volts (D5). 27 °C gives 25.852 mV."""
+    return BOLTZMANN * (temperature_c + 273.15) / ELEMENTARY_CHARGE
+
+
+@dataclass(frozen=True)
+class GenericNPN:
+    """The project's generic small-signal NPN (typical of the class, [memory]; not a real part).
+
+    Attributes are SPICE Gummel-Poon parameter values in SI units.
+    """
+
+    is_: float = 1e-14  # saturation current, A
+    bf: float = 150.0  # forward current gain
+    vaf: float = 100.0  # forward Early voltage, V
+    tf: float = 0.3e-9  # forward transit time, s
+    cje: float = 5e-12  # base-emitter junction capacitance (constant, MJE = 0), F
+    cjc: float = 3e-12  # base-collector junction capacitance (constant, MJC = 0), F
+    name: str = "PICKER_NPN"
+
+    def model_card(self) -> str:
+        """The ``.model`` line for a SPICE netlist."""
+        return (
+            f".model {self.name} NPN (IS={self.is_:.6g} BF={self.bf:.6g} VAF={self.vaf:.6g} "
+            f"TF={self.tf:.6g} CJE={self.cje:.6g} MJE=0 CJC={self.cjc:.6g} MJC=0 "
+            "BR=1 RB=0 RE=0 RC=0)"
+        )
+
+
+GENERIC_NPN = GenericNPN()
+
+
+@dataclass(frozen=True)
+class BiasPoint:
+    """DC operating point of the stage (node voltages to ground, currents), SI units."""
+
+    ic: float
+    ib: float
+    vbe: float
+    vb: float
+    vc: float
+    ve: float
+    saturated: bool  # base-collector junction forward biased (V_BC > 0.4 V): not an amplifier
+
+    @property
+    def vce(self) -> float:
+        return self.vc - self.ve
+
+
+def bias_point(
+    *,
+    vcc: float,
+    r_b1: float | None,
+    r_b2: float | None,
+    r_e: float | None,
+    r_collector_dc: float,
+    device: GenericNPN = GENERIC_NPN,
+    temperature_c: float = SPICE_TNOM_C,
+) -> BiasPoint:
+    """Solve the DC bias of a divider-biased common-emitter stage with equations (D1), (D2).
+
+    Parameters
+    ----------
+    vcc:
+        Supply voltage, V.
+    r_b1, r_b2:
+        Base divider: ``r_b1`` from the supply to the base, ``r_b2`` from the base to ground
+        (``None`` = absent). Thevenin: V_th = V_CC·R_B2/(R_B1+R_B2), R_th = R_B1 ∥ R_B2.
+    r_e:
+        Emitter resistor to ground (``None`` = emitter grounded), ohm.
+    r_collector_dc:
+        DC resistance from the supply to the collector (the load resistor, or the winding
+        resistance of an RF choke), ohm.
+
+    Returns
+    -------
+    BiasPoint
+    """
+    if r_b1 is None:
+        raise ValueError("the base bias needs a resistor from the supply to the base (r_b1)")
+    vt = thermal_voltage(temperature_c)
+    if r_b2 is None:
+        v_th, r_th = vcc, r_b1
+    else:
+        v_th, r_th = vcc * r_b2 / (r_b1 + r_b2), r_b1 * r_b2 / (r_b1 + r_b2)
+    re = r_e or 0.0
+
+    def currents(vbe: float) -> tuple[float, float, float, float]:
+        icc = device.is_ * math.exp(vbe / vt)
+        ib = icc / device.bf  # (D2)
+        ic = icc
+        for _ in range(30):  # fixed point on the Early factor (converges: VAF ≫ swings)
+            ve = (ib + ic) * re
+            vb = vbe + ve
+            vc = vcc - ic * r_collector_dc
+            ic_new = icc * (1.0 - (vb - vc) / device.vaf)  # (D1)
+            if abs(ic_new - ic) <= 1e-12 * abs(ic):
+                ic = ic_new
+                break
+            ic = ic_new
+        ve = (ib + ic) * re
+        return ic, ib, vbe + ve, vcc - ic * r_collector_dc
+
+    def residual(vbe: float) -> float:
+        _, ib, vb, _ = currents(vbe)
+        return v_th - ib * r_th - vb
+
+    lo, hi = 0.2, 1.2
+    if residual(lo) <= 0.0:
+        raise ValueError(f"the base divider gives {v_th:.3g} V: too low to turn the transistor on")
+    vbe = brentq(residual, lo, hi, xtol=1e-12, rtol=1e-14)
+    ic, ib, vb, vc = currents(vbe)
+    ve = vb - vbe
+    return BiasPoint(ic=ic, ib=ib, vbe=vbe, vb=vb, vc=vc, ve=ve, saturated=(vb - vc) > 0.4)
+
+
+@dataclass(frozen=True)
+class SmallSignal:
+    """Hybrid-pi values at the bias point, SI units (``r_pi`` may be ``inf`` for a FET)."""
+
+    gm: float
+    r_pi: float
+    r_o: float
+    c_pi: float
+    c_mu: float
+    i_dc: float  # collector (drain) DC current, A
+
+
+def npn_small_signal(
+    bias: BiasPoint, device: GenericNPN = GENERIC_NPN, *, vt: float
+) -> SmallSignal:
+    """Hybrid-pi values of the generic NPN at ``bias``, equations (D3), (D4)."""
+    icc = device.is_ * math.exp(bias.vbe / vt)
+    go = icc / device.vaf
+    gm = bias.ic / vt - go
+    return SmallSignal(
+        gm=gm,
+        r_pi=device.bf * vt / icc,
+        r_o=1.0 / go,
+        c_pi=device.tf * bias.ic / vt + device.cje,
+        c_mu=device.cjc,
+        i_dc=bias.ic,
+    )

@@ -1,0 +1,256 @@
+"""Monte Carlo yield with common random numbers.
+
+One matrix of uniform variates U, shape (samples, k), is drawn per run (from
+a seeded ``numpy.random.Generator`` or a scrambled Sobol sequence, see
+:mod:`picker.core.sampling`) and reused for every candidate, so differences between
+candidates are not sampling noise (common random numbers; JCGM 101:2008 §7
+for Monte Carlo propagation of distributions).
+
+Columns of U (:meth:`Simulation.columns`): one per part position for its
+tolerance, one more per position whose table holds parallel pairs (the second
+part is drawn on its own), and one per position with a temperature drift
+class (each part's own curve within its class).
+
+Axis convention (everywhere in this module): samples on axis 0, candidates on
+axis 1.
+
+A board passes when its frequency lies in ``[f_min, f_max]`` at every
+temperature of the simulation's grid (and, with a circuit-aware model, when
+it starts). Yield is the share of passing boards, reported with a binomial
+confidence interval from ``scipy.stats.binomtest(...).proportion_ci``
+(Wilson 1927 or Clopper-Pearson 1934).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.special import ndtri
+from scipy.stats import binomtest
+
+from picker.parts import distributions
+from picker.core.search import Designs, Problem
+from picker.tank.base import TWO_PI, board_frequency, board_values
+
+#: Boards evaluated per block (samples x candidates); bounds memory.
+BLOCK = 1 << 21
+
+#: A board model maps sampled part values at one temperature, position ->
+#: (samples, c), and the block's designs (length c) to a pass mask (samples, c).
+BoardModel = Callable[[dict[str, np.ndarray], Designs], np.ndarray]
+
+REFERENCE_TEMPERATURE = 25.0
+
+
+@dataclass(frozen=True)
+class PartVariation:
+    """How one position's parts vary: tolerance distribution and drift class.
+
+    ``distribution`` is one of :data:`picker.parts.distributions.KINDS`; ``grade``
+    is the inner tolerance removed from the centre for graded parts; ``lot``
+    the relative deviations of a measured lot (empirical); ``material`` a
+    :class:`picker.parts.drift.Material` (``None``: no temperature drift).
+    """
+
+    distribution: str = "uniform"
+    grade: float | None = None
+    lot: np.ndarray | None = None
+    material: object | None = None
+
+    def std(self, tol):
+        """Relative standard deviation of a part with tolerance ``tol``."""
+        return distributions.std_of(self.distribution, tol, grade=self.grade, lot=self.lot)
+
+
+@dataclass(frozen=True)
+class Simulation:
+    """Everything the Monte Carlo pass needs besides the random numbers."""
+
+    problem: Problem
+    parts: dict[str, PartVariation]
+    temperatures: np.ndarray = field(default_factory=lambda: np.array([REFERENCE_TEMPERATURE]))
+    model: BoardModel | None = None
+
+    @classmethod
+    def simple(cls, problem: Problem, distribution: str = "uniform") -> Simulation:
+        """Every position with the same distribution, no drift, ideal tank."""
+        return cls(problem, {p: PartVariation(distribution) for p in problem.topology.positions})
+
+    def columns(self) -> dict[str, int]:
+        """Column of U for each random input: "C1" (tolerance), "C1#2" (second
+        part of a pair), "C1@T" (drift). Order is fixed, so seeds reproduce."""
+        cols: dict[str, int] = {}
+        for p in self.problem.topology.positions:
+            cols[p] = len(cols)
+        for p in self.problem.topology.positions:
+            if self.problem.tables[p].second is not None:
+                cols[f"{p}#2"] = len(cols)
+        for p in self.problem.topology.positions:
+            if self.parts[p].material is not None:
+                cols[f"{p}@T"] = len(cols)
+        return cols
+
+    @property
+    def n_columns(self) -> int:
+        return len(self.columns())
+
+    def drifting(self) -> bool:
+        return any(v.material is not None for v in self.parts.values())
+
+
+@dataclass(frozen=True)
+class YieldEstimate:
+    """A yield estimate with its interval, sample count and seed."""
+
+    estimate: float
+    ci_low: float
+    ci_high: float
+    samples: int
+    passed: int
+    confidence: float
+    method: str
+    seed: int
+
+    def as_dict(self) -> dict:
+        return {
+            "estimate": self.estimate,
+            "ci_low": self.ci_low,
+            "ci_high": self.ci_high,
+            "samples": self.samples,
+            "passed": self.passed,
+            "confidence": self.confidence,
+            "method": self.method,
+            "seed": self.seed,
+        }
+
+
+def binomial_interval(k: int, n: int, confidence: float = 0.95, method: str = "wilson"):
+    """Two-sided interval for a proportion k/n from scipy (Wilson or exact)."""
+    ci = binomtest(int(k), int(n)).proportion_ci(confidence_level=confidence, method=method)
+    return float(ci.low), float(ci.high)
+
+
+def estimate_yield(k: int, n: int, *, confidence: float, method: str, seed: int) -> YieldEstimate:
+    lo, hi = binomial_interval(k, n, confidence, method)
+    return YieldEstimate(k / n, lo, hi, n, int(k), confidence, method, seed)
+
+
+def draw_uniform(seed: int, samples: int, k: int) -> np.ndarray:
+    """The run's common random numbers: U(0,1), shape (samples, k)."""
+    rng = np.random.default_rng(seed)
+    return rng.random((samples, k))
+
+
+def unit_deviation(u: np.ndarray, distribution: str) -> np.ndarray:
+    """Map U(0,1) variates to deviations per unit of tolerance.
+
+    ``uniform``: 2u - 1, uniform on [-1, 1]. ``normal``: Φ⁻¹(u)/3, so that a
+    part's tolerance is three standard deviations (99.73 % coverage; not
+    truncated).
+    """
+    if distribution == "uniform":
+        return 2.0 * u - 1.0
+    if distribution == "normal":
+        return ndtri(np.clip(u, 1e-300, 1.0 - 1e-16)) / 3.0
+    raise ValueError(f"unknown distribution {distribution!r}")
+
+
+def ideal_model(problem: Problem) -> BoardModel:
+    """Pass test with the ideal tank: f_min <= f <= f_max, tested on L·C_eff."""
+    par = problem.parasitics
+    lc_lo = 1.0 / (TWO_PI * problem.f_max) ** 2
+    lc_hi = 1.0 / (TWO_PI * problem.f_min) ** 2
+    topo = problem.topology
+
+    def passes(vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
+        bv = board_values(vals, par)
+        lc = bv["L"] * topo.c_eff(bv, par.stray)
+        return (lc >= lc_lo) & (lc <= lc_hi)
+
+    return passes
+
+
+def _deviation(var: PartVariation, u_col: np.ndarray, tol: np.ndarray) -> np.ndarray:
+    if var.distribution in ("uniform", "normal"):
+        return unit_deviation(u_col, var.distribution)[:, None] * tol[None, :]
+    return distributions.deviation(u_col, tol, var.distribution, grade=var.grade, lot=var.lot)
+
+
+def sampled_values(sim: Simulation, designs: Designs, u: np.ndarray) -> dict[str, np.ndarray]:
+    """Part values of every simulated board at 25 °C, position -> (samples, n).
+
+    A parallel pair's two parts each get their own deviation (column "P#2").
+    """
+    cols = sim.columns()
+    out = {}
+    for p in sim.problem.topology.positions:
+        t = sim.problem.tables[p]
+        i = designs.idx[p]
+        var = sim.parts[p]
+        if t.second is None:
+            out[p] = t.values[i][None, :] * (1.0 + _deviation(var, u[:, cols[p]], t.tol[i]))
+        else:
+            b = t.second[i]
+            a = t.values[i] - b
+            da = _deviation(var, u[:, cols[p]], t.tol[i])
+            db = _deviation(var, u[:, cols[f"{p}#2"]], t.second_tol[i])
+            out[p] = a[None, :] * (1.0 + da) + b[None, :] * (1.0 + db)
+    return out
+
+
+def drift_factors(sim: Simulation, u: np.ndarray) -> dict[str, np.ndarray]:
+    """Relative drift of each drifting position, position -> (n_temps, samples)."""
+    from picker.parts.drift import drift_factor
+
+    cols = sim.columns()
+    return {
+        p: drift_factor(v.material, sim.temperatures, u[:, cols[f"{p}@T"]])
+        for p, v in sim.parts.items()
+        if v.material is not None
+    }
+
+
+def values_at(vals: dict[str, np.ndarray], drift: dict[str, np.ndarray], i: int):
+    """Sampled values at temperature index ``i`` of the grid."""
+    if not drift:
+        return vals
+    return {p: (v * (1.0 + drift[p][i][:, None]) if p in drift else v) for p, v in vals.items()}
+
+
+def count_passing(sim: Simulation, designs: Designs, u: np.ndarray) -> np.ndarray:
+    """Passing boards per design, shape (n,) int64, evaluated in memory-bounded blocks."""
+    model = sim.model or ideal_model(sim.problem)
+    drift = drift_factors(sim, u)
+    n = len(designs)
+    per = max(1, BLOCK // (max(1, u.shape[0]) * max(1, len(sim.temperatures) if drift else 1)))
+    out = np.zeros(n, dtype=np.int64)
+    for s in range(0, n, per):
+        sel = np.arange(s, min(s + per, n))
+        sub = designs.take(sel)
+        vals = sampled_values(sim, sub, u)
+        ok = None
+        for i in range(len(sim.temperatures) if drift else 1):
+            m = model(values_at(vals, drift, i), sub)
+            ok = m if ok is None else (ok & m)
+        out[sel] = ok.sum(axis=0)
+    return out
+
+
+def frequency_samples(sim: Simulation, designs: Designs, u: np.ndarray) -> np.ndarray:
+    """Ideal-tank frequency of every simulated board at every grid temperature.
+
+    Returns
+    -------
+    (n_temps, samples, n) float, Hz (n_temps is 1 without drift).
+    """
+    vals = sampled_values(sim, designs, u)
+    drift = drift_factors(sim, u)
+    p = sim.problem
+    return np.stack(
+        [
+            board_frequency(p.topology, values_at(vals, drift, i), p.parasitics)
+            for i in range(len(sim.temperatures) if drift else 1)
+        ]
+    )

@@ -1,0 +1,231 @@
+"""Tolerance distributions: map uniform variates to relative part deviations.
+
+A part of nominal value ``x0`` takes the value ``x0 * (1 + d)``, where ``d`` is
+its relative deviation. Every distribution here is written as an inverse CDF
+(quantile function) of a uniform variate ``u`` in (0, 1), so that a Monte Carlo
+run can draw one matrix of common random numbers, or a scrambled Sobol
+sequence, and push each column through the distribution of its position.
+
+Shapes: ``u`` is ``(samples,)`` or ``(samples, 1)``; ``tol`` is a scalar or
+``(candidates,)``; results are ``(samples, candidates)`` (samples on axis 0,
+candidates on axis 1, the package's convention).
+
+Kinds
+-----
+``"uniform"``
+    Uniform over ±tol, the default (no information beyond the marked limits;
+    GUM, JCGM 100:2008, 4.3.7, rectangular distribution).
+``"normal"``
+    Normal with sigma = tol/3, the convention under which ±tol covers 99.73 %
+    (GUM, JCGM 100:2008, 4.3.4 and G.1; REFERENCES.md). By default it is
+    *not* truncated, so 0.27 % of parts lie outside their marking, as the
+    convention says (and as ``picker.core.screen`` assumes). Pass ``truncate=True``
+    to cut it at ±tol, for parts whose final test rejects anything outside
+    the marking (common practice, no source).
+``"graded"``
+    Binned parts: the tighter grade ``|d| < grade`` was sorted out and sold
+    separately, so what is left is uniform on [-tol, -grade] ∪ [grade, tol]
+    (common practice when parts are binned, no source).
+``"graded-normal"``
+    As ``"graded"`` but normal (sigma = tol/3) on the two remaining bands.
+``"empirical"``
+    A measured lot: ``lot`` holds the relative deviations of the measured
+    parts; ``u`` maps to the lot's empirical quantile, i.e. resampling the lot
+    with replacement (Efron's bootstrap); ``tol`` only sets the output shape.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import stats
+
+from picker.errors import SpecError
+
+KINDS = ("uniform", "normal", "graded", "graded-normal", "empirical")
+
+#: sigma = tol / COVERAGE_K for the normal kinds (GUM, JCGM 100:2008, G.1: k = 3, 99.73 %).
+COVERAGE_K = 3.0
+
+
+_U_MIN = 2.0**-53
+
+
+def _shape(u, tol) -> tuple[np.ndarray, np.ndarray]:
+    """Return ``u`` as a column ``(samples, 1)`` and ``tol`` as a row ``(1, candidates)``."""
+    u = np.asarray(u, dtype=float)
+    if u.ndim == 2 and u.shape[1] == 1:
+        u = u[:, 0]
+    if u.ndim != 1:
+        raise ValueError(f"u must have shape (samples,) or (samples, 1), got {u.shape}")
+    t = np.atleast_1d(np.asarray(tol, dtype=float))
+    if t.ndim != 1:
+        raise ValueError(f"tol must be a scalar or have shape (candidates,), got {t.shape}")
+    if np.any(t < 0):
+        raise SpecError(f"expected a tolerance >= 0; got {t[t < 0][0]!r}", key="tolerance")
+    return u[:, None], t[None, :]
+
+
+def _check_grade(tol: np.ndarray, grade) -> np.ndarray:
+    if grade is None:
+        raise SpecError("a graded distribution needs 'grade' (the removed inner tolerance)")
+    g = np.asarray(grade, dtype=float)
+    if np.any(g < 0) or np.any(g >= tol):
+        raise SpecError(
+            f"expected 0 <= grade < tolerance; got grade {float(np.max(g))!r} "
+            f"with tolerance {float(np.min(tol))!r}",
+            key="grade",
+        )
+    return g
+
+
+def _check_lot(lot) -> np.ndarray:
+    if lot is None:
+        raise SpecError("an empirical distribution needs a measured lot")
+    x = np.sort(np.asarray(lot, dtype=float).ravel())
+    if x.size == 0 or not np.all(np.isfinite(x)):
+        raise SpecError("expected a non-empty lot of finite relative deviations")
+    return x
+
+
+def _half_normal_band(v: np.ndarray, a, b) -> np.ndarray:
+    """Quantile of |z| for a standard normal restricted to a <= |z| <= b, v in (0, 1)."""
+    pa, pb = stats.norm.cdf(a), stats.norm.cdf(b)
+    return stats.norm.ppf(pa + v * (pb - pa))
+
+
+def deviation(
+    u, tol, kind: str = "uniform", *, grade=None, lot=None, truncate: bool = False
+) -> np.ndarray:
+    """Relative deviations ``d`` (value = nominal·(1+d)) from uniform variates.
+
+    Parameters
+    ----------
+    u : array_like, shape (samples,) or (samples, 1)
+        Uniform variates in (0, 1); one column of the common random numbers.
+    tol : float or array_like, shape (candidates,)
+        Relative tolerance of each candidate's part at this position (0.05 = ±5 %).
+    kind : str
+        One of ``KINDS`` (see the module docstring).
+    grade : float, optional
+        Inner tolerance removed from the centre (``"graded"``, ``"graded-normal"``).
+    lot : array_like, optional
+        Relative deviations of a measured lot (``"empirical"``).
+    truncate : bool
+        Truncate ``"normal"`` at ±tol (default ``False``). The graded-normal
+        kind is always cut at ±tol (its outer band edge).
+
+    Returns
+    -------
+    numpy.ndarray, shape (samples, candidates)
+        Relative deviations. Each column is a non-decreasing function of ``u``.
+
+    Examples
+    --------
+    >>> deviation([0.0, 0.5, 1.0], [0.05, 0.1]).round(3).tolist()
+    [[-0.05, -0.1], [0.0, 0.0], [0.05, 0.1]]
+    """
+    uc, t = _shape(u, tol)
+    if kind == "uniform":
+        # rectangular over ±t: d = t·(2u - 1)
+        return t * (2.0 * uc - 1.0)
+    if kind == "normal":
+        sigma = t / COVERAGE_K
+        uc = np.clip(uc, _U_MIN, 1.0 - _U_MIN)  # keep Φ⁻¹ finite if a variate is exactly 0
+        if truncate:
+            # inverse CDF of the normal truncated to ±k·sigma: z = Φ⁻¹(Φ(-k) + u·(Φ(k) - Φ(-k)))
+            lo, hi = stats.norm.cdf(-COVERAGE_K), stats.norm.cdf(COVERAGE_K)
+            z = stats.norm.ppf(lo + uc * (hi - lo))
+        else:
+            z = stats.norm.ppf(uc)
+        return sigma * z
+    if kind in ("graded", "graded-normal"):
+        g = _check_grade(t, grade)
+        # fold u onto a magnitude v in [0, 1] and a sign, keeping d monotone in u
+        w = 2.0 * uc - 1.0
+        v, sign = np.abs(w), np.sign(w)
+        if kind == "graded":
+            mag = g + (t - g) * v  # uniform on [g, t]
+        else:
+            sigma = t / COVERAGE_K  # > 0, since tol > grade >= 0
+            mag = sigma * _half_normal_band(v, g / sigma, COVERAGE_K)
+        return np.broadcast_to(sign * mag, np.broadcast_shapes(uc.shape, t.shape)).copy()
+    if kind == "empirical":
+        x = _check_lot(lot)
+        # inverse empirical CDF: F⁻¹(u) = x_(⌈n·u⌉), i.e. each lot value with weight 1/n
+        idx = np.clip(np.floor(uc * x.size).astype(int), 0, x.size - 1)
+        return np.broadcast_to(x[idx], np.broadcast_shapes(uc.shape, t.shape)).copy()
+    raise SpecError(f"expected a distribution, one of {', '.join(KINDS)}; got {kind!r}")
+
+
+def std_of(kind: str, tol, *, grade=None, lot=None, truncate: bool = False) -> np.ndarray:
+    """Closed-form relative standard deviation of ``deviation(..., kind)``.
+
+    Parameters
+    ----------
+    kind, tol, grade, lot, truncate
+        As for :func:`deviation`.
+
+    Returns
+    -------
+    numpy.ndarray, shape of ``tol``
+        Standard deviation of the relative deviation ``d``.
+
+    Notes
+    -----
+    - uniform over ±t: t/√3 (GUM, JCGM 100:2008, 4.3.7).
+    - normal, sigma = t/3: t/3 untruncated; truncated at ±3·sigma the variance
+      is sigma²·(1 - 2k·φ(k)/(2Φ(k) - 1)) with k = 3 (truncated-normal
+      variance, Johnson, Kotz & Balakrishnan, *Continuous Univariate
+      Distributions* vol. 1, ch. 13), i.e. 0.98658·t/3.
+    - graded uniform on [-t,-g] ∪ [g,t]: E[d²] = (t³ - g³)/(3(t - g)) = (t² + t·g + g²)/3
+      (the second moment of a uniform on [g, t]; derived).
+    - graded normal: E[z²] = 1 + (a·φ(a) - b·φ(b))/(Φ(b) - Φ(a)) for a normal
+      restricted to a <= |z| <= b (same reference), a = g/sigma, b = 3.
+    - empirical: the lot's population standard deviation (ddof = 0), which is
+      exactly the standard deviation of resampling it.
+
+    Examples
+    --------
+    >>> float(std_of("uniform", 0.05).round(6))
+    0.028868
+    """
+    t = np.asarray(tol, dtype=float)
+    if kind == "uniform":
+        return t / np.sqrt(3.0)
+    if kind == "normal":
+        sigma = t / COVERAGE_K
+        if not truncate:
+            return sigma
+        k = COVERAGE_K
+        factor = 1.0 - 2.0 * k * stats.norm.pdf(k) / (2.0 * stats.norm.cdf(k) - 1.0)
+        return sigma * np.sqrt(factor)
+    if kind == "graded":
+        g = _check_grade(np.atleast_1d(t), grade)
+        return np.sqrt((t * t + t * g + g * g) / 3.0)
+    if kind == "graded-normal":
+        g = _check_grade(np.atleast_1d(t), grade)
+        sigma = t / COVERAGE_K
+        a, b = g / sigma, COVERAGE_K
+        m2 = 1.0 + (a * stats.norm.pdf(a) - b * stats.norm.pdf(b)) / (
+            stats.norm.cdf(b) - stats.norm.cdf(a)
+        )
+        return sigma * np.sqrt(m2)
+    if kind == "empirical":
+        x = _check_lot(lot)
+        return np.broadcast_to(np.std(x), t.shape).astype(float)
+    raise SpecError(f"expected a distribution, one of {', '.join(KINDS)}; got {kind!r}")
+
+
+def mean_of(kind: str, tol, *, lot=None) -> np.ndarray:
+    """Mean relative deviation: zero for the symmetric kinds, the lot mean for a lot.
+
+    Returns
+    -------
+    numpy.ndarray, shape of ``tol``
+    """
+    t = np.asarray(tol, dtype=float)
+    if kind == "empirical":
+        return np.broadcast_to(np.mean(_check_lot(lot)), t.shape).astype(float)
+    if kind not in KINDS:
+        raise SpecError(f"expected a distribution, one of {', '.join(KINDS)}; got {kind!r}")
+    return np.zeros_like(t)

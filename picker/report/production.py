@@ -1,0 +1,180 @@
+"""Text sections of the production view, printed after the main table (edge module).
+
+For the best design: the temperature summary (yield at 25 °C against yield
+across the operating range, per check temperature), the spread-driver table
+(first order beside the Monte Carlo regression), the buy-tighter list and
+plan, and the trimmer recommendation; and every warning of the run. The
+figures come from ``Candidate.extra`` (see :mod:`picker.production.figures`).
+"""
+
+from __future__ import annotations
+
+from rich.console import Console
+from rich.table import Table
+
+from picker.units import format_percent, format_quantity
+
+
+def _opt(x, unit: str) -> str:
+    """A change's option: a tolerance fraction or a material name."""
+    if isinstance(x, str):
+        return x
+    return format_percent(float(x)) if unit == "%" else str(x)
+
+
+def _money(x) -> str:
+    return "—" if x is None else f"{x:+.3f}"
+
+
+def _pct(x: float) -> str:
+    return f"{x:.1%}"
+
+
+def print_warnings(warnings, console: Console) -> None:
+    for w in warnings:
+        console.print(f"[yellow]Warning:[/yellow] {w}")
+
+
+def print_temperature(x: dict, console: Console) -> None:
+    yt = x.get("yield_over_temperature")
+    if not yt:
+        return
+    lo, hi = yt["range_c"]
+    a, b = yt["over_range"], yt["at_25c"]
+    console.print(
+        f"\n[bold]Over temperature[/bold] ({lo:g} °C .. {hi:g} °C, "
+        f"{len(yt['temperatures_c'])} check points): "
+        f"{_pct(a['estimate'])} ({_pct(a['ci_low'])}..{_pct(a['ci_high'])}) of boards stay in "
+        f"the window at every point; {_pct(b['estimate'])} at 25 °C alone. "
+        f"Worst single point {yt['worst_temperature_c']:g} °C."
+    )
+    t = Table(pad_edge=False)
+    t.add_column("temperature", justify="right")
+    t.add_column("yield there", justify="right")
+    t.add_column("mean frequency shift", justify="right")
+    for temp, y, s in zip(
+        yt["temperatures_c"], yt["yield_at_temperature"], yt["frequency_shift"], strict=True
+    ):
+        t.add_row(f"{temp:g} °C", _pct(y), f"{s * 100:+.3f} %")
+    console.print(t)
+
+
+def print_drivers(x: dict, console: Console) -> None:
+    sh = x.get("drivers")
+    if not sh:
+        return
+    mc = (x.get("drivers_mc") or {}).get("shares", {})
+    r2 = (x.get("drivers_mc") or {}).get("r2")
+    console.print("\n[bold]What drives the frequency spread[/bold] (share of the variance of ln f)")
+    t = Table(pad_edge=False)
+    t.add_column("input")
+    t.add_column("first order", justify="right")
+    t.add_column("Monte Carlo", justify="right")
+    for k in sorted(sh, key=lambda k: (-sh[k], k)):
+        t.add_row(k, _pct(sh[k]), _pct(mc[k]) if k in mc else "—")
+    console.print(t)
+    notes = []
+    if r2 is not None:
+        notes.append(f"regression R² {r2:.4f}")
+    if "temperature" in sh:
+        tc = (x.get("drivers_mc") or {}).get("temperature_c")
+        where = f" at {tc:g} °C" if tc is not None else ""
+        notes.append(
+            f"'temperature' is the part-to-part spread of the drift{where}; the mean shift "
+            "is in the temperature table"
+        )
+    if notes:
+        console.print("  " + "; ".join(notes))
+
+
+def _change(c: dict) -> str:
+    return f"{_opt(c['from'], '%')} → {_opt(c['to'], '%')}"
+
+
+def print_tighter(x: dict, console: Console) -> None:
+    ch = x.get("tighter")
+    if not ch:
+        return
+    console.print("\n[bold]What to buy tighter[/bold] (one change at a time, same boards)")
+    t = Table(pad_edge=False)
+    t.add_column("#", justify="right")
+    t.add_column("position")
+    t.add_column("change")
+    t.add_column("yield", justify="right")
+    t.add_column("gain", justify="right")
+    t.add_column("extra cost/board", justify="right")
+    for i, c in enumerate(ch, 1):
+        t.add_row(
+            str(i),
+            c["position"],
+            _change(c),
+            _pct(c["yield_after"]),
+            f"{c['gain'] * 100:+.1f} %",
+            _money(c["extra_cost_per_board"]),
+        )
+    console.print(t)
+    plan = x.get("tighter_plan")
+    if plan:
+        steps = ", ".join(f"{s['position']} {_change(s)}" for s in plan["steps"]) or "none"
+        cost = plan.get("extra_cost_per_board")
+        verdict = "reaches" if plan["reaches_target"] else "falls short of"
+        console.print(
+            f"  To reach {_pct(plan['target'])}: {steps}; yield {_pct(plan['yield'])} "
+            f"({verdict} the target)" + ("" if cost is None else f", {cost:+.3f} per board")
+        )
+
+
+def print_trimmer(x: dict, console: Console) -> None:
+    tr = x.get("trimmer")
+    if not tr:
+        return
+    where = "across the tank" if tr["placement"] == "across" else "in parallel with C3"
+    rc = tr["recentre"]
+    unit = "H" if rc["position"] == "L" else "F"
+    if rc["to"] == rc["from"]:
+        fixed = f"{rc['position']} kept at {format_quantity(rc['from'], unit)}"
+    elif rc["to"] == 0:
+        fixed = f"{rc['position']} left out (the trimmer alone)"
+    else:
+        fixed = (
+            f"{rc['position']} re-centred from {format_quantity(rc['from'], unit)} to "
+            f"{format_quantity(rc['to'], unit)}"
+        )
+    need = tr["required_f"]
+    need_txt = (
+        f"the boards need {format_quantity(need[0], 'F', digits=3)} to "
+        f"{format_quantity(need[1], 'F', digits=3)}"
+        if None not in need
+        else "no range covers them"
+    )
+    console.print("\n[bold]Trimmer[/bold] (the best fixed design misses the yield target)")
+    if tr["trimmer"] is None:
+        console.print(
+            f"  No trimmer of the table lets {_pct(tr['share'])} of boards be tuned {where} "
+            f"(best: {_pct(tr['tunable'])}, {fixed}); {need_txt}."
+        )
+        return
+    lo, hi = tr["trimmer"]["min_f"], tr["trimmer"]["max_f"]
+    console.print(
+        f"  A {format_quantity(lo, 'F')} – {format_quantity(hi, 'F')} trimmer {where}, with "
+        f"{fixed}, lets {_pct(tr['tunable'])} of the simulated boards be tuned into the window "
+        f"at every check temperature ({_pct(tr['share'])} asked; {need_txt})."
+    )
+
+
+def print_production(r, console: Console) -> None:
+    """Every production section for the best design, then the run's warnings."""
+    if r.candidates:
+        x = r.candidates[0].extra
+        print_temperature(x, console)
+        print_drivers(x, console)
+        print_tighter(x, console)
+        print_trimmer(x, console)
+    mc = r.production or {}
+    if mc.get("precision") is not None:
+        state = "reached" if mc.get("converged") else "not reached (sample cap)"
+        console.print(
+            f"\nPrecision ±{format_percent(mc['precision'])} {state} with {r.samples:,} boards "
+            "per design."
+        )
+    print_warnings(r.warnings, console)

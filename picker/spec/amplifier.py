@@ -1,0 +1,177 @@
+"""The optional ``[amplifier]`` section of a spec file (edge layer, pydantic).
+
+Example (every quantity accepts engineering strings; bare numbers are SI)::
+
+    [amplifier]
+    kind = "bjt"                 # "bjt" (common emitter) or "fet" (common source)
+    supply = "9 V"
+    r_load = "2.2 kohm"          # collector resistor ... or: choke = "100 uH", choke_resistance = "2 ohm"
+    r_bias_top = "47 kohm"       # supply to base
+    r_bias_bottom = "10 kohm"    # base to ground (omit for a single base resistor)
+    r_emitter = "1 kohm"
+    c_emitter = "100 nF"         # omit: unbypassed emitter (degeneration)
+    c_coupling = "10 nF"         # collector-to-tank blocking capacitor; omit: none (flagged)
+    min_margin = 2.0             # smallest acceptable start-up margin (default 2)
+    monte_carlo = "surrogate"    # or "full": the loaded model on every simulated board
+
+Optional device keys: ``bias_current`` (A; bjt default: solved from the bias
+network), ``gm`` (S), ``current_gain``, ``early_voltage`` (V), ``r_out`` (ohm),
+``c_pi``, ``c_mu`` (F), ``f_t`` (Hz), ``overdrive_voltage`` (V, fet). Without them
+a bjt uses the project's generic small-signal NPN (:mod:`picker.circuit.device`).
+Inductor loss (``q``, ``q_frequency``, ``esr``) and capacitor ``esr`` live in the
+per-part tables and reach the model through :meth:`AmplifierSpec.to_params`.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, field_validator, model_validator
+
+from picker import units
+from picker.circuit.amplifier import AmplifierParams
+from picker.errors import SpecError
+
+_UNITS = {
+    "supply": "V",
+    "bias_current": "A",
+    "gm": "S",
+    "early_voltage": "V",
+    "r_out": "ohm",
+    "c_pi": "F",
+    "c_mu": "F",
+    "f_t": "Hz",
+    "overdrive_voltage": "V",
+    "r_load": "ohm",
+    "choke": "H",
+    "choke_resistance": "ohm",
+    "r_bias_top": "ohm",
+    "r_bias_bottom": "ohm",
+    "r_emitter": "ohm",
+    "c_emitter": "F",
+    "c_coupling": "F",
+}
+_MAY_BE_ZERO = {"choke_resistance", "c_pi", "c_mu"}
+
+
+class AmplifierSpec(BaseModel):
+    """Validated ``[amplifier]`` section, SI floats (``None`` = absent)."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+    kind: Literal["bjt", "fet"] = "bjt"
+    supply: float = 9.0
+    bias_current: float | None = None
+    gm: float | None = None
+    current_gain: float | None = None
+    early_voltage: float | None = None
+    r_out: float | None = None
+    c_pi: float | None = None
+    c_mu: float | None = None
+    f_t: float | None = None
+    overdrive_voltage: float | None = None
+    r_load: float | None = None
+    choke: float | None = None
+    choke_resistance: float = 0.0
+    r_bias_top: float | None = None
+    r_bias_bottom: float | None = None
+    r_emitter: float | None = None
+    c_emitter: float | None = None
+    c_coupling: float | None = None
+    min_margin: float = 2.0
+    monte_carlo: Literal["surrogate", "full"] = "surrogate"
+
+    @field_validator(*_UNITS, mode="before")
+    @classmethod
+    def _quantity(cls, v: Any, info) -> float:
+        unit = _UNITS[info.field_name]
+        try:
+            x = units.parse_quantity(v, unit)
+        except SpecError as exc:
+            raise ValueError(exc.message) from None
+        if not math.isfinite(x) or x < 0 or (x == 0 and info.field_name not in _MAY_BE_ZERO):
+            raise ValueError(f"expected a positive value in {unit}; got {v!r}")
+        return x
+
+    @field_validator("current_gain", mode="before")
+    @classmethod
+    def _gain(cls, v: Any) -> float:
+        if isinstance(v, bool) or not isinstance(v, int | float) or not 1 <= v <= 10_000:
+            raise ValueError(
+                f"expected a current gain (beta) between 1 and 10000 such as 150; got {v!r}"
+            )
+        return float(v)
+
+    @field_validator("min_margin", mode="before")
+    @classmethod
+    def _margin(cls, v: Any) -> float:
+        if isinstance(v, bool) or not isinstance(v, int | float) or not 1 <= v <= 100:
+            raise ValueError(f"expected a start-up margin between 1 and 100 such as 2; got {v!r}")
+        return float(v)
+
+    @model_validator(mode="after")
+    def _consistent(self) -> AmplifierSpec:
+        if (self.r_load is None) == (self.choke is None):
+            raise ValueError("expected exactly one collector load: r_load or choke")
+        if self.r_bias_bottom is not None and self.r_bias_top is None:
+            raise ValueError("r_bias_bottom needs r_bias_top (the resistor from the supply)")
+        if self.c_emitter is not None and self.r_emitter is None:
+            raise ValueError("c_emitter needs r_emitter (it bypasses the emitter resistor)")
+        if self.kind == "bjt":
+            if self.r_bias_top is None and self.gm is None and self.bias_current is None:
+                raise ValueError("a bjt needs its bias: r_bias_top (and r_bias_bottom), or gm")
+        else:
+            if self.gm is None and (self.bias_current is None or self.overdrive_voltage is None):
+                raise ValueError("a fet needs gm, or bias_current with overdrive_voltage")
+            if self.c_mu is None or (self.c_pi is None and self.f_t is None):
+                raise ValueError("a fet needs c_mu (C_gd) and c_pi (C_gs) or f_t")
+        return self
+
+    def to_params(self, parts: Mapping[str, Any] | None = None) -> AmplifierParams:
+        """The core-model description, with inductor and capacitor loss from the part tables.
+
+        ``parts`` maps position → an object with optional attributes ``q``,
+        ``q_frequency`` (Hz) and ``esr`` (ohm) (picker.spec.model.PartSpec). The inductor's
+        ``esr`` is used when it has no ``q``.
+        """
+        parts = parts or {}
+        ind = parts.get("L")
+        q = getattr(ind, "q", None)
+        esr_l = getattr(ind, "esr", None)
+        cap_esr = {
+            pos: float(getattr(p, "esr", None))
+            for pos, p in parts.items()
+            if pos.startswith("C") and getattr(p, "esr", None)
+        }
+        params = AmplifierParams(
+            kind=self.kind,
+            vcc=self.supply,
+            i_bias=self.bias_current,
+            gm=self.gm,
+            current_gain=self.current_gain,
+            early_voltage=self.early_voltage,
+            r_o=self.r_out,
+            c_pi=self.c_pi,
+            c_mu=self.c_mu,
+            f_t=self.f_t,
+            overdrive_voltage=self.overdrive_voltage,
+            r_c=self.r_load,
+            l_choke=self.choke,
+            r_choke=self.choke_resistance,
+            r_b1=self.r_bias_top,
+            r_b2=self.r_bias_bottom,
+            r_e=self.r_emitter,
+            c_e=self.c_emitter,
+            c_block=self.c_coupling,
+            inductor_esr=float(esr_l) if (q is None and esr_l) else 0.0,
+            inductor_q=float(q) if q is not None else None,
+            q_frequency=getattr(ind, "q_frequency", None) if q is not None else None,
+            capacitor_esr=cap_esr,
+        )
+        try:
+            params.small_signal()
+        except ValueError as exc:  # bias network that cannot work, e.g. a divider below V_BE
+            raise SpecError(str(exc), key="amplifier") from None
+        return params
