@@ -8,8 +8,8 @@ from pathlib import Path
 import pytest
 from numpy.testing import assert_allclose
 
-from picker.spec.amplifier import AmplifierSpec
 from picker.errors import SpecError
+from picker.spec.amplifier import AmplifierSpec
 from picker.spec.model import spec_from_dict
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_specs" / "clapp_vfo.toml"

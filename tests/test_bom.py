@@ -15,9 +15,9 @@ import math
 
 import pytest
 
-from picker.report.bom import COLUMNS, bom_csv, bom_json, bom_rows, write_bom
 from picker.buyer.consolidate import BomLine
 from picker.errors import SpecError
+from picker.report.bom import COLUMNS, bom_csv, bom_json, bom_rows, write_bom
 
 HOSTILE = [
     "=cmd|' /C calc'!A0",

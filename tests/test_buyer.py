@@ -26,11 +26,11 @@ from hypothesis import strategies as st
 from scipy import stats
 
 from picker.api.solve import build_problem, load_spec, solve
-from picker.errors import SpecError
 from picker.core.montecarlo import PartVariation, Simulation, sampled_values
-from picker.parts.pairs import pair_table
 from picker.core.screen import corner_span
 from picker.core.search import Designs, Problem, ValueTable, brute_force, search, sort_designs
+from picker.errors import SpecError
+from picker.parts.pairs import pair_table
 from picker.parts.series import expand
 from picker.tank.base import COLPITTS, Parasitics, board_frequency
 

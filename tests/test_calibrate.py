@@ -15,10 +15,10 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import optimize, stats
 
-from picker.tank import base as topo_mod
 from picker.calibration.fit import _ideal_jacobian, apply_parasitics, fit_parasitics, fragment_toml
-from picker.errors import SpecError
 from picker.calibration.measurements import load_measurements, parse_measurements
+from picker.errors import SpecError
+from picker.tank import base as topo_mod
 from picker.tank.base import CLAPP, COLPITTS
 
 

@@ -17,11 +17,11 @@ import typer
 from numpy.testing import assert_allclose
 from typer.testing import CliRunner
 
-from picker.tank import base as topo_mod
 from picker.calibration.fit import fit_parasitics
+from picker.calibration.measurements import load_measurements
 from picker.cli.calibrate import register
 from picker.errors import SpecError
-from picker.calibration.measurements import load_measurements
+from picker.tank import base as topo_mod
 from picker.tank.base import COLPITTS
 
 ROOT = Path(__file__).resolve().parent.parent

@@ -12,8 +12,8 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import integrate, stats
 
-from picker.parts.distributions import KINDS, deviation, mean_of, std_of
 from picker.errors import SpecError
+from picker.parts.distributions import KINDS, deviation, mean_of, std_of
 from picker.spec.lots import MIN_LOT_SIZE, load_lot_csv, lot_deviations
 
 N = 200_000

@@ -7,6 +7,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from picker import units
+from picker.errors import SpecError
 from picker.parts.drift import (
     T_REF,
     check_range,
@@ -19,7 +20,6 @@ from picker.parts.drift import (
     temperature_grid,
     turning_points,
 )
-from picker.errors import SpecError
 
 U = np.random.default_rng(11).random(4000)
 

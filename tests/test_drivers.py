@@ -12,6 +12,7 @@ from numpy.testing import assert_allclose
 from scipy import stats
 from scipy.differentiate import derivative
 
+from picker.core.sampling import uniform_matrix
 from picker.parts.distributions import deviation, std_of
 from picker.parts.drift import drift_factor, get_material
 from picker.production.drivers import (
@@ -22,7 +23,6 @@ from picker.production.drivers import (
     temperature_shift,
     temperature_std,
 )
-from picker.core.sampling import uniform_matrix
 from picker.tank.base import CLAPP, COLPITTS
 
 # Clapp example of REFERENCES.md [derived]: L = 10 µH, C1 = C2 = 1 nF, C3 = 100 pF,

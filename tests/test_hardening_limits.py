@@ -26,8 +26,8 @@ from hypothesis import strategies as st
 from test_fuzz_harness import assert_clean_exit, cheap, load_demo, run_cli, set_path, to_toml
 
 from picker.api import solve as api
-from picker.parts.limits import LUMPED_MAX_HZ, reach
 from picker.core.search import Problem, brute_force, estimate_designs, search, uniform_table
+from picker.parts.limits import LUMPED_MAX_HZ, reach
 from picker.parts.series import expand
 from picker.tank.base import CLAPP, COLPITTS, Parasitics
 

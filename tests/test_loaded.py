@@ -13,12 +13,12 @@ from numpy.testing import assert_allclose
 
 from picker.api import solve as api
 from picker.circuit.amplifier import AmplifierParams, ideal_params
-from picker.parts.drift import get_material
-from picker.circuit.loaded import LoadedModel, fit_surrogate, loaded_nominal, surrogate_response
 from picker.circuit.figures import SQUEGGING_RATIO, nominal_figures, squegging_caution
+from picker.circuit.loaded import LoadedModel, fit_surrogate, loaded_nominal, surrogate_response
 from picker.circuit.loaded_search import loaded_brute_force, loaded_search
 from picker.core.montecarlo import PartVariation, Simulation, count_passing, draw_uniform
 from picker.core.search import Designs, Problem, search, uniform_table
+from picker.parts.drift import get_material
 from picker.parts.series import expand
 from picker.tank.base import CLAPP, COLPITTS, TWO_PI, Parasitics, board_frequency
 

@@ -13,9 +13,9 @@ import numpy as np
 import pytest
 
 from picker.circuit.amplifier import AmplifierParams, amplitude_estimate, loaded_response
-from picker.errors import SolverError
 from picker.circuit.netlist import write_netlist
 from picker.circuit.ngspice import ngspice_path, simulate
+from picker.errors import SolverError
 from picker.tank.base import CLAPP, COLPITTS
 
 pytestmark = pytest.mark.ngspice

@@ -20,8 +20,8 @@ from scipy.stats import binomtest
 
 from picker.api import solve as api
 from picker.cli.main import main
-from picker.parts.drift import drift_factor, get_material
 from picker.errors import SpecError
+from picker.parts.drift import drift_factor, get_material
 from picker.report.designs import to_json
 from picker.tank.base import COLPITTS, TWO_PI
 

@@ -7,8 +7,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from picker.errors import SpecError
 from picker.core.search import Problem, brute_force, search, sort_designs, uniform_table
+from picker.errors import SpecError
 from picker.parts.series import expand
 from picker.tank.base import CLAPP, COLPITTS, Parasitics, board_frequency
 

@@ -17,8 +17,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_array_equal
 
-from picker.parts import series
 from picker.errors import SpecError
+from picker.parts import series
 from picker.parts.series import (
     SERIES_NAMES,
     default_tolerance,

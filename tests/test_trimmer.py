@@ -15,9 +15,8 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from picker.parts.distributions import deviation
 from picker.errors import SpecError
-from picker.tank.base import CLAPP, COLPITTS, resonant_frequency, series_capacitance
+from picker.parts.distributions import deviation
 from picker.production.trimmer import (
     Trimmer,
     across_need,
@@ -29,6 +28,7 @@ from picker.production.trimmer import (
     size_trimmer,
     tunable_share,
 )
+from picker.tank.base import CLAPP, COLPITTS, resonant_frequency, series_capacitance
 
 E12 = np.array([1.0, 1.2, 1.5, 1.8, 2.2, 2.7, 3.3, 3.9, 4.7, 5.6, 6.8, 8.2])  # IEC 60063
 

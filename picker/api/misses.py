@@ -17,8 +17,8 @@ import math
 
 import numpy as np
 
-from picker.parts import series as series_mod
 from picker.core.search import Problem, search
+from picker.parts import series as series_mod
 from picker.units import format_percent
 
 _MISSES = 5
@@ -38,8 +38,8 @@ def _miss(problem, designs, sel, failed_fn):
 
 def _search_or_none(problem: Problem, max_designs: int = 2_000_000):
     """A relaxed search, or empty designs when it would be too large to run (no misses)."""
-    from picker.errors import SpecError
     from picker.core.search import Designs
+    from picker.errors import SpecError
 
     try:
         return search(problem, max_designs=max_designs)
@@ -126,9 +126,9 @@ def explain_loaded_infeasible(spec, problem: Problem, loaded):
     to it by loaded frequency, margin kept, are frequency misses.
     """
     from picker.api.solve import Miss
+    from picker.circuit.loaded_search import loaded_search
     from picker.errors import SpecError
     from picker.parts.limits import unreachable
-    from picker.circuit.loaded_search import loaded_search
 
     if (why := unreachable(problem)) is not None:
         return [], [why]  # the ideal tank cannot reach the window: the loaded one neither

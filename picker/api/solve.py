@@ -13,9 +13,6 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from picker.parts import series as series_mod
-from picker.errors import SpecError
-from picker.parts.limits import lumped_warnings
 from picker.core.montecarlo import (
     PartVariation,
     Simulation,
@@ -26,6 +23,9 @@ from picker.core.montecarlo import (
 from picker.core.ranking import monte_carlo_rank
 from picker.core.screen import corner_span, screen_yield
 from picker.core.search import Designs, Problem, ValueTable, check_size, search, uniform_table
+from picker.errors import SpecError
+from picker.parts import series as series_mod
+from picker.parts.limits import lumped_warnings
 from picker.spec.model import Spec, load_spec, position_unit, spec_from_dict
 from picker.tank.base import Parasitics, board_beta, board_frequency, board_sensitivities
 
@@ -396,9 +396,12 @@ def _over_cost(spec: Spec, problem: Problem, dropped: Designs) -> tuple[list[Mis
     sel = np.lexsort((np.arange(len(dropped)), key))[:5]
     vals = dropped.values(problem)
     misses = [
-        Miss({p: float(v[r]) for p, v in vals.items()}, float(dropped.f_nominal[r]),
-             float(dropped.beta[r]),
-             f"cost {cost[r]:.4g} per board" if np.isfinite(cost[r]) else "no price")  # fmt: skip
+        Miss(
+            {p: float(v[r]) for p, v in vals.items()},
+            float(dropped.f_nominal[r]),
+            float(dropped.beta[r]),
+            f"cost {cost[r]:.4g} per board" if np.isfinite(cost[r]) else "no price",
+        )  # fmt: skip
         for r in sel
     ]
     limit = spec.cost.max_per_board
@@ -430,10 +433,16 @@ def _rank(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray, m: int, 
                                                      target=spec.frequency.target)  # fmt: skip
     if met:
         return ranked, passed, screen, [], checked
-    return ranked, passed, screen, [
-        f"no design checked reaches the yield floor {floor:.4g} (confidence interval low end); "
-        "ranked by yield instead of cost"
-    ], checked
+    return (
+        ranked,
+        passed,
+        screen,
+        [
+            f"no design checked reaches the yield floor {floor:.4g} (confidence interval low end); "
+            "ranked by yield instead of cost"
+        ],
+        checked,
+    )
 
 
 def _extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict]:

@@ -78,8 +78,8 @@ def main(quick: bool = False) -> dict[str, float]:
 def solve_figures(quick: bool = False) -> dict[str, float]:
     """Item 4 of the module docstring; prints and returns the figures."""
     from picker.bench.search import colpitts_problem
-    from picker.circuit.loaded import LoadedModel
     from picker.circuit.figures import nominal_figures, worst_margins
+    from picker.circuit.loaded import LoadedModel
     from picker.circuit.loaded_search import loaded_search
     from picker.core.montecarlo import PartVariation, Simulation, count_passing, draw_uniform
     from picker.core.ranking import monte_carlo_rank

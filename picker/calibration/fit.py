@@ -47,13 +47,13 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import optimize, stats
 
-from picker.errors import SpecError
 from picker.calibration.diagnostics import (
     loss_weights,
     normalised_singular_values,
     select_estimable,
     studentized,
 )
+from picker.errors import SpecError
 from picker.tank.base import Parasitics, Topology, board_values, resonant_frequency
 from picker.units import format_quantity
 

@@ -86,7 +86,12 @@ def nominal_figures(
     bias point is unknown) and ``cautions`` (:func:`picker.circuit.amplifier.cautions` plus
     :func:`squegging_caution`).
     """
-    from picker.circuit.amplifier import OVERDRIVE_MARGIN, amplitude_estimate, capacitor_stress, cautions
+    from picker.circuit.amplifier import (
+        OVERDRIVE_MARGIN,
+        amplitude_estimate,
+        capacitor_stress,
+        cautions,
+    )
 
     pos = topology.positions
     board = board_values({p: np.array([float(values[p])]) for p in pos}, parasitics)

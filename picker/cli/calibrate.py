@@ -62,8 +62,8 @@ def run_calibrate(
 ) -> int:
     """What ``picker calibrate`` does; returns the exit status (0)."""
     from picker.calibration import fit as calibrate
-    from picker.report import calibration as calibrate_report
     from picker.calibration.measurements import load_measurements
+    from picker.report import calibration as calibrate_report
     from picker.tank.base import get_topology
 
     fmt_l = fmt.strip().lower()

@@ -103,9 +103,9 @@ def simulate(
     timeout: float = typer.Option(120.0, "--timeout", help="Seconds to allow ngspice."),
 ) -> None:
     """Simulate the oscillator in ngspice and compare with the loaded model."""
-    from picker.cli.main import _check_format
     from picker.circuit.netlist import write_netlist
     from picker.circuit.ngspice import simulate as run
+    from picker.cli.main import _check_format
     from picker.units import format_quantity
 
     fmt = _check_format(fmt, ("table", "json"))

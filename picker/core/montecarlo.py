@@ -30,8 +30,8 @@ import numpy as np
 from scipy.special import ndtri
 from scipy.stats import binomtest
 
-from picker.parts import distributions
 from picker.core.search import Designs, Problem
+from picker.parts import distributions
 from picker.tank.base import TWO_PI, board_frequency, board_values
 
 #: Boards evaluated per block (samples x candidates); bounds memory.

@@ -18,8 +18,8 @@ from scipy.special import ndtr
 from picker.core.search import Designs, Problem
 
 if TYPE_CHECKING:
-    from picker.parts.drift import Material
     from picker.core.montecarlo import Simulation
+    from picker.parts.drift import Material
 from picker.tank.base import board_frequency, board_sensitivities
 
 SQRT3 = np.sqrt(3.0)

@@ -25,11 +25,6 @@ from typing import cast
 
 import numpy as np
 
-from picker.production import drivers
-from picker.production import tighter
-from picker.production import trimmer
-from picker.parts.drift import Material, check_range, explicit_tempco, get_material, temperature_grid
-from picker.errors import SpecError
 from picker.core.montecarlo import (
     REFERENCE_TEMPERATURE,
     PartVariation,
@@ -40,11 +35,20 @@ from picker.core.montecarlo import (
     sampled_values,
     values_at,
 )
-from picker.spec.production import candidate_values
 from picker.core.ranking import rank_order
 from picker.core.sampling import adaptive_batches
 from picker.core.screen import part_sigmas
 from picker.core.search import Designs, Problem
+from picker.errors import SpecError
+from picker.parts.drift import (
+    Material,
+    check_range,
+    explicit_tempco,
+    get_material,
+    temperature_grid,
+)
+from picker.production import drivers, tighter, trimmer
+from picker.spec.production import candidate_values
 from picker.tank.base import board_frequency, board_sensitivities, board_values
 from picker.units import format_quantity
 

@@ -20,9 +20,9 @@ from typing import Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
 
 from picker import units
+from picker.errors import SpecError
 from picker.parts import limits
 from picker.parts import series as series_mod
-from picker.errors import SpecError
 from picker.spec.production import check_part as _check_production_keys
 from picker.spec.production import parse_part_keys as _parse_production_keys
 from picker.tank.base import TOPOLOGIES, get_topology

@@ -33,9 +33,9 @@ from pathlib import Path
 from typing import Any
 
 from picker import units
+from picker.errors import SpecError
 from picker.parts import drift
 from picker.spec import lots
-from picker.errors import SpecError
 
 #: Materials that belong to an inductor; every other material is a capacitor's.
 INDUCTOR_MATERIALS = ("ferrite", "air")
