@@ -1,19 +1,87 @@
 """picker: standard-value part picking and Monte Carlo yield for LC oscillators.
 
-The notebook API lives in :mod:`picker.api.solve` and is re-exported here lazily:
-``load_spec``, ``solve``, ``evaluate``.
+The public API, importable from the top::
+
+    import picker
+    spec = picker.load_spec("demo_specs/probe_exciter.toml")
+    result = picker.solve(spec)
+    result.candidates[0].values
+
+Names are loaded on first use (PEP 562), so ``import picker`` is cheap and
+``picker --help`` imports none of the numerical stack.
 """
 
 from __future__ import annotations
 
+import importlib
+from typing import TYPE_CHECKING, Any
+
 __version__ = "0.1.0"
 
-__all__ = ["__version__", "evaluate", "load_spec", "solve"]
+# public name -> the module that defines it
+_WHERE: dict[str, str] = {
+    "load_spec": "picker.api",
+    "spec_from_dict": "picker.api",
+    "solve": "picker.api",
+    "evaluate": "picker.api",
+    "run_plan": "picker.api",
+    "SolveResult": "picker.api",
+    "Candidate": "picker.api",
+    "PartPick": "picker.api",
+    "Miss": "picker.api",
+    "PlanRun": "picker.api",
+    "Spec": "picker.spec",
+    "PickerError": "picker.errors",
+    "SpecError": "picker.errors",
+    "InfeasibleError": "picker.errors",
+    "SolverError": "picker.errors",
+}
+
+__all__ = [
+    "Candidate",
+    "InfeasibleError",
+    "Miss",
+    "PartPick",
+    "PickerError",
+    "PlanRun",
+    "SolveResult",
+    "SolverError",
+    "Spec",
+    "SpecError",
+    "__version__",
+    "evaluate",
+    "load_spec",
+    "run_plan",
+    "solve",
+    "spec_from_dict",
+]
+
+if TYPE_CHECKING:  # for type checkers and editors; never runs
+    from picker.api import (
+        Candidate,
+        Miss,
+        PartPick,
+        PlanRun,
+        SolveResult,
+        evaluate,
+        load_spec,
+        run_plan,
+        solve,
+        spec_from_dict,
+    )
+    from picker.errors import InfeasibleError, PickerError, SolverError, SpecError
+    from picker.spec import Spec
 
 
-def __getattr__(name: str):
-    if name in ("load_spec", "solve", "evaluate", "spec_from_dict"):
-        from picker.api import solve as api
+def __getattr__(name: str) -> Any:
+    try:
+        module = _WHERE[name]
+    except KeyError:
+        raise AttributeError(f"module 'picker' has no attribute {name!r}") from None
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value  # later lookups skip this function
+    return value
 
-        return getattr(api, name)
-    raise AttributeError(name)
+
+def __dir__() -> list[str]:
+    return sorted(set(__all__) | {"__doc__", "__file__", "__name__", "__path__"})

@@ -26,7 +26,7 @@ class SpecError(PickerError, ValueError):
         Key path (``parts.C1.tolerance``) or location (``row 12, column value``).
     """
 
-    def __init__(self, message: str, *, file: str | None = None, key: str | None = None):
+    def __init__(self, message: str, *, file: str | None = None, key: str | None = None) -> None:
         self.message = message
         self.file = file
         self.key = key
@@ -53,3 +53,17 @@ class InfeasibleError(PickerError):
 
 class SolverError(PickerError, RuntimeError):
     """An optimiser or external simulator failed in a way the input did not cause."""
+
+
+class KeyedError(ValueError):
+    """A ValueError that knows which sub-key of a table it belongs to.
+
+    Raised inside the spec's validators, where pydantic expects a ValueError;
+    the spec loader turns it into a :class:`SpecError` whose key path ends in
+    ``key`` (``parts.C1`` + ``tolerance``).
+    """
+
+    def __init__(self, key: str, message: str) -> None:
+        self.key = key
+        self.message = message
+        super().__init__(f"@{key}@{message}")

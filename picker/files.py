@@ -1,4 +1,9 @@
-"""Safe output: atomic writes that never clobber input or existing files, CSV cell guard."""
+"""Files in and out: the one reader, atomic writes that never clobber input, CSV cell guard.
+
+Every loader reads its file with :func:`read_text`, so a missing file, a
+directory, an unreadable file or bytes that are not UTF-8 become one-line
+:class:`~picker.errors.SpecError` naming the file (exit status 2).
+"""
 
 from __future__ import annotations
 
@@ -8,6 +13,61 @@ from collections.abc import Iterable
 from pathlib import Path
 
 from picker.errors import SpecError
+
+
+def read_text(
+    path: str | os.PathLike[str],
+    *,
+    what: str,
+    key: str | None = None,
+    encoding: str = "utf-8",
+    missing: str = "no such file",
+    directory: str = "expected {what}, got a directory",
+    unreadable: str = "cannot read the file ({strerror})",
+    undecodable: str = "expected UTF-8 text; byte {start} is not",
+) -> str:
+    """Read a whole text file; every fault is a one-line SpecError naming the file.
+
+    Parameters
+    ----------
+    path:
+        The file; named in messages as given (``str(path)``).
+    what:
+        What the file should be, for the messages ("a spec file").
+    key:
+        The key or location named beside the file, if any.
+    encoding:
+        ``"utf-8"``, or ``"utf-8-sig"`` to drop a leading byte-order mark (CSV
+        files saved by spreadsheets carry one). No newline translation is done.
+    missing, directory, unreadable, undecodable:
+        The wording of each fault: no such file, a directory, any other
+        operating-system error, bytes that are not UTF-8. Each is formatted
+        with ``what``, ``strerror`` (the system's reason), ``reason`` and
+        ``start`` (the decoder's reason and the offset of the bad byte).
+
+    Returns
+    -------
+    str
+        The decoded text.
+    """
+    name = str(path)
+
+    def fault(template: str, **fields: object) -> SpecError:
+        return SpecError(template.format(what=what, **fields), file=name, key=key)
+
+    try:
+        raw = Path(path).read_bytes()
+    except FileNotFoundError as exc:
+        raise fault(missing, strerror=exc.strerror) from None
+    except IsADirectoryError as exc:
+        raise fault(directory, strerror=exc.strerror) from None
+    except OSError as exc:
+        raise fault(unreadable, strerror=exc.strerror) from None
+    try:
+        return raw.decode(encoding)
+    except UnicodeDecodeError as exc:
+        raise fault(undecodable, reason=exc.reason, start=exc.start) from None
+
 
 #: First characters that make a spreadsheet read a cell as a formula
 #: (OWASP, "CSV Injection"; common practice).
@@ -82,7 +142,6 @@ def atomic_write(
     """
     p = Path(path)
     target = check_output(p, force=force, inputs=inputs, key=key)
-    mode = "wb" if isinstance(data, bytes) else "w"
     try:
         fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=target.parent)
     except OSError as exc:
@@ -90,10 +149,12 @@ def atomic_write(
             f"cannot write here ({exc.strerror or exc})", file=str(p), key=key
         ) from None
     try:
-        with os.fdopen(
-            fd, mode, **({} if mode == "wb" else {"encoding": "utf-8", "newline": ""})
-        ) as fh:
-            fh.write(data)
+        if isinstance(data, bytes):
+            with os.fdopen(fd, "wb") as fb:
+                fb.write(data)
+        else:
+            with os.fdopen(fd, "w", encoding="utf-8", newline="") as ft:
+                ft.write(data)
         os.replace(tmp, target)
     except BaseException as exc:
         try:

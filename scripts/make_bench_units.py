@@ -22,7 +22,8 @@ from pathlib import Path
 import numpy as np
 
 from picker.files import atomic_write
-from picker.tank.base import COLPITTS, Parasitics, board_frequency
+from picker.tank.board import Parasitics, board_frequency
+from picker.tank.colpitts import COLPITTS
 from picker.units import format_quantity
 
 TRUTH = Parasitics(stray=18e-12, c1_shunt=0.0, c2_shunt=30e-12, l_scale=0.97)

@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Run the whole test suite from a clean checkout: makes its own virtual
 # environment, installs picker (non-editable) with its test needs, installs
-# ngspice (Debian package) when it is missing, then runs pytest.
+# ngspice (Debian package) when it is missing, checks ruff, ruff format and mypy,
+# then runs pytest.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 VENV="${PICKER_VENV:-.venv-test}"
@@ -19,6 +20,10 @@ fi
 python3 -m venv "$VENV"
 "$VENV/bin/python" -m pip install -q --upgrade pip
 "$VENV/bin/python" -m pip install -q ".[test]"
+# Lint, format and types first: a style or type fault fails CI as surely as a test.
+"$VENV/bin/ruff" check picker tests scripts
+"$VENV/bin/ruff" format --check picker tests scripts
+"$VENV/bin/mypy"
 # Run from a scratch folder so the tests import the installed package, not the source tree.
 ROOT="$(pwd)"
 cd "$(mktemp -d)"

@@ -10,13 +10,18 @@ from numpy.testing import assert_allclose
 
 from picker.errors import SpecError
 from picker.spec.amplifier import AmplifierSpec
-from picker.spec.model import spec_from_dict
+from picker.spec.load import spec_from_dict
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_specs" / "clapp_vfo.toml"
 AMP = {
-    "supply": "12 V", "r_load": "2k2", "r_bias_top": "47 kohm", "r_bias_bottom": "10k",
-    "r_emitter": "1 kΩ", "c_emitter": "10n", "c_coupling": "1 nF",
-}  # fmt: skip
+    "supply": "12 V",
+    "r_load": "2k2",
+    "r_bias_top": "47 kohm",
+    "r_bias_bottom": "10k",
+    "r_emitter": "1 kΩ",
+    "c_emitter": "10n",
+    "c_coupling": "1 nF",
+}
 
 
 def _spec(amp, **parts):
@@ -53,6 +58,9 @@ def test_to_params_takes_inductor_and_capacitor_loss_from_parts():
         ({"supply": "-9 V"}, "amplifier.supply", "positive"),
         ({"colector": "1k"}, "amplifier.colector", "unknown key"),
         ({"kind": "tube"}, "amplifier.kind", "bjt"),
+        ({"stage": "common-base"}, "amplifier.stage", "one of common-emitter, common-source"),
+        ({"stage": ["common-emitter"]}, "amplifier.stage", "one of common-emitter"),
+        ({"kind": "bjt", "stage": "common-source"}, "amplifier.stage", "kind = 'bjt'"),
     ],
 )
 def test_bad_input_names_key_and_expectation(change, key, words):
@@ -66,3 +74,20 @@ def test_divider_too_low_is_a_spec_error():
     a = AmplifierSpec.model_validate({**AMP, "r_bias_top": "1 Mohm", "r_bias_bottom": "10k"})
     with pytest.raises(SpecError, match="too low to turn the transistor on"):
         a.to_params()
+
+
+FET = {**AMP, "gm": "10 mS", "c_mu": "1 pF", "c_pi": "5 pF"}
+
+
+def test_stage_defaults_from_kind_and_kind_from_stage():
+    # kind = "bjt" is the common-emitter stage, kind = "fet" the common-source one, so
+    # specs written before the stage key keep their meaning
+    assert AmplifierSpec.model_validate(AMP).stage == "common-emitter"
+    s = _spec(AMP)
+    assert s.amplifier.to_params(s.parts).stage == "common-emitter"
+    fet = AmplifierSpec.model_validate({**FET, "kind": "fet"})
+    assert fet.stage == "common-source" and fet.to_params().stage == "common-source"
+    by_stage = AmplifierSpec.model_validate({**FET, "stage": "common-source"})
+    assert by_stage.kind == "fet" and by_stage.to_params().kind == "fet"
+    both = AmplifierSpec.model_validate({**AMP, "kind": "bjt", "stage": "common-emitter"})
+    assert both.to_params() == AmplifierSpec.model_validate(AMP).to_params()

@@ -15,7 +15,7 @@ import math
 
 import pytest
 
-from picker.buyer.consolidate import BomLine
+from picker.buyer.model import BomLine
 from picker.errors import SpecError
 from picker.report.bom import COLUMNS, bom_csv, bom_json, bom_rows, write_bom
 

@@ -25,14 +25,16 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from picker.api.solve import build_problem, load_spec, solve
+from picker.api import build_problem, load_spec, solve
 from picker.core.montecarlo import PartVariation, Simulation, sampled_values
 from picker.core.screen import corner_span
-from picker.core.search import Designs, Problem, ValueTable, brute_force, search, sort_designs
+from picker.core.search import Designs, Problem, brute_force, search, sort_designs
 from picker.errors import SpecError
 from picker.parts.pairs import pair_table
 from picker.parts.series import expand
-from picker.tank.base import COLPITTS, Parasitics, board_frequency
+from picker.parts.table import ValueTable
+from picker.tank.board import Parasitics, board_frequency
+from picker.tank.colpitts import COLPITTS
 
 STOCK = """id,kind,value,tolerance,dielectric,core,voltage,on_hand,price,price_breaks
 C-A,C,1 nF,5 %,C0G,,50 V,5000,0.010,100:0.008;1000:0.005
@@ -462,11 +464,11 @@ def test_pair_counts_as_two_parts_in_cost_and_plan(tmp_path):
         want = sum(_unit_price(rows[i], 100) for i in ids)
         assert c.extra["cost"]["per_board"] == pytest.approx(want, abs=1e-9)
         assert c.extra["cost"]["parts_per_board"] == 4
-    from picker.buyer.consolidate import ChannelCandidates
-    from picker.spec.plan import _position_ids
+    from picker.api.plan import position_ids
+    from picker.buyer.model import ChannelCandidates
 
     c = pairs[0]
-    ids = tuple(_position_ids(c.parts[p], p[0], None) for p in ("C1", "C2", "L"))
+    ids = tuple(position_ids(c.parts[p], p[0], None) for p in ("C1", "C2", "L"))
     ch = ChannelCandidates("a", ("C1", "C2", "L"), (ids,), np.array([0.9]))
     assert sum(ch.counts(0).values()) == 4
 
@@ -484,8 +486,9 @@ def test_stock_only_plan_consolidates_on_stock_ids(tmp_path):
     import shutil
     from pathlib import Path
 
-    from picker.cli.consolidate import plan_dict
-    from picker.spec.plan import load_plan, run_plan
+    from picker.api.plan import run_plan
+    from picker.report.plan import plan_dict
+    from picker.spec.plan import load_plan
 
     demo = Path(__file__).resolve().parent.parent / "demo_specs"
     for f in ("plan_sensor_base.toml", "stock_demo.csv"):
@@ -514,7 +517,7 @@ def test_stock_only_plan_consolidates_on_stock_ids(tmp_path):
 
 
 def test_evaluate_a_stock_design(tmp_path):
-    from picker.api.solve import evaluate
+    from picker.api.pipeline import evaluate
 
     spec = load_spec(_write(tmp_path, STOCK_PARTS, "[cost]\nbuild_quantity = 1000\n"))
     rows = _stock_rows(tmp_path / "stock.csv")

@@ -15,11 +15,14 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import optimize, stats
 
-from picker.calibration.fit import _ideal_jacobian, apply_parasitics, fit_parasitics, fragment_toml
+from picker.calibration.fit import fit_parasitics
 from picker.calibration.measurements import load_measurements, parse_measurements
 from picker.errors import SpecError
-from picker.tank import base as topo_mod
-from picker.tank.base import CLAPP, COLPITTS
+from picker.report.calibration import fragment_toml
+from picker.tank import board as topo_mod
+from picker.tank.board import apply_parasitics, ideal_jacobian
+from picker.tank.clapp import CLAPP
+from picker.tank.colpitts import COLPITTS
 
 
 def board_frequency(topology, values, **parasitics):
@@ -59,7 +62,7 @@ def test_board_frequency_textbook_and_closed_form():
     # Clapp example (REFERENCES.md, derived): L = 10 µH, C1 = C2 = 1 nF, C3 = 100 pF -> 5.513289 MHz
     vc = {"C1": 1e-9, "C2": 1e-9, "C3": 100e-12, "L": 10e-6}
     assert_allclose(board_frequency(CLAPP, vc), 5.513289e6, rtol=1e-7)
-    eff = apply_parasitics(vc, {"c2_shunt": 1e-9})
+    eff = apply_parasitics(CLAPP, vc, {"c2_shunt": 1e-9})
     assert eff["C2"] == 2e-9 and eff["C3"] == 100e-12 and eff["stray"] == 0.0
 
 
@@ -70,7 +73,7 @@ def test_analytic_jacobian_matches_central_differences(topo):
         v["C3"] = np.array([100, 150, 220, 330, 470, 680]) * 1e-12
     names = ("stray", "c1_shunt", "c2_shunt", "l_scale")
     at = {"stray": 8e-12, "c1_shunt": 3e-12, "c2_shunt": 20e-12, "l_scale": 1.02}
-    j = _ideal_jacobian(topo, v, at, names)
+    j = ideal_jacobian(topo, v, at, names)
     for i, k in enumerate(names):
         h = 1e-13 if k != "l_scale" else 1e-6
         up = board_frequency(topo, v, **{**at, k: at[k] + h})

@@ -8,27 +8,41 @@ import numpy as np
 from numpy.testing import assert_allclose
 from scipy.optimize import brentq
 
-from picker.circuit import amplifier as circuit
-from picker.circuit.amplifier import (
-    AmplifierParams,
-    amplitude_estimate,
-    capacitor_stress,
-    cautions,
-    ideal_params,
-    loaded_response,
-    loop_gain,
-    loop_gain_matrix,
-)
-from picker.tank.base import CLAPP, COLPITTS, TWO_PI
+from picker.circuit import oscillation
+from picker.circuit.amplifier import AmplifierParams, ideal_params
+from picker.circuit.amplitude import amplitude_estimate, capacitor_stress, cautions
+from picker.circuit.network import loop_gain, loop_gain_matrix
+from picker.circuit.oscillation import loaded_response
+from picker.circuit.stages import bias, small_signal
+from picker.circuit.stages.common_emitter import bessel_ratio
+from picker.tank.base import TWO_PI
+from picker.tank.clapp import CLAPP
+from picker.tank.colpitts import COLPITTS
 
 REAL = AmplifierParams(
-    vcc=9.0, r_c=2200.0, r_b1=47e3, r_b2=10e3, r_e=1000.0, c_e=100e-9, c_block=10e-9,
-    inductor_q=60.0, capacitor_esr={"C1": 0.05},
-)  # fmt: skip
+    vcc=9.0,
+    r_c=2200.0,
+    r_b1=47e3,
+    r_b2=10e3,
+    r_e=1000.0,
+    c_e=100e-9,
+    c_block=10e-9,
+    inductor_q=60.0,
+    capacitor_esr={"C1": 0.05},
+)
 CHOKE = AmplifierParams(
-    vcc=12.0, l_choke=1e-3, r_choke=5.0, r_b1=33e3, r_b2=6.8e3, r_e=470.0, c_e=None,
-    c_block=4.7e-9, inductor_esr=2.0, f_t=250e6, c_mu=2.5e-12,
-)  # fmt: skip
+    vcc=12.0,
+    l_choke=1e-3,
+    r_choke=5.0,
+    r_b1=33e3,
+    r_b2=6.8e3,
+    r_e=470.0,
+    c_e=None,
+    c_block=4.7e-9,
+    inductor_esr=2.0,
+    f_t=250e6,
+    c_mu=2.5e-12,
+)
 
 
 def test_ideal_colpitts_reduces_to_textbook():
@@ -90,8 +104,12 @@ def test_root_finder_matches_brentq_single_elements():
     for params in (REAL, CHOKE):
         for topo in (COLPITTS, CLAPP):
             for _ in range(3):
-                v = {"C1": rng.uniform(300e-12, 3e-9), "C2": rng.uniform(1e-9, 6e-9),
-                     "C3": rng.uniform(100e-12, 1e-9), "L": rng.uniform(2e-6, 50e-6)}  # fmt: skip
+                v = {
+                    "C1": rng.uniform(300e-12, 3e-9),
+                    "C2": rng.uniform(1e-9, 6e-9),
+                    "C3": rng.uniform(100e-12, 1e-9),
+                    "L": rng.uniform(2e-6, 50e-6),
+                }
                 v = {p: v[p] for p in topo.positions}
                 res = loaded_response(topo, v, 3e-12, params)
                 f0 = float(topo.frequency(v, 3e-12))
@@ -124,8 +142,12 @@ def test_closed_form_matches_stacked_linalg_solve():
     f = rng.uniform(0.5e6, 5e6, n)
     for params in (REAL, CHOKE):
         for topo in (COLPITTS, CLAPP):
-            v = {"C1": rng.uniform(300e-12, 3e-9, n), "C2": rng.uniform(1e-9, 6e-9, n),
-                 "C3": rng.uniform(100e-12, 1e-9, n), "L": rng.uniform(2e-6, 50e-6, n)}  # fmt: skip
+            v = {
+                "C1": rng.uniform(300e-12, 3e-9, n),
+                "C2": rng.uniform(1e-9, 6e-9, n),
+                "C3": rng.uniform(100e-12, 1e-9, n),
+                "L": rng.uniform(2e-6, 50e-6, n),
+            }
             a = loop_gain(topo, v, 2e-12, params, f)
             b = loop_gain_matrix(topo, v, 2e-12, params, f)
             assert_allclose(a, b, rtol=1e-9, atol=1e-12)  # both exact; LAPACK rounding only
@@ -138,11 +160,14 @@ def test_closed_form_matches_stacked_linalg_solve():
 
 
 def test_vectorised_shapes_and_chunking_agree_elementwise(monkeypatch):
-    monkeypatch.setattr(circuit, "CHUNK", 64)  # force several chunks and a ragged last one
+    monkeypatch.setattr(oscillation, "CHUNK", 64)  # force several chunks and a ragged last one
     rng = np.random.default_rng(9)
     samples, cands = 37, 5
-    nominal = {"C1": np.geomspace(470e-12, 2.2e-9, cands), "C2": np.full(cands, 3.3e-9),
-               "L": np.full(cands, 10e-6)}  # fmt: skip
+    nominal = {
+        "C1": np.geomspace(470e-12, 2.2e-9, cands),
+        "C2": np.full(cands, 3.3e-9),
+        "L": np.full(cands, 10e-6),
+    }
     v = {
         p: x[None, :] * (1 + 0.05 * rng.standard_normal((samples, cands)))
         for p, x in nominal.items()
@@ -163,7 +188,7 @@ def test_loaded_frequency_below_ideal_with_device_capacitance():
     v = {"C1": 100e-12, "C2": 220e-12, "L": 1e-6}
     res = loaded_response(COLPITTS, v, 0.0, REAL)
     f_ideal = COLPITTS.frequency(v)
-    c_pi = REAL.small_signal().c_pi
+    c_pi = small_signal(REAL).c_pi
     f_pi_only = COLPITTS.frequency({**v, "C2": v["C2"] + c_pi})
     assert res.f_hz < f_pi_only < f_ideal
 
@@ -191,7 +216,7 @@ def test_bessel_describing_function_limits():
     # 2·I1(x)/(x·I0(x)) -> 1 - x²/8 for small x and -> 2/x for large x (series of I0, I1;
     # Abramowitz & Stegun 9.6.10 and 9.7.1).
     assert_allclose(
-        circuit._bessel_ratio(np.array([1e-3, 200.0])),
+        bessel_ratio(np.array([1e-3, 200.0])),
         [1 - 1e-6 / 8, 2 / 200 * (1 - 0.5 / 200)],
         rtol=1e-4,
     )
@@ -200,11 +225,16 @@ def test_bessel_describing_function_limits():
 def test_stress_and_cautions():
     v = {"C1": 1e-9, "C2": 2.2e-9, "L": 10e-6}
     st = capacitor_stress(COLPITTS, v, 0.0, REAL)
-    b = REAL.bias()
+    b = bias(REAL)
     assert set(st) == {"C1", "C2", "CB"}
     assert st["C2"] > b.vb and st["C1"] > b.vb  # DC bias on both tank caps plus AC
-    msgs = cautions(COLPITTS, v, REAL, {k: float(x) for k, x in st.items()},
-                    voltage_rating={"C1": 6.3, "C2": 50.0})  # fmt: skip
+    msgs = cautions(
+        COLPITTS,
+        v,
+        REAL,
+        {k: float(x) for k, x in st.items()},
+        voltage_rating={"C1": 6.3, "C2": 50.0},
+    )
     assert any("C1" in m and "rating" in m for m in msgs) == (float(st["C1"]) > 3.15)
     assert not any("C2" in m and "rating" in m for m in msgs)
     no_cb = AmplifierParams(vcc=9.0, r_c=2200.0, r_b1=47e3, r_b2=10e3, r_e=1000.0)

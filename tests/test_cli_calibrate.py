@@ -19,10 +19,10 @@ from typer.testing import CliRunner
 
 from picker.calibration.fit import fit_parasitics
 from picker.calibration.measurements import load_measurements
-from picker.cli.calibrate import register
+from picker.cli.calibrate import calibrate_cmd
 from picker.errors import SpecError
-from picker.tank import base as topo_mod
-from picker.tank.base import COLPITTS
+from picker.tank import board as topo_mod
+from picker.tank.colpitts import COLPITTS
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "demo_specs" / "bench_units.csv"
@@ -31,7 +31,7 @@ SPEC = ROOT / "demo_specs" / "probe_exciter.toml"
 
 def make_app() -> typer.Typer:
     app = typer.Typer()
-    register(app)
+    app.command("calibrate")(calibrate_cmd)
 
     @app.callback()
     def _root() -> None:  # keeps "calibrate" a named sub-command
@@ -100,7 +100,7 @@ def test_table_names_the_outlier_and_robust_option(tmp_path):
 
 
 def test_fragment_is_accepted_by_the_spec_loader(tmp_path):
-    from picker.spec.model import load_spec
+    from picker.spec.load import load_spec
 
     frag = tmp_path / "board.toml"
     res = run(DEMO, "--spec", SPEC, "--fit", "stray,l_scale", "--fragment", frag)
@@ -177,11 +177,11 @@ def test_calibrated_spec_recentres_the_solve():
     with l_scale = 1 land near √(1/0.97) − 1 ≈ +1.5 % high on the board (derived,
     first order); after calibration the picks should land on the target.
     """
-    from picker.api.solve import load_spec, solve
+    from picker.api import load_spec, solve
 
     m = load_measurements(DEMO, COLPITTS)
     fit = fit_parasitics(COLPITTS, m.values, m.frequency, fit=("stray", "l_scale"))
-    from picker.calibration.fit import fragment_toml
+    from picker.report.calibration import fragment_toml
 
     section = tomllib.loads(fragment_toml(fit))["parasitics"]
     before = load_spec(SPEC)

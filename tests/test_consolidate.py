@@ -18,13 +18,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from picker.buyer.consolidate import (
-    ChannelCandidates,
-    PartInfo,
-    consolidate,
-    evaluate_plan,
-    generic_part_id,
-)
+from picker.buyer.consolidate import consolidate, evaluate_plan
+from picker.buyer.model import ChannelCandidates, PartInfo, generic_part_id
 from picker.errors import SpecError
 
 # ---------------------------------------------------------------------------

@@ -60,6 +60,20 @@ def test_normal_coverage_is_99_73_percent():
     assert_allclose(d.std(axis=0), TOLS / 3, rtol=_se_std(N))
 
 
+def test_normal_clips_u_at_u_min():
+    # Inside the clip the deviation is (t/3)·Φ⁻¹(u) with Φ⁻¹ from scipy.stats.norm.ppf;
+    # a variate below u_min (or at 1) is moved to the clip bound (2^-53 by default,
+    # 1 - 2^-53 at the top), so Φ⁻¹ stays finite.
+    u = np.array([0.0, 1e-200, 0.3, 1.0])
+    t = 0.06
+    top = stats.norm.ppf(1 - 2.0**-53)
+    want = t / 3 * np.array([stats.norm.ppf(2.0**-53)] * 2 + [stats.norm.ppf(0.3), top])
+    assert_allclose(deviation(u, t, "normal")[:, 0], want, rtol=1e-14)
+    low = t / 3 * np.array([stats.norm.ppf(1e-250), stats.norm.ppf(1e-200)])
+    assert_allclose(deviation(u, t, "normal", u_min=1e-250)[:2, 0], low, rtol=1e-14)
+    assert np.all(np.isfinite(deviation(u, t, "normal", u_min=1e-300)))
+
+
 def test_truncated_normal_matches_scipy_truncnorm():
     # scipy.stats.truncnorm(-3, 3) is the reference for the cut-at-±tol variant.
     ref = stats.truncnorm(-3, 3)

@@ -60,6 +60,7 @@ def test_class2_code_letters_follow_eia198():
     # EIA-198 class 2: X −55, Y −30, Z +10; 2 +45 ... 9 +200 °C; A ±1.0 ... V +22/−82 % [pub]
     lows = {"X": -55, "Y": -30, "Z": 10}
     highs = {"2": 45, "4": 65, "5": 85, "6": 105, "7": 125, "8": 150, "9": 200}
+    # rows as the standard's table prints them (fmt: skip, else one entry a line)
     changes = {
         "A": (1.0, 1.0), "B": (1.5, 1.5), "C": (2.2, 2.2), "D": (3.3, 3.3), "E": (4.7, 4.7),
         "F": (7.5, 7.5), "P": (10, 10), "R": (15, 15), "S": (22, 22), "T": (33, 22),

@@ -12,18 +12,18 @@ from numpy.testing import assert_allclose
 from scipy import stats
 from scipy.differentiate import derivative
 
-from picker.core.sampling import uniform_matrix
-from picker.parts.distributions import deviation, std_of
-from picker.parts.drift import drift_factor, get_material
-from picker.production.drivers import (
+from picker.core.propagation import (
     TEMPERATURE,
     first_order_shares,
-    monte_carlo_shares,
-    regression_fit,
     temperature_shift,
     temperature_std,
 )
-from picker.tank.base import CLAPP, COLPITTS
+from picker.core.sampling import uniform_matrix
+from picker.parts.distributions import deviation, std_of
+from picker.parts.drift import drift_factor, get_material
+from picker.production.drivers import monte_carlo_shares, regression_fit
+from picker.tank.clapp import CLAPP
+from picker.tank.colpitts import COLPITTS
 
 # Clapp example of REFERENCES.md [derived]: L = 10 µH, C1 = C2 = 1 nF, C3 = 100 pF,
 # S = (-0.5, -0.041667, -0.041667, -0.416667) for (L, C1, C2, C3).
@@ -47,8 +47,9 @@ def _numeric_sensitivities(topology, values):
 
 def test_shares_sum_to_one_and_match_a_numerical_derivative():
     s_num = _numeric_sensitivities(CLAPP, CLAPP_VALUES)
-    assert_allclose([s_num[p] for p in CLAPP.positions], [-0.041667, -0.041667, -0.416667, -0.5],
-                    atol=1e-6)  # REFERENCES.md Clapp example  # fmt: skip
+    assert_allclose(
+        [s_num[p] for p in CLAPP.positions], [-0.041667, -0.041667, -0.416667, -0.5], atol=1e-6
+    )  # REFERENCES.md Clapp example
     sig = {p: std_of("uniform", TOL[p]) for p in CLAPP.positions}
     sh = first_order_shares(CLAPP.sensitivities(CLAPP_VALUES), sig)
     var_num = {p: (s_num[p] * sig[p]) ** 2 for p in CLAPP.positions}
@@ -60,8 +61,11 @@ def test_shares_sum_to_one_and_match_a_numerical_derivative():
 
 def test_shares_vectorised_over_candidates():
     rng = np.random.default_rng(2)
-    vals = {"C1": rng.uniform(1e-10, 1e-8, 50), "C2": rng.uniform(1e-10, 1e-8, 50),
-            "L": rng.uniform(1e-6, 1e-4, 50)}  # fmt: skip
+    vals = {
+        "C1": rng.uniform(1e-10, 1e-8, 50),
+        "C2": rng.uniform(1e-10, 1e-8, 50),
+        "L": rng.uniform(1e-6, 1e-4, 50),
+    }
     sig = {"C1": std_of("uniform", 0.05), "C2": std_of("normal", 0.1), "L": 0.01}
     sh = first_order_shares(COLPITTS.sensitivities(vals), sig, temperature_std=np.full(50, 1e-3))
     assert set(sh) == {"C1", "C2", "L", TEMPERATURE}
@@ -106,8 +110,12 @@ def test_monte_carlo_regression_confirms_first_order_shares():
 
 def test_temperature_share_first_order_and_monte_carlo():
     # X7R in C3 (EIA-198 ±15 % envelope) and C0G elsewhere; shares at the hot end.
-    mats = {"C1": get_material("C0G"), "C2": get_material("C0G"), "C3": get_material("X7R"),
-            "L": get_material("air")}  # fmt: skip
+    mats = {
+        "C1": get_material("C0G"),
+        "C2": get_material("C0G"),
+        "C3": get_material("X7R"),
+        "L": get_material("air"),
+    }
     t_hot = 85.0
     sens = CLAPP.sensitivities(CLAPP_VALUES)
     sig = {p: std_of("uniform", TOL[p]) for p in CLAPP.positions}
@@ -131,8 +139,12 @@ def test_temperature_shift_first_order_with_small_drifts():
     # Linear classes only: the mean change of ln f is Σ S_i·α0_i·ΔT to first order
     # (JCGM 100:2008, 5.1.2); checked against sampled boards within 4 SE plus the
     # second-order term of ln(1 + Δ) = Δ − Δ²/2 + ..., bounded by Σ|S_i|·E[Δ_i²]/2 · 1.5.
-    mats = {"C1": get_material("polyester"), "C2": get_material("C0G"),
-            "C3": get_material("polypropylene"), "L": get_material("ferrite")}  # fmt: skip
+    mats = {
+        "C1": get_material("polyester"),
+        "C2": get_material("C0G"),
+        "C3": get_material("polypropylene"),
+        "L": get_material("ferrite"),
+    }
     sens = CLAPP.sensitivities(CLAPP_VALUES)
     t = -40.0
     d, ln25, lnt = _clapp_boards(40_000, seed=7, materials=mats, t=t)
@@ -140,8 +152,10 @@ def test_temperature_shift_first_order_with_small_drifts():
     expect = sum(sens[p] * mats[p].tempco * (t - 25.0) for p in mats)
     assert_allclose(shift, expect, rtol=1e-12)
     se = np.std(lnt - ln25) / np.sqrt(lnt.size)
-    m2 = sum(abs(sens[p]) * (mats[p].tempco**2 + mats[p].spread**2 / 3) * (t - 25.0) ** 2
-             for p in mats)  # fmt: skip
+    m2 = sum(
+        abs(sens[p]) * (mats[p].tempco ** 2 + mats[p].spread ** 2 / 3) * (t - 25.0) ** 2
+        for p in mats
+    )
     assert abs(np.mean(lnt - ln25) - shift) < 4 * se + 0.75 * m2
     assert 0.75 * m2 < 0.1 * abs(shift)  # the check still has teeth
     # σ_T is the largest over the temperatures given: the far end from 25 °C here
@@ -161,8 +175,10 @@ def test_gaussian_small_tolerance_yield_matches_lognormal_closed_form():
     ref = stats.norm.cdf(np.log(f_max / f0) / sigma) - stats.norm.cdf(np.log(f_min / f0) / sigma)
     n = 200_000
     u = uniform_matrix(n, 4, rng=np.random.default_rng(8))
-    v = {p: CLAPP_VALUES[p] * (1 + deviation(u[:, j], tol[p], "normal")[:, 0])
-         for j, p in enumerate(CLAPP.positions)}  # fmt: skip
+    v = {
+        p: CLAPP_VALUES[p] * (1 + deviation(u[:, j], tol[p], "normal")[:, 0])
+        for j, p in enumerate(CLAPP.positions)
+    }
     f = CLAPP.frequency(v)
     k = int(np.count_nonzero((f >= f_min) & (f <= f_max)))
     ci = stats.binomtest(k, n).proportion_ci(confidence_level=0.9999, method="wilson")

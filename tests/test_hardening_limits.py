@@ -25,11 +25,15 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from test_fuzz_harness import assert_clean_exit, cheap, load_demo, run_cli, set_path, to_toml
 
-from picker.api import solve as api
-from picker.core.search import Problem, brute_force, estimate_designs, search, uniform_table
-from picker.parts.limits import LUMPED_MAX_HZ, reach
+from picker import api
+from picker.api.misses import reach
+from picker.core.search import Problem, brute_force, estimate_designs, search
+from picker.parts.limits import LUMPED_MAX_HZ
 from picker.parts.series import expand
-from picker.tank.base import CLAPP, COLPITTS, Parasitics
+from picker.parts.table import uniform_table
+from picker.tank.board import Parasitics
+from picker.tank.clapp import CLAPP
+from picker.tank.colpitts import COLPITTS
 
 
 def _spec(tmp_path, data: dict, name: str = "spec.toml"):

@@ -17,7 +17,7 @@ import pytest
 from test_fuzz_harness import cheap, load_demo, set_path
 
 from picker.errors import SpecError
-from picker.spec.model import spec_from_dict
+from picker.spec.load import spec_from_dict
 
 COLPITTS = cheap(load_demo("probe_exciter.toml"))
 AMPLIFIED = cheap(load_demo("colpitts_bjt.toml"))

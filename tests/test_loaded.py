@@ -11,26 +11,43 @@ import pytest
 from conftest import DEMO
 from numpy.testing import assert_allclose
 
-from picker.api import solve as api
+from picker import api
 from picker.circuit.amplifier import AmplifierParams, ideal_params
 from picker.circuit.figures import SQUEGGING_RATIO, nominal_figures, squegging_caution
 from picker.circuit.loaded import LoadedModel, fit_surrogate, loaded_nominal, surrogate_response
 from picker.circuit.loaded_search import loaded_brute_force, loaded_search
-from picker.core.montecarlo import PartVariation, Simulation, count_passing, draw_uniform
-from picker.core.search import Designs, Problem, search, uniform_table
+from picker.core.montecarlo import PartVariation, Simulation, count_passing
+from picker.core.sampling import uniform_matrix
+from picker.core.search import Designs, Problem, search
 from picker.parts.drift import get_material
 from picker.parts.series import expand
-from picker.tank.base import CLAPP, COLPITTS, TWO_PI, Parasitics, board_frequency
+from picker.parts.table import uniform_table
+from picker.tank.base import TWO_PI
+from picker.tank.board import Parasitics, board_frequency
+from picker.tank.clapp import CLAPP
+from picker.tank.colpitts import COLPITTS
 
 # Invented amplifiers (typical small-signal values, not a check value themselves).
 BJT = AmplifierParams(
-    vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_e=47e-9, c_block=10e-9,
+    vcc=9.0,
+    r_c=1500.0,
+    r_b1=68e3,
+    r_b2=10e3,
+    r_e=2200.0,
+    c_e=47e-9,
+    c_block=10e-9,
     inductor_q=50.0,
-)  # fmt: skip
+)
 LOSSY = AmplifierParams(
-    vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_e=47e-9, c_block=10e-9,
+    vcc=9.0,
+    r_c=1500.0,
+    r_b1=68e3,
+    r_b2=10e3,
+    r_e=2200.0,
+    c_e=47e-9,
+    c_block=10e-9,
     inductor_q=8.0,
-)  # fmt: skip
+)
 PAR = Parasitics(stray=3e-12)
 
 
@@ -46,8 +63,11 @@ def test_idealised_amplifier_gives_textbook_frequency_and_margin_on_board_values
     # and loop gain gm·R·C1/C2, here on the *board* values C1 + c1_shunt, C2 + c2_shunt,
     # L·l_scale (the parasitics are applied before the loaded model).
     par = Parasitics(stray=0.0, c1_shunt=5e-12, c2_shunt=12e-12, l_scale=1.04)
-    vals = {"C1": np.array([330e-12, 1e-9]), "C2": np.array([1e-9, 2.2e-9]),
-            "L": np.array([47e-6, 10e-6])}  # fmt: skip
+    vals = {
+        "C1": np.array([330e-12, 1e-9]),
+        "C2": np.array([1e-9, 2.2e-9]),
+        "L": np.array([47e-6, 10e-6]),
+    }
     gm, r = 0.03, 1200.0
     f, m = loaded_nominal(COLPITTS, vals, par, ideal_params(gm, r))
     c1, c2, l_ = vals["C1"] + 5e-12, vals["C2"] + 12e-12, vals["L"] * 1.04
@@ -72,8 +92,9 @@ def _agreement(nominal, params, window, n=4000, seed=5, tol=0.05):
     f_s, _ = surrogate_response(COLPITTS, sur, vals, PAR)
     f_f, m_f = loaded_nominal(COLPITTS, vals, PAR, params)
     lo, hi = window
-    pb = Problem(COLPITTS, {k: uniform_table(v, tol, "list") for k, v in one.items()},
-                 lo, hi, 0.0, 10.0, PAR)  # fmt: skip
+    pb = Problem(
+        COLPITTS, {k: uniform_table(v, tol, "list") for k, v in one.items()}, lo, hi, 0.0, 10.0, PAR
+    )
     d = Designs({k: np.zeros(1, dtype=np.int32) for k in one}, np.zeros(1), np.zeros(1))
     ps = LoadedModel(pb, params, "surrogate")(vals, d)
     pf = (m_f > 1) & (f_f >= lo) & (f_f <= hi)
@@ -92,7 +113,7 @@ def _agreement(nominal, params, window, n=4000, seed=5, tol=0.05):
     ],
 )
 def test_surrogate_agrees_with_full_model(nominal, params, f_tol):
-    # Reference: the full loaded model (picker.circuit.amplifier) on the very same boards. Window
+    # Reference: the full loaded model (picker.circuit.oscillation) on the very same boards. Window
     # ±3 % around the loaded nominal frequency, parts ±5 % uniform, so boards fall on both
     # sides of both edges. Measured: agreement >= 99.98 %, |df/f| <= 8.5e-6 for the first
     # two designs and 6.5e-4 for the heavily loaded one.
@@ -108,8 +129,16 @@ def test_surrogate_at_the_start_up_edge():
     # parts about a fifth of the boards fail to start: the margin expansion (S2) must sort
     # them like the full model (reference: the full model on the same boards).
     nominal = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
-    params = AmplifierParams(vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0,
-                             c_e=47e-9, c_block=10e-9, inductor_q=4.0)  # fmt: skip
+    params = AmplifierParams(
+        vcc=9.0,
+        r_c=1500.0,
+        r_b1=68e3,
+        r_b2=10e3,
+        r_e=2200.0,
+        c_e=47e-9,
+        c_block=10e-9,
+        inductor_q=4.0,
+    )
     f0, m0 = loaded_nominal(COLPITTS, {k: np.array([v]) for k, v in nominal.items()}, PAR, params)
     assert 1.0 < m0[0] < 1.2
     agree, _, share = _agreement(nominal, params, (0.5 * f0[0], 2.0 * f0[0]), tol=0.2)
@@ -117,8 +146,9 @@ def test_surrogate_at_the_start_up_edge():
     assert agree >= 0.995
 
 
-def _small_problem(topology=COLPITTS, f0=1e6, window=0.03, c_range=(10e-12, 10e-9),
-                   l_range=(1e-6, 1e-3)) -> Problem:  # fmt: skip
+def _small_problem(
+    topology=COLPITTS, f0=1e6, window=0.03, c_range=(10e-12, 10e-9), l_range=(1e-6, 1e-3)
+) -> Problem:
     tabs = {p: uniform_table(expand("E12", *c_range), 0.05, "E12") for p in topology.capacitors}
     tabs["L"] = uniform_table(expand("E12", *l_range), 0.05, "E12")
     return Problem(topology, tabs, f0 * (1 - window), f0 * (1 + window), 0.1, 1.0, PAR)
@@ -135,7 +165,7 @@ def test_board_model_surrogate_and_full_count_alike_with_drift():
     parts["C2"] = PartVariation("uniform", material=get_material("X7R"))
     temps = np.array([-20.0, 25.0, 70.0])
     sims = {m: Simulation(pb, parts, temps, LoadedModel(pb, BJT, m)) for m in ("surrogate", "full")}
-    u = draw_uniform(3, 3000, sims["full"].n_columns)
+    u = uniform_matrix(3000, sims["full"].n_columns, rng=np.random.default_rng(3))
     a = count_passing(sims["surrogate"], d, u)
     b = count_passing(sims["full"], d, u)
     assert np.any(b > 0) and np.any(b < 3000)
@@ -155,12 +185,12 @@ def test_board_model_surrogate_and_full_count_alike_with_drift():
             _small_problem(f0=5e6, window=0.05, c_range=(2.2e-12, 220e-12), l_range=(1e-6, 10e-3)),
             BJT,
             1.5,
-        ),  # fmt: skip
+        ),
         (
             _small_problem(CLAPP, f0=3e6, c_range=(47e-12, 4.7e-9), l_range=(2.2e-6, 220e-6)),
             BJT,
             2.0,
-        ),  # fmt: skip
+        ),
     ],
 )
 def test_loaded_search_equals_brute_force(pb, params, min_margin):
@@ -177,8 +207,9 @@ def test_loaded_search_equals_brute_force(pb, params, min_margin):
     assert np.all((got.f_loaded >= pb.f_min) & (got.f_loaded <= pb.f_max))
     f, m = loaded_nominal(pb.topology, got.designs.values(pb), pb.parasitics, params)
     assert_allclose(got.f_loaded, f, rtol=1e-12)
-    assert_allclose(got.designs.f_nominal,
-                    board_frequency(pb.topology, got.designs.values(pb), pb.parasitics))  # fmt: skip
+    assert_allclose(
+        got.designs.f_nominal, board_frequency(pb.topology, got.designs.values(pb), pb.parasitics)
+    )
 
 
 def test_loaded_search_reaches_designs_whose_ideal_frequency_is_outside_the_window():
@@ -198,24 +229,31 @@ def test_squegging_rule():
     f = float(COLPITTS.frequency(board, 0.0))
     tau_tank = 2 * 50.0 / (TWO_PI * f)
     c_edge = SQUEGGING_RATIO * tau_tank / 2200.0
-    base = dict(vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_block=10e-9,
-                inductor_q=50.0)  # fmt: skip
-    assert squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base, c_e=0.9 * c_edge),
-                             f, 3.0) is None  # fmt: skip
-    text = squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base, c_e=1.1 * c_edge),
-                             f, 3.0)  # fmt: skip
+    base = dict(
+        vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_block=10e-9, inductor_q=50.0
+    )
+    assert (
+        squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base, c_e=0.9 * c_edge), f, 3.0)
+        is None
+    )
+    text = squegging_caution(
+        COLPITTS, board, 0.0, AmplifierParams(**base, c_e=1.1 * c_edge), f, 3.0
+    )
     assert text is not None and "squegging" in text and "11 times" in text
     # no bypass capacitor, or a board that does not start: nothing to flag
     assert squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base), f, 3.0) is None
-    assert squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base, c_e=1e-6),
-                             f, 0.5) is None  # fmt: skip
+    assert (
+        squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base, c_e=1e-6), f, 0.5) is None
+    )
 
 
 def test_nominal_figures_flag_a_missing_blocking_capacitor_and_a_polarised_part():
-    params = AmplifierParams(vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0,
-                             c_e=47e-9, inductor_q=50.0)  # fmt: skip
-    fig = nominal_figures(COLPITTS, {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}, PAR, params,
-                          polarised={"C2": True})  # fmt: skip
+    params = AmplifierParams(
+        vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_e=47e-9, inductor_q=50.0
+    )
+    fig = nominal_figures(
+        COLPITTS, {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}, PAR, params, polarised={"C2": True}
+    )
     text = " ".join(fig["cautions"])
     assert "DC-blocking" in text and "C2 is marked polarised" in text
     assert set(fig["peak_voltage_v"]) == {"C1", "C2"}
@@ -239,8 +277,12 @@ def test_demo_solve_reports_ideal_and_loaded(demo_result):
     params = spec.amplifier.to_params(spec.parts)
     for c in r.candidates:
         x = c.extra
-        f_l, m = loaded_nominal(spec.topo, {p: np.array([v]) for p, v in c.values.items()},
-                                api.parasitics_of(spec), params)  # fmt: skip
+        f_l, m = loaded_nominal(
+            spec.topo,
+            {p: np.array([v]) for p, v in c.values.items()},
+            api.parasitics_of(spec),
+            params,
+        )
         assert_allclose(x["f_loaded_hz"], f_l[0], rtol=1e-12)
         assert_allclose(x["startup_margin"], m[0], rtol=1e-12)
         assert c.f_nominal_hz == x["f_ideal_hz"]
@@ -253,8 +295,9 @@ def test_demo_solve_reports_ideal_and_loaded(demo_result):
 
 
 def test_solve_and_evaluate_json_carry_loaded_fields(run_cli, tmp_path):
-    code, out, err = run_cli("solve", str(DEMO_SPEC), "--format", "json", "--samples", "1000",
-                             "--top", "2")  # fmt: skip
+    code, out, err = run_cli(
+        "solve", str(DEMO_SPEC), "--format", "json", "--samples", "1000", "--top", "2"
+    )
     assert code == 0, err
     doc = json.loads(out)
     c = doc["candidates"][0]
@@ -270,8 +313,10 @@ def test_solve_and_evaluate_json_carry_loaded_fields(run_cli, tmp_path):
     assert_allclose(e["f_loaded_hz"], c["f_loaded_hz"], rtol=1e-12)
     assert_allclose(e["startup_margin"], c["startup_margin"], rtol=1e-12)
     # same input and seed: byte-identical JSON
-    assert run_cli("solve", str(DEMO_SPEC), "--format", "json", "--samples", "1000",
-                   "--top", "2")[1] == out  # fmt: skip
+    assert (
+        run_cli("solve", str(DEMO_SPEC), "--format", "json", "--samples", "1000", "--top", "2")[1]
+        == out
+    )
 
 
 def test_table_and_csv_show_loaded_columns(run_cli):
@@ -279,15 +324,24 @@ def test_table_and_csv_show_loaded_columns(run_cli):
     assert code == 0, err
     assert "f ideal" in out and "f loaded" in out and "margin (worst)" in out
     assert "Cautions (circuit model)" in out
-    code, out, _ = run_cli("solve", str(DEMO_SPEC), "--format", "csv", "--samples", "1000",
-                           "--top", "3")  # fmt: skip
+    code, out, _ = run_cli(
+        "solve", str(DEMO_SPEC), "--format", "csv", "--samples", "1000", "--top", "3"
+    )
     header = out.splitlines()[0].split(",")
     assert header[-3:] == ["f_loaded_hz", "startup_margin", "startup_margin_worst"]
 
 
 def test_no_amplifier_leaves_json_without_loaded_fields(run_cli):
-    code, out, _ = run_cli("solve", str(DEMO / "probe_exciter.toml"), "--format", "json",
-                           "--samples", "500", "--top", "1")  # fmt: skip
+    code, out, _ = run_cli(
+        "solve",
+        str(DEMO / "probe_exciter.toml"),
+        "--format",
+        "json",
+        "--samples",
+        "500",
+        "--top",
+        "1",
+    )
     assert code == 0
     assert "f_loaded_hz" not in json.loads(out)["candidates"][0]
 
@@ -306,8 +360,9 @@ def test_margin_infeasible_names_the_start_up_margin(run_cli, tmp_path):
 def test_full_monte_carlo_option_and_bad_value(run_cli, tmp_path):
     text = DEMO_SPEC.read_text(encoding="utf-8")
     full = tmp_path / "full.toml"
-    full.write_text(text.replace("min_margin = 2.0", 'min_margin = 2.0\nmonte_carlo = "full"'),
-                    encoding="utf-8")  # fmt: skip
+    full.write_text(
+        text.replace("min_margin = 2.0", 'min_margin = 2.0\nmonte_carlo = "full"'), encoding="utf-8"
+    )
     spec_f = api.load_spec(full)
     spec_s = api.load_spec(DEMO_SPEC)
     assert isinstance(api.board_model_of(spec_f, api.build_problem(spec_f)), LoadedModel)
@@ -317,8 +372,9 @@ def test_full_monte_carlo_option_and_bad_value(run_cli, tmp_path):
         assert a.values == b.values
         assert abs(a.yield_.passed - b.yield_.passed) <= 0.005 * 1000
     bad = tmp_path / "bad.toml"
-    bad.write_text(text.replace("min_margin = 2.0", 'min_margin = 2.0\nmonte_carlo = "fast"'),
-                   encoding="utf-8")  # fmt: skip
+    bad.write_text(
+        text.replace("min_margin = 2.0", 'min_margin = 2.0\nmonte_carlo = "fast"'), encoding="utf-8"
+    )
     code, _, err = run_cli("solve", str(bad))
     assert code == 2 and "amplifier.monte_carlo" in err and len(err.strip().splitlines()) == 1
 
@@ -329,9 +385,12 @@ def test_worst_margin_is_the_minimum_over_boards():
     params = spec.amplifier.to_params(spec.parts)
     ls = loaded_search(pb, params, min_margin=2.0)
     d = ls.designs.take(np.arange(2))
-    sim = Simulation(pb, {p: PartVariation("uniform") for p in pb.topology.positions},
-                     model=LoadedModel(pb, params, "full"))  # fmt: skip
-    u = draw_uniform(1, 500, sim.n_columns)
+    sim = Simulation(
+        pb,
+        {p: PartVariation("uniform") for p in pb.topology.positions},
+        model=LoadedModel(pb, params, "full"),
+    )
+    u = uniform_matrix(500, sim.n_columns, rng=np.random.default_rng(1))
     extras = api.circuit_extras(spec, sim, d, u)
     from picker.core.montecarlo import sampled_values
 

@@ -11,15 +11,21 @@ from picker.core.montecarlo import (
     Simulation,
     binomial_interval,
     count_passing,
-    draw_uniform,
     estimate_yield,
-    unit_deviation,
 )
 from picker.core.ranking import monte_carlo_rank
-from picker.core.screen import corner_span, screen_yield
-from picker.core.search import Designs, Problem, search, uniform_table
+from picker.core.sampling import uniform_matrix
+from picker.core.screen import corner_span, screen_yield, sigma_lnf
+from picker.core.search import Designs, Problem, search
 from picker.parts.series import expand
-from picker.tank.base import COLPITTS, Parasitics, board_frequency
+from picker.parts.table import uniform_table
+from picker.tank.board import Parasitics, board_frequency
+from picker.tank.colpitts import COLPITTS
+
+
+def _u(seed: int, samples: int, k: int) -> np.ndarray:
+    """The run's common random numbers, as ``picker.api`` draws them (plain random)."""
+    return uniform_matrix(samples, k, rng=np.random.default_rng(seed))
 
 
 def _one_design(c1, c2, l, tols, f_min, f_max):
@@ -49,7 +55,7 @@ def test_only_l_varies_uniform_yield_is_interval_ratio():
     exact = (min(l_hi, l0 * (1 + t)) - max(l_lo, l0 * (1 - t))) / (2 * t * l0)
     n = 200_000
     sim = Simulation.simple(p, "uniform")
-    k = int(count_passing(sim, d, draw_uniform(42, n, 3))[0])
+    k = int(count_passing(sim, d, _u(42, n, 3))[0])
     se = np.sqrt(exact * (1 - exact) / n)
     assert abs(k / n - exact) < 4 * se  # 4 binomial standard errors
     lo, hi = binomial_interval(k, n, 0.9999, "wilson")
@@ -75,28 +81,6 @@ def test_confidence_interval_matches_published_values(k, n, method, lo, hi):
     assert_allclose([y.ci_low, y.ci_high], [ref.low, ref.high], rtol=1e-12)
 
 
-def test_normal_unit_deviation_has_sigma_one_third():
-    # σ = t/3 convention (REFERENCES.md): 99.73 % of parts inside the tolerance.
-    dev = unit_deviation(draw_uniform(3, 400_000, 1), "normal")[:, 0]
-    assert abs(dev.std() - 1 / 3) < 4 * (1 / 3) / np.sqrt(2 * 400_000)
-    inside = np.mean(np.abs(dev) <= 1)
-    assert abs(inside - 0.9973) < 4 * np.sqrt(0.9973 * 0.0027 / 400_000)
-
-
-def test_uniform_unit_deviation_variance():
-    # Uniform over ±t has σ = t/√3 (GUM, JCGM 100:2008 §4.3.7).
-    dev = unit_deviation(draw_uniform(4, 400_000, 1), "uniform")[:, 0]
-    assert abs(dev.std() - 1 / np.sqrt(3)) < 0.002
-    assert dev.min() >= -1 and dev.max() <= 1
-
-
-def test_common_random_numbers_are_reproducible():
-    a = draw_uniform(9, 1000, 3)
-    b = draw_uniform(9, 1000, 3)
-    np.testing.assert_array_equal(a, b)
-    assert not np.array_equal(a, draw_uniform(10, 1000, 3))
-
-
 def test_worst_case_corners_reference_example():
     # REFERENCES.md: Colpitts, all parts ±5 %: exact corners +5.263 % / -4.762 %.
     p, d = _one_design(1e-9, 1e-9, 1e-5, (0.05, 0.05, 0.05), 1.0, 1e12)
@@ -107,8 +91,6 @@ def test_worst_case_corners_reference_example():
 
 def test_rss_reference_example():
     # REFERENCES.md: Colpitts, C1 = C2, all parts ±5 %: RSS = 3.062 % (of ±t, first order).
-    from picker.core.screen import sigma_lnf
-
     p, d = _one_design(1e-9, 1e-9, 1e-5, (0.05, 0.05, 0.05), 1.0, 1e12)
     # With sigma = t (distribution "normal" gives t/3, so scale by 3).
     assert_allclose(sigma_lnf(Simulation.simple(p, "normal"), d)[0] * 3, 0.03062, atol=5e-6)
@@ -127,7 +109,7 @@ def test_screen_never_drops_a_monte_carlo_top_design(distribution, window):
     d = search(p)
     assert len(d) > 50
     sim = Simulation.simple(p, distribution)
-    u = draw_uniform(1, 20000, 3)
+    u = _u(1, 20000, 3)
     passed = count_passing(sim, d, u)
     err = np.abs(np.log(d.f_nominal / f0))
     mc_top = set(np.lexsort((np.arange(len(d)), err, -passed))[:10].tolist())
@@ -141,6 +123,6 @@ def test_screen_agrees_with_monte_carlo_roughly():
     f0 = d.f_nominal[0]
     p = Problem(p.topology, p.tables, f0 * 0.985, f0 * 1.015, 0, np.inf, p.parasitics)
     sim = Simulation.simple(p, "normal")
-    mc = count_passing(sim, d, draw_uniform(2, 100_000, 3))[0] / 100_000
+    mc = count_passing(sim, d, _u(2, 100_000, 3))[0] / 100_000
     # log-normal first-order model is near-exact for small normal tolerances
     assert abs(screen_yield(sim, d)[0] - mc) < 0.01

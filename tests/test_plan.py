@@ -19,7 +19,7 @@ import pytest
 import typer
 from typer.testing import CliRunner
 
-from picker.cli.consolidate import register
+from picker.cli.consolidate import consolidate_cmd
 from picker.errors import SpecError
 from picker.spec.plan import load_plan
 
@@ -28,7 +28,7 @@ DEMO = Path(__file__).resolve().parent.parent / "demo_specs"
 
 def _app():
     app = typer.Typer()
-    register(app)
+    app.command("consolidate")(consolidate_cmd)
 
     @app.command("noop")  # a second command so typer keeps subcommand names
     def _noop() -> None:

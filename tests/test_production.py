@@ -18,12 +18,13 @@ import numpy as np
 import pytest
 from scipy.stats import binomtest
 
-from picker.api import solve as api
+from picker import api
 from picker.cli.main import main
 from picker.errors import SpecError
 from picker.parts.drift import drift_factor, get_material
 from picker.report.designs import to_json
-from picker.tank.base import COLPITTS, TWO_PI
+from picker.tank.base import TWO_PI
+from picker.tank.colpitts import COLPITTS
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_specs" / "production_exciter.toml"
 
@@ -99,9 +100,14 @@ def test_production_keys_parse_to_si():
             "C2": {"dielectric": "X7R", "distribution": "graded", "grade": "1 %"},
             "L": {"core": "ferrite", "tempco": "+150 ppm/°C", "tempco_spread": "50 ppm/°C"},
         },
-        {"temperature": ["-40 °C", "358.15 K"], "precision": "0.5 %", "target": "99 %",
-         "sampling": "Sobol", "trimmer_share": "99 %"},
-    )  # fmt: skip
+        {
+            "temperature": ["-40 °C", "358.15 K"],
+            "precision": "0.5 %",
+            "target": "99 %",
+            "sampling": "Sobol",
+            "trimmer_share": "99 %",
+        },
+    )
     c1, c2, ll = s.parts["C1"], s.parts["C2"], s.parts["L"]
     assert c1.dielectric == "C0G"  # NP0 is C0G (EIA-198 class 1)
     assert dict(c1.prices) == {0.02: 0.06, "C0G": 0.07}  # "2 %" and letter G are one key
@@ -123,10 +129,13 @@ def test_yield_over_temperature_matches_closed_form():
     # every temperature iff d lies in the intersection of the windows at the range ends.
     t, alpha = 0.05, 300e-6
     s = spec_with(
-        {"C1": {"tolerance": "1 ppm"}, "C2": {"tolerance": "1 ppm"},
-         "L": {"tempco": "+300 ppm/°C"}},
+        {
+            "C1": {"tolerance": "1 ppm"},
+            "C2": {"tolerance": "1 ppm"},
+            "L": {"tempco": "+300 ppm/°C"},
+        },
         {"temperature": ["-40 °C", "85 °C"], "samples": 20000},
-    )  # fmt: skip
+    )
     c = api.evaluate(s, DESIGN).candidates[0]
     k = DESIGN["L"] * float(COLPITTS.c_eff(DESIGN))
     lc_lo = 1 / (TWO_PI * s.frequency.f_max) ** 2
@@ -179,8 +188,10 @@ def test_temperature_outside_rating_is_a_warning_in_json():
 
 
 def test_drivers_sum_to_one_and_agree_with_monte_carlo():
-    s = spec_with({"C2": {"dielectric": "X7R"}, "L": {"core": "ferrite"}},
-                  {"temperature": ["-20 °C", "70 °C"], "samples": 20000})  # fmt: skip
+    s = spec_with(
+        {"C2": {"dielectric": "X7R"}, "L": {"core": "ferrite"}},
+        {"temperature": ["-20 °C", "70 °C"], "samples": 20000},
+    )
     c = api.evaluate(s, DESIGN).candidates[0]
     fo, mc = c.extra["drivers"], c.extra["drivers_mc"]["shares"]
     assert set(fo) == {"C1", "C2", "L", "temperature"} == set(mc)
@@ -196,17 +207,27 @@ def test_drivers_sum_to_one_and_agree_with_monte_carlo():
 
 def test_buy_tighter_ranks_the_dominant_change_first():
     # Colpitts S_L = -1/2 (REFERENCES.md): a 20 % inductor swamps 1 % capacitors
-    s = spec_with({"C1": {"tolerance": "1 %"}, "C2": {"tolerance": "1 %"},
-                   "L": {"tolerance": "20 %", "prices": {"20 %": 0.1, "10 %": 0.16}}})  # fmt: skip
+    s = spec_with(
+        {
+            "C1": {"tolerance": "1 %"},
+            "C2": {"tolerance": "1 %"},
+            "L": {"tolerance": "20 %", "prices": {"20 %": 0.1, "10 %": 0.16}},
+        }
+    )
     ch = api.evaluate(s, DESIGN).candidates[0].extra["tighter"]
     assert (ch[0]["position"], ch[0]["from"], ch[0]["to"]) == ("L", 0.2, 0.1)
     assert ch[0]["gain"] > 0.1 and ch[0]["extra_cost_per_board"] == pytest.approx(0.06)
     assert all(a["gain"] >= b["gain"] for a, b in zip(ch, ch[1:], strict=False))
     # X7R (EIA ±15 %) at C1, which carries -½·C2/(C1+C2) = -0.41 of ln f: the swap to
     # C0G must beat any tolerance step of the 1 % parts
-    s = spec_with({"C1": {"dielectric": "X7R", "tolerance": "1 %", "prices": {"X7R": 0.01,
-                   "C0G": 0.03}}, "C2": {"dielectric": "C0G", "tolerance": "1 %"},
-                   "L": {"tolerance": "1 %"}}, {"temperature": ["-40 °C", "85 °C"]})  # fmt: skip
+    s = spec_with(
+        {
+            "C1": {"dielectric": "X7R", "tolerance": "1 %", "prices": {"X7R": 0.01, "C0G": 0.03}},
+            "C2": {"dielectric": "C0G", "tolerance": "1 %"},
+            "L": {"tolerance": "1 %"},
+        },
+        {"temperature": ["-40 °C", "85 °C"]},
+    )
     ch = api.evaluate(s, DESIGN).candidates[0].extra["tighter"]
     assert (ch[0]["position"], ch[0]["kind"], ch[0]["to"]) == ("C1", "material", "C0G")
     assert ch[0]["extra_cost_per_board"] == pytest.approx(0.02)
@@ -224,8 +245,14 @@ def demo():
 def test_demo_shows_the_production_view(demo):
     r, d = demo
     best = d["candidates"][0]
-    for key in ("drivers", "drivers_mc", "yield_over_temperature", "tighter", "tighter_plan",
-                "trimmer"):  # fmt: skip
+    for key in (
+        "drivers",
+        "drivers_mc",
+        "yield_over_temperature",
+        "tighter",
+        "tighter_plan",
+        "trimmer",
+    ):
         assert key in best
     mats = {p: v["material"] for p, v in d["monte_carlo"]["parts"].items()}
     assert mats == {"C1": "C0G", "C2": "X7R", "L": "ferrite"}
@@ -350,8 +377,20 @@ def test_lot_is_read_relative_to_the_spec_and_checked(tmp_path):
 
 def test_cli_plot_writes_pngs_and_keeps_existing(tmp_path, capsys):
     out = tmp_path / "plots"
-    args = ["evaluate", str(DEMO), "--set", "C1=560p", "--set", "C2=2.2n", "--set", "L=56u",
-            "--samples", "2000", "-f", "json"]  # fmt: skip
+    args = [
+        "evaluate",
+        str(DEMO),
+        "--set",
+        "C1=560p",
+        "--set",
+        "C2=2.2n",
+        "--set",
+        "L=56u",
+        "--samples",
+        "2000",
+        "-f",
+        "json",
+    ]
     with pytest.raises(SystemExit) as exc:
         main([*args, "--plot", str(out)])
     assert exc.value.code == 0
@@ -406,6 +445,10 @@ def test_drift_aware_screen_tracks_monte_carlo_and_keeps_the_top(demo):
     truth = rank_order(passed, designs.f_nominal, spec.frequency.target)[:5]
     few = api.solve(spec, candidates=3, top=5)
     got = [tuple(c.values.values()) for c in few.candidates]
-    want = [tuple(float(problem.tables[p].values[designs.idx[p][i]]) for p in problem.topology.positions)
-            for i in truth]  # fmt: skip
+    want = [
+        tuple(
+            float(problem.tables[p].values[designs.idx[p][i]]) for p in problem.topology.positions
+        )
+        for i in truth
+    ]
     assert got == want

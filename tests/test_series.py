@@ -35,6 +35,7 @@ from picker.units import format_quantity, parse_quantity
 IEC_E3 = [1.0, 2.2, 4.7]
 IEC_E6 = [1.0, 1.5, 2.2, 3.3, 4.7, 6.8]
 IEC_E12 = [1.0, 1.2, 1.5, 1.8, 2.2, 2.7, 3.3, 3.9, 4.7, 5.6, 6.8, 8.2]
+# rows of twelve, as the standard prints them (fmt: skip, else one value a line)
 IEC_E24 = [
     1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0,
     3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1,

@@ -6,7 +6,7 @@ import pytest
 from conftest import DEMO, write_spec
 
 from picker.errors import SpecError
-from picker.spec.model import load_spec
+from picker.spec.load import load_spec
 
 BASE = """
 title = "t"

@@ -20,7 +20,7 @@ from picker.production.tighter import (
     rank_changes,
     swap_for,
 )
-from picker.tank.base import COLPITTS
+from picker.tank.colpitts import COLPITTS
 
 # Colpitts, C1 = C2: S_L = -1/2, S_C1 = S_C2 = -1/4 (REFERENCES.md sensitivities).
 SENS = {"C1": -0.25, "C2": -0.25, "L": -0.5}
@@ -88,10 +88,14 @@ def test_dielectric_swap_wins_when_drift_dominates():
     def mc_yield(tol_over, mat_over):
         tol, mat = {**base_tol, **tol_over}, {**base_mat, **mat_over}
         ok = np.ones(u.shape[0], bool)
-        vals25 = {p: nominal[p] * (1 + deviation(u[:, j], tol[p])[:, 0])
-                  for j, p in enumerate(COLPITTS.positions)}  # fmt: skip
-        drift = {p: drift_factor(get_material(mat[p]), temps, u[:, 3 + j])
-                 for j, p in enumerate(COLPITTS.positions)}  # fmt: skip
+        vals25 = {
+            p: nominal[p] * (1 + deviation(u[:, j], tol[p])[:, 0])
+            for j, p in enumerate(COLPITTS.positions)
+        }
+        drift = {
+            p: drift_factor(get_material(mat[p]), temps, u[:, 3 + j])
+            for j, p in enumerate(COLPITTS.positions)
+        }
         for i in range(temps.size):
             v = {p: vals25[p] * (1 + drift[p][i]) for p in vals25}
             f = COLPITTS.frequency(v)

@@ -28,7 +28,9 @@ from picker.production.trimmer import (
     size_trimmer,
     tunable_share,
 )
-from picker.tank.base import CLAPP, COLPITTS, resonant_frequency, series_capacitance
+from picker.tank.base import resonant_frequency, series_capacitance
+from picker.tank.clapp import CLAPP
+from picker.tank.colpitts import COLPITTS
 
 E12 = np.array([1.0, 1.2, 1.5, 1.8, 2.2, 2.7, 3.3, 3.9, 4.7, 5.6, 6.8, 8.2])  # IEC 60063
 
@@ -115,23 +117,24 @@ def test_clapp_trimmer_at_c3_confirmed_by_a_fresh_monte_carlo():
     fac = _factors(CLAPP.positions, tol, 20_000, seed=1)
     fixed_only = CLAPP.frequency({p: nominal[p] * fac[p] for p in CLAPP.positions})
     assert np.mean((fixed_only >= f_min) & (fixed_only <= f_max)) < 0.3  # needs a trimmer
-    adv = size_trimmer(CLAPP, nominal, fac, f_min, f_max, placement="C3",
-                       recentre_values=E12 * 1e-12 * 10)  # fmt: skip
+    adv = size_trimmer(
+        CLAPP, nominal, fac, f_min, f_max, placement="C3", recentre_values=E12 * 1e-12 * 10
+    )
     assert adv.trimmer is not None and adv.tunable >= 0.997
     assert adv.fixed_value < 27e-12  # re-centred below the old C3
     a, b = adv.required
     assert adv.trimmer.c_min <= a and b <= adv.trimmer.c_max
     # independent check: fresh boards, each tuned by the best setting in range
     fresh = _factors(CLAPP.positions, tol, 20_000, seed=2)
-    got = _tuned_share(CLAPP, nominal, fresh, f_min, f_max, adv.trimmer, at="C3",
-                       fixed=adv.fixed_value)  # fmt: skip
+    got = _tuned_share(
+        CLAPP, nominal, fresh, f_min, f_max, adv.trimmer, at="C3", fixed=adv.fixed_value
+    )
     se = np.sqrt(0.997 * 0.003 / 20_000)
     assert got >= 0.997 - 3 * se
     # the narrowest required range itself, as a trimmer: the fresh share is 0.997
     # within its binomial error (narrowest: not much more, sufficient: not less)
     exact = Trimmer(*adv.required)
-    got = _tuned_share(CLAPP, nominal, fresh, f_min, f_max, exact, at="C3",
-                       fixed=adv.fixed_value)  # fmt: skip
+    got = _tuned_share(CLAPP, nominal, fresh, f_min, f_max, exact, at="C3", fixed=adv.fixed_value)
     assert 0.997 - 4 * se <= got <= 0.997 + 4 * se
 
 
@@ -141,10 +144,20 @@ def test_colpitts_trimmer_across_the_tank_with_recentred_c2():
     f0 = float(COLPITTS.frequency(nominal))
     f_min, f_max = f0 * 0.995, f0 * 1.005
     fac = _factors(COLPITTS.positions, tol, 20_000, seed=3)
-    e24 = np.array([1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0, 3.3, 3.6, 3.9,
-                    4.3, 4.7])  # IEC 60063 E24, up to 4.7  # fmt: skip
-    adv = size_trimmer(COLPITTS, nominal, fac, f_min, f_max, placement="across",
-                       recentre="C2", recentre_values=e24 * 100e-12, stray=3e-12)  # fmt: skip
+    e24 = np.array(
+        [1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7]
+    )  # IEC 60063 E24, up to 4.7
+    adv = size_trimmer(
+        COLPITTS,
+        nominal,
+        fac,
+        f_min,
+        f_max,
+        placement="across",
+        recentre="C2",
+        recentre_values=e24 * 100e-12,
+        stray=3e-12,
+    )
     assert adv.trimmer is not None and adv.tunable >= 0.997
     assert adv.position == "C2" and adv.fixed_value < 470e-12
     fresh = _factors(COLPITTS.positions, tol, 20_000, seed=4)
@@ -154,8 +167,9 @@ def test_colpitts_trimmer_across_the_tank_with_recentred_c2():
     se = np.sqrt(0.997 * 0.003 / 20_000)
     assert got >= 0.997 - 3 * se
     a, b = adv.required
-    got = _tuned_share(COLPITTS, nom, fresh, f_min, f_max, Trimmer(a + 3e-12, b + 3e-12),
-                       at="across", fixed=0.0)  # fmt: skip
+    got = _tuned_share(
+        COLPITTS, nom, fresh, f_min, f_max, Trimmer(a + 3e-12, b + 3e-12), at="across", fixed=0.0
+    )
     assert 0.997 - 4 * se <= got <= 0.997 + 4 * se
     # without re-centring the boards need less than nothing: no trimmer can help
     plain = size_trimmer(COLPITTS, nominal, fac, f_min, f_max, stray=3e-12)

@@ -14,19 +14,66 @@ A denser series is suggested for every position whose series has one.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 
 import numpy as np
 
-from picker.core.search import Problem, search
+from picker.api.results import Miss
+from picker.circuit.loaded_search import LoadedSearch, loaded_search
+from picker.core.search import Designs, Problem, search
+from picker.errors import SpecError
 from picker.parts import series as series_mod
-from picker.units import format_percent
+from picker.spec.model import Spec
+from picker.tank.board import board_frequency
+from picker.units import format_percent, format_quantity
+
+__all__ = ["explain_infeasible", "explain_loaded_infeasible", "reach", "unreachable"]
 
 _MISSES = 5
 
 
-def _miss(problem, designs, sel, failed_fn):
-    from picker.api.solve import Miss
+def reach(problem: Problem) -> tuple[float, float]:
+    """Lowest and highest nominal frequency any combination of the value tables gives, Hz.
 
+    The tank frequency falls as any capacitor or the inductor grows (Thomson's
+    formula, f = 1/(2π√(L·C_eff)), with C_eff rising in every capacitor), so
+    the extremes are every part at its largest and every part at its smallest
+    value. The feedback window is ignored: it can only narrow the range.
+    """
+    tabs = problem.tables
+    lows = {p: tabs[p].values[:1] for p in problem.topology.positions}
+    highs = {p: tabs[p].values[-1:] for p in problem.topology.positions}
+    f_hi = float(board_frequency(problem.topology, lows, problem.parasitics)[0])
+    f_lo = float(board_frequency(problem.topology, highs, problem.parasitics)[0])
+    return f_lo, f_hi
+
+
+def unreachable(problem: Problem) -> str | None:
+    """Advice when no combination of the part ranges can reach the window at all, or None."""
+    f_lo, f_hi = reach(problem)
+    names = ", ".join(problem.topology.positions)
+    if f_hi < problem.f_min:
+        return (
+            f"the part ranges cannot reach the window: the highest frequency any combination "
+            f"gives is {format_quantity(f_hi, 'Hz')} (every part at its minimum), below "
+            f"{format_quantity(problem.f_min, 'Hz')}; lower the minimum of {names} (or the stray)"
+        )
+    if f_lo > problem.f_max:
+        return (
+            f"the part ranges cannot reach the window: the lowest frequency any combination "
+            f"gives is {format_quantity(f_lo, 'Hz')} (every part at its maximum), above "
+            f"{format_quantity(problem.f_max, 'Hz')}; raise the maximum of {names}"
+        )
+    return None
+
+
+def _miss(
+    problem: Problem,
+    designs: Designs,
+    sel: np.ndarray,
+    failed_fn: Callable[[float, float], str],
+) -> list[Miss]:
+    """The designs ``sel`` of ``designs`` as misses, each with what it fails."""
     out = []
     for i in sel:
         vals = {p: float(problem.tables[p].values[designs.idx[p][i]]) for p in designs.idx}
@@ -36,11 +83,8 @@ def _miss(problem, designs, sel, failed_fn):
     return out
 
 
-def _search_or_none(problem: Problem, max_designs: int = 2_000_000):
+def _search_or_none(problem: Problem, max_designs: int = 2_000_000) -> Designs:
     """A relaxed search, or empty designs when it would be too large to run (no misses)."""
-    from picker.core.search import Designs
-    from picker.errors import SpecError
-
     try:
         return search(problem, max_designs=max_designs)
     except SpecError:
@@ -48,19 +92,17 @@ def _search_or_none(problem: Problem, max_designs: int = 2_000_000):
         return Designs({p: empty for p in problem.topology.positions}, np.zeros(0), np.zeros(0))
 
 
-def explain_infeasible(spec, problem: Problem):
+def explain_infeasible(spec: Spec, problem: Problem) -> tuple[list[Miss], list[str]]:
     """Nearest misses (list of Miss) and advice lines for an infeasible spec."""
-    from picker.parts.limits import unreachable
-
     if (why := unreachable(problem)) is not None:
         return [], [why]  # no relaxation of the windows can help
-    misses = []
-    advice = []
+    misses: list[Miss] = []
+    advice: list[str] = []
     f_lo, f_hi = problem.f_min, problem.f_max
     centre = np.sqrt(f_lo * f_hi)
     half = np.log(f_hi / centre)
 
-    def freq_failed(f, b):
+    def freq_failed(f: float, b: float) -> str:
         if f < f_lo:
             return f"frequency {format_percent(1 - f / f_lo)} below the window"
         return f"frequency {format_percent(f / f_hi - 1)} above the window"
@@ -98,7 +140,7 @@ def explain_infeasible(spec, problem: Problem):
         )
         sel = np.lexsort((np.arange(len(d)), dist))[:_MISSES]
 
-        def beta_failed(f, beta):
+        def beta_failed(f: float, beta: float) -> str:
             side = "below" if beta < problem.beta_min else "above"
             return f"feedback fraction {beta:.3g} {side} the window {problem.beta_min:g}..{problem.beta_max:g}"
 
@@ -116,7 +158,9 @@ def explain_infeasible(spec, problem: Problem):
     return misses, advice
 
 
-def explain_loaded_infeasible(spec, problem: Problem, loaded):
+def explain_loaded_infeasible(
+    spec: Spec, problem: Problem, loaded: LoadedSearch
+) -> tuple[list[Miss], list[str]]:
     """Misses and advice when no design passes the loaded model (``[amplifier]``).
 
     ``loaded`` is the :class:`picker.circuit.loaded.LoadedSearch` of the spec's window.
@@ -125,29 +169,43 @@ def explain_loaded_infeasible(spec, problem: Problem, loaded):
     window is widened step by step (as for the ideal tank) and the designs closest
     to it by loaded frequency, margin kept, are frequency misses.
     """
-    from picker.api.solve import Miss
-    from picker.circuit.loaded_search import loaded_search
-    from picker.errors import SpecError
-    from picker.parts.limits import unreachable
-
     if (why := unreachable(problem)) is not None:
         return [], [why]  # the ideal tank cannot reach the window: the loaded one neither
-    params = spec.amplifier.to_params(spec.parts)
-    need = spec.amplifier.min_margin
-    misses, advice = [], []
+    amp = spec.amplifier
+    if amp is None:  # no loaded model: the ideal tank's misses
+        return explain_infeasible(spec, problem)
+    params = amp.to_params(spec.parts)
+    need = amp.min_margin
+    misses: list[Miss] = []
+    advice: list[str] = []
 
-    def rows(designs, f_l, m, failed_fn):
+    def rows(
+        designs: Designs,
+        f_l: np.ndarray,
+        m: np.ndarray,
+        failed_fn: Callable[[float, float], str],
+    ) -> list[Miss]:
         out = []
         for r in range(len(designs)):
             vals = {p: float(problem.tables[p].values[designs.idx[p][r]]) for p in designs.idx}
-            out.append(Miss(vals, float(designs.f_nominal[r]), float(designs.beta[r]),
-                            failed_fn(float(f_l[r]), float(m[r]))))  # fmt: skip
+            out.append(
+                Miss(
+                    vals,
+                    float(designs.f_nominal[r]),
+                    float(designs.beta[r]),
+                    failed_fn(float(f_l[r]), float(m[r])),
+                )
+            )
         return out
 
     if len(loaded.low_margin):
         best = float(loaded.low_margin_m[0])
-        misses += rows(loaded.low_margin, loaded.low_margin_f, loaded.low_margin_m,
-                       lambda f, m: f"start-up margin {m:.3g} below the minimum {need:g}")  # fmt: skip
+        misses += rows(
+            loaded.low_margin,
+            loaded.low_margin_f,
+            loaded.low_margin_m,
+            lambda f, m: f"start-up margin {m:.3g} below the minimum {need:g}",
+        )
         gain = "raise the loop gain (more bias current or a larger collector load)"
         if best > 1.0:
             gain += f" or lower amplifier.min_margin to {math.floor(best * 100) / 100:g}"
@@ -163,9 +221,15 @@ def explain_loaded_infeasible(spec, problem: Problem, loaded):
     k = 1.0
     while not misses and half * k < np.log(2.0):
         k *= 2.0
-        relaxed = Problem(problem.topology, problem.tables, centre * np.exp(-half * k),
-                          centre * np.exp(half * k), problem.beta_min, problem.beta_max,
-                          problem.parasitics)  # fmt: skip
+        relaxed = Problem(
+            problem.topology,
+            problem.tables,
+            centre * np.exp(-half * k),
+            centre * np.exp(half * k),
+            problem.beta_min,
+            problem.beta_max,
+            problem.parasitics,
+        )
         try:
             ls = loaded_search(relaxed, params, min_margin=need, max_designs=2_000_000)
         except SpecError:  # too large to explore: no misses from this relaxation
@@ -174,7 +238,7 @@ def explain_loaded_infeasible(spec, problem: Problem, loaded):
             dist = np.abs(np.log(ls.f_loaded / centre))
             sel = np.lexsort((np.arange(len(dist)), dist))[:_MISSES]
 
-            def failed(f, m):
+            def failed(f: float, m: float) -> str:
                 if f < f_lo:
                     return f"loaded frequency {format_percent(1 - f / f_lo)} below the window"
                 return f"loaded frequency {format_percent(f / f_hi - 1)} above the window"

@@ -1,7 +1,5 @@
-"""``python -m picker.bench``: the search and Monte Carlo figures (see picker.bench.search)."""
+"""``python -m picker.bench [--quick]``: the search and Monte Carlo figures (picker.bench.search)."""
 
-import sys
+from picker.bench.search import cli
 
-from picker.bench.search import main
-
-main(quick="--quick" in sys.argv[1:])
+cli(prog="python -m picker.bench")

@@ -15,6 +15,7 @@ The instances are invented (random, seeded); they measure speed only.
 
 from __future__ import annotations
 
+import argparse
 import csv
 import math
 import os
@@ -22,8 +23,12 @@ import tempfile
 import time
 
 import numpy as np
+from scipy.stats import norm
 
-from picker.buyer.consolidate import ChannelCandidates, PartInfo, consolidate
+from picker.buyer.consolidate import consolidate
+from picker.buyer.model import ChannelCandidates, PartInfo
+from picker.spec.stock import load_stock
+from picker.tank.colpitts import COLPITTS
 
 E24 = (
     1.0,
@@ -105,16 +110,12 @@ def synthetic_channel(
     GUM JCGM 100:2008), sensitivities from picker.tank.base; a stand-in for the
     Monte Carlo, good enough to rank a benchmark.
     """
-    from scipy.stats import norm
-
-    from picker.tank.base import COLPITTS
-
     cs = [p for p in stock.values() if p.kind == "C"]
     ls = [p for p in stock.values() if p.kind == "L"]
     cv = np.array([p.value for p in cs])
     ct = np.array([p.tol for p in cs])
-    i, j = np.meshgrid(np.arange(len(cs)), np.arange(len(cs)), indexing="ij")
-    i, j = i.ravel(), j.ravel()
+    gi, gj = np.meshgrid(np.arange(len(cs)), np.arange(len(cs)), indexing="ij")
+    i, j = gi.ravel(), gj.ravel()
     beta = cv[i] / cv[j]
     keep = (beta >= 0.15) & (beta <= 0.5)
     i, j = i[keep], j[keep]
@@ -172,6 +173,7 @@ def bench_reductions(seed: int = 1, workers: int = 2, time_limit: float = 10.0) 
 
 
 def bench_solve(seed: int = 1, workers: int = 2, time_limit: float = 10.0) -> None:
+    """The synthetic plan under three priority orders: status, objective, gap, time."""
     chans, cat = synthetic_plan(seed)
     distinct = len({p for ch in chans for cand in ch.parts for pos in cand for p in pos})
     print(
@@ -249,8 +251,7 @@ def write_stock_csv(path: str, rows: int = 100_000, seed: int = 2) -> None:
 
 
 def bench_load(rows: int = 100_000) -> None:
-    from picker.spec.stock import load_stock
-
+    """Load time of a synthetic stock CSV of ``rows`` rows (best of 3)."""
     with tempfile.TemporaryDirectory() as d:
         path = os.path.join(d, "stock.csv")
         write_stock_csv(path, rows)
@@ -263,6 +264,7 @@ def bench_load(rows: int = 100_000) -> None:
 
 
 def main() -> None:
+    """Print the figures of the module docstring."""
     bench_solve()
     bench_reductions()
     for seed in (2, 3, 4):
@@ -277,4 +279,8 @@ def main() -> None:
 
 
 if __name__ == "__main__":
+    argparse.ArgumentParser(
+        prog="python -m picker.bench.consolidate",
+        description="Speed of consolidation and stock loading.",
+    ).parse_args()
     main()

@@ -9,7 +9,7 @@ Two specs sit just inside the default limits of ``[search]``:
   0.01-1, 10 MHz ±0.001 %: its outer grid is close to ``max_combinations``
   (10^9), the longest search accepted (``--quick``: a tenth of it).
 
-Each runs ``picker.api.solve.solve`` end to end in a fresh process (so the peak is
+Each runs :func:`picker.api.solve` end to end in a fresh process (so the peak is
 its own) with the spec's defaults (20,000 boards, 200 designs checked) and
 prints the feasible count, the time, the peak memory traced by ``tracemalloc``
 (numpy reports its buffers to it) and the process's peak resident set size
@@ -27,9 +27,13 @@ import subprocess
 import sys
 import time
 import tracemalloc
+from typing import Any
+
+from picker import api
+from picker.core.search import estimate_designs
 
 
-def _spec(case: str, quick: bool) -> dict:
+def _spec(case: str, quick: bool) -> dict[str, Any]:
     caps = ("C1", "C2", "C3")
     if case == "feasible":
         parts = {
@@ -57,11 +61,8 @@ def _spec(case: str, quick: bool) -> dict:
     }
 
 
-def measure(case: str, quick: bool = False) -> dict:
+def measure(case: str, quick: bool = False) -> dict[str, Any]:
     """Solve one case in this process; returns its figures (call in a fresh process)."""
-    from picker.api import solve as api
-    from picker.core.search import estimate_designs
-
     spec = api.spec_from_dict(_spec(case, quick))
     n_outer, _ = estimate_designs(api.build_problem(spec))
     tracemalloc.start()
@@ -84,6 +85,7 @@ def measure(case: str, quick: bool = False) -> dict:
 
 
 def main(argv: list[str] | None = None) -> None:
+    """Run each case in a child process and print its figures."""
     ap = argparse.ArgumentParser(prog="python -m picker.bench.memory", description=__doc__)
     ap.add_argument("--quick", action="store_true", help="a tenth of the outer grid")
     ap.add_argument("--case", choices=("feasible", "outer"), help=argparse.SUPPRESS)
@@ -93,8 +95,9 @@ def main(argv: list[str] | None = None) -> None:
         return
     for case in ("feasible", "outer"):
         cmd = [sys.executable, "-m", "picker.bench.memory", "--case", case]
-        r = subprocess.run(cmd + (["--quick"] if args.quick else []), capture_output=True,
-                           text=True, check=True)  # fmt: skip
+        r = subprocess.run(
+            cmd + (["--quick"] if args.quick else []), capture_output=True, text=True, check=True
+        )
         m = json.loads(r.stdout.strip().splitlines()[-1])
         print(
             f"{m['case']:8s} {m['space']:.3g} combinations, outer grid {m['outer']:,} "

@@ -15,11 +15,15 @@ import tracemalloc
 
 import numpy as np
 
-from picker.core.montecarlo import Simulation, count_passing, draw_uniform
+from picker.core.montecarlo import Simulation, count_passing
 from picker.core.ranking import monte_carlo_rank
-from picker.core.search import Problem, search, uniform_table
+from picker.core.sampling import uniform_matrix
+from picker.core.search import Problem, search
 from picker.parts.series import expand
-from picker.tank.base import CLAPP, COLPITTS, Parasitics, board_beta, board_frequency
+from picker.parts.table import uniform_table
+from picker.tank.board import Parasitics, board_beta, board_frequency
+from picker.tank.clapp import CLAPP
+from picker.tank.colpitts import COLPITTS
 
 
 def colpitts_problem(quick: bool = False) -> Problem:
@@ -60,7 +64,7 @@ def naive_full_cube(problem: Problem, budget_s: float | None = None) -> tuple[in
     for k, v0 in enumerate(tabs[0]):
         vals = {pos[0]: np.full(inner.shape[1], v0), **inner_vals}
         f = board_frequency(topo, vals, problem.parasitics)
-        beta = board_beta(vals, problem.parasitics)
+        beta = board_beta(topo, vals, problem.parasitics)
         ok = (f >= problem.f_min) & (f <= problem.f_max)
         ok &= (beta >= problem.beta_min) & (beta <= problem.beta_max)
         count += int(ok.sum())
@@ -85,7 +89,7 @@ def run(quick: bool = False, naive_budget_s: float = 60.0) -> dict:
     samples, m = 20_000, 200
     t1 = time.perf_counter()
     sim = Simulation.simple(p, "uniform")
-    u = draw_uniform(1, samples, sim.n_columns)
+    u = uniform_matrix(samples, sim.n_columns, rng=np.random.default_rng(1))
     ranked, passed, _ = monte_carlo_rank(sim, d, u, m=m, top=10, target=1e6)
     t_mc = time.perf_counter() - t1
     out["colpitts"] = dict(
@@ -151,7 +155,14 @@ def main(quick: bool = False) -> None:
     print(report(run(quick=quick)))
 
 
+def cli(argv: list[str] | None = None, prog: str = "python -m picker.bench.search") -> None:
+    """The command line of ``python -m picker.bench[.search] [--quick]``."""
+    ap = argparse.ArgumentParser(
+        prog=prog, description="Search time, Monte Carlo throughput and peak memory."
+    )
+    ap.add_argument("--quick", action="store_true", help="a smaller space, for a fast look")
+    main(ap.parse_args(argv).quick)
+
+
 if __name__ == "__main__":  # pragma: no cover
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--quick", action="store_true")
-    main(ap.parse_args().quick)
+    cli()

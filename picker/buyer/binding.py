@@ -10,12 +10,20 @@ deletion filter to a minimal set of parts whose stock cannot all be honoured.
 
 from __future__ import annotations
 
+from collections.abc import Mapping, Sequence
+
 from ortools.sat.python import cp_model
 
-from picker.buyer.consolidate import _Model, _on_hand
+from picker.buyer.model import ChannelCandidates, PartInfo, PlanModel, on_hand_of
 
 
-def explain_infeasible(channels, eligible, catalogue, build_qty, stock_on_hand) -> str:
+def explain_infeasible(
+    channels: Sequence[ChannelCandidates],
+    eligible: Mapping[str, Sequence[int]],
+    catalogue: Mapping[str, PartInfo],
+    build_qty: int,
+    stock_on_hand: Mapping[str, float] | None,
+) -> str:
     """Name the constraint that makes the plan infeasible (the min-yield filter passed)."""
     # 2. a channel that cannot be built from stock even on its own
     for ch in channels:
@@ -24,7 +32,7 @@ def explain_infeasible(channels, eligible, catalogue, build_qty, stock_on_hand) 
         for j in eligible[ch.name]:
             over = []
             for p, k in ch.counts(j).items():
-                on_hand = _on_hand(p, catalogue, stock_on_hand)
+                on_hand = on_hand_of(p, catalogue, stock_on_hand)
                 if k * build_qty > on_hand:
                     over.append((p, k, on_hand))
             if not over:
@@ -41,7 +49,7 @@ def explain_infeasible(channels, eligible, catalogue, build_qty, stock_on_hand) 
                 f"{build_qty} boards, on hand {on_hand:g}"
             )
     # 3. stock constraints together: assumption core, then a deletion filter
-    model = _Model(channels, eligible, catalogue, build_qty, stock_on_hand, relaxable=True)
+    model = PlanModel(channels, eligible, catalogue, build_qty, stock_on_hand, relaxable=True)
     solver, st = model.solve(
         None, time_limit=5.0, workers=1, assumptions=list(model.stock_lit.values())
     )
@@ -56,7 +64,7 @@ def explain_infeasible(channels, eligible, catalogue, build_qty, stock_on_hand) 
         if st == cp_model.INFEASIBLE:
             needed.remove(p)
     parts = ", ".join(
-        f"{p!r} (on hand {_on_hand(p, catalogue, stock_on_hand):g}, "
+        f"{p!r} (on hand {on_hand_of(p, catalogue, stock_on_hand):g}, "
         f"at most {model.limit[p]} per board)"
         for p in needed
     )

@@ -42,10 +42,13 @@ and reports the lower bound proven so far.
 from __future__ import annotations
 
 import time
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 
 __all__ = ["CoverResult", "in_some_cover", "min_part_covers", "part_classes"]
+
+#: One option of a channel: (bitmask of the parts it still needs, how many that is).
+Option = tuple[int, int]
 
 
 @dataclass(frozen=True)
@@ -92,7 +95,12 @@ def part_classes(channels: Sequence[Iterable[frozenset[str]]]) -> list[tuple[str
 class _Search:
     """The branch and bound over canonical sets, as Python integer bitmasks."""
 
-    def __init__(self, channels, classes, deadline):
+    def __init__(
+        self,
+        channels: Sequence[Iterable[frozenset[str]]],
+        classes: Sequence[tuple[str, ...]],
+        deadline: float,
+    ) -> None:
         self.deadline = deadline
         self.bit: dict[str, int] = {}
         self.class_of: dict[str, int] = {}
@@ -124,6 +132,7 @@ class _Search:
         return out
 
     def parts_of(self, mask: int) -> frozenset[str]:
+        """The part ids of a mask."""
         out = []
         while mask:
             b = mask & -mask
@@ -137,7 +146,7 @@ class _Search:
         """Every canonical cover with at most ``budget`` parts (exhaustive)."""
         self.seen.clear()
         self.found = set()
-        lists = []
+        lists: list[list[Option]] = []
         for opts in self.options:
             if 0 in opts:  # a candidate with no parts covers its channel for free
                 continue
@@ -152,7 +161,8 @@ class _Search:
         self._dfs(0, lists, budget)
         return self.found
 
-    def _dfs(self, s: int, lists, left: int) -> None:
+    def _dfs(self, s: int, lists: list[list[Option]], left: int) -> None:
+        """Extend state ``s`` by the options of the channel with fewest, ``left`` parts to go."""
         self.nodes += 1
         if self.nodes % 256 == 0 and time.perf_counter() > self.deadline:
             raise _Deadline
@@ -180,9 +190,9 @@ class _Search:
                 self._dfs(state, new, l2)
 
 
-def _minimal(opts):
+def _minimal(opts: Iterable[Option]) -> list[Option]:
     """Options (mask, size) that hold no other option, without repeats, smallest first."""
-    out = []
+    out: list[Option] = []
     ones = 0
     for o, k in sorted(set(opts), key=lambda t: (t[1], t[0])):
         if k == 1:
@@ -193,18 +203,19 @@ def _minimal(opts):
     return out
 
 
-def _union(lst) -> int:
+def _union(lst: Iterable[Option]) -> int:
+    """Every part the options need, as one mask."""
     u = 0
     for o, _ in lst:
         u |= o
     return u
 
 
-def _filter(lists, n: int, left: int):
+def _filter(lists: Iterable[list[Option]], n: int, left: int) -> list[list[Option]] | None:
     """Needs after adding parts ``n``: channels now covered drop out; None if one cannot fit."""
     new = []
     for lst in lists:
-        out = []
+        out: list[Option] = []
         add = out.append
         for o, k in lst:
             y = o & n
@@ -225,7 +236,7 @@ def _filter(lists, n: int, left: int):
     return new
 
 
-def _singles(lists) -> int:
+def _singles(lists: Iterable[list[Option]]) -> int:
     """Parts that complete every channel on their own (bitwise AND of single needs)."""
     both = -1
     for lst in lists:
@@ -239,18 +250,19 @@ def _singles(lists) -> int:
     return both
 
 
-def _bits(mask: int):
+def _bits(mask: int) -> Iterator[int]:
+    """The set bits of ``mask``, lowest first, each as a mask."""
     while mask:
         b = mask & -mask
         yield b
         mask ^= b
 
 
-def _finish(s: int, lists, left: int) -> set[int]:
+def _finish(s: int, lists: list[list[Option]], left: int) -> set[int]:
     """Every cover s | t with |t| <= left, left 1 or 2 (needs hold at most ``left`` parts)."""
     if left == 1:
         return {s | b for b in _bits(_singles(lists))}
-    out = set()
+    out: set[int] = set()
     piv = min(range(len(lists)), key=lambda i: len(lists[i]))
     rest = lists[:piv] + lists[piv + 1 :]
     for o, k in _minimal(lists[piv]):
@@ -333,7 +345,7 @@ def in_some_cover(
     """
     class_of = {p: k for k, g in enumerate(result.classes) for p in g}
 
-    def profile(parts) -> dict[int, int]:
+    def profile(parts: Iterable[str]) -> dict[int, int]:
         out: dict[int, int] = {}
         for p in set(parts):
             k = class_of.get(p, -1)

@@ -23,28 +23,28 @@ faster:
 
 from __future__ import annotations
 
-import math
 import time
 from collections.abc import Mapping, Sequence
+from typing import Any
 
+from picker.buyer.model import YIELD_SCALE, ChannelCandidates, PartInfo, PlanModel, on_hand_of
 from picker.buyer.partcover import CoverResult, in_some_cover, min_part_covers
 
 
-def _on_hand(p, catalogue, stock_on_hand) -> float:
-    if stock_on_hand is not None:
-        return float(stock_on_hand.get(p, math.inf))
-    info = catalogue.get(p)
-    return math.inf if info is None else float(info.on_hand)
-
-
-def stock_possible(channels, eligible, catalogue, build_qty, stock_on_hand) -> dict[str, list[int]]:
+def stock_possible(
+    channels: Sequence[ChannelCandidates],
+    eligible: Mapping[str, Sequence[int]],
+    catalogue: Mapping[str, PartInfo],
+    build_qty: int,
+    stock_on_hand: Mapping[str, float] | None,
+) -> dict[str, list[int]]:
     """Candidates whose every part, alone on the board, is on hand for the build."""
     out = {}
     for ch in channels:
         keep = []
         for j in eligible[ch.name]:
             if all(
-                k * build_qty <= _on_hand(p, catalogue, stock_on_hand)
+                k * build_qty <= on_hand_of(p, catalogue, stock_on_hand)
                 for p, k in ch.counts(j).items()
             ):
                 keep.append(j)
@@ -52,7 +52,9 @@ def stock_possible(channels, eligible, catalogue, build_qty, stock_on_hand) -> d
     return out
 
 
-def _never_cheaper_with_more(info, build_qty: int, most: int, cache: dict) -> bool:
+def _never_cheaper_with_more(
+    info: PartInfo | None, build_qty: int, most: int, cache: dict[tuple[str, int], bool]
+) -> bool:
     """Is the extended price of ``n * build_qty`` units nondecreasing for n = 0..most?"""
     if info is None or not info.break_qty:
         return True  # unpriced parts cost nothing in the model
@@ -64,9 +66,9 @@ def _never_cheaper_with_more(info, build_qty: int, most: int, cache: dict) -> bo
 
 
 def undominated(
-    channels,
+    channels: Sequence[ChannelCandidates],
     eligible: Mapping[str, Sequence[int]],
-    catalogue,
+    catalogue: Mapping[str, PartInfo],
     build_qty: int,
     priorities: Sequence[str],
 ) -> dict[str, list[int]]:
@@ -85,7 +87,7 @@ def undominated(
                 per[p] = max(per.get(p, 0), k)
         for p, k in per.items():
             most[p] = most.get(p, 0) + k
-    cache: dict = {}
+    cache: dict[tuple[str, int], bool] = {}
     bit: dict[str, int] = {}
     out = {}
     for ch in channels:
@@ -95,7 +97,7 @@ def undominated(
             mask = 0
             for p in cnt:
                 mask |= bit.setdefault(p, 1 << len(bit))
-            loss = round((1.0 - float(ch.yield_estimate[j])) * 1_000_000)
+            loss = round((1.0 - float(ch.yield_estimate[j])) * YIELD_SCALE)
             dominated = False
             for _, mb, cb, lb in kept:
                 if mb & ~mask:
@@ -119,7 +121,10 @@ def undominated(
 
 
 def fewest_parts_filter(
-    channels, eligible: Mapping[str, Sequence[int]], *, time_limit: float
+    channels: Sequence[ChannelCandidates],
+    eligible: Mapping[str, Sequence[int]],
+    *,
+    time_limit: float,
 ) -> tuple[dict[str, list[int]] | None, CoverResult]:
     """Prove the fewest distinct parts and keep the candidates inside an optimal cover.
 
@@ -142,15 +147,20 @@ def fewest_parts_filter(
 
 
 def reduced_model(
-    channels, eligible, catalogue, build_qty, stock_on_hand, priorities, limit, reduce
-):
+    channels: Sequence[ChannelCandidates],
+    eligible: Mapping[str, Sequence[int]],
+    catalogue: Mapping[str, PartInfo],
+    build_qty: int,
+    stock_on_hand: Mapping[str, float] | None,
+    priorities: Sequence[str],
+    limit: float,
+    reduce: Sequence[str],
+) -> tuple[PlanModel, int | None, dict[str, Any]]:
     """The CP-SAT model after the exact reductions of :mod:`picker.buyer.reductions`.
 
     Returns (model, proven lower bound on distinct parts or None, facts for the
     report: candidate counts after each reduction, the bound, the covers found).
     """
-    from picker.buyer.consolidate import _Model
-
     t0 = time.perf_counter()
     possible = eligible
     if "stock" in reduce:
@@ -158,7 +168,7 @@ def reduced_model(
     kept = possible
     if "dominated" in reduce:
         kept = undominated(channels, possible, catalogue, build_qty, priorities)
-    info: dict = {
+    info: dict[str, Any] = {
         "candidates": sum(len(v) for v in eligible.values()),
         "stock_possible": sum(len(v) for v in possible.values()),
         "undominated": sum(len(v) for v in kept.values()),
@@ -178,7 +188,7 @@ def reduced_model(
             info["cover_filter"] = True
             info["optimal_covers"] = len(cover.covers)
             info["in_a_cover"] = sum(len(v) for v in inside.values())
-    model = _Model(channels, use, catalogue, build_qty, stock_on_hand)
+    model = PlanModel(channels, use, catalogue, build_qty, stock_on_hand)
     if lower is not None:
         model.m.add(model.objectives["parts"] >= lower)
     hint = {ch.name: use[ch.name][0] for ch in channels if use[ch.name]}  # best yield each

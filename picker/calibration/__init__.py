@@ -1,1 +1,6 @@
-"""picker.calibration."""
+"""Learning a board's parasitics from measured builds.
+
+``measurements`` (the bench CSV), ``fit`` (weighted least squares of the
+parasitics), ``result`` (the estimates and their notes) and ``diagnostics``
+(residuals, leverage, outliers).
+"""

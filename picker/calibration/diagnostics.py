@@ -9,7 +9,10 @@ Jacobian J (shape (n_observations, n_parameters)) and weighted residuals.
   first order (Seber & Wild, *Nonlinear Regression*, 1989, §3.4; Golub & Van
   Loan, *Matrix Computations*, §5.5 on rank deficiency).
 * Outliers: externally studentised residuals (Belsley, Kuh & Welsch,
-  *Regression Diagnostics*, 1980, eq. 2.26).
+  *Regression Diagnostics*, 1980, eq. 2.26), each compared with the
+  Bonferroni critical value t_{1−α/(2n)} of Student's t with n − p − 1 degrees
+  of freedom (Cook & Weisberg, *Residuals and Influence in Regression*, 1982,
+  §2.2), so a batch of good units raises a false alarm at most α of the time.
 """
 
 from __future__ import annotations
@@ -18,8 +21,22 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import stats
 
-__all__ = ["Selection", "loss_weights", "relative_min_sv", "select_estimable", "studentized"]
+__all__ = [
+    "OUTLIER_ALPHA",
+    "OutlierTest",
+    "Selection",
+    "flag_outliers",
+    "loss_weights",
+    "normalised_singular_values",
+    "relative_min_sv",
+    "select_estimable",
+    "studentized",
+]
+
+#: Family-wise false-alarm rate of the outlier test (Bonferroni over the units).
+OUTLIER_ALPHA = 0.05
 
 
 def _normalise(j: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -154,3 +171,62 @@ def studentized(e: np.ndarray, j: np.ndarray) -> np.ndarray:
         t = e / np.sqrt(s2_i * one_h)
     t[(s2_i == 0) & (e == 0)] = 0.0
     return t
+
+
+@dataclass(frozen=True)
+class OutlierTest:
+    """Outcome of :func:`flag_outliers`.
+
+    Attributes
+    ----------
+    studentized:
+        Externally studentised residual of each unit, shape (n,) (NaN when
+        too few units).
+    threshold:
+        The Bonferroni critical value (NaN when too few units).
+    outliers:
+        Ids of the units beyond it, in input order.
+    notes:
+        One sentence per outlier, or one saying the test could not be run.
+    """
+
+    studentized: np.ndarray
+    threshold: float
+    outliers: tuple[str, ...]
+    notes: tuple[str, ...]
+
+
+def flag_outliers(
+    e: np.ndarray, j: np.ndarray, dof: int, unit_ids: Sequence[str], *, loss: str
+) -> OutlierTest:
+    """Flag the units whose studentised residual is beyond the Bonferroni limit.
+
+    ``e`` are weighted residuals (measured minus fitted, shape (n,)), ``j``
+    the weighted Jacobian at the solution (n, p), ``dof`` = n − p. Unit i is
+    an outlier when |t_i| > t_{1−α/(2n)}(n − p − 1), α = :data:`OUTLIER_ALPHA`
+    (:func:`studentized`; Cook & Weisberg 1982, §2.2). Needs dof ≥ 2 and a
+    residual that is not all zero; otherwise nothing is flagged and a note says so.
+    """
+    n = e.size
+    notes: list[str] = []
+    if dof >= 2 and np.sum(e**2) > 0:
+        z = studentized(e, j)
+        t_crit = float(stats.t.ppf(1.0 - OUTLIER_ALPHA / (2 * n), dof - 1))
+        out = tuple(uid for uid, zi in zip(unit_ids, z, strict=True) if abs(zi) > t_crit)
+    else:
+        z = np.full(n, np.nan)
+        t_crit = float("nan")
+        out = ()
+        notes.append("too few units beyond the fitted parameters to look for outliers.")
+    for uid, zi in zip(unit_ids, z, strict=True):
+        if uid in out:
+            tail = (
+                "check it, or refit with a robust loss."
+                if loss == "linear"
+                else "the robust loss down-weights it."
+            )
+            notes.append(
+                f"unit {uid} is an outlier (studentised residual {zi:+.1f}, limit "
+                f"±{t_crit:.2f}); {tail}"
+            )
+    return OutlierTest(z, t_crit, out, tuple(notes))

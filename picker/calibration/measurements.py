@@ -27,15 +27,16 @@ from __future__ import annotations
 
 import csv
 import io
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
 from picker.errors import SpecError
+from picker.files import read_text
 from picker.parts.limits import value_problem
-from picker.tank.base import Topology
+from picker.tank import TOPOLOGIES, Topology
 from picker.units import parse_quantity
 
 __all__ = ["OPTIONAL_COLUMNS", "Measurements", "load_measurements", "parse_measurements"]
@@ -117,7 +118,17 @@ def _positive(text: str, unit: str, file: str, key: str) -> float:
     return x
 
 
+def _other_tank_hint(column: str) -> str:
+    """ " (C3 belongs to a Clapp tank)" when another registered tank has this position, else ""."""
+    for topology in TOPOLOGIES.values():
+        for p in topology.positions:
+            if p.lower() == column:
+                return f" ({p} belongs to a {topology.name.capitalize()} tank)"
+    return ""
+
+
 def _parse_measured(text: str, positions: tuple[str, ...], file: str, key: str) -> set[str]:
+    """The positions named in a ``measured`` cell (names, "all" or "none")."""
     words = [w for w in text.replace(";", " ").replace("|", " ").replace(",", " ").split() if w]
     low = [w.lower() for w in words]
     if not words or low == ["none"]:
@@ -167,9 +178,9 @@ def parse_measurements(text: str, topology: Topology, *, file: str = "<text>") -
     for j, raw in enumerate(header):
         name = raw.strip().lower()
         if name not in wanted:
-            extra = " (C3 belongs to a Clapp tank)" if name == "c3" else ""
+            hint = _other_tank_hint(name)
             raise SpecError(
-                f"unknown column {raw.strip()!r}{extra}; expected "
+                f"unknown column {raw.strip()!r}{hint}; expected "
                 f"{', '.join([*topology.positions, 'frequency', *OPTIONAL_COLUMNS])}",
                 file=file,
                 key=f"row {header_row}, column {j + 1}",
@@ -218,11 +229,16 @@ def parse_measurements(text: str, topology: Topology, *, file: str = "<text>") -
         def key(col: str, line_no: int = line_no) -> str:
             return f"row {line_no}, column {col}"
 
-        def positive(col: str, unit: str, cells=cells, key=key) -> float:
+        def positive(
+            col: str,
+            unit: str,
+            cells: dict[str, str] = cells,
+            key: Callable[[str], str] = key,
+        ) -> float:
             return _positive(cells[col], unit, file, key(col))
 
         for p in topology.positions:
-            values[p].append(positive(p, "F" if p.startswith("C") else "H"))
+            values[p].append(positive(p, topology.unit(p)))
         freq.append(positive("frequency", "Hz"))
         uid = cells.get("unit") or f"row {line_no}"
         if uid in seen:
@@ -262,17 +278,5 @@ def parse_measurements(text: str, topology: Topology, *, file: str = "<text>") -
 
 def load_measurements(path: str | Path, topology: Topology) -> Measurements:
     """Read a measurements CSV file (see the module docstring)."""
-    name = str(path)
-    try:
-        raw = Path(path).read_bytes()
-    except FileNotFoundError:
-        raise SpecError("no such file", file=name) from None
-    except IsADirectoryError:
-        raise SpecError("expected a CSV file, got a directory", file=name) from None
-    except OSError as exc:
-        raise SpecError(f"cannot read the file ({exc.strerror})", file=name) from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise SpecError(f"expected UTF-8 text; byte {exc.start} is not", file=name) from None
-    return parse_measurements(text, topology, file=name)
+    text = read_text(path, what="a CSV file", encoding="utf-8-sig")
+    return parse_measurements(text, topology, file=str(path))

@@ -1,6 +1,6 @@
 """Active-device description: the generic NPN card, the DC bias point and the hybrid-pi values.
 
-The loaded oscillator model (:mod:`picker.circuit.amplifier`) needs the small-signal
+The loaded oscillator model (:mod:`picker.circuit.stages`) needs the small-signal
 parameters of the transistor at its bias point: transconductance ``gm``, input
 resistance ``r_pi``, output resistance ``r_o`` and the capacitances ``c_pi``
 (base-emitter) and ``c_mu`` (base-collector). They come either straight from

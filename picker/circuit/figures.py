@@ -1,20 +1,31 @@
 """Per-design figures of the loaded model for the report: loaded and ideal frequency,
 start-up margin (nominal and worst over the Monte Carlo boards), amplitude, peak voltage
-across each capacitor and plain-language cautions (:mod:`picker.circuit.amplifier` does the physics;
-this module adds the squegging rule and gathers JSON-ready scalars).
+across each capacitor and plain-language cautions (:mod:`picker.circuit.oscillation` and
+:mod:`picker.circuit.amplitude` do the physics; this module adds the squegging rule and
+gathers JSON-ready scalars).
 """
 
 from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from typing import Any
 
 import numpy as np
 
-from picker.circuit.amplifier import AmplifierParams, loaded_response
+from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.amplitude import (
+    OVERDRIVE_MARGIN,
+    amplitude_estimate,
+    capacitor_stress,
+    cautions,
+)
 from picker.circuit.loaded import LoadedModel
+from picker.circuit.oscillation import loaded_response
+from picker.core.montecarlo import Simulation, drift_factors, sampled_values, values_at
 from picker.core.search import Designs
-from picker.tank.base import Parasitics, Topology, board_values
+from picker.tank.base import Topology
+from picker.tank.board import Parasitics, board_values
 
 __all__ = ["SQUEGGING_RATIO", "inductor_q", "nominal_figures", "squegging_caution", "worst_margins"]
 
@@ -25,14 +36,19 @@ __all__ = ["SQUEGGING_RATIO", "inductor_q", "nominal_figures", "squegging_cautio
 SQUEGGING_RATIO = 10.0
 
 
-def inductor_q(topology: Topology, board: Mapping[str, float], stray: float,
-               params: AmplifierParams, f_hz: float) -> float:  # fmt: skip
+def inductor_q(
+    topology: Topology,
+    board: Mapping[str, float],
+    stray: float,
+    params: AmplifierParams,
+    f_hz: float,
+) -> float:
     """Q of the inductor at ``f_hz`` from the amplifier's loss description (inf: lossless).
 
-    Q given at a frequency: ESR = ω_Q·L/Q (constant ESR), as in :mod:`picker.circuit.amplifier`.
+    Q given at a frequency: ESR = ω_Q·L/Q (constant ESR), as in :mod:`picker.circuit.network`.
     """
     w = 2 * math.pi * f_hz
-    l_ = float(board["L"])
+    l_ = float(board[topology.inductor])
     if params.inductor_q is not None:
         fq = params.q_frequency
         if fq is None:
@@ -44,9 +60,13 @@ def inductor_q(topology: Topology, board: Mapping[str, float], stray: float,
 
 
 def squegging_caution(
-    topology: Topology, board: Mapping[str, float], stray: float,
-    params: AmplifierParams, f_hz: float, margin: float,
-) -> str | None:  # fmt: skip
+    topology: Topology,
+    board: Mapping[str, float],
+    stray: float,
+    params: AmplifierParams,
+    f_hz: float,
+    margin: float,
+) -> str | None:
     """The squegging warning for one design, or None (rule: :data:`SQUEGGING_RATIO`).
 
     Needs a bypassed emitter resistor and a lossy inductor (Q finite); a design that
@@ -77,24 +97,17 @@ def nominal_figures(
     *,
     voltage_rating: Mapping[str, float | None] | None = None,
     polarised: Mapping[str, bool] | None = None,
-) -> dict:
+) -> dict[str, Any]:
     """Loaded-model figures of one design at its marked values (JSON-ready scalars).
 
     Keys: ``f_ideal_hz``, ``f_loaded_hz`` (None where it does not oscillate),
     ``startup_margin``, ``amplitude_v`` (peak at the tank top), ``overdriven``,
     ``peak_voltage_v`` (position -> peak V across each capacitor, None where the
-    bias point is unknown) and ``cautions`` (:func:`picker.circuit.amplifier.cautions` plus
+    bias point is unknown) and ``cautions`` (:func:`picker.circuit.amplitude.cautions` plus
     :func:`squegging_caution`).
     """
-    from picker.circuit.amplifier import (
-        OVERDRIVE_MARGIN,
-        amplitude_estimate,
-        capacitor_stress,
-        cautions,
-    )
-
     pos = topology.positions
-    board = board_values({p: np.array([float(values[p])]) for p in pos}, parasitics)
+    board = board_values(topology, {p: np.array([float(values[p])]) for p in pos}, parasitics)
     st = parasitics.stray
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         res = loaded_response(topology, board, st, params)
@@ -104,8 +117,10 @@ def nominal_figures(
     m = float(res.margin[0])
     scal = {p: float(v[0]) for p, v in board.items()}
     peaks = {k: float(v[0]) for k, v in stress.items()}
-    notes = cautions(topology, scal, params, {k: v for k, v in peaks.items() if math.isfinite(v)},
-                     voltage_rating=voltage_rating, polarised=polarised)  # fmt: skip
+    finite = {k: v for k, v in peaks.items() if math.isfinite(v)}
+    notes = cautions(
+        topology, scal, params, finite, voltage_rating=voltage_rating, polarised=polarised
+    )
     sq = squegging_caution(topology, scal, st, params, f, m)
     if sq:
         notes.append(sq)
@@ -126,14 +141,12 @@ def nominal_figures(
     }
 
 
-def worst_margins(sim, designs: Designs, u: np.ndarray) -> np.ndarray:
+def worst_margins(sim: Simulation, designs: Designs, u: np.ndarray) -> np.ndarray:
     """Smallest start-up margin over every simulated board and grid temperature, (n,).
 
     Uses the simulation's board model, a :class:`LoadedModel` (surrogate or full,
     as the yield), one design at a time so memory stays bounded.
     """
-    from picker.core.montecarlo import drift_factors, sampled_values, values_at
-
     model = sim.model
     if not isinstance(model, LoadedModel):
         raise ValueError("worst_margins needs a simulation whose board model is a LoadedModel")

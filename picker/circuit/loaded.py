@@ -1,7 +1,7 @@
 """The loaded (circuit-aware) model in the Monte Carlo: nominal figures, a fast surrogate
 and the board model.
 
-Everything here wraps :func:`picker.circuit.amplifier.loaded_response` (the linearised
+Everything here wraps :func:`picker.circuit.oscillation.loaded_response` (the linearised
 oscillator: frequency where the loop-gain phase crosses zero, start-up margin
 |T| there) on *board* values, i.e. the marked part values with the spec's
 parasitics applied by :func:`picker.tank.base.board_values`. The loaded-feasible
@@ -42,14 +42,18 @@ Axis convention: samples on axis 0, designs on axis 1.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
-from picker.circuit.amplifier import AmplifierParams, LoadedResponse, loaded_response
+from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.network import LoadedResponse
+from picker.circuit.oscillation import loaded_response
 from picker.core.search import Designs, Problem
-from picker.tank.base import Parasitics, Topology, board_frequency, board_values
+from picker.tank.base import Topology
+from picker.tank.board import Parasitics, board_frequency, board_values
 
 #: Central-difference step in ln x for the surrogate's sensitivities.
 SURROGATE_STEP = 0.01
@@ -76,12 +80,13 @@ def loaded_nominal(
 ) -> LoadedResponse:
     """Loaded frequency (Hz) and start-up margin of boards with *marked* values ``values``.
 
-    The parasitics are applied first (:func:`picker.tank.base.board_values`:
+    The parasitics are applied first (:func:`picker.tank.board.board_values`:
     shunts across C1 and C2, inductance scale), the stray goes across L.
     Unpacks as ``f_loaded, margin``; shapes follow ``values``.
     """
-    bv = board_values({p: np.asarray(values[p], dtype=float) for p in topology.positions},
-                      parasitics)  # fmt: skip
+    bv = board_values(
+        topology, {p: np.asarray(values[p], dtype=float) for p in topology.positions}, parasitics
+    )
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         return loaded_response(topology, bv, parasitics.stray, params)
 
@@ -108,7 +113,7 @@ class Surrogate:
     q: dict[tuple[str, str], np.ndarray]
     valid: np.ndarray
 
-    def take(self, sel) -> Surrogate:
+    def take(self, sel: Any) -> Surrogate:
         return Surrogate(
             {p: a[sel] for p, a in self.nominal.items()},
             self.ln_r0[sel],
@@ -121,12 +126,15 @@ class Surrogate:
 
     def row(self, j: int) -> np.ndarray:
         """All coefficients of design ``j`` as one vector (see :meth:`from_rows`)."""
-        return np.array([self.ln_r0[j], self.ln_m0[j], float(self.valid[j])]
-                        + [self.k[p][j] for p in self.k] + [self.m[p][j] for p in self.m]
-                        + [v[j] for v in self.q.values()])  # fmt: skip
+        head = [self.ln_r0[j], self.ln_m0[j], float(self.valid[j])]
+        k = [self.k[p][j] for p in self.k]
+        m = [self.m[p][j] for p in self.m]
+        return np.array(head + k + m + [v[j] for v in self.q.values()])
 
     @classmethod
-    def from_rows(cls, positions, nominal, rows: np.ndarray) -> Surrogate:
+    def from_rows(
+        cls, positions: Sequence[str], nominal: dict[str, np.ndarray], rows: np.ndarray
+    ) -> Surrogate:
         k = len(positions)
         pairs = _pairs(positions)
         return cls(
@@ -140,7 +148,7 @@ class Surrogate:
         )
 
 
-def _pairs(positions) -> list[tuple[str, str]]:
+def _pairs(positions: Sequence[str]) -> list[tuple[str, str]]:
     return [(p, q) for i, p in enumerate(positions) for q in positions[i:]]
 
 
@@ -190,10 +198,11 @@ def fit_surrogate(
     return Surrogate(nom, ln_r[0], kk, ln_m[0], mm, {pq: qq[pq] for pq in _pairs(pos)}, ok)
 
 
-def _ln_ideal(topology: Topology, vals: Mapping[str, np.ndarray], par: Parasitics):
+def _ln_ideal(topology: Topology, vals: Mapping[str, np.ndarray], par: Parasitics) -> Any:
     """ln f of the ideal tank on board values: −ln 2π − ½·ln(L·C_eff) (Thomson's formula)."""
-    bv = board_values(vals, par)
-    return -math.log(2 * math.pi) - 0.5 * np.log(bv["L"] * topology.c_eff(bv, par.stray))
+    bv = board_values(topology, vals, par)
+    lc = bv[topology.inductor] * topology.c_eff(bv, par.stray)
+    return -math.log(2 * math.pi) - 0.5 * np.log(lc)
 
 
 def surrogate_logs(
@@ -246,7 +255,9 @@ class LoadedModel:
     by the design's index tuple; "full" runs the full model on every board.
     """
 
-    def __init__(self, problem: Problem, params: AmplifierParams, method: str = "surrogate"):
+    def __init__(
+        self, problem: Problem, params: AmplifierParams, method: str = "surrogate"
+    ) -> None:
         if method not in METHODS:
             raise ValueError(f"method must be one of {METHODS}, got {method!r}")
         self.problem = problem
@@ -285,7 +296,9 @@ class LoadedModel:
         with np.errstate(invalid="ignore"):
             return np.exp(ln_f), np.exp(ln_m)
 
-    def _calibrate(self, vals: Mapping[str, np.ndarray], sur: Surrogate):
+    def _calibrate(
+        self, vals: Mapping[str, np.ndarray], sur: Surrogate
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """Per design (c,): the surrogate's error bands and a margin bound over the boards' box.
 
         The box spans, per position, the smallest and largest value drawn. The error of
@@ -309,8 +322,9 @@ class LoadedModel:
         sub = sur.take(ok)
         box = {p: (vals[p].min(axis=0)[ok], vals[p].max(axis=0)[ok]) for p in pos}
         k = len(pos)
-        corners = {p: np.stack([box[p][(j >> i) & 1] for j in range(2**k)])
-                   for i, p in enumerate(pos)}  # fmt: skip
+        corners = {
+            p: np.stack([box[p][(j >> i) & 1] for j in range(2**k)]) for i, p in enumerate(pos)
+        }
         f_c, m_c = loaded_nominal(topo, corners, pb.parasitics, self.params)  # (2^k, n_ok)
         s_f, s_m = surrogate_logs(topo, sub, corners, pb.parasitics)
         s_f2, _ = surrogate_logs(topo, sub, corners, pb.parasitics, second_order=True)
@@ -325,16 +339,22 @@ class LoadedModel:
         starts[ok] = s_m.min(axis=0) > band_m[ok]  # a linear function is least at a corner
         return band_f, band_f2, band_m, starts
 
-    def _ln_margin(self, vals, sur: Surrogate, cols: np.ndarray) -> np.ndarray:
+    def _ln_margin(
+        self, vals: Mapping[str, np.ndarray], sur: Surrogate, cols: np.ndarray
+    ) -> np.ndarray:
         """ln margin by (S2) for the designs ``cols`` only, (samples, len(cols))."""
-        out = np.broadcast_to(sur.ln_m0[cols], (vals["L"].shape[0], cols.size)).copy()
+        out = np.broadcast_to(
+            sur.ln_m0[cols], (vals[self.problem.topology.inductor].shape[0], cols.size)
+        ).copy()
         for p in self.problem.topology.positions:
             lnd = np.log(vals[p][:, cols] / sur.nominal[p][None, cols])
             lnd *= sur.m[p][None, cols]
             out += lnd
         return out
 
-    def _logs(self, vals: Mapping[str, np.ndarray], designs: Designs):
+    def _logs(
+        self, vals: Mapping[str, np.ndarray], designs: Designs
+    ) -> tuple[np.ndarray, np.ndarray]:
         """ln f and ln margin, (samples, c): the surrogate, and the full model for the boards
         it cannot decide (within a band of f_min, f_max or margin 1; :meth:`_calibrate`)."""
         pb = self.problem
@@ -348,8 +368,8 @@ class LoadedModel:
             full |= np.abs(ln_m) < band_m
         full |= ~np.isfinite(band_f + band_m)[None, :]
         if full.any():
-            fn, mn = loaded_nominal(topo, {p: vals[p][full] for p in topo.positions},
-                                    pb.parasitics, self.params)  # fmt: skip
+            sel = {p: vals[p][full] for p in topo.positions}
+            fn, mn = loaded_nominal(topo, sel, pb.parasitics, self.params)
             with np.errstate(divide="ignore", invalid="ignore"):
                 ln_f[full], ln_m[full] = np.log(fn), np.log(mn)
         return ln_f, ln_m
@@ -393,7 +413,7 @@ class LoadedModel:
             near[:, cols] |= np.abs(lm) < band_m[cols]
         near[:, ~np.isfinite(band_f + band_m)] = True
         if near.any():
-            f, m = loaded_nominal(topo, {p: vals[p][near] for p in topo.positions},
-                                  pb.parasitics, self.params)  # fmt: skip
+            sel = {p: vals[p][near] for p in topo.positions}
+            f, m = loaded_nominal(topo, sel, pb.parasitics, self.params)
             ok[near] = (m > 1.0) & (f >= pb.f_min) & (f <= pb.f_max)
         return ok

@@ -8,8 +8,9 @@ fraction of a percent to tens of percent (small capacitors against the device
 capacitances and input resistance, or a blocking capacitor in series with a
 large C1), so a global widening of the ideal window would have to cover the
 worst ratio anywhere in the space. Instead, for every outer combination of the
-exact search (a (C1, C2) pair within the feedback window, times C3 or L for a
-Clapp tank), the solved position's index range is found locally:
+exact search (a pair of the feedback pair's values within the feedback window,
+times the other free positions: C3 or L for a Clapp tank), the solved
+position's index range is found locally:
 
 1. start from the ideal index range of the window divided by an estimated ratio
    (the ideal tank with the device capacitances C_mu across C1 and C_pi across
@@ -37,22 +38,26 @@ search's own (:mod:`picker.core.search`).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
-from picker.circuit.amplifier import AmplifierParams, loop_gain
+from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.loaded import loaded_nominal
-from picker.core.search import CHUNK as _SEARCH_CHUNK
+from picker.circuit.network import loop_gain
+from picker.circuit.stages import small_signal
+from picker.core.search import CHUNK as SEARCH_CHUNK
 from picker.core.search import (
     Designs,
     Problem,
-    _beta_pairs,
-    _expand_ranges,
-    _solve_interval,
-    _solved_position,
+    expand_ranges,
+    outer_enumeration,
+    solve_interval,
 )
-from picker.tank.base import Topology, board_beta, board_frequency, board_values
+from picker.errors import SpecError
+from picker.tank.base import Topology
+from picker.tank.board import board_beta, board_frequency, board_values
 
 #: Outer combinations per chunk of the loaded search (bounds memory).
 OUTER_CHUNK = 1 << 15
@@ -87,7 +92,9 @@ ABOVE, INSIDE, BELOW, UNCLEAR = 1, 0, -1, 2
 FLAT_PHASE = 1e-3
 
 
-def _side(problem: Problem, params: AmplifierParams, vals: dict[str, np.ndarray]):
+def _side(
+    problem: Problem, params: AmplifierParams, vals: dict[str, np.ndarray]
+) -> tuple[np.ndarray, np.ndarray]:
     """Where the loaded frequency lies against the window, from the phase of T (step 2).
 
     The phase falls through zero at the oscillation frequency. With φ_lo, φ_hi the
@@ -97,7 +104,7 @@ def _side(problem: Problem, params: AmplifierParams, vals: dict[str, np.ndarray]
     codes and whether the phase changes by more than FLAT_PHASE.
     """
     pb = problem
-    bv = board_values(vals, pb.parasitics)
+    bv = board_values(pb.topology, vals, pb.parasitics)
     st = pb.parasitics.stray
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         lo = np.angle(loop_gain(pb.topology, bv, st, params, pb.f_min))
@@ -111,17 +118,23 @@ def _side(problem: Problem, params: AmplifierParams, vals: dict[str, np.ndarray]
     return code, np.abs(fall) > FLAT_PHASE
 
 
-def _estimated_ratio(problem: Problem, params: AmplifierParams, solved: str, vals) -> np.ndarray:
-    """Step 1: f_loaded/f_ideal guessed with C_mu across C1 and C_pi across C2."""
-    ss = params.small_signal()
+def _estimated_ratio(
+    problem: Problem, params: AmplifierParams, solved: str, vals: dict[str, np.ndarray]
+) -> np.ndarray:
+    """Step 1: f_loaded/f_ideal guessed with C_mu across C1 and C_pi across C2.
+
+    C_mu sits across the feedback pair's output side, C_pi across its input side.
+    """
+    ss = small_signal(params)
     pb = problem
     centre = math.sqrt(pb.f_min * pb.f_max)
-    lo, hi = _solve_interval(replace(pb, f_min=centre, f_max=centre), solved, vals)
+    lo, hi = solve_interval(pb, solved, vals, f_min=centre, f_max=centre)
     x = lo  # the window is the single point ``centre``, so lo == hi
     full = dict(vals)
     full[solved] = np.where(np.isfinite(x) & (x > 0), x, 1.0)
-    bv = board_values(full, pb.parasitics)
-    dev = {**bv, "C1": bv["C1"] + ss.c_mu, "C2": bv["C2"] + ss.c_pi}
+    bv = board_values(pb.topology, full, pb.parasitics)
+    out, inp = pb.topology.feedback_pair
+    dev = {**bv, out: bv[out] + ss.c_mu, inp: bv[inp] + ss.c_pi}
     r = pb.topology.frequency(dev, pb.parasitics.stray) / pb.topology.frequency(
         bv, pb.parasitics.stray
     )
@@ -133,11 +146,18 @@ def _empty(topology: Topology) -> Designs:
     return Designs({p: np.zeros(0, dtype=np.int32) for p in topology.positions}, z, z)
 
 
-def _collect(problem, idx, min_margin, params, keep, parts):
+def _collect(
+    problem: Problem,
+    idx: dict[str, np.ndarray],
+    min_margin: float,
+    params: AmplifierParams,
+    keep: int,
+    parts: dict[str, Any],
+) -> None:
     """Full model on candidate index tuples; append feasible and low-margin ones to ``parts``."""
     vals = {p: problem.tables[p].values[i] for p, i in idx.items()}
     f_i = board_frequency(problem.topology, vals, problem.parasitics)
-    beta = board_beta(vals, problem.parasitics)
+    beta = board_beta(problem.topology, vals, problem.parasitics)
     f_l, m = loaded_nominal(problem.topology, vals, problem.parasitics, params)
     inw = (f_l >= problem.f_min) & (f_l <= problem.f_max)
     inw &= (beta >= problem.beta_min) & (beta <= problem.beta_max)
@@ -152,8 +172,8 @@ def _collect(problem, idx, min_margin, params, keep, parts):
                              f_l[low], m[low]))  # fmt: skip
 
 
-def _finish(topology, parts, keep) -> LoadedSearch:
-    def cat(items):
+def _finish(topology: Topology, parts: dict[str, Any], keep: int) -> LoadedSearch:
+    def cat(items: list[Any]) -> tuple[Designs, np.ndarray, np.ndarray]:
         if not items:
             return _empty(topology), np.zeros(0), np.zeros(0)
         d = Designs(
@@ -182,33 +202,25 @@ def loaded_search(
     Designs come in the order of the exact search's enumeration (outer
     combination, then the solved position ascending).
     """
-    from picker.errors import SpecError
-
     topo = problem.topology
     tabs = problem.tables
-    i1, i2 = _beta_pairs(problem)
-    solved = _solved_position(problem, len(i1))
-    rest = [p for p in topo.positions if p not in ("C1", "C2", solved)]
+    outer = outer_enumeration(problem)
+    solved = outer.solved
     sv = tabs[solved].values
     ns = len(sv)
-    n_outer = len(i1) * int(np.prod([len(tabs[p]) for p in rest]))
-    parts: dict = {"ok": [], "low": [], "in_window": 0}
+    n_outer = outer.size
+    parts: dict[str, Any] = {"ok": [], "low": [], "in_window": 0}
     found = 0
-    chunk = min(OUTER_CHUNK, _SEARCH_CHUNK)
+    chunk = min(OUTER_CHUNK, SEARCH_CHUNK)
     for start in range(0, n_outer, chunk):
         flat = np.arange(start, min(start + chunk, n_outer), dtype=np.int64)
-        idx: dict[str, np.ndarray] = {}
-        if rest:
-            kk = len(tabs[rest[0]])
-            pair, idx[rest[0]] = flat // kk, flat % kk
-        else:
-            pair = flat
-        idx["C1"], idx["C2"] = i1[pair], i2[pair]
+        idx = outer.index(flat)
         vals = {p: tabs[p].values[i] for p, i in idx.items()}
         r = _estimated_ratio(problem, params, solved, vals)
-        # per-element windows: _solve_interval's formulas are elementwise
-        scaled = replace(problem, f_min=problem.f_min / r, f_max=problem.f_max / r)  # type: ignore[arg-type]
-        lo, hi = _solve_interval(scaled, solved, vals)
+        # per-element windows: solve_interval's formulas are elementwise
+        lo, hi = solve_interval(
+            problem, solved, vals, f_min=problem.f_min / r, f_max=problem.f_max / r
+        )
         a = np.searchsorted(sv, lo * (1 - 1e-9), side="left")
         b = np.searchsorted(sv, hi * (1 + 1e-9), side="right")
         b = np.maximum(a, b)
@@ -242,7 +254,7 @@ def loaded_search(
                 else:
                     b[grow] += 1
                     open_[grow] = b[grow] < ns
-        owner, js = _expand_ranges(np.arange(len(flat)), a, b)
+        owner, js = expand_ranges(np.arange(len(flat)), a, b)
         if len(owner) == 0:
             continue
         cand = {p: i[owner].astype(np.int32) for p, i in idx.items()}
@@ -272,6 +284,6 @@ def loaded_brute_force(
     sizes = [len(problem.tables[p]) for p in topo.positions]
     grids = np.meshgrid(*[np.arange(n, dtype=np.int32) for n in sizes], indexing="ij")
     idx = {p: g.ravel() for p, g in zip(topo.positions, grids, strict=True)}
-    parts: dict = {"ok": [], "low": [], "in_window": 0}
+    parts: dict[str, Any] = {"ok": [], "low": [], "in_window": 0}
     _collect(problem, idx, min_margin, params, keep, parts)
     return _finish(topo, parts, keep)

@@ -73,7 +73,8 @@ def tail_frequency(time: np.ndarray, v: np.ndarray, start: float) -> float:
     return float((tc.size - 1) / (tc[-1] - tc[0]))
 
 
-def _peak(time, v, lo, hi):
+def _peak(time: np.ndarray, v: np.ndarray, lo: float, hi: float) -> float:
+    """Half the peak-to-peak of ``v`` over lo <= time <= hi (0.0 where no sample)."""
     sel = (time >= lo) & (time <= hi)
     if not np.any(sel):
         return 0.0

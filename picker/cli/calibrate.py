@@ -1,7 +1,7 @@
 """``picker calibrate``: learn the board's parasitics from measured units.
 
 Thin typer command over :mod:`picker.calibration.measurements`, :mod:`picker.calibration.fit`
-and :mod:`picker.report.calibration`. Every fault is a
+and :mod:`picker.report.calibration` (:mod:`picker.report.plots` for ``--plot``). Every fault is a
 :class:`~picker.errors.SpecError`; ``picker.cli.main.main`` turns it into one line
 and exit status 2. Files are written atomically, never over an input, and never
 over an existing file without ``--force``.
@@ -11,18 +11,24 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
+from typing import IO, TYPE_CHECKING
 
 import typer
+from rich.console import Console
 
 from picker.errors import SpecError
+from picker.files import atomic_write
 
-__all__ = ["register", "run_calibrate"]
+if TYPE_CHECKING:
+    from picker.calibration.measurements import Measurements
+
+__all__ = ["calibrate_cmd", "run_calibrate"]
 
 _LOSSES = ("soft_l1", "huber")
 
 
 def _parse_fit(text: str) -> tuple[str, ...]:
-    from picker.calibration.fit import PARAMETERS
+    from picker.calibration.fit import PARAMETERS  # scipy: not at start-up
 
     names = tuple(w.strip().lower() for w in text.replace(" ", ",").split(",") if w.strip())
     bad = [w for w in names if w not in PARAMETERS]
@@ -36,7 +42,7 @@ def _parse_fit(text: str) -> tuple[str, ...]:
     return names
 
 
-def _marked_note(m) -> list[str]:
+def _marked_note(m: Measurements) -> list[str]:
     marked = [p for p in m.values if not m.measured[p].all()]
     if not marked:
         return []
@@ -58,13 +64,15 @@ def run_calibrate(
     fragment: Path | None = None,
     plot: Path | None = None,
     force: bool = False,
-    out=None,
+    out: IO[str] | None = None,
 ) -> int:
     """What ``picker calibrate`` does; returns the exit status (0)."""
+    # numpy, scipy and pydantic: imported here, so that ``picker --help`` stays fast
     from picker.calibration import fit as calibrate
     from picker.calibration.measurements import load_measurements
     from picker.report import calibration as calibrate_report
-    from picker.tank.base import get_topology
+    from picker.spec.load import load_spec
+    from picker.tank import get_topology
 
     fmt_l = fmt.strip().lower()
     if fmt_l not in ("table", "json"):
@@ -79,8 +87,6 @@ def run_calibrate(
     fixed: dict[str, float] = {}
     extra: list[str] = []
     if spec is not None:
-        from picker.spec.model import load_spec
-
         s = load_spec(spec)
         topo = get_topology(s.topology)
         if topology is not None and get_topology(topology).name != topo.name:
@@ -123,20 +129,18 @@ def run_calibrate(
     extra += _marked_note(m)
 
     # write files first, so a refused write leaves no half-finished report behind
-    from picker.files import atomic_write
-
     if fragment is not None:
         atomic_write(
             fragment,
-            calibrate.fragment_toml(result, source=measurements.name),
+            calibrate_report.fragment_toml(result, source=measurements.name),
             force=force,
             inputs=inputs,
             key="--fragment",
         )
     if plot is not None:
-        atomic_write(
-            plot, calibrate_report.plot_residuals(result), force=force, inputs=inputs, key="--plot"
-        )
+        from picker.report.plots import plot_residuals  # matplotlib: only for --plot
+
+        atomic_write(plot, plot_residuals(result), force=force, inputs=inputs, key="--plot")
 
     stream = out if out is not None else sys.stdout
     if fmt_l == "json":
@@ -146,8 +150,6 @@ def run_calibrate(
             )
         )
     else:
-        from rich.console import Console
-
         console = Console(file=stream, width=120, highlight=False)
         calibrate_report.print_table(result, console, extra_notes=extra)
         if fragment is not None:
@@ -157,46 +159,42 @@ def run_calibrate(
     return 0
 
 
-def register(app: typer.Typer) -> None:
-    """Add the ``calibrate`` command to ``app``."""
-
-    @app.command("calibrate")
-    def calibrate_cmd(
-        measurements: Path = typer.Argument(
-            ...,
-            help="CSV of built units: C1, C2, [C3,] L, frequency; optional unit, measured, "
-            "frequency_sigma or weight, note.",
-        ),  # fmt: skip
-        topology: str | None = typer.Option(
-            None, "--topology", help="The tank: colpitts or clapp (or give --spec)."
-        ),
-        spec: Path | None = typer.Option(
-            None, "--spec", help="A spec file: its topology, and its parasitics for those held."
-        ),
-        fit: str = typer.Option(
-            "stray,l_scale,c2_shunt",
-            "--fit",
-            help="Parasitics to fit, in order of preference (stray, c1_shunt, c2_shunt, l_scale).",
-        ),
-        robust: str | None = typer.Option(
-            None, "--robust", help="A robust loss against outliers: soft_l1 or huber."
-        ),
-        fmt: str = typer.Option("table", "--format", help="table or json."),
-        fragment: Path | None = typer.Option(
-            None, "--fragment", help="Write a [parasitics] TOML section for a spec here."
-        ),
-        plot: Path | None = typer.Option(None, "--plot", help="Write a residual plot (PNG) here."),
-        force: bool = typer.Option(False, "--force", help="Replace existing output files."),
-    ) -> None:
-        """Learn the board's parasitics from the frequencies of built units."""
-        run_calibrate(
-            measurements,
-            topology=topology,
-            spec=spec,
-            fit=fit,
-            robust=robust,
-            fmt=fmt,
-            fragment=fragment,
-            plot=plot,
-            force=force,
-        )
+def calibrate_cmd(
+    measurements: Path = typer.Argument(
+        ...,
+        help="CSV of built units: C1, C2, [C3,] L, frequency; optional unit, measured, "
+        "frequency_sigma or weight, note.",
+    ),
+    topology: str | None = typer.Option(
+        None, "--topology", help="The tank: colpitts or clapp (or give --spec)."
+    ),
+    spec: Path | None = typer.Option(
+        None, "--spec", help="A spec file: its topology, and its parasitics for those held."
+    ),
+    fit: str = typer.Option(
+        "stray,l_scale,c2_shunt",
+        "--fit",
+        help="Parasitics to fit, in order of preference (stray, c1_shunt, c2_shunt, l_scale).",
+    ),
+    robust: str | None = typer.Option(
+        None, "--robust", help="A robust loss against outliers: soft_l1 or huber."
+    ),
+    fmt: str = typer.Option("table", "--format", help="table or json."),
+    fragment: Path | None = typer.Option(
+        None, "--fragment", help="Write a [parasitics] TOML section for a spec here."
+    ),
+    plot: Path | None = typer.Option(None, "--plot", help="Write a residual plot (PNG) here."),
+    force: bool = typer.Option(False, "--force", help="Replace existing output files."),
+) -> None:
+    """Learn the board's parasitics from the frequencies of built units."""
+    run_calibrate(
+        measurements,
+        topology=topology,
+        spec=spec,
+        fit=fit,
+        robust=robust,
+        fmt=fmt,
+        fragment=fragment,
+        plot=plot,
+        force=force,
+    )

@@ -10,16 +10,32 @@ from __future__ import annotations
 
 import json
 import math
+from collections.abc import Mapping
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 import typer
 
+from picker.cli.options import check_format, parse_assignments, unit_of
 from picker.errors import InfeasibleError, SpecError
+from picker.files import atomic_write, check_output
+
+if TYPE_CHECKING:
+    from picker.circuit.amplifier import AmplifierParams
+    from picker.spec.model import Spec
+    from picker.tank.base import Topology
+
+# The numeric modules (numpy, scipy, the solver; picker.units uses numpy) are imported
+# inside the commands, so that the command line starts without them.
 
 
-def _design(spec_path: Path, sets: list[str]):
-    from picker.api import solve as api
-    from picker.cli.main import _unit_of, parse_assignments
+def _design(
+    spec_path: Path, sets: list[str]
+) -> tuple[Spec, Topology, dict[str, float], dict[str, Any], float, AmplifierParams]:
+    """The spec, its topology, the part values (``--set`` or the top design), the board
+    values (parasitics applied), the stray capacitance and the amplifier."""
+    from picker import api
+    from picker.tank.board import board_values  # numpy: not at start-up
 
     spec = api.load_spec(spec_path)
     if spec.amplifier is None:
@@ -30,7 +46,7 @@ def _design(spec_path: Path, sets: list[str]):
         )
     topo = spec.topo
     if sets:
-        values = parse_assignments(sets, "--set", _unit_of)
+        values = parse_assignments(sets, "--set", unit_of)
         missing = [p for p in topo.positions if p not in values]
         extra = [p for p in values if p not in topo.positions]
         if missing or extra:
@@ -48,16 +64,17 @@ def _design(spec_path: Path, sets: list[str]):
             )
         values = dict(result.candidates[0].values)
     params = spec.amplifier.to_params(spec.parts)
-    par = spec.parasitics
-    board = dict(values)  # the parts as the board sees them (shunts and inductor scale)
-    board["C1"] = board["C1"] + getattr(par, "c1_shunt", 0.0)
-    board["C2"] = board["C2"] + getattr(par, "c2_shunt", 0.0)
-    board["L"] = board["L"] * getattr(par, "l_scale", 1.0)
+    par = api.parasitics_of(spec)
+    board = board_values(topo, values, par)  # the parts as the board sees them
     return spec, topo, values, board, float(par.stray), params
 
 
-def _figures(topo, board, stray, params) -> dict:
-    from picker.circuit.amplifier import amplitude_estimate, capacitor_stress, loaded_response
+def _figures(
+    topo: Topology, board: Mapping[str, Any], stray: float, params: AmplifierParams
+) -> dict[str, Any]:
+    """The loaded model's figures of one board: frequencies, margin, amplitude, stress."""
+    from picker.circuit.amplitude import amplitude_estimate, capacitor_stress
+    from picker.circuit.oscillation import loaded_response
 
     res = loaded_response(topo, board, stray, params)
     amp = amplitude_estimate(topo, board, stray, params, res)
@@ -81,7 +98,6 @@ def netlist(
 ) -> None:
     """Write a SPICE netlist of the whole oscillator (bias network, transient, measurements)."""
     from picker.circuit.netlist import write_netlist
-    from picker.files import atomic_write, check_output
 
     check_output(output, force=force, inputs=[spec_path])  # before the solve, not after
     spec, topo, values, board, stray, params = _design(spec_path, set_)
@@ -105,10 +121,9 @@ def simulate(
     """Simulate the oscillator in ngspice and compare with the loaded model."""
     from picker.circuit.netlist import write_netlist
     from picker.circuit.ngspice import simulate as run
-    from picker.cli.main import _check_format
     from picker.units import format_quantity
 
-    fmt = _check_format(fmt, ("table", "json"))
+    fmt = check_format(fmt, ("table", "json"))
     if not 0 < timeout <= 3600:  # also refuses nan
         raise SpecError(f"expected seconds between 0 and 3600; got {timeout}", key="--timeout")
     spec, topo, values, board, stray, params = _design(spec_path, set_)
@@ -133,12 +148,10 @@ def simulate(
         typer.echo(json.dumps(out, sort_keys=True))
         return
 
-    def hz(x):
+    def hz(x: float | None) -> str:
         return "-" if x is None else format_quantity(x, "Hz")
 
-    parts = "  ".join(
-        f"{p} {format_quantity(values[p], 'H' if p == 'L' else 'F')}" for p in topo.positions
-    )
+    parts = "  ".join(f"{p} {format_quantity(values[p], topo.unit(p))}" for p in topo.positions)
     lines = [
         parts,
         f"{'':22}{'model':>16}{'ngspice':>16}",

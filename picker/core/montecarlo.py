@@ -27,12 +27,14 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.special import ndtri
+from numpy.typing import ArrayLike
 from scipy.stats import binomtest
 
 from picker.core.search import Designs, Problem
 from picker.parts import distributions
-from picker.tank.base import TWO_PI, board_frequency, board_values
+from picker.parts.drift import Material, drift_factor
+from picker.tank.base import TWO_PI
+from picker.tank.board import board_frequency, board_values
 
 #: Boards evaluated per block (samples x candidates); bounds memory.
 BLOCK = 1 << 21
@@ -42,6 +44,10 @@ BLOCK = 1 << 21
 BoardModel = Callable[[dict[str, np.ndarray], Designs], np.ndarray]
 
 REFERENCE_TEMPERATURE = 25.0
+
+#: Lower clip of u before Φ⁻¹ for normal parts. The run's variates already lie in
+#: [2^-53, 1 - 2^-53] (:mod:`picker.core.sampling`), so the clip does not act on them.
+U_MIN = 1e-300
 
 
 @dataclass(frozen=True)
@@ -57,9 +63,9 @@ class PartVariation:
     distribution: str = "uniform"
     grade: float | None = None
     lot: np.ndarray | None = None
-    material: object | None = None
+    material: Material | None = None
 
-    def std(self, tol):
+    def std(self, tol: ArrayLike) -> np.ndarray:
         """Relative standard deviation of a part with tolerance ``tol``."""
         return distributions.std_of(self.distribution, tol, grade=self.grade, lot=self.lot)
 
@@ -126,35 +132,18 @@ class YieldEstimate:
         }
 
 
-def binomial_interval(k: int, n: int, confidence: float = 0.95, method: str = "wilson"):
+def binomial_interval(
+    k: int, n: int, confidence: float = 0.95, method: str = "wilson"
+) -> tuple[float, float]:
     """Two-sided interval for a proportion k/n from scipy (Wilson or exact)."""
     ci = binomtest(int(k), int(n)).proportion_ci(confidence_level=confidence, method=method)
     return float(ci.low), float(ci.high)
 
 
 def estimate_yield(k: int, n: int, *, confidence: float, method: str, seed: int) -> YieldEstimate:
+    """The yield k/n with its two-sided interval (:func:`binomial_interval`), run facts attached."""
     lo, hi = binomial_interval(k, n, confidence, method)
     return YieldEstimate(k / n, lo, hi, n, int(k), confidence, method, seed)
-
-
-def draw_uniform(seed: int, samples: int, k: int) -> np.ndarray:
-    """The run's common random numbers: U(0,1), shape (samples, k)."""
-    rng = np.random.default_rng(seed)
-    return rng.random((samples, k))
-
-
-def unit_deviation(u: np.ndarray, distribution: str) -> np.ndarray:
-    """Map U(0,1) variates to deviations per unit of tolerance.
-
-    ``uniform``: 2u - 1, uniform on [-1, 1]. ``normal``: Φ⁻¹(u)/3, so that a
-    part's tolerance is three standard deviations (99.73 % coverage; not
-    truncated).
-    """
-    if distribution == "uniform":
-        return 2.0 * u - 1.0
-    if distribution == "normal":
-        return ndtri(np.clip(u, 1e-300, 1.0 - 1e-16)) / 3.0
-    raise ValueError(f"unknown distribution {distribution!r}")
 
 
 def ideal_model(problem: Problem) -> BoardModel:
@@ -165,17 +154,18 @@ def ideal_model(problem: Problem) -> BoardModel:
     topo = problem.topology
 
     def passes(vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
-        bv = board_values(vals, par)
-        lc = bv["L"] * topo.c_eff(bv, par.stray)
+        bv = board_values(topo, vals, par)
+        lc = bv[topo.inductor] * topo.c_eff(bv, par.stray)
         return (lc >= lc_lo) & (lc <= lc_hi)
 
     return passes
 
 
 def _deviation(var: PartVariation, u_col: np.ndarray, tol: np.ndarray) -> np.ndarray:
-    if var.distribution in ("uniform", "normal"):
-        return unit_deviation(u_col, var.distribution)[:, None] * tol[None, :]
-    return distributions.deviation(u_col, tol, var.distribution, grade=var.grade, lot=var.lot)
+    """Relative deviations (samples, n) of one position's parts (:func:`distributions.deviation`)."""
+    return distributions.deviation(
+        u_col, tol, var.distribution, grade=var.grade, lot=var.lot, u_min=U_MIN
+    )
 
 
 def sampled_values(sim: Simulation, designs: Designs, u: np.ndarray) -> dict[str, np.ndarray]:
@@ -202,8 +192,6 @@ def sampled_values(sim: Simulation, designs: Designs, u: np.ndarray) -> dict[str
 
 def drift_factors(sim: Simulation, u: np.ndarray) -> dict[str, np.ndarray]:
     """Relative drift of each drifting position, position -> (n_temps, samples)."""
-    from picker.parts.drift import drift_factor
-
     cols = sim.columns()
     return {
         p: drift_factor(v.material, sim.temperatures, u[:, cols[f"{p}@T"]])
@@ -212,7 +200,9 @@ def drift_factors(sim: Simulation, u: np.ndarray) -> dict[str, np.ndarray]:
     }
 
 
-def values_at(vals: dict[str, np.ndarray], drift: dict[str, np.ndarray], i: int):
+def values_at(
+    vals: dict[str, np.ndarray], drift: dict[str, np.ndarray], i: int
+) -> dict[str, np.ndarray]:
     """Sampled values at temperature index ``i`` of the grid."""
     if not drift:
         return vals
@@ -224,16 +214,16 @@ def count_passing(sim: Simulation, designs: Designs, u: np.ndarray) -> np.ndarra
     model = sim.model or ideal_model(sim.problem)
     drift = drift_factors(sim, u)
     n = len(designs)
-    per = max(1, BLOCK // (max(1, u.shape[0]) * max(1, len(sim.temperatures) if drift else 1)))
+    n_t = len(sim.temperatures) if drift else 1
+    per = max(1, BLOCK // (max(1, u.shape[0]) * max(1, n_t)))
     out = np.zeros(n, dtype=np.int64)
     for s in range(0, n, per):
         sel = np.arange(s, min(s + per, n))
         sub = designs.take(sel)
         vals = sampled_values(sim, sub, u)
-        ok = None
-        for i in range(len(sim.temperatures) if drift else 1):
-            m = model(values_at(vals, drift, i), sub)
-            ok = m if ok is None else (ok & m)
+        ok = model(values_at(vals, drift, 0), sub)
+        for i in range(1, n_t):  # a board passes at every grid temperature
+            ok = ok & model(values_at(vals, drift, i), sub)
         out[sel] = ok.sum(axis=0)
     return out
 

@@ -16,11 +16,12 @@ true error of a scrambled Sobol estimate is usually smaller).
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.stats import binomtest, qmc
+from numpy.typing import ArrayLike
+from scipy.stats import binomtest, norm, qmc
 
 METHODS = ("random", "sobol")
 _EPS = 2.0**-53
@@ -108,7 +109,7 @@ def uniform_batches(
         raise ValueError(f"expected a sampling method, one of {', '.join(METHODS)}; got {method!r}")
 
 
-def wilson_half_width(k, n: int, confidence: float = 0.95) -> np.ndarray:
+def wilson_half_width(k: ArrayLike, n: int, confidence: float = 0.95) -> np.ndarray:
     """Half-width of the Wilson score interval (Wilson 1927) for each count in ``k``.
 
     Uses ``scipy.stats.binomtest(k, n).proportion_ci(method="wilson")``.
@@ -230,8 +231,6 @@ def samples_for_precision(p: float, precision: float, confidence: float = 0.95) 
     n ≈ z²·p(1 − p)/precision², z the two-sided normal quantile; a planning
     figure only, the run itself checks the Wilson interval.
     """
-    from scipy.stats import norm
-
     z = norm.ppf(0.5 + confidence / 2.0)
     p = min(max(p, 1e-6), 1 - 1e-6)
     return int(math.ceil(z * z * p * (1 - p) / (precision * precision)))
@@ -241,7 +240,7 @@ def compare_methods(
     indicator: Callable[[np.ndarray], np.ndarray],
     exact: float,
     k: int,
-    ns,
+    ns: Iterable[int],
     *,
     reps: int = 20,
     seed: int = 0,

@@ -10,28 +10,15 @@ JCGM 100:2008 §4.3.7; normal with σ = t/3, the 99.73 % convention).
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, cast
-
 import numpy as np
 from scipy.special import ndtr
 
+from picker.core.montecarlo import Simulation
+from picker.core.propagation import temperature_shift, temperature_variance
 from picker.core.search import Designs, Problem
-
-if TYPE_CHECKING:
-    from picker.core.montecarlo import Simulation
-    from picker.parts.drift import Material
-from picker.tank.base import board_frequency, board_sensitivities
-
-SQRT3 = np.sqrt(3.0)
-
-
-def relative_sigma(tol, distribution: str):
-    """Relative standard deviation of a part whose tolerance is ``tol``."""
-    if distribution == "uniform":
-        return np.asarray(tol) / SQRT3
-    if distribution == "normal":
-        return np.asarray(tol) / 3.0
-    raise ValueError(f"unknown distribution {distribution!r}")
+from picker.parts.drift import Material, drift_factor
+from picker.parts.pairs import effective_tolerance
+from picker.tank.board import board_frequency, board_sensitivities
 
 
 def part_sigmas(sim: Simulation, designs: Designs) -> dict[str, np.ndarray]:
@@ -53,7 +40,7 @@ def part_sigmas(sim: Simulation, designs: Designs) -> dict[str, np.ndarray]:
     return out
 
 
-def sigma_lnf(sim: Simulation, designs: Designs, extra_var=0.0) -> np.ndarray:
+def sigma_lnf(sim: Simulation, designs: Designs, extra_var: float | np.ndarray = 0.0) -> np.ndarray:
     """First-order standard deviation of ln f for every design, shape (n,)."""
     problem = sim.problem
     vals = designs.values(problem)
@@ -80,32 +67,31 @@ def lnf_bias(sim: Simulation, designs: Designs) -> np.ndarray:
     return out
 
 
+def _drifting(sim: Simulation) -> dict[str, Material]:
+    """The drift class of every drifting position, in position order."""
+    return {p: v.material for p, v in sim.parts.items() if v.material is not None}
+
+
 def temperature_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndarray]:
     """First-order drift of ln f at each grid temperature: mean shift and variance.
 
     Δln f(T) ≈ Σ S_i·Δ_i(T) with the drift Δ_i of each drifting part
-    (:func:`picker.production.drivers.temperature_shift`; its variance Σ S_i²·std(Δ_i)²,
-    JCGM 100:2008, 5.1.2, parts drifting independently).
+    (:func:`picker.core.propagation.temperature_shift`; its variance Σ S_i²·std(Δ_i)²,
+    :func:`picker.core.propagation.temperature_variance`, parts drifting independently).
 
     Returns
     -------
     (shift, var) : arrays, shape (n_temps, n); (1, n) zeros without drift.
     """
     n = len(designs)
-    mats = {p: cast("Material", v.material) for p, v in sim.parts.items() if v.material is not None}
+    mats = _drifting(sim)
     if not mats:
         return np.zeros((1, n)), np.zeros((1, n))
-    from picker.parts.drift import drift_moments
-    from picker.production.drivers import temperature_shift
-
     problem = sim.problem
     sens = board_sensitivities(problem.topology, designs.values(problem), problem.parasitics)
     temps = np.asarray(sim.temperatures, dtype=float)
     shift = temperature_shift(sens, mats, temps).reshape(len(temps), n)
-    var = np.zeros((len(temps), n))
-    for p, m in mats.items():
-        _, std = drift_moments(m, temps)
-        var = var + (np.asarray(sens[p])[None, :] * std[:, None]) ** 2
+    var = temperature_variance(sens, mats, temps).reshape(len(temps), n)
     return shift, var
 
 
@@ -113,7 +99,9 @@ def temperature_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np
 DRIFT_NODES = 16
 
 
-def _window(mu, sig, lo, hi) -> np.ndarray:
+def _window(
+    mu: np.ndarray, sig: np.ndarray, lo: float | np.ndarray, hi: float | np.ndarray
+) -> np.ndarray:
     """P(lo <= N(mu, sig²) <= hi), 0 for an empty interval; a point mass when sig = 0."""
     with np.errstate(divide="ignore", invalid="ignore"):
         y = ndtr((hi - mu) / sig) - ndtr((lo - mu) / sig)
@@ -142,17 +130,14 @@ def screen_yield(sim: Simulation, designs: Designs) -> np.ndarray:
     sig = sigma_lnf(sim, designs)
     mu = np.log(designs.f_nominal) + lnf_bias(sim, designs)
     lo, hi = np.log(problem.f_min), np.log(problem.f_max)
-    drifting = [p for p, v in sim.parts.items() if v.material is not None]
-    if not drifting:
+    mats = _drifting(sim)
+    if not mats:
         return _window(mu, sig, lo, hi)
-    from picker.parts.drift import drift_factor
-
     n = len(designs)
     temps = np.asarray(sim.temperatures, dtype=float)
     sens = board_sensitivities(problem.topology, designs.values(problem), problem.parasitics)
-    s = np.stack([np.broadcast_to(sens[p], (n,)) for p in drifting])  # (P, n)
-    d01 = [drift_factor(cast("Material", sim.parts[p].material), temps, [0.0, 1.0])
-           for p in drifting]  # fmt: skip
+    s = np.stack([np.broadcast_to(sens[p], (n,)) for p in mats])  # (P, n)
+    d01 = [drift_factor(m, temps, [0.0, 1.0]) for m in mats.values()]
     c = np.stack([d[:, 0] for d in d01])  # (P, T): drift at u = 0
     e = np.stack([d[:, 1] - d[:, 0] for d in d01])  # (P, T): slope in u
     mean_shift = np.einsum("pn,pt->tn", s, c + e / 2)  # (T, n)
@@ -185,7 +170,7 @@ def select_for_montecarlo(
     n = len(designs)
     # in chunks: the per-design temporaries stay bounded however many designs there are
     parts = [
-        screen_yield(sim, designs.take(slice(i, i + SCREEN_CHUNK)))
+        screen_yield(sim, designs.take(np.arange(i, min(i + SCREEN_CHUNK, n))))
         for i in range(0, n, SCREEN_CHUNK)
     ]
     y = np.concatenate(parts) if parts else np.zeros(0)
@@ -203,8 +188,6 @@ def corner_span(problem: Problem, designs: Designs) -> tuple[np.ndarray, np.ndar
     A parallel pair a + b is monotone in each of its parts, so its corners are
     a + b ± (a·ta + b·tb) (:func:`picker.parts.pairs.effective_tolerance`).
     """
-    from picker.parts.pairs import effective_tolerance
-
     topo = problem.topology
     vals = designs.values(problem)
     tols = {p: effective_tolerance(problem.tables[p], designs.idx[p]) for p in topo.positions}

@@ -4,8 +4,9 @@ Every combination of table values whose nominal board frequency lies in
 ``[f_min, f_max]`` and whose feedback fraction lies in ``[beta_min, beta_max]``
 is found, without enumerating the full cube:
 
-1. the (C1, C2) pairs that satisfy the feedback window are found per C1 with
-   ``searchsorted`` (beta is monotone in C2);
+1. the pairs of the topology's feedback pair (C1, C2) that satisfy the
+   feedback window are found per output-side value with ``searchsorted``
+   (beta is monotone in the input-side value);
 2. the remaining positions but one are enumerated with those pairs, in chunks;
 3. for the last ("solved") position the frequency window is solved
    analytically into a value interval, and ``searchsorted`` gives its index
@@ -14,77 +15,35 @@ is found, without enumerating the full cube:
    would use, so the result set is exactly the brute-force set (a property test
    shows this).
 
-The solved position is L, or C3 in a Clapp tank when that makes the outer
-enumeration smaller. Results are a struct of arrays in a deterministic order
+The solved position is the topology's choice
+(:meth:`picker.tank.base.Topology.solved_position`: L, or C3 in a Clapp tank
+when that makes the outer enumeration smaller); the module itself names no
+position. Results are a struct of arrays in a deterministic order
 (the order of the enumeration; :func:`sort_designs` orders by index tuple).
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from picker.errors import SpecError
-from picker.tank.base import TWO_PI, Parasitics, Topology, board_beta, board_frequency
+from picker.parts.table import ValueTable
+from picker.tank.base import Topology
+from picker.tank.board import (
+    Parasitics,
+    board_beta,
+    board_feedback_bounds,
+    board_frequency,
+    board_interval,
+)
 
 #: Outer combinations handled per chunk (bounds memory to a few tens of MB).
 CHUNK = 1 << 20
 #: Relative widening of analytic bounds before the exact re-check.
 _WIDEN = 1e-9
-
-
-@dataclass(frozen=True)
-class ValueTable:
-    """The values one position may take, sorted ascending, with per-value facts.
-
-    Attributes
-    ----------
-    values : (n,) float, SI units, sorted ascending.
-    tol : (n,) float, relative tolerance of each value.
-    source : str, series name ("E12"), "list" or "stock".
-    part_id : (n,) object, a stock part id or "" for a series value.
-    price : (n,) float, unit price (NaN when unknown).
-    stock_qty : (n,) float, quantity on hand (inf when unlimited).
-    second : (n,) float or None, value of a second part in parallel (0 where
-        the entry is a single part); ``values`` is then the pair's total and
-        ``values - second`` the first part.
-    second_tol : (n,) float or None, relative tolerance of the second part.
-    second_id : (n,) object or None, stock part id of the second part ("" for a
-        series value or a single part); set with ``second``.
-    """
-
-    values: np.ndarray
-    tol: np.ndarray
-    source: str = "list"
-    part_id: np.ndarray | None = None
-    price: np.ndarray | None = None
-    stock_qty: np.ndarray | None = None
-    second: np.ndarray | None = None
-    second_tol: np.ndarray | None = None
-    second_id: np.ndarray | None = None
-
-    def __post_init__(self) -> None:
-        n = len(self.values)
-        if self.second is not None and self.second_id is None:
-            object.__setattr__(self, "second_id", np.full(n, "", dtype=object))
-        if self.part_id is None:
-            object.__setattr__(self, "part_id", np.full(n, "", dtype=object))
-        if self.price is None:
-            object.__setattr__(self, "price", np.full(n, np.nan))
-        if self.stock_qty is None:
-            object.__setattr__(self, "stock_qty", np.full(n, np.inf))
-        if n and np.any(np.diff(self.values) < 0):
-            raise ValueError("ValueTable.values must be sorted ascending")
-
-    def __len__(self) -> int:
-        return len(self.values)
-
-
-def uniform_table(values: np.ndarray, tol: float, source: str) -> ValueTable:
-    """A table where every value carries the same relative tolerance."""
-    v = np.asarray(values, dtype=float)
-    return ValueTable(v, np.full(v.shape, float(tol)), source)
 
 
 @dataclass(frozen=True)
@@ -132,24 +91,33 @@ class Designs:
         return {p: problem.tables[p].values[i] for p, i in self.idx.items()}
 
 
-def _beta_pairs(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
-    """All (i1, i2) with beta_min <= beta(C1, C2) <= beta_max, exactly."""
-    par = problem.parasitics
-    c1 = problem.tables["C1"].values
-    c2 = problem.tables["C2"].values
-    c1e = c1 + par.c1_shunt
-    # beta = c1e / (c2 + c2_shunt) falls as C2 grows.
-    lo = c1e / problem.beta_max * (1 - _WIDEN) - par.c2_shunt
-    hi = c1e / problem.beta_min * (1 + _WIDEN) - par.c2_shunt
-    a = np.searchsorted(c2, lo, side="left")
-    b = np.searchsorted(c2, hi, side="right")
-    i1, i2 = _expand_ranges(np.arange(len(c1)), a, b)
-    beta = board_beta({"C1": c1[i1], "C2": c2[i2]}, par)
+def feedback_pairs(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
+    """Every index pair of the feedback pair's tables with beta in the window, exactly.
+
+    Returns ``(i_out, i_in)``, int arrays of equal length, ordered by
+    ``i_out`` then ``i_in``: for each output-side value the admissible
+    input-side values form one ``searchsorted`` range (beta is monotone in the
+    input-side value, :meth:`picker.tank.base.Topology.feedback_bounds`), and
+    every pair is then checked with :func:`picker.tank.board.board_beta`.
+    """
+    topo, par = problem.topology, problem.parasitics
+    out, inp = topo.feedback_pair
+    first = problem.tables[out].values
+    second = problem.tables[inp].values
+    lo, hi = board_feedback_bounds(
+        topo, first, problem.beta_min, problem.beta_max, par, widen=_WIDEN
+    )
+    a = np.searchsorted(second, lo, side="left")
+    b = np.searchsorted(second, hi, side="right")
+    i1, i2 = expand_ranges(np.arange(len(first)), a, b)
+    beta = board_beta(topo, {out: first[i1], inp: second[i2]}, par)
     ok = (beta >= problem.beta_min) & (beta <= problem.beta_max)
     return i1[ok], i2[ok]
 
 
-def _expand_ranges(owner: np.ndarray, start: np.ndarray, stop: np.ndarray):
+def expand_ranges(
+    owner: np.ndarray, start: np.ndarray, stop: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """For each owner k, emit (owner[k], j) for j in [start[k], stop[k])."""
     count = np.maximum(stop - start, 0)
     total = int(count.sum())
@@ -159,51 +127,89 @@ def _expand_ranges(owner: np.ndarray, start: np.ndarray, stop: np.ndarray):
     return rep_owner, np.repeat(start, count) + offsets
 
 
-def _solved_position(problem: Problem, n_pairs: int) -> str:
-    t = problem.topology
-    if "C3" not in t.positions:
-        return "L"
-    # Outer size when solving L is pairs*|C3|; when solving C3 it is pairs*|L|.
-    return "C3" if len(problem.tables["L"]) < len(problem.tables["C3"]) else "L"
+def solved_position(problem: Problem) -> str:
+    """The position whose frequency window the search solves analytically.
 
-
-def _solve_interval(problem: Problem, solved: str, vals: dict[str, np.ndarray]):
-    """Interval [lo, hi] of the solved position's value that puts f in the window."""
-    par = problem.parasitics
-    w_min = (TWO_PI * problem.f_min) ** 2
-    w_max = (TWO_PI * problem.f_max) ** 2
+    The topology's choice (:meth:`picker.tank.base.Topology.solved_position`)
+    given the table sizes: the one leaving the smallest outer enumeration.
+    """
     topo = problem.topology
-    c1e = vals["C1"] + par.c1_shunt
-    c2e = vals["C2"] + par.c2_shunt
-    if solved == "L":
-        caps = [c1e, c2e] + ([vals["C3"]] if "C3" in topo.positions else [])
-        ce = 1.0 / sum(1.0 / c for c in caps) + par.stray
-        lo = 1.0 / (w_max * ce * par.l_scale)
-        hi = 1.0 / (w_min * ce * par.l_scale)
-        return lo, hi
-    # solved == "C3": need C_series in [cs_lo, cs_hi]
-    lt = vals["L"] * par.l_scale
-    cs_lo = 1.0 / (w_max * lt) - par.stray
-    cs_hi = 1.0 / (w_min * lt) - par.stray
-    a = 1.0 / c1e + 1.0 / c2e
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv_lo = 1.0 / cs_hi - a  # smallest 1/C3 -> largest C3
-        inv_hi = 1.0 / cs_lo - a
-        c3_hi = np.where((cs_hi > 0) & (inv_lo > 0), 1.0 / inv_lo, np.inf)
-        c3_lo = np.where((cs_lo > 0) & (inv_hi > 0), 1.0 / inv_hi, np.inf)
-    c3_lo = np.where(cs_hi <= 0, np.inf, np.where(cs_lo <= 0, 0.0, c3_lo))
-    return c3_lo, c3_hi
+    return topo.solved_position({p: len(problem.tables[p]) for p in topo.solvable()})
+
+
+def solve_interval(
+    problem: Problem,
+    solved: str,
+    values: dict[str, np.ndarray],
+    *,
+    f_min: float | np.ndarray | None = None,
+    f_max: float | np.ndarray | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Interval [lo, hi] of the solved position's value that puts the board frequency in the window.
+
+    ``values`` holds the other positions' values (arrays of one shape); the
+    window is the problem's unless ``f_min``/``f_max`` (floats or arrays of
+    that shape) are given. See :func:`picker.tank.board.board_interval`.
+    """
+    return board_interval(
+        problem.topology,
+        values,
+        solved,
+        problem.f_min if f_min is None else f_min,
+        problem.f_max if f_max is None else f_max,
+        problem.parasitics,
+    )
+
+
+@dataclass(frozen=True)
+class Outer:
+    """The exact search's outer enumeration: the feedback pairs times every other free position.
+
+    Outer combination ``k`` (0 <= k < :attr:`size`) is, in C order, a
+    feedback pair index and one index into each ``rest`` table, the last
+    fastest; the ``solved`` position is not enumerated.
+    """
+
+    pair: tuple[str, str]
+    i_out: np.ndarray
+    i_in: np.ndarray
+    rest: tuple[str, ...]
+    rest_sizes: tuple[int, ...]
+    solved: str
+
+    @property
+    def size(self) -> int:
+        """Number of outer combinations."""
+        return len(self.i_out) * math.prod(self.rest_sizes)
+
+    def index(self, flat: np.ndarray) -> dict[str, np.ndarray]:
+        """Table indices (position -> int array, shape of ``flat``) of outer combinations."""
+        idx: dict[str, np.ndarray] = {}
+        pair = flat
+        digits = []
+        for k in reversed(self.rest_sizes):
+            digits.append(pair % k)
+            pair = pair // k
+        for p, i in zip(self.rest, reversed(digits), strict=True):
+            idx[p] = i
+        idx[self.pair[0]], idx[self.pair[1]] = self.i_out[pair], self.i_in[pair]
+        return idx
+
+
+def outer_enumeration(problem: Problem) -> Outer:
+    """The outer enumeration of ``problem`` (:func:`feedback_pairs` x the rest)."""
+    topo = problem.topology
+    i1, i2 = feedback_pairs(problem)
+    solved = solved_position(problem)
+    rest = tuple(p for p in topo.positions if p not in (*topo.feedback_pair, solved))
+    sizes = tuple(len(problem.tables[p]) for p in rest)
+    return Outer(topo.feedback_pair, i1, i2, rest, sizes, solved)
 
 
 def estimate_outer(problem: Problem) -> tuple[int, str]:
     """Outer combinations the search will visit, and the solved position."""
-    i1, _ = _beta_pairs(problem)
-    solved = _solved_position(problem, len(i1))
-    rest = [p for p in problem.topology.positions if p not in ("C1", "C2", solved)]
-    n = len(i1)
-    for p in rest:
-        n *= len(problem.tables[p])
-    return n, solved
+    outer = outer_enumeration(problem)
+    return outer.size, outer.solved
 
 
 #: Outer combinations a search may visit by default: at about 14 million a
@@ -222,24 +228,16 @@ def estimate_designs(problem: Problem, *, sample: int = _ESTIMATE_SAMPLE) -> tup
     before the re-check when the outer grid has at most ``sample`` combinations.
     Costs milliseconds.
     """
-    i1, i2 = _beta_pairs(problem)
-    solved = _solved_position(problem, len(i1))
-    rest = [p for p in problem.topology.positions if p not in ("C1", "C2", solved)]
-    n_outer = len(i1) * int(np.prod([len(problem.tables[p]) for p in rest], dtype=np.int64))
+    outer = outer_enumeration(problem)
+    n_outer = outer.size
     if n_outer == 0:
         return 0, 0
     flat = np.linspace(0, n_outer - 1, min(n_outer, sample)).astype(np.int64)
     flat = flat[np.concatenate(([True], np.diff(flat) > 0))]  # sorted: drop repeats cheaply
-    idx: dict[str, np.ndarray] = {}
-    if rest:
-        k = len(problem.tables[rest[0]])
-        pair, idx[rest[0]] = flat // k, flat % k
-    else:
-        pair = flat
-    idx["C1"], idx["C2"] = i1[pair], i2[pair]
+    idx = outer.index(flat)
     vals = {p: problem.tables[p].values[i] for p, i in idx.items()}
-    lo, hi = _solve_interval(problem, solved, vals)
-    sol = problem.tables[solved].values
+    lo, hi = solve_interval(problem, outer.solved, vals)
+    sol = problem.tables[outer.solved].values
     a = np.searchsorted(sol, lo * (1 - _WIDEN), side="left")
     b = np.searchsorted(sol, hi * (1 + _WIDEN), side="right")
     hits = int(np.maximum(b - a, 0).sum())
@@ -298,27 +296,17 @@ def search(
     check_size(problem, max_designs=max_designs, max_combinations=max_combinations)
     topo = problem.topology
     tabs = problem.tables
-    i1, i2 = _beta_pairs(problem)
-    solved = _solved_position(problem, len(i1))
-    rest = [p for p in topo.positions if p not in ("C1", "C2", solved)]
-    # Outer grid: pairs x rest (at most one rest position: C3 or L for Clapp).
-    outer_sizes = [len(i1)] + [len(tabs[p]) for p in rest]
-    n_outer = int(np.prod(outer_sizes))
-    found: list[dict[str, np.ndarray]] = []
+    outer = outer_enumeration(problem)
+    solved = outer.solved
+    n_outer = outer.size
+    found: list[Designs] = []
     total = 0
     sol_vals = tabs[solved].values
     for start in range(0, n_outer, CHUNK):
         flat = np.arange(start, min(start + CHUNK, n_outer), dtype=np.int64)
-        idx: dict[str, np.ndarray] = {}
-        if rest:
-            k = len(tabs[rest[0]])
-            pair = flat // k
-            idx[rest[0]] = flat % k
-        else:
-            pair = flat
-        idx["C1"], idx["C2"] = i1[pair], i2[pair]
+        idx = outer.index(flat)
         vals = {p: tabs[p].values[i] for p, i in idx.items()}
-        lo, hi = _solve_interval(problem, solved, vals)
+        lo, hi = solve_interval(problem, solved, vals)
         a = np.searchsorted(sol_vals, lo * (1 - _WIDEN), side="left")
         b = np.searchsorted(sol_vals, hi * (1 + _WIDEN), side="right")
         total += int(np.maximum(b - a, 0).sum())
@@ -328,7 +316,7 @@ def search(
                 "ranges or the frequency window, or raise search.max_designs",
                 key="search.max_designs",
             )
-        owner, js = _expand_ranges(np.arange(len(flat)), a, b)
+        owner, js = expand_ranges(np.arange(len(flat)), a, b)
         if len(owner) == 0:
             continue
         hit = {p: i[owner].astype(np.int32) for p, i in idx.items()}
@@ -359,7 +347,7 @@ def _exact(problem: Problem, idx: dict[str, np.ndarray]) -> Designs:
     """
     vals = {p: problem.tables[p].values[i] for p, i in idx.items()}
     f = board_frequency(problem.topology, vals, problem.parasitics)
-    beta = board_beta(vals, problem.parasitics)
+    beta = board_beta(problem.topology, vals, problem.parasitics)
     ok = (f >= problem.f_min) & (f <= problem.f_max)
     ok &= (beta >= problem.beta_min) & (beta <= problem.beta_max)
     return Designs({p: i[ok] for p, i in idx.items()}, f[ok], beta[ok])

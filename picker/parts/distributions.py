@@ -37,7 +37,9 @@ Kinds
 from __future__ import annotations
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import stats
+from scipy.special import ndtri
 
 from picker.errors import SpecError
 
@@ -46,26 +48,27 @@ KINDS = ("uniform", "normal", "graded", "graded-normal", "empirical")
 #: sigma = tol / COVERAGE_K for the normal kinds (GUM, JCGM 100:2008, G.1: k = 3, 99.73 %).
 COVERAGE_K = 3.0
 
+#: Default lower clip of ``u`` before Φ⁻¹ (the upper clip is always 1 − 2^-53, the
+#: largest double below one); it keeps Φ⁻¹ finite if a variate is exactly 0.
+U_MIN = 2.0**-53
 
-_U_MIN = 2.0**-53
 
-
-def _shape(u, tol) -> tuple[np.ndarray, np.ndarray]:
+def _shape(u: ArrayLike, tol: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
     """Return ``u`` as a column ``(samples, 1)`` and ``tol`` as a row ``(1, candidates)``."""
-    u = np.asarray(u, dtype=float)
-    if u.ndim == 2 and u.shape[1] == 1:
-        u = u[:, 0]
-    if u.ndim != 1:
-        raise ValueError(f"u must have shape (samples,) or (samples, 1), got {u.shape}")
+    uu = np.asarray(u, dtype=float)
+    if uu.ndim == 2 and uu.shape[1] == 1:
+        uu = uu[:, 0]
+    if uu.ndim != 1:
+        raise ValueError(f"u must have shape (samples,) or (samples, 1), got {uu.shape}")
     t = np.atleast_1d(np.asarray(tol, dtype=float))
     if t.ndim != 1:
         raise ValueError(f"tol must be a scalar or have shape (candidates,), got {t.shape}")
     if np.any(t < 0):
         raise SpecError(f"expected a tolerance >= 0; got {t[t < 0][0]!r}", key="tolerance")
-    return u[:, None], t[None, :]
+    return uu[:, None], t[None, :]
 
 
-def _check_grade(tol: np.ndarray, grade) -> np.ndarray:
+def _check_grade(tol: np.ndarray, grade: ArrayLike | None) -> np.ndarray:
     if grade is None:
         raise SpecError("a graded distribution needs 'grade' (the removed inner tolerance)")
     g = np.asarray(grade, dtype=float)
@@ -78,7 +81,7 @@ def _check_grade(tol: np.ndarray, grade) -> np.ndarray:
     return g
 
 
-def _check_lot(lot) -> np.ndarray:
+def _check_lot(lot: ArrayLike | None) -> np.ndarray:
     if lot is None:
         raise SpecError("an empirical distribution needs a measured lot")
     x = np.sort(np.asarray(lot, dtype=float).ravel())
@@ -87,14 +90,21 @@ def _check_lot(lot) -> np.ndarray:
     return x
 
 
-def _half_normal_band(v: np.ndarray, a, b) -> np.ndarray:
+def _half_normal_band(v: np.ndarray, a: ArrayLike, b: float) -> np.ndarray:
     """Quantile of |z| for a standard normal restricted to a <= |z| <= b, v in (0, 1)."""
     pa, pb = stats.norm.cdf(a), stats.norm.cdf(b)
     return stats.norm.ppf(pa + v * (pb - pa))
 
 
 def deviation(
-    u, tol, kind: str = "uniform", *, grade=None, lot=None, truncate: bool = False
+    u: ArrayLike,
+    tol: ArrayLike,
+    kind: str = "uniform",
+    *,
+    grade: ArrayLike | None = None,
+    lot: ArrayLike | None = None,
+    truncate: bool = False,
+    u_min: float = U_MIN,
 ) -> np.ndarray:
     """Relative deviations ``d`` (value = nominal·(1+d)) from uniform variates.
 
@@ -113,6 +123,10 @@ def deviation(
     truncate : bool
         Truncate ``"normal"`` at ±tol (default ``False``). The graded-normal
         kind is always cut at ±tol (its outer band edge).
+    u_min : float
+        Lower clip of ``u`` for ``"normal"`` (default :data:`U_MIN`); the upper
+        clip is 1 − 2^-53. Variates from :mod:`picker.core.sampling` already
+        lie in [2^-53, 1 − 2^-53], so the clip only matters for other inputs.
 
     Returns
     -------
@@ -129,15 +143,15 @@ def deviation(
         # rectangular over ±t: d = t·(2u - 1)
         return t * (2.0 * uc - 1.0)
     if kind == "normal":
-        sigma = t / COVERAGE_K
-        uc = np.clip(uc, _U_MIN, 1.0 - _U_MIN)  # keep Φ⁻¹ finite if a variate is exactly 0
+        uc = np.clip(uc, u_min, 1.0 - U_MIN)  # keep Φ⁻¹ finite if a variate is exactly 0
         if truncate:
             # inverse CDF of the normal truncated to ±k·sigma: z = Φ⁻¹(Φ(-k) + u·(Φ(k) - Φ(-k)))
             lo, hi = stats.norm.cdf(-COVERAGE_K), stats.norm.cdf(COVERAGE_K)
-            z = stats.norm.ppf(lo + uc * (hi - lo))
+            z = ndtri(lo + uc * (hi - lo))
         else:
-            z = stats.norm.ppf(uc)
-        return sigma * z
+            z = ndtri(uc)
+        # sigma = t/k; d = (z/k)·t, in this order so that the Monte Carlo's numbers stay as they were
+        return z / COVERAGE_K * t
     if kind in ("graded", "graded-normal"):
         g = _check_grade(t, grade)
         # fold u onto a magnitude v in [0, 1] and a sign, keeping d monotone in u
@@ -157,7 +171,14 @@ def deviation(
     raise SpecError(f"expected a distribution, one of {', '.join(KINDS)}; got {kind!r}")
 
 
-def std_of(kind: str, tol, *, grade=None, lot=None, truncate: bool = False) -> np.ndarray:
+def std_of(
+    kind: str,
+    tol: ArrayLike,
+    *,
+    grade: ArrayLike | None = None,
+    lot: ArrayLike | None = None,
+    truncate: bool = False,
+) -> np.ndarray:
     """Closed-form relative standard deviation of ``deviation(..., kind)``.
 
     Parameters
@@ -216,7 +237,7 @@ def std_of(kind: str, tol, *, grade=None, lot=None, truncate: bool = False) -> n
     raise SpecError(f"expected a distribution, one of {', '.join(KINDS)}; got {kind!r}")
 
 
-def mean_of(kind: str, tol, *, lot=None) -> np.ndarray:
+def mean_of(kind: str, tol: ArrayLike, *, lot: ArrayLike | None = None) -> np.ndarray:
     """Mean relative deviation: zero for the symmetric kinds, the lot mean for a lot.
 
     Returns

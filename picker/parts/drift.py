@@ -51,9 +51,13 @@ range reaches that far below 25 °C (:func:`turning_points`).
 
 from __future__ import annotations
 
+import dataclasses
+from collections.abc import Iterable
 from dataclasses import dataclass
+from typing import Protocol
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from picker.errors import SpecError
 
@@ -78,7 +82,8 @@ _CLASS2_CHANGE = {
     "V": (0.82, 0.22),
 }
 # Class 1: significant figure (ppm/°C), multiplier digit, tolerance letter (ppm/°C).
-# C and the G/H/J/K letters are [pub]; the rest is [memory].
+# C and the G/H/J/K letters are [pub]; the rest is [memory]. The two tables below
+# keep their rows as the code tables print them (fmt: skip, else one entry a line).
 _CLASS1_FIGURE = {
     "C": 0.0, "B": 0.3, "L": 0.8, "A": 0.9, "M": 1.0, "P": 1.5,
     "R": 2.2, "S": 3.3, "T": 4.7, "V": 5.6, "U": 7.5,
@@ -125,7 +130,9 @@ class Material:
     source: str = ""
 
 
-def _linear(name, tc_ppm, spread_ppm, t_min, t_max, source) -> Material:
+def _linear(
+    name: str, tc_ppm: float, spread_ppm: float, t_min: float, t_max: float, source: str
+) -> Material:
     return Material(
         name, "linear", float(t_min), float(t_max), tc_ppm * PPM, spread_ppm * PPM, source=source
     )
@@ -249,11 +256,45 @@ def get_material(name: str) -> Material:
     )
 
 
-def _x(material: Material, temps) -> np.ndarray:
+class DriftKeys(Protocol):
+    """A part's drift keys, as a spec part holds them (``dielectric``, ``tempco``, ``tempco_spread``)."""
+
+    @property
+    def dielectric(self) -> str | None: ...
+
+    @property
+    def tempco(self) -> float | None: ...
+
+    @property
+    def tempco_spread(self) -> float | None: ...
+
+
+def material_of(part: DriftKeys, with_drift: bool) -> Material | None:
+    """The part's :class:`Material`, or ``None`` (no drift simulated).
+
+    A ``dielectric`` names the class (:func:`get_material`); a ``tempco`` with
+    it replaces the class's linear figures by the datasheet's, and a ``tempco``
+    alone is :func:`explicit_tempco`. ``with_drift = False`` (no temperature
+    range) gives ``None`` for every part.
+    """
+    if not with_drift:
+        return None
+    if part.dielectric is not None:
+        m = get_material(part.dielectric)
+        if part.tempco is not None:  # a datasheet figure for a linear material
+            tc, spread = part.tempco, part.tempco_spread or 0.0
+            m = dataclasses.replace(m, tempco=tc, spread=spread, source="spec (tempco)")
+        return m
+    if part.tempco is not None:
+        return explicit_tempco(part.tempco, part.tempco_spread or 0.0)
+    return None
+
+
+def _x(material: Material, temps: ArrayLike) -> np.ndarray:
     return (np.asarray(temps, dtype=float) - T_REF) / (material.t_max - T_REF)
 
 
-def _g(x):
+def _g(x: np.ndarray) -> np.ndarray:
     return _A2 * x * x + _A3 * x**3
 
 
@@ -273,7 +314,7 @@ def _w_low(material: Material) -> float:
     return -min(1.0, material.change_plus / material.change_minus)
 
 
-def drift_factor(material: Material, temps, u) -> np.ndarray:
+def drift_factor(material: Material, temps: ArrayLike, u: ArrayLike) -> np.ndarray:
     """Relative change x(T)/x(25 °C) − 1 of each sampled part at each temperature.
 
     Parameters
@@ -306,7 +347,7 @@ def drift_factor(material: Material, temps, u) -> np.ndarray:
     raise ValueError(f"unknown material kind {material.kind!r}")
 
 
-def drift_moments(material: Material, temps) -> tuple[np.ndarray, np.ndarray]:
+def drift_moments(material: Material, temps: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
     """Mean and standard deviation of the relative change at each temperature.
 
     Closed form for u uniform on (0, 1): linear, mean α0·ΔT and std
@@ -327,7 +368,7 @@ def drift_moments(material: Material, temps) -> tuple[np.ndarray, np.ndarray]:
     return -amp * (1.0 + wl) / 2.0, amp * (1.0 - wl) / np.sqrt(12.0)
 
 
-def envelope(material: Material, temps) -> tuple[np.ndarray, np.ndarray]:
+def envelope(material: Material, temps: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
     """Lowest and highest relative change any part of the class can have at ``temps``.
 
     Returns
@@ -372,7 +413,9 @@ def turning_points(material: Material) -> list[float]:
     return pts
 
 
-def temperature_grid(t_lo: float, t_hi: float, n: int = 5, materials=()) -> np.ndarray:
+def temperature_grid(
+    t_lo: float, t_hi: float, n: int = 5, materials: Iterable[Material] = ()
+) -> np.ndarray:
     """Temperatures at which boards are checked, sorted, °C.
 
     Always holds both ends, 25 °C when it lies inside, the turning points of

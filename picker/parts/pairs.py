@@ -8,7 +8,7 @@ stock parts) into a table of every single part plus every pair a <= b of base
 entries, sorted by the pair's total value, so the exact search
 (:mod:`picker.core.search`) works on totals unchanged.
 
-Convention of the table (see :class:`picker.core.search.ValueTable`): for a pair
+Convention of the table (see :class:`picker.parts.table.ValueTable`): for a pair
 entry ``values`` is the total, the *first* part is the larger one (its value,
 tolerance, id in ``values - second``, ``tol``, ``part_id``) and the *second*
 part the smaller one (``second``, ``second_tol``, ``second_id``); a single part
@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from picker.core.search import ValueTable
+from picker.parts.table import ValueTable
 
 #: Default largest ratio of the larger to the smaller part of a pair.
 PAIR_RATIO_MAX = 10.0
@@ -53,7 +53,7 @@ def pair_table(base: ValueTable, ratio_max: float = PAIR_RATIO_MAX) -> ValueTabl
 
     Examples
     --------
-    >>> from picker.core.search import uniform_table
+    >>> from picker.parts.table import uniform_table
     >>> t = pair_table(uniform_table(np.array([1.0, 2.2, 4.7]), 0.05, "E3"), 3.0)
     >>> [float(v) for v in t.values]
     [1.0, 2.0, 2.2, 3.2, 4.4, 4.7, 6.9, 9.4]

@@ -15,6 +15,7 @@ over its finite entries, with ``inf`` in unused slots (anywhere in the row),
 from __future__ import annotations
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 
 def pad_breaks(breaks: list[tuple[tuple[float, float], ...]]) -> tuple[np.ndarray, np.ndarray]:
@@ -42,7 +43,9 @@ def pad_breaks(breaks: list[tuple[tuple[float, float], ...]]) -> tuple[np.ndarra
     return qty, price
 
 
-def unit_price_from_breaks(break_qty: np.ndarray, break_price: np.ndarray, qty) -> np.ndarray:
+def unit_price_from_breaks(
+    break_qty: np.ndarray, break_price: np.ndarray, qty: ArrayLike
+) -> np.ndarray:
     """Unit price of each part for a purchase of ``qty`` units.
 
     Parameters

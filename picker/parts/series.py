@@ -27,6 +27,7 @@ from importlib.resources.abc import Traversable
 from pathlib import Path
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from picker.errors import SpecError
 
@@ -192,7 +193,7 @@ def expand(name: str, lo: float, hi: float, *, key: str | None = None) -> np.nda
     return np.unique(values[keep])
 
 
-def is_member(name: str, value, rtol: float = 1e-6):
+def is_member(name: str, value: ArrayLike, rtol: float = 1e-6) -> bool | np.ndarray:
     """Whether ``value`` is a value of series ``name`` (times a power of ten).
 
     Parameters

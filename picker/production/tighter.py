@@ -101,7 +101,13 @@ class Change:
         }
 
 
-def _extra_cost(prices, position, before, after, count) -> float | None:
+def _extra_cost(
+    prices: Mapping[str, Mapping[float | str, float]] | None,
+    position: str,
+    before: float | str,
+    after: float | str,
+    count: int,
+) -> float | None:
     """Price difference per board; prices[position] maps option -> unit price."""
     if prices is None or position not in prices:
         return None
@@ -175,7 +181,7 @@ def rank_changes(
         cost = _extra_cost(prices, p, before, after, counts.get(p, 1))
         changes.append(Change(p, kind, before, after, y0, y, y - y0, cost))
 
-    def key(c: Change):
+    def key(c: Change) -> tuple[float, bool, float, int]:
         return (-round(c.gain, 12), c.extra_cost is None, c.extra_cost or 0.0, order[c.position])
 
     return sorted(changes, key=key)
@@ -208,7 +214,7 @@ def greedy_plan(
     tol_over: dict[str, float] = {}
     mat_over: dict[str, str] = {}
 
-    def fn(t_extra, m_extra):
+    def fn(t_extra: dict[str, float], m_extra: dict[str, str]) -> float:
         return yield_fn({**tol_over, **t_extra}, {**mat_over, **m_extra})
 
     steps: list[Change] = []

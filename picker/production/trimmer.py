@@ -26,6 +26,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from picker.errors import SpecError
 from picker.parts.series import data_dir
@@ -83,12 +84,14 @@ def load_trimmer_table() -> tuple[Trimmer, ...]:
     return parse_trimmer_table(text)
 
 
-def tank_capacitance(l, f) -> np.ndarray:
+def tank_capacitance(l: ArrayLike, f: ArrayLike) -> np.ndarray:
     """Tank capacitance that resonates with ``l`` at ``f``: C = 1/((2πf)²·L) (Thomson)."""
     return 1.0 / ((TWO_PI * np.asarray(f, dtype=float)) ** 2 * np.asarray(l, dtype=float))
 
 
-def across_need(c_eff, l, f_min: float, f_max: float) -> tuple[np.ndarray, ...]:
+def across_need(
+    c_eff: ArrayLike, l: ArrayLike, f_min: float, f_max: float
+) -> tuple[np.ndarray, ...]:
     """Extra capacitance across the tank each board needs.
 
     Parameters
@@ -114,7 +117,7 @@ def across_need(c_eff, l, f_min: float, f_max: float) -> tuple[np.ndarray, ...]:
     )
 
 
-def _series_element(c_target, c_other, stray) -> np.ndarray:
+def _series_element(c_target: ArrayLike, c_other: ArrayLike, stray: float) -> np.ndarray:
     """C3 that makes series(C_other, C3) + stray equal c_target (∞ when out of reach)."""
     cs = np.asarray(c_target, dtype=float) - stray
     inv = 1.0 / np.where(cs > 0, cs, np.nan) - 1.0 / np.asarray(c_other, dtype=float)
@@ -122,7 +125,14 @@ def _series_element(c_target, c_other, stray) -> np.ndarray:
     return np.where(cs > 0, out, 0.0)
 
 
-def series_need(c_other, c_fixed, l, f_min: float, f_max: float, stray=0.0):
+def series_need(
+    c_other: ArrayLike,
+    c_fixed: ArrayLike,
+    l: ArrayLike,
+    f_min: float,
+    f_max: float,
+    stray: float = 0.0,
+) -> tuple[np.ndarray, ...]:
     """Trimmer capacitance needed at C3 (in parallel with a fixed part ``c_fixed``).
 
     ``c_other`` is series(C1, C2) of each board; the chain
@@ -140,13 +150,15 @@ def series_need(c_other, c_fixed, l, f_min: float, f_max: float, stray=0.0):
     )
 
 
-def tunable_share(need_lo, need_hi, c_min: float, c_max: float) -> float:
+def tunable_share(need_lo: ArrayLike, need_hi: ArrayLike, c_min: float, c_max: float) -> float:
     """Share of boards whose needed interval overlaps the trimmer range [c_min, c_max]."""
     lo, hi = np.asarray(need_lo), np.asarray(need_hi)
     return float(np.mean((hi >= c_min) & (lo <= c_max)))
 
 
-def required_range(need_lo, need_hi, share: float = 0.997, *, steps: int = 101):
+def required_range(
+    need_lo: ArrayLike, need_hi: ArrayLike, share: float = 0.997, *, steps: int = 101
+) -> tuple[float, float]:
     """Narrowest range [a, b] that overlaps the needs of at least ``share`` of the boards.
 
     The excluded boards are split between the low and the high end; ``steps``
@@ -174,9 +186,12 @@ def required_range(need_lo, need_hi, share: float = 0.997, *, steps: int = 101):
 
 
 def choose_trimmer(
-    need_lo, need_hi, share: float = 0.997, table: Sequence[Trimmer] | None = None,
+    need_lo: ArrayLike,
+    need_hi: ArrayLike,
+    share: float = 0.997,
+    table: Sequence[Trimmer] | None = None,
     margin: float = 0.0,
-) -> tuple[Trimmer | None, float]:  # fmt: skip
+) -> tuple[Trimmer | None, float]:
     """Smallest trimmer of ``table`` that lets at least ``share`` of the boards be tuned.
 
     ``margin`` shrinks each range to [c_min·(1+margin), c_max·(1−margin)] for the
@@ -229,7 +244,7 @@ class TrimmerAdvice:
     share: float
 
 
-def intersect_needs(need_lo, need_hi) -> tuple[np.ndarray, np.ndarray]:
+def intersect_needs(need_lo: ArrayLike, need_hi: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
     """Needs over a temperature axis: one trimmer setting must serve every temperature.
 
     Parameters
@@ -250,12 +265,22 @@ def intersect_needs(need_lo, need_hi) -> tuple[np.ndarray, np.ndarray]:
     return np.where(empty, np.inf, lo), np.where(empty, np.inf, hi)
 
 
-def _needs(topology, values, placement, f_min, f_max, stray, position):
-    if placement == "across":
-        return across_need(topology.c_eff(values, stray), values["L"], f_min, f_max)
+def _needs(
+    topology: Topology,
+    values: Mapping[str, np.ndarray],
+    placement: str,
+    f_min: float,
+    f_max: float,
+    stray: float,
+    position: str | None,
+) -> tuple[np.ndarray, ...]:
+    """Each board's needed trimmer interval and centre (:func:`across_need`, :func:`series_need`)."""
+    l = values[topology.inductor]
+    if placement == "across" or position is None:
+        return across_need(topology.c_eff(values, stray), l, f_min, f_max)
     others = [p for p in topology.capacitors if p != position]
     c_other = series_capacitance(*(values[p] for p in others))
-    return series_need(c_other, values[position], values["L"], f_min, f_max, stray)
+    return series_need(c_other, values[position], l, f_min, f_max, stray)
 
 
 def size_trimmer(
@@ -323,8 +348,8 @@ def size_trimmer(
     if placement == "C3":
         cands = sorted({0.0, *cands})
 
-    def dist(v):
-        if v is None:
+    def dist(v: float | None) -> float:
+        if v is None or recentre is None:
             return 0.0
         return abs(np.log(max(v, 1e-18) / nominal[recentre]))
 

@@ -33,9 +33,10 @@ import math
 from collections.abc import Iterable, Sequence
 from pathlib import Path
 
-from picker.buyer.consolidate import BomLine
+from picker.buyer.model import BomLine
 from picker.errors import SpecError
 from picker.files import atomic_write, csv_safe
+from picker.units import format_percent, format_quantity
 
 COLUMNS = (
     "part_id",
@@ -63,7 +64,7 @@ def _num(x: float) -> float | int | None:
     return float(x)
 
 
-def _price(x: float) -> float | None:
+def _price(x: float | None) -> float | None:
     # 1e-9 of a currency unit is far below any real price step; it removes
     # float noise such as 2.0000000000000004 from unit price x quantity
     return None if x is None or not math.isfinite(x) else round(float(x), 9)
@@ -71,8 +72,6 @@ def _price(x: float) -> float | None:
 
 def bom_rows(lines: Iterable[BomLine]) -> list[dict]:
     """BOM lines as dicts with the keys of :data:`COLUMNS` (None where unknown)."""
-    from picker.units import format_percent, format_quantity
-
     rows = []
     for b in lines:
         unit = UNIT.get(b.kind)
@@ -81,7 +80,7 @@ def bom_rows(lines: Iterable[BomLine]) -> list[dict]:
             {
                 "part_id": b.part_id,
                 "kind": b.kind,
-                "value": format_quantity(b.value, unit) if known_value else "",
+                "value": format_quantity(b.value, unit) if unit and known_value else "",
                 "value_si": float(b.value) if known_value else None,
                 "tolerance": format_percent(b.tol) if math.isfinite(b.tol) else "",
                 "material": b.material,
@@ -96,7 +95,7 @@ def bom_rows(lines: Iterable[BomLine]) -> list[dict]:
     return rows
 
 
-def _cell(v) -> str:
+def _cell(v: object) -> str:
     if v is None:
         return ""
     if isinstance(v, str):
@@ -114,7 +113,7 @@ def bom_csv(lines: Iterable[BomLine]) -> str:
     return buf.getvalue()
 
 
-def bom_json(lines: Iterable[BomLine], **extra) -> str:
+def bom_json(lines: Iterable[BomLine], **extra: object) -> str:
     """The BOM as a JSON object ``{"bom": [...], **extra}``, keys in a fixed order."""
     return json.dumps({**extra, "bom": bom_rows(lines)}, indent=2, ensure_ascii=False) + "\n"
 

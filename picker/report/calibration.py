@@ -1,8 +1,8 @@
-"""Render a :class:`~picker.calibration.fit.CalibrationResult`: JSON, a rich table, a residual plot.
+"""Render a :class:`~picker.calibration.result.CalibrationResult`: JSON, a rich table, a spec fragment.
 
 Edge module. JSON numbers are SI (F, Hz; ``l_scale`` dimensionless), NaN
 becomes ``null``, and keys come out in a fixed order, so the same fit gives
-byte-identical text.
+byte-identical text. The residual plot is :func:`picker.report.plots.plot_residuals`.
 """
 
 from __future__ import annotations
@@ -10,23 +10,24 @@ from __future__ import annotations
 import json
 import math
 from collections.abc import Sequence
+from typing import Any
 
-import numpy as np
 from rich.console import Console
 from rich.table import Table
 
-from picker.calibration.fit import CalibrationResult
+from picker.calibration.result import CalibrationResult, format_parameter
 from picker.units import format_quantity
 
-__all__ = ["plot_residuals", "print_table", "result_dict", "to_json"]
+__all__ = ["fragment_toml", "parameter_text", "print_table", "result_dict", "to_json"]
 
 
-def _num(x) -> float | None:
+def _num(x: float) -> float | None:
     x = float(x)
     return x if math.isfinite(x) else None
 
 
-def _text(name: str, unit: str, x: float, digits: int = 4) -> str:
+def parameter_text(unit: str, x: float, digits: int = 4) -> str:
+    """A parasitic's value for a table or a plot: farads with a prefix, else ``%.6g``; NaN is —."""
     if not math.isfinite(x):
         return "—"
     if unit == "F":
@@ -84,7 +85,7 @@ def result_dict(
     }
 
 
-def to_json(r: CalibrationResult, **kw) -> str:
+def to_json(r: CalibrationResult, **kw: Any) -> str:
     """``result_dict`` as indented JSON text ending in a newline."""
     return json.dumps(result_dict(r, **kw), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
 
@@ -97,14 +98,14 @@ def print_table(r: CalibrationResult, console: Console, *, extra_notes: Sequence
         t.add_column(col, justify="left" if col in ("parasitic", "status") else "right")
     for p in r.parameters:
         interval = (
-            f"{_text(p.name, p.unit, p.ci_low)} .. {_text(p.name, p.unit, p.ci_high)}"
+            f"{parameter_text(p.unit, p.ci_low)} .. {parameter_text(p.unit, p.ci_high)}"
             if p.fitted
             else "—"
         )
         t.add_row(
             p.name,
-            _text(p.name, p.unit, p.estimate),
-            _text(p.name, p.unit, p.std_error, 3),
+            parameter_text(p.unit, p.estimate),
+            parameter_text(p.unit, p.std_error, 3),
             interval,
             "fitted" if p.fitted else "held",
         )
@@ -129,53 +130,44 @@ def print_table(r: CalibrationResult, console: Console, *, extra_notes: Sequence
         console.print(f"note: {note}", markup=False, highlight=False)
 
 
-def plot_residuals(r: CalibrationResult) -> bytes:
-    """A PNG of the residuals: per unit with ±2s bars, and against frequency."""
-    import io
+def fragment_toml(result: CalibrationResult, *, source: str | None = None) -> str:
+    """A ``[parasitics]`` TOML section holding the fitted board, for a spec file.
 
-    import matplotlib
-
-    matplotlib.use("Agg")
-    from matplotlib.figure import Figure
-
-    ppm = r.residual_ppm
-    if r.sigma is None:
-        band = np.full(ppm.shape, 2 * r.residual_scale)  # s is in ppm already
-    else:
-        band = 2 * r.residual_scale * 1e6 * r.sigma / r.f_fitted
-    band = np.where(np.isfinite(band), band, 0.0)
-    bad = np.array([u in r.outliers for u in r.unit_ids])
-    x = np.arange(len(r.unit_ids))
-
-    fig = Figure(figsize=(9, 4.2), dpi=110, layout="constrained")
-    a, b = fig.subplots(1, 2, gridspec_kw={"width_ratios": [3, 2]})
-    for ax in (a, b):
-        ax.axhline(0.0, color="0.4", lw=0.8)
-        ax.grid(True, alpha=0.3)
-    if r.sigma is None:  # one residual scale for every unit: a band around zero
-        a.axhspan(-band[0], band[0], color="tab:blue", alpha=0.12, label="±2 s")
-        a.plot(x[~bad], ppm[~bad], "o", color="tab:blue", label="unit")
-        if bad.any():
-            a.plot(x[bad], ppm[bad], "s", color="tab:red", label="outlier")
-    else:  # per-unit sigmas: a bar on each unit
-        a.errorbar(x[~bad], ppm[~bad], yerr=band[~bad], fmt="o", color="tab:blue", capsize=3,
-                   label="unit (±2 s·sigma)")  # fmt: skip
-        if bad.any():
-            a.errorbar(x[bad], ppm[bad], yerr=band[bad], fmt="s", color="tab:red", capsize=3,
-                       label="outlier")  # fmt: skip
-    a.set_xticks(x, list(r.unit_ids), rotation=45 if len(x) > 8 else 0, ha="right")
-    a.set_xlabel("unit")
-    a.set_ylabel("measured − fitted frequency (ppm)")
-    a.legend(loc="best", fontsize=8)
-    b.scatter(r.f_measured[~bad] / 1e3, ppm[~bad], color="tab:blue")
-    if bad.any():
-        b.scatter(r.f_measured[bad] / 1e3, ppm[bad], color="tab:red", marker="s")
-    b.set_xlabel("measured frequency (kHz)")
-    b.set_ylabel("residual (ppm)")
-    est = ", ".join(
-        f"{p.name} = {_text(p.name, p.unit, p.estimate)}" for p in r.parameters if p.fitted
-    )
-    fig.suptitle(f"Calibration residuals, {r.topology} tank ({r.loss} loss): {est}", fontsize=10)
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", metadata={"Software": None})
-    return buf.getvalue()
+    Capacitances are written as engineering strings ("12.34 pF", four
+    significant digits), ``l_scale`` as a number. The spec requires
+    capacitances ≥ 0, so a negative estimate is written as "0 F" with a
+    comment. The header says where the values came from; it carries no date,
+    so the same fit gives the same text.
+    """
+    n = len(result.unit_ids)
+    head = [
+        "# Board parasitics learnt by `picker calibrate`" + (f" from {source}" if source else ""),
+        f"# ({n} units, {result.topology} tank, {result.loss} loss). Fitted: "
+        f"{', '.join(result.fitted)}; residual scale s = {result.residual_scale:.3g}"
+        f"{' (sigma units)' if result.sigma is not None else ' ppm'}.",
+    ]
+    lines = ["[parasitics]"]
+    for p in result.parameters:
+        level = f"{100 * result.confidence:g} %"
+        if p.fitted:
+            estimate = format_parameter(p.name, p.estimate)
+            std_error = format_parameter(p.name, p.std_error)
+            head.append(
+                f"# {p.name} = {estimate} ± {std_error}"
+                f" (1 s.e.; {level} interval {format_parameter(p.name, p.ci_low)} .. "
+                f"{format_parameter(p.name, p.ci_high)})"
+            )
+        else:
+            head.append(f"# {p.name} held, not fitted")
+        value = p.estimate
+        if p.unit == "F":
+            if value < 0:
+                head.append(f"# {p.name}: the fit gave a negative value; written as 0")
+                value = 0.0
+            lines.append(f'{p.name} = "{format_quantity(value, "F", digits=4)}"')
+        else:
+            lines.append(f"{p.name} = {float(f'{value:.6g}')!r}")
+    for uid in result.outliers:
+        head.append(f"# outlier: unit {uid}")
+    head = [h.replace("\n", " ") for h in head]
+    return "\n".join(head + lines) + "\n"

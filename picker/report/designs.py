@@ -13,13 +13,15 @@ import csv
 import io
 import json
 import math
+from collections.abc import Sequence
 
 from rich.console import Console
 from rich.table import Table
 
 from picker import __version__
-from picker.api.solve import Candidate, SolveResult
+from picker.api.results import Candidate, PartPick, SolveResult
 from picker.files import csv_safe
+from picker.report.production import print_production
 from picker.units import format_percent, format_quantity
 
 
@@ -27,7 +29,7 @@ def _num(x: float) -> float | None:
     return float(x) if math.isfinite(x) else None
 
 
-def part_text(pp) -> str:
+def part_text(pp: PartPick) -> str:
     """A position's value as shown: "4.7 nF", or "4.7 nF ∥ 1 nF" for a parallel pair."""
     if pp.is_pair:
         return (
@@ -52,11 +54,13 @@ def candidate_dict(c: Candidate) -> dict:
             parts[p]["price"] = pp.price
         if pp.is_pair:  # value is the total; the two parts, larger first
             parts[p]["pair"] = [
-                {"value": pp.first_value, "part_id": pp.part_id or None,
-                 "tolerance": pp.tolerance},
-                {"value": pp.second_value, "part_id": pp.second_part_id or None,
-                 "tolerance": pp.second_tolerance},
-            ]  # fmt: skip
+                {"value": pp.first_value, "part_id": pp.part_id or None, "tolerance": pp.tolerance},
+                {
+                    "value": pp.second_value,
+                    "part_id": pp.second_part_id or None,
+                    "tolerance": pp.second_tolerance,
+                },
+            ]
     return {
         "rank": c.rank,
         "parts": parts,
@@ -163,7 +167,7 @@ def to_csv(r: SolveResult) -> str:
     return buf.getvalue()
 
 
-def _table_part(pp) -> str:
+def _table_part(pp: PartPick) -> str:
     """Table cell of a position: "4.7 nF 5 %", "4.7 nF ∥ 1 nF 5 %" or "... 5 % ∥ 1 nF 2 %"."""
     tol = format_percent(pp.tolerance)
     if not pp.is_pair:
@@ -193,11 +197,11 @@ def _cost_of(c: Candidate) -> float | None:
     return (c.extra.get("cost") or {}).get("per_board")
 
 
-def _buyer_csv_header(positions) -> list[str]:
+def _buyer_csv_header(positions: Sequence[str]) -> list[str]:
     return [f"{p}_part_id" for p in positions] + ["cost_per_board", "cost_build", "stock_ok"]
 
 
-def _buyer_csv_row(c: Candidate, positions) -> list[str]:
+def _buyer_csv_row(c: Candidate, positions: Sequence[str]) -> list[str]:
     """Part ids ("A+B" for a pair), cost per board, build cost and stock sufficiency."""
     ids = []
     for p in positions:
@@ -216,7 +220,7 @@ def _buyer_csv_row(c: Candidate, positions) -> list[str]:
 _LOADED_CSV = ("f_loaded_hz", "startup_margin", "startup_margin_worst")
 
 
-def _csv_num(x) -> str:
+def _csv_num(x: float | None) -> str:
     return "" if x is None else repr(float(x))
 
 
@@ -277,10 +281,7 @@ def print_table(r: SolveResult, console: Console) -> None:
         t.add_column("fails")
         for m in r.misses:
             t.add_row(
-                *(
-                    format_quantity(m.values[p], "F" if p[0] == "C" else "H")
-                    for p in s.topo.positions
-                ),
+                *(format_quantity(m.values[p], s.topo.unit(p)) for p in s.topo.positions),
                 format_quantity(m.f_nominal_hz, "Hz", digits=5),
                 f"{m.feedback_fraction:.3g}",
                 m.failed,
@@ -336,6 +337,4 @@ def print_table(r: SolveResult, console: Console) -> None:
         console.print("Note: '!' marks a feedback fraction outside the feedback window.")
     if loaded:
         _print_cautions(r, console)
-    from picker.report.production import print_production
-
     print_production(r, console)

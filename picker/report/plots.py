@@ -4,11 +4,19 @@ Figures are drawn on ``matplotlib.figure.Figure`` with the Agg canvas, so no
 global backend or pyplot state is touched (safe in a CLI, a test run or a
 notebook). Axes carry units with SI prefixes (``matplotlib.ticker.EngFormatter``)
 or per cent.
+
+:func:`write_plots` writes the three PNGs of ``--plot DIR`` (:data:`PLOT_FILES`)
+through a temporary file in the target folder and a rename; existing files are
+kept unless ``force`` is given, and :func:`check_plot_folder` refuses a bad
+folder before the run.
 """
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+import contextlib
+import io
+import os
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from pathlib import Path
 
 import numpy as np
@@ -17,7 +25,15 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import EngFormatter, FuncFormatter, MaxNLocator, PercentFormatter
 from numpy.typing import ArrayLike
 
+from picker.api.results import SolveResult
+from picker.calibration.result import CalibrationResult
+from picker.errors import SpecError
+from picker.files import check_output
+from picker.report.calibration import parameter_text
 from picker.units import format_quantity
+
+#: File names written into the ``--plot`` folder.
+PLOT_FILES = ("histogram.png", "yield_vs_tolerance.png", "drivers.png")
 
 _SIZE = (7.0, 4.2)  # inches; at 120 dpi a 840 x 504 PNG
 _DPI = 120
@@ -43,7 +59,7 @@ def _places(span: float, centre: float) -> int:
 
 
 def plot_histogram(
-    f_samples,
+    f_samples: ArrayLike,
     f_min: float,
     f_max: float,
     target: float,
@@ -158,8 +174,9 @@ def plot_yield_vs_tolerance(
         line = ax.plot(t, y, marker=markers[i % len(markers)], label=pos)[0]
         if arr.shape[1] >= 4:
             err = np.vstack([y - arr[:, 2] * 100, arr[:, 3] * 100 - y])
-            ax.errorbar(t, y, yerr=np.clip(err, 0, None), fmt="none", ecolor=line.get_color(),
-                        capsize=3)  # fmt: skip
+            ax.errorbar(
+                t, y, yerr=np.clip(err, 0, None), fmt="none", ecolor=line.get_color(), capsize=3
+            )
         if current and pos in current:
             k = np.argmin(np.abs(arr[:, 0] - current[pos]))
             ax.plot(t[k], y[k], "o", ms=12, mfc="none", mec=line.get_color(), mew=1.5)
@@ -225,3 +242,164 @@ def plot_drivers(
     ax.grid(True, axis="x", alpha=0.3)
     fig.tight_layout()
     return _save(fig, path)
+
+
+def format_value(value: float, unit: str) -> str:
+    """A part value as engineering text for a plot title (``4.7 nF``)."""
+    return format_quantity(value, unit)
+
+
+def _title(result: SolveResult) -> str:
+    """The best design's parts, ``C1 4.7 nF, C2 …``, for the plot titles."""
+    c = result.candidates[0]
+    return ", ".join(f"{p} {format_value(pp.value, pp.unit)}" for p, pp in c.parts.items())
+
+
+def check_plot_folder(
+    directory: Path, *, force: bool = False, inputs: Iterable[str | Path] = ()
+) -> list[Path]:
+    """Refuse a --plot folder before any work: a file, an existing PNG without
+    ``force``, a PNG that is one of ``inputs``. Returns the PNG paths."""
+    d = Path(directory)
+    if d.exists() and not d.is_dir():
+        raise SpecError("expected a folder for the plots, got a file", file=str(d), key="--plot")
+    targets = [d / name for name in PLOT_FILES]
+    if d.is_dir():
+        for t in targets:
+            check_output(t, force=force, inputs=inputs, key="--plot")
+    return targets
+
+
+def write_plots(
+    result: SolveResult,
+    directory: Path,
+    *,
+    force: bool = False,
+    inputs: Iterable[str | Path] = (),
+) -> list[Path]:
+    """Write the histogram, yield-vs-tolerance and driver PNGs of the best design.
+
+    Raises
+    ------
+    SpecError
+        ``directory`` is a file, a PNG exists and ``force`` is not given, a PNG
+        would replace one of ``inputs``, the folder cannot be made or written,
+        or the result holds no design.
+    """
+    d = Path(directory)
+    targets = check_plot_folder(d, force=force, inputs=inputs)
+    if not result.candidates or result.plot_data is None:
+        raise SpecError("no design to plot", key="--plot")
+    try:
+        d.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise SpecError(
+            f"cannot make the folder ({exc.strerror or exc})", file=str(d), key="--plot"
+        ) from None
+    pd = result.plot_data
+    title = _title(result)
+    temp = pd["temperature_c"]
+    rng = result.spec.yield_.temperature
+    where = f" at {temp:g} °C" if rng is not None else ""
+    over = f" ({rng[0]:g} °C .. {rng[1]:g} °C)" if rng is not None else ""
+    draw: dict[str, Callable[[Path], Path]] = {
+        "histogram.png": lambda p: plot_histogram(
+            pd["frequencies"],
+            pd["f_min"],
+            pd["f_max"],
+            pd["target"],
+            p,
+            title=f"Monte Carlo frequency spread{where}: {title}",
+        ),
+        "yield_vs_tolerance.png": lambda p: plot_yield_vs_tolerance(
+            pd["sweep"],
+            p,
+            title=f"Yield{over} against tolerance class: {title}",
+            current=pd["tolerances"],
+        ),
+        "drivers.png": lambda p: plot_drivers(
+            pd["drivers"],
+            p,
+            title=f"What drives the frequency spread: {title}",
+            confirm=pd["drivers_mc"],
+        ),
+    }
+    written = []
+    for t in targets:
+        tmp = d / f".{t.stem}.{os.getpid()}.tmp.png"  # same folder: the rename is atomic
+        try:
+            draw[t.name](tmp)
+            os.replace(tmp, t)
+        except BaseException as exc:
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            if isinstance(exc, OSError):
+                raise SpecError(
+                    f"cannot write the file ({exc.strerror or exc})", file=str(t), key="--plot"
+                ) from None
+            raise
+        written.append(t)
+    return written
+
+
+def plot_residuals(r: CalibrationResult) -> bytes:
+    """A PNG of the residuals of a calibration: per unit with ±2s bars, and against frequency.
+
+    Returns the PNG bytes (the caller writes them with :func:`picker.files.atomic_write`).
+    """
+    ppm = r.residual_ppm
+    if r.sigma is None:
+        band = np.full(ppm.shape, 2 * r.residual_scale)  # s is in ppm already
+    else:
+        band = 2 * r.residual_scale * 1e6 * r.sigma / r.f_fitted
+    band = np.where(np.isfinite(band), band, 0.0)
+    bad = np.array([u in r.outliers for u in r.unit_ids])
+    x = np.arange(len(r.unit_ids))
+
+    fig = Figure(figsize=(9, 4.2), dpi=110, layout="constrained")
+    FigureCanvasAgg(fig)
+    a, b = fig.subplots(1, 2, gridspec_kw={"width_ratios": [3, 2]})
+    for ax in (a, b):
+        ax.axhline(0.0, color="0.4", lw=0.8)
+        ax.grid(True, alpha=0.3)
+    if r.sigma is None:  # one residual scale for every unit: a band around zero
+        a.axhspan(-band[0], band[0], color="tab:blue", alpha=0.12, label="±2 s")
+        a.plot(x[~bad], ppm[~bad], "o", color="tab:blue", label="unit")
+        if bad.any():
+            a.plot(x[bad], ppm[bad], "s", color="tab:red", label="outlier")
+    else:  # per-unit sigmas: a bar on each unit
+        a.errorbar(
+            x[~bad],
+            ppm[~bad],
+            yerr=band[~bad],
+            fmt="o",
+            color="tab:blue",
+            capsize=3,
+            label="unit (±2 s·sigma)",
+        )
+        if bad.any():
+            a.errorbar(
+                x[bad],
+                ppm[bad],
+                yerr=band[bad],
+                fmt="s",
+                color="tab:red",
+                capsize=3,
+                label="outlier",
+            )
+    a.set_xticks(x, list(r.unit_ids), rotation=45 if len(x) > 8 else 0, ha="right")
+    a.set_xlabel("unit")
+    a.set_ylabel("measured − fitted frequency (ppm)")
+    a.legend(loc="best", fontsize=8)
+    b.scatter(r.f_measured[~bad] / 1e3, ppm[~bad], color="tab:blue")
+    if bad.any():
+        b.scatter(r.f_measured[bad] / 1e3, ppm[bad], color="tab:red", marker="s")
+    b.set_xlabel("measured frequency (kHz)")
+    b.set_ylabel("residual (ppm)")
+    est = ", ".join(
+        f"{p.name} = {parameter_text(p.unit, p.estimate)}" for p in r.parameters if p.fitted
+    )
+    fig.suptitle(f"Calibration residuals, {r.topology} tank ({r.loss} loss): {est}", fontsize=10)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", metadata={"Software": None})
+    return buf.getvalue()

@@ -9,20 +9,24 @@ figures come from ``Candidate.extra`` (see :mod:`picker.production.figures`).
 
 from __future__ import annotations
 
+from collections.abc import Iterable
+
 from rich.console import Console
 from rich.table import Table
 
+from picker.api.results import SolveResult
+from picker.tank.base import Topology
 from picker.units import format_percent, format_quantity
 
 
-def _opt(x, unit: str) -> str:
+def _opt(x: str | float, unit: str) -> str:
     """A change's option: a tolerance fraction or a material name."""
     if isinstance(x, str):
         return x
     return format_percent(float(x)) if unit == "%" else str(x)
 
 
-def _money(x) -> str:
+def _money(x: float | None) -> str:
     return "—" if x is None else f"{x:+.3f}"
 
 
@@ -30,7 +34,7 @@ def _pct(x: float) -> str:
     return f"{x:.1%}"
 
 
-def print_warnings(warnings, console: Console) -> None:
+def print_warnings(warnings: Iterable[str], console: Console) -> None:
     for w in warnings:
         console.print(f"[yellow]Warning:[/yellow] {w}")
 
@@ -124,13 +128,14 @@ def print_tighter(x: dict, console: Console) -> None:
         )
 
 
-def print_trimmer(x: dict, console: Console) -> None:
+def print_trimmer(x: dict, console: Console, topology: Topology) -> None:
     tr = x.get("trimmer")
     if not tr:
         return
-    where = "across the tank" if tr["placement"] == "across" else "in parallel with C3"
+    across = tr["placement"] == "across"
+    where = "across the tank" if across else f"in parallel with {tr['placement']}"
     rc = tr["recentre"]
-    unit = "H" if rc["position"] == "L" else "F"
+    unit = topology.unit(rc["position"])
     if rc["to"] == rc["from"]:
         fixed = f"{rc['position']} kept at {format_quantity(rc['from'], unit)}"
     elif rc["to"] == 0:
@@ -162,14 +167,14 @@ def print_trimmer(x: dict, console: Console) -> None:
     )
 
 
-def print_production(r, console: Console) -> None:
+def print_production(r: SolveResult, console: Console) -> None:
     """Every production section for the best design, then the run's warnings."""
     if r.candidates:
         x = r.candidates[0].extra
         print_temperature(x, console)
         print_drivers(x, console)
         print_tighter(x, console)
-        print_trimmer(x, console)
+        print_trimmer(x, console, r.spec.topo)
     mc = r.production or {}
     if mc.get("precision") is not None:
         state = "reached" if mc.get("converged") else "not reached (sample cap)"

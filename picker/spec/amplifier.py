@@ -3,7 +3,8 @@
 Example (every quantity accepts engineering strings; bare numbers are SI)::
 
     [amplifier]
-    kind = "bjt"                 # "bjt" (common emitter) or "fet" (common source)
+    kind = "bjt"                 # the device type: "bjt" or "fet"
+    stage = "common-emitter"     # the configuration (omit: the device type's default stage)
     supply = "9 V"
     r_load = "2.2 kohm"          # collector resistor ... or: choke = "100 uH", choke_resistance = "2 ohm"
     r_bias_top = "47 kohm"       # supply to base
@@ -13,6 +14,11 @@ Example (every quantity accepts engineering strings; bare numbers are SI)::
     c_coupling = "10 nF"         # collector-to-tank blocking capacitor; omit: none (flagged)
     min_margin = 2.0             # smallest acceptable start-up margin (default 2)
     monte_carlo = "surrogate"    # or "full": the loaded model on every simulated board
+
+``stage`` takes the name of a registered stage (:data:`picker.circuit.stages.STAGES`:
+"common-emitter" for a bjt, "common-source" for a fet); without it the stage is the
+default one of ``kind``, and a ``stage`` without ``kind`` sets ``kind`` to the stage's
+device type. A stage built from another device than ``kind`` is refused.
 
 Optional device keys: ``bias_current`` (A; bjt default: solved from the bias
 network), ``gm`` (S), ``current_gain``, ``early_voltage`` (V), ``r_out`` (ohm),
@@ -28,10 +34,11 @@ import math
 from collections.abc import Mapping
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, field_validator, model_validator
+from pydantic import BaseModel, ConfigDict, ValidationInfo, field_validator, model_validator
 
 from picker import units
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.stages import STAGES, default_stage, small_signal, stage_names
 from picker.errors import SpecError
 
 _UNITS = {
@@ -62,6 +69,7 @@ class AmplifierSpec(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True)
 
     kind: Literal["bjt", "fet"] = "bjt"
+    stage: str = "common-emitter"
     supply: float = 9.0
     bias_current: float | None = None
     gm: float | None = None
@@ -83,15 +91,48 @@ class AmplifierSpec(BaseModel):
     min_margin: float = 2.0
     monte_carlo: Literal["surrogate", "full"] = "surrogate"
 
+    @model_validator(mode="before")
+    @classmethod
+    def _default_stage(cls, data: Any) -> Any:
+        """No ``stage``: the default stage of ``kind``; a ``stage`` and no ``kind``: its device."""
+        if not isinstance(data, Mapping):
+            return data
+        data = dict(data)
+        stage = data.get("stage")
+        if "kind" not in data and isinstance(stage, str) and stage in STAGES:
+            data["kind"] = STAGES[stage].device
+        elif "stage" not in data:
+            try:
+                data["stage"] = default_stage(data.get("kind", "bjt")).name
+            except (TypeError, ValueError):
+                pass  # a bad kind: its own message, from the kind field
+        return data
+
+    @field_validator("stage", mode="before")
+    @classmethod
+    def _stage(cls, v: Any, info: ValidationInfo) -> str:
+        if not isinstance(v, str) or v not in STAGES:
+            raise ValueError(
+                f"expected an amplifier stage, one of {', '.join(stage_names())}; got {v!r}"
+            )
+        kind = info.data.get("kind")
+        if kind is not None and STAGES[v].device != kind:
+            raise ValueError(
+                f"expected a stage built from the device kind = {kind!r}; got {v!r}, which is "
+                f"built from a {STAGES[v].device}"
+            )
+        return v
+
     @field_validator(*_UNITS, mode="before")
     @classmethod
-    def _quantity(cls, v: Any, info) -> float:
-        unit = _UNITS[info.field_name]
+    def _quantity(cls, v: Any, info: ValidationInfo) -> float:
+        name = str(info.field_name)
+        unit = _UNITS[name]
         try:
             x = units.parse_quantity(v, unit)
         except SpecError as exc:
             raise ValueError(exc.message) from None
-        if not math.isfinite(x) or x < 0 or (x == 0 and info.field_name not in _MAY_BE_ZERO):
+        if not math.isfinite(x) or x < 0 or (x == 0 and name not in _MAY_BE_ZERO):
             raise ValueError(f"expected a positive value in {unit}; got {v!r}")
         return x
 
@@ -134,19 +175,22 @@ class AmplifierSpec(BaseModel):
 
         ``parts`` maps position → an object with optional attributes ``q``,
         ``q_frequency`` (Hz) and ``esr`` (ohm) (picker.spec.model.PartSpec). The inductor's
-        ``esr`` is used when it has no ``q``.
+        ``esr`` is used when it has no ``q``. A part's ``unit`` ("H" for the
+        inductor, "F" for a capacitor; the topology's fact, set by the spec) tells
+        which is which.
         """
         parts = parts or {}
-        ind = parts.get("L")
+        ind = next((p for p in parts.values() if getattr(p, "unit", None) == "H"), None)
         q = getattr(ind, "q", None)
         esr_l = getattr(ind, "esr", None)
         cap_esr = {
-            pos: float(getattr(p, "esr", None))
+            pos: float(esr)
             for pos, p in parts.items()
-            if pos.startswith("C") and getattr(p, "esr", None)
+            if getattr(p, "unit", None) == "F" and (esr := getattr(p, "esr", None))
         }
         params = AmplifierParams(
             kind=self.kind,
+            stage=self.stage,
             vcc=self.supply,
             i_bias=self.bias_current,
             gm=self.gm,
@@ -171,7 +215,7 @@ class AmplifierSpec(BaseModel):
             capacitor_esr=cap_esr,
         )
         try:
-            params.small_signal()
+            small_signal(params)
         except ValueError as exc:  # bias network that cannot work, e.g. a divider below V_BE
             raise SpecError(str(exc), key="amplifier") from None
         return params

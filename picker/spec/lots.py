@@ -18,12 +18,16 @@ The result is the lot's relative deviations from the nominal value,
 from __future__ import annotations
 
 import csv
+import io
+from collections.abc import Iterator
 from pathlib import Path
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from picker import units
 from picker.errors import SpecError
+from picker.files import read_text
 
 #: Fewest measured parts accepted as a lot. Below about 20 the empirical
 #: quantiles say little about the tails (common practice, no source).
@@ -31,7 +35,7 @@ MIN_LOT_SIZE = 20
 
 
 def lot_deviations(
-    values, nominal: float, tol: float, *, unit: str = "F", file: str | None = None
+    values: ArrayLike, nominal: float, tol: float, *, unit: str = "F", file: str | None = None
 ) -> np.ndarray:
     """Relative deviations of a measured lot, after a plausibility check.
 
@@ -87,12 +91,12 @@ def lot_deviations(
     return x / nominal - 1.0
 
 
-def _rows(path: Path):
-    with path.open(newline="", encoding="utf-8-sig") as fh:
-        for lineno, row in enumerate(csv.reader(fh), start=1):
-            if not row or not "".join(row).strip() or row[0].lstrip().startswith("#"):
-                continue
-            yield lineno, [c.strip() for c in row]
+def _rows(text: str) -> Iterator[tuple[int, list[str]]]:
+    """(record number, stripped cells) of each CSV record that is not blank or a comment."""
+    for lineno, row in enumerate(csv.reader(io.StringIO(text, newline="")), start=1):
+        if not row or not "".join(row).strip() or row[0].lstrip().startswith("#"):
+            continue
+        yield lineno, [c.strip() for c in row]
 
 
 def read_lot_csv(path: str | Path, unit: str) -> np.ndarray:
@@ -115,14 +119,18 @@ def read_lot_csv(path: str | Path, unit: str) -> np.ndarray:
         Unreadable file, no ``value`` column, or a cell that is not a quantity
         of the expected dimension; the message names the file, row and column.
     """
-    p = Path(path)
     name = str(path)
-    try:
-        rows = list(_rows(p))
-    except OSError as exc:
-        raise SpecError(f"cannot read the lot file ({exc.strerror})", file=name) from None
-    except UnicodeDecodeError:
-        raise SpecError("expected a UTF-8 text CSV file", file=name) from None
+    unreadable = "cannot read the lot file ({strerror})"
+    text = read_text(
+        path,
+        what="a lot file",
+        encoding="utf-8-sig",
+        missing=unreadable,
+        directory=unreadable,
+        unreadable=unreadable,
+        undecodable="expected a UTF-8 text CSV file",
+    )
+    rows = list(_rows(text))
     if not rows:
         raise SpecError("expected a CSV with a 'value' column; the file is empty", file=name)
     lineno, first = rows[0]

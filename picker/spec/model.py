@@ -1,8 +1,10 @@
-"""The spec file: TOML in, a validated :class:`Spec` with SI floats out.
+"""The spec's models: a validated :class:`Spec` with SI floats, section by section.
 
-This is an edge module: it reads files and turns every fault into a
-:class:`~picker.errors.SpecError` that names the file, the key path
-(``parts.C1.tolerance``), what was expected and what was given.
+The pydantic models of every spec table (``[frequency]``, ``[feedback]``,
+``[parts.X]``, ``[parasitics]``, ``[yield]``, ``[cost]``, ``[report]``,
+``[search]``; ``[amplifier]`` is :mod:`picker.spec.amplifier`). Reading the
+file and turning validation errors into one-line
+:class:`~picker.errors.SpecError` is :mod:`picker.spec.load`.
 
 Unknown keys are errors everywhere (a typo must not be silently ignored).
 Engineering strings ("4.7 nF", "4n7", "±3 %", "J") are parsed by
@@ -11,48 +13,45 @@ Engineering strings ("4.7 nF", "4n7", "±3 %", "J") are parsed by
 
 from __future__ import annotations
 
-import copy
 import math
-import tomllib
-from pathlib import Path
+from collections.abc import Sequence
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    ValidationInfo,
+    field_validator,
+    model_validator,
+)
 
 from picker import units
-from picker.errors import SpecError
+from picker.errors import KeyedError, SpecError
 from picker.parts import limits
 from picker.parts import series as series_mod
-from picker.spec.production import check_part as _check_production_keys
-from picker.spec.production import parse_part_keys as _parse_production_keys
-from picker.tank.base import TOPOLOGIES, get_topology
-
-try:  # optional sections written alongside this module
-    from picker.spec.amplifier import AmplifierSpec
-except ImportError:  # pragma: no cover - present in a full checkout
-    AmplifierSpec = None  # type: ignore[assignment,misc]
-
-_AmplifierField = (AmplifierSpec | None) if AmplifierSpec is not None else None
-
-#: Physical unit of each part position (by its first letter).
-POSITION_UNIT = {"C": "F", "L": "H"}
+from picker.spec.amplifier import AmplifierSpec
+from picker.spec.fields import parse_field_quantity, parse_share, parse_temperature_range
+from picker.spec.production import check_part as check_production_keys
+from picker.spec.production import check_spec
+from picker.spec.production import parse_part_keys as parse_production_keys
+from picker.tank import TOPOLOGIES, Topology, get_topology, topology_names
 
 
-def position_unit(pos: str) -> str:
-    """SI unit of a part position: capacitors "F", the inductor "H"."""
-    return POSITION_UNIT[pos[0]]
+def _one_of(words: Sequence[str]) -> str:
+    """``'a', 'b' or 'c'``: the allowed words as pydantic lists a ``Literal``'s."""
+    quoted = [repr(w) for w in words]
+    return " or ".join([", ".join(quoted[:-1]), quoted[-1]] if len(quoted) > 1 else quoted)
+
+
+def _trimmer_words() -> list[str]:
+    """``[yield] trimmer`` values: "across", each topology's trimmer position, "none"."""
+    at = sorted({t.trimmer_position for t in TOPOLOGIES.values() if t.trimmer_position})
+    return ["across", *at, "none"]
 
 
 class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
-
-
-def _q(text: Any, unit: str) -> float:
-    """Parse a quantity, turning a SpecError into the ValueError pydantic expects."""
-    try:
-        return units.parse_quantity(text, unit)
-    except SpecError as exc:
-        raise ValueError(exc.message) from None
 
 
 class FrequencySpec(_Strict):
@@ -68,7 +67,7 @@ class FrequencySpec(_Strict):
     def _hz(cls, v: Any) -> float | None:
         if v is None:
             return None
-        f = _q(v, "Hz")
+        f = parse_field_quantity(v, "Hz")
         if not f > 0:
             raise ValueError(f"expected a positive frequency such as '250 kHz'; got {v!r}")
         if (why := limits.frequency_problem(f)) is not None:
@@ -100,11 +99,12 @@ class FrequencySpec(_Strict):
             raise ValueError("give either window or min/max, not both")
         if has_edges and (self.min is None or self.max is None):
             raise ValueError("expected both min and max")
-        if has_edges and not self.min < self.target < self.max:  # type: ignore[operator]
+        lo, hi = self.min, self.max
+        if lo is not None and hi is not None and not lo < self.target < hi:
             raise ValueError(
-                f"expected min < target < max; got min={units.format_quantity(self.min, 'Hz')}, "
+                f"expected min < target < max; got min={units.format_quantity(lo, 'Hz')}, "
                 f"target={units.format_quantity(self.target, 'Hz')}, "
-                f"max={units.format_quantity(self.max, 'Hz')}"
+                f"max={units.format_quantity(hi, 'Hz')}"
             )
         if not self.f_max / self.f_min - 1 >= limits.MIN_WINDOW:
             raise ValueError(
@@ -201,40 +201,40 @@ class PartSpec(_Strict):
                 try:
                     d[key] = units.parse_quantity(d[key], unit)
                 except SpecError as exc:
-                    raise _KeyedError(key, exc.message) from None
+                    raise KeyedError(key, exc.message) from None
                 if not d[key] > 0:
-                    raise _KeyedError(key, f"expected a positive value; got {data[key]!r}")
+                    raise KeyedError(key, f"expected a positive value; got {data[key]!r}")
                 if (why := limits.value_problem(d[key], unit, data[key])) is not None:
-                    raise _KeyedError(key, f"{why}; got {data[key]!r}")
+                    raise KeyedError(key, f"{why}; got {data[key]!r}")
         if d.get("values") is not None:
             raw = d["values"]
             if not isinstance(raw, list) or not raw:
-                raise _KeyedError("values", f"expected a non-empty list of values; got {raw!r}")
+                raise KeyedError("values", f"expected a non-empty list of values; got {raw!r}")
             parsed = []
             for i, v in enumerate(raw):
                 try:
                     x = units.parse_quantity(v, unit)
                 except SpecError as exc:
-                    raise _KeyedError(f"values[{i}]", exc.message) from None
+                    raise KeyedError(f"values[{i}]", exc.message) from None
                 if not x > 0:
-                    raise _KeyedError(f"values[{i}]", f"expected a positive value; got {v!r}")
+                    raise KeyedError(f"values[{i}]", f"expected a positive value; got {v!r}")
                 if (why := limits.value_problem(x, unit, v)) is not None:
-                    raise _KeyedError(f"values[{i}]", f"{why}; got {v!r}")
+                    raise KeyedError(f"values[{i}]", f"{why}; got {v!r}")
                 parsed.append(x)
             d["values"] = tuple(sorted(set(parsed)))
         if d.get("tolerance") is not None:
             try:
                 d["tolerance"] = units.parse_tolerance(d["tolerance"])
             except SpecError as exc:
-                raise _KeyedError("tolerance", exc.message) from None
+                raise KeyedError("tolerance", exc.message) from None
         for key, u in (("q_frequency", "Hz"), ("esr", "ohm"), ("voltage_rating", "V")):
             if d.get(key) is not None:
                 try:
                     d[key] = units.parse_quantity(d[key], u)
                 except SpecError as exc:
-                    raise _KeyedError(key, exc.message) from None
+                    raise KeyedError(key, exc.message) from None
                 if not d[key] > 0 and key != "esr":
-                    raise _KeyedError(key, f"expected a positive value; got {data[key]!r}")
+                    raise KeyedError(key, f"expected a positive value; got {data[key]!r}")
         if d.get("price") is not None:
             p = d["price"]
             if (
@@ -243,7 +243,7 @@ class PartSpec(_Strict):
                 or not math.isfinite(p)
                 or p < 0
             ):
-                raise _KeyedError("price", f"expected a unit price as a number >= 0; got {p!r}")
+                raise KeyedError("price", f"expected a unit price as a number >= 0; got {p!r}")
         if d.get("q") is not None:
             q = d["q"]
             if (
@@ -252,24 +252,24 @@ class PartSpec(_Strict):
                 or not math.isfinite(q)
                 or q <= 0
             ):
-                raise _KeyedError("q", f"expected a positive quality factor such as 60; got {q!r}")
+                raise KeyedError("q", f"expected a positive quality factor such as 60; got {q!r}")
         if d.get("series") is not None:
             if not isinstance(d["series"], str):
-                raise _KeyedError(
+                raise KeyedError(
                     "series", f"expected a series name such as 'E12'; got {d['series']!r}"
                 )
             try:
                 d["series"] = series_mod.canonical_name(d["series"])
             except SpecError as exc:
-                raise _KeyedError("series", exc.message) from None
+                raise KeyedError("series", exc.message) from None
         _parse_buyer_keys(d)
-        return _parse_production_keys(d, unit)
+        return parse_production_keys(d, unit)
 
     @model_validator(mode="after")
     def _complete(self) -> PartSpec:
         if self.stock is not None:
             _check_stock_part(self)
-            _check_production_keys(self)
+            check_production_keys(self)
             return self
         if self.series is None and self.values is None:
             raise ValueError(
@@ -278,11 +278,11 @@ class PartSpec(_Strict):
         if self.series is not None and self.values is not None:
             raise ValueError("give either series or values, not both")
         if self.parallel and self.unit != "F":
-            raise _KeyedError("parallel", "parallel pairs are for capacitors only")
+            raise KeyedError("parallel", "parallel pairs are for capacitors only")
         if self.series is not None:
             if self.min is None or self.max is None:
                 missing = "min" if self.min is None else "max"
-                raise _KeyedError(missing, f"expected {missing} (e.g. '100 pF') with a series")
+                raise KeyedError(missing, f"expected {missing} (e.g. '100 pF') with a series")
             if self.min > self.max:
                 raise ValueError(
                     f"expected min <= max; got min={units.format_quantity(self.min, self.unit)}, "
@@ -290,59 +290,50 @@ class PartSpec(_Strict):
                 )
         if self.tolerance is None:
             if self.series is None:
-                raise _KeyedError(
+                raise KeyedError(
                     "tolerance", "expected a tolerance (e.g. '5 %' or 'J') for a value list"
                 )
             object.__setattr__(self, "tolerance", series_mod.default_tolerance(self.series))
-        _check_production_keys(self)
+        check_production_keys(self)
         return self
 
 
 def _parse_buyer_keys(d: dict) -> None:
     """Parse ``stock``, ``parallel`` and ``pair_ratio_max`` of one part table in place."""
     if "stock_list" in d:
-        raise _KeyedError("stock_list", "unknown key (a typo?); a stock list is stock = 'file.csv'")
+        raise KeyedError("stock_list", "unknown key (a typo?); a stock list is stock = 'file.csv'")
     if d.get("stock") is not None and not (isinstance(d["stock"], str) and d["stock"].strip()):
-        raise _KeyedError("stock", f"expected the path of a stock-list CSV; got {d['stock']!r}")
+        raise KeyedError("stock", f"expected the path of a stock-list CSV; got {d['stock']!r}")
     if "parallel" in d and not isinstance(d["parallel"], bool):
-        raise _KeyedError("parallel", f"expected true or false; got {d['parallel']!r}")
+        raise KeyedError("parallel", f"expected true or false; got {d['parallel']!r}")
     if d.get("pair_ratio_max") is not None:
         r = d["pair_ratio_max"]
         if isinstance(r, bool) or not isinstance(r, int | float) or not (1 <= r < math.inf):
-            raise _KeyedError(
+            raise KeyedError(
                 "pair_ratio_max", f"expected a ratio of at least 1 such as 10; got {r!r}"
             )
         if not d.get("parallel"):
-            raise _KeyedError("pair_ratio_max", "pair_ratio_max needs parallel = true")
+            raise KeyedError("pair_ratio_max", "pair_ratio_max needs parallel = true")
 
 
 def _check_stock_part(part: PartSpec) -> None:
     """Cross-key checks of a position filled from a stock list."""
     for key in ("series", "values"):
         if getattr(part, key) is not None:
-            raise _KeyedError(key, f"give either {key} or stock, not both")
+            raise KeyedError(key, f"give either {key} or stock, not both")
     for key in ("price", "prices", "lot"):
         if getattr(part, key) is not None:
             why = "prices come from the stock list" if key != "lot" else "a lot is one value"
-            raise _KeyedError(key, f"{key} does not go with stock ({why})")
+            raise KeyedError(key, f"{key} does not go with stock ({why})")
     if part.parallel and part.unit != "F":
-        raise _KeyedError("parallel", "parallel pairs are for capacitors only")
+        raise KeyedError("parallel", "parallel pairs are for capacitors only")
     if part.min is not None and part.max is not None and part.min > part.max:
         raise ValueError(
             f"expected min <= max; got min={units.format_quantity(part.min, part.unit)}, "
             f"max={units.format_quantity(part.max, part.unit)}"
         )
     if part.grade is not None and part.tolerance is None:
-        raise _KeyedError("grade", "a graded stock position needs tolerance (the outer class)")
-
-
-class _KeyedError(ValueError):
-    """A ValueError that knows which sub-key of a table it belongs to."""
-
-    def __init__(self, key: str, message: str):
-        self.key = key
-        self.message = message
-        super().__init__(f"@{key}@{message}")
+        raise KeyedError("grade", "a graded stock position needs tolerance (the outer class)")
 
 
 class ParasiticsSpec(_Strict):
@@ -361,7 +352,7 @@ class ParasiticsSpec(_Strict):
     @field_validator("stray", "c1_shunt", "c2_shunt", mode="before")
     @classmethod
     def _cap(cls, v: Any) -> float:
-        c = _q(v, "F")
+        c = parse_field_quantity(v, "F")
         if c < 0:
             raise ValueError(f"expected a capacitance >= 0 such as '10 pF'; got {v!r}")
         return c
@@ -390,11 +381,12 @@ class YieldSpec(_Strict):
     max_samples: int = Field(1_000_000, ge=100, le=100_000_000)
     sampling: Literal["random", "sobol"] = "random"
     target: float | None = None
-    trimmer: Literal["across", "C3", "none"] = "across"
+    trimmer: str = "across"  # "across", "none" or a topology's trimmer_position (picker.tank)
     trimmer_share: float = 0.997
 
-    @field_validator("samples", "seed", "candidates", "temperature_points", "max_samples",
-                     mode="before")  # fmt: skip
+    @field_validator(
+        "samples", "seed", "candidates", "temperature_points", "max_samples", mode="before"
+    )
     @classmethod
     def _int(cls, v: Any) -> int:
         if isinstance(v, bool) or not isinstance(v, int):
@@ -404,37 +396,32 @@ class YieldSpec(_Strict):
     @field_validator("temperature", mode="before")
     @classmethod
     def _temperature(cls, v: Any) -> tuple[float, float] | None:
-        from picker.spec.production import parse_temperature_range
-
         return parse_temperature_range(v)
 
     @field_validator("precision", mode="before")
     @classmethod
     def _precision(cls, v: Any) -> float | None:
-        from picker.spec.production import parse_share
-
         return parse_share(v, "a confidence-interval half-width such as '0.5 %'", top=0.5)
 
     @field_validator("target", mode="before")
     @classmethod
     def _target(cls, v: Any) -> float | None:
-        from picker.spec.production import parse_share
-
         return parse_share(v, "a yield target such as '99 %'")
 
     @field_validator("trimmer_share", mode="before")
     @classmethod
     def _trimmer_share(cls, v: Any) -> float | None:
-        from picker.spec.production import parse_share
-
         return parse_share(v, "a share of boards such as '99.7 %'", upper_open=True)
 
     @field_validator("trimmer", "sampling", mode="before")
     @classmethod
-    def _word(cls, v: Any) -> Any:
+    def _word(cls, v: Any, info: ValidationInfo) -> Any:
+        words = _trimmer_words()
         if isinstance(v, str):
             w = v.strip().lower()
-            return "C3" if w == "c3" else w
+            v = w.upper() if w.upper() in words else w
+        if info.field_name == "trimmer" and v not in words:
+            raise ValueError(f"expected {_one_of(words)}; got {v!r}")
         return v
 
 
@@ -470,8 +457,6 @@ class CostSpec(_Strict):
     @field_validator("min_yield", mode="before")
     @classmethod
     def _share(cls, v: Any) -> float | None:
-        from picker.spec.production import parse_share
-
         return parse_share(v, "a yield such as '95 %'")
 
     @field_validator("rank_by", mode="before")
@@ -495,7 +480,7 @@ class Spec(_Strict):
     """A validated spec: everything in SI floats."""
 
     title: str = ""
-    topology: Literal["colpitts", "clapp"]
+    topology: str  # a registered topology's name (picker.tank)
     frequency: FrequencySpec
     feedback: FeedbackSpec = FeedbackSpec()
     parts: dict[str, PartSpec]
@@ -504,7 +489,7 @@ class Spec(_Strict):
     report: ReportSpec = ReportSpec()
     search: SearchSpec = SearchSpec()
     cost: CostSpec = CostSpec()
-    amplifier: _AmplifierField = None
+    amplifier: AmplifierSpec | None = None
     source: str = Field("", exclude=True)
 
     @model_validator(mode="before")
@@ -525,20 +510,28 @@ class Spec(_Strict):
             want = get_topology(d["topology"]).positions
             for pos in parts:
                 if pos not in want:
-                    raise _KeyedError(
+                    raise KeyedError(
                         f"parts.{pos}",
                         f"unknown part position for a {d['topology']} tank; expected {', '.join(want)}",
                     )
             for pos in want:
                 if pos not in parts:
-                    raise _KeyedError(
+                    raise KeyedError(
                         f"parts.{pos}", f"missing: a {d['topology']} tank needs {', '.join(want)}"
                     )
+            topology = get_topology(d["topology"])
             d["parts"] = {
-                p: ({**v, "unit": position_unit(p)} if isinstance(v, dict) else v)
+                p: ({**v, "unit": topology.unit(p)} if isinstance(v, dict) else v)
                 for p, v in parts.items()
             }
         return d
+
+    @field_validator("topology", mode="before")
+    @classmethod
+    def _topology(cls, v: Any) -> str:
+        if isinstance(v, str) and v in TOPOLOGIES:
+            return v
+        raise ValueError(f"expected {_one_of(topology_names())}; got {v!r}")
 
     @field_validator("title", mode="before")
     @classmethod
@@ -550,183 +543,22 @@ class Spec(_Strict):
     @model_validator(mode="after")
     def _feasible_ranges(self) -> Spec:
         for pos, part in self.parts.items():
-            if part.series is not None:
-                vals = series_mod.expand(part.series, part.min, part.max)
+            lo, hi = part.min, part.max  # a series position always has both (PartSpec)
+            if part.series is not None and lo is not None and hi is not None:
+                vals = series_mod.expand(part.series, lo, hi)
                 if len(vals) == 0:
-                    raise _KeyedError(
+                    raise KeyedError(
                         f"parts.{pos}",
-                        f"the range {units.format_quantity(part.min, part.unit)} to "
-                        f"{units.format_quantity(part.max, part.unit)} holds no {part.series} value",
+                        f"the range {units.format_quantity(lo, part.unit)} to "
+                        f"{units.format_quantity(hi, part.unit)} holds no {part.series} value",
                     )
         return self
 
     @model_validator(mode="after")
     def _production_keys(self) -> Spec:
-        from picker.spec.production import check_spec
-
         check_spec(self)
         return self
 
     @property
-    def topo(self):
+    def topo(self) -> Topology:
         return get_topology(self.topology)
-
-
-def _toml_key(k: str) -> str:
-    """A key as TOML writes it: bare when it can be, else quoted (so '' shows as "")."""
-    if k and all(c.isascii() and (c.isalnum() or c in "_-") for c in k):
-        return k
-    return '"' + k.replace("\\", "\\\\").replace('"', '\\"') + '"'
-
-
-def _format_error(err: dict, file: str | None) -> SpecError:
-    loc = [str(x) for x in err.get("loc", ()) if not str(x).startswith("function-")]
-    # pydantic puts the model name in loc for tagged validators; drop internal markers
-    loc = [x for x in loc if x not in ("FrequencySpec", "PartSpec")]
-    msg = err.get("msg", "invalid value")
-    ctx = err.get("ctx") or {}
-    exc = ctx.get("error")
-    key = ".".join("yield" if x == "yield_" else _toml_key(x) for x in loc)
-    if isinstance(exc, _KeyedError):
-        key = f"{key}.{exc.key}" if key else exc.key
-        msg = exc.message
-    elif msg.startswith("Value error, "):
-        msg = msg[len("Value error, ") :]
-    elif err.get("type") == "extra_forbidden":
-        msg = f"unknown key (a typo?); got {err.get('input')!r}"
-    elif err.get("type") == "missing":
-        msg = "missing required key"
-    elif err.get("type") == "literal_error":
-        msg = (
-            f"expected {ctx.get('expected', 'one of the allowed words')}; got {err.get('input')!r}"
-        )
-    else:
-        msg = f"{msg}; got {err.get('input')!r}"
-    return SpecError(msg, file=file, key=key or None)
-
-
-def _merge(base: dict, over: dict) -> dict:
-    out = copy.deepcopy(base)
-    for k, v in over.items():
-        if isinstance(v, dict) and isinstance(out.get(k), dict):
-            out[k] = _merge(out[k], v)
-        else:
-            out[k] = copy.deepcopy(v)
-    return out
-
-
-def spec_from_dict(data: dict, *, file: str | None = None) -> Spec:
-    """Validate a spec given as a nested dict (the parsed TOML)."""
-    try:
-        spec = Spec.model_validate(data)
-    except ValidationError as exc:
-        raise _format_error(exc.errors()[0], file) from None
-    except _KeyedError as exc:
-        raise SpecError(exc.message, file=file, key=exc.key) from None
-    except SpecError as exc:
-        raise exc.located(file=file) from None
-    if spec.amplifier is not None:  # a bias network that cannot work is bad input too
-        try:
-            spec.amplifier.to_params(spec.parts)
-        except SpecError as exc:
-            raise exc.located(file=file) from None
-    from picker.spec.production import load_lots
-
-    spec = _load_stock_lists(spec, file)
-    return load_lots(spec, file).model_copy(update={"source": file or ""})
-
-
-def _load_stock_lists(spec: Spec, file: str | None) -> Spec:
-    """Read every part's ``stock`` file (relative to the spec file; each path once).
-
-    Also checks that each stock position keeps at least one part after its
-    filters, and that ``[cost] rank_by = "cost"`` has a yield threshold.
-    """
-    c = spec.cost
-    if c.rank_by == "cost" and c.min_yield is None and spec.yield_.target is None:
-        raise SpecError(
-            'rank_by = "cost" needs a yield floor: give cost.min_yield or yield.target',
-            file=file,
-            key="cost.rank_by",
-        )
-    if not any(p.stock is not None for p in spec.parts.values()):
-        return spec
-    from picker.spec.stock import load_stock, stock_table
-
-    base = Path(file).parent if file else Path.cwd()
-    cache: dict[Path, Any] = {}
-    parts = dict(spec.parts)
-    for pos, part in spec.parts.items():
-        if part.stock is None:
-            continue
-        path = Path(part.stock)
-        path = (path if path.is_absolute() else base / path).resolve()
-        if not path.is_file():  # a fault of the spec's key, not of a file that is not there
-            raise SpecError(
-                f"expected an existing stock-list file; no such file {str(path)!r}",
-                file=file,
-                key=f"parts.{pos}.stock",
-            )
-        if path not in cache:
-            try:
-                cache[path] = load_stock(path)
-            except SpecError as exc:
-                raise SpecError(
-                    f"{exc.message} (stock list of parts.{pos})",
-                    file=exc.file or str(path),
-                    key=exc.key,
-                ) from None
-        stock = cache[path]
-        t = stock_table(stock, pos[0], part.min or 0.0, part.max or math.inf,
-                        tolerance_max=part.tolerance, dielectric=_materials_like(stock, part),
-                        min_voltage=part.voltage_rating, qty=c.build_quantity)  # fmt: skip
-        if len(t["values"]) == 0:
-            raise SpecError(
-                f"the stock list {part.stock!r} holds no {pos[0]} part within this position's "
-                "min, max, tolerance, dielectric and voltage_rating",
-                file=file,
-                key=f"parts.{pos}.stock",
-            )
-        parts[pos] = part.model_copy(update={"stock_list": stock})
-    return spec.model_copy(update={"parts": parts})
-
-
-def _materials_like(stock, part: PartSpec) -> list[str] | None:
-    """The stock list's dielectric/core texts that name the position's material."""
-    if part.dielectric is None:
-        return None
-    from picker.parts import drift
-
-    out = []
-    for text in {str(m) for m in stock.material}:
-        try:
-            if text and drift.get_material(text).name == part.dielectric:
-                out.append(text)
-        except SpecError:
-            continue
-    return out
-
-
-def load_spec(path: str | Path, overrides: dict | None = None) -> Spec:
-    """Read and validate a spec file; ``overrides`` is merged over the TOML first."""
-    p = Path(path)
-    name = str(path)
-    try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise SpecError("no such file", file=name) from None
-    except IsADirectoryError:
-        raise SpecError("expected a spec file, got a directory", file=name) from None
-    except OSError as exc:
-        raise SpecError(f"cannot read the file ({exc.strerror})", file=name) from None
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        raise SpecError(f"expected UTF-8 text; byte {exc.start} is not", file=name) from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"not valid TOML: {exc}", file=name) from None
-    if overrides:
-        data = _merge(data, overrides)
-    return spec_from_dict(data, file=name)

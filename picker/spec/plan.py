@@ -28,9 +28,9 @@ A plan is TOML (our own format; unknown keys are errors):
     parts.L.max = "1 mH"
 
 Paths are relative to the plan file. Each channel becomes a spec path plus an
-overrides dict that :func:`picker.api.solve.load_spec` merges over that TOML before
+overrides dict that :func:`picker.spec.load.load_spec` merges over that TOML before
 validation. Series values carry no part id; they are named by value and
-tolerance (:func:`picker.buyer.consolidate.generic_part_id`) and, when a stock list is
+tolerance (:func:`picker.buyer.model.generic_part_id`) and, when a stock list is
 given, matched to the cheapest stock part of the same kind and value with a
 tolerance at least as tight (``match_stock = false`` turns this off).
 """
@@ -42,23 +42,17 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
 
-from picker.buyer.consolidate import (
-    PRIORITIES,
-    ChannelCandidates,
-    PartInfo,
-    PlanResult,
-    consolidate,
-    generic_part_id,
-)
-from picker.errors import InfeasibleError, SpecError
+from picker import units
+from picker.buyer.model import PRIORITIES
+from picker.errors import SpecError
+from picker.files import read_text
+from picker.tank import get_topology
 
 
 def _fraction(v: Any) -> float:
-    from picker import units
-
+    """A yield between 0 and 100 % ("90 %", 0.9); ValueError otherwise."""
     try:
         x = units.parse_fraction(v)
     except SpecError as exc:
@@ -207,8 +201,6 @@ class Plan:
                         table[key] = str(self.resolve(table[key]).resolve())
         if not self.spec.stock_only:
             return
-        from picker.tank.base import get_topology
-
         try:
             topo = tomllib.loads(spec_path.read_text(encoding="utf-8")).get("topology", "")
             positions = get_topology(str(over.get("topology", topo))).positions
@@ -250,14 +242,9 @@ def load_plan(path: str | Path) -> Plan:
     """Read and validate a plan file (SpecError naming the file and key on any fault)."""
     p = Path(path)
     name = str(path)
+    text = read_text(path, what="a plan file", missing="expected {what}; no such file")
     try:
-        data = tomllib.loads(p.read_bytes().decode("utf-8"))
-    except FileNotFoundError:
-        raise SpecError("expected a plan file; no such file", file=name) from None
-    except IsADirectoryError:
-        raise SpecError("expected a plan file, got a directory", file=name) from None
-    except UnicodeDecodeError as exc:
-        raise SpecError(f"expected UTF-8 text; byte {exc.start} is not", file=name) from None
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise SpecError(f"not valid TOML: {exc}", file=name) from None
     try:
@@ -273,189 +260,3 @@ def load_plan(path: str | Path) -> Plan:
             msg = "expected this key; it is missing"
         raise SpecError(msg, file=name, key=key) from None
     return Plan(spec, p)
-
-
-# ---------------------------------------------------------------------------
-# running a plan
-
-
-@dataclass(frozen=True)
-class ChannelRun:
-    """One channel's solve: its spec, ranked candidates and the consolidation input."""
-
-    name: str
-    spec: Any
-    result: Any  # picker.api.solve.SolveResult
-    candidates: ChannelCandidates
-
-
-@dataclass(frozen=True)
-class PlanRun:
-    """A solved plan."""
-
-    plan: Plan
-    channels: list[ChannelRun]
-    catalogue: dict[str, PartInfo]
-    result: PlanResult
-
-
-def _position_parts(pp) -> list[tuple[str, float, float]]:
-    """(part id or "", value, tolerance) of each part at one chosen position (two for a pair)."""
-    if getattr(pp, "is_pair", False):
-        return [
-            (pp.part_id, pp.first_value, pp.tolerance),
-            (pp.second_part_id, pp.second_value, pp.second_tolerance),
-        ]
-    return [(pp.part_id, pp.value, pp.tolerance)]
-
-
-def _position_ids(pp, kind: str, matcher) -> tuple[str, ...]:
-    """Part ids of one chosen position: stock ids (two for a pair) or generic ids."""
-    out = []
-    for pid, value, tol in _position_parts(pp):
-        if pid:
-            out.append(str(pid))
-        else:
-            out.append(matcher(kind, value, tol, generic_part_id(kind, value, tol)))
-    return tuple(out)
-
-
-class _StockMatcher:
-    """Maps a series value to the cheapest matching stock part (or keeps its generic id)."""
-
-    def __init__(self, stock, build_qty: int, enabled: bool):
-        self.stock = stock
-        self.build_qty = build_qty
-        self.enabled = enabled and stock is not None
-        self.cache: dict[str, str] = {}
-
-    def __call__(self, kind: str, value: float, tol: float, gid: str) -> str:
-        if not self.enabled:
-            return gid
-        if gid not in self.cache:
-            from picker.spec.stock import unit_price
-
-            s = self.stock
-            hit = np.flatnonzero(
-                (s.kind == kind)
-                & (np.abs(s.value / value - 1) < 1e-9)
-                & (s.tol <= tol * (1 + 1e-9))
-            )
-            if hit.size == 0:
-                self.cache[gid] = gid
-            else:
-                price = unit_price(s, hit, self.build_qty)
-                key = np.where(np.isnan(price), np.inf, price)
-                order = np.lexsort((s.ids[hit].astype(str), key))
-                self.cache[gid] = str(s.ids[hit[order[0]]])
-        return self.cache[gid]
-
-
-def _catalogue(ids: set[str], stock, generic: dict[str, tuple[str, float, float]]) -> dict:
-    out = {}
-    for p in sorted(ids):
-        if stock is not None and p in stock.index:
-            i = stock.index[p]
-            fin = np.isfinite(stock.break_qty[i])
-            out[p] = PartInfo(
-                p,
-                str(stock.kind[i]),
-                float(stock.value[i]),
-                float(stock.tol[i]),
-                tuple(float(x) for x in stock.break_qty[i][fin]),
-                tuple(float(x) for x in stock.break_price[i][fin]),
-                float(stock.on_hand[i]),
-                str(stock.material[i]),
-            )
-        elif p in generic:
-            kind, value, tol = generic[p]
-            out[p] = PartInfo(p, kind, value, tol)
-    return out
-
-
-def _check_files(plan: Plan) -> None:
-    """Every file the plan names exists (else the error names the plan and the key)."""
-    ps = plan.spec
-    named = [("base", ps.base), ("stock", ps.stock)]
-    named += [(f"channels.{n}.spec", ch.spec) for n, ch in ps.channels.items()]
-    for key, rel in named:
-        if rel is not None and not plan.resolve(rel).is_file():
-            raise SpecError(
-                f"expected an existing file; no such file {str(plan.resolve(rel))!r}",
-                file=str(plan.path),
-                key=key,
-            )
-
-
-def run_plan(plan: Plan, *, time_limit: float | None = None, workers: int = 2) -> PlanRun:
-    """Solve every channel, then consolidate them with CP-SAT.
-
-    Raises
-    ------
-    SpecError
-        A bad plan, channel spec or stock list (one line, exit status 2).
-    InfeasibleError
-        A channel whose spec has no design at all (nothing to consolidate).
-    """
-    from picker.api import solve as api
-
-    ps = plan.spec
-    _check_files(plan)
-    stock = None
-    if ps.stock:
-        from picker.spec.stock import load_stock
-
-        stock = load_stock(plan.resolve(ps.stock))
-    matcher = _StockMatcher(stock, ps.build_quantity, ps.match_stock)
-    runs = []
-    generic: dict[str, tuple[str, float, float]] = {}
-    for name, path, over in plan.channel_sources():
-        ch = ps.channels[name]
-        try:
-            spec = api.load_spec(path, overrides=over)
-        except SpecError as exc:
-            raise SpecError(
-                f"(channel {name}) {exc.message}", file=exc.file or str(path), key=exc.key
-            ) from None
-        n = ch.candidates if ch.candidates is not None else ps.candidates
-        mc = max(n, spec.yield_.candidates)
-        res = api.solve(spec, top=n, candidates=mc)
-        if not res.candidates:
-            raise InfeasibleError(
-                f"{plan.path}: channel {name!r}: no design meets its spec "
-                f"({path.name}); run 'picker solve' on it to see the nearest misses"
-            )
-        positions = tuple(spec.topo.positions)
-        parts = []
-        for c in res.candidates:
-            row = []
-            for pos in positions:
-                pp = c.parts[pos]
-                ids = _position_ids(pp, pos[0], matcher)
-                for g, (_, value, tol) in zip(ids, _position_parts(pp), strict=True):
-                    if g not in generic:
-                        generic[g] = (pos[0], float(value), float(tol))
-                row.append(ids)
-            parts.append(tuple(row))
-        cc = ChannelCandidates(
-            name=name,
-            positions=positions,
-            parts=tuple(parts),
-            yield_estimate=np.array([c.yield_estimate for c in res.candidates]),
-            ci_low=np.array([c.ci_low for c in res.candidates]),
-            ci_high=np.array([c.ci_high for c in res.candidates]),
-            min_yield=ch.min_yield if ch.min_yield is not None else ps.min_yield,
-            values=np.array([[c.parts[p].value for p in positions] for c in res.candidates]),
-        )
-        runs.append(ChannelRun(name, spec, res, cc))
-    ids = {p for r in runs for cand in r.candidates.parts for pos in cand for p in pos}
-    catalogue = _catalogue(ids, stock, generic)
-    result = consolidate(
-        [r.candidates for r in runs],
-        build_qty=ps.build_quantity,
-        catalogue=catalogue,
-        priorities=ps.priorities,
-        time_limit=ps.time_limit if time_limit is None else time_limit,
-        workers=workers,
-    )
-    return PlanRun(plan, runs, catalogue, result)

@@ -2,10 +2,10 @@
 
 An edge module, the companion of :mod:`picker.spec.model`: it parses the per-part
 keys ``dielectric`` (``core`` for the inductor), ``tempco``,
-``tempco_spread``, ``distribution``, ``grade``, ``lot`` and ``prices``, and the
-``[yield]`` keys ``temperature``, ``precision``, ``target`` and
-``trimmer_share``; it also reads the measured-lot files once the spec is
-valid. Every fault is a :class:`~picker.errors.SpecError` naming the key
+``tempco_spread``, ``distribution``, ``grade``, ``lot`` and ``prices``, checks
+them across the spec (with the ``[yield]`` keys, whose fields
+:mod:`picker.spec.fields` parses), and reads the measured-lot files once the
+spec is valid. Every fault is a :class:`~picker.errors.SpecError` naming the key
 (``parts.C1.dielectric``) or, for a lot file, the file, row and column.
 
 Decisions (documented in the README, "Production view"):
@@ -30,22 +30,21 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from picker import units
-from picker.errors import SpecError
+from picker.errors import KeyedError, SpecError
 from picker.parts import drift
+from picker.parts import series as series_mod
 from picker.spec import lots
+from picker.tank import TOPOLOGIES
+
+if TYPE_CHECKING:  # annotations only: picker.spec.model imports this module
+    from picker.spec.model import PartSpec, Spec
 
 #: Materials that belong to an inductor; every other material is a capacitor's.
 INDUCTOR_MATERIALS = ("ferrite", "air")
 GRADED = ("graded", "graded-normal")
-
-
-def _keyed(key: str, message: str) -> ValueError:
-    from picker.spec.model import _KeyedError  # lazy: picker.spec.model imports this module's users
-
-    return _KeyedError(key, message)
 
 
 def material_name(text: Any, unit: str, key: str = "dielectric") -> str:
@@ -53,14 +52,14 @@ def material_name(text: Any, unit: str, key: str = "dielectric") -> str:
     try:
         m = drift.get_material(text)
     except SpecError as exc:
-        raise _keyed(key, exc.message) from None
+        raise KeyedError(key, exc.message) from None
     if unit == "H" and m.name not in INDUCTOR_MATERIALS:
-        raise _keyed(
+        raise KeyedError(
             key,
             f"expected an inductor core, one of {', '.join(INDUCTOR_MATERIALS)}; got {text!r}",
         )
     if unit == "F" and m.name in INDUCTOR_MATERIALS:
-        raise _keyed(
+        raise KeyedError(
             key,
             f"{text!r} is an inductor core; expected a capacitor dielectric such as 'C0G', "
             "'X7R' or 'polypropylene'",
@@ -75,7 +74,7 @@ def _price(value: Any, key: str) -> float:
         or not math.isfinite(value)
         or value < 0
     ):
-        raise _keyed(key, f"expected a unit price as a number >= 0; got {value!r}")
+        raise KeyedError(key, f"expected a unit price as a number >= 0; got {value!r}")
     return float(value)
 
 
@@ -88,23 +87,25 @@ def price_option(text: Any, unit: str, key: str) -> float | str:
     try:
         return material_name(text, unit, key)
     except ValueError:
-        raise _keyed(
+        raise KeyedError(
             key,
             f"expected a tolerance such as '2 %' or a dielectric such as 'C0G'; got {text!r}",
         ) from None
 
 
-def parse_part_keys(d: dict, unit: str) -> dict:
+def parse_part_keys(d: dict[str, Any], unit: str) -> dict[str, Any]:
     """Parse the production keys of one ``[parts.X]`` table in place (pydantic 'before')."""
     if "lot_deviations" in d:
-        raise _keyed(
+        raise KeyedError(
             "lot_deviations", "unknown key (a typo?); the lot is given as lot = 'file.csv'"
         )
     if "core" in d:
         if unit != "H":
-            raise _keyed("core", "core is for the inductor; a capacitor takes dielectric = 'C0G'")
+            raise KeyedError(
+                "core", "core is for the inductor; a capacitor takes dielectric = 'C0G'"
+            )
         if d.get("dielectric") is not None:
-            raise _keyed("core", "give either core or dielectric, not both")
+            raise KeyedError("core", "give either core or dielectric, not both")
         d["dielectric"] = material_name(d.pop("core"), unit, "core")
     elif d.get("dielectric") is not None:
         d["dielectric"] = material_name(d["dielectric"], unit)
@@ -113,15 +114,15 @@ def parse_part_keys(d: dict, unit: str) -> dict:
             try:
                 d[key] = units.parse_quantity(d[key], "ppm/°C")
             except SpecError as exc:
-                raise _keyed(key, exc.message) from None
+                raise KeyedError(key, exc.message) from None
     if d.get("tempco_spread") is not None:
         if d["tempco_spread"] < 0:
-            raise _keyed("tempco_spread", f"expected a spread >= 0; got {d['tempco_spread']!r}")
+            raise KeyedError("tempco_spread", f"expected a spread >= 0; got {d['tempco_spread']!r}")
         if d.get("tempco") is None:
-            raise _keyed("tempco_spread", "expected tempco too (the spread is around it)")
+            raise KeyedError("tempco_spread", "expected tempco too (the spread is around it)")
     if d.get("tempco") is not None and d.get("dielectric") is not None:
         if drift.get_material(d["dielectric"]).kind == "class2":
-            raise _keyed(
+            raise KeyedError(
                 "tempco",
                 f"a class-2 dielectric ({d['dielectric']}) drifts within its EIA envelope; "
                 "an explicit tempco applies to class-1, film and core materials",
@@ -132,13 +133,15 @@ def parse_part_keys(d: dict, unit: str) -> dict:
         try:
             d["grade"] = units.parse_tolerance(d["grade"])
         except SpecError as exc:
-            raise _keyed("grade", exc.message) from None
+            raise KeyedError("grade", exc.message) from None
     if d.get("lot") is not None and not (isinstance(d["lot"], str) and d["lot"].strip()):
-        raise _keyed("lot", f"expected the path of a CSV file of measured values; got {d['lot']!r}")
+        raise KeyedError(
+            "lot", f"expected the path of a CSV file of measured values; got {d['lot']!r}"
+        )
     if d.get("prices") is not None:
         raw = d["prices"]
         if not isinstance(raw, dict) or not raw:
-            raise _keyed(
+            raise KeyedError(
                 "prices",
                 f"expected a table such as {{ '5 %' = 0.02, '2 %' = 0.05 }}; got {raw!r}",
             )
@@ -150,39 +153,40 @@ def parse_part_keys(d: dict, unit: str) -> dict:
     return d
 
 
-def check_part(part) -> None:
+def check_part(part: PartSpec) -> None:
     """Cross-key checks of one validated part (pydantic 'after')."""
-    if part.grade is not None and not 0 <= part.grade < part.tolerance:
-        raise _keyed(
+    tol = part.tolerance  # set by now: a stock position with a grade needs one too
+    if part.grade is not None and tol is not None and not 0 <= part.grade < tol:
+        raise KeyedError(
             "grade",
-            f"expected 0 <= grade < tolerance ({units.format_percent(part.tolerance)}); "
+            f"expected 0 <= grade < tolerance ({units.format_percent(tol)}); "
             f"got {units.format_percent(part.grade)}",
         )
     if part.distribution == "empirical" and part.lot is None:
-        raise _keyed("distribution", "an empirical distribution needs lot = 'measured.csv'")
+        raise KeyedError("distribution", "an empirical distribution needs lot = 'measured.csv'")
     if part.lot is not None:
         if part.distribution not in (None, "empirical"):
-            raise _keyed(
+            raise KeyedError(
                 "lot", f"a lot is resampled as measured; it cannot be {part.distribution!r} too"
             )
         if len(candidate_values(part)) != 1:
-            raise _keyed(
+            raise KeyedError(
                 "lot",
                 "a measured lot belongs to one value; give values = ['4.7 nF'] "
                 "(one value) for this position",
             )
 
 
-def candidate_values(part) -> tuple[float, ...]:
+def candidate_values(part: PartSpec) -> tuple[float, ...]:
     """The values a position may take (its list, or its series range)."""
     if part.values is not None:
         return tuple(part.values)
-    from picker.parts import series as series_mod
+    # A series position has its series, min and max; a stock position has no
+    # series, and expand() refuses the missing name with a SpecError.
+    return tuple(float(v) for v in series_mod.expand(part.series, part.min, part.max))  # type: ignore[arg-type]
 
-    return tuple(float(v) for v in series_mod.expand(part.series, part.min, part.max))
 
-
-def check_spec(spec) -> None:
+def check_spec(spec: Spec) -> None:
     """Checks across the spec: graded parts have a grade, a C3 trimmer needs a Clapp."""
     ys = spec.yield_
     for pos, part in spec.parts.items():
@@ -190,30 +194,31 @@ def check_spec(spec) -> None:
         if part.lot is not None:
             kind = "empirical"
         if kind in GRADED and part.grade is None:
-            raise _keyed(
+            raise KeyedError(
                 f"parts.{pos}.grade",
                 f"a {kind} distribution needs grade, the inner tolerance sorted out "
                 "(e.g. grade = '2 %')",
             )
         if kind not in GRADED and part.grade is not None:
-            raise _keyed(
+            raise KeyedError(
                 f"parts.{pos}.grade",
                 f"grade applies to a graded distribution; this position is {kind}",
             )
-    if ys.trimmer == "C3" and "C3" not in spec.topo.positions:
-        raise _keyed("yield.trimmer", "a trimmer at C3 needs topology = 'clapp'; use 'across'")
+    if ys.trimmer not in ("across", "none") and ys.trimmer != spec.topo.trimmer_position:
+        need = " or ".join(
+            repr(t.name) for t in TOPOLOGIES.values() if t.trimmer_position == ys.trimmer
+        )
+        raise KeyedError(
+            "yield.trimmer", f"a trimmer at {ys.trimmer} needs topology = {need}; use 'across'"
+        )
     if ys.max_samples < ys.samples:
-        raise _keyed(
+        raise KeyedError(
             "yield.max_samples",
             f"expected max_samples >= samples ({ys.samples}); got {ys.max_samples}",
         )
     if ys.temperature is not None:
-        _check_drift_size(spec)
+        _check_drift_size(spec, ys.temperature)
 
-
-#: Highest temperature accepted in [yield] temperature, °C (solder reflow peaks
-#: near 260 °C; common practice, no source).
-MAX_TEMPERATURE = 500.0
 
 #: Largest linear drift accepted over the temperature range (relative). A part
 #: that moves more than this is a tempco typed in the wrong unit, and beyond
@@ -221,74 +226,32 @@ MAX_TEMPERATURE = 500.0
 MAX_DRIFT = 0.5
 
 
-def _check_drift_size(spec) -> None:
-    from picker.production.figures import material_of
-
-    lo, hi = spec.yield_.temperature
+def _check_drift_size(spec: Spec, temperature: tuple[float, float]) -> None:
+    """A linear drift over the ``temperature`` range (°C) of at most :data:`MAX_DRIFT`."""
+    lo, hi = temperature
     span = max(abs(lo - drift.T_REF), abs(hi - drift.T_REF))
     for pos, part in spec.parts.items():
-        m = material_of(part, True)
+        m = drift.material_of(part, True)
         if m is None or m.kind != "linear":
             continue
         worst = (abs(m.tempco) + m.spread) * span
         if worst > MAX_DRIFT:
             key = "tempco" if part.tempco is not None else "dielectric"
-            raise _keyed(
+            raise KeyedError(
                 f"parts.{pos}.{key}",
                 f"this part would drift by {worst:.0%} between {lo:g} °C and {hi:g} °C; "
                 f"expected at most {MAX_DRIFT:.0%} (a tempco is in ppm/°C, e.g. '+250 ppm/°C')",
             )
 
 
-def parse_temperature_range(v: Any) -> tuple[float, float] | None:
-    """``["-40 °C", "85 °C"]`` -> (-40.0, 85.0); ValueError otherwise."""
-    if v is None:
-        return None
-    if not isinstance(v, list | tuple) or len(v) != 2:
-        raise ValueError(
-            f"expected a range of two temperatures such as ['-40 °C', '85 °C']; got {v!r}"
-        )
-    out = []
-    for x in v:
-        try:
-            out.append(units.parse_quantity(x, "°C"))
-        except SpecError as exc:
-            raise ValueError(exc.message) from None
-    if not out[0] <= out[1]:
-        raise ValueError(f"expected low <= high; got {v!r}")
-    if out[1] > MAX_TEMPERATURE:
-        raise ValueError(
-            f"expected temperatures up to {MAX_TEMPERATURE:g} °C (no tank part works beyond); "
-            f"got {v!r}"
-        )
-    return (out[0], out[1])
-
-
-def parse_share(v: Any, what: str, *, upper_open: bool = False, top: float = 1.0) -> float | None:
-    """A fraction such as "99 %" inside (0, top] (or (0, top) with ``upper_open``)."""
-    if v is None:
-        return None
-    try:
-        x = units.parse_fraction(v)
-    except SpecError as exc:
-        raise ValueError(exc.message) from None
-    ok = 0 < x < top if upper_open else 0 < x <= top
-    if not ok:
-        bound = f"below {top:.0%}" if upper_open else f"at most {top:.0%}"
-        raise ValueError(
-            f"expected {what} above 0 and {bound}; got {v!r}" + units.percent_hint(v, x)
-        )
-    return x
-
-
-def load_lots(spec, file: str | None):
+def load_lots(spec: Spec, file: str | None) -> Spec:
     """Read every part's ``lot`` file (relative to the spec file) into ``lot_deviations``."""
     if not any(p.lot is not None for p in spec.parts.values()):
         return spec
     base = Path(file).parent if file else Path.cwd()
     parts = dict(spec.parts)
     for pos, part in spec.parts.items():
-        if part.lot is None:
+        if part.lot is None or part.tolerance is None:  # a lot's position has a tolerance
             continue
         path = Path(part.lot)
         path = path if path.is_absolute() else base / path

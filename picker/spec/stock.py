@@ -35,13 +35,18 @@ from __future__ import annotations
 import csv
 import io
 import os
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from picker.errors import SpecError
+from picker.files import read_text
+from picker.parts.limits import VALUE_RANGE, value_problem
 from picker.parts.pricing import unit_price_from_breaks
+from picker.units import parse_quantity, parse_tolerance
 
 COLUMNS = (
     "id",
@@ -57,6 +62,15 @@ COLUMNS = (
 )
 REQUIRED = ("id", "kind", "value", "tolerance")
 KIND_UNIT = {"C": "F", "L": "H"}
+
+#: How :func:`picker.files.read_text` reads a stock list and words its faults.
+_READING = {
+    "what": "a stock-list CSV file",
+    "encoding": "utf-8-sig",
+    "missing": "expected {what}; no such file",
+    "directory": "expected {what}; got a directory",
+    "undecodable": "expected UTF-8 text; {reason} at byte {start}",
+}
 
 
 @dataclass(frozen=True, eq=False)
@@ -88,7 +102,7 @@ class StockList:
     break_qty: np.ndarray
     break_price: np.ndarray
     source: str | None = field(default=None)
-    lines: object = field(default=None, repr=False)
+    lines: _LineNumbers | None = field(default=None, repr=False)
 
     def __len__(self) -> int:
         return int(self.ids.shape[0])
@@ -112,7 +126,7 @@ class StockList:
             ) from None
 
 
-def unit_price(stock: StockList, idx, qty) -> np.ndarray:
+def unit_price(stock: StockList, idx: ArrayLike, qty: ArrayLike) -> np.ndarray:
     """Unit price of stock parts ``idx`` for a purchase of ``qty`` units each.
 
     Parameters
@@ -145,7 +159,7 @@ def stock_table(
     hi: float,
     *,
     tolerance_max: float | None = None,
-    dielectric=None,
+    dielectric: str | Iterable[str] | None = None,
     min_voltage: float | None = None,
     qty: float = 1.0,
 ) -> dict[str, np.ndarray]:
@@ -184,8 +198,8 @@ def stock_table(
     if tolerance_max is not None:
         keep &= stock.tol <= tolerance_max * (1 + 1e-9)
     if dielectric is not None:
-        wanted = [dielectric] if isinstance(dielectric, str) else list(dielectric)
-        wanted = np.array([w.strip().lower() for w in wanted])
+        texts = [dielectric] if isinstance(dielectric, str) else list(dielectric)
+        wanted = np.array([w.strip().lower() for w in texts])
         keep &= np.isin(np.char.lower(stock.material.astype(str)), wanted)
     if min_voltage is not None:
         keep &= stock.voltage >= min_voltage  # NaN compares False: unrated parts are dropped
@@ -208,7 +222,7 @@ def stock_table(
 # loading
 
 
-def load_stock(path: str | os.PathLike) -> StockList:
+def load_stock(path: str | os.PathLike[str]) -> StockList:
     """Load and check a stock-list CSV (format in the module docstring).
 
     Raises
@@ -220,17 +234,7 @@ def load_stock(path: str | os.PathLike) -> StockList:
         price, and a repeated id.
     """
     src = os.fspath(path)
-    try:
-        with open(src, newline="", encoding="utf-8-sig") as fh:
-            text = fh.read()
-    except FileNotFoundError:
-        raise SpecError("expected a stock-list CSV file; no such file", file=src) from None
-    except IsADirectoryError:
-        raise SpecError("expected a stock-list CSV file; got a directory", file=src) from None
-    except UnicodeDecodeError as exc:
-        raise SpecError(
-            f"expected UTF-8 text; {exc.reason} at byte {exc.start}", file=src
-        ) from None
+    text = read_text(src, **_READING)
     lines = _LineNumbers(src)
     header, columns = _split_fast(text)
     if header is None:
@@ -256,7 +260,7 @@ def load_stock(path: str | os.PathLike) -> StockList:
     return _build(columns, lines, cols, src)
 
 
-def _split_fast(text: str) -> tuple[list[str] | None, list]:
+def _split_fast(text: str) -> tuple[list[str] | None, list[Sequence[str]]]:
     """Split a CSV text without quotes in C-speed string operations.
 
     Returns ``(None, [])`` when the text needs the csv module (it has quotes,
@@ -289,16 +293,15 @@ class _LineNumbers:
     ``csv.reader.line_num``.
     """
 
-    def __init__(self, src: str):
+    def __init__(self, src: str) -> None:
         self.src = src
         self._lines: list[int] | None = None
 
     def __getitem__(self, i: int) -> int:
         if self._lines is None:
-            with open(self.src, newline="", encoding="utf-8-sig") as fh:
-                reader = csv.reader(fh)
-                next(reader)
-                self._lines = [reader.line_num for r in reader if r]
+            reader = csv.reader(io.StringIO(read_text(self.src, **_READING), newline=""))
+            next(reader)
+            self._lines = [reader.line_num for r in reader if r]
         return self._lines[i]
 
     def array(self, n: int) -> np.ndarray:
@@ -331,7 +334,9 @@ def _check_header(header: list[str], src: str) -> dict[str, int]:
 class _Column:
     """One column's cells plus what is needed to locate an error in it."""
 
-    def __init__(self, cells, n, lines, name, src):
+    def __init__(
+        self, cells: Sequence[str] | None, n: int, lines: _LineNumbers, name: str, src: str
+    ) -> None:
         self.name = name
         self.src = src
         self.lines = lines
@@ -346,7 +351,15 @@ class _Column:
             key=f"row {self.lines[i]}, column {self.name}",
         )
 
-    def floats(self, parse, expected: str, *, blank=np.nan, kinds=None, fast=True) -> np.ndarray:
+    def floats(
+        self,
+        parse: Callable[[str, str], float],
+        expected: str,
+        *,
+        blank: float = np.nan,
+        kinds: Sequence[str] | None = None,
+        fast: bool = True,
+    ) -> np.ndarray:
         """Convert the column to floats: numpy fast path, then once per distinct text.
 
         ``parse(text, kind)`` converts one non-blank cell or raises SpecError/ValueError.
@@ -384,6 +397,7 @@ class _Column:
         return np.array([table[k] for k in keys], dtype=float)
 
     def _at(self, i: int, message: str) -> SpecError:
+        """A SpecError with ``message`` at row ``i`` of this column."""
         return SpecError(message, file=self.src, key=f"row {self.lines[i]}, column {self.name}")
 
 
@@ -400,8 +414,6 @@ def _plain_float(text: str, _kind: str = "") -> float:
 
 
 def _parse_value(text: str, kind: str) -> float:
-    from picker.units import parse_quantity  # slow path only
-
     try:
         return float(text)
     except ValueError:
@@ -409,14 +421,10 @@ def _parse_value(text: str, kind: str) -> float:
 
 
 def _parse_tolerance(text: str, _kind: str = "") -> float:
-    from picker.units import parse_tolerance
-
     return parse_tolerance(text)
 
 
 def _parse_voltage(text: str, _kind: str = "") -> float:
-    from picker.units import parse_quantity
-
     try:
         return float(text)
     except ValueError:
@@ -451,10 +459,13 @@ def _first_bad(mask: np.ndarray) -> int | None:
     return int(bad[0]) if bad.size else None
 
 
-def _build(by_index, lines, cols, src) -> StockList:
-    n = len(by_index[0])  # by_index: one sequence of cells per column, in file order
+def _build(
+    by_index: Sequence[Sequence[str]], lines: _LineNumbers, cols: Mapping[str, int], src: str
+) -> StockList:
+    """Check every column and build the StockList (``by_index``: cells per column, file order)."""
+    n = len(by_index[0])
 
-    def col(name):
+    def col(name: str) -> _Column:
         j = cols.get(name)
         return _Column(by_index[j] if j is not None else None, n, lines, name, src)
 
@@ -486,8 +497,6 @@ def _build(by_index, lines, cols, src) -> StockList:
     )
     if (i := _first_bad(~(value > 0))) is not None:
         raise c_val.error(i, "a positive finite value")
-    from picker.parts.limits import VALUE_RANGE, value_problem
-
     lo = np.where(kind == "C", VALUE_RANGE["F"][0], VALUE_RANGE["H"][0])
     hi = np.where(kind == "C", VALUE_RANGE["F"][1], VALUE_RANGE["H"][1])
     if (i := _first_bad((value < lo) | (value > hi))) is not None:

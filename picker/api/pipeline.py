@@ -1,0 +1,355 @@
+"""Solve a spec, or evaluate a given design: search, screen, Monte Carlo, rank.
+
+>>> from picker.api import load_spec, solve                # doctest: +SKIP
+>>> result = solve(load_spec("demo_specs/probe_exciter.toml"))  # doctest: +SKIP
+>>> result.candidates[0].values                      # doctest: +SKIP
+
+The orchestration only: the spec becomes the core's inputs in
+:mod:`picker.api.problem`, ranked designs become candidates in
+:mod:`picker.api.candidates`, an empty search is explained in
+:mod:`picker.api.misses`. The CLI is a thin client of these functions.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import replace
+from typing import Any
+
+import numpy as np
+
+from picker.api.candidates import build_candidates, cost_limited, extras, loaded_view, over_cost
+from picker.api.misses import explain_infeasible, explain_loaded_infeasible
+from picker.api.problem import (
+    amplifier_params_of,
+    build_problem,
+    given_table,
+    random_inputs,
+    simulation_of,
+    warnings_for,
+    with_run_settings,
+)
+from picker.api.results import SolveResult
+from picker.buyer.costing import cost_order, cost_rank
+from picker.circuit.loaded_search import LoadedSearch, loaded_search
+from picker.core.montecarlo import Simulation, count_passing
+from picker.core.precision import refine, reorder
+from picker.core.ranking import monte_carlo_rank
+from picker.core.screen import screen_yield
+from picker.core.search import Designs, Problem, check_size, search
+from picker.errors import SpecError
+from picker.parts.limits import lumped_warnings
+from picker.production.figures import plot_inputs
+from picker.spec.model import Spec
+from picker.tank.board import board_beta, board_frequency
+
+__all__ = ["evaluate", "solve", "summary"]
+
+#: ``progress(samples, cap, half_width)``, called after each precision batch.
+Progress = Callable[[int, int, float], None]
+
+
+def _nominal_designs(spec: Spec, problem: Problem) -> tuple[Designs, LoadedSearch | None]:
+    """Feasible designs, and the loaded search (None without an amplifier).
+
+    With an amplifier the designs are the loaded-feasible ones
+    (:func:`picker.circuit.loaded_search.loaded_search`: loaded nominal frequency in the window,
+    start-up margin >= ``amplifier.min_margin``) and their ``f_nominal`` holds the
+    *loaded* frequency, so the screen, the ranking's error tie-break and the
+    reported error use the frequency the board runs at;
+    :func:`picker.api.candidates.loaded_view` puts the ideal frequency back into
+    each candidate's ``f_nominal_hz``.
+    """
+    params = amplifier_params_of(spec)
+    lim = spec.search
+    try:  # a search too large for its limit is a fault of the spec: name its file
+        if params is None or spec.amplifier is None:
+            designs = search(
+                problem, max_designs=lim.max_designs, max_combinations=lim.max_combinations
+            )
+            return designs, None
+        check_size(problem, max_designs=None, max_combinations=lim.max_combinations)
+        ls = loaded_search(
+            problem, params, min_margin=spec.amplifier.min_margin, max_designs=lim.max_designs
+        )
+    except SpecError as exc:
+        raise exc.located(file=spec.source or None) from None
+    return Designs(ls.designs.idx, ls.f_loaded, ls.designs.beta), ls
+
+
+def _rank(
+    spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray, m: int, top: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[str], int]:
+    """Monte Carlo ranking by yield, or by cost with ``[cost] rank_by = "cost"``.
+
+    Returns (ranked, passed, screen, warnings, designs Monte Carlo checked).
+    """
+    if spec.cost.rank_by != "cost":
+        ranked, passed, screen = monte_carlo_rank(
+            sim, designs, u, m=m, top=top, target=spec.frequency.target
+        )
+        return ranked, passed, screen, [], len(ranked)
+    ys = spec.yield_
+    floor = spec.cost.min_yield if spec.cost.min_yield is not None else ys.target
+    assert floor is not None  # the spec's load refuses rank_by = "cost" without a floor
+    ranked, passed, screen, met, checked = cost_rank(
+        sim,
+        designs,
+        u,
+        m=m,
+        top=top,
+        floor=floor,
+        confidence=ys.confidence,
+        method=ys.ci_method,
+        target=spec.frequency.target,
+    )
+    if met:
+        return ranked, passed, screen, [], checked
+    note = (
+        f"no design checked reaches the yield floor {floor:.4g} (confidence interval low end); "
+        "ranked by yield instead of cost"
+    )
+    return ranked, passed, screen, [note], checked
+
+
+def _refined(
+    spec: Spec,
+    sim: Simulation,
+    designs: Designs,
+    u: np.ndarray,
+    passed: np.ndarray,
+    seed: int,
+    progress: Progress | None,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, bool | None]:
+    """Precision on demand: more batches for ``designs`` until the CI is narrow enough.
+
+    Returns (order, passed, u, converged); ``order`` re-ranks ``designs``.
+    """
+    ys = spec.yield_
+    if ys.precision is None:
+        return np.arange(len(designs)), passed, u, None
+    passed, u, converged = refine(
+        sim,
+        designs,
+        u,
+        passed,
+        seed=seed,
+        method=ys.sampling,
+        precision=ys.precision,
+        max_samples=max(ys.max_samples, u.shape[0]),
+        confidence=ys.confidence,
+        progress=progress,
+    )
+    order = reorder(passed, designs, spec.frequency.target)
+    return order, passed[order], u, converged
+
+
+def summary(spec: Spec, sim: Simulation, samples: int, converged: bool | None) -> dict[str, Any]:
+    """Top-level facts of the run for the JSON ``monte_carlo`` object."""
+    ys = spec.yield_
+    parts = {}
+    for p, v in sim.parts.items():
+        d: dict[str, Any] = {"distribution": v.distribution}
+        if v.grade is not None:
+            d["grade"] = v.grade
+        if v.lot is not None:
+            d["lot_size"] = int(np.size(v.lot))
+        if v.material is not None:
+            d["material"] = v.material.name
+        parts[p] = d
+    out: dict[str, Any] = {
+        "sampling": ys.sampling,
+        "samples_requested": ys.samples,
+        "precision": ys.precision,
+        "converged": converged,
+        "parts": parts,
+    }
+    if ys.temperature is not None:
+        out["temperature_range_c"] = list(ys.temperature)
+        out["temperatures_c"] = [float(t) for t in sim.temperatures]
+    return out
+
+
+def _ranked_result(
+    spec: Spec,
+    problem: Problem,
+    sim: Simulation,
+    designs: Designs,
+    u: np.ndarray,
+    passed: np.ndarray,
+    screen: np.ndarray,
+    *,
+    seed: int,
+    converged: bool | None,
+    plot_data: bool,
+    space_size: int,
+    feasible: int,
+    screened: int,
+) -> SolveResult:
+    """The ``ok`` result for ``designs`` (best first) and their Monte Carlo counts."""
+    samples = u.shape[0]
+    cands = build_candidates(
+        spec, problem, designs, passed, screen, samples, seed, extras(spec, sim, designs, u)
+    )
+    return SolveResult(
+        spec=spec,
+        status="ok",
+        candidates=loaded_view(spec, cands),
+        space_size=space_size,
+        feasible=feasible,
+        screened=screened,
+        distribution=spec.yield_.distribution,
+        samples=samples,
+        seed=seed,
+        warnings=warnings_for(spec) + lumped_warnings(spec.frequency.f_max),
+        production=summary(spec, sim, samples, converged),
+        plot_data=plot_inputs(spec, sim, designs, u) if plot_data else None,
+    )
+
+
+def solve(
+    spec: Spec,
+    *,
+    top: int | None = None,
+    samples: int | None = None,
+    seed: int | None = None,
+    candidates: int | None = None,
+    precision: float | None = None,
+    sampling: str | None = None,
+    progress: Progress | None = None,
+    plot_data: bool = False,
+) -> SolveResult:
+    """Search, screen, Monte Carlo and rank; the best ``top`` designs first.
+
+    ``precision`` (a CI half-width, 0.005 = ±0.5 %) continues the Monte Carlo
+    of the reported designs in batches until every interval is that narrow or
+    ``[yield] max_samples`` is reached; ``progress(samples, cap, half_width)``
+    is called after each batch. ``sampling`` is "random" or "sobol".
+    ``plot_data`` keeps the arrays the plots need in ``result.plot_data``.
+    """
+    spec = with_run_settings(spec, precision, sampling)
+    ys = spec.yield_
+    top = spec.report.top if top is None else top
+    samples = ys.samples if samples is None else samples
+    seed = ys.seed if seed is None else seed
+    m = ys.candidates if candidates is None else candidates
+    problem = build_problem(spec)
+    designs, loaded = _nominal_designs(spec, problem)
+    designs, dropped = cost_limited(spec, problem, designs)
+    if len(designs) == 0:
+        if dropped is not None and len(dropped):
+            misses, advice = over_cost(spec, problem, dropped)
+        elif loaded is None:
+            misses, advice = explain_infeasible(spec, problem)
+        else:
+            misses, advice = explain_loaded_infeasible(spec, problem, loaded)
+        return SolveResult(
+            spec=spec,
+            status="infeasible",
+            candidates=[],
+            space_size=problem.space_size(),
+            feasible=0,
+            misses=misses,
+            advice=advice,
+            distribution=ys.distribution,
+            samples=samples,
+            seed=seed,
+            warnings=lumped_warnings(spec.frequency.f_max),
+        )
+    sim = simulation_of(spec, problem)
+    u = random_inputs(spec, sim, samples, seed)
+    ranked, passed, screen, notes, screened = _rank(spec, sim, designs, u, m, top)
+    best = designs.take(ranked[:top])
+    order, passed, u, converged = _refined(spec, sim, best, u, passed[:top], seed, progress)
+    best, screen = best.take(order), screen[:top][order]
+    if spec.cost.rank_by == "cost" and not notes:
+        order = cost_order(problem, best, passed)
+        best, screen, passed = best.take(order), screen[order], passed[order]
+    res = _ranked_result(
+        spec,
+        problem,
+        sim,
+        best,
+        u,
+        passed,
+        screen,
+        seed=seed,
+        converged=converged,
+        plot_data=plot_data,
+        space_size=problem.space_size(),
+        feasible=len(designs),
+        screened=screened,
+    )
+    return replace(res, warnings=[*res.warnings, *notes]) if notes else res
+
+
+def evaluate(
+    spec: Spec,
+    values: dict[str, float],
+    *,
+    tolerances: dict[str, float] | None = None,
+    samples: int | None = None,
+    seed: int | None = None,
+    precision: float | None = None,
+    sampling: str | None = None,
+    progress: Progress | None = None,
+    plot_data: bool = False,
+) -> SolveResult:
+    """The same figures as ``solve`` for one given design (an existing board).
+
+    ``precision``, ``sampling``, ``progress`` and ``plot_data`` as for :func:`solve`.
+    """
+    spec = with_run_settings(spec, precision, sampling)
+    ys = spec.yield_
+    samples = ys.samples if samples is None else samples
+    seed = ys.seed if seed is None else seed
+    topo = spec.topo
+    missing = [p for p in topo.positions if p not in values]
+    if missing:
+        raise SpecError(
+            f"expected a value for every position ({', '.join(topo.positions)}); "
+            f"missing {', '.join(missing)}",
+            key="--set",
+        )
+    extra = [p for p in values if p not in topo.positions]
+    if extra:
+        raise SpecError(
+            f"unknown position {', '.join(extra)} for a {topo.name} tank; "
+            f"expected {', '.join(topo.positions)}",
+            key="--set",
+        )
+    tolerances = tolerances or {}
+    tables = {p: given_table(spec, p, values[p], tolerances.get(p)) for p in topo.positions}
+    base = build_problem(spec)
+    problem = Problem(
+        topo, tables, base.f_min, base.f_max, base.beta_min, base.beta_max, base.parasitics
+    )
+    idx = {p: np.zeros(1, dtype=np.int64) for p in topo.positions}
+    vals = {p: tables[p].values for p in topo.positions}
+    designs = Designs(
+        idx,
+        np.asarray(board_frequency(topo, vals, problem.parasitics), dtype=float),
+        np.asarray(board_beta(topo, vals, problem.parasitics), dtype=float),
+    )
+    sim = simulation_of(spec, problem)
+    u = random_inputs(spec, sim, samples, seed)
+    passed = count_passing(sim, designs, u)
+    _, passed, u, converged = _refined(spec, sim, designs, u, passed, seed, progress)
+    screen = screen_yield(sim, designs)
+    res = _ranked_result(
+        spec,
+        problem,
+        sim,
+        designs,
+        u,
+        passed,
+        screen,
+        seed=seed,
+        converged=converged,
+        plot_data=plot_data,
+        space_size=1,
+        feasible=0,
+        screened=1,
+    )
+    ok = res.candidates[0].in_window and res.candidates[0].feedback_ok
+    return replace(res, feasible=int(ok))

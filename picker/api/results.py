@@ -1,0 +1,116 @@
+"""What ``solve`` and ``evaluate`` return: frozen result objects with named fields.
+
+:class:`SolveResult` holds the ranked :class:`Candidate` designs (each with its
+:class:`PartPick` per position) or, when nothing is feasible, the nearest
+:class:`Miss` designs and advice.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+from picker.core.montecarlo import YieldEstimate
+from picker.spec.model import Spec
+
+__all__ = ["Candidate", "Miss", "PartPick", "SolveResult"]
+
+
+@dataclass(frozen=True)
+class PartPick:
+    """One chosen part: its value (SI), where it comes from and its tolerance."""
+
+    position: str
+    value: float
+    unit: str
+    source: str
+    tolerance: float
+    part_id: str = ""
+    price: float = float("nan")
+    #: A parallel pair: ``value`` is the total, the first part (``value -
+    #: second_value``, ``tolerance``, ``part_id``) the larger one, the second part
+    #: ``second_value`` (0 for a single part), ``second_part_id``, ``second_tolerance``.
+    #: ``price`` is the pair's (both parts).
+    second_value: float = 0.0
+    second_part_id: str = ""
+    second_tolerance: float = float("nan")
+
+    @property
+    def is_pair(self) -> bool:
+        return self.second_value > 0
+
+    @property
+    def first_value(self) -> float:
+        return self.value - self.second_value
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """A ranked design with its figures."""
+
+    rank: int
+    parts: dict[str, PartPick]
+    f_nominal_hz: float
+    error: float
+    feedback_fraction: float
+    yield_: YieldEstimate
+    screen_yield: float
+    f_worst_low_hz: float
+    f_worst_high_hz: float
+    sensitivities: dict[str, float]
+    in_window: bool = True
+    feedback_ok: bool = True
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def values(self) -> dict[str, float]:
+        return {p: pp.value for p, pp in self.parts.items()}
+
+    @property
+    def part_ids(self) -> dict[str, str]:
+        return {p: pp.part_id for p, pp in self.parts.items()}
+
+    @property
+    def yield_estimate(self) -> float:
+        return self.yield_.estimate
+
+    @property
+    def ci_low(self) -> float:
+        return self.yield_.ci_low
+
+    @property
+    def ci_high(self) -> float:
+        return self.yield_.ci_high
+
+
+@dataclass(frozen=True)
+class Miss:
+    """A near-feasible design and the constraint it fails."""
+
+    values: dict[str, float]
+    f_nominal_hz: float
+    feedback_fraction: float
+    failed: str
+
+
+@dataclass(frozen=True)
+class SolveResult:
+    """Everything ``solve`` or ``evaluate`` found, best design first."""
+
+    spec: Spec
+    status: str
+    candidates: list[Candidate]
+    space_size: int = 0
+    feasible: int = 0
+    screened: int = 0
+    misses: list[Miss] = field(default_factory=list)
+    advice: list[str] = field(default_factory=list)
+    distribution: str = "uniform"
+    samples: int = 0
+    seed: int = 0
+    #: Production view: warnings (e.g. a temperature outside a part's rating),
+    #: run facts for the JSON ``monte_carlo`` object, and arrays for the plots
+    #: (``plot_data``, only when asked for; never in the JSON).
+    warnings: list[str] = field(default_factory=list)
+    production: dict[str, Any] = field(default_factory=dict)
+    plot_data: dict[str, Any] | None = None

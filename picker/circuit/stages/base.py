@@ -1,0 +1,281 @@
+"""The amplifier stage base class: what a stage contributes to the loaded oscillator.
+
+A stage is the active half of the oscillator; the tank (:mod:`picker.tank`) is
+the passive half. The generic nodal solver (:mod:`picker.circuit.network`)
+builds the circuit's nodal-admittance matrix from the stamps of both, in the
+manner of modified nodal analysis (every element stamps its admittance y
+between its two nodes a, b: +y on the diagonal entries (a, a) and (b, b), −y on
+(a, b) and (b, a); Ho, Ruehli & Brennan, "The modified nodal approach to network
+analysis", IEEE Trans. Circuits Syst. 22 (1975)). The stage also owns its bias
+solution, its small-signal device values, the large-signal limit that sets the
+amplitude, its DC voltages, its netlist lines and its cautions.
+
+Nodes
+-----
+Every stage names four nodes (:attr:`Stage.nodes`) by their roles: ``output``
+(where the controlled source delivers its current), ``top`` (the tank's output
+end, which the output drives, possibly through a coupling capacitor),
+``input`` (the tank's input end; the controlling voltage is input − common)
+and ``common``. "0" is ground (the AC ground of the supply too).
+
+Adding an amplifier stage
+-------------------------
+Write one module in ``picker/circuit/stages/`` with a subclass of
+:class:`Stage` that sets ``name`` (the spec's ``stage`` word, hyphenated) and
+``device`` (the spec's ``kind``), and implements the abstract methods below,
+each with its source. Defining the class registers it
+(``__init_subclass__``); add one import line to
+``picker/circuit/stages/__init__.py``. ``tests/test_stage_conformance.py`` then
+checks it without change: the idealised stage (:meth:`Stage.ideal_params`)
+reduces to its textbook start-up condition (:meth:`Stage.required_gain`), the
+fast closed form agrees with the generic nodal solver, and the netlist of
+:meth:`Stage.typical_params` runs in ngspice with no floating node.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, replace
+from typing import Any, ClassVar
+
+import numpy as np
+
+from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.device import BiasPoint, SmallSignal
+from picker.tank.base import TWO_PI, Topology
+
+__all__ = ["STAGES", "Stage", "StageNetlist", "Stamp", "need", "spice_number"]
+
+#: Every registered stage by name, filled by :meth:`Stage.__init_subclass__`.
+STAGES: dict[str, Stage] = {}
+
+
+def need(x: float | None, what: str) -> float:
+    """``x``, or a ValueError saying that the amplifier needs ``what``."""
+    if x is None:
+        raise ValueError(f"the amplifier needs {what}")
+    return x
+
+
+def spice_number(x: float) -> str:
+    """A value as a netlist writes it (six significant figures)."""
+    return f"{float(x):.6g}"
+
+
+@dataclass(frozen=True)
+class Stamp:
+    """One admittance ``y`` (S; scalar or one value per element) between nodes ``a`` and ``b``.
+
+    "0" is ground. :func:`picker.circuit.network.loop_gain_matrix` adds +y to the
+    diagonal entries of ``a`` and ``b`` and −y to the two off-diagonal ones.
+    """
+
+    a: str
+    b: str
+    y: Any
+
+
+@dataclass(frozen=True)
+class StageNetlist:
+    """The stage's part of a SPICE netlist (:func:`picker.circuit.netlist.write_netlist`).
+
+    ``elements``: every element line in order, the tank's lines included (the
+    stage places them); ``models``: the ``.model`` lines; ``kick``: the size of
+    the start-up current pulse into the tank top, A; ``top_dc``: the DC voltage
+    of the tank top, V (the level the ``.meas`` crossings are taken at).
+    """
+
+    elements: list[str]
+    models: list[str]
+    kick: float
+    top_dc: float
+
+
+class Stage:
+    """An amplifier stage: a stateless plug-in; ``Subclass()`` is the registered instance.
+
+    Class attributes
+    ----------------
+    name : the spec's word for it ("common-emitter").
+    device : the device type it is built from, the spec's ``kind`` ("bjt").
+    default_for_device : whether it is the stage a spec with this ``kind`` and no
+        ``stage`` key gets (one per device type).
+    output, top, input, common : node names by role (see the module docstring).
+    coupling_parts : the stage's own capacitors that carry the tank's signal and
+        so appear in the stress figures (a blocking capacitor).
+    """
+
+    name: ClassVar[str]
+    device: ClassVar[str]
+    default_for_device: ClassVar[bool] = True
+    output: ClassVar[str] = "c"
+    top: ClassVar[str] = "t"
+    input: ClassVar[str] = "b"
+    common: ClassVar[str] = "e"
+    coupling_parts: ClassVar[tuple[str, ...]] = ()
+    _instance: ClassVar[Stage | None] = None
+
+    def __init_subclass__(cls, **kwargs: Any) -> None:
+        super().__init_subclass__(**kwargs)
+        cls._instance = None
+        if "name" in cls.__dict__:
+            if cls.name in STAGES:
+                raise ValueError(f"a stage named {cls.name!r} is already registered")
+            STAGES[cls.name] = cls()
+
+    def __new__(cls) -> Stage:
+        if cls._instance is None:
+            cls._instance = super().__new__(cls)
+        return cls._instance
+
+    def __repr__(self) -> str:
+        return f"{type(self).__name__}()"
+
+    def __reduce__(self) -> tuple[type[Stage], tuple[()]]:
+        return (type(self), ())
+
+    @property
+    def nodes(self) -> tuple[str, ...]:
+        """The stage's nodes in the order of the nodal matrix (ground excluded)."""
+        return tuple(dict.fromkeys((self.output, self.top, self.input, self.common)))
+
+    # ------------------------------------------------------------ bias and device values
+
+    def bias(self, params: AmplifierParams) -> BiasPoint | None:
+        """DC bias point from the bias network, or ``None`` where the stage does not solve one."""
+        return None
+
+    def device_small_signal(self, params: AmplifierParams) -> SmallSignal:
+        """Hybrid-pi values of the device at its bias (r_o resolved), before the
+        capacitance overrides of :meth:`small_signal`."""
+        raise NotImplementedError
+
+    def small_signal(self, params: AmplifierParams) -> SmallSignal:
+        """Hybrid-pi values the loaded model uses (see :mod:`picker.circuit.device`).
+
+        The device's own values (:meth:`device_small_signal`), then the user's
+        ``c_mu``, and ``c_pi`` given directly or from the transition frequency:
+        C_pi = gm/(2π·f_T) − C_mu (f_T = gm/(2π·(C_pi + C_mu)); Sedra & Smith,
+        high-frequency hybrid-pi model), never below zero.
+        """
+        ss = self.device_small_signal(params)
+        c_mu = params.c_mu if params.c_mu is not None else ss.c_mu
+        if params.c_pi is not None:
+            c_pi = params.c_pi
+        elif params.f_t is not None:
+            c_pi = max(ss.gm / (TWO_PI * params.f_t) - c_mu, 0.0)
+        else:
+            c_pi = ss.c_pi
+        return replace(ss, c_pi=c_pi, c_mu=c_mu)
+
+    def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
+        """The idealised stage: transconductance ``gm``, load ``r_load`` and nothing else
+        (no input conductance, no device capacitance, infinite output resistance, the
+        common node grounded, no bias network, no coupling capacitor)."""
+        raise NotImplementedError
+
+    def typical_params(self) -> AmplifierParams:
+        """A typical working stage with its bias network (invented values, not a real
+        circuit) that oscillates with a Colpitts tank of C1 = 1 nF, C2 = 2.2 nF,
+        L = 22 µH; the conformance test writes its netlist."""
+        raise NotImplementedError
+
+    # ------------------------------------------------------------ start-up
+
+    def required_gain(self, topology: Topology, values: Mapping[str, Any]) -> Any:
+        """The gain gm·R the idealised stage needs to start with this tank (the edge of
+        oscillation: loop gain 1 at the ideal tank frequency)."""
+        raise NotImplementedError
+
+    # ------------------------------------------------------------ the small-signal network
+
+    def transconductance(self, ss: SmallSignal) -> float:
+        """gm of the controlled source: current gm·(v_input − v_common) from ``output``
+        to ``common`` through the device."""
+        return ss.gm
+
+    def stamps(
+        self, s: np.ndarray, topology: Topology, params: AmplifierParams, ss: SmallSignal
+    ) -> list[Stamp]:
+        """Every passive admittance of the stage at complex frequency ``s`` (1-D), the
+        device's r_pi, C_pi, C_mu and r_o included, the controlled source excluded."""
+        raise NotImplementedError
+
+    def loop_gain(
+        self,
+        s: np.ndarray,
+        tank: tuple[Any, Any, Any],
+        topology: Topology,
+        params: AmplifierParams,
+        ss: SmallSignal,
+        *,
+        nodes: bool = False,
+    ) -> Any:
+        """Return ratio T at ``s`` in closed form, given the tank's (Y_out, Y_in, Y_bridge)
+        (:meth:`picker.tank.base.Topology.pi_admittances`); with ``nodes``, also the node
+        voltages for a unit test current, as ``(T, {node: x})``. Must equal the generic
+        solver on :meth:`stamps` (the conformance test checks it)."""
+        raise NotImplementedError
+
+    def loaded_tank(
+        self, topology: Topology, values: Mapping[str, Any], ss: SmallSignal
+    ) -> dict[str, Any]:
+        """Tank values with the device's capacitances added where they load it: the
+        root finder's first estimate of the loaded frequency."""
+        return topology.with_end_capacitance(values, ss.c_mu, ss.c_pi)
+
+    def needs_bleed(self, topology: Topology, params: AmplifierParams) -> bool:
+        """Whether the tank top needs the bleed resistor ``r_bleed`` to ground for a
+        DC path (a coupling capacitor on one side, a bridge that blocks DC on the other)."""
+        return False
+
+    # ------------------------------------------------------------ large signal
+
+    def drive_limit(
+        self, params: AmplifierParams, ss: SmallSignal, margin: np.ndarray, ok: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Peak input (control) voltage at which the fundamental transconductance has
+        fallen to gm/margin (the describing-function amplitude), V, and a mask of
+        the elements whose swing the device's own limit cannot bound (overdriven)."""
+        raise NotImplementedError
+
+    def headroom(self, params: AmplifierParams) -> float:
+        """Largest peak swing at the output before the device saturates, V (inf: unknown)."""
+        return math.inf
+
+    # ------------------------------------------------------------ DC voltages, parts, cautions
+
+    def dc_voltages(self, topology: Topology, params: AmplifierParams) -> dict[str, float]:
+        """DC voltage across each capacitor (the tank's and :attr:`coupling_parts`), V;
+        NaN where the bias point is unknown."""
+        return {p: math.nan for p in (*topology.capacitors, *self.coupling_parts)}
+
+    def coupling_across(
+        self, node: Mapping[str, np.ndarray], params: AmplifierParams
+    ) -> dict[str, np.ndarray]:
+        """Peak AC voltage across each of :attr:`coupling_parts` present, from the complex
+        node voltages ``node``, V."""
+        return {}
+
+    def cautions(self, topology: Topology, params: AmplifierParams) -> list[str]:
+        """Plain-language warnings about the stage and how it meets this tank."""
+        return []
+
+    # ------------------------------------------------------------ netlist
+
+    def settling_time(self, params: AmplifierParams) -> float:
+        """Time the bias needs to settle after power-up, s (added to the transient)."""
+        return 0.0
+
+    def netlist(
+        self,
+        topology: Topology,
+        values: Mapping[str, float],
+        stray: float,
+        r_l: float,
+        params: AmplifierParams,
+    ) -> StageNetlist:
+        """The stage's netlist lines around the tank's (ValueError where the stage
+        cannot be written, e.g. without a bias network)."""
+        raise NotImplementedError

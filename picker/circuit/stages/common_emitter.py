@@ -1,0 +1,425 @@
+"""The common-emitter stage: a bjt whose collector drives the tank, base fed back from it.
+
+The circuit (Sedra & Smith, *Microelectronic Circuits*, Colpitts section): the
+collector ``c`` drives the tank top ``t`` through the DC-blocking capacitor C_B
+(without it, c and t are one node); the tank's input end is the base ``b``;
+the emitter ``e`` goes to ground through R_E ∥ C_E. The collector load (R_C, or
+an RF choke L_ch with its winding resistance) and the base divider R_B1 (to the
+supply), R_B2 (to ground) are at AC ground through the supply.
+
+Model (hybrid-pi device at the DC bias point, :mod:`picker.circuit.device`):
+r_pi ∥ C_pi base-emitter, C_mu base-collector, gm·v_be and r_o collector-
+emitter. Base spreading resistance and package parasitics are neglected. The
+loop is broken at the controlled source (Bode's return ratio, see
+:mod:`picker.circuit.network`).
+
+With r_pi → ∞, zero device capacitance, no bias network, grounded emitter and a
+lossless inductor, T(jω0) = gm·R·C1/C2 at ω0² = (C1+C2)/(L·C1·C2): Sedra &
+Smith's start-up condition gm·R ≥ C2/C1 (:meth:`CommonEmitter.required_gain`,
+checked in tests/test_stage_conformance.py).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping
+from dataclasses import replace
+from typing import Any
+
+import numpy as np
+from scipy.special import i0e, i1e
+
+from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.device import (
+    BiasPoint,
+    SmallSignal,
+    bias_point,
+    npn_small_signal,
+    thermal_voltage,
+)
+from picker.circuit.stages.base import Stage, StageNetlist, Stamp, need, spice_number
+from picker.tank.base import Topology
+
+__all__ = ["CommonEmitter", "bessel_ratio"]
+
+#: Largest drive x = V_be,peak/V_T the amplitude bisection searches (a swing far beyond
+#: any bias network: where even this cannot bring G_m down to gm/margin, the stage is
+#: flagged overdriven).
+X_MAX = 400.0
+#: A missing part that is a short (no C_B, grounded emitter) in the nodal matrix, S: an
+#: error of about 1e-6 relative, still well conditioned.
+SHORT = 1e6
+
+
+def bessel_ratio(x: Any) -> np.ndarray:
+    """2·I1(x)/(x·I0(x)): large-signal/small-signal transconductance of an exponential
+    device with its DC current held fixed (Clarke & Hess, *Communication Circuits:
+    Analysis and Design*, 1971, large-signal transconductance). 1 at x → 0."""
+    x = np.asarray(x, dtype=float)
+    safe = np.where(x > 1e-8, x, 1.0)
+    return np.where(x > 1e-8, 2.0 * i1e(safe) / (safe * i0e(safe)), 1.0 - x * x / 8.0)
+
+
+def _bias_shift(
+    params: AmplifierParams, bias: BiasPoint | None, vt: float
+) -> Callable[[Any], np.ndarray]:
+    """x ↦ G_m(x)/gm for a bjt driven with a base-emitter sine of peak x·V_T.
+
+    Describing function 2·I1(x)/(x·I0(x)) (Clarke & Hess) times the rise of the DC
+    collector current the drive causes: the mean of exp(v_be/V_T) grows by I0(x), so
+    the DC base-emitter voltage falls by V_T·ln I0(x) and the bias network
+    (V_th, R_th, R_E) lets the current rise. DC loop, with I_C the mean collector
+    current: V_th − V_T·ln(I_C/(IS·I0(x))) = I_C·(R_th/β + R_E·(1 + 1/β)). Without a
+    bias network (gm given directly), the DC current is taken as fixed.
+    """
+    if bias is None or params.gm is not None or params.i_bias is not None:
+        return bessel_ratio
+    dev = params.effective_device()
+    r_b1 = need(params.r_b1, "r_b1")
+    if params.r_b2 is None:
+        v_th, r_th = params.vcc, r_b1
+    else:
+        v_th = params.vcc * params.r_b2 / (r_b1 + params.r_b2)
+        r_th = r_b1 * params.r_b2 / (r_b1 + params.r_b2)
+    r_dc = r_th / dev.bf + (params.r_e or 0.0) * (1.0 + 1.0 / dev.bf)
+    ic0 = bias.ic
+
+    def gain(x: Any) -> np.ndarray:
+        x = np.asarray(x, dtype=float)
+        ln_i0 = np.log(i0e(x)) + x  # ln I0(x), overflow-free
+        y = np.full(x.shape, math.log(ic0))  # ln I_C, Newton on f(y) = 0
+        for _ in range(40):
+            ic = np.exp(y)
+            f = v_th - vt * (y - math.log(dev.is_) - ln_i0) - ic * r_dc
+            y = y + f / (vt + ic * r_dc)
+        return np.exp(y) / ic0 * bessel_ratio(x)
+
+    return gain
+
+
+class CommonEmitter(Stage):
+    """The common-emitter bjt stage (the project's generic NPN unless told otherwise)."""
+
+    name = "common-emitter"
+    device = "bjt"
+    coupling_parts = ("CB",)
+
+    # ------------------------------------------------------------ bias and device values
+
+    def bias(self, params: AmplifierParams) -> BiasPoint | None:
+        """DC bias point from the base divider (:func:`picker.circuit.device.bias_point`),
+        or ``None`` without one."""
+        if params.r_b1 is None:
+            return None
+        return bias_point(
+            vcc=params.vcc,
+            r_b1=params.r_b1,
+            r_b2=params.r_b2,
+            r_e=params.r_e,
+            r_collector_dc=params.r_collector_dc,
+            device=params.effective_device(),
+            temperature_c=params.temperature_c,
+        )
+
+    def device_small_signal(self, params: AmplifierParams) -> SmallSignal:
+        """Hybrid-pi values at the solved bias (equations (D3), (D4) of
+        :mod:`picker.circuit.device`), or from ``gm``/``i_bias`` given directly:
+        r_pi = β/gm, r_o = VAF/I_C, C_pi = TF·gm + CJE."""
+        vt = thermal_voltage(params.temperature_c)
+        dev = params.effective_device()
+        b = self.bias(params)
+        if params.gm is None and params.i_bias is None and b is not None:
+            ss = npn_small_signal(b, dev, vt=vt)
+        else:
+            gm = params.gm if params.gm is not None else need(params.i_bias, "i_bias or gm") / vt
+            ss = SmallSignal(gm, dev.bf / gm, dev.vaf / (gm * vt), 0.0, dev.cjc, gm * vt)
+            ss = replace(ss, c_pi=dev.tf * gm + dev.cje)
+        r_o = params.r_o if params.r_o is not None else ss.r_o
+        return replace(ss, r_o=r_o)
+
+    def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
+        """β → ∞ (so r_pi = β/gm → ∞), C_pi = C_mu = 0, r_o → ∞, no bias network."""
+        return AmplifierParams(
+            kind=self.device,
+            stage=self.name,
+            gm=gm,
+            current_gain=math.inf,
+            r_o=math.inf,
+            c_pi=0.0,
+            c_mu=0.0,
+            r_c=r_load,
+        )
+
+    def typical_params(self) -> AmplifierParams:
+        """A 9 V stage at about 0.25 mA (invented values, not a real circuit)."""
+        return AmplifierParams(
+            kind=self.device,
+            stage=self.name,
+            vcc=9.0,
+            r_c=1500.0,
+            r_b1=68e3,
+            r_b2=10e3,
+            r_e=2200.0,
+            c_e=47e-9,
+            c_block=10e-9,
+            inductor_q=50.0,
+        )
+
+    # ------------------------------------------------------------ start-up
+
+    def required_gain(self, topology: Topology, values: Mapping[str, Any]) -> Any:
+        """1/β, β = :meth:`picker.tank.base.Topology.beta` (C1/C2 for a Colpitts).
+
+        The stage inverts (gain −gm·R) and the tank's capacitive divider returns
+        β of the output to the input with a further 180°, so the loop starts when
+        gm·R ≥ 1/β = C2/C1 (Sedra & Smith, Colpitts section: from the characteristic
+        equation s³·L·C1·C2·R + s²·L·C2 + s·(C1 + C2)·R + (gm·R + 1) = 0, whose
+        imaginary part gives ω0² = (C1 + C2)/(L·C1·C2) and whose real part then
+        gives gm·R = C2/C1).
+        """
+        return 1.0 / np.asarray(topology.beta(values))
+
+    # ------------------------------------------------------------ the small-signal network
+
+    def _admittances(
+        self, s: np.ndarray, params: AmplifierParams, ss: SmallSignal
+    ) -> tuple[Any, float, Any, Any, float, Any, Any]:
+        """The stage's branch admittances at ``s``: load, bias, y_pi, y_mu, g_o, y_e, y_cb."""
+        if params.l_choke is not None:
+            y_load = 1.0 / (params.r_choke + s * params.l_choke)
+        else:
+            y_load = 1.0 / need(params.r_c, "a collector load: r_c or l_choke") + 0.0 * s
+        g_bias = 0.0
+        for r in (params.r_b1, params.r_b2):
+            if r is not None:
+                g_bias += 1.0 / r
+        g_pi = 0.0 if math.isinf(ss.r_pi) else 1.0 / ss.r_pi
+        y_pi = g_pi + s * ss.c_pi
+        y_mu = s * ss.c_mu
+        g_o = 0.0 if math.isinf(ss.r_o) else 1.0 / ss.r_o
+        if params.r_e is None:
+            y_e = None
+        else:
+            y_e = 1.0 / params.r_e + (s * params.c_e if params.c_e is not None else 0.0)
+        y_cb = None if params.c_block is None else s * params.c_block
+        return y_load, g_bias, y_pi, y_mu, g_o, y_e, y_cb
+
+    def needs_bleed(self, topology: Topology, params: AmplifierParams) -> bool:
+        """C_B on the collector side and a bridge that blocks DC (Clapp's C3) leave the
+        tank top with no DC path: the bleed resistor gives it one."""
+        return params.c_block is not None and not topology.bridge_passes_dc
+
+    def stamps(
+        self, s: np.ndarray, topology: Topology, params: AmplifierParams, ss: SmallSignal
+    ) -> list[Stamp]:
+        """Load (c–0), C_B (c–t; a 1 MS short without it), bleed (t–0), bias divider (b–0),
+        y_pi (b–e), y_mu (b–c), g_o (c–e), R_E ∥ C_E (e–0; a 1 MS short without R_E)."""
+        y_load, g_bias, y_pi, y_mu, g_o, y_e, y_cb = self._admittances(s, params, ss)
+        c, t, b, e = self.output, self.top, self.input, self.common
+        out = [
+            Stamp(c, "0", y_load),
+            Stamp(c, t, SHORT + 0 * s if y_cb is None else y_cb),
+            Stamp(b, "0", g_bias + 0 * s),
+            Stamp(b, e, y_pi),
+            Stamp(b, c, y_mu),
+            Stamp(c, e, g_o + 0 * s),
+            Stamp(e, "0", SHORT + 0 * s if y_e is None else y_e),
+        ]
+        if self.needs_bleed(topology, params):
+            out.append(Stamp(t, "0", 1.0 / params.r_bleed + 0 * s))
+        return out
+
+    def loop_gain(
+        self,
+        s: np.ndarray,
+        tank: tuple[Any, Any, Any],
+        topology: Topology,
+        params: AmplifierParams,
+        ss: SmallSignal,
+        *,
+        nodes: bool = False,
+    ) -> Any:
+        """Closed-form loop gain T (and optionally node responses) by Schur elimination.
+
+        Node t (tank top) touches only c and b, so it is eliminated first; the
+        remaining symmetric system over (c, b, e) is solved by cofactors
+        (Cramer's rule). The test source injects −1 A at c and +1 A at e
+        (vector u' = e_c − e_e); T = −gm·(x_b − x_e).
+        """
+        y1, y2, ytb = tank
+        if self.needs_bleed(topology, params):
+            y1 = y1 + 1.0 / params.r_bleed
+        y_load, g_bias, y_pi, y_mu, g_o, y_e, y_cb = self._admittances(s, params, ss)
+        if y_cb is None:  # c and t are one node
+            a = y_load + y_mu + g_o + y1 + ytb
+            d = -y_mu - ytb
+            bb = ytb + y2 + g_bias + y_pi + y_mu
+            ytt = None
+        else:
+            ytt = y_cb + y1 + ytb
+            a = y_load + y_cb + y_mu + g_o - y_cb * y_cb / ytt
+            d = -y_mu - y_cb * ytb / ytt
+            bb = ytb + y2 + g_bias + y_pi + y_mu - ytb * ytb / ytt
+        if y_e is None:  # grounded emitter: 2x2 over (c, b), source at c only
+            det = a * bb - d * d
+            xc, xb, xe = bb / det, -d / det, 0.0 * det
+        else:
+            e, f = -g_o + 0.0 * s, -y_pi
+            c = y_e + y_pi + g_o
+            k_cc = bb * c - f * f
+            k_cb = e * f - d * c
+            k_ce = d * f - bb * e
+            k_be = d * e - a * f
+            k_ee = a * bb - d * d
+            det = a * k_cc + d * k_cb + e * k_ce
+            xc, xb, xe = (k_cc - k_ce) / det, (k_cb - k_be) / det, (k_ce - k_ee) / det
+        t = -ss.gm * (xb - xe)
+        if not nodes:
+            return t
+        xt = xc if ytt is None else (y_cb * xc + ytb * xb) / ytt
+        return t, {self.output: xc, self.top: xt, self.input: xb, self.common: xe}
+
+    # ------------------------------------------------------------ large signal
+
+    def drive_limit(
+        self, params: AmplifierParams, ss: SmallSignal, margin: np.ndarray, ok: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """V_be,peak = x·V_T where G_m(x)/gm = 1/margin (:func:`_bias_shift`), by bisection
+        (G_m(x) falls monotonically); overdriven where even x = :data:`X_MAX` cannot."""
+        vt = thermal_voltage(params.temperature_c)
+        target = 1.0 / np.where(ok, margin, 2.0)
+        gain = _bias_shift(params, self.bias(params), vt)
+        clipped = gain(np.array(X_MAX)) > target  # the bias shift cannot limit the swing
+        lo, hi = np.zeros_like(target), np.full_like(target, X_MAX)
+        for _ in range(50):  # bisection; gain(x) decreases monotonically
+            mid = 0.5 * (lo + hi)
+            big = gain(mid) > target
+            lo, hi = np.where(big, mid, lo), np.where(big, hi, mid)
+        return 0.5 * (lo + hi) * vt, clipped
+
+    def headroom(self, params: AmplifierParams) -> float:
+        """V_C − V_E − 0.3 V: the collector may swing down to about V_E + 0.3 V before
+        saturating (V_CE,sat of a small-signal bjt, common practice, no source)."""
+        b = self.bias(params)
+        return math.inf if b is None else b.vc - b.ve - 0.3
+
+    # ------------------------------------------------------------ DC voltages, parts, cautions
+
+    def top_dc(self, topology: Topology, params: AmplifierParams, bias: BiasPoint) -> float:
+        """DC voltage of the tank top: V_C without C_B; with C_B, V_B through the inductor
+        where the bridge passes DC (Colpitts), else 0 V through the bleed (Clapp)."""
+        if params.c_block is None:
+            return bias.vc
+        return bias.vb if topology.bridge_passes_dc else 0.0
+
+    def dc_voltages(self, topology: Topology, params: AmplifierParams) -> dict[str, float]:
+        """The tank's parts between the tank top and the base (:meth:`top_dc`, V_B), and
+        C_B between the collector and the tank top."""
+        b = self.bias(params)
+        if b is None:
+            return super().dc_voltages(topology, params)
+        top = self.top_dc(topology, params, b)
+        out = topology.dc_across(top, b.vb)
+        if params.c_block is not None:
+            out["CB"] = b.vc - top
+        return out
+
+    def coupling_across(
+        self, node: Mapping[str, np.ndarray], params: AmplifierParams
+    ) -> dict[str, np.ndarray]:
+        """C_B: |v_c − v_t|."""
+        if params.c_block is None:
+            return {}
+        return {"CB": np.abs(node[self.output] - node[self.top])}
+
+    def cautions(self, topology: Topology, params: AmplifierParams) -> list[str]:
+        """A tank whose bridge passes DC (Colpitts) with no blocking capacitor puts the
+        collector's DC voltage on the base; a bias network that saturates the transistor."""
+        out = []
+        if params.c_block is None and topology.bridge_passes_dc:
+            out.append(
+                "no DC-blocking capacitor between collector and tank: L puts the collector's DC "
+                "voltage on the base and the bias point is lost"
+            )
+        b = self.bias(params)
+        if b is not None and b.saturated:
+            out.append("the bias network saturates the transistor (V_BC > 0.4 V)")
+        return out
+
+    # ------------------------------------------------------------ netlist
+
+    def settling_time(self, params: AmplifierParams) -> float:
+        """Five emitter time constants R_E·C_E for the bias shift to settle."""
+        if params.r_e is not None and params.c_e is not None:
+            return 5.0 * params.r_e * params.c_e
+        return 0.0
+
+    def passive_lines(self, params: AmplifierParams, col: str) -> list[str]:
+        """Supply, collector load (resistor or choke) and C_B, in netlist order."""
+        g = spice_number
+        lines = [f"VCC vcc 0 DC {g(params.vcc)}"]
+        if params.l_choke is not None:
+            if params.r_choke > 0:
+                lines += [f"LCH vcc nch {g(params.l_choke)}", f"RCH nch {col} {g(params.r_choke)}"]
+            else:
+                lines += [f"LCH vcc {col} {g(params.l_choke)}"]
+        else:
+            lines.append(f"RC vcc {col} {g(need(params.r_c, 'r_c'))}")
+        if params.c_block is not None:
+            lines.append(f"CB {self.output} {self.top} {g(params.c_block)}")
+        return lines
+
+    def bias_lines(self, params: AmplifierParams, r_b1: float) -> list[str]:
+        """The base (gate) divider."""
+        g = spice_number
+        lines = [f"RB1 vcc {self.input} {g(r_b1)}"]
+        if params.r_b2 is not None:
+            lines.append(f"RB2 {self.input} 0 {g(params.r_b2)}")
+        return lines
+
+    def netlist(
+        self,
+        topology: Topology,
+        values: Mapping[str, float],
+        stray: float,
+        r_l: float,
+        params: AmplifierParams,
+    ) -> StageNetlist:
+        """The generic NPN (:data:`picker.circuit.device.GENERIC_NPN`, typical of the class,
+        [memory]; not a real part) with its card made to reproduce the small-signal
+        capacitances the model uses, the bias divider, R_E and C_E."""
+        bias = self.bias(params)
+        if bias is None:
+            raise ValueError("netlist export needs the base bias network (r_b1, r_b2)")
+        g = spice_number
+        dev = params.effective_device()
+        ss = self.small_signal(params)
+        vt = thermal_voltage(params.temperature_c)
+        # make the card reproduce the small-signal capacitances the model uses
+        cje = max(ss.c_pi - dev.tf * bias.ic / vt, 0.0)
+        tf = dev.tf if ss.c_pi >= dev.tf * bias.ic / vt else ss.c_pi * vt / bias.ic
+        card = replace(dev, cje=cje, tf=tf, cjc=ss.c_mu).model_card()
+        col = self.output if params.c_block is not None else self.top
+        bleed = params.r_bleed if self.needs_bleed(topology, params) else None
+        lines = [
+            "* generic small-signal NPN: typical of the class (values from memory), not a real part",
+            *self.passive_lines(params, col),
+            *topology.netlist_lines(
+                values, stray, r_l, params.capacitor_esr, self.top, self.input, bleed
+            ),
+            *self.bias_lines(params, need(params.r_b1, "r_b1")),
+        ]
+        model = card.split()[1]
+        if params.r_e is not None:
+            lines.append(f"Q1 {col} {self.input} {self.common} {model}")
+            lines.append(f"RE {self.common} 0 {g(params.r_e)}")
+            if params.c_e is not None:
+                lines.append(f"CE {self.common} 0 {g(params.c_e)}")
+        else:
+            lines.append(f"Q1 {col} {self.input} 0 {model}")
+        return StageNetlist(
+            elements=lines,
+            models=[card],
+            kick=0.2 * bias.ic,
+            top_dc=self.top_dc(topology, params, bias),
+        )

@@ -1,0 +1,171 @@
+"""The common-source stage: a fet whose drain drives the tank, gate fed back from it.
+
+The same circuit as the common-emitter stage (:mod:`picker.circuit.stages.common_emitter`)
+with drain, gate and source in the places of collector, base and emitter: the
+node names, the passive parts and the closed-form loop gain are shared. What
+differs is the device: the gate draws no current (r_pi = ∞ exactly), the
+small-signal values come from the drain current and the square law (gm =
+2·I_D/V_ov; Sedra & Smith, *Microelectronic Circuits*, MOSFET chapter), there is
+no bias solution (the drain current is given), and the amplitude is limited by
+the drain current rather than by an exponential law.
+
+Start-up: the common-emitter condition with r_pi = ∞ exactly, gm·R_D ≥ 1/β =
+C2/C1 for a Colpitts tank (Sedra & Smith, Colpitts section, whose analysis
+neglects r_pi; the fet form is the same loop, e.g. Boylestad & Nashelsky, *Electronic
+Devices and Circuit Theory*, FET Colpitts oscillator, attribution [memory]).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+
+import numpy as np
+
+from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.device import BiasPoint, SmallSignal
+from picker.circuit.stages.base import StageNetlist, need, spice_number
+from picker.circuit.stages.common_emitter import CommonEmitter
+from picker.tank.base import Topology
+
+__all__ = ["CommonSource", "NMOS_NAME"]
+
+#: Name of the netlist's square-law NMOS card.
+NMOS_NAME = "PICKER_NMOS"
+
+
+def _need_c_gs(params: AmplifierParams) -> float:
+    """C_gs as given, 0.0 when it will come from f_t; a ValueError when neither is given."""
+    if params.c_pi is None and params.f_t is None:
+        raise ValueError("a fet amplifier needs c_pi (C_gs) or f_t")
+    return params.c_pi if params.c_pi is not None else 0.0
+
+
+class CommonSource(CommonEmitter):
+    """The common-source fet stage (a square-law device described by its small-signal values)."""
+
+    name = "common-source"
+    device = "fet"
+
+    def bias(self, params: AmplifierParams) -> BiasPoint | None:
+        """None: the drain current is given (``i_bias``), not solved from a bias network."""
+        return None
+
+    def device_small_signal(self, params: AmplifierParams) -> SmallSignal:
+        """gm as given, or 2·I_D/V_ov (square law, Sedra & Smith); r_o = V_A/I_D
+        (``early_voltage``; infinite without), r_pi = ∞, C_gs and C_gd as given."""
+        if params.gm is not None:
+            gm = params.gm
+            i_dc = params.i_bias if params.i_bias is not None else math.nan
+        else:
+            i_dc = need(params.i_bias, "i_bias or gm")
+            gm = 2.0 * i_dc / need(params.overdrive_voltage, "overdrive_voltage")
+        ev = params.early_voltage
+        r_o = params.r_o if params.r_o is not None else (ev / i_dc if ev else math.inf)
+        return SmallSignal(gm, math.inf, r_o, _need_c_gs(params), need(params.c_mu, "c_mu"), i_dc)
+
+    def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
+        """The fet as Sedra & Smith idealise it: C_gs = C_gd = 0, r_o → ∞, no bias network."""
+        return AmplifierParams(
+            kind=self.device,
+            stage=self.name,
+            gm=gm,
+            r_o=math.inf,
+            c_pi=0.0,
+            c_mu=0.0,
+            r_c=r_load,
+        )
+
+    def typical_params(self) -> AmplifierParams:
+        """A 9 V stage at 2 mA and 0.4 V overdrive (gm = 10 mS; invented values, not a
+        real part), gate divider to about 2.9 V, source resistor bypassed."""
+        return AmplifierParams(
+            kind=self.device,
+            stage=self.name,
+            vcc=9.0,
+            i_bias=2e-3,
+            overdrive_voltage=0.4,
+            early_voltage=50.0,
+            c_pi=5e-12,
+            c_mu=1e-12,
+            r_c=680.0,
+            r_b1=1e6,
+            r_b2=470e3,
+            r_e=470.0,
+            c_e=47e-9,
+            c_block=10e-9,
+            inductor_q=50.0,
+        )
+
+    def drive_limit(
+        self, params: AmplifierParams, ss: SmallSignal, margin: np.ndarray, ok: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """V_gs,peak = margin·2·I_D/gm: the current limit of the large-drive bjt form
+        (fundamental drain current 2·I_D; cruder than the bjt's describing function)."""
+        return margin * 2.0 * ss.i_dc / ss.gm, np.zeros(margin.shape, dtype=bool)
+
+    def netlist(
+        self,
+        topology: Topology,
+        values: Mapping[str, float],
+        stray: float,
+        r_l: float,
+        params: AmplifierParams,
+    ) -> StageNetlist:
+        """A square-law NMOS (SPICE level 1, no intrinsic capacitance) set to the stage's
+        drain current and small-signal values, with C_gs and C_gd as explicit capacitors.
+
+        The card is built from the operating point the model assumes (SPICE level-1
+        MOSFET: I_D = KP/2·(W/L)·V_ov²·(1 + λ·V_DS); Massobrio & Antognetti,
+        *Semiconductor Device Modeling with SPICE*, 2nd ed., MOS level 1): the gate
+        sits at the divider's V_G (no gate current), the source at I_D·R_S, so
+        VTO = V_G − I_D·R_S − V_ov with V_ov = 2·I_D/gm; λ = 1/(r_o·I_D − V_DS) makes
+        g_ds = 1/r_o, and KP = 2·I_D/(V_ov²·(1 + λ·V_DS)) (W = L) gives back I_D and
+        gm = 2·I_D/V_ov.
+        """
+        if params.r_b1 is None:
+            raise ValueError("netlist export needs the gate bias network (r_b1, r_b2)")
+        ss = self.small_signal(params)
+        i_d = ss.i_dc
+        if not (math.isfinite(i_d) and i_d > 0):
+            raise ValueError("netlist export of a common-source stage needs the drain current")
+        g = spice_number
+        r_b1 = params.r_b1
+        v_g = params.vcc if params.r_b2 is None else params.vcc * params.r_b2 / (r_b1 + params.r_b2)
+        v_s = i_d * (params.r_e or 0.0)
+        v_d = params.vcc - i_d * params.r_collector_dc
+        v_ov = 2.0 * i_d / ss.gm
+        v_ds = v_d - v_s
+        lam = 0.0
+        if math.isfinite(ss.r_o) and ss.r_o * i_d > v_ds:
+            lam = 1.0 / (ss.r_o * i_d - v_ds)
+        kp = 2.0 * i_d / (v_ov * v_ov * (1.0 + lam * v_ds))
+        card = (
+            f".model {NMOS_NAME} NMOS (LEVEL=1 VTO={g(v_g - v_s - v_ov)} KP={g(kp)} "
+            f"LAMBDA={g(lam)} GAMMA=0)"
+        )
+        col = self.output if params.c_block is not None else self.top
+        src = self.common if params.r_e is not None else "0"
+        bleed = params.r_bleed if self.needs_bleed(topology, params) else None
+        lines = [
+            "* square-law NMOS set to the stage's bias and small-signal values, not a real part",
+            *self.passive_lines(params, col),
+            *topology.netlist_lines(
+                values, stray, r_l, params.capacitor_esr, self.top, self.input, bleed
+            ),
+            *self.bias_lines(params, r_b1),
+            f"M1 {col} {self.input} {src} {src} {NMOS_NAME} W=10u L=10u",
+        ]
+        if ss.c_pi > 0:
+            lines.append(f"CGS {self.input} {src} {g(ss.c_pi)}")
+        if ss.c_mu > 0:
+            lines.append(f"CGD {self.input} {col} {g(ss.c_mu)}")
+        if params.r_e is not None:
+            lines.append(f"RE {self.common} 0 {g(params.r_e)}")
+            if params.c_e is not None:
+                lines.append(f"CE {self.common} 0 {g(params.c_e)}")
+        if params.c_block is None:
+            top = v_d
+        else:
+            top = v_g if topology.bridge_passes_dc else 0.0
+        return StageNetlist(elements=lines, models=[card], kick=0.2 * i_d, top_dc=top)

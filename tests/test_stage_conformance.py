@@ -1,0 +1,158 @@
+"""Every registered amplifier stage against outside references (iterates the registry).
+
+A new stage needs no change here: it is checked by
+
+- its idealised form (:meth:`Stage.ideal_params`: no input conductance, no device
+  capacitance, infinite output resistance, ideal load R) against the textbook
+  start-up condition of the Colpitts oscillator, written out below from the book
+  rather than from the project's tank code, and of the Clapp oscillator;
+- its fast closed-form loop gain against the generic nodal solver (a stacked
+  ``numpy.linalg.solve`` of the modified-nodal-analysis matrix built from the
+  stamps), for its typical design (:meth:`Stage.typical_params`) with loss,
+  coupling and emitter parts;
+- the netlist of its typical design, run by ngspice in batch mode: it parses, no
+  node floats (each node joins at least two elements and ngspice reports no
+  floating node, missing DC path or singular matrix), it oscillates, and at the
+  frequency of the loaded model.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections import Counter
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from picker.circuit.netlist import write_netlist
+from picker.circuit.network import loop_gain, loop_gain_matrix
+from picker.circuit.ngspice import ngspice_path, simulate
+from picker.circuit.oscillation import loaded_response
+from picker.circuit.stages import (
+    STAGES,
+    Stage,
+    default_stage,
+    device_kinds,
+    get_stage,
+    stage_names,
+    stage_of,
+)
+from picker.errors import SolverError
+from picker.tank.clapp import CLAPP
+from picker.tank.colpitts import COLPITTS
+
+EVERY_STAGE = [pytest.param(s, id=s.name) for s in STAGES.values()]
+# The tank the typical designs are made for (Stage.typical_params): about 1.3 MHz.
+TYPICAL_TANK = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
+TWO_PI = 2 * math.pi
+
+
+def test_registry_lists_the_stages_once_each_with_one_default_per_device():
+    assert stage_names() == tuple(STAGES) and len(STAGES) >= 2
+    assert {"common-emitter", "common-source"} <= set(STAGES)
+    for name, stage in STAGES.items():
+        assert get_stage(name) is stage and type(stage)() is stage  # stateless singleton
+        assert re.fullmatch(r"[a-z]+(-[a-z]+)*", name)  # trade names, hyphenated
+    for kind in device_kinds():
+        defaults = [s for s in STAGES.values() if s.device == kind and s.default_for_device]
+        assert len(defaults) == 1 and default_stage(kind) is defaults[0]
+    with pytest.raises(ValueError, match="common-emitter, common-source"):
+        get_stage("common-collector-x")
+
+
+@pytest.mark.parametrize("stage", EVERY_STAGE)
+def test_ideal_stage_with_colpitts_meets_the_textbook_startup_condition(stage: Stage):
+    # Sedra & Smith, Microelectronic Circuits, Colpitts section: with r_pi neglected,
+    # ω0 = 1/√(L·C1C2/(C1+C2)) and the loop gain there is gm·R·C1/C2, so the circuit
+    # starts when gm·R ≥ C2/C1 (for a fet r_pi = ∞ exactly; the same loop, e.g.
+    # Boylestad & Nashelsky's FET Colpitts, attribution [memory]).
+    rng = np.random.default_rng(17)
+    c1 = rng.uniform(100e-12, 10e-9, (6, 4))
+    c2 = rng.uniform(100e-12, 10e-9, (6, 4))
+    l_ = rng.uniform(1e-6, 1e-3, (6, 4))
+    gm, r = 0.02, 1500.0
+    params = stage.ideal_params(gm, r)
+    assert stage_of(params) is stage
+    values = {"C1": c1, "C2": c2, "L": l_}
+    res = loaded_response(COLPITTS, values, 0.0, params)
+    f0 = 1 / (TWO_PI * np.sqrt(l_ * c1 * c2 / (c1 + c2)))
+    assert_allclose(res.f_hz, f0, rtol=1e-9)  # root finder tolerance 1e-11, margin for rounding
+    assert_allclose(res.margin, gm * r * c1 / c2, rtol=1e-9)
+    assert_allclose(stage.required_gain(COLPITTS, values), c2 / c1, rtol=1e-12)
+    # the edge: gm·R = C2/C1 exactly gives a loop gain of 1
+    edge = {"C1": 1e-9, "C2": 3.3e-9, "L": 22e-6}
+    at_edge = loaded_response(COLPITTS, edge, 0.0, stage.ideal_params(3.3 / 1000.0, 1000.0))
+    assert_allclose(at_edge.margin, 1.0, rtol=1e-9)
+
+
+@pytest.mark.parametrize("stage", EVERY_STAGE)
+def test_ideal_stage_with_clapp_meets_the_three_reactance_condition(stage: Stage):
+    # Clapp, Proc. IRE 36 (1948): f = 1/(2π√(L·Cs)), 1/Cs = 1/C1 + 1/C2 + 1/C3. The general
+    # three-reactance oscillator (Sedra & Smith, LC oscillators; attribution [memory]):
+    # X1 across the output, X2 across the input, X3 between them oscillates at
+    # X1 + X2 + X3 = 0 with loop gain gm·R·X2/X1 = gm·R·C1/C2; C3 only changes X3.
+    v = {"C1": 1e-9, "C2": 2.2e-9, "C3": 100e-12, "L": 10e-6}
+    gm, r = 0.02, 1000.0
+    res = loaded_response(CLAPP, v, 0.0, stage.ideal_params(gm, r))
+    cs = 1 / (1 / v["C1"] + 1 / v["C2"] + 1 / v["C3"])
+    assert_allclose(res.f_hz, 1 / (TWO_PI * math.sqrt(v["L"] * cs)), rtol=1e-9)
+    assert_allclose(res.margin, gm * r * v["C1"] / v["C2"], rtol=1e-9)
+    assert_allclose(stage.required_gain(CLAPP, v), v["C2"] / v["C1"], rtol=1e-12)
+
+
+@pytest.mark.parametrize("stage", EVERY_STAGE)
+@pytest.mark.parametrize("topology", [COLPITTS, CLAPP], ids=["colpitts", "clapp"])
+def test_closed_form_matches_the_generic_nodal_solver(stage, topology):
+    # Reference: numpy.linalg.solve on the nodal matrix stamped element by element.
+    rng = np.random.default_rng(23)
+    n = 40
+    v = {
+        "C1": rng.uniform(300e-12, 3e-9, n),
+        "C2": rng.uniform(1e-9, 6e-9, n),
+        "C3": rng.uniform(100e-12, 1e-9, n),
+        "L": rng.uniform(2e-6, 50e-6, n),
+    }
+    v = {p: v[p] for p in topology.positions}
+    f = rng.uniform(0.3e6, 10e6, n)
+    params = stage.typical_params()
+    fast = loop_gain(topology, v, 2e-12, params, f)
+    full = loop_gain_matrix(topology, v, 2e-12, params, f)
+    assert_allclose(fast, full, rtol=1e-9, atol=1e-12)  # both exact; LAPACK rounding only
+
+
+def _nodes(netlist: str) -> Counter[str]:
+    """How many elements meet at each node (SPICE element lines only)."""
+    count: Counter[str] = Counter()
+    for line in netlist.splitlines()[1:]:
+        words = line.split()
+        if not words or words[0][0] in "*.":
+            continue
+        kind = words[0][0].upper()
+        terminals = 4 if kind == "M" else 3 if kind == "Q" else 2
+        count.update({w.lower() for w in words[1 : 1 + terminals]})
+    return count
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("stage", EVERY_STAGE)
+@pytest.mark.parametrize("topology", [COLPITTS, CLAPP], ids=["colpitts", "clapp"])
+def test_typical_netlist_runs_in_ngspice_with_no_floating_node(stage, topology):
+    try:
+        ngspice_path()
+    except SolverError as exc:
+        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
+    values = {**TYPICAL_TANK, "C3": 220e-12}
+    values = {p: values[p] for p in topology.positions}
+    params = stage.typical_params()
+    text = write_netlist(topology, values, 3e-12, params, title=f"{stage.name} {topology.name}")
+    dangling = [node for node, k in _nodes(text).items() if k < 2 and node != "0"]
+    assert dangling == []  # every node joins at least two elements
+    sim = simulate(text)
+    assert sim.warnings == ()  # ngspice: no floating node, DC path, singular matrix
+    assert sim.oscillating
+    model = loaded_response(topology, values, 3e-12, params)
+    # ngspice transient (≥ 60 steps per period, frequency from ~90 periods) against the
+    # loaded model; 2 % as in tests/test_ngspice.py
+    assert abs(sim.frequency_hz / float(model.f_hz) - 1) < 0.02
