@@ -13,9 +13,10 @@ multi-channel plan. The CLI is a thin client of these functions.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING, Any
+
 from picker.api.candidates import circuit_extras, cost_extras, production_extras
 from picker.api.pipeline import evaluate, solve
-from picker.api.plan import ChannelRun, PlanRun, run_plan
 from picker.api.problem import (
     board_model_of,
     build_problem,
@@ -27,6 +28,22 @@ from picker.api.problem import (
 )
 from picker.api.results import Candidate, Miss, PartPick, SolveResult
 from picker.spec.load import load_spec, spec_from_dict
+
+if TYPE_CHECKING:
+    from picker.api.plan import ChannelRun, PlanRun, run_plan
+
+# The plan runner pulls in the buyer's CP-SAT model (ortools, about 1 s to import):
+# loaded on first use (PEP 562), so a solve does not pay for it.
+_LAZY = {"ChannelRun", "PlanRun", "run_plan"}
+
+
+def __getattr__(name: str) -> Any:
+    if name in _LAZY:
+        from picker.api import plan
+
+        return getattr(plan, name)
+    raise AttributeError(f"module 'picker.api' has no attribute {name!r}")
+
 
 __all__ = [
     "Candidate",
