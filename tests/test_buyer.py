@@ -188,12 +188,12 @@ def test_stock_json_and_csv_carry_ids_and_cost(tmp_path):
             '[parts.C1]\nseries = "E6"\nmin = "1 nF"\nmax = "10 nF"\npair_ratio_max = 3\n',
             "parts.C1.pair_ratio_max",
             "parallel = true",
-        ),  # fmt: skip
+        ),
         (
             '[parts.C1]\nseries = "E6"\nmin = "1 nF"\nmax = "10 nF"\nparallel = "yes"\n',
             "parts.C1.parallel",
             "true or false",
-        ),  # fmt: skip
+        ),
     ],
 )
 def test_stock_and_pair_spec_errors(tmp_path, parts, key, words):
@@ -227,7 +227,9 @@ def test_max_per_board_keeps_exactly_the_designs_within_it(tmp_path):
     costs = sorted(c.extra["cost"]["per_board"] for c in full.candidates)
     limit = costs[len(costs) // 2]
     res = solve(load_spec(_write(tmp_path, STOCK_PARTS, f"[cost]\nmax_per_board = {limit!r}\n")))
-    within = {tuple(c.part_ids.values()) for c in full.candidates if c.extra["cost"]["per_board"] <= limit}  # fmt: skip
+    within = {
+        tuple(c.part_ids.values()) for c in full.candidates if c.extra["cost"]["per_board"] <= limit
+    }
     assert {tuple(c.part_ids.values()) for c in res.candidates} == within
     assert res.feasible == len(within) < full.feasible
     # too tight a limit: infeasible, the advice names the cheapest design's cost
@@ -296,11 +298,22 @@ def test_pairs_reach_values_between_series_steps(tmp_path):
     # within 1 % of the C1 this frequency needs (4.7 and 6.8 are the neighbours)
     v = {"C1": 5.7e-9, "C2": 22e-9, "L": 100e-6}
     f0 = _thomson(v)
-    single = solve(load_spec(_write(tmp_path, PAIR_PARTS.format(parallel=""),
-                                    target=f"{f0:.6f} Hz", window="±0.5 %")))  # fmt: skip
+    single = solve(
+        load_spec(
+            _write(tmp_path, PAIR_PARTS.format(parallel=""), target=f"{f0:.6f} Hz", window="±0.5 %")
+        )
+    )
     assert single.status == "infeasible"
-    res = solve(load_spec(_write(tmp_path, PAIR_PARTS.format(parallel="parallel = true"),
-                                 target=f"{f0:.6f} Hz", window="±0.5 %")))  # fmt: skip
+    res = solve(
+        load_spec(
+            _write(
+                tmp_path,
+                PAIR_PARTS.format(parallel="parallel = true"),
+                target=f"{f0:.6f} Hz",
+                window="±0.5 %",
+            )
+        )
+    )
     assert res.status == "ok"
     pp = res.candidates[0].parts["C1"]
     assert pp.is_pair
@@ -327,8 +340,11 @@ def _pair_problem(a, ta, b, tb):
     one = ValueTable(np.array([1e-9]), np.array([0.0]), "list")
     coil = ValueTable(np.array([1e-4]), np.array([0.0]), "list")
     pb = Problem(COLPITTS, {"C1": t, "C2": one, "L": coil}, 1.0, 1e9, 0.0, 1e9)
-    d = Designs({"C1": np.array([k]), "C2": np.array([0]), "L": np.array([0])},
-                np.array([1.0]), np.array([1.0]))  # fmt: skip
+    d = Designs(
+        {"C1": np.array([k]), "C2": np.array([0]), "L": np.array([0])},
+        np.array([1.0]),
+        np.array([1.0]),
+    )
     return pb, d
 
 
@@ -343,8 +359,9 @@ def test_pair_spread_is_the_sum_of_two_independent_parts():
     # closed form: σ² = (a·ta/√3)² + (b·tb/√3)², equal to scipy's trapezoid
     var = (a * ta) ** 2 / 3 + (b * tb) ** 2 / 3
     h1, h2 = a * ta, b * tb
-    trap = stats.trapezoid(min(h1, h2) / (h1 + h2), max(h1, h2) / (h1 + h2),
-                           loc=-(h1 + h2), scale=2 * (h1 + h2))  # fmt: skip
+    trap = stats.trapezoid(
+        min(h1, h2) / (h1 + h2), max(h1, h2) / (h1 + h2), loc=-(h1 + h2), scale=2 * (h1 + h2)
+    )
     assert trap.var() == pytest.approx(var, rel=1e-12)
     # sample variance within 4 standard errors, SE from the fourth moment (scipy)
     se = math.sqrt((trap.moment(4) - var**2) / n)
@@ -435,7 +452,10 @@ def test_search_with_pairs_equals_brute_force_over_parts(case):
 
     want = set()
     for combo in itertools.product(*(_options(*bases[p]) for p in pb.topology.positions)):
-        v = {p: np.array([big + small]) for p, (big, small) in zip(pb.topology.positions, combo, strict=True)}  # fmt: skip
+        v = {
+            p: np.array([big + small])
+            for p, (big, small) in zip(pb.topology.positions, combo, strict=True)
+        }
         f = float(board_frequency(COLPITTS, v, pb.parasitics)[0])
         beta = float(v["C1"][0] / v["C2"][0])
         if pb.f_min <= f <= pb.f_max and pb.beta_min <= beta <= pb.beta_max:

@@ -150,10 +150,18 @@ def test_weighted_fit_agrees_with_curve_fit(absolute):
         )
 
     popt, pcov = optimize.curve_fit(
-        model, np.arange(f.size, dtype=float), f, p0=[10.0, 1.0, 30.0], sigma=sigma,
-        absolute_sigma=absolute, method="trf", jac="3-point", xtol=1e-14, ftol=1e-14,
+        model,
+        np.arange(f.size, dtype=float),
+        f,
+        p0=[10.0, 1.0, 30.0],
+        sigma=sigma,
+        absolute_sigma=absolute,
+        method="trf",
+        jac="3-point",
+        xtol=1e-14,
+        ftol=1e-14,
         gtol=1e-14,
-    )  # fmt: skip
+    )
     to_si = np.array([1e-12, 1.0, 1e-12])
     ours = np.array([res.parameter(k).estimate for k in res.fitted])
     assert res.fitted == ("stray", "l_scale", "c2_shunt")
@@ -165,8 +173,9 @@ def test_weighted_fit_agrees_with_curve_fit(absolute):
     assert_allclose(res.covariance, pcov * np.outer(to_si, to_si), rtol=1e-6)
     q = stats.norm.ppf(0.975) if absolute else stats.t.ppf(0.975, f.size - 3)
     p = res.parameter("stray")
-    assert_allclose([p.ci_low, p.ci_high], popt[0] * 1e-12 + np.array([-1, 1]) * q * se[0],
-                    rtol=1e-5)  # fmt: skip
+    assert_allclose(
+        [p.ci_low, p.ci_high], popt[0] * 1e-12 + np.array([-1, 1]) * q * se[0], rtol=1e-5
+    )
 
 
 def test_custom_model_hook_gives_the_same_fit():

@@ -77,8 +77,11 @@ def test_json_output_matches_the_core_fit_and_is_deterministic(tmp_path):
     for k in core.fitted:
         p = core.parameter(k)
         got = d["parameters"][k]
-        assert_allclose([got["estimate"], got["ci_low"], got["ci_high"]],
-                        [p.estimate, p.ci_low, p.ci_high], rtol=1e-12)  # fmt: skip
+        assert_allclose(
+            [got["estimate"], got["ci_low"], got["ci_high"]],
+            [p.estimate, p.ci_low, p.ci_high],
+            rtol=1e-12,
+        )
     assert d["parameters"]["stray"]["unit"] == "F" and d["parameters"]["l_scale"]["unit"] == "1"
     assert d["parameters"]["c1_shunt"]["std_error"] is None  # held, not fitted
     assert d["identifiable"] is True and d["outliers"] == []
@@ -191,10 +194,12 @@ def test_calibrated_spec_recentres_the_solve():
 
     def offsets(spec):
         res = solve(spec, top=10, samples=2000)
-        return np.array([
-            topo_mod.board_frequency(COLPITTS, c.values, board) / target - 1
-            for c in res.candidates
-        ])  # fmt: skip
+        return np.array(
+            [
+                topo_mod.board_frequency(COLPITTS, c.values, board) / target - 1
+                for c in res.candidates
+            ]
+        )
 
     old, new = offsets(before), offsets(after)
     assert 0.008 < old.mean() < 0.02  # uncalibrated picks run high on the real board

@@ -313,8 +313,13 @@ def test_reductions_change_nothing(inst, priorities):
     # the exact reductions (stock-impossible, dominated, outside every fewest-parts
     # cover) must give the very plan the unreduced model gives, tie-break included
     channels, catalogue = _to_model(inst)
-    kw = dict(build_qty=inst["build"], catalogue=catalogue, priorities=priorities,
-              time_limit=20.0, workers=1)  # fmt: skip
+    kw = dict(
+        build_qty=inst["build"],
+        catalogue=catalogue,
+        priorities=priorities,
+        time_limit=20.0,
+        workers=1,
+    )
     full = consolidate(channels, reduce=(), **kw)
     fast = consolidate(channels, **kw)
     assert fast.status == full.status

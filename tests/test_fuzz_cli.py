@@ -89,7 +89,7 @@ def _commands(f) -> dict[str, list[str]]:
             "200",
             "-f",
             "json",
-        ],  # fmt: skip
+        ],
         "series": ["series", "E24", "--min", "1n", "--max", "10n", "--unit", "F"],
         "calibrate": ["calibrate", str(f["units"]), "--topology", "colpitts", "--format", "json"],
         "consolidate": ["consolidate", str(f["plan"]), "--format", "json", "--time-limit", "2"],
@@ -104,7 +104,7 @@ def _commands(f) -> dict[str, list[str]]:
             "L=4.7u",
             "-o",
             out + ".cir",
-        ],  # fmt: skip
+        ],
         "simulate": [
             "simulate",
             a,
@@ -116,7 +116,7 @@ def _commands(f) -> dict[str, list[str]]:
             "L=4.7u",
             "--timeout",
             "abc",
-        ],  # fmt: skip
+        ],
         "bench": ["bench", "--quick", "--no-such-option"],
     }
 
@@ -147,9 +147,14 @@ def damaged_command(draw, files):
             i = draw(st.sampled_from(slots))
             argv += [argv[i - 1], argv[i]]
         elif how == "unknown":
-            argv.insert(draw(st.integers(1, len(argv))), draw(st.sampled_from(
-                ["--foo", "-x", "--Samples", "--format=", "--", "-", "--set", "--help=1"]
-            )))  # fmt: skip
+            argv.insert(
+                draw(st.integers(1, len(argv))),
+                draw(
+                    st.sampled_from(
+                        ["--foo", "-x", "--Samples", "--format=", "--", "-", "--set", "--help=1"]
+                    )
+                ),
+            )
         elif how == "extra":
             argv.append(draw(st.sampled_from(["extra", "", "--", str(files["spec"])])))
         elif how == "file" and len(argv) > 1:

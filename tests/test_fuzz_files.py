@@ -161,7 +161,7 @@ def test_calibrate_on_a_damaged_measurements_file(tmp_path_factory, text, fmt):
         st.sampled_from(["4.7 nF", "4.71n", "4.69e-9", "4.72 nF", "4.68n"]),
         min_size=15,
         max_size=30,
-    ),  # fmt: skip
+    ),
     bad=st.one_of(st.none(), _CELL),
     where=st.integers(0, 40),
     header=st.sampled_from(["value", "Value", "serial,value", "", "x,y"]),

@@ -48,7 +48,7 @@ def _infeasible(tmp_path, name: str) -> str:
                 "200",
             ],
             0,
-        ),  # fmt: skip
+        ),
         (["series", "E24", "--min", "1n", "--max", "10n"], 0),
         (["series", "E24", "--min", "1.01n", "--max", "1.02n"], 1),  # no value in range
         (["calibrate", UNITS, "--topology", "colpitts"], 0),
@@ -133,8 +133,11 @@ def test_bad_input_names_the_file_and_the_key(tmp_path):
     d["parts"]["C1"]["min"] = "100 pH"
     p = tmp_path / "spec.toml"
     p.write_text(to_toml(d), encoding="utf-8")
-    for cmd in (["solve", str(p)], ["evaluate", str(p), "--set", "C1=1n"], ["netlist", str(p),
-                "-o", "x.cir"]):  # fmt: skip
+    for cmd in (
+        ["solve", str(p)],
+        ["evaluate", str(p), "--set", "C1=1n"],
+        ["netlist", str(p), "-o", "x.cir"],
+    ):
         code, out, err = run_cli(cmd, cwd=tmp_path)
         text = assert_clean_exit(code, out, err, files=(p,), allowed=(2,))
         assert text.startswith(f"{p}: parts.C1.min: expected a capacitance")

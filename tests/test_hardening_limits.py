@@ -99,8 +99,10 @@ def test_an_estimated_feasible_set_beyond_max_designs_is_refused_before_it_runs(
 )
 def test_the_feasible_estimate_agrees_with_brute_force(clapp, decades, series, f0, window, stray):
     topo = CLAPP if clapp else COLPITTS
-    tabs = {p: uniform_table(expand(series, 1e-11, 1e-11 * 10**decades), 0.05, series)
-            for p in topo.capacitors}  # fmt: skip
+    tabs = {
+        p: uniform_table(expand(series, 1e-11, 1e-11 * 10**decades), 0.05, series)
+        for p in topo.capacitors
+    }
     tabs["L"] = uniform_table(expand(series, 1e-6, 1e-6 * 10**decades), 0.05, series)
     prob = Problem(topo, tabs, f0 * (1 - window), f0 * (1 + window), 0.1, 1.0, Parasitics(stray))
     n_outer, est = estimate_designs(prob)

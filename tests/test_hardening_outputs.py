@@ -67,7 +67,7 @@ def _writers(tmp):
                 "OUT",
             ],
             [spec],
-        ),  # fmt: skip
+        ),
         "netlist -o": (["netlist", str(amp), *sets, "-o", "OUT"], [amp]),
         "calibrate --fragment": (
             ["calibrate", str(units), "--topology", "colpitts", "--fragment", "OUT"],

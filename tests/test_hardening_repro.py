@@ -48,7 +48,7 @@ CASES = {
         "json",
         "--samples",
         "2000",
-    ],  # fmt: skip
+    ],
     "sobol": [
         "solve",
         str(DEMO / "tone_source.toml"),
@@ -58,7 +58,7 @@ CASES = {
         "2048",
         "--sampling",
         "sobol",
-    ],  # fmt: skip
+    ],
     "evaluate": [
         "evaluate",
         str(DEMO / "probe_exciter.toml"),
@@ -72,7 +72,7 @@ CASES = {
         "json",
         "--samples",
         "2000",
-    ],  # fmt: skip
+    ],
     "consolidate": ["consolidate", str(DEMO / "plan_demo.toml"), "--format", "json"],
 }
 

@@ -40,10 +40,12 @@ from picker.circuit.stages import (
     stage_of,
 )
 from picker.errors import SolverError
+from picker.tank import TOPOLOGIES
 from picker.tank.clapp import CLAPP
 from picker.tank.colpitts import COLPITTS
 
 EVERY_STAGE = [pytest.param(s, id=s.name) for s in STAGES.values()]
+EVERY_TOPOLOGY = [pytest.param(t, id=t.name) for t in TOPOLOGIES.values()]
 # The tank the typical designs are made for (Stage.typical_params): about 1.3 MHz.
 TYPICAL_TANK = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
 TWO_PI = 2 * math.pi
@@ -103,7 +105,7 @@ def test_ideal_stage_with_clapp_meets_the_three_reactance_condition(stage: Stage
 
 
 @pytest.mark.parametrize("stage", EVERY_STAGE)
-@pytest.mark.parametrize("topology", [COLPITTS, CLAPP], ids=["colpitts", "clapp"])
+@pytest.mark.parametrize("topology", EVERY_TOPOLOGY)
 def test_closed_form_matches_the_generic_nodal_solver(stage, topology):
     # Reference: numpy.linalg.solve on the nodal matrix stamped element by element.
     rng = np.random.default_rng(23)
@@ -137,7 +139,7 @@ def _nodes(netlist: str) -> Counter[str]:
 
 @pytest.mark.ngspice
 @pytest.mark.parametrize("stage", EVERY_STAGE)
-@pytest.mark.parametrize("topology", [COLPITTS, CLAPP], ids=["colpitts", "clapp"])
+@pytest.mark.parametrize("topology", EVERY_TOPOLOGY)
 def test_typical_netlist_runs_in_ngspice_with_no_floating_node(stage, topology):
     try:
         ngspice_path()

@@ -162,14 +162,16 @@ def _collect(
     inw = (f_l >= problem.f_min) & (f_l <= problem.f_max)
     inw &= (beta >= problem.beta_min) & (beta <= problem.beta_max)
     ok = inw & (m >= min_margin)
-    parts["ok"].append((Designs({p: i[ok] for p, i in idx.items()}, f_i[ok], beta[ok]),
-                        f_l[ok], m[ok]))  # fmt: skip
+    parts["ok"].append(
+        (Designs({p: i[ok] for p, i in idx.items()}, f_i[ok], beta[ok]), f_l[ok], m[ok])
+    )
     parts["in_window"] += int(inw.sum())
     low = np.flatnonzero(inw & ~ok)
     if low.size:
         low = low[np.argsort(-m[low], kind="stable")[:keep]]
-        parts["low"].append((Designs({p: i[low] for p, i in idx.items()}, f_i[low], beta[low]),
-                             f_l[low], m[low]))  # fmt: skip
+        parts["low"].append(
+            (Designs({p: i[low] for p, i in idx.items()}, f_i[low], beta[low]), f_l[low], m[low])
+        )
 
 
 def _finish(topology: Topology, parts: dict[str, Any], keep: int) -> LoadedSearch:
@@ -242,8 +244,9 @@ def loaded_search(
                 odd = beyond_ideal & ((code == UNCLEAR) | ((code == -want) & ~sure))
                 if odd.any():
                     k = np.flatnonzero(odd)
-                    f_l, _ = loaded_nominal(topo, {p: v[k] for p, v in probe.items()},
-                                            problem.parasitics, params)  # fmt: skip
+                    f_l, _ = loaded_nominal(
+                        topo, {p: v[k] for p, v in probe.items()}, problem.parasitics, params
+                    )
                     beyond = (f_l > problem.f_max) if low_side else (f_l < problem.f_min)
                     done[k] = ~np.isfinite(f_l) | beyond
                 grow = sel[~done]
