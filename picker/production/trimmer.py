@@ -30,9 +30,15 @@ from numpy.typing import ArrayLike
 
 from picker.errors import SpecError
 from picker.parts.series import data_dir
+from picker.tank import TOPOLOGIES
 from picker.tank.base import TWO_PI, Topology, series_capacitance
 
-PLACEMENTS = ("across", "C3")
+#: "across" the whole tank, or in parallel with a topology's ``trimmer_position``
+#: (C3 of a Clapp tank), from the registry.
+PLACEMENTS = (
+    "across",
+    *sorted({t.trimmer_position for t in TOPOLOGIES.values() if t.trimmer_position}),
+)
 
 
 @dataclass(frozen=True)
@@ -335,17 +341,24 @@ def size_trimmer(
         raise SpecError(
             f"expected a trimmer placement, one of {', '.join(PLACEMENTS)}; got {placement!r}"
         )
-    if placement == "C3":
-        if "C3" not in topology.positions:
-            raise SpecError("a trimmer at C3 needs the Clapp topology", key="trimmer.placement")
-        recentre = "C3"
+    at_part = placement != "across"  # in parallel with the topology's trimmer_position
+    if at_part:
+        if placement != topology.trimmer_position:
+            owners = [
+                t.name.capitalize() for t in TOPOLOGIES.values() if t.trimmer_position == placement
+            ]
+            raise SpecError(
+                f"a trimmer at {placement} needs the {' or '.join(owners)} topology",
+                key="trimmer.placement",
+            )
+        recentre = placement
     table = load_trimmer_table() if table is None else tuple(table)
     cands = (
         [None]
         if recentre is None
         else sorted({float(nominal[recentre]), *map(float, recentre_values)})
     )
-    if placement == "C3":
+    if at_part:
         cands = sorted({0.0, *cands})
 
     def dist(v: float | None) -> float:

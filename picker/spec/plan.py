@@ -202,7 +202,8 @@ class Plan:
         if not self.spec.stock_only:
             return
         try:
-            topo = tomllib.loads(spec_path.read_text(encoding="utf-8")).get("topology", "")
+            text = read_text(spec_path, what="a spec file")
+            topo = tomllib.loads(text).get("topology", "")
             positions = get_topology(str(over.get("topology", topo))).positions
         except (OSError, ValueError, SpecError):
             return  # the spec's own load reports the fault
