@@ -452,3 +452,33 @@ def test_drift_aware_screen_tracks_monte_carlo_and_keeps_the_top(demo):
         for i in truth
     ]
     assert got == want
+
+
+def test_trimmer_advice_on_stock_positions_recentres_to_a_stock_value(tmp_path):
+    # A stock-only spec whose yield target is missed: the trimmer advice re-centres a part,
+    # and a stock position may only move to what the shelf holds (one part, or a parallel
+    # pair where the spec allows it). Read independently from the stock CSV. Before the
+    # fix this valid spec ended with "expected a series name ... got None" (exit 2).
+    import csv
+    import itertools
+    import shutil
+    import tomllib
+
+    from picker.units import parse_quantity
+
+    demo = DEMO.parent
+    shutil.copy(demo / "stock_demo.csv", tmp_path / "stock_demo.csv")
+    data = tomllib.loads((demo / "buyer_exciter.toml").read_text(encoding="utf-8"))
+    data["yield"]["target"] = "99.99 %"
+    spec = api.spec_from_dict(data, file=str(tmp_path / "buyer.toml"))
+    best = api.solve(spec, top=1).candidates[0]
+    advice = best.extra["trimmer"]
+    with open(demo / "stock_demo.csv", encoding="utf-8", newline="") as fh:
+        caps = sorted(
+            {parse_quantity(r["value"], "F") for r in csv.DictReader(fh) if r["kind"] == "C"}
+        )
+    pairs = {a + b for a, b in itertools.combinations_with_replacement(caps, 2)}
+    moved = advice["recentre"]
+    assert moved["position"] in ("C1", "C2")
+    shelf = set(caps) | (pairs if moved["position"] == "C1" else set())  # C1 may be a pair
+    assert any(abs(moved["to"] / v - 1) < 1e-9 for v in shelf)

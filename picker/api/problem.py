@@ -226,11 +226,12 @@ def recentre_values(spec: Spec, problem: Problem, pos: str) -> np.ndarray:
 
     Shape (n,), sorted ascending, each value once: the position's value table
     and every value of its series range or value list
-    (:func:`picker.spec.production.candidate_values`).
+    (:func:`picker.spec.production.candidate_values`); a stock position has
+    neither, so its stock values are all it may take.
     """
-    return np.unique(
-        np.concatenate([problem.tables[pos].values, candidate_values(spec.parts[pos])])
-    )
+    part = spec.parts[pos]
+    listed = candidate_values(part) if part.series or part.values is not None else ()
+    return np.unique(np.concatenate([problem.tables[pos].values, listed]))
 
 
 def amplifier_params_of(spec: Spec) -> AmplifierParams | None:
