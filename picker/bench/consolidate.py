@@ -27,6 +27,7 @@ from scipy.stats import norm
 
 from picker.buyer.consolidate import consolidate
 from picker.buyer.model import ChannelCandidates, PartInfo
+from picker.spec.stock import COLUMNS as STOCK_COLUMNS
 from picker.spec.stock import load_stock
 from picker.tank.colpitts import COLPITTS
 
@@ -218,20 +219,7 @@ def write_stock_csv(path: str, rows: int = 100_000, seed: int = 2) -> None:
     texts = ["4.7 nF", "100 pF", "2n2", "1.5e-9", "33 pF", "0.47 uF", "6n8", "1e-10"]
     with open(path, "w", newline="") as fh:
         w = csv.writer(fh)
-        w.writerow(
-            [
-                "id",
-                "kind",
-                "value",
-                "tolerance",
-                "dielectric",
-                "core",
-                "voltage",
-                "on_hand",
-                "price",
-                "price_breaks",
-            ]
-        )
+        w.writerow(STOCK_COLUMNS)
         for i in range(rows):
             cap = i % 4 != 0
             w.writerow(
