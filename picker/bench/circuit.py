@@ -21,12 +21,12 @@ from collections.abc import Mapping
 import numpy as np
 
 from picker.bench.search import colpitts_problem
-from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.figures import nominal_figures, worst_margins
 from picker.circuit.loaded import LoadedModel
 from picker.circuit.loaded_search import loaded_search
 from picker.circuit.network import loop_gain, loop_gain_matrix
 from picker.circuit.oscillation import loaded_response
+from picker.circuit.stages import get_stage
 from picker.core.montecarlo import PartVariation, Simulation, count_passing
 from picker.core.ranking import monte_carlo_rank
 from picker.core.sampling import uniform_matrix
@@ -35,16 +35,8 @@ from picker.parts.table import uniform_table
 from picker.tank.board import Parasitics
 from picker.tank.colpitts import COLPITTS
 
-PARAMS = AmplifierParams(
-    vcc=9.0,
-    r_c=1500.0,
-    r_b1=68e3,
-    r_b2=10e3,
-    r_e=2200.0,
-    c_e=47e-9,
-    c_block=10e-9,
-    inductor_q=50.0,
-)
+# the common-emitter stage's typical design (invented values), sized for NOMINAL
+PARAMS = get_stage("common-emitter").typical_params()
 NOMINAL = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
 STRAY = 3e-12
 
