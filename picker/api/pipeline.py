@@ -12,7 +12,7 @@ The orchestration only: the spec becomes the core's inputs in
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import replace
 from typing import Any
 
@@ -21,15 +21,17 @@ import numpy as np
 from picker.api.candidates import build_candidates, cost_limited, extras, loaded_view, over_cost
 from picker.api.misses import explain_infeasible, explain_loaded_infeasible
 from picker.api.problem import (
+    GivenPart,
+    GivenValue,
     amplifier_params_of,
     build_problem,
-    given_table,
+    given_tables,
     random_inputs,
     simulation_of,
     warnings_for,
     with_run_settings,
 )
-from picker.api.results import SolveResult
+from picker.api.results import Candidate, PartPick, SolveResult, given_design
 from picker.buyer.costing import cost_order, cost_rank
 from picker.circuit.loaded_search import LoadedSearch, loaded_search
 from picker.core.montecarlo import Simulation, count_passing
@@ -285,9 +287,10 @@ def solve(
 
 def evaluate(
     spec: Spec,
-    values: dict[str, float],
+    values: Candidate | Mapping[str, GivenValue | PartPick],
     *,
-    tolerances: dict[str, float] | None = None,
+    tolerances: Mapping[str, float] | None = None,
+    parts: Mapping[str, GivenPart] | None = None,
     samples: int | None = None,
     seed: int | None = None,
     precision: float | None = None,
@@ -297,6 +300,13 @@ def evaluate(
 ) -> SolveResult:
     """The same figures as ``solve`` for one given design (an existing board).
 
+    ``values`` maps each position to a value (SI) or a parallel pair ``(a, b)``;
+    ``parts`` names stock parts by id (``"A"`` or ``"A+B"`` for a pair) and
+    ``tolerances`` picks the stock part of that tolerance
+    (:func:`picker.api.problem.given_tables`). A :class:`Candidate` of a
+    ``solve`` (or its ``parts``) gives its values, pairs, part ids and
+    tolerances, so ``evaluate(spec, candidate)`` with solve's seed and samples
+    reproduces solve's figures for it.
     ``precision``, ``sampling``, ``progress`` and ``plot_data`` as for :func:`solve`.
     """
     spec = with_run_settings(spec, precision, sampling)
@@ -304,22 +314,8 @@ def evaluate(
     samples = ys.samples if samples is None else samples
     seed = ys.seed if seed is None else seed
     topo = spec.topo
-    missing = [p for p in topo.positions if p not in values]
-    if missing:
-        raise SpecError(
-            f"expected a value for every position ({', '.join(topo.positions)}); "
-            f"missing {', '.join(missing)}",
-            key="--set",
-        )
-    extra = [p for p in values if p not in topo.positions]
-    if extra:
-        raise SpecError(
-            f"unknown position {', '.join(extra)} for a {topo.name} tank; "
-            f"expected {', '.join(topo.positions)}",
-            key="--set",
-        )
-    tolerances = tolerances or {}
-    tables = {p: given_table(spec, p, values[p], tolerances.get(p)) for p in topo.positions}
+    values, tolerances, parts = given_design(values, tolerances, parts)
+    tables, notes = given_tables(spec, values, tolerances, parts)
     base = build_problem(spec)
     problem = Problem(
         topo, tables, base.f_min, base.f_max, base.beta_min, base.beta_max, base.parasitics
@@ -352,4 +348,4 @@ def evaluate(
         screened=1,
     )
     ok = res.candidates[0].in_window and res.candidates[0].feedback_ok
-    return replace(res, feasible=int(ok))
+    return replace(res, feasible=int(ok), warnings=[*res.warnings, *notes])

@@ -11,6 +11,9 @@ numbers. Nothing below this layer imports the spec.
 
 from __future__ import annotations
 
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -24,19 +27,22 @@ from picker.errors import SpecError
 from picker.parts import series as series_mod
 from picker.parts.drift import check_range, material_of, temperature_grid
 from picker.parts.pairs import pair_table
-from picker.parts.table import ValueTable, uniform_table
+from picker.parts.table import ValueTable
 from picker.spec.load import materials_like
 from picker.spec.model import Spec
 from picker.spec.production import candidate_values
-from picker.spec.stock import stock_table
+from picker.spec.stock import stock_table, unit_price
 from picker.tank.board import Parasitics
-from picker.units import format_quantity
+from picker.units import format_percent, format_quantity
 
 __all__ = [
     "amplifier_params_of",
     "board_model_of",
     "build_problem",
+    "GivenPart",
+    "GivenValue",
     "given_table",
+    "given_tables",
     "parasitics_of",
     "part_table",
     "part_variations",
@@ -99,39 +105,249 @@ def part_table(spec: Spec, pos: str) -> ValueTable:
     return table
 
 
-def given_table(spec: Spec, pos: str, value: float, tol: float | None = None) -> ValueTable:
-    """A one-entry table for a given value at ``pos`` (``evaluate``).
+#: What ``evaluate`` may be given for one position: a value (SI), or a parallel pair
+#: ``(a, b)`` of two values whose total is ``a + b``.
+GivenValue = float | tuple[float, float]
+#: A stock part id for a position, or two ids (``"A+B"`` or ``("A", "B")``) for a pair.
+GivenPart = str | tuple[str, str]
 
-    A stock position takes the cheapest stock part of that value within its
-    filters (its id, tolerance, price); ``tol`` overrides the tolerance. A
-    value the stock list does not hold needs ``tol`` or the position's
-    ``tolerance`` key.
-    """
+
+@dataclass(frozen=True)
+class _Pick:
+    """One part of a given design: value, tolerance, id, unit price, quantity on hand."""
+
+    value: float
+    tol: float
+    part_id: str = ""
+    price: float = float("nan")
+    qty: float = float("inf")
+    source: str = "given"
+
+
+def _same(a: float, b: float) -> bool:
+    # 1e-9 relative: the same value parsed two ways ("4.7n" and "4.7 nF")
+    return abs(a / b - 1.0) < 1e-9
+
+
+def _stock_single(spec: Spec, pos: str) -> ValueTable:
+    """The position's stock parts as single parts (no pairs)."""
     part = spec.parts[pos]
-    v = np.array([float(value)])
-    if part.stock_list is not None:
-        single = spec.model_copy(
-            update={"parts": {**spec.parts, pos: part.model_copy(update={"parallel": False})}}
+    single = spec.model_copy(
+        update={"parts": {**spec.parts, pos: part.model_copy(update={"parallel": False})}}
+    )
+    return part_table(single, pos)
+
+
+def _pick_by_id(spec: Spec, pos: str, part_id: str, value: float | None) -> _Pick:
+    """The stock part ``part_id`` at ``pos`` (any part of the list of the right kind)."""
+    part = spec.parts[pos]
+    stock = part.stock_list
+    key = f"--part {pos}"
+    if stock is None:
+        raise SpecError(
+            f"parts.{pos} has no stock list, so it has no part ids; got {part_id!r}", key=key
         )
-        t = part_table(single, pos)
+    i = stock.index.get(part_id)
+    if i is None:
+        raise SpecError(f"expected a part id from the stock list; got {part_id!r}", key=key)
+    kind = spec.topo.unit(pos)
+    if {"F": "C", "H": "L"}.get(kind) != str(stock.kind[i]):
+        raise SpecError(f"part {part_id!r} is not a {kind} part for {pos}", key=key)
+    v = float(stock.value[i])
+    if value is not None and not _same(v, value):
+        raise SpecError(
+            f"part {part_id!r} is {format_quantity(v, kind)}, not "
+            f"{format_quantity(value, kind)} as --set says",
+            key=key,
+        )
+    price = float(unit_price(stock, i, spec.cost.build_quantity)[0])
+    return _Pick(v, float(stock.tol[i]), part_id, price, float(stock.on_hand[i]), "stock")
+
+
+def _pick_value(spec: Spec, pos: str, value: float, tol: float | None, notes: list[str]) -> _Pick:
+    """The part for ``value`` at ``pos``: a stock part of that value (of tolerance ``tol``
+    when given, the cheapest otherwise) or a part of the position's series or list."""
+    part = spec.parts[pos]
+    unit = spec.topo.unit(pos)
+    if part.stock_list is not None:
+        t = _stock_single(spec, pos)
         hit = np.flatnonzero(np.abs(t.values / value - 1) < 1e-9)
+        if tol is not None:
+            at_tol = hit[np.abs(t.tol[hit] - tol) <= 1e-9 * max(tol, 1e-12)]
+            if hit.size and not at_tol.size:
+                held = ", ".join(sorted({format_percent(float(x)) for x in t.tol[hit]}))
+                notes.append(
+                    f"parts.{pos}: the stock list holds {format_quantity(value, unit)} only at "
+                    f"{held}; evaluated a {format_percent(tol)} part not in the stock list "
+                    "(no part id or price)"
+                )
+            hit = at_tol
         if hit.size:
-            i = hit[:1]
-            tt = t.tol[i] if tol is None else np.array([float(tol)])
-            return ValueTable(v, tt, "stock", t.part_id[i], t.price[i], t.stock_qty[i])
+            i = int(hit[0])  # the table is sorted by value, then price, then id
+            tols = {float(x) for x in t.tol[hit]}
+            if tol is None and len(tols) > 1:
+                others = ", ".join(
+                    f"{t.part_id[j]} {format_percent(float(t.tol[j]))}" for j in hit[1:]
+                )
+                notes.append(
+                    f"parts.{pos}: {format_quantity(value, unit)} is in the stock list at "
+                    f"several tolerances; evaluated the cheapest, {t.part_id[i]} "
+                    f"{format_percent(float(t.tol[i]))} (also: {others}); choose one with "
+                    f"--tol {pos}=... or --part {pos}=ID"
+                )
+            return _Pick(
+                value,
+                float(t.tol[i]),
+                str(t.part_id[i]),
+                float(t.price[i]),
+                float(t.stock_qty[i]),
+                "stock",
+            )
         tol = part.tolerance if tol is None else tol
         if tol is None:
             raise SpecError(
-                f"{value!r} is not in the stock list of parts.{pos}; give its tolerance "
-                f"(--tol {pos}=5%)",
+                f"{format_quantity(value, unit)} is not in the stock list of parts.{pos}; "
+                f"give its tolerance (--tol {pos}=5%)",
                 key="--set",
             )
-        return uniform_table(v, tol, "given")
+        return _Pick(value, float(tol))
     tol = part.tolerance if tol is None else tol
     assert tol is not None  # validated: a series or list position has a tolerance
     src = part.series if part.series and series_mod.is_member(part.series, value) else "given"
     price = np.nan if part.price is None else float(part.price)
-    return ValueTable(v, np.array([float(tol)]), src, price=np.array([price]))
+    return _Pick(value, float(tol), price=price, source=src)
+
+
+def _as_pair(x: GivenValue | None) -> tuple[float, ...] | None:
+    if x is None:
+        return None
+    if isinstance(x, tuple | list):
+        return tuple(float(v) for v in x)
+    return (float(x),)
+
+
+def _ids(x: GivenPart | None) -> tuple[str, ...] | None:
+    if x is None:
+        return None
+    if isinstance(x, str):
+        return tuple(s.strip() for s in x.split("+"))
+    return tuple(str(s).strip() for s in x)
+
+
+def given_table(
+    spec: Spec,
+    pos: str,
+    value: GivenValue | None,
+    tol: float | None = None,
+    part: GivenPart | None = None,
+    notes: list[str] | None = None,
+) -> ValueTable:
+    """A one-entry table for a given part (or parallel pair) at ``pos`` (``evaluate``).
+
+    ``value`` is a value (SI) or a pair ``(a, b)``; ``part`` a stock part id or
+    two ids, from which the value follows when ``value`` is None. A stock
+    position without ``part`` takes the stock part of that value whose
+    tolerance is ``tol`` when given, else the cheapest (a note in ``notes``
+    says when several tolerances were on offer). A value or tolerance the stock
+    list does not hold is a part with no id or price. A position with
+    ``parallel = true`` gets a pair table (second part 0 for a single part),
+    so the Monte Carlo draws the same random columns as ``solve`` and the same
+    seed reproduces solve's boards.
+    """
+    spec_part = spec.parts[pos]
+    notes = [] if notes is None else notes
+    values = _as_pair(value)
+    stock = spec_part.stock_list
+    whole = isinstance(part, str) and stock is not None and part.strip() in stock.index
+    ids = (str(part).strip(),) if whole else _ids(part)  # an id may itself hold a '+'
+    if values is not None and ids is not None and len(values) != len(ids):
+        raise SpecError(
+            f"--set gives {len(values)} part(s) and --part {len(ids)} for {pos}", key="--part"
+        )
+    n = len(values) if values is not None else len(ids) if ids is not None else 0
+    if n not in (1, 2):
+        raise SpecError(f"expected one part or a pair of two for {pos}", key="--set")
+    if n == 2 and spec.topo.unit(pos) != "F":
+        raise SpecError(f"a parallel pair is for capacitors only; got one for {pos}", key="--set")
+    picks = []
+    for k in range(n):
+        v = None if values is None else values[k]
+        if v is not None and not (math.isfinite(v) and v > 0):
+            raise SpecError(f"expected a positive value; got {v!r}", key=f"--set {pos}")
+        if ids is not None and ids[k]:
+            pk = _pick_by_id(spec, pos, ids[k], v)
+            if tol is not None and abs(pk.tol - tol) > 1e-9 * tol:
+                raise SpecError(
+                    f"part {ids[k]!r} is a {format_percent(pk.tol)} part, not "
+                    f"{format_percent(tol)} as --tol says",
+                    key=f"--tol {pos}",
+                )
+            picks.append(pk)
+        else:
+            assert v is not None
+            picks.append(_pick_value(spec, pos, v, tol, notes))
+    picks.sort(key=lambda q: -q.value)  # the larger part first, as pair_table
+    a = picks[0]
+    source = a.source if all(q.source == a.source for q in picks) else "given"
+    if len(picks) == 1 and not spec_part.parallel:
+        return ValueTable(
+            np.array([a.value]),
+            np.array([a.tol]),
+            source,
+            np.array([a.part_id], dtype=object),
+            np.array([a.price]),
+            np.array([a.qty]),
+        )
+    b = picks[1] if len(picks) == 2 else _Pick(0.0, a.tol)
+    same = len(picks) == 2 and a.part_id != "" and a.part_id == b.part_id
+    qty = math.floor(a.qty / 2) if same else min(a.qty, b.qty if b.value > 0 else math.inf)
+    return ValueTable(
+        np.array([a.value + b.value]),
+        np.array([a.tol]),
+        source,
+        np.array([a.part_id], dtype=object),
+        np.array([a.price + b.price if b.value > 0 else a.price]),
+        np.array([float(qty)]),
+        second=np.array([b.value]),
+        second_tol=np.array([b.tol]),
+        second_id=np.array([b.part_id], dtype=object),
+    )
+
+
+def given_tables(
+    spec: Spec,
+    values: Mapping[str, GivenValue],
+    tolerances: Mapping[str, float] | None = None,
+    parts: Mapping[str, GivenPart] | None = None,
+) -> tuple[dict[str, ValueTable], list[str]]:
+    """One-entry tables for a given design (every position), and notes for the result.
+
+    Each position needs a value in ``values`` or a part id in ``parts``
+    (see :func:`given_table`).
+    """
+    topo = spec.topo
+    tolerances, parts = tolerances or {}, parts or {}
+    missing = [p for p in topo.positions if p not in values and p not in parts]
+    if missing:
+        raise SpecError(
+            f"expected a value for every position ({', '.join(topo.positions)}); "
+            f"missing {', '.join(missing)}",
+            key="--set",
+        )
+    for what, given in (("--set", values), ("--tol", tolerances), ("--part", parts)):
+        extra = [p for p in given if p not in topo.positions]
+        if extra:
+            raise SpecError(
+                f"unknown position {', '.join(extra)} for a {topo.name} tank; "
+                f"expected {', '.join(topo.positions)}",
+                key=what,
+            )
+    notes: list[str] = []
+    tables = {
+        p: given_table(spec, p, values.get(p), tolerances.get(p), parts.get(p), notes)
+        for p in topo.positions
+    }
+    return tables, notes
 
 
 def parasitics_of(spec: Spec) -> Parasitics:

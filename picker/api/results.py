@@ -7,13 +7,14 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
 from picker.core.montecarlo import YieldEstimate
 from picker.spec.model import Spec
 
-__all__ = ["Candidate", "Miss", "PartPick", "SolveResult"]
+__all__ = ["Candidate", "Miss", "PartPick", "SolveResult", "given_design"]
 
 
 @dataclass(frozen=True)
@@ -114,3 +115,29 @@ class SolveResult:
     warnings: list[str] = field(default_factory=list)
     production: dict[str, Any] = field(default_factory=dict)
     plot_data: dict[str, Any] | None = None
+
+
+def given_design(
+    values: Candidate | Mapping[str, Any],
+    tolerances: Mapping[str, float] | None = None,
+    parts: Mapping[str, Any] | None = None,
+) -> tuple[dict[str, Any], dict[str, float], dict[str, Any]]:
+    """``evaluate``'s inputs with a :class:`Candidate` or :class:`PartPick` entries unpacked.
+
+    A ``PartPick`` gives its value (or pair), its tolerance and its part id(s);
+    explicit ``tolerances`` and ``parts`` win over what it carries.
+    """
+    given = values.parts if isinstance(values, Candidate) else values
+    vals: dict[str, Any] = {}
+    tols: dict[str, float] = {}
+    ids: dict[str, Any] = {}
+    for p, x in given.items():
+        if not isinstance(x, PartPick):
+            vals[p] = x
+            continue
+        vals[p] = (x.first_value, x.second_value) if x.is_pair else x.value
+        if x.part_id:
+            ids[p] = (x.part_id, x.second_part_id) if x.is_pair else x.part_id
+        elif not x.is_pair or x.second_tolerance == x.tolerance:
+            tols[p] = x.tolerance
+    return vals, {**tols, **(tolerances or {})}, {**ids, **(parts or {})}

@@ -29,7 +29,10 @@ __all__ = [
     "FORMATS",
     "ProgressCallback",
     "check_format",
+    "output_format",
     "parse_assignments",
+    "parse_design",
+    "parse_part_ids",
     "parse_precision",
     "parse_sampling",
     "progress_bar",
@@ -52,6 +55,35 @@ def check_format(fmt: str, allowed: Sequence[str] = FORMATS) -> str:
     if f not in allowed:
         raise SpecError(f"expected one of {', '.join(allowed)}; got {fmt!r}", key="--format")
     return f
+
+
+#: The format an output file's extension implies (``-o designs.csv`` writes CSV).
+SUFFIX_FORMATS = {".json": "json", ".csv": "csv", ".html": "html"}
+
+
+def output_format(fmt: str | None, output: object | None, allowed: Sequence[str] = FORMATS) -> str:
+    """The output format from ``--format`` and the extension of ``-o FILE``.
+
+    ``.json`` and ``.csv`` imply their format; any other extension (``.txt``, none)
+    takes ``--format`` or the table. A ``--format`` that contradicts the extension
+    is refused; ``.html`` is the report (``--report FILE.html``), not a format.
+    """
+    from pathlib import Path
+
+    given = None if fmt is None else check_format(fmt, allowed)
+    implied = None if output is None else SUFFIX_FORMATS.get(Path(str(output)).suffix.lower())
+    if implied == "html":
+        raise SpecError(
+            "an HTML file is the report: use --report FILE.html; -o writes table, json or csv",
+            key="--output",
+        )
+    if implied is not None and given is not None and given != implied:
+        raise SpecError(
+            f"--format {given} contradicts the file name {Path(str(output)).name!r} "
+            f"(which means {implied}); drop one or make them agree",
+            key="--format",
+        )
+    return implied or given or allowed[0]
 
 
 def unit_of(pos: str) -> str | None:
@@ -88,6 +120,56 @@ def parse_assignments(
             raise SpecError(f"expected a positive value; got {text!r}", key=f"{key} {pos}")
         if (why := limits.value_problem(out[pos], unit, text.strip())) is not None:
             raise SpecError(f"{why}; got {text!r}", key=f"{key} {pos}")
+    return out
+
+
+def _position(item: str, key: str, example: str) -> tuple[str, str]:
+    """``POS=TEXT`` -> (``POS`` in upper case, ``TEXT``); a SpecError naming ``key``."""
+    from picker.tank import all_positions
+
+    if "=" not in item:
+        raise SpecError(f"expected POSITION=VALUE such as {example}; got {item!r}", key=key)
+    pos, _, text = item.partition("=")
+    pos = pos.strip().upper()
+    if unit_of(pos) is None:
+        *others, last = all_positions()
+        raise SpecError(
+            f"unknown position {pos!r}; expected {', '.join(others)} or {last}", key=key
+        )
+    return pos, text.strip()
+
+
+def parse_design(items: list[str], key: str = "--set") -> dict[str, float | tuple[float, float]]:
+    """``--set C1=4.7n`` or a parallel pair ``--set C1=4.7n+3.3n`` -> SI float or pair."""
+    out: dict[str, float | tuple[float, float]] = {}
+    for item in items:
+        pos, text = _position(item, key, "C1=4.7n or C1=4.7n+3.3n")
+        if pos in out:
+            raise SpecError(f"position {pos} given twice", key=key)
+        halves = text.split("+") if "+" in text.lstrip("+") else [text]
+        if len(halves) > 2 or any(not h.strip() for h in halves):
+            raise SpecError(
+                f"expected one value or two joined by '+' such as 4.7n+3.3n; got {text!r}",
+                key=f"{key} {pos}",
+            )
+        vals = (
+            parse_assignments([f"{pos}={h}" for h in halves[:1]], key, unit_of)[pos],
+            *(parse_assignments([f"{pos}={h}"], key, unit_of)[pos] for h in halves[1:]),
+        )
+        out[pos] = (vals[0], vals[1]) if len(vals) == 2 else vals[0]
+    return out
+
+
+def parse_part_ids(items: list[str], key: str = "--part") -> dict[str, str]:
+    """``--part C1=ID`` (or ``C1=ID1+ID2`` for a pair) -> position -> id text."""
+    out: dict[str, str] = {}
+    for item in items:
+        pos, text = _position(item, key, "C1=CAP-0042")
+        if pos in out:
+            raise SpecError(f"position {pos} given twice", key=key)
+        if not text or any(not t.strip() for t in text.split("+")):
+            raise SpecError(f"expected a stock part id; got {text!r}", key=f"{key} {pos}")
+        out[pos] = text
     return out
 
 

@@ -7,7 +7,6 @@ pydantic) and the plots (matplotlib) are imported inside the commands, so that
 
 from __future__ import annotations
 
-import io
 import json
 import sys
 from collections.abc import Iterable
@@ -19,7 +18,9 @@ from rich.console import Console
 
 from picker.cli.options import (
     check_format,
-    parse_assignments,
+    output_format,
+    parse_design,
+    parse_part_ids,
     parse_precision,
     parse_sampling,
     progress_bar,
@@ -44,6 +45,12 @@ def _check_outputs(output: Path | None, plot: Path | None, force: bool, spec: Pa
         check_plot_folder(plot, force=force, inputs=[spec])
 
 
+def _wrote(paths: Iterable[Path]) -> None:
+    """Say on stderr which files a command wrote (stdout stays the result)."""
+    for p in paths:
+        sys.stderr.write(f"picker: wrote {p}\n")
+
+
 def _emit(
     result: SolveResult, fmt: str, output: Path | None, force: bool, inputs: Iterable[Path]
 ) -> None:
@@ -58,28 +65,35 @@ def _emit(
         text = None
     if output is not None:
         if text is None:
-            buf = Console(record=True, width=160, file=io.StringIO())
-            report.print_table(result, buf)
-            text = buf.export_text()
-        atomic_write(output, text, force=force, inputs=inputs)
+            text = report.table_text(result, width=None)
+        elif fmt == "csv":  # a file: with a byte-order mark, so spreadsheets read UTF-8
+            text = report.BOM + text
+        _wrote([atomic_write(output, text, force=force, inputs=inputs)])
         return
     if text is not None:
         sys.stdout.write(text)
     else:
-        con = Console()
-        report.print_table(result, con if con.is_terminal else Console(width=200))
+        report.print_table(result, Console(highlight=False))
+
+
+_FORMAT_HELP = "table, json or csv (default: from the -o file's extension, else table)."
+_OUTPUT_HELP = "Write to this file instead of standard output (.json or .csv picks the format)."
+_FORCE_HELP = "Replace an existing output file or plot."
+_SAMPLES_HELP = "Monte Carlo boards per design (default: the spec's [yield] samples)."
+_SEED_HELP = "Random seed (default: the spec's [yield] seed); the same seed gives the same output."
+_SAMPLING_HELP = "random or sobol (default: the spec's [yield] sampling)."
 
 
 def solve(
     spec: Path = typer.Argument(..., help="Spec file (TOML)."),
-    format: str = typer.Option("table", "--format", "-f", help="table, json or csv."),
+    format: str | None = typer.Option(None, "--format", "-f", help=_FORMAT_HELP),
     top: int | None = typer.Option(
         None, "--top", min=1, max=10_000, help="How many designs to show."
     ),
     samples: int | None = typer.Option(
-        None, "--samples", min=100, max=10_000_000, help="Monte Carlo boards per design."
+        None, "--samples", min=100, max=10_000_000, help=_SAMPLES_HELP
     ),
-    seed: int | None = typer.Option(None, "--seed", min=0, max=2**63 - 1, help="Random seed."),
+    seed: int | None = typer.Option(None, "--seed", min=0, max=2**63 - 1, help=_SEED_HELP),
     candidates: int | None = typer.Option(
         None,
         "--candidates",
@@ -87,12 +101,12 @@ def solve(
         max=100_000,
         help="Designs the Monte Carlo pass checks (after the screen).",
     ),
-    output: Path | None = typer.Option(None, "--output", "-o", help="Write to this file instead."),
-    force: bool = typer.Option(False, "--force", help="Replace an existing output file."),
+    output: Path | None = typer.Option(None, "--output", "-o", help=_OUTPUT_HELP),
+    force: bool = typer.Option(False, "--force", help=_FORCE_HELP),
     precision: str | None = typer.Option(
         None, "--precision", help="Run until each yield's CI half-width is this, e.g. 0.5%."
     ),
-    sampling: str | None = typer.Option(None, "--sampling", help="random or sobol."),
+    sampling: str | None = typer.Option(None, "--sampling", help=_SAMPLING_HELP),
     plot: Path | None = typer.Option(
         None, "--plot", help="Write PNG plots of the best design into this folder."
     ),
@@ -100,7 +114,7 @@ def solve(
     """Search every standard-value design in the window and rank them by yield."""
     from picker import api
 
-    fmt = check_format(format)
+    fmt = output_format(format, output)
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
     s = api.load_spec(spec)
@@ -119,53 +133,81 @@ def solve(
     if plot is not None and result.status == "ok":
         from picker.report.plots import write_plots
 
-        write_plots(result, plot, force=force, inputs=[spec])
+        _wrote(write_plots(result, plot, force=force, inputs=[spec]))
     _emit(result, fmt, output, force, [spec])
     if result.status != "ok":
         raise typer.Exit(1)
 
 
-def evaluate(
-    spec: Path = typer.Argument(..., help="Spec file (TOML)."),
-    set_: list[str] = typer.Option(..., "--set", help="A part value, e.g. --set C1=4.7n (repeat)."),
-    tol: list[str] = typer.Option(
-        [], "--tol", help="Override a tolerance, e.g. --tol L=5% (repeat)."
-    ),
-    format: str = typer.Option("table", "--format", "-f", help="table, json or csv."),
-    samples: int | None = typer.Option(None, "--samples", min=100, max=10_000_000),
-    seed: int | None = typer.Option(None, "--seed", min=0, max=2**63 - 1),
-    output: Path | None = typer.Option(None, "--output", "-o"),
-    force: bool = typer.Option(False, "--force"),
-    precision: str | None = typer.Option(
-        None, "--precision", help="Run until the yield's CI half-width is this, e.g. 0.5%."
-    ),
-    sampling: str | None = typer.Option(None, "--sampling", help="random or sobol."),
-    plot: Path | None = typer.Option(
-        None, "--plot", help="Write PNG plots of the design into this folder."
-    ),
-) -> None:
-    """The same figures as solve for one given design (an existing board)."""
-    from picker import api
+def _tolerances(items: list[str]) -> dict[str, float]:
+    """``--tol C1=2%`` (repeat) -> position -> relative tolerance."""
     from picker.units import parse_tolerance
 
-    fmt = check_format(format)
-    prec, samp = parse_precision(precision), parse_sampling(sampling)
-    _check_outputs(output, plot, force, spec)
-    s = api.load_spec(spec)
-    values = parse_assignments(set_, "--set", unit_of)
-    tols = {}
-    for item in tol:
+    tols: dict[str, float] = {}
+    for item in items:
         pos, eq, text = item.partition("=")
         if not eq or unit_of(pos.strip().upper()) is None:
             raise SpecError(f"expected POSITION=TOLERANCE such as L=5%; got {item!r}", key="--tol")
         tols[pos.strip().upper()] = parse_tolerance(
             text.strip(), key=f"--tol {pos.strip().upper()}"
         )
+    return tols
+
+
+def evaluate(
+    spec: Path = typer.Argument(..., help="Spec file (TOML)."),
+    set_: list[str] = typer.Option(
+        [],
+        "--set",
+        help="A part value, e.g. --set C1=4.7n, or a parallel pair C1=4.7n+3.3n (repeat).",
+    ),
+    tol: list[str] = typer.Option(
+        [],
+        "--tol",
+        help="A tolerance, e.g. --tol C1=2%; on a stock position it picks the stock part "
+        "of that tolerance (repeat).",
+    ),
+    part: list[str] = typer.Option(
+        [],
+        "--part",
+        help="A stock part by its id, e.g. --part C1=SB-C005, or C1=ID1+ID2 for a pair; "
+        "its value need not be --set (repeat).",
+    ),
+    format: str | None = typer.Option(None, "--format", "-f", help=_FORMAT_HELP),
+    samples: int | None = typer.Option(
+        None, "--samples", min=100, max=10_000_000, help=_SAMPLES_HELP
+    ),
+    seed: int | None = typer.Option(None, "--seed", min=0, max=2**63 - 1, help=_SEED_HELP),
+    output: Path | None = typer.Option(None, "--output", "-o", help=_OUTPUT_HELP),
+    force: bool = typer.Option(False, "--force", help=_FORCE_HELP),
+    precision: str | None = typer.Option(
+        None, "--precision", help="Run until the yield's CI half-width is this, e.g. 0.5%."
+    ),
+    sampling: str | None = typer.Option(None, "--sampling", help=_SAMPLING_HELP),
+    plot: Path | None = typer.Option(
+        None, "--plot", help="Write PNG plots of the design into this folder."
+    ),
+) -> None:
+    """The same figures as solve for one given design (an existing board)."""
+    from picker import api
+
+    fmt = output_format(format, output)
+    prec, samp = parse_precision(precision), parse_sampling(sampling)
+    _check_outputs(output, plot, force, spec)
+    values = parse_design(set_, "--set")
+    tols = _tolerances(tol)
+    ids = parse_part_ids(part, "--part")
+    if not values and not ids:
+        raise SpecError(
+            "expected the design: --set POSITION=VALUE or --part POSITION=ID", key="--set"
+        )
+    s = api.load_spec(spec)
     with progress_bar(prec or s.yield_.precision) as progress:
         result = api.evaluate(
             s,
             values,
             tolerances=tols,
+            parts=ids,
             samples=samples,
             seed=seed,
             precision=prec,
@@ -176,7 +218,7 @@ def evaluate(
     if plot is not None:
         from picker.report.plots import write_plots
 
-        write_plots(result, plot, force=force, inputs=[spec])
+        _wrote(write_plots(result, plot, force=force, inputs=[spec]))
     _emit(result, fmt, output, force, [spec])
 
 

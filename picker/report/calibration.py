@@ -16,6 +16,7 @@ from rich.console import Console
 from rich.table import Table
 
 from picker.calibration.result import CalibrationResult, format_parameter
+from picker.report.text import plain
 from picker.units import format_quantity
 
 __all__ = ["fragment_toml", "parameter_text", "print_table", "result_dict", "to_json"]
@@ -116,7 +117,7 @@ def print_table(r: CalibrationResult, console: Console, *, extra_notes: Sequence
     for i, uid in enumerate(r.unit_ids):
         z = r.studentized[i]
         u.add_row(
-            uid + (" (outlier)" if uid in r.outliers else ""),
+            plain(uid + (" (outlier)" if uid in r.outliers else "")),
             format_quantity(r.f_measured[i], "Hz", digits=7),
             format_quantity(r.f_fitted[i], "Hz", digits=7),
             format_quantity(r.residual_hz[i], "Hz", digits=3),

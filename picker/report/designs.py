@@ -16,12 +16,13 @@ import math
 from collections.abc import Sequence
 
 from rich.console import Console
-from rich.table import Table
+from rich.text import Text
 
 from picker import __version__
 from picker.api.results import Candidate, PartPick, SolveResult
 from picker.files import csv_safe
 from picker.report.production import print_production
+from picker.report.text import Col, pct, pct_range, plain, print_fitted, signed_pct
 from picker.units import format_percent, format_quantity
 
 
@@ -120,51 +121,139 @@ def to_json(r: SolveResult) -> str:
     return json.dumps(result_dict(r), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
 
 
-def to_csv(r: SolveResult) -> str:
-    positions = r.spec.topo.positions
-    loaded = r.spec.amplifier is not None
-    buyer = _has_buyer_view(r)
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(
-        [
-            "rank",
-            *positions,
-            *(f"{p}_value" for p in positions),
-            "f_nominal_hz",
-            "error",
-            "feedback_fraction",
-            "yield",
-            "yield_ci_low",
-            "yield_ci_high",
-            "samples",
-            "f_worst_low_hz",
-            "f_worst_high_hz",
-            *(_LOADED_CSV if loaded else ()),
-            *(_buyer_csv_header(positions) if buyer else ()),
-        ]
-    )
-    for c in r.candidates:
-        more = [_csv_num(c.extra.get(k)) for k in _LOADED_CSV] if loaded else []
-        more += _buyer_csv_row(c, positions) if buyer else []
-        w.writerow(
-            [c.rank]
-            + [csv_safe(part_text(c.parts[p])) for p in positions]
-            + [repr(c.parts[p].value) for p in positions]
-            + [
-                repr(c.f_nominal_hz),
-                repr(c.error),
-                repr(c.feedback_fraction),
-                repr(c.yield_.estimate),
-                repr(c.yield_.ci_low),
-                repr(c.yield_.ci_high),
-                c.yield_.samples,
-                repr(c.f_worst_low_hz),
-                repr(c.f_worst_high_hz),
+#: Line end of every CSV picker writes: CRLF, as RFC 4180 (section 2, rule 1) asks.
+CSV_LINE_END = "\r\n"
+
+#: Byte-order mark put before CSV written to a file, so a spreadsheet reads it as
+#: UTF-8 ("µH", "±" readable; common practice, no source).
+BOM = "\ufeff"
+
+
+def _material(r: SolveResult, p: str, part_id: str) -> str:
+    """Dielectric (capacitor) or core (inductor) of the part at ``p``: the stock
+    list's column for a stock part, else the spec's key ("" when unknown)."""
+    part = r.spec.parts[p]
+    st = part.stock_list
+    if part_id and st is not None and part_id in st.index:
+        return str(st.material[st.index[part_id]])
+    return part.dielectric or ""
+
+
+def csv_columns(r: SolveResult) -> list[str]:
+    """Header of the results CSV: units in the names (``C1_F``, ``f_nominal_Hz``).
+
+    Per position: value (a pair's total), tolerance (a fraction, 0.05 = 5 %),
+    dielectric (``_core`` for an inductor), part id and price (a pair's two
+    parts together); for a ``parallel`` position also the first and second
+    part's values and the second part's tolerance and id (the first part's are
+    the position's own). Then the design's figures, yield (fractions), the loaded
+    model's figures with an ``[amplifier]``, cost with prices, and the warnings.
+    """
+    topo = r.spec.topo
+    head = ["rank"]
+    for p in topo.positions:
+        u = topo.unit(p)
+        mat = "core" if u == "H" else "dielectric"
+        head += [f"{p}_{u}", f"{p}_tolerance", f"{p}_{mat}", f"{p}_part_id", f"{p}_price"]
+        if r.spec.parts[p].parallel:
+            head += [
+                f"{p}_first_{u}",
+                f"{p}_second_{u}",
+                f"{p}_second_tolerance",
+                f"{p}_second_part_id",
             ]
-            + more
-        )
+    head += [
+        "f_nominal_Hz",
+        "error",
+        "feedback_fraction",
+        "yield",
+        "yield_ci_low",
+        "yield_ci_high",
+        "confidence",
+        "samples",
+        "f_worst_low_Hz",
+        "f_worst_high_Hz",
+    ]
+    if r.spec.amplifier is not None:
+        head += list(_LOADED_CSV)
+    if _has_buyer_view(r):
+        head += ["cost_per_board", "cost_build", "stock_ok"]
+    return [*head, "warnings"]
+
+
+def csv_rows(r: SolveResult) -> list[list[object]]:
+    """One row per design, in the order of :func:`csv_columns`: numbers as floats
+    and ints, text as text, None where unknown."""
+    topo = r.spec.topo
+    buyer = _has_buyer_view(r)
+    warn = "; ".join(r.warnings)
+    rows: list[list[object]] = []
+    for c in r.candidates:
+        row: list[object] = [c.rank]
+        for p in topo.positions:
+            pp = c.parts[p]
+            row += [
+                pp.value,
+                pp.tolerance,
+                _material(r, p, pp.part_id),
+                pp.part_id,
+                _num(pp.price),
+            ]
+            if r.spec.parts[p].parallel:
+                row += (
+                    [pp.first_value, pp.second_value, pp.second_tolerance, pp.second_part_id]
+                    if pp.is_pair
+                    else [pp.value, None, None, ""]
+                )
+        row += [
+            c.f_nominal_hz,
+            c.error,
+            c.feedback_fraction,
+            c.yield_.estimate,
+            c.yield_.ci_low,
+            c.yield_.ci_high,
+            r.spec.yield_.confidence,
+            c.yield_.samples,
+            c.f_worst_low_hz,
+            c.f_worst_high_hz,
+        ]
+        if r.spec.amplifier is not None:
+            row += [c.extra.get(k) for k in _LOADED_CSV]
+        if buyer:
+            cost = c.extra.get("cost") or {}
+            ok = cost.get("stock_ok")
+            row += [cost.get("per_board"), cost.get("build"), None if ok is None else bool(ok)]
+        rows.append([*row, warn])
+    return rows
+
+
+def csv_text(header: Sequence[str], rows: Sequence[Sequence[object]]) -> str:
+    """CSV text with CRLF line ends (RFC 4180): floats as ``repr`` (round-trip exact),
+    booleans as ``true``/``false``, None as an empty cell, text guarded by
+    :func:`picker.files.csv_safe`."""
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator=CSV_LINE_END)
+    w.writerow(header)
+    for row in rows:
+        w.writerow([_csv_cell(v) for v in row])
     return buf.getvalue()
+
+
+def _csv_cell(v: object) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, float):
+        return repr(v) if math.isfinite(v) else ""
+    if isinstance(v, int):
+        return str(v)
+    return csv_safe(str(v))
+
+
+def to_csv(r: SolveResult) -> str:
+    """The results CSV (one row per design; see :func:`csv_columns`)."""
+    return csv_text(csv_columns(r), csv_rows(r))
 
 
 def _table_part(pp: PartPick) -> str:
@@ -197,45 +286,14 @@ def _cost_of(c: Candidate) -> float | None:
     return (c.extra.get("cost") or {}).get("per_board")
 
 
-def _buyer_csv_header(positions: Sequence[str]) -> list[str]:
-    return [f"{p}_part_id" for p in positions] + ["cost_per_board", "cost_build", "stock_ok"]
-
-
-def _buyer_csv_row(c: Candidate, positions: Sequence[str]) -> list[str]:
-    """Part ids ("A+B" for a pair), cost per board, build cost and stock sufficiency."""
-    ids = []
-    for p in positions:
-        pp = c.parts[p]
-        ids.append(csv_safe(pp.part_id + (f"+{pp.second_part_id}" if pp.second_part_id else "")))
-    cost = c.extra.get("cost") or {}
-    ok = cost.get("stock_ok")
-    return ids + [
-        _csv_num(cost.get("per_board")),
-        _csv_num(cost.get("build")),
-        "" if ok is None else str(bool(ok)).lower(),
-    ]
-
-
 #: CSV columns added when the spec has an [amplifier] section (circuit-aware model).
 _LOADED_CSV = ("f_loaded_hz", "startup_margin", "startup_margin_worst")
-
-
-def _csv_num(x: float | None) -> str:
-    return "" if x is None else repr(float(x))
 
 
 def _span(c: Candidate, target: float) -> str:
     lo = c.f_worst_low_hz / target - 1
     hi = c.f_worst_high_hz / target - 1
-    return f"{lo * 100:+.2f} %..{hi * 100:+.2f} %"
-
-
-def _loaded_freqs(c: Candidate) -> tuple[str, str]:
-    fl = c.extra.get("f_loaded_hz")
-    return (
-        format_quantity(c.f_nominal_hz, "Hz", digits=6),
-        "none" if fl is None else format_quantity(fl, "Hz", digits=6),
-    )
+    return f"{signed_pct(lo)}..{signed_pct(hi)}"
 
 
 def _margins(c: Candidate) -> str:
@@ -251,90 +309,139 @@ def _print_cautions(r: SolveResult, console: Console) -> None:
             seen.setdefault(text, []).append(c.rank)
     console.print(
         "f loaded: the loaded model (transistor, bias network, losses); error is against "
-        "the loaded frequency. margin: loop gain at start-up, nominal (worst board)."
+        "the loaded frequency. margin: loop gain at start-up, nominal (worst board).",
+        markup=False,
+        highlight=False,
     )
     if not seen:
         return
     console.print("Cautions (circuit model):")
     for text, ranks in seen.items():
         which = ", ".join(f"#{k}" for k in ranks)
-        console.print(f"  - {which}: {text}", markup=False, highlight=False)
+        console.print(plain(f"  - {which}: {text}"), highlight=False)
+
+
+def design_columns(r: SolveResult) -> list[Col]:
+    """The ranked table's columns, essential first (rank, values, yield), the
+    others by priority: the interval, frequency, cost, error, margin, beta, span.
+
+    Data-driven: a new figure is one more :class:`Col` here (or appended by a
+    caller), and :func:`picker.report.text.print_fitted` stacks what does not fit.
+    """
+    s = r.spec
+    cs = r.candidates
+    conf = f"{s.yield_.confidence * 100:g} %"
+    cols = [Col("#", [str(c.rank) for c in cs], essential=True)]
+    cols += [
+        Col(p, [plain(_table_part(c.parts[p])) for c in cs], essential=True)
+        for p in s.topo.positions
+    ]
+    cols.append(Col("yield", [pct(c.yield_.estimate) for c in cs], essential=True))
+    cols.append(
+        Col(f"{conf} CI", [pct_range(c.yield_.ci_low, c.yield_.ci_high) for c in cs], priority=1)
+    )
+    loaded = s.amplifier is not None
+    if loaded:
+        cols.append(Col("f ideal", [_hz(c.f_nominal_hz) for c in cs], priority=4))
+        cols.append(
+            Col(
+                "f loaded",
+                [
+                    "none" if c.extra.get("f_loaded_hz") is None else _hz(c.extra["f_loaded_hz"])
+                    for c in cs
+                ],
+                priority=2,
+            )
+        )
+    else:
+        cols.append(Col("f nominal", [_hz(c.f_nominal_hz) for c in cs], priority=2))
+    if any(_cost_of(c) is not None for c in cs):
+        cols.append(Col("cost/board", [_cost_cell(c) for c in cs], priority=2))
+    cols.append(Col("error", [signed_pct(c.error, 3) for c in cs], priority=3))
+    if loaded:
+        cols.append(Col("margin (worst)", [_margins(c) for c in cs], priority=3))
+    cols.append(
+        Col(
+            "beta",
+            [f"{c.feedback_fraction:.3f}" + ("" if c.feedback_ok else " !") for c in cs],
+            priority=4,
+        )
+    )
+    cols.append(Col("worst case at 25 °C", [_span(c, s.frequency.target) for c in cs], priority=5))
+    return cols
+
+
+def _hz(x: float) -> str:
+    return format_quantity(x, "Hz", digits=6)
+
+
+def print_header(r: SolveResult, console: Console) -> None:
+    """The spec's title (user text: never markup) and its window, one paragraph."""
+    s = r.spec
+    f = s.frequency
+    head = Text()
+    head.append_text(plain(s.title or "picker", style="bold"))
+    head.append(
+        f"  {s.topology}, target {_hz(f.target)}, window {_hz(f.f_min)} .. {_hz(f.f_max)}, "
+        f"feedback {s.feedback.min:g}..{s.feedback.max:g}"
+    )
+    console.print(head, overflow="fold")
+
+
+def _print_misses(r: SolveResult, console: Console) -> None:
+    s = r.spec
+    near = " Nearest misses:" if r.misses else ""
+    console.print(Text("No design meets the spec.", style="bold red") + Text(near))
+    ms = r.misses
+    cols = [Col("#", [str(i) for i in range(1, len(ms) + 1)], essential=True)]
+    cols += [
+        Col(p, [format_quantity(m.values[p], s.topo.unit(p)) for m in ms], essential=True)
+        for p in s.topo.positions
+    ]
+    cols.append(Col("fails", [plain(m.failed) for m in ms], justify="left", essential=True))
+    cols.append(
+        Col("f nominal", [format_quantity(m.f_nominal_hz, "Hz", digits=5) for m in ms], priority=1)
+    )
+    cols.append(Col("beta", [f"{m.feedback_fraction:.3g}" for m in ms], priority=2))
+    if ms:
+        print_fitted(console, cols)
+    console.print("What to relax:")
+    for a in r.advice:
+        console.print(plain(f"  - {a}"), highlight=False)
 
 
 def print_table(r: SolveResult, console: Console) -> None:
+    """The ranked designs as a table fitted to the console, then the production view."""
     s = r.spec
-    f = s.frequency
-    console.print(
-        f"[bold]{s.title or 'picker'}[/bold]  {s.topology}, target "
-        f"{format_quantity(f.target, 'Hz', digits=6)}, window "
-        f"{format_quantity(f.f_min, 'Hz', digits=6)} .. {format_quantity(f.f_max, 'Hz', digits=6)}, "
-        f"feedback {s.feedback.min:g}..{s.feedback.max:g}"
-    )
+    print_header(r, console)
     if r.status != "ok":
-        near = " Nearest misses:" if r.misses else ""
-        console.print(f"[bold red]No design meets the spec.[/bold red]{near}")
-        t = Table(show_lines=False)
-        for p in s.topo.positions:
-            t.add_column(p, justify="right")
-        t.add_column("f nominal", justify="right")
-        t.add_column("beta", justify="right")
-        t.add_column("fails")
-        for m in r.misses:
-            t.add_row(
-                *(format_quantity(m.values[p], s.topo.unit(p)) for p in s.topo.positions),
-                format_quantity(m.f_nominal_hz, "Hz", digits=5),
-                f"{m.feedback_fraction:.3g}",
-                m.failed,
-            )
-        if r.misses:
-            console.print(t)
-        console.print("What to relax:")
-        for a in r.advice:
-            console.print(f"  - {a}")
+        _print_misses(r, console)
         return
     console.print(
         f"searched {r.space_size:,} combinations exactly: {r.feasible:,} feasible, "
         f"{r.screened:,} Monte Carlo checked with {r.samples:,} boards each "
-        f"({r.distribution}, seed {r.seed})"
+        f"({r.distribution}, seed {r.seed})",
+        markup=False,
+        highlight=False,
     )
-    t = Table(show_lines=False, pad_edge=False)
-    t.add_column("#", justify="right")
-    for p in s.topo.positions:
-        t.add_column(p, justify="right")
-    loaded = s.amplifier is not None
-    if loaded:
-        t.add_column("f ideal", justify="right")
-        t.add_column("f loaded", justify="right")
-    else:
-        t.add_column("f nominal", justify="right")
-    t.add_column("error", justify="right")
-    t.add_column("beta", justify="right")
-    if loaded:
-        t.add_column("margin (worst)", justify="right")
-    t.add_column(f"yield ({s.yield_.confidence:.0%} CI)", justify="right")
-    t.add_column("worst-case span", justify="right")
-    priced = any(_cost_of(c) is not None for c in r.candidates)
-    if priced:
-        t.add_column("cost/board", justify="right")
-    for c in r.candidates:
-        t.add_row(
-            str(c.rank),
-            *(_table_part(c.parts[p]) for p in s.topo.positions),
-            *(_loaded_freqs(c) if loaded else (format_quantity(c.f_nominal_hz, "Hz", digits=6),)),
-            f"{c.error * 100:+.3f} %",
-            f"{c.feedback_fraction:.3f}" + ("" if c.feedback_ok else " !"),
-            *((_margins(c),) if loaded else ()),
-            f"{c.yield_.estimate:.1%} ({c.yield_.ci_low:.1%}..{c.yield_.ci_high:.1%})",
-            _span(c, f.target),
-            *((_cost_cell(c),) if priced else ()),
-        )
-    for col in t.columns:
-        col.no_wrap = True
-    console.print(t)
+    print_fitted(console, design_columns(r))
     if any(not c.in_window for c in r.candidates):
         console.print("Note: the nominal frequency lies outside the window.")
     if any(not c.feedback_ok for c in r.candidates):
         console.print("Note: '!' marks a feedback fraction outside the feedback window.")
-    if loaded:
+    if s.amplifier is not None:
         _print_cautions(r, console)
     print_production(r, console)
+
+
+def table_text(r: SolveResult, width: int | None = 100) -> str:
+    """The table as plain text (no colour), ``width`` columns wide (100 when None)."""
+    buf = Console(
+        record=True,
+        width=width or 100,
+        file=io.StringIO(),
+        color_system=None,
+        highlight=False,
+    )
+    print_table(r, buf)
+    return buf.export_text()

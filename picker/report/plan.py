@@ -23,6 +23,7 @@ from picker.api.plan import PlanRun
 from picker.buyer.model import PlanSummary
 from picker.report.bom import bom_rows
 from picker.report.designs import candidate_dict
+from picker.report.text import plain
 from picker.units import format_percent, format_quantity
 
 __all__ = ["plan_dict", "print_table"]
@@ -90,9 +91,9 @@ def print_table(run: PlanRun, con: Console) -> None:
     ps = run.plan.spec
     head = f"{ps.title or run.plan.path.name}: {len(run.channels)} channels, "
     head += f"{ps.build_quantity} boards, priorities {' > '.join(r.priorities)}"
-    con.print(head)
+    con.print(plain(head), highlight=False)
     if r.plan is None:
-        con.print(f"status: {r.status}: {r.binding}")
+        con.print(plain(f"status: {r.status}: {r.binding}"), highlight=False)
         return
     gap = ""
     if r.status != "optimal":
@@ -108,13 +109,15 @@ def print_table(run: PlanRun, con: Console) -> None:
             for k, pos in enumerate(ch.candidates.positions)
         )
         y = f"{format_percent(c.yield_estimate)} ({format_percent(c.ci_low)}–{format_percent(c.ci_high)})"
-        t.add_row(ch.name, f"#{j + 1}", parts, format_quantity(c.f_nominal_hz, "Hz"), y)
+        t.add_row(
+            plain(ch.name), f"#{j + 1}", plain(parts), format_quantity(c.f_nominal_hz, "Hz"), y
+        )
     con.print(t)
     b = Table("part", "value", "tol", "per board", "build", "unit", "extended", "on hand")
     for line in r.plan.bom:
         unit = {"C": "F", "L": "H"}.get(line.kind)
         b.add_row(
-            line.part_id,
+            plain(line.part_id),
             format_quantity(line.value, unit) if unit and math.isfinite(line.value) else "",
             format_percent(line.tol) if math.isfinite(line.tol) else "",
             str(line.qty_per_board),
@@ -132,4 +135,7 @@ def print_table(run: PlanRun, con: Console) -> None:
         + f"); yield given up {s['yield_loss']:.4f} summed over channels"
     )
     if plan.unpriced:
-        con.print(f"no price for {len(plan.unpriced)} part(s): {', '.join(plan.unpriced)}")
+        con.print(
+            plain(f"no price for {len(plan.unpriced)} part(s): {', '.join(plan.unpriced)}"),
+            highlight=False,
+        )

@@ -12,9 +12,10 @@ from __future__ import annotations
 from collections.abc import Iterable
 
 from rich.console import Console
-from rich.table import Table
+from rich.text import Text
 
 from picker.api.results import SolveResult
+from picker.report.text import Col, pct, plain, points, print_fitted
 from picker.tank.base import Topology
 from picker.units import format_percent, format_quantity
 
@@ -31,12 +32,21 @@ def _money(x: float | None) -> str:
 
 
 def _pct(x: float) -> str:
-    return f"{x:.1%}"
+    return pct(x)
+
+
+def _say(console: Console, text: str) -> None:
+    """A line of prose that may hold user text: never parsed as markup (leading
+    newlines are blank lines; any other control character is shown escaped)."""
+    body = text.lstrip("\n")
+    for _ in range(len(text) - len(body)):
+        console.print()
+    console.print(plain(body), highlight=False)
 
 
 def print_warnings(warnings: Iterable[str], console: Console) -> None:
     for w in warnings:
-        console.print(f"[yellow]Warning:[/yellow] {w}")
+        console.print(Text("Warning:", style="yellow") + Text(" ") + plain(w), highlight=False)
 
 
 def print_temperature(x: dict, console: Console) -> None:
@@ -45,22 +55,24 @@ def print_temperature(x: dict, console: Console) -> None:
         return
     lo, hi = yt["range_c"]
     a, b = yt["over_range"], yt["at_25c"]
+    console.print()
     console.print(
-        f"\n[bold]Over temperature[/bold] ({lo:g} °C .. {hi:g} °C, "
-        f"{len(yt['temperatures_c'])} check points): "
-        f"{_pct(a['estimate'])} ({_pct(a['ci_low'])}..{_pct(a['ci_high'])}) of boards stay in "
-        f"the window at every point; {_pct(b['estimate'])} at 25 °C alone. "
-        f"Worst single point {yt['worst_temperature_c']:g} °C."
+        Text("Over temperature", style="bold")
+        + Text(
+            f" ({lo:g} °C .. {hi:g} °C, "
+            f"{len(yt['temperatures_c'])} check points): "
+            f"{_pct(a['estimate'])} ({_pct(a['ci_low'])}–{_pct(a['ci_high'])}) of boards stay "
+            f"in the window at every point; {_pct(b['estimate'])} at 25 °C alone. "
+            f"Worst single point {yt['worst_temperature_c']:g} °C."
+        ),
+        highlight=False,
     )
-    t = Table(pad_edge=False)
-    t.add_column("temperature", justify="right")
-    t.add_column("yield there", justify="right")
-    t.add_column("mean frequency shift", justify="right")
-    for temp, y, s in zip(
-        yt["temperatures_c"], yt["yield_at_temperature"], yt["frequency_shift"], strict=True
-    ):
-        t.add_row(f"{temp:g} °C", _pct(y), f"{s * 100:+.3f} %")
-    console.print(t)
+    cols = [
+        Col("temperature", [f"{t:g} °C" for t in yt["temperatures_c"]], essential=True),
+        Col("yield there", [_pct(y) for y in yt["yield_at_temperature"]], essential=True),
+        Col("mean frequency shift", [f"{x * 100:+.3f} %" for x in yt["frequency_shift"]]),
+    ]
+    print_fitted(console, cols)
 
 
 def print_drivers(x: dict, console: Console) -> None:
@@ -70,13 +82,13 @@ def print_drivers(x: dict, console: Console) -> None:
     mc = (x.get("drivers_mc") or {}).get("shares", {})
     r2 = (x.get("drivers_mc") or {}).get("r2")
     console.print("\n[bold]What drives the frequency spread[/bold] (share of the variance of ln f)")
-    t = Table(pad_edge=False)
-    t.add_column("input")
-    t.add_column("first order", justify="right")
-    t.add_column("Monte Carlo", justify="right")
-    for k in sorted(sh, key=lambda k: (-sh[k], k)):
-        t.add_row(k, _pct(sh[k]), _pct(mc[k]) if k in mc else "—")
-    console.print(t)
+    keys = sorted(sh, key=lambda k: (-sh[k], k))
+    cols = [
+        Col("input", [plain(k) for k in keys], justify="left", essential=True),
+        Col("first order", [_pct(sh[k]) for k in keys], essential=True),
+        Col("Monte Carlo", [_pct(mc[k]) if k in mc else "—" for k in keys], essential=True),
+    ]
+    print_fitted(console, cols)
     notes = []
     if r2 is not None:
         notes.append(f"regression R² {r2:.4f}")
@@ -88,7 +100,7 @@ def print_drivers(x: dict, console: Console) -> None:
             "is in the temperature table"
         )
     if notes:
-        console.print("  " + "; ".join(notes))
+        _say(console, "  " + "; ".join(notes))
 
 
 def _change(c: dict) -> str:
@@ -100,31 +112,24 @@ def print_tighter(x: dict, console: Console) -> None:
     if not ch:
         return
     console.print("\n[bold]What to buy tighter[/bold] (one change at a time, same boards)")
-    t = Table(pad_edge=False)
-    t.add_column("#", justify="right")
-    t.add_column("position")
-    t.add_column("change")
-    t.add_column("yield", justify="right")
-    t.add_column("gain", justify="right")
-    t.add_column("extra cost/board", justify="right")
-    for i, c in enumerate(ch, 1):
-        t.add_row(
-            str(i),
-            c["position"],
-            _change(c),
-            _pct(c["yield_after"]),
-            f"{c['gain'] * 100:+.1f} %",
-            _money(c["extra_cost_per_board"]),
-        )
-    console.print(t)
+    cols = [
+        Col("#", [str(i) for i in range(1, len(ch) + 1)], essential=True),
+        Col("position", [plain(c["position"]) for c in ch], justify="left", essential=True),
+        Col("change", [plain(_change(c)) for c in ch], justify="left", essential=True),
+        Col("yield", [_pct(c["yield_after"]) for c in ch], essential=True),
+        Col("gain", [points(c["gain"]) for c in ch], essential=True),
+        Col("extra cost/board", [_money(c["extra_cost_per_board"]) for c in ch], priority=1),
+    ]
+    print_fitted(console, cols)
     plan = x.get("tighter_plan")
     if plan:
         steps = ", ".join(f"{s['position']} {_change(s)}" for s in plan["steps"]) or "none"
         cost = plan.get("extra_cost_per_board")
         verdict = "reaches" if plan["reaches_target"] else "falls short of"
-        console.print(
+        _say(
+            console,
             f"  To reach {_pct(plan['target'])}: {steps}; yield {_pct(plan['yield'])} "
-            f"({verdict} the target)" + ("" if cost is None else f", {cost:+.3f} per board")
+            f"({verdict} the target)" + ("" if cost is None else f", {cost:+.3f} per board"),
         )
 
 
@@ -154,16 +159,18 @@ def print_trimmer(x: dict, console: Console, topology: Topology) -> None:
     )
     console.print("\n[bold]Trimmer[/bold] (the best fixed design misses the yield target)")
     if tr["trimmer"] is None:
-        console.print(
+        _say(
+            console,
             f"  No trimmer of the table lets {_pct(tr['share'])} of boards be tuned {where} "
-            f"(best: {_pct(tr['tunable'])}, {fixed}); {need_txt}."
+            f"(best: {_pct(tr['tunable'])}, {fixed}); {need_txt}.",
         )
         return
     lo, hi = tr["trimmer"]["min_f"], tr["trimmer"]["max_f"]
-    console.print(
+    _say(
+        console,
         f"  A {format_quantity(lo, 'F')} – {format_quantity(hi, 'F')} trimmer {where}, with "
         f"{fixed}, lets {_pct(tr['tunable'])} of the simulated boards be tuned into the window "
-        f"at every check temperature ({_pct(tr['share'])} asked; {need_txt})."
+        f"at every check temperature ({_pct(tr['share'])} asked; {need_txt}).",
     )
 
 
@@ -178,8 +185,9 @@ def print_production(r: SolveResult, console: Console) -> None:
     mc = r.production or {}
     if mc.get("precision") is not None:
         state = "reached" if mc.get("converged") else "not reached (sample cap)"
-        console.print(
+        _say(
+            console,
             f"\nPrecision ±{format_percent(mc['precision'])} {state} with {r.samples:,} boards "
-            "per design."
+            "per design.",
         )
     print_warnings(r.warnings, console)
