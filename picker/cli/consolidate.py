@@ -16,6 +16,7 @@ from pathlib import Path
 import typer
 from rich.console import Console
 
+from picker.cli.options import note_stock_columns
 from picker.errors import SolverError, SpecError
 
 __all__ = ["consolidate_cmd", "run_consolidate"]
@@ -34,7 +35,7 @@ def run_consolidate(
     # the plan pulls in pydantic, scipy and ortools: imported here, not at start-up
     from picker.api.plan import run_plan
     from picker.report import plan as plan_report
-    from picker.report.bom import write_bom
+    from picker.report.bom import plan_designators, plan_stocks, write_bom
     from picker.spec.plan import load_plan
 
     f = fmt.strip().lower()
@@ -57,16 +58,23 @@ def run_consolidate(
                 "the file exists; pass --force to replace it", file=str(bom), key="--bom"
             )
     run = run_plan(plan, time_limit=time_limit, workers=workers)
+    stocks = plan_stocks(run)
+    note_stock_columns(stocks)
     if bom is not None and run.result.plan is not None:
-        write_bom(bom, run.result.plan.bom, force=force, inputs=plan.inputs())
+        wrote = write_bom(
+            bom,
+            run.result.plan.bom,
+            designators=plan_designators(run),
+            stocks=stocks,
+            force=force,
+            inputs=plan.inputs(),
+        )
+        sys.stderr.write(f"picker: wrote {wrote}\n")
     if f == "json":
         text = json.dumps(plan_report.plan_dict(run), indent=2, ensure_ascii=False, allow_nan=False)
         sys.stdout.write(text + "\n")
     else:
-        con = Console()
-        plan_report.print_table(
-            run, con if con.is_terminal else Console(width=200, file=sys.stdout)
-        )
+        plan_report.print_table(run, Console(highlight=False))
     if run.result.status == "unknown":  # the solver ran out of time before any plan
         limit = time_limit if time_limit is not None else plan.spec.time_limit
         raise SolverError(
@@ -78,8 +86,13 @@ def run_consolidate(
 
 def consolidate_cmd(
     plan: Path = typer.Argument(..., help="Plan file (TOML) listing the channels."),
-    format: str = typer.Option("table", "--format", "-f", help="table or json."),
-    bom: Path | None = typer.Option(None, "--bom", help="Write the BOM to OUT.csv or OUT.json."),
+    format: str = typer.Option("table", "--format", "-f", help="table or json (standard output)."),
+    bom: Path | None = typer.Option(
+        None,
+        "--bom",
+        help="Write the bill of materials to OUT.csv or OUT.json (designators, quantities, "
+        "prices and the stock list's own columns).",
+    ),
     force: bool = typer.Option(False, "--force", help="Replace an existing BOM file."),
     time_limit: float | None = typer.Option(
         None, "--time-limit", help="Solver seconds (default: the plan's, else 10)."

@@ -16,7 +16,7 @@ from __future__ import annotations
 import contextlib
 import sys
 import time
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from typing import IO, TYPE_CHECKING
 
 from picker.errors import SpecError
@@ -29,6 +29,7 @@ __all__ = [
     "FORMATS",
     "ProgressCallback",
     "check_format",
+    "note_stock_columns",
     "output_format",
     "parse_assignments",
     "parse_design",
@@ -84,6 +85,21 @@ def output_format(fmt: str | None, output: object | None, allowed: Sequence[str]
             key="--format",
         )
     return implied or given or allowed[0]
+
+
+def note_stock_columns(stocks: Iterable[object]) -> None:
+    """One line on stderr per stock list with columns picker does not use (they
+    are kept and carried to the BOM), each list once."""
+    from picker.spec.stock import StockList, unknown_columns_note
+
+    seen: set[str] = set()
+    for st in stocks:
+        if not isinstance(st, StockList) or str(st.source) in seen:
+            continue
+        seen.add(str(st.source))
+        note = unknown_columns_note(st)
+        if note:
+            sys.stderr.write(f"picker: note: {note}\n")
 
 
 def unit_of(pos: str) -> str | None:

@@ -18,6 +18,7 @@ from rich.console import Console
 
 from picker.cli.options import (
     check_format,
+    note_stock_columns,
     output_format,
     parse_design,
     parse_part_ids,
@@ -118,6 +119,7 @@ def solve(
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
     s = api.load_spec(spec)
+    note_stock_columns(part.stock_list for part in s.parts.values())
     with progress_bar(prec or s.yield_.precision) as progress:
         result = api.solve(
             s,
@@ -202,6 +204,7 @@ def evaluate(
             "expected the design: --set POSITION=VALUE or --part POSITION=ID", key="--set"
         )
     s = api.load_spec(spec)
+    note_stock_columns(part.stock_list for part in s.parts.values())
     with progress_bar(prec or s.yield_.precision) as progress:
         result = api.evaluate(
             s,

@@ -3,6 +3,8 @@
 Columns (CSV header, JSON keys), one row per distinct part id, sorted by id:
 
 ==============  =============================================================
+designators     where the part goes: ``channel.position`` for a plan
+                (``north.C1, south.C1``), the position for a single design
 part_id         stock id, or a generic id such as ``C 4.7 nF 5 %``
 kind            ``C`` or ``L``
 value           formatted value (``4.7 nF``)
@@ -13,9 +15,18 @@ qty_per_board   parts of this id on one board (a parallel pair counts twice)
 qty_build       qty_per_board × build quantity
 unit_price      unit price at qty_build (blank / null when unknown)
 extended_price  unit_price × qty_build (blank / null when unknown)
+currency        the stock list's ``currency`` column ("" when it has none)
 on_hand         quantity on hand (blank / null when not tracked)
 short_by        how many more must be bought (0 when the stock covers the build)
 ==============  =============================================================
+
+Then every column of the stock list that picker does not use itself
+(manufacturer, manufacturer part number, footprint, …), in the order the
+stock list has them, blank for parts it does not hold.
+
+CSV files start with a UTF-8 byte-order mark (so a spreadsheet reads "µ" and
+"±") and end lines with CRLF (RFC 4180, section 2, rule 1), like every CSV
+picker writes.
 
 Text cells a spreadsheet would read as a formula (starting with ``=``, ``+``,
 ``-``, ``@``, a tab or a carriage return) are prefixed with a single quote, the
@@ -30,15 +41,21 @@ import csv
 import io
 import json
 import math
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from picker.buyer.model import BomLine
 from picker.errors import SpecError
 from picker.files import atomic_write, csv_safe
+from picker.spec.stock import StockList, load_stock
 from picker.units import format_percent, format_quantity
 
+if TYPE_CHECKING:  # the plan runner pulls in ortools: only for the type
+    from picker.api.plan import PlanRun
+
 COLUMNS = (
+    "designators",
     "part_id",
     "kind",
     "value",
@@ -49,6 +66,7 @@ COLUMNS = (
     "qty_build",
     "unit_price",
     "extended_price",
+    "currency",
     "on_hand",
     "short_by",
 )
@@ -70,14 +88,41 @@ def _price(x: float | None) -> float | None:
     return None if x is None or not math.isfinite(x) else round(float(x), 9)
 
 
-def bom_rows(lines: Iterable[BomLine]) -> list[dict]:
-    """BOM lines as dicts with the keys of :data:`COLUMNS` (None where unknown)."""
+def _described(stocks: Sequence[StockList]) -> tuple[list[str], dict[str, dict[str, str]]]:
+    """Extra column names (first appearance order, ``currency`` aside) and, per part
+    id, its texts in those columns (and its currency), from every stock list."""
+    names: list[str] = []
+    texts: dict[str, dict[str, str]] = {}
+    for st in stocks:
+        for name in st.extra:
+            if name.lower() != "currency" and name not in names and name not in COLUMNS:
+                names.append(name)
+        for i, pid in enumerate(st.ids):
+            row = texts.setdefault(str(pid), {})
+            for name, cells in st.extra.items():
+                key = "currency" if name.lower() == "currency" else name
+                row.setdefault(key, str(cells[i]))
+    return names, texts
+
+
+def bom_rows(
+    lines: Iterable[BomLine],
+    *,
+    designators: Mapping[str, Sequence[str]] | None = None,
+    stocks: Sequence[StockList] = (),
+) -> list[dict]:
+    """BOM lines as dicts with the keys of :data:`COLUMNS` (None where unknown),
+    then the stock lists' descriptive columns."""
+    names, texts = _described(stocks)
+    designators = designators or {}
     rows = []
     for b in lines:
         unit = UNIT.get(b.kind)
         known_value = unit is not None and math.isfinite(b.value)
+        described = texts.get(b.part_id, {})
         rows.append(
             {
+                "designators": ", ".join(designators.get(b.part_id, ())),
                 "part_id": b.part_id,
                 "kind": b.kind,
                 "value": format_quantity(b.value, unit) if unit and known_value else "",
@@ -88,8 +133,10 @@ def bom_rows(lines: Iterable[BomLine]) -> list[dict]:
                 "qty_build": int(b.qty_build),
                 "unit_price": _price(b.unit_price),
                 "extended_price": _price(b.extended_price),
+                "currency": described.get("currency", ""),
                 "on_hand": _num(b.on_hand),
                 "short_by": int(b.short_by),
+                **{n: described.get(n, "") for n in names},
             }
         )
     return rows
@@ -103,25 +150,71 @@ def _cell(v: object) -> str:
     return repr(v) if isinstance(v, float) else str(v)
 
 
-def bom_csv(lines: Iterable[BomLine]) -> str:
+def bom_csv(
+    lines: Iterable[BomLine],
+    *,
+    designators: Mapping[str, Sequence[str]] | None = None,
+    stocks: Sequence[StockList] = (),
+) -> str:
     """The BOM as CSV text (header row first, ``\\r\\n`` line ends as RFC 4180)."""
+    rows = bom_rows(lines, designators=designators, stocks=stocks)
+    header = list(rows[0]) if rows else [*COLUMNS, *_described(stocks)[0]]
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\r\n")
-    w.writerow(COLUMNS)
-    for row in bom_rows(lines):
-        w.writerow([_cell(row[c]) for c in COLUMNS])
+    w.writerow(header)
+    for row in rows:
+        w.writerow([_cell(row[c]) for c in header])
     return buf.getvalue()
 
 
-def bom_json(lines: Iterable[BomLine], **extra: object) -> str:
+def bom_json(
+    lines: Iterable[BomLine],
+    *,
+    designators: Mapping[str, Sequence[str]] | None = None,
+    stocks: Sequence[StockList] = (),
+    **extra: object,
+) -> str:
     """The BOM as a JSON object ``{"bom": [...], **extra}``, keys in a fixed order."""
-    return json.dumps({**extra, "bom": bom_rows(lines)}, indent=2, ensure_ascii=False) + "\n"
+    rows = bom_rows(lines, designators=designators, stocks=stocks)
+    return json.dumps({**extra, "bom": rows}, indent=2, ensure_ascii=False) + "\n"
+
+
+def plan_designators(run: PlanRun) -> dict[str, list[str]]:
+    """Part id -> ``channel.position`` of every place a plan's chosen designs use it."""
+    out: dict[str, list[str]] = {}
+    plan = run.result.plan
+    if plan is None:
+        return out
+    for ch in run.channels:
+        j = plan.choice[ch.name]
+        for k, pos in enumerate(ch.candidates.positions):
+            for pid in dict.fromkeys(ch.candidates.parts[j][k]):
+                out.setdefault(pid, []).append(f"{ch.name}.{pos}")
+    return out
+
+
+def plan_stocks(run: PlanRun) -> list[StockList]:
+    """Every stock list a plan's channels read (each once), for the BOM's extra columns."""
+    seen: dict[str, StockList] = {}
+    for ch in run.channels:
+        for part in ch.spec.parts.values():
+            st = part.stock_list
+            if st is not None:
+                seen.setdefault(str(st.source), st)
+    ps = run.plan.spec
+    if ps.stock is not None:
+        src = str(run.plan.resolve(ps.stock))
+        if not any(Path(k).resolve() == Path(src).resolve() for k in seen):
+            seen[src] = load_stock(src)
+    return list(seen.values())
 
 
 def write_bom(
     path: str | Path,
     lines: Sequence[BomLine],
     *,
+    designators: Mapping[str, Sequence[str]] | None = None,
+    stocks: Sequence[StockList] = (),
     force: bool = False,
     inputs: Iterable[str | Path] = (),
     key: str = "--bom",
@@ -137,9 +230,9 @@ def write_bom(
     p = Path(path)
     suffix = p.suffix.lower()
     if suffix == ".csv":
-        text = bom_csv(lines)
+        text = "\ufeff" + bom_csv(lines, designators=designators, stocks=stocks)
     elif suffix == ".json":
-        text = bom_json(lines)
+        text = bom_json(lines, designators=designators, stocks=stocks)
     else:
         raise SpecError(
             f"expected a file name ending in .csv or .json; got {p.name!r}", file=str(p), key=key

@@ -21,7 +21,7 @@ from rich.table import Table
 from picker import __version__
 from picker.api.plan import PlanRun
 from picker.buyer.model import PlanSummary
-from picker.report.bom import bom_rows
+from picker.report.bom import bom_rows, plan_designators, plan_stocks
 from picker.report.designs import candidate_dict
 from picker.report.text import plain
 from picker.units import format_percent, format_quantity
@@ -66,7 +66,11 @@ def plan_dict(run: PlanRun) -> dict[str, Any]:
         # no timings in JSON (same plan, same bytes)
         "reductions": {k: v for k, v in r.reductions.items() if not k.endswith("_seconds")},
         "channels": channels,
-        "bom": bom_rows(r.plan.bom) if r.plan else [],
+        "bom": (
+            bom_rows(r.plan.bom, designators=plan_designators(run), stocks=plan_stocks(run))
+            if r.plan
+            else []
+        ),
     }
     for ch in run.channels:
         entry: dict[str, Any] = {

@@ -21,6 +21,12 @@ price_breaks  no        ``qty:price`` pairs separated by ``;`` (``100:0.021;1000
                         applies to purchases of at least ``qty`` units
 ============  ========  =================================================================
 
+Columns picker does not know (a manufacturer, a manufacturer part number, a
+footprint, a currency: whatever an ERP export carries) are kept as text
+(:attr:`StockList.extra`) and carried to the bill of materials; the command
+line prints a one-line note naming them. The delimiter is detected from the
+header line: ``,``, ``;`` or a tab (:func:`detect_delimiter`).
+
 Errors are :class:`picker.errors.SpecError` with ``file`` the CSV path and
 ``key`` like ``row 12, column value`` (row numbers are the file's line numbers,
 the header being row 1), so the CLI prints one line and exits 2.
@@ -36,7 +42,7 @@ import csv
 import io
 import os
 from collections.abc import Callable, Iterable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cached_property
 
 import numpy as np
@@ -103,6 +109,9 @@ class StockList:
     break_price: np.ndarray
     source: str | None = field(default=None)
     lines: _LineNumbers | None = field(default=None, repr=False)
+    #: Columns picker does not use (``mpn``, ``manufacturer``, ``footprint``, …):
+    #: header name as written -> one text per part, carried to the BOM.
+    extra: dict[str, np.ndarray] = field(default_factory=dict, repr=False)
 
     def __len__(self) -> int:
         return int(self.ids.shape[0])
@@ -235,11 +244,12 @@ def load_stock(path: str | os.PathLike[str]) -> StockList:
     """
     src = os.fspath(path)
     text = read_text(src, **_READING)
-    lines = _LineNumbers(src)
-    header, columns = _split_fast(text)
+    delim = detect_delimiter(text)
+    lines = _LineNumbers(src, delim)
+    header, columns = _split_fast(text, delim)
     if header is None:
         try:
-            records = list(csv.reader(io.StringIO(text, newline="")))
+            records = list(csv.reader(io.StringIO(text, newline=""), delimiter=delim))
         except csv.Error as exc:
             raise SpecError(f"expected CSV; {exc}", file=src) from None
         if not records:
@@ -254,13 +264,44 @@ def load_stock(path: str | os.PathLike[str]) -> StockList:
                 key=f"row {lines[i]}",
             )
         columns = list(zip(*rows, strict=True)) if rows else []
-    cols = _check_header(header, src)
+    cols, extra = _check_header(header, src)
     if not columns or not columns[0]:
         raise SpecError("expected at least one part row after the header; got none", file=src)
-    return _build(columns, lines, cols, src)
+    st = _build(columns, lines, cols, src)
+    carried = {name: np.array([c.strip() for c in columns[j]], dtype=object) for name, j in extra}
+    return replace(st, extra=carried) if carried else st
 
 
-def _split_fast(text: str) -> tuple[list[str] | None, list[Sequence[str]]]:
+#: Delimiters a stock list may use, tried in this order (the first wins a tie).
+DELIMITERS = (",", ";", "\t")
+
+
+def detect_delimiter(text: str) -> str:
+    """The delimiter of a stock list: the one that splits the header line into the
+    most known column names (``,`` on a tie or when none does).
+
+    >>> detect_delimiter("id;kind;value;tolerance\\nA;C;1n;5 %\\n")
+    ';'
+    """
+    first = text.lstrip("\r\n").split("\n", 1)[0]
+    best, score = ",", 0
+    for d in DELIMITERS:
+        names = {n.strip().strip('"').lower() for n in first.split(d)}
+        k = len(names & set(COLUMNS))
+        if k > score:
+            best, score = d, k
+    return best
+
+
+def unknown_columns_note(stock: StockList) -> str | None:
+    """One line naming the columns picker does not use (carried to the BOM), or None."""
+    if not stock.extra:
+        return None
+    names = ", ".join(stock.extra)
+    return f"{stock.source}: columns not used by picker, carried to the BOM: {names}"
+
+
+def _split_fast(text: str, delim: str = ",") -> tuple[list[str] | None, list[Sequence[str]]]:
     """Split a CSV text without quotes in C-speed string operations.
 
     Returns ``(None, [])`` when the text needs the csv module (it has quotes,
@@ -274,15 +315,15 @@ def _split_fast(text: str) -> tuple[list[str] | None, list[Sequence[str]]]:
         if "\r" in text:
             return None, []
     rows = [line for line in text.split("\n") if line]
-    width = rows[0].count(",") + 1
+    width = rows[0].count(delim) + 1
     body = rows[1:]
     if not body:
         return rows[0].split(","), []
-    commas = np.fromiter(map(str.count, body, [","] * len(body)), dtype=np.int64, count=len(body))
+    commas = np.fromiter(map(str.count, body, [delim] * len(body)), dtype=np.int64, count=len(body))
     if np.any(commas != width - 1):
         return None, []
-    flat = ",".join(body).split(",")
-    return rows[0].split(","), [flat[j::width] for j in range(width)]
+    flat = delim.join(body).split(delim)
+    return rows[0].split(delim), [flat[j::width] for j in range(width)]
 
 
 class _LineNumbers:
@@ -293,13 +334,16 @@ class _LineNumbers:
     ``csv.reader.line_num``.
     """
 
-    def __init__(self, src: str) -> None:
+    def __init__(self, src: str, delim: str = ",") -> None:
         self.src = src
+        self.delim = delim
         self._lines: list[int] | None = None
 
     def __getitem__(self, i: int) -> int:
         if self._lines is None:
-            reader = csv.reader(io.StringIO(read_text(self.src, **_READING), newline=""))
+            reader = csv.reader(
+                io.StringIO(read_text(self.src, **_READING), newline=""), delimiter=self.delim
+            )
             next(reader)
             self._lines = [reader.line_num for r in reader if r]
         return self._lines[i]
@@ -308,19 +352,23 @@ class _LineNumbers:
         return np.array([self[i] for i in range(n)], dtype=np.int64)
 
 
-def _check_header(header: list[str], src: str) -> dict[str, int]:
+def _check_header(header: list[str], src: str) -> tuple[dict[str, int], list[tuple[str, int]]]:
+    """Known columns -> index, and the other columns (name as written, index), kept
+    so that descriptive columns (manufacturer, part number, footprint) reach the BOM."""
     cols: dict[str, int] = {}
+    extra: list[tuple[str, int]] = []
+    seen: set[str] = set()
     for j, name in enumerate(header):
         key = name.strip().lower()
-        if key not in COLUMNS:
-            raise SpecError(
-                f"expected a column name from {', '.join(COLUMNS)}; got {name!r}",
-                file=src,
-                key=f"row 1, column {j + 1}",
-            )
-        if key in cols:
+        if key in seen:
             raise SpecError(f"column {key!r} appears twice", file=src, key=f"row 1, column {j + 1}")
-        cols[key] = j
+        if key:
+            seen.add(key)
+        if key in COLUMNS:
+            cols[key] = j
+        elif key:
+            extra.append((name.strip(), j))
+        # a blank header cell (a trailing delimiter) names nothing: its column is dropped
     missing = [c for c in REQUIRED if c not in cols]
     if missing:
         raise SpecError(
@@ -328,7 +376,7 @@ def _check_header(header: list[str], src: str) -> dict[str, int]:
             file=src,
             key="row 1",
         )
-    return cols
+    return cols, extra
 
 
 class _Column:
