@@ -108,8 +108,8 @@ def _rank(
     if met:
         return ranked, passed, screen, [], checked
     note = (
-        f"no design checked reaches the yield floor {floor:.4g} (confidence interval low end); "
-        "ranked by yield instead of cost"
+        f"no design checked reaches the yield floor {floor * 100:.4g} % (confidence interval "
+        "low end); ranked by yield instead of cost"
     )
     return ranked, passed, screen, [note], checked
 

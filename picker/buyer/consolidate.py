@@ -208,7 +208,7 @@ def consolidate(
             best = float(np.max(ch.yield_estimate))
             return infeasible(
                 f"channel {ch.name!r}: no candidate reaches its minimum yield "
-                f"{ch.min_yield:.4g} (best {best:.4g} of {len(ch)} candidates)"
+                f"{ch.min_yield * 100:.4g} % (best {best * 100:.4g} % of {len(ch)} candidates)"
             )
     counts = {k: len(v) for k, v in eligible.items()}
     model, lower, info = reduced_model(

@@ -85,17 +85,21 @@ def run_consolidate(
 
 
 def consolidate_cmd(
-    plan: Path = typer.Argument(..., help="Plan file (TOML) listing the channels."),
+    plan: Path = typer.Argument(..., metavar="PLAN", help="Plan file (TOML) listing the channels."),
     format: str = typer.Option("table", "--format", "-f", help="table or json (standard output)."),
     bom: Path | None = typer.Option(
         None,
         "--bom",
+        metavar="FILE",
         help="Write the bill of materials to OUT.csv or OUT.json (designators, quantities, "
         "prices and the stock list's own columns).",
     ),
     force: bool = typer.Option(False, "--force", help="Replace an existing BOM file."),
     time_limit: float | None = typer.Option(
-        None, "--time-limit", help="Solver seconds (default: the plan's, else 10)."
+        None,
+        "--time-limit",
+        metavar="SECONDS",
+        help="Solver seconds (default: the plan's, else 10).",
     ),
 ) -> None:
     """Pick one design per channel so the board needs fewer distinct parts."""

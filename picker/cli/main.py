@@ -27,7 +27,32 @@ app = typer.Typer(
     add_completion=False,
     pretty_exceptions_enable=False,
     rich_markup_mode=None,
+    context_settings={"help_option_names": ["-h", "--help"]},
 )
+
+
+def _version(value: bool) -> None:
+    """``picker --version``: print the version and stop."""
+    if value:
+        from picker import __version__
+
+        sys.stdout.write(f"picker {__version__}\n")
+        raise typer.Exit(0)
+
+
+@app.callback()
+def _main(
+    version: bool = typer.Option(
+        False,
+        "--version",
+        "-V",
+        callback=_version,
+        is_eager=True,
+        help="Print picker's version and exit.",
+    ),
+) -> None:
+    """Pick standard-value parts for LC oscillators and rank designs by Monte Carlo yield."""
+
 
 app.command()(solve)
 app.command()(evaluate)

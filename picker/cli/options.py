@@ -250,7 +250,7 @@ def progress_bar(
                 return
             prog.start()
             task = prog.add_task("mc", total=cap, half="")
-        prog.update(task, completed=samples, half=f"{half:.2%}")
+        prog.update(task, completed=samples, half=f"{half * 100:.2f} %")
         if samples >= cap or (precision is not None and half <= precision):
             prog.stop()
             done = True

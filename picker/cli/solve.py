@@ -17,7 +17,6 @@ import typer
 from rich.console import Console
 
 from picker.cli.options import (
-    check_format,
     note_stock_columns,
     output_format,
     parse_design,
@@ -57,6 +56,7 @@ def _emit(
 ) -> None:
     """Write the result as ``fmt`` to ``output``, or to stdout."""
     from picker.report import designs as report
+    from picker.report.csvfile import BOM
 
     if fmt == "json":
         text = report.to_json(result)
@@ -68,7 +68,7 @@ def _emit(
         if text is None:
             text = report.table_text(result, width=None)
         elif fmt == "csv":  # a file: with a byte-order mark, so spreadsheets read UTF-8
-            text = report.BOM + text
+            text = BOM + text
         _wrote([atomic_write(output, text, force=force, inputs=inputs)])
         return
     if text is not None:
@@ -86,30 +86,39 @@ _SAMPLING_HELP = "random or sobol (default: the spec's [yield] sampling)."
 
 
 def solve(
-    spec: Path = typer.Argument(..., help="Spec file (TOML)."),
-    format: str | None = typer.Option(None, "--format", "-f", help=_FORMAT_HELP),
+    spec: Path = typer.Argument(..., metavar="SPEC", help="Spec file (TOML)."),
+    format: str | None = typer.Option(None, "--format", "-f", metavar="FORMAT", help=_FORMAT_HELP),
     top: int | None = typer.Option(
-        None, "--top", min=1, max=10_000, help="How many designs to show."
+        None, "--top", min=1, max=10_000, metavar="N", help="How many designs to show."
     ),
     samples: int | None = typer.Option(
-        None, "--samples", min=100, max=10_000_000, help=_SAMPLES_HELP
+        None, "--samples", min=100, max=10_000_000, metavar="N", help=_SAMPLES_HELP
     ),
-    seed: int | None = typer.Option(None, "--seed", min=0, max=2**63 - 1, help=_SEED_HELP),
+    seed: int | None = typer.Option(
+        None, "--seed", min=0, max=2**63 - 1, metavar="N", help=_SEED_HELP
+    ),
     candidates: int | None = typer.Option(
         None,
         "--candidates",
+        metavar="N",
         min=1,
         max=100_000,
         help="Designs the Monte Carlo pass checks (after the screen).",
     ),
-    output: Path | None = typer.Option(None, "--output", "-o", help=_OUTPUT_HELP),
+    output: Path | None = typer.Option(None, "--output", "-o", metavar="FILE", help=_OUTPUT_HELP),
     force: bool = typer.Option(False, "--force", help=_FORCE_HELP),
     precision: str | None = typer.Option(
-        None, "--precision", help="Run until each yield's CI half-width is this, e.g. 0.5%."
+        None,
+        "--precision",
+        metavar="HALF-WIDTH",
+        help="Run until each yield's CI half-width is this, e.g. 0.5%.",
     ),
-    sampling: str | None = typer.Option(None, "--sampling", help=_SAMPLING_HELP),
+    sampling: str | None = typer.Option(None, "--sampling", metavar="METHOD", help=_SAMPLING_HELP),
     plot: Path | None = typer.Option(
-        None, "--plot", help="Write PNG plots of the best design into this folder."
+        None,
+        "--plot",
+        metavar="FOLDER",
+        help="Write PNG plots of the best design into this folder.",
     ),
 ) -> None:
     """Search every standard-value design in the window and rank them by yield."""
@@ -157,37 +166,45 @@ def _tolerances(items: list[str]) -> dict[str, float]:
 
 
 def evaluate(
-    spec: Path = typer.Argument(..., help="Spec file (TOML)."),
+    spec: Path = typer.Argument(..., metavar="SPEC", help="Spec file (TOML)."),
     set_: list[str] = typer.Option(
         [],
         "--set",
+        metavar="POS=VALUE",
         help="A part value, e.g. --set C1=4.7n, or a parallel pair C1=4.7n+3.3n (repeat).",
     ),
     tol: list[str] = typer.Option(
         [],
         "--tol",
+        metavar="POS=TOL",
         help="A tolerance, e.g. --tol C1=2%; on a stock position it picks the stock part "
         "of that tolerance (repeat).",
     ),
     part: list[str] = typer.Option(
         [],
         "--part",
+        metavar="POS=ID",
         help="A stock part by its id, e.g. --part C1=SB-C005, or C1=ID1+ID2 for a pair; "
         "its value need not be --set (repeat).",
     ),
-    format: str | None = typer.Option(None, "--format", "-f", help=_FORMAT_HELP),
+    format: str | None = typer.Option(None, "--format", "-f", metavar="FORMAT", help=_FORMAT_HELP),
     samples: int | None = typer.Option(
-        None, "--samples", min=100, max=10_000_000, help=_SAMPLES_HELP
+        None, "--samples", min=100, max=10_000_000, metavar="N", help=_SAMPLES_HELP
     ),
-    seed: int | None = typer.Option(None, "--seed", min=0, max=2**63 - 1, help=_SEED_HELP),
-    output: Path | None = typer.Option(None, "--output", "-o", help=_OUTPUT_HELP),
+    seed: int | None = typer.Option(
+        None, "--seed", min=0, max=2**63 - 1, metavar="N", help=_SEED_HELP
+    ),
+    output: Path | None = typer.Option(None, "--output", "-o", metavar="FILE", help=_OUTPUT_HELP),
     force: bool = typer.Option(False, "--force", help=_FORCE_HELP),
     precision: str | None = typer.Option(
-        None, "--precision", help="Run until the yield's CI half-width is this, e.g. 0.5%."
+        None,
+        "--precision",
+        metavar="HALF-WIDTH",
+        help="Run until the yield's CI half-width is this, e.g. 0.5%.",
     ),
-    sampling: str | None = typer.Option(None, "--sampling", help=_SAMPLING_HELP),
+    sampling: str | None = typer.Option(None, "--sampling", metavar="METHOD", help=_SAMPLING_HELP),
     plot: Path | None = typer.Option(
-        None, "--plot", help="Write PNG plots of the design into this folder."
+        None, "--plot", metavar="FOLDER", help="Write PNG plots of the design into this folder."
     ),
 ) -> None:
     """The same figures as solve for one given design (an existing board)."""
@@ -226,19 +243,32 @@ def evaluate(
 
 
 def series_cmd(
-    name: str = typer.Argument(..., help="E3, E6, E12, E24, E48, E96 or E192."),
+    name: str = typer.Argument(..., metavar="NAME", help="E3, E6, E12, E24, E48, E96 or E192."),
     min: str = typer.Option(
-        "1", "--min", help="Lowest value, e.g. 1n (SI number or engineering text)."
+        "1", "--min", metavar="VALUE", help="Lowest value, e.g. 1n (SI number or engineering text)."
     ),
-    max: str = typer.Option("10", "--max", help="Highest value, e.g. 10n."),
-    unit: str = typer.Option("F", "--unit", help="F, H or ohm (for display and parsing)."),
-    format: str = typer.Option("table", "--format", "-f", help="table or json."),
+    max: str = typer.Option("10", "--max", metavar="VALUE", help="Highest value, e.g. 10n."),
+    unit: str = typer.Option(
+        "F", "--unit", metavar="UNIT", help="F, H or ohm (for display and parsing)."
+    ),
+    format: str | None = typer.Option(
+        None,
+        "--format",
+        "-f",
+        metavar="FORMAT",
+        help="table, json or csv (default: from the -o file's extension, else table).",
+    ),
+    output: Path | None = typer.Option(None, "--output", "-o", metavar="FILE", help=_OUTPUT_HELP),
+    force: bool = typer.Option(False, "--force", help=_FORCE_HELP),
 ) -> None:
     """List the values a series holds between --min and --max."""
     from picker.parts import series as series_mod
+    from picker.report.csvfile import BOM, csv_text
     from picker.units import format_quantity, parse_quantity
 
-    fmt = check_format(format, ("table", "json"))
+    fmt = output_format(format, output, ("table", "json", "csv"))
+    if output is not None:
+        check_output(output, force=force, inputs=[])
     if unit not in ("F", "H", "ohm"):
         raise SpecError(f"expected F, H or ohm; got {unit!r}", key="--unit")
     lo = parse_quantity(min, unit, key="--min")
@@ -255,22 +285,31 @@ def series_cmd(
             f"no {series_mod.canonical_name(name)} value lies between "
             f"{format_quantity(lo, unit)} and {format_quantity(hi, unit)}"
         )
+    shown = [format_quantity(float(v), unit) for v in vals]
     if fmt == "json":
-        sys.stdout.write(
+        text = (
             json.dumps(
                 {
                     "series": series_mod.canonical_name(name),
+                    "unit": unit,
                     "values": [float(v) for v in vals],
-                    "display": [format_quantity(float(v), unit) for v in vals],
+                    "display": shown,
                 },
                 indent=2,
                 ensure_ascii=False,
             )
             + "\n"
         )
+    elif fmt == "csv":
+        text = csv_text(
+            [f"value_{unit}", "display"], [[float(v), d] for v, d in zip(vals, shown, strict=True)]
+        )
     else:
-        for v in vals:
-            sys.stdout.write(format_quantity(float(v), unit) + "\n")
+        text = "".join(d + "\n" for d in shown)
+    if output is not None:
+        _wrote([atomic_write(output, (BOM + text) if fmt == "csv" else text, force=force)])
+    else:
+        sys.stdout.write(text)
 
 
 def bench(

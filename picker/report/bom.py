@@ -48,6 +48,7 @@ from typing import TYPE_CHECKING
 from picker.buyer.model import BomLine
 from picker.errors import SpecError
 from picker.files import atomic_write, csv_safe
+from picker.report.csvfile import BOM, CSV_LINE_END
 from picker.spec.stock import StockList, load_stock
 from picker.units import format_percent, format_quantity
 
@@ -160,7 +161,7 @@ def bom_csv(
     rows = bom_rows(lines, designators=designators, stocks=stocks)
     header = list(rows[0]) if rows else [*COLUMNS, *_described(stocks)[0]]
     buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\r\n")
+    w = csv.writer(buf, lineterminator=CSV_LINE_END)
     w.writerow(header)
     for row in rows:
         w.writerow([_cell(row[c]) for c in header])
@@ -230,7 +231,7 @@ def write_bom(
     p = Path(path)
     suffix = p.suffix.lower()
     if suffix == ".csv":
-        text = "\ufeff" + bom_csv(lines, designators=designators, stocks=stocks)
+        text = BOM + bom_csv(lines, designators=designators, stocks=stocks)
     elif suffix == ".json":
         text = bom_json(lines, designators=designators, stocks=stocks)
     else:

@@ -9,18 +9,16 @@ so the same spec and seed give byte-identical output.
 
 from __future__ import annotations
 
-import csv
 import io
 import json
 import math
-from collections.abc import Sequence
 
 from rich.console import Console
 from rich.text import Text
 
 from picker import __version__
 from picker.api.results import Candidate, PartPick, SolveResult
-from picker.files import csv_safe
+from picker.report.csvfile import csv_text
 from picker.report.production import print_production
 from picker.report.text import Col, pct, pct_range, plain, print_fitted, signed_pct
 from picker.units import format_percent, format_quantity
@@ -121,14 +119,6 @@ def to_json(r: SolveResult) -> str:
     return json.dumps(result_dict(r), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
 
 
-#: Line end of every CSV picker writes: CRLF, as RFC 4180 (section 2, rule 1) asks.
-CSV_LINE_END = "\r\n"
-
-#: Byte-order mark put before CSV written to a file, so a spreadsheet reads it as
-#: UTF-8 ("µH", "±" readable; common practice, no source).
-BOM = "\ufeff"
-
-
 def _material(r: SolveResult, p: str, part_id: str) -> str:
     """Dielectric (capacitor) or core (inductor) of the part at ``p``: the stock
     list's column for a stock part, else the spec's key ("" when unknown)."""
@@ -225,30 +215,6 @@ def csv_rows(r: SolveResult) -> list[list[object]]:
             row += [cost.get("per_board"), cost.get("build"), None if ok is None else bool(ok)]
         rows.append([*row, warn])
     return rows
-
-
-def csv_text(header: Sequence[str], rows: Sequence[Sequence[object]]) -> str:
-    """CSV text with CRLF line ends (RFC 4180): floats as ``repr`` (round-trip exact),
-    booleans as ``true``/``false``, None as an empty cell, text guarded by
-    :func:`picker.files.csv_safe`."""
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator=CSV_LINE_END)
-    w.writerow(header)
-    for row in rows:
-        w.writerow([_csv_cell(v) for v in row])
-    return buf.getvalue()
-
-
-def _csv_cell(v: object) -> str:
-    if v is None:
-        return ""
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, float):
-        return repr(v) if math.isfinite(v) else ""
-    if isinstance(v, int):
-        return str(v)
-    return csv_safe(str(v))
 
 
 def to_csv(r: SolveResult) -> str:
