@@ -113,7 +113,8 @@ def test_write_bom_safety(tmp_path):
     out = tmp_path / "bom.csv"
     write_bom(out, [_line()])
     first = out.read_bytes()
-    assert first.startswith(b"part_id,kind,value")
+    # a UTF-8 byte-order mark, then the header (designators first)
+    assert first.startswith(b"\xef\xbb\xbfdesignators,part_id,kind,value")
     with pytest.raises(SpecError, match="exists"):
         write_bom(out, [_line(part_id="X")])
     assert out.read_bytes() == first  # untouched
@@ -129,3 +130,60 @@ def test_write_bom_safety(tmp_path):
     j = tmp_path / "bom.json"
     write_bom(j, [_line()])
     assert json.loads(j.read_text())["bom"][0]["part_id"] == "C-1"
+
+
+def _stock(tmp_path, text, name="stock.csv"):
+    from picker.spec.stock import load_stock
+
+    p = tmp_path / name
+    p.write_text(text, encoding="utf-8")
+    return load_stock(p)
+
+
+def test_designators_and_the_stock_lists_own_columns(tmp_path):
+    # an ERP-style export: descriptive columns picker does not use, a currency column
+    st = _stock(
+        tmp_path,
+        "id,kind,value,tolerance,manufacturer,mpn,footprint,currency\n"
+        "C-1,C,4.7n,J,Maker A,MA-472J,0603,EUR\n"
+        "C-2,C,1n,J,Maker B,=EVIL(),0402,EUR\n",
+    )
+    lines = [_line("C-1"), _line("C-2", value=1e-9), _line("C 10 nF 5 %", value=1e-8)]
+    des = {"C-1": ["north.C1", "south.C1"], "C-2": ["east.C2"]}
+    text = bom_csv(lines, designators=des, stocks=[st])
+    # RFC 4180, section 2, rule 1: CRLF line ends
+    assert text.count("\r\n") == 4 and "\n" not in text.replace("\r\n", "")
+    rows = list(csv.DictReader(io.StringIO(text, newline="")))
+    assert list(rows[0])[: len(COLUMNS)] == list(COLUMNS)
+    assert list(rows[0])[len(COLUMNS) :] == ["manufacturer", "mpn", "footprint"]
+    assert rows[0]["designators"] == "north.C1, south.C1"
+    assert rows[0]["mpn"] == "MA-472J" and rows[0]["footprint"] == "0603"
+    assert rows[0]["currency"] == "EUR"
+    assert rows[1]["mpn"] == "'=EVIL()"  # the injection guard covers carried columns too
+    assert rows[2]["designators"] == "" and rows[2]["mpn"] == ""  # a generic part: blank
+    data = json.loads(bom_json(lines, designators=des, stocks=[st]))
+    assert data["bom"][0]["manufacturer"] == "Maker A"
+
+
+def test_plan_bom_carries_designators(tmp_path):
+    """The demo plan's BOM: every chosen part names its channel.position places, and
+    the quantities per board equal the number of places (a fact of the plan itself)."""
+    from pathlib import Path
+
+    from picker.cli.consolidate import run_consolidate
+
+    demo = Path(__file__).resolve().parent.parent / "demo_specs" / "plan_demo.toml"
+    out = tmp_path / "bom.csv"
+    assert run_consolidate(demo, fmt="json", bom=out) == 0
+    raw = out.read_bytes()
+    assert raw.startswith(b"\xef\xbb\xbf")
+    rows = list(csv.DictReader(io.StringIO(raw.decode("utf-8-sig"), newline="")))
+    channels = {"north", "east", "south"}
+    seen = []
+    for r in rows:
+        places = r["designators"].split(", ")
+        assert all(p.split(".")[0] in channels for p in places)
+        assert int(r["qty_per_board"]) >= len(places)
+        seen += places
+    # three channels of a three-position Colpitts: nine places, each once
+    assert len(seen) == len(set(seen)) == 9

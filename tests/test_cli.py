@@ -147,8 +147,8 @@ def test_usage_errors_exit_2_one_line(run_cli, argv):
 def test_csv_and_table_formats(run_cli):
     code, out, _ = run_cli("solve", EXCITER, "-f", "csv", "--samples", "500", "--top", "4")
     assert code == 0
-    rows = out.strip().split("\n")
-    assert rows[0].startswith("rank,C1,C2,L,")
+    rows = out.strip().split("\r\n")  # CRLF, RFC 4180 section 2 rule 1
+    assert rows[0].startswith("rank,C1_F,C1_tolerance,")
     assert len(rows) == 5
     code, out, _ = run_cli("solve", EXCITER, "--samples", "500", "--top", "2")
     assert code == 0 and "yield" in out and "µH" in out or "mH" in out

@@ -128,7 +128,8 @@ def test_row_numbers_with_quoted_line_break(tmp_path):
 @pytest.mark.parametrize(
     "text, key, words",
     [
-        ("id,kind,value,colour\n", "row 1, column 4", "colour"),
+        # an unknown column is kept, so the fault is the missing one (the error names both)
+        ("id,kind,value,colour\n", "row 1", "does not know: colour"),
         ("id,kind,value\n", "row 1", "tolerance"),
         ("id,kind,value,tolerance,id\n", "row 1, column 5", "twice"),
         (HEADER, None, "at least one part row"),

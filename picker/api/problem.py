@@ -152,7 +152,8 @@ def _pick_by_id(spec: Spec, pos: str, part_id: str, value: float | None) -> _Pic
         raise SpecError(f"expected a part id from the stock list; got {part_id!r}", key=key)
     kind = spec.topo.unit(pos)
     if {"F": "C", "H": "L"}.get(kind) != str(stock.kind[i]):
-        raise SpecError(f"part {part_id!r} is not a {kind} part for {pos}", key=key)
+        what = {"F": "a capacitor", "H": "an inductor"}
+        raise SpecError(f"part {part_id!r} is not {what[kind]}, as {pos} needs", key=key)
     v = float(stock.value[i])
     if value is not None and not _same(v, value):
         raise SpecError(

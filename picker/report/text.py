@@ -85,8 +85,9 @@ class Col:
     """One column of a fitted table.
 
     ``cells`` are plain strings or Text (user text goes through :func:`plain`);
-    ``essential`` columns are always in the first table; the others join it in
-    order of ``priority`` (lower first) while they fit.
+    ``essential`` columns are placed first, then the others in order of
+    ``priority`` (lower first); each goes into the current table while it fits,
+    else starts the next one.
     """
 
     header: str
@@ -119,11 +120,7 @@ def _groups(cols: Sequence[Col], width: int, key: int) -> list[list[int]]:
     groups: list[list[int]] = []
     current = list(keys)
     for i in order:
-        if (
-            table_width([w[j] for j in [*current, i]]) <= width
-            or len(current) == len(keys)
-            or (cols[i].essential and not groups)
-        ):
+        if table_width([w[j] for j in [*current, i]]) <= width or len(current) == len(keys):
             current.append(i)
         else:
             groups.append(current)
@@ -142,17 +139,21 @@ def print_fitted(
 ) -> None:
     """Print ``cols`` as one table, or as several stacked ones when the console is narrow.
 
-    The first ``key`` columns (the rank) start every table. A table too wide for
-    the console even alone (a very narrow terminal) is printed at its own width
-    rather than cut.
+    The first ``key`` columns (the rank) start every table. On a terminal too
+    narrow for even one column beside the key, that column's cells fold onto
+    more lines rather than being cut.
     """
     avail = console.width if width is None else width
     n_rows = max((len(c.cells) for c in cols), default=0)
     for g, idx in enumerate(_groups(cols, avail, key)):
         t = Table(pad_edge=True, title=title if g == 0 else None, title_justify="left")
         for i in idx:
-            t.add_column(cols[i].header, justify=cols[i].justify, no_wrap=True)  # type: ignore[arg-type]
+            t.add_column(
+                cols[i].header,
+                justify=cols[i].justify,  # type: ignore[arg-type]
+                no_wrap=True,
+                overflow="fold",
+            )
         for r in range(n_rows):
             t.add_row(*(cols[i].cells[r] if r < len(cols[i].cells) else "" for i in idx))
-        need = table_width([cols[i].width() for i in idx])
-        console.print(t, width=max(avail, need), crop=False)
+        console.print(t)

@@ -371,8 +371,9 @@ def _check_header(header: list[str], src: str) -> tuple[dict[str, int], list[tup
         # a blank header cell (a trailing delimiter) names nothing: its column is dropped
     missing = [c for c in REQUIRED if c not in cols]
     if missing:
+        others = f" (columns it does not know: {', '.join(n for n, _ in extra)})" if extra else ""
         raise SpecError(
-            f"expected columns {', '.join(REQUIRED)}; missing {', '.join(missing)}",
+            f"expected columns {', '.join(REQUIRED)}; missing {', '.join(missing)}{others}",
             file=src,
             key="row 1",
         )
