@@ -167,7 +167,8 @@ def run(name: str) -> str:
         else:
             text += proc.stdout
         if proc.stderr:
-            text += "--- stderr ---\n" + proc.stderr
+            err = proc.stderr if out is None else proc.stderr.replace(str(out), "{out}")
+            text += "--- stderr ---\n" + err
     return _normalise(text)
 
 

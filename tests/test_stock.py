@@ -8,11 +8,14 @@ no source.
 
 from __future__ import annotations
 
+import csv
+import io
+
 import numpy as np
 import pytest
 
 from picker.errors import SpecError
-from picker.spec.stock import load_stock, stock_table, unit_price
+from picker.spec.stock import load_stock, stock_table, unit_price, unknown_columns_note
 
 HEADER = "id,kind,value,tolerance,dielectric,core,voltage,on_hand,price,price_breaks\n"
 
@@ -150,3 +153,46 @@ def test_missing_file_and_case_insensitive_header(tmp_path):
     assert s.ids[0] == "q1" and s.value[0] == pytest.approx(22e-6, rel=1e-12)
     assert s.tol[0] == pytest.approx(0.20)  # IEC 60062: M = 20 %
     assert np.isinf(s.on_hand[0])
+
+
+@pytest.mark.parametrize("delim", [";", "\t"])
+def test_delimiter_is_detected(tmp_path, delim):
+    """A ';'- or tab-separated export (spreadsheets in locales with a decimal comma
+    write ';'; common practice, no source) loads as the comma file does."""
+    rows = list(csv.reader(io.StringIO(GOOD)))
+    buf = io.StringIO()
+    csv.writer(buf, delimiter=delim, lineterminator="\n").writerows(rows)
+    other = load_stock(_write(tmp_path, buf.getvalue(), "other.csv"))
+    ref = load_stock(_write(tmp_path, GOOD))
+    assert list(other.ids) == list(ref.ids)
+    np.testing.assert_array_equal(other.value, ref.value)
+    np.testing.assert_array_equal(other.break_price, ref.break_price)
+    np.testing.assert_array_equal(other.on_hand, ref.on_hand)
+
+
+def test_unknown_columns_are_kept(tmp_path):
+    text = (
+        "ID;Kind;Value;Tolerance;Manufacturer;MPN;Footprint;\n"
+        "C-1;C;4n7;J;Maker A;MA-472J;0603;\n"
+        "C-2;C;1n;K;Maker B;MB-102K;0402;\n"
+    )
+    s = load_stock(_write(tmp_path, text))
+    assert list(s.extra) == ["Manufacturer", "MPN", "Footprint"]  # as written, in order
+    assert list(s.extra["MPN"]) == ["MA-472J", "MB-102K"]
+    note = unknown_columns_note(s)
+    assert note is not None and "Manufacturer, MPN, Footprint" in note
+    assert unknown_columns_note(load_stock(_write(tmp_path, GOOD, "g.csv"))) is None
+
+
+def test_cli_notes_unknown_columns_once(run_cli, tmp_path):
+    from conftest import DEMO
+
+    lines = (DEMO / "stock_demo.csv").read_text(encoding="utf-8").splitlines()
+    lines = [ln + (",mpn" if i == 0 else f",X{i}") for i, ln in enumerate(lines)]
+    (tmp_path / "stock_demo.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    spec = tmp_path / "spec.toml"
+    spec.write_text((DEMO / "buyer_exciter.toml").read_text(encoding="utf-8"), encoding="utf-8")
+    code, _, err = run_cli("solve", str(spec), "--samples", "500", "-f", "json")
+    assert code == 0, err
+    notes = [ln for ln in err.splitlines() if "carried to the BOM: mpn" in ln]
+    assert len(notes) == 1  # three positions read the same list: one note
