@@ -187,3 +187,41 @@ def test_plan_bom_carries_designators(tmp_path):
         seen += places
     # three channels of a three-position Colpitts: nine places, each once
     assert len(seen) == len(set(seen)) == 9
+
+
+def test_single_design_bom_from_solve(run_cli, tmp_path):
+    """solve --bom: the best design's parts, each at its position, priced from the stock
+    list (read here with the csv module) at the build quantity's break."""
+    from pathlib import Path
+
+    demo = Path(__file__).resolve().parent.parent / "demo_specs"
+    with open(demo / "stock_demo.csv", encoding="utf-8-sig", newline="") as f:
+        stock = {r["id"]: r for r in csv.DictReader(f)}
+    out = tmp_path / "bom.csv"
+    code, js, err = run_cli(
+        "solve", str(demo / "buyer_exciter.toml"), "-f", "json", "--bom", str(out)
+    )
+    assert code == 0, err
+    assert f"picker: wrote {out}" in err
+    best = json.loads(js)["candidates"][0]
+    rows = list(csv.DictReader(io.StringIO(out.read_bytes().decode("utf-8-sig"), newline="")))
+    assert sum(int(r["qty_per_board"]) for r in rows) == best["cost"]["parts_per_board"]
+    want = {}
+    for pos, part in best["parts"].items():
+        for q in part.get("pair") or [part]:
+            want.setdefault(q["part_id"], []).append(pos)
+    assert {r["part_id"]: r["designators"].split(", ") for r in rows} == want
+    build = best["cost"]["build_quantity"]  # 200: below every price break of the demo list
+    for r in rows:
+        s = stock[r["part_id"]]
+        breaks = [b.split(":") for b in s["price_breaks"].split(";") if b]
+        qty = int(r["qty_build"])
+        assert qty == build * int(r["qty_per_board"])
+        price = float(s["price"])
+        for q, p in breaks:  # the largest break not above the quantity (common practice)
+            if qty >= int(q):
+                price = float(p)
+        assert float(r["unit_price"]) == pytest.approx(price)
+        assert float(r["extended_price"]) == pytest.approx(price * qty)
+        on_hand = int(s["on_hand"])
+        assert int(r["short_by"]) == max(0, qty - on_hand)

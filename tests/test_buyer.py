@@ -172,7 +172,7 @@ def test_stock_json_and_csv_carry_ids_and_cost(tmp_path):
     lines = to_csv(res).splitlines()
     head = lines[0].split(",")
     assert head[-3:] == ["cost_per_board", "cost_build", "stock_ok"]
-    row = dict(zip(head, lines[1].split(","), strict=True))
+    row = next(csv.DictReader(lines))  # the csv module: cells may be quoted (RFC 4180)
     assert row["L_part_id"] == c0["parts"]["L"]["part_id"]
     assert float(row["cost_per_board"]) == pytest.approx(c0["cost"]["per_board"])
 

@@ -51,6 +51,34 @@ def _wrote(paths: Iterable[Path]) -> None:
         sys.stderr.write(f"picker: wrote {p}\n")
 
 
+_BOM_HELP = (
+    "Write the bill of materials of the best design to OUT.csv or OUT.json "
+    "(designators, quantities for [cost] build_quantity, prices, the stock list's columns)."
+)
+
+
+def _check_bom(bom: Path | None, force: bool, spec: Path) -> None:
+    """Refuse a bad --bom before the run: its extension and its place."""
+    if bom is None:
+        return
+    if bom.suffix.lower() not in (".csv", ".json"):
+        raise SpecError(
+            f"expected a file name ending in .csv or .json; got {bom.name!r}", key="--bom"
+        )
+    check_output(bom, force=force, inputs=[spec], key="--bom")
+
+
+def _write_bom(result: SolveResult, bom: Path | None, force: bool, spec: Path) -> None:
+    if bom is None or not result.candidates:
+        return
+    from picker.report.bom import design_bom, design_stocks, write_bom
+
+    lines, places = design_bom(result)
+    stocks = design_stocks(result)
+    inputs = [spec, *(Path(str(st.source)) for st in stocks)]
+    _wrote([write_bom(bom, lines, designators=places, stocks=stocks, force=force, inputs=inputs)])
+
+
 def _emit(
     result: SolveResult, fmt: str, output: Path | None, force: bool, inputs: Iterable[Path]
 ) -> None:
@@ -120,6 +148,7 @@ def solve(
         metavar="FOLDER",
         help="Write PNG plots of the best design into this folder.",
     ),
+    bom: Path | None = typer.Option(None, "--bom", metavar="FILE", help=_BOM_HELP),
 ) -> None:
     """Search every standard-value design in the window and rank them by yield."""
     from picker import api
@@ -127,6 +156,7 @@ def solve(
     fmt = output_format(format, output)
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
+    _check_bom(bom, force, spec)
     s = api.load_spec(spec)
     note_stock_columns(part.stock_list for part in s.parts.values())
     with progress_bar(prec or s.yield_.precision) as progress:
@@ -145,6 +175,7 @@ def solve(
         from picker.report.plots import write_plots
 
         _wrote(write_plots(result, plot, force=force, inputs=[spec]))
+    _write_bom(result, bom, force, spec)
     _emit(result, fmt, output, force, [spec])
     if result.status != "ok":
         raise typer.Exit(1)
@@ -206,6 +237,7 @@ def evaluate(
     plot: Path | None = typer.Option(
         None, "--plot", metavar="FOLDER", help="Write PNG plots of the design into this folder."
     ),
+    bom: Path | None = typer.Option(None, "--bom", metavar="FILE", help=_BOM_HELP),
 ) -> None:
     """The same figures as solve for one given design (an existing board)."""
     from picker import api
@@ -213,6 +245,7 @@ def evaluate(
     fmt = output_format(format, output)
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
+    _check_bom(bom, force, spec)
     values = parse_design(set_, "--set")
     tols = _tolerances(tol)
     ids = parse_part_ids(part, "--part")
@@ -239,6 +272,7 @@ def evaluate(
         from picker.report.plots import write_plots
 
         _wrote(write_plots(result, plot, force=force, inputs=[spec]))
+    _write_bom(result, bom, force, spec)
     _emit(result, fmt, output, force, [spec])
 
 

@@ -4,7 +4,8 @@ Columns (CSV header, JSON keys), one row per distinct part id, sorted by id:
 
 ==============  =============================================================
 designators     where the part goes: ``channel.position`` for a plan
-                (``north.C1, south.C1``), the position for a single design
+                (``north.C1, south.C1``), the position for one design
+                (``solve``/``evaluate --bom``: the best design)
 part_id         stock id, or a generic id such as ``C 4.7 nF 5 %``
 kind            ``C`` or ``L``
 value           formatted value (``4.7 nF``)
@@ -45,11 +46,12 @@ from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from picker.buyer.model import BomLine
+from picker.api.results import SolveResult
+from picker.buyer.model import BomLine, generic_part_id
 from picker.errors import SpecError
 from picker.files import atomic_write, csv_safe
 from picker.report.csvfile import BOM, CSV_LINE_END
-from picker.spec.stock import StockList, load_stock
+from picker.spec.stock import StockList, load_stock, unit_price
 from picker.units import format_percent, format_quantity
 
 if TYPE_CHECKING:  # the plan runner pulls in ortools: only for the type
@@ -207,6 +209,80 @@ def plan_stocks(run: PlanRun) -> list[StockList]:
         src = str(run.plan.resolve(ps.stock))
         if not any(Path(k).resolve() == Path(src).resolve() for k in seen):
             seen[src] = load_stock(src)
+    return list(seen.values())
+
+
+def design_bom(result: SolveResult, rank: int = 1) -> tuple[list[BomLine], dict[str, list[str]]]:
+    """The BOM of one design of a solve or evaluate result, and its designators.
+
+    One line per part id (a series value gets the generic id ``C 4.7 nF 5 %``,
+    as in a plan); a designator is the position (``C1``), a pair puts both of
+    its parts at that position. Quantities are per board and for the spec's
+    ``[cost] build_quantity``; the unit price is the stock list's at that
+    quantity (its price breaks honoured) or the position's ``price`` key.
+    """
+    spec = result.spec
+    c = result.candidates[rank - 1]
+    build = int(spec.cost.build_quantity)
+    found: dict[str, dict] = {}
+    places: dict[str, list[str]] = {}
+    for p, pp in c.parts.items():
+        kind = "C" if pp.unit == "F" else "L"
+        stock = spec.parts[p].stock_list
+        picks = [(pp.part_id, pp.first_value, pp.tolerance)]
+        if pp.is_pair:
+            picks.append((pp.second_part_id, pp.second_value, pp.second_tolerance))
+        for pid, value, tol in picks:
+            key = pid or generic_part_id(kind, value, tol)
+            e = found.setdefault(
+                key,
+                {"kind": kind, "value": value, "tol": tol, "count": 0, "pid": pid, "stock": stock},
+            )
+            e["count"] += 1
+            e.setdefault("price", spec.parts[p].price)
+            e.setdefault("material", spec.parts[p].dielectric or "")
+            if p not in places.setdefault(key, []):
+                places[key].append(p)
+    lines = []
+    for key in sorted(found):
+        e = found[key]
+        qty = e["count"] * build
+        st = e["stock"]
+        if e["pid"] and st is not None and e["pid"] in st.index:
+            i = st.index[e["pid"]]
+            price = float(unit_price(st, i, qty)[0])
+            e["value"] = float(
+                st.value[i]
+            )  # the list's value, not a pair's total minus its partner
+            on_hand = float(st.on_hand[i])
+            material = str(st.material[i])
+        else:
+            price = math.nan if e["price"] is None else float(e["price"])
+            on_hand, material = math.inf, e["material"]
+        lines.append(
+            BomLine(
+                part_id=key,
+                kind=e["kind"],
+                value=float(e["value"]),
+                tol=float(e["tol"]),
+                qty_per_board=int(e["count"]),
+                qty_build=int(qty),
+                unit_price=price,
+                extended_price=price * qty,
+                on_hand=on_hand,
+                short_by=int(max(0.0, qty - on_hand)),
+                material=material,
+            )
+        )
+    return lines, places
+
+
+def design_stocks(result: SolveResult) -> list[StockList]:
+    """The stock lists a design's positions read (each once)."""
+    seen: dict[str, StockList] = {}
+    for part in result.spec.parts.values():
+        if part.stock_list is not None:
+            seen.setdefault(str(part.stock_list.source), part.stock_list)
     return list(seen.values())
 
 

@@ -129,6 +129,15 @@ def _material(r: SolveResult, p: str, part_id: str) -> str:
     return part.dielectric or ""
 
 
+def _stock_value(r: SolveResult, p: str, part_id: str, value: float) -> float:
+    """The stock list's value of ``part_id`` (a pair's first part is otherwise its total
+    minus its partner, which carries float noise), else ``value``."""
+    st = r.spec.parts[p].stock_list
+    if part_id and st is not None and part_id in st.index:
+        return float(st.value[st.index[part_id]])
+    return value
+
+
 def csv_columns(r: SolveResult) -> list[str]:
     """Header of the results CSV: units in the names (``C1_F``, ``f_nominal_Hz``).
 
@@ -137,7 +146,7 @@ def csv_columns(r: SolveResult) -> list[str]:
     parts together); for a ``parallel`` position also the first and second
     part's values and the second part's tolerance and id (the first part's are
     the position's own). Then the design's figures, yield (fractions), the loaded
-    model's figures with an ``[amplifier]``, cost with prices, and the warnings.
+    model's figures with an ``[amplifier]``, cost with prices.
     """
     topo = r.spec.topo
     head = ["rank"]
@@ -163,12 +172,13 @@ def csv_columns(r: SolveResult) -> list[str]:
         "samples",
         "f_worst_low_Hz",
         "f_worst_high_Hz",
+        "warnings",
     ]
     if r.spec.amplifier is not None:
         head += list(_LOADED_CSV)
     if _has_buyer_view(r):
         head += ["cost_per_board", "cost_build", "stock_ok"]
-    return [*head, "warnings"]
+    return head
 
 
 def csv_rows(r: SolveResult) -> list[list[object]]:
@@ -191,7 +201,12 @@ def csv_rows(r: SolveResult) -> list[list[object]]:
             ]
             if r.spec.parts[p].parallel:
                 row += (
-                    [pp.first_value, pp.second_value, pp.second_tolerance, pp.second_part_id]
+                    [
+                        _stock_value(r, p, pp.part_id, pp.first_value),
+                        pp.second_value,
+                        pp.second_tolerance,
+                        pp.second_part_id,
+                    ]
                     if pp.is_pair
                     else [pp.value, None, None, ""]
                 )
@@ -206,6 +221,7 @@ def csv_rows(r: SolveResult) -> list[list[object]]:
             c.yield_.samples,
             c.f_worst_low_hz,
             c.f_worst_high_hz,
+            warn,
         ]
         if r.spec.amplifier is not None:
             row += [c.extra.get(k) for k in _LOADED_CSV]
@@ -213,7 +229,7 @@ def csv_rows(r: SolveResult) -> list[list[object]]:
             cost = c.extra.get("cost") or {}
             ok = cost.get("stock_ok")
             row += [cost.get("per_board"), cost.get("build"), None if ok is None else bool(ok)]
-        rows.append([*row, warn])
+        rows.append(row)
     return rows
 
 
