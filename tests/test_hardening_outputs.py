@@ -6,7 +6,7 @@ formula injection (OWASP, "CSV Injection": cells starting with = + - @ tab or CR
 Writers covered (the audit of every ``open(..., "w")``, ``write_text``, ``savefig``
 and ``write_bytes`` in picker/ and scripts/): solve/evaluate ``-o`` and ``--plot``,
 netlist ``-o``, calibrate ``--fragment`` and ``--plot``, consolidate ``--bom`` (CSV and
-JSON). The rest write into temporary folders only (ngspice decks, benchmark inputs)
+JSON), solve ``--bom`` (evaluate's is the same code). The rest write into temporary folders only (ngspice decks, benchmark inputs)
 or regenerate a demo file on purpose (scripts/make_bench_units.py, through
 ``atomic_write(force=True)``).
 """
@@ -43,6 +43,14 @@ def _files(tmp):
     return spec, amp, units, tmp / "plan.toml"
 
 
+def _buyer(tmp):
+    """The stock demo spec beside the stock list _files copies (solve --bom reads both)."""
+    spec = tmp / "buyer.toml"
+    if not spec.exists():
+        spec.write_text(to_toml(cheap(load_demo("buyer_exciter.toml"))), encoding="utf-8")
+    return spec
+
+
 #: writer name -> (command line with OUT for the output path, the input files it reads)
 def _writers(tmp):
     spec, amp, units, plan = _files(tmp)
@@ -77,6 +85,10 @@ def _writers(tmp):
             ["calibrate", str(units), "--topology", "colpitts", "--plot", "OUT"],
             [units],
         ),
+        "solve --bom": (
+            ["solve", str(_buyer(tmp)), *mc, "-f", "json", "--bom", "OUT.csv"],
+            [_buyer(tmp), tmp / "stock_demo.csv"],
+        ),
         "consolidate --bom csv": (
             ["consolidate", str(plan), "--bom", "OUT.csv", "--time-limit", "2"],
             [plan, tmp / "stock_demo.csv", tmp / "plan_sensor_base.toml"],
@@ -97,6 +109,7 @@ WRITERS = [
     "calibrate --plot",
     "consolidate --bom csv",
     "consolidate --bom json",
+    "solve --bom",
 ]
 
 

@@ -31,6 +31,7 @@ from picker.files import atomic_write, check_output
 
 if TYPE_CHECKING:  # the api pulls in numpy, scipy and pydantic: not at start-up
     from picker.api.results import SolveResult
+    from picker.spec.model import Spec
 
 __all__ = ["bench", "evaluate", "series_cmd", "solve"]
 
@@ -66,6 +67,13 @@ def _check_bom(bom: Path | None, force: bool, spec: Path) -> None:
             f"expected a file name ending in .csv or .json; got {bom.name!r}", key="--bom"
         )
     check_output(bom, force=force, inputs=[spec], key="--bom")
+
+
+def _check_bom_inputs(bom: Path | None, force: bool, spec: Path, s: Spec) -> None:
+    """Once the spec is loaded: the BOM may not replace a stock list it names either."""
+    if bom is not None:
+        stocks = {str(p.stock_list.source) for p in s.parts.values() if p.stock_list is not None}
+        check_output(bom, force=force, inputs=[spec, *map(Path, sorted(stocks))], key="--bom")
 
 
 def _write_bom(result: SolveResult, bom: Path | None, force: bool, spec: Path) -> None:
@@ -158,6 +166,7 @@ def solve(
     _check_outputs(output, plot, force, spec)
     _check_bom(bom, force, spec)
     s = api.load_spec(spec)
+    _check_bom_inputs(bom, force, spec, s)
     note_stock_columns(part.stock_list for part in s.parts.values())
     with progress_bar(prec or s.yield_.precision) as progress:
         result = api.solve(
@@ -254,6 +263,7 @@ def evaluate(
             "expected the design: --set POSITION=VALUE or --part POSITION=ID", key="--set"
         )
     s = api.load_spec(spec)
+    _check_bom_inputs(bom, force, spec, s)
     note_stock_columns(part.stock_list for part in s.parts.values())
     with progress_bar(prec or s.yield_.precision) as progress:
         result = api.evaluate(
