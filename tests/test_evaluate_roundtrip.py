@@ -102,6 +102,8 @@ def test_values_alone_name_the_part_they_took(tmp_path):
     assert tol2  # the case in point: solve chose a 2 % part
     by_values = api.evaluate(s, c.values)
     assert any("several tolerances" in w for w in by_values.warnings)
+    # the cheapest part of those values is the 5 % one: fewer boards pass
+    assert by_values.candidates[0].yield_.passed < c.yield_.passed
     by_ids = api.evaluate(s, {}, parts=c.part_ids).candidates[0]
     assert by_ids.yield_.passed == c.yield_.passed
     by_tol = api.evaluate(s, c.values, tolerances={p: 0.02 for p in tol2}).candidates[0]
