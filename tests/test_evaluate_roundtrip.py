@@ -164,3 +164,10 @@ def test_bad_parts_one_line(run_cli, args, words):
     code, _, err = run_cli("evaluate", str(DEMO / "buyer_exciter.toml"), *base, *args)
     assert code == 2, err
     assert len(err.strip().splitlines()) == 1 and words in err
+
+
+def test_a_plus_in_an_exponent_is_not_a_pair():
+    from picker.cli.options import parse_design
+
+    got = parse_design(["C1=4.7e+3p", "C2=4.7n+3.3n", "L=+22u"])
+    assert got == {"C1": pytest.approx(4.7e-9), "C2": (4.7e-9, 3.3e-9), "L": 22e-6}

@@ -190,7 +190,7 @@ def test_every_option_of_every_command_has_help():
         for param in cmd.params:
             if param.param_type_name == "argument":
                 # one style for arguments: upper case, as every command shows them
-                assert param.metavar is None or param.metavar.isupper(), (name, param.metavar)
+                assert param.metavar is not None and param.metavar.isupper(), (name, param)
 
 
 def test_version_and_short_help(run_cli):

@@ -162,6 +162,7 @@ def run_calibrate(
 def calibrate_cmd(
     measurements: Path = typer.Argument(
         ...,
+        metavar="UNITS",
         help="CSV of built units: C1, C2, [C3,] L, frequency; optional unit, measured, "
         "frequency_sigma or weight, note.",
     ),

@@ -14,6 +14,7 @@ stays fast.
 from __future__ import annotations
 
 import contextlib
+import re
 import sys
 import time
 from collections.abc import Callable, Iterable, Iterator, Sequence
@@ -155,6 +156,10 @@ def _position(item: str, key: str, example: str) -> tuple[str, str]:
     return pos, text.strip()
 
 
+#: A '+' between two values of a pair: not one right after an exponent's e or E.
+_PAIR_SPLIT = re.compile(r"(?<![eE])\+")
+
+
 def parse_design(items: list[str], key: str = "--set") -> dict[str, float | tuple[float, float]]:
     """``--set C1=4.7n`` or a parallel pair ``--set C1=4.7n+3.3n`` -> SI float or pair."""
     out: dict[str, float | tuple[float, float]] = {}
@@ -162,16 +167,16 @@ def parse_design(items: list[str], key: str = "--set") -> dict[str, float | tupl
         pos, text = _position(item, key, "C1=4.7n or C1=4.7n+3.3n")
         if pos in out:
             raise SpecError(f"position {pos} given twice", key=key)
-        halves = text.split("+") if "+" in text.lstrip("+") else [text]
+        # a '+' joins two parts, except a leading sign and an exponent's sign (4.7e+3p)
+        body = text.lstrip("+")
+        halves = _PAIR_SPLIT.split(body)
+        halves[0] = text[: len(text) - len(body)] + halves[0]
         if len(halves) > 2 or any(not h.strip() for h in halves):
             raise SpecError(
                 f"expected one value or two joined by '+' such as 4.7n+3.3n; got {text!r}",
                 key=f"{key} {pos}",
             )
-        vals = (
-            parse_assignments([f"{pos}={h}" for h in halves[:1]], key, unit_of)[pos],
-            *(parse_assignments([f"{pos}={h}"], key, unit_of)[pos] for h in halves[1:]),
-        )
+        vals = [parse_assignments([f"{pos}={h}"], key, unit_of)[pos] for h in halves]
         out[pos] = (vals[0], vals[1]) if len(vals) == 2 else vals[0]
     return out
 
