@@ -238,6 +238,12 @@ def _loaded_freqs(c: Candidate) -> tuple[str, str]:
     )
 
 
+def _envelope(c: Candidate) -> str:
+    """"steady", "bursting" or "no start" by the large-signal model."""
+    ls = c.extra.get("large_signal") or {}
+    return ls.get("envelope") or "no start"
+
+
 def _margins(c: Candidate) -> str:
     m, w = c.extra.get("startup_margin"), c.extra.get("startup_margin_worst")
     return f"{m:.2f} ({w:.2f})"
@@ -250,8 +256,10 @@ def _print_cautions(r: SolveResult, console: Console) -> None:
         for text in c.extra.get("cautions", ()):
             seen.setdefault(text, []).append(c.rank)
     console.print(
-        "f loaded: the loaded model (transistor, bias network, losses); error is against "
-        "the loaded frequency. margin: loop gain at start-up, nominal (worst board)."
+        "f loaded: the steady frequency of the loaded model (transistor, bias network, "
+        "losses); error is against it. runs: steady or bursting (large-signal model); only "
+        "boards that start and run steady count towards yield. margin: loop gain at "
+        "start-up, nominal (worst board)."
     )
     if not seen:
         return
@@ -305,6 +313,7 @@ def print_table(r: SolveResult, console: Console) -> None:
     if loaded:
         t.add_column("f ideal", justify="right")
         t.add_column("f loaded", justify="right")
+        t.add_column("runs", justify="right")
     else:
         t.add_column("f nominal", justify="right")
     t.add_column("error", justify="right")
@@ -320,7 +329,11 @@ def print_table(r: SolveResult, console: Console) -> None:
         t.add_row(
             str(c.rank),
             *(_table_part(c.parts[p]) for p in s.topo.positions),
-            *(_loaded_freqs(c) if loaded else (format_quantity(c.f_nominal_hz, "Hz", digits=6),)),
+            *(
+                (*_loaded_freqs(c), _envelope(c))
+                if loaded
+                else (format_quantity(c.f_nominal_hz, "Hz", digits=6),)
+            ),
             f"{c.error * 100:+.3f} %",
             f"{c.feedback_fraction:.3f}" + ("" if c.feedback_ok else " !"),
             *((_margins(c),) if loaded else ()),
