@@ -341,3 +341,24 @@ def test_nominal_offset_approximation_against_the_full_model(demo, monkeypatch, 
     allowed = edge.sum(axis=0) + 0.005 * u.shape[0]
     assert np.all(np.abs(n_a - n_f) <= allowed)
     print(f"{model}: yields approx {n_a}, full {n_f}, allowed difference {allowed}")
+
+
+# ------------------------------------------------------------ nothing feasible
+
+
+def test_every_design_bursting_or_over_max_margin_is_explained(demo, monkeypatch, tmp_path):
+    spec, pb, before = demo
+    text = DEMO_SPEC.read_text(encoding="utf-8").replace(
+        "min_margin = 2.0", "min_margin = 2.0\nmax_margin = 2.001"
+    )
+    r = api.solve(api.load_spec(write_spec(tmp_path, text)), samples=SAMPLES)
+    assert r.status == "infeasible"
+    assert any("amplifier.max_margin (2.001)" in a for a in r.advice)
+
+    def edit(values, st):  # every board bursts
+        return replace(st, bursting=np.ones(np.shape(st.starts), dtype=bool))
+
+    _patch(monkeypatch, edit)
+    r = api.solve(spec, samples=SAMPLES)
+    assert r.status == "infeasible" and r.feasible == 0
+    assert any("burst or do not start in the large-signal model" in a for a in r.advice)
