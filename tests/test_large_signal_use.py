@@ -160,7 +160,7 @@ def test_max_margin_bounds_search_and_yield(demo, tmp_path):
     margins = sorted(c.extra["startup_margin"] for c in before.candidates)
     bound = 0.5 * (margins[0] + margins[-1])
     text = DEMO_SPEC.read_text(encoding="utf-8").replace(
-        "min_margin = 2.0", f"min_margin = 2.0\nmax_margin = {bound!r}"
+        "max_margin = 50", f"max_margin = {bound!r}"
     )
     spec_b = api.load_spec(write_spec(tmp_path, text))
     assert spec_b.amplifier.max_margin == bound
@@ -193,7 +193,7 @@ def test_max_margin_bounds_search_and_yield(demo, tmp_path):
 )
 def test_max_margin_bad_value_is_one_line(run_cli, tmp_path, value, words):
     text = DEMO_SPEC.read_text(encoding="utf-8").replace(
-        "min_margin = 2.0", f"min_margin = 2.0\nmax_margin = {json.dumps(value)}"
+        "max_margin = 50", f"max_margin = {json.dumps(value)}"
     )
     code, _, err = run_cli("solve", str(write_spec(tmp_path, text)))
     assert code == 2 and len(err.strip().splitlines()) == 1
@@ -348,9 +348,7 @@ def test_nominal_offset_approximation_against_the_full_model(demo, monkeypatch, 
 
 def test_every_design_bursting_or_over_max_margin_is_explained(demo, monkeypatch, tmp_path):
     spec, pb, before = demo
-    text = DEMO_SPEC.read_text(encoding="utf-8").replace(
-        "min_margin = 2.0", "min_margin = 2.0\nmax_margin = 2.001"
-    )
+    text = DEMO_SPEC.read_text(encoding="utf-8").replace("max_margin = 50", "max_margin = 2.001")
     r = api.solve(api.load_spec(write_spec(tmp_path, text)), samples=SAMPLES)
     assert r.status == "infeasible"
     assert any("amplifier.max_margin (2.001)" in a for a in r.advice)
