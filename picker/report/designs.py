@@ -239,7 +239,7 @@ def _loaded_freqs(c: Candidate) -> tuple[str, str]:
 
 
 def _envelope(c: Candidate) -> str:
-    """"steady", "bursting" or "no start" by the large-signal model."""
+    """The run verdict of the large-signal model: "steady", "bursting" or "no start"."""
     ls = c.extra.get("large_signal") or {}
     return ls.get("envelope") or "no start"
 
