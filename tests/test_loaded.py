@@ -298,7 +298,9 @@ def test_table_and_csv_show_loaded_columns(run_cli):
     code, out, err = run_cli("solve", str(DEMO_SPEC), "--samples", "1000", "--top", "3")
     assert code == 0, err
     assert "f ideal" in out and "f loaded" in out and "margin (worst)" in out
-    assert "Cautions (circuit model)" in out
+    # the large-signal verdict; no caution for the top 3 (the squegging rule of thumb gave
+    # way to the model's bursting verdict, and they run steady)
+    assert "runs" in out and "steady" in out and "Cautions (circuit model)" not in out
     code, out, _ = run_cli(
         "solve", str(DEMO_SPEC), "--format", "csv", "--samples", "1000", "--top", "3"
     )
