@@ -36,7 +36,8 @@ def test_engineering_strings_become_si_and_defaults():
     a = AmplifierSpec.model_validate(AMP)
     assert (a.supply, a.r_load, a.r_bias_top, a.r_bias_bottom) == (12.0, 2200.0, 47e3, 10e3)
     assert_allclose([a.c_emitter, a.c_coupling], [10e-9, 1e-9], rtol=1e-12)
-    assert a.min_margin == 2.0 and a.kind == "bjt"
+    assert a.min_margin == 2.0 and a.kind == "bjt" and a.max_margin is None
+    assert AmplifierSpec.model_validate({**AMP, "max_margin": 30}).max_margin == 30.0
 
 
 def test_to_params_takes_inductor_and_capacitor_loss_from_parts():
@@ -55,6 +56,8 @@ def test_to_params_takes_inductor_and_capacitor_loss_from_parts():
         ({"r_load": "10 nF"}, "amplifier.r_load", "resistance"),
         ({"choke": "100 uH"}, "amplifier", "exactly one collector load"),
         ({"min_margin": 0.5}, "amplifier.min_margin", "between 1 and 100"),
+        ({"max_margin": 2.0}, "amplifier.max_margin", "above min_margin (2)"),
+        ({"max_margin": True}, "amplifier.max_margin", "such as 20"),
         ({"supply": "-9 V"}, "amplifier.supply", "positive"),
         ({"colector": "1k"}, "amplifier.colector", "unknown key"),
         ({"kind": "tube"}, "amplifier.kind", "bjt"),

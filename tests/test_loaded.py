@@ -13,7 +13,7 @@ from numpy.testing import assert_allclose
 
 from picker import api
 from picker.circuit.amplifier import AmplifierParams, ideal_params
-from picker.circuit.figures import SQUEGGING_RATIO, nominal_figures, squegging_caution
+from picker.circuit.figures import nominal_figures
 from picker.circuit.loaded import LoadedModel, fit_surrogate, loaded_nominal, surrogate_response
 from picker.circuit.loaded_search import loaded_brute_force, loaded_search
 from picker.core.montecarlo import PartVariation, Simulation, count_passing
@@ -222,31 +222,6 @@ def test_loaded_search_reaches_designs_whose_ideal_frequency_is_outside_the_wind
 # --------------------------------------------------------------------- figures
 
 
-def test_squegging_rule():
-    # Rule (common practice, no source): flag when R_E·C_E > 10 × 2Q/ω. Q = 50 at the
-    # design's ideal frequency (q_frequency None) gives 2Q/ω at f = f_ideal exactly.
-    board = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
-    f = float(COLPITTS.frequency(board, 0.0))
-    tau_tank = 2 * 50.0 / (TWO_PI * f)
-    c_edge = SQUEGGING_RATIO * tau_tank / 2200.0
-    base = dict(
-        vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_block=10e-9, inductor_q=50.0
-    )
-    assert (
-        squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base, c_e=0.9 * c_edge), f, 3.0)
-        is None
-    )
-    text = squegging_caution(
-        COLPITTS, board, 0.0, AmplifierParams(**base, c_e=1.1 * c_edge), f, 3.0
-    )
-    assert text is not None and "squegging" in text and "11 times" in text
-    # no bypass capacitor, or a board that does not start: nothing to flag
-    assert squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base), f, 3.0) is None
-    assert (
-        squegging_caution(COLPITTS, board, 0.0, AmplifierParams(**base, c_e=1e-6), f, 0.5) is None
-    )
-
-
 def test_nominal_figures_flag_a_missing_blocking_capacitor_and_a_polarised_part():
     params = AmplifierParams(
         vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_e=47e-9, inductor_q=50.0
@@ -323,7 +298,9 @@ def test_table_and_csv_show_loaded_columns(run_cli):
     code, out, err = run_cli("solve", str(DEMO_SPEC), "--samples", "1000", "--top", "3")
     assert code == 0, err
     assert "f ideal" in out and "f loaded" in out and "margin (worst)" in out
-    assert "Cautions (circuit model)" in out
+    # the large-signal verdict; no caution for the top 3 (the squegging rule of thumb gave
+    # way to the model's bursting verdict, and they run steady)
+    assert "runs" in out and "steady" in out and "Cautions (circuit model)" not in out
     code, out, _ = run_cli(
         "solve", str(DEMO_SPEC), "--format", "csv", "--samples", "1000", "--top", "3"
     )

@@ -215,6 +215,17 @@ def explain_loaded_infeasible(
             f"{loaded.in_window:,} designs run in the window but none starts with a margin of "
             f"{need:g} (best {best:.3g}): {gain}"
         )
+    if loaded.not_steady:  # the large-signal model's verdict (picker.circuit.steady)
+        advice.append(
+            f"{loaded.not_steady:,} designs in the window pass the small-signal start-up test "
+            "but burst or do not start in the large-signal model: a faster emitter (source) "
+            "bypass (a smaller bypass capacitor) or a lower start-up margin steadies them"
+        )
+    if loaded.over_margin and amp.max_margin is not None:
+        advice.append(
+            f"{loaded.over_margin:,} designs run steady in the window with a start-up margin "
+            f"above amplifier.max_margin ({amp.max_margin:g}): raise it, or lower the loop gain"
+        )
     f_lo, f_hi = problem.f_min, problem.f_max
     centre = np.sqrt(f_lo * f_hi)
     half = np.log(f_hi / centre)
@@ -231,7 +242,9 @@ def explain_loaded_infeasible(
             problem.parasitics,
         )
         try:
-            ls = loaded_search(relaxed, params, min_margin=need, max_designs=2_000_000)
+            ls = loaded_search(
+                relaxed, params, min_margin=need, max_margin=amp.max_margin, max_designs=2_000_000
+            )
         except SpecError:  # too large to explore: no misses from this relaxation
             break
         if len(ls.designs):

@@ -72,7 +72,11 @@ def _nominal_designs(spec: Spec, problem: Problem) -> tuple[Designs, LoadedSearc
             return designs, None
         check_size(problem, max_designs=None, max_combinations=lim.max_combinations)
         ls = loaded_search(
-            problem, params, min_margin=spec.amplifier.min_margin, max_designs=lim.max_designs
+            problem,
+            params,
+            min_margin=spec.amplifier.min_margin,
+            max_margin=spec.amplifier.max_margin,
+            max_designs=lim.max_designs,
         )
     except SpecError as exc:
         raise exc.located(file=spec.source or None) from None

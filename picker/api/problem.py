@@ -462,13 +462,15 @@ def board_model_of(spec: Spec, problem: Problem) -> LoadedModel | None:
     """The pass test for one board: None means the ideal tank.
 
     With an ``[amplifier]`` section: :class:`picker.circuit.loaded.LoadedModel` (a board
-    passes when it starts, margin > 1, and its loaded frequency is in the
-    window), by the surrogate or the full model (``amplifier.monte_carlo``).
+    passes when it starts, runs steady, its margin is at most ``amplifier.max_margin``
+    and its steady frequency is in the window), by the nominal-offset approximation or
+    the large-signal model on every board (``amplifier.monte_carlo``).
     """
     params = amplifier_params_of(spec)
     if params is None or spec.amplifier is None:
         return None
-    return LoadedModel(problem, params, spec.amplifier.monte_carlo)
+    amp = spec.amplifier
+    return LoadedModel(problem, params, amp.monte_carlo, max_margin=amp.max_margin)
 
 
 def simulation_of(spec: Spec, problem: Problem) -> Simulation:

@@ -1,8 +1,8 @@
 """Per-design figures of the loaded model for the report: loaded and ideal frequency,
 start-up margin (nominal and worst over the Monte Carlo boards), amplitude, peak voltage
 across each capacitor and plain-language cautions (:mod:`picker.circuit.oscillation` and
-:mod:`picker.circuit.amplitude` do the physics; this module adds the squegging rule and
-gathers JSON-ready scalars).
+:mod:`picker.circuit.amplitude` and :mod:`picker.circuit.steady` do the physics; this
+module gathers JSON-ready scalars, the ``large_signal`` object and the bursting caution).
 """
 
 from __future__ import annotations
@@ -22,18 +22,27 @@ from picker.circuit.amplitude import (
 )
 from picker.circuit.loaded import LoadedModel
 from picker.circuit.oscillation import loaded_response
+from picker.circuit.steady import SteadyState, steady_state
 from picker.core.montecarlo import Simulation, drift_factors, sampled_values, values_at
 from picker.core.search import Designs
 from picker.tank.base import Topology
 from picker.tank.board import Parasitics, board_values
 
-__all__ = ["SQUEGGING_RATIO", "inductor_q", "nominal_figures", "squegging_caution", "worst_margins"]
+__all__ = [
+    "HARMONICS",
+    "bursting_caution",
+    "inductor_q",
+    "large_signal",
+    "nominal_figures",
+    "worst_margins",
+]
 
-#: Squegging rule of thumb (common practice, no source): the emitter network's time
-#: constant R_E·C_E should not exceed this many times the tank's amplitude time constant
-#: 2·Q/ω. A bias network much slower than the tank lets the amplitude build up, drive the
-#: stage into cut-off and die away in bursts (intermittent "squegging" oscillation).
-SQUEGGING_RATIO = 10.0
+#: Keys of the ``large_signal`` object's ``harmonics_dbc``, in the order of
+#: :attr:`picker.circuit.steady.SteadyState.harmonics_dbc`'s last axis.
+HARMONICS = ("h2", "h3")
+#: Optional fields of a :class:`~picker.circuit.steady.SteadyState` reported when the
+#: model provides them (attribute -> JSON key).
+OPTIONAL = {"peak_current_a": "peak_current_a", "dissipation_w": "dissipation_w"}
 
 
 def inductor_q(
@@ -59,33 +68,60 @@ def inductor_q(
     return math.inf if esr <= 0 else w * l_ / esr
 
 
-def squegging_caution(
-    topology: Topology,
-    board: Mapping[str, float],
-    stray: float,
-    params: AmplifierParams,
-    f_hz: float,
-    margin: float,
-) -> str | None:
-    """The squegging warning for one design, or None (rule: :data:`SQUEGGING_RATIO`).
+def _finite(x: float) -> float | None:
+    return float(x) if math.isfinite(x) else None
 
-    Needs a bypassed emitter resistor and a lossy inductor (Q finite); a design that
-    does not start (margin ≤ 1) is not flagged.
+
+def large_signal(st: SteadyState, r: int = 0) -> dict[str, Any]:
+    """The JSON ``large_signal`` object of board ``r`` of ``st`` (1-D arrays).
+
+    ``starts`` (bool), ``f_hz`` (steady frequency, None where it does not start),
+    ``f_start_hz`` (frequency of the growing pole pair at start-up), ``amplitude_v``
+    (peak at the tank's output node), ``envelope`` ("steady" or "bursting"; None
+    where it does not start), ``startup_time_s`` and ``harmonics_dbc`` {"h2", "h3"}
+    (None where the model gives none), ``overdriven``, and ``peak_current_a`` /
+    ``dissipation_w`` when the model provides them.
     """
-    if params.r_e is None or params.c_e is None or not margin > 1 or not math.isfinite(f_hz):
+    starts = bool(st.starts[r])
+    out: dict[str, Any] = {
+        "starts": starts,
+        "f_hz": _finite(float(st.f_hz[r])) if starts else None,
+        "f_start_hz": _finite(float(st.f_start_hz[r])) if starts else None,
+        "amplitude_v": float(st.amplitude_v[r]) if starts else 0.0,
+        "envelope": ("bursting" if bool(st.bursting[r]) else "steady") if starts else None,
+        "startup_time_s": _finite(float(st.startup_time_s[r])) if starts else None,
+        "harmonics_dbc": {
+            k: (_finite(float(st.harmonics_dbc[r, i])) if starts else None)
+            for i, k in enumerate(HARMONICS)
+        },
+        "overdriven": bool(st.overdriven[r]),
+    }
+    for attr, key in OPTIONAL.items():
+        v = getattr(st, attr, None)
+        if v is not None:
+            out[key] = _finite(float(np.asarray(v)[r])) if starts else None
+    return out
+
+
+def bursting_caution(st: SteadyState, params: AmplifierParams, r: int = 0) -> str | None:
+    """The caution for a design the large-signal model finds bursting, or None.
+
+    The verdict is the model's (:attr:`picker.circuit.steady.SteadyState.bursting`);
+    the advice is the usual cure (common practice, no source): a bias network that
+    follows the envelope faster (a smaller bypass capacitor) or less excess loop gain
+    (a smaller start-up margin).
+    """
+    if not (bool(st.starts[r]) and bool(st.bursting[r])):
         return None
-    q = inductor_q(topology, board, stray, params, f_hz)
-    if not math.isfinite(q):
-        return None
-    tau_e = params.r_e * params.c_e
-    tau_tank = 2 * q / (2 * math.pi * f_hz)
-    if tau_e <= SQUEGGING_RATIO * tau_tank:
-        return None
+    m = float(st.margin[r])
+    bias = ""
+    if params.r_e is not None and params.c_e is not None:
+        bias = f" (now R_E·C_E = {params.r_e * params.c_e * 1e6:.3g} µs)"
     return (
-        f"emitter bypass R_E·C_E = {tau_e * 1e6:.3g} µs is {tau_e / tau_tank:.0f} times the "
-        f"tank's amplitude time constant 2Q/ω = {tau_tank * 1e6:.3g} µs: risk of squegging "
-        f"(bursts); a smaller C_E helps (rule of thumb: at most {SQUEGGING_RATIO:g} times, "
-        "common practice)"
+        f"bursting: the large-signal model finds the oscillation unsteady at start-up margin "
+        f"{m:.3g}; it builds up, stops and restarts (squegging), and the carrier comes in "
+        f"bursts. Make the emitter (source) bypass network faster{bias}: a smaller bypass "
+        "capacitor, or lower the margin (a smaller C1/C2 ratio or less bias current)"
     )
 
 
@@ -100,30 +136,35 @@ def nominal_figures(
 ) -> dict[str, Any]:
     """Loaded-model figures of one design at its marked values (JSON-ready scalars).
 
-    Keys: ``f_ideal_hz``, ``f_loaded_hz`` (None where it does not oscillate),
+    Keys: ``f_ideal_hz``, ``f_loaded_hz`` (the steady frequency of the large-signal
+    model; where it does not start, the linear model's; None where neither oscillates),
     ``startup_margin``, ``amplitude_v`` (peak at the tank top), ``overdriven``,
     ``peak_voltage_v`` (position -> peak V across each capacitor, None where the
-    bias point is unknown) and ``cautions`` (:func:`picker.circuit.amplitude.cautions` plus
-    :func:`squegging_caution`).
+    bias point is unknown), ``cautions`` (:func:`picker.circuit.amplitude.cautions` plus
+    :func:`bursting_caution`) and ``large_signal`` (:func:`large_signal`).
+    ``startup_margin`` is the large-signal model's margin.
     """
     pos = topology.positions
     board = board_values(topology, {p: np.array([float(values[p])]) for p in pos}, parasitics)
-    st = parasitics.stray
+    st_ = parasitics.stray
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        res = loaded_response(topology, board, st, params)
-        amp = amplitude_estimate(topology, board, st, params, res)
-        stress = capacitor_stress(topology, board, st, params, amp)
-    f = float(res.f_hz[0])
-    m = float(res.margin[0])
+        res = loaded_response(topology, board, st_, params)
+        amp = amplitude_estimate(topology, board, st_, params, res)
+        stress = capacitor_stress(topology, board, st_, params, amp)
+        ls = steady_state(topology, board, st_, params)
+    f_lin = float(res.f_hz[0])
+    f_ss = float(ls.f_hz[0])
+    f = f_ss if bool(ls.starts[0]) and math.isfinite(f_ss) else f_lin
+    m = float(ls.margin[0])
     scal = {p: float(v[0]) for p, v in board.items()}
     peaks = {k: float(v[0]) for k, v in stress.items()}
     finite = {k: v for k, v in peaks.items() if math.isfinite(v)}
     notes = cautions(
         topology, scal, params, finite, voltage_rating=voltage_rating, polarised=polarised
     )
-    sq = squegging_caution(topology, scal, st, params, f, m)
-    if sq:
-        notes.append(sq)
+    burst = bursting_caution(ls, params)
+    if burst:
+        notes.append(burst)
     if bool(amp.overdriven[0]):
         notes.append(
             f"overdriven: a start-up margin above {OVERDRIVE_MARGIN:g} or a collector swing "
@@ -131,13 +172,14 @@ def nominal_figures(
             "estimate is not reliable there (threshold: common practice)"
         )
     return {
-        "f_ideal_hz": float(topology.frequency(board, st)[0]),
+        "f_ideal_hz": float(topology.frequency(board, st_)[0]),
         "f_loaded_hz": f if math.isfinite(f) else None,
         "startup_margin": m,
         "amplitude_v": float(amp.tank[0]),
         "overdriven": bool(amp.overdriven[0]),
         "peak_voltage_v": {k: (v if math.isfinite(v) else None) for k, v in peaks.items()},
         "cautions": notes,
+        "large_signal": large_signal(ls),
     }
 
 

@@ -1,16 +1,42 @@
 """The loaded (circuit-aware) model in the Monte Carlo: nominal figures, a fast surrogate
 and the board model.
 
-Everything here wraps :func:`picker.circuit.oscillation.loaded_response` (the linearised
-oscillator: frequency where the loop-gain phase crosses zero, start-up margin
-|T| there) on *board* values, i.e. the marked part values with the spec's
-parasitics applied by :func:`picker.tank.base.board_values`. The loaded-feasible
-search is in :mod:`picker.circuit.loaded_search`, the per-design figures (amplitude,
-stress, cautions, worst margin) in :mod:`picker.circuit.figures`.
+Two models of a board built from *board* values (the marked part values with the
+spec's parasitics applied by :func:`picker.tank.base.board_values`):
+
+- the linear model, :func:`picker.circuit.oscillation.loaded_response` (frequency
+  where the loop-gain phase crosses zero, start-up margin |T| there), wrapped by
+  :func:`loaded_nominal`;
+- the large-signal model, :func:`picker.circuit.steady.steady_state` (start-up,
+  steady frequency, amplitude, steady or bursting), wrapped by :func:`board_state`.
+
+A board counts towards yield when it starts, runs steady (not bursting), its
+start-up margin is at most ``amplifier.max_margin`` (when given) and its *steady*
+frequency lies in the window. The loaded-feasible search is in
+:mod:`picker.circuit.loaded_search`, the per-design figures (amplitude, stress,
+cautions, worst margin, the ``large_signal`` object) in :mod:`picker.circuit.figures`.
+
+Nominal-offset approximation
+----------------------------
+The large-signal model is too slow for every board of a few hundred candidates ×
+20,000 boards, so by default (``amplifier.monte_carlo = "surrogate"``) it is run
+once per design, at its nominal point, and the linear model carries the spread:
+
+    ln f_steady(board) ≈ ln f_linear(board) + [ln f_steady − ln f_linear](nominal)   (A1)
+    ln m(board)        ≈ ln m_linear(board) + [ln m − ln m_linear](nominal)          (A2)
+
+and a board runs steady when its design does at nominal (the bursting verdict is
+the nominal one). Assumption: the steady-state pull of the frequency and the
+envelope's stability change little across the boards of one design (within the
+tolerances). Designs that do not start or burst at nominal, or where either model
+has no frequency there, are not approximated: every board of theirs goes through
+the large-signal model. ``amplifier.monte_carlo = "full"`` runs the large-signal
+model on every board; tests/test_large_signal_use.py measures the error of (A1)
+against it.
 
 Monte Carlo surrogate
 ---------------------
-The full model costs about 5 µs per board, too slow for a few thousand
+The full linear model costs about 5 µs per board, too slow for a few thousand
 candidates × 20,000 boards. Per design, at its nominal point, the ratio
 r = f_loaded/f_ideal and the margin m are expanded in x_i = ln(1 + d_i), the
 log deviation of each part (tolerance and drift), by finite differences of the
@@ -26,15 +52,15 @@ of ln r (first- and second-order Taylor expansions). The ideal tank's exact
 nonlinearity stays in f_ideal(board); only the loading correction r is
 expanded.
 
-Each call of the board model measures the expansions' error with the full model
-at the 2^k corners of the box its boards span (where a Taylor expansion is
+Each call of the board model measures the expansions' error with the full linear
+model at the 2^k corners of the box its boards span (where a Taylor expansion is
 worst) and decides every board in three tiers: (S1)/(S2) where the board lies
-more than twice that error from an edge (f_min, f_max, margin 1); (S3) for the
-rest where it lies more than twice its own corner error from the edge; the full
-model for what is left and for designs the surrogate cannot describe (a
-difference step or a corner that does not oscillate). Pass/fail then agrees
-with the full model on every board of the tests in tests/test_loaded.py;
-``amplifier.monte_carlo = "full"`` runs the full model on every board.
+more than twice that error from an edge (f_min, f_max, margin 1, ``max_margin``;
+each shifted by the design's nominal offset (A1)/(A2)); (S3) for the rest where
+it lies more than twice its own corner error from the edge; the full linear model
+(plus the offsets) for what is left and for designs the surrogate cannot describe
+(a difference step or a corner that does not oscillate). Pass/fail then agrees
+with the linear model on every board of the tests in tests/test_loaded.py.
 
 Axis convention: samples on axis 0, designs on axis 1.
 """
@@ -51,9 +77,10 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.network import LoadedResponse
 from picker.circuit.oscillation import loaded_response
+from picker.circuit.steady import SteadyState, steady_state
 from picker.core.search import Designs, Problem
 from picker.tank.base import Topology
-from picker.tank.board import Parasitics, board_frequency, board_values
+from picker.tank.board import Parasitics, board_frequency, board_sensitivities, board_values
 
 #: Central-difference step in ln x for the surrogate's sensitivities.
 SURROGATE_STEP = 0.01
@@ -64,9 +91,12 @@ METHODS = ("surrogate", "full")
 __all__ = [
     "METHODS",
     "LoadedModel",
+    "NominalState",
     "Surrogate",
+    "board_state",
     "fit_surrogate",
     "loaded_nominal",
+    "nominal_offsets",
     "surrogate_logs",
     "surrogate_response",
 ]
@@ -246,24 +276,91 @@ def surrogate_response(
     return np.exp(ln_f), np.exp(ln_m)
 
 
+@dataclass(frozen=True)
+class NominalState:
+    """Large-signal facts of designs at their nominal point, every array (c,).
+
+    ``approx`` marks designs the nominal-offset approximation (module docstring)
+    applies to: they start and run steady at nominal and both models give a finite
+    frequency and margin there. ``off_f`` = ln f_steady − ln f_linear and ``off_m`` =
+    ln m_steady − ln m_linear at nominal (0 where not ``approx``).
+    """
+
+    approx: np.ndarray
+    off_f: np.ndarray
+    off_m: np.ndarray
+
+    def take(self, sel: Any) -> NominalState:
+        return NominalState(self.approx[sel], self.off_f[sel], self.off_m[sel])
+
+
+def board_state(
+    topology: Topology,
+    values: Mapping[str, np.ndarray],
+    parasitics: Parasitics,
+    params: AmplifierParams,
+) -> SteadyState:
+    """The large-signal model (:func:`picker.circuit.steady.steady_state`) of boards with
+    *marked* values ``values``: the parasitics applied first, as :func:`loaded_nominal`."""
+    bv = board_values(
+        topology, {p: np.asarray(values[p], dtype=float) for p in topology.positions}, parasitics
+    )
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return steady_state(topology, bv, parasitics.stray, params)
+
+
+def nominal_offsets(
+    topology: Topology,
+    nominal: Mapping[str, np.ndarray],
+    parasitics: Parasitics,
+    params: AmplifierParams,
+) -> NominalState:
+    """:class:`NominalState` of designs with marked values ``nominal`` (n,): one call of the
+    linear model (:func:`loaded_nominal`) and one of the large-signal model (:func:`board_state`)."""
+    f_lin, m_lin = loaded_nominal(topology, nominal, parasitics, params)
+    st = board_state(topology, nominal, parasitics, params)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        off_f = np.log(st.f_hz) - np.log(f_lin)
+        off_m = np.log(st.margin) - np.log(m_lin)
+    approx = np.asarray(st.runs, dtype=bool) & np.isfinite(off_f) & np.isfinite(off_m)
+    return NominalState(
+        approx, np.where(approx, off_f, 0.0).reshape(-1), np.where(approx, off_m, 0.0).reshape(-1)
+    )
+
+
 class LoadedModel:
     """The Monte Carlo board model with the loaded oscillator (a :data:`BoardModel`).
 
-    ``model(vals, designs)`` returns the pass mask (samples, c): the board
-    starts (margin > 1) and its loaded frequency lies in [f_min, f_max].
-    ``method`` "surrogate" uses (S1)/(S2) with per-design coefficients, cached
-    by the design's index tuple; "full" runs the full model on every board.
+    ``model(vals, designs)`` returns the pass mask (samples, c): the board starts,
+    runs steady (:attr:`picker.circuit.steady.SteadyState.runs`), its start-up margin
+    is at most ``max_margin`` (when given) and its steady frequency lies in
+    [f_min, f_max]. ``method`` "surrogate" uses the nominal-offset approximation
+    (module docstring) with (S1)/(S2) for the spread, per-design coefficients cached
+    by the design's index tuple; "full" runs the large-signal model on every board.
+    :meth:`frequencies` gives the same boards' steady frequencies (the histogram and
+    the spread drivers), :meth:`sensitivities` their first-order sensitivities.
     """
 
     def __init__(
-        self, problem: Problem, params: AmplifierParams, method: str = "surrogate"
+        self,
+        problem: Problem,
+        params: AmplifierParams,
+        method: str = "surrogate",
+        max_margin: float | None = None,
     ) -> None:
         if method not in METHODS:
             raise ValueError(f"method must be one of {METHODS}, got {method!r}")
         self.problem = problem
         self.params = params
         self.method = method
+        self.max_margin = max_margin
         self._cache: dict[tuple[int, ...], np.ndarray] = {}
+        self._nominal: dict[tuple[int, ...], tuple[bool, float, float]] = {}
+
+    @property
+    def ln_max_margin(self) -> float:
+        """ln of the margin's upper bound (inf without one)."""
+        return math.inf if self.max_margin is None else math.log(self.max_margin)
 
     def _keys(self, designs: Designs) -> list[tuple[int, ...]]:
         pos = self.problem.topology.positions
@@ -284,29 +381,132 @@ class LoadedModel:
         rows = np.stack([self._cache[key] for key in keys]) if keys else np.zeros((0, 1))
         return Surrogate.from_rows(pos, designs.values(pb), rows)
 
+    def nominal(self, designs: Designs) -> NominalState:
+        """:func:`nominal_offsets` of ``designs`` (computed once per design, then cached);
+        nothing is approximated with ``method = "full"``."""
+        n = len(designs)
+        if self.method == "full":
+            return NominalState(np.zeros(n, dtype=bool), np.zeros(n), np.zeros(n))
+        pb = self.problem
+        keys = self._keys(designs)
+        missing = [i for i, key in enumerate(keys) if key not in self._nominal]
+        if missing:
+            sub = designs.take(np.asarray(missing))
+            s = nominal_offsets(pb.topology, sub.values(pb), pb.parasitics, self.params)
+            for j, i in enumerate(missing):
+                self._nominal[keys[i]] = (bool(s.approx[j]), float(s.off_f[j]), float(s.off_m[j]))
+        rows = [self._nominal[key] for key in keys]
+        return NominalState(
+            np.array([r[0] for r in rows], dtype=bool),
+            np.array([r[1] for r in rows], dtype=float),
+            np.array([r[2] for r in rows], dtype=float),
+        )
+
+    # ------------------------------------------------------------------ the full model
+
+    def _full(self, vals: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Steady frequency (NaN where it does not count), margin and pass mask, full model."""
+        pb = self.problem
+        st = board_state(pb.topology, vals, pb.parasitics, self.params)
+        counts = np.asarray(st.runs, dtype=bool) & ~(st.margin > self._max())
+        f = np.where(counts, st.f_hz, np.nan)
+        return f, st.margin, counts & (f >= pb.f_min) & (f <= pb.f_max)
+
+    def _max(self) -> float:
+        return math.inf if self.max_margin is None else self.max_margin
+
+    def _split(
+        self,
+        vals: Mapping[str, np.ndarray],
+        designs: Designs,
+        approx: Any,
+        full: Any,
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(f, margin, pass) of every board: ``approx(vals, designs, nom)`` on the designs
+        the approximation applies to, :meth:`_full` on the others."""
+        nom = self.nominal(designs)
+        if nom.approx.all():
+            return approx(vals, designs, nom)
+        shape = np.shape(vals[self.problem.topology.inductor])
+        f, m = np.full(shape, np.nan), np.full(shape, np.nan)
+        ok = np.zeros(shape, dtype=bool)
+        a, b = np.flatnonzero(nom.approx), np.flatnonzero(~nom.approx)
+        for cols, fn in ((a, None), (b, full)):
+            if cols.size == 0:
+                continue
+            sub = {p: v[:, cols] for p, v in vals.items()}
+            if fn is None:
+                f[:, cols], m[:, cols], ok[:, cols] = approx(
+                    sub, designs.take(cols), nom.take(cols)
+                )
+            else:
+                f[:, cols], m[:, cols], ok[:, cols] = fn(sub)
+        return f, m, ok
+
+    # ------------------------------------------------------------------ public views
+
     def response(
         self, vals: Mapping[str, np.ndarray], designs: Designs
     ) -> tuple[np.ndarray, np.ndarray]:
-        """Loaded frequency (Hz, NaN where none) and margin of every board, (samples, c)."""
+        """Steady frequency (Hz, NaN where the board does not count for a reason other than
+        its frequency) and start-up margin of every board, (samples, c)."""
         if self.method == "full":
-            pb = self.problem
-            f, m = loaded_nominal(pb.topology, vals, pb.parasitics, self.params)
+            f, m, _ = self._full(vals)
             return f, m
-        ln_f, ln_m = self._logs(vals, designs)
-        with np.errstate(invalid="ignore"):
-            return np.exp(ln_f), np.exp(ln_m)
+        f, m, _ = self._split(vals, designs, self._approx_logs, self._full)
+        return f, m
+
+    def frequencies(self, vals: Mapping[str, np.ndarray], designs: Designs) -> np.ndarray:
+        """Steady frequency of every board, Hz, (samples, c); NaN where the board does not
+        start, bursts or exceeds ``max_margin`` (counted outside the window: the share of
+        boards whose frequency lies in the window is the yield of :meth:`__call__`)."""
+        return self.response(vals, designs)[0]
+
+    def sensitivities(self, designs: Designs) -> dict[str, np.ndarray]:
+        """d ln f_steady / d ln x_i of each design at its marked values, position -> (n,).
+
+        Where the approximation applies: the ideal tank's board sensitivities plus the
+        surrogate's K_i (S1); elsewhere central differences (step :data:`SURROGATE_STEP`)
+        of the large-signal model's steady frequency (NaN where it does not run).
+        """
+        pb = self.problem
+        topo = pb.topology
+        nom = self.nominal(designs)
+        vals = designs.values(pb)
+        out = {p: np.full(len(designs), np.nan) for p in topo.positions}
+        a = np.flatnonzero(nom.approx)
+        if a.size:
+            d = designs.take(a)
+            sur = self.surrogate(d)
+            ideal = board_sensitivities(topo, d.values(pb), pb.parasitics)
+            for p in topo.positions:
+                out[p][a] = np.where(sur.valid, ideal[p] + sur.k[p], np.nan)
+        b = np.flatnonzero(~nom.approx)
+        if b.size:
+            h = SURROGATE_STEP
+            for p in topo.positions:
+                up = {q: vals[q][b] * (math.exp(h) if q == p else 1.0) for q in topo.positions}
+                dn = {q: vals[q][b] * (math.exp(-h) if q == p else 1.0) for q in topo.positions}
+                fu = board_state(topo, up, pb.parasitics, self.params)
+                fd = board_state(topo, dn, pb.parasitics, self.params)
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    out[p][b] = (np.log(fu.f_hz) - np.log(fd.f_hz)) / (2 * h)
+        return out
+
+    # ------------------------------------------------------------------ the approximation
 
     def _calibrate(
         self, vals: Mapping[str, np.ndarray], sur: Surrogate
-    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """Per design (c,): the surrogate's error bands and a margin bound over the boards' box.
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Per design (c,): the surrogate's error bands and its margin range over the boards' box.
 
         The box spans, per position, the smallest and largest value drawn. The error of
-        (S1)/(S2) is measured at its 2^k corners with the full model, where the
+        (S1)/(S2) is measured at its 2^k corners with the full linear model, where the
         expansions are worst; the bands are twice that (``band_f`` for (S1) and
         ``band_f2`` for (S3) in ln f, ``band_m`` in ln margin), infinite where a corner
-        does not oscillate or the design has no surrogate. ``starts`` marks designs whose linear margin over the
-        whole box stays more than ``band_m`` above 1, so no board can fail to start.
+        does not oscillate or the design has no surrogate. ``m_lo``, ``m_hi``: the
+        least and greatest ln margin by (S2) over the box (a linear function is extreme
+        at a corner); −inf and inf where unknown.
         """
         pb = self.problem
         topo = pb.topology
@@ -315,10 +515,11 @@ class LoadedModel:
         band_f = np.full(c, np.inf)
         band_f2 = np.full(c, np.inf)
         band_m = np.full(c, np.inf)
-        starts = np.zeros(c, dtype=bool)
+        m_lo = np.full(c, -np.inf)
+        m_hi = np.full(c, np.inf)
         ok = np.flatnonzero(sur.valid)
         if ok.size == 0 or vals[pos[0]].shape[0] == 0:
-            return band_f, band_f2, band_m, starts
+            return band_f, band_f2, band_m, m_lo, m_hi
         sub = sur.take(ok)
         box = {p: (vals[p].min(axis=0)[ok], vals[p].max(axis=0)[ok]) for p in pos}
         k = len(pos)
@@ -336,8 +537,9 @@ class LoadedModel:
         band_f[ok] = 2 * e_f + BAND_FLOOR
         band_f2[ok] = 2 * e_f2 + BAND_FLOOR
         band_m[ok] = 2 * e_m + BAND_FLOOR
-        starts[ok] = s_m.min(axis=0) > band_m[ok]  # a linear function is least at a corner
-        return band_f, band_f2, band_m, starts
+        m_lo[ok] = s_m.min(axis=0)
+        m_hi[ok] = s_m.max(axis=0)
+        return band_f, band_f2, band_m, m_lo, m_hi
 
     def _ln_margin(
         self, vals: Mapping[str, np.ndarray], sur: Surrogate, cols: np.ndarray
@@ -352,44 +554,56 @@ class LoadedModel:
             out += lnd
         return out
 
-    def _logs(
-        self, vals: Mapping[str, np.ndarray], designs: Designs
-    ) -> tuple[np.ndarray, np.ndarray]:
-        """ln f and ln margin, (samples, c): the surrogate, and the full model for the boards
-        it cannot decide (within a band of f_min, f_max or margin 1; :meth:`_calibrate`)."""
+    def _approx_logs(
+        self, vals: Mapping[str, np.ndarray], designs: Designs, nom: NominalState
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Steady f (NaN where not counted), margin and pass mask by the approximation:
+        (S3)/(S2) plus the nominal offsets, the full linear model (plus the offsets) for
+        boards within a band of f_min, f_max, margin 1 or ``max_margin``."""
         pb = self.problem
         topo = pb.topology
         sur = self.surrogate(designs)
-        _, band_f, band_m, _ = self._calibrate(vals, sur)
+        _, band_f, band_m, _, _ = self._calibrate(vals, sur)
         ln_f, ln_m = surrogate_logs(topo, sur, vals, pb.parasitics, second_order=True)
+        ln_f += nom.off_f
+        ln_m += nom.off_m
+        top = self.ln_max_margin
         with np.errstate(invalid="ignore"):
             full = np.abs(ln_f - math.log(pb.f_min)) < band_f
             full |= np.abs(ln_f - math.log(pb.f_max)) < band_f
             full |= np.abs(ln_m) < band_m
+            full |= np.abs(ln_m - top) < band_m
         full |= ~np.isfinite(band_f + band_m)[None, :]
         if full.any():
             sel = {p: vals[p][full] for p in topo.positions}
             fn, mn = loaded_nominal(topo, sel, pb.parasitics, self.params)
+            cols = np.nonzero(full)[1]
             with np.errstate(divide="ignore", invalid="ignore"):
-                ln_f[full], ln_m[full] = np.log(fn), np.log(mn)
-        return ln_f, ln_m
+                ln_f[full] = np.log(fn) + nom.off_f[cols]
+                ln_m[full] = np.log(mn) + nom.off_m[cols]
+        with np.errstate(invalid="ignore", over="ignore"):
+            counts = (ln_m > 0.0) & (ln_m <= top)
+            f = np.where(counts, np.exp(ln_f), np.nan)
+        return f, np.exp(ln_m), counts & (f >= pb.f_min) & (f <= pb.f_max)
 
-    def __call__(self, vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
+    def _approx_pass(
+        self, vals: Mapping[str, np.ndarray], designs: Designs, nom: NominalState
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Pass mask by the approximation in three tiers (module docstring); f and margin
+        are not computed here (NaN), only the mask."""
         pb = self.problem
         topo = pb.topology
-        if self.method == "full":
-            f, m = loaded_nominal(topo, vals, pb.parasitics, self.params)
-            return (m > 1.0) & (f >= pb.f_min) & (f <= pb.f_max)
         sur = self.surrogate(designs)
-        band_f, band_f2, band_m, starts = self._calibrate(vals, sur)
-        # ln f by (S1), then t = |ln f − centre| against the half-width, in place
+        band_f, band_f2, band_m, m_lo, m_hi = self._calibrate(vals, sur)
+        # ln f by (S1), then t = |ln f − centre| against the half-width, in place; the
+        # window is shifted by the design's nominal offset: ln f_lin + off_f in the window
         t = _ln_ideal(topo, vals, pb.parasitics)
         t += sur.ln_r0
         for p in topo.positions:
             lnd = np.log(vals[p] / sur.nominal[p])
             lnd *= sur.k[p]
             t += lnd
-        lo, hi = math.log(pb.f_min), math.log(pb.f_max)
+        lo, hi = math.log(pb.f_min) - nom.off_f, math.log(pb.f_max) - nom.off_f
         centre, half = 0.5 * (lo + hi), 0.5 * (hi - lo)
         t -= centre
         np.abs(t, out=t)
@@ -403,17 +617,31 @@ class LoadedModel:
             sub = sur.take(cols)
             v = {p: vals[p][rows, cols] for p in topo.positions}
             lf2, _ = surrogate_logs(topo, sub, v, pb.parasitics, second_order=True)
-            d2 = np.abs(lf2 - centre)
-            ok[rows, cols] = d2 <= half
-            near[rows, cols] = np.abs(d2 - half) < band_f2[cols]
-        cols = np.flatnonzero(~starts & np.isfinite(band_m))
+            d2 = np.abs(lf2 - centre[cols])
+            ok[rows, cols] = d2 <= half[cols]
+            near[rows, cols] = np.abs(d2 - half[cols]) < band_f2[cols]
+        # margin: ln m_lin + off_m in (0, ln max_margin]; skipped where the whole box is clear
+        m_min, m_max = -nom.off_m, self.ln_max_margin - nom.off_m
+        sure = (m_lo > m_min + band_m) & (m_hi < m_max - band_m)
+        cols = np.flatnonzero(~sure & np.isfinite(band_m))
         if cols.size:
             lm = self._ln_margin(vals, sur, cols)
-            ok[:, cols] &= lm > 0.0
-            near[:, cols] |= np.abs(lm) < band_m[cols]
+            ok[:, cols] &= (lm > m_min[cols]) & (lm <= m_max[cols])
+            near[:, cols] |= np.abs(lm - m_min[cols]) < band_m[cols]
+            near[:, cols] |= np.abs(lm - m_max[cols]) < band_m[cols]
         near[:, ~np.isfinite(band_f + band_m)] = True
         if near.any():
             sel = {p: vals[p][near] for p in topo.positions}
             f, m = loaded_nominal(topo, sel, pb.parasitics, self.params)
-            ok[near] = (m > 1.0) & (f >= pb.f_min) & (f <= pb.f_max)
-        return ok
+            c = np.nonzero(near)[1]
+            with np.errstate(invalid="ignore", over="ignore"):
+                f = f * np.exp(nom.off_f[c])
+                m = m * np.exp(nom.off_m[c])
+            ok[near] = (m > 1.0) & ~(m > self._max()) & (f >= pb.f_min) & (f <= pb.f_max)
+        nan = np.full(ok.shape, np.nan)
+        return nan, nan, ok
+
+    def __call__(self, vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
+        if self.method == "full":
+            return self._full(vals)[2]
+        return self._split(vals, designs, self._approx_pass, self._full)[2]

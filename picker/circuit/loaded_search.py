@@ -1,9 +1,12 @@
-"""The loaded-feasible search: every design whose *loaded* nominal frequency is in the
-window and whose start-up margin is at least the minimum.
+"""The loaded-feasible search: every design that starts, runs steady, has its *steady*
+nominal frequency in the window and a start-up margin within the bounds.
 
-A design is loaded-feasible when its loaded nominal frequency lies in the
-window, its start-up margin is at least ``min_margin`` and its feedback fraction
-lies in the feedback window. Loading moves the frequency by anything from a
+A design is loaded-feasible when, in the large-signal model
+(:func:`picker.circuit.steady.steady_state`), it starts and runs steady (does not
+burst), its steady nominal frequency lies in the window, its start-up margin is at
+least ``min_margin`` (and at most ``max_margin`` when given) and its feedback
+fraction lies in the feedback window. Designs that do not start or that burst are
+never ranked. Loading moves the frequency by anything from a
 fraction of a percent to tens of percent (small capacitors against the device
 capacitances and input resistance, or a blocking capacitor in series with a
 large C1), so a global widening of the ideal window would have to cover the
@@ -21,8 +24,15 @@ position's index range is found locally:
    the loop gain T at the window edges (the phase falls through zero at the
    oscillation frequency: φ(f_max) > 0 and φ(f_min) > 0 mean the crossing lies
    above the window; both < 0, below);
-3. run the full model on every design inside the range and keep those that meet
-   the window and the margin.
+3. run the full linear model on every design inside the range; on those it puts in
+   the window with a margin above 1, run the large-signal model and keep those that
+   run steady with their steady frequency in the window and their margin within
+   the bounds;
+4. the steady frequency differs from the linear one (the steady-state pull), so a
+   design whose linear frequency lies just outside the window may run inside it:
+   when the first pass saw a pull, steps 1-3 run again with the linear window
+   widened by :data:`PULL_SAFETY` times the largest pull seen (at most
+   :data:`MAX_WIDEN`). Assumption: no design's pull exceeds that.
 
 Assumption: for fixed outer parts the loaded frequency falls monotonically as
 the solved part (L or C3) grows, as the ideal one does. The result equals a
@@ -30,7 +40,8 @@ brute-force full-model evaluation of every combination on the small spaces of
 tests/test_loaded.py (several amplifiers, a lossy inductor, capacitors
 comparable to the device capacitances).
 
-The loaded figures come from :func:`picker.circuit.loaded.loaded_nominal`; the ideal
+The loaded figures come from :func:`picker.circuit.loaded.loaded_nominal` and
+:func:`picker.circuit.loaded.board_state`; the ideal
 enumeration (feedback pairs, solved position, analytic interval) is the exact
 search's own (:mod:`picker.core.search`).
 """
@@ -38,13 +49,13 @@ search's own (:mod:`picker.core.search`).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.loaded import loaded_nominal
+from picker.circuit.loaded import board_state, loaded_nominal
 from picker.circuit.network import loop_gain
 from picker.circuit.stages import small_signal
 from picker.core.search import CHUNK as SEARCH_CHUNK
@@ -61,6 +72,11 @@ from picker.tank.board import board_beta, board_frequency, board_values
 
 #: Outer combinations per chunk of the loaded search (bounds memory).
 OUTER_CHUNK = 1 << 15
+#: Step 4: the linear window is widened by this many times the largest steady-state
+#: pull |ln f_steady − ln f_linear| seen in the first pass (a safety factor of our own) ...
+PULL_SAFETY = 2.0
+#: ... and by at most this much (in ln f; 0.25 is about ±28 %).
+MAX_WIDEN = 0.25
 
 __all__ = ["LoadedSearch", "loaded_brute_force", "loaded_search"]
 
@@ -73,8 +89,12 @@ class LoadedSearch:
     ``f_loaded`` and ``margin`` are the loaded figures of the same designs
     (shape (n,)). ``in_window`` counts designs whose loaded frequency is in the
     window whatever their margin; ``low_margin`` holds up to
-    ``keep`` of those that fail only the margin, best margin first, with
-    ``low_margin_f`` and ``low_margin_m``.
+    ``keep`` of those whose margin is below the minimum, best margin first, with
+    ``low_margin_f`` and ``low_margin_m``. ``f_loaded`` and ``margin`` of the
+    feasible designs are the large-signal model's (steady frequency).
+    ``not_steady`` counts designs the linear model passes but that do not start or
+    that burst in the large-signal model; ``over_margin`` those whose margin exceeds
+    ``max_margin``.
     """
 
     designs: Designs
@@ -84,6 +104,8 @@ class LoadedSearch:
     low_margin: Designs
     low_margin_f: np.ndarray
     low_margin_m: np.ndarray
+    not_steady: int = 0
+    over_margin: int = 0
 
 
 ABOVE, INSIDE, BELOW, UNCLEAR = 1, 0, -1, 2
@@ -149,28 +171,60 @@ def _empty(topology: Topology) -> Designs:
 def _collect(
     problem: Problem,
     idx: dict[str, np.ndarray],
-    min_margin: float,
+    margins: tuple[float, float],
     params: AmplifierParams,
     keep: int,
     parts: dict[str, Any],
+    window: tuple[float, float] | None = None,
 ) -> None:
-    """Full model on candidate index tuples; append feasible and low-margin ones to ``parts``."""
+    """Both models on candidate index tuples; append feasible and low-margin ones to ``parts``.
+
+    The linear model (:func:`loaded_nominal`) sorts out the window (the search's
+    window ``problem.f_min..f_max``, which may be wider than the spec's ``window``)
+    and the start-up (margin > 1); the large-signal model (:func:`board_state`) then
+    decides, on what is left: runs steady, margin within ``margins``, steady
+    frequency within ``window`` (default: the problem's).
+    """
+    f_lo, f_hi = window if window is not None else (problem.f_min, problem.f_max)
+    m_lo, m_hi = margins
     vals = {p: problem.tables[p].values[i] for p, i in idx.items()}
     f_i = board_frequency(problem.topology, vals, problem.parasitics)
     beta = board_beta(problem.topology, vals, problem.parasitics)
     f_l, m = loaded_nominal(problem.topology, vals, problem.parasitics, params)
-    inw = (f_l >= problem.f_min) & (f_l <= problem.f_max)
-    inw &= (beta >= problem.beta_min) & (beta <= problem.beta_max)
-    ok = inw & (m >= min_margin)
+    fb = (beta >= problem.beta_min) & (beta <= problem.beta_max)
+    inw = fb & (f_l >= f_lo) & (f_l <= f_hi)
+    wide = fb & (f_l >= problem.f_min) & (f_l <= problem.f_max)
+    cand = np.flatnonzero(wide & (m > 1.0))
+    ok = np.zeros(len(f_l), dtype=bool)
+    f_s, m_s = f_l.copy(), m.copy()
+    if cand.size:
+        st = board_state(
+            problem.topology, {p: v[cand] for p, v in vals.items()}, problem.parasitics, params
+        )
+        f_s[cand], m_s[cand] = st.f_hz, st.margin
+        runs = np.asarray(st.runs, dtype=bool)
+        in_steady = (st.f_hz >= f_lo) & (st.f_hz <= f_hi)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            pull = np.abs(np.log(st.f_hz / f_l[cand]))
+        pull = pull[np.isfinite(pull)]
+        if pull.size:
+            parts["pull"] = max(parts["pull"], float(pull.max()))
+        ok[cand] = runs & in_steady & (st.margin >= m_lo) & ~(st.margin > m_hi)
+        parts["not_steady"] += int((~runs & (st.margin >= m_lo) & inw[cand]).sum())
+        parts["over_margin"] += int((runs & in_steady & (st.margin > m_hi)).sum())
     parts["ok"].append(
-        (Designs({p: i[ok] for p, i in idx.items()}, f_i[ok], beta[ok]), f_l[ok], m[ok])
+        (Designs({p: i[ok] for p, i in idx.items()}, f_i[ok], beta[ok]), f_s[ok], m_s[ok])
     )
     parts["in_window"] += int(inw.sum())
-    low = np.flatnonzero(inw & ~ok)
+    low = np.flatnonzero(inw & ~ok & (m_s < m_lo))
     if low.size:
-        low = low[np.argsort(-m[low], kind="stable")[:keep]]
+        low = low[np.argsort(-m_s[low], kind="stable")[:keep]]
         parts["low"].append(
-            (Designs({p: i[low] for p, i in idx.items()}, f_i[low], beta[low]), f_l[low], m[low])
+            (
+                Designs({p: i[low] for p, i in idx.items()}, f_i[low], beta[low]),
+                f_l[low],
+                m_s[low],
+            )
         )
 
 
@@ -188,7 +242,21 @@ def _finish(topology: Topology, parts: dict[str, Any], keep: int) -> LoadedSearc
     d, f, m = cat(parts["ok"])
     ld, lf, lm = cat(parts["low"])
     order = np.lexsort((np.arange(len(lm)), -lm))[:keep]
-    return LoadedSearch(d, f, m, parts["in_window"], ld.take(order), lf[order], lm[order])
+    return LoadedSearch(
+        d,
+        f,
+        m,
+        parts["in_window"],
+        ld.take(order),
+        lf[order],
+        lm[order],
+        parts["not_steady"],
+        parts["over_margin"],
+    )
+
+
+def _new_parts() -> dict[str, Any]:
+    return {"ok": [], "low": [], "in_window": 0, "not_steady": 0, "over_margin": 0, "pull": 0.0}
 
 
 def loaded_search(
@@ -196,14 +264,38 @@ def loaded_search(
     params: AmplifierParams,
     *,
     min_margin: float,
+    max_margin: float | None = None,
     max_designs: int = 5_000_000,
     keep: int = 5,
 ) -> LoadedSearch:
-    """Every loaded-feasible design of ``problem`` (module docstring, steps 1-3).
+    """Every loaded-feasible design of ``problem`` (module docstring, steps 1-4).
 
     Designs come in the order of the exact search's enumeration (outer
     combination, then the solved position ascending).
     """
+    margins = (min_margin, math.inf if max_margin is None else max_margin)
+    window = (problem.f_min, problem.f_max)
+    parts = _walk(problem, params, margins, window, max_designs, keep)
+    pull = parts["pull"]
+    if pull > 0.0:  # step 4: widen the linear window by the pull seen, and search again
+        w = min(MAX_WIDEN, PULL_SAFETY * pull)
+        wide = replace(
+            problem, f_min=problem.f_min * math.exp(-w), f_max=problem.f_max * math.exp(w)
+        )
+        parts = _walk(wide, params, margins, window, max_designs, keep)
+    return _finish(problem.topology, parts, keep)
+
+
+def _walk(
+    problem: Problem,
+    params: AmplifierParams,
+    margins: tuple[float, float],
+    window: tuple[float, float],
+    max_designs: int,
+    keep: int,
+) -> dict[str, Any]:
+    """Steps 1-3 over ``problem``'s (search) window; the designs' steady frequency must lie
+    in ``window``."""
     topo = problem.topology
     tabs = problem.tables
     outer = outer_enumeration(problem)
@@ -211,7 +303,7 @@ def loaded_search(
     sv = tabs[solved].values
     ns = len(sv)
     n_outer = outer.size
-    parts: dict[str, Any] = {"ok": [], "low": [], "in_window": 0}
+    parts = _new_parts()
     found = 0
     chunk = min(OUTER_CHUNK, SEARCH_CHUNK)
     for start in range(0, n_outer, chunk):
@@ -268,7 +360,7 @@ def loaded_search(
         inside = (code == INSIDE) | (code == UNCLEAR)
         cand = {p: i[inside] for p, i in cand.items()}
         before = len(parts["ok"])
-        _collect(problem, cand, min_margin, params, keep, parts)
+        _collect(problem, cand, margins, params, keep, parts, window)
         found += sum(len(x[1]) for x in parts["ok"][before:])
         if found > max_designs:
             raise SpecError(
@@ -276,17 +368,25 @@ def loaded_search(
                 "the part ranges or the frequency window, or raise search.max_designs",
                 key="search.max_designs",
             )
-    return _finish(topo, parts, keep)
+    return parts
 
 
 def loaded_brute_force(
-    problem: Problem, params: AmplifierParams, *, min_margin: float, keep: int = 5
+    problem: Problem,
+    params: AmplifierParams,
+    *,
+    min_margin: float,
+    max_margin: float | None = None,
+    keep: int = 5,
 ) -> LoadedSearch:
-    """Full-cube enumeration with the full model: the reference for tests (small spaces)."""
+    """Full-cube enumeration with both models: the reference for tests (small spaces)."""
     topo = problem.topology
     sizes = [len(problem.tables[p]) for p in topo.positions]
     grids = np.meshgrid(*[np.arange(n, dtype=np.int32) for n in sizes], indexing="ij")
     idx = {p: g.ravel() for p, g in zip(topo.positions, grids, strict=True)}
-    parts: dict[str, Any] = {"ok": [], "low": [], "in_window": 0}
-    _collect(problem, idx, min_margin, params, keep, parts)
+    parts = _new_parts()
+    margins = (min_margin, math.inf if max_margin is None else max_margin)
+    # the large-signal model on every design that starts, wherever its linear frequency
+    everywhere = replace(problem, f_min=0.0, f_max=math.inf)
+    _collect(everywhere, idx, margins, params, keep, parts, (problem.f_min, problem.f_max))
     return _finish(topo, parts, keep)

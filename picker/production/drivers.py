@@ -9,6 +9,15 @@ its squared standardised regression coefficient b_i²·var(x_i)/var(ln f)
 normalised so that the shares sum to one; R² tells how linear the model is
 (shares are only meaningful when R² is close to 1).
 
+Boards that do not oscillate (NaN frequency under a circuit-aware board model)
+carry no frequency and are left out of the fit.
+
+The frequencies and sensitivities come from the simulation's board model when it
+provides them (:class:`FrequencyModel`: the loaded model of
+:mod:`picker.circuit.loaded`, steady frequency of each board), so the drivers, the
+histogram and the yield describe the same boards; otherwise from the ideal tank
+(:func:`board_frequencies`, :func:`model_sensitivities`).
+
 Shapes: sampled inputs are (samples,) for one design.
 """
 
@@ -16,8 +25,50 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import Protocol, runtime_checkable
 
 import numpy as np
+
+from picker.core.montecarlo import Simulation
+from picker.core.search import Designs
+from picker.tank.board import board_frequency, board_sensitivities
+
+
+@runtime_checkable
+class FrequencyModel(Protocol):
+    """A board model that also gives each board's frequency and each design's sensitivities."""
+
+    def frequencies(self, vals: Mapping[str, np.ndarray], designs: Designs) -> np.ndarray:
+        """Frequency of every board, Hz, (samples, c); NaN where the board does not count
+        for a reason other than its frequency (it does not start or runs unsteadily)."""
+        ...
+
+    def sensitivities(self, designs: Designs) -> dict[str, np.ndarray]:
+        """d ln f / d ln x_i per position at the designs' marked values, (n,) each."""
+        ...
+
+
+def board_frequencies(
+    sim: Simulation, designs: Designs, vals: Mapping[str, np.ndarray]
+) -> np.ndarray:
+    """Frequency (Hz) of the sampled boards ``vals`` (position -> (samples, c)) by the
+    simulation's board model (a :class:`FrequencyModel`) or the ideal tank."""
+    model = sim.model
+    if isinstance(model, FrequencyModel):
+        return np.asarray(model.frequencies(vals, designs), dtype=float)
+    pb = sim.problem
+    return np.asarray(board_frequency(pb.topology, vals, pb.parasitics), dtype=float)
+
+
+def model_sensitivities(sim: Simulation, designs: Designs) -> dict[str, np.ndarray]:
+    """Log-sensitivities of the designs' frequency, position -> (n,), by the simulation's
+    board model (a :class:`FrequencyModel`) or the ideal tank
+    (:func:`picker.tank.board.board_sensitivities`)."""
+    model = sim.model
+    if isinstance(model, FrequencyModel):
+        return model.sensitivities(designs)
+    pb = sim.problem
+    return board_sensitivities(pb.topology, designs.values(pb), pb.parasitics)
 
 
 @dataclass(frozen=True)
@@ -57,6 +108,12 @@ def regression_fit(inputs: Mapping[str, np.ndarray], ln_f: np.ndarray) -> Regres
     names = list(inputs)
     y = np.asarray(ln_f, dtype=float)
     x = np.column_stack([np.asarray(inputs[k], dtype=float) for k in names])
+    rows = np.isfinite(y) & np.all(np.isfinite(x), axis=1)  # boards that oscillate
+    if not rows.all():
+        x, y = x[rows], y[rows]
+    if y.size < 2:
+        zero = {k: 0.0 for k in names}
+        return RegressionFit(zero, dict(zero), 1.0)
     xc = x - x.mean(axis=0)
     yc = y - y.mean()
     keep = xc.std(axis=0) > 0  # a constant input explains nothing

@@ -47,8 +47,7 @@ from picker.production.advice import (
     trimmer_advice,
     yield_function,
 )
-from picker.production.drivers import regression_fit
-from picker.tank.board import board_frequency, board_sensitivities
+from picker.production.drivers import board_frequencies, model_sensitivities, regression_fit
 
 #: Rows of u used for drivers, buy-tighter and plot figures (2^17, a Sobol block).
 EXTRAS_ROWS = 1 << 17
@@ -69,11 +68,11 @@ def first_order(sim: Simulation, designs: Designs, with_temperature: bool) -> di
     """First-order variance shares per position (and temperature), name -> (n,).
 
     :func:`picker.core.propagation.first_order_shares` of the board sensitivities
+    (the board model's: :func:`picker.production.drivers.model_sensitivities`)
     and part spreads; with a temperature range, σ_T is
     :func:`picker.core.propagation.temperature_std` over the grid.
     """
-    problem = sim.problem
-    sens = board_sensitivities(problem.topology, designs.values(problem), problem.parasitics)
+    sens = model_sensitivities(sim, designs)
     t_std = None
     if with_temperature:
         t_std = temperature_std(sens, _materials(sim), sim.temperatures)
@@ -83,8 +82,7 @@ def first_order(sim: Simulation, designs: Designs, with_temperature: bool) -> di
 
 def _worst_drift_index(sim: Simulation, d1: Designs) -> int:
     """Grid index where the drift spread of ln f is largest (first order)."""
-    problem = sim.problem
-    sens = board_sensitivities(problem.topology, d1.values(problem), problem.parasitics)
+    sens = model_sensitivities(sim, d1)
     mats = _materials(sim)
     per_t = [float(temperature_std(sens, mats, [t])[0]) for t in sim.temperatures]
     return int(np.argmax(per_t))
@@ -101,16 +99,16 @@ def monte_carlo_drivers(
     first-order spread is largest.
     """
     problem = sim.problem
-    topo, par = problem.topology, problem.parasitics
+    topo = problem.topology
     vals = sampled_values(sim, d1, u)
     nominal = d1.values(problem)
     inputs = {p: np.log(vals[p][:, 0] / nominal[p][0]) for p in topo.positions}
-    ln_f = np.log(board_frequency(topo, vals, par)[:, 0])
+    ln_f = np.log(board_frequencies(sim, d1, vals)[:, 0])
     t_worst = None
     drift = drift_factors(sim, u)
     if with_temperature and drift:
         i = _worst_drift_index(sim, d1)
-        ln_ft = np.log(board_frequency(topo, values_at(vals, drift, i), par)[:, 0])
+        ln_ft = np.log(board_frequencies(sim, d1, values_at(vals, drift, i))[:, 0])
         inputs[TEMPERATURE] = ln_ft - ln_f
         ln_f, t_worst = ln_ft, float(sim.temperatures[i])
     fit = regression_fit(inputs, ln_f)
@@ -221,7 +219,7 @@ def plot_inputs(
         per_t = [count_passing(at_temperatures(sim, [t]), d1, ux)[0] for t in sim.temperatures]
         i = int(np.argmin(per_t))
         t_label = float(sim.temperatures[i])
-    f = board_frequency(problem.topology, values_at(vals, drift, i), problem.parasitics)[:, 0]
+    f = board_frequencies(sim, d1, values_at(vals, drift, i))[:, 0]
     shares = {k: float(v[0]) for k, v in first_order(sim, d1, with_t).items()}
     return {
         "frequencies": f,

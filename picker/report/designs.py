@@ -278,6 +278,12 @@ def _span(c: Candidate, target: float) -> str:
     return f"{signed_pct(lo)}..{signed_pct(hi)}"
 
 
+def _envelope(c: Candidate) -> str:
+    """The run verdict of the large-signal model: "steady", "bursting" or "no start"."""
+    ls = c.extra.get("large_signal") or {}
+    return ls.get("envelope") or "no start"
+
+
 def _margins(c: Candidate) -> str:
     m, w = c.extra.get("startup_margin"), c.extra.get("startup_margin_worst")
     return f"{m:.2f} ({w:.2f})"
@@ -290,8 +296,10 @@ def _print_cautions(r: SolveResult, console: Console) -> None:
         for text in c.extra.get("cautions", ()):
             seen.setdefault(text, []).append(c.rank)
     console.print(
-        "f loaded: the loaded model (transistor, bias network, losses); error is against "
-        "the loaded frequency. margin: loop gain at start-up, nominal (worst board).",
+        "f loaded: the steady frequency of the loaded model (transistor, bias network, "
+        "losses); error is against it. runs: steady or bursting (large-signal model); only "
+        "boards that start and run steady count towards yield. margin: loop gain at "
+        "start-up, nominal (worst board).",
         markup=False,
         highlight=False,
     )
@@ -335,6 +343,7 @@ def design_columns(r: SolveResult) -> list[Col]:
                 priority=2,
             )
         )
+        cols.append(Col("runs", [_envelope(c) for c in cs], priority=2))
     else:
         cols.append(Col("f nominal", [_hz(c.f_nominal_hz) for c in cs], priority=2))
     if any(_cost_of(c) is not None for c in cs):

@@ -73,7 +73,8 @@ def plot_histogram(
     Parameters
     ----------
     f_samples : array_like, shape (samples,)
-        Frequency of each simulated board, Hz (at the worst temperature, or 25 °C).
+        Frequency of each simulated board, Hz (at the worst temperature, or 25 °C); NaN
+        for a board that does not run (counted in the share, outside the window).
     f_min, f_max : float
         The frequency window, Hz.
     target : float
@@ -89,7 +90,9 @@ def plot_histogram(
         The file written.
     """
     f = np.asarray(f_samples, dtype=float).ravel()
+    n_all = f.size  # NaN: a board that does not run (counted outside the window)
     f = f[np.isfinite(f)]
+    idle = n_all - f.size
     inside = (f >= f_min) & (f <= f_max)
     lo = min(f.min(initial=f_min), f_min)
     hi = max(f.max(initial=f_max), f_max)
@@ -97,7 +100,7 @@ def plot_histogram(
     edges = np.linspace(lo - pad, hi + pad, bins + 1)
     fig = Figure(figsize=_SIZE)
     ax = fig.add_subplot()
-    weights = np.full(f.size, 100.0 / max(f.size, 1))
+    weights = np.full(f.size, 100.0 / max(n_all, 1))
     ax.hist(f[inside], edges.tolist(), weights=weights[inside], color=_IN, label="in window")
     ax.hist(f[~inside], edges.tolist(), weights=weights[~inside], color=_OUT, label="outside")
     ax.axvspan(f_min, f_max, color=_WINDOW, alpha=0.15, lw=0)
@@ -121,12 +124,13 @@ def plot_histogram(
 
     top = ax.secondary_xaxis("top", functions=(to_dev, from_dev))
     top.set_xlabel("deviation from target (%)")
-    share = inside.mean() if f.size else 0.0
+    share = inside.sum() / n_all if n_all else 0.0
+    note = f"\n{idle} boards do not run steady" if idle else ""
     ax.text(
         0.01,
         0.97,
         f"window {format_quantity(f_min, 'Hz')} – {format_quantity(f_max, 'Hz')}\n"
-        f"{share:.2%} of {f.size} boards inside",
+        f"{share:.2%} of {n_all} boards inside{note}",
         transform=ax.transAxes,
         va="top",
         fontsize=9,

@@ -13,6 +13,7 @@ Example (every quantity accepts engineering strings; bare numbers are SI)::
     c_emitter = "100 nF"         # omit: unbypassed emitter (degeneration)
     c_coupling = "10 nF"         # collector-to-tank blocking capacitor; omit: none (flagged)
     min_margin = 2.0             # smallest acceptable start-up margin (default 2)
+    max_margin = 20              # largest acceptable start-up margin (omit: no bound)
     monte_carlo = "surrogate"    # or "full": the loaded model on every simulated board
 
 ``stage`` takes the name of a registered stage (:data:`picker.circuit.stages.STAGES`:
@@ -89,6 +90,7 @@ class AmplifierSpec(BaseModel):
     c_emitter: float | None = None
     c_coupling: float | None = None
     min_margin: float = 2.0
+    max_margin: float | None = None
     monte_carlo: Literal["surrogate", "full"] = "surrogate"
 
     @model_validator(mode="before")
@@ -150,6 +152,17 @@ class AmplifierSpec(BaseModel):
     def _margin(cls, v: Any) -> float:
         if isinstance(v, bool) or not isinstance(v, int | float) or not 1 <= v <= 100:
             raise ValueError(f"expected a start-up margin between 1 and 100 such as 2; got {v!r}")
+        return float(v)
+
+    @field_validator("max_margin", mode="before")
+    @classmethod
+    def _max_margin(cls, v: Any, info: ValidationInfo) -> float:
+        low = info.data.get("min_margin", 1.0)
+        if isinstance(v, bool) or not isinstance(v, int | float) or not low < v <= 10_000:
+            raise ValueError(
+                f"expected a largest start-up margin above min_margin ({low:g}) and at most "
+                f"10000 such as 20; got {v!r}"
+            )
         return float(v)
 
     @model_validator(mode="after")
