@@ -1,0 +1,207 @@
+"""Start-up as a stability test: the natural frequencies of the linearised closed loop.
+
+The linearised oscillator is a linear circuit; it starts when one of its natural
+frequencies (a root of det(Y(s) + gm stamp) = det(Y(s))·(1 − T(s)), assumption 2
+of :mod:`picker.circuit.network`) lies in the right half-plane. The passive network
+Y alone is stable (it is built of resistors, capacitors and inductors), so by the
+Nyquist criterion (Nyquist, "Regeneration theory", Bell Syst. Tech. J. 11, 1932;
+in the form Z = N + P with P = 0 open-loop poles in the right half-plane) the
+number of right-half-plane roots of 1 − T equals the number of clockwise
+encirclements of the point +1 by T(jω), ω from −∞ to ∞. By the symmetry
+T(−jω) = conj T(jω) this is twice the net number of crossings of the ray (1, ∞)
+on the positive real axis for ω > 0, each counted +1 where Im T goes from
+positive to negative (a pole pair moving into the right half-plane as gm grows)
+and −1 the other way:
+
+    pole pairs in the right half-plane = Σ_k d_k·[T_k > 1]                  (N1)
+
+with T_k the (real) value of T at the k-th zero-phase crossing and d_k its
+direction. Scaling gm by g moves the crossings' values to g·T_k, so (N1) with
+g·T_k tells for every g how many pole pairs are unstable; the **margin** is the
+factor gm may fall by before the count drops to zero (the |T_k| of the crossing
+where the last pole pair leaves), which equals the loaded model's |T| at its
+zero-phase crossing wherever that crossing is the only one.
+
+"|T| > 1 at a zero-phase crossing" is not this test: with two crossings beyond +1
+in opposite directions there is no net encirclement and the circuit is stable
+(tests/test_stability.py builds one and checks it against the eigenvalues of a
+state matrix).
+
+The crossings are found on a grid of frequencies: a geometric grid over
+0.05 … 20 times the ideal tank frequency, refined around each open-loop pole
+(the tank's, and the strongest peak of |T| on the coarse grid, e.g. a collector
+choke's resonance) over ±12 half-bandwidths; each bracket is refined by the
+Illinois method (:func:`picker.circuit.oscillation.refine_zero_phase`). The
+closed-loop pole itself (its frequency at start-up and its growth rate) is then
+found by a complex secant iteration on 1/T(s) − 1 = 0 from the crossing.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.network import Network
+from picker.circuit.oscillation import CHUNK, refine_zero_phase, tank_pole
+from picker.tank.base import TWO_PI, Topology
+
+__all__ = ["Startup", "closed_loop_pole", "startup", "startup_chunk"]
+
+_COARSE = np.geomspace(0.05, 20.0, 121)  # multiples of the ideal tank frequency
+_LOCAL = np.linspace(-12.0, 12.0, 33)  # around an open-loop pole, in its half-bandwidths
+_SECANT_IT = 40
+
+
+@dataclass(frozen=True)
+class Startup:
+    """The linearised closed loop of boards (1-D arrays, one per element).
+
+    ``starts``: a pole pair lies in the right half-plane (N1). ``margin``: see the module
+    docstring (for a board that does not start: the largest T_k ≤ 1 whose crossing
+    would start it, 0 where none). ``w_cross``: the zero-phase frequency (rad/s) of the
+    crossing that sets the margin (NaN where none). ``pole``: the closed-loop natural
+    frequency near that crossing at the actual gm (complex, rad/s; NaN where not
+    found); its real part is the start-up growth rate. ``pairs``: the number of pole
+    pairs in the right half-plane.
+    """
+
+    starts: np.ndarray
+    margin: np.ndarray
+    w_cross: np.ndarray
+    pole: np.ndarray
+    pairs: np.ndarray
+
+
+def _t(s: np.ndarray, net: Network, idx: np.ndarray) -> np.ndarray:
+    return net.return_ratio(s, idx)  # type: ignore[no-any-return]
+
+
+def closed_loop_pole(
+    net: Network, idx: np.ndarray, s0: np.ndarray, s1: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """A root of 1/T(s) − 1 (a natural frequency of the closed loop) by the complex
+    secant method from ``s0``, ``s1`` (one per element of ``idx``); returns (s, ok).
+
+    Near a tank mode 1/T is close to linear in s (T has a simple pole there), so the
+    secant method converges in a few steps from a point near the mode.
+    """
+    h0 = 1.0 / _t(s0, net, idx) - 1.0
+    h1 = 1.0 / _t(s1, net, idx) - 1.0
+    done = np.zeros(s0.shape, dtype=bool)
+    for _ in range(_SECANT_IT):
+        dh = h1 - h0
+        good = (dh != 0) & np.isfinite(dh) & ~done
+        step = np.where(good, h1 * (s1 - s0) / np.where(good, dh, 1.0), 0.0)
+        s0, h0 = np.where(good, s1, s0), np.where(good, h1, h0)
+        s1 = s1 - step
+        done |= np.abs(step) <= 1e-13 * np.abs(s1)
+        live = np.nonzero(good)[0]
+        if live.size == 0:
+            break
+        h1 = h1.copy()
+        h1[live] = 1.0 / _t(s1[live], net, idx[live]) - 1.0
+    ok = np.isfinite(s1) & (np.abs(h1) <= 1e-8) & (s1.imag > 0)
+    return s1, ok
+
+
+def _grid(net: Network, idx: np.ndarray, w0: np.ndarray) -> np.ndarray:
+    """Frequencies (points × elements, sorted per element) to look for crossings on."""
+    coarse = w0[None, :] * _COARSE[:, None]
+    t = np.stack([_t(1j * w, net, idx) for w in coarse])
+    vals = {p: net.el[p][idx] for p in net.topology.positions}
+    loaded = net.stage.loaded_tank(net.topology, vals, net.ss)
+    w_est = TWO_PI * net.topology.frequency(loaded, net.el["stray"][idx])
+    peak = coarse[np.argmax(np.abs(t), axis=0), np.arange(idx.size)]
+    parts = [coarse]
+    for start in (w_est, peak):
+        sp, ok = tank_pole(start, net, idx)
+        wp = np.where(ok, sp.imag, start)
+        sig = np.where(ok, np.maximum(-sp.real, 1e-6 * wp), 2e-3 * wp)
+        parts.append(np.maximum(wp[None, :] + sig[None, :] * _LOCAL[:, None], 1e-3 * wp))
+    return np.sort(np.concatenate(parts), axis=0)
+
+
+def _crossings(
+    net: Network, idx: np.ndarray, grid: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Every zero-phase crossing of T on ``grid``, refined: (element, ω, T_k, d_k), flat."""
+    t = np.stack([_t(1j * w, net, idx) for w in grid])
+    ph = np.angle(t)
+    cross = (np.sign(ph[:-1]) != np.sign(ph[1:])) & (np.abs(ph[:-1] - ph[1:]) < np.pi)
+    cross &= np.isfinite(ph[:-1]) & np.isfinite(ph[1:])
+    r, col = np.nonzero(cross)
+    if r.size == 0:
+        empty = np.zeros(0)
+        return col, empty, empty, empty
+    a, b = grid[r, col], grid[r + 1, col]
+    fa, fb = ph[r, col], ph[r + 1, col]
+    sub = idx[col]
+    w = refine_zero_phase(a, b, fa, fb, net, sub)
+    tk = _t(1j * w, net, sub).real
+    d = np.where(fa > fb, 1.0, -1.0)  # Im T from + to −: a pole pair moves right (N1)
+    return col, w, tk, d
+
+
+def startup_chunk(net: Network, idx: np.ndarray) -> Startup:
+    """:class:`Startup` of the elements ``idx`` of ``net`` (see the module docstring)."""
+    n = idx.size
+    el, topology = net.el, net.topology
+    w0 = TWO_PI * topology.frequency({p: el[p][idx] for p in topology.positions}, el["stray"][idx])
+    col, w, tk, d = _crossings(net, idx, _grid(net, idx, w0))
+    count = np.bincount(col, minlength=n)
+    kmax = max(int(count.max()) if n else 0, 1)
+    order = np.lexsort((tk, col))
+    col, w, tk, d = col[order], w[order], tk[order], d[order]
+    first = np.concatenate(([0], np.cumsum(count)[:-1]))
+    pos = np.arange(col.size) - first[col]
+    tpad = np.full((n, kmax), np.inf)
+    dpad = np.zeros((n, kmax))
+    wpad = np.full((n, kmax), np.nan)
+    tpad[col, pos], dpad[col, pos], wpad[col, pos] = tk, d, w
+    # suffix[j] = Σ_{k ≥ j} d_k: the pole pairs in the right half-plane when 1/g ∈ (T_{j−1}, T_j)
+    suffix = np.concatenate([np.cumsum(dpad[:, ::-1], axis=1)[:, ::-1], np.zeros((n, 1))], axis=1)
+    j0 = np.sum(tpad <= 1.0, axis=1)
+    rows = np.arange(n)
+    pairs = suffix[rows, j0]
+    starts = pairs > 0
+    ks = np.arange(kmax)[None, :]
+    # starting: the first crossing at or above j0 below which no pole pair is left
+    stop = (ks >= j0[:, None]) & (suffix[:, 1:] <= 0) & np.isfinite(tpad)
+    j_up = np.where(stop.any(axis=1), np.argmax(stop, axis=1), 0)
+    # not starting: the nearest crossing below j0 that would start it as gm grows
+    would = (ks < j0[:, None]) & (suffix[:, :-1] > 0)
+    j_dn = np.where(would.any(axis=1), kmax - 1 - np.argmax(would[:, ::-1], axis=1), -1)
+    j = np.where(starts, j_up, j_dn)
+    has = np.where(starts, stop.any(axis=1), j_dn >= 0)
+    jj = np.maximum(j, 0)
+    margin = np.where(has, tpad[rows, jj], 0.0)
+    w_cross = np.where(has, wpad[rows, jj], np.nan)
+    pole = np.full(n, np.nan + 0j)
+    live = np.nonzero(starts & has & np.isfinite(w_cross))[0]
+    if live.size:
+        wc = w_cross[live]
+        s, ok = closed_loop_pole(net, idx[live], 1j * wc, wc * (1e-3 + 1.0005j))
+        pole[live] = np.where(ok & (s.real > 0), s, np.nan)
+    return Startup(starts & has, margin, w_cross, pole, pairs)
+
+
+def startup(
+    topology: Topology, values: Mapping[str, Any], stray: Any, params: AmplifierParams
+) -> tuple[Network, Startup]:
+    """The network of boards ``values`` (flattened) and its :class:`Startup`, in chunks of
+    :data:`picker.circuit.oscillation.CHUNK` elements."""
+    net = Network.build(topology, values, stray, params)
+    parts = [
+        startup_chunk(net, np.arange(a, min(a + CHUNK, net.size)))
+        for a in range(0, net.size, CHUNK)
+    ]
+    if not parts:
+        z = np.zeros(0)
+        return net, Startup(z.astype(bool), z, z, z.astype(complex), z)
+    return net, Startup(
+        *(np.concatenate([getattr(p, f) for p in parts]) for f in Startup.__dataclass_fields__)
+    )
