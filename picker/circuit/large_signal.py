@@ -21,6 +21,11 @@ Analysis and Design*, 1971):
    first harmonic is that of an ideal limiter at the headroom H (describing function
    N(r) = (2/π)·(asin(1/r) + (1/r)·√(1 − 1/r²)) for a sine of r·H, Gelb & Vander
    Velde, ch. 2, saturation), so the fundamental at the output is at most 4H/π.
+   H = V_out,rest − (I − I_rest)·R_E·(1 + 1/β) − V_knee: the emitter rises with the
+   mean emitter current; the output's own DC drop through its load is left out,
+   because in saturation the output current pulse is cut short and its mean no
+   longer follows the device law (a modelling choice, checked against ngspice on
+   a development set of random designs; see the README).
 5. **Steady state**: the closed loop with the compressed device has a natural
    frequency on the imaginary axis. Solved as c* (the compression where the pole
    found by :func:`picker.circuit.stability.closed_loop_pole` has zero real part;
@@ -122,7 +127,7 @@ def compression(
     c = cur.h1 / (np.maximum(a, 1e-300) * loop.gm_rest)
     c = np.where(a > 0, c, 1.0)
     r_e_dc = loop.r_e * (1.0 + 1.0 / loop.beta)
-    head = loop.v_out - (cur.mean - loop.i_rest) * (loop.r_out + r_e_dc) - loop.v_knee
+    head = loop.v_out - (cur.mean - loop.i_rest) * r_e_dc - loop.v_knee
     with np.errstate(divide="ignore", invalid="ignore"):
         q = np.where(head > 0, a * ratio / head, np.inf)
     return c * limiter_gain(q), dv, cur
@@ -187,19 +192,23 @@ def loop_compression(
         dev = net.with_device(stage.compressed(params, ss, c, np.ones(n)))
         return closed_loop_pole(dev, idx, s_from, s_from * (1.0 + 1e-4) + 1e-4 * s_from.imag)
 
-    u_hi = np.zeros(idx.size)
-    s_hi = pole0
     u_lo = -np.log(margin) - 0.3
-    s_lo, ok = pole_at(u_lo, 1j * w_cross)
-    for _ in range(4):  # widen until the pole is stable
-        bad = ~ok | (s_lo.real >= 0)
-        if not bad.any():
+    u_hi = np.minimum(-np.log(margin) + 0.3, 0.0)
+    s_lo, ok_lo = pole_at(u_lo, 1j * w_cross)
+    s_hi, ok_hi = pole_at(u_hi, 1j * w_cross)
+    for _ in range(4):  # widen until the bracket holds a stable and an unstable pole
+        bad_lo = ~ok_lo | (s_lo.real >= 0)
+        bad_hi = (~ok_hi | (s_hi.real <= 0)) & (u_hi < 0)
+        if not (bad_lo.any() or bad_hi.any()):
             break
-        u_lo = np.where(bad, u_lo - 1.0, u_lo)
-        s_new, ok_new = pole_at(u_lo, 1j * w_cross)
-        s_lo = np.where(bad, s_new, s_lo)
-        ok = np.where(bad, ok_new, ok)
-    valid = ok & (s_lo.real < 0) & np.isfinite(s_hi)
+        u_lo = np.where(bad_lo, u_lo - 1.0, u_lo)
+        u_hi = np.where(bad_hi, np.minimum(u_hi + 1.0, 0.0), u_hi)
+        s1, o1 = pole_at(u_lo, np.where(np.isfinite(s_lo), s_lo, 1j * w_cross))
+        s2, o2 = pole_at(u_hi, np.where(np.isfinite(s_hi), s_hi, 1j * w_cross))
+        s_lo, ok_lo = np.where(bad_lo, s1, s_lo), np.where(bad_lo, o1, ok_lo)
+        s_hi, ok_hi = np.where(bad_hi, s2, s_hi), np.where(bad_hi, o2, ok_hi)
+    s_hi = np.where(ok_hi, s_hi, pole0)
+    valid = ok_lo & (s_lo.real < 0) & np.isfinite(s_hi) & (s_hi.real > 0)
     f_lo, f_hi = s_lo.real / s_lo.imag, s_hi.real / s_hi.imag
     u, s = u_lo.copy(), s_lo.copy()
     fu = f_lo.copy()

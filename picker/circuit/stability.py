@@ -49,7 +49,7 @@ from picker.circuit.network import Network
 from picker.circuit.oscillation import CHUNK, refine_zero_phase, tank_pole
 from picker.tank.base import TWO_PI, Topology
 
-__all__ = ["Startup", "closed_loop_pole", "startup", "startup_chunk"]
+__all__ = ["Startup", "closed_loop_pole", "pole_from_crossing", "startup", "startup_chunk"]
 
 _COARSE = np.geomspace(0.05, 20.0, 121)  # multiples of the ideal tank frequency
 _LOCAL = np.linspace(-12.0, 12.0, 33)  # around an open-loop pole, in its half-bandwidths
@@ -81,16 +81,22 @@ def _t(s: np.ndarray, net: Network, idx: np.ndarray) -> np.ndarray:
 
 
 def closed_loop_pole(
-    net: Network, idx: np.ndarray, s0: np.ndarray, s1: np.ndarray
+    net: Network,
+    idx: np.ndarray,
+    s0: np.ndarray,
+    s1: np.ndarray,
+    gain: np.ndarray | float = 1.0,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """A root of 1/T(s) − 1 (a natural frequency of the closed loop) by the complex
-    secant method from ``s0``, ``s1`` (one per element of ``idx``); returns (s, ok).
+    """A root of 1/(g·T(s)) − 1 (a natural frequency of the closed loop with the controlled
+    source scaled by ``gain`` g) by the complex secant method from ``s0``, ``s1`` (one per
+    element of ``idx``); returns (s, ok).
 
     Near a tank mode 1/T is close to linear in s (T has a simple pole there), so the
     secant method converges in a few steps from a point near the mode.
     """
-    h0 = 1.0 / _t(s0, net, idx) - 1.0
-    h1 = 1.0 / _t(s1, net, idx) - 1.0
+    g = np.broadcast_to(np.asarray(gain, dtype=float), s0.shape)
+    h0 = 1.0 / (g * _t(s0, net, idx)) - 1.0
+    h1 = 1.0 / (g * _t(s1, net, idx)) - 1.0
     done = np.zeros(s0.shape, dtype=bool)
     for _ in range(_SECANT_IT):
         dh = h1 - h0
@@ -103,9 +109,26 @@ def closed_loop_pole(
         if live.size == 0:
             break
         h1 = h1.copy()
-        h1[live] = 1.0 / _t(s1[live], net, idx[live]) - 1.0
+        h1[live] = 1.0 / (g[live] * _t(s1[live], net, idx[live])) - 1.0
     ok = np.isfinite(s1) & (np.abs(h1) <= 1e-8) & (s1.imag > 0)
     return s1, ok
+
+
+def pole_from_crossing(
+    net: Network, idx: np.ndarray, w_cross: np.ndarray, margin: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """The closed-loop pole at the actual gm, followed from the crossing: at g = 1/margin
+    it sits at j·w_cross; g is raised to 1 in steps of at most a factor 1.5, each a
+    secant solve from the pole of the step before (continuation). Returns (s, ok)."""
+    steps = max(int(np.ceil(np.log(max(float(np.max(margin, initial=1.0)), 1.0)) / np.log(1.5))), 1)
+    s = 1j * w_cross
+    ok = np.ones(idx.shape, dtype=bool)
+    for i in range(1, steps + 1):
+        g = margin ** (i / steps - 1.0)
+        s_new, ok_i = closed_loop_pole(net, idx, s, s * (1.0 + 1e-4) + 1e-4 * s.imag, g)
+        ok &= ok_i
+        s = np.where(ok_i, s_new, s)
+    return s, ok
 
 
 def _grid(net: Network, idx: np.ndarray, w0: np.ndarray) -> np.ndarray:
@@ -183,8 +206,7 @@ def startup_chunk(net: Network, idx: np.ndarray) -> Startup:
     pole = np.full(n, np.nan + 0j)
     live = np.nonzero(starts & has & np.isfinite(w_cross))[0]
     if live.size:
-        wc = w_cross[live]
-        s, ok = closed_loop_pole(net, idx[live], 1j * wc, wc * (1e-3 + 1.0005j))
+        s, ok = pole_from_crossing(net, idx[live], w_cross[live], margin[live])
         pole[live] = np.where(ok & (s.real > 0), s, np.nan)
     return Startup(starts & has, margin, w_cross, pole, pairs)
 
