@@ -29,7 +29,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.envelope import bursting, startup_time
+from picker.circuit.envelope import SATURATED_BURST, bursting, startup_time
 from picker.circuit.large_signal import loop_compression, solve_drive
 from picker.circuit.network import Network
 from picker.circuit.oscillation import CHUNK
@@ -175,12 +175,12 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     r_e_dc = loop.r_e * (1.0 + 1.0 / loop.beta)
     v_out = loop.v_out - (cur.mean - loop.i_rest) * (loop.r_out + r_e_dc)
     p_dev = v_out * cur.mean - 0.5 * a * ratio * c_star * ss.gm * a
-    # slow capacitance at the input node: the tank and the blocking capacitor at ω/1000
+    burst, lam = bursting(net, sub, loop, a, drive.dv, k, c_star, ratio, w)
+    # the bias settling time the start-up time compares with: R_E·C_E and the input
+    # node's DC capacitance through R_th (:func:`picker.circuit.envelope.startup_time`)
     s_lo = 1e-3j * w
-    y_out, y_in, y_br = net.tank_admittances(s_lo, sub)
-    y_top = y_out + (s_lo * params.c_block if params.c_block is not None else 1e6)
-    c_b = ((y_in + y_br * y_top / (y_br + y_top)) / s_lo).real + ss.c_pi
-    burst, lam = bursting(stage, params, ss, loop, a, drive.dv, cur.mean, k, c_star, ratio, c_b)
+    _, y_in, _ = net.tank_admittances(s_lo, sub)
+    c_b = (y_in / s_lo).real + ss.c_pi
     # the kick: charge 2·I_kick/ω exciting the start-up pole through its residue
     t0 = net.return_ratio(pole0, sub, nodes=True)
     t1 = net.return_ratio(pole0 * (1 + 1e-6), sub)
@@ -195,6 +195,8 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     out["overdriven"][sub] = drive.saturated | ~good
     out["peak_current_a"][sub] = np.where(good, cur.peak, np.nan)
     out["dissipation_w"][sub] = np.where(good & np.isfinite(v_out), np.maximum(p_dev, 0.0), np.nan)
-    out["bursting"][sub] = burst & good
+    # saturated boards: the relaxation criterion (picker.circuit.envelope.SATURATED_BURST)
+    relax = loop.r_e * loop.c_e > SATURATED_BURST * t_up
+    out["bursting"][sub] = np.where(drive.saturated, relax, burst) & good
     out["envelope_rate"][sub] = np.where(good, lam, np.nan)
     out["startup_time_s"][sub] = np.where(good, t_up, np.nan)
