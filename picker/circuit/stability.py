@@ -54,6 +54,8 @@ __all__ = ["Startup", "closed_loop_pole", "pole_from_crossing", "startup", "star
 _COARSE = np.geomspace(0.05, 20.0, 121)  # multiples of the ideal tank frequency
 _LOCAL = np.linspace(-12.0, 12.0, 33)  # around an open-loop pole, in its half-bandwidths
 _SECANT_IT = 40
+_TURN = 0.5  # largest turn of the phase of T over a grid interval, rad
+_SPLITS = 10
 
 
 @dataclass(frozen=True)
@@ -151,22 +153,42 @@ def _grid(net: Network, idx: np.ndarray, w0: np.ndarray) -> np.ndarray:
 def _crossings(
     net: Network, idx: np.ndarray, grid: np.ndarray
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Every zero-phase crossing of T on ``grid``, refined: (element, ω, T_k, d_k), flat."""
+    """Every zero-phase crossing of T on ``grid``, refined: (element, ω, T_k, d_k), flat.
+
+    Intervals where the phase of T turns by more than :data:`_TURN` are halved (up to
+    :data:`_SPLITS` times), so that a crossing through 0 is told from one through ±π
+    however fast the phase turns.
+    """
     t = np.stack([_t(1j * w, net, idx) for w in grid])
-    ph = np.angle(t)
-    cross = (np.sign(ph[:-1]) != np.sign(ph[1:])) & (np.abs(ph[:-1] - ph[1:]) < np.pi)
-    cross &= np.isfinite(ph[:-1]) & np.isfinite(ph[1:])
-    r, col = np.nonzero(cross)
-    if r.size == 0:
+    npts = grid.shape[0]
+    col = np.repeat(np.arange(idx.size)[None, :], npts - 1, axis=0).ravel()
+    wa, wb = grid[:-1].ravel(), grid[1:].ravel()
+    ta, tb = t[:-1].ravel(), t[1:].ravel()
+    for _ in range(_SPLITS):
+        turn = np.abs(np.angle(tb / ta))
+        wide = np.nonzero((turn > _TURN) & np.isfinite(turn) & (wb > wa))[0]
+        if wide.size == 0:
+            break
+        wm = 0.5 * (wa[wide] + wb[wide])
+        tm = _t(1j * wm, net, idx[col[wide]])
+        col = np.concatenate([col, col[wide]])
+        wa = np.concatenate([wa, wm])
+        wb = np.concatenate([wb, wb[wide]])
+        ta = np.concatenate([ta, tm])
+        tb = np.concatenate([tb, tb[wide]])
+        wb[wide], tb[wide] = wm, tm
+    pa, pb = np.angle(ta), np.angle(tb)
+    cross = (np.sign(pa) != np.sign(pb)) & (np.abs(pa - pb) < np.pi)
+    cross &= np.isfinite(pa) & np.isfinite(pb)
+    k = np.nonzero(cross)[0]
+    if k.size == 0:
         empty = np.zeros(0)
-        return col, empty, empty, empty
-    a, b = grid[r, col], grid[r + 1, col]
-    fa, fb = ph[r, col], ph[r + 1, col]
-    sub = idx[col]
-    w = refine_zero_phase(a, b, fa, fb, net, sub)
+        return np.zeros(0, dtype=int), empty, empty, empty
+    sub = idx[col[k]]
+    w = refine_zero_phase(wa[k], wb[k], pa[k], pb[k], net, sub)
     tk = _t(1j * w, net, sub).real
-    d = np.where(fa > fb, 1.0, -1.0)  # Im T from + to −: a pole pair moves right (N1)
-    return col, w, tk, d
+    d = np.where(pa[k] > pb[k], 1.0, -1.0)  # Im T from + to −: a pole pair moves right (N1)
+    return col[k], w, tk, d
 
 
 def startup_chunk(net: Network, idx: np.ndarray) -> Startup:
