@@ -60,6 +60,7 @@ __all__ = [
 
 _A_MIN, _A_MAX = 1e-7, 100.0  # control amplitudes searched, V
 _BISECT = 48
+_BIAS_STEPS = 40  # bisection steps of the bias shift: (a + 0.1 V)/2^40 < 1e-11 V
 _STEP = 0.02  # ln c step for the envelope rate dσ/d ln c
 
 
@@ -96,7 +97,7 @@ def bias_shift(
     """
     a = np.asarray(a, dtype=float)
     lo, hi = -a - 0.1, np.zeros_like(a)
-    for _ in range(_BISECT):
+    for _ in range(_BIAS_STEPS):
         mid = 0.5 * (lo + hi)
         i = stage.device_currents(params, ss, mid, a).mean - loop.i_rest
         f = i if math.isinf(loop.r_dc) else mid + loop.r_dc * i
