@@ -8,21 +8,29 @@ frequency of the device compressed at that amplitude, da/dt = σ·a. Near the st
 compression c*, σ ≈ k·(c/c* − 1) with k = dσ/d ln c at c* (from the pole itself,
 :func:`picker.circuit.large_signal.loop_compression`; for a single tank mode
 k ≈ ω/(2·Q_L), so the envelope time constant of a board with margin m is
-about 2·Q_L/(ω·(m − 1))). The bias network adds two slow states: the emitter
-(source) bypass C_E charged by the mean emitter current through R_E, and the base
-node's DC capacitance C_b (the tank's capacitors as seen from the base at low
-frequency, plus the blocking capacitor) charged by the mean base current through
-the divider's R_th:
+about 2·Q_L/(ω·(m − 1))). The bias network adds slow states: the DC voltages of
+the stage's nodes (output, tank top, input, common), joined by the capacitors that
+hold them (the emitter bypass C_E, the blocking capacitor C_B, the tank's capacitors
+at low frequency, the inductor a short) and the resistors that set them (R_E, the
+divider's R_th, the output's DC load, the bleed), and driven by the device's mean
+currents (output −I, input −I/β, common +I·(1 + 1/β)):
 
-    d ln a/dt = k·(c(a, V_B − V_E)·N(a)/c* − 1)                            (E1)
-    C_E·dV_E/dt = (1 + 1/β)·(I(a, V_B − V_E) − I_rest) − V_E/R_E           (E2)
-    C_b·dV_B/dt = −V_B/R_th − (I(a, V_B − V_E) − I_rest)/β                 (E3)
+    d ln a/dt = k·(c(a, ΔV)·N(a)/c* − 1),      ΔV = V_input − V_common        (E1)
+    C·dV/dt = −G·V + j·(I(a, ΔV) − I_rest)                                      (E2)
 
-(V_E, V_B the shifts from rest; I, c, N as in :mod:`picker.circuit.large_signal`,
-with the bias frozen at the state's V_B − V_E). Its equilibrium is the steady state
-of :mod:`picker.circuit.large_signal`; the steady state is **bursting** (squegging)
-when the Jacobian of (E1)-(E3) there has an eigenvalue with a positive real part
-(Lyapunov's indirect method). An emitter without C_E follows at once (a fast state).
+(V the node voltages' shifts from rest; I, c, N as in
+:mod:`picker.circuit.large_signal`, with the bias frozen at the state's ΔV). Its
+equilibrium is the steady state of :mod:`picker.circuit.large_signal`; the steady
+state is **bursting** (squegging) when the Jacobian of (E1)-(E2) there has an
+eigenvalue with a positive real part (Lyapunov's indirect method). The output node's
+drop through its DC load, carried to the input by the blocking capacitor, is what
+keeps most boards with a large emitter bypass steady.
+
+Where the device saturates, the averaged equations leave out what drives the
+bursts (the base-collector junction conducts and pulls the input node down, which
+then recovers through the divider), so a saturated board is called bursting when its
+emitter time constant R_E·C_E exceeds :data:`SATURATED_BURST` start-up times (an
+empirical criterion, see its note).
 
 **Start-up time**: from the disturbance to 90 % of the steady amplitude. While the
 amplitude is small it grows at the linear pole's rate σ0; where the bias network

@@ -62,6 +62,8 @@ _A_MIN, _A_MAX = 1e-7, 100.0  # control amplitudes searched, V
 _BISECT = 48
 _BIAS_STEPS = 40  # bisection steps of the bias shift: (a + 0.1 V)/2^40 < 1e-11 V
 _STEP = 0.02  # ln c step for the envelope rate dσ/d ln c
+_DU = 0.1  # ln c step of the continuation from the linear pole
+_MARCH = 90  # most continuation steps (c down to e^-9)
 
 
 def _limiter_table() -> tuple[np.ndarray, np.ndarray]:
@@ -181,8 +183,10 @@ def loop_compression(
     mask of the elements solved; for starting elements ``idx`` with linear pole
     ``pole0`` (σ > 0 at c = 1) and zero-phase crossing ``w_cross`` at c = 1/``margin``.
 
-    Illinois (Dowell & Jarratt, BIT 11, 1971) on σ(ln c)/ω over [ln c_lo, 0], the pole
-    tracked by the complex secant from the nearest earlier pole.
+    The pole is followed from c = 1 down in steps of :data:`_DU` in ln c (continuation,
+    each step a complex secant solve from the pole before) to the first compression
+    where it is stable; then Illinois (Dowell & Jarratt, BIT 11, 1971) on σ(ln c)/ω in
+    that last step.
     """
     stage, params, ss = net.stage, net.params, net.ss
     n = net.size
@@ -193,23 +197,37 @@ def loop_compression(
         dev = net.with_device(stage.compressed(params, ss, c, np.ones(n)))
         return closed_loop_pole(dev, idx, s_from, s_from * (1.0 + 1e-4) + 1e-4 * s_from.imag)
 
-    u_lo = -np.log(margin) - 0.3
-    u_hi = np.minimum(-np.log(margin) + 0.3, 0.0)
-    s_lo, ok_lo = pole_at(u_lo, 1j * w_cross)
-    s_hi, ok_hi = pole_at(u_hi, 1j * w_cross)
-    for _ in range(4):  # widen until the bracket holds a stable and an unstable pole
-        bad_lo = ~ok_lo | (s_lo.real >= 0)
-        bad_hi = (~ok_hi | (s_hi.real <= 0)) & (u_hi < 0)
-        if not (bad_lo.any() or bad_hi.any()):
+    def pole_at_some(
+        sel: np.ndarray, u: np.ndarray, s_from: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray]:
+        c = np.ones(n)
+        c[idx[sel]] = np.exp(u)
+        dev = net.with_device(stage.compressed(params, ss, c, np.ones(n)))
+        return closed_loop_pole(
+            dev, idx[sel], s_from, s_from * (1.0 + 1e-4) + 1e-4 * s_from.imag
+        )
+
+    # march down from c = 1 (the linear pole) until the pole is stable: the first
+    # compression that stops the growth is the one the amplitude reaches first
+    u_hi = np.zeros(idx.size)
+    s_hi = pole0.copy()
+    u_lo = np.full(idx.size, np.nan)
+    s_lo = np.full(idx.size, np.nan + 0j)
+    live = np.isfinite(pole0) & (pole0.real > 0)
+    for _ in range(_MARCH):
+        act = np.nonzero(live)[0]
+        if act.size == 0:
             break
-        u_lo = np.where(bad_lo, u_lo - 1.0, u_lo)
-        u_hi = np.where(bad_hi, np.minimum(u_hi + 1.0, 0.0), u_hi)
-        s1, o1 = pole_at(u_lo, np.where(np.isfinite(s_lo), s_lo, 1j * w_cross))
-        s2, o2 = pole_at(u_hi, np.where(np.isfinite(s_hi), s_hi, 1j * w_cross))
-        s_lo, ok_lo = np.where(bad_lo, s1, s_lo), np.where(bad_lo, o1, ok_lo)
-        s_hi, ok_hi = np.where(bad_hi, s2, s_hi), np.where(bad_hi, o2, ok_hi)
-    s_hi = np.where(ok_hi, s_hi, pole0)
-    valid = ok_lo & (s_lo.real < 0) & np.isfinite(s_hi) & (s_hi.real > 0)
+        u_new = u_hi[act] - _DU
+        s_new, ok_new = pole_at_some(act, u_new, s_hi[act])
+        stable = ok_new & (s_new.real < 0)
+        moved = ok_new & ~stable
+        done = act[stable]
+        u_lo[done], s_lo[done] = u_new[stable], s_new[stable]
+        step = act[moved]
+        u_hi[step], s_hi[step] = u_new[moved], s_new[moved]
+        live[act[stable | ~ok_new]] = False
+    valid = np.isfinite(u_lo) & np.isfinite(s_hi)
     f_lo, f_hi = s_lo.real / s_lo.imag, s_hi.real / s_hi.imag
     u, s = u_lo.copy(), s_lo.copy()
     fu = f_lo.copy()
