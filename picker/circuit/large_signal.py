@@ -203,9 +203,7 @@ def loop_compression(
         c = np.ones(n)
         c[idx[sel]] = np.exp(u)
         dev = net.with_device(stage.compressed(params, ss, c, np.ones(n)))
-        return closed_loop_pole(
-            dev, idx[sel], s_from, s_from * (1.0 + 1e-4) + 1e-4 * s_from.imag
-        )
+        return closed_loop_pole(dev, idx[sel], s_from, s_from * (1.0 + 1e-4) + 1e-4 * s_from.imag)
 
     # march down from c = 1 (the linear pole) until the pole is stable: the first
     # compression that stops the growth is the one the amplitude reaches first
