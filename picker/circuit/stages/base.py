@@ -25,7 +25,12 @@ Write one module in ``picker/circuit/stages/`` with a subclass of
 ``device`` (the spec's ``kind``), and implements the abstract methods below,
 each with its source. Defining the class registers it
 (``__init_subclass__``); add one import line to
-``picker/circuit/stages/__init__.py``. ``tests/test_stage_conformance.py`` then
+``picker/circuit/stages/__init__.py``. For the large-signal model
+(:mod:`picker.circuit.steady`) the stage also describes its device under drive:
+:meth:`Stage.bias_loop` (the DC loop around it), :meth:`Stage.device_currents` (mean,
+harmonics and peak of the output current for a sine at the input) and
+:meth:`Stage.diffusion_capacitance`; without them :meth:`Stage.bias_loop` returns
+``None`` and the steady figures are NaN. ``tests/test_stage_conformance.py`` then
 checks it without change: the idealised stage (:meth:`Stage.ideal_params`)
 reduces to its textbook start-up condition (:meth:`Stage.required_gain`), the
 fast closed form agrees with the generic nodal solver, and the netlist of
