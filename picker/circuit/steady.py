@@ -151,7 +151,11 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     loop = stage.bias_loop(params, ss)
     live = np.nonzero(st.starts & np.isfinite(st.pole))[0]
     out["overdriven"][idx] = st.starts
-    if live.size == 0 or loop is None:
+    if live.size == 0:
+        return
+    if loop is None:  # no large-signal description: the linear zero-phase frequency
+        out["f_hz"][idx] = np.where(st.starts, st.w_cross / TWO_PI, np.nan)
+        out["amplitude_v"][idx] = np.where(st.starts, np.nan, 0.0)
         return
     sub = idx[live]
     pole0, margin = st.pole[live], st.margin[live]

@@ -30,7 +30,8 @@ each with its source. Defining the class registers it
 :meth:`Stage.bias_loop` (the DC loop around it), :meth:`Stage.device_currents` (mean,
 harmonics and peak of the output current for a sine at the input) and
 :meth:`Stage.diffusion_capacitance`; without them :meth:`Stage.bias_loop` returns
-``None`` and the steady figures are NaN. ``tests/test_stage_conformance.py`` then
+``None``: the steady frequency is then the linear zero-phase frequency and the other
+steady figures are NaN. ``tests/test_stage_conformance.py`` then
 checks it without change: the idealised stage (:meth:`Stage.ideal_params`)
 reduces to its textbook start-up condition (:meth:`Stage.required_gain`), the
 fast closed form agrees with the generic nodal solver, and the netlist of
