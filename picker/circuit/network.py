@@ -39,7 +39,7 @@ broadcast shape (typically samples on axis 0, candidates on axis 1).
 from __future__ import annotations
 
 from collections.abc import Iterator, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, fields, replace
 from typing import Any
 
 import numpy as np
@@ -49,6 +49,8 @@ from picker.circuit.device import SmallSignal
 from picker.circuit.stages import Stage, stage_of
 from picker.circuit.stages.base import Stamp
 from picker.tank.base import TWO_PI, Topology
+
+_SS_FIELDS = tuple(f.name for f in fields(SmallSignal))
 
 __all__ = ["LoadedResponse", "Network", "loop_gain", "loop_gain_matrix", "tank_stamps"]
 
@@ -129,11 +131,26 @@ class Network:
             self.params.capacitor_esr,
         )
 
+    def device_at(self, sl: Any = slice(None)) -> SmallSignal:
+        """The device values for the elements ``sl``: ``ss`` itself where its fields are
+        scalars, else (a device compressed per element, :meth:`with_device`) the slice."""
+        ss = self.ss
+        if np.ndim(ss.gm) == 0:
+            return ss
+        arr: Any = SmallSignal
+        return arr(*(np.asarray(getattr(ss, f))[sl] for f in _SS_FIELDS))  # type: ignore[no-any-return]
+
+    def with_device(self, ss: SmallSignal) -> Network:
+        """The same network with device values ``ss`` (scalars, or arrays of one value per
+        element, as :meth:`picker.circuit.stages.base.Stage.compressed` gives)."""
+        return replace(self, ss=ss)
+
     def return_ratio(self, s: np.ndarray, sl: Any = slice(None), *, nodes: bool = False) -> Any:
         """T at complex frequencies ``s`` (1-D, one per element of ``sl``) by the stage's
         closed form; with ``nodes``, ``(T, {node: voltage for a unit test current})``."""
         tank = self.tank_admittances(s, sl)
-        return self.stage.loop_gain(s, tank, self.topology, self.params, self.ss, nodes=nodes)
+        ss = self.device_at(sl)
+        return self.stage.loop_gain(s, tank, self.topology, self.params, ss, nodes=nodes)
 
 
 def tank_stamps(stage: Stage, tank: tuple[Any, Any, Any]) -> list[Stamp]:

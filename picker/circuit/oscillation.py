@@ -19,7 +19,7 @@ from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.network import LoadedResponse, Network
 from picker.tank.base import TWO_PI, Topology
 
-__all__ = ["CHUNK", "loaded_response"]
+__all__ = ["CHUNK", "bracket_zero_phase", "loaded_response", "refine_zero_phase", "tank_pole"]
 
 CHUNK = 1 << 15  # elements per vectorised block (memory bound: ~30 complex arrays of this size)
 
@@ -34,7 +34,7 @@ def _t(s: np.ndarray, net: Network, idx: np.ndarray) -> np.ndarray:
     return net.return_ratio(s, idx)  # type: ignore[no-any-return]
 
 
-def _tank_pole(w_est: np.ndarray, net: Network, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def tank_pole(w_est: np.ndarray, net: Network, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Complex natural frequency s_p of the passive tank mode nearest j·w_est.
 
     T has a pole there, so 1/T is close to linear in s around it; a complex
@@ -62,7 +62,7 @@ def _tank_pole(w_est: np.ndarray, net: Network, idx: np.ndarray) -> tuple[np.nda
     return s1, ok
 
 
-def _bracket(
+def bracket_zero_phase(
     w_grid: np.ndarray, net: Network, idx: np.ndarray, w_ref: np.ndarray
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """On a grid (points × elements) of frequencies, the zero-phase crossing of T
@@ -79,7 +79,7 @@ def _bracket(
     return found, w_grid[k, cols], w_grid[k + 1, cols], ph[k, cols], ph[k + 1, cols]
 
 
-def _illinois(
+def refine_zero_phase(
     a: np.ndarray, b: np.ndarray, fa: np.ndarray, fb: np.ndarray, net: Network, idx: np.ndarray
 ) -> np.ndarray:
     """Illinois (modified regula falsi; Dowell & Jarratt, BIT 11, 1971) on the phase
@@ -103,7 +103,7 @@ def _illinois(
 def _root_chunk(net: Network, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Zero-phase frequency (rad/s) and |T| there for the elements ``idx``; NaN/0 where none.
 
-    1. Locate the tank's complex pole s_p = −σ + jω_p (:func:`_tank_pole`), starting
+    1. Locate the tank's complex pole s_p = −σ + jω_p (:func:`tank_pole`), starting
        from the ideal tank loaded by the device capacitances
        (:meth:`picker.circuit.stages.base.Stage.loaded_tank`).
     2. Bracket the zero-phase crossing on ω_p + σ·(−4 … 4); where none is found there,
@@ -115,24 +115,24 @@ def _root_chunk(net: Network, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     w0 = TWO_PI * topology.frequency(vals, el["stray"][idx])
     loaded = net.stage.loaded_tank(topology, vals, net.ss)
     w_est = TWO_PI * topology.frequency(loaded, el["stray"][idx])
-    sp, ok_pole = _tank_pole(w_est, net, idx)
+    sp, ok_pole = tank_pole(w_est, net, idx)
     wp = np.where(ok_pole, sp.imag, w_est)
     sigma = np.where(ok_pole, np.maximum(-sp.real, 1e-9 * wp), 1e-3 * wp)
     grid = wp[None, :] + sigma[None, :] * _LOCAL[:, None]
     grid = np.maximum(grid, 1e-3 * wp[None, :])
-    found, a, b, fa, fb = _bracket(grid, net, idx, wp)
+    found, a, b, fa, fb = bracket_zero_phase(grid, net, idx, wp)
     miss = np.nonzero(~found)[0]
     if miss.size:
         sub = idx[miss]
         g2 = w0[miss][None, :] * _GRID[:, None]
-        f2, a2, b2, fa2, fb2 = _bracket(g2, net, sub, wp[miss])
+        f2, a2, b2, fa2, fb2 = bracket_zero_phase(g2, net, sub, wp[miss])
         found[miss], a[miss], b[miss], fa[miss], fb[miss] = f2, a2, b2, fa2, fb2
     w = np.full(idx.shape[0], np.nan)
     m = np.zeros(idx.shape[0])
     hit = np.nonzero(found)[0]
     if hit.size:
         sub = idx[hit]
-        wr = _illinois(a[hit], b[hit], fa[hit], fb[hit], net, sub)
+        wr = refine_zero_phase(a[hit], b[hit], fa[hit], fb[hit], net, sub)
         t = _t(1j * wr, net, sub)
         good = (t.real > 0) & (np.abs(t.imag) <= 1e-6 * np.abs(t))
         w[hit] = np.where(good, wr, np.nan)

@@ -1,4 +1,4 @@
-"""The oscillator as built: start-up, steady state and steadiness of boards (interface).
+"""The oscillator as built: start-up, steady state and steadiness of boards.
 
 This module is the one entry point the rest of picker (the search, the Monte Carlo,
 the report, ``--verify`` and the validation against ngspice) uses for the large-signal
@@ -6,9 +6,18 @@ behaviour of a loaded oscillator. :func:`steady_state` takes *board* values (mar
 values with the spec's parasitics applied, as :func:`picker.circuit.oscillation.loaded_response`
 does) and returns a :class:`SteadyState` of arrays of their broadcast shape.
 
-First version: built on the linear model (zero-phase crossing of the loop gain, the
-describing-function amplitude of :mod:`picker.circuit.amplitude`); the large-signal
-model replaces the internals, not the interface.
+The model, in three steps (each module states its method and sources):
+
+1. **Start-up** (:mod:`picker.circuit.stability`): the natural frequencies of the
+   linearised closed loop by the Nyquist criterion (net encirclements of +1 by the
+   loop gain); the margin and the start-up pole.
+2. **Steady state** (:mod:`picker.circuit.large_signal`): describing functions of the
+   device (exponential junction or square law, Early effect, saturation, cut-off,
+   charge storage) with the bias shift; the compression that puts the closed-loop
+   pole on the imaginary axis gives the steady frequency, the drive gives the
+   amplitudes, the harmonics, the peak current and the dissipation.
+3. **Steadiness and start-up time** (:mod:`picker.circuit.envelope`): averaged
+   envelope equations with the bias network's slow states.
 """
 
 from __future__ import annotations
@@ -20,9 +29,13 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.amplitude import amplitude_estimate
-from picker.circuit.oscillation import loaded_response
-from picker.tank.base import Topology
+from picker.circuit.envelope import SATURATED_BURST, bursting, startup_time
+from picker.circuit.large_signal import loop_compression, solve_drive
+from picker.circuit.network import Network
+from picker.circuit.oscillation import CHUNK
+from picker.circuit.stability import startup_chunk
+from picker.circuit.stages.base import KICK_FRACTION
+from picker.tank.base import TWO_PI, Topology
 
 __all__ = ["SteadyState", "steady_state"]
 
@@ -53,7 +66,15 @@ class SteadyState:
         2nd and 3rd harmonic at the tank's output node relative to the fundamental,
         dBc; shape ``values.shape + (2,)``.
     overdriven:
-        bool: the estimate is outside the model's validity (saturation dominates).
+        bool: the device saturates (the output swing reaches the knee) or no steady
+        drive was found; the amplitude is less certain there.
+    peak_current_a:
+        peak collector (drain) current in steady state, A (NaN where it does not start).
+    dissipation_w:
+        mean power dissipated in the device in steady state, W (NaN where unknown).
+    envelope_rate:
+        largest real part of the eigenvalues of the envelope-and-bias equations at the
+        steady state, 1/s (positive: bursting; NaN where it does not start).
     """
 
     starts: np.ndarray
@@ -65,6 +86,9 @@ class SteadyState:
     startup_time_s: np.ndarray
     harmonics_dbc: np.ndarray
     overdriven: np.ndarray
+    peak_current_a: np.ndarray
+    dissipation_w: np.ndarray
+    envelope_rate: np.ndarray
 
     @property
     def runs(self) -> np.ndarray:
@@ -93,19 +117,90 @@ def steady_state(
     SteadyState
         Arrays of the broadcast shape of ``values``.
     """
-    resp = loaded_response(topology, values, stray, params)
-    amp = amplitude_estimate(topology, values, stray, params, resp)
-    f, m = resp.f_hz, resp.margin
-    starts = np.isfinite(f) & (m > 1.0)
-    nan = np.full(f.shape, np.nan)
+    net = Network.build(topology, values, stray, params)
+    n = net.size
+    out = {
+        "starts": np.zeros(n, dtype=bool),
+        "margin": np.zeros(n),
+        "f_start_hz": np.full(n, np.nan),
+        "f_hz": np.full(n, np.nan),
+        "amplitude_v": np.zeros(n),
+        "bursting": np.zeros(n, dtype=bool),
+        "startup_time_s": np.full(n, np.nan),
+        "harmonics_dbc": np.full((n, 2), np.nan),
+        "overdriven": np.zeros(n, dtype=bool),
+        "peak_current_a": np.full(n, np.nan),
+        "dissipation_w": np.full(n, np.nan),
+        "envelope_rate": np.full(n, np.nan),
+    }
+    for a in range(0, n, CHUNK):
+        _chunk(net, np.arange(a, min(a + CHUNK, n)), out)
+    shape = net.shape
     return SteadyState(
-        starts=starts,
-        margin=m,
-        f_start_hz=np.where(starts, f, np.nan),
-        f_hz=np.where(starts, f, np.nan),
-        amplitude_v=np.where(starts, amp.tank, 0.0),
-        bursting=np.zeros(f.shape, dtype=bool),
-        startup_time_s=nan,
-        harmonics_dbc=np.full(f.shape + (2,), np.nan),
-        overdriven=amp.overdriven & starts,
+        **{k: v.reshape(shape + v.shape[1:]) for k, v in out.items()}  # type: ignore[arg-type]
     )
+
+
+def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
+    """Fill ``out`` at ``idx``: start-up, then the steady state of the boards that start."""
+    st = startup_chunk(net, idx)
+    out["starts"][idx] = st.starts
+    out["margin"][idx] = st.margin
+    out["f_start_hz"][idx] = np.where(st.starts, st.pole.imag / TWO_PI, np.nan)
+    stage, params, ss = net.stage, net.params, net.ss
+    loop = stage.bias_loop(params, ss)
+    live = np.nonzero(st.starts & np.isfinite(st.pole))[0]
+    out["overdriven"][idx] = st.starts
+    if live.size == 0:
+        return
+    if loop is None:  # no large-signal description: the linear zero-phase frequency
+        out["f_hz"][idx] = np.where(st.starts, st.w_cross / TWO_PI, np.nan)
+        out["amplitude_v"][idx] = np.where(st.starts, np.nan, 0.0)
+        return
+    sub = idx[live]
+    pole0, margin = st.pole[live], st.margin[live]
+    c_star, w, k, ok = loop_compression(net, sub, pole0, st.w_cross[live], margin)
+    # the device compressed at c* over the whole network (1 elsewhere)
+    c_all = np.ones(net.size)
+    c_all[sub] = np.where(ok, c_star, 1.0)
+    dev = net.with_device(stage.compressed(params, ss, c_all, np.ones(net.size)))
+    w = np.where(ok, w, pole0.imag)
+    _, x = dev.return_ratio(1j * w, sub, nodes=True)
+    be = x[stage.input] - x[stage.common]
+    ratio = np.abs(x[stage.output] - x[stage.common]) / np.abs(be)
+    drive = solve_drive(stage, params, ss, loop, c_star, ratio)
+    a = drive.a
+    top = a * np.abs(x[stage.top] / be)
+    cur = drive.currents
+    harm = []
+    for m, h in ((2, cur.h2), (3, cur.h3)):
+        _, xm = dev.return_ratio(1j * m * w, sub, nodes=True)
+        harm.append(20.0 * np.log10(np.abs(h * xm[stage.top]) / top))
+    r_e_dc = loop.r_e * (1.0 + 1.0 / loop.beta)
+    v_out = loop.v_out - (cur.mean - loop.i_rest) * (loop.r_out + r_e_dc)
+    p_dev = v_out * cur.mean - 0.5 * a * ratio * c_star * ss.gm * a
+    burst, lam = bursting(net, sub, loop, a, drive.dv, k, c_star, ratio, w)
+    # the bias settling time the start-up time compares with: R_E·C_E and the input
+    # node's DC capacitance through R_th (:func:`picker.circuit.envelope.startup_time`)
+    s_lo = 1e-3j * w
+    _, y_in, _ = net.tank_admittances(s_lo, sub)
+    c_b = (y_in / s_lo).real + ss.c_pi
+    # the kick: charge 2·I_kick/ω exciting the start-up pole through its residue
+    t0 = net.return_ratio(pole0, sub, nodes=True)
+    t1 = net.return_ratio(pole0 * (1 + 1e-6), sub)
+    dt_ds = (t1 - t0[0]) / (pole0 * 1e-6)
+    be0 = t0[1][stage.input] - t0[1][stage.common]
+    a0 = 2.0 * (2.0 * KICK_FRACTION * loop.i_rest / pole0.imag) * np.abs(be0 / dt_ds)
+    t_up = startup_time(stage, params, ss, loop, a0, a, pole0.real, c_star, ratio, c_b)
+    good = ok & drive.ok
+    out["f_hz"][sub] = np.where(ok, w / TWO_PI, np.nan)
+    out["amplitude_v"][sub] = np.where(good, top, np.nan)
+    out["harmonics_dbc"][sub] = np.where(good[:, None], np.stack(harm, axis=1), np.nan)
+    out["overdriven"][sub] = drive.saturated | ~good
+    out["peak_current_a"][sub] = np.where(good, cur.peak, np.nan)
+    out["dissipation_w"][sub] = np.where(good & np.isfinite(v_out), np.maximum(p_dev, 0.0), np.nan)
+    # saturated boards: the relaxation criterion (picker.circuit.envelope.SATURATED_BURST)
+    relax = loop.r_e * loop.c_e > SATURATED_BURST * t_up
+    out["bursting"][sub] = np.where(drive.saturated, relax, burst) & good
+    out["envelope_rate"][sub] = np.where(good, lam, np.nan)
+    out["startup_time_s"][sub] = np.where(good, t_up, np.nan)

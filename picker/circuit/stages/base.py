@@ -25,7 +25,13 @@ Write one module in ``picker/circuit/stages/`` with a subclass of
 ``device`` (the spec's ``kind``), and implements the abstract methods below,
 each with its source. Defining the class registers it
 (``__init_subclass__``); add one import line to
-``picker/circuit/stages/__init__.py``. ``tests/test_stage_conformance.py`` then
+``picker/circuit/stages/__init__.py``. For the large-signal model
+(:mod:`picker.circuit.steady`) the stage also describes its device under drive:
+:meth:`Stage.bias_loop` (the DC loop around it), :meth:`Stage.device_currents` (mean,
+harmonics and peak of the output current for a sine at the input) and
+:meth:`Stage.diffusion_capacitance`; without them :meth:`Stage.bias_loop` returns
+``None``: the steady frequency is then the linear zero-phase frequency and the other
+steady figures are NaN. ``tests/test_stage_conformance.py`` then
 checks it without change: the idealised stage (:meth:`Stage.ideal_params`)
 reduces to its textbook start-up condition (:meth:`Stage.required_gain`), the
 fast closed form agrees with the generic nodal solver, and the netlist of
@@ -45,7 +51,22 @@ from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import BiasPoint, SmallSignal
 from picker.tank.base import TWO_PI, Topology
 
-__all__ = ["STAGES", "Stage", "StageNetlist", "Stamp", "need", "spice_number"]
+__all__ = [
+    "STAGES",
+    "BiasLoop",
+    "DeviceCurrents",
+    "KICK_FRACTION",
+    "Stage",
+    "StageNetlist",
+    "Stamp",
+    "need",
+    "spice_number",
+]
+
+#: The netlist's start-up kick: a current pulse of this fraction of the bias current for
+#: half an ideal period into the tank top (also the disturbance the start-up time of
+#: :mod:`picker.circuit.envelope` starts from).
+KICK_FRACTION = 0.2
 
 #: Every registered stage by name, filled by :meth:`Stage.__init_subclass__`.
 STAGES: dict[str, Stage] = {}
@@ -90,6 +111,45 @@ class StageNetlist:
     models: list[str]
     kick: float
     top_dc: float
+
+
+@dataclass(frozen=True)
+class BiasLoop:
+    """The DC loop around the device that sets its mean output current (SI floats).
+
+    With the control voltage's DC part V_dc = V_rest + ΔV and the mean output current
+    I, the loop holds ΔV = −r_dc·(I − i_rest) (Thevenin source of the base divider
+    through r_th, emitter resistor r_e; r_dc = r_th/β + r_e·(1 + 1/β), Sedra & Smith,
+    bias-stability analysis of the four-resistor network). ``r_dc = inf`` holds the
+    mean current fixed (no bias network described). ``c_e`` is the emitter (source)
+    bypass, 0 without; ``beta`` the DC current gain (inf for a fet); ``v_out`` the DC
+    output-to-common voltage at rest; ``r_out`` the DC resistance from the supply to
+    the output; ``v_knee`` the output-to-common voltage below which the device leaves
+    its active region (saturation of a bjt, triode of a fet).
+    """
+
+    i_rest: float
+    gm_rest: float
+    r_dc: float
+    r_th: float
+    r_e: float
+    c_e: float
+    beta: float
+    v_out: float
+    r_out: float
+    v_knee: float
+
+
+@dataclass(frozen=True)
+class DeviceCurrents:
+    """Output current of the device driven by V_rest + ΔV + a·cos θ (arrays, A): its mean,
+    its 1st, 2nd and 3rd harmonic amplitudes (cosine coefficients) and its peak."""
+
+    mean: np.ndarray
+    h1: np.ndarray
+    h2: np.ndarray
+    h3: np.ndarray
+    peak: np.ndarray
 
 
 class Stage:
@@ -239,6 +299,49 @@ class Stage:
         fallen to gm/margin (the describing-function amplitude), V, and a mask of
         the elements whose swing the device's own limit cannot bound (overdriven)."""
         raise NotImplementedError
+
+    def bias_loop(self, params: AmplifierParams, ss: SmallSignal) -> BiasLoop | None:
+        """The DC loop that sets the mean output current under drive (:class:`BiasLoop`),
+        or ``None`` where the large-signal model has too little to go on."""
+        return None
+
+    def device_currents(
+        self, params: AmplifierParams, ss: SmallSignal, dv: np.ndarray, a: np.ndarray
+    ) -> DeviceCurrents:
+        """The device's output current driven by V_rest + ``dv`` + ``a``·cos θ (V):
+        mean, harmonics 1-3 and peak (:class:`DeviceCurrents`), arrays of the broadcast
+        shape of ``dv`` and ``a``."""
+        raise NotImplementedError
+
+    def diffusion_capacitance(self, params: AmplifierParams, ss: SmallSignal) -> float:
+        """The part of C_pi that is charge stored in proportion to the output current
+        (TF·gm for a bjt), F; it compresses with the drive as gm does."""
+        return 0.0
+
+    def compressed(
+        self, params: AmplifierParams, ss: SmallSignal, c: np.ndarray, d: np.ndarray
+    ) -> SmallSignal:
+        """The device seen by the fundamental under drive (fields become arrays).
+
+        Describing functions: the fundamental transconductance is c·gm; the input
+        conductance (base current = output current/β) and the stored charge
+        (q = TF·i_C, Gummel-Poon; Massobrio & Antognetti ch. 2) follow the same
+        current, so g_pi and the diffusion part of C_pi compress by the same c; the
+        output conductance (Early effect, g_o = I/VAF) follows the mean current,
+        ratio d = I/I_rest.
+        """
+        c = np.asarray(c, dtype=float)
+        d = np.asarray(d, dtype=float)
+        c_diff = self.diffusion_capacitance(params, ss)
+        arr: Any = SmallSignal  # the fields become arrays, one per element
+        return arr(  # type: ignore[no-any-return]
+            gm=ss.gm * c,
+            r_pi=ss.r_pi / c,
+            r_o=ss.r_o / d,
+            c_pi=ss.c_pi - c_diff + c_diff * c,
+            c_mu=ss.c_mu + 0.0 * c,
+            i_dc=ss.i_dc * d,
+        )
 
     def headroom(self, params: AmplifierParams) -> float:
         """Largest peak swing at the output before the device saturates, V (inf: unknown)."""

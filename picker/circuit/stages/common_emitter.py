@@ -37,7 +37,16 @@ from picker.circuit.device import (
     npn_small_signal,
     thermal_voltage,
 )
-from picker.circuit.stages.base import Stage, StageNetlist, Stamp, need, spice_number
+from picker.circuit.stages.base import (
+    KICK_FRACTION,
+    BiasLoop,
+    DeviceCurrents,
+    Stage,
+    StageNetlist,
+    Stamp,
+    need,
+    spice_number,
+)
 from picker.tank.base import Topology
 
 __all__ = ["CommonEmitter", "bessel_ratio"]
@@ -46,6 +55,8 @@ __all__ = ["CommonEmitter", "bessel_ratio"]
 #: any bias network: where even this cannot bring G_m down to gm/margin, the stage is
 #: flagged overdriven).
 X_MAX = 400.0
+#: V_CE below which a small-signal bjt saturates, V (common practice, no source).
+V_CE_SAT = 0.3
 #: A missing part that is a short (no C_B, grounded emitter) in the nodal matrix, S: an
 #: error of about 1e-6 relative, still well conditioned.
 SHORT = 1e6
@@ -193,10 +204,10 @@ class CommonEmitter(Stage):
         for r in (params.r_b1, params.r_b2):
             if r is not None:
                 g_bias += 1.0 / r
-        g_pi = 0.0 if math.isinf(ss.r_pi) else 1.0 / ss.r_pi
+        g_pi = 1.0 / ss.r_pi  # 0 for r_pi = inf; arrays for a compressed device
         y_pi = g_pi + s * ss.c_pi
         y_mu = s * ss.c_mu
-        g_o = 0.0 if math.isinf(ss.r_o) else 1.0 / ss.r_o
+        g_o = 1.0 / ss.r_o
         if params.r_e is None:
             y_e = None
         else:
@@ -296,6 +307,77 @@ class CommonEmitter(Stage):
             big = gain(mid) > target
             lo, hi = np.where(big, mid, lo), np.where(big, hi, mid)
         return 0.5 * (lo + hi) * vt, clipped
+
+    def bias_loop(self, params: AmplifierParams, ss: SmallSignal) -> BiasLoop | None:
+        """The base divider's Thevenin resistance R_th = R_B1 ∥ R_B2 and R_E around the
+        junction: r_dc = R_th/β + R_E·(1 + 1/β); with gm or the bias current given (no
+        bias solved), the mean current is held fixed (r_dc = inf)."""
+        dev = params.effective_device()
+        b = self.bias(params)
+        r_e = params.r_e or 0.0
+        c_e = params.c_e or 0.0
+        vt = thermal_voltage(params.temperature_c)
+        if b is None or params.gm is not None or params.i_bias is not None:
+            return BiasLoop(
+                i_rest=ss.i_dc,
+                gm_rest=ss.i_dc / vt,
+                r_dc=math.inf,
+                r_th=math.inf,
+                r_e=r_e,
+                c_e=c_e,
+                beta=dev.bf,
+                v_out=math.inf if b is None else b.vce,
+                r_out=0.0,
+                v_knee=V_CE_SAT,
+            )
+        r_b1 = need(params.r_b1, "r_b1")
+        r_th = r_b1 if params.r_b2 is None else r_b1 * params.r_b2 / (r_b1 + params.r_b2)
+        return BiasLoop(
+            i_rest=b.ic,
+            gm_rest=b.ic / vt,
+            r_dc=r_th / dev.bf + r_e * (1.0 + 1.0 / dev.bf),
+            r_th=r_th,
+            r_e=r_e,
+            c_e=c_e,
+            beta=dev.bf,
+            v_out=b.vce,
+            r_out=params.r_collector_dc,
+            v_knee=V_CE_SAT,
+        )
+
+    def device_currents(
+        self, params: AmplifierParams, ss: SmallSignal, dv: np.ndarray, a: np.ndarray
+    ) -> DeviceCurrents:
+        """Exponential junction i_C = I_rest·exp((ΔV + a·cos θ)/V_T) (equation (D1)
+        without the Early factor): by the generating function of the modified Bessel
+        functions, exp(x·cos θ) = I0(x) + 2·Σ I_n(x)·cos nθ (Abramowitz & Stegun 9.6.34),
+        the mean is I_rest·e^{ΔV/V_T}·I0(x) and the n-th harmonic 2·I_rest·e^{ΔV/V_T}·I_n(x),
+        x = a/V_T (Clarke & Hess, large-signal transconductance); the peak is
+        I_rest·e^{ΔV/V_T + x}. Exponentially scaled Bessel functions avoid overflow."""
+        vt = thermal_voltage(params.temperature_c)
+        x = np.asarray(a, dtype=float) / vt
+        scale = ss.i_dc * np.exp(np.asarray(dv, dtype=float) / vt + x)  # A&S 9.6.34
+        b0, b1 = i0e(x), i1e(x)
+        # I2, I3 by the recurrence I_{n+1} = I_{n-1} − (2n/x)·I_n (A&S 9.6.26), by their
+        # series x²/8·(1 + x²/12), x³/48·(1 + x²/16) (A&S 9.6.10) where it would cancel
+        small = x < 0.05
+        xs = np.where(small, 1.0, x)
+        b2 = np.where(small, x * x / 8 * (1 + x * x / 12) * np.exp(-x), b0 - 2 / xs * b1)
+        b3 = np.where(small, x**3 / 48 * (1 + x * x / 16) * np.exp(-x), b1 - 4 / xs * b2)
+        return DeviceCurrents(
+            mean=scale * b0,
+            h1=2.0 * scale * b1,
+            h2=2.0 * scale * b2,
+            h3=2.0 * scale * b3,
+            peak=scale,
+        )
+
+    def diffusion_capacitance(self, params: AmplifierParams, ss: SmallSignal) -> float:
+        """TF·gm (equation (D4)) where C_pi comes from the card, gm/(2π·f_T) − C_mu less the
+        card's CJE where it comes from f_T; 0 for a C_pi given directly (taken as fixed)."""
+        if params.c_pi is not None:
+            return 0.0
+        return max(ss.c_pi - params.effective_device().cje, 0.0)
 
     def headroom(self, params: AmplifierParams) -> float:
         """V_C − V_E − 0.3 V: the collector may swing down to about V_E + 0.3 V before
@@ -420,6 +502,6 @@ class CommonEmitter(Stage):
         return StageNetlist(
             elements=lines,
             models=[card],
-            kick=0.2 * bias.ic,
+            kick=KICK_FRACTION * bias.ic,
             top_dc=self.top_dc(topology, params, bias),
         )

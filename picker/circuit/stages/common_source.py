@@ -24,7 +24,14 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import BiasPoint, SmallSignal
-from picker.circuit.stages.base import StageNetlist, need, spice_number
+from picker.circuit.stages.base import (
+    KICK_FRACTION,
+    BiasLoop,
+    DeviceCurrents,
+    StageNetlist,
+    need,
+    spice_number,
+)
 from picker.circuit.stages.common_emitter import CommonEmitter
 from picker.tank.base import Topology
 
@@ -32,6 +39,10 @@ __all__ = ["CommonSource", "NMOS_NAME"]
 
 #: Name of the netlist's square-law NMOS card.
 NMOS_NAME = "PICKER_NMOS"
+#: Points per period of the midpoint rule for the square law's Fourier coefficients (the
+#: integrand is piecewise polynomial; 96 points give the coefficients to about 1e-4).
+QUADRATURE = 96
+_THETA = (np.arange(QUADRATURE) + 0.5) * (2.0 * np.pi / QUADRATURE)
 
 
 def _need_c_gs(params: AmplifierParams) -> float:
@@ -96,6 +107,59 @@ class CommonSource(CommonEmitter):
             c_block=10e-9,
             inductor_q=50.0,
         )
+
+    def overdrive(self, params: AmplifierParams, ss: SmallSignal) -> float:
+        """V_ov = V_GS − V_th at rest: given, or 2·I_D/gm (square law); NaN when unknown."""
+        if params.overdrive_voltage is not None:
+            return params.overdrive_voltage
+        return 2.0 * ss.i_dc / ss.gm
+
+    def bias_loop(self, params: AmplifierParams, ss: SmallSignal) -> BiasLoop | None:
+        """The gate sits at the divider's voltage (no gate current), so only the source
+        resistor R_S acts on the mean current: r_dc = R_S, β = inf; the knee is the
+        triode edge V_DS = V_GS − V_th (Sedra & Smith, MOSFET chapter). ``None`` where
+        the drain current is unknown."""
+        v_ov = self.overdrive(params, ss)
+        if not (math.isfinite(ss.i_dc) and ss.i_dc > 0 and math.isfinite(v_ov)):
+            return None
+        r_s = params.r_e or 0.0
+        r_d = params.r_collector_dc if (params.r_c or params.l_choke) else 0.0
+        return BiasLoop(
+            i_rest=ss.i_dc,
+            gm_rest=2.0 * ss.i_dc / v_ov,
+            r_dc=r_s,
+            r_th=math.inf,
+            r_e=r_s,
+            c_e=params.c_e or 0.0,
+            beta=math.inf,
+            v_out=params.vcc - ss.i_dc * (r_d + r_s),
+            r_out=r_d,
+            v_knee=v_ov,
+        )
+
+    def device_currents(
+        self, params: AmplifierParams, ss: SmallSignal, dv: np.ndarray, a: np.ndarray
+    ) -> DeviceCurrents:
+        """Square law with cut-off, i_D = K·max(V_ov + ΔV + a·cos θ, 0)², K = I_D/V_ov²
+        (Sedra & Smith, MOSFET chapter); mean and harmonics by the midpoint rule over
+        one period (:data:`QUADRATURE` points), the Fourier cosine coefficients
+        (1/π)∫ i·cos nθ dθ."""
+        v_ov = self.overdrive(params, ss)
+        k = ss.i_dc / (v_ov * v_ov)
+        dv, a = np.broadcast_arrays(np.asarray(dv, dtype=float), np.asarray(a, dtype=float))
+        v = np.maximum(v_ov + dv[..., None] + a[..., None] * np.cos(_THETA), 0.0)
+        i = k * v * v
+        return DeviceCurrents(
+            mean=i.mean(axis=-1),
+            h1=2.0 * (i * np.cos(_THETA)).mean(axis=-1),
+            h2=2.0 * (i * np.cos(2 * _THETA)).mean(axis=-1),
+            h3=2.0 * (i * np.cos(3 * _THETA)).mean(axis=-1),
+            peak=k * np.maximum(v_ov + dv + a, 0.0) ** 2,
+        )
+
+    def diffusion_capacitance(self, params: AmplifierParams, ss: SmallSignal) -> float:
+        """0: C_gs is taken as fixed."""
+        return 0.0
 
     def drive_limit(
         self, params: AmplifierParams, ss: SmallSignal, margin: np.ndarray, ok: np.ndarray
@@ -168,4 +232,4 @@ class CommonSource(CommonEmitter):
             top = v_d
         else:
             top = v_g if topology.bridge_passes_dc else 0.0
-        return StageNetlist(elements=lines, models=[card], kick=0.2 * i_d, top_dc=top)
+        return StageNetlist(elements=lines, models=[card], kick=KICK_FRACTION * i_d, top_dc=top)
