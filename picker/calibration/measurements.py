@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -53,6 +54,8 @@ OPTIONAL_COLUMNS = ("unit", "measured", "frequency_sigma", "weight", "note")
 #: (about 1e-15), a weight ratio beyond 1e24 between units, is a typo and would
 #: only overflow the weighted sums (common practice, no source).
 SIGMA_RANGE = (1e-15, 1.0)
+#: A plain decimal number (no prefix, no unit): parsed by float() directly.
+_PLAIN = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
 WEIGHT_RANGE = (1e-12, 1e12)
 
 
@@ -123,7 +126,12 @@ def _positive(text: str, unit: str, file: str, key: str, *, frequency: bool = Fa
     if not text:
         raise SpecError("empty cell; expected a value", file=file, key=key)
     try:
-        x = _number(text, key) if unit == "1" else parse_quantity(text, unit)
+        if unit == "1":
+            x = _number(text, key)
+        elif _PLAIN.fullmatch(text):  # a bare number in SI units: the fast path for big files
+            x = float(text)  # correctly rounded, as parse_quantity's exact decimal is
+        else:
+            x = parse_quantity(text, unit)
     except SpecError as exc:
         raise SpecError(exc.message, file=file, key=key) from None
     if not x > 0:

@@ -123,7 +123,7 @@ def run_calibrate(
         raise SpecError(
             "--into SPEC and -o NEW.toml go together: the new spec is SPEC with the fitted "
             "[parasitics] merged in",
-            key="--into" if output is None else "-o",
+            key="-o" if output is None else "--into",
         )
     if into is not None and spec is not None and into.resolve() != spec.resolve():
         raise SpecError(

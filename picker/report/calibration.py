@@ -259,8 +259,8 @@ def print_table(
         console.print(
             _residual_table(
                 r,
-                f"The {WORST_UNITS} largest residuals (measured − fitted) of {n:,} units; "
-                "--every-unit lists them all",
+                f"Largest {WORST_UNITS} of {n:,} residuals (measured − fitted); "
+                "--every-unit lists all",
                 [int(i) for i in worst],
             )
         )
