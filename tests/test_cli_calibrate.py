@@ -249,12 +249,15 @@ def test_a_large_batch_is_summarised_in_a_bounded_table(tmp_path):
 
 
 def test_streamed_json_is_the_json_of_the_whole_result(tmp_path):
+    import dataclasses
     import io
 
     from picker.report.calibration import to_json, write_json
 
     m = load_measurements(write_many(tmp_path / "u.csv", 300), COLPITTS)
     res = fit_parasitics(COLPITTS, m.values, m.frequency, unit_ids=m.unit_ids, select=True)
+    # an id with a quote, a backslash, a non-ASCII letter and markup must be escaped alike
+    res = dataclasses.replace(res, unit_ids=('a"\\µ[/x]', *res.unit_ids[1:]))
     buf = io.StringIO()
     write_json(res, buf, source="u.csv", rows=m.rows)
     assert buf.getvalue() == to_json(res, source="u.csv", rows=m.rows)
@@ -390,3 +393,13 @@ def test_into_refuses_a_spec_whose_parasitics_are_not_a_table(tmp_path):
     res = run(DEMO, "--into", spec, "-o", new)
     assert isinstance(res.exception, SpecError) and res.exception.key == "-o"
     assert "would not load" in res.exception.message and not new.exists()
+
+
+def test_unit_ids_are_never_read_as_markup(tmp_path):
+    """Issue: a unit id such as ``[/x]`` crashed the table (rich markup)."""
+    csv = write_units(tmp_path / "u.csv", outlier=True)
+    text = csv.read_text(encoding="utf-8").replace("B1,", "[/x],").replace("B5,", "[bold]B5,")
+    csv.write_text(text, encoding="utf-8")
+    res = run(csv, "--topology", "colpitts")
+    assert res.exit_code == 0, res.output
+    assert "[/x]" in res.output and "[bold]B5 (outlier)" in res.output

@@ -126,6 +126,13 @@ def _residual(r: CalibrationResult, i: int, rows: Sequence[int] | None) -> dict[
     }
 
 
+def _json_scalar(x: str | int | float | None) -> str:
+    """One JSON scalar as ``json.dumps`` writes it (floats by repr), without its slow indenter."""
+    if isinstance(x, float):
+        return repr(x)  # finite: _num turned NaN and infinities into None
+    return json.dumps(x, ensure_ascii=False)
+
+
 def _dumps(x: Any) -> str:
     return json.dumps(x, indent=2, ensure_ascii=False, allow_nan=False)
 
@@ -148,8 +155,12 @@ def write_json(
     before, after = head.split(marker)
     stream.write(before + '\n  "residuals": [\n')
     for i in range(len(r.unit_ids)):
-        item = "\n".join("    " + line for line in _dumps(_residual(r, i, rows)).split("\n"))
-        stream.write(item + (",\n" if i + 1 < len(r.unit_ids) else "\n"))
+        fields = ",\n".join(
+            f"      {json.dumps(k)}: {_json_scalar(v)}" for k, v in _residual(r, i, rows).items()
+        )
+        stream.write(
+            "    {\n" + fields + ("\n    },\n" if i + 1 < len(r.unit_ids) else "\n    }\n")
+        )
     stream.write("  ],\n" + after + "\n")
 
 
