@@ -117,6 +117,9 @@ def run_calibrate(
         loss = robust.strip().lower().replace("-", "_")
         if loss not in _LOSSES:
             raise SpecError(f"expected soft_l1 or huber; got {robust!r}", key="--robust")
+    for path, key in ((spec, "--spec"), (into, "--into")):
+        if path is not None and not str(path).strip():
+            raise SpecError("expected a spec file name; got a blank one", key=key)
     select = fit is None
     names = CANDIDATES if fit is None else _parse_fit(fit)
     if (into is None) != (output is None):
