@@ -96,6 +96,10 @@ COMMANDS["calibrate_bench_units_fragment.toml"] = (
     ["calibrate", "bench_units.csv", "--spec", "probe_exciter.toml", "--fragment", "{out}"],
     "out.toml",
 )
+COMMANDS["calibrate_bench_units_into.toml"] = (
+    ["calibrate", "bench_units.csv", "--into", "probe_exciter.toml", "-o", "{out}"],
+    "out.toml",
+)
 COMMANDS["consolidate_plan_demo.json"] = (["consolidate", "plan_demo.toml", "-f", "json"], None)
 COMMANDS["consolidate_plan_demo.txt"] = (["consolidate", "plan_demo.toml"], None)
 COMMANDS["consolidate_plan_demo_bom.csv"] = (

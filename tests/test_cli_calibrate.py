@@ -204,3 +204,202 @@ def test_calibrated_spec_recentres_the_solve():
     old, new = offsets(before), offsets(after)
     assert 0.008 < old.mean() < 0.02  # uncalibrated picks run high on the real board
     assert abs(new.mean()) < 0.003 and np.abs(new).max() < 0.03  # centred, inside ±3 %
+
+
+# --------------------------------------------------------------------------- large batches
+
+
+def write_many(path: Path, n: int) -> Path:
+    """``n`` invented units with known parasitics, written as plain SI numbers."""
+    rng = np.random.default_rng(23)
+    c1 = rng.choice([1.0, 1.5, 2.2], n) * 1e-9 * (1 + 0.02 * rng.uniform(-1, 1, n))
+    c2 = rng.choice([4.7, 6.8, 10.0], n) * 1e-9 * (1 + 0.02 * rng.uniform(-1, 1, n))
+    lv = rng.choice([150.0, 220.0, 330.0], n) * 1e-6
+    par = topo_mod.Parasitics(stray=15e-12, l_scale=0.97)
+    f = topo_mod.board_frequency(COLPITTS, {"C1": c1, "C2": c2, "L": lv}, par)
+    f = f * (1 + 100e-6 * rng.standard_normal(n))
+    rows = ["unit,C1,C2,L,frequency"] + [
+        f"U{i},{float(c1[i])!r},{float(c2[i])!r},{float(lv[i])!r},{float(f[i])!r}" for i in range(n)
+    ]
+    path.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    return path
+
+
+def test_a_large_batch_is_summarised_in_a_bounded_table(tmp_path):
+    """Issue: a table row per unit made a million-unit file take gigabytes.
+
+    Past 50 units the table shows a summary and the 10 largest residuals,
+    whatever the batch size; ``--every-unit`` lists every unit.
+    (Time and memory on 200,000 units: ``python scripts/bench_calibrate.py``.)
+    """
+    from picker.report.calibration import TABLE_UNITS, WORST_UNITS
+
+    small = run(write_many(tmp_path / "s.csv", 400), "--topology", "colpitts")
+    big = run(write_many(tmp_path / "b.csv", 4000), "--topology", "colpitts")
+    assert small.exit_code == 0 and big.exit_code == 0, big.output
+    n_small, n_big = small.output.count("\n"), big.output.count("\n")
+    assert n_small < 60 and n_big < 60  # bounded: about as many lines for 400 as for 4,000
+    assert "4,000 units" in big.output and "--every-unit" in big.output
+    body = [line for line in big.output.splitlines() if line.startswith("│ U")]
+    assert len(body) == WORST_UNITS < TABLE_UNITS
+    full = run(tmp_path / "b.csv", "--topology", "colpitts", "--every-unit")
+    assert full.exit_code == 0
+    listed = {line.split()[0] for line in full.output.splitlines() if line.startswith("U")}
+    assert listed == {f"U{i}" for i in range(4000)}
+
+
+def test_streamed_json_is_the_json_of_the_whole_result(tmp_path):
+    import dataclasses
+    import io
+
+    from picker.report.calibration import to_json, write_json
+
+    m = load_measurements(write_many(tmp_path / "u.csv", 300), COLPITTS)
+    res = fit_parasitics(COLPITTS, m.values, m.frequency, unit_ids=m.unit_ids, select=True)
+    # an id with a quote, a backslash, a non-ASCII letter and markup must be escaped alike
+    res = dataclasses.replace(res, unit_ids=('a"\\µ[/x]', *res.unit_ids[1:]))
+    buf = io.StringIO()
+    write_json(res, buf, source="u.csv", rows=m.rows)
+    assert buf.getvalue() == to_json(res, source="u.csv", rows=m.rows)
+    assert len(json.loads(buf.getvalue())["residuals"]) == 300
+
+
+@pytest.mark.parametrize(
+    ("cells", "column", "what"),
+    [
+        ("1n,2n,10u,1e308", "frequency", "between 1 mHz and 100 GHz"),
+        ("1n,2n,10u,inf", "frequency", "frequency"),
+        ("1n,2n,10u,1e-9", "frequency", "between 1 mHz and 100 GHz"),
+        ("1e300,2n,10u,1MHz", "C1", "between"),
+    ],
+)
+def test_values_beyond_physical_ranges_are_one_line_errors(tmp_path, capsys, cells, column, what):
+    """Issue: 1e308 Hz was accepted (+inf ppm, a RuntimeWarning). Now exit 2, one line."""
+    from picker.cli.main import main
+
+    bad = tmp_path / "bad.csv"
+    bad.write_text(f"unit,C1,C2,L,frequency\nU1,{cells}\n", encoding="utf-8")
+    with pytest.raises(SystemExit) as exit_info:
+        main(["calibrate", str(bad), "--topology", "colpitts"])
+    assert exit_info.value.code == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and str(bad) in err and f"row 2, column {column}" in err
+    assert what in err
+
+
+@pytest.mark.parametrize(
+    ("extra", "cell", "column"),
+    [
+        ("frequency_sigma", "1e-300", "frequency_sigma"),  # finer than any frequency standard
+        ("frequency_sigma", "2MHz", "frequency_sigma"),  # beyond the frequency itself
+        ("weight", "1e300", "weight"),
+        ("weight", "1e-300", "weight"),
+    ],
+)
+def test_sigma_and_weight_are_bounded(tmp_path, extra, cell, column):
+    bad = tmp_path / "bad.csv"
+    bad.write_text(
+        f"unit,C1,C2,L,frequency,{extra}\nU1,1n,2n,10u,1MHz,{cell}\nU2,1n,2.2n,10u,1MHz,1\n",
+        encoding="utf-8",
+    )
+    res = run(bad, "--topology", "colpitts")
+    assert isinstance(res.exception, SpecError)
+    assert res.exception.key == f"row 2, column {column}"
+
+
+# --------------------------------------------------------------------------- --into
+
+
+def test_into_writes_a_spec_that_loads_solves_and_carries_the_fit(tmp_path):
+    """Issue: the fragment could not be appended to a spec (TOML refuses a second table)."""
+    from picker.api import load_spec, solve
+
+    spec = tmp_path / "probe.toml"
+    spec.write_text(SPEC.read_text(encoding="utf-8"), encoding="utf-8")
+    before = spec.read_bytes()
+    new = tmp_path / "probe_calibrated.toml"
+    res = run(DEMO, "--into", spec, "-o", new)
+    assert res.exit_code == 0, res.output
+    assert spec.read_bytes() == before  # the input spec is never changed
+    text = new.read_text(encoding="utf-8")
+    assert text.count("[parasitics]") == 1
+    # every line of the original outside [parasitics] is kept as written, comments included
+    kept = [ln for ln in SPEC.read_text(encoding="utf-8").splitlines() if "stray" not in ln]
+    assert all(ln in text.splitlines() for ln in kept)
+    merged = load_spec(new)
+    m = load_measurements(DEMO, COLPITTS)
+    fit = fit_parasitics(
+        COLPITTS,
+        m.values,
+        m.frequency,
+        fit=("stray", "l_scale", "c2_shunt"),
+        select=True,
+        fixed={"stray": 15e-12},
+    )
+    for p in fit.parameters:
+        # fitted values written to 4 significant digits (capacitance) and 6 (l_scale);
+        # held ones keep the spec's own values
+        want = p.estimate if p.fitted else getattr(load_spec(SPEC).parasitics, p.name)
+        assert_allclose(getattr(merged.parasitics, p.name), want, rtol=5e-4)
+    result = solve(merged, top=3, samples=2000)
+    assert result.candidates
+    # an existing output is refused without --force, and the spec itself always
+    again = run(DEMO, "--into", spec, "-o", new)
+    assert isinstance(again.exception, SpecError) and "--force" in str(again.exception)
+    assert run(DEMO, "--into", spec, "-o", new, "--force").exit_code == 0
+    over = run(DEMO, "--into", spec, "-o", spec, "--force")
+    assert isinstance(over.exception, SpecError) and "input" in str(over.exception)
+    assert spec.read_bytes() == before
+
+
+def test_into_a_spec_without_parasitics_appends_the_table(tmp_path):
+    from picker.spec.load import load_spec
+
+    text = SPEC.read_text(encoding="utf-8").replace('[parasitics]\nstray = "15 pF"\n', "")
+    assert "[parasitics]" not in text
+    spec = tmp_path / "bare.toml"
+    spec.write_bytes(text.replace("\n", "\r\n").encode())  # CRLF kept as the spec has it
+    new = tmp_path / "new.toml"
+    res = run(DEMO, "--into", spec, "-o", new, "--fit", "stray,l_scale")
+    assert res.exit_code == 0, res.output
+    raw = new.read_bytes()
+    assert b"\r\n[parasitics]\r\n" in raw and b"\n" not in raw.replace(b"\r\n", b"")
+    assert load_spec(new).parasitics.stray > 0
+
+
+@pytest.mark.parametrize(
+    ("args", "key"),
+    [
+        (("--into", str(SPEC)), "-o"),
+        (("--topology", "colpitts", "-o", "x.toml"), "--into"),
+    ],
+)
+def test_into_and_output_go_together(tmp_path, args, key):
+    res = run(DEMO, *args)
+    assert isinstance(res.exception, SpecError) and res.exception.key == key
+
+
+def test_into_refuses_a_spec_whose_parasitics_are_not_a_table(tmp_path):
+    text = (
+        SPEC.read_text(encoding="utf-8")
+        .replace('[parasitics]\nstray = "15 pF"\n', "")
+        .replace(
+            'topology = "colpitts"\n', 'topology = "colpitts"\nparasitics = { stray = "15 pF" }\n'
+        )
+    )
+    spec = tmp_path / "inline.toml"
+    spec.write_text(text, encoding="utf-8")
+    new = tmp_path / "new.toml"
+    res = run(DEMO, "--into", spec, "-o", new)
+    assert isinstance(res.exception, SpecError) and res.exception.key == "-o"
+    assert "would not load" in res.exception.message and not new.exists()
+
+
+def test_unit_ids_are_never_read_as_markup(tmp_path):
+    """Issue: a unit id such as ``[/x]`` crashed the table (rich markup)."""
+    csv = write_units(tmp_path / "u.csv", outlier=True)
+    text = csv.read_text(encoding="utf-8").replace("B1,", "[/x],").replace("B5,", "[bold]B5,")
+    csv.write_text(text, encoding="utf-8")
+    res = run(csv, "--topology", "colpitts")
+    assert res.exit_code == 0, res.output
+    assert "[/x]" in res.output and "[bold]B5 (outlier)" in res.output

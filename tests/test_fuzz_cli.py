@@ -92,6 +92,14 @@ def _commands(f) -> dict[str, list[str]]:
         ],
         "series": ["series", "E24", "--min", "1n", "--max", "10n", "--unit", "F"],
         "calibrate": ["calibrate", str(f["units"]), "--topology", "colpitts", "--format", "json"],
+        "calibrate_into": [
+            "calibrate",
+            str(f["units"]),
+            "--into",
+            str(f["spec"]),
+            "-o",
+            out + ".toml",
+        ],
         "consolidate": ["consolidate", str(f["plan"]), "--format", "json", "--time-limit", "2"],
         "netlist": [
             "netlist",

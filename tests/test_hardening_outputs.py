@@ -5,7 +5,7 @@ formula injection (OWASP, "CSV Injection": cells starting with = + - @ tab or CR
 
 Writers covered (the audit of every ``open(..., "w")``, ``write_text``, ``savefig``
 and ``write_bytes`` in picker/ and scripts/): solve/evaluate ``-o`` and ``--plot``,
-netlist ``-o``, calibrate ``--fragment`` and ``--plot``, consolidate ``--bom`` (CSV and
+netlist ``-o``, calibrate ``--fragment``, ``--plot`` and ``-o`` (with ``--into``), consolidate ``--bom`` (CSV and
 JSON), solve ``--bom`` (evaluate's is the same code). The rest write into temporary folders only (ngspice decks, benchmark inputs)
 or regenerate a demo file on purpose (scripts/make_bench_units.py, through
 ``atomic_write(force=True)``).
@@ -89,6 +89,10 @@ def _writers(tmp):
             ["solve", str(_buyer(tmp)), *mc, "-f", "json", "--bom", "OUT.csv"],
             [_buyer(tmp), tmp / "stock_demo.csv"],
         ),
+        "calibrate --into -o": (
+            ["calibrate", str(units), "--into", str(spec), "-o", "OUT"],
+            [units, spec],
+        ),
         "consolidate --bom csv": (
             ["consolidate", str(plan), "--bom", "OUT.csv", "--time-limit", "2"],
             [plan, tmp / "stock_demo.csv", tmp / "plan_sensor_base.toml"],
@@ -107,6 +111,7 @@ WRITERS = [
     "netlist -o",
     "calibrate --fragment",
     "calibrate --plot",
+    "calibrate --into -o",
     "consolidate --bom csv",
     "consolidate --bom json",
     "solve --bom",

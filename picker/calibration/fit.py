@@ -42,6 +42,8 @@ This is a core module: pure functions over numpy arrays in SI units.
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping, Sequence
+from dataclasses import replace
+from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -54,6 +56,7 @@ from picker.calibration.diagnostics import (
     select_estimable,
 )
 from picker.calibration.result import CalibrationResult, format_parameter, parameter_estimates
+from picker.calibration.selection import SELECT_ALPHA, NestedFit, choose_parasitics
 from picker.errors import SpecError
 from picker.tank.base import Topology, resonant_frequency
 from picker.tank.board import (
@@ -111,13 +114,21 @@ def _reason(topology: Topology, values: Mapping[str, np.ndarray], names: Sequenc
     positions = [p for p in topology.positions if p in values]
     if all(_spread(values[p]) < 1e-9 for p in positions):
         return "every unit has the same part values, so the data fix only the tank's L·C product"
-    shunts = {"c1_shunt", "c2_shunt"} & set(names)
-    if shunts and topology.name == "colpitts":
-        r = _spread(topology.beta(values))
+    across = shunt_positions(topology)
+    for name in (n for n in ("c1_shunt", "c2_shunt") if n in names):
+        # a shunt across C_k moves f as (C_s/C_k)² times a stray does (ideal_jacobian), so
+        # it is told from the stray only as far as C_s/C_k varies between units
+        pos = across[name]
+        others = [c for c in topology.capacitors if c != pos]
+        if len(others) == 1:
+            what = f"the {topology.feedback_pair[0]}/{topology.feedback_pair[1]} ratio"
+        else:
+            what = f"the ratio of the series chain {'–'.join(topology.capacitors)} to {pos}"
+        r = _spread(topology.c_series(values) / values[pos])
         if r < 1e-9:
-            return "every unit has the same C1/C2 ratio"
+            return f"every unit has the same {what.removeprefix('the ')}"
         if r < 0.05:
-            return f"the C1/C2 ratio hardly varies between units (spread {100 * r:.2g} %)"
+            return f"{what} hardly varies between units (spread {100 * r:.2g} %)"
     if "l_scale" in names:
         r = _spread(topology.c_series(values))
         if r < 1e-9:
@@ -195,6 +206,8 @@ def fit_parasitics(
     unit_ids: Sequence[str] | None = None,
     confidence: float = 0.95,
     rcond: float = RCOND,
+    select: bool = False,
+    alpha: float = SELECT_ALPHA,
 ) -> CalibrationResult:
     """Estimate board parasitics from the measured frequencies of built units.
 
@@ -239,6 +252,15 @@ def fit_parasitics(
         Level of the reported intervals.
     rcond:
         Identifiability threshold on the column-normalised Jacobian.
+    select:
+        False: fit every parasitic of ``fit`` the units can separate. True:
+        fit only those the data support, chosen in ``fit``'s order by the
+        extra-sum-of-squares test at level ``alpha``
+        (:func:`picker.calibration.selection.choose_parasitics`, on the
+        least-squares fit whatever ``loss``); ``selection`` and the notes say
+        which were kept and why.
+    alpha:
+        Level of that test.
 
     Returns
     -------
@@ -254,6 +276,17 @@ def fit_parasitics(
         topology, values, f_measured, sigma, fit, loss, unit_ids
     )
     n = f.size
+    if select:
+        args = dict(
+            sigma=sigma,
+            fixed=fixed,
+            absolute_sigma=absolute_sigma,
+            model=model,
+            unit_ids=unit_ids,
+            confidence=confidence,
+            rcond=rcond,
+        )
+        return _select_and_fit(topology, vals, f, fit, loss, f_scale, alpha, args)
     base = {**DEFAULTS, **(fixed or {})}
     notes: list[str] = []
 
@@ -275,9 +308,23 @@ def fit_parasitics(
 
     def freq(params: Mapping[str, float]) -> np.ndarray:
         eff = apply_parasitics(topology, vals, params)
+        ideal = resonant_frequency(eff[topology.inductor], topology.c_series(eff) + eff["stray"])
         if model is None:
-            return resonant_frequency(eff[topology.inductor], topology.c_series(eff) + eff["stray"])
-        return np.asarray(model(eff), dtype=float)
+            return ideal
+        # a board the model finds not oscillating on the optimiser's way: the ideal tank
+        # stands in, so the residuals stay finite (the start and the solution are checked)
+        out = np.asarray(model(eff), dtype=float)
+        return np.where(np.isfinite(out), out, ideal)
+
+    if model is not None:
+        start = np.asarray(model(apply_parasitics(topology, vals, base)), dtype=float)
+        if not np.all(np.isfinite(start)):
+            bad = [u for u, ok in zip(unit_ids, np.isfinite(start), strict=True) if not ok]
+            shown = ", ".join(bad[:5]) + (f" and {len(bad) - 5} more" if len(bad) > 5 else "")
+            raise SpecError(
+                f"the board model gives no oscillation for unit(s) {shown} with the starting "
+                "parasitics; check the [amplifier] section against the boards measured"
+            )
 
     def jac_natural(params: Mapping[str, float], names: Sequence[str]) -> np.ndarray:
         if model is None:
@@ -415,6 +462,13 @@ def fit_parasitics(
 
     # ---- residuals and outliers
     f_fit = freq(params)
+    if model is not None:
+        stops = ~np.isfinite(np.asarray(model(apply_parasitics(topology, vals, params)), float))
+        if np.any(stops):
+            notes.append(
+                f"{int(np.sum(stops))} unit(s) do not oscillate in the board model at the "
+                "fitted parasitics; the ideal tank stands in for them."
+            )
     res_hz = f - f_fit
     res_ppm = 1e6 * res_hz / f_fit
     s = float(np.sqrt(s2)) if np.isfinite(s2) else float("nan")
@@ -447,4 +501,41 @@ def fit_parasitics(
         confidence=confidence,
         absolute_sigma=absolute_sigma,
         sigma=sigma,
+        weighted_sse=float(np.sum(r**2)),
     )
+
+
+def _select_and_fit(
+    topology: Topology,
+    vals: Mapping[str, np.ndarray],
+    f: np.ndarray,
+    candidates: Sequence[str],
+    loss: str,
+    f_scale: float | None,
+    alpha: float,
+    args: Mapping[str, Any],
+) -> CalibrationResult:
+    """:func:`fit_parasitics` with ``select=True``: choose, then fit the kept ones."""
+    fits: dict[tuple[str, ...], CalibrationResult] = {}
+
+    def nested(names: Sequence[str]) -> NestedFit:
+        key = tuple(names)
+        if key not in fits:
+            fits[key] = fit_parasitics(topology, vals, f, fit=key, loss="linear", **args)
+        r = fits[key]
+        return NestedFit(r.fitted, r.weighted_sse, int(f.size))
+
+    kept, steps, _ = choose_parasitics(
+        nested, candidates, alpha=alpha, known_sigma=bool(args["absolute_sigma"])
+    )
+    final = next(r for r in fits.values() if r.fitted == kept)
+    if loss != "linear":
+        final = fit_parasitics(topology, vals, f, fit=kept, loss=loss, f_scale=f_scale, **args)
+    held = {**DEFAULTS, **(args["fixed"] or {})}
+    notes = [
+        f"kept {s.name}: {s.reason}."
+        if s.kept
+        else f"left out {s.name} (held at {format_parameter(s.name, held[s.name])}): {s.reason}."
+        for s in steps
+    ]
+    return replace(final, notes=(*notes, *final.notes), selection=steps)

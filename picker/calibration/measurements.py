@@ -19,6 +19,11 @@ names are matched without regard to case or surrounding spaces.
   ``frequency_sigma`` (standard deviation of the frequency reading, Hz) or
   ``weight`` (a relative weight > 0; not both), and ``note`` (free text).
 
+Values are bounded to finite physical ranges (:mod:`picker.parts.limits`: part
+values 1 aF .. 10 F and 1 pH .. 100 H, frequencies 1 mHz .. 100 GHz; a
+``frequency_sigma`` within 1e-15 .. 1 times the unit's frequency, a ``weight``
+within 1e-12 .. 1e12), so every figure derived from them is finite.
+
 Any other column is an error, so a typo is never silently ignored. "row N"
 in a message is the line number in the file (the header is row 1).
 """
@@ -27,6 +32,7 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -35,7 +41,7 @@ import numpy as np
 
 from picker.errors import SpecError
 from picker.files import read_text
-from picker.parts.limits import value_problem
+from picker.parts.limits import frequency_problem, value_problem
 from picker.tank import TOPOLOGIES, Topology
 from picker.units import parse_quantity
 
@@ -43,6 +49,14 @@ __all__ = ["OPTIONAL_COLUMNS", "Measurements", "load_measurements", "parse_measu
 
 #: Columns of our own that a measurements file may carry besides the positions.
 OPTIONAL_COLUMNS = ("unit", "measured", "frequency_sigma", "weight", "note")
+#: Accepted frequency sigma relative to the unit's frequency, and accepted weights: a
+#: sigma beyond the frequency itself or finer than the best frequency standards
+#: (about 1e-15), a weight ratio beyond 1e24 between units, is a typo and would
+#: only overflow the weighted sums (common practice, no source).
+SIGMA_RANGE = (1e-15, 1.0)
+#: A plain decimal number (no prefix, no unit): parsed by float() directly.
+_PLAIN = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+WEIGHT_RANGE = (1e-12, 1e12)
 
 
 @dataclass(frozen=True)
@@ -103,18 +117,35 @@ def _number(text: str, key: str) -> float:
     return x
 
 
-def _positive(text: str, unit: str, file: str, key: str) -> float:
-    """A cell holding a quantity > 0 in ``unit`` ("1": a plain number)."""
+def _positive(text: str, unit: str, file: str, key: str, *, frequency: bool = False) -> float:
+    """A cell holding a quantity > 0 in ``unit`` ("1": a plain number).
+
+    Part values (F, H) and, when ``frequency``, a frequency are bounded to
+    :mod:`picker.parts.limits`' ranges.
+    """
     if not text:
         raise SpecError("empty cell; expected a value", file=file, key=key)
     try:
-        x = _number(text, key) if unit == "1" else parse_quantity(text, unit)
+        if unit == "1":
+            x = _number(text, key)
+        elif _PLAIN.fullmatch(text):  # a bare number in SI units: the fast path for big files
+            x = float(text)  # correctly rounded, as parse_quantity's exact decimal is
+        else:
+            x = parse_quantity(text, unit)
     except SpecError as exc:
         raise SpecError(exc.message, file=file, key=key) from None
     if not x > 0:
         raise SpecError(f"expected a value > 0; got {text!r}", file=file, key=key)
-    if (why := value_problem(x, unit, text)) is not None:
+    why = frequency_problem(x) if frequency else value_problem(x, unit, text)
+    if why is not None:
         raise SpecError(f"{why}; got {text!r}", file=file, key=key)
+    return x
+
+
+def _within(x: float, lo: float, hi: float, what: str, text: str, file: str, key: str) -> float:
+    """``x`` unchanged when lo <= x <= hi, else a one-line error naming the cell."""
+    if not lo <= x <= hi:
+        raise SpecError(f"expected {what}; got {text!r}", file=file, key=key)
     return x
 
 
@@ -235,7 +266,7 @@ def parse_measurements(text: str, topology: Topology, *, file: str = "<text>") -
             cells: dict[str, str] = cells,
             key: Callable[[str], str] = key,
         ) -> float:
-            return _positive(cells[col], unit, file, key(col))
+            return _positive(cells[col], unit, file, key(col), frequency=col == "frequency")
 
         for p in topology.positions:
             values[p].append(positive(p, topology.unit(p)))
@@ -249,9 +280,29 @@ def parse_measurements(text: str, topology: Topology, *, file: str = "<text>") -
         ids.append(uid)
         line_numbers.append(line_no)
         if "frequency_sigma" in cells:
-            extra["frequency_sigma"].append(positive("frequency_sigma", "Hz"))
+            f_unit = freq[-1]
+            extra["frequency_sigma"].append(
+                _within(
+                    positive("frequency_sigma", "Hz"),
+                    SIGMA_RANGE[0] * f_unit,
+                    SIGMA_RANGE[1] * f_unit,
+                    "a frequency sigma between 1e-15 and 1 times the unit's frequency",
+                    cells["frequency_sigma"],
+                    file,
+                    key("frequency_sigma"),
+                )
+            )
         if "weight" in cells:
-            extra["weight"].append(positive("weight", "1"))
+            extra["weight"].append(
+                _within(
+                    positive("weight", "1"),
+                    *WEIGHT_RANGE,
+                    "a weight between 1e-12 and 1e12",
+                    cells["weight"],
+                    file,
+                    key("weight"),
+                )
+            )
         extra["measured"].append(
             _parse_measured(cells.get("measured", ""), topology.positions, file, key("measured"))
         )

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from picker.calibration.selection import SelectionStep
 from picker.tank.board import PARAMETERS, UNITS
 from picker.units import format_quantity
 
@@ -66,6 +67,12 @@ class CalibrationResult:
         its estimate stands for ``name + Σ a·(held − held value)`` (first order).
     singular_values:
         Of the column-normalised weighted Jacobian at the solution, descending.
+    weighted_sse:
+        Σ (residual / sigma)² at the solution (sigma: the weights' scale).
+    selection:
+        When the parasitics were chosen by the data
+        (:func:`picker.calibration.selection.choose_parasitics`), one step per
+        candidate saying whether it was kept and why; else empty.
     """
 
     topology: str
@@ -92,6 +99,8 @@ class CalibrationResult:
     confidence: float
     absolute_sigma: bool
     sigma: np.ndarray | None = field(default=None)
+    weighted_sse: float = field(default=float("nan"))
+    selection: tuple[SelectionStep, ...] = field(default=())
 
     @property
     def parasitics(self) -> dict[str, float]:
