@@ -137,9 +137,19 @@ def loaded_view(spec: Spec, cands: list[Candidate]) -> list[Candidate]:
                 in_window=bool(f.f_min <= fl <= f.f_max),
                 f_worst_low_hz=c.f_worst_low_hz * r,
                 f_worst_high_hz=c.f_worst_high_hz * r,
+                extra=_scaled_over_range(c.extra, r),
             )
         )
     return out
+
+
+def _scaled_over_range(extra: dict[str, Any], r: float) -> dict[str, Any]:
+    """``extra`` with the worst case over temperature scaled by the loading ratio ``r``."""
+    wc = extra.get("worst_case_over_range")
+    if not wc:
+        return extra
+    scaled = {**wc, "f_low_hz": wc["f_low_hz"] * r, "f_high_hz": wc["f_high_hz"] * r}
+    return {**extra, "worst_case_over_range": scaled}
 
 
 # ---------------------------------------------------------------- per-candidate extras

@@ -12,7 +12,7 @@ The orchestration only: the spec becomes the core's inputs in
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import replace
 from typing import Any
 
@@ -40,8 +40,10 @@ from picker.core.search import Designs, Problem, check_size, search
 from picker.errors import SpecError
 from picker.parts.limits import lumped_warnings
 from picker.production.figures import plot_inputs
+from picker.spec.load import complete_spec
 from picker.spec.model import Spec
 from picker.tank.board import board_beta, board_frequency
+from picker.units import parse_quantity, parse_tolerance
 
 __all__ = ["evaluate", "solve", "summary"]
 
@@ -227,7 +229,7 @@ def solve(
     is called after each batch. ``sampling`` is "random" or "sobol".
     ``plot_data`` keeps the arrays the plots need in ``result.plot_data``.
     """
-    spec = with_run_settings(spec, precision, sampling)
+    spec = with_run_settings(complete_spec(spec), precision, sampling)
     ys = spec.yield_
     top = spec.report.top if top is None else top
     samples = ys.samples if samples is None else samples
@@ -285,9 +287,9 @@ def solve(
 
 def evaluate(
     spec: Spec,
-    values: dict[str, float],
+    values: Mapping[str, float | str],
     *,
-    tolerances: dict[str, float] | None = None,
+    tolerances: Mapping[str, float | str] | None = None,
     samples: int | None = None,
     seed: int | None = None,
     precision: float | None = None,
@@ -297,9 +299,11 @@ def evaluate(
 ) -> SolveResult:
     """The same figures as ``solve`` for one given design (an existing board).
 
+    ``values`` and ``tolerances`` take numbers (SI units, fractions) or text as
+    the command line does (``{"C1": "150 pF"}``, ``{"C1": "2 %"}``).
     ``precision``, ``sampling``, ``progress`` and ``plot_data`` as for :func:`solve`.
     """
-    spec = with_run_settings(spec, precision, sampling)
+    spec = with_run_settings(complete_spec(spec), precision, sampling)
     ys = spec.yield_
     samples = ys.samples if samples is None else samples
     seed = ys.seed if seed is None else seed
@@ -318,8 +322,9 @@ def evaluate(
             f"expected {', '.join(topo.positions)}",
             key="--set",
         )
-    tolerances = tolerances or {}
-    tables = {p: given_table(spec, p, values[p], tolerances.get(p)) for p in topo.positions}
+    si = {p: parse_quantity(v, topo.unit(p), key=f"--set {p}") for p, v in values.items()}
+    tols = {p: parse_tolerance(t, key=f"--tol {p}") for p, t in (tolerances or {}).items()}
+    tables = {p: given_table(spec, p, si[p], tols.get(p)) for p in topo.positions}
     base = build_problem(spec)
     problem = Problem(
         topo, tables, base.f_min, base.f_max, base.beta_min, base.beta_max, base.parasitics

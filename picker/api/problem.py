@@ -26,7 +26,7 @@ from picker.parts.drift import check_range, material_of, temperature_grid
 from picker.parts.pairs import pair_table
 from picker.parts.table import ValueTable, uniform_table
 from picker.spec.load import materials_like
-from picker.spec.model import Spec
+from picker.spec.model import PartSpec, Spec
 from picker.spec.production import candidate_values
 from picker.spec.stock import stock_table
 from picker.tank.board import Parasitics
@@ -87,7 +87,7 @@ def part_table(spec: Spec, pos: str) -> ValueTable:
             source = part.series
         else:
             vals, source = np.asarray(part.values, dtype=float), "list"
-        price = np.nan if part.price is None else part.price
+        price = unit_price(part, float(tol))
         table = ValueTable(
             vals,
             np.full(vals.shape, float(tol)),
@@ -97,6 +97,17 @@ def part_table(spec: Spec, pos: str) -> ValueTable:
     if part.parallel:
         table = pair_table(table, part.pair_ratio_max)
     return table
+
+
+def unit_price(part: PartSpec, tol: float) -> float:
+    """A series or list part's unit price: its ``price``, else the ``prices`` entry of
+    its tolerance class (``prices = { "5 %" = 0.04 }`` for a 5 % part), else NaN."""
+    if part.price is not None:
+        return float(part.price)
+    for option, price in part.prices or ():
+        if not isinstance(option, str) and abs(float(option) - tol) <= 1e-9 * max(tol, 1e-12):
+            return float(price)
+    return float("nan")
 
 
 def given_table(spec: Spec, pos: str, value: float, tol: float | None = None) -> ValueTable:
@@ -130,7 +141,7 @@ def given_table(spec: Spec, pos: str, value: float, tol: float | None = None) ->
     tol = part.tolerance if tol is None else tol
     assert tol is not None  # validated: a series or list position has a tolerance
     src = part.series if part.series and series_mod.is_member(part.series, value) else "given"
-    price = np.nan if part.price is None else float(part.price)
+    price = unit_price(part, float(tol))
     return ValueTable(v, np.array([float(tol)]), src, price=np.array([price]))
 
 

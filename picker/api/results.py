@@ -10,6 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+from picker.api import export
 from picker.core.montecarlo import YieldEstimate
 from picker.spec.model import Spec
 
@@ -44,7 +45,7 @@ class PartPick:
         return self.value - self.second_value
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Candidate:
     """A ranked design with its figures."""
 
@@ -82,6 +83,9 @@ class Candidate:
     def ci_high(self) -> float:
         return self.yield_.ci_high
 
+    def __repr__(self) -> str:
+        return export.candidate_text(self)
+
 
 @dataclass(frozen=True)
 class Miss:
@@ -93,7 +97,7 @@ class Miss:
     failed: str
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class SolveResult:
     """Everything ``solve`` or ``evaluate`` found, best design first."""
 
@@ -114,3 +118,25 @@ class SolveResult:
     warnings: list[str] = field(default_factory=list)
     production: dict[str, Any] = field(default_factory=dict)
     plot_data: dict[str, Any] | None = None
+
+    def __repr__(self) -> str:
+        return export.summary_text(self)
+
+    def _repr_html_(self) -> str:
+        """The ranked table for a notebook (Jupyter calls this)."""
+        return export.summary_html(self)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The result as the JSON output holds it (``picker solve --format json``)."""
+        return export.result_dict(self)
+
+    def to_dataframe(self) -> Any:
+        """One row per design (best first) as a ``pandas.DataFrame``.
+
+        Numbers stay numbers, with the unit in the column name (``C1_F``,
+        ``L_H``, ``f_nominal_Hz``); tolerance, error and yield are fractions
+        (0.05 = 5 %); see :func:`picker.api.export.design_columns`.
+        """
+        import pandas  # optional and heavy (about 0.3 s): loaded only when asked
+
+        return pandas.DataFrame(export.design_rows(self), columns=export.design_columns(self))

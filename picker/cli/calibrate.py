@@ -65,6 +65,7 @@ def run_calibrate(
     plot: Path | None = None,
     force: bool = False,
     out: IO[str] | None = None,
+    report: Path | None = None,
 ) -> int:
     """What ``picker calibrate`` does; returns the exit status (0)."""
     # numpy, scipy and pydantic: imported here, so that ``picker --help`` stays fast
@@ -111,6 +112,10 @@ def run_calibrate(
 
     m = load_measurements(measurements, topo)
     inputs = [measurements] + ([spec] if spec is not None else [])
+    if report is not None:  # refused before the fit and the other files
+        from picker.cli.options import check_report
+
+        check_report(report, force, inputs)
     if fragment is not None and plot is not None and fragment.resolve() == plot.resolve():
         raise SpecError("--fragment and --plot name the same file", file=str(plot), key="--plot")
     try:
@@ -141,6 +146,12 @@ def run_calibrate(
         from picker.report.plots import plot_residuals  # matplotlib: only for --plot
 
         atomic_write(plot, plot_residuals(result), force=force, inputs=inputs, key="--plot")
+    if report is not None:
+        from picker.cli.options import command_line
+        from picker.report.html import write_report  # matplotlib: only for --report
+
+        cmd = command_line("calibrate", measurements)
+        write_report(report, result, inputs=inputs, command=cmd, notes=extra, force=force)
 
     stream = out if out is not None else sys.stdout
     if fmt_l == "json":
@@ -156,6 +167,8 @@ def run_calibrate(
             console.print(f"wrote {fragment}", markup=False)
         if plot is not None:
             console.print(f"wrote {plot}", markup=False)
+        if report is not None:
+            console.print(f"wrote {report}", markup=False)
     return 0
 
 
@@ -185,6 +198,9 @@ def calibrate_cmd(
     ),
     plot: Path | None = typer.Option(None, "--plot", help="Write a residual plot (PNG) here."),
     force: bool = typer.Option(False, "--force", help="Replace existing output files."),
+    report: Path | None = typer.Option(
+        None, "--report", help="Also write a self-contained HTML report (FILE.html)."
+    ),
 ) -> None:
     """Learn the board's parasitics from the frequencies of built units."""
     run_calibrate(
@@ -197,4 +213,5 @@ def calibrate_cmd(
         fragment=fragment,
         plot=plot,
         force=force,
+        report=report,
     )

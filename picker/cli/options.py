@@ -29,6 +29,8 @@ __all__ = [
     "FORMATS",
     "ProgressCallback",
     "check_format",
+    "check_report",
+    "command_line",
     "parse_assignments",
     "parse_precision",
     "parse_sampling",
@@ -52,6 +54,27 @@ def check_format(fmt: str, allowed: Sequence[str] = FORMATS) -> str:
     if f not in allowed:
         raise SpecError(f"expected one of {', '.join(allowed)}; got {fmt!r}", key="--format")
     return f
+
+
+def check_report(report: object, force: bool, inputs: Sequence[object]) -> None:
+    """Refuse a bad ``--report`` before the run: not .html, an input, or existing without --force."""
+    if report is None:
+        return
+    from pathlib import Path
+
+    from picker.files import check_output
+
+    p = Path(str(report))
+    if p.suffix.lower() not in (".html", ".htm"):
+        raise SpecError(f"expected a file name ending in .html; got {p.name!r}", key="--report")
+    check_output(p, force=force, inputs=[Path(str(i)) for i in inputs], key="--report")
+
+
+def command_line(*words: object) -> str:
+    """``picker`` and the command's words (``picker solve spec.toml``), for a report's head."""
+    import shlex
+
+    return shlex.join(["picker", *(str(w) for w in words)])
 
 
 def unit_of(pos: str) -> str | None:

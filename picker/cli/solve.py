@@ -19,6 +19,8 @@ from rich.console import Console
 
 from picker.cli.options import (
     check_format,
+    check_report,
+    command_line,
     parse_assignments,
     parse_precision,
     parse_sampling,
@@ -42,6 +44,18 @@ def _check_outputs(output: Path | None, plot: Path | None, force: bool, spec: Pa
         from picker.report.plots import check_plot_folder  # matplotlib: only for --plot
 
         check_plot_folder(plot, force=force, inputs=[spec])
+
+
+def _write_report(
+    report: Path | None, result: SolveResult, force: bool, spec: Path, command: str
+) -> None:
+    """Write the --report page (the command line in its head) and say so on stderr."""
+    if report is None:
+        return
+    from picker.report.html import write_report  # matplotlib: only for --report
+
+    write_report(report, result, inputs=[spec], command=command_line(command, spec), force=force)
+    sys.stderr.write(f"picker: wrote {report}\n")
 
 
 def _emit(
@@ -96,6 +110,9 @@ def solve(
     plot: Path | None = typer.Option(
         None, "--plot", help="Write PNG plots of the best design into this folder."
     ),
+    report: Path | None = typer.Option(
+        None, "--report", help="Also write a self-contained HTML report (FILE.html)."
+    ),
 ) -> None:
     """Search every standard-value design in the window and rank them by yield."""
     from picker import api
@@ -103,6 +120,7 @@ def solve(
     fmt = check_format(format)
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
+    check_report(report, force, [spec])
     s = api.load_spec(spec)
     with progress_bar(prec or s.yield_.precision) as progress:
         result = api.solve(
@@ -114,12 +132,13 @@ def solve(
             precision=prec,
             sampling=samp,
             progress=progress,
-            plot_data=plot is not None,
+            plot_data=plot is not None or report is not None,
         )
     if plot is not None and result.status == "ok":
         from picker.report.plots import write_plots
 
         write_plots(result, plot, force=force, inputs=[spec])
+    _write_report(report, result, force, spec, "solve")
     _emit(result, fmt, output, force, [spec])
     if result.status != "ok":
         raise typer.Exit(1)
@@ -143,6 +162,9 @@ def evaluate(
     plot: Path | None = typer.Option(
         None, "--plot", help="Write PNG plots of the design into this folder."
     ),
+    report: Path | None = typer.Option(
+        None, "--report", help="Also write a self-contained HTML report (FILE.html)."
+    ),
 ) -> None:
     """The same figures as solve for one given design (an existing board)."""
     from picker import api
@@ -151,6 +173,7 @@ def evaluate(
     fmt = check_format(format)
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
+    check_report(report, force, [spec])
     s = api.load_spec(spec)
     values = parse_assignments(set_, "--set", unit_of)
     tols = {}
@@ -171,12 +194,13 @@ def evaluate(
             precision=prec,
             sampling=samp,
             progress=progress,
-            plot_data=plot is not None,
+            plot_data=plot is not None or report is not None,
         )
     if plot is not None:
         from picker.report.plots import write_plots
 
         write_plots(result, plot, force=force, inputs=[spec])
+    _write_report(report, result, force, spec, "evaluate")
     _emit(result, fmt, output, force, [spec])
 
 

@@ -35,7 +35,8 @@ from picker.core.precision import single
 from picker.core.propagation import TEMPERATURE, first_order_shares, temperature_std
 from picker.core.screen import part_sigmas, temperature_terms
 from picker.core.search import Designs
-from picker.parts.drift import Material
+from picker.parts.drift import Material, envelope
+from picker.parts.pairs import effective_tolerance
 from picker.production.advice import (
     ProductionSpec,
     Recentre,
@@ -167,6 +168,40 @@ def _shift(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndarray]:
     return shift, var
 
 
+def worst_case_over_range(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndarray]:
+    """Lowest and highest frequency over the temperature range, worst case, shape (n,) each.
+
+    The worst-case method of :func:`picker.core.screen.corner_span` with the
+    drift added: at each temperature of the grid every part is set to
+    nominal·(1 ± t)·(1 + d), with d at the low or high edge of its material's
+    drift envelope there (:func:`picker.parts.drift.envelope`), in all 2^k
+    combinations; a part without a material does not drift. The board
+    frequency is monotone in each part value, so its extremes lie at these
+    corners; the grid holds both ends of the range and every material's
+    turning points (:func:`picker.parts.drift.temperature_grid`), where the
+    envelope's extremes lie.
+    """
+    problem = sim.problem
+    topo = problem.topology
+    vals = designs.values(problem)
+    tols = {p: effective_tolerance(problem.tables[p], designs.idx[p]) for p in topo.positions}
+    env = {p: envelope(m, sim.temperatures) for p, m in _materials(sim).items()}
+    lo = np.full(len(designs), np.inf)
+    hi = np.full(len(designs), -np.inf)
+    k = len(topo.positions)
+    for i in range(len(sim.temperatures)):
+        for corner in range(2**k):
+            v = {}
+            for j, p in enumerate(topo.positions):
+                up = bool((corner >> j) & 1)
+                d = float(env[p][int(up)][i]) if p in env else 0.0
+                v[p] = vals[p] * (1.0 + (tols[p] if up else -tols[p])) * (1.0 + d)
+            f = board_frequency(topo, v, problem.parasitics)
+            lo = np.minimum(lo, f)
+            hi = np.maximum(hi, f)
+    return lo, hi
+
+
 # ---------------------------------------------------------------- per-candidate figures
 
 
@@ -194,6 +229,13 @@ def extras(
     if with_t:
         for d, t in zip(out, over_temperature(sim, designs, u, passed, ys, ys.seed), strict=True):
             d["yield_over_temperature"] = t
+        wlo, whi = worst_case_over_range(sim, designs)
+        for r in range(n):
+            out[r]["worst_case_over_range"] = {
+                "range_c": list(ys.temperature or ()),
+                "f_low_hz": float(wlo[r]),
+                "f_high_hz": float(whi[r]),
+            }
     for r in range(min(n, TIGHTER_CANDIDATES)):
         d1 = single(designs, r)
         fn = yield_function(spec, sim, d1, ux)
