@@ -34,6 +34,7 @@ __all__ = [
     "summary_html",
     "summary_text",
     "tied_with_previous",
+    "ties",
 ]
 
 
@@ -142,6 +143,14 @@ def tied_with_previous(candidates: list[Candidate]) -> list[bool]:
     return out
 
 
+def ties(r: SolveResult) -> list[bool]:
+    """:func:`tied_with_previous` of a result ranked by yield; none when ranked by cost
+    (``[cost] rank_by = "cost"`` orders designs by price, not by yield)."""
+    if r.spec.cost.rank_by == "cost":
+        return [False] * len(r.candidates)
+    return tied_with_previous(r.candidates)
+
+
 def rank_text(rank: int, tied: bool) -> str:
     """The rank as a table shows it: ``3``, or ``=3`` when tied with the design above."""
     return f"={rank}" if tied else str(rank)
@@ -192,9 +201,9 @@ def design_rows(r: SolveResult) -> list[dict[str, Any]]:
     warnings with "; " (the same on every row).
     """
     topo = r.spec.topo
-    ties = tied_with_previous(r.candidates)
+    tie = ties(r)
     rows = []
-    for c, tied in zip(r.candidates, ties, strict=True):
+    for c, tied in zip(r.candidates, tie, strict=True):
         row: dict[str, Any] = {"rank": c.rank, "tied_with_previous": tied}
         for p in topo.positions:
             pp = c.parts[p]
@@ -283,13 +292,13 @@ def summary_html(r: SolveResult) -> str:
         advice = "".join(f"<li>{e(a)}</li>" for a in r.advice)
         return f"<div>{head}<p>No design meets the spec.</p><ul>{advice}</ul></div>"
     positions = s.topo.positions
-    ties = tied_with_previous(r.candidates)
+    tie = ties(r)
     th = "".join(
         f"<th>{e(h)}</th>"
         for h in ("#", *positions, "f nominal", "error", "beta", "yield (CI)", "cost/board")
     )
     body = []
-    for c, tied in zip(r.candidates, ties, strict=True):
+    for c, tied in zip(r.candidates, tie, strict=True):
         cost = (c.extra.get("cost") or {}).get("per_board")
         cells = [
             rank_text(c.rank, tied),
@@ -303,7 +312,7 @@ def summary_html(r: SolveResult) -> str:
         body.append("<tr>" + "".join(f"<td>{e(x)}</td>" for x in cells) + "</tr>")
     note = (
         "<p>= marks a design whose yield interval overlaps the one above it.</p>"
-        if any(ties)
+        if any(tie)
         else ""
     )
     return (

@@ -22,7 +22,7 @@ from picker.api.export import (  # the JSON layout lives with the results (to_di
     part_text,
     rank_text,
     result_dict,
-    tied_with_previous,
+    ties,
 )
 from picker.api.results import Candidate, PartPick, SolveResult
 from picker.files import csv_safe
@@ -230,8 +230,8 @@ def print_table(r: SolveResult, console: Console) -> None:
     priced = any(_cost_of(c) is not None for c in r.candidates)
     if priced:
         t.add_column("cost/board", justify="right")
-    ties = tied_with_previous(r.candidates)
-    for c, tied in zip(r.candidates, ties, strict=True):
+    tie = ties(r)
+    for c, tied in zip(r.candidates, tie, strict=True):
         t.add_row(
             rank_text(c.rank, tied),
             *(_table_part(c.parts[p]) for p in s.topo.positions),
@@ -250,7 +250,7 @@ def print_table(r: SolveResult, console: Console) -> None:
         console.print("Note: the nominal frequency lies outside the window.")
     if any(not c.feedback_ok for c in r.candidates):
         console.print("Note: '!' marks a feedback fraction outside the feedback window.")
-    if any(ties):
+    if any(tie):
         console.print(
             "Note: '=' marks a design whose yield interval overlaps the one ranked above it: "
             "these boards do not tell the two apart."

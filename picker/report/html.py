@@ -21,6 +21,7 @@ import base64
 import hashlib
 import html
 import io
+import re
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import replace
 from pathlib import Path
@@ -29,7 +30,7 @@ from typing import Any
 from rich.console import Console
 
 from picker import __version__
-from picker.api.export import part_text, rank_text, tied_with_previous
+from picker.api.export import part_text, rank_text, ties
 from picker.api.results import Candidate, SolveResult
 from picker.calibration.result import CalibrationResult
 from picker.errors import SpecError
@@ -57,7 +58,8 @@ h3 { font-size: 11pt; margin: 14px 0 4px 0; }
 table { border-collapse: collapse; margin: 6px 0 10px 0; }
 th, td { border: 1px solid #b9c2c7; padding: 3px 7px; vertical-align: top; }
 th { background: #e8eef1; text-align: left; font-weight: 600; }
-td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.n { text-align: right; font-variant-numeric: tabular-nums; }
+table.wide { font-size: 9pt; }
 td.h, code { font-family: "DejaVu Sans Mono", "Liberation Mono", monospace; font-size: 8.5pt;
   word-break: break-all; }
 pre { font-family: "DejaVu Sans Mono", "Liberation Mono", monospace; font-size: 8.5pt;
@@ -103,6 +105,15 @@ def inputs_of(result: SolveResult) -> list[Path]:
     return out
 
 
+_NUMBER_UNIT = re.compile(r"(?<=\d) (?=[%a-zA-Zµ°])")
+_LIGHT = str.maketrans("┏┳┓┃┡╇┩━┗┻┛╋┣┫", "┌┬┐│├┼┤─└┴┘┼├┤")
+
+
+def _keep(text: str) -> str:
+    """A number and its unit never split over two lines (U+00A0 between them)."""
+    return _NUMBER_UNIT.sub("\u00a0", text)
+
+
 def _table(
     head: Sequence[str],
     rows: Iterable[Sequence[str]],
@@ -113,7 +124,7 @@ def _table(
     body = []
     for row in rows:
         cells = "".join(
-            f'<td class="{"n" if i in numeric else "h" if i in mono else "t"}">{_E(x)}</td>'
+            f'<td class="{"n" if i in numeric else "h" if i in mono else "t"}">{_E(_keep(x))}</td>'
             for i, x in enumerate(row)
         )
         body.append(f"<tr>{cells}</tr>")
@@ -122,8 +133,12 @@ def _table(
 
 def _inputs_section(files: Sequence[Path], main: Path | None) -> str:
     rows = []
+    seen: set[Path] = set()
     for f in files:
         p = Path(f)
+        if p.resolve() in seen:
+            continue
+        seen.add(p.resolve())
         try:
             rows.append((str(p), f"{p.stat().st_size:,}", _sha256(p)))
         except OSError as exc:
@@ -144,7 +159,7 @@ def _captured(print_fn: Callable[[Console], None], width: int = 118) -> str:
     """What a rich printer writes, as plain text (box drawing kept)."""
     con = Console(record=True, width=width, file=io.StringIO(), color_system=None)
     print_fn(con)
-    return con.export_text()
+    return con.export_text().translate(_LIGHT)  # light lines: monospace fonts draw them evenly
 
 
 def _pre(text: str) -> str:
@@ -183,7 +198,8 @@ def _span(lo: float, hi: float, target: float) -> str:
     return f"{(lo / target - 1) * 100:+.2f} % .. {(hi / target - 1) * 100:+.2f} %"
 
 
-def _design_table(r: SolveResult) -> str:
+def _design_table(r: SolveResult, shown: set[int] | None = None) -> str:
+    """The ranked table; ``shown`` limits it to those indices (ties still judged on all)."""
     s = r.spec
     target = s.frequency.target
     positions = s.topo.positions
@@ -199,9 +215,11 @@ def _design_table(r: SolveResult) -> str:
         assert t is not None
         head.append(f"worst case {t[0]:g} .. {t[1]:g} °C")
     head += ["cost/board"] if priced else []
-    head += [f"{p} part" for p in positions] if ids else []
     rows = []
-    for c, tied in zip(r.candidates, tied_with_previous(r.candidates), strict=True):
+    tie = ties(r)
+    for k, (c, tied) in enumerate(zip(r.candidates, tie, strict=True)):
+        if shown is not None and k not in shown:
+            continue
         row = [rank_text(c.rank, tied)]
         row += [
             f"{part_text(c.parts[p])} {format_percent(c.parts[p].tolerance)}" for p in positions
@@ -228,13 +246,11 @@ def _design_table(r: SolveResult) -> str:
             row.append(
                 "?" if x is None else f"{x:.4g}" + ("" if cost.get("stock_ok", 1) else " short")
             )
-        if ids:
-            row += [_part_ids(c, p) for p in positions]
         rows.append(row)
     numeric = set(range(1, len(head)))
-    out = _table(head, rows, numeric)
+    out = _table(head, rows, numeric).replace("<table>", '<table class="wide">', 1)
     notes = []
-    if any(tied_with_previous(r.candidates)):
+    if any(tie):
         notes.append(
             "= marks a design whose yield interval overlaps the one ranked above it: "
             "these boards do not tell the two apart."
@@ -246,7 +262,15 @@ def _design_table(r: SolveResult) -> str:
         + (" and, over the range, at the edge of its drift" if over else "")
         + "; relative to the target."
     )
-    return out + "".join(f'<p class="note">{_E(n)}</p>' for n in notes)
+    out += "".join(f'<p class="note">{_E(n)}</p>' for n in notes)
+    if ids:
+        id_rows = [
+            (str(c.rank), *(_part_ids(c, p) for p in positions))
+            for k, c in enumerate(r.candidates)
+            if shown is None or k in shown
+        ]
+        out += "<h3>Part ids</h3>" + _table(("#", *positions), id_rows, {0})
+    return out
 
 
 def _part_ids(c: Candidate, p: str) -> str:
@@ -300,6 +324,11 @@ def _buyer(r: SolveResult) -> str:
         return ""
     c = r.candidates[0]
     cost = c.extra.get("cost") or {}
+    known = cost.get("per_board") is not None or any(
+        pp.part_id or pp.price == pp.price for pp in c.parts.values()
+    )
+    if not known:  # no price and no stock part: nothing for a buyer
+        return ""
     rows = []
     for p, pp in c.parts.items():
         price = "?" if pp.price != pp.price else f"{pp.price:.4g}"  # NaN: no price
@@ -388,13 +417,24 @@ def _calibration_page(
     return _page("Calibration report", command, meta, sections)
 
 
+#: Designs shown per channel of a plan (best first; the picked one always).
+_PLAN_ROWS = 10
+
+
 def _plan_page(run: Any, command: str, files: Sequence[Path]) -> str:
     text = _captured(lambda con: print_plan(run, con))
     sections = [_inputs_section(files, files[0] if files else None), "<h2>Plan</h2>" + _pre(text)]
+    choice = run.result.plan.choice if run.result.plan is not None else {}
     for ch in run.channels:
         r = ch.result
-        body = _design_table(r) if r.candidates else _misses(r)
-        sections.append(f"<h2>Channel {_E(ch.name)}</h2>{body}")
+        j = choice.get(ch.name)
+        keep = {k for k in range(len(r.candidates)) if k < _PLAN_ROWS or k == j}
+        body = _design_table(r, keep) if keep else _misses(r)
+        more = len(r.candidates) - len(keep)
+        said = [] if j is None else [f"picked: #{j + 1}"]
+        said += [f"{more} more designs in the JSON output"] if more > 0 else []
+        note = f'<p class="note">{_E("; ".join(said))}</p>' if said else ""
+        sections.append(f"<h2>Channel {_E(ch.name)}</h2>{note}{body}")
     ps = run.plan.spec
     meta = [f"{len(run.channels)} channels, {ps.build_quantity} boards"]
     return _page(ps.title or run.plan.path.name, command, meta, sections)
