@@ -269,7 +269,11 @@ def simulation_of(spec: Spec, problem: Problem) -> Simulation:
     """How the spec's boards vary: per-position distributions, drift, board model."""
     parts = part_variations(spec, problem)
     return Simulation(
-        problem, parts, temperature_grid_of(spec, parts), board_model_of(spec, problem)
+        problem,
+        parts,
+        temperature_grid_of(spec, parts),
+        board_model_of(spec, problem),
+        stray_tol=spec.parasitics.stray_tolerance,
     )
 
 

@@ -18,12 +18,14 @@ design only, which bounds their time.
 
 from __future__ import annotations
 
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
 
 from picker.core.montecarlo import (
     REFERENCE_TEMPERATURE,
+    STRAY,
     Simulation,
     count_passing,
     drift_factors,
@@ -49,7 +51,7 @@ from picker.production.advice import (
     yield_function,
 )
 from picker.production.drivers import regression_fit
-from picker.tank.board import board_frequency, board_sensitivities
+from picker.tank.board import board_frequency, board_sensitivities, board_values
 
 #: Rows of u used for drivers, buy-tighter and plot figures (2^17, a Sobol block).
 EXTRAS_ROWS = 1 << 17
@@ -79,7 +81,28 @@ def first_order(sim: Simulation, designs: Designs, with_temperature: bool) -> di
     if with_temperature:
         t_std = temperature_std(sens, _materials(sim), sim.temperatures)
         t_std = np.broadcast_to(t_std, (len(designs),))
-    return first_order_shares(sens, part_sigmas(sim, designs), t_std)
+    sigmas = part_sigmas(sim, designs)
+    if sim.stray_tol > 0:  # the stray as one more input (picker.tank.board: ∂f/∂stray)
+        s_stray, sig_stray = _stray_terms(sim, designs)
+        sens = {**sens, STRAY: s_stray}
+        sigmas = {**sigmas, STRAY: sig_stray}
+    return first_order_shares(sens, sigmas, t_std)
+
+
+def _stray_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndarray]:
+    """S = ∂ln f/∂ln stray = −stray/(2·C_t) and σ_rel = stray_tol/(√3·stray), shape (n,).
+
+    C_t = C_s + stray is the tank's total capacitance (f ∝ (L·C_t)^(-1/2),
+    :func:`picker.tank.board.ideal_jacobian`); a uniform spread over ±t has
+    σ = t/√3 (GUM JCGM 100:2008, 4.3.7).
+    """
+    problem = sim.problem
+    topo, par = problem.topology, problem.parasitics
+    bv = board_values(topo, designs.values(problem), par)
+    c_t = np.asarray(topo.c_eff(bv, par.stray), dtype=float)
+    s = -par.stray / (2.0 * c_t)
+    sig = np.full(len(designs), sim.stray_tol / (np.sqrt(3.0) * par.stray))
+    return s, sig
 
 
 def _worst_drift_index(sim: Simulation, d1: Designs) -> int:
@@ -106,6 +129,8 @@ def monte_carlo_drivers(
     vals = sampled_values(sim, d1, u)
     nominal = d1.values(problem)
     inputs = {p: np.log(vals[p][:, 0] / nominal[p][0]) for p in topo.positions}
+    if STRAY in vals:  # ln f is linear in the stray itself (C_t = C_s + stray), not in its log
+        inputs[STRAY] = vals[STRAY][:, 0] / par.stray - 1.0
     ln_f = np.log(board_frequency(topo, vals, par)[:, 0])
     t_worst = None
     drift = drift_factors(sim, u)
@@ -175,7 +200,8 @@ def worst_case_over_range(sim: Simulation, designs: Designs) -> tuple[np.ndarray
     drift added: at each temperature of the grid every part is set to
     nominal·(1 ± t)·(1 + d), with d at the low or high edge of its material's
     drift envelope there (:func:`picker.parts.drift.envelope`), in all 2^k
-    combinations; a part without a material does not drift. The board
+    combinations, with the stray at stray ± ``sim.stray_tol``; a part without a
+    material does not drift. The board
     frequency is monotone in each part value, so its extremes lie at these
     corners; the grid holds both ends of the range and every material's
     turning points (:func:`picker.parts.drift.temperature_grid`), where the
@@ -189,6 +215,8 @@ def worst_case_over_range(sim: Simulation, designs: Designs) -> tuple[np.ndarray
     lo = np.full(len(designs), np.inf)
     hi = np.full(len(designs), -np.inf)
     k = len(topo.positions)
+    par = problem.parasitics
+    strays = {par.stray - sim.stray_tol, par.stray + sim.stray_tol}  # its own two corners
     for i in range(len(sim.temperatures)):
         for corner in range(2**k):
             v = {}
@@ -196,9 +224,10 @@ def worst_case_over_range(sim: Simulation, designs: Designs) -> tuple[np.ndarray
                 up = bool((corner >> j) & 1)
                 d = float(env[p][int(up)][i]) if p in env else 0.0
                 v[p] = vals[p] * (1.0 + (tols[p] if up else -tols[p])) * (1.0 + d)
-            f = board_frequency(topo, v, problem.parasitics)
-            lo = np.minimum(lo, f)
-            hi = np.maximum(hi, f)
+            for st in sorted(strays):
+                f = board_frequency(topo, v, replace(par, stray=st))
+                lo = np.minimum(lo, f)
+                hi = np.maximum(hi, f)
     return lo, hi
 
 
