@@ -568,6 +568,11 @@ def test_stray_tolerance_is_sampled_per_board():
     f = _thomson_colpitts(c1, c2, l_h, st)
     ref = float(np.mean((f >= s.frequency.f_min) & (f <= s.frequency.f_max)))
     assert abs(got.yield_.estimate - ref) < four_se(ref, got.yield_.samples)
+    # the worst case at 25 °C has the stray at its corners too (0 pF and 40 pF here)
+    lo_ref = _thomson_colpitts(1.02e-9, 4.7e-9 * 1.02, 33e-6 * 1.05, 40e-12)
+    hi_ref = _thomson_colpitts(0.98e-9, 4.7e-9 * 0.98, 33e-6 * 0.95, 0.0)
+    assert got.f_worst_low_hz == pytest.approx(lo_ref, rel=1e-12)
+    assert got.f_worst_high_hz == pytest.approx(hi_ref, rel=1e-12)
     # the same spec with one stray for every board yields visibly more
     d["parasitics"] = {"stray": "20 pF"}
     fixed = api.evaluate(api.spec_from_dict(d), DESIGN).candidates[0]

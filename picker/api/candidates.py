@@ -58,6 +58,11 @@ def build_candidates(
     """
     ys = spec.yield_
     lo, hi = corner_span(problem, designs)
+    st, dst = problem.parasitics.stray, spec.parasitics.stray_tolerance
+    for edge in (st - dst, st + dst) if dst > 0 else ():  # the stray's own two corners
+        at = replace(problem, parasitics=replace(problem.parasitics, stray=edge))
+        lo_e, hi_e = corner_span(at, designs)
+        lo, hi = np.minimum(lo, lo_e), np.maximum(hi, hi_e)
     vals = designs.values(problem)
     sens = board_sensitivities(problem.topology, vals, problem.parasitics)
     target = spec.frequency.target
