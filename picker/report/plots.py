@@ -30,8 +30,10 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import (
     AutoMinorLocator,
+    EngFormatter,
     FixedLocator,
     FuncFormatter,
+    MaxNLocator,
     PercentFormatter,
 )
 from numpy.typing import ArrayLike
@@ -90,6 +92,14 @@ def png_bytes(fig: Figure) -> bytes:
     return buf.getvalue()
 
 
+def _places(span: float, centre: float) -> int:
+    """Decimal places EngFormatter needs so that ticks over ``span`` stay distinct."""
+    if span <= 0 or centre <= 0:
+        return 1
+    scale = 10 ** (3 * np.floor(np.log10(centre) / 3))  # the engineering prefix's unit
+    return int(min(6, max(0, np.ceil(-np.log10(span / scale / 5)))))
+
+
 def edge_label(x: float, unit: str = "Hz") -> str:
     """The shortest engineering text of ``x`` that reads back as ``x`` (to 1e-9).
 
@@ -135,7 +145,10 @@ def plot_histogram(
     -------
     matplotlib.figure.Figure
         The figure drawn on. Major ticks sit at the window edges and the target,
-        each labelled to as many digits as it needs (:func:`edge_label`).
+        each labelled to as many digits as it needs (:func:`edge_label`); under a
+        fifth of the axis the target's label is left out, and under a
+        twentieth (boards far outside the window) the ticks are plain and the
+        note in the corner names the edges.
     """
     f = np.asarray(f_samples, dtype=float).ravel()
     f = f[np.isfinite(f)]
@@ -154,11 +167,23 @@ def plot_histogram(
     ax.axvline(
         target, color="black", lw=1, ls="--", label=f"target {format_quantity(target, 'Hz')}"
     )
+    share_of_axis = (f_max - f_min) / (edges[-1] - edges[0])
     marks = sorted({f_min, target, f_max} if f_min < target < f_max else {f_min, f_max})
-    ax.xaxis.set_major_locator(FixedLocator(marks))
-    labels = {m: edge_label(m) for m in marks}
-    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: labels.get(v, "")))
-    ax.xaxis.set_minor_locator(AutoMinorLocator(4))
+    if share_of_axis < 0.2:  # no room for three labels: the edges only, written outwards
+        marks = [f_min, f_max]
+    if share_of_axis >= 0.05:
+        ax.xaxis.set_major_locator(FixedLocator(marks))
+        labels = {m: edge_label(m) for m in marks}
+        ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: labels.get(v, "")))
+        ax.xaxis.set_minor_locator(AutoMinorLocator(4))
+        if len(marks) == 2:
+            first, last = ax.xaxis.get_major_ticks()[:2]
+            first.label1.set_horizontalalignment("right")
+            last.label1.set_horizontalalignment("left")
+    else:  # boards far outside a narrow window: plain ticks; the note names the edges
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=5))
+        ax.xaxis.set_major_formatter(EngFormatter(unit="Hz", places=_places(hi - lo, target)))
+        marks = [target]
     ax.set_ylim(0, 1.4 * ax.get_ylim()[1])  # head room for the legend and the note
     ax.set_xlabel("board frequency")
     ax.set_ylabel("share of boards per bin")
@@ -243,7 +268,11 @@ def plot_yield_vs_tolerance(
     ax.set_xlabel("tolerance of the position (±, tighter →)")
     ax.set_ylabel("yield")
     ax.yaxis.set_major_formatter(PercentFormatter(decimals=0))
-    ax.set_ylim(top=min(100.0, ax.get_ylim()[1]) + 2)
+    lo, hi = ax.get_ylim()
+    hi = min(100.0, hi) + 2
+    if hi - lo < 10:  # flat yields (all near 0 % or 100 %): a readable band, whole per cents
+        lo, hi = max(-2.0, hi - 12), max(hi, 10.0)
+    ax.set_ylim(lo, hi)
     ax.grid(True, alpha=0.3)
     ax.legend(title="position", fontsize=9)
     ax.set_title(title, fontsize=11)
