@@ -134,6 +134,22 @@ def _stock_spec(tmp_path: Path) -> dict:
     return tomllib.loads(text)
 
 
+def test_dataframe_of_a_stock_spec_with_pairs() -> None:
+    spec = picker.load_spec(DEMO / "buyer_exciter.toml")
+    df = picker.solve(spec, samples=1000).to_dataframe()
+    for col in ("C1_first_F", "C1_second_F", "C1_part_id", "C1_price", "cost_per_board"):
+        assert col in df.columns, col
+    pairs = df[df["C1_second_F"].notna()]
+    assert len(pairs)  # the demo's top designs use pairs
+    # a pair's total is the sum of its two parts (values from the stock list)
+    np.testing.assert_allclose(
+        pairs["C1_F"], pairs["C1_first_F"] + pairs["C1_second_F"], rtol=1e-12
+    )
+    # cost per board = the three positions' prices (a pair's price is both parts')
+    total = df["C1_price"] + df["C2_price"] + df["L_price"]
+    np.testing.assert_allclose(df["cost_per_board"], total, rtol=1e-9)
+
+
 def test_spec_from_keywords_and_from_a_dict_behave_the_same(tmp_path) -> None:
     d = _stock_spec(tmp_path)
     from_dict = picker.solve(picker.spec_from_dict(d))

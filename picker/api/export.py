@@ -166,82 +166,132 @@ def _num(x: Any) -> float | None:
     return x if math.isfinite(x) else None
 
 
+#: Columns of the loaded model (with an ``[amplifier]`` section), as the results CSV names them.
+LOADED_COLUMNS = ("f_loaded_hz", "startup_margin", "startup_margin_worst")
+
+
+def _buyer_view(r: SolveResult) -> bool:
+    """Part ids or prices to show: a stock position or a priced design."""
+    return any(pp.part_id for c in r.candidates for pp in c.parts.values()) or any(
+        (c.extra.get("cost") or {}).get("per_board") is not None for c in r.candidates
+    )
+
+
+def _material(r: SolveResult, p: str, part_id: str) -> str:
+    """Dielectric (capacitor) or core (inductor): the stock list's column for a stock
+    part, else the spec's key ("" when unknown)."""
+    part = r.spec.parts[p]
+    st = part.stock_list
+    if part_id and st is not None and part_id in st.index:
+        return str(st.material[st.index[part_id]])
+    return part.dielectric or ""
+
+
+def _stock_value(r: SolveResult, p: str, part_id: str, value: float) -> float:
+    """The stock list's value of ``part_id`` (a pair's first part is otherwise its
+    total minus its partner, with float noise), else ``value``."""
+    st = r.spec.parts[p].stock_list
+    if part_id and st is not None and part_id in st.index:
+        return float(st.value[st.index[part_id]])
+    return value
+
+
 def design_columns(r: SolveResult) -> list[str]:
-    """Column names of :func:`design_rows`: the unit of every number in its name."""
+    """Column names of :func:`design_rows`: the unit of every number in its name.
+
+    The results CSV's layout (``picker solve -f csv``): per position its value
+    (``C1_F``, a pair's total), tolerance (a fraction), dielectric (``_core`` for
+    an inductor), part id and price, and for a ``parallel`` position the two
+    parts; then the design's figures, the loaded model's with an ``[amplifier]``,
+    cost where there are prices or stock parts. Two more close the row:
+    ``tied_with_previous`` (:func:`ties`) and, with a temperature range, the
+    worst case over it (``f_worst_low_range_Hz``, ``f_worst_high_range_Hz``).
+    """
     topo = r.spec.topo
-    cols = ["rank", "tied_with_previous"]
+    head = ["rank"]
     for p in topo.positions:
         u = topo.unit(p)
-        cols += [f"{p}_{u}", f"{p}_text", f"{p}_tolerance", f"{p}_material"]
-        cols += [f"{p}_part_id", f"{p}_price"]
-    cols += [
+        mat = "core" if u == "H" else "dielectric"
+        head += [f"{p}_{u}", f"{p}_tolerance", f"{p}_{mat}", f"{p}_part_id", f"{p}_price"]
+        if r.spec.parts[p].parallel:
+            head += [f"{p}_first_{u}", f"{p}_second_{u}", f"{p}_second_tolerance"]
+            head += [f"{p}_second_part_id"]
+    head += [
         "f_nominal_Hz",
         "error",
         "feedback_fraction",
         "yield",
         "yield_ci_low",
         "yield_ci_high",
+        "confidence",
         "samples",
         "f_worst_low_Hz",
         "f_worst_high_Hz",
+        "warnings",
     ]
-    if r.spec.yield_.temperature is not None:
-        cols += ["f_worst_low_range_Hz", "f_worst_high_range_Hz"]
     if r.spec.amplifier is not None:
-        cols += ["f_loaded_Hz", "startup_margin", "startup_margin_worst"]
-    cols += ["cost_per_board", "cost_build", "stock_ok", "warnings"]
-    return cols
+        head += list(LOADED_COLUMNS)
+    if _buyer_view(r):
+        head += ["cost_per_board", "cost_build", "stock_ok"]
+    head.append("tied_with_previous")
+    if r.spec.yield_.temperature is not None:
+        head += ["f_worst_low_range_Hz", "f_worst_high_range_Hz"]
+    return head
 
 
-def design_rows(r: SolveResult) -> list[dict[str, Any]]:
-    """One dict per design (best first) with the keys of :func:`design_columns`.
+def design_rows(r: SolveResult) -> list[list[Any]]:
+    """One row per design (best first) in the order of :func:`design_columns`.
 
-    Values in SI units (F, H, Hz), fractions for tolerance, error and yield
-    (0.05 = 5 %); None where a figure is unknown. ``warnings`` joins the run's
-    warnings with "; " (the same on every row).
+    Numbers as floats and ints in SI units (F, H, Hz), fractions for tolerance,
+    error and yield (0.05 = 5 %), text as text, None where a figure is unknown;
+    ``warnings`` joins the run's warnings with "; " (the same on every row).
     """
     topo = r.spec.topo
-    tie = ties(r)
-    rows = []
-    for c, tied in zip(r.candidates, tie, strict=True):
-        row: dict[str, Any] = {"rank": c.rank, "tied_with_previous": tied}
+    buyer = _buyer_view(r)
+    warn = "; ".join(r.warnings)
+    over = r.spec.yield_.temperature is not None
+    rows: list[list[Any]] = []
+    for c, tied in zip(r.candidates, ties(r), strict=True):
+        row: list[Any] = [c.rank]
         for p in topo.positions:
             pp = c.parts[p]
-            part = r.spec.parts.get(p)
-            row[f"{p}_{topo.unit(p)}"] = pp.value
-            row[f"{p}_text"] = part_text(pp)
-            row[f"{p}_tolerance"] = pp.tolerance
-            row[f"{p}_material"] = (part.dielectric if part is not None else None) or None
-            row[f"{p}_part_id"] = (
-                pp.part_id + (f"+{pp.second_part_id}" if pp.second_part_id else "")
-            ) or None
-            row[f"{p}_price"] = _num(pp.price)
-        wc = c.extra.get("worst_case_over_range") or {}
-        cost = c.extra.get("cost") or {}
-        row.update(
-            {
-                "f_nominal_Hz": c.f_nominal_hz,
-                "error": c.error,
-                "feedback_fraction": c.feedback_fraction,
-                "yield": c.yield_.estimate,
-                "yield_ci_low": c.yield_.ci_low,
-                "yield_ci_high": c.yield_.ci_high,
-                "samples": c.yield_.samples,
-                "f_worst_low_Hz": c.f_worst_low_hz,
-                "f_worst_high_Hz": c.f_worst_high_hz,
-                "f_worst_low_range_Hz": _num(wc.get("f_low_hz")),
-                "f_worst_high_range_Hz": _num(wc.get("f_high_hz")),
-                "f_loaded_Hz": _num(c.extra.get("f_loaded_hz")),
-                "startup_margin": _num(c.extra.get("startup_margin")),
-                "startup_margin_worst": _num(c.extra.get("startup_margin_worst")),
-                "cost_per_board": _num(cost.get("per_board")),
-                "cost_build": _num(cost.get("build")),
-                "stock_ok": cost.get("stock_ok"),
-                "warnings": "; ".join(r.warnings),
-            }
-        )
-        cols = design_columns(r)
-        rows.append({k: row[k] for k in cols})
+            row += [pp.value, pp.tolerance, _material(r, p, pp.part_id), pp.part_id]
+            row.append(_num(pp.price))
+            if r.spec.parts[p].parallel:
+                row += (
+                    [
+                        _stock_value(r, p, pp.part_id, pp.first_value),
+                        pp.second_value,
+                        pp.second_tolerance,
+                        pp.second_part_id,
+                    ]
+                    if pp.is_pair
+                    else [pp.value, None, None, ""]
+                )
+        row += [
+            c.f_nominal_hz,
+            c.error,
+            c.feedback_fraction,
+            c.yield_.estimate,
+            c.yield_.ci_low,
+            c.yield_.ci_high,
+            r.spec.yield_.confidence,
+            c.yield_.samples,
+            c.f_worst_low_hz,
+            c.f_worst_high_hz,
+            warn,
+        ]
+        if r.spec.amplifier is not None:
+            row += [c.extra.get(k) for k in LOADED_COLUMNS]
+        if buyer:
+            cost = c.extra.get("cost") or {}
+            ok = cost.get("stock_ok")
+            row += [cost.get("per_board"), cost.get("build"), None if ok is None else bool(ok)]
+        row.append(tied)
+        if over:
+            wc = c.extra.get("worst_case_over_range") or {}
+            row += [_num(wc.get("f_low_hz")), _num(wc.get("f_high_hz"))]
+        rows.append(row)
     return rows
 
 

@@ -133,9 +133,10 @@ class SolveResult:
     def to_dataframe(self) -> Any:
         """One row per design (best first) as a ``pandas.DataFrame``.
 
-        Numbers stay numbers, with the unit in the column name (``C1_F``,
-        ``L_H``, ``f_nominal_Hz``); tolerance, error and yield are fractions
-        (0.05 = 5 %); see :func:`picker.api.export.design_columns`.
+        The results CSV's columns (``picker solve -f csv``): numbers stay
+        numbers, with the unit in the column name (``C1_F``, ``L_H``,
+        ``f_nominal_Hz``); tolerance, error and yield are fractions (0.05 =
+        5 %); see :func:`picker.api.export.design_columns`.
         """
         import pandas  # optional and heavy (about 0.3 s): loaded only when asked
 
