@@ -4,8 +4,11 @@ The public API, importable from the top::
 
     import picker
     spec = picker.load_spec("demo_specs/probe_exciter.toml")
-    result = picker.solve(spec)
+    result = picker.solve(spec, plot_data=True)
     result.candidates[0].values
+    result.to_dataframe()          # one row per design, units in the column names
+    picker.result_figures(result)  # matplotlib Figures (plot_histogram(..., ax=ax) draws on yours)
+    picker.write_report("report.html", result)
 
 Names are loaded on first use (PEP 562), so ``import picker`` is cheap and
 ``picker --help`` imports none of the numerical stack.
@@ -31,6 +34,11 @@ _WHERE: dict[str, str] = {
     "Miss": "picker.api",
     "PlanRun": "picker.api",
     "Spec": "picker.spec",
+    "plot_histogram": "picker.report.plots",
+    "plot_yield_vs_tolerance": "picker.report.plots",
+    "plot_drivers": "picker.report.plots",
+    "result_figures": "picker.report.plots",
+    "write_report": "picker.report.html",
     "PickerError": "picker.errors",
     "SpecError": "picker.errors",
     "InfeasibleError": "picker.errors",
@@ -51,9 +59,14 @@ __all__ = [
     "__version__",
     "evaluate",
     "load_spec",
+    "plot_drivers",
+    "plot_histogram",
+    "plot_yield_vs_tolerance",
+    "result_figures",
     "run_plan",
     "solve",
     "spec_from_dict",
+    "write_report",
 ]
 
 if TYPE_CHECKING:  # for type checkers and editors; never runs
@@ -70,6 +83,13 @@ if TYPE_CHECKING:  # for type checkers and editors; never runs
         spec_from_dict,
     )
     from picker.errors import InfeasibleError, PickerError, SolverError, SpecError
+    from picker.report.html import write_report
+    from picker.report.plots import (
+        plot_drivers,
+        plot_histogram,
+        plot_yield_vs_tolerance,
+        result_figures,
+    )
     from picker.spec import Spec
 
 

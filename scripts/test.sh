@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # Run the whole test suite from a clean checkout: makes its own virtual
 # environment, installs picker (non-editable) with its test needs, installs
-# ngspice (Debian package) when it is missing, checks ruff, ruff format and mypy,
+# ngspice and chromium (Debian packages) when missing, checks ruff, ruff format and mypy,
 # then runs pytest.
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -14,6 +14,17 @@ if ! command -v ngspice >/dev/null 2>&1; then
     DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -qq ngspice >/dev/null
   else
     echo "test.sh: ngspice is missing and apt-get is not available; install ngspice first" >&2
+    exit 1
+  fi
+fi
+if ! command -v chromium >/dev/null 2>&1; then
+  if command -v apt-get >/dev/null 2>&1; then
+    echo "test.sh: installing chromium (Debian package) to render the HTML reports"
+    SUDO=""; [ "$(id -u)" -ne 0 ] && SUDO="sudo"
+    $SUDO apt-get update -qq >/dev/null
+    DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -qq chromium >/dev/null
+  else
+    echo "test.sh: chromium is missing and apt-get is not available; install chromium first" >&2
     exit 1
   fi
 fi

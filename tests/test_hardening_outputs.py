@@ -6,7 +6,8 @@ formula injection (OWASP, "CSV Injection": cells starting with = + - @ tab or CR
 Writers covered (the audit of every ``open(..., "w")``, ``write_text``, ``savefig``
 and ``write_bytes`` in picker/ and scripts/): solve/evaluate ``-o`` and ``--plot``,
 netlist ``-o``, calibrate ``--fragment``, ``--plot`` and ``-o`` (with ``--into``), consolidate ``--bom`` (CSV and
-JSON), solve ``--bom`` (evaluate's is the same code). The rest write into temporary folders only (ngspice decks, benchmark inputs)
+JSON), solve ``--bom`` (evaluate's is the same code), ``--report`` (HTML) on solve, calibrate and
+consolidate. The rest write into temporary folders only (ngspice decks, benchmark inputs)
 or regenerate a demo file on purpose (scripts/make_bench_units.py, through
 ``atomic_write(force=True)``).
 """
@@ -101,6 +102,15 @@ def _writers(tmp):
             ["consolidate", str(plan), "--bom", "OUT.json", "--time-limit", "2"],
             [plan, tmp / "stock_demo.csv", tmp / "plan_sensor_base.toml"],
         ),
+        "solve --report": (["solve", str(spec), *mc, "--report", "OUT.html"], [spec]),
+        "calibrate --report": (
+            ["calibrate", str(units), "--topology", "colpitts", "--report", "OUT.html"],
+            [units],
+        ),
+        "consolidate --report": (
+            ["consolidate", str(plan), "--report", "OUT.html", "--time-limit", "2"],
+            [plan, tmp / "stock_demo.csv", tmp / "plan_sensor_base.toml"],
+        ),
     }
 
 
@@ -115,6 +125,9 @@ WRITERS = [
     "consolidate --bom csv",
     "consolidate --bom json",
     "solve --bom",
+    "solve --report",
+    "calibrate --report",
+    "consolidate --report",
 ]
 
 
@@ -161,7 +174,9 @@ def test_an_input_given_as_the_output_is_refused_even_with_force(writer, tmp_pat
         assert code == 2, (cmd, err)
         assert "refusing to write over an input file" in error_line(err)
         assert inp.read_bytes() == before
-    assert tried or writer == "consolidate --bom json"  # no input of the plan is .json
+    # no input of the plan is .json, none of these is .html (tests/test_html_report.py
+    # gives a spec named .html as the report)
+    assert tried or writer == "consolidate --bom json" or writer.endswith("--report")
 
 
 @pytest.mark.parametrize("writer", WRITERS)

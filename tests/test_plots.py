@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import re
 import struct
 
 import numpy as np
+import pytest
 
 from picker.report.plots import plot_drivers, plot_histogram, plot_yield_vs_tolerance
 
@@ -28,11 +30,12 @@ def _sane(path, min_h=200):
 def test_histogram_png(tmp_path):
     rng = np.random.default_rng(1)
     f = 10e6 * (1 + rng.normal(0, 0.004, 5000))
-    p = plot_histogram(f, 9.95e6, 10.05e6, 10e6, tmp_path / "sub" / "hist.png", "Clapp 10 MHz")
+    p, q = tmp_path / "sub" / "hist.png", tmp_path / "again.png"
+    plot_histogram(f, 9.95e6, 10.05e6, 10e6, p, "Clapp 10 MHz")
     assert p.exists()
     _sane(p)
     # same input, same bytes (no time stamp in the file)
-    q = plot_histogram(f, 9.95e6, 10.05e6, 10e6, tmp_path / "again.png", "Clapp 10 MHz")
+    plot_histogram(f, 9.95e6, 10.05e6, 10e6, q, "Clapp 10 MHz")
     assert p.read_bytes() == q.read_bytes()
 
 
@@ -41,11 +44,55 @@ def test_yield_vs_tolerance_png(tmp_path):
         "L": [(0.10, 0.61, 0.60, 0.62), (0.05, 0.80, 0.79, 0.81), (0.02, 0.93, 0.92, 0.94)],
         "C3": [(0.05, 0.80), (0.02, 0.85), (0.01, 0.86)],
     }
-    p = plot_yield_vs_tolerance(data, tmp_path / "yield.png", current={"L": 0.05, "C3": 0.05})
+    p = tmp_path / "yield.png"
+    plot_yield_vs_tolerance(data, p, current={"L": 0.05, "C3": 0.05})
     _sane(p)
 
 
 def test_drivers_png(tmp_path):
     shares = {"L": 0.62, "C3": 0.2, "C1": 0.01, "C2": 0.01, "temperature": 0.16}
-    p = plot_drivers(shares, tmp_path / "drivers.png", confirm=shares)
+    p = tmp_path / "drivers.png"
+    plot_drivers(shares, p, confirm=shares)
     _sane(p)
+
+
+_PREFIX = {"": 1.0, "k": 1e3, "M": 1e6, "G": 1e9}  # SI prefixes (BIPM SI Brochure, table 7)
+
+
+def _read_hz(label: str) -> float:
+    """A tick label such as "1.025 MHz" read back, written here independently of picker."""
+    m = re.fullmatch(r"([0-9.]+)\s*([kMG]?)Hz", label.strip())
+    assert m, label
+    return float(m.group(1)) * _PREFIX[m.group(2)]
+
+
+@pytest.mark.parametrize(
+    ("f_min", "target", "f_max"),
+    [
+        (975e3, 1e6, 1.025e6),  # the production demo's ±2.5 % window
+        (300.7e3, 310e3, 319.3e3),  # ±3 % at 310 kHz
+        (5.3286e6, 5.35e6, 5.3714e6),  # ±0.4 % at 5.35 MHz
+    ],
+)
+def test_histogram_ticks_name_the_window_edges(f_min, target, f_max):
+    rng = np.random.default_rng(2)
+    f = target * (1 + rng.normal(0, 0.01, 4000))
+    fig = plot_histogram(f, f_min, f_max, target)
+    ax = fig.axes[0]
+    fig.canvas.draw()
+    labels = {
+        float(t.get_position()[0]): t.get_text() for t in ax.get_xticklabels() if t.get_text()
+    }
+    # both edges carry a tick whose label reads back as that edge; the target too
+    # when the window is wide on the axis (its label is left out where room is short)
+    for x in (f_min, target, f_max):
+        if x == target and x not in labels:
+            continue
+        assert x in labels, (x, labels)
+        assert _read_hz(labels[x]) == pytest.approx(x, rel=1e-9), labels[x]
+    assert len(set(labels.values())) == len(labels)  # labels tell the ticks apart
+    # labels do not overlap on the drawn figure
+    boxes = sorted(
+        (t.get_window_extent() for t in ax.get_xticklabels() if t.get_text()), key=lambda b: b.x0
+    )
+    assert all(a.x1 <= b.x0 for a, b in zip(boxes, boxes[1:], strict=False))

@@ -482,3 +482,129 @@ def test_trimmer_advice_on_stock_positions_recentres_to_a_stock_value(tmp_path):
     assert moved["position"] in ("C1", "C2")
     shelf = set(caps) | (pairs if moved["position"] == "C1" else set())  # C1 may be a pair
     assert any(abs(moved["to"] / v - 1) < 1e-9 for v in shelf)
+
+
+# ---------------------------------------------------------------- worst case, cost, stray, ties
+
+
+def _thomson_colpitts(c1, c2, l_h, stray=0.0):
+    """Thomson's formula with the Colpitts series pair (Sedra & Smith) and a stray across it."""
+    return 1.0 / (2 * np.pi * np.sqrt(l_h * (c1 * c2 / (c1 + c2) + stray)))
+
+
+def test_worst_case_over_the_range_is_the_corner_of_tolerance_and_drift():
+    # Linear tempcos α0 ± spread (explicit, so the reference needs no material table):
+    # each part's value lies in x(1 ± t)(1 + [α0 − s, α0 + s]·ΔT); f falls with every
+    # part value, so its extremes are all parts low and all parts high, at a range end.
+    parts = {
+        "C1": {"tempco": "+100 ppm/°C", "tempco_spread": "50 ppm/°C"},
+        "C2": {"tempco": "-200 ppm/°C", "tempco_spread": "100 ppm/°C"},
+        "L": {"tempco": "+300 ppm/°C", "tempco_spread": "100 ppm/°C"},
+    }
+    s = spec_with(parts, {"temperature": ["-40 °C", "85 °C"], "samples": 2000})
+    c = api.evaluate(s, DESIGN).candidates[0]
+    tol = {"C1": 0.02, "C2": 0.02, "L": 0.05}
+    alpha = {"C1": (50e-6, 150e-6), "C2": (-300e-6, -100e-6), "L": (200e-6, 400e-6)}
+    lows, highs = [], []
+    for dt in (-65.0, 60.0, 0.0):  # the range ends and 25 °C
+        drift = {p: sorted(a * dt for a in alpha[p]) for p in alpha}
+        small = {p: DESIGN[p] * (1 - tol[p]) * (1 + drift[p][0]) for p in DESIGN}
+        big = {p: DESIGN[p] * (1 + tol[p]) * (1 + drift[p][1]) for p in DESIGN}
+        highs.append(_thomson_colpitts(small["C1"], small["C2"], small["L"]))
+        lows.append(_thomson_colpitts(big["C1"], big["C2"], big["L"]))
+    wc = c.extra["worst_case_over_range"]
+    assert wc["range_c"] == [-40.0, 85.0]
+    # both from closed forms in float64: agreement to rounding
+    assert wc["f_low_hz"] == pytest.approx(min(lows), rel=1e-12)
+    assert wc["f_high_hz"] == pytest.approx(max(highs), rel=1e-12)
+    # at 25 °C alone the span is narrower, and both are labelled in the text output
+    assert c.f_worst_low_hz > wc["f_low_hz"] and c.f_worst_high_hz < wc["f_high_hz"]
+
+
+def _main_ok(argv):
+    try:
+        main(argv)
+    except SystemExit as exc:
+        assert not exc.code
+
+
+def test_worst_case_spans_are_labelled_in_the_table(capsys):
+    _main_ok(["solve", str(DEMO), "--samples", "2000", "--top", "2"])
+    out = capsys.readouterr().out
+    assert "worst case at 25 °C" in out
+    assert "at 25 °C;" in out and "over -40 °C .. 85 °C" in out
+
+
+def test_cost_per_board_from_prices_alone():
+    # every part priced only through `prices` (per tolerance class): the cost per
+    # board is the sum of the chosen classes' prices, typed here from the spec
+    parts = {
+        "C1": {"prices": {"2 %": 0.07, "1 %": 0.12}},
+        "C2": {"prices": {"2 %": 0.02, "5 %": 0.01}},
+        "L": {"prices": {"5 %": 0.30, "2 %": 0.55}},
+    }
+    c = api.evaluate(spec_with(parts, {"samples": 1000}), DESIGN).candidates[0]
+    assert c.extra["cost"]["per_board"] == pytest.approx(0.07 + 0.02 + 0.30, abs=1e-9)
+    # a class without a price: the cost stays unknown, never a guess
+    parts["L"] = {"prices": {"2 %": 0.55}}
+    c = api.evaluate(spec_with(parts, {"samples": 1000}), DESIGN).candidates[0]
+    assert c.extra["cost"]["per_board"] is None
+
+
+def test_stray_tolerance_is_sampled_per_board():
+    # Independent Monte Carlo written here: parts uniform ±t, the stray uniform in
+    # 20 pF ± 20 pF (GUM 4.3.7 rectangular), Thomson's formula, the window of the spec.
+    d = copy.deepcopy(BASE)
+    d["parasitics"] = {"stray": "20 pF", "stray_tolerance": "±20 pF"}
+    d["yield"]["samples"] = 20000
+    s = api.spec_from_dict(d)
+    got = api.evaluate(s, DESIGN).candidates[0]
+    rng = np.random.default_rng(123)
+    n = 200_000
+    c1 = DESIGN["C1"] * (1 + rng.uniform(-0.02, 0.02, n))
+    c2 = DESIGN["C2"] * (1 + rng.uniform(-0.02, 0.02, n))
+    l_h = DESIGN["L"] * (1 + rng.uniform(-0.05, 0.05, n))
+    st = 20e-12 + rng.uniform(-20e-12, 20e-12, n)
+    f = _thomson_colpitts(c1, c2, l_h, st)
+    ref = float(np.mean((f >= s.frequency.f_min) & (f <= s.frequency.f_max)))
+    assert abs(got.yield_.estimate - ref) < four_se(ref, got.yield_.samples)
+    # the worst case at 25 °C has the stray at its corners too (0 pF and 40 pF here)
+    lo_ref = _thomson_colpitts(1.02e-9, 4.7e-9 * 1.02, 33e-6 * 1.05, 40e-12)
+    hi_ref = _thomson_colpitts(0.98e-9, 4.7e-9 * 0.98, 33e-6 * 0.95, 0.0)
+    assert got.f_worst_low_hz == pytest.approx(lo_ref, rel=1e-12)
+    assert got.f_worst_high_hz == pytest.approx(hi_ref, rel=1e-12)
+    # the same spec with one stray for every board yields visibly more
+    d["parasitics"] = {"stray": "20 pF"}
+    fixed = api.evaluate(api.spec_from_dict(d), DESIGN).candidates[0]
+    assert fixed.yield_.estimate > got.yield_.estimate + 0.01  # same boards otherwise
+    # the stray is a named driver, first order and Monte Carlo agreeing
+    sh, mc = got.extra["drivers"], got.extra["drivers_mc"]["shares"]
+    assert sh["stray"] > 0.01 and abs(sh["stray"] - mc["stray"]) < 0.01
+
+
+def test_stray_tolerance_keys_are_checked():
+    d = copy.deepcopy(BASE)
+    d["parasitics"] = {"stray": "5 pF", "stray_tolerance": "6 pF"}
+    with pytest.raises(SpecError, match="parasitics.stray_tolerance"):
+        api.spec_from_dict(d)
+    d["parasitics"] = {"stray": "5 pF", "stray_tolerance": "2 uH"}
+    with pytest.raises(SpecError, match="parasitics.stray_tolerance"):
+        api.spec_from_dict(d)
+
+
+def test_ties_are_overlapping_intervals_and_marked(capsys):
+    from picker.api.export import tied_with_previous
+    from picker.core.montecarlo import YieldEstimate
+
+    def cand(lo, hi):
+        y = YieldEstimate((lo + hi) / 2, lo, hi, 1000, 500, 0.95, "wilson", 1)
+        return type("C", (), {"yield_": y})()
+
+    # [0.80, 0.90] overlaps [0.85, 0.95]; [0.70, 0.79] does not touch [0.80, 0.90]
+    got = tied_with_previous([cand(0.85, 0.95), cand(0.80, 0.90), cand(0.70, 0.79)])
+    assert got == [False, True, False]
+    # the production demo's top designs lie within each other's intervals at 2,000 boards
+    _main_ok(["solve", str(DEMO), "--samples", "2000", "--top", "3"])
+    out = capsys.readouterr().out
+    assert "'=' marks a design whose yield interval overlaps" in out
+    assert any(line.lstrip("│ ").startswith("=2") for line in out.splitlines())

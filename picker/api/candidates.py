@@ -58,6 +58,11 @@ def build_candidates(
     """
     ys = spec.yield_
     lo, hi = corner_span(problem, designs)
+    st, dst = problem.parasitics.stray, spec.parasitics.stray_tolerance
+    for edge in (st - dst, st + dst) if dst > 0 else ():  # the stray's own two corners
+        at = replace(problem, parasitics=replace(problem.parasitics, stray=edge))
+        lo_e, hi_e = corner_span(at, designs)
+        lo, hi = np.minimum(lo, lo_e), np.maximum(hi, hi_e)
     vals = designs.values(problem)
     sens = board_sensitivities(problem.topology, vals, problem.parasitics)
     target = spec.frequency.target
@@ -137,9 +142,19 @@ def loaded_view(spec: Spec, cands: list[Candidate]) -> list[Candidate]:
                 in_window=bool(f.f_min <= fl <= f.f_max),
                 f_worst_low_hz=c.f_worst_low_hz * r,
                 f_worst_high_hz=c.f_worst_high_hz * r,
+                extra=_scaled_over_range(c.extra, r),
             )
         )
     return out
+
+
+def _scaled_over_range(extra: dict[str, Any], r: float) -> dict[str, Any]:
+    """``extra`` with the worst case over temperature scaled by the loading ratio ``r``."""
+    wc = extra.get("worst_case_over_range")
+    if not wc:
+        return extra
+    scaled = {**wc, "f_low_hz": wc["f_low_hz"] * r, "f_high_hz": wc["f_high_hz"] * r}
+    return {**extra, "worst_case_over_range": scaled}
 
 
 # ---------------------------------------------------------------- per-candidate extras

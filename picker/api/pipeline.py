@@ -12,6 +12,7 @@ The orchestration only: the spec becomes the core's inputs in
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable, Mapping
 from dataclasses import replace
 from typing import Any
@@ -42,8 +43,10 @@ from picker.core.search import Designs, Problem, check_size, search
 from picker.errors import SpecError
 from picker.parts.limits import lumped_warnings
 from picker.production.figures import plot_inputs
+from picker.spec.load import complete_spec
 from picker.spec.model import Spec
 from picker.tank.board import board_beta, board_frequency
+from picker.units import parse_quantity, parse_tolerance
 
 __all__ = ["evaluate", "solve", "summary"]
 
@@ -233,7 +236,7 @@ def solve(
     is called after each batch. ``sampling`` is "random" or "sobol".
     ``plot_data`` keeps the arrays the plots need in ``result.plot_data``.
     """
-    spec = with_run_settings(spec, precision, sampling)
+    spec = with_run_settings(complete_spec(spec), precision, sampling)
     ys = spec.yield_
     top = spec.report.top if top is None else top
     samples = ys.samples if samples is None else samples
@@ -289,11 +292,30 @@ def solve(
     return replace(res, warnings=[*res.warnings, *notes]) if notes else res
 
 
+#: A '+' joining the two values of a pair given as text, not an exponent's sign (4.7e+3p).
+_PAIR_SPLIT = re.compile(r"(?<![eE])\+")
+
+
+def _given_value(v: Any, unit: str, pos: str) -> Any:
+    """A value given to :func:`evaluate` as text, parsed as the command line does:
+    ``"150 pF"``, ``"150p"``, or a parallel pair ``"4.7n+3.3n"`` / ``("4.7n", "3.3n")``."""
+    key = f"--set {pos}"
+    if isinstance(v, str):
+        body = v.strip()
+        halves = _PAIR_SPLIT.split(body.lstrip("+"))
+        if len(halves) == 2:
+            return tuple(parse_quantity(h, unit, key=key) for h in halves)
+        return parse_quantity(body, unit, key=key)
+    if isinstance(v, tuple | list):
+        return tuple(parse_quantity(x, unit, key=key) if isinstance(x, str) else x for x in v)
+    return v
+
+
 def evaluate(
     spec: Spec,
-    values: Candidate | Mapping[str, GivenValue | PartPick],
+    values: Candidate | Mapping[str, GivenValue | PartPick | str],
     *,
-    tolerances: Mapping[str, float] | None = None,
+    tolerances: Mapping[str, float | str] | None = None,
     parts: Mapping[str, GivenPart] | None = None,
     samples: int | None = None,
     seed: int | None = None,
@@ -311,15 +333,24 @@ def evaluate(
     ``solve`` (or its ``parts``) gives its values, pairs, part ids and
     tolerances, so ``evaluate(spec, candidate)`` with solve's seed and samples
     reproduces solve's figures for it.
+    Values and tolerances may also be text as on the command line
+    (``{"C1": "150 pF"}``, ``{"C1": "2 %"}``, a pair as ``("4.7n", "3.3n")``).
     ``precision``, ``sampling``, ``progress`` and ``plot_data`` as for :func:`solve`.
     """
-    spec = with_run_settings(spec, precision, sampling)
+    spec = with_run_settings(complete_spec(spec), precision, sampling)
     ys = spec.yield_
     samples = ys.samples if samples is None else samples
     seed = ys.seed if seed is None else seed
     topo = spec.topo
-    values, tolerances, parts = given_design(values, tolerances, parts)
-    tables, notes = given_tables(spec, values, tolerances, parts)
+    given, tols, parts = given_design(values, tolerances, parts)
+    si: dict[str, GivenValue] = {
+        p: _given_value(v, topo.unit(p), p) if p in topo.positions else v for p, v in given.items()
+    }
+    tols = {
+        p: parse_tolerance(t, key=f"--tol {p}") if isinstance(t, str) else t
+        for p, t in tols.items()
+    }
+    tables, notes = given_tables(spec, si, tols, parts)
     base = build_problem(spec)
     problem = Problem(
         topo, tables, base.f_min, base.f_max, base.beta_min, base.beta_max, base.parasitics

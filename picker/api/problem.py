@@ -29,7 +29,7 @@ from picker.parts.drift import check_range, material_of, temperature_grid
 from picker.parts.pairs import pair_table
 from picker.parts.table import ValueTable
 from picker.spec.load import materials_like
-from picker.spec.model import Spec
+from picker.spec.model import PartSpec, Spec
 from picker.spec.production import candidate_values
 from picker.spec.stock import stock_table, unit_price
 from picker.tank.board import Parasitics
@@ -93,7 +93,7 @@ def part_table(spec: Spec, pos: str) -> ValueTable:
             source = part.series
         else:
             vals, source = np.asarray(part.values, dtype=float), "list"
-        price = np.nan if part.price is None else part.price
+        price = class_price(part, float(tol))
         table = ValueTable(
             vals,
             np.full(vals.shape, float(tol)),
@@ -110,6 +110,17 @@ def part_table(spec: Spec, pos: str) -> ValueTable:
 GivenValue = float | tuple[float, float]
 #: A stock part id for a position, or two ids (``"A+B"`` or ``("A", "B")``) for a pair.
 GivenPart = str | tuple[str, str]
+
+
+def class_price(part: PartSpec, tol: float) -> float:
+    """A series or list part's unit price: its ``price``, else the ``prices`` entry of
+    its tolerance class (``prices = { "5 %" = 0.04 }`` for a 5 % part), else NaN."""
+    if part.price is not None:
+        return float(part.price)
+    for option, price in part.prices or ():
+        if not isinstance(option, str) and abs(float(option) - tol) <= 1e-9 * max(tol, 1e-12):
+            return float(price)
+    return float("nan")
 
 
 @dataclass(frozen=True)
@@ -215,7 +226,7 @@ def _pick_value(spec: Spec, pos: str, value: float, tol: float | None, notes: li
     tol = part.tolerance if tol is None else tol
     assert tol is not None  # validated: a series or list position has a tolerance
     src = part.series if part.series and series_mod.is_member(part.series, value) else "given"
-    price = np.nan if part.price is None else float(part.price)
+    price = class_price(part, float(tol))
     return _Pick(value, float(tol), price=price, source=src)
 
 
@@ -477,7 +488,11 @@ def simulation_of(spec: Spec, problem: Problem) -> Simulation:
     """How the spec's boards vary: per-position distributions, drift, board model."""
     parts = part_variations(spec, problem)
     return Simulation(
-        problem, parts, temperature_grid_of(spec, parts), board_model_of(spec, problem)
+        problem,
+        parts,
+        temperature_grid_of(spec, parts),
+        board_model_of(spec, problem),
+        stray_tol=spec.parasitics.stray_tolerance,
     )
 
 

@@ -11,6 +11,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
+from picker.api import export
 from picker.core.montecarlo import YieldEstimate
 from picker.spec.model import Spec
 
@@ -45,7 +46,7 @@ class PartPick:
         return self.value - self.second_value
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Candidate:
     """A ranked design with its figures."""
 
@@ -83,6 +84,9 @@ class Candidate:
     def ci_high(self) -> float:
         return self.yield_.ci_high
 
+    def __repr__(self) -> str:
+        return export.candidate_text(self)
+
 
 @dataclass(frozen=True)
 class Miss:
@@ -94,7 +98,7 @@ class Miss:
     failed: str
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class SolveResult:
     """Everything ``solve`` or ``evaluate`` found, best design first."""
 
@@ -116,12 +120,35 @@ class SolveResult:
     production: dict[str, Any] = field(default_factory=dict)
     plot_data: dict[str, Any] | None = None
 
+    def __repr__(self) -> str:
+        return export.summary_text(self)
+
+    def _repr_html_(self) -> str:
+        """The ranked table for a notebook (Jupyter calls this)."""
+        return export.summary_html(self)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The result as the JSON output holds it (``picker solve --format json``)."""
+        return export.result_dict(self)
+
+    def to_dataframe(self) -> Any:
+        """One row per design (best first) as a ``pandas.DataFrame``.
+
+        The results CSV's columns (``picker solve -f csv``): numbers stay
+        numbers, with the unit in the column name (``C1_F``, ``L_H``,
+        ``f_nominal_Hz``); tolerance, error and yield are fractions (0.05 =
+        5 %); see :func:`picker.api.export.design_columns`.
+        """
+        import pandas  # optional and heavy (about 0.3 s): loaded only when asked
+
+        return pandas.DataFrame(export.design_rows(self), columns=export.design_columns(self))
+
 
 def given_design(
     values: Candidate | Mapping[str, Any],
-    tolerances: Mapping[str, float] | None = None,
+    tolerances: Mapping[str, Any] | None = None,
     parts: Mapping[str, Any] | None = None,
-) -> tuple[dict[str, Any], dict[str, float], dict[str, Any]]:
+) -> tuple[dict[str, Any], dict[str, Any], dict[str, Any]]:
     """``evaluate``'s inputs with a :class:`Candidate` or :class:`PartPick` entries unpacked.
 
     A ``PartPick`` gives its value (or pair), its tolerance and its part id(s);
@@ -129,7 +156,7 @@ def given_design(
     """
     given = values.parts if isinstance(values, Candidate) else values
     vals: dict[str, Any] = {}
-    tols: dict[str, float] = {}
+    tols: dict[str, Any] = {}
     ids: dict[str, Any] = {}
     for p, x in given.items():
         if not isinstance(x, PartPick):

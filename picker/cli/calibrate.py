@@ -99,6 +99,7 @@ def run_calibrate(
     every_unit: bool = False,
     force: bool = False,
     out: IO[str] | None = None,
+    report: Path | None = None,
 ) -> int:
     """What ``picker calibrate`` does; returns the exit status (0)."""
     # numpy, scipy and pydantic: imported here, so that ``picker --help`` stays fast
@@ -169,6 +170,10 @@ def run_calibrate(
         )
 
     inputs = [measurements] + ([spec] if spec is not None else [])
+    if report is not None:  # refused before the fit and the other files
+        from picker.cli.options import check_report
+
+        check_report(report, force, inputs)
     outputs = [(fragment, "--fragment"), (plot, "--plot"), (output, "-o")]
     named = [(p.resolve(), k) for p, k in outputs if p is not None]
     for i, (a, ka) in enumerate(named):  # two outputs into one file: refuse before the run
@@ -215,6 +220,12 @@ def run_calibrate(
         from picker.report.plots import plot_residuals  # matplotlib: only for --plot
 
         atomic_write(plot, plot_residuals(result), force=force, inputs=inputs, key="--plot")
+    if report is not None:
+        from picker.cli.options import command_line
+        from picker.report.html import write_report  # matplotlib: only for --report
+
+        cmd = command_line("calibrate", measurements)
+        write_report(report, result, inputs=inputs, command=cmd, notes=extra, force=force)
 
     stream = out if out is not None else sys.stdout
     if fmt_l == "json":
@@ -227,6 +238,8 @@ def run_calibrate(
         for p in (fragment, output, plot):
             if p is not None:
                 console.print(f"wrote {p}", markup=False)
+        if report is not None:
+            console.print(f"wrote {report}", markup=False)
     return 0
 
 
@@ -308,6 +321,9 @@ def calibrate_cmd(
         "summarised (its 10 largest residuals).",
     ),
     force: bool = typer.Option(False, "--force", help="Replace existing output files."),
+    report: Path | None = typer.Option(
+        None, "--report", help="Also write a self-contained HTML report (FILE.html)."
+    ),
 ) -> None:
     """Learn the board's parasitics from the frequencies of built units."""
     run_calibrate(
@@ -323,4 +339,5 @@ def calibrate_cmd(
         plot=plot,
         every_unit=every_unit,
         force=force,
+        report=report,
     )

@@ -30,6 +30,7 @@ def run_consolidate(
     force: bool = False,
     time_limit: float | None = None,
     workers: int = 2,
+    report: Path | None = None,
 ) -> int:
     """Run the command; returns the exit status (0 plan found, 1 infeasible)."""
     # the plan pulls in pydantic, scipy and ortools: imported here, not at start-up
@@ -57,9 +58,20 @@ def run_consolidate(
             raise SpecError(
                 "the file exists; pass --force to replace it", file=str(bom), key="--bom"
             )
+    if report is not None:  # refused before the (slow) solve
+        from picker.cli.options import check_report
+
+        check_report(report, force, plan.inputs())
     run = run_plan(plan, time_limit=time_limit, workers=workers)
     stocks = plan_stocks(run)
     note_stock_columns(stocks)
+    if report is not None and run.result.status != "unknown":
+        from picker.cli.options import command_line
+        from picker.report.html import write_report  # matplotlib: only for --report
+
+        cmd = command_line("consolidate", plan_path)
+        write_report(report, run, inputs=plan.inputs(), command=cmd, force=force)
+        sys.stderr.write(f"picker: wrote {report}\n")
     if bom is not None and run.result.plan is not None:
         wrote = write_bom(
             bom,
@@ -101,8 +113,13 @@ def consolidate_cmd(
         metavar="SECONDS",
         help="Solver seconds (default: the plan's, else 10).",
     ),
+    report: Path | None = typer.Option(
+        None, "--report", help="Also write a self-contained HTML report (FILE.html)."
+    ),
 ) -> None:
     """Pick one design per channel so the board needs fewer distinct parts."""
-    status = run_consolidate(plan, fmt=format, bom=bom, force=force, time_limit=time_limit)
+    status = run_consolidate(
+        plan, fmt=format, bom=bom, force=force, time_limit=time_limit, report=report
+    )
     if status:
         raise typer.Exit(status)

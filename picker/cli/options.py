@@ -30,6 +30,8 @@ __all__ = [
     "FORMATS",
     "ProgressCallback",
     "check_format",
+    "check_report",
+    "command_line",
     "note_stock_columns",
     "output_format",
     "parse_assignments",
@@ -101,6 +103,27 @@ def note_stock_columns(stocks: Iterable[object]) -> None:
         note = unknown_columns_note(st)
         if note:
             sys.stderr.write(f"picker: note: {note}\n")
+
+
+def check_report(report: object, force: bool, inputs: Sequence[object]) -> None:
+    """Refuse a bad ``--report`` before the run: not .html, an input, or existing without --force."""
+    if report is None:
+        return
+    from pathlib import Path
+
+    from picker.files import check_output
+
+    p = Path(str(report))
+    if p.suffix.lower() not in (".html", ".htm"):
+        raise SpecError(f"expected a file name ending in .html; got {p.name!r}", key="--report")
+    check_output(p, force=force, inputs=[Path(str(i)) for i in inputs], key="--report")
+
+
+def command_line(*words: object) -> str:
+    """``picker`` and the command's words (``picker solve spec.toml``), for a report's head."""
+    import shlex
+
+    return shlex.join(["picker", *(str(w) for w in words)])
 
 
 def unit_of(pos: str) -> str | None:

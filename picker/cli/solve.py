@@ -17,6 +17,8 @@ import typer
 from rich.console import Console
 
 from picker.cli.options import (
+    check_report,
+    command_line,
     note_stock_columns,
     output_format,
     parse_design,
@@ -85,6 +87,18 @@ def _write_bom(result: SolveResult, bom: Path | None, force: bool, spec: Path) -
     stocks = design_stocks(result)
     inputs = [spec, *(Path(str(st.source)) for st in stocks)]
     _wrote([write_bom(bom, lines, designators=places, stocks=stocks, force=force, inputs=inputs)])
+
+
+def _write_report(
+    report: Path | None, result: SolveResult, force: bool, spec: Path, command: str
+) -> None:
+    """Write the --report page (the command line in its head) and say so on stderr."""
+    if report is None:
+        return
+    from picker.report.html import write_report  # matplotlib: only for --report
+
+    write_report(report, result, inputs=[spec], command=command_line(command, spec), force=force)
+    sys.stderr.write(f"picker: wrote {report}\n")
 
 
 def _emit(
@@ -157,6 +171,12 @@ def solve(
         help="Write PNG plots of the best design into this folder.",
     ),
     bom: Path | None = typer.Option(None, "--bom", metavar="FILE", help=_BOM_HELP),
+    report: Path | None = typer.Option(
+        None,
+        "--report",
+        metavar="FILE",
+        help="Also write a self-contained HTML report (FILE.html).",
+    ),
 ) -> None:
     """Search every standard-value design in the window and rank them by yield."""
     from picker import api
@@ -165,6 +185,7 @@ def solve(
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
     _check_bom(bom, force, spec)
+    check_report(report, force, [spec])
     s = api.load_spec(spec)
     _check_bom_inputs(bom, force, spec, s)
     note_stock_columns(part.stock_list for part in s.parts.values())
@@ -178,13 +199,14 @@ def solve(
             precision=prec,
             sampling=samp,
             progress=progress,
-            plot_data=plot is not None,
+            plot_data=plot is not None or report is not None,
         )
     if plot is not None and result.status == "ok":
         from picker.report.plots import write_plots
 
         _wrote(write_plots(result, plot, force=force, inputs=[spec]))
     _write_bom(result, bom, force, spec)
+    _write_report(report, result, force, spec, "solve")
     _emit(result, fmt, output, force, [spec])
     if result.status != "ok":
         raise typer.Exit(1)
@@ -247,6 +269,12 @@ def evaluate(
         None, "--plot", metavar="FOLDER", help="Write PNG plots of the design into this folder."
     ),
     bom: Path | None = typer.Option(None, "--bom", metavar="FILE", help=_BOM_HELP),
+    report: Path | None = typer.Option(
+        None,
+        "--report",
+        metavar="FILE",
+        help="Also write a self-contained HTML report (FILE.html).",
+    ),
 ) -> None:
     """The same figures as solve for one given design (an existing board)."""
     from picker import api
@@ -255,6 +283,7 @@ def evaluate(
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
     _check_bom(bom, force, spec)
+    check_report(report, force, [spec])
     values = parse_design(set_, "--set")
     tols = _tolerances(tol)
     ids = parse_part_ids(part, "--part")
@@ -276,13 +305,14 @@ def evaluate(
             precision=prec,
             sampling=samp,
             progress=progress,
-            plot_data=plot is not None,
+            plot_data=plot is not None or report is not None,
         )
     if plot is not None:
         from picker.report.plots import write_plots
 
         _wrote(write_plots(result, plot, force=force, inputs=[spec]))
     _write_bom(result, bom, force, spec)
+    _write_report(report, result, force, spec, "evaluate")
     _emit(result, fmt, output, force, [spec])
 
 

@@ -44,6 +44,8 @@ BLOCK = 1 << 21
 BoardModel = Callable[[dict[str, np.ndarray], Designs], np.ndarray]
 
 REFERENCE_TEMPERATURE = 25.0
+#: Column name (in :meth:`Simulation.columns`) and value key of a board's sampled stray.
+STRAY = "stray"
 
 #: Lower clip of u before Φ⁻¹ for normal parts. The run's variates already lie in
 #: [2^-53, 1 - 2^-53] (:mod:`picker.core.sampling`), so the clip does not act on them.
@@ -78,6 +80,9 @@ class Simulation:
     parts: dict[str, PartVariation]
     temperatures: np.ndarray = field(default_factory=lambda: np.array([REFERENCE_TEMPERATURE]))
     model: BoardModel | None = None
+    #: Half-width (F) of the board-to-board spread of the stray capacitance: each
+    #: board's stray is uniform in stray ± stray_tol (0: one stray for every board).
+    stray_tol: float = 0.0
 
     @classmethod
     def simple(cls, problem: Problem, distribution: str = "uniform") -> Simulation:
@@ -96,6 +101,8 @@ class Simulation:
         for p in self.problem.topology.positions:
             if self.parts[p].material is not None:
                 cols[f"{p}@T"] = len(cols)
+        if self.stray_tol > 0:  # last, so specs without it draw the same numbers as before
+            cols[STRAY] = len(cols)
         return cols
 
     @property
@@ -155,7 +162,7 @@ def ideal_model(problem: Problem) -> BoardModel:
 
     def passes(vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
         bv = board_values(topo, vals, par)
-        lc = bv[topo.inductor] * topo.c_eff(bv, par.stray)
+        lc = bv[topo.inductor] * topo.c_eff(bv, bv.get(STRAY, par.stray))
         return (lc >= lc_lo) & (lc <= lc_hi)
 
     return passes
@@ -172,6 +179,8 @@ def sampled_values(sim: Simulation, designs: Designs, u: np.ndarray) -> dict[str
     """Part values of every simulated board at 25 °C, position -> (samples, n).
 
     A parallel pair's two parts each get their own deviation (column "P#2").
+    With ``sim.stray_tol`` the dict also holds each board's stray capacitance
+    under the key :data:`STRAY`, shape (samples, 1).
     """
     cols = sim.columns()
     out = {}
@@ -187,6 +196,9 @@ def sampled_values(sim: Simulation, designs: Designs, u: np.ndarray) -> dict[str
             da = _deviation(var, u[:, cols[p]], t.tol[i])
             db = _deviation(var, u[:, cols[f"{p}#2"]], t.second_tol[i])
             out[p] = a[None, :] * (1.0 + da) + b[None, :] * (1.0 + db)
+    if sim.stray_tol > 0:  # uniform in stray ± stray_tol (GUM JCGM 100:2008, 4.3.7)
+        st = sim.problem.parasitics.stray + sim.stray_tol * (2.0 * u[:, cols[STRAY]] - 1.0)
+        out[STRAY] = st[:, None]
     return out
 
 

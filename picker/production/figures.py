@@ -18,12 +18,14 @@ design only, which bounds their time.
 
 from __future__ import annotations
 
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
 
 from picker.core.montecarlo import (
     REFERENCE_TEMPERATURE,
+    STRAY,
     Simulation,
     count_passing,
     drift_factors,
@@ -35,7 +37,8 @@ from picker.core.precision import single
 from picker.core.propagation import TEMPERATURE, first_order_shares, temperature_std
 from picker.core.screen import part_sigmas, temperature_terms
 from picker.core.search import Designs
-from picker.parts.drift import Material
+from picker.parts.drift import Material, envelope
+from picker.parts.pairs import effective_tolerance
 from picker.production.advice import (
     ProductionSpec,
     Recentre,
@@ -48,6 +51,7 @@ from picker.production.advice import (
     yield_function,
 )
 from picker.production.drivers import board_frequencies, model_sensitivities, regression_fit
+from picker.tank.board import board_frequency, board_values
 
 #: Rows of u used for drivers, buy-tighter and plot figures (2^17, a Sobol block).
 EXTRAS_ROWS = 1 << 17
@@ -77,7 +81,28 @@ def first_order(sim: Simulation, designs: Designs, with_temperature: bool) -> di
     if with_temperature:
         t_std = temperature_std(sens, _materials(sim), sim.temperatures)
         t_std = np.broadcast_to(t_std, (len(designs),))
-    return first_order_shares(sens, part_sigmas(sim, designs), t_std)
+    sigmas = part_sigmas(sim, designs)
+    if sim.stray_tol > 0:  # the stray as one more input (picker.tank.board: ∂f/∂stray)
+        s_stray, sig_stray = _stray_terms(sim, designs)
+        sens = {**sens, STRAY: s_stray}
+        sigmas = {**sigmas, STRAY: sig_stray}
+    return first_order_shares(sens, sigmas, t_std)
+
+
+def _stray_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndarray]:
+    """S = ∂ln f/∂ln stray = −stray/(2·C_t) and σ_rel = stray_tol/(√3·stray), shape (n,).
+
+    C_t = C_s + stray is the tank's total capacitance (f ∝ (L·C_t)^(-1/2),
+    :func:`picker.tank.board.ideal_jacobian`); a uniform spread over ±t has
+    σ = t/√3 (GUM JCGM 100:2008, 4.3.7).
+    """
+    problem = sim.problem
+    topo, par = problem.topology, problem.parasitics
+    bv = board_values(topo, designs.values(problem), par)
+    c_t = np.asarray(topo.c_eff(bv, par.stray), dtype=float)
+    s = -par.stray / (2.0 * c_t)
+    sig = np.full(len(designs), sim.stray_tol / (np.sqrt(3.0) * par.stray))
+    return s, sig
 
 
 def _worst_drift_index(sim: Simulation, d1: Designs) -> int:
@@ -103,6 +128,8 @@ def monte_carlo_drivers(
     vals = sampled_values(sim, d1, u)
     nominal = d1.values(problem)
     inputs = {p: np.log(vals[p][:, 0] / nominal[p][0]) for p in topo.positions}
+    if STRAY in vals:  # ln f is linear in the stray itself (C_t = C_s + stray), not in its log
+        inputs[STRAY] = vals[STRAY][:, 0] / problem.parasitics.stray - 1.0
     ln_f = np.log(board_frequencies(sim, d1, vals)[:, 0])
     t_worst = None
     drift = drift_factors(sim, u)
@@ -165,6 +192,44 @@ def _shift(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndarray]:
     return shift, var
 
 
+def worst_case_over_range(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndarray]:
+    """Lowest and highest frequency over the temperature range, worst case, shape (n,) each.
+
+    The worst-case method of :func:`picker.core.screen.corner_span` with the
+    drift added: at each temperature of the grid every part is set to
+    nominal·(1 ± t)·(1 + d), with d at the low or high edge of its material's
+    drift envelope there (:func:`picker.parts.drift.envelope`), in all 2^k
+    combinations, with the stray at stray ± ``sim.stray_tol``; a part without a
+    material does not drift. The board
+    frequency is monotone in each part value, so its extremes lie at these
+    corners; the grid holds both ends of the range and every material's
+    turning points (:func:`picker.parts.drift.temperature_grid`), where the
+    envelope's extremes lie.
+    """
+    problem = sim.problem
+    topo = problem.topology
+    vals = designs.values(problem)
+    tols = {p: effective_tolerance(problem.tables[p], designs.idx[p]) for p in topo.positions}
+    env = {p: envelope(m, sim.temperatures) for p, m in _materials(sim).items()}
+    lo = np.full(len(designs), np.inf)
+    hi = np.full(len(designs), -np.inf)
+    k = len(topo.positions)
+    par = problem.parasitics
+    strays = {par.stray - sim.stray_tol, par.stray + sim.stray_tol}  # its own two corners
+    for i in range(len(sim.temperatures)):
+        for corner in range(2**k):
+            v = {}
+            for j, p in enumerate(topo.positions):
+                up = bool((corner >> j) & 1)
+                d = float(env[p][int(up)][i]) if p in env else 0.0
+                v[p] = vals[p] * (1.0 + (tols[p] if up else -tols[p])) * (1.0 + d)
+            for st in sorted(strays):
+                f = board_frequency(topo, v, replace(par, stray=st))
+                lo = np.minimum(lo, f)
+                hi = np.maximum(hi, f)
+    return lo, hi
+
+
 # ---------------------------------------------------------------- per-candidate figures
 
 
@@ -192,6 +257,13 @@ def extras(
     if with_t:
         for d, t in zip(out, over_temperature(sim, designs, u, passed, ys, ys.seed), strict=True):
             d["yield_over_temperature"] = t
+        wlo, whi = worst_case_over_range(sim, designs)
+        for r in range(n):
+            out[r]["worst_case_over_range"] = {
+                "range_c": list(ys.temperature or ()),
+                "f_low_hz": float(wlo[r]),
+                "f_high_hz": float(whi[r]),
+            }
     for r in range(min(n, TIGHTER_CANDIDATES)):
         d1 = single(designs, r)
         fn = yield_function(spec, sim, d1, ux)

@@ -16,7 +16,12 @@ import math
 from rich.console import Console
 from rich.text import Text
 
-from picker import __version__
+from picker.api.export import (  # the JSON layout lives with the results (to_dict)
+    candidate_dict,  # noqa: F401  (re-exported: report.plan, tests)
+    rank_text,
+    result_dict,
+    ties,
+)
 from picker.api.results import Candidate, PartPick, SolveResult
 from picker.report.csvfile import csv_text
 from picker.report.production import print_production
@@ -26,93 +31,6 @@ from picker.units import format_percent, format_quantity
 
 def _num(x: float) -> float | None:
     return float(x) if math.isfinite(x) else None
-
-
-def part_text(pp: PartPick) -> str:
-    """A position's value as shown: "4.7 nF", or "4.7 nF ∥ 1 nF" for a parallel pair."""
-    if pp.is_pair:
-        return (
-            f"{format_quantity(pp.first_value, pp.unit)} ∥ "
-            f"{format_quantity(pp.second_value, pp.unit)}"
-        )
-    return format_quantity(pp.value, pp.unit)
-
-
-def candidate_dict(c: Candidate) -> dict:
-    parts = {}
-    for p, pp in c.parts.items():
-        parts[p] = {
-            "value": pp.value,
-            "display": part_text(pp),
-            "series": pp.source,
-            "tolerance": pp.tolerance,
-        }
-        if pp.part_id:
-            parts[p]["part_id"] = pp.part_id
-        if math.isfinite(pp.price):
-            parts[p]["price"] = pp.price
-        if pp.is_pair:  # value is the total; the two parts, larger first
-            parts[p]["pair"] = [
-                {"value": pp.first_value, "part_id": pp.part_id or None, "tolerance": pp.tolerance},
-                {
-                    "value": pp.second_value,
-                    "part_id": pp.second_part_id or None,
-                    "tolerance": pp.second_tolerance,
-                },
-            ]
-    return {
-        "rank": c.rank,
-        "parts": parts,
-        "f_nominal_hz": c.f_nominal_hz,
-        "error": c.error,
-        "feedback_fraction": c.feedback_fraction,
-        "in_window": c.in_window,
-        "feedback_ok": c.feedback_ok,
-        "yield": c.yield_.as_dict(),
-        "screen_yield": c.screen_yield,
-        "worst_case": {"f_low_hz": c.f_worst_low_hz, "f_high_hz": c.f_worst_high_hz},
-        "sensitivities": c.sensitivities,
-        **c.extra,
-    }
-
-
-def result_dict(r: SolveResult) -> dict:
-    s = r.spec
-    out = {
-        "picker_version": __version__,
-        "title": s.title,
-        "topology": s.topology,
-        "status": r.status,
-        "window": {
-            "target_hz": s.frequency.target,
-            "f_min_hz": s.frequency.f_min,
-            "f_max_hz": s.frequency.f_max,
-        },
-        "feedback_window": {"min": s.feedback.min, "max": s.feedback.max},
-        "search": {"space_size": r.space_size, "feasible": r.feasible, "screened": r.screened},
-        "monte_carlo": {
-            "samples": r.samples,
-            "seed": r.seed,
-            "distribution": r.distribution,
-            "confidence": s.yield_.confidence,
-            "ci_method": s.yield_.ci_method,
-            **r.production,
-        },
-        "warnings": list(r.warnings),
-        "candidates": [candidate_dict(c) for c in r.candidates],
-    }
-    if r.status != "ok":
-        out["misses"] = [
-            {
-                "parts": {p: {"value": v} for p, v in m.values.items()},
-                "f_nominal_hz": m.f_nominal_hz,
-                "feedback_fraction": m.feedback_fraction,
-                "failed": m.failed,
-            }
-            for m in r.misses
-        ]
-        out["advice"] = list(r.advice)
-    return out
 
 
 def to_json(r: SolveResult) -> str:
@@ -321,7 +239,9 @@ def design_columns(r: SolveResult) -> list[Col]:
     s = r.spec
     cs = r.candidates
     conf = f"{s.yield_.confidence * 100:g} %"
-    cols = [Col("#", [str(c.rank) for c in cs], essential=True)]
+    cols = [
+        Col("#", [rank_text(c.rank, t) for c, t in zip(cs, ties(r), strict=True)], essential=True)
+    ]
     cols += [
         Col(p, [plain(_table_part(c.parts[p])) for c in cs], essential=True)
         for p in s.topo.positions
@@ -420,6 +340,13 @@ def print_table(r: SolveResult, console: Console) -> None:
         console.print("Note: the nominal frequency lies outside the window.")
     if any(not c.feedback_ok for c in r.candidates):
         console.print("Note: '!' marks a feedback fraction outside the feedback window.")
+    if any(ties(r)):
+        console.print(
+            "Note: '=' marks a design whose yield interval overlaps the one ranked above it: "
+            "these boards do not tell the two apart.",
+            markup=False,
+            highlight=False,
+        )
     if s.amplifier is not None:
         _print_cautions(r, console)
     print_production(r, console)

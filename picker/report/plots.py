@@ -5,6 +5,11 @@ global backend or pyplot state is touched (safe in a CLI, a test run or a
 notebook). Axes carry units with SI prefixes (``matplotlib.ticker.EngFormatter``)
 or per cent.
 
+Every ``plot_*`` function returns the :class:`~matplotlib.figure.Figure`; it
+draws on ``ax=`` when given (a notebook's own axes) and writes a PNG only when
+a ``path`` is given. :func:`result_figures` draws the three figures of a
+result (best design) for a notebook or the HTML report.
+
 :func:`write_plots` writes the three PNGs of ``--plot DIR`` (:data:`PLOT_FILES`)
 through a temporary file in the target folder and a rename; existing files are
 kept unless ``force`` is given, and :func:`check_plot_folder` refuses a bad
@@ -16,13 +21,21 @@ from __future__ import annotations
 import contextlib
 import io
 import os
-from collections.abc import Callable, Iterable, Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
 
 import numpy as np
+from matplotlib.axes import Axes
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
-from matplotlib.ticker import EngFormatter, FuncFormatter, MaxNLocator, PercentFormatter
+from matplotlib.ticker import (
+    AutoMinorLocator,
+    EngFormatter,
+    FixedLocator,
+    FuncFormatter,
+    MaxNLocator,
+    PercentFormatter,
+)
 from numpy.typing import ArrayLike
 
 from picker.api.results import SolveResult
@@ -30,7 +43,7 @@ from picker.calibration.result import CalibrationResult
 from picker.errors import SpecError
 from picker.files import check_output
 from picker.report.calibration import parameter_text
-from picker.units import format_quantity
+from picker.units import format_quantity, parse_quantity
 
 #: File names written into the ``--plot`` folder.
 PLOT_FILES = ("histogram.png", "yield_vs_tolerance.png", "drivers.png")
@@ -42,12 +55,41 @@ _OUT = "#e76f51"
 _IN = "#264653"
 
 
-def _save(fig: Figure, path: str | Path) -> Path:
+def _axes(ax: Axes | None, size: tuple[float, float]) -> tuple[Figure, Axes, bool]:
+    """The figure and axes to draw on: ``ax``'s own, or a new Agg figure (``True``)."""
+    if ax is not None:
+        fig = ax.get_figure()
+        assert isinstance(fig, Figure)
+        return fig, ax, False
+    fig = Figure(figsize=size)
+    FigureCanvasAgg(fig)
+    return fig, fig.add_subplot(), True
+
+
+def _finish(fig: Figure, own: bool, path: str | Path | None) -> Figure:
+    """Lay out a figure made here; write it as PNG when ``path`` is given."""
+    if own:
+        fig.tight_layout()
+    if path is not None:
+        save_png(fig, path)
+    return fig
+
+
+def save_png(fig: Figure, path: str | Path) -> Path:
+    """Write ``fig`` as a PNG (no time stamp, so the same figure gives the same bytes)."""
     p = Path(path)
     p.parent.mkdir(parents=True, exist_ok=True)
-    FigureCanvasAgg(fig)
+    if fig.canvas is None or not isinstance(fig.canvas, FigureCanvasAgg):
+        FigureCanvasAgg(fig)
     fig.savefig(p, format="png", dpi=_DPI, metadata={"Software": None})
     return p
+
+
+def png_bytes(fig: Figure) -> bytes:
+    """``fig`` as PNG bytes (for embedding in a report)."""
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=_DPI, metadata={"Software": None})
+    return buf.getvalue()
 
 
 def _places(span: float, centre: float) -> int:
@@ -58,16 +100,30 @@ def _places(span: float, centre: float) -> int:
     return int(min(6, max(0, np.ceil(-np.log10(span / scale / 5)))))
 
 
+def edge_label(x: float, unit: str = "Hz") -> str:
+    """The shortest engineering text of ``x`` that reads back as ``x`` (to 1e-9).
+
+    A tick at a window edge must name the edge itself, not a rounding of it
+    (1.025 MHz, not 1.02 MHz).
+    """
+    for digits in range(3, 13):
+        text = format_quantity(x, unit, digits=digits)
+        if abs(parse_quantity(text, unit) / x - 1.0) < 1e-9:
+            return text
+    return format_quantity(x, unit, digits=12)
+
+
 def plot_histogram(
     f_samples: ArrayLike,
     f_min: float,
     f_max: float,
     target: float,
-    path: str | Path,
+    path: str | Path | None = None,
     title: str = "Monte Carlo frequency spread",
     *,
     bins: int = 80,
-) -> Path:
+    ax: Axes | None = None,
+) -> Figure:
     """Histogram of the simulated boards' frequencies with the window marked.
 
     Parameters
@@ -79,15 +135,21 @@ def plot_histogram(
         The frequency window, Hz.
     target : float
         Target frequency, Hz.
-    path : str or pathlib.Path
-        PNG file to write.
+    path : str or pathlib.Path, optional
+        PNG file to write (none when omitted).
     title : str
     bins : int
+    ax : matplotlib.axes.Axes, optional
+        Draw on these axes instead of a new figure.
 
     Returns
     -------
-    pathlib.Path
-        The file written.
+    matplotlib.figure.Figure
+        The figure drawn on. Major ticks sit at the window edges and the target,
+        each labelled to as many digits as it needs (:func:`edge_label`); under a
+        fifth of the axis the target's label is left out, and under a
+        twentieth (boards far outside the window) the ticks are plain and the
+        note in the corner names the edges.
     """
     f = np.asarray(f_samples, dtype=float).ravel()
     n_all = f.size  # NaN: a board that does not run (counted outside the window)
@@ -98,8 +160,7 @@ def plot_histogram(
     hi = max(f.max(initial=f_max), f_max)
     pad = 0.04 * (hi - lo) if hi > lo else 0.01 * target
     edges = np.linspace(lo - pad, hi + pad, bins + 1)
-    fig = Figure(figsize=_SIZE)
-    ax = fig.add_subplot()
+    fig, ax, own = _axes(ax, _SIZE)
     weights = np.full(f.size, 100.0 / max(n_all, 1))
     ax.hist(f[inside], edges.tolist(), weights=weights[inside], color=_IN, label="in window")
     ax.hist(f[~inside], edges.tolist(), weights=weights[~inside], color=_OUT, label="outside")
@@ -109,8 +170,23 @@ def plot_histogram(
     ax.axvline(
         target, color="black", lw=1, ls="--", label=f"target {format_quantity(target, 'Hz')}"
     )
-    ax.xaxis.set_major_locator(MaxNLocator(nbins=5))
-    ax.xaxis.set_major_formatter(EngFormatter(unit="Hz", places=_places(hi - lo, target)))
+    share_of_axis = (f_max - f_min) / (edges[-1] - edges[0])
+    marks = sorted({f_min, target, f_max} if f_min < target < f_max else {f_min, f_max})
+    if share_of_axis < 0.2:  # no room for three labels: the edges only, written outwards
+        marks = [f_min, f_max]
+    if share_of_axis >= 0.05:
+        ax.xaxis.set_major_locator(FixedLocator(marks))
+        labels = {m: edge_label(m) for m in marks}
+        ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: labels.get(v, "")))
+        ax.xaxis.set_minor_locator(AutoMinorLocator(4))
+        if len(marks) == 2:
+            first, last = ax.xaxis.get_major_ticks()[:2]
+            first.label1.set_horizontalalignment("right")
+            last.label1.set_horizontalalignment("left")
+    else:  # boards far outside a narrow window: plain ticks; the note names the edges
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=5))
+        ax.xaxis.set_major_formatter(EngFormatter(unit="Hz", places=_places(hi - lo, target)))
+        marks = [target]
     ax.set_ylim(0, 1.4 * ax.get_ylim()[1])  # head room for the legend and the note
     ax.set_xlabel("board frequency")
     ax.set_ylabel("share of boards per bin")
@@ -123,7 +199,9 @@ def plot_histogram(
         return target * (1.0 + np.asarray(d, dtype=float) / 100.0)
 
     top = ax.secondary_xaxis("top", functions=(to_dev, from_dev))
-    top.set_xlabel("deviation from target (%)")
+    top.set_xticks([float(to_dev(m)) for m in marks])
+    top.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:+.4g} %"))
+    top.set_xlabel("deviation from target")
     share = inside.sum() / n_all if n_all else 0.0
     note = f"\n{idle} boards do not run steady" if idle else ""
     ax.text(
@@ -138,17 +216,17 @@ def plot_histogram(
     )
     ax.legend(loc="upper right", fontsize=8, framealpha=0.8)
     ax.set_title(title, fontsize=11)
-    fig.tight_layout()
-    return _save(fig, path)
+    return _finish(fig, own, path)
 
 
 def plot_yield_vs_tolerance(
     data: Mapping[str, Sequence[Sequence[float]]],
-    path: str | Path,
+    path: str | Path | None = None,
     title: str = "Yield against tolerance class",
     *,
     current: Mapping[str, float] | None = None,
-) -> Path:
+    ax: Axes | None = None,
+) -> Figure:
     """Yield against the tolerance of each position (others kept as they are).
 
     Parameters
@@ -156,17 +234,18 @@ def plot_yield_vs_tolerance(
     data : mapping position -> sequence of rows
         Each row is ``(tolerance, yield)`` or ``(tolerance, yield, ci_low, ci_high)``,
         fractions (0.05 = 5 %).
-    path : str or pathlib.Path
+    path : str or pathlib.Path, optional
+        PNG file to write (none when omitted).
     title : str
     current : mapping position -> float, optional
         The design's present tolerance per position, marked with a ring.
+    ax : matplotlib.axes.Axes, optional
 
     Returns
     -------
-    pathlib.Path
+    matplotlib.figure.Figure
     """
-    fig = Figure(figsize=_SIZE)
-    ax = fig.add_subplot()
+    fig, ax, own = _axes(ax, _SIZE)
     markers = "osD^vP*X"
     ticks: set[float] = set()
     for i, (pos, rows) in enumerate(data.items()):
@@ -193,40 +272,45 @@ def plot_yield_vs_tolerance(
     ax.set_xlabel("tolerance of the position (±, tighter →)")
     ax.set_ylabel("yield")
     ax.yaxis.set_major_formatter(PercentFormatter(decimals=0))
-    ax.set_ylim(top=min(100.0, ax.get_ylim()[1]) + 2)
+    lo, hi = ax.get_ylim()
+    hi = min(100.0, hi) + 2
+    if hi - lo < 10:  # flat yields (all near 0 % or 100 %): a readable band, whole per cents
+        lo, hi = max(-2.0, hi - 12), max(hi, 10.0)
+    ax.set_ylim(lo, hi)
     ax.grid(True, alpha=0.3)
     ax.legend(title="position", fontsize=9)
     ax.set_title(title, fontsize=11)
-    fig.tight_layout()
-    return _save(fig, path)
+    return _finish(fig, own, path)
 
 
 def plot_drivers(
     shares: Mapping[str, float],
-    path: str | Path,
+    path: str | Path | None = None,
     title: str = "What drives the frequency spread",
     *,
     confirm: Mapping[str, float] | None = None,
-) -> Path:
+    ax: Axes | None = None,
+) -> Figure:
     """Horizontal bars: each input's share of the frequency variance.
 
     Parameters
     ----------
     shares : mapping name -> float
         First-order shares (fractions summing to one).
-    path : str or pathlib.Path
+    path : str or pathlib.Path, optional
+        PNG file to write (none when omitted).
     title : str
     confirm : mapping name -> float, optional
         Monte Carlo shares, drawn as markers beside the bars.
+    ax : matplotlib.axes.Axes, optional
 
     Returns
     -------
-    pathlib.Path
+    matplotlib.figure.Figure
     """
     names = sorted(shares, key=lambda k: (float(shares[k]), k))
     vals = np.array([float(shares[k]) for k in names]) * 100
-    fig = Figure(figsize=(_SIZE[0], max(2.4, 0.55 * len(names) + 1.4)))
-    ax = fig.add_subplot()
+    fig, ax, own = _axes(ax, (_SIZE[0], max(2.4, 0.55 * len(names) + 1.4)))
     y = np.arange(len(names))
     ax.barh(y, vals, color=_IN, label="first order")
     cv = np.array([float(confirm.get(k, np.nan)) * 100 for k in names]) if confirm else None
@@ -244,8 +328,7 @@ def plot_drivers(
     ax.set_xlabel("share of the variance of ln f")
     ax.set_title(title, fontsize=11)
     ax.grid(True, axis="x", alpha=0.3)
-    fig.tight_layout()
-    return _save(fig, path)
+    return _finish(fig, own, path)
 
 
 def format_value(value: float, unit: str) -> str:
@@ -257,6 +340,47 @@ def _title(result: SolveResult) -> str:
     """The best design's parts, ``C1 4.7 nF, C2 …``, for the plot titles."""
     c = result.candidates[0]
     return ", ".join(f"{p} {format_value(pp.value, pp.unit)}" for p, pp in c.parts.items())
+
+
+def result_figures(result: SolveResult) -> dict[str, Figure]:
+    """The three figures of the best design, keyed by their ``--plot`` file names.
+
+    The result must come from ``solve(..., plot_data=True)`` (or ``evaluate``).
+
+    Raises
+    ------
+    SpecError
+        The result holds no design or no plot data.
+    """
+    if not result.candidates or result.plot_data is None:
+        raise SpecError(
+            "no design to plot (solve or evaluate with plot_data=True)", key="plot_data"
+        )
+    pd = result.plot_data
+    title = _title(result)
+    temp = pd["temperature_c"]
+    rng = result.spec.yield_.temperature
+    where = f" at {temp:g} °C" if rng is not None else ""
+    over = f" ({rng[0]:g} °C .. {rng[1]:g} °C)" if rng is not None else ""
+    return {
+        "histogram.png": plot_histogram(
+            pd["frequencies"],
+            pd["f_min"],
+            pd["f_max"],
+            pd["target"],
+            title=f"Monte Carlo frequency spread{where}: {title}",
+        ),
+        "yield_vs_tolerance.png": plot_yield_vs_tolerance(
+            pd["sweep"],
+            title=f"Yield{over} against tolerance class: {title}",
+            current=pd["tolerances"],
+        ),
+        "drivers.png": plot_drivers(
+            pd["drivers"],
+            title=f"What drives the frequency spread: {title}",
+            confirm=pd["drivers_mc"],
+        ),
+    }
 
 
 def check_plot_folder(
@@ -300,39 +424,12 @@ def write_plots(
         raise SpecError(
             f"cannot make the folder ({exc.strerror or exc})", file=str(d), key="--plot"
         ) from None
-    pd = result.plot_data
-    title = _title(result)
-    temp = pd["temperature_c"]
-    rng = result.spec.yield_.temperature
-    where = f" at {temp:g} °C" if rng is not None else ""
-    over = f" ({rng[0]:g} °C .. {rng[1]:g} °C)" if rng is not None else ""
-    draw: dict[str, Callable[[Path], Path]] = {
-        "histogram.png": lambda p: plot_histogram(
-            pd["frequencies"],
-            pd["f_min"],
-            pd["f_max"],
-            pd["target"],
-            p,
-            title=f"Monte Carlo frequency spread{where}: {title}",
-        ),
-        "yield_vs_tolerance.png": lambda p: plot_yield_vs_tolerance(
-            pd["sweep"],
-            p,
-            title=f"Yield{over} against tolerance class: {title}",
-            current=pd["tolerances"],
-        ),
-        "drivers.png": lambda p: plot_drivers(
-            pd["drivers"],
-            p,
-            title=f"What drives the frequency spread: {title}",
-            confirm=pd["drivers_mc"],
-        ),
-    }
+    figures = result_figures(result)
     written = []
     for t in targets:
         tmp = d / f".{t.stem}.{os.getpid()}.tmp.png"  # same folder: the rename is atomic
         try:
-            draw[t.name](tmp)
+            save_png(figures[t.name], tmp)
             os.replace(tmp, t)
         except BaseException as exc:
             with contextlib.suppress(OSError):

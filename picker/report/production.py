@@ -14,7 +14,7 @@ from collections.abc import Iterable
 from rich.console import Console
 from rich.text import Text
 
-from picker.api.results import SolveResult
+from picker.api.results import Candidate, SolveResult
 from picker.report.text import Col, pct, plain, points, print_fitted
 from picker.tank.base import Topology
 from picker.units import format_percent, format_quantity
@@ -73,6 +73,23 @@ def print_temperature(x: dict, console: Console) -> None:
         Col("mean frequency shift", [f"{x * 100:+.3f} %" for x in yt["frequency_shift"]]),
     ]
     print_fitted(console, cols)
+
+
+def print_worst_case(c: Candidate, target: float, console: Console) -> None:
+    """The worst-case span of the best design at 25 °C and, with a range, over it."""
+    wc = c.extra.get("worst_case_over_range")
+    if not wc:
+        return
+
+    def span(lo: float, hi: float) -> str:
+        return f"{(lo / target - 1) * 100:+.2f} %..{(hi / target - 1) * 100:+.2f} %"
+
+    lo, hi = wc["range_c"]
+    console.print(
+        f"Worst case (every part at a tolerance corner): {span(c.f_worst_low_hz, c.f_worst_high_hz)}"
+        f" at 25 °C; {span(wc['f_low_hz'], wc['f_high_hz'])} over {lo:g} °C .. {hi:g} °C "
+        "(each part's drift at the edge of its class as well)."
+    )
 
 
 def print_drivers(x: dict, console: Console) -> None:
@@ -179,6 +196,7 @@ def print_production(r: SolveResult, console: Console) -> None:
     if r.candidates:
         x = r.candidates[0].extra
         print_temperature(x, console)
+        print_worst_case(r.candidates[0], r.spec.frequency.target, console)
         print_drivers(x, console)
         print_tighter(x, console)
         print_trimmer(x, console, r.spec.topo)

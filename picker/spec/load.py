@@ -91,6 +91,23 @@ def spec_from_dict(data: dict[str, Any], *, file: str | None = None) -> Spec:
     return load_lots(spec, file).model_copy(update={"source": file or ""})
 
 
+def complete_spec(spec: Spec) -> Spec:
+    """A spec built directly (``Spec(**d)``, ``Spec.model_validate(d)``) made whole.
+
+    :func:`spec_from_dict` reads the stock lists and lot files a spec names; a
+    :class:`Spec` built by hand has only their paths. This reads them the same
+    way (relative to ``spec.source``, else the working folder), so a spec from
+    keywords and one from a dict or a file behave the same. A spec that holds
+    everything already is returned as it is.
+    """
+    stock = any(p.stock is not None and p.stock_list is None for p in spec.parts.values())
+    lot = any(p.lot is not None and p.lot_deviations is None for p in spec.parts.values())
+    if not (stock or lot):
+        return spec
+    file = spec.source or None
+    return load_lots(_load_stock_lists(spec, file), file)
+
+
 def _load_stock_lists(spec: Spec, file: str | None) -> Spec:
     """Read every part's ``stock`` file (relative to the spec file; each path once).
 

@@ -348,6 +348,9 @@ class ParasiticsSpec(_Strict):
     c1_shunt: float = 0.0
     c2_shunt: float = 0.0
     l_scale: float = 1.0
+    #: Half-width of the board-to-board spread of ``stray`` (F): each simulated
+    #: board's stray is uniform in stray ± stray_tolerance (GUM rectangular).
+    stray_tolerance: float = 0.0
 
     @field_validator("stray", "c1_shunt", "c2_shunt", mode="before")
     @classmethod
@@ -356,6 +359,26 @@ class ParasiticsSpec(_Strict):
         if c < 0:
             raise ValueError(f"expected a capacitance >= 0 such as '10 pF'; got {v!r}")
         return c
+
+    @field_validator("stray_tolerance", mode="before")
+    @classmethod
+    def _cap_tol(cls, v: Any) -> float:
+        text = v.strip().lstrip("±").strip() if isinstance(v, str) else v
+        c = parse_field_quantity(text, "F")
+        if c < 0:
+            raise ValueError(f"expected a capacitance >= 0 such as '±2 pF'; got {v!r}")
+        return c
+
+    @model_validator(mode="after")
+    def _stray_spread(self) -> ParasiticsSpec:
+        if self.stray_tolerance > self.stray:
+            raise KeyedError(
+                "stray_tolerance",
+                "expected at most the stray itself (a board's stray cannot go below 0); got "
+                f"{units.format_quantity(self.stray_tolerance, 'F')} against a stray of "
+                f"{units.format_quantity(self.stray, 'F')}",
+            )
+        return self
 
     @field_validator("l_scale", mode="before")
     @classmethod
@@ -557,6 +580,12 @@ class Spec(_Strict):
     @model_validator(mode="after")
     def _production_keys(self) -> Spec:
         check_spec(self)
+        if self.amplifier is not None and self.parasitics.stray_tolerance > 0:
+            raise KeyedError(
+                "parasitics.stray_tolerance",
+                "a spread of the stray is simulated with the ideal tank only; the loaded "
+                "model ([amplifier]) takes one stray: remove stray_tolerance or [amplifier]",
+            )
         return self
 
     @property

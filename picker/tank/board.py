@@ -98,7 +98,8 @@ def board_values(topology: Topology, values: Mapping[str, Any], par: Parasitics)
 
 def board_frequency(topology: Topology, values: Mapping[str, Any], par: Parasitics) -> Any:
     """Ideal-tank frequency of a board with its parasitics, Hz."""
-    return topology.frequency(board_values(topology, values, par), par.stray)
+    # a sampled stray per board (key "stray", picker.core.montecarlo) overrides par.stray
+    return topology.frequency(board_values(topology, values, par), values.get("stray", par.stray))
 
 
 def board_beta(topology: Topology, values: Mapping[str, Any], par: Parasitics) -> Any:
