@@ -42,6 +42,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import fft as sp_fft
 from scipy import ndimage, signal
 
 __all__ = [
@@ -248,7 +249,9 @@ def measure(
     sos = signal.butter(4, [0.6 * f_pk, 1.4 * f_pk], btype="bandpass", fs=fs, output="sos")
     period = 1.0 / (f_pk * dt)  # samples per carrier period
     pad = min(int(20 * period), x.size - 1)
-    z = signal.hilbert(signal.sosfiltfilt(sos, x - x[tail].mean(), padlen=pad))
+    y = signal.sosfiltfilt(sos, x - x[tail].mean(), padlen=pad)
+    # (transform length rounded up to a fast FFT size; the zeros added lie past the end)
+    z = signal.hilbert(y, N=sp_fft.next_fast_len(y.size))[: y.size]
     # the envelope: |z| averaged over three carrier periods (cycle-to-cycle ripple of a
     # distorted waveform is not a change of amplitude)
     env = ndimage.uniform_filter1d(np.abs(z), size=max(int(3 * period), 1), mode="nearest")

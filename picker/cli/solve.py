@@ -12,18 +12,21 @@ import json
 import sys
 from collections.abc import Iterable
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import typer
 from rich.console import Console
 
 from picker.cli.options import (
+    VERIFY_HELP,
+    VERIFY_TOP_HELP,
     check_format,
     parse_assignments,
     parse_precision,
     parse_sampling,
     progress_bar,
     unit_of,
+    verify_count,
 )
 from picker.errors import InfeasibleError, SpecError
 from picker.files import atomic_write, check_output
@@ -44,23 +47,45 @@ def _check_outputs(output: Path | None, plot: Path | None, force: bool, spec: Pa
         check_plot_folder(plot, force=force, inputs=[spec])
 
 
+def _verify(result: SolveResult, count: int | None) -> tuple[dict[str, Any], str] | None:
+    """``--verify``: the ngspice check of the top designs (JSON object, table text)."""
+    if count is None or not result.candidates:
+        return None
+    from picker.cli.circuit import run_verify, verify_dict, verify_text
+
+    checks, seconds = run_verify(result, count)
+    return verify_dict(checks, seconds), verify_text(checks, seconds)
+
+
 def _emit(
-    result: SolveResult, fmt: str, output: Path | None, force: bool, inputs: Iterable[Path]
+    result: SolveResult,
+    fmt: str,
+    output: Path | None,
+    force: bool,
+    inputs: Iterable[Path],
+    verify: tuple[dict[str, Any], str] | None = None,
 ) -> None:
-    """Write the result as ``fmt`` to ``output``, or to stdout."""
+    """Write the result as ``fmt`` to ``output``, or to stdout (with ``--verify``'s check:
+    under ``ngspice_check`` in JSON, as a table after the table, on stderr beside CSV)."""
     from picker.report import designs as report
 
     if fmt == "json":
         text = report.to_json(result)
+        if verify is not None:
+            data = json.loads(text)
+            data["ngspice_check"] = verify[0]
+            text = json.dumps(data, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
     elif fmt == "csv":
         text = report.to_csv(result)
+        if verify is not None:
+            sys.stderr.write(verify[1])
     else:
         text = None
     if output is not None:
         if text is None:
             buf = Console(record=True, width=160, file=io.StringIO())
             report.print_table(result, buf)
-            text = buf.export_text()
+            text = buf.export_text() + ("" if verify is None else "\n" + verify[1])
         atomic_write(output, text, force=force, inputs=inputs)
         return
     if text is not None:
@@ -68,6 +93,8 @@ def _emit(
     else:
         con = Console()
         report.print_table(result, con if con.is_terminal else Console(width=200))
+        if verify is not None:
+            sys.stdout.write("\n" + verify[1])
 
 
 def solve(
@@ -96,6 +123,8 @@ def solve(
     plot: Path | None = typer.Option(
         None, "--plot", help="Write PNG plots of the best design into this folder."
     ),
+    verify: bool = typer.Option(False, "--verify", help=VERIFY_HELP),
+    verify_top: int = typer.Option(5, "--verify-top", min=1, max=50, help=VERIFY_TOP_HELP),
 ) -> None:
     """Search every standard-value design in the window and rank them by yield."""
     from picker import api
@@ -104,6 +133,7 @@ def solve(
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
     s = api.load_spec(spec)
+    vcount = verify_count(verify, verify_top, s)  # before the run, not after
     with progress_bar(prec or s.yield_.precision) as progress:
         result = api.solve(
             s,
@@ -120,7 +150,8 @@ def solve(
         from picker.report.plots import write_plots
 
         write_plots(result, plot, force=force, inputs=[spec])
-    _emit(result, fmt, output, force, [spec])
+    checked = _verify(result, vcount)
+    _emit(result, fmt, output, force, [spec], checked)
     if result.status != "ok":
         raise typer.Exit(1)
 
@@ -143,6 +174,7 @@ def evaluate(
     plot: Path | None = typer.Option(
         None, "--plot", help="Write PNG plots of the design into this folder."
     ),
+    verify: bool = typer.Option(False, "--verify", help=VERIFY_HELP),
 ) -> None:
     """The same figures as solve for one given design (an existing board)."""
     from picker import api
@@ -152,6 +184,7 @@ def evaluate(
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
     s = api.load_spec(spec)
+    vcount = verify_count(verify, 1, s)  # before the run, not after
     values = parse_assignments(set_, "--set", unit_of)
     tols = {}
     for item in tol:
@@ -177,7 +210,8 @@ def evaluate(
         from picker.report.plots import write_plots
 
         write_plots(result, plot, force=force, inputs=[spec])
-    _emit(result, fmt, output, force, [spec])
+    checked = _verify(result, vcount)
+    _emit(result, fmt, output, force, [spec], checked)
 
 
 def series_cmd(
