@@ -164,3 +164,37 @@ def test_verify_and_simulate_without_ngspice_exit_3(spec, monkeypatch, capsys):
     assert _run(["evaluate", str(spec), *SETS, "--verify", "--samples", "200"]) == 3
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 2 and all("ngspice is not installed" in line for line in err)
+
+
+def test_verdict_names_what_fails():
+    # the definitions of picker.circuit.verify.verdict: starts, steady, in the window
+    from picker.circuit.verify import verdict
+
+    window = (0.97e6, 1.03e6)
+    assert verdict("steady", 1.0e6, window) == "ok"
+    assert verdict("none", None, window) == "does not start"
+    assert verdict("bursting", 1.0e6, window) == "bursts"
+    assert verdict("unsettled", 1.04e6, window) == "unsettled; above the window"
+    assert verdict("steady", 0.96e6, window) == "below the window"
+    assert verdict("steady", 0.96e6, None) == "ok"
+
+
+def test_corners_follow_the_sign_of_each_sensitivity():
+    # a part whose sensitivity is positive moves the other way (first-order worst case:
+    # Σ|S_i|·t_i, as in the worst-case span)
+    from picker.api.results import Candidate, PartPick
+    from picker.api.verify import corner_values
+    from picker.core.montecarlo import YieldEstimate
+
+    parts = {
+        "C1": PartPick("C1", 1e-9, "F", "E12", 0.05),
+        "C2": PartPick("C2", 2e-9, "F", "E12", 0.02),
+        "L": PartPick("L", 1e-5, "H", "E12", 0.10),
+    }
+    sens = {"C1": -0.2, "C2": +0.1, "L": -0.5}
+    y = YieldEstimate(1.0, 1.0, 1.0, 1, 1, 0.95, "wilson", 0)
+    c = Candidate(1, parts, 1e6, 0.0, 0.5, y, 1.0, 0.9e6, 1.1e6, sens)
+    low = corner_values(c, -1)
+    high = corner_values(c, +1)
+    assert low == pytest.approx({"C1": 1.05e-9, "C2": 1.96e-9, "L": 1.1e-5})
+    assert high == pytest.approx({"C1": 0.95e-9, "C2": 2.04e-9, "L": 0.9e-5})
