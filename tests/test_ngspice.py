@@ -190,3 +190,31 @@ def test_bias_point_matches_ngspice_operating_point():
     assert sim.amplitude_v < 1e-3
     # the .meas vmax is of v(t), which sits at the base's DC voltage through L
     np.testing.assert_allclose(sim.meas["vmax"], bias(params).vb, rtol=2e-3)
+
+
+def test_ideal_lc_tank_frequency_after_undoing_the_trapezoidal_warp():
+    # An ideal LC tank rung by a pulse: f = 1/(2π√(LC)) (textbook). ngspice's trapezoidal
+    # rule at 60 steps per period runs it slow by about (ωh)²/12 = 0.09 % (bilinear
+    # transform warping, Oppenheim & Schafer); simulate() undoes that from the step.
+    from picker.circuit.ngspice import transient, trapezoid_frequency
+    from picker.circuit.waveform import measure
+
+    l, c = 10e-6, 1e-9
+    f0 = 1 / (2 * np.pi * np.sqrt(l * c))
+    period = 1 / f0
+    deck = (
+        "ideal LC tank\nL1 t 0 1e-05\nC1 t 0 1e-09\nR1 t 0 1e9\n"
+        f"I1 0 t PULSE(0 1m {period} {period / 40} {period / 40} {period / 2} 1)\n"
+        f".tran {period / 60} {400 * period} 0 {period / 60}\n.end\n"
+    )
+    raw = transient(deck)
+    sim = simulate(deck, f_hint=f0)
+    step = float(np.median(np.diff(raw.time)))
+    # the warped resonance: tan(ω_d·h/2) = ω·h/2
+    warped = np.arctan(np.pi * f0 * step) / (np.pi * step)
+    assert sim.waveform.state == "steady"
+    assert warped / f0 - 1 == pytest.approx(-((2 * np.pi * f0 * step) ** 2) / 12, rel=0.01)
+    # the measured carrier before the correction sits on the warped one, after it on f0
+    assert measure(raw.time, raw.v, f_hint=f0).f_hz == pytest.approx(warped, rel=2e-5)
+    assert sim.frequency_hz == pytest.approx(f0, rel=2e-5)
+    assert trapezoid_frequency(warped, step) == pytest.approx(f0, rel=1e-9)

@@ -19,7 +19,9 @@ circuit elements, ``.tran`` and ``.meas``).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping
+from dataclasses import dataclass
 from typing import Any
 
 from picker.circuit.amplifier import AmplifierParams
@@ -27,7 +29,18 @@ from picker.circuit.stages import stage_of
 from picker.circuit.stages.base import spice_number
 from picker.tank.base import TWO_PI, Topology
 
-__all__ = ["inductor_esr", "simulation_window", "write_netlist"]
+__all__ = [
+    "MAX_CYCLES",
+    "TransientPlan",
+    "inductor_esr",
+    "kick_time",
+    "simulation_window",
+    "transient_plan",
+    "write_netlist",
+]
+
+#: Most carrier periods a verification transient observes (beyond the bias settling).
+MAX_CYCLES = 8000
 
 
 def inductor_esr(
@@ -48,6 +61,75 @@ def simulation_window(
     period = 1.0 / f_hz
     settle = stage_of(params).settling_time(params)
     return cycles * period + settle, period / 60.0
+
+
+def kick_time(f0: float) -> float:
+    """When the start-up kick of :func:`write_netlist` begins: one ideal period in, s."""
+    return 1.0 / f0
+
+
+@dataclass(frozen=True)
+class TransientPlan:
+    """How long a verification transient runs and where it is read.
+
+    ``f0``: the ideal tank frequency, Hz; ``cycles``: the observed periods
+    (:func:`write_netlist`'s ``cycles``; the stage's bias settling time is added to
+    them); ``tstop``: the run's length, s; ``t_kick``: when the kick starts, s;
+    ``tail_start``: where the settled tail that is measured begins (half way), s;
+    ``resolved``: whether the wanted length fitted under the cap (when not, a burst
+    slower than the run may be missed).
+    """
+
+    f0: float
+    cycles: int
+    tstop: float
+    t_kick: float
+    tail_start: float
+    resolved: bool
+
+
+def transient_plan(
+    topology: Topology,
+    values: Mapping[str, float],
+    stray: float,
+    params: AmplifierParams,
+    *,
+    max_cycles: int = MAX_CYCLES,
+) -> TransientPlan:
+    """The length of a transient that shows start-up, the settled envelope and bursting.
+
+    Written without the loaded model, from time constants any designer can read off
+    the schematic, in periods T = 1/f0 of the ideal tank:
+
+    * the tank's envelope time constant 2Q/ω = Q/π periods (the unloaded inductor Q;
+      the loaded Q is lower, so the envelope is at least this fast for a loop gain
+      margin of 2 and slower only for a margin close to 1);
+    * the slowest bias time constant τ: R_E·C_E, the base divider's Thevenin
+      resistance with the tank's capacitors to ground (C1 + C2), and C_B with the
+      collector resistor. A bursting oscillator comes and goes about once per few τ.
+
+    cycles = 400 + 20·Q/π + 10·τ/T, at most ``max_cycles`` (the run then adds the
+    stage's own settling, five R_E·C_E). Common practice, no source: twenty envelope
+    time constants to settle and several bias time constants to see a burst repeat.
+    """
+    vals = {p: float(values[p]) for p in topology.positions}
+    f0 = float(topology.frequency(vals, stray))
+    r_l = inductor_esr(topology, vals, stray, params)
+    q = TWO_PI * f0 * vals[topology.inductor] / r_l if r_l > 0 else 1000.0
+    taus = [0.0]
+    if params.r_e is not None and params.c_e is not None:
+        taus.append(params.r_e * params.c_e)
+    if params.r_b1 is not None:
+        r_th = params.r_b1
+        if params.r_b2 is not None:
+            r_th = params.r_b1 * params.r_b2 / (params.r_b1 + params.r_b2)
+        taus.append(r_th * sum(vals[p] for p in topology.feedback_pair))
+    if params.c_block is not None and params.r_c is not None:
+        taus.append(params.c_block * params.r_c)
+    cycles = 400.0 + 20.0 * q / math.pi + 10.0 * max(taus) * f0
+    n = int(min(max_cycles, math.ceil(cycles)))
+    tstop, _ = simulation_window(f0, params, n)
+    return TransientPlan(f0, n, tstop, kick_time(f0), 0.5 * tstop, cycles <= max_cycles)
 
 
 def write_netlist(
@@ -95,7 +177,7 @@ def write_netlist(
         f"* picker netlist: {topology.name} tank, ideal f = {f0:.6g} Hz",
         *part.elements,
     ]
-    half = 0.5 / f0
+    half = 0.5 / f0  # the kick starts at 2·half = kick_time(f0)
     kick = part.kick
     lines += [
         f"* start-up kick: one {g(kick)} A pulse of half a period into the tank top",

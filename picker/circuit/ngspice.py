@@ -1,42 +1,68 @@
-"""Run a netlist through ngspice in batch mode and measure frequency and amplitude.
+"""Run a netlist through ngspice in batch mode and measure its waveform.
 
 ngspice (the Debian/Ubuntu package ``ngspice``) is run as a subprocess with
 ``-b`` on a copy of the netlist that gains a ``.control`` block writing the
-tank-top voltage with ``wrdata``. The frequency comes from the rising
-crossings of the mean level over the settled tail (the last 30 % of the run,
-linear interpolation between samples); the amplitude is half the peak-to-peak
-voltage over the last 10 %. This module runs a program and reads files, so it
-belongs to the edge layer; it raises :class:`picker.errors.SolverError` with a
-one-line message when ngspice is missing, fails or times out.
+probed node's voltage with ``wrdata``. The waveform is measured by
+:func:`picker.circuit.waveform.measure` (carrier from the phase slope of the
+band-passed analytic signal, envelope state, amplitude, start-up time, harmonics),
+which knows nothing of picker's circuit model. This module runs a program and reads
+files, so it belongs to the edge layer; it raises :class:`picker.errors.SolverError`
+with a one-line message when ngspice is missing, fails or times out.
 """
 
 from __future__ import annotations
 
+import math
 import re
 import shutil
 import subprocess
 import tempfile
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
 
+from picker.circuit.waveform import WaveformMeasurement, measure
 from picker.errors import SolverError
 
+__all__ = [
+    "WARNING_PATTERNS",
+    "SimulationResult",
+    "Transient",
+    "ngspice_path",
+    "simulate",
+    "transient",
+    "trapezoid_frequency",
+]
+
 WARNING_PATTERNS = ("floating", "no dc path", "singular matrix", "timestep too small")
+
+
+@dataclass(frozen=True)
+class Transient:
+    """A transient run: sample times (s), the probed node's voltage (V), ngspice's own
+    ``.meas`` results and the warning lines of its output."""
+
+    time: np.ndarray
+    v: np.ndarray
+    meas: dict[str, float]
+    warnings: tuple[str, ...]
+    node: str
 
 
 @dataclass(frozen=True)
 class SimulationResult:
     """What the transient simulation showed.
 
-    ``frequency_hz`` is NaN when the tail has fewer than three rising crossings.
-    ``amplitude_v`` is the peak AC voltage at the probed node over the last 10 % of the
-    run; ``early_amplitude_v`` the same over 40-50 % of the run, so that
-    ``oscillating`` (tail amplitude ≥ 1 mV and at least 0.8 of the earlier one) tells a
-    sustained oscillation from a decaying kick. ``meas`` holds ngspice's own ``.meas``
-    results; ``warnings`` the lines of its output that mention a floating node, a missing
-    DC path, a singular matrix or a too-small time step.
+    ``frequency_hz`` is the carrier from the phase slope, corrected for the trapezoidal
+    integration's frequency warping (:func:`trapezoid_frequency`; NaN when it does not
+    oscillate); ``amplitude_v`` the peak AC voltage at the probed node over the last
+    10 % of the run, ``early_amplitude_v`` the same over 40-50 % of the run;
+    ``oscillating`` whether the waveform measurement found an oscillation (steady,
+    bursting or unsettled); ``waveform`` the whole measurement
+    (:class:`picker.circuit.waveform.WaveformMeasurement`). ``meas`` holds ngspice's
+    own ``.meas`` results; ``warnings`` the lines of its output that mention a floating
+    node, a missing DC path, a singular matrix or a too-small time step.
     """
 
     frequency_hz: float
@@ -46,6 +72,7 @@ class SimulationResult:
     meas: dict[str, float]
     warnings: tuple[str, ...]
     node: str
+    waveform: WaveformMeasurement
 
 
 def ngspice_path() -> str:
@@ -59,20 +86,6 @@ def ngspice_path() -> str:
     return exe
 
 
-def tail_frequency(time: np.ndarray, v: np.ndarray, start: float) -> float:
-    """Mean frequency from rising crossings of the mean of ``v`` for ``time >= start``."""
-    sel = time >= start
-    t, x = time[sel], v[sel]
-    if t.size < 4:
-        return float("nan")
-    x = x - x.mean()
-    i = np.nonzero((x[:-1] < 0) & (x[1:] >= 0))[0]
-    if i.size < 3:
-        return float("nan")
-    tc = t[i] - x[i] * (t[i + 1] - t[i]) / (x[i + 1] - x[i])
-    return float((tc.size - 1) / (tc[-1] - tc[0]))
-
-
 def _peak(time: np.ndarray, v: np.ndarray, lo: float, hi: float) -> float:
     """Half the peak-to-peak of ``v`` over lo <= time <= hi (0.0 where no sample)."""
     sel = (time >= lo) & (time <= hi)
@@ -81,8 +94,23 @@ def _peak(time: np.ndarray, v: np.ndarray, lo: float, hi: float) -> float:
     return float(0.5 * (v[sel].max() - v[sel].min()))
 
 
-def simulate(netlist: str, *, node: str = "t", timeout: float = 60.0) -> SimulationResult:
-    """Run ``netlist`` (text ending in ``.end``) in ngspice and measure ``v(node)``.
+def trapezoid_frequency(f_measured: float, step: float) -> float:
+    """The frequency an oscillation has once ngspice's trapezoidal integration is undone, Hz.
+
+    The trapezoidal rule at a fixed step h turns a resonance at ω into one at ω_d with
+    tan(ω_d·h/2) = ω·h/2 — the frequency warping of the bilinear transform (Oppenheim &
+    Schafer, *Discrete-Time Signal Processing*, bilinear transformation) — so a simulated
+    oscillator runs slow by about (ω·h)²/12: 0.09 % at 60 steps per period, as large as
+    the accuracy being checked. Inverted: f = tan(π·f_d·h)/(π·h).
+    """
+    x = math.pi * f_measured * step
+    if not math.isfinite(x) or x <= 0 or x >= 0.5 * math.pi:
+        return f_measured
+    return math.tan(x) / (math.pi * step)
+
+
+def transient(netlist: str, *, node: str = "t", timeout: float = 60.0) -> Transient:
+    """Run ``netlist`` (text ending in ``.end``) in ngspice and return ``v(node)``.
 
     Raises
     ------
@@ -115,9 +143,12 @@ def simulate(netlist: str, *, node: str = "t", timeout: float = 60.0) -> Simulat
         if proc.returncode != 0 or not out.exists():
             last = " | ".join(line.strip() for line in text.strip().splitlines()[-3:])
             raise SolverError(f"ngspice failed (exit {proc.returncode}): {last}")
-        data = np.loadtxt(out, ndmin=2)
-    time, v = data[:, 0], data[:, 1]
-    tstop = float(time[-1])
+        try:
+            data = np.loadtxt(out, ndmin=2)
+        except ValueError as exc:
+            raise SolverError(f"ngspice wrote unreadable data: {exc}") from None
+    if data.shape[0] < 16 or data.shape[1] < 2:
+        raise SolverError(f"ngspice wrote {data.shape[0]} samples; expected a transient")
     meas = {}
     for m in re.finditer(r"^\s*(\w+)\s*=\s*([-+0-9.eE]+)", proc.stdout, flags=re.MULTILINE):
         try:
@@ -129,16 +160,42 @@ def simulate(netlist: str, *, node: str = "t", timeout: float = 60.0) -> Simulat
         for line in text.splitlines()
         if any(p in line.lower() for p in WARNING_PATTERNS)
     )
-    amp = _peak(time, v, 0.9 * tstop, tstop)
-    early = _peak(time, v, 0.4 * tstop, 0.5 * tstop)
-    freq = tail_frequency(time, v, 0.7 * tstop)
-    osc = bool(amp >= 1e-3 and amp >= 0.8 * early and np.isfinite(freq))
+    return Transient(data[:, 0], data[:, 1], meas, warnings, node)
+
+
+def simulate(
+    netlist: str,
+    *,
+    node: str = "t",
+    timeout: float = 60.0,
+    f_hint: float | None = None,
+    tail_start: float | None = None,
+    t_kick: float = 0.0,
+) -> SimulationResult:
+    """Run ``netlist`` in ngspice and measure ``v(node)`` (:func:`transient`, then
+    :func:`picker.circuit.waveform.measure` with ``f_hint``, ``tail_start`` and
+    ``t_kick``; the tail defaults to the second half of the run).
+
+    Raises
+    ------
+    SolverError
+        ngspice missing, exiting with an error, timing out, or writing no data.
+    """
+    run = transient(netlist, node=node, timeout=timeout)
+    time, v = run.time, run.v
+    tstop = float(time[-1])
+    wave = measure(time, v, f_hint=f_hint, tail_start=tail_start, t_kick=t_kick)
+    if wave.oscillating:  # undo the integration's frequency warping at the typical step
+        t0 = float(wave.tail_start_s)
+        step = float(np.median(np.diff(time[time >= t0])))
+        wave = replace(wave, f_hz=trapezoid_frequency(wave.f_hz, step))
     return SimulationResult(
-        frequency_hz=freq,
-        amplitude_v=amp,
-        early_amplitude_v=early,
-        oscillating=osc,
-        meas=meas,
-        warnings=warnings,
+        frequency_hz=wave.f_hz,
+        amplitude_v=_peak(time, v, 0.9 * tstop, tstop),
+        early_amplitude_v=_peak(time, v, 0.4 * tstop, 0.5 * tstop),
+        oscillating=wave.oscillating,
+        meas=run.meas,
+        warnings=run.warnings,
         node=node,
+        waveform=wave,
     )

@@ -3,13 +3,19 @@
 Registered on the main app by :func:`register` (see picker.cli.main). Both commands
 take the part values from ``--set POS=VALUE`` (every position) or, without
 ``--set``, from the top design of a solve of the spec. The spec must have an
-``[amplifier]`` section.
+``[amplifier]`` section. ``netlist`` writes to standard output without ``-o``.
+
+Also the ``--verify`` report of ``solve`` and ``evaluate`` (:func:`run_verify`,
+:func:`verify_text`): the top designs in ngspice at nominal and two tolerance corners,
+measured as ``simulate`` measures (:mod:`picker.circuit.waveform`).
 """
 
 from __future__ import annotations
 
 import json
 import math
+import sys
+import time
 from collections.abc import Mapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -21,7 +27,10 @@ from picker.errors import InfeasibleError, SpecError
 from picker.files import atomic_write, check_output
 
 if TYPE_CHECKING:
+    from picker.api.results import SolveResult
+    from picker.api.verify import DesignCheck
     from picker.circuit.amplifier import AmplifierParams
+    from picker.circuit.verify import BoardCheck
     from picker.spec.model import Spec
     from picker.tank.base import Topology
 
@@ -90,26 +99,65 @@ def _figures(
     }
 
 
-def netlist(
-    spec_path: Path = typer.Argument(..., metavar="SPEC", help="The spec file (TOML)."),
-    set_: list[str] = typer.Option([], "--set", help="A part value, e.g. --set C1=4.7n (repeat)."),
-    output: Path = typer.Option(..., "-o", "--output", help="Netlist file to write."),
-    force: bool = typer.Option(False, "--force", help="Replace an existing output file."),
-) -> None:
-    """Write a SPICE netlist of the whole oscillator (bias network, transient, measurements)."""
-    from picker.circuit.netlist import write_netlist
+def _netlist_text(
+    spec: Spec,
+    spec_path: Path,
+    topo: Topology,
+    values: Mapping[str, float],
+    board: Mapping[str, Any],
+    stray: float,
+    params: AmplifierParams,
+) -> str:
+    """The netlist ``simulate`` runs: long enough to see start-up, the settled envelope
+    and bursting (:func:`picker.circuit.netlist.transient_plan`)."""
+    from picker.circuit.netlist import transient_plan, write_netlist
 
-    check_output(output, force=force, inputs=[spec_path])  # before the solve, not after
-    spec, topo, values, board, stray, params = _design(spec_path, set_)
     title = f"{spec.title or spec_path.stem}: " + " ".join(
         f"{p}={values[p]:.6g}" for p in topo.positions
     )
     try:
-        text = write_netlist(topo, board, stray, params, title=title)
+        plan = transient_plan(topo, board, stray, params)
+        return write_netlist(topo, board, stray, params, title=title, cycles=plan.cycles)
     except ValueError as exc:
         raise SpecError(str(exc), file=str(spec_path), key="amplifier") from None
+
+
+def netlist(
+    spec_path: Path = typer.Argument(..., metavar="SPEC", help="The spec file (TOML)."),
+    set_: list[str] = typer.Option([], "--set", help="A part value, e.g. --set C1=4.7n (repeat)."),
+    output: Path | None = typer.Option(
+        None, "-o", "--output", help="Netlist file to write (default: standard output)."
+    ),
+    force: bool = typer.Option(False, "--force", help="Replace an existing output file."),
+) -> None:
+    """Write a SPICE netlist of the whole oscillator (bias network, transient, measurements)."""
+    if output is not None:
+        check_output(output, force=force, inputs=[spec_path])  # before the solve, not after
+    spec, topo, values, board, stray, params = _design(spec_path, set_)
+    text = _netlist_text(spec, spec_path, topo, values, board, stray, params)
+    if output is None:
+        sys.stdout.write(text)
+        return
     atomic_write(output, text, force=force, inputs=[spec_path])
     typer.echo(f"wrote {output}")
+
+
+def _window_note(f: float | None, lo: float, hi: float, target: float) -> tuple[str, Any]:
+    """The simulated carrier against the window: a line of text and the JSON figures."""
+    if f is None:
+        return "no carrier to compare with the window", None
+    fig = {
+        "from_target": f / target - 1.0,
+        "in_window": lo <= f <= hi,
+        # signed distance to the nearer edge, relative to the target: + inside, − outside
+        "margin_to_edge": min(f - lo, hi - f) / target,
+    }
+    where = "inside" if fig["in_window"] else ("below" if f < lo else "above")
+    edge = abs(fig["margin_to_edge"])
+    text = f"{fig['from_target']:+.3%} from the target; {where} the window" + (
+        f", {edge:.3%} from its nearer edge" if where == "inside" else f" by {edge:.3%}"
+    )
+    return text.replace("%", " %"), fig
 
 
 def simulate(
@@ -118,9 +166,8 @@ def simulate(
     fmt: str = typer.Option("table", "--format", help="table or json."),
     timeout: float = typer.Option(120.0, "--timeout", help="Seconds to allow ngspice."),
 ) -> None:
-    """Simulate the oscillator in ngspice and compare with the loaded model."""
-    from picker.circuit.netlist import write_netlist
-    from picker.circuit.ngspice import simulate as run
+    """Simulate the oscillator in ngspice and compare with the model and the window."""
+    from picker.circuit.verify import check_boards
     from picker.units import format_quantity
 
     fmt = check_format(fmt, ("table", "json"))
@@ -128,21 +175,33 @@ def simulate(
         raise SpecError(f"expected seconds between 0 and 3600; got {timeout}", key="--timeout")
     spec, topo, values, board, stray, params = _design(spec_path, set_)
     model = _figures(topo, board, stray, params)
+    lo, hi, target = spec.frequency.f_min, spec.frequency.f_max, spec.frequency.target
     try:
-        text = write_netlist(topo, board, stray, params, title=spec.title or spec_path.stem)
+        (check,) = check_boards(
+            topo, [("nominal", board)], stray, params, window=(lo, hi), workers=1, timeout=timeout
+        )
     except ValueError as exc:
         raise SpecError(str(exc), file=str(spec_path), key="amplifier") from None
-    sim = run(text, timeout=timeout)
-    f_sim = sim.frequency_hz if math.isfinite(sim.frequency_hz) else None
+    sim, wave = check.sim, check.sim.waveform
+    f_sim = check.f_sim
+    note, window_fig = _window_note(f_sim, lo, hi, target)
     out = {
         "parts": {p: {"value": values[p]} for p in topo.positions},
         **model,
+        "large_signal": check.model,
         "simulated": {
             "oscillating": sim.oscillating,
             "f_hz": f_sim,
-            "amplitude_v": sim.amplitude_v,
+            "amplitude_v": wave.amplitude_v,
+            "envelope": wave.state,
+            "modulation": None if not math.isfinite(wave.modulation) else wave.modulation,
+            "startup_time_s": wave.to_dict()["startup_time_s"],
+            "harmonics_dbc": wave.to_dict()["harmonics_dbc"],
+            "cycles": check.cycles,
             "warnings": list(sim.warnings),
         },
+        "window": {"f_min_hz": lo, "f_max_hz": hi, **(window_fig or {})},
+        "verdict": check.verdict,
     }
     if fmt == "json":
         typer.echo(json.dumps(out, sort_keys=True))
@@ -151,21 +210,109 @@ def simulate(
     def hz(x: float | None) -> str:
         return "-" if x is None else format_quantity(x, "Hz")
 
+    def sec(x: float | None) -> str:
+        return "-" if x is None or not math.isfinite(x) else format_quantity(x, "s")
+
+    ls = check.model
     parts = "  ".join(f"{p} {format_quantity(values[p], topo.unit(p))}" for p in topo.positions)
+    amp_sim = format_quantity(wave.amplitude_v, "V") if sim.oscillating else "-"
     lines = [
         parts,
         f"{'':22}{'model':>16}{'ngspice':>16}",
         f"{'frequency (ideal)':22}{hz(model['f_ideal_hz']):>16}",
         f"{'frequency (loaded)':22}{hz(model['f_loaded_hz']):>16}{hz(f_sim):>16}",
-        f"{'amplitude, tank top':22}{format_quantity(model['amplitude_v'], 'V'):>16}"
-        f"{format_quantity(sim.amplitude_v, 'V'):>16}",
+        f"{'amplitude, tank top':22}{format_quantity(model['amplitude_v'], 'V'):>16}{amp_sim:>16}",
         f"{'start-up margin':22}{model['startup_margin']:>16.3g}"
         f"{'oscillates' if sim.oscillating else 'does not start':>16}",
+        f"{'envelope':22}{ls['envelope'] or '-':>16}{wave.state:>16}",
+        f"{'start-up time':22}{sec(ls['startup_time_s']):>16}{sec(wave.startup_time_s):>16}",
+        f"window {format_quantity(lo, 'Hz')} to {format_quantity(hi, 'Hz')}: {note}",
+        f"verdict: {check.verdict}",
     ]
     if model["overdriven"]:
         lines.append("caution: overdriven (margin above 5 or collector swing beyond headroom)")
+    if not check.resolved:
+        lines.append(
+            f"caution: the transient ({check.cycles} periods) is shorter than ten bias time "
+            "constants; a slow burst may not show"
+        )
     lines += [f"ngspice: {w}" for w in sim.warnings]
     typer.echo("\n".join(lines))
+
+
+# ---------------------------------------------------------------- --verify of solve/evaluate
+
+
+def run_verify(
+    result: SolveResult, count: int, timeout: float = 120.0
+) -> tuple[list[DesignCheck], float]:
+    """The ngspice check of the top ``count`` designs of ``result`` and its wall time, s."""
+    from picker.api.verify import verify_result
+
+    start = time.perf_counter()
+    checks = verify_result(result, count=count, timeout=timeout)
+    return checks, time.perf_counter() - start
+
+
+def verify_dict(checks: list[DesignCheck], seconds: float) -> dict[str, Any]:
+    """The JSON object ``--verify`` adds (key ``ngspice_check``)."""
+    from picker.circuit.verify import WORKERS
+
+    return {
+        "boards_per_design": len(checks[0].boards) if checks else 0,
+        "workers": WORKERS,
+        "designs": [c.to_dict() for c in checks],
+        "all_ok": all(c.verdict == "ok" for c in checks),
+        # wall-clock time is machine dependent: kept out of the JSON (deterministic output)
+    }
+
+
+def _board_row(rank: str, b: BoardCheck) -> str:
+    from picker.units import format_quantity
+
+    def hz(x: float | None) -> str:
+        return "-" if x is None else format_quantity(x, "Hz")
+
+    def volts(x: float | None) -> str:
+        return "-" if x is None or not math.isfinite(x) else format_quantity(x, "V", digits=3)
+
+    f_model, f_sim = b.model["f_hz"], b.f_sim
+    diff = "-" if f_model is None or f_sim is None else f"{f_model / f_sim - 1:+.2%}"
+    where = {None: "-", True: "in", False: "out"}[b.in_window]
+    wave = b.sim.waveform
+    amp_sim = volts(wave.amplitude_v) if b.sim.oscillating else "-"
+    start = wave.startup_time_s
+    start_text = "-" if not math.isfinite(start) else format_quantity(start, "s", digits=3)
+    return (
+        f"{rank:>4}  {b.label:11} {hz(f_model):>13} {hz(f_sim):>13} {diff.replace('%', ' %'):>9}"
+        f"  {where:6} {volts(b.model['amplitude_v']):>9} {amp_sim:>9}  {wave.state:9}"
+        f" {start_text:>9}  {b.verdict}"
+    )
+
+
+def verify_text(checks: list[DesignCheck], seconds: float) -> str:
+    """The ``--verify`` table: model against ngspice per board, a verdict per design."""
+    from picker.circuit.verify import WORKERS
+
+    boards = sum(len(c.boards) for c in checks)
+    per = len(checks[0].boards) if checks else 0
+    what = "nominal and the two tolerance corners" if per == 3 else "nominal"
+    lines = [
+        f"ngspice check of the top {len(checks)}: {what} ({boards} transients, "
+        f"{WORKERS} processes, {seconds:.1f} s)",
+        f"{'rank':>4}  {'board':11} {'f model':>13} {'f ngspice':>13} {'model-sim':>9}"
+        f"  {'window':6} {'amp model':>9} {'amp sim':>9}  {'envelope':9} {'start-up':>9}  verdict",
+    ]
+    for c in checks:
+        for i, b in enumerate(c.boards):
+            lines.append(_board_row(str(c.rank) if i == 0 else "", b))
+    lines += [f"design {c.rank}: {c.verdict}" for c in checks]
+    if any(not b.resolved for c in checks for b in c.boards):
+        lines.append(
+            "caution: some transients are shorter than ten bias time constants; "
+            "a slow burst may not show"
+        )
+    return "\n".join(lines) + "\n"
 
 
 def register(app: typer.Typer) -> None:

@@ -27,6 +27,8 @@ if TYPE_CHECKING:
 
 __all__ = [
     "BAR_DELAY",
+    "VERIFY_HELP",
+    "VERIFY_TOP_HELP",
     "FORMATS",
     "ProgressCallback",
     "check_format",
@@ -41,7 +43,15 @@ __all__ = [
     "parse_sampling",
     "progress_bar",
     "unit_of",
+    "verify_count",
 ]
+
+#: Help of ``--verify`` and ``--verify-top`` (solve, evaluate).
+VERIFY_HELP = (
+    "Simulate the top designs in ngspice at nominal and at the two tolerance corners that "
+    "push the frequency lowest and highest, and compare with the model."
+)
+VERIFY_TOP_HELP = "How many designs --verify simulates (default 5)."
 
 #: Output formats of ``solve`` and ``evaluate``.
 FORMATS = ("table", "json", "csv")
@@ -215,6 +225,19 @@ def parse_part_ids(items: list[str], key: str = "--part") -> dict[str, str]:
             raise SpecError(f"expected a stock part id; got {text!r}", key=f"{key} {pos}")
         out[pos] = text
     return out
+
+
+def verify_count(verify: bool, top: int, spec: object) -> int | None:
+    """How many designs ``--verify`` checks (None without ``--verify``); a spec with no
+    ``[amplifier]`` section is refused (there is no circuit to simulate)."""
+    if not verify:
+        return None
+    if getattr(spec, "amplifier", None) is None:
+        raise SpecError(
+            "expected an [amplifier] section: --verify simulates the transistor stage",
+            key="--verify",
+        )
+    return top
 
 
 def parse_precision(text: str | None) -> float | None:

@@ -11,12 +11,14 @@ import json
 import sys
 from collections.abc import Iterable
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import typer
 from rich.console import Console
 
 from picker.cli.options import (
+    VERIFY_HELP,
+    VERIFY_TOP_HELP,
     check_report,
     command_line,
     note_stock_columns,
@@ -27,6 +29,7 @@ from picker.cli.options import (
     parse_sampling,
     progress_bar,
     unit_of,
+    verify_count,
 )
 from picker.errors import InfeasibleError, SpecError
 from picker.files import atomic_write, check_output
@@ -101,22 +104,46 @@ def _write_report(
     sys.stderr.write(f"picker: wrote {report}\n")
 
 
+def _verify(result: SolveResult, count: int | None) -> tuple[dict[str, Any], str] | None:
+    """``--verify``: the ngspice check of the top designs (JSON object, table text)."""
+    if count is None or not result.candidates:
+        return None
+    from picker.cli.circuit import run_verify, verify_dict, verify_text
+
+    checks, seconds = run_verify(result, count)
+    return verify_dict(checks, seconds), verify_text(checks, seconds)
+
+
 def _emit(
-    result: SolveResult, fmt: str, output: Path | None, force: bool, inputs: Iterable[Path]
+    result: SolveResult,
+    fmt: str,
+    output: Path | None,
+    force: bool,
+    inputs: Iterable[Path],
+    verify: tuple[dict[str, Any], str] | None = None,
 ) -> None:
-    """Write the result as ``fmt`` to ``output``, or to stdout."""
+    """Write the result as ``fmt`` to ``output``, or to stdout (with ``--verify``'s check:
+    under ``ngspice_check`` in JSON, as a table after the table, on stderr beside CSV)."""
     from picker.report import designs as report
     from picker.report.csvfile import BOM
 
     if fmt == "json":
         text = report.to_json(result)
+        if verify is not None:
+            data = json.loads(text)
+            data["ngspice_check"] = verify[0]
+            text = json.dumps(data, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
     elif fmt == "csv":
         text = report.to_csv(result)
+        if verify is not None:
+            sys.stderr.write(verify[1])
     else:
         text = None
     if output is not None:
         if text is None:
             text = report.table_text(result, width=None)
+            if verify is not None:
+                text += "\n" + verify[1]
         elif fmt == "csv":  # a file: with a byte-order mark, so spreadsheets read UTF-8
             text = BOM + text
         _wrote([atomic_write(output, text, force=force, inputs=inputs)])
@@ -125,6 +152,8 @@ def _emit(
         sys.stdout.write(text)
     else:
         report.print_table(result, Console(highlight=False))
+        if verify is not None:
+            sys.stdout.write("\n" + verify[1])
 
 
 _FORMAT_HELP = "table, json or csv (default: from the -o file's extension, else table)."
@@ -177,6 +206,8 @@ def solve(
         metavar="FILE",
         help="Also write a self-contained HTML report (FILE.html).",
     ),
+    verify: bool = typer.Option(False, "--verify", help=VERIFY_HELP),
+    verify_top: int = typer.Option(5, "--verify-top", min=1, max=50, help=VERIFY_TOP_HELP),
 ) -> None:
     """Search every standard-value design in the window and rank them by yield."""
     from picker import api
@@ -189,6 +220,7 @@ def solve(
     s = api.load_spec(spec)
     _check_bom_inputs(bom, force, spec, s)
     note_stock_columns(part.stock_list for part in s.parts.values())
+    vcount = verify_count(verify, verify_top, s)  # before the run, not after
     with progress_bar(prec or s.yield_.precision) as progress:
         result = api.solve(
             s,
@@ -207,7 +239,8 @@ def solve(
         _wrote(write_plots(result, plot, force=force, inputs=[spec]))
     _write_bom(result, bom, force, spec)
     _write_report(report, result, force, spec, "solve")
-    _emit(result, fmt, output, force, [spec])
+    checked = _verify(result, vcount)
+    _emit(result, fmt, output, force, [spec], checked)
     if result.status != "ok":
         raise typer.Exit(1)
 
@@ -275,6 +308,7 @@ def evaluate(
         metavar="FILE",
         help="Also write a self-contained HTML report (FILE.html).",
     ),
+    verify: bool = typer.Option(False, "--verify", help=VERIFY_HELP),
 ) -> None:
     """The same figures as solve for one given design (an existing board)."""
     from picker import api
@@ -293,6 +327,7 @@ def evaluate(
         )
     s = api.load_spec(spec)
     _check_bom_inputs(bom, force, spec, s)
+    vcount = verify_count(verify, 1, s)  # before the run, not after
     note_stock_columns(part.stock_list for part in s.parts.values())
     with progress_bar(prec or s.yield_.precision) as progress:
         result = api.evaluate(
@@ -313,7 +348,8 @@ def evaluate(
         _wrote(write_plots(result, plot, force=force, inputs=[spec]))
     _write_bom(result, bom, force, spec)
     _write_report(report, result, force, spec, "evaluate")
-    _emit(result, fmt, output, force, [spec])
+    checked = _verify(result, vcount)
+    _emit(result, fmt, output, force, [spec], checked)
 
 
 def series_cmd(

@@ -1,0 +1,294 @@
+"""The large-signal model against ngspice: reference designs, their transients, the statistics.
+
+A *reference design* is everything needed to rebuild picker's netlist and to call
+:func:`picker.circuit.steady.steady_state`: the topology's name, the board values, the
+stray capacitance and the :class:`picker.circuit.amplifier.AmplifierParams` fields. Its
+*reference answer* is what ngspice's transient of that netlist shows, measured by
+:mod:`picker.circuit.waveform` (written without the model). The committed set lives in
+``tests/validation/large_signal.json`` and is made by ``scripts/make_validation.py``.
+
+:func:`accuracy` compares the model with the reference answers and gives the figures
+picker issue 11 sets targets for:
+
+* frequency: over designs that oscillate in ngspice, the share within 2 % and the
+  median and worst error (a design the model says does not start counts as a miss);
+* start-up: the share of all designs where "starts" agrees with ngspice;
+* bursting: precision and recall of the model's ``bursting`` against ngspice's state;
+* amplitude: over designs steady in ngspice, the share within ±30 % (peak at the tank
+  top, half the peak-to-peak);
+* Clapp: the worst frequency error over Clapp designs that oscillate.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import asdict, dataclass, fields
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.netlist import transient_plan, write_netlist
+from picker.circuit.ngspice import simulate
+from picker.circuit.steady import steady_state
+from picker.files import read_text
+from picker.tank import get_topology
+from picker.tank.base import Topology
+
+__all__ = [
+    "Accuracy",
+    "Design",
+    "ModelAnswer",
+    "accuracy",
+    "accuracy_table",
+    "design_from_dict",
+    "design_to_dict",
+    "load_reference",
+    "model_answer",
+    "run_design",
+]
+
+#: The AmplifierParams fields a reference design records (the device card is the default).
+_PARAM_FIELDS = tuple(f.name for f in fields(AmplifierParams) if f.name != "device")
+
+
+@dataclass(frozen=True)
+class Design:
+    """One reference design: ``topology`` name, board ``values`` (F, H), ``stray`` (F),
+    the amplifier ``params`` and an ``id``."""
+
+    id: str
+    topology: str
+    values: dict[str, float]
+    stray: float
+    params: AmplifierParams
+
+    @property
+    def topo(self) -> Topology:
+        """The registered topology."""
+        return get_topology(self.topology)
+
+
+def design_to_dict(d: Design) -> dict[str, Any]:
+    """JSON-ready form of a design (every AmplifierParams field but the device card)."""
+    p = asdict(d.params)
+    return {
+        "id": d.id,
+        "topology": d.topology,
+        "values": dict(d.values),
+        "stray": d.stray,
+        "params": {k: p[k] for k in _PARAM_FIELDS},
+    }
+
+
+def design_from_dict(d: Mapping[str, Any]) -> Design:
+    """The inverse of :func:`design_to_dict`."""
+    params = AmplifierParams(**{k: d["params"][k] for k in _PARAM_FIELDS if k in d["params"]})
+    values = {k: float(v) for k, v in d["values"].items()}
+    return Design(str(d["id"]), str(d["topology"]), values, float(d["stray"]), params)
+
+
+def run_design(d: Design, *, timeout: float = 120.0) -> dict[str, Any]:
+    """ngspice's answer for one design: the netlist's transient (length from
+    :func:`picker.circuit.netlist.transient_plan`) measured at the tank top."""
+    topo = d.topo
+    plan = transient_plan(topo, d.values, d.stray, d.params)
+    text = write_netlist(topo, d.values, d.stray, d.params, title=d.id, cycles=plan.cycles)
+    sim = simulate(
+        text, timeout=timeout, f_hint=plan.f0, tail_start=plan.tail_start, t_kick=plan.t_kick
+    )
+    return {
+        **sim.waveform.to_dict(),
+        "cycles": plan.cycles,
+        "tstop_s": plan.tstop,
+        "t_kick_s": plan.t_kick,
+        "tail_start_s": plan.tail_start,
+        "warnings": list(sim.warnings),
+    }
+
+
+def load_reference(path: Path) -> tuple[list[Design], list[dict[str, Any]]]:
+    """The designs and ngspice's answers of a reference file (as written by
+    ``scripts/make_validation.py``)."""
+    data = json.loads(read_text(path, what="a reference file (JSON)"))
+    designs = [design_from_dict(r["design"]) for r in data["designs"]]
+    answers = [dict(r["ngspice"]) for r in data["designs"]]
+    return designs, answers
+
+
+@dataclass(frozen=True)
+class ModelAnswer:
+    """The model's answer for one design (floats, NaN where not defined)."""
+
+    starts: bool
+    bursting: bool
+    f_hz: float
+    f_ideal_hz: float
+    amplitude_v: float
+    margin: float
+
+
+def model_answer(d: Design) -> ModelAnswer:
+    """:func:`picker.circuit.steady.steady_state` of one design."""
+    topo = d.topo
+    st = steady_state(topo, d.values, d.stray, d.params)
+    starts = bool(np.asarray(st.starts))
+    return ModelAnswer(
+        starts=starts,
+        bursting=bool(np.asarray(st.bursting)) and starts,
+        f_hz=float(np.asarray(st.f_hz)),
+        f_ideal_hz=float(topo.frequency(d.values, d.stray)),
+        amplitude_v=float(np.asarray(st.amplitude_v)),
+        margin=float(np.asarray(st.margin)),
+    )
+
+
+@dataclass(frozen=True)
+class Accuracy:
+    """The figures of :func:`accuracy` (shares are fractions; errors are relative)."""
+
+    designs: int
+    oscillating: int
+    freq_within_2pct: float
+    freq_median_error: float
+    freq_worst_error: float
+    startup_right: float
+    burst_precision: float
+    burst_recall: float
+    bursting: int
+    amplitude_within_30pct: float
+    steady: int
+    clapp_worst_error: float
+    clapp_oscillating: int
+    ideal_closer: int
+
+
+def _ratio(num: int, den: int) -> float:
+    return num / den if den else math.nan
+
+
+def accuracy(
+    topologies: Sequence[str], model: Sequence[ModelAnswer], sim: Sequence[Mapping[str, Any]]
+) -> Accuracy:
+    """Compare the model's answers with ngspice's (``sim``: the ``ngspice`` records of the
+    reference file: ``state``, ``f_hz``, ``amplitude_v``), design by design."""
+    if not len(topologies) == len(model) == len(sim):
+        raise ValueError("expected one topology, model answer and ngspice answer per design")
+    states = [str(s["state"]) for s in sim]
+    osc = [s != "none" for s in states]
+    errors = []
+    clapp = []
+    ideal_closer = 0
+    for topo, m, s, o in zip(topologies, model, sim, osc, strict=True):
+        if not o:
+            continue
+        f_sim = float(s["f_hz"])
+        err = abs(m.f_hz / f_sim - 1.0) if m.starts and math.isfinite(m.f_hz) else math.inf
+        errors.append(err)
+        if topo == "clapp":
+            clapp.append(err)
+        if abs(m.f_ideal_hz / f_sim - 1.0) < err:
+            ideal_closer += 1
+    e = np.array(errors)
+    right = sum(m.starts == o for m, o in zip(model, osc, strict=True))
+    sim_burst = [s == "bursting" for s in states]
+    tp = sum(m.bursting and b for m, b in zip(model, sim_burst, strict=True))
+    fp = sum(m.bursting and not b for m, b in zip(model, sim_burst, strict=True))
+    fn = sum(b and not m.bursting for m, b in zip(model, sim_burst, strict=True))
+    amp_ok = steady = 0
+    for m, s, st in zip(model, sim, states, strict=True):
+        if st != "steady":
+            continue
+        steady += 1
+        a_sim = float(s["amplitude_v"])
+        if m.starts and abs(m.amplitude_v / a_sim - 1.0) <= 0.30:
+            amp_ok += 1
+    return Accuracy(
+        designs=len(sim),
+        oscillating=int(e.size),
+        freq_within_2pct=_ratio(int(np.count_nonzero(e <= 0.02)), int(e.size)),
+        freq_median_error=float(np.median(e)) if e.size else math.nan,
+        freq_worst_error=float(e.max()) if e.size else math.nan,
+        startup_right=_ratio(int(right), len(sim)),
+        burst_precision=_ratio(int(tp), int(tp + fp)),
+        burst_recall=_ratio(int(tp), int(tp + fn)),
+        bursting=int(sum(sim_burst)),
+        amplitude_within_30pct=_ratio(amp_ok, steady),
+        steady=steady,
+        clapp_worst_error=max(clapp) if clapp else math.nan,
+        clapp_oscillating=len(clapp),
+        ideal_closer=ideal_closer,
+    )
+
+
+#: The targets of picker issue 11 (figure, comparison, value).
+TARGETS: dict[str, tuple[str, float]] = {
+    "freq_within_2pct": (">=", 0.95),
+    "freq_median_error": ("<=", 0.003),
+    "startup_right": (">=", 0.98),
+    "burst_precision": (">=", 0.8),
+    "burst_recall": (">=", 0.8),
+    "amplitude_within_30pct": (">=", 0.90),
+    "clapp_worst_error": ("<=", 0.005),
+}
+
+
+def meets(acc: Accuracy, name: str) -> bool:
+    """Whether figure ``name`` of ``acc`` meets its target in :data:`TARGETS`."""
+    op, target = TARGETS[name]
+    x = float(getattr(acc, name))
+    if not math.isfinite(x):
+        return False
+    return x >= target if op == ">=" else x <= target
+
+
+def accuracy_table(acc: Accuracy) -> str:
+    """The figures as a plain-text table (figure, measured, target, met)."""
+
+    def pct(x: float) -> str:
+        return "-" if not math.isfinite(x) else f"{100 * x:.1f} %"
+
+    def num(x: float) -> str:
+        return "-" if not math.isfinite(x) else f"{x:.2f}"
+
+    rows = [
+        (
+            f"frequency within 2 % ({acc.oscillating} oscillating)",
+            pct(acc.freq_within_2pct),
+            "freq_within_2pct",
+        ),
+        ("frequency error, median", pct(acc.freq_median_error), "freq_median_error"),
+        ("frequency error, worst", pct(acc.freq_worst_error), None),
+        (f"start-up right ({acc.designs} designs)", pct(acc.startup_right), "startup_right"),
+        (
+            f"bursting precision ({acc.bursting} burst in ngspice)",
+            num(acc.burst_precision),
+            "burst_precision",
+        ),
+        ("bursting recall", num(acc.burst_recall), "burst_recall"),
+        (
+            f"amplitude within ±30 % ({acc.steady} steady)",
+            pct(acc.amplitude_within_30pct),
+            "amplitude_within_30pct",
+        ),
+        (
+            f"Clapp worst frequency error ({acc.clapp_oscillating})",
+            pct(acc.clapp_worst_error),
+            "clapp_worst_error",
+        ),
+        ("ideal formula closer than the model", str(acc.ideal_closer), None),
+    ]
+    lines = [f"{'figure':48} {'measured':>10} {'target':>10}  met"]
+    for label, value, key in rows:
+        if key is None:
+            lines.append(f"{label:48} {value:>10} {'':>10}")
+            continue
+        op, target = TARGETS[key]
+        shown = num(target) if key.startswith("burst") else pct(target)
+        lines.append(
+            f"{label:48} {value:>10} {op + ' ' + shown:>10}  {'yes' if meets(acc, key) else 'no'}"
+        )
+    return "\n".join(lines)

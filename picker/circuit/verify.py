@@ -1,0 +1,197 @@
+"""Check boards in ngspice: the model's answer beside the transient's, with a verdict.
+
+:func:`check_boards` writes picker's netlist of each board
+(:func:`picker.circuit.netlist.write_netlist`, long enough to see start-up, the settled
+envelope and bursting: :func:`picker.circuit.netlist.transient_plan`), runs the transients
+in parallel ngspice processes, measures each waveform with
+:func:`picker.circuit.waveform.measure` (the carrier from the phase slope inside the bursts,
+the amplitude, the envelope state, the start-up time) and sets the model's answer
+(:func:`picker.circuit.steady.steady_state`) beside it.
+
+A board passes when in ngspice it **starts**, runs **steady** (not bursting, not
+unsettled) and its carrier lies **in the window**; :attr:`BoardCheck.verdict` says which
+of the three fail. ``picker solve --verify`` and ``picker evaluate --verify`` (through
+:mod:`picker.api.verify`) check the top designs at nominal and at their two worst
+tolerance corners; ``picker simulate`` checks one board.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.netlist import transient_plan, write_netlist
+from picker.circuit.ngspice import SimulationResult, simulate
+from picker.circuit.steady import steady_state
+from picker.tank.base import Topology
+
+__all__ = ["BoardCheck", "check_boards", "model_figures", "verdict"]
+
+#: Parallel ngspice processes (the target machine has two cores).
+WORKERS = 2
+
+
+def _num(x: Any) -> float | None:
+    v = float(np.asarray(x))
+    return v if math.isfinite(v) else None
+
+
+def model_figures(
+    topology: Topology, board: Mapping[str, Any], stray: float, params: AmplifierParams
+) -> dict[str, Any]:
+    """The large-signal model's answer for one board (JSON-ready; None where undefined)."""
+    st = steady_state(topology, board, stray, params)
+    starts = bool(np.asarray(st.starts))
+    bursting = bool(np.asarray(st.bursting))
+    return {
+        "starts": starts,
+        "f_hz": _num(st.f_hz),
+        "amplitude_v": _num(st.amplitude_v),
+        "envelope": None if not starts else ("bursting" if bursting else "steady"),
+        "startup_time_s": _num(st.startup_time_s),
+        "margin": _num(st.margin),
+    }
+
+
+def verdict(state: str, f_hz: float | None, window: tuple[float, float] | None) -> str:
+    """Return "ok" when the board starts, runs steady and (with a window) its carrier lies in
+    it; otherwise what fails: "does not start", "bursts", "unsettled", "below the
+    window", "above the window" (joined by "; ")."""
+    if state == "none":
+        return "does not start"
+    out = []
+    if state == "bursting":
+        out.append("bursts")
+    elif state == "unsettled":
+        out.append("unsettled")
+    if window is not None and f_hz is not None:
+        if f_hz < window[0]:
+            out.append("below the window")
+        elif f_hz > window[1]:
+            out.append("above the window")
+    return "; ".join(out) or "ok"
+
+
+@dataclass(frozen=True)
+class BoardCheck:
+    """One board in ngspice beside the model.
+
+    ``label`` names the board ("nominal", "low corner", ...); ``values`` are the board
+    values (F, H); ``model`` is :func:`model_figures`; ``sim`` the simulation (the
+    measurement is ``sim.waveform``); ``window`` the frequency window (Hz) or None;
+    ``cycles`` and ``resolved`` the transient's length (:class:`TransientPlan`).
+    """
+
+    label: str
+    values: dict[str, float]
+    model: dict[str, Any]
+    sim: SimulationResult
+    window: tuple[float, float] | None
+    cycles: int
+    resolved: bool
+
+    @property
+    def state(self) -> str:
+        """The envelope in ngspice: "none", "steady", "bursting" or "unsettled"."""
+        return self.sim.waveform.state
+
+    @property
+    def f_sim(self) -> float | None:
+        """The carrier in ngspice, Hz (None where it does not oscillate)."""
+        f = self.sim.frequency_hz
+        return f if self.sim.oscillating and math.isfinite(f) else None
+
+    @property
+    def in_window(self) -> bool | None:
+        """Whether the simulated carrier lies in the window (None: no window or no carrier)."""
+        f = self.f_sim
+        if self.window is None or f is None:
+            return None
+        return self.window[0] <= f <= self.window[1]
+
+    @property
+    def verdict(self) -> str:
+        """:func:`verdict` of this board."""
+        return verdict(self.state, self.f_sim, self.window)
+
+    @property
+    def ok(self) -> bool:
+        """Starts, runs steady and (with a window) lands in it."""
+        return self.verdict == "ok"
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready: the board, the model's answer, ngspice's, the verdict."""
+        w = self.sim.waveform
+        f_model = self.model["f_hz"]
+        f_sim = self.f_sim
+        diff = None if f_model is None or f_sim is None else f_model / f_sim - 1.0
+        return {
+            "board": self.label,
+            "values": dict(self.values),
+            "model": dict(self.model),
+            "ngspice": {
+                **w.to_dict(),
+                "f_hz": f_sim,
+                "cycles": self.cycles,
+                "long_enough": self.resolved,
+                "warnings": list(self.sim.warnings),
+            },
+            "model_minus_ngspice": diff,
+            "in_window": self.in_window,
+            "verdict": self.verdict,
+        }
+
+
+def check_boards(
+    topology: Topology,
+    boards: Sequence[tuple[str, Mapping[str, float]]],
+    stray: float,
+    params: AmplifierParams,
+    *,
+    window: tuple[float, float] | None = None,
+    workers: int = WORKERS,
+    timeout: float = 120.0,
+) -> list[BoardCheck]:
+    """Simulate each ``(label, board values)`` in ngspice (``workers`` processes at a time)
+    and set the model beside it; in the order given.
+
+    Raises
+    ------
+    SolverError
+        ngspice missing, failing or taking longer than ``timeout`` seconds on a board.
+    ValueError
+        A netlist cannot be written (e.g. no bias network).
+    """
+    jobs = []
+    for label, board in boards:
+        vals = {p: float(board[p]) for p in topology.positions}
+        plan = transient_plan(topology, vals, stray, params)
+        text = write_netlist(topology, vals, stray, params, title=label, cycles=plan.cycles)
+        jobs.append((label, vals, plan, text))
+
+    def run(job: tuple[str, dict[str, float], Any, str]) -> SimulationResult:
+        _, _, plan, text = job
+        return simulate(
+            text, timeout=timeout, f_hint=plan.f0, tail_start=plan.tail_start, t_kick=plan.t_kick
+        )
+
+    with ThreadPoolExecutor(max_workers=max(1, workers)) as pool:
+        sims = list(pool.map(run, jobs))
+    return [
+        BoardCheck(
+            label=label,
+            values=vals,
+            model=model_figures(topology, vals, stray, params),
+            sim=sim,
+            window=window,
+            cycles=plan.cycles,
+            resolved=plan.resolved,
+        )
+        for (label, vals, plan, _), sim in zip(jobs, sims, strict=True)
+    ]

@@ -1,0 +1,181 @@
+"""The large-signal model against ngspice on the committed validation set (picker issue 11).
+
+Reference data: ``tests/validation/large_signal.json`` — random designs over issue 11's
+ranges and what ngspice's transient of picker's netlist shows, measured by
+:mod:`picker.circuit.waveform` (written without the model; tested on synthetic waveforms in
+``tests/test_waveform.py``). Regenerate with ``python scripts/make_validation.py`` (see
+``tests/validation/README.md``). The targets below are issue 11's; the fast tests need no
+ngspice, the marked one re-runs a few designs in ngspice and checks the data reproduce.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from picker.circuit.ngspice import ngspice_path
+from picker.circuit.validation import (
+    ModelAnswer,
+    accuracy,
+    design_from_dict,
+    design_to_dict,
+    load_reference,
+    model_answer,
+    run_design,
+)
+from picker.errors import SolverError
+
+DATA = Path(__file__).parent / "validation" / "large_signal.json"
+OLD_MODEL = (
+    "issue 11's large-signal model is not on this branch yet: steady_state still gives the "
+    "linear model's answers (the lead removes this marker once the model is merged)"
+)
+
+
+@pytest.fixture(scope="module")
+def reference():
+    designs, answers = load_reference(DATA)
+    return designs, answers
+
+
+@pytest.fixture(scope="module")
+def acc(reference):
+    designs, answers = reference
+    model = [model_answer(d) for d in designs]
+    return accuracy([d.topology for d in designs], model, answers)
+
+
+# ------------------------------------------------------------ the statistics code itself
+
+
+def _m(starts, f, f_ideal, amp, bursting=False):
+    return ModelAnswer(
+        starts=starts, bursting=bursting, f_hz=f, f_ideal_hz=f_ideal, amplitude_v=amp, margin=2.0
+    )
+
+
+def test_statistics_on_a_hand_made_set():
+    # five designs whose figures are worked out by hand below
+    topologies = ["colpitts", "colpitts", "clapp", "colpitts", "clapp"]
+    nan = math.nan
+    model = [
+        _m(True, 1.01e6, 1.02e6, 1.2),  # 1 % off, amplitude +20 %; ideal further off
+        _m(True, 1.05e6, 1.00e6, 2.0, bursting=True),  # 5 % off, +100 %; false burst
+        _m(True, 0.997e6, 1.10e6, 0.5, bursting=True),  # 0.3 % off; true burst
+        _m(False, nan, 1.0e6, 0.0),  # right: does not start
+        _m(False, nan, 1.0e6, 0.0),  # wrong: ngspice bursts; missed burst
+    ]
+    sim = [
+        {"state": "steady", "f_hz": 1.0e6, "amplitude_v": 1.0},
+        {"state": "steady", "f_hz": 1.0e6, "amplitude_v": 1.0},
+        {"state": "bursting", "f_hz": 1.0e6, "amplitude_v": 3.0},
+        {"state": "none", "f_hz": None, "amplitude_v": 0.0},
+        {"state": "bursting", "f_hz": 1.0e6, "amplitude_v": 2.0},
+    ]
+    a = accuracy(topologies, model, sim)
+    assert a.designs == 5 and a.oscillating == 4 and a.steady == 2 and a.bursting == 2
+    assert a.freq_within_2pct == pytest.approx(2 / 4)  # designs 1 and 3
+    # errors {0.003, 0.01, 0.05, inf}: median (0.01 + 0.05)/2
+    assert a.freq_median_error == pytest.approx(0.03)
+    assert math.isinf(a.freq_worst_error)  # a missed start is an infinite error
+    assert a.startup_right == pytest.approx(4 / 5)
+    assert a.burst_precision == pytest.approx(1 / 2)  # TP design 3, FP design 2
+    assert a.burst_recall == pytest.approx(1 / 2)  # TP design 3, FN design 5
+    assert a.amplitude_within_30pct == pytest.approx(1 / 2)  # steady: 1 ok, 2 not
+    assert a.clapp_oscillating == 2 and math.isinf(a.clapp_worst_error)
+    assert a.ideal_closer == 2  # designs 2 and 5
+
+
+def test_design_round_trip(reference):
+    designs, _ = reference
+    for d in designs[:10]:
+        assert design_from_dict(design_to_dict(d)) == d
+
+
+# ------------------------------------------------------------ the set itself
+
+
+def test_set_covers_issue_11_ranges(reference):
+    designs, answers = reference
+    assert len(designs) >= 120
+    f0 = np.array([float(d.topo.frequency(d.values, d.stray)) for d in designs])
+    assert f0.min() >= 20e3 * 0.95 and f0.max() <= 30e6 * 1.05
+    assert f0.min() < 60e3 and f0.max() > 10e6  # both ends of the range are visited
+    assert {d.topology for d in designs} == {"colpitts", "clapp"}
+    vcc = np.array([d.params.vcc for d in designs])
+    assert vcc.min() >= 5 and vcc.max() <= 15
+    ratio = np.array([d.values["C1"] / d.values["C2"] for d in designs])
+    assert ratio.min() >= 0.09 and ratio.max() <= 2.1
+    q = np.array([d.params.inductor_q for d in designs])
+    assert q.min() >= 20 and q.max() <= 200
+    assert any(d.params.l_choke is not None for d in designs)
+    assert any(d.params.c_e is None for d in designs)
+    states = [a["state"] for a in answers]
+    # enough of each kind for the statistics to mean something
+    assert states.count("none") >= 8 and states.count("bursting") >= 5
+    assert states.count("steady") >= 40
+    assert all(a["warnings"] == [] for a in answers)  # no floating node, no step failure
+
+
+# ------------------------------------------------------------ issue 11's targets
+# Each fails with the linear model that steady_state wraps on this branch (the figures are
+# printed by `python scripts/make_validation.py --stats`): strict xfail, so the marker must
+# come off as soon as the large-signal model meets the target.
+
+
+@pytest.mark.xfail(strict=True, reason=OLD_MODEL)
+def test_frequency_within_2_percent_for_95_percent(acc):
+    assert acc.freq_within_2pct >= 0.95
+
+
+@pytest.mark.xfail(strict=True, reason=OLD_MODEL)
+def test_frequency_median_error_at_most_0_3_percent(acc):
+    assert acc.freq_median_error <= 0.003
+
+
+@pytest.mark.xfail(strict=True, reason=OLD_MODEL)
+def test_startup_right_for_98_percent(acc):
+    assert acc.startup_right >= 0.98
+
+
+@pytest.mark.xfail(strict=True, reason=OLD_MODEL)
+def test_bursting_precision_and_recall_at_least_0_8(acc):
+    assert acc.burst_precision >= 0.8 and acc.burst_recall >= 0.8
+
+
+@pytest.mark.xfail(strict=True, reason=OLD_MODEL)
+def test_amplitude_within_30_percent_for_90_percent_of_steady(acc):
+    assert acc.amplitude_within_30pct >= 0.90
+
+
+@pytest.mark.xfail(strict=True, reason=OLD_MODEL)
+def test_clapp_within_half_a_percent(acc):
+    assert acc.clapp_worst_error <= 0.005
+
+
+# ------------------------------------------------------------ the data reproduce
+
+
+@pytest.mark.ngspice
+@pytest.mark.validation
+def test_reference_data_reproduce_in_ngspice(reference):
+    try:
+        ngspice_path()
+    except SolverError as exc:
+        pytest.fail(f"{exc} (this test does not skip; CI installs ngspice)")
+    designs, answers = reference
+    # one design of each state (the first of each in the file), at most four
+    picks: dict[str, int] = {}
+    for i, a in enumerate(answers):
+        picks.setdefault(str(a["state"]), i)
+    for state, i in sorted(picks.items()):
+        fresh = run_design(designs[i])
+        ref = answers[i]
+        assert fresh["state"] == state, designs[i].id
+        if state != "none":
+            # the same deck on another ngspice build: the same carrier to 1e-4
+            assert fresh["f_hz"] == pytest.approx(ref["f_hz"], rel=1e-4), designs[i].id
+            assert fresh["amplitude_v"] == pytest.approx(ref["amplitude_v"], rel=0.01)

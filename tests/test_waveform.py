@@ -1,0 +1,142 @@
+"""The waveform measurement on synthetic signals whose answers are known analytically.
+
+Each signal is built here from its formula; the expected carrier, amplitude, envelope
+state, start-up time and harmonic levels follow from the same formula by hand (Fourier
+series, the van der Pol envelope), not from the code under test.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from picker.circuit.waveform import envelope_state, measure
+
+F = 1.0e6  # carrier, Hz
+FS = 64 * F  # samples per second (64 per period, about what a SPICE run gives)
+
+
+def _time(periods: float, *, jitter: bool = False) -> np.ndarray:
+    t = np.arange(int(periods * FS / F)) / FS
+    if jitter:  # a variable time step, as SPICE writes it
+        rng = np.random.default_rng(1)
+        t = t + rng.uniform(-0.3, 0.3, t.size) / FS
+        t.sort()
+    return t
+
+
+def clipped_sine_harmonic(n: int, a: float, c: float) -> float:
+    """Fourier sine coefficient b_n of a sine of peak ``a`` clipped symmetrically at ±c.
+
+    x(θ) = a·sin θ for |a·sin θ| ≤ c, ±c beyond; with c = a·sin α, for odd n
+    b_n = (4/π)·[a·∫₀^α sin θ sin nθ dθ + c·∫_α^{π/2} sin nθ dθ]
+        = (4/π)·[a/2·(S(n−1) − S(n+1)) + c·cos(nα)/n],  S(k) = sin(kα)/k, S(0) = α
+    (Fourier series of a clipped sine worked by hand; quarter-wave symmetry).
+    """
+    alpha = math.asin(c / a)
+
+    def s(k: int) -> float:
+        return alpha if k == 0 else math.sin(k * alpha) / k
+
+    return 4 / math.pi * (a / 2 * (s(n - 1) - s(n + 1)) + c * math.cos(n * alpha) / n)
+
+
+def test_clipped_sine_half_coefficient_check():
+    # the formula itself, against numerical integration (self-check of the reference)
+    theta = np.linspace(0, 2 * np.pi, 200_001)
+    x = np.clip(2.0 * np.sin(theta), -1.2, 1.2)
+    for n in (1, 3, 5):
+        b = 2 * np.trapezoid(x * np.sin(n * theta), theta) / (2 * np.pi)
+        assert b == pytest.approx(clipped_sine_harmonic(n, 2.0, 1.2), abs=1e-6)
+
+
+def test_clipped_sine_carrier_amplitude_and_third_harmonic():
+    t = _time(400, jitter=True)
+    f = 1.0123e6  # off the bin grid
+    a, c = 2.0, 1.2
+    v = 3.0 + np.clip(a * np.sin(2 * np.pi * f * t), -c, c)  # on a DC level
+    m = measure(t, v, f_hint=1e6)
+    assert m.state == "steady"
+    # phase slope over 200 periods: far better than 1e-5 (the jitter is interpolated away)
+    assert m.f_hz == pytest.approx(f, rel=1e-5)
+    assert m.amplitude_v == pytest.approx(c, rel=2e-3)  # the clip level is the peak
+    b1 = clipped_sine_harmonic(1, a, c)
+    b3 = clipped_sine_harmonic(3, a, c)
+    assert m.fundamental_v == pytest.approx(b1, rel=5e-3)
+    # Hann main-lobe sums: 0.1 dB (interpolation of the jittered samples adds a little)
+    assert m.harmonics_dbc[1] == pytest.approx(20 * math.log10(abs(b3) / b1), abs=0.2)
+    assert m.harmonics_dbc[0] < -60  # symmetric clipping: no even harmonic
+
+
+def test_second_harmonic_of_a_known_mix():
+    t = _time(300)
+    v = np.sin(2 * np.pi * F * t) + 0.05 * np.cos(2 * np.pi * 2 * F * t + 0.3)
+    m = measure(t, v)
+    assert m.harmonics_dbc[0] == pytest.approx(20 * math.log10(0.05), abs=0.05)  # −26.02 dBc
+
+
+def test_am_burst_carrier_is_the_carrier_not_the_crossing_rate():
+    # carrier on for 40 periods, off for 60, repeated: an oscillator that squegs
+    t = _time(2000)
+    gate = ((t * F) % 100.0) < 40.0
+    env = np.where(gate, 1.0, 1e-4)
+    v = env * np.sin(2 * np.pi * F * t)
+    m = measure(t, v, f_hint=F)
+    assert m.state == "bursting"
+    assert m.f_hz == pytest.approx(F, rel=1e-4)
+    # a crossing counter (rising through +0.1 V, above the gaps' level) over the record
+    # averages the gaps in: 40 % of the carrier
+    crossings = np.count_nonzero((v[:-1] < 0.1) & (v[1:] >= 0.1)) / (t[-1] - t[0])
+    assert crossings < 0.5 * F
+    assert m.envelope_low < 0.2 * m.envelope_high
+
+
+def test_small_am_is_steady_and_larger_am_is_unsettled():
+    t = _time(2000)
+    for depth, state in ((0.05, "steady"), (0.25, "unsettled")):
+        env = 1.0 + depth * np.sin(2 * np.pi * F / 150 * t)
+        m = measure(t, env * np.sin(2 * np.pi * F * t), f_hint=F)
+        assert m.state == state
+        # modulation index of m(t) = 1 + d·sin: (max − min)/(max + min) = d
+        assert m.modulation == pytest.approx(depth, rel=0.05)
+
+
+def test_decaying_tone_and_noise_do_not_oscillate():
+    t = _time(1000)
+    decaying = 0.5 * np.exp(-t * F / 200) * np.sin(2 * np.pi * F * t)  # tau = 200 periods
+    assert measure(t, decaying, f_hint=F).state == "none"
+    noise = 1e-5 * np.random.default_rng(3).standard_normal(t.size)
+    m = measure(t, noise, f_hint=F)
+    assert m.state == "none" and not m.oscillating and math.isnan(m.f_hz)
+
+
+def test_startup_time_of_a_van_der_pol_envelope():
+    # van der Pol envelope: da/dt = (a/τ)·(1 − a²/A²) has the solution
+    # a(t) = A / sqrt(1 + (A²/a0² − 1)·exp(−2t/τ)) (Strogatz, Nonlinear Dynamics and Chaos,
+    # averaging of the van der Pol oscillator); it reaches 0.9·A at
+    # t90 = (τ/2)·ln((A²/a0² − 1)·0.81/0.19).
+    big_a, a0, tau = 1.5, 1e-3, 50 / F
+    t = _time(3000)
+    t_kick = 5 / F
+    s = np.clip(t - t_kick, 0, None)
+    a = big_a / np.sqrt(1 + (big_a**2 / a0**2 - 1) * np.exp(-2 * s / tau))
+    v = np.where(t >= t_kick, a, 0.0) * np.sin(2 * np.pi * F * t)
+    m = measure(t, v, f_hint=F, t_kick=t_kick)
+    t90 = tau / 2 * math.log((big_a**2 / a0**2 - 1) * 0.81 / 0.19)
+    assert m.state == "steady"
+    # the band-pass smooths the envelope over a few periods: 3 periods of 435
+    assert m.startup_time_s == pytest.approx(t90, abs=3 / F)
+    assert m.fundamental_v == pytest.approx(big_a, rel=1e-3)
+
+
+def test_envelope_state_thresholds():
+    # the issue's definitions, on hand-made envelopes
+    assert envelope_state(np.full(100, 1.0), 1e-3)[0] == "steady"
+    assert envelope_state(np.linspace(0.95, 1.05, 100), 1e-3)[0] == "steady"  # mod 0.05
+    assert envelope_state(np.linspace(0.8, 1.2, 100), 1e-3)[0] == "unsettled"  # mod 0.2
+    burst = np.where(np.arange(100) % 10 < 5, 1.0, 0.1)
+    assert envelope_state(burst, 1e-3)[0] == "bursting"  # p2 = 0.1 < 0.2·p98
+    assert envelope_state(np.full(100, 1e-4), 1e-3)[0] == "none"
+    assert envelope_state(np.geomspace(1.0, 0.1, 100), 1e-3)[0] == "none"  # dies away
