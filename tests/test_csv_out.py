@@ -110,10 +110,20 @@ def test_format_that_contradicts_the_extension_is_refused(run_cli, tmp_path):
     assert code == 0, err  # agreeing is fine
 
 
-def test_html_points_to_the_report(run_cli, tmp_path):
-    code, _, err = run_cli("solve", PROBE, "-o", str(tmp_path / "r.html"))
-    assert code == 2 and "--report" in err
-    assert not (tmp_path / "r.html").exists()
+def test_html_output_is_the_report(run_cli, tmp_path):
+    # -o FILE.html writes the --report page (issue 14: the extension picks the format)
+    page = tmp_path / "r.html"
+    code, out, err = run_cli("solve", PROBE, "-o", str(page), "--samples", "500")
+    assert code == 0, err
+    assert out == "" and f"wrote {page}" in err
+    text = page.read_text(encoding="utf-8")
+    assert text.lstrip().lower().startswith("<!doctype html") and "</html>" in text.lower()
+    # a contradicting --format, or --report beside it, is refused before the run
+    other = tmp_path / "s.html"
+    code, _, err = run_cli("solve", PROBE, "-f", "json", "-o", str(other))
+    assert code == 2 and "--format" in err and not other.exists()
+    code, _, err = run_cli("solve", PROBE, "-o", str(other), "--report", str(tmp_path / "t.html"))
+    assert code == 2 and "--report" in err and not other.exists()
 
 
 def test_evaluate_csv(run_cli):

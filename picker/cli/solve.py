@@ -114,6 +114,26 @@ def _verify(result: SolveResult, count: int | None) -> tuple[dict[str, Any], str
     return verify_dict(checks, seconds), verify_text(checks, seconds)
 
 
+def _html_as_report(
+    fmt: str | None, output: Path | None, report: Path | None
+) -> tuple[Path | None, Path | None, bool]:
+    """``-o FILE.html`` is the report (the page ``--report`` writes), in place of the table.
+
+    Returns ``(output, report, html_only)``; a ``--format`` or a ``--report`` beside it
+    is a contradiction, refused before the run.
+    """
+    if output is None or output.suffix.lower() not in (".html", ".htm"):
+        return output, report, False
+    if fmt is not None:
+        raise SpecError(
+            f"--format {fmt} contradicts the file name {output.name!r} (an HTML report); drop one",
+            key="--format",
+        )
+    if report is not None:
+        raise SpecError("-o FILE.html is the report already; drop --report", key="--report")
+    return None, output, True
+
+
 def _emit(
     result: SolveResult,
     fmt: str,
@@ -157,7 +177,10 @@ def _emit(
 
 
 _FORMAT_HELP = "table, json or csv (default: from the -o file's extension, else table)."
-_OUTPUT_HELP = "Write to this file instead of standard output (.json or .csv picks the format)."
+_OUTPUT_HELP = (
+    "Write to this file instead of standard output (.json or .csv picks the format; "
+    ".html writes the report page)."
+)
 _FORCE_HELP = "Replace an existing output file or plot."
 _SAMPLES_HELP = "Monte Carlo boards per design (default: the spec's [yield] samples)."
 _SEED_HELP = "Random seed (default: the spec's [yield] seed); the same seed gives the same output."
@@ -212,6 +235,7 @@ def solve(
     """Search every standard-value design in the window and rank them by yield."""
     from picker import api
 
+    output, report, html_only = _html_as_report(format, output, report)
     fmt = output_format(format, output)
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
@@ -240,7 +264,11 @@ def solve(
     _write_bom(result, bom, force, spec)
     _write_report(report, result, force, spec, "solve")
     checked = _verify(result, vcount)
-    _emit(result, fmt, output, force, [spec], checked)
+    if html_only:  # -o FILE.html: the page is the output; a --verify table goes to stderr
+        if checked is not None:
+            sys.stderr.write(checked[1])
+    else:
+        _emit(result, fmt, output, force, [spec], checked)
     if result.status != "ok":
         raise typer.Exit(1)
 
@@ -313,6 +341,7 @@ def evaluate(
     """The same figures as solve for one given design (an existing board)."""
     from picker import api
 
+    output, report, html_only = _html_as_report(format, output, report)
     fmt = output_format(format, output)
     prec, samp = parse_precision(precision), parse_sampling(sampling)
     _check_outputs(output, plot, force, spec)
@@ -349,7 +378,11 @@ def evaluate(
     _write_bom(result, bom, force, spec)
     _write_report(report, result, force, spec, "evaluate")
     checked = _verify(result, vcount)
-    _emit(result, fmt, output, force, [spec], checked)
+    if html_only:  # -o FILE.html: the page is the output; a --verify table goes to stderr
+        if checked is not None:
+            sys.stderr.write(checked[1])
+    else:
+        _emit(result, fmt, output, force, [spec], checked)
 
 
 def series_cmd(
