@@ -70,7 +70,6 @@ def read_text(
     directory: str = "expected {what}, got a directory",
     unreadable: str = "cannot read the file ({strerror})",
     undecodable: str = "expected UTF-8 text; byte {start} is not",
-    limit: int | None = None,
 ) -> str:
     """Read a whole regular text file, bounded; every fault is a one-line SpecError.
 
@@ -96,8 +95,6 @@ def read_text(
         operating-system error, bytes that are not UTF-8. Each is formatted
         with ``what``, ``strerror`` (the system's reason), ``reason`` and
         ``start`` (the decoder's reason and the offset of the bad byte).
-    limit:
-        Largest size in bytes (default :data:`MAX_INPUT_BYTES`).
 
     Returns
     -------
@@ -105,7 +102,7 @@ def read_text(
         The decoded text.
     """
     name = str(path)
-    cap = MAX_INPUT_BYTES if limit is None else limit
+    cap = MAX_INPUT_BYTES
 
     def fault(template: str, **fields: object) -> SpecError:
         return SpecError(template.format(what=what, **fields), file=name, key=key)
@@ -121,7 +118,7 @@ def read_text(
     try:
         st = os.fstat(fd)
         if stat.S_ISDIR(st.st_mode):
-            raise fault(directory, strerror="is a directory")
+            raise fault(directory, strerror=os.strerror(errno.EISDIR))
         if not stat.S_ISREG(st.st_mode):
             raise fault(f"expected {{what}} (a regular file); got {_kind(st.st_mode)}")
         if st.st_size > cap:

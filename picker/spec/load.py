@@ -12,6 +12,8 @@ from __future__ import annotations
 
 import copy
 import math
+import os
+import re
 import tomllib
 from pathlib import Path
 from typing import Any
@@ -113,8 +115,12 @@ def _load_stock_lists(spec: Spec, file: str | None) -> Spec:
         if part.stock is None:
             continue
         path = Path(part.stock)
-        path = (path if path.is_absolute() else base / path).resolve()
-        if not path.is_file():  # a fault of the spec's key, not of a file that is not there
+        path = path if path.is_absolute() else base / path
+        try:
+            path = path.resolve()
+        except (OSError, RuntimeError):  # a loop of symbolic links: read_text words it
+            pass
+        if not os.path.lexists(path):  # a fault of the spec's key, not of a file
             raise SpecError(
                 f"expected an existing stock-list file; no such file {str(path)!r}",
                 file=file,
@@ -125,7 +131,7 @@ def _load_stock_lists(spec: Spec, file: str | None) -> Spec:
                 cache[path] = load_stock(path)
             except SpecError as exc:
                 raise SpecError(
-                    f"{exc.message} (stock list of parts.{pos})",
+                    f"{_not_echoed(exc)} (stock list of parts.{pos})",
                     file=exc.file or str(path),
                     key=exc.key,
                 ) from None
@@ -151,6 +157,21 @@ def _load_stock_lists(spec: Spec, file: str | None) -> Spec:
     return spec.model_copy(update={"parts": parts})
 
 
+def _not_echoed(exc: SpecError) -> str:
+    """The message of a stock list's fault, without the file's first row in it.
+
+    The spec merely names the file: if its first row is not a stock list's header,
+    the file is something else (``stock = "/etc/shadow"``), and its contents stay
+    out of the message. Faults past a recognised header quote their cell as usual.
+    """
+    if (exc.key or "").startswith("row 1") and ("got " in exc.message or "twice" in exc.message):
+        return (
+            "expected a stock list: a CSV file whose first row names its columns "
+            "(id, kind, value, ...); the first row of this file is not such a header"
+        )
+    return exc.message
+
+
 def materials_like(stock: StockList, part: PartSpec) -> list[str] | None:
     """The stock list's dielectric/core texts that name the position's material."""
     if part.dielectric is None:
@@ -165,14 +186,122 @@ def materials_like(stock: StockList, part: PartSpec) -> list[str] | None:
     return out
 
 
+#: Deepest nesting of tables and arrays a spec or plan may have (a spec needs 4).
+MAX_TOML_DEPTH = 32
+#: Largest integer a spec or plan may hold (a signed 64-bit integer: seeds, counts).
+MAX_TOML_INT = 2**63 - 1
+
+
+def parse_toml(text: str, *, file: str) -> dict[str, Any]:
+    """TOML text to a dict, bounded: nesting depth and integer size; faults as SpecError.
+
+    ``tomllib`` recurses once per level of nesting, so nesting is counted on the
+    text first (brackets and braces outside strings and comments, an upper
+    bound), and a spec nested deeper than :data:`MAX_TOML_DEPTH` is refused
+    before it is parsed. Integers beyond :data:`MAX_TOML_INT` are refused with
+    their key.
+    """
+    if _nesting(text) > MAX_TOML_DEPTH:
+        raise SpecError(
+            f"not a spec: tables or arrays nested more than {MAX_TOML_DEPTH} deep", file=file
+        )
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise SpecError(f"not valid TOML: {exc}", file=file) from None
+    except (ValueError, RecursionError) as exc:  # an integer of over 4,300 digits
+        raise SpecError(f"not valid TOML: {str(exc).split(';')[0]}", file=file) from None
+    _check_integers(data, file)
+    return data
+
+
+def _nesting(text: str) -> int:
+    """Bracket nesting of TOML text, strings and comments skipped (a quick pre-check)."""
+    depth = deepest = 0
+    pos = 0
+    for m in _SPECIAL.finditer(text):
+        i = m.start()
+        if i < pos:
+            continue
+        c = text[i]
+        if c in "[{":
+            depth += 1
+            deepest = max(deepest, depth)
+        elif c in "]}":
+            depth = max(0, depth - 1)
+        elif c == "#":
+            j = text.find("\n", i)
+            pos = len(text) if j < 0 else j
+        else:  # a string: skip to its closing quote
+            quote = c * 3 if text.startswith(c * 3, i) else c
+            end = _STRING_END[quote].search(text, i + len(quote))
+            pos = len(text) if end is None else end.end()
+    return deepest
+
+
+_SPECIAL = re.compile(r"[\[\]{}#\"']")
+_STRING_END = {
+    '"': re.compile(r'(?:\\.|[^"\\\n])*"'),
+    "'": re.compile(r"[^'\n]*'"),
+    '"""': re.compile(r'(?:\\.|[^\\])*?"""', re.DOTALL),
+    "'''": re.compile(r"(?s).*?'''"),
+}
+
+
+def _check_integers(data: Any, file: str) -> None:
+    """Refuse an integer beyond ±MAX_TOML_INT anywhere in ``data``, naming its key."""
+    stack: list[tuple[str, Any]] = [("", data)]
+    while stack:
+        key, v = stack.pop()
+        if isinstance(v, dict):
+            stack.extend(
+                (f"{key}.{_toml_key(str(k))}" if key else _toml_key(str(k)), x)
+                for k, x in v.items()
+            )
+        elif isinstance(v, list):
+            stack.extend((f"{key}[{i}]", x) for i, x in enumerate(v))
+        elif isinstance(v, int) and not isinstance(v, bool) and abs(v) > MAX_TOML_INT:
+            raise SpecError(
+                f"expected an integer of at most {MAX_TOML_INT:,} in size; got one of "
+                f"{len(str(abs(v)))} digits",
+                file=file,
+                key=key or None,
+            )
+
+
+def input_files(path: str | Path, data: dict[str, Any] | None = None) -> list[Path]:
+    """The spec file and every file it names (stock lists, lot files): a command's inputs.
+
+    No output may be any of them (:func:`picker.files.check_output`). Read from the
+    TOML without validating it, so outputs can be checked before the run; a spec
+    that cannot be read names only itself (its load reports the fault).
+    """
+    p = Path(path)
+    files = [p]
+    if data is None:
+        try:
+            data = parse_toml(read_text(p, what="a spec file"), file=str(p))
+        except SpecError:
+            return files
+    parts = data.get("parts")
+    if not isinstance(parts, dict):
+        return files
+    for table in parts.values():
+        if not isinstance(table, dict):
+            continue
+        for key in ("stock", "lot"):
+            name = table.get(key)
+            if isinstance(name, str) and name and "\0" not in name:
+                q = Path(name)
+                files.append(q if q.is_absolute() else p.parent / q)
+    return files
+
+
 def load_spec(path: str | Path, overrides: dict[str, Any] | None = None) -> Spec:
     """Read and validate a spec file; ``overrides`` is merged over the TOML first."""
     name = str(path)
     text = read_text(path, what="a spec file")
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"not valid TOML: {exc}", file=name) from None
+    data = parse_toml(text, file=name)
     if overrides:
         data = _merge(data, overrides)
     return spec_from_dict(data, file=name)
