@@ -16,6 +16,7 @@ from typing import IO, TYPE_CHECKING
 import typer
 from rich.console import Console
 
+from picker.cli.options import spec_inputs
 from picker.errors import SpecError
 from picker.files import atomic_write
 
@@ -110,7 +111,7 @@ def run_calibrate(
         )
 
     m = load_measurements(measurements, topo)
-    inputs = [measurements] + ([spec] if spec is not None else [])
+    inputs = [measurements] + (spec_inputs(spec) if spec is not None else [])
     if fragment is not None and plot is not None and fragment.resolve() == plot.resolve():
         raise SpecError("--fragment and --plot name the same file", file=str(plot), key="--plot")
     try:

@@ -16,7 +16,7 @@ from typing import TYPE_CHECKING, Any
 
 import typer
 
-from picker.cli.options import check_format, parse_assignments, unit_of
+from picker.cli.options import check_format, parse_assignments, spec_inputs, unit_of
 from picker.errors import InfeasibleError, SpecError
 from picker.files import atomic_write, check_output
 
@@ -99,7 +99,7 @@ def netlist(
     """Write a SPICE netlist of the whole oscillator (bias network, transient, measurements)."""
     from picker.circuit.netlist import write_netlist
 
-    check_output(output, force=force, inputs=[spec_path])  # before the solve, not after
+    check_output(output, force=force, inputs=spec_inputs(spec_path))  # before the solve, not after
     spec, topo, values, board, stray, params = _design(spec_path, set_)
     title = f"{spec.title or spec_path.stem}: " + " ".join(
         f"{p}={values[p]:.6g}" for p in topo.positions
@@ -108,7 +108,7 @@ def netlist(
         text = write_netlist(topo, board, stray, params, title=title)
     except ValueError as exc:
         raise SpecError(str(exc), file=str(spec_path), key="amplifier") from None
-    atomic_write(output, text, force=force, inputs=[spec_path])
+    atomic_write(output, text, force=force, inputs=spec_inputs(spec_path))
     typer.echo(f"wrote {output}")
 
 

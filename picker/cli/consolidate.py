@@ -50,12 +50,9 @@ def run_consolidate(
             f"expected a file name ending in .csv or .json; got {bom.name!r}", key="--bom"
         )
     if bom is not None:  # fail before the (slow) solve, not after it
-        if any(bom.resolve() == p.resolve() for p in plan.inputs()):
-            raise SpecError("refusing to write over an input file", file=str(bom), key="--bom")
-        if bom.exists() and not force:
-            raise SpecError(
-                "the file exists; pass --force to replace it", file=str(bom), key="--bom"
-            )
+        from picker.files import check_output
+
+        check_output(bom, force=force, inputs=plan.inputs(), key="--bom")
     run = run_plan(plan, time_limit=time_limit, workers=workers)
     if bom is not None and run.result.plan is not None:
         write_bom(bom, run.result.plan.bom, force=force, inputs=plan.inputs())

@@ -17,6 +17,7 @@ import contextlib
 import sys
 import time
 from collections.abc import Callable, Iterator, Sequence
+from pathlib import Path
 from typing import IO, TYPE_CHECKING
 
 from picker.errors import SpecError
@@ -33,6 +34,7 @@ __all__ = [
     "parse_precision",
     "parse_sampling",
     "progress_bar",
+    "spec_inputs",
     "unit_of",
 ]
 
@@ -162,3 +164,14 @@ def progress_bar(
     finally:
         if task is not None and not done:
             prog.stop()
+
+
+def spec_inputs(spec: Path) -> list[Path]:
+    """The spec and every file it names (stock lists, lot files): no output may be one.
+
+    Read from the TOML without validating it (:func:`picker.spec.load.input_files`),
+    so a command checks its outputs against all of them before the run.
+    """
+    from picker.spec.load import input_files  # pydantic: not at start-up
+
+    return input_files(spec)

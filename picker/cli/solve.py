@@ -23,6 +23,7 @@ from picker.cli.options import (
     parse_precision,
     parse_sampling,
     progress_bar,
+    spec_inputs,
     unit_of,
 )
 from picker.errors import InfeasibleError, SpecError
@@ -37,11 +38,11 @@ __all__ = ["bench", "evaluate", "series_cmd", "solve"]
 def _check_outputs(output: Path | None, plot: Path | None, force: bool, spec: Path) -> None:
     """Refuse a bad --output or --plot before the (slow) run, not after it."""
     if output is not None:
-        check_output(output, force=force, inputs=[spec])
+        check_output(output, force=force, inputs=spec_inputs(spec))
     if plot is not None:
         from picker.report.plots import check_plot_folder  # matplotlib: only for --plot
 
-        check_plot_folder(plot, force=force, inputs=[spec])
+        check_plot_folder(plot, force=force, inputs=spec_inputs(spec))
 
 
 def _emit(
@@ -119,8 +120,8 @@ def solve(
     if plot is not None and result.status == "ok":
         from picker.report.plots import write_plots
 
-        write_plots(result, plot, force=force, inputs=[spec])
-    _emit(result, fmt, output, force, [spec])
+        write_plots(result, plot, force=force, inputs=spec_inputs(spec))
+    _emit(result, fmt, output, force, spec_inputs(spec))
     if result.status != "ok":
         raise typer.Exit(1)
 
@@ -176,8 +177,8 @@ def evaluate(
     if plot is not None:
         from picker.report.plots import write_plots
 
-        write_plots(result, plot, force=force, inputs=[spec])
-    _emit(result, fmt, output, force, [spec])
+        write_plots(result, plot, force=force, inputs=spec_inputs(spec))
+    _emit(result, fmt, output, force, spec_inputs(spec))
 
 
 def series_cmd(

@@ -20,10 +20,11 @@ from typing import Any
 
 from pydantic import ValidationError
 from pydantic_core import ErrorDetails
+from scipy.special import ndtri
 
 from picker.errors import KeyedError, SpecError
 from picker.files import read_text
-from picker.parts import drift
+from picker.parts import distributions, drift
 from picker.spec.model import PartSpec, Spec
 from picker.spec.production import load_lots
 from picker.spec.stock import StockList, load_stock, stock_table
@@ -90,7 +91,48 @@ def spec_from_dict(data: dict[str, Any], *, file: str | None = None) -> Spec:
         except SpecError as exc:
             raise exc.located(file=file) from None
     spec = _load_stock_lists(spec, file)
+    _check_physical(spec, file)
     return load_lots(spec, file).model_copy(update={"source": file or ""})
+
+
+#: Largest tolerance a normal distribution (sigma = tol/3, untruncated) may have: its
+#: deepest draw, at the sampler's smallest variate 2^-53 (z = -8.2), stays above -100 %.
+NORMAL_TOL_MAX = distributions.COVERAGE_K / -float(ndtri(distributions.U_MIN))
+
+
+def _check_physical(spec: Spec, file: str | None) -> None:
+    """Refuse a distribution that would draw part values at or below zero.
+
+    A normal distribution (sigma = tol/3, JCGM 100:2008 G.1) is not truncated, so
+    its tail reaches z = Φ⁻¹(2^-53) = -8.2 and a value nominal·(1 + z·tol/3); that
+    is at or below zero for a tolerance above :data:`NORMAL_TOL_MAX` (36.5 %). The
+    uniform kinds stay within ±tol, below 100 % by the tolerance's own check.
+    """
+    for pos, part in spec.parts.items():
+        kind = part.distribution or spec.yield_.distribution
+        if part.lot is not None or kind != "normal":
+            continue
+        tol = part.tolerance
+        if part.stock_list is not None:
+            t = stock_table(
+                part.stock_list,
+                pos[0],
+                part.min or 0.0,
+                part.max or math.inf,
+                tolerance_max=part.tolerance,
+                dielectric=materials_like(part.stock_list, part),
+                min_voltage=part.voltage_rating,
+                qty=spec.cost.build_quantity,
+            )
+            tol = float(max(t["tol"])) if len(t["tol"]) else None
+        if tol is not None and tol > NORMAL_TOL_MAX:
+            raise SpecError(
+                f"a normal distribution (sigma = tolerance/3) with a tolerance of "
+                f"{tol:.3g} draws part values at or below zero in its tail (from "
+                f"{NORMAL_TOL_MAX:.0%}); use distribution = 'uniform' or a tighter tolerance",
+                file=file,
+                key=f"parts.{pos}.tolerance" if part.stock_list is None else f"parts.{pos}.stock",
+            )
 
 
 def _load_stock_lists(spec: Spec, file: str | None) -> Spec:
