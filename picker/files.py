@@ -123,8 +123,7 @@ def read_text(
             raise fault(f"expected {{what}} (a regular file); got {_kind(st.st_mode)}")
         if st.st_size > cap:
             raise fault(
-                f"the file is {st.st_size:,} bytes, more than the {cap:,} an input may hold "
-                f"({{what}} this large is a mistake)"
+                f"expected {{what}} of at most {cap:,} bytes; the file holds {st.st_size:,}"
             )
         chunks: list[bytes] = []
         got = 0
@@ -135,7 +134,7 @@ def read_text(
             chunks.append(chunk)
             got += len(chunk)
         if got > cap:  # grew while being read
-            raise fault(f"the file holds more than the {cap:,} bytes an input may hold")
+            raise fault(f"expected {{what}} of at most {cap:,} bytes; the file holds more")
         raw = b"".join(chunks)
     except OSError as exc:
         raise fault(unreadable, strerror=_os_reason(exc)) from None
