@@ -222,6 +222,20 @@ def test_sigterm_while_a_plot_is_written_removes_it_and_exits_130(tmp_path, monk
     assert signal.getsignal(signal.SIGTERM) is signal.SIG_DFL  # handler given back
 
 
+def _wait_for_handlers(pid: int, timeout: float = 120) -> None:
+    """Wait until ``pid`` catches SIGTERM and SIGHUP (its run has begun): the caught-signal
+    mask of /proc/PID/status (Linux proc(5))."""
+    want = (1 << (signal.SIGTERM - 1)) | (1 << (signal.SIGHUP - 1))
+    end = time.monotonic() + timeout
+    while time.monotonic() < end:
+        status = Path(f"/proc/{pid}/status").read_text()
+        caught = int(next(x for x in status.splitlines() if x.startswith("SigCgt:")).split()[1], 16)
+        if caught & want == want:
+            return
+        time.sleep(0.05)
+    raise AssertionError("the command never installed its signal handlers")
+
+
 @pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM, signal.SIGHUP])
 def test_a_signal_mid_run_prints_one_line_and_exits_130(tmp_path, sig):
     # Found: Ctrl-C exited 130 without a word. A real process, stopped mid-run.
@@ -238,7 +252,8 @@ def test_a_signal_mid_run_prints_one_line_and_exits_130(tmp_path, sig):
         restore_signals=True,
         start_new_session=True,  # SIGINT is not ignored as in a background job
     )
-    time.sleep(4)
+    _wait_for_handlers(proc.pid)
+    time.sleep(1)
     proc.send_signal(sig)
     out, err = proc.communicate(timeout=120)
     assert proc.returncode == 130, err

@@ -237,29 +237,32 @@ MAX_TOML_INT = 2**63 - 1
 def parse_toml(text: str, *, file: str) -> dict[str, Any]:
     """TOML text to a dict, bounded: nesting depth and integer size; faults as SpecError.
 
-    ``tomllib`` recurses once per level of nesting, so nesting is counted on the
-    text first (brackets and braces outside strings and comments, an upper
-    bound), and a spec nested deeper than :data:`MAX_TOML_DEPTH` is refused
-    before it is parsed. Integers beyond :data:`MAX_TOML_INT` are refused with
-    their key.
+    ``tomllib`` recurses once per level of nesting and converts any run of digits
+    to an integer, so the text is scanned first (strings and comments skipped): a
+    spec nested deeper than :data:`MAX_TOML_DEPTH` or holding a run of more than
+    :data:`MAX_DIGITS` digits is refused before it is parsed, with its line and
+    column. Integers beyond :data:`MAX_TOML_INT` are then refused with their key.
     """
-    if _nesting(text) > MAX_TOML_DEPTH:
-        raise SpecError(
-            f"not a spec: tables or arrays nested more than {MAX_TOML_DEPTH} deep", file=file
-        )
+    fault = _scan(text)
+    if fault is not None:
+        raise SpecError(f"not valid TOML: {fault}", file=file)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise SpecError(f"not valid TOML: {exc}", file=file) from None
-    except (ValueError, RecursionError) as exc:  # an integer of over 4,300 digits
+    except (ValueError, RecursionError) as exc:  # what the scan missed, if anything
         raise SpecError(f"not valid TOML: {str(exc).split(';')[0]}", file=file) from None
     _check_integers(data, file)
     return data
 
 
-def _nesting(text: str) -> int:
-    """Bracket nesting of TOML text, strings and comments skipped (a quick pre-check)."""
-    depth = deepest = 0
+#: Longest run of digits read as a number (2^63 has 19; a float's text needs no more).
+MAX_DIGITS = 400
+
+
+def _scan(text: str) -> str | None:
+    """Too deep a nesting or too long a number in TOML text (strings and comments skipped)."""
+    depth = 0
     pos = 0
     for m in _SPECIAL.finditer(text):
         i = m.start()
@@ -268,20 +271,29 @@ def _nesting(text: str) -> int:
         c = text[i]
         if c in "[{":
             depth += 1
-            deepest = max(deepest, depth)
+            if depth > MAX_TOML_DEPTH:
+                return f"tables or arrays nested more than {MAX_TOML_DEPTH} deep {_at(text, i)}"
         elif c in "]}":
             depth = max(0, depth - 1)
         elif c == "#":
             j = text.find("\n", i)
             pos = len(text) if j < 0 else j
-        else:  # a string: skip to its closing quote
+        elif c in "\"'":  # a string: skip to its closing quote
             quote = c * 3 if text.startswith(c * 3, i) else c
             end = _STRING_END[quote].search(text, i + len(quote))
             pos = len(text) if end is None else end.end()
-    return deepest
+        else:
+            return f"a number of more than {MAX_DIGITS} digits {_at(text, i)}"
+    return None
 
 
-_SPECIAL = re.compile(r"[\[\]{}#\"']")
+def _at(text: str, i: int) -> str:
+    """``(at line L, column C)`` of index ``i``, as tomllib words its positions."""
+    line = text.count("\n", 0, i) + 1
+    return f"(at line {line}, column {i - text.rfind(chr(10), 0, i)})"
+
+
+_SPECIAL = re.compile(rf"[\[\]{{}}#\"']|[0-9_]{{{MAX_DIGITS + 1},}}")
 _STRING_END = {
     '"': re.compile(r'(?:\\.|[^"\\\n])*"'),
     "'": re.compile(r"[^'\n]*'"),
