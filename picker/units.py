@@ -67,6 +67,7 @@ GREEK_MU = "\u03bc"  # μ, accepted when parsing
 
 #: SI prefixes accepted when parsing (case-sensitive), as powers of ten.
 PREFIXES: dict[str, int] = {
+    "a": -18,  # atto (SI Brochure, 9th edition, table 7): "1 aF", the low end of the range
     "f": -15,
     "p": -12,
     "n": -9,
@@ -180,7 +181,10 @@ def _finite_number(value: object, what: str, key: str | None) -> float | None:
     if isinstance(value, bool | np.bool_):
         raise _fail(f"expected {what}, got a boolean {_quote(value)}", key)
     if isinstance(value, numbers.Real):
-        x = float(value)
+        try:
+            x = float(value)
+        except OverflowError:  # an integer of hundreds of digits (TOML allows them)
+            raise _fail(f"expected {what}, got an integer too large to be a number", key) from None
         if not math.isfinite(x):
             raise _fail(f"expected {what}, got {_quote(value)} (not a finite number)", key)
         return x

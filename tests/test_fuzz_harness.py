@@ -364,6 +364,40 @@ HOSTILE_TEXTS = (
     "1 megHz",
 )
 
+#: Terminal escapes and control characters (shown escaped or refused, never a traceback).
+ESCAPE_TEXTS = (
+    "\x1b[31mred\x1b[0m",
+    "\x1b]0;window title\x07",
+    "\x1b[2J",
+    "a\rb",
+    "a\bb",
+    "\x7f",
+    "\u2028",
+    "tab\there",
+)
+
+#: Rich console markup (user text must never be parsed as markup).
+MARKUP_TEXTS = (
+    "Exciter [/bold] B",
+    "[/x]",
+    "[bold]",
+    "[red]x[/red]",
+    "[link=file:///etc/passwd]x[/link]",
+    "\\[b]",
+    "[",
+    "[[/]]",
+)
+
+#: TOML values that break parsers and number conversions: integers of hundreds or
+#: thousands of digits, arrays and inline tables nested far deeper than any spec.
+HOSTILE_RAW = (
+    Raw("1" + "0" * 400),
+    Raw("-" + "9" * 5000),
+    Raw("[" * 900 + "]" * 900),
+    Raw("{a = " * 2000 + "1" + "}" * 2000),
+    Raw("[" * 40 + "1" + "]" * 40),
+)
+
 HOSTILE_NUMBERS = (
     0,
     -1,
@@ -407,6 +441,8 @@ def hostile_values(*, depth: int = 1) -> st.SearchStrategy:
         st.floats(allow_nan=True, allow_infinity=True),
         st.integers(min_value=-(2**63), max_value=2**63 - 1),
         st.just(Raw("99999999999999999999")),  # beyond 64 bits: invalid TOML
+        st.sampled_from(HOSTILE_RAW),
+        st.sampled_from(ESCAPE_TEXTS),
     )
     if depth <= 0:
         return base

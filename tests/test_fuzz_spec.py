@@ -150,7 +150,7 @@ def test_evaluate_on_a_mutated_spec_never_tracebacks(tmp_path_factory, case):
     p = _write(tmp_path_factory.mktemp("spec"), name, text)
     try:
         topo = tomllib.loads(text).get("topology", "colpitts")
-    except tomllib.TOMLDecodeError:
+    except (tomllib.TOMLDecodeError, ValueError, RecursionError):  # huge integers, deep nesting
         topo = "colpitts"
     sets = ["--set", "C1=150p", "--set", "C2=330p", "--set", "L=2.2m"]
     if str(topo).strip().lower() == "clapp":

@@ -188,6 +188,7 @@ def test_a_failed_write_leaves_no_temporary_file_and_no_output(writer, tmp_path,
         raise OSError(28, "No space left on device")
 
     monkeypatch.setattr(os, "replace", no_rename)
+    monkeypatch.setattr(os, "link", no_rename)  # without --force the temporary file is linked
     code, out, err = run_cli(_argv(argv, tmp_path / "out"), cwd=tmp_path)
     assert code == 2, err
     assert "No space left on device" in error_line(err)

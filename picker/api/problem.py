@@ -32,7 +32,7 @@ from picker.spec.load import materials_like
 from picker.spec.model import PartSpec, Spec
 from picker.spec.production import candidate_values
 from picker.spec.stock import stock_table, unit_price
-from picker.tank.board import Parasitics
+from picker.tank.board import Parasitics, board_feedback_bounds
 from picker.units import format_percent, format_quantity
 
 __all__ = [
@@ -101,7 +101,12 @@ def part_table(spec: Spec, pos: str) -> ValueTable:
             price=np.full(vals.shape, float(price)),
         )
     if part.parallel:
-        table = pair_table(table, part.pair_ratio_max)
+        try:
+            table = pair_table(table, part.pair_ratio_max)
+        except SpecError as exc:  # too many pairs: named at the spec's key
+            raise SpecError(
+                exc.message, file=spec.source or None, key=f"parts.{pos}.parallel"
+            ) from None
     return table
 
 
@@ -376,9 +381,14 @@ def build_problem(
     beta_min: float | None = None,
     beta_max: float | None = None,
 ) -> Problem:
-    """Turn a validated spec into the core's search problem (optionally relaxed)."""
+    """Turn a validated spec into the core's search problem (optionally relaxed).
+
+    Sized before the search builds anything: a feedback pair of more than
+    :data:`MAX_FEEDBACK_PAIRS` (value, value) pairs in the beta window is refused
+    here (:func:`check_feedback_pairs`), so memory stays bounded.
+    """
     topo = spec.topo
-    return Problem(
+    problem = Problem(
         topology=topo,
         tables={p: part_table(spec, p) for p in topo.positions},
         f_min=spec.frequency.f_min if f_min is None else f_min,
@@ -387,6 +397,45 @@ def build_problem(
         beta_max=spec.feedback.max if beta_max is None else beta_max,
         parasitics=parasitics_of(spec),
     )
+    check_feedback_pairs(problem, file=spec.source or None)
+    return problem
+
+
+#: Most (output-side, input-side) value pairs of the feedback pair the search may
+#: build at once: about 80 bytes each while they are built and checked, 0.8 GB.
+MAX_FEEDBACK_PAIRS = 10_000_000
+
+
+def feedback_pair_count(problem: Problem) -> int:
+    """How many value pairs of the feedback pair lie in the beta window (a slight over-count).
+
+    One binary search per output-side value against the input side's sorted
+    values, with the window's bounds (:func:`picker.tank.board.board_feedback_bounds`)
+    widened by 1e-6: nothing is built.
+    """
+    out, inp = problem.topology.feedback_pair
+    first = problem.tables[out].values
+    second = problem.tables[inp].values
+    lo, hi = board_feedback_bounds(
+        problem.topology, first, problem.beta_min, problem.beta_max, problem.parasitics, widen=1e-6
+    )
+    a = np.searchsorted(second, lo, side="left")
+    b = np.searchsorted(second, hi, side="right")
+    return int(np.maximum(b - a, 0).sum())
+
+
+def check_feedback_pairs(problem: Problem, *, file: str | None = None) -> None:
+    """Refuse, before the search, a feedback pair whose beta-window pairs would not fit."""
+    n = feedback_pair_count(problem)
+    if n > MAX_FEEDBACK_PAIRS:
+        out, inp = problem.topology.feedback_pair
+        raise SpecError(
+            f"the feedback pair {out}, {inp} has about {n:,} value pairs in the beta window, "
+            f"more than the {MAX_FEEDBACK_PAIRS:,} the search may hold (about 0.8 GB); "
+            f"narrow min and max of {out} and {inp}, the feedback window, or pair_ratio_max",
+            file=file,
+            key="feedback",
+        )
 
 
 # ---------------------------------------------------------------- how the boards vary

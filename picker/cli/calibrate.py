@@ -17,6 +17,7 @@ from typing import IO, TYPE_CHECKING
 import typer
 from rich.console import Console
 
+from picker.cli.options import spec_inputs
 from picker.errors import SpecError
 from picker.files import atomic_write
 
@@ -169,7 +170,7 @@ def run_calibrate(
             key="--topology",
         )
 
-    inputs = [measurements] + ([spec] if spec is not None else [])
+    inputs = [measurements] + (spec_inputs(spec) if spec is not None else [])
     if report is not None:  # refused before the fit and the other files
         from picker.cli.options import check_report
 

@@ -22,7 +22,7 @@ from typing import TYPE_CHECKING, Any
 
 import typer
 
-from picker.cli.options import check_format, parse_assignments, unit_of
+from picker.cli.options import check_format, parse_assignments, spec_inputs, unit_of
 from picker.errors import InfeasibleError, SpecError
 from picker.files import atomic_write, check_output
 
@@ -132,13 +132,15 @@ def netlist(
 ) -> None:
     """Write a SPICE netlist of the whole oscillator (bias network, transient, measurements)."""
     if output is not None:
-        check_output(output, force=force, inputs=[spec_path])  # before the solve, not after
+        check_output(
+            output, force=force, inputs=spec_inputs(spec_path)
+        )  # before the solve, not after
     spec, topo, values, board, stray, params = _design(spec_path, set_)
     text = _netlist_text(spec, spec_path, topo, values, board, stray, params)
     if output is None:
         sys.stdout.write(text)
         return
-    atomic_write(output, text, force=force, inputs=[spec_path])
+    atomic_write(output, text, force=force, inputs=spec_inputs(spec_path))
     typer.echo(f"wrote {output}")
 
 

@@ -52,12 +52,9 @@ def run_consolidate(
             f"expected a file name ending in .csv or .json; got {bom.name!r}", key="--bom"
         )
     if bom is not None:  # fail before the (slow) solve, not after it
-        if any(bom.resolve() == p.resolve() for p in plan.inputs()):
-            raise SpecError("refusing to write over an input file", file=str(bom), key="--bom")
-        if bom.exists() and not force:
-            raise SpecError(
-                "the file exists; pass --force to replace it", file=str(bom), key="--bom"
-            )
+        from picker.files import check_output
+
+        check_output(bom, force=force, inputs=plan.inputs(), key="--bom")
     if report is not None:  # refused before the (slow) solve
         from picker.cli.options import check_report
 

@@ -11,14 +11,16 @@ Every command is a plain function in its own module (:mod:`picker.cli.solve`,
 
 from __future__ import annotations
 
+import signal
 import sys
-from types import ModuleType
+from types import FrameType, ModuleType
 
 import typer
 
 from picker.cli import calibrate, circuit, consolidate
 from picker.cli.solve import bench, evaluate, series_cmd, solve
 from picker.errors import InfeasibleError, PickerError, SolverError, SpecError
+from picker.files import remove_temporaries
 
 app = typer.Typer(
     name="picker",
@@ -94,8 +96,42 @@ def _click_exceptions(name: str) -> tuple[type[BaseException], ...]:
     return tuple(found)
 
 
+class Interrupted(BaseException):
+    """Ctrl-C, SIGTERM or SIGHUP: not an ``Exception``, so nothing on the way catches it."""
+
+
+#: Signals that stop a run: each removes the temporary files and exits 130.
+STOP_SIGNALS = tuple(
+    getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP") if hasattr(signal, name)
+)
+
+
+def _stop(signum: int, frame: FrameType | None) -> None:
+    raise Interrupted(signum)
+
+
 def main(argv: list[str] | None = None) -> None:
-    """Entry point: run the app and map errors to one line and an exit status."""
+    """Entry point: run the app and map errors to one line and an exit status.
+
+    Ctrl-C, SIGTERM and SIGHUP stop the run: the writers' ``finally`` clauses and
+    :func:`picker.files.remove_temporaries` remove every temporary file, one line
+    ("interrupted") goes to stderr and the exit status is 130.
+    """
+    previous = {}
+    try:
+        for sig in STOP_SIGNALS:
+            if signal.getsignal(sig) is not signal.SIG_IGN:  # nohup's ignored SIGHUP stays so
+                previous[sig] = signal.signal(sig, _stop)
+    except ValueError:  # not the main thread (an embedding program): leave its handlers
+        pass
+    try:
+        _run(argv)
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
+
+
+def _run(argv: list[str] | None) -> None:
     no_args = _click_exceptions("NoArgsIsHelpError")
     usage = _click_exceptions("UsageError")
     abort = _click_exceptions("Abort")
@@ -123,7 +159,8 @@ def main(argv: list[str] | None = None) -> None:
     except abort:
         _error("aborted")
         sys.exit(130)
-    except KeyboardInterrupt:
+    except (KeyboardInterrupt, Interrupted):
+        remove_temporaries()
         _error("interrupted")
         sys.exit(130)
     except BrokenPipeError:

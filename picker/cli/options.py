@@ -18,6 +18,7 @@ import re
 import sys
 import time
 from collections.abc import Callable, Iterable, Iterator, Sequence
+from pathlib import Path
 from typing import IO, TYPE_CHECKING
 
 from picker.errors import SpecError
@@ -42,6 +43,7 @@ __all__ = [
     "parse_precision",
     "parse_sampling",
     "progress_bar",
+    "spec_inputs",
     "unit_of",
     "verify_count",
 ]
@@ -311,3 +313,14 @@ def progress_bar(
     finally:
         if task is not None and not done:
             prog.stop()
+
+
+def spec_inputs(spec: Path) -> list[Path]:
+    """The spec and every file it names (stock lists, lot files): no output may be one.
+
+    Read from the TOML without validating it (:func:`picker.spec.load.input_files`),
+    so a command checks its outputs against all of them before the run.
+    """
+    from picker.spec.load import input_files  # pydantic: not at start-up
+
+    return input_files(spec)

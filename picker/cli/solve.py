@@ -28,6 +28,7 @@ from picker.cli.options import (
     parse_precision,
     parse_sampling,
     progress_bar,
+    spec_inputs,
     unit_of,
     verify_count,
 )
@@ -44,11 +45,11 @@ __all__ = ["bench", "evaluate", "series_cmd", "solve"]
 def _check_outputs(output: Path | None, plot: Path | None, force: bool, spec: Path) -> None:
     """Refuse a bad --output or --plot before the (slow) run, not after it."""
     if output is not None:
-        check_output(output, force=force, inputs=[spec])
+        check_output(output, force=force, inputs=spec_inputs(spec))
     if plot is not None:
         from picker.report.plots import check_plot_folder  # matplotlib: only for --plot
 
-        check_plot_folder(plot, force=force, inputs=[spec])
+        check_plot_folder(plot, force=force, inputs=spec_inputs(spec))
 
 
 def _wrote(paths: Iterable[Path]) -> None:
@@ -260,7 +261,7 @@ def solve(
     if plot is not None and result.status == "ok":
         from picker.report.plots import write_plots
 
-        _wrote(write_plots(result, plot, force=force, inputs=[spec]))
+        _wrote(write_plots(result, plot, force=force, inputs=spec_inputs(spec)))
     _write_bom(result, bom, force, spec)
     _write_report(report, result, force, spec, "solve")
     checked = _verify(result, vcount)
@@ -268,7 +269,7 @@ def solve(
         if checked is not None:
             sys.stderr.write(checked[1])
     else:
-        _emit(result, fmt, output, force, [spec], checked)
+        _emit(result, fmt, output, force, spec_inputs(spec), checked)
     if result.status != "ok":
         raise typer.Exit(1)
 
@@ -374,7 +375,7 @@ def evaluate(
     if plot is not None:
         from picker.report.plots import write_plots
 
-        _wrote(write_plots(result, plot, force=force, inputs=[spec]))
+        _wrote(write_plots(result, plot, force=force, inputs=spec_inputs(spec)))
     _write_bom(result, bom, force, spec)
     _write_report(report, result, force, spec, "evaluate")
     checked = _verify(result, vcount)
@@ -382,7 +383,7 @@ def evaluate(
         if checked is not None:
             sys.stderr.write(checked[1])
     else:
-        _emit(result, fmt, output, force, [spec], checked)
+        _emit(result, fmt, output, force, spec_inputs(spec), checked)
 
 
 def series_cmd(

@@ -430,7 +430,11 @@ def write_plots(
         tmp = d / f".{t.stem}.{os.getpid()}.tmp.png"  # same folder: the rename is atomic
         try:
             save_png(figures[t.name], tmp)
-            os.replace(tmp, t)
+            if force:
+                os.replace(tmp, t)
+            else:  # an exclusive link: a PNG made meanwhile by another run is not replaced
+                os.link(tmp, t)
+                os.unlink(tmp)
         except BaseException as exc:
             with contextlib.suppress(OSError):
                 os.unlink(tmp)

@@ -17,8 +17,6 @@ The result is the lot's relative deviations from the nominal value,
 
 from __future__ import annotations
 
-import csv
-import io
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -27,7 +25,7 @@ from numpy.typing import ArrayLike
 
 from picker import units
 from picker.errors import SpecError
-from picker.files import read_text
+from picker.files import csv_rows, read_text
 
 #: Fewest measured parts accepted as a lot. Below about 20 the empirical
 #: quantiles say little about the tails (common practice, no source).
@@ -91,9 +89,9 @@ def lot_deviations(
     return x / nominal - 1.0
 
 
-def _rows(text: str) -> Iterator[tuple[int, list[str]]]:
+def _rows(text: str, file: str = "<text>") -> Iterator[tuple[int, list[str]]]:
     """(record number, stripped cells) of each CSV record that is not blank or a comment."""
-    for lineno, row in enumerate(csv.reader(io.StringIO(text, newline="")), start=1):
+    for lineno, row in enumerate(csv_rows(text, file=file), start=1):
         if not row or not "".join(row).strip() or row[0].lstrip().startswith("#"):
             continue
         yield lineno, [c.strip() for c in row]
@@ -130,7 +128,7 @@ def read_lot_csv(path: str | Path, unit: str) -> np.ndarray:
         unreadable=unreadable,
         undecodable="expected a UTF-8 text CSV file",
     )
-    rows = list(_rows(text))
+    rows = list(_rows(text, name))
     if not rows:
         raise SpecError("expected a CSV with a 'value' column; the file is empty", file=name)
     lineno, first = rows[0]
@@ -140,8 +138,9 @@ def read_lot_csv(path: str | Path, unit: str) -> np.ndarray:
     elif len(first) == 1:
         col, body = 0, rows  # one column, no header
     else:
-        raise SpecError(
-            f"expected a header row with a 'value' column; got {', '.join(first)!r}",
+        raise SpecError(  # the row is not quoted: the spec merely names this file
+            "expected a lot file: a header row with a 'value' column, or one column of "
+            "values; the first row is neither",
             file=name,
             key=f"row {lineno}",
         )
@@ -153,6 +152,13 @@ def read_lot_csv(path: str | Path, unit: str) -> np.ndarray:
         try:
             out.append(units.parse_quantity(row[col], unit))
         except SpecError as exc:
+            if not out and body is rows:  # no header and no value yet: not a lot file at all
+                raise SpecError(
+                    "expected a lot file: a header row with a 'value' column, or one column of "
+                    "values; the first row is neither",
+                    file=name,
+                    key=where,
+                ) from None
             raise SpecError(exc.message, file=name, key=where) from None
     return np.asarray(out, dtype=float)
 

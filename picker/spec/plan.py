@@ -37,7 +37,6 @@ tolerance at least as tight (``match_stock = false`` turns this off).
 
 from __future__ import annotations
 
-import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -48,6 +47,7 @@ from picker import units
 from picker.buyer.model import PRIORITIES
 from picker.errors import SpecError
 from picker.files import read_text
+from picker.spec.load import input_files, parse_toml
 from picker.tank import get_topology
 
 
@@ -203,7 +203,7 @@ class Plan:
             return
         try:
             text = read_text(spec_path, what="a spec file")
-            topo = tomllib.loads(text).get("topology", "")
+            topo = parse_toml(text, file=str(spec_path)).get("topology", "")
             positions = get_topology(str(over.get("topology", topo))).positions
         except (OSError, ValueError, SpecError):
             return  # the spec's own load reports the fault
@@ -217,7 +217,10 @@ class Plan:
 
     def inputs(self) -> list[Path]:
         """Every file the plan reads (never to be written over)."""
-        files = [self.path] + [p for _, p, _ in self.channel_sources()]
+        files = [self.path]
+        for _, p, over in self.channel_sources():
+            files += input_files(p)  # the channel's spec and the files it names
+            files += input_files(p, over)[1:]  # and those the plan's overrides name
         if self.spec.stock:
             files.append(self.resolve(self.spec.stock))
         return files
@@ -244,10 +247,7 @@ def load_plan(path: str | Path) -> Plan:
     p = Path(path)
     name = str(path)
     text = read_text(path, what="a plan file", missing="expected {what}; no such file")
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"not valid TOML: {exc}", file=name) from None
+    data = parse_toml(text, file=name)
     try:
         spec = PlanSpec.model_validate(data)
     except ValidationError as exc:
