@@ -255,6 +255,7 @@ def solve(
     progress: Progress | None = None,
     plot_data: bool = False,
     workers: int | None = None,
+    estimator: str | None = None,
 ) -> SolveResult:
     """Search, screen, Monte Carlo and rank; the best ``top`` designs first.
 
@@ -264,7 +265,9 @@ def solve(
     top N (:func:`picker.core.ranking.conditional_rank`); otherwise each board
     passes or fails (:func:`picker.core.ranking.monte_carlo_rank`). ``workers``
     threads share the Monte Carlo (default :func:`picker.core.conditional.default_workers`);
-    the result does not depend on it.
+    the result does not depend on it. ``estimator="plain"`` forces pass/fail
+    sampling with binomial intervals (the reference the conditional estimator
+    is checked against).
 
     ``precision`` (a CI half-width, 0.005 = ±0.5 %) continues the Monte Carlo
     of the reported designs in batches until every interval is that narrow or
@@ -304,7 +307,9 @@ def solve(
     sim = simulation_of(spec, problem)
     u = random_inputs(spec, sim, samples, seed)
     workers = default_workers() if workers is None else max(1, int(workers))
-    if spec.cost.rank_by != "cost" and applies(sim):
+    if estimator not in (None, "plain", "conditional"):
+        raise ValueError(f"expected estimator None, 'plain' or 'conditional'; got {estimator!r}")
+    if estimator != "plain" and spec.cost.rank_by != "cost" and applies(sim):
         return _conditional_solve(
             spec,
             problem,

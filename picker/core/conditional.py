@@ -185,14 +185,15 @@ def _block(
     var = sim.parts[p]
     vals = _others(sim, sub, p, u)
     drift = drift_factors(sim, u)
-    kw = dict(grade=var.grade, lot=var.lot)
     if t.second is None:
         inv_a = 1.0 / t.values[i]
         rest: np.ndarray | float = 0.0
     else:
         b = t.second[i]
         inv_a = 1.0 / (t.values[i] - b)
-        db = distributions.deviation(u[:, cols[f"{p}#2"]], t.second_tol[i], var.distribution, **kw)
+        db = distributions.deviation(
+            u[:, cols[f"{p}#2"]], t.second_tol[i], var.distribution, grade=var.grade, lot=var.lot
+        )
         rest = b[None, :] * (1.0 + db)
     lo_d: np.ndarray | None = None
     hi_d: np.ndarray | None = None
@@ -208,8 +209,12 @@ def _block(
         lo_d = lk if lo_d is None else np.maximum(lo_d, lk)
         hi_d = hk if hi_d is None else np.minimum(hi_d, hk)
     assert lo_d is not None and hi_d is not None
-    y = distributions.probability(lo_d, hi_d, t.tol[i], var.distribution, **kw)
-    d = distributions.deviation(u[:, cols[p]], t.tol[i], var.distribution, **kw)
+    y = distributions.probability(
+        lo_d, hi_d, t.tol[i], var.distribution, grade=var.grade, lot=var.lot
+    )
+    d = distributions.deviation(
+        u[:, cols[p]], t.tol[i], var.distribution, grade=var.grade, lot=var.lot
+    )
     ok = (d >= lo_d) & (d <= hi_d)
     yt = np.ascontiguousarray(y.T)  # one design per contiguous row: its sum is its own
     return yt.sum(axis=1), np.einsum("ij,ij->i", yt, yt), ok.sum(axis=0, dtype=np.int64)
@@ -308,14 +313,15 @@ def yield_upper_bound(sim: Simulation, designs: Designs, integrated: np.ndarray)
         if q == p:
             continue
         t, i, var = problem.tables[q], sub.idx[q], sim.parts[q]
-        kw = dict(grade=var.grade, lot=var.lot)
-        dl, dh, m = distributions.support(var.distribution, t.tol[i], **kw)
+        dl, dh, m = distributions.support(var.distribution, t.tol[i], grade=var.grade, lot=var.lot)
         outside += m
         if t.second is None:
             low[q], high[q] = vals[q] * (1 + dl), vals[q] * (1 + dh)
         else:
             b = t.second[i]
-            bl, bh, m2 = distributions.support(var.distribution, t.second_tol[i], **kw)
+            bl, bh, m2 = distributions.support(
+                var.distribution, t.second_tol[i], grade=var.grade, lot=var.lot
+            )
             outside += m2
             low[q] = (vals[q] - b) * (1 + dl) + b * (1 + bl)
             high[q] = (vals[q] - b) * (1 + dh) + b * (1 + bh)
