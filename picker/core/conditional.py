@@ -291,7 +291,7 @@ def yield_upper_bound(sim: Simulation, designs: Designs, integrated: np.ndarray)
     other part (the frequency falls as any part grows). Over the box of the
     other parts' deviations (their supports; ±6 sigma for a normal part, whose
     outside mass is added) lo sweeps [lo(box top), lo(box bottom)]; split that
-    range into :data:`BOUND_STEPS` pieces [l_j, l_j+1]: on piece j the window
+    range into :data:`BOUND_STEPS` equal pieces [l_j, l_j+1]: on piece j the window
     lies inside [l_j, l_j+1·B/A], so Y <= P(D in that interval), and the yield
     E[Y] <= max_j of those (the interval the design's frequency spread can
     reach, in pieces).
@@ -331,7 +331,7 @@ def yield_upper_bound(sim: Simulation, designs: Designs, integrated: np.ndarray)
     t, i, var = problem.tables[p], sub.idx[p], sim.parts[p]
     a = t.values[i]
     steps = np.linspace(0.0, 1.0, BOUND_STEPS + 1)[:, None]
-    edges = lo_top[None, :] * (lo_bot / lo_top)[None, :] ** steps  # geometric pieces
+    edges = lo_top[None, :] + (lo_bot - lo_top)[None, :] * steps  # equal pieces
     pr = distributions.probability(
         edges[:-1] / a - 1.0,
         edges[1:] * ratio / a - 1.0,

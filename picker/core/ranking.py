@@ -86,6 +86,12 @@ def estimate_order(mean: np.ndarray, f_nominal: np.ndarray, target: float) -> np
 
 #: Standard errors of margin between a design's proven bound and the N-th estimate.
 BOUND_MARGIN_SE = 4.0
+#: Rows of the run's random numbers in each pilot stage (prefixes: the same boards for
+#: every design); a stage runs only when it is shorter than the run.
+PILOT_ROWS = (64, 512, 4096)
+#: A design leaves the top-up when a pilot estimate plus this many of its standard
+#: errors stays below the N-th yield (less the margin).
+PILOT_SE = 6.0
 
 
 def conditional_rank(
@@ -100,16 +106,25 @@ def conditional_rank(
 ) -> tuple[np.ndarray, Tally, np.ndarray]:
     """Rank designs by conditional Monte Carlo yield (:mod:`picker.core.conditional`).
 
-    The best ``m`` designs by screen are checked first. Then every unchecked
-    design whose proven yield bound (:func:`picker.core.conditional.yield_upper_bound`)
-    reaches the N-th best estimate so far, less four standard errors (the
-    largest of the checked top N; the estimate of an unchecked design could
-    exceed its yield by sampling noise), may still enter the top N: those are
-    checked, highest bound first, ``m`` at a time, until no unchecked bound
-    reaches it. A design whose bound is unknown (1: a circuit model, drift, a
-    Clapp design integrating out C3) falls back to the screen's top-up of
-    :func:`monte_carlo_rank` (screen yield within the largest screen error seen
-    plus four standard errors, at most :data:`TOP_UP_CAP` × m designs).
+    The best ``m`` designs by screen are checked first (every board of ``u``).
+    Then a design may still enter the top N only if
+
+    1. its proven yield bound (:func:`picker.core.conditional.yield_upper_bound`)
+       reaches y_N − margin, y_N the N-th best checked estimate and the margin
+       four standard errors (the largest of the checked top N: the estimate of
+       an unchecked design could exceed its yield by that noise); and
+    2. at every pilot stage (the conditional estimator on the first
+       :data:`PILOT_ROWS` boards), its estimate plus :data:`PILOT_SE` of its
+       standard errors reaches y_N − margin too: a statistical elimination
+       (six standard errors) for flat spaces, where the proof of step 1 cannot
+       separate designs of nearly equal yield. After the first stage the best
+       N designs by pilot are checked, so y_N is close to its final value.
+
+    The survivors are checked, highest pilot first, ``m`` at a time, until
+    none is left or :data:`TOP_UP_CAP` × m designs are checked (a flat space
+    whose designs cannot be told apart from the N-th at the run's own
+    precision; the benchmark space stops well below it). A design whose bound is unknown (1: drift, a Clapp design
+    integrating out C3) passes step 1 and meets step 2 like any other.
 
     Returns
     -------
@@ -121,46 +136,60 @@ def conditional_rank(
     order, screen = select_for_montecarlo(sim, designs, n_all)
     integrated = integrated_positions(sim, designs)
     bound = yield_upper_bound(sim, designs, integrated)
-    proven = bound < 1.0
     checked = np.zeros(n_all, dtype=bool)
+    pilot = np.ones(n_all)  # last pilot estimate (checking order)
+    upper = np.full(n_all, np.inf)  # last pilot estimate + PILOT_SE standard errors
     total = np.zeros(n_all)
     square = np.zeros(n_all)
     passed = np.zeros(n_all, dtype=np.int64)
     samples = u.shape[0]
 
-    def check(sel: np.ndarray) -> None:
-        t = conditional_counts(
-            sim, designs.take(sel), u, integrated=integrated[sel], workers=workers
+    def count(sel: np.ndarray, uu: np.ndarray) -> Tally:
+        return conditional_counts(
+            sim, designs.take(sel), uu, integrated=integrated[sel], workers=workers
         )
+
+    def check(sel: np.ndarray) -> None:
+        sel = np.sort(sel)
+        t = count(sel, u)
         total[sel], square[sel], passed[sel] = t.total, t.square, t.passed
         checked[sel] = True
 
     def tally(sel: np.ndarray) -> Tally:
         return Tally(total[sel], square[sel], passed[sel], samples, integrated[sel])
 
-    check(order[:m])
-    cap = min(n_all, TOP_UP_CAP * m)
-    while True:
+    def floor() -> float:
         idx = np.flatnonzero(checked)
         t = tally(idx)
         y = t.mean()
         best = np.argsort(-y, kind="stable")[: min(top, len(y))]
-        y_n = float(y[best[-1]])
-        margin = BOUND_MARGIN_SE * float(np.max(t.std_error()[best]))
-        rest = np.flatnonzero(~checked)
-        # proven designs that may still reach the top N, highest bound first
-        reach = rest[proven[rest] & (bound[rest] >= y_n - margin)]
-        reach = reach[np.lexsort((reach, -bound[reach]))][:m]
-        # unproven designs: the screen's top-up, capped
-        se = np.sqrt(np.maximum(y * (1 - y), 1.0 / samples) / samples)
-        delta = float(np.max(np.abs(screen[idx] - y) + 4 * se))
-        loose = order[~checked[order] & ~proven[order]]
-        n_loose = int(np.count_nonzero(checked & ~proven))
-        loose = loose[screen[loose] >= y_n - delta][: max(0, cap - n_loose)]
-        more = np.concatenate([reach, loose])
-        if len(more) == 0:
+        return float(y[best[-1]]) - BOUND_MARGIN_SE * float(np.max(t.std_error()[best]))
+
+    def by_pilot(sel: np.ndarray) -> np.ndarray:
+        return sel[np.lexsort((sel, -pilot[sel]))]
+
+    check(order[:m])
+    alive = np.flatnonzero(~checked & (bound >= floor()))
+    for stage, rows in enumerate(PILOT_ROWS):
+        if rows >= samples or len(alive) == 0:
             break
-        check(np.sort(more))
+        pt = count(alive, u[:rows])
+        pilot[alive] = pt.mean()
+        high = pt.mean() + PILOT_SE * pt.std_error()
+        upper[alive] = high
+        if stage == 0:  # the best by pilot: y_N near its final value before eliminating
+            first = by_pilot(alive)[:top]
+            check(first)
+            high[np.isin(alive, first)] = -np.inf
+        alive = alive[high >= floor()]
+    cap = max(m, TOP_UP_CAP * m)
+    while True:
+        f = floor()
+        alive = alive[~checked[alive] & (bound[alive] >= f) & (upper[alive] >= f)]
+        room = cap - int(np.count_nonzero(checked))
+        if len(alive) == 0 or room <= 0:
+            break
+        check(by_pilot(alive)[: min(m, room)])
     idx = np.flatnonzero(checked)
     t = tally(idx)
     ranked = idx[estimate_order(t.mean(), designs.f_nominal[idx], target)]
