@@ -39,6 +39,9 @@ from picker.tank.board import board_frequency, board_values
 
 #: Boards evaluated per block (samples x candidates); bounds memory.
 BLOCK = 1 << 21
+#: Rows of u per chunk in :func:`count_passing` (a run of millions of boards per
+#: design is counted in pieces; the counts are integers, so they add up exactly).
+ROWS = 1 << 18
 
 #: A board model maps sampled part values at one temperature, position ->
 #: (samples, c), and the block's designs (length c) to a pass mask (samples, c).
@@ -250,6 +253,11 @@ def values_at(
 
 def count_passing(sim: Simulation, designs: Designs, u: np.ndarray) -> np.ndarray:
     """Passing boards per design, shape (n,) int64, evaluated in memory-bounded blocks."""
+    if u.shape[0] > ROWS:  # long runs in row chunks: integer counts add up exactly
+        return sum(
+            (count_passing(sim, designs, u[r : r + ROWS]) for r in range(0, u.shape[0], ROWS)),
+            np.zeros(len(designs), dtype=np.int64),
+        )
     model = sim.model or ideal_model(sim.problem)
     drift = drift_factors(sim, u)
     n = len(designs)

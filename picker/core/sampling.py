@@ -29,7 +29,7 @@ _EPS = 2.0**-53
 
 def _open_interval(u: np.ndarray) -> np.ndarray:
     """Map [0, 1) variates into (0, 1) by nudging exact zeros (probability 2^-53 each)."""
-    return np.clip(u, _EPS, 1.0 - _EPS)
+    return np.clip(u, _EPS, 1.0 - _EPS, out=u)  # in place: no second copy of a large matrix
 
 
 def sobol_size(n: int) -> int:
