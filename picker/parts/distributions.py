@@ -296,12 +296,10 @@ def cdf(
     Examples
     --------
     >>> cdf([-0.05, 0.0, 0.025], 0.05).round(3).tolist()
-    [[0.0], [0.5], [0.75]]
+    [0.0, 0.5, 0.75]
     """
     dd = np.asarray(d, dtype=float)
     t = np.asarray(tol, dtype=float)
-    if dd.ndim == 1 and t.ndim == 0:
-        dd = dd[:, None]
     if np.any(t < 0):
         raise SpecError(f"expected a tolerance >= 0; got {float(np.min(t))!r}", key="tolerance")
     step = (dd >= 0).astype(float)  # a part with zero tolerance sits at its marked value
@@ -367,14 +365,12 @@ def probability(
         # the common kinds, written out with few temporaries (the Monte Carlo's inner loop)
         if kind == "uniform":
             # (min(hi, t) − max(lo, −t))/(2t), the rectangular distribution's share
-            out = np.minimum(b, t)
-            out -= np.maximum(a, -t)
-            out /= 2.0 * t
+            out = np.asarray(np.minimum(b, t) - np.maximum(a, -t))
+            out = out / (2.0 * t)
         else:
             k = COVERAGE_K / t  # 1/sigma
-            out = ndtr(b * k)
-            out -= ndtr(a * k)
-        return np.maximum(out, 0.0, out=out)
+            out = np.asarray(ndtr(b * k) - ndtr(a * k))
+        return np.asarray(np.maximum(out, 0.0))
     if kind == "empirical":
         x = _check_lot(lot)
         t = np.asarray(tol, dtype=float)
