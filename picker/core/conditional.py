@@ -282,6 +282,20 @@ def conditional_counts(
 
 
 def yield_upper_bound(sim: Simulation, designs: Designs, integrated: np.ndarray) -> np.ndarray:
+    """:func:`bound_chunk` over chunks of designs (its temporaries are BOUND_STEPS x chunk)."""
+    n = len(designs)
+    out = np.ones(n)
+    for s in range(0, n, BOUND_CHUNK):
+        sel = np.arange(s, min(s + BOUND_CHUNK, n))
+        out[sel] = bound_chunk(sim, designs.take(sel), integrated[sel])
+    return out
+
+
+#: Designs per chunk of :func:`yield_upper_bound`.
+BOUND_CHUNK = 1 << 15
+
+
+def bound_chunk(sim: Simulation, designs: Designs, integrated: np.ndarray) -> np.ndarray:
     """A proven upper bound of each design's yield, shape (n,) (1 where none is known).
 
     For a design integrating out the inductor (no drift, single parts): the
