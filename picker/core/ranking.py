@@ -158,18 +158,28 @@ def conditional_rank(
     def tally(sel: np.ndarray) -> Tally:
         return Tally(total[sel], square[sel], passed[sel], samples, integrated[sel])
 
-    def floor() -> float:
+    err = np.abs(np.log(designs.f_nominal / target))
+
+    def floor() -> tuple[float, float]:
+        """y_N − margin, and the N-th's |error| (a tie at y_N exactly goes by error)."""
         idx = np.flatnonzero(checked)
         t = tally(idx)
         y = t.mean()
-        best = np.argsort(-y, kind="stable")[: min(top, len(y))]
-        return float(y[best[-1]]) - BOUND_MARGIN_SE * float(np.max(t.std_error()[best]))
+        best = estimate_order(y, designs.f_nominal[idx], target)[: min(top, len(y))]
+        last = best[-1]
+        margin = BOUND_MARGIN_SE * float(np.max(t.std_error()[best]))
+        return float(y[last]) - margin, float(err[idx[last]]) if margin == 0 else np.inf
+
+    def can_reach(sel: np.ndarray, value: np.ndarray, f: tuple[float, float]) -> np.ndarray:
+        """Designs whose upper value passes the floor (or meets it and wins the tie)."""
+        return (value > f[0]) | ((value == f[0]) & (err[sel] <= f[1]))
 
     def by_pilot(sel: np.ndarray) -> np.ndarray:
         return sel[np.lexsort((sel, -pilot[sel]))]
 
     check(order[:m])
-    alive = np.flatnonzero(~checked & (bound >= floor()))
+    alive = np.flatnonzero(~checked)
+    alive = alive[can_reach(alive, bound[alive], floor())]
     for stage, rows in enumerate(PILOT_ROWS):
         if rows >= samples or len(alive) == 0:
             break
@@ -181,11 +191,12 @@ def conditional_rank(
             first = by_pilot(alive)[:top]
             check(first)
             high[np.isin(alive, first)] = -np.inf
-        alive = alive[high >= floor()]
+        alive = alive[can_reach(alive, high, floor())]
     cap = max(m, TOP_UP_CAP * m)
     while True:
         f = floor()
-        alive = alive[~checked[alive] & (bound[alive] >= f) & (upper[alive] >= f)]
+        alive = alive[~checked[alive]]
+        alive = alive[can_reach(alive, bound[alive], f) & can_reach(alive, upper[alive], f)]
         room = cap - int(np.count_nonzero(checked))
         if len(alive) == 0 or room <= 0:
             break
