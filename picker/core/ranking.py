@@ -89,6 +89,8 @@ BOUND_MARGIN_SE = 4.0
 #: Rows of the run's random numbers in each pilot stage (prefixes: the same boards for
 #: every design); a stage runs only when it is shorter than the run.
 PILOT_ROWS = (64, 512, 4096)
+#: Above this many designs admitted by the bound, the screen's filter runs before the pilots.
+PILOT_ALL = 200_000
 #: A design leaves the top-up when a pilot estimate plus this many of its standard
 #: errors stays below the N-th yield (less the margin).
 PILOT_SE = 6.0
@@ -112,7 +114,12 @@ def conditional_rank(
     1. its proven yield bound (:func:`picker.core.conditional.yield_upper_bound`)
        reaches y_N − margin, y_N the N-th best checked estimate and the margin
        four standard errors (the largest of the checked top N: the estimate of
-       an unchecked design could exceed its yield by that noise); and
+       an unchecked design could exceed its yield by that noise);
+    1b. only when more than :data:`PILOT_ALL` designs pass step 1: its screen
+       yield lies within the screen's largest error seen on the checked
+       designs (plus four binomial standard errors) of y_N − margin, the
+       calibrated filter of :func:`monte_carlo_rank` (a heuristic), which keeps
+       the pilots affordable on spaces of millions of designs; and
     2. at every pilot stage (the conditional estimator on the first
        :data:`PILOT_ROWS` boards), its estimate plus :data:`PILOT_SE` of its
        standard errors reaches y_N − margin too: a statistical elimination
@@ -177,9 +184,21 @@ def conditional_rank(
     def by_pilot(sel: np.ndarray) -> np.ndarray:
         return sel[np.lexsort((sel, -pilot[sel]))]
 
+    def screen_reach(sel: np.ndarray) -> np.ndarray:
+        """The screen's calibrated filter (as in :func:`monte_carlo_rank`): screen
+        yield within the largest screen error seen on checked designs, plus four
+        standard errors, of y_N."""
+        idx = np.flatnonzero(checked)
+        y = tally(idx).mean()
+        se = np.sqrt(np.maximum(y * (1 - y), 1.0 / samples) / samples)
+        delta = float(np.max(np.abs(screen[idx] - y) + 4 * se))
+        return screen[sel] >= floor()[0] - delta
+
     check(order[:m])
     alive = np.flatnonzero(~checked)
     alive = alive[can_reach(alive, bound[alive], floor())]
+    if len(alive) > PILOT_ALL:
+        alive = alive[screen_reach(alive)]
     for stage, rows in enumerate(PILOT_ROWS):
         if rows >= samples or len(alive) == 0:
             break

@@ -123,17 +123,24 @@ def wilson_interval(
 ) -> tuple[np.ndarray, np.ndarray]:
     """Wilson score interval (Wilson 1927, JASA 22) for counts ``k`` of ``n``, vectorised.
 
-    centre = (k + z²/2)/(n + z²), half-width = z/(n + z²)·√(k(n − k)/n + z²/4),
-    z = Φ⁻¹(1/2 + confidence/2), without continuity correction (as
+    centre = (2np + z²)/(2(n + z²)), half-width = z/(2(n + z²))·√(4np(1 − p) + z²),
+    p = k/n, z = Φ⁻¹(1/2 + confidence/2), low 0 at k = 0 and high 1 at k = n,
+    without continuity correction (Newcombe 1998, Statistics in Medicine 17; as
     ``scipy.stats.binomtest(k, n).proportion_ci(method="wilson")``, which the
     tests compare with). Returns (low, high), each of the shape of ``k``.
     """
     kk = np.asarray(k, dtype=float)
-    z = normal_quantile(confidence)
+    z = float(ndtri(0.5 + 0.5 * confidence))
     nn = float(n)
-    centre = (kk + z * z / 2.0) / (nn + z * z)
-    half = z / (nn + z * z) * np.sqrt(kk * (nn - kk) / nn + z * z / 4.0)
-    return np.maximum(centre - half, 0.0), np.minimum(centre + half, 1.0)
+    # the same expressions in the same order as Newcombe (1998), eq. for the score
+    # interval, so the figures agree with scipy.stats to the last bit
+    p = kk / nn
+    denom = 2 * (nn + z**2)
+    centre = (2 * nn * p + z**2) / denom
+    delta = z / denom * np.sqrt(4 * nn * p * (1 - p) + z**2)
+    lo = np.where(kk == 0, 0.0, centre - delta)
+    hi = np.where(kk == nn, 1.0, centre + delta)
+    return lo, hi
 
 
 def wilson_half_width(k: ArrayLike, n: int, confidence: float = 0.95) -> np.ndarray:
