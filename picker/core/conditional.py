@@ -162,11 +162,16 @@ def integrated_positions(sim: Simulation, designs: Designs) -> np.ndarray:
     problem = sim.problem
     topo = problem.topology
     cands = [p for p in topo.solvable() if p in designs.idx]
-    sens = board_sensitivities(topo, designs.values(problem), problem.parasitics)
-    sig = part_sigmas(sim, designs)
-    share = np.stack([np.broadcast_to((sens[p] * sig[p]) ** 2, (n,)) for p in cands])
+    pick = np.empty(n, dtype=np.int64)
+    for s in range(0, n, BOUND_CHUNK):  # in chunks: bounded temporaries
+        sub = designs.take(np.arange(s, min(s + BOUND_CHUNK, n)))
+        sens = board_sensitivities(topo, sub.values(problem), problem.parasitics)
+        sig = part_sigmas(sim, sub)
+        k = len(sub)
+        share = np.stack([np.broadcast_to((sens[p] * sig[p]) ** 2, (k,)) for p in cands])
+        pick[s : s + k] = np.argmax(share, axis=0)
     # the narrowest string type that holds the names (5 million designs: 40 MB, not 320)
-    return np.asarray(cands)[np.argmax(share, axis=0)]
+    return np.asarray(cands)[pick]
 
 
 def _others(sim: Simulation, sub: Designs, p: str, u: np.ndarray) -> dict[str, np.ndarray]:
@@ -360,7 +365,7 @@ def bound_chunk(sim: Simulation, designs: Designs, integrated: np.ndarray) -> np
 
 
 #: Pieces the bound splits the window's reach into (tighter with more, at a linear cost).
-BOUND_STEPS = 32
+BOUND_STEPS = 16
 
 
 def half_widths(tally: Tally, confidence: float) -> np.ndarray:

@@ -121,7 +121,8 @@ def conditional_rank(
        calibrated filter of :func:`monte_carlo_rank` (a heuristic), which keeps
        the pilots affordable on spaces of millions of designs; and
     2. at every pilot stage (the conditional estimator on the first
-       :data:`PILOT_ROWS` boards), its estimate plus :data:`PILOT_SE` of its
+       :data:`PILOT_ROWS` boards; a stage runs only while it costs less than
+       checking the cap in full), its estimate plus :data:`PILOT_SE` of its
        standard errors reaches y_N − margin too: a statistical elimination
        (six standard errors) for flat spaces, where the proof of step 1 cannot
        separate designs of nearly equal yield. After the first stage the best
@@ -144,7 +145,7 @@ def conditional_rank(
     integrated = integrated_positions(sim, designs)
     bound = yield_upper_bound(sim, designs, integrated)
     checked = np.zeros(n_all, dtype=bool)
-    pilot = np.ones(n_all)  # last pilot estimate (checking order)
+    pilot = screen.copy()  # last pilot estimate (checking order; the screen before any)
     upper = np.full(n_all, np.inf)  # last pilot estimate + PILOT_SE standard errors
     total = np.zeros(n_all)
     square = np.zeros(n_all)
@@ -199,9 +200,10 @@ def conditional_rank(
     alive = alive[can_reach(alive, bound[alive], floor())]
     if len(alive) > PILOT_ALL:
         alive = alive[screen_reach(alive)]
+    cap = max(m, TOP_UP_CAP * m)
     for stage, rows in enumerate(PILOT_ROWS):
-        if rows >= samples or len(alive) == 0:
-            break
+        if rows >= samples or len(alive) == 0 or len(alive) * rows > cap * samples:
+            break  # a pilot dearer than checking the cap in full does not pay
         pt = count(alive, u[:rows])
         pilot[alive] = pt.mean()
         high = pt.mean() + PILOT_SE * pt.std_error()
@@ -211,7 +213,6 @@ def conditional_rank(
             check(first)
             high[np.isin(alive, first)] = -np.inf
         alive = alive[can_reach(alive, high, floor())]
-    cap = max(m, TOP_UP_CAP * m)
     while True:
         f = floor()
         alive = alive[~checked[alive]]
