@@ -89,6 +89,8 @@ BOUND_MARGIN_SE = 4.0
 #: Rows of the run's random numbers in each pilot stage (prefixes: the same boards for
 #: every design); a stage runs only when it is shorter than the run.
 PILOT_ROWS = (64, 512, 4096)
+#: The conditional top-up checks at most max(CAP_MIN, TOP_UP_CAP x m) designs in full.
+CAP_MIN = 4000
 #: Above this many designs admitted by the bound, the screen's filter runs before the pilots.
 PILOT_ALL = 200_000
 #: A design leaves the top-up when a pilot estimate plus this many of its standard
@@ -129,7 +131,7 @@ def conditional_rank(
        N designs by pilot are checked, so y_N is close to its final value.
 
     The survivors are checked, highest pilot first, ``m`` at a time, until
-    none is left or :data:`TOP_UP_CAP` × m designs are checked (a flat space
+    none is left or max(:data:`CAP_MIN`, :data:`TOP_UP_CAP` × m) designs are checked (a flat space
     whose designs cannot be told apart from the N-th at the run's own
     precision; the benchmark space stops well below it). A design whose bound is unknown (1: drift, a Clapp design
     integrating out C3) passes step 1 and meets step 2 like any other.
@@ -200,7 +202,7 @@ def conditional_rank(
     alive = alive[can_reach(alive, bound[alive], floor())]
     if len(alive) > PILOT_ALL:
         alive = alive[screen_reach(alive)]
-    cap = max(m, TOP_UP_CAP * m)
+    cap = max(CAP_MIN, TOP_UP_CAP * m)
     for stage, rows in enumerate(PILOT_ROWS):
         if rows >= samples or len(alive) == 0 or len(alive) * rows > cap * samples:
             break  # a pilot dearer than checking the cap in full does not pay
