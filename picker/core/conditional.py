@@ -259,7 +259,7 @@ def conditional_counts(
     passed = np.zeros(n, dtype=np.int64)
     n_t = len(sim.temperatures) if sim.drifting() else 1
     chunk = min(rows, ROWS)
-    per = max(1, BLOCK // (chunk * n_t))
+    per = max(1, (BLOCK // 4) // (chunk * n_t))  # 4 MB arrays: each worker holds about ten
     jobs = []
     for p in np.unique(integrated).tolist():
         members = np.flatnonzero(integrated == p)
