@@ -162,7 +162,7 @@ def integrated_positions(sim: Simulation, designs: Designs) -> np.ndarray:
     problem = sim.problem
     topo = problem.topology
     cands = [p for p in topo.solvable() if p in designs.idx]
-    pick = np.empty(n, dtype=np.int64)
+    pick = np.empty(n, dtype=np.int8)  # a topology has few solvable positions
     for s in range(0, n, BOUND_CHUNK):  # in chunks: bounded temporaries
         sub = designs.take(np.arange(s, min(s + BOUND_CHUNK, n)))
         sens = board_sensitivities(topo, sub.values(problem), problem.parasitics)

@@ -168,8 +168,6 @@ def conditional_rank(
     def tally(sel: np.ndarray) -> Tally:
         return Tally(total[sel], square[sel], passed[sel], samples, integrated[sel])
 
-    err = np.abs(np.log(designs.f_nominal / target))
-
     def floor() -> tuple[float, float]:
         """y_N − margin, and the N-th's |error| (a tie at y_N exactly goes by error)."""
         idx = np.flatnonzero(checked)
@@ -178,11 +176,13 @@ def conditional_rank(
         best = estimate_order(y, designs.f_nominal[idx], target)[: min(top, len(y))]
         last = best[-1]
         margin = BOUND_MARGIN_SE * float(np.max(t.std_error()[best]))
-        return float(y[last]) - margin, float(err[idx[last]]) if margin == 0 else np.inf
+        last_err = abs(float(np.log(designs.f_nominal[idx[last]] / target)))
+        return float(y[last]) - margin, last_err if margin == 0 else np.inf
 
     def can_reach(sel: np.ndarray, value: np.ndarray, f: tuple[float, float]) -> np.ndarray:
         """Designs whose upper value passes the floor (or meets it and wins the tie)."""
-        return (value > f[0]) | ((value == f[0]) & (err[sel] <= f[1]))
+        err = np.abs(np.log(designs.f_nominal[sel] / target))
+        return (value > f[0]) | ((value == f[0]) & (err <= f[1]))
 
     def by_pilot(sel: np.ndarray) -> np.ndarray:
         return sel[np.lexsort((sel, -pilot[sel]))]
