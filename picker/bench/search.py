@@ -160,11 +160,17 @@ def report(r: dict) -> str:
 
 
 def main(quick: bool = False) -> None:
-    """The search figures, then :mod:`picker.bench.yields` (commands, precision, memory)."""
-    from picker.bench import yields
+    """The search figures, then :mod:`picker.bench.yields` (commands, precision, memory).
 
-    print(report(run(quick=quick)))
-    print(yields.report(yields.run(quick)))
+    The second runs as its own process (``python -m picker.bench.yields``): it imports
+    this module, and its memory figures are its own.
+    """
+    import subprocess
+    import sys
+
+    print(report(run(quick=quick)), flush=True)
+    cmd = [sys.executable, "-m", "picker.bench.yields", *(["--quick"] if quick else [])]
+    subprocess.run(cmd, check=False)
 
 
 def cli(argv: list[str] | None = None, prog: str = "python -m picker.bench.search") -> None:
