@@ -193,3 +193,74 @@ def test_lot_plausibility():
     bad[3] = -1e-9
     with pytest.raises(SpecError, match="positive"):
         lot_deviations(bad, 1e-9, 0.05)
+
+
+# ---------------------------------------------------------------- distribution functions
+
+
+def _scipy_cdf(kind, x, t, g=None, lot=None):
+    """F(x) of each kind from scipy.stats (the references, independent of picker)."""
+    from scipy import stats as st
+
+    if kind == "uniform":
+        return st.uniform(loc=-t, scale=2 * t).cdf(x)
+    if kind == "normal":
+        return st.norm(scale=t / 3).cdf(x)  # sigma = tol/3 (GUM G.1)
+    if kind == "normal-truncated":
+        return st.truncnorm(-3, 3, scale=t / 3).cdf(x)
+    if kind == "graded":  # half the mass uniform on each band [-t, -g], [g, t]
+        return 0.5 * st.uniform(loc=-t, scale=t - g).cdf(x) + 0.5 * st.uniform(
+            loc=g, scale=t - g
+        ).cdf(x)
+    if kind == "graded-normal":  # half the mass on each band of the normal, sigma = t/3
+        s = t / 3
+        upper = st.truncnorm(g / s, 3, scale=s)
+        lower = st.truncnorm(-3, -g / s, scale=s)
+        return 0.5 * lower.cdf(x) + 0.5 * upper.cdf(x)
+    if kind == "empirical":
+        return np.array([np.mean(lot <= v) for v in np.atleast_1d(x)])
+    raise AssertionError(kind)
+
+
+@pytest.mark.parametrize(
+    "kind", ["uniform", "normal", "normal-truncated", "graded", "graded-normal", "empirical"]
+)
+def test_cdf_and_interval_probability_match_scipy_stats(kind):
+    from picker.parts.distributions import cdf, probability
+
+    t, g = 0.05, 0.02
+    lot = np.random.default_rng(4).normal(0.01, 0.02, 37)
+    x = np.linspace(-0.07, 0.07, 57)
+    name = "normal" if kind == "normal-truncated" else kind
+    kw = dict(grade=g if "graded" in kind else None, lot=lot, truncate=kind == "normal-truncated")
+    got = cdf(x, t, name, **kw).ravel()
+    want = _scipy_cdf(kind, x, t, g, lot)
+    assert_allclose(got, want, atol=1e-12)  # closed forms: rounding only
+    lo, hi = x[:-5], x[5:]
+    p = probability(lo, hi, t, name, **kw)
+    if kind == "empirical":  # a closed interval: lot values on an edge count
+        want_p = np.array([np.mean((lot >= a) & (lot <= b)) for a, b in zip(lo, hi, strict=True)])
+    else:
+        want_p = _scipy_cdf(kind, hi, t, g, lot) - _scipy_cdf(kind, lo, t, g, lot)
+    assert_allclose(p.ravel(), want_p, atol=1e-12)
+    assert np.all(probability(hi, lo, t, name, **kw) == 0)  # an empty interval
+
+
+@pytest.mark.parametrize("kind", ["uniform", "normal", "graded", "graded-normal", "empirical"])
+def test_cdf_is_what_deviation_draws(kind):
+    # the share of deviations drawn at or below x, over a fine grid of u, is F(x)
+    from picker.parts.distributions import cdf
+
+    u = (np.arange(200_000) + 0.5) / 200_000
+    lot = np.random.default_rng(4).normal(0.0, 0.02, 25)
+    kw = dict(grade=0.02 if "graded" in kind else None, lot=lot)
+    d = deviation(u, 0.05, kind, **kw)[:, 0]
+    for x in (-0.045, -0.01, 0.0, 0.013, 0.03):
+        assert abs(np.mean(d <= x) - float(cdf(x, 0.05, kind, **kw))) < 2e-5
+
+
+def test_zero_tolerance_is_a_point_mass():
+    from picker.parts.distributions import probability
+
+    assert probability(-0.01, 0.01, 0.0, "uniform") == 1.0
+    assert probability(0.001, 0.01, 0.0, "normal") == 0.0

@@ -20,7 +20,6 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
-import pytest
 from conftest import DEMO
 from hypothesis import event, given
 from hypothesis import strategies as st

@@ -78,7 +78,20 @@ def test_confidence_interval_matches_published_values(k, n, method, lo, hi):
     y = estimate_yield(k, n, confidence=0.95, method=method, seed=0)
     assert_allclose([y.ci_low, y.ci_high], [lo, hi], atol=1e-6)  # 6 published decimals
     ref = binomtest(k, n).proportion_ci(0.95, method=method)
-    assert_allclose([y.ci_low, y.ci_high], [ref.low, ref.high], rtol=1e-12)
+    # picker computes these with scipy.special (no scipy.stats import on the command path):
+    # the closed-form Wilson interval agrees to rounding; Clopper-Pearson inverts the beta
+    # function with betaincinv, which agrees with scipy.stats's beta.ppf to about 1e-11.
+    assert_allclose([y.ci_low, y.ci_high], [ref.low, ref.high], rtol=1e-9, atol=1e-15)
+
+
+@pytest.mark.parametrize("confidence", [0.5, 0.8, 0.9, 0.95, 0.99, 0.999])
+@pytest.mark.parametrize(("k", "n"), [(0, 10), (1, 3), (7, 50), (500, 1000), (19999, 20000)])
+@pytest.mark.parametrize("method", ["wilson", "exact"])
+def test_binomial_interval_matches_scipy_stats(k, n, confidence, method):
+    # the reference is scipy.stats.binomtest(...).proportion_ci (Wilson 1927; Clopper-Pearson 1934)
+    ref = binomtest(k, n).proportion_ci(confidence, method=method)
+    lo, hi = binomial_interval(k, n, confidence, method)
+    assert_allclose([lo, hi], [ref.low, ref.high], rtol=1e-9, atol=1e-15)
 
 
 def test_worst_case_corners_reference_example():

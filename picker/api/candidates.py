@@ -22,7 +22,7 @@ from picker.api.problem import amplifier_params_of, recentre_values
 from picker.api.results import Candidate, Miss, PartPick
 from picker.buyer.costing import cost_figures, design_costs, within_cost
 from picker.circuit.figures import nominal_figures, worst_margins
-from picker.core.montecarlo import Simulation, estimate_yield
+from picker.core.montecarlo import Simulation, YieldEstimate, estimate_yield
 from picker.core.screen import corner_span
 from picker.core.search import Designs, Problem
 from picker.production import figures as production
@@ -50,11 +50,15 @@ def build_candidates(
     samples: int,
     seed: int,
     extras: list[dict[str, Any]] | None = None,
+    *,
+    estimates: list[YieldEstimate] | None = None,
 ) -> list[Candidate]:
     """One :class:`Candidate` per design, rank 1 first.
 
     ``passed`` (n,) boards that passed of ``samples``, ``screen`` (n,) the
-    first-order screen yield, ``extras`` one JSON dict per design.
+    first-order screen yield, ``extras`` one JSON dict per design;
+    ``estimates`` replaces the binomial estimate from ``passed`` (the
+    conditional Monte Carlo's, :mod:`picker.core.conditional`).
     """
     ys = spec.yield_
     lo, hi = corner_span(problem, designs)
@@ -98,7 +102,9 @@ def build_candidates(
                 f_nominal_hz=f,
                 error=f / target - 1.0,
                 feedback_fraction=beta,
-                yield_=estimate_yield(
+                yield_=estimates[r]
+                if estimates is not None
+                else estimate_yield(
                     int(passed[r]),
                     samples,
                     confidence=ys.confidence,

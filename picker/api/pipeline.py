@@ -35,9 +35,16 @@ from picker.api.problem import (
 from picker.api.results import Candidate, PartPick, SolveResult, given_design
 from picker.buyer.costing import cost_order, cost_rank
 from picker.circuit.loaded_search import LoadedSearch, loaded_search
-from picker.core.montecarlo import Simulation, count_passing
-from picker.core.precision import refine, reorder
-from picker.core.ranking import monte_carlo_rank
+from picker.core.conditional import (
+    Tally,
+    applies,
+    conditional_counts,
+    default_workers,
+    estimates,
+)
+from picker.core.montecarlo import Simulation, YieldEstimate, count_passing
+from picker.core.precision import refine, refine_tally, reorder
+from picker.core.ranking import conditional_rank, estimate_order, monte_carlo_rank
 from picker.core.screen import screen_yield
 from picker.core.search import Designs, Problem, check_size, search
 from picker.errors import SpecError
@@ -153,8 +160,19 @@ def _refined(
     return order, passed[order], u, converged
 
 
-def summary(spec: Spec, sim: Simulation, samples: int, converged: bool | None) -> dict[str, Any]:
-    """Top-level facts of the run for the JSON ``monte_carlo`` object."""
+def summary(
+    spec: Spec,
+    sim: Simulation,
+    samples: int,
+    converged: bool | None,
+    estimator: str = "plain",
+) -> dict[str, Any]:
+    """Top-level facts of the run for the JSON ``monte_carlo`` object.
+
+    ``estimator``: "conditional" (each yield the mean of the boards'
+    conditional pass probabilities, normal interval) or "plain" (share of
+    passing boards, binomial interval ``[yield] ci_method``).
+    """
     ys = spec.yield_
     parts = {}
     for p, v in sim.parts.items():
@@ -167,6 +185,8 @@ def summary(spec: Spec, sim: Simulation, samples: int, converged: bool | None) -
             d["material"] = v.material.name
         parts[p] = d
     out: dict[str, Any] = {
+        "estimator": estimator,
+        "interval": "normal" if estimator == "conditional" else ys.ci_method,
         "sampling": ys.sampling,
         "samples_requested": ys.samples,
         "precision": ys.precision,
@@ -194,12 +214,26 @@ def _ranked_result(
     space_size: int,
     feasible: int,
     screened: int,
+    estimated: list[YieldEstimate] | None = None,
 ) -> SolveResult:
-    """The ``ok`` result for ``designs`` (best first) and their Monte Carlo counts."""
+    """The ``ok`` result for ``designs`` (best first) and their Monte Carlo counts.
+
+    ``estimated``: each design's yield estimate (default: the plain ``passed``
+    counts with the binomial interval).
+    """
     samples = u.shape[0]
     cands = build_candidates(
-        spec, problem, designs, passed, screen, samples, seed, extras(spec, sim, designs, u)
+        spec,
+        problem,
+        designs,
+        passed,
+        screen,
+        samples,
+        seed,
+        extras(spec, sim, designs, u),
+        estimates=estimated,
     )
+    conditional = estimated is not None and any(e.estimator != "plain" for e in estimated)
     return SolveResult(
         spec=spec,
         status="ok",
@@ -211,7 +245,9 @@ def _ranked_result(
         samples=samples,
         seed=seed,
         warnings=warnings_for(spec) + lumped_warnings(spec.frequency.f_max),
-        production=summary(spec, sim, samples, converged),
+        production=summary(
+            spec, sim, samples, converged, "conditional" if conditional else "plain"
+        ),
         plot_data=plot_inputs(spec, sim, designs, u) if plot_data else None,
     )
 
@@ -227,8 +263,20 @@ def solve(
     sampling: str | None = None,
     progress: Progress | None = None,
     plot_data: bool = False,
+    workers: int | None = None,
+    estimator: str | None = None,
 ) -> SolveResult:
     """Search, screen, Monte Carlo and rank; the best ``top`` designs first.
+
+    With the ideal tank (and ``[cost] rank_by = "yield"``) the yields are
+    conditional Monte Carlo estimates (:mod:`picker.core.conditional`) and the
+    top-up checks only designs whose proven yield bound can still reach the
+    top N (:func:`picker.core.ranking.conditional_rank`); otherwise each board
+    passes or fails (:func:`picker.core.ranking.monte_carlo_rank`). ``workers``
+    threads share the Monte Carlo (default :func:`picker.core.conditional.default_workers`);
+    the result does not depend on it. ``estimator="plain"`` forces pass/fail
+    sampling with binomial intervals (the reference the conditional estimator
+    is checked against).
 
     ``precision`` (a CI half-width, 0.005 = ±0.5 %) continues the Monte Carlo
     of the reported designs in batches until every interval is that narrow or
@@ -267,6 +315,23 @@ def solve(
         )
     sim = simulation_of(spec, problem)
     u = random_inputs(spec, sim, samples, seed)
+    workers = default_workers() if workers is None else max(1, int(workers))
+    if estimator not in (None, "plain", "conditional"):
+        raise ValueError(f"expected estimator None, 'plain' or 'conditional'; got {estimator!r}")
+    if estimator != "plain" and spec.cost.rank_by != "cost" and applies(sim):
+        return _conditional_solve(
+            spec,
+            problem,
+            sim,
+            designs,
+            u,
+            m=m,
+            top=top,
+            seed=seed,
+            workers=workers,
+            progress=progress,
+            plot_data=plot_data,
+        )
     ranked, passed, screen, notes, screened = _rank(spec, sim, designs, u, m, top)
     best = designs.take(ranked[:top])
     order, passed, u, converged = _refined(spec, sim, best, u, passed[:top], seed, progress)
@@ -311,6 +376,79 @@ def _given_value(v: Any, unit: str, pos: str) -> Any:
     return v
 
 
+def _conditional_solve(
+    spec: Spec,
+    problem: Problem,
+    sim: Simulation,
+    designs: Designs,
+    u: np.ndarray,
+    *,
+    m: int,
+    top: int,
+    seed: int,
+    workers: int,
+    progress: Progress | None,
+    plot_data: bool,
+) -> SolveResult:
+    """The ranking, precision and result of :func:`solve` with the conditional estimator."""
+    ys = spec.yield_
+    target = spec.frequency.target
+    ranked, tally, screen = conditional_rank(
+        sim, designs, u, m=m, top=top, target=target, workers=workers
+    )
+    keep = np.arange(min(top, len(ranked)))
+    best, tally, screen = designs.take(ranked[keep]), tally.take(keep), screen[keep]
+    tally, u, converged = _refined_tally(spec, sim, best, u, tally, seed, workers, progress)
+    if converged is not None:
+        order = estimate_order(tally.mean(), best.f_nominal, target)
+        best, screen, tally = best.take(order), screen[order], tally.take(order)
+    return _ranked_result(
+        spec,
+        problem,
+        sim,
+        best,
+        u,
+        tally.passed,
+        screen,
+        seed=seed,
+        converged=converged,
+        plot_data=plot_data,
+        space_size=problem.space_size(),
+        feasible=len(designs),
+        screened=len(ranked),
+        estimated=estimates(tally, confidence=ys.confidence, method=ys.ci_method, seed=seed),
+    )
+
+
+def _refined_tally(
+    spec: Spec,
+    sim: Simulation,
+    designs: Designs,
+    u: np.ndarray,
+    tally: Tally,
+    seed: int,
+    workers: int,
+    progress: Progress | None,
+) -> tuple[Tally, np.ndarray, bool | None]:
+    """Precision on demand for the conditional estimator (:func:`picker.core.precision.refine_tally`)."""
+    ys = spec.yield_
+    if ys.precision is None:
+        return tally, u, None
+    return refine_tally(
+        sim,
+        designs,
+        u,
+        tally,
+        seed=seed,
+        method=ys.sampling,
+        precision=ys.precision,
+        max_samples=max(ys.max_samples, u.shape[0]),
+        confidence=ys.confidence,
+        workers=workers,
+        progress=progress,
+    )
+
+
 def evaluate(
     spec: Spec,
     values: Candidate | Mapping[str, GivenValue | PartPick | str],
@@ -323,6 +461,7 @@ def evaluate(
     sampling: str | None = None,
     progress: Progress | None = None,
     plot_data: bool = False,
+    workers: int | None = None,
 ) -> SolveResult:
     """The same figures as ``solve`` for one given design (an existing board).
 
@@ -364,8 +503,17 @@ def evaluate(
     )
     sim = simulation_of(spec, problem)
     u = random_inputs(spec, sim, samples, seed)
-    passed = count_passing(sim, designs, u)
-    _, passed, u, converged = _refined(spec, sim, designs, u, passed, seed, progress)
+    estimated = None
+    if applies(sim):
+        w = default_workers() if workers is None else max(1, int(workers))
+        tally = conditional_counts(sim, designs, u, workers=w)
+        tally, u, converged = _refined_tally(spec, sim, designs, u, tally, seed, w, progress)
+        passed = tally.passed
+        ys = spec.yield_
+        estimated = estimates(tally, confidence=ys.confidence, method=ys.ci_method, seed=seed)
+    else:
+        passed = count_passing(sim, designs, u)
+        _, passed, u, converged = _refined(spec, sim, designs, u, passed, seed, progress)
     screen = screen_yield(sim, designs)
     res = _ranked_result(
         spec,
@@ -381,6 +529,7 @@ def evaluate(
         space_size=1,
         feasible=0,
         screened=1,
+        estimated=estimated,
     )
     ok = res.candidates[0].in_window and res.candidates[0].feedback_ok
     return replace(res, feasible=int(ok), warnings=[*res.warnings, *notes])

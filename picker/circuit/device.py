@@ -32,8 +32,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from scipy.optimize import brentq
-
 BOLTZMANN = 1.380649e-23  # J/K, SI 2019 exact
 ELEMENTARY_CHARGE = 1.602176634e-19  # C, SI 2019 exact
 SPICE_TNOM_C = 27.0  # SPICE's default nominal temperature, °C
@@ -149,6 +147,8 @@ def bias_point(
     lo, hi = 0.2, 1.2
     if residual(lo) <= 0.0:
         raise ValueError(f"the base divider gives {v_th:.3g} V: too low to turn the transistor on")
+    from scipy.optimize import brentq  # heavy import (~0.5 s): only when a bias is solved
+
     vbe = brentq(residual, lo, hi, xtol=1e-12, rtol=1e-14)
     ic, ib, vb, vc = currents(vbe)
     ve = vb - vbe

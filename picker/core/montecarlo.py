@@ -28,8 +28,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy.stats import binomtest
+from scipy.special import betaincinv
 
+from picker.core.sampling import wilson_interval
 from picker.core.search import Designs, Problem
 from picker.parts import distributions
 from picker.parts.drift import Material, drift_factor
@@ -38,6 +39,9 @@ from picker.tank.board import board_frequency, board_values
 
 #: Boards evaluated per block (samples x candidates); bounds memory.
 BLOCK = 1 << 21
+#: Rows of u per chunk in :func:`count_passing` (a run of millions of boards per
+#: design is counted in pieces; the counts are integers, so they add up exactly).
+ROWS = 1 << 18
 
 #: A board model maps sampled part values at one temperature, position ->
 #: (samples, c), and the block's designs (length c) to a pass mask (samples, c).
@@ -115,7 +119,15 @@ class Simulation:
 
 @dataclass(frozen=True)
 class YieldEstimate:
-    """A yield estimate with its interval, sample count and seed."""
+    """A yield estimate with its interval, sample count and seed.
+
+    ``estimator`` is "plain" (share of passing boards, ``estimate == passed /
+    samples``, binomial interval: ``method`` "wilson" or "exact") or
+    "conditional" (:mod:`picker.core.conditional`: the mean of each board's
+    pass probability with ``integrated`` integrated out in closed form,
+    ``method`` "normal", the interval mean ± z·``std_error``; ``passed`` is then
+    the plain count of passing boards among the same boards, for reference).
+    """
 
     estimate: float
     ci_low: float
@@ -125,9 +137,12 @@ class YieldEstimate:
     confidence: float
     method: str
     seed: int
+    estimator: str = "plain"
+    std_error: float | None = None
+    integrated: str | None = None
 
     def as_dict(self) -> dict:
-        return {
+        out = {
             "estimate": self.estimate,
             "ci_low": self.ci_low,
             "ci_high": self.ci_high,
@@ -136,15 +151,39 @@ class YieldEstimate:
             "confidence": self.confidence,
             "method": self.method,
             "seed": self.seed,
+            "estimator": self.estimator,
         }
+        if self.estimator != "plain":
+            out["std_error"] = self.std_error
+            out["integrated"] = self.integrated
+        return out
 
 
 def binomial_interval(
     k: int, n: int, confidence: float = 0.95, method: str = "wilson"
 ) -> tuple[float, float]:
-    """Two-sided interval for a proportion k/n from scipy (Wilson or exact)."""
-    ci = binomtest(int(k), int(n)).proportion_ci(confidence_level=confidence, method=method)
-    return float(ci.low), float(ci.high)
+    """Two-sided interval for a proportion k/n: Wilson (1927) or Clopper-Pearson (1934).
+
+    ``"wilson"``: :func:`picker.core.sampling.wilson_interval`. ``"exact"``
+    (Clopper & Pearson 1934, Biometrika 26): low = B⁻¹(α/2; k, n − k + 1),
+    high = B⁻¹(1 − α/2; k + 1, n − k), B⁻¹ the inverse regularised incomplete
+    beta function (``scipy.special.betaincinv``), α = 1 − confidence; low = 0
+    at k = 0, high = 1 at k = n. Both agree with
+    ``scipy.stats.binomtest(k, n).proportion_ci`` (tested), without importing
+    scipy.stats.
+    """
+    k, n = int(k), int(n)
+    if not 0 <= k <= n or n < 1:
+        raise ValueError(f"expected 0 <= k <= n and n >= 1; got k={k}, n={n}")
+    if method == "wilson":
+        lo, hi = wilson_interval(k, n, confidence)
+        return float(lo), float(hi)
+    if method != "exact":
+        raise ValueError(f"expected a binomial interval method, wilson or exact; got {method!r}")
+    alpha = 1.0 - confidence
+    low = 0.0 if k == 0 else float(betaincinv(k, n - k + 1, alpha / 2))
+    high = 1.0 if k == n else float(betaincinv(k + 1, n - k, 1 - alpha / 2))
+    return low, high
 
 
 def estimate_yield(k: int, n: int, *, confidence: float, method: str, seed: int) -> YieldEstimate:
@@ -175,16 +214,19 @@ def _deviation(var: PartVariation, u_col: np.ndarray, tol: np.ndarray) -> np.nda
     )
 
 
-def sampled_values(sim: Simulation, designs: Designs, u: np.ndarray) -> dict[str, np.ndarray]:
+def sampled_values(
+    sim: Simulation, designs: Designs, u: np.ndarray, positions: list[str] | None = None
+) -> dict[str, np.ndarray]:
     """Part values of every simulated board at 25 °C, position -> (samples, n).
 
     A parallel pair's two parts each get their own deviation (column "P#2").
     With ``sim.stray_tol`` the dict also holds each board's stray capacitance
     under the key :data:`STRAY`, shape (samples, 1).
+    ``positions`` limits the result to those positions (default: all).
     """
     cols = sim.columns()
     out = {}
-    for p in sim.problem.topology.positions:
+    for p in sim.problem.topology.positions if positions is None else positions:
         t = sim.problem.tables[p]
         i = designs.idx[p]
         var = sim.parts[p]
@@ -223,6 +265,11 @@ def values_at(
 
 def count_passing(sim: Simulation, designs: Designs, u: np.ndarray) -> np.ndarray:
     """Passing boards per design, shape (n,) int64, evaluated in memory-bounded blocks."""
+    if u.shape[0] > ROWS:  # long runs in row chunks: integer counts add up exactly
+        return sum(
+            (count_passing(sim, designs, u[r : r + ROWS]) for r in range(0, u.shape[0], ROWS)),
+            np.zeros(len(designs), dtype=np.int64),
+        )
     model = sim.model or ideal_model(sim.problem)
     drift = drift_factors(sim, u)
     n = len(designs)

@@ -293,13 +293,15 @@ def search(
         the feasible set exceeds ``max_designs`` (narrow the ranges or the
         window, or raise ``search.max_designs``).
     """
-    check_size(problem, max_designs=max_designs, max_combinations=max_combinations)
+    _, estimate = check_size(problem, max_designs=max_designs, max_combinations=max_combinations)
     topo = problem.topology
     tabs = problem.tables
     outer = outer_enumeration(problem)
     solved = outer.solved
     n_outer = outer.size
-    found: list[Designs] = []
+    # preallocated result, filled chunk by chunk (no list of chunks to concatenate: that
+    # held every design twice at the end); grown by doubling if the estimate was low
+    out = _Buffer(topo.positions, max(1 << 12, int(estimate * 1.25)))
     total = 0
     sol_vals = tabs[solved].values
     for start in range(0, n_outer, CHUNK):
@@ -322,22 +324,49 @@ def search(
         hit = {p: i[owner].astype(np.int32) for p, i in idx.items()}
         hit[solved] = js.astype(np.int32)
         del owner, js, idx, vals
-        found.append(_exact(problem, hit))
-    if not found:
-        empty = np.zeros(0)
-        return Designs({p: np.zeros(0, dtype=np.int32) for p in topo.positions}, empty, empty)
-    out = Designs(
-        {p: np.concatenate([d.idx[p] for d in found]) for p in topo.positions},
-        np.concatenate([d.f_nominal for d in found]),
-        np.concatenate([d.beta for d in found]),
-    )
-    if len(out) > max_designs:
+        out.append(_exact(problem, hit))
+    if out.size > max_designs:
         raise SpecError(
-            f"the search holds {len(out):,} feasible designs, more than {max_designs:,}; "
+            f"the search holds {out.size:,} feasible designs, more than {max_designs:,}; "
             "narrow the part ranges or the frequency window, or raise search.max_designs",
             key="search.max_designs",
         )
-    return out
+    return out.designs()
+
+
+class _Buffer:
+    """Growable struct of arrays for the search's result (amortised doubling)."""
+
+    def __init__(self, positions: tuple[str, ...], capacity: int) -> None:
+        self.size = 0
+        self.idx = {p: np.empty(capacity, dtype=np.int32) for p in positions}
+        self.f = np.empty(capacity)
+        self.beta = np.empty(capacity)
+
+    def append(self, d: Designs) -> None:
+        n, k = self.size, len(d)
+        if n + k > len(self.f):
+            cap = max(2 * len(self.f), n + k)
+            for p, a in self.idx.items():
+                self.idx[p] = _grown(a, n, cap)
+            self.f, self.beta = _grown(self.f, n, cap), _grown(self.beta, n, cap)
+        for p, a in self.idx.items():
+            a[n : n + k] = d.idx[p]
+        self.f[n : n + k] = d.f_nominal
+        self.beta[n : n + k] = d.beta
+        self.size = n + k
+
+    def designs(self) -> Designs:
+        """The filled part, as views (no copy: pages of the spare capacity never
+        written are never resident)."""
+        n = self.size
+        return Designs({p: a[:n] for p, a in self.idx.items()}, self.f[:n], self.beta[:n])
+
+
+def _grown(a: np.ndarray, n: int, cap: int) -> np.ndarray:
+    b = np.empty(cap, dtype=a.dtype)
+    b[:n] = a[:n]
+    return b
 
 
 def _exact(problem: Problem, idx: dict[str, np.ndarray]) -> Designs:

@@ -38,8 +38,7 @@ from __future__ import annotations
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import stats
-from scipy.special import ndtri
+from scipy.special import ndtr, ndtri
 
 from picker.errors import SpecError
 
@@ -90,10 +89,16 @@ def _check_lot(lot: ArrayLike | None) -> np.ndarray:
     return x
 
 
+def _pdf(z: ArrayLike) -> np.ndarray:
+    """Standard normal density φ(z) = exp(−z²/2)/√(2π)."""
+    zz = np.asarray(z, dtype=float)
+    return np.exp(-0.5 * zz * zz) / np.sqrt(2.0 * np.pi)
+
+
 def _half_normal_band(v: np.ndarray, a: ArrayLike, b: float) -> np.ndarray:
     """Quantile of |z| for a standard normal restricted to a <= |z| <= b, v in (0, 1)."""
-    pa, pb = stats.norm.cdf(a), stats.norm.cdf(b)
-    return stats.norm.ppf(pa + v * (pb - pa))
+    pa, pb = ndtr(a), ndtr(b)
+    return ndtri(pa + v * (pb - pa))
 
 
 def deviation(
@@ -146,7 +151,7 @@ def deviation(
         uc = np.clip(uc, u_min, 1.0 - U_MIN)  # keep Φ⁻¹ finite if a variate is exactly 0
         if truncate:
             # inverse CDF of the normal truncated to ±k·sigma: z = Φ⁻¹(Φ(-k) + u·(Φ(k) - Φ(-k)))
-            lo, hi = stats.norm.cdf(-COVERAGE_K), stats.norm.cdf(COVERAGE_K)
+            lo, hi = ndtr(-COVERAGE_K), ndtr(COVERAGE_K)
             z = ndtri(lo + uc * (hi - lo))
         else:
             z = ndtri(uc)
@@ -218,7 +223,7 @@ def std_of(
         if not truncate:
             return sigma
         k = COVERAGE_K
-        factor = 1.0 - 2.0 * k * stats.norm.pdf(k) / (2.0 * stats.norm.cdf(k) - 1.0)
+        factor = 1.0 - 2.0 * k * _pdf(k) / (2.0 * ndtr(k) - 1.0)
         return sigma * np.sqrt(factor)
     if kind == "graded":
         g = _check_grade(np.atleast_1d(t), grade)
@@ -227,9 +232,7 @@ def std_of(
         g = _check_grade(np.atleast_1d(t), grade)
         sigma = t / COVERAGE_K
         a, b = g / sigma, COVERAGE_K
-        m2 = 1.0 + (a * stats.norm.pdf(a) - b * stats.norm.pdf(b)) / (
-            stats.norm.cdf(b) - stats.norm.cdf(a)
-        )
+        m2 = 1.0 + (a * _pdf(a) - b * _pdf(b)) / (ndtr(b) - ndtr(a))
         return sigma * np.sqrt(m2)
     if kind == "empirical":
         x = _check_lot(lot)
@@ -250,3 +253,168 @@ def mean_of(kind: str, tol: ArrayLike, *, lot: ArrayLike | None = None) -> np.nd
     if kind not in KINDS:
         raise SpecError(f"expected a distribution, one of {', '.join(KINDS)}; got {kind!r}")
     return np.zeros_like(t)
+
+
+def cdf(
+    d: ArrayLike,
+    tol: ArrayLike,
+    kind: str = "uniform",
+    *,
+    grade: ArrayLike | None = None,
+    lot: ArrayLike | None = None,
+    truncate: bool = False,
+) -> np.ndarray:
+    """Distribution function F(d) = P(D <= d) of the relative deviation :func:`deviation` draws.
+
+    Parameters
+    ----------
+    d : array_like
+        Relative deviations, any shape that broadcasts with ``tol``.
+    tol, kind, grade, lot, truncate
+        As for :func:`deviation`.
+
+    Returns
+    -------
+    numpy.ndarray, the broadcast shape of ``d`` and ``tol``.
+
+    Notes
+    -----
+    - uniform over ±t: F(d) = (d + t)/(2t) clipped to [0, 1] (rectangular
+      distribution, GUM JCGM 100:2008, 4.3.7); a zero tolerance is a step at 0.
+    - normal, sigma = t/3: F(d) = Φ(d/sigma); truncated at ±t:
+      (Φ(d/sigma) − Φ(−3))/(Φ(3) − Φ(−3)) clipped (truncated normal, Johnson,
+      Kotz & Balakrishnan, *Continuous Univariate Distributions* vol. 1, ch. 13).
+    - graded, uniform on [−t, −g] ∪ [g, t] with half the mass on each band:
+      F = (d + t)/(2(t − g)) on the lower band, 1/2 between the bands,
+      1/2 + (d − g)/(2(t − g)) on the upper band (derived from the density).
+    - graded-normal: 1/2 + sign(d)·M(|d|)/2 with
+      M(m) = (Φ(m/sigma) − Φ(g/sigma))/(Φ(3) − Φ(g/sigma)) clipped to [0, 1]
+      (the normal restricted to g <= |d| <= t, symmetric; derived).
+    - empirical: the share of lot values at most d (each value weight 1/n,
+      which is what :func:`deviation` resamples).
+
+    Examples
+    --------
+    >>> cdf([-0.05, 0.0, 0.025], 0.05).round(3).tolist()
+    [0.0, 0.5, 0.75]
+    """
+    dd = np.asarray(d, dtype=float)
+    t = np.asarray(tol, dtype=float)
+    if np.any(t < 0):
+        raise SpecError(f"expected a tolerance >= 0; got {float(np.min(t))!r}", key="tolerance")
+    step = (dd >= 0).astype(float)  # a part with zero tolerance sits at its marked value
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if kind == "uniform":
+            out = np.clip((dd + t) / (2.0 * t), 0.0, 1.0)
+        elif kind == "normal":
+            z = dd * COVERAGE_K / t  # d / sigma, sigma = t/3
+            if truncate:
+                lo, hi = ndtr(-COVERAGE_K), ndtr(COVERAGE_K)
+                out = np.clip((ndtr(z) - lo) / (hi - lo), 0.0, 1.0)
+            else:
+                out = ndtr(z)
+        elif kind in ("graded", "graded-normal"):
+            g = _check_grade(np.atleast_1d(t), grade)
+            m = np.abs(dd)
+            if kind == "graded":
+                band = np.clip((m - g) / (t - g), 0.0, 1.0)  # share of one band below |d|
+            else:
+                sigma = t / COVERAGE_K
+                pa, pb = ndtr(g / sigma), ndtr(COVERAGE_K)
+                band = np.clip((ndtr(m / sigma) - pa) / (pb - pa), 0.0, 1.0)
+            out = 0.5 + np.sign(dd) * band / 2.0
+        elif kind == "empirical":
+            x = _check_lot(lot)
+            # F(d) = #{x_i <= d}/n
+            out = np.searchsorted(x, dd, side="right") / x.size + 0.0 * t
+            return np.asarray(out, dtype=float)
+        else:
+            raise SpecError(f"expected a distribution, one of {', '.join(KINDS)}; got {kind!r}")
+    return np.asarray(np.where(t > 0, out, step), dtype=float)
+
+
+def probability(
+    lo: ArrayLike,
+    hi: ArrayLike,
+    tol: ArrayLike,
+    kind: str = "uniform",
+    *,
+    grade: ArrayLike | None = None,
+    lot: ArrayLike | None = None,
+    truncate: bool = False,
+) -> np.ndarray:
+    """P(lo <= D <= hi) for the relative deviation D of :func:`deviation`; 0 where lo > hi.
+
+    A difference of :func:`cdf` for the continuous kinds; for a measured lot
+    the share of lot values inside the closed interval (a sum over the lot),
+    so a lot value exactly on an edge counts, as the pass test counts it.
+
+    Returns
+    -------
+    numpy.ndarray, the broadcast shape of ``lo``, ``hi`` and ``tol``.
+
+    Examples
+    --------
+    >>> float(probability(-0.02, 0.03, 0.05)[()])
+    0.5
+    """
+    a = np.asarray(lo, dtype=float)
+    b = np.asarray(hi, dtype=float)
+    t = np.asarray(tol, dtype=float)
+    if kind in ("uniform", "normal") and not truncate and t.size and np.all(t > 0):
+        # the common kinds, written out with few temporaries (the Monte Carlo's inner loop)
+        if kind == "uniform":
+            # (min(hi, t) − max(lo, −t))/(2t), the rectangular distribution's share
+            out = np.asarray(np.minimum(b, t) - np.maximum(a, -t))
+            out = out / (2.0 * t)
+        else:
+            k = COVERAGE_K / t  # 1/sigma
+            out = np.asarray(ndtr(b * k) - ndtr(a * k))
+        return np.asarray(np.maximum(out, 0.0))
+    if kind == "empirical":
+        x = _check_lot(lot)
+        t = np.asarray(tol, dtype=float)
+        inside = np.searchsorted(x, b, side="right") - np.searchsorted(x, a, side="left")
+        out = np.maximum(inside, 0) / x.size + 0.0 * t
+    else:
+        kw = dict(grade=grade, lot=lot, truncate=truncate)
+        out = cdf(b, tol, kind, **kw) - cdf(a, tol, kind, **kw)  # type: ignore[arg-type]
+        t = np.asarray(tol, dtype=float)
+        if np.any(t == 0):  # a point mass at 0: inside exactly when lo <= 0 <= hi
+            point = ((a <= 0) & (b >= 0)).astype(float)
+            out = np.where(t > 0, out, point)
+    return np.asarray(np.where(a <= b, np.maximum(out, 0.0), 0.0), dtype=float)
+
+
+#: Tail mass left outside the support box of an unbounded (normal) part: ±6 sigma.
+TAIL_SIGMAS = 6.0
+
+
+def support(
+    kind: str,
+    tol: ArrayLike,
+    *,
+    grade: ArrayLike | None = None,
+    lot: ArrayLike | None = None,
+    truncate: bool = False,
+) -> tuple[np.ndarray, np.ndarray, float]:
+    """Smallest and largest relative deviation, and the probability outside them.
+
+    Bounded kinds return their exact support and 0; the untruncated normal
+    returns ±6 sigma (sigma = t/3) and its two-sided tail mass 2·Φ(−6) ≈ 2e-9
+    (used to keep an upper bound of a yield rigorous).
+
+    Returns
+    -------
+    (lo, hi, outside) : arrays of the shape of ``tol``, and a float.
+    """
+    t = np.asarray(tol, dtype=float)
+    if kind == "normal" and not truncate:
+        half = TAIL_SIGMAS * t / COVERAGE_K
+        return -half, half, float(2.0 * ndtr(-TAIL_SIGMAS))
+    if kind == "empirical":
+        x = _check_lot(lot)
+        return np.full(t.shape, x[0]), np.full(t.shape, x[-1]), 0.0
+    if kind not in KINDS:
+        raise SpecError(f"expected a distribution, one of {', '.join(KINDS)}; got {kind!r}")
+    return -t, t.copy(), 0.0

@@ -158,11 +158,13 @@ def board_interval(
 
     :meth:`picker.tank.base.Topology.solve_interval` on the board values of
     the other positions (``values`` holds marked values of every position but
-    ``solved``).
+    ``solved``). A sampled stray per board (key ``"stray"``, as in
+    :func:`board_frequency`) overrides ``par.stray``.
     """
     bv = board_values(topology, values, par)
+    stray = values.get("stray", par.stray)
     return topology.solve_interval(
-        bv, solved, f_min, f_max, par.stray, board_scale(topology, solved, par)
+        bv, solved, f_min, f_max, stray, board_scale(topology, solved, par)
     )
 
 

@@ -1,0 +1,277 @@
+"""Benchmark: whole commands and yield precision, each beside its reference in the same run.
+
+Figures (printed, never asserted):
+
+1. ``picker solve`` as a command (a fresh interpreter, imports included) on the
+   benchmark space of :mod:`picker.bench.search`, beside the naive full-cube numpy
+   enumeration of the same space (feasibility only), timed in this run; the
+   command's peak resident memory (``resource.getrusage`` of the child).
+2. Every design of the probe demo's top 200 (it has 178 feasible) to a 95 %
+   half-width of at most 0.1 %: ``picker.api.solve(..., precision=0.001)``
+   (conditional Monte Carlo, normal interval) beside a plain vectorised Monte
+   Carlo written here in a few lines (Thomson's formula, pass/fail, Wilson
+   half-width) run until every design reaches the same half-width; the share of
+   designs whose two estimates agree within three combined standard errors.
+3. Peak resident memory of ``picker solve --samples 10000000`` (the option's
+   maximum) on the probe demo, in a fresh process.
+4. The loaded (amplifier) model's Monte Carlo, 200 designs x 20,000 boards, with
+   :class:`picker.circuit.loaded.LoadedModel` as it stands.
+
+Run: ``python -m picker.bench.yields [--quick]`` (also part of ``picker bench``).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from picker.bench.search import colpitts_problem, naive_full_cube
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMOS = ROOT / "demo_specs"
+
+BENCH_SPEC = """title = "benchmark space"
+topology = "colpitts"
+[frequency]
+target = "1 MHz"
+window = "±1 %"
+[feedback]
+min = 0.05
+max = 1.0
+[parts.C1]
+series = "E192"
+tolerance = "1 %"
+min = "1 pF"
+max = "10 uF"
+[parts.C2]
+series = "E192"
+tolerance = "1 %"
+min = "1 pF"
+max = "10 uF"
+[parts.L]
+series = "E24"
+tolerance = "5 %"
+min = "10 nH"
+max = "100 mH"
+[parasitics]
+stray = "5 pF"
+"""
+
+
+def _child(args: list[str]) -> tuple[float, float, str]:
+    """Run ``python -m picker ARGS`` in a fresh process: (seconds, peak RSS MB, stdout).
+
+    The peak is the child's own ``ru_maxrss``, read through a small wrapper so
+    that other children of this process do not count.
+    """
+    wrapper = (
+        "import resource, runpy, sys, json, time\n"
+        "sys.argv = ['picker', *json.loads(sys.argv[1])]\n"
+        "t = time.perf_counter()\n"
+        "try:\n"
+        "    runpy.run_module('picker', run_name='__main__')\n"
+        "except SystemExit:\n"
+        "    pass\n"
+        "sys.stderr.write(json.dumps([time.perf_counter() - t, "
+        "resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0]) + '\\n')\n"
+    )
+    t0 = time.perf_counter()
+    r = subprocess.run(
+        [sys.executable, "-c", wrapper, json.dumps(args)], capture_output=True, text=True
+    )
+    wall = time.perf_counter() - t0
+    _, rss = json.loads(r.stderr.strip().splitlines()[-1])
+    return wall, float(rss), r.stdout
+
+
+def command_vs_naive(quick: bool) -> dict[str, Any]:
+    """Figure 1: ``picker solve`` as a command vs the naive full-cube enumeration."""
+    with tempfile.TemporaryDirectory() as tmp:
+        spec = Path(tmp) / "bench.toml"
+        text = BENCH_SPEC.replace('"10 uF"', '"10 nF"') if quick else BENCH_SPEC
+        spec.write_text(text, encoding="utf-8")
+        _child(["solve", str(spec), "-f", "json"])  # warm the file cache
+        runs = [_child(["solve", str(spec), "-f", "json"]) for _ in range(3)]
+    wall = min(r[0] for r in runs)
+    rss = max(r[1] for r in runs)
+    out = json.loads(runs[0][2])
+    feasible = out["search"]["feasible"]
+    _, t_naive, complete = naive_full_cube(colpitts_problem(quick), 60.0)
+    _, t_naive2, _ = naive_full_cube(colpitts_problem(quick), 60.0)
+    return dict(
+        solve_s=wall,
+        rss_mb=rss,
+        feasible=feasible,
+        checked=out["search"]["screened"],
+        naive_s=min(t_naive, t_naive2),
+        naive_complete=complete,
+    )
+
+
+def plain_to_precision(
+    problem: Any, designs: Any, precision: float, seed: int = 99
+) -> tuple[np.ndarray, np.ndarray, float]:
+    """The reference: plain pass/fail Monte Carlo until every Wilson half-width <= precision.
+
+    Written out here (uniform ±tol per part, Thomson's formula through the
+    topology's own frequency function, batches of 65,536 boards).
+    Returns (estimates, binomial standard errors, seconds).
+    """
+    from picker.core.sampling import wilson_half_width
+    from picker.tank.board import board_frequency
+
+    t0 = time.perf_counter()
+    rng = np.random.default_rng(seed)
+    topo = problem.topology
+    nom = designs.values(problem)
+    tol = {p: problem.tables[p].tol[designs.idx[p]] for p in topo.positions}
+    k = np.zeros(len(designs), dtype=np.int64)
+    n = np.zeros(len(designs), dtype=np.int64)
+    todo = np.arange(len(designs))
+    while len(todo):  # designs narrow enough stop; the rest go on with fresh boards
+        b = 65536
+        vals = {
+            p: nom[p][todo] * (1 + tol[p][todo] * rng.uniform(-1, 1, (b, 1)))
+            for p in topo.positions
+        }
+        f = board_frequency(topo, vals, problem.parasitics)
+        k[todo] += ((f >= problem.f_min) & (f <= problem.f_max)).sum(axis=0)
+        n[todo] += b
+        hw = np.array([wilson_half_width(kk, int(nn)) for kk, nn in zip(k, n, strict=True)])
+        todo = np.flatnonzero(hw > precision)
+    p = k / n
+    return p, np.sqrt(p * (1 - p) / n), time.perf_counter() - t0
+
+
+def probe_precision(quick: bool) -> dict[str, Any]:
+    """Figure 2: the probe demo's designs to ±0.1 %, picker vs a plain Monte Carlo."""
+    from picker import api
+    from picker.core.search import search
+
+    precision = 0.002 if quick else 0.001
+    spec = api.load_spec(DEMOS / "probe_exciter.toml")
+    api.solve(spec, top=5)  # warm-up (imports, caches)
+    t0 = time.perf_counter()
+    res = api.solve(spec, top=200, candidates=200, precision=precision)
+    t_picker = time.perf_counter() - t0
+    problem = api.build_problem(spec)
+    designs = search(problem)
+    est = {
+        tuple(round(c.values[p], 18) for p in problem.topology.positions): c.yield_
+        for c in res.candidates
+    }
+    vals = designs.values(problem)
+    keys = [
+        tuple(round(float(vals[p][i]), 18) for p in problem.topology.positions)
+        for i in range(len(designs))
+    ]
+    p_plain, se_plain, t_plain = plain_to_precision(problem, designs, precision)
+    z = []
+    for i, key in enumerate(keys):
+        y = est[key]
+        z.append(abs(y.estimate - p_plain[i]) / math.hypot(y.std_error or 0.0, se_plain[i]))
+    z_arr = np.asarray(z)
+    half = max((c.yield_.ci_high - c.yield_.ci_low) / 2 for c in res.candidates)
+    top10 = res.candidates[:10]
+    separated = sum(
+        1 for a, b in zip(top10, top10[1:], strict=False) if a.yield_.ci_low > b.yield_.ci_high
+    )
+    return dict(
+        designs=len(res.candidates),
+        picker_s=t_picker,
+        picker_samples=res.samples,
+        picker_half=half,
+        plain_s=t_plain,
+        agree=float(np.mean(z_arr <= 3.0)),
+        z_max=float(z_arr.max()),
+        top10=[(c.yield_.estimate, c.yield_.ci_low, c.yield_.ci_high) for c in top10],
+        separated=separated,
+    )
+
+
+def max_samples_rss() -> dict[str, Any]:
+    """Figure 3: ``picker solve --samples 10000000`` on the probe demo, fresh process."""
+    wall, rss, _ = _child(
+        ["solve", str(DEMOS / "probe_exciter.toml"), "-f", "json", "--samples", "10000000"]
+    )
+    return dict(seconds=wall, rss_mb=rss)
+
+
+def loaded_yield() -> dict[str, Any]:
+    """Figure 4: LoadedModel Monte Carlo, 200 designs x 20,000 boards."""
+    from picker import api
+    from picker.api.problem import board_model_of, simulation_of
+    from picker.core.montecarlo import count_passing
+    from picker.core.sampling import uniform_matrix
+
+    spec = api.load_spec(DEMOS / "colpitts_bjt.toml")
+    res = api.solve(spec, top=1)  # the loaded search, and a warm-up
+    problem = api.build_problem(spec)
+    from picker.api.pipeline import _nominal_designs  # the loaded-feasible designs
+
+    designs, _ = _nominal_designs(spec, problem)
+    sel = designs.take(np.arange(min(200, len(designs))))
+    sim = simulation_of(spec, problem)
+    assert board_model_of(spec, problem) is not None and res.status == "ok"
+    u = uniform_matrix(20_000, sim.n_columns, rng=np.random.default_rng(1))
+    t0 = time.perf_counter()
+    k = count_passing(sim, sel, u)
+    return dict(
+        designs=len(sel), seconds=time.perf_counter() - t0, mean_yield=float(k.mean() / 2e4)
+    )
+
+
+def report(r: dict[str, Any]) -> str:
+    c, p, s, lm = r["command"], r["probe"], r["samples"], r["loaded"]
+    lines = [
+        "picker solve as a command, benchmark space (C1, C2 E192 1 pF-10 uF, L E24, 1 MHz ±1 %)",
+        f"  picker solve (fresh process)  {c['solve_s']:8.2f} s   "
+        f"({c['feasible']:,} feasible, {c['checked']:,} Monte Carlo checked; target <= 1.5 s)",
+        f"  naive full cube, same run     {c['naive_s']:8.2f} s   "
+        f"({'measured' if c['naive_complete'] else 'extrapolated'})",
+        f"  ratio naive / solve           {c['naive_s'] / c['solve_s']:8.2f} x  (target >= 1.5 x)",
+        f"  peak RSS of the command       {c['rss_mb']:8.0f} MB  (target <= 500 MB)",
+        f"probe demo, all {p['designs']} designs to a 95 % half-width <= "
+        f"{p['picker_half'] * 100:.3f} % (asked 0.1 %)",
+        f"  picker (conditional MC)       {p['picker_s']:8.2f} s   ({p['picker_samples']:,} boards each)",
+        f"  plain MC to the same width    {p['plain_s']:8.2f} s",
+        f"  speed-up                      {p['plain_s'] / p['picker_s']:8.1f} x  (target >= 10 x)",
+        f"  agree within 3 combined SE    {p['agree'] * 100:8.1f} %  of designs "
+        f"(largest {p['z_max']:.2f} SE; target >= 99 %)",
+        "  top ten: "
+        + ", ".join(f"{y * 100:.3f}" for y, _, _ in p["top10"])
+        + f" %; {p['separated']} of 9 neighbours separated by their intervals",
+        f"picker solve --samples 10,000,000 (probe demo): {s['seconds']:.1f} s, "
+        f"peak RSS {s['rss_mb']:.0f} MB (target <= 500 MB)",
+        f"loaded model (LoadedModel as it stands), {lm['designs']} designs x 20,000 boards: "
+        f"{lm['seconds']:.2f} s (target <= 3 s)",
+    ]
+    return "\n".join(lines)
+
+
+def run(quick: bool = False) -> dict[str, Any]:
+    return dict(
+        command=command_vs_naive(quick),
+        probe=probe_precision(quick),
+        samples=max_samples_rss(),
+        loaded=loaded_yield(),
+    )
+
+
+def main(argv: list[str] | None = None) -> None:
+    ap = argparse.ArgumentParser(prog="python -m picker.bench.yields", description=__doc__)
+    ap.add_argument("--quick", action="store_true", help="smaller cases, for a fast look")
+    print(report(run(ap.parse_args(argv).quick)))
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

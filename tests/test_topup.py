@@ -1,0 +1,110 @@
+"""The top-up proves instead of over-checking (picker.core.ranking.conditional_rank).
+
+Brute-force reference: the conditional Monte Carlo of *every* feasible design on the
+same boards, ranked by the same rule; the ranking that checks only the designs whose
+proven yield bound can still reach the top N must give the same top N, in the same
+order. The bound itself must lie above every design's yield (checked against the
+estimate plus 4 standard errors, and against an exact closed form in a case where only
+L varies).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from picker.core.conditional import conditional_counts, integrated_positions, yield_upper_bound
+from picker.core.montecarlo import Simulation
+from picker.core.ranking import conditional_rank, estimate_order
+from picker.core.search import Designs, Problem, search
+from picker.parts.series import expand
+from picker.parts.table import uniform_table
+from picker.tank.board import Parasitics
+from picker.tank.colpitts import COLPITTS
+
+
+def _problem(window: float, tol_c: float, tol_l: float, f0: float = 310e3) -> Problem:
+    tabs = {
+        "C1": uniform_table(expand("E24", 100e-12, 100e-9), tol_c, "E24"),
+        "C2": uniform_table(expand("E24", 100e-12, 1e-6), tol_c, "E24"),
+        "L": uniform_table(expand("E12", 1e-6, 10e-3), tol_l, "E12"),
+    }
+    return Problem(
+        COLPITTS, tabs, f0 * (1 - window), f0 * (1 + window), 0.1, 0.5, Parasitics(stray=15e-12)
+    )
+
+
+def _brute_top(sim: Simulation, designs: Designs, u: np.ndarray, top: int, f0: float):
+    t = conditional_counts(sim, designs, u)
+    return estimate_order(t.mean(), designs.f_nominal, f0)[:top]
+
+
+@pytest.mark.parametrize("dist", ["uniform", "normal"])
+@pytest.mark.parametrize(("window", "tol_c", "tol_l"), [(0.03, 0.05, 0.10), (0.01, 0.01, 0.05)])
+def test_top_n_equals_checking_everything(dist, window, tol_c, tol_l):
+    p = _problem(window, tol_c, tol_l)
+    designs = search(p)
+    sim = Simulation.simple(p, dist)
+    u = np.random.default_rng(3).random((4000, 3))
+    top = 10
+    want = _brute_top(sim, designs, u, top, 310e3)
+    ranked, tally, _ = conditional_rank(sim, designs, u, m=5, top=top, target=310e3)
+    assert ranked[:top].tolist() == want.tolist()
+    # the bound proves most designs out: far fewer than all are checked
+    assert len(ranked) < len(designs)
+
+
+def test_bound_lies_above_every_yield():
+    p = _problem(0.02, 0.05, 0.10)
+    designs = search(p)
+    for dist in ("uniform", "normal"):
+        sim = Simulation.simple(p, dist)
+        u = np.random.default_rng(9).random((20000, 3))
+        t = conditional_counts(sim, designs, u)
+        bound = yield_upper_bound(sim, designs, integrated_positions(sim, designs))
+        assert np.all(bound >= t.mean() - 4 * t.std_error())
+        assert np.mean(bound < 1) > 0.9  # a bound is known for the designs
+
+
+def test_bound_is_exact_when_only_l_varies():
+    # C1, C2 fixed (tolerance 0): the window of L is one interval, so the bound is the
+    # yield itself: P(d_L in [lc_lo/(L·C_eff) - 1, lc_hi/(L·C_eff) - 1]), uniform over ±t
+    # (Thomson's formula written out here, REFERENCES.md)
+    p = _problem(0.03, 0.0, 0.10)
+    designs = search(p)
+    sim = Simulation.simple(p, "uniform")
+    bound = yield_upper_bound(sim, designs, integrated_positions(sim, designs))
+    v = designs.values(p)
+    ce = v["C1"] * v["C2"] / (v["C1"] + v["C2"]) + 15e-12
+    lc_lo = 1 / (2 * math.pi * p.f_max) ** 2
+    lc_hi = 1 / (2 * math.pi * p.f_min) ** 2
+    lo = np.clip(lc_lo / (v["L"] * ce) - 1, -0.1, 0.1)
+    hi = np.clip(lc_hi / (v["L"] * ce) - 1, -0.1, 0.1)
+    exact = (hi - lo) / 0.2
+    np.testing.assert_allclose(bound, exact, atol=1e-9)  # rounding of the edges only
+
+
+@settings(max_examples=15, deadline=None)
+@given(
+    window=st.sampled_from([0.01, 0.02, 0.05]),
+    tol_c=st.sampled_from([0.01, 0.02, 0.05]),
+    tol_l=st.sampled_from([0.02, 0.05, 0.1]),
+    f0=st.sampled_from([100e3, 310e3, 1e6]),
+    m=st.integers(1, 8),
+    top=st.integers(1, 12),
+    seed=st.integers(0, 2**16),
+)
+def test_top_n_equals_brute_force_on_random_spaces(window, tol_c, tol_l, f0, m, top, seed):
+    p = _problem(window, tol_c, tol_l, f0)
+    designs = search(p)
+    if len(designs) == 0:
+        return
+    sim = Simulation.simple(p, "uniform")
+    u = np.random.default_rng(seed).random((1000, 3))
+    want = _brute_top(sim, designs, u, top, f0)
+    ranked, _, _ = conditional_rank(sim, designs, u, m=m, top=top, target=f0)
+    assert ranked[: len(want)].tolist() == want.tolist()
