@@ -370,6 +370,15 @@ def _check_header(header: list[str], src: str) -> tuple[dict[str, int], list[tup
             extra.append((name.strip(), j))
         # a blank header cell (a trailing delimiter) names nothing: its column is dropped
     missing = [c for c in REQUIRED if c not in cols]
+    if missing and not cols:
+        # no known column: the file is not a stock list, and its first line is not
+        # echoed (it may be any file the spec names, e.g. a system file)
+        raise SpecError(
+            f"expected a stock list: a header row with the columns {', '.join(REQUIRED)}; "
+            "the first line names none of them",
+            file=src,
+            key="row 1",
+        )
     if missing:
         others = f" (columns it does not know: {', '.join(n for n, _ in extra)})" if extra else ""
         raise SpecError(
