@@ -164,6 +164,8 @@ class Stage:
     output, top, input, common : node names by role (see the module docstring).
     coupling_parts : the stage's own capacitors that carry the tank's signal and
         so appear in the stress figures (a blocking capacitor).
+    has_device_law : whether the stage implements :meth:`output_current` (the harmonic
+        balance of :mod:`picker.circuit.harmonic` then corrects its steady frequency).
     """
 
     name: ClassVar[str]
@@ -174,6 +176,7 @@ class Stage:
     input: ClassVar[str] = "b"
     common: ClassVar[str] = "e"
     coupling_parts: ClassVar[tuple[str, ...]] = ()
+    has_device_law: ClassVar[bool] = False
     _instance: ClassVar[Stage | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:
@@ -311,6 +314,12 @@ class Stage:
         """The device's output current driven by V_rest + ``dv`` + ``a``·cos θ (V):
         mean, harmonics 1-3 and peak (:class:`DeviceCurrents`), arrays of the broadcast
         shape of ``dv`` and ``a``."""
+        raise NotImplementedError
+
+    def output_current(self, params: AmplifierParams, ss: SmallSignal, v: np.ndarray) -> np.ndarray:
+        """The device's output current at control voltage V_rest + ``v`` (V, any shape), A:
+        the law :meth:`device_currents` takes the harmonics of, for the harmonic correction
+        of :mod:`picker.circuit.harmonic`."""
         raise NotImplementedError
 
     def diffusion_capacitance(self, params: AmplifierParams, ss: SmallSignal) -> float:
