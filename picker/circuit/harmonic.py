@@ -26,8 +26,15 @@ port's own impedance, both of the network *without* the junction's nonlinear par
 passive part kept), by a stacked nodal solve. ΔV and a are the describing-function
 solution's (the mean current, held by the bias network, and the amplitude, set there
 together with the saturation limiter); the harmonics n ≥ 2 of (H4) are solved by
-Newton's method (harmonic Newton, Kundert et al. ch. 4), and the fundamental's phase
-condition arg((B_1·I_1 + Z_1·I_in,1)/a) = 0 gives the frequency by the secant method.
+Newton's method (harmonic Newton, Kundert et al. ch. 4). For the fundamental, with the
+port's own fundamental admittance Y_in = I_in,1/a and transconductance G_1 = I_1/a
+(complex: the harmonics turn them), (H4) at n = 1 is the loop condition of a return ratio
+
+    T_1 = G_1·B_1/(1 − Z_1·Y_in) = 1                                          (H5)
+
+(the linear loop's T = gm·B/(1 − Z·y_pi) at small drive); the describing function set
+its magnitude, and its phase condition arg T_1 = 0 gives the frequency by the secant
+method.
 """
 
 from __future__ import annotations
@@ -86,7 +93,7 @@ def port_responses(net: Network, idx: np.ndarray, s: np.ndarray) -> tuple[np.nda
 def _harmonics(
     net: Network, idx: np.ndarray, w: np.ndarray, a: np.ndarray, dv: np.ndarray
 ) -> tuple[np.ndarray, np.ndarray]:
-    """The fundamental's phase residual arg((B_1·I_1 + Z_1·I_in,1)/a) of (H4) at ω = ``w``
+    """The fundamental's phase residual arg T_1 of (H5) at ω = ``w``
     with the harmonics solved, and a mask of the elements where Newton converged."""
     stage, params, ss = net.stage, net.params, net.ss
     tf = stage.diffusion_capacitance(params, ss) / ss.gm
@@ -141,7 +148,8 @@ def _harmonics(
         v_h = v_h - scale[:, None] * dvh
     v = base + (v_h @ rot[1:]).real
     i1 = 2.0 * (stage.output_current(params, ss, v) @ rot[0].conj()) / _POINTS
-    phase = np.angle(kern[:, 0] * i1 / a)  # (H4), n = 1
+    g1 = i1 / a  # the fundamental transconductance, complex
+    phase = np.angle(b[:, 0] * g1 / (1.0 - z[:, 0] * y_in[:, 0] * g1))  # (H5)
     return phase, res <= 1e-6
 
 
