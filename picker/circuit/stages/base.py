@@ -31,7 +31,9 @@ each with its source. Defining the class registers it
 harmonics and peak of the output current for a sine at the input) and
 :meth:`Stage.diffusion_capacitance`; without them :meth:`Stage.bias_loop` returns
 ``None``: the steady frequency is then the linear zero-phase frequency and the other
-steady figures are NaN. ``tests/test_stage_conformance.py`` then
+steady figures are NaN. A stage that also gives its device law in the time domain
+(:meth:`Stage.output_current`, with ``has_device_law = True``) gets its steady
+frequency corrected by the harmonic balance of :mod:`picker.circuit.harmonic`. ``tests/test_stage_conformance.py`` then
 checks it without change: the idealised stage (:meth:`Stage.ideal_params`)
 reduces to its textbook start-up condition (:meth:`Stage.required_gain`), the
 fast closed form agrees with the generic nodal solver, and the netlist of
