@@ -16,6 +16,9 @@ The model, in three steps (each module states its method and sources):
    charge storage) with the bias shift; the compression that puts the closed-loop
    pole on the imaginary axis gives the steady frequency, the drive gives the
    amplitudes, the harmonics, the peak current and the dissipation.
+   Where the device stays out of saturation, the frequency is then corrected by
+   harmonic balance of the junction (:mod:`picker.circuit.harmonic`): the device's
+   harmonic currents fed back through the network move the loop's phase balance.
 3. **Steadiness and start-up time** (:mod:`picker.circuit.envelope`): averaged
    envelope equations with the bias network's slow states.
 """
@@ -30,6 +33,7 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.envelope import SATURATED_BURST, bursting, startup_time
+from picker.circuit.harmonic import harmonic_frequency
 from picker.circuit.large_signal import loop_compression, solve_drive
 from picker.circuit.network import Network
 from picker.circuit.oscillation import CHUNK
@@ -193,6 +197,13 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     a0 = 2.0 * (2.0 * KICK_FRACTION * loop.i_rest / pole0.imag) * np.abs(be0 / dt_ds)
     t_up = startup_time(stage, params, ss, loop, a0, a, pole0.real, c_star, ratio, c_b)
     good = ok & drive.ok
+    # harmonic balance of the junction where the device stays out of saturation (the
+    # device law of picker.circuit.harmonic has no knee): the frequency with the harmonics
+    hb = np.nonzero(good & ~drive.saturated)[0]
+    if hb.size and stage.has_device_law:
+        w_hb, _ = harmonic_frequency(net, sub[hb], w[hb], a[hb], drive.dv[hb])
+        w = w.copy()
+        w[hb] = w_hb
     out["f_hz"][sub] = np.where(ok, w / TWO_PI, np.nan)
     out["amplitude_v"][sub] = np.where(good, top, np.nan)
     out["harmonics_dbc"][sub] = np.where(good[:, None], np.stack(harm, axis=1), np.nan)

@@ -31,7 +31,9 @@ each with its source. Defining the class registers it
 harmonics and peak of the output current for a sine at the input) and
 :meth:`Stage.diffusion_capacitance`; without them :meth:`Stage.bias_loop` returns
 ``None``: the steady frequency is then the linear zero-phase frequency and the other
-steady figures are NaN. ``tests/test_stage_conformance.py`` then
+steady figures are NaN. A stage that also gives its device law in the time domain
+(:meth:`Stage.output_current`, with ``has_device_law = True``) gets its steady
+frequency corrected by the harmonic balance of :mod:`picker.circuit.harmonic`. ``tests/test_stage_conformance.py`` then
 checks it without change: the idealised stage (:meth:`Stage.ideal_params`)
 reduces to its textbook start-up condition (:meth:`Stage.required_gain`), the
 fast closed form agrees with the generic nodal solver, and the netlist of
@@ -164,6 +166,8 @@ class Stage:
     output, top, input, common : node names by role (see the module docstring).
     coupling_parts : the stage's own capacitors that carry the tank's signal and
         so appear in the stress figures (a blocking capacitor).
+    has_device_law : whether the stage implements :meth:`output_current` (the harmonic
+        balance of :mod:`picker.circuit.harmonic` then corrects its steady frequency).
     """
 
     name: ClassVar[str]
@@ -174,6 +178,7 @@ class Stage:
     input: ClassVar[str] = "b"
     common: ClassVar[str] = "e"
     coupling_parts: ClassVar[tuple[str, ...]] = ()
+    has_device_law: ClassVar[bool] = False
     _instance: ClassVar[Stage | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:
@@ -311,6 +316,12 @@ class Stage:
         """The device's output current driven by V_rest + ``dv`` + ``a``·cos θ (V):
         mean, harmonics 1-3 and peak (:class:`DeviceCurrents`), arrays of the broadcast
         shape of ``dv`` and ``a``."""
+        raise NotImplementedError
+
+    def output_current(self, params: AmplifierParams, ss: SmallSignal, v: np.ndarray) -> np.ndarray:
+        """The device's output current at control voltage V_rest + ``v`` (V, any shape), A:
+        the law :meth:`device_currents` takes the harmonics of, for the harmonic correction
+        of :mod:`picker.circuit.harmonic`."""
         raise NotImplementedError
 
     def diffusion_capacitance(self, params: AmplifierParams, ss: SmallSignal) -> float:

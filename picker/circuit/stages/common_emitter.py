@@ -112,6 +112,7 @@ class CommonEmitter(Stage):
     """The common-emitter bjt stage (the project's generic NPN unless told otherwise)."""
 
     name = "common-emitter"
+    has_device_law = True
     device = "bjt"
     coupling_parts = ("CB",)
 
@@ -371,6 +372,11 @@ class CommonEmitter(Stage):
             h3=2.0 * scale * b3,
             peak=scale,
         )
+
+    def output_current(self, params: AmplifierParams, ss: SmallSignal, v: np.ndarray) -> np.ndarray:
+        """i_C = I_rest·exp(v/V_T) (equation (D1) without the Early factor)."""
+        vt = thermal_voltage(params.temperature_c)
+        return ss.i_dc * np.exp(np.minimum(np.asarray(v, dtype=float) / vt, 700.0))
 
     def diffusion_capacitance(self, params: AmplifierParams, ss: SmallSignal) -> float:
         """TF·gm (equation (D4)) where C_pi comes from the card, gm/(2π·f_T) − C_mu less the

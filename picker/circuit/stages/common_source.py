@@ -56,6 +56,7 @@ class CommonSource(CommonEmitter):
     """The common-source fet stage (a square-law device described by its small-signal values)."""
 
     name = "common-source"
+    has_device_law = True
     device = "fet"
 
     def bias(self, params: AmplifierParams) -> BiasPoint | None:
@@ -156,6 +157,12 @@ class CommonSource(CommonEmitter):
             h3=2.0 * (i * np.cos(3 * _THETA)).mean(axis=-1),
             peak=k * np.maximum(v_ov + dv + a, 0.0) ** 2,
         )
+
+    def output_current(self, params: AmplifierParams, ss: SmallSignal, v: np.ndarray) -> np.ndarray:
+        """Square law with cut-off, i_D = K·max(V_ov + v, 0)², K = I_D/V_ov² (as in
+        :meth:`device_currents`)."""
+        v_ov = self.overdrive(params, ss)
+        return ss.i_dc / (v_ov * v_ov) * np.maximum(v_ov + np.asarray(v, dtype=float), 0.0) ** 2
 
     def diffusion_capacitance(self, params: AmplifierParams, ss: SmallSignal) -> float:
         """0: C_gs is taken as fixed."""
