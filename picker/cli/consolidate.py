@@ -36,7 +36,7 @@ def run_consolidate(
     # the plan pulls in pydantic, scipy and ortools: imported here, not at start-up
     from picker.api.plan import run_plan
     from picker.report import plan as plan_report
-    from picker.report.bom import plan_designators, plan_stocks, write_bom
+    from picker.report.bom import plan_currency, plan_designators, plan_stocks, write_bom
     from picker.spec.plan import load_plan
 
     f = fmt.strip().lower()
@@ -77,6 +77,7 @@ def run_consolidate(
             stocks=stocks,
             force=force,
             inputs=plan.inputs(),
+            currency=plan_currency(run),
         )
         sys.stderr.write(f"picker: wrote {wrote}\n")
     if f == "json":

@@ -21,7 +21,7 @@ from rich.text import Text
 from picker import __version__
 from picker.api.plan import PlanRun
 from picker.buyer.model import PlanSummary
-from picker.report.bom import bom_rows, plan_designators, plan_stocks
+from picker.report.bom import bom_rows, plan_currency, plan_designators, plan_stocks
 from picker.report.designs import candidate_dict
 from picker.report.text import Col, pct, pct_range, plain, print_fitted
 from picker.units import format_percent, format_quantity
@@ -67,7 +67,12 @@ def plan_dict(run: PlanRun) -> dict[str, Any]:
         "reductions": {k: v for k, v in r.reductions.items() if not k.endswith("_seconds")},
         "channels": channels,
         "bom": (
-            bom_rows(r.plan.bom, designators=plan_designators(run), stocks=plan_stocks(run))
+            bom_rows(
+                r.plan.bom,
+                designators=plan_designators(run),
+                stocks=plan_stocks(run),
+                currency=plan_currency(run),
+            )
             if r.plan
             else []
         ),
@@ -86,10 +91,12 @@ def plan_dict(run: PlanRun) -> dict[str, Any]:
                 d["parts"][pos]["part_id"] = ids[0] if len(ids) == 1 else list(ids)
             entry.update({"candidate": j, **d})
         channels.append(entry)
+    if plan_currency(run):  # only when said, so plans without one keep their bytes
+        out["currency"] = plan_currency(run)
     return out
 
 
-def print_table(run: PlanRun, con: Console, *, currency: str = "") -> None:
+def print_table(run: PlanRun, con: Console) -> None:
     """Print the plan: the head line, one row per channel, the BOM and the saving."""
     r = run.result
     ps = run.plan.spec
@@ -129,7 +136,7 @@ def print_table(run: PlanRun, con: Console, *, currency: str = "") -> None:
         cols[-2].cells.append(f"#{j + 1}")
         cols[-1].cells.append(format_quantity(c.f_nominal_hz, "Hz"))
     print_fitted(con, cols)
-    cur = currency or ""
+    cur = plan_currency(run)
     money = f" ({cur})" if cur else ""
     bom = [
         Col("part", justify="left"),
@@ -161,7 +168,7 @@ def print_table(run: PlanRun, con: Console, *, currency: str = "") -> None:
         f"distinct parts {plan.distinct_parts} (each channel's best alone: {base.distinct_parts})"
     )
     con.print(
-        f"build cost {plan.cost:.2f}{money} (alone: {base.cost:.2f}"
+        f"build cost {plan.cost:.2f}{' ' + cur if cur else ''} (alone: {base.cost:.2f}"
         + ("" if base.stock_ok else ", short of stock")
         + ")"
     )
