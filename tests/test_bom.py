@@ -324,3 +324,39 @@ def test_plan_currency_in_bom_json_and_table(run_cli, tmp_path, monkeypatch):
     code, table, err = run_cli("consolidate", str(p))
     assert code == 0, err
     assert "extended (CHF)" in table and "CHF" in table.splitlines()[-2]
+
+
+def _plan_with_channel_currencies(tmp_path, north: str, east: str):
+    from pathlib import Path
+
+    demo = Path(__file__).resolve().parent.parent / "demo_specs"
+    text = (demo / "plan_demo.toml").read_text(encoding="utf-8")
+    text = text.replace('base = "', f'base = "{demo}/', 1).replace(
+        'stock = "', f'stock = "{demo}/', 1
+    )
+    text += f'\n[channels.north.set]\n"cost.currency" = "{north}"\n'
+    text = text.replace(
+        'min_yield = "85 %"\n',
+        f'min_yield = "85 %"\n[channels.east.set]\n"cost.currency" = "{east}"\n',
+    )
+    p = tmp_path / "plan.toml"
+    p.write_text(text, encoding="utf-8")
+    return p
+
+
+def test_plan_takes_the_channel_specs_currency(run_cli, tmp_path):
+    p = _plan_with_channel_currencies(tmp_path, "USD", "usd")
+    code, js, err = run_cli("consolidate", str(p), "-f", "json")
+    assert code == 0, err
+    data = json.loads(js)
+    assert data["currency"] == "USD" and {r["currency"] for r in data["bom"]} == {"USD"}
+
+
+def test_plan_channels_in_two_currencies_are_refused(run_cli, tmp_path):
+    p = _plan_with_channel_currencies(tmp_path, "USD", "EUR")
+    out = tmp_path / "bom.csv"
+    code, js, err = run_cli("consolidate", str(p), "--bom", str(out))
+    assert code == 2 and not out.exists() and js == ""
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("picker: error: ")
+    assert "currency" in lines[0] and "EUR, USD" in lines[0]

@@ -61,6 +61,7 @@ def run_consolidate(
         check_report(report, force, plan.inputs())
     run = run_plan(plan, time_limit=time_limit, workers=workers)
     stocks = plan_stocks(run)
+    plan_currency(run)  # channel specs in different currencies: refused before any output
     note_stock_columns(stocks)
     if report is not None and run.result.status != "unknown":
         from picker.cli.options import command_line

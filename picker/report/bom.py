@@ -283,12 +283,26 @@ def design_bom(result: SolveResult, rank: int = 1) -> tuple[list[BomLine], dict[
 
 
 def plan_currency(run: PlanRun) -> str:
-    """The currency of a plan's prices: the plan's ``currency``, else the one every
-    channel spec's ``[cost] currency`` gives ("" when none or when they differ)."""
+    """The currency of a plan's prices: the plan's ``currency``, else the one the
+    channel specs' ``[cost] currency`` give ("" when none does).
+
+    Raises
+    ------
+    SpecError
+        Channel specs naming different currencies (their prices cannot be summed)
+        while the plan names none.
+    """
     if run.plan.spec.currency:
         return run.plan.spec.currency
-    found = {ch.spec.cost.currency for ch in run.channels}
-    return found.pop() if len(found) == 1 else ""
+    found = sorted({ch.spec.cost.currency for ch in run.channels} - {""})
+    if len(found) > 1:
+        raise SpecError(
+            f"the channel specs price in {', '.join(found)}; expected one currency "
+            "(set the plan's currency to the one its prices are in)",
+            file=str(run.plan.path),
+            key="currency",
+        )
+    return found[0] if found else ""
 
 
 def design_stocks(result: SolveResult) -> list[StockList]:
