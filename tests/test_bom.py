@@ -225,3 +225,138 @@ def test_single_design_bom_from_solve(run_cli, tmp_path):
         assert float(r["extended_price"]) == pytest.approx(price * qty)
         on_hand = int(s["on_hand"])
         assert int(r["short_by"]) == max(0, qty - on_hand)
+
+
+# ------------------------------------------------------------------ currency of the prices
+# ISO 4217 alphabetic codes are three letters A-Z ("EUR", "USD", "CHF"); the list itself is
+# not checked (an in-house or new code is accepted).
+
+
+def _currency_spec(tmp_path, value: str) -> object:
+    from pathlib import Path
+
+    demo = Path(__file__).resolve().parent.parent / "demo_specs"
+    text = (demo / "buyer_exciter.toml").read_text(encoding="utf-8")
+    assert "\n[cost]\n" in text
+    text = text.replace("\n[cost]\n", f"\n[cost]\ncurrency = {json.dumps(value)}\n")
+    (tmp_path / "stock_demo.csv").write_text(
+        (demo / "stock_demo.csv").read_text(encoding="utf-8"), encoding="utf-8"
+    )
+    p = tmp_path / "buyer.toml"
+    p.write_text(text, encoding="utf-8")
+    return p
+
+
+def test_spec_currency_fills_the_bom_the_table_and_the_json(run_cli, tmp_path, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "120")
+    spec = _currency_spec(tmp_path, "eur")  # lower case is read as the code
+    out = tmp_path / "bom.csv"
+    code, js, err = run_cli("solve", str(spec), "--samples", "300", "-f", "json", "--bom", str(out))
+    assert code == 0, err
+    rows = list(csv.DictReader(io.StringIO(out.read_bytes().decode("utf-8-sig"), newline="")))
+    assert rows and {r["currency"] for r in rows} == {"EUR"}
+    data = json.loads(js)
+    assert all(c["cost"]["currency"] == "EUR" for c in data["candidates"])
+    code, text, err = run_cli("solve", str(spec), "--samples", "300")
+    assert code == 0, err
+    assert "cost/board (EUR)" in text
+
+
+def test_without_a_currency_the_bom_column_is_blank_and_json_unchanged(run_cli, tmp_path):
+    from pathlib import Path
+
+    demo = Path(__file__).resolve().parent.parent / "demo_specs"
+    out = tmp_path / "bom.json"
+    code, js, err = run_cli(
+        "solve",
+        str(demo / "buyer_exciter.toml"),
+        "--samples",
+        "300",
+        "-f",
+        "json",
+        "--bom",
+        str(out),
+    )
+    assert code == 0, err
+    assert {r["currency"] for r in json.loads(out.read_text("utf-8"))["bom"]} == {""}
+    assert all("currency" not in c["cost"] for c in json.loads(js)["candidates"])
+
+
+@pytest.mark.parametrize("bad", ["EURO", "E1R", "", "€", "US D", 978])
+def test_a_currency_that_is_not_three_letters_is_one_line(run_cli, tmp_path, bad):
+    from pathlib import Path
+
+    demo = Path(__file__).resolve().parent.parent / "demo_specs"
+    text = (demo / "buyer_exciter.toml").read_text(encoding="utf-8")
+    text = text.replace("\n[cost]\n", f"\n[cost]\ncurrency = {json.dumps(bad)}\n")
+    p = tmp_path / "buyer.toml"
+    p.write_text(text, encoding="utf-8")
+    code, out, err = run_cli("solve", str(p))
+    assert code == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and "Traceback" not in err
+    assert "cost.currency" in lines[0] and "three-letter currency code" in lines[0]
+
+
+def test_a_stock_lists_own_currency_wins_over_the_spec(tmp_path):
+    st = _stock(tmp_path, "id,kind,value,tolerance,currency\nC-1,C,4.7n,J,USD\n")
+    rows = bom_rows([_line("C-1"), _line("C 10 nF 5 %", value=1e-8)], stocks=[st], currency="EUR")
+    assert rows[0]["currency"] == "USD"  # the list priced it
+    assert rows[1]["currency"] == "EUR"  # a generic part, priced by the spec's keys
+
+
+def test_plan_currency_in_bom_json_and_table(run_cli, tmp_path, monkeypatch):
+    from pathlib import Path
+
+    monkeypatch.setenv("COLUMNS", "80")
+    demo = Path(__file__).resolve().parent.parent / "demo_specs"
+    text = (demo / "plan_demo.toml").read_text(encoding="utf-8")
+    text = text.replace('base = "', f'currency = "CHF"\nbase = "{demo}/', 1)
+    text = text.replace('stock = "', f'stock = "{demo}/', 1)
+    p = tmp_path / "plan.toml"
+    p.write_text(text, encoding="utf-8")
+    out = tmp_path / "bom.csv"
+    code, js, err = run_cli("consolidate", str(p), "-f", "json", "--bom", str(out))
+    assert code == 0, err
+    assert json.loads(js)["currency"] == "CHF"
+    rows = list(csv.DictReader(io.StringIO(out.read_bytes().decode("utf-8-sig"), newline="")))
+    assert {r["currency"] for r in rows} == {"CHF"}
+    code, table, err = run_cli("consolidate", str(p))
+    assert code == 0, err
+    assert "extended (CHF)" in table and "CHF" in table.splitlines()[-2]
+
+
+def _plan_with_channel_currencies(tmp_path, north: str, east: str):
+    from pathlib import Path
+
+    demo = Path(__file__).resolve().parent.parent / "demo_specs"
+    text = (demo / "plan_demo.toml").read_text(encoding="utf-8")
+    text = text.replace('base = "', f'base = "{demo}/', 1).replace(
+        'stock = "', f'stock = "{demo}/', 1
+    )
+    text += f'\n[channels.north.set]\n"cost.currency" = "{north}"\n'
+    text = text.replace(
+        'min_yield = "85 %"\n',
+        f'min_yield = "85 %"\n[channels.east.set]\n"cost.currency" = "{east}"\n',
+    )
+    p = tmp_path / "plan.toml"
+    p.write_text(text, encoding="utf-8")
+    return p
+
+
+def test_plan_takes_the_channel_specs_currency(run_cli, tmp_path):
+    p = _plan_with_channel_currencies(tmp_path, "USD", "usd")
+    code, js, err = run_cli("consolidate", str(p), "-f", "json")
+    assert code == 0, err
+    data = json.loads(js)
+    assert data["currency"] == "USD" and {r["currency"] for r in data["bom"]} == {"USD"}
+
+
+def test_plan_channels_in_two_currencies_are_refused(run_cli, tmp_path):
+    p = _plan_with_channel_currencies(tmp_path, "USD", "EUR")
+    out = tmp_path / "bom.csv"
+    code, js, err = run_cli("consolidate", str(p), "--bom", str(out))
+    assert code == 2 and not out.exists() and js == ""
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("picker: error: ")
+    assert "currency" in lines[0] and "EUR, USD" in lines[0]

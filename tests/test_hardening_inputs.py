@@ -480,3 +480,84 @@ def test_two_thousand_stock_capacitors_with_pairs_stay_within_1_5_gb(tmp_path):
     assert status in ("0", "1", "2"), err
     if status == "2":
         assert err.count("|") == 0 and err.startswith("picker: error: "), err
+
+
+# ------------------------------------------------------------------ leftovers of issue 13
+
+
+def _clapp_design_args() -> list[str]:
+    """A design of the Clapp demo (which samples with the normal distribution)."""
+    return ["--set", "C1=100p", "--set", "C2=100p", "--set", "C3=68p", "--set", "L=27u"]
+
+
+def test_evaluate_tol_with_the_normal_distribution_is_checked_like_the_spec():
+    # Found: `evaluate --tol L=99%` skipped the spec-level check against non-physical draws.
+    # sigma = tol/3 (JCGM 100:2008, G.1, coverage factor 3) and the sampler's deepest
+    # variate is 2^-53, z = Phi^-1(2^-53) = -8.2 (scipy.special.ndtri): from a tolerance of
+    # 3/8.2 = 36.5 % a draw nominal*(1 + z*tol/3) is at or below zero.
+    from scipy.special import ndtri
+
+    limit = 3 / -float(ndtri(2.0**-53))
+    assert 0.36 < limit < 0.37
+    spec = str(DEMO / "clapp_vfo.toml")
+    for tol, refused in (("99%", True), ("37%", True), ("36%", False), ("30%", False)):
+        assert (float(tol[:-1]) / 100 > limit) == refused  # the case is on the side it claims
+        code, out, err = run_cli(
+            ["evaluate", spec, *_clapp_design_args(), "--tol", f"L={tol}", "--samples", "200"]
+        )
+        if refused:
+            assert code == 2, (tol, err)
+            line = error_line(err)
+            assert line.startswith("--tol L: ") and "below zero" in line, line
+        else:
+            assert code in (0, 1), (tol, err)
+
+
+def test_evaluate_tol_with_a_uniform_distribution_may_be_wide():
+    # A uniform draw stays within ±tol: 60 % is physical (values from 0.4 x nominal).
+    code, out, err = run_cli(
+        [
+            "evaluate",
+            str(DEMO / "probe_exciter.toml"),
+            "--set",
+            "C1=1n",
+            "--set",
+            "C2=4.7n",
+            "--set",
+            "L=33u",
+            "--tol",
+            "L=60%",
+            "--samples",
+            "200",
+        ]
+    )
+    assert code in (0, 1), err
+
+
+def test_a_fifo_lot_file_is_called_a_fifo(tmp_path):
+    # Found: a FIFO lot file was reported as "no such lot file".
+    spec, lot = _lot_spec(tmp_path)
+    lot.unlink()
+    os.mkfifo(lot)
+    r = _subprocess("solve", str(spec), timeout=60)
+    assert r.returncode == 2
+    line = error_line(r.stderr)
+    assert "FIFO" in line and "no such" not in line, line
+
+
+def test_a_symlink_loop_lot_file_is_called_a_loop(tmp_path):
+    spec, lot = _lot_spec(tmp_path)
+    lot.unlink()
+    lot.symlink_to(lot)
+    code, out, err = run_cli(["solve", str(spec)], cwd=tmp_path)
+    assert code == 2
+    line = error_line(err)
+    assert "loop of symbolic links" in line and "no such" not in line, line
+
+
+def test_a_missing_lot_file_is_still_no_such_lot_file(tmp_path):
+    spec, lot = _lot_spec(tmp_path)
+    lot.unlink()
+    code, out, err = run_cli(["solve", str(spec)], cwd=tmp_path)
+    assert code == 2
+    assert "no such lot file" in error_line(err)

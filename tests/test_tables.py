@@ -213,3 +213,118 @@ def test_solve_plot_says_what_it_wrote(run_cli, tmp_path):
     assert pngs
     for png in pngs:
         assert f"picker: wrote {png}" in err
+
+
+# ------------------------------------------------------------------ every table of every command
+# A cell that rich wraps continues on the next line of the table, so its whole text is
+# in no single cell of that table. Each command is run twice with the same seed: at 1000
+# columns (where nothing can wrap) and at 80; every cell and header of the wide run must
+# appear whole as a cell of the 80-column run, with no ellipsis and no line over 80.
+
+_BARS = re.compile("[│┃]")
+
+
+def _cells(text: str) -> list[str]:
+    """Every non-empty cell and header of every table (lines between two bars)."""
+    out = []
+    for line in text.splitlines():
+        if _BARS.search(line):
+            parts = _BARS.split(line)[1:-1]
+            out += [c.strip() for c in parts if c.strip()]
+    return out
+
+
+def _at(run_cli, monkeypatch, columns: int, *argv: str) -> str:
+    monkeypatch.setenv("COLUMNS", str(columns))
+    code, out, err = run_cli(*argv)
+    assert code in (0, 1), err  # 1: no design met the yield target, tables still printed
+    return out
+
+
+def _check_whole_at_80(run_cli, monkeypatch, *argv: str) -> None:
+    wide = _at(run_cli, monkeypatch, 1000, *argv)
+    narrow = _at(run_cli, monkeypatch, 80, *argv)
+    want = _cells(wide)
+    assert want, f"no table in the output of {argv}"
+    assert "…" not in narrow
+    too_long = [line for line in narrow.splitlines() if _BARS.search(line) and len(line) > 80]
+    assert not too_long, too_long
+    got = set(_cells(narrow))
+    missing = [c for c in want if c not in got]
+    assert not missing, f"cut or wrapped at 80 columns: {missing[:5]}\n{narrow}"
+
+
+def _evaluate_args(parts: dict) -> list[str]:
+    """A design from solve's JSON as evaluate's options (as tests/test_evaluate_roundtrip)."""
+    out = []
+    for p, x in parts.items():
+        pair = x.get("pair")
+        if x.get("part_id"):
+            ids = [q["part_id"] for q in pair] if pair else [x["part_id"]]
+            out.append(f"--part={p}={'+'.join(ids)}")
+        else:
+            vals = [q["value"] for q in pair] if pair else [x["value"]]
+            out.append(f"--set={p}={'+'.join(repr(v) for v in vals)}")
+            out.append(f"--tol={p}={x['tolerance'] * 100!r}%")
+    return out
+
+
+@pytest.mark.parametrize("name", SOLVABLE)
+def test_solve_and_evaluate_tables_are_whole_at_80_columns(run_cli, monkeypatch, name):
+    spec = str(DEMO / name)
+    fast = ("--samples", "400")
+    _check_whole_at_80(run_cli, monkeypatch, "solve", spec, *fast)
+    js = _at(run_cli, monkeypatch, 80, "solve", spec, *fast, "-f", "json")
+    cands = json.loads(js)["candidates"]
+    if cands:
+        args = _evaluate_args(cands[0]["parts"])
+        _check_whole_at_80(run_cli, monkeypatch, "evaluate", spec, *args, *fast)
+
+
+def test_consolidate_tables_are_whole_at_80_columns(run_cli, monkeypatch):
+    _check_whole_at_80(run_cli, monkeypatch, "consolidate", str(DEMO / "plan_demo.toml"))
+
+
+def test_consolidate_at_80_columns_keeps_each_row_on_one_line(run_cli, monkeypatch):
+    """The plan demo: three channels, so each channel table has 3 body lines; the BOM as
+    many lines as its JSON has parts (counted from the JSON, not the table code)."""
+    plan = str(DEMO / "plan_demo.toml")
+    data = json.loads(_at(run_cli, monkeypatch, 80, "consolidate", plan, "-f", "json"))
+    text = _at(run_cli, monkeypatch, 80, "consolidate", plan)
+    bodies: list[int] = []
+    n = None
+    for line in text.splitlines():
+        if line.startswith("┡"):
+            n = 0
+        elif line.startswith("└"):
+            bodies.append(n or 0)
+            n = None
+        elif n is not None:
+            n += 1
+    channels, parts = len(data["channels"]), len(data["bom"])
+    assert bodies and set(bodies) <= {channels, parts}, (bodies, text)
+    assert bodies.count(parts) >= 1 and bodies.count(channels) >= 1
+    for ch in data["channels"]:  # every part value and id whole on one line
+        for p in ch["parts"].values():
+            ids = p["part_id"] if isinstance(p["part_id"], list) else [p["part_id"]]
+            assert any(
+                p["display"].split(" ")[0] in line and ids[0] in line for line in text.splitlines()
+            ), (p, text)
+
+
+@pytest.mark.parametrize("spec", ["probe_exciter.toml", "production_exciter.toml"])
+def test_calibrate_tables_are_whole_at_80_columns(run_cli, monkeypatch, spec):
+    _check_whole_at_80(
+        run_cli, monkeypatch, "calibrate", str(DEMO / "bench_units.csv"), "--spec", str(DEMO / spec)
+    )
+
+
+def test_series_list_is_whole_at_80_columns(run_cli, monkeypatch):
+    """series prints one value a line (no box table): each line is a whole value, and the
+    count is the JSON's (IEC 60063: E96 has 96 values a decade, 1n..10n holds 97)."""
+    argv = ("series", "E96", "--min", "1n", "--max", "10n")
+    text = _at(run_cli, monkeypatch, 80, *argv)
+    values = json.loads(_at(run_cli, monkeypatch, 80, *argv, "-f", "json"))["values"]
+    lines = text.splitlines()
+    assert len(lines) == len(values) == 97
+    assert "…" not in text and all(re.fullmatch(r"\d+(\.\d+)? nF", x) for x in lines), lines

@@ -90,7 +90,7 @@ def candidate_dict(c: Candidate) -> dict:
 def result_dict(r: SolveResult) -> dict:
     """The whole result as the JSON writes it (same keys, same order)."""
     s = r.spec
-    out = {
+    out: dict[str, Any] = {
         "picker_version": __version__,
         "title": s.title,
         "topology": s.topology,
@@ -113,6 +113,10 @@ def result_dict(r: SolveResult) -> dict:
         "warnings": list(r.warnings),
         "candidates": [candidate_dict(c) for c in r.candidates],
     }
+    if s.cost.currency:  # the prices' currency beside them, only when the spec says it
+        for d in out["candidates"]:
+            if "cost" in d:
+                d["cost"] = {**d["cost"], "currency": s.cost.currency}
     if r.status != "ok":
         out["misses"] = [
             {

@@ -28,7 +28,7 @@ from picker.parts import series as series_mod
 from picker.parts.drift import check_range, material_of, temperature_grid
 from picker.parts.pairs import pair_table
 from picker.parts.table import ValueTable
-from picker.spec.load import materials_like
+from picker.spec.load import NORMAL_TOL_MAX, materials_like
 from picker.spec.model import PartSpec, Spec
 from picker.spec.production import candidate_values
 from picker.spec.stock import stock_table, unit_price
@@ -364,6 +364,20 @@ def given_tables(
         p: given_table(spec, p, values.get(p), tolerances.get(p), parts.get(p), notes)
         for p in topo.positions
     }
+    for p in topo.positions:  # the spec-level check of spec.load, for the given parts
+        part = spec.parts[p]
+        if part.lot is not None or (part.distribution or spec.yield_.distribution) != "normal":
+            continue
+        t = tables[p]
+        tol = max(float(t.tol[0]), float(t.second_tol[0]))
+        if tol > NORMAL_TOL_MAX:
+            raise SpecError(
+                f"a normal distribution (sigma = tolerance/3) with a tolerance of "
+                f"{format_percent(tol)} draws part values at or below zero in its tail "
+                f"(from {NORMAL_TOL_MAX * 100:.1f} %); use distribution = 'uniform' or a tighter "
+                f"tolerance",
+                key=f"--tol {p}",
+            )
     return tables, notes
 
 

@@ -36,7 +36,7 @@ def run_consolidate(
     # the plan pulls in pydantic, scipy and ortools: imported here, not at start-up
     from picker.api.plan import run_plan
     from picker.report import plan as plan_report
-    from picker.report.bom import plan_designators, plan_stocks, write_bom
+    from picker.report.bom import plan_currency, plan_designators, plan_stocks, write_bom
     from picker.spec.plan import load_plan
 
     f = fmt.strip().lower()
@@ -61,6 +61,7 @@ def run_consolidate(
         check_report(report, force, plan.inputs())
     run = run_plan(plan, time_limit=time_limit, workers=workers)
     stocks = plan_stocks(run)
+    plan_currency(run)  # channel specs in different currencies: refused before any output
     note_stock_columns(stocks)
     if report is not None and run.result.status != "unknown":
         from picker.cli.options import command_line
@@ -77,6 +78,7 @@ def run_consolidate(
             stocks=stocks,
             force=force,
             inputs=plan.inputs(),
+            currency=plan_currency(run),
         )
         sys.stderr.write(f"picker: wrote {wrote}\n")
     if f == "json":

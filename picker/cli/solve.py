@@ -90,7 +90,11 @@ def _write_bom(result: SolveResult, bom: Path | None, force: bool, spec: Path) -
     lines, places = design_bom(result)
     stocks = design_stocks(result)
     inputs = [spec, *(Path(str(st.source)) for st in stocks)]
-    _wrote([write_bom(bom, lines, designators=places, stocks=stocks, force=force, inputs=inputs)])
+    cur = result.spec.cost.currency
+    wrote = write_bom(
+        bom, lines, designators=places, stocks=stocks, force=force, inputs=inputs, currency=cur
+    )
+    _wrote([wrote])
 
 
 def _write_report(

@@ -16,7 +16,9 @@ qty_per_board   parts of this id on one board (a parallel pair counts twice)
 qty_build       qty_per_board × build quantity
 unit_price      unit price at qty_build (blank / null when unknown)
 extended_price  unit_price × qty_build (blank / null when unknown)
-currency        the stock list's ``currency`` column ("" when it has none)
+currency        the stock list's ``currency`` column for its parts, else the
+                spec's ``[cost] currency`` (a plan's ``currency``); "" when
+                neither says
 on_hand         quantity on hand (blank / null when not tracked)
 short_by        how many more must be bought (0 when the stock covers the build)
 ==============  =============================================================
@@ -113,6 +115,7 @@ def bom_rows(
     *,
     designators: Mapping[str, Sequence[str]] | None = None,
     stocks: Sequence[StockList] = (),
+    currency: str = "",
 ) -> list[dict]:
     """BOM lines as dicts with the keys of :data:`COLUMNS` (None where unknown),
     then the stock lists' descriptive columns."""
@@ -136,7 +139,7 @@ def bom_rows(
                 "qty_build": int(b.qty_build),
                 "unit_price": _price(b.unit_price),
                 "extended_price": _price(b.extended_price),
-                "currency": described.get("currency", ""),
+                "currency": described.get("currency", "") or currency,
                 "on_hand": _num(b.on_hand),
                 "short_by": int(b.short_by),
                 **{n: described.get(n, "") for n in names},
@@ -158,9 +161,10 @@ def bom_csv(
     *,
     designators: Mapping[str, Sequence[str]] | None = None,
     stocks: Sequence[StockList] = (),
+    currency: str = "",
 ) -> str:
     """The BOM as CSV text (header row first, ``\\r\\n`` line ends as RFC 4180)."""
-    rows = bom_rows(lines, designators=designators, stocks=stocks)
+    rows = bom_rows(lines, designators=designators, stocks=stocks, currency=currency)
     header = list(rows[0]) if rows else [*COLUMNS, *_described(stocks)[0]]
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator=CSV_LINE_END)
@@ -175,10 +179,11 @@ def bom_json(
     *,
     designators: Mapping[str, Sequence[str]] | None = None,
     stocks: Sequence[StockList] = (),
+    currency: str = "",
     **extra: object,
 ) -> str:
     """The BOM as a JSON object ``{"bom": [...], **extra}``, keys in a fixed order."""
-    rows = bom_rows(lines, designators=designators, stocks=stocks)
+    rows = bom_rows(lines, designators=designators, stocks=stocks, currency=currency)
     return json.dumps({**extra, "bom": rows}, indent=2, ensure_ascii=False) + "\n"
 
 
@@ -277,6 +282,29 @@ def design_bom(result: SolveResult, rank: int = 1) -> tuple[list[BomLine], dict[
     return lines, places
 
 
+def plan_currency(run: PlanRun) -> str:
+    """The currency of a plan's prices: the plan's ``currency``, else the one the
+    channel specs' ``[cost] currency`` give ("" when none does).
+
+    Raises
+    ------
+    SpecError
+        Channel specs naming different currencies (their prices cannot be summed)
+        while the plan names none.
+    """
+    if run.plan.spec.currency:
+        return run.plan.spec.currency
+    found = sorted({ch.spec.cost.currency for ch in run.channels} - {""})
+    if len(found) > 1:
+        raise SpecError(
+            f"the channel specs price in {', '.join(found)}; expected one currency "
+            "(set the plan's currency to the one its prices are in)",
+            file=str(run.plan.path),
+            key="currency",
+        )
+    return found[0] if found else ""
+
+
 def design_stocks(result: SolveResult) -> list[StockList]:
     """The stock lists a design's positions read (each once)."""
     seen: dict[str, StockList] = {}
@@ -295,6 +323,7 @@ def write_bom(
     force: bool = False,
     inputs: Iterable[str | Path] = (),
     key: str = "--bom",
+    currency: str = "",
 ) -> Path:
     """Write the BOM to ``path`` as CSV or JSON, chosen by the suffix.
 
@@ -307,9 +336,9 @@ def write_bom(
     p = Path(path)
     suffix = p.suffix.lower()
     if suffix == ".csv":
-        text = BOM + bom_csv(lines, designators=designators, stocks=stocks)
+        text = BOM + bom_csv(lines, designators=designators, stocks=stocks, currency=currency)
     elif suffix == ".json":
-        text = bom_json(lines, designators=designators, stocks=stocks)
+        text = bom_json(lines, designators=designators, stocks=stocks, currency=currency)
     else:
         raise SpecError(
             f"expected a file name ending in .csv or .json; got {p.name!r}", file=str(p), key=key

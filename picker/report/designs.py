@@ -267,7 +267,9 @@ def design_columns(r: SolveResult) -> list[Col]:
     else:
         cols.append(Col("f nominal", [_hz(c.f_nominal_hz) for c in cs], priority=2))
     if any(_cost_of(c) is not None for c in cs):
-        cols.append(Col("cost/board", [_cost_cell(c) for c in cs], priority=2))
+        cur = r.spec.cost.currency
+        head = f"cost/board ({cur})" if cur else "cost/board"
+        cols.append(Col(head, [_cost_cell(c) for c in cs], priority=2))
     cols.append(Col("error", [signed_pct(c.error, 3) for c in cs], priority=3))
     if loaded:
         cols.append(Col("margin (worst)", [_margins(c) for c in cs], priority=3))

@@ -64,3 +64,16 @@ def parse_share(v: Any, what: str, *, upper_open: bool = False, top: float = 1.0
             f"expected {what} above 0 and {bound}; got {v!r}" + units.percent_hint(v, x)
         )
     return x
+
+
+def currency_code(v: Any) -> str:
+    """A currency as a three-letter code in the style of ISO 4217 ("EUR"), upper-cased.
+
+    ISO 4217 codes are three letters A-Z (the standard's alphabetic code); the
+    list itself is not checked, so a new or in-house code is accepted.
+    """
+    if isinstance(v, str):
+        code = v.strip().upper()
+        if len(code) == 3 and all("A" <= ch <= "Z" for ch in code):
+            return code
+    raise ValueError(f"expected a three-letter currency code such as 'EUR' (ISO 4217); got {v!r}")

@@ -31,7 +31,12 @@ from picker.errors import KeyedError, SpecError
 from picker.parts import limits
 from picker.parts import series as series_mod
 from picker.spec.amplifier import AmplifierSpec
-from picker.spec.fields import parse_field_quantity, parse_share, parse_temperature_range
+from picker.spec.fields import (
+    currency_code,
+    parse_field_quantity,
+    parse_share,
+    parse_temperature_range,
+)
 from picker.spec.production import check_part as check_production_keys
 from picker.spec.production import check_spec
 from picker.spec.production import parse_part_keys as parse_production_keys
@@ -460,6 +465,14 @@ class CostSpec(_Strict):
     max_per_board: float | None = None
     rank_by: Literal["yield", "cost"] = "yield"
     min_yield: float | None = None
+    #: Currency of every price (stock lists and ``price``/``prices`` keys), a
+    #: three-letter code in the style of ISO 4217 ("EUR", "USD"); "" when not said.
+    currency: str = ""
+
+    @field_validator("currency", mode="before")
+    @classmethod
+    def _currency(cls, v: Any) -> str:
+        return currency_code(v)
 
     @field_validator("build_quantity", mode="before")
     @classmethod

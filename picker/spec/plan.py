@@ -47,6 +47,7 @@ from picker import units
 from picker.buyer.model import PRIORITIES
 from picker.errors import SpecError
 from picker.files import read_text
+from picker.spec.fields import currency_code
 from picker.spec.load import input_files, parse_toml
 from picker.tank import get_topology
 
@@ -115,7 +116,14 @@ class PlanSpec(BaseModel):
     time_limit: float = Field(10.0, gt=0, le=3600)
     match_stock: bool = True
     stock_only: bool = False
+    #: currency of the prices (ISO 4217-style code); "" takes the channel specs' [cost] currency
+    currency: str = ""
     channels: dict[str, ChannelSpec]
+
+    @field_validator("currency", mode="before")
+    @classmethod
+    def _currency(cls, v: Any) -> str:
+        return currency_code(v)
 
     @field_validator("min_yield", mode="before")
     @classmethod

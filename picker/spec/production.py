@@ -29,6 +29,7 @@ Decisions (documented in the README, "Production view"):
 from __future__ import annotations
 
 import math
+import os
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -255,7 +256,7 @@ def load_lots(spec: Spec, file: str | None) -> Spec:
             continue
         path = Path(part.lot)
         path = path if path.is_absolute() else base / path
-        if not path.is_file():
+        if not os.path.lexists(path):  # a FIFO, link loop or directory: the reader says which
             raise SpecError(f"no such lot file {str(path)!r}", file=file, key=f"parts.{pos}.lot")
         (nominal,) = candidate_values(part)
         try:
