@@ -131,7 +131,6 @@ def test_frequency_within_2_percent_for_95_percent(acc):
     assert acc.freq_within_2pct >= 0.95
 
 
-@pytest.mark.xfail(strict=True, reason=OLD_MODEL)
 def test_frequency_median_error_at_most_0_3_percent(acc):
     assert acc.freq_median_error <= 0.003
 
