@@ -244,7 +244,9 @@ def _floor(f_nominal: np.ndarray, t: Tally, *, top: int, target: float) -> tuple
     """y_N − margin of the checked designs (``f_nominal`` and ``t`` theirs, in design
     order), and the N-th's |error| (a tie at y_N exactly goes by error)."""
     y = t.mean()
-    best = estimate_order(y, f_nominal, target)[: min(top, len(y))]
+    if len(y) < top:  # fewer checked than N: any design may still enter the top N
+        return -np.inf, np.inf
+    best = estimate_order(y, f_nominal, target)[:top]
     last = best[-1]
     margin = BOUND_MARGIN_SE * float(np.max(t.std_error()[best]))
     last_err = abs(float(np.log(f_nominal[last] / target)))
