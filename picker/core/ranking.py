@@ -15,10 +15,11 @@ from __future__ import annotations
 import numpy as np
 
 from picker.core.conditional import (
+    BOUND_CHUNK,
     Tally,
+    bound_chunk,
     conditional_counts,
-    integrated_positions,
-    yield_upper_bound,
+    integrated_codes,
 )
 from picker.core.montecarlo import Simulation, count_passing
 from picker.core.screen import select_for_montecarlo
@@ -142,88 +143,159 @@ def conditional_rank(
     tally : the :class:`~picker.core.conditional.Tally` of those, same order.
     screen : (k,) float, their screen yields, same order.
     """
-    n_all = len(designs)
-    order, screen = select_for_montecarlo(sim, designs, n_all)
-    integrated = integrated_positions(sim, designs)
-    bound = yield_upper_bound(sim, designs, integrated)
-    checked = np.zeros(n_all, dtype=bool)
-    pilot = screen.copy()  # last pilot estimate (checking order; the screen before any)
-    upper = np.full(n_all, np.inf)  # last pilot estimate + PILOT_SE standard errors
-    total = np.zeros(n_all)
-    square = np.zeros(n_all)
-    passed = np.zeros(n_all, dtype=np.int64)
+    first, screen = select_for_montecarlo(sim, designs, m)
+    first = np.sort(first)
+    names, codes = integrated_codes(sim, designs)
     samples = u.shape[0]
+    f_nom = designs.f_nominal
+    # Memory (five million designs): the checked designs' sums live in small arrays
+    # (at most the cap), the designs still in play in arrays aligned with ``alive``
+    # (design order, filtered together), everything else in one byte or none.
+    checked = np.zeros(len(designs), dtype=bool)
+    c_idx = np.zeros(0, dtype=np.int64)
+    c_tally = Tally(np.zeros(0), np.zeros(0), np.zeros(0, dtype=np.int64), samples, names[:0])
 
     def count(sel: np.ndarray, uu: np.ndarray) -> Tally:
         return conditional_counts(
-            sim, designs.take(sel), uu, integrated=integrated[sel], workers=workers
+            sim, designs.take(sel), uu, integrated=names[codes[sel]], workers=workers
         )
 
     def check(sel: np.ndarray) -> None:
+        nonlocal c_idx, c_tally
         sel = np.sort(sel)
         t = count(sel, u)
-        total[sel], square[sel], passed[sel] = t.total, t.square, t.passed
         checked[sel] = True
-
-    def tally(sel: np.ndarray) -> Tally:
-        return Tally(total[sel], square[sel], passed[sel], samples, integrated[sel])
+        c_idx = np.concatenate([c_idx, sel])
+        c_tally = _joined(c_tally, t)
+        o = np.argsort(c_idx, kind="stable")  # design order: ties by index as before
+        c_idx, c_tally = c_idx[o], c_tally.take(o)
 
     def floor() -> tuple[float, float]:
-        """y_N − margin, and the N-th's |error| (a tie at y_N exactly goes by error)."""
-        idx = np.flatnonzero(checked)
-        t = tally(idx)
-        y = t.mean()
-        best = estimate_order(y, designs.f_nominal[idx], target)[: min(top, len(y))]
-        last = best[-1]
-        margin = BOUND_MARGIN_SE * float(np.max(t.std_error()[best]))
-        last_err = abs(float(np.log(designs.f_nominal[idx[last]] / target)))
-        return float(y[last]) - margin, last_err if margin == 0 else np.inf
+        return _floor(f_nom[c_idx], c_tally, top=top, target=target)
 
-    def can_reach(sel: np.ndarray, value: np.ndarray, f: tuple[float, float]) -> np.ndarray:
-        """Designs whose upper value passes the floor (or meets it and wins the tie)."""
-        err = np.abs(np.log(designs.f_nominal[sel] / target))
-        return (value > f[0]) | ((value == f[0]) & (err <= f[1]))
+    def can_reach(sel: np.ndarray, value: np.ndarray | None, f: tuple[float, float]) -> np.ndarray:
+        return _can_reach(f_nom, sel, value, f, target)
 
-    def by_pilot(sel: np.ndarray) -> np.ndarray:
-        return sel[np.lexsort((sel, -pilot[sel]))]
+    def by_pilot(sel: np.ndarray, pilot: np.ndarray, k: int) -> np.ndarray:
+        """The first k of ``sel`` by pilot (descending), then index: only the designs
+        that can be among them are sorted (the same k as a full sort)."""
+        if 0 < k < len(sel):
+            near = pilot >= np.partition(pilot, len(sel) - k)[len(sel) - k]  # k-th largest
+            sel, pilot = sel[near], pilot[near]
+        return sel[np.lexsort((sel, -pilot))][:k]
 
-    def screen_reach(sel: np.ndarray) -> np.ndarray:
-        """The screen's calibrated filter (as in :func:`monte_carlo_rank`): screen
-        yield within the largest screen error seen on checked designs, plus four
-        standard errors, of y_N."""
-        idx = np.flatnonzero(checked)
-        y = tally(idx).mean()
+    check(first)
+    alive, a_bound = _bound_survivors(sim, designs, names, codes, checked, floor(), target)
+    if len(alive) > PILOT_ALL:  # step 1b: the screen's calibrated filter
+        y = c_tally.mean()
         se = np.sqrt(np.maximum(y * (1 - y), 1.0 / samples) / samples)
-        delta = float(np.max(np.abs(screen[idx] - y) + 4 * se))
-        return screen[sel] >= floor()[0] - delta
-
-    check(order[:m])
-    alive = np.flatnonzero(~checked)
-    alive = alive[can_reach(alive, bound[alive], floor())]
-    if len(alive) > PILOT_ALL:
-        alive = alive[screen_reach(alive)]
+        delta = float(np.max(np.abs(screen[c_idx] - y) + 4 * se))
+        near = screen[alive] >= floor()[0] - delta
+        alive = alive[near]
+        a_bound = None if a_bound is None else a_bound[near]
+    a_pilot: np.ndarray | None = None  # None: the screen (no pilot has run)
+    a_upper: np.ndarray | None = None  # None: +inf
     cap = max(CAP_MIN, TOP_UP_CAP * m)
     for stage, rows in enumerate(PILOT_ROWS):
         if rows >= samples or len(alive) == 0 or len(alive) * rows > cap * samples:
             break  # a pilot dearer than checking the cap in full does not pay
         pt = count(alive, u[:rows])
-        pilot[alive] = pt.mean()
+        a_pilot = pt.mean()
         high = pt.mean() + PILOT_SE * pt.std_error()
-        upper[alive] = high
+        a_upper = high.copy()
         if stage == 0:  # the best by pilot: y_N near its final value before eliminating
-            first = by_pilot(alive)[:top]
-            check(first)
-            high[np.isin(alive, first)] = -np.inf
-        alive = alive[can_reach(alive, high, floor())]
+            best = by_pilot(alive, a_pilot, top)
+            check(best)
+            high[np.isin(alive, best)] = -np.inf
+        ok = can_reach(alive, high, floor())
+        alive, a_pilot, a_upper = alive[ok], a_pilot[ok], a_upper[ok]
+        a_bound = None if a_bound is None else a_bound[ok]
     while True:
         f = floor()
-        alive = alive[~checked[alive]]
-        alive = alive[can_reach(alive, bound[alive], f) & can_reach(alive, upper[alive], f)]
-        room = cap - int(np.count_nonzero(checked))
+        ok = ~checked[alive] & can_reach(alive, a_bound, f)
+        if a_upper is not None:
+            ok &= can_reach(alive, a_upper, f)
+        alive = alive[ok]
+        a_bound = None if a_bound is None else a_bound[ok]
+        a_pilot = None if a_pilot is None else a_pilot[ok]
+        a_upper = None if a_upper is None else a_upper[ok]
+        room = cap - len(c_idx)
         if len(alive) == 0 or room <= 0:
             break
-        check(by_pilot(alive)[: min(m, room)])
-    idx = np.flatnonzero(checked)
-    t = tally(idx)
-    ranked = idx[estimate_order(t.mean(), designs.f_nominal[idx], target)]
-    return ranked, tally(ranked), screen[ranked]
+        # the gathered screen is freed before the check (40 MB at five million designs)
+        nxt = by_pilot(alive, screen[alive] if a_pilot is None else a_pilot, min(m, room))
+        check(nxt)
+    o = estimate_order(c_tally.mean(), f_nom[c_idx], target)
+    return c_idx[o], c_tally.take(o), screen[c_idx[o]]
+
+
+def _joined(a: Tally, b: Tally) -> Tally:
+    """Two tallies of different designs over the same boards, one after the other."""
+    return Tally(
+        np.concatenate([a.total, b.total]),
+        np.concatenate([a.square, b.square]),
+        np.concatenate([a.passed, b.passed]),
+        a.samples,
+        np.concatenate([a.integrated, b.integrated]),
+    )
+
+
+def _floor(f_nominal: np.ndarray, t: Tally, *, top: int, target: float) -> tuple[float, float]:
+    """y_N − margin of the checked designs (``f_nominal`` and ``t`` theirs, in design
+    order), and the N-th's |error| (a tie at y_N exactly goes by error)."""
+    y = t.mean()
+    if len(y) < top:  # fewer checked than N: any design may still enter the top N
+        return -np.inf, np.inf
+    best = estimate_order(y, f_nominal, target)[:top]
+    last = best[-1]
+    margin = BOUND_MARGIN_SE * float(np.max(t.std_error()[best]))
+    last_err = abs(float(np.log(f_nominal[last] / target)))
+    return float(y[last]) - margin, last_err if margin == 0 else np.inf
+
+
+def _can_reach(
+    f_nominal: np.ndarray,
+    sel: np.ndarray,
+    value: np.ndarray | None,
+    f: tuple[float, float],
+    target: float,
+) -> np.ndarray:
+    """Designs ``sel`` whose upper value (None: 1 for all) passes the floor, or meets
+    it and wins the tie by |nominal error| (computed for the ties only)."""
+    if value is None:  # every value 1: one comparison, no array of ones
+        out = np.full(len(sel), 1.0 > f[0])
+        tie = np.arange(len(sel)) if 1.0 == f[0] else np.zeros(0, dtype=np.int64)
+    else:
+        out = value > f[0]
+        tie = np.flatnonzero(value == f[0])
+    if len(tie):
+        out[tie] = np.abs(np.log(f_nominal[sel[tie]] / target)) <= f[1]
+    return out
+
+
+def _bound_survivors(
+    sim: Simulation,
+    designs: Designs,
+    names: np.ndarray,
+    codes: np.ndarray,
+    checked: np.ndarray,
+    f: tuple[float, float],
+    target: float,
+) -> tuple[np.ndarray, np.ndarray | None]:
+    """Step 1 of :func:`conditional_rank` in chunks: the unchecked designs whose proven
+    bound reaches the floor ``f`` (int32, design order), and their bounds (None: all 1)."""
+    n = len(designs)
+    keep, bounds = [np.zeros(0, dtype=np.int32)], [np.zeros(0)]
+    for s in range(0, n, BOUND_CHUNK):
+        sel = np.arange(s, min(s + BOUND_CHUNK, n), dtype=np.int32)  # n <= 5e6 < 2^31
+        sel = sel[~checked[sel]]
+        b = bound_chunk(sim, designs.take(sel), names[codes[sel]])
+        ok = _can_reach(designs.f_nominal, sel, b, f, target)
+        keep.append(sel[ok])
+        bounds.append(b[ok])
+    alive = np.concatenate(keep)
+    del keep
+    # no design with a bound below 1 (a Clapp integrating C3): keep no array of ones
+    if all(bool(np.all(b == 1.0)) for b in bounds):
+        return alive, None
+    return alive, np.concatenate(bounds)

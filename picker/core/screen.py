@@ -168,15 +168,21 @@ def select_for_montecarlo(
     """
     problem = sim.problem
     n = len(designs)
-    # in chunks: the per-design temporaries stay bounded however many designs there are
-    parts = [
-        screen_yield(sim, designs.take(np.arange(i, min(i + SCREEN_CHUNK, n))))
-        for i in range(0, n, SCREEN_CHUNK)
-    ]
-    y = np.concatenate(parts) if parts else np.zeros(0)
+    # in chunks, into one preallocated array: the per-design temporaries stay bounded
+    y = np.empty(n)
+    for i in range(0, n, SCREEN_CHUNK):
+        y[i : i + SCREEN_CHUNK] = screen_yield(
+            sim, designs.take(np.arange(i, min(i + SCREEN_CHUNK, n)))
+        )
     target = np.sqrt(problem.f_min * problem.f_max)
-    err = np.abs(np.log(designs.f_nominal / target))
-    order = np.lexsort((np.arange(len(designs)), err, -np.round(y, 12)))
+    key = -np.round(y, 12)
+    if m <= 0:
+        return np.zeros(0, dtype=np.int64), y
+    # only the designs that can be among the best m are sorted (the same order as a
+    # full sort: every design ranked before the m-th has a key no larger than its)
+    cand = np.flatnonzero(key <= np.partition(key, m - 1)[m - 1]) if m < n else np.arange(n)
+    err = np.abs(np.log(designs.f_nominal[cand] / target))
+    order = cand[np.lexsort((cand, err, key[cand]))]
     return order[:m], y
 
 

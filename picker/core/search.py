@@ -41,7 +41,7 @@ from picker.tank.board import (
 )
 
 #: Outer combinations handled per chunk (bounds memory to a few tens of MB).
-CHUNK = 1 << 20
+CHUNK = 1 << 18
 #: Relative widening of analytic bounds before the exact re-check.
 _WIDEN = 1e-9
 
