@@ -3,9 +3,9 @@
 Wiring tests: the large-signal model (:func:`picker.circuit.steady.steady_state`) is
 replaced in some tests by a wrapper that marks chosen boards as bursting, not starting
 or pulled in frequency, so the right answer is known from the construction; the
-reference counts are computed from the linear model
-(:func:`picker.circuit.oscillation.loaded_response`) and the window, not by the code
-under test. Invented demo data (demo_specs/colpitts_bjt.toml).
+reference counts apply the rule (starts, runs steady, steady frequency in the window,
+margin within the bounds) written out in the test to the unpatched large-signal model
+called directly, not through the code under test. Invented demo data (demo_specs/colpitts_bjt.toml).
 """
 
 from __future__ import annotations
