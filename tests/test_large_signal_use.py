@@ -3,9 +3,9 @@
 Wiring tests: the large-signal model (:func:`picker.circuit.steady.steady_state`) is
 replaced in some tests by a wrapper that marks chosen boards as bursting, not starting
 or pulled in frequency, so the right answer is known from the construction; the
-reference counts are computed from the linear model
-(:func:`picker.circuit.oscillation.loaded_response`) and the window, not by the code
-under test. Invented demo data (demo_specs/colpitts_bjt.toml).
+reference counts apply the rule (starts, runs steady, steady frequency in the window,
+margin within the bounds) written out in the test to the unpatched large-signal model
+called directly, not through the code under test. Invented demo data (demo_specs/colpitts_bjt.toml).
 """
 
 from __future__ import annotations
@@ -31,6 +31,8 @@ from picker.tank.board import board_values
 
 DEMO_SPEC = DEMO / "colpitts_bjt.toml"
 SAMPLES = 2000
+#: the unpatched large-signal model, for references
+REAL_STEADY = steady_mod.steady_state
 
 
 def _patch(monkeypatch, edit):
@@ -123,8 +125,9 @@ def test_yield_counts_boards_that_start_run_steady_and_whose_steady_frequency_is
     demo, monkeypatch
 ):
     # Construction: boards whose L is above its marked value burst; every steady frequency
-    # is the linear one pulled up by 0.4 %. Reference per board: linear model (loaded_response
-    # on board values) margin > 1, L at most nominal, 1.004·f_linear in the window.
+    # is the model's own pulled up by 0.4 %. Reference per board: the unpatched large-signal
+    # model (picker.circuit.steady on board values, called here) with the rule written out:
+    # starts, runs steady, L at most nominal, 1.004·f_steady in the window.
     spec, pb, before = demo
     params = spec.amplifier.to_params(spec.parts)
     found = loaded_search(pb, params, min_margin=2.0)
@@ -142,9 +145,14 @@ def test_yield_counts_boards_that_start_run_steady_and_whose_steady_frequency_is
     got = count_passing(sim, designs, u)
     vals = sampled_values(sim, designs, u)
     bv = board_values(pb.topology, vals, pb.parasitics)
+    st = REAL_STEADY(pb.topology, bv, pb.parasitics.stray, params)
+    f = st.f_hz * pull
+    ref = st.starts & ~st.bursting & (vals["L"] <= l_nom) & (f >= pb.f_min) & (f <= pb.f_max)
+    # the linear model alone would count differently (so the test tells them apart)
     res = loaded_response(pb.topology, bv, pb.parasitics.stray, params)
-    f = res.f_hz * pull
-    ref = (res.margin > 1) & (vals["L"] <= l_nom) & (f >= pb.f_min) & (f <= pb.f_max)
+    f_lin = res.f_hz * pull
+    lin = (res.margin > 1) & (vals["L"] <= l_nom) & (f_lin >= pb.f_min) & (f_lin <= pb.f_max)
+    assert np.any(lin != ref)
     np.testing.assert_array_equal(got, ref.sum(axis=0))
     assert np.all(ref.sum(axis=0) > 0)  # the rule bites on boards that do count
     assert np.all(ref.sum(axis=0) < (vals["L"] <= l_nom).sum(axis=0))
@@ -169,16 +177,21 @@ def test_max_margin_bounds_search_and_yield(demo, tmp_path):
     assert all(c.extra["startup_margin"] <= bound for c in r.candidates)
     # yield: boards whose margin exceeds the bound do not count. The bound is the median
     # board margin of the best design (read from the numbers, so it bites on half its
-    # boards). Reference: the linear model on every board (the large-signal margin is
-    # the linear one here) against (1, bound] and the window.
+    # boards). Reference: the large-signal model (picker.circuit.steady on board values,
+    # called here) on every board: starts, runs steady, margin in (0, bound], steady f in
+    # the window.
     d = loaded_search(pb, params, min_margin=2.0).designs.take(np.arange(2))
     sim = _board_sim(spec, pb, params, "full")
     u = uniform_matrix(2000, sim.n_columns, rng=np.random.default_rng(4))
     vals = sampled_values(sim, d, u)
-    f, m = loaded_nominal(pb.topology, vals, pb.parasitics, params)
+    st = REAL_STEADY(
+        pb.topology, board_values(pb.topology, vals, pb.parasitics), pb.parasitics.stray, params
+    )
+    f, m = st.f_hz, st.margin
     top = float(np.median(m[:, 0]))
-    ref = (m > 1) & (m <= top) & (f >= pb.f_min) & (f <= pb.f_max)
-    assert 0 < ref[:, 0].sum() < ((m > 1) & (f >= pb.f_min) & (f <= pb.f_max))[:, 0].sum()
+    runs_in = st.starts & ~st.bursting & (f >= pb.f_min) & (f <= pb.f_max)
+    ref = runs_in & (m <= top)
+    assert 0 < ref[:, 0].sum() < runs_in[:, 0].sum()
     full = count_passing(_board_sim(spec, pb, params, "full", top), d, u)
     np.testing.assert_array_equal(full, ref.sum(axis=0))
     # the surrogate's pass/fail agrees with the full linear model to 0.5 % of the boards
@@ -271,9 +284,19 @@ def test_histogram_in_window_share_equals_reported_yield(demo):
 def test_histogram_counts_boards_that_do_not_run_outside(tmp_path):
     from picker.report.plots import plot_histogram
 
+    # Five boards: two in the window, one outside, two that do not run (NaN). Bars are shares
+    # of all five boards: the in-window bars sum to 40 %, the outside ones to 20 % (a plot
+    # that dropped the NaN boards from the count would show 67 % and 33 %).
     f = np.array([1.0, 1.01, np.nan, 0.5, np.nan])
-    out = plot_histogram(f, 0.9, 1.1, 1.0, tmp_path / "h.png")
-    assert out.exists()
+    out = tmp_path / "h.png"
+    fig = plot_histogram(f, 0.9, 1.1, 1.0, out)
+    assert out.exists() and out.stat().st_size > 0
+    ax = fig.axes[0]
+    by_label = {}  # matplotlib puts a histogram's legend label on its first bar
+    for c in ax.containers:
+        by_label[c.patches[0].get_label()] = sum(p.get_height() for p in c.patches)
+    assert by_label["in window"] == pytest.approx(40.0)
+    assert by_label["outside"] == pytest.approx(20.0)
 
 
 # ------------------------------------------------------------ the approximation
