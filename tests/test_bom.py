@@ -257,9 +257,12 @@ def test_spec_currency_fills_the_bom_the_table_and_the_json(run_cli, tmp_path, m
     assert rows and {r["currency"] for r in rows} == {"EUR"}
     data = json.loads(js)
     assert all(c["cost"]["currency"] == "EUR" for c in data["candidates"])
-    code, text, err = run_cli("solve", str(spec), "--samples", "300")
+    page = tmp_path / "report.html"
+    code, text, err = run_cli("solve", str(spec), "--samples", "300", "--report", str(page))
     assert code == 0, err
     assert "cost/board (EUR)" in text
+    html = page.read_text("utf-8")  # the report page names the currency as the table does
+    assert "cost/board (EUR)" in html and "unit price (EUR)" in html
 
 
 def test_without_a_currency_the_bom_column_is_blank_and_json_unchanged(run_cli, tmp_path):

@@ -145,3 +145,22 @@ def test_series_csv_and_json(run_cli):
     assert [round(float(r["value_F"]) * 1e9, 6) for r in rows] == want
     code, out, _ = run_cli("series", "E12", "--min", "1n", "--max", "3.3n", "-f", "json")
     assert [round(v * 1e9, 6) for v in json.loads(out)["values"]] == want
+
+
+def test_results_csv_and_dataframe_are_the_same_table(run_cli, tmp_path):
+    """The CSV a file user gets and the DataFrame a notebook user gets are one table:
+    the same columns in the same order and the same numbers, read back by pandas."""
+    import picker
+
+    spec = picker.load_spec(BUYER)
+    res = picker.solve(spec, samples=500)
+    df = res.to_dataframe()
+    out = tmp_path / "designs.csv"
+    code, _, err = run_cli("solve", BUYER, "--samples", "500", "-o", str(out))
+    assert code == 0, err
+    back = pd.read_csv(out, encoding="utf-8-sig", keep_default_na=False, na_values=[""])
+    assert list(back.columns) == list(df.columns)
+    assert "tied_with_previous" in back.columns  # the ties column reaches the file too
+    for col in ("rank", "C1_F", "L_H", "f_nominal_Hz", "yield", "yield_ci_low", "cost_per_board"):
+        assert back[col].tolist() == pytest.approx(df[col].tolist(), rel=1e-15), col
+    assert back["C2_part_id"].tolist() == df["C2_part_id"].tolist()

@@ -26,6 +26,7 @@ if TYPE_CHECKING:  # the result types import this module
 
 __all__ = [
     "candidate_dict",
+    "buyer_view",
     "design_columns",
     "design_rows",
     "part_text",
@@ -174,7 +175,7 @@ def _num(x: Any) -> float | None:
 LOADED_COLUMNS = ("f_loaded_hz", "startup_margin", "startup_margin_worst")
 
 
-def _buyer_view(r: SolveResult) -> bool:
+def buyer_view(r: SolveResult) -> bool:
     """Part ids or prices to show: a stock position or a priced design."""
     return any(pp.part_id for c in r.candidates for pp in c.parts.values()) or any(
         (c.extra.get("cost") or {}).get("per_board") is not None for c in r.candidates
@@ -235,7 +236,7 @@ def design_columns(r: SolveResult) -> list[str]:
     ]
     if r.spec.amplifier is not None:
         head += list(LOADED_COLUMNS)
-    if _buyer_view(r):
+    if buyer_view(r):
         head += ["cost_per_board", "cost_build", "stock_ok"]
     head.append("tied_with_previous")
     if r.spec.yield_.temperature is not None:
@@ -251,7 +252,7 @@ def design_rows(r: SolveResult) -> list[list[Any]]:
     ``warnings`` joins the run's warnings with "; " (the same on every row).
     """
     topo = r.spec.topo
-    buyer = _buyer_view(r)
+    buyer = buyer_view(r)
     warn = "; ".join(r.warnings)
     over = r.spec.yield_.temperature is not None
     rows: list[list[Any]] = []

@@ -11,7 +11,7 @@ import json
 import sys
 from collections.abc import Iterable
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, NamedTuple
 
 import typer
 from rich.console import Console
@@ -190,20 +190,88 @@ _FORCE_HELP = "Replace an existing output file or plot."
 _SAMPLES_HELP = "Monte Carlo boards per design (default: the spec's [yield] samples)."
 _SEED_HELP = "Random seed (default: the spec's [yield] seed); the same seed gives the same output."
 _SAMPLING_HELP = "random or sobol (default: the spec's [yield] sampling)."
+_REPORT_HELP = "Also write a self-contained HTML report (FILE.html)."
+
+# Options solve and evaluate share (typer reads these as the parameters' defaults).
+_SPEC_ARG = typer.Argument(..., metavar="SPEC", help="Spec file (TOML).")
+_FORMAT_OPT = typer.Option(None, "--format", "-f", metavar="FORMAT", help=_FORMAT_HELP)
+_SAMPLES_OPT = typer.Option(
+    None, "--samples", min=100, max=10_000_000, metavar="N", help=_SAMPLES_HELP
+)
+_SEED_OPT = typer.Option(None, "--seed", min=0, max=2**63 - 1, metavar="N", help=_SEED_HELP)
+_OUTPUT_OPT = typer.Option(None, "--output", "-o", metavar="FILE", help=_OUTPUT_HELP)
+_FORCE_OPT = typer.Option(False, "--force", help=_FORCE_HELP)
+_SAMPLING_OPT = typer.Option(None, "--sampling", metavar="METHOD", help=_SAMPLING_HELP)
+_BOM_OPT = typer.Option(None, "--bom", metavar="FILE", help=_BOM_HELP)
+_REPORT_OPT = typer.Option(None, "--report", metavar="FILE", help=_REPORT_HELP)
+_VERIFY_OPT = typer.Option(False, "--verify", help=VERIFY_HELP)
+
+
+class _Run(NamedTuple):
+    """What solve and evaluate settle from their options before the (slow) run."""
+
+    fmt: str
+    output: Path | None
+    report: Path | None
+    html_only: bool
+    precision: float | None
+    sampling: str | None
+
+
+def _before_run(
+    spec: Path,
+    format: str | None,
+    output: Path | None,
+    report: Path | None,
+    precision: str | None,
+    sampling: str | None,
+    plot: Path | None,
+    bom: Path | None,
+    force: bool,
+) -> _Run:
+    """Read the options and refuse a bad output place before the run, not after it."""
+    output, report, html_only = _html_as_report(format, output, report)
+    fmt = output_format(format, output)
+    prec, samp = parse_precision(precision), parse_sampling(sampling)
+    _check_outputs(output, plot, force, spec)
+    _check_bom(bom, force, spec)
+    check_report(report, force, [spec])
+    return _Run(fmt, output, report, html_only, prec, samp)
+
+
+def _after_run(
+    result: SolveResult,
+    run: _Run,
+    command: str,
+    spec: Path,
+    plot: Path | None,
+    bom: Path | None,
+    force: bool,
+    vcount: int | None,
+) -> None:
+    """Write what the run asked for: plots, BOM, report, the --verify check, the result."""
+    if plot is not None and result.status == "ok":
+        from picker.report.plots import write_plots
+
+        _wrote(write_plots(result, plot, force=force, inputs=spec_inputs(spec)))
+    _write_bom(result, bom, force, spec)
+    _write_report(run.report, result, force, spec, command)
+    checked = _verify(result, vcount)
+    if run.html_only:  # -o FILE.html: the page is the output; a --verify table goes to stderr
+        if checked is not None:
+            sys.stderr.write(checked[1])
+    else:
+        _emit(result, run.fmt, run.output, force, spec_inputs(spec), checked)
 
 
 def solve(
-    spec: Path = typer.Argument(..., metavar="SPEC", help="Spec file (TOML)."),
-    format: str | None = typer.Option(None, "--format", "-f", metavar="FORMAT", help=_FORMAT_HELP),
+    spec: Path = _SPEC_ARG,
+    format: str | None = _FORMAT_OPT,
     top: int | None = typer.Option(
         None, "--top", min=1, max=10_000, metavar="N", help="How many designs to show."
     ),
-    samples: int | None = typer.Option(
-        None, "--samples", min=100, max=10_000_000, metavar="N", help=_SAMPLES_HELP
-    ),
-    seed: int | None = typer.Option(
-        None, "--seed", min=0, max=2**63 - 1, metavar="N", help=_SEED_HELP
-    ),
+    samples: int | None = _SAMPLES_OPT,
+    seed: int | None = _SEED_OPT,
     candidates: int | None = typer.Option(
         None,
         "--candidates",
@@ -212,68 +280,47 @@ def solve(
         max=100_000,
         help="Designs the Monte Carlo pass checks (after the screen).",
     ),
-    output: Path | None = typer.Option(None, "--output", "-o", metavar="FILE", help=_OUTPUT_HELP),
-    force: bool = typer.Option(False, "--force", help=_FORCE_HELP),
+    output: Path | None = _OUTPUT_OPT,
+    force: bool = _FORCE_OPT,
     precision: str | None = typer.Option(
         None,
         "--precision",
         metavar="HALF-WIDTH",
         help="Run until each yield's CI half-width is this, e.g. 0.5%.",
     ),
-    sampling: str | None = typer.Option(None, "--sampling", metavar="METHOD", help=_SAMPLING_HELP),
+    sampling: str | None = _SAMPLING_OPT,
     plot: Path | None = typer.Option(
         None,
         "--plot",
         metavar="FOLDER",
         help="Write PNG plots of the best design into this folder.",
     ),
-    bom: Path | None = typer.Option(None, "--bom", metavar="FILE", help=_BOM_HELP),
-    report: Path | None = typer.Option(
-        None,
-        "--report",
-        metavar="FILE",
-        help="Also write a self-contained HTML report (FILE.html).",
-    ),
-    verify: bool = typer.Option(False, "--verify", help=VERIFY_HELP),
+    bom: Path | None = _BOM_OPT,
+    report: Path | None = _REPORT_OPT,
+    verify: bool = _VERIFY_OPT,
     verify_top: int = typer.Option(5, "--verify-top", min=1, max=50, help=VERIFY_TOP_HELP),
 ) -> None:
     """Search every standard-value design in the window and rank them by yield."""
     from picker import api
 
-    output, report, html_only = _html_as_report(format, output, report)
-    fmt = output_format(format, output)
-    prec, samp = parse_precision(precision), parse_sampling(sampling)
-    _check_outputs(output, plot, force, spec)
-    _check_bom(bom, force, spec)
-    check_report(report, force, [spec])
+    run = _before_run(spec, format, output, report, precision, sampling, plot, bom, force)
     s = api.load_spec(spec)
     _check_bom_inputs(bom, force, spec, s)
     note_stock_columns(part.stock_list for part in s.parts.values())
     vcount = verify_count(verify, verify_top, s)  # before the run, not after
-    with progress_bar(prec or s.yield_.precision) as progress:
+    with progress_bar(run.precision or s.yield_.precision) as progress:
         result = api.solve(
             s,
             top=top,
             samples=samples,
             seed=seed,
             candidates=candidates,
-            precision=prec,
-            sampling=samp,
+            precision=run.precision,
+            sampling=run.sampling,
             progress=progress,
             plot_data=plot is not None or report is not None,
         )
-    if plot is not None and result.status == "ok":
-        from picker.report.plots import write_plots
-
-        _wrote(write_plots(result, plot, force=force, inputs=spec_inputs(spec)))
-    _write_bom(result, bom, force, spec)
-    _write_report(report, result, force, spec, "solve")
-    checked = _verify(result, vcount)
-    if html_only:  # -o FILE.html: the page is the output; a --verify table goes to stderr
-        if checked is not None:
-            sys.stderr.write(checked[1])
-    else:
-        _emit(result, fmt, output, force, spec_inputs(spec), checked)
+    _after_run(result, run, "solve", spec, plot, bom, force, vcount)
     if result.status != "ok":
         raise typer.Exit(1)
 
@@ -294,7 +341,7 @@ def _tolerances(items: list[str]) -> dict[str, float]:
 
 
 def evaluate(
-    spec: Path = typer.Argument(..., metavar="SPEC", help="Spec file (TOML)."),
+    spec: Path = _SPEC_ARG,
     set_: list[str] = typer.Option(
         [],
         "--set",
@@ -315,43 +362,29 @@ def evaluate(
         help="A stock part by its id, e.g. --part C1=SB-C005, or C1=ID1+ID2 for a pair; "
         "its value need not be --set (repeat).",
     ),
-    format: str | None = typer.Option(None, "--format", "-f", metavar="FORMAT", help=_FORMAT_HELP),
-    samples: int | None = typer.Option(
-        None, "--samples", min=100, max=10_000_000, metavar="N", help=_SAMPLES_HELP
-    ),
-    seed: int | None = typer.Option(
-        None, "--seed", min=0, max=2**63 - 1, metavar="N", help=_SEED_HELP
-    ),
-    output: Path | None = typer.Option(None, "--output", "-o", metavar="FILE", help=_OUTPUT_HELP),
-    force: bool = typer.Option(False, "--force", help=_FORCE_HELP),
+    format: str | None = _FORMAT_OPT,
+    samples: int | None = _SAMPLES_OPT,
+    seed: int | None = _SEED_OPT,
+    output: Path | None = _OUTPUT_OPT,
+    force: bool = _FORCE_OPT,
     precision: str | None = typer.Option(
         None,
         "--precision",
         metavar="HALF-WIDTH",
         help="Run until the yield's CI half-width is this, e.g. 0.5%.",
     ),
-    sampling: str | None = typer.Option(None, "--sampling", metavar="METHOD", help=_SAMPLING_HELP),
+    sampling: str | None = _SAMPLING_OPT,
     plot: Path | None = typer.Option(
         None, "--plot", metavar="FOLDER", help="Write PNG plots of the design into this folder."
     ),
-    bom: Path | None = typer.Option(None, "--bom", metavar="FILE", help=_BOM_HELP),
-    report: Path | None = typer.Option(
-        None,
-        "--report",
-        metavar="FILE",
-        help="Also write a self-contained HTML report (FILE.html).",
-    ),
-    verify: bool = typer.Option(False, "--verify", help=VERIFY_HELP),
+    bom: Path | None = _BOM_OPT,
+    report: Path | None = _REPORT_OPT,
+    verify: bool = _VERIFY_OPT,
 ) -> None:
     """The same figures as solve for one given design (an existing board)."""
     from picker import api
 
-    output, report, html_only = _html_as_report(format, output, report)
-    fmt = output_format(format, output)
-    prec, samp = parse_precision(precision), parse_sampling(sampling)
-    _check_outputs(output, plot, force, spec)
-    _check_bom(bom, force, spec)
-    check_report(report, force, [spec])
+    run = _before_run(spec, format, output, report, precision, sampling, plot, bom, force)
     values = parse_design(set_, "--set")
     tols = _tolerances(tol)
     ids = parse_part_ids(part, "--part")
@@ -363,7 +396,7 @@ def evaluate(
     _check_bom_inputs(bom, force, spec, s)
     vcount = verify_count(verify, 1, s)  # before the run, not after
     note_stock_columns(part.stock_list for part in s.parts.values())
-    with progress_bar(prec or s.yield_.precision) as progress:
+    with progress_bar(run.precision or s.yield_.precision) as progress:
         result = api.evaluate(
             s,
             values,
@@ -371,23 +404,12 @@ def evaluate(
             parts=ids,
             samples=samples,
             seed=seed,
-            precision=prec,
-            sampling=samp,
+            precision=run.precision,
+            sampling=run.sampling,
             progress=progress,
             plot_data=plot is not None or report is not None,
         )
-    if plot is not None:
-        from picker.report.plots import write_plots
-
-        _wrote(write_plots(result, plot, force=force, inputs=spec_inputs(spec)))
-    _write_bom(result, bom, force, spec)
-    _write_report(report, result, force, spec, "evaluate")
-    checked = _verify(result, vcount)
-    if html_only:  # -o FILE.html: the page is the output; a --verify table goes to stderr
-        if checked is not None:
-            sys.stderr.write(checked[1])
-    else:
-        _emit(result, fmt, output, force, spec_inputs(spec), checked)
+    _after_run(result, run, "evaluate", spec, plot, bom, force, vcount)
 
 
 def series_cmd(
@@ -406,8 +428,8 @@ def series_cmd(
         metavar="FORMAT",
         help="table, json or csv (default: from the -o file's extension, else table).",
     ),
-    output: Path | None = typer.Option(None, "--output", "-o", metavar="FILE", help=_OUTPUT_HELP),
-    force: bool = typer.Option(False, "--force", help=_FORCE_HELP),
+    output: Path | None = _OUTPUT_OPT,
+    force: bool = _FORCE_OPT,
 ) -> None:
     """List the values a series holds between --min and --max."""
     from picker.parts import series as series_mod

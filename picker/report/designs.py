@@ -11,17 +11,18 @@ from __future__ import annotations
 
 import io
 import json
-import math
 
 from rich.console import Console
 from rich.text import Text
 
 from picker.api.export import (  # the JSON layout lives with the results (to_dict)
     candidate_dict,  # noqa: F401  (re-exported: report.plan, tests)
+    design_rows,
     rank_text,
     result_dict,
     ties,
 )
+from picker.api.export import design_columns as design_columns_of
 from picker.api.results import Candidate, PartPick, SolveResult
 from picker.report.csvfile import csv_text
 from picker.report.production import print_production
@@ -29,131 +30,14 @@ from picker.report.text import Col, pct, pct_range, plain, print_fitted, signed_
 from picker.units import format_percent, format_quantity
 
 
-def _num(x: float) -> float | None:
-    return float(x) if math.isfinite(x) else None
-
-
 def to_json(r: SolveResult) -> str:
     return json.dumps(result_dict(r), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
 
 
-def _material(r: SolveResult, p: str, part_id: str) -> str:
-    """Dielectric (capacitor) or core (inductor) of the part at ``p``: the stock
-    list's column for a stock part, else the spec's key ("" when unknown)."""
-    part = r.spec.parts[p]
-    st = part.stock_list
-    if part_id and st is not None and part_id in st.index:
-        return str(st.material[st.index[part_id]])
-    return part.dielectric or ""
-
-
-def _stock_value(r: SolveResult, p: str, part_id: str, value: float) -> float:
-    """The stock list's value of ``part_id`` (a pair's first part is otherwise its total
-    minus its partner, which carries float noise), else ``value``."""
-    st = r.spec.parts[p].stock_list
-    if part_id and st is not None and part_id in st.index:
-        return float(st.value[st.index[part_id]])
-    return value
-
-
-def csv_columns(r: SolveResult) -> list[str]:
-    """Header of the results CSV: units in the names (``C1_F``, ``f_nominal_Hz``).
-
-    Per position: value (a pair's total), tolerance (a fraction, 0.05 = 5 %),
-    dielectric (``_core`` for an inductor), part id and price (a pair's two
-    parts together); for a ``parallel`` position also the first and second
-    part's values and the second part's tolerance and id (the first part's are
-    the position's own). Then the design's figures, yield (fractions), the loaded
-    model's figures with an ``[amplifier]``, cost with prices.
-    """
-    topo = r.spec.topo
-    head = ["rank"]
-    for p in topo.positions:
-        u = topo.unit(p)
-        mat = "core" if u == "H" else "dielectric"
-        head += [f"{p}_{u}", f"{p}_tolerance", f"{p}_{mat}", f"{p}_part_id", f"{p}_price"]
-        if r.spec.parts[p].parallel:
-            head += [
-                f"{p}_first_{u}",
-                f"{p}_second_{u}",
-                f"{p}_second_tolerance",
-                f"{p}_second_part_id",
-            ]
-    head += [
-        "f_nominal_Hz",
-        "error",
-        "feedback_fraction",
-        "yield",
-        "yield_ci_low",
-        "yield_ci_high",
-        "confidence",
-        "samples",
-        "f_worst_low_Hz",
-        "f_worst_high_Hz",
-        "warnings",
-    ]
-    if r.spec.amplifier is not None:
-        head += list(_LOADED_CSV)
-    if _has_buyer_view(r):
-        head += ["cost_per_board", "cost_build", "stock_ok"]
-    return head
-
-
-def csv_rows(r: SolveResult) -> list[list[object]]:
-    """One row per design, in the order of :func:`csv_columns`: numbers as floats
-    and ints, text as text, None where unknown."""
-    topo = r.spec.topo
-    buyer = _has_buyer_view(r)
-    warn = "; ".join(r.warnings)
-    rows: list[list[object]] = []
-    for c in r.candidates:
-        row: list[object] = [c.rank]
-        for p in topo.positions:
-            pp = c.parts[p]
-            row += [
-                pp.value,
-                pp.tolerance,
-                _material(r, p, pp.part_id),
-                pp.part_id,
-                _num(pp.price),
-            ]
-            if r.spec.parts[p].parallel:
-                row += (
-                    [
-                        _stock_value(r, p, pp.part_id, pp.first_value),
-                        pp.second_value,
-                        pp.second_tolerance,
-                        pp.second_part_id,
-                    ]
-                    if pp.is_pair
-                    else [pp.value, None, None, ""]
-                )
-        row += [
-            c.f_nominal_hz,
-            c.error,
-            c.feedback_fraction,
-            c.yield_.estimate,
-            c.yield_.ci_low,
-            c.yield_.ci_high,
-            r.spec.yield_.confidence,
-            c.yield_.samples,
-            c.f_worst_low_hz,
-            c.f_worst_high_hz,
-            warn,
-        ]
-        if r.spec.amplifier is not None:
-            row += [c.extra.get(k) for k in _LOADED_CSV]
-        if buyer:
-            cost = c.extra.get("cost") or {}
-            ok = cost.get("stock_ok")
-            row += [cost.get("per_board"), cost.get("build"), None if ok is None else bool(ok)]
-        rows.append(row)
-    return rows
-
-
 def to_csv(r: SolveResult) -> str:
-    """The results CSV (one row per design; see :func:`csv_columns`)."""
-    return csv_text(csv_columns(r), csv_rows(r))
+    """The results CSV: one row per design, the same columns and rows as the
+    notebook's DataFrame (:func:`picker.api.export.design_columns`)."""
+    return csv_text(design_columns_of(r), design_rows(r))
 
 
 def _table_part(pp: PartPick) -> str:
@@ -175,19 +59,8 @@ def _cost_cell(c: Candidate) -> str:
     return f"{x:.4g}" + ("" if cost.get("stock_ok", True) else " short")
 
 
-def _has_buyer_view(r: SolveResult) -> bool:
-    """Part ids or prices to show: a stock position or a priced design."""
-    return any(pp.part_id for c in r.candidates for pp in c.parts.values()) or any(
-        _cost_of(c) is not None for c in r.candidates
-    )
-
-
 def _cost_of(c: Candidate) -> float | None:
     return (c.extra.get("cost") or {}).get("per_board")
-
-
-#: CSV columns added when the spec has an [amplifier] section (circuit-aware model).
-_LOADED_CSV = ("f_loaded_hz", "startup_margin", "startup_margin_worst")
 
 
 def _span(c: Candidate, target: float) -> str:

@@ -214,7 +214,8 @@ def _design_table(r: SolveResult, shown: set[int] | None = None) -> str:
         t = s.yield_.temperature
         assert t is not None
         head.append(f"worst case {t[0]:g} .. {t[1]:g} °C")
-    head += ["cost/board"] if priced else []
+    cur = s.cost.currency
+    head += [f"cost/board ({cur})" if cur else "cost/board"] if priced else []
     rows = []
     tie = ties(r)
     for k, (c, tied) in enumerate(zip(r.candidates, tie, strict=True)):
@@ -336,14 +337,17 @@ def _buyer(r: SolveResult) -> str:
             (p, part_text(pp), format_percent(pp.tolerance), pp.source, _part_ids(c, p), price)
         )
     out = "<h2>Buyer</h2><h3>Parts of the best design</h3>"
-    out += _table(("position", "value", "tolerance", "from", "part id", "unit price"), rows, {5})
+    cur = r.spec.cost.currency
+    unit = f"unit price ({cur})" if cur else "unit price"
+    out += _table(("position", "value", "tolerance", "from", "part id", unit), rows, {5})
     if cost:
         per = cost.get("per_board")
         line = (
             "cost per board unknown (a part has no price)"
             if per is None
-            else f"cost per board {per:.4g}, build of {cost.get('build_quantity', 1)}: "
-            f"{cost.get('build', 0.0):.4g}"
+            else f"cost per board {per:.4g}{' ' + cur if cur else ''}, "
+            f"build of {cost.get('build_quantity', 1)}: {cost.get('build', 0.0):.4g}"
+            f"{' ' + cur if cur else ''}"
         )
         if cost.get("short"):
             short = ", ".join(f"{k} {v}" for k, v in cost["short"].items())
