@@ -37,7 +37,12 @@ def _plans() -> list[tuple[Design, dict[str, object], float]]:
     for d, a in zip(designs, answers, strict=True):
         st = steady_state(d.topo, d.values, d.stray, d.params)
         new = verify_plan(
-            d.topo, d.values, d.stray, d.params, startup_time_s=float(st.startup_time_s)
+            d.topo,
+            d.values,
+            d.stray,
+            d.params,
+            startup_time_s=float(st.startup_time_s),
+            margin=float(st.margin),
         )
         full = transient_plan(d.topo, d.values, d.stray, d.params)
         rows.append((d, a, new.tstop / full.tstop))
@@ -62,7 +67,14 @@ def test_the_shorter_run_shows_the_reference_envelope_state(
 ) -> None:
     d = design
     st = steady_state(d.topo, d.values, d.stray, d.params)
-    plan = verify_plan(d.topo, d.values, d.stray, d.params, startup_time_s=float(st.startup_time_s))
+    plan = verify_plan(
+        d.topo,
+        d.values,
+        d.stray,
+        d.params,
+        startup_time_s=float(st.startup_time_s),
+        margin=float(st.margin),
+    )
     text = write_netlist(d.topo, d.values, d.stray, d.params, title=d.id, tstop=plan.tstop)
     sim = simulate(text, f_hint=plan.f0, tail_start=plan.tail_start, t_kick=plan.t_kick)
     assert sim.waveform.state == answer["state"]

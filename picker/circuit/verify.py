@@ -70,8 +70,8 @@ def board_plans(
     topology: Topology, boards: Sequence[Mapping[str, Any]], stray: float, params: AmplifierParams
 ) -> tuple[SteadyState, list[TransientPlan]]:
     """The model's answer for each board (one vectorised call) and the transient each
-    needs (:func:`picker.circuit.netlist.verify_plan`, from the predicted start-up time
-    and the bias time constants)."""
+    needs (:func:`picker.circuit.netlist.verify_plan`, from the predicted start-up time,
+    the margin and the bias time constants)."""
     st = _batch(topology, boards, stray, params)
     plans = [
         verify_plan(
@@ -80,6 +80,7 @@ def board_plans(
             stray,
             params,
             startup_time_s=float(st.startup_time_s[i]),
+            margin=float(st.margin[i]),
         )
         for i, b in enumerate(boards)
     ]
