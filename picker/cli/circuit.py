@@ -65,6 +65,8 @@ def _design(
                 key="--set",
             )
     else:
+        if sys.stderr.isatty():  # a solve may take minutes: say why nothing shows yet
+            typer.echo(f"no --set: solving {spec_path.name} for its top design first", err=True)
         result = api.solve(spec)
         if not result.candidates:
             raise InfeasibleError(  # a valid spec that nothing meets: exit status 1
