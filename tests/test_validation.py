@@ -175,4 +175,8 @@ def test_reference_data_reproduce_in_ngspice(reference):
         if state != "none":
             # the same deck on another ngspice build: the same carrier to 1e-4
             assert fresh["f_hz"] == pytest.approx(ref["f_hz"], rel=1e-4), designs[i].id
-            assert fresh["amplitude_v"] == pytest.approx(ref["amplitude_v"], rel=0.01)
+            # the reference was read from ngspice's text output (times to 6 digits), runs now
+            # from its binary raw file: the peak-to-peak of an unsettled envelope moves 2 %
+            # (d036), of the others at most 0.1 %
+            rel = 0.03 if state == "unsettled" else 0.01
+            assert fresh["amplitude_v"] == pytest.approx(ref["amplitude_v"], rel=rel)

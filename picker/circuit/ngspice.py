@@ -2,7 +2,7 @@
 
 ngspice (the Debian/Ubuntu package ``ngspice``) is run as a subprocess with
 ``-b`` on a copy of the netlist that gains a ``.control`` block writing the
-probed node's voltage with ``wrdata``. The waveform is measured by
+probed node's voltage to a binary raw file (:func:`read_raw`). The waveform is measured by
 :func:`picker.circuit.waveform.measure` (carrier from the phase slope of the
 band-passed analytic signal, envelope state, amplitude, start-up time, harmonics),
 which knows nothing of picker's circuit model. This module runs a program and reads
@@ -30,6 +30,7 @@ __all__ = [
     "SimulationResult",
     "Transient",
     "ngspice_path",
+    "read_raw",
     "simulate",
     "transient",
     "trapezoid_frequency",
@@ -109,6 +110,40 @@ def trapezoid_frequency(f_measured: float, step: float) -> float:
     return math.tan(x) / (math.pi * step)
 
 
+def read_raw(raw: bytes) -> np.ndarray:
+    """The table of a binary ngspice raw file of real vectors (points × variables).
+
+    The raw format (ngspice manual, "write" command and appendix on the raw file
+    format): text header lines ``Key: value`` ending with ``Binary:``, then each point's
+    variables as 8-byte floats in the machine's byte order, the first being time.
+    Reading it is about a hundred times faster than parsing ``wrdata`` text.
+
+    Raises
+    ------
+    SolverError
+        Not a raw file of real vectors, or shorter than its header says.
+    """
+    mark = raw.find(b"Binary:\n")
+    if mark < 0:
+        raise SolverError("ngspice wrote unreadable data: no binary section in its raw file")
+    head = raw[:mark].decode("ascii", errors="replace")
+    fields = dict(
+        (k.strip().lower(), v.strip())
+        for k, _, v in (line.partition(":") for line in head.splitlines())
+        if v
+    )
+    try:
+        nvar, npts = int(fields["no. variables"]), int(fields["no. points"])
+    except (KeyError, ValueError):
+        raise SolverError("ngspice wrote unreadable data: no variable or point count") from None
+    if "complex" in fields.get("flags", "").lower():
+        raise SolverError("ngspice wrote complex data; expected a transient")
+    body = raw[mark + len(b"Binary:\n") :]
+    if nvar < 1 or len(body) < 8 * nvar * npts:
+        raise SolverError(f"ngspice wrote {len(body) // 8} values; expected {nvar}×{npts}")
+    return np.frombuffer(body, dtype=np.float64, count=nvar * npts).reshape(npts, nvar)
+
+
 def transient(netlist: str, *, node: str = "t", timeout: float = 60.0) -> Transient:
     """Run ``netlist`` (text ending in ``.end``) in ngspice and return ``v(node)``.
 
@@ -119,12 +154,12 @@ def transient(netlist: str, *, node: str = "t", timeout: float = 60.0) -> Transi
     """
     exe = ngspice_path()
     with tempfile.TemporaryDirectory(prefix="picker-ngspice-") as tmp:
-        out = Path(tmp) / "wave.txt"
+        out = Path(tmp) / "wave.raw"
         body = netlist.rstrip()
         if not body.lower().endswith(".end"):
             raise SolverError("the netlist does not end with .end")
         deck = body[: -len(".end")] + (
-            f".control\nset wr_singlescale\nrun\nwrdata {out} v({node})\nquit\n.endc\n.end\n"
+            f".control\nset filetype=binary\nrun\nwrite {out} v({node})\nquit\n.endc\n.end\n"
         )
         cir = Path(tmp) / "deck.cir"
         cir.write_text(deck, encoding="utf-8")
@@ -143,10 +178,7 @@ def transient(netlist: str, *, node: str = "t", timeout: float = 60.0) -> Transi
         if proc.returncode != 0 or not out.exists():
             last = " | ".join(line.strip() for line in text.strip().splitlines()[-3:])
             raise SolverError(f"ngspice failed (exit {proc.returncode}): {last}")
-        try:
-            data = np.loadtxt(out, ndmin=2)
-        except ValueError as exc:
-            raise SolverError(f"ngspice wrote unreadable data: {exc}") from None
+        data = read_raw(out.read_bytes())
     if data.shape[0] < 16 or data.shape[1] < 2:
         raise SolverError(f"ngspice wrote {data.shape[0]} samples; expected a transient")
     meas = {}

@@ -2,7 +2,8 @@
 
 :func:`check_boards` writes picker's netlist of each board
 (:func:`picker.circuit.netlist.write_netlist`, long enough to see start-up, the settled
-envelope and bursting: :func:`picker.circuit.netlist.transient_plan`), runs the transients
+envelope and bursting: :func:`picker.circuit.netlist.verify_plan`, from the model's
+start-up time and the bias time constants), runs the transients
 in parallel ngspice processes, measures each waveform with
 :func:`picker.circuit.waveform.measure` (the carrier from the phase slope inside the bursts,
 the amplitude, the envelope state, the start-up time) and sets the model's answer
@@ -26,12 +27,12 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.netlist import transient_plan, write_netlist
+from picker.circuit.netlist import TransientPlan, verify_plan, write_netlist
 from picker.circuit.ngspice import SimulationResult, simulate
-from picker.circuit.steady import steady_state
+from picker.circuit.steady import SteadyState, steady_state
 from picker.tank.base import Topology
 
-__all__ = ["BoardCheck", "check_boards", "model_figures", "verdict"]
+__all__ = ["BoardCheck", "board_plans", "check_boards", "model_figures", "verdict"]
 
 #: Parallel ngspice processes (the target machine has two cores).
 WORKERS = 2
@@ -42,21 +43,55 @@ def _num(x: Any) -> float | None:
     return v if math.isfinite(v) else None
 
 
+def _figures(st: SteadyState, i: int) -> dict[str, Any]:
+    """Board ``i`` of a batch of :func:`steady_state` answers, JSON-ready."""
+    starts = bool(st.starts[i])
+    bursting = bool(st.bursting[i])
+    return {
+        "starts": starts,
+        "f_hz": _num(st.f_hz[i]),
+        "amplitude_v": _num(st.amplitude_v[i]),
+        "envelope": None if not starts else ("bursting" if bursting else "steady"),
+        "startup_time_s": _num(st.startup_time_s[i]),
+        "margin": _num(st.margin[i]),
+    }
+
+
+def _batch(
+    topology: Topology, boards: Sequence[Mapping[str, Any]], stray: float, params: AmplifierParams
+) -> SteadyState:
+    """:func:`steady_state` of several boards in one vectorised call (arrays over boards;
+    one call is about ten times faster than one per board)."""
+    vals = {p: np.array([float(b[p]) for b in boards]) for p in topology.positions}
+    return steady_state(topology, vals, stray, params)
+
+
+def board_plans(
+    topology: Topology, boards: Sequence[Mapping[str, Any]], stray: float, params: AmplifierParams
+) -> tuple[SteadyState, list[TransientPlan]]:
+    """The model's answer for each board (one vectorised call) and the transient each
+    needs (:func:`picker.circuit.netlist.verify_plan`, from the predicted start-up time,
+    the margin and the bias time constants)."""
+    st = _batch(topology, boards, stray, params)
+    plans = [
+        verify_plan(
+            topology,
+            b,
+            stray,
+            params,
+            startup_time_s=float(st.startup_time_s[i]),
+            margin=float(st.margin[i]),
+        )
+        for i, b in enumerate(boards)
+    ]
+    return st, plans
+
+
 def model_figures(
     topology: Topology, board: Mapping[str, Any], stray: float, params: AmplifierParams
 ) -> dict[str, Any]:
     """The large-signal model's answer for one board (JSON-ready; None where undefined)."""
-    st = steady_state(topology, board, stray, params)
-    starts = bool(np.asarray(st.starts))
-    bursting = bool(np.asarray(st.bursting))
-    return {
-        "starts": starts,
-        "f_hz": _num(st.f_hz),
-        "amplitude_v": _num(st.amplitude_v),
-        "envelope": None if not starts else ("bursting" if bursting else "steady"),
-        "startup_time_s": _num(st.startup_time_s),
-        "margin": _num(st.margin),
-    }
+    return _figures(_batch(topology, [board], stray, params), 0)
 
 
 def verdict(state: str, f_hz: float | None, window: tuple[float, float] | None) -> str:
@@ -85,7 +120,8 @@ class BoardCheck:
     ``label`` names the board ("nominal", "low corner", ...); ``values`` are the board
     values (F, H); ``model`` is :func:`model_figures`; ``sim`` the simulation (the
     measurement is ``sim.waveform``); ``window`` the frequency window (Hz) or None;
-    ``cycles`` and ``resolved`` the transient's length (:class:`TransientPlan`).
+    ``cycles`` and ``resolved`` the transient's length in carrier periods and whether it
+    was as long as wanted (:class:`picker.circuit.netlist.TransientPlan`).
     """
 
     label: str
@@ -168,14 +204,16 @@ def check_boards(
     ValueError
         A netlist cannot be written (e.g. no bias network).
     """
+    vals = [{p: float(board[p]) for p in topology.positions} for _, board in boards]
+    if not vals:
+        return []
+    st, plans = board_plans(topology, vals, stray, params)
     jobs = []
-    for label, board in boards:
-        vals = {p: float(board[p]) for p in topology.positions}
-        plan = transient_plan(topology, vals, stray, params)
-        text = write_netlist(topology, vals, stray, params, title=label, cycles=plan.cycles)
-        jobs.append((label, vals, plan, text))
+    for (label, _), v, plan in zip(boards, vals, plans, strict=True):
+        text = write_netlist(topology, v, stray, params, title=label, tstop=plan.tstop)
+        jobs.append((label, v, plan, text))
 
-    def run(job: tuple[str, dict[str, float], Any, str]) -> SimulationResult:
+    def run(job: tuple[str, dict[str, float], TransientPlan, str]) -> SimulationResult:
         _, _, plan, text = job
         return simulate(
             text, timeout=timeout, f_hint=plan.f0, tail_start=plan.tail_start, t_kick=plan.t_kick
@@ -186,12 +224,12 @@ def check_boards(
     return [
         BoardCheck(
             label=label,
-            values=vals,
-            model=model_figures(topology, vals, stray, params),
+            values=v,
+            model=_figures(st, i),
             sim=sim,
             window=window,
             cycles=plan.cycles,
             resolved=plan.resolved,
         )
-        for (label, vals, plan, _), sim in zip(jobs, sims, strict=True)
+        for i, ((label, v, plan, _), sim) in enumerate(zip(jobs, sims, strict=True))
     ]

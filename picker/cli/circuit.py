@@ -65,6 +65,8 @@ def _design(
                 key="--set",
             )
     else:
+        if sys.stderr.isatty():  # a solve may take minutes: say why nothing shows yet
+            typer.echo(f"no --set: solving {spec_path.name} for its top design first", err=True)
         result = api.solve(spec)
         if not result.candidates:
             raise InfeasibleError(  # a valid spec that nothing meets: exit status 1
@@ -81,18 +83,26 @@ def _design(
 def _figures(
     topo: Topology, board: Mapping[str, Any], stray: float, params: AmplifierParams
 ) -> dict[str, Any]:
-    """The loaded model's figures of one board: frequencies, margin, amplitude, stress."""
+    """The loaded model's figures of one board: frequencies, margin, amplitude, stress.
+
+    As ``solve`` reports them (:func:`picker.circuit.figures.nominal_figures`):
+    ``f_loaded_hz`` is the large-signal model's steady frequency (the linear model's
+    where it does not start) and ``startup_margin`` the large-signal model's margin.
+    """
     from picker.circuit.amplitude import amplitude_estimate, capacitor_stress
     from picker.circuit.oscillation import loaded_response
+    from picker.circuit.steady import steady_state
 
     res = loaded_response(topo, board, stray, params)
     amp = amplitude_estimate(topo, board, stray, params, res)
     stress = capacitor_stress(topo, board, stray, params, amp)
-    f = float(res.f_hz)
+    ls = steady_state(topo, board, stray, params)
+    f_ss = float(ls.f_hz)
+    f = f_ss if bool(ls.starts) and math.isfinite(f_ss) else float(res.f_hz)
     return {
         "f_ideal_hz": float(topo.frequency(board, stray)),
         "f_loaded_hz": f if math.isfinite(f) else None,
-        "startup_margin": float(res.margin),
+        "startup_margin": float(ls.margin),
         "amplitude_v": float(amp.tank),
         "overdriven": bool(amp.overdriven),
         "peak_voltage_v": {k: float(v) for k, v in stress.items()},
@@ -109,22 +119,29 @@ def _netlist_text(
     params: AmplifierParams,
 ) -> str:
     """The netlist ``simulate`` runs: long enough to see start-up, the settled envelope
-    and bursting (:func:`picker.circuit.netlist.transient_plan`)."""
-    from picker.circuit.netlist import transient_plan, write_netlist
+    and bursting (:func:`picker.circuit.netlist.verify_plan`)."""
+    from picker.circuit.netlist import write_netlist
+    from picker.circuit.verify import board_plans
 
     title = f"{spec.title or spec_path.stem}: " + " ".join(
         f"{p}={values[p]:.6g}" for p in topo.positions
     )
     try:
-        plan = transient_plan(topo, board, stray, params)
-        return write_netlist(topo, board, stray, params, title=title, cycles=plan.cycles)
+        _, (plan,) = board_plans(topo, [board], stray, params)
+        return write_netlist(topo, board, stray, params, title=title, tstop=plan.tstop)
     except ValueError as exc:
         raise SpecError(str(exc), file=str(spec_path), key="amplifier") from None
 
 
 def netlist(
     spec_path: Path = typer.Argument(..., metavar="SPEC", help="The spec file (TOML)."),
-    set_: list[str] = typer.Option([], "--set", help="A part value, e.g. --set C1=4.7n (repeat)."),
+    set_: list[str] = typer.Option(
+        [],
+        "--set",
+        metavar="POS=VALUE",
+        help="A part value, e.g. --set C1=4.7n (repeat for every position). Without --set: "
+        "the top design of a solve of SPEC.",
+    ),
     output: Path | None = typer.Option(
         None, "-o", "--output", help="Netlist file to write (default: standard output)."
     ),
@@ -164,11 +181,26 @@ def _window_note(f: float | None, lo: float, hi: float, target: float) -> tuple[
 
 def simulate(
     spec_path: Path = typer.Argument(..., metavar="SPEC", help="The spec file (TOML)."),
-    set_: list[str] = typer.Option([], "--set", help="A part value, e.g. --set C1=4.7n (repeat)."),
-    fmt: str = typer.Option("table", "--format", help="table or json."),
-    timeout: float = typer.Option(120.0, "--timeout", help="Seconds to allow ngspice."),
+    set_: list[str] = typer.Option(
+        [],
+        "--set",
+        metavar="POS=VALUE",
+        help="A part value, e.g. --set C1=4.7n (repeat for every position). Without --set: "
+        "the top design of a solve of SPEC (the whole solve runs first).",
+    ),
+    fmt: str = typer.Option("table", "--format", metavar="FORMAT", help="table or json."),
+    timeout: float = typer.Option(
+        120.0, "--timeout", metavar="SECONDS", help="Seconds to allow ngspice."
+    ),
 ) -> None:
-    """Simulate the oscillator in ngspice and compare with the model and the window."""
+    """Simulate the oscillator in ngspice and compare with the model and the window.
+
+    Needs an [amplifier] section and ngspice. Prints, model beside ngspice: the carrier
+    frequency (from the phase slope, right on clipped or bursting waveforms), the
+    amplitude at the tank top, the envelope (steady, bursting, unsettled or none), the
+    start-up time, and a verdict: ok, or what fails (does not start, bursts, unsettled,
+    outside the window).
+    """
     from picker.circuit.verify import check_boards
     from picker.units import format_quantity
 
@@ -215,6 +247,9 @@ def simulate(
     def sec(x: float | None) -> str:
         return "-" if x is None or not math.isfinite(x) else format_quantity(x, "s")
 
+    def volts(x: float | None) -> str:
+        return "-" if x is None or not math.isfinite(x) else format_quantity(x, "V")
+
     ls = check.model
     parts = "  ".join(f"{p} {format_quantity(values[p], topo.unit(p))}" for p in topo.positions)
     amp_sim = format_quantity(wave.amplitude_v, "V") if sim.oscillating else "-"
@@ -222,8 +257,8 @@ def simulate(
         parts,
         f"{'':22}{'model':>16}{'ngspice':>16}",
         f"{'frequency (ideal)':22}{hz(model['f_ideal_hz']):>16}",
-        f"{'frequency (loaded)':22}{hz(model['f_loaded_hz']):>16}{hz(f_sim):>16}",
-        f"{'amplitude, tank top':22}{format_quantity(model['amplitude_v'], 'V'):>16}{amp_sim:>16}",
+        f"{'carrier (loaded)':22}{hz(model['f_loaded_hz']):>16}{hz(f_sim):>16}",
+        f"{'amplitude, tank top':22}{volts(ls['amplitude_v']):>16}{amp_sim:>16}",
         f"{'start-up margin':22}{model['startup_margin']:>16.3g}"
         f"{'oscillates' if sim.oscillating else 'does not start':>16}",
         f"{'envelope':22}{ls['envelope'] or '-':>16}{wave.state:>16}",
@@ -235,8 +270,8 @@ def simulate(
         lines.append("caution: overdriven (margin above 5 or collector swing beyond headroom)")
     if not check.resolved:
         lines.append(
-            f"caution: the transient ({check.cycles} periods) is shorter than ten bias time "
-            "constants; a slow burst may not show"
+            f"caution: the transient ({check.cycles} periods) is shorter than the predicted "
+            "settling and several slow time constants; a slow burst may not show"
         )
     lines += [f"ngspice: {w}" for w in sim.warnings]
     typer.echo("\n".join(lines))
@@ -311,8 +346,8 @@ def verify_text(checks: list[DesignCheck], seconds: float) -> str:
     lines += [f"design {c.rank}: {c.verdict}" for c in checks]
     if any(not b.resolved for c in checks for b in c.boards):
         lines.append(
-            "caution: some transients are shorter than ten bias time constants; "
-            "a slow burst may not show"
+            "caution: some transients are shorter than the predicted settling and several "
+            "slow time constants; a slow burst may not show"
         )
     return "\n".join(lines) + "\n"
 

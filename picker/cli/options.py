@@ -51,7 +51,9 @@ __all__ = [
 #: Help of ``--verify`` and ``--verify-top`` (solve, evaluate).
 VERIFY_HELP = (
     "Simulate the top designs in ngspice at nominal and at the two tolerance corners that "
-    "push the frequency lowest and highest, and compare with the model."
+    "push the frequency lowest and highest, and compare with the model: carrier, amplitude, "
+    "envelope (steady or bursting), start-up time and a verdict per board. Needs an "
+    "[amplifier] section and ngspice."
 )
 VERIFY_TOP_HELP = "How many designs --verify simulates (default 5)."
 
