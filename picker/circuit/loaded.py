@@ -85,6 +85,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.board_fit import EDGE_DEGREE, QUANTITIES, BoardFit, fit_boards, monomials
 from picker.circuit.network import LoadedResponse
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.steady import SteadyState, steady_state
@@ -299,22 +300,9 @@ class NominalState:
     approx: np.ndarray
     off_f: np.ndarray
     off_m: np.ndarray
-    #: largest change of ``off_f`` / ``off_m`` between nominal and the corners of the
-    #: boards' box (:meth:`LoadedModel._corner_check`); 0 until measured.
-    e_f: np.ndarray | None = None
-    e_m: np.ndarray | None = None
 
     def take(self, sel: Any) -> NominalState:
-        e_f = None if self.e_f is None else self.e_f[sel]
-        e_m = None if self.e_m is None else self.e_m[sel]
-        return NominalState(self.approx[sel], self.off_f[sel], self.off_m[sel], e_f, e_m)
-
-    def bands(self) -> tuple[np.ndarray, np.ndarray]:
-        """Twice the offsets' measured change (ln f, ln margin): the extra edge bands."""
-        z = np.zeros(len(self.approx))
-        e_f = z if self.e_f is None else self.e_f
-        e_m = z if self.e_m is None else self.e_m
-        return 2.0 * e_f, 2.0 * e_m
+        return NominalState(self.approx[sel], self.off_f[sel], self.off_m[sel])
 
 
 def board_state(
@@ -379,6 +367,7 @@ class LoadedModel:
         self.max_margin = max_margin
         self._cache: dict[tuple[int, ...], np.ndarray] = {}
         self._nominal: dict[tuple[int, ...], tuple[bool, float, float]] = {}
+        self._fits: dict[tuple[tuple[int, ...], bytes], BoardFit] = {}
 
     @property
     def ln_max_margin(self) -> float:
@@ -442,59 +431,60 @@ class LoadedModel:
         self,
         vals: Mapping[str, np.ndarray],
         designs: Designs,
-        approx: Any,
-        full: Any,
+        want_f: bool,
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """(f, margin, pass) of every board: ``approx(vals, designs, nom)`` on the designs
-        the approximation applies to, :meth:`_full` on the others."""
-        nom = self._corner_check(vals, self.nominal(designs))
-        if nom.approx.all():
-            return approx(vals, designs, nom)
+        """(f, margin, pass) of every board: :meth:`_approx` on the designs the board fit
+        describes (:attr:`picker.circuit.board_fit.BoardFit.ok`), :meth:`_full` on the others."""
+        fit = self.fit(vals, designs)
+        if fit.ok.all():
+            return self._approx(vals, designs, fit, want_f)
         shape = np.shape(vals[self.problem.topology.inductor])
         f, m = np.full(shape, np.nan), np.full(shape, np.nan)
         ok = np.zeros(shape, dtype=bool)
-        a, b = np.flatnonzero(nom.approx), np.flatnonzero(~nom.approx)
-        for cols, fn in ((a, None), (b, full)):
-            if cols.size == 0:
-                continue
-            sub = {p: v[:, cols] for p, v in vals.items()}
-            if fn is None:
-                f[:, cols], m[:, cols], ok[:, cols] = approx(
-                    sub, designs.take(cols), nom.take(cols)
-                )
-            else:
-                f[:, cols], m[:, cols], ok[:, cols] = fn(sub)
+        a, b = np.flatnonzero(fit.ok), np.flatnonzero(~fit.ok)
+        if a.size:
+            sub = {p: v[:, a] for p, v in vals.items()}
+            f[:, a], m[:, a], ok[:, a] = self._approx(sub, designs.take(a), fit.take(a), want_f)
+        if b.size:
+            f[:, b], m[:, b], ok[:, b] = self._full({p: v[:, b] for p, v in vals.items()})
         return f, m, ok
 
-    def _corner_check(self, vals: Mapping[str, np.ndarray], nom: NominalState) -> NominalState:
-        """Both models at the 2^k corners of the box the boards of each approximated design
-        span (per position the least and greatest value drawn): a design with a corner
-        that does not run (does not start or bursts) leaves the approximation (its boards
-        go through the large-signal model); for the others ``e_f``, ``e_m`` = the largest
-        change of the offsets (A1)/(A2) between nominal and a corner."""
+    def fit(self, vals: Mapping[str, np.ndarray], designs: Designs) -> BoardFit:
+        """:func:`picker.circuit.board_fit.fit_boards` over the box the boards ``vals`` of
+        each design span (per position the least and greatest value drawn); cached by the
+        design and its box, so repeated runs over the same boards fit once."""
         pb = self.problem
-        topo = pb.topology
-        pos = topo.positions
-        a = np.flatnonzero(nom.approx)
-        e_f, e_m = np.zeros(len(nom.approx)), np.zeros(len(nom.approx))
-        if a.size == 0 or vals[pos[0]].shape[0] == 0:
-            return NominalState(nom.approx, nom.off_f, nom.off_m, e_f, e_m)
-        box = {p: (vals[p][:, a].min(axis=0), vals[p][:, a].max(axis=0)) for p in pos}
-        k = len(pos)
-        corners = {
-            p: np.stack([box[p][(j >> i) & 1] for j in range(2**k)]) for i, p in enumerate(pos)
-        }
-        f_l, m_l = loaded_nominal(topo, corners, pb.parasitics, self.params)
-        st = board_state(topo, corners, pb.parasitics, self.params)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            d_f = np.abs(np.log(st.f_hz) - np.log(f_l) - nom.off_f[a][None, :])
-            d_m = np.abs(np.log(st.margin) - np.log(m_l) - nom.off_m[a][None, :])
-        good = np.all(np.asarray(st.runs, dtype=bool) & np.isfinite(d_f + d_m), axis=0)
-        approx = nom.approx.copy()
-        approx[a] = good
-        e_f[a] = np.where(good, np.nan_to_num(d_f, nan=0.0).max(axis=0), 0.0)
-        e_m[a] = np.where(good, np.nan_to_num(d_m, nan=0.0).max(axis=0), 0.0)
-        return NominalState(approx, nom.off_f, nom.off_m, e_f, e_m)
+        pos = pb.topology.positions
+        n = len(designs)
+        if vals[pos[0]].shape[0] == 0:
+            one = {p: np.ones(n) for p in pos}
+            z = np.zeros((len(QUANTITIES), len(monomials(len(pos), EDGE_DEGREE)), n))
+            no = np.zeros(n, dtype=bool)
+            return BoardFit(designs.values(pb), one, z, no, no)
+        lo = {p: vals[p].min(axis=0) for p in pos}
+        hi = {p: vals[p].max(axis=0) for p in pos}
+        box = np.stack([lo[p] for p in pos] + [hi[p] for p in pos], axis=1)
+        keys = [(d, b.tobytes()) for d, b in zip(self._keys(designs), box, strict=True)]
+        missing = [i for i, key in enumerate(keys) if key not in self._fits]
+        if missing:
+            sel = np.asarray(missing)
+            got = fit_boards(
+                pb.topology,
+                {p: lo[p][sel] for p in pos},
+                {p: hi[p][sel] for p in pos},
+                pb.parasitics,
+                self.params,
+            )
+            for j, i in enumerate(missing):
+                self._fits[keys[i]] = got.take(slice(j, j + 1))
+        parts = [self._fits[key] for key in keys]
+        return BoardFit(
+            {p: np.concatenate([f.anchor[p] for f in parts]) for p in pos},
+            {p: np.concatenate([f.h[p] for f in parts]) for p in pos},
+            np.concatenate([f.coef for f in parts], axis=2),
+            np.concatenate([f.edge for f in parts]),
+            np.concatenate([f.ok for f in parts]),
+        )
 
     # ------------------------------------------------------------------ public views
 
@@ -506,7 +496,7 @@ class LoadedModel:
         if self.method == "full":
             f, m, _ = self._full(vals)
             return f, m
-        f, m, _ = self._split(vals, designs, self._approx_logs, self._full)
+        f, m, _ = self._split(vals, designs, True)
         return f, m
 
     def frequencies(self, vals: Mapping[str, np.ndarray], designs: Designs) -> np.ndarray:
@@ -607,91 +597,57 @@ class LoadedModel:
             out += lnd
         return out
 
-    def _approx_logs(
-        self, vals: Mapping[str, np.ndarray], designs: Designs, nom: NominalState
+    def _approx(
+        self, vals: Mapping[str, np.ndarray], designs: Designs, fit: BoardFit, want_f: bool
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Steady f (NaN where not counted), margin and pass mask by the approximation:
-        (S3)/(S2) plus the nominal offsets, the full linear model (plus the offsets) for
-        boards within a band of f_min, f_max, margin 1 or ``max_margin``."""
+        """Steady f (NaN where not counted; all NaN unless ``want_f``), margin (NaN unless
+        ``want_f``) and pass mask by the approximation (module docstring): (S1)/(S2) of the
+        linear model, then (S3) and the linear model itself on the boards within the
+        surrogate's error band of an edge, plus the board fit's offsets (F1) and its
+        bursting score."""
         pb = self.problem
         topo = pb.topology
         sur = self.surrogate(designs)
-        _, band_f, band_m, _, _ = self._calibrate(vals, sur)
-        off_bf, off_bm = nom.bands()
-        band_f = band_f + off_bf
-        band_m = band_m + off_bm
-        ln_f, ln_m = surrogate_logs(topo, sur, vals, pb.parasitics, second_order=True)
-        ln_f += nom.off_f
-        ln_m += nom.off_m
-        top = self.ln_max_margin
+        band_f, band_f2, band_m, _, _ = self._calibrate(vals, sur)
+        off_f = fit.quantity("off_f", vals)
+        off_m = fit.quantity("off_m", vals)
+        ln_f, ln_m = surrogate_logs(topo, sur, vals, pb.parasitics)
+        ln_f += off_f
+        ln_m += off_m
+        lo, hi, top = math.log(pb.f_min), math.log(pb.f_max), self.ln_max_margin
+        # tier 2: (S3) for the boards (S1) cannot decide
         with np.errstate(invalid="ignore"):
-            full = np.abs(ln_f - math.log(pb.f_min)) < band_f
-            full |= np.abs(ln_f - math.log(pb.f_max)) < band_f
-            full |= np.abs(ln_m) < band_m
-            full |= np.abs(ln_m - top) < band_m
-        full |= ~np.isfinite(band_f + band_m)[None, :]
-        with np.errstate(invalid="ignore", over="ignore"):
-            counts = (ln_m > 0.0) & (ln_m <= top)
-            f = np.where(counts, np.exp(ln_f), np.nan)
-        m = np.exp(ln_m)
-        if full.any():  # near an edge: the large-signal model on the board itself
-            f[full], m[full], _ = self._full({p: vals[p][full] for p in topo.positions})
-        return f, m, (f >= pb.f_min) & (f <= pb.f_max)
-
-    def _approx_pass(
-        self, vals: Mapping[str, np.ndarray], designs: Designs, nom: NominalState
-    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Pass mask by the approximation in three tiers (module docstring); f and margin
-        are not computed here (NaN), only the mask."""
-        pb = self.problem
-        topo = pb.topology
-        sur = self.surrogate(designs)
-        band_f, band_f2, band_m, m_lo, m_hi = self._calibrate(vals, sur)
-        off_bf, off_bm = nom.bands()  # the offsets' own change across the box
-        band_f = band_f + off_bf
-        band_f2 = band_f2 + off_bf
-        band_m = band_m + off_bm
-        # ln f by (S1), then t = |ln f − centre| against the half-width, in place; the
-        # window is shifted by the design's nominal offset: ln f_lin + off_f in the window
-        t = _ln_ideal(topo, vals, pb.parasitics)
-        t += sur.ln_r0
-        for p in topo.positions:
-            lnd = np.log(vals[p] / sur.nominal[p])
-            lnd *= sur.k[p]
-            t += lnd
-        lo, hi = math.log(pb.f_min) - nom.off_f, math.log(pb.f_max) - nom.off_f
-        centre, half = 0.5 * (lo + hi), 0.5 * (hi - lo)
-        t -= centre
-        np.abs(t, out=t)
-        ok = t <= half
-        t -= half
-        np.abs(t, out=t)
-        near = t < band_f
-        # second tier: (S3) on the boards (S1) cannot decide
+            near = np.abs(ln_f - lo) < band_f
+            near |= np.abs(ln_f - hi) < band_f
         rows, cols = np.nonzero(near)
         if rows.size:
-            sub = sur.take(cols)
             v = {p: vals[p][rows, cols] for p in topo.positions}
-            lf2, _ = surrogate_logs(topo, sub, v, pb.parasitics, second_order=True)
-            d2 = np.abs(lf2 - centre[cols])
-            ok[rows, cols] = d2 <= half[cols]
-            near[rows, cols] = np.abs(d2 - half[cols]) < band_f2[cols]
-        # margin: ln m_lin + off_m in (0, ln max_margin]; skipped where the whole box is clear
-        m_min, m_max = -nom.off_m, self.ln_max_margin - nom.off_m
-        sure = (m_lo > m_min + band_m) & (m_hi < m_max - band_m)
-        cols = np.flatnonzero(~sure & np.isfinite(band_m))
-        if cols.size:
-            lm = self._ln_margin(vals, sur, cols)
-            ok[:, cols] &= (lm > m_min[cols]) & (lm <= m_max[cols])
-            near[:, cols] |= np.abs(lm - m_min[cols]) < band_m[cols]
-            near[:, cols] |= np.abs(lm - m_max[cols]) < band_m[cols]
-        near[:, ~np.isfinite(band_f + band_m)] = True
-        if near.any():  # near an edge: the large-signal model on the board itself
-            ok[near] = self._full({p: vals[p][near] for p in topo.positions})[2]
-        nan = np.full(ok.shape, np.nan)
-        return nan, nan, ok
+            lf2, _ = surrogate_logs(topo, sur.take(cols), v, pb.parasitics, second_order=True)
+            ln_f[rows, cols] = lf2 + off_f[rows, cols]
+        with np.errstate(invalid="ignore"):
+            near = np.abs(ln_f - lo) < band_f2
+            near |= np.abs(ln_f - hi) < band_f2
+            near |= np.abs(ln_m) < band_m
+            near |= np.abs(ln_m - top) < band_m
+        near |= ~np.isfinite(band_f2 + band_m)[None, :]
+        if near.any():  # tier 3: the linear model itself on the board, plus the offsets
+            f_l, m_l = loaded_nominal(
+                topo, {p: vals[p][near] for p in topo.positions}, pb.parasitics, self.params
+            )
+            with np.errstate(divide="ignore", invalid="ignore"):
+                ln_f[near] = np.log(f_l) + off_f[near]
+                ln_m[near] = np.log(m_l) + off_m[near]
+        burst = fit.quantity("score", vals) > 0.0
+        with np.errstate(invalid="ignore", over="ignore"):
+            counts = (ln_m > 0.0) & (ln_m <= top) & ~burst
+            ok = counts & (ln_f >= lo) & (ln_f <= hi)
+        if not want_f:
+            nan = np.full(ok.shape, np.nan)
+            return nan, nan, ok
+        with np.errstate(over="ignore"):
+            return np.where(counts, np.exp(ln_f), np.nan), np.exp(ln_m), ok
 
     def __call__(self, vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
         if self.method == "full":
             return self._full(vals)[2]
-        return self._split(vals, designs, self._approx_pass, self._full)[2]
+        return self._split(vals, designs, False)[2]
