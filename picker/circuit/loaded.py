@@ -342,9 +342,10 @@ class LoadedModel:
     ``model(vals, designs)`` returns the pass mask (samples, c): the board starts,
     runs steady (:attr:`picker.circuit.steady.SteadyState.runs`), its start-up margin
     is at most ``max_margin`` (when given) and its steady frequency lies in
-    [f_min, f_max]. ``method`` "surrogate" uses the nominal-offset approximation
-    (module docstring) with (S1)/(S2) for the spread, per-design coefficients cached
-    by the design's index tuple; "full" runs the large-signal model on every board.
+    [f_min, f_max]. ``method`` "surrogate" uses the approximation (A1)-(A3) of the
+    module docstring with (S1)-(S3) for the linear spread, the surrogate cached by the
+    design's index tuple, the board fit by the design and its boards' box; "full" runs
+    the large-signal model on every board.
     :meth:`frequencies` gives the same boards' steady frequencies (the histogram and
     the spread drivers), :meth:`sensitivities` their first-order sensitivities.
     """
