@@ -42,6 +42,11 @@ Two stages per design:
    most bent score, least squares over 500 of its boards leave 1.4 % of them on the
    wrong side of the burst edge with d = 2, 0.6 % with d = 3, none with d = 4.
 
+Where the score bends sharply (a kink where two envelope eigenvalues trade places is
+beyond any polynomial), the least squares leave residuals at their own points: the
+boards whose fitted score lies within :data:`BAND_FACTOR` times the largest of them
+of zero go through the large-signal model itself.
+
 A design is fitted only where the fit can describe it: its box centre starts and
 runs without a numerical failure, every point that starts saturates alike (the
 score changes form across saturation), at every point "starts" agrees with
@@ -70,6 +75,7 @@ from picker.tank.base import TWO_PI, Topology
 from picker.tank.board import Parasitics, board_values
 
 __all__ = [
+    "BAND_FACTOR",
     "EDGE_DEGREE",
     "EDGE_POINTS",
     "EDGE_SAFETY",
@@ -93,6 +99,8 @@ EDGE_SAFETY = 0.5
 EDGE_POINTS = 2.5
 #: Stage 2's degree.
 EDGE_DEGREE = 4
+#: The burst band: this many times the stage-2 fit's largest residual of the score.
+BAND_FACTOR = 2.0
 _PRIMES = (2, 3, 5, 7, 11, 13, 17, 19)
 
 
@@ -145,6 +153,7 @@ class BoardFit:
     h: dict[str, np.ndarray]
     coef: np.ndarray
     edge: np.ndarray
+    band: np.ndarray
     ok: np.ndarray
 
     def take(self, sel: Any) -> BoardFit:
@@ -153,6 +162,7 @@ class BoardFit:
             {p: a[sel] for p, a in self.h.items()},
             self.coef[:, :, sel],
             self.edge[sel],
+            self.band[sel],
             self.ok[sel],
         )
 
@@ -257,6 +267,13 @@ def _least_squares(a_mat: np.ndarray, q: np.ndarray) -> tuple[np.ndarray, np.nda
     return sol, enough & np.all(np.isfinite(sol), axis=(0, 2))
 
 
+def _residual(a_mat: np.ndarray, q: np.ndarray, sol: np.ndarray) -> np.ndarray:
+    """Largest |fit − q| over the finite points, (3, c); ``sol`` (3, c, T)."""
+    fitted = np.einsum("pi,rei->rpe", a_mat, sol)
+    with np.errstate(invalid="ignore"):
+        return np.nan_to_num(np.abs(fitted - q), nan=0.0).max(axis=1)
+
+
 def fit_boards(
     topology: Topology,
     lo: Mapping[str, np.ndarray],
@@ -280,6 +297,7 @@ def fit_boards(
     c = len(anchor[pos[0]])
     terms = monomials(k, EDGE_DEGREE)
     coef = np.zeros((len(QUANTITIES), len(terms), c))
+    band = np.zeros(c)
     # stage 1: the centre, ±1 along each axis and +1 along each pair of axes; (F1) with
     # d = 2 (exactly determined where every point is finite)
     t1 = np.vstack(
@@ -318,7 +336,9 @@ def fit_boards(
             params,
         )
         qa = np.concatenate([s1.q[:, :, e], s2.q], axis=1)  # (3, P, n_e)
-        sol, enough2 = _least_squares(_basis(np.vstack([t1, extra]), terms), qa)
+        a_mat = _basis(np.vstack([t1, extra]), terms)
+        sol, enough2 = _least_squares(a_mat, qa)
+        band[e] = BAND_FACTOR * _residual(a_mat, qa, sol)[2]
         coef[:, :, e] = np.swapaxes(sol, 1, 2)
         good = np.concatenate([s1.good[:, e], s2.good], axis=0)
         sat = np.concatenate([s1.sat[:, e], s2.sat], axis=0)
@@ -326,4 +346,4 @@ def fit_boards(
         same[e] &= np.all(~good | (sat == sat0[e][None, :]), axis=0)
     ok &= same & (edge | enough)
     ok &= same
-    return BoardFit(anchor, h, coef, edge, ok)
+    return BoardFit(anchor, h, coef, edge, band, ok)

@@ -458,7 +458,7 @@ class LoadedModel:
             one = {p: np.ones(n) for p in pos}
             z = np.zeros((len(QUANTITIES), len(monomials(len(pos), EDGE_DEGREE)), n))
             no = np.zeros(n, dtype=bool)
-            return BoardFit(designs.values(pb), one, z, no, no)
+            return BoardFit(designs.values(pb), one, z, no, np.zeros(n), no)
         lo = {p: vals[p].min(axis=0) for p in pos}
         hi = {p: vals[p].max(axis=0) for p in pos}
         box = np.stack([lo[p] for p in pos] + [hi[p] for p in pos], axis=1)
@@ -481,6 +481,7 @@ class LoadedModel:
             {p: np.concatenate([f.h[p] for f in parts]) for p in pos},
             np.concatenate([f.coef for f in parts], axis=2),
             np.concatenate([f.edge for f in parts]),
+            np.concatenate([f.band for f in parts]),
             np.concatenate([f.ok for f in parts]),
         )
 
@@ -646,10 +647,16 @@ class LoadedModel:
             with np.errstate(divide="ignore", invalid="ignore"):
                 ln_f[near] = np.log(f_l) + off_f[near]
                 ln_m[near] = np.log(m_l) + off_m[near]
-        burst = fit.quantity("score", vals) > 0.0
+        score = fit.quantity("score", vals)
         with np.errstate(invalid="ignore", over="ignore"):
-            counts = (ln_m > 0.0) & (ln_m <= top) & ~burst
+            counts = (ln_m > 0.0) & (ln_m <= top) & ~(score > 0.0)
             ok = counts & (ln_f >= lo) & (ln_f <= hi)
+        unsure = np.abs(score) < fit.band  # (A3) undecided: the large-signal model itself
+        if unsure.any():
+            f_u, m_u, ok[unsure] = self._full({p: vals[p][unsure] for p in topo.positions})
+            counts[unsure] = np.isfinite(f_u)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                ln_f[unsure], ln_m[unsure] = np.log(f_u), np.log(m_u)
         if not want_f:
             nan = np.full(ok.shape, np.nan)
             return nan, nan, ok
