@@ -61,7 +61,7 @@ Axis convention: samples on axis 0, designs on axis 1; every per-design array (c
 from __future__ import annotations
 
 import itertools
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -80,6 +80,7 @@ __all__ = [
     "EDGE_POINTS",
     "EDGE_SAFETY",
     "QUANTITIES",
+    "StateFn",
     "BoardFit",
     "fit_boards",
     "halton",
@@ -87,6 +88,8 @@ __all__ = [
     "point_quantities",
 ]
 
+#: The large-signal model's signature: (topology, board values, stray, params) -> state.
+StateFn = Callable[[Topology, Mapping[str, Any], Any, AmplifierParams], SteadyState]
 #: The fitted quantities, in the order of :attr:`BoardFit.coef`'s first axis.
 QUANTITIES = ("off_f", "off_m", "score")
 #: Smallest half-width (ln v) an axis is fitted over (a part without spread).
@@ -234,6 +237,7 @@ def _evaluate(
     h: Mapping[str, np.ndarray],
     parasitics: Parasitics,
     params: AmplifierParams,
+    state: StateFn,
 ) -> _Points:
     pos = topology.positions
     vals = {
@@ -242,7 +246,7 @@ def _evaluate(
     bv = board_values(topology, vals, parasitics)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         lin = loaded_response(topology, bv, parasitics.stray, params)
-        st = steady_state(topology, bv, parasitics.stray, params)
+        st = state(topology, bv, parasitics.stray, params)
     off_f, off_m, score, good, sat = point_quantities(lin.f_hz, lin.margin, st, params)
     with np.errstate(invalid="ignore"):
         ok = np.all(st.starts == (st.margin > 1.0), axis=0)
@@ -280,12 +284,14 @@ def fit_boards(
     hi: Mapping[str, np.ndarray],
     parasitics: Parasitics,
     params: AmplifierParams,
+    state: StateFn = steady_state,
 ) -> BoardFit:
     """:class:`BoardFit` of designs whose boards span the box [lo, hi] per position (c,).
 
     Calls the linear model (:func:`picker.circuit.oscillation.loaded_response`) and the
     large-signal model (:func:`picker.circuit.steady.steady_state`) on the stage-1 board
-    values (marked values with the parasitics applied), and again on the stage-2 points
+    values (marked values with the parasitics applied; ``state`` is the large-signal
+    model, :func:`picker.circuit.steady.steady_state` by default), and again on the stage-2 points
     of the designs that need them (module docstring).
     """
     pos = topology.positions
@@ -304,7 +310,7 @@ def fit_boards(
         [np.zeros(k), np.repeat(np.eye(k), 2, axis=0) * np.tile([1.0, -1.0], k)[:, None]]
         + [np.eye(k)[i] + np.eye(k)[j] for i, j in itertools.combinations(range(k), 2)]
     )
-    s1 = _evaluate(topology, t1, anchor, h, parasitics, params)
+    s1 = _evaluate(topology, t1, anchor, h, parasitics, params, state)
     n2 = len(monomials(k, 2))
     sol, enough = _least_squares(_basis(t1, terms[:n2]), s1.q)
     coef[:, :n2] = np.swapaxes(sol, 1, 2)
@@ -334,6 +340,7 @@ def fit_boards(
             {p: a[e] for p, a in h.items()},
             parasitics,
             params,
+            state,
         )
         qa = np.concatenate([s1.q[:, :, e], s2.q], axis=1)  # (3, P, n_e)
         a_mat = _basis(np.vstack([t1, extra]), terms)

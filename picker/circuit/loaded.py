@@ -302,6 +302,14 @@ class NominalState:
         return NominalState(self.approx[sel], self.off_f[sel], self.off_m[sel])
 
 
+def _steady(
+    topology: Topology, values: Mapping[str, Any], stray: Any, params: AmplifierParams
+) -> SteadyState:
+    """:func:`picker.circuit.steady.steady_state`, looked up when called (so a test that
+    replaces this module's ``steady_state`` replaces it in the board fit too)."""
+    return steady_state(topology, values, stray, params)
+
+
 def board_state(
     topology: Topology,
     values: Mapping[str, np.ndarray],
@@ -472,6 +480,7 @@ class LoadedModel:
                 {p: hi[p][sel] for p in pos},
                 pb.parasitics,
                 self.params,
+                state=_steady,
             )
             for j, i in enumerate(missing):
                 self._fits[keys[i]] = got.take(slice(j, j + 1))
