@@ -18,7 +18,7 @@ cautions, worst margin, the ``large_signal`` object) in :mod:`picker.circuit.fig
 
 The large-signal model per design, the linear model per board
 -------------------------------------------------------------
-The large-signal model costs one to a few milliseconds per board (about 2,600 s of
+The large-signal model costs one to a few milliseconds per board (2,500 to 3,700 s of
 CPU for 200 designs × 20,000 boards, measured by :mod:`picker.bench.loaded`), so by
 default (``amplifier.monte_carlo = "surrogate"``) it runs only at a few points of the
 box the boards of each design span, and a polynomial carries it to every board
