@@ -39,7 +39,9 @@ frozen at nominal (frozen, a design whose boards straddle the burst edge was cou
 It is an approximation, tested against the large-signal model on every board in
 tests/test_loaded_fit.py: on the demo ``colpitts_bjt.toml`` and on spaces with
 designs at the burst and start-up edges, the yields agree within their combined
-standard errors. Designs the fit cannot describe (the centre of the box does not
+standard errors. Known gap: on the drift test of tests/test_loaded.py two designs
+are counted 1.6 % and 2.0 % of their boards above the per-board model (a strict
+expected failure, not yet traced). Designs the fit cannot describe (the centre of the box does not
 start, saturation differs between points, the verdicts disagree with the
 continuous quantities, too few finite points) run the large-signal model on every
 board. ``amplifier.monte_carlo = "full"`` runs it on every board of every design.
