@@ -1,0 +1,356 @@
+"""Per-design fits of the large-signal model across the boards of a design.
+
+The large-signal model (:func:`picker.circuit.steady.steady_state`) costs one to a few
+milliseconds per board: far too much for every board of a few hundred candidates ×
+20,000 boards. Its verdicts on a board, though, are smooth functions of the board's
+part values over the small box the boards of one design span (a few per cent per
+part), so :class:`picker.circuit.loaded.LoadedModel` evaluates it at a few points of
+that box per design and carries it to every board by a polynomial in the normalised
+log deviations t_i = ln(v_i / a_i) / h_i (a the box's centre, h_i its half-width in
+ln v_i, so t lies in [−1, 1]^k; a Taylor polynomial fitted by least squares, no
+source needed):
+
+    q(t) ≈ Σ_α b_α·t^α,   |α| ≤ d                                                (F1)
+
+for three quantities q of the large-signal model, each measured *against the
+linear model* where that is what it corrects:
+
+- ``off_f`` = ln f_steady − ln f_linear (the steady state's pull on the frequency);
+- ``off_m`` = ln m_steady − ln m_linear (the Nyquist margin against the linear
+  model's |T| at the zero-phase crossing);
+- ``score``, the bursting verdict as a continuous quantity, positive for a board that
+  bursts: the largest real part of the envelope-and-bias eigenvalues over ω
+  (:mod:`picker.circuit.envelope`, Lyapunov's indirect method) where the device stays
+  out of saturation, ln(R_E·C_E / (SATURATED_BURST·t_up)) where it saturates (the
+  relaxation rule of :data:`picker.circuit.envelope.SATURATED_BURST`).
+
+Two stages per design:
+
+1. d = 2 from 1 + 2k + k(k − 1)/2 points: the centre, t_i = ±1 along each position
+   and t_i = t_j = +1 for each pair (exactly determined). The cross terms matter: on
+   a design of the demo ``colpitts_bjt.toml`` the frequency offset changes by 2e-3
+   in ln f across the ±5 % box; a quadratic without them misses it by 3e-5 (rms over
+   500 boards), with them by 1e-6.
+2. Where the bursting verdict may change inside the box (the score's sign differs
+   between the points, or the quadratic's range over a 5^k grid of the box, widened
+   on both sides by :data:`EDGE_SAFETY` times its width, holds zero) or a stage-1
+   point does not start: d = :data:`EDGE_DEGREE` by least squares over
+   :data:`EDGE_POINTS` × the number of terms points (the stage-1 points, the 2^k
+   corners and a Halton sequence over the box; Halton 1960, Numer. Math. 2: radical
+   inverses in the first primes). The envelope's eigenvalue bends across the box,
+   with a kink where two eigenvalues trade places: on the demo's design with the
+   most bent score, least squares over 500 of its boards leave 1.4 % of them on the
+   wrong side of the burst edge with d = 2, 0.6 % with d = 3, none with d = 4.
+
+Where the score bends sharply (a kink where two envelope eigenvalues trade places is
+beyond any polynomial), the least squares leave residuals at their own points: the
+boards whose fitted score lies within :data:`BAND_FACTOR` times the largest of them
+of zero go through the large-signal model itself.
+
+A design is fitted only where the fit can describe it: its box centre starts and
+runs without a numerical failure, every point that starts saturates alike (the
+score changes form across saturation), at every point "starts" agrees with
+"margin > 1" and "bursts" with "score > 0", and the least squares have at least as
+many finite points as terms. ``ok`` is False elsewhere, and
+:class:`picker.circuit.loaded.LoadedModel` runs the large-signal model on every
+board of those designs.
+
+Axis convention: samples on axis 0, designs on axis 1; every per-design array (c,).
+"""
+
+from __future__ import annotations
+
+import itertools
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.envelope import SATURATED_BURST
+from picker.circuit.oscillation import loaded_response
+from picker.circuit.steady import SteadyState, steady_state
+from picker.tank.base import TWO_PI, Topology
+from picker.tank.board import Parasitics, board_values
+
+__all__ = [
+    "BAND_FACTOR",
+    "EDGE_DEGREE",
+    "EDGE_POINTS",
+    "EDGE_SAFETY",
+    "QUANTITIES",
+    "StateFn",
+    "BoardFit",
+    "fit_boards",
+    "halton",
+    "monomials",
+    "point_quantities",
+]
+
+#: The large-signal model's signature: (topology, board values, stray, params) -> state.
+StateFn = Callable[[Topology, Mapping[str, Any], Any, AmplifierParams], SteadyState]
+#: The fitted quantities, in the order of :attr:`BoardFit.coef`'s first axis.
+QUANTITIES = ("off_f", "off_m", "score")
+#: Smallest half-width (ln v) an axis is fitted over (a part without spread).
+MIN_STEP = 1e-7
+#: Stage 2 runs unless the quadratic score stays this many times its own range over the
+#: box away from zero (the quadratic misses the score by up to about a fifth of its range
+#: on the designs measured, see the module docstring).
+EDGE_SAFETY = 0.5
+#: Stage 2's points: this many times its number of terms.
+EDGE_POINTS = 2.5
+#: Stage 2's degree.
+EDGE_DEGREE = 4
+#: The burst band: this many times the stage-2 fit's largest residual of the score.
+BAND_FACTOR = 2.0
+_PRIMES = (2, 3, 5, 7, 11, 13, 17, 19)
+
+
+def monomials(k: int, degree: int) -> list[tuple[int, ...]]:
+    """Exponent tuples α of the monomials t^α with |α| ≤ ``degree`` in k variables,
+    constant first, then degree 1 in position order, then higher degrees."""
+    out = [tuple([0] * k)]
+    for d in range(1, degree + 1):
+        for comb in itertools.combinations_with_replacement(range(k), d):
+            e = [0] * k
+            for i in comb:
+                e[i] += 1
+            out.append(tuple(e))
+    return out
+
+
+def halton(n: int, k: int) -> np.ndarray:
+    """The first ``n`` points (from index 1) of the k-dimensional Halton sequence,
+    mapped to [−1, 1]^k, shape (n, k) (Halton 1960: radical inverse of the index in
+    the i-th prime)."""
+    out = np.zeros((n, k))
+    for j in range(k):
+        b = _PRIMES[j]
+        for i in range(n):
+            f, r, m = 1.0, 0.0, i + 1
+            while m > 0:
+                f /= b
+                r += f * (m % b)
+                m //= b
+            out[i, j] = r
+    return 2.0 * out - 1.0
+
+
+def _basis(t: np.ndarray, terms: list[tuple[int, ...]]) -> np.ndarray:
+    """Monomials of points t (P, k) -> (P, len(terms))."""
+    return np.stack([np.prod(t ** np.array(e), axis=1) for e in terms], axis=1)
+
+
+@dataclass(frozen=True)
+class BoardFit:
+    """Coefficients of (F1) per design.
+
+    ``anchor`` and ``h``: position -> box centre and half-width in ln v (c,);
+    ``coef`` (3, T, c), rows in :data:`QUANTITIES` order, terms as
+    :func:`monomials` (k, :data:`EDGE_DEGREE`) gives them (zero beyond degree 2 where
+    ``edge`` is False); ``ok`` (c,) marks designs the fit describes.
+    """
+
+    anchor: dict[str, np.ndarray]
+    h: dict[str, np.ndarray]
+    coef: np.ndarray
+    edge: np.ndarray
+    band: np.ndarray
+    ok: np.ndarray
+
+    def take(self, sel: Any) -> BoardFit:
+        return BoardFit(
+            {p: a[sel] for p, a in self.anchor.items()},
+            {p: a[sel] for p, a in self.h.items()},
+            self.coef[:, :, sel],
+            self.edge[sel],
+            self.band[sel],
+            self.ok[sel],
+        )
+
+    def quantity(self, name: str, vals: Mapping[str, np.ndarray]) -> np.ndarray:
+        """(F1) for quantity ``name`` on boards ``vals`` (position -> (samples, c))."""
+        r = QUANTITIES.index(name)
+        pos = list(self.anchor)
+        k = len(pos)
+        t = [np.log(vals[p] / self.anchor[p]) / self.h[p] for p in pos]
+        out = np.broadcast_to(self.coef[r, 0], t[0].shape).copy()
+        for i in range(k):
+            out += self.coef[r, 1 + i] * t[i]  # (F1), degree 1
+        terms = monomials(k, EDGE_DEGREE)
+        n2 = len(monomials(k, 2))
+        for j, e in enumerate(terms[k + 1 : n2], start=k + 1):  # (F1), degree 2
+            i1, i2 = [i for i, ei in enumerate(e) for _ in range(ei)]
+            out += self.coef[r, j] * (t[i1] * t[i2])
+        cols = np.flatnonzero(self.edge)
+        if cols.size:  # (F1), degrees 3 .. EDGE_DEGREE, on the designs fitted with them
+            tc = [ti[:, cols] for ti in t]
+            extra = np.zeros(tc[0].shape)
+            for j, e in enumerate(terms[n2:], start=n2):
+                m = np.broadcast_to(self.coef[r, j, cols], tc[0].shape).copy()
+                for i in [i for i, ei in enumerate(e) for _ in range(ei)]:
+                    m *= tc[i]
+                extra += m
+            out[:, cols] += extra
+        return out
+
+
+def point_quantities(
+    lin_f: np.ndarray, lin_m: np.ndarray, st: SteadyState, params: AmplifierParams
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The fitted quantities at evaluated points, and what the checks need.
+
+    Returns ``(off_f, off_m, score, good, saturated)``: ``off_f`` NaN where the board
+    does not start; ``score`` the bursting score of the module docstring (NaN where the
+    board does not start or the steady state was not found); ``good``: starts and a
+    steady state was found; ``saturated``: good and overdriven.
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):
+        off_f = np.log(st.f_hz) - np.log(lin_f)
+        off_m = np.log(st.margin) - np.log(lin_m)
+        good = st.starts & np.isfinite(st.amplitude_v) & np.isfinite(st.f_hz)
+        saturated = good & st.overdriven
+        t_relax = (params.r_e or 0.0) * (params.c_e or 0.0) / SATURATED_BURST
+        relax = np.log(t_relax / st.startup_time_s)  # > 0: R_E·C_E > SATURATED_BURST·t_up
+        rate = st.envelope_rate / (TWO_PI * st.f_hz)  # > 0: the envelope grows
+        score = np.where(saturated, relax, rate)
+    score = np.where(good, score, np.nan)
+    off_f = np.where(good, off_f, np.nan)
+    return off_f, off_m, score, good, saturated
+
+
+@dataclass(frozen=True)
+class _Points:
+    """The models at points t (P, k) of the boxes of c designs."""
+
+    q: np.ndarray  # (3, P, c)
+    ok: np.ndarray  # (c,): the consistency checks of the module docstring hold
+    good: np.ndarray  # (P, c)
+    sat: np.ndarray  # (P, c)
+
+
+def _evaluate(
+    topology: Topology,
+    t: np.ndarray,
+    anchor: Mapping[str, np.ndarray],
+    h: Mapping[str, np.ndarray],
+    parasitics: Parasitics,
+    params: AmplifierParams,
+    state: StateFn,
+) -> _Points:
+    pos = topology.positions
+    vals = {
+        p: anchor[p][None, :] * np.exp(t[:, i, None] * h[p][None, :]) for i, p in enumerate(pos)
+    }
+    bv = board_values(topology, vals, parasitics)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        lin = loaded_response(topology, bv, parasitics.stray, params)
+        st = state(topology, bv, parasitics.stray, params)
+    off_f, off_m, score, good, sat = point_quantities(lin.f_hz, lin.margin, st, params)
+    with np.errstate(invalid="ignore"):
+        ok = np.all(st.starts == (st.margin > 1.0), axis=0)
+        ok &= np.all(~good | (st.bursting == (score > 0.0)), axis=0)
+        ok &= np.all(np.isfinite(off_m), axis=0)
+    return _Points(np.stack([off_f, off_m, score]), ok, good, sat)
+
+
+def _least_squares(a_mat: np.ndarray, q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Coefficients (3, c, T) of (F1) by least squares over the finite points of each
+    quantity and design (normal equations; the basis lives on [−1, 1]^k, so they are
+    well conditioned), and (c,) whether every quantity had at least T finite points
+    and the solution is finite. ``a_mat`` (P, T) the basis at the points, ``q`` (3, P, c)."""
+    fin = np.isfinite(q)
+    w = fin.astype(float)
+    normal = np.einsum("rpe,pi,pj->reij", w, a_mat, a_mat)
+    rhs = np.einsum("rpe,pi,rpe->rei", w, a_mat, np.where(fin, q, 0.0))
+    n_terms = a_mat.shape[1]
+    enough = fin.sum(axis=1).min(axis=0) >= n_terms
+    normal[:, ~enough] = np.eye(n_terms)
+    sol = np.linalg.solve(normal, rhs[..., None])[..., 0]
+    return sol, enough & np.all(np.isfinite(sol), axis=(0, 2))
+
+
+def _residual(a_mat: np.ndarray, q: np.ndarray, sol: np.ndarray) -> np.ndarray:
+    """Largest |fit − q| over the finite points, (3, c); ``sol`` (3, c, T)."""
+    fitted = np.einsum("pi,rei->rpe", a_mat, sol)
+    with np.errstate(invalid="ignore"):
+        return np.nan_to_num(np.abs(fitted - q), nan=0.0).max(axis=1)
+
+
+def fit_boards(
+    topology: Topology,
+    lo: Mapping[str, np.ndarray],
+    hi: Mapping[str, np.ndarray],
+    parasitics: Parasitics,
+    params: AmplifierParams,
+    state: StateFn = steady_state,
+) -> BoardFit:
+    """:class:`BoardFit` of designs whose boards span the box [lo, hi] per position (c,).
+
+    Calls the linear model (:func:`picker.circuit.oscillation.loaded_response`) and the
+    large-signal model (:func:`picker.circuit.steady.steady_state`) on the stage-1 board
+    values (marked values with the parasitics applied; ``state`` is the large-signal
+    model, :func:`picker.circuit.steady.steady_state` by default), and again on the stage-2 points
+    of the designs that need them (module docstring).
+    """
+    pos = topology.positions
+    k = len(pos)
+    lo_ = {p: np.asarray(lo[p], dtype=float) for p in pos}
+    hi_ = {p: np.asarray(hi[p], dtype=float) for p in pos}
+    anchor = {p: np.sqrt(lo_[p] * hi_[p]) for p in pos}
+    h = {p: np.maximum(0.5 * np.log(hi_[p] / lo_[p]), MIN_STEP) for p in pos}
+    c = len(anchor[pos[0]])
+    terms = monomials(k, EDGE_DEGREE)
+    coef = np.zeros((len(QUANTITIES), len(terms), c))
+    band = np.zeros(c)
+    # stage 1: the centre, ±1 along each axis and +1 along each pair of axes; (F1) with
+    # d = 2 (exactly determined where every point is finite)
+    t1 = np.vstack(
+        [np.zeros(k), np.repeat(np.eye(k), 2, axis=0) * np.tile([1.0, -1.0], k)[:, None]]
+        + [np.eye(k)[i] + np.eye(k)[j] for i, j in itertools.combinations(range(k), 2)]
+    )
+    s1 = _evaluate(topology, t1, anchor, h, parasitics, params, state)
+    n2 = len(monomials(k, 2))
+    sol, enough = _least_squares(_basis(t1, terms[:n2]), s1.q)
+    coef[:, :n2] = np.swapaxes(sol, 1, 2)
+    ok = s1.ok & s1.good[0]
+    sat0 = s1.sat[0]
+    same = np.all(~s1.good | (s1.sat == sat0[None, :]), axis=0)
+    with np.errstate(invalid="ignore"):
+        # the quadratic score's range over a grid of the box, widened by EDGE_SAFETY times
+        # its own width: stage 2 where zero lies in it
+        grid = np.array(list(itertools.product(np.linspace(-1.0, 1.0, 5), repeat=k)))
+        on_grid = _basis(grid, terms[:n2]) @ coef[2, :n2]  # (G, c)
+        s_lo, s_hi = on_grid.min(axis=0), on_grid.max(axis=0)
+        pad = EDGE_SAFETY * (s_hi - s_lo)
+        sign_mixed = np.any(s1.q[2] > 0, axis=0) & np.any(s1.q[2] <= 0, axis=0)
+        edge = sign_mixed | ~((s_lo - pad > 0.0) | (s_hi + pad <= 0.0))
+    edge |= ~enough | ~np.all(np.isfinite(s1.q), axis=(0, 1))
+    edge &= ok
+    e = np.flatnonzero(edge)
+    if e.size:  # stage 2: degree EDGE_DEGREE by least squares
+        n_pts = int(np.ceil(EDGE_POINTS * len(terms)))
+        corners = np.array(list(itertools.product((-1.0, 1.0), repeat=k)))
+        extra = np.vstack([corners, halton(max(0, n_pts - len(t1) - len(corners)), k)])
+        s2 = _evaluate(
+            topology,
+            extra,
+            {p: a[e] for p, a in anchor.items()},
+            {p: a[e] for p, a in h.items()},
+            parasitics,
+            params,
+            state,
+        )
+        qa = np.concatenate([s1.q[:, :, e], s2.q], axis=1)  # (3, P, n_e)
+        a_mat = _basis(np.vstack([t1, extra]), terms)
+        sol, enough2 = _least_squares(a_mat, qa)
+        band[e] = BAND_FACTOR * _residual(a_mat, qa, sol)[2]
+        coef[:, :, e] = np.swapaxes(sol, 1, 2)
+        good = np.concatenate([s1.good[:, e], s2.good], axis=0)
+        sat = np.concatenate([s1.sat[:, e], s2.sat], axis=0)
+        ok[e] &= s2.ok & enough2
+        same[e] &= np.all(~good | (sat == sat0[e][None, :]), axis=0)
+    ok &= same & (edge | enough)
+    ok &= same
+    return BoardFit(anchor, h, coef, edge, band, ok)
