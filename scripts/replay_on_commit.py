@@ -355,9 +355,9 @@ def pre_issue_commit() -> str:
 
 
 def _limit_memory() -> None:
-    """8 GiB of address space for the old code's run (it read /dev/zero until 2.5 GB)."""
+    """4 GiB of address space for a run (the old code read /dev/zero until 2.5 GB)."""
     _, hard = resource.getrlimit(resource.RLIMIT_AS)
-    resource.setrlimit(resource.RLIMIT_AS, (8 << 30, hard))
+    resource.setrlimit(resource.RLIMIT_AS, (4 << 30, hard))
 
 
 def run_tests(
