@@ -122,7 +122,7 @@ KINDS: tuple[tuple[str, str, tuple[str, ...]], ...] = (
     (
         "traceback",
         "a CSV cell over 131,072 characters (_csv.Error)",
-        (HI + "test_a_csv_cell_over_the_limit",),
+        (HI + "test_a_csv_cell_over_the_limit", HR + "test_a_csv_cell_over_the_limit_in_a_meas"),
     ),
     (
         "hang",
@@ -131,6 +131,7 @@ KINDS: tuple[tuple[str, str, tuple[str, ...]], ...] = (
             HI + "test_a_fifo_with_no_writer",
             HI + "test_a_fifo_stock_list",
             HI + "test_a_fifo_lot",
+            HR + "test_a_fifo_a_plan_names",
             FO + "test_any_input_replaced_by_an_odd_file",
         ),
     ),

@@ -231,7 +231,7 @@ def test_sigterm_while_a_plot_is_written_removes_it_and_exits_130(tmp_path, monk
     assert signal.getsignal(signal.SIGTERM) is signal.SIG_DFL  # handler given back
 
 
-def _wait_for_handlers(pid: int, timeout: float = 120) -> None:
+def _wait_for_handlers(pid: int, timeout: float = 60) -> None:
     """Wait until ``pid`` catches SIGTERM and SIGHUP (its run has begun): the caught-signal
     mask of /proc/PID/status (Linux proc(5))."""
     want = (1 << (signal.SIGTERM - 1)) | (1 << (signal.SIGHUP - 1))

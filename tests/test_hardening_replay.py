@@ -171,3 +171,40 @@ def test_one_attofarad_parses():
     from picker.units import parse_quantity
 
     assert parse_quantity("1 aF", "F") == pytest.approx(1e-18)  # SI Brochure 9th ed., table 7
+
+
+def test_a_csv_cell_over_the_limit_in_a_measurement_file_is_one_line(tmp_path):
+    # Found again on the round's code: a measurement file with a cell over 131,072
+    # characters (the csv module's field limit) was a _csv.Error traceback in calibrate.
+    csv = _units_csv(tmp_path / "u.csv", 12)
+    lines = csv.read_text(encoding="utf-8").splitlines()
+    lines[2] = '"' + "x" * 140_000 + '"' + lines[2][lines[2].index(",") :]
+    csv.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    code, out, err = run_cli(["calibrate", str(csv), "--topology", "colpitts"])
+    assert code == 2, err
+    assert "characters" in error_line(err)
+
+
+def test_a_fifo_a_plan_names_is_called_a_fifo(tmp_path):
+    # Found again on the round's code: a plan whose base spec is a FIFO was refused as
+    # "no such file" though the file is there (a hang on the code before the round).
+    text = (DEMO / "plan_demo.toml").read_text(encoding="utf-8")
+    assert '"plan_sensor_base.toml"' in text
+    text = text.replace('"plan_sensor_base.toml"', '"base.toml"')
+    text = text.replace('"stock_demo.csv"', f'"{DEMO / "stock_demo.csv"}"')
+    plan = tmp_path / "plan.toml"
+    plan.write_text(text, encoding="utf-8")
+    os.mkfifo(tmp_path / "base.toml")
+    try:
+        r = subprocess.run(
+            [sys.executable, "-m", "picker", "consolidate", str(plan)],
+            capture_output=True,
+            text=True,
+            timeout=60,
+            stdin=subprocess.DEVNULL,
+        )
+    except subprocess.TimeoutExpired:
+        pytest.fail("consolidate waited on a FIFO the plan names")
+    assert r.returncode == 2, r.stderr
+    line = error_line(r.stderr)
+    assert "FIFO" in line and "no such" not in line, line
