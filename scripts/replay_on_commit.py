@@ -404,8 +404,8 @@ def _parse(xml: Path) -> dict[str, tuple[str, str]]:
         outcome, why = "passed", ""
         for child in case:
             if child.tag in ("failure", "error"):
-                why = (child.get("message") or child.text or "").strip().splitlines()
-                why_line = why[0] if why else ""
+                first = (child.get("message") or child.text or "").strip().splitlines()
+                why_line = first[0] if first else ""
                 text = (child.get("message") or "") + (child.text or "")
                 if any(m in text for m in _MISSING_API) and "picker" in text:
                     outcome = "error (API missing)"
@@ -417,7 +417,7 @@ def _parse(xml: Path) -> dict[str, tuple[str, str]]:
                 break
             if child.tag == "skipped":
                 outcome = "xfail" if child.get("type") == "pytest.xfail" else "skipped"
-        out[node] = (outcome, why if isinstance(why, str) else "")
+        out[node] = (outcome, why)
     return out
 
 
