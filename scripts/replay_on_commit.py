@@ -356,7 +356,7 @@ def pre_issue_commit() -> str:
 
 
 def _limit_memory() -> None:
-    """4 GiB of address space for a run (the old code read /dev/zero until 2.5 GB)."""
+    """4 GiB of address space for the old code's run (it read /dev/zero until 2.5 GB)."""
     _, hard = resource.getrlimit(resource.RLIMIT_AS)
     resource.setrlimit(resource.RLIMIT_AS, (4 << 30, hard))
 
@@ -389,7 +389,13 @@ def run_tests(
     cmd += ["--junitxml", str(xml), "-o", "junit_family=xunit1", *select]
     with open(tmp / f"{label}.log", "w", encoding="utf-8") as log:
         subprocess.run(
-            cmd, cwd=tree, env=env, stdout=log, stderr=log, preexec_fn=_limit_memory, check=False
+            cmd,
+            cwd=tree,
+            env=env,
+            stdout=log,
+            stderr=log,
+            preexec_fn=_limit_memory if guard else None,
+            check=False,
         )
     return _parse(xml)
 

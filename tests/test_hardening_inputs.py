@@ -245,6 +245,11 @@ def _wait_for_handlers(pid: int, timeout: float = 60) -> None:
     raise AssertionError("the command never installed its signal handlers")
 
 
+def _default_stop_signals() -> None:
+    for s in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
+        signal.signal(s, signal.SIG_DFL)
+
+
 @pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM, signal.SIGHUP])
 def test_a_signal_mid_run_prints_one_line_and_exits_130(tmp_path, sig):
     # Found: Ctrl-C exited 130 without a word. A real process, stopped mid-run.
@@ -260,7 +265,10 @@ def test_a_signal_mid_run_prints_one_line_and_exits_130(tmp_path, sig):
         text=True,
         cwd=tmp_path,
         restore_signals=True,
-        start_new_session=True,  # SIGINT is not ignored as in a background job
+        start_new_session=True,
+        # as a user's terminal would start it: a run under nohup or in a background job
+        # inherits SIGHUP or SIGINT ignored, and picker rightly leaves an ignored signal so
+        preexec_fn=_default_stop_signals,
     )
     try:
         _wait_for_handlers(proc.pid)
