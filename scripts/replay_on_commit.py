@@ -300,7 +300,7 @@ PLUGIN = """
 import os, signal
 import pytest
 
-LIMIT = int(os.environ.get("REPLAY_TIMEOUT", "300"))
+LIMIT = int(os.environ.get("REPLAY_TIMEOUT", "900"))
 GUARD = os.environ.get("REPLAY_GUARD_SIGNALS") == "1"
 
 
@@ -545,7 +545,12 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--commit", help="the old code (default: before issue 13's first commit)")
     ap.add_argument("--report", type=Path, default=ROOT / "docs" / "issue13_replay.md")
-    ap.add_argument("--timeout", type=int, default=300, help="seconds per test")
+    ap.add_argument(
+        "--timeout",
+        type=int,
+        default=900,
+        help="seconds per test (the fuzz tests take minutes on a loaded machine)",
+    )
     ap.add_argument("--mutations", action="store_true", help="also the six mutations")
     args = ap.parse_args(argv)
     start = time.monotonic()

@@ -121,7 +121,7 @@ def test_a_large_calibration_batch_prints_a_bounded_table(tmp_path):
     assert out_big.count("\n") < 100, out_big.count("\n")
 
 
-def test_sighup_while_a_plot_is_written_removes_it_and_exits_130(tmp_path, monkeypatch):
+def test_sighup_while_a_plot_is_written_removes_it_and_exits_130(tmp_path, monkeypatch, request):
     # Found: SIGTERM or SIGHUP during --plot left the temporary PNG behind (12 of 12).
     from picker.report import plots
 
@@ -133,6 +133,11 @@ def test_sighup_while_a_plot_is_written_removes_it_and_exits_130(tmp_path, monke
         return out
 
     monkeypatch.setattr(plots, "plot_histogram", draw_then_signal)
+    if signal.getsignal(signal.SIGHUP) is signal.SIG_IGN:
+        # pytest itself under nohup: a terminal's run has SIGHUP at its default, and
+        # picker rightly leaves an ignored SIGHUP ignored
+        signal.signal(signal.SIGHUP, signal.SIG_DFL)
+        request.addfinalizer(lambda: signal.signal(signal.SIGHUP, signal.SIG_IGN))
     spec = tmp_path / "tone.toml"
     spec.write_text(to_toml(cheap(load_demo("tone_source.toml"))), encoding="utf-8")
     folder = tmp_path / "plots"
