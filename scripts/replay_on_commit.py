@@ -300,7 +300,7 @@ PLUGIN = """
 import os, signal
 import pytest
 
-LIMIT = int(os.environ.get("REPLAY_TIMEOUT", "900"))
+LIMIT = int(os.environ.get("REPLAY_TIMEOUT", "1800"))
 GUARD = os.environ.get("REPLAY_GUARD_SIGNALS") == "1"
 
 
@@ -548,7 +548,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument(
         "--timeout",
         type=int,
-        default=900,
+        default=1800,
         help="seconds per test (the fuzz tests take minutes on a loaded machine)",
     )
     ap.add_argument("--mutations", action="store_true", help="also the six mutations")
