@@ -9,6 +9,7 @@ input (part ids per position, series values matched to stock parts), and
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -132,7 +133,8 @@ def _check_files(plan: Plan) -> None:
     named = [("base", ps.base), ("stock", ps.stock)]
     named += [(f"channels.{n}.spec", ch.spec) for n, ch in ps.channels.items()]
     for key, rel in named:
-        if rel is not None and not plan.resolve(rel).is_file():
+        # a FIFO, device or link loop goes on to the bounded reader, which names what it is
+        if rel is not None and not os.path.lexists(plan.resolve(rel)):
             raise SpecError(
                 f"expected an existing file; no such file {str(plan.resolve(rel))!r}",
                 file=str(plan.path),

@@ -40,7 +40,7 @@ from pathlib import Path
 import numpy as np
 
 from picker.errors import SpecError
-from picker.files import read_text
+from picker.files import csv_fault, read_text
 from picker.parts.limits import frequency_problem, value_problem
 from picker.tank import TOPOLOGIES, Topology
 from picker.units import parse_quantity
@@ -198,7 +198,10 @@ def parse_measurements(text: str, topology: Topology, *, file: str = "<text>") -
             f"'unit,{','.join(topology.positions)},frequency'",
             file=file,
         )
-    rows = list(csv.reader(io.StringIO("\n".join(line for _, line in lines))))
+    try:
+        rows = list(csv.reader(io.StringIO("\n".join(line for _, line in lines))))
+    except csv.Error as exc:  # a cell over the csv module's limit: one line, not a traceback
+        raise csv_fault(exc, file=file) from None
     if len(rows) != len(lines):  # a quoted field spanning lines
         raise SpecError("expected one unit per line; a quoted field spans lines", file=file)
     header_row, header = lines[0][0], rows[0]
