@@ -208,12 +208,13 @@ def test_board_model_surrogate_and_full_count_alike_with_drift():
 
 
 #: The reference below runs the large-signal model only on designs whose linear frequency
-#: lies within a factor exp(±0.2) of the window (speed); the largest steady-vs-linear pull
-#: measured over every such design of these four cubes is 0.060 in ln f, a third of that.
+#: lies within a factor exp(±PULL_LIMIT) of the window (speed), and checks on what it ran
+#: that no design that runs is pulled by more than half of that (so the bound holds with
+#: room: otherwise the test fails rather than trusting it). ``None``: the whole cube.
 PULL_LIMIT = 0.2
 
 
-def _steady_brute_force(pb, params, min_margin, max_margin=math.inf):
+def _steady_brute_force(pb, params, min_margin, max_margin=math.inf, pull_limit=PULL_LIMIT):
     """Every combination of the cube with the documented rule applied to the large-signal
     model (picker.circuit.steady.steady_state on board values): feedback fraction in the
     window, starts, runs steady, steady f in [f_min, f_max], min_margin <= margin <=
@@ -226,14 +227,19 @@ def _steady_brute_force(pb, params, min_margin, max_margin=math.inf):
     beta = board_beta(pb.topology, vals, pb.parasitics)
     with np.errstate(all="ignore"):
         lin = loaded_response(pb.topology, bv, pb.parasitics.stray, params)
-        near = (np.abs(np.log(lin.f_hz / pb.f_min)) < PULL_LIMIT) | (
-            np.abs(np.log(lin.f_hz / pb.f_max)) < PULL_LIMIT
-        )
-        near |= (lin.f_hz >= pb.f_min) & (lin.f_hz <= pb.f_max)
+        near = np.ones(len(beta), dtype=bool)
+        if pull_limit is not None:
+            near = (np.abs(np.log(lin.f_hz / pb.f_min)) < pull_limit) | (
+                np.abs(np.log(lin.f_hz / pb.f_max)) < pull_limit
+            )
+            near |= (lin.f_hz >= pb.f_min) & (lin.f_hz <= pb.f_max)
         sel = np.flatnonzero(near & (beta >= pb.beta_min) & (beta <= pb.beta_max))
         st = steady_state(
             pb.topology, {p: v[sel] for p, v in bv.items()}, pb.parasitics.stray, params
         )
+        if pull_limit is not None:
+            pull = np.abs(np.log(st.f_hz / lin.f_hz[sel]))[st.starts & ~st.bursting]
+            assert np.nanmax(pull, initial=0.0) < 0.5 * pull_limit
     ok = st.starts & ~st.bursting & (st.f_hz >= pb.f_min) & (st.f_hz <= pb.f_max)
     ok &= (st.margin >= min_margin) & (st.margin <= max_margin)
     keys = zip(*[idx[p][sel][ok].tolist() for p in pos], strict=True)
@@ -246,35 +252,34 @@ def _steady_brute_force(pb, params, min_margin, max_margin=math.inf):
 
 
 @pytest.mark.parametrize(
-    ("pb", "params", "min_margin"),
+    ("pb", "params", "min_margin", "pull_limit"),
     [
-        (_small_problem(), BJT, 2.0),
-        (_small_problem(f0=2e6), LOSSY, 1.5),
+        # running designs pulled by up to 0.31 in ln f here (small C1 against C_mu): the whole cube
+        (_small_problem(), BJT, 2.0, None),
+        (_small_problem(f0=2e6), LOSSY, 1.5, PULL_LIMIT),
         # capacitors down to a few pF: the device dominates, loaded/ideal from 0.8 to 1.4
         pytest.param(
             _small_problem(f0=5e6, window=0.05, c_range=(2.2e-12, 220e-12), l_range=(1e-6, 10e-3)),
             BJT,
             1.5,
-            # Known gap (issue 11, stated in README): with the harmonic-balance frequency the
-            # steady pull of some device-dominated designs exceeds twice the largest pull the
-            # search's first pass saw, so the widened second pass misses them. Strict: the
-            # marker must come off when the search is complete again.
-            marks=pytest.mark.xfail(
-                strict=True, reason="loaded search misses strongly pulled designs"
-            ),
+            # the steady pull of running designs here reaches 0.32 in ln f: the whole cube
+            None,
+            # (before the search's edges were checked by the large-signal model it missed 13
+            # of these 105 designs, pulled by more than twice what its first pass saw)
         ),
         (
             _small_problem(CLAPP, f0=3e6, c_range=(47e-12, 4.7e-9), l_range=(2.2e-6, 220e-6)),
             BJT,
             2.0,
+            PULL_LIMIT,
         ),
     ],
 )
-def test_loaded_search_equals_brute_force(pb, params, min_margin):
+def test_loaded_search_equals_brute_force(pb, params, min_margin, pull_limit):
     # Reference: every combination of the cube through the large-signal model with the rule
     # written out in _steady_brute_force (not the search's own brute force).
     got = loaded_search(pb, params, min_margin=min_margin)
-    ref, linear = _steady_brute_force(pb, params, min_margin)
+    ref, linear = _steady_brute_force(pb, params, min_margin, pull_limit=pull_limit)
     pos = pb.topology.positions
     assert len(ref) > 0
     assert _keys(got.designs, pos) == set(ref)

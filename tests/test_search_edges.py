@@ -18,7 +18,6 @@ import numpy as np
 import pytest
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.loaded import loaded_nominal
 from picker.circuit.loaded_search import loaded_search
 from picker.circuit.steady import steady_state
 from picker.core.montecarlo import Simulation, count_passing
@@ -116,18 +115,18 @@ def test_monte_carlo_counts_a_board_exactly_on_the_edge_as_passing():
     assert int(count_passing(sim, d, u)[0]) == 200
 
 
-def _loaded_reference(p, min_margin):
-    """Full cube through the large-signal model (picker.circuit.steady on board values), with
-    this test's own edge checks: starts, runs steady, steady f in the window, feedback
-    fraction in its window, margin >= min_margin."""
+def _loaded_reference(p):
+    """Full cube through the large-signal model (picker.circuit.steady on board values),
+    every design whose feedback fraction is in its window (no pre-selection by frequency:
+    the steady frequency of a heavily loaded design here runs over 20 % from the linear
+    one). Returns (index tuples, margins, mask of designs passing this test's own edge
+    checks but the margin: starts, runs steady, steady f in the window, feedback fraction
+    in its window)."""
     tabs = p.tables
     (i1, i2, il), _, beta = _cube(tabs)
     vals = {"C1": tabs["C1"].values[i1], "C2": tabs["C2"].values[i2], "L": tabs["L"].values[il]}
     bv = board_values(COLPITTS, vals, p.parasitics)
-    # speed: only designs whose linear frequency lies within ±20 % of the window (the
-    # steady-state pull is a few per cent at most, tests/test_loaded.py)
-    f_lin, _ = loaded_nominal(COLPITTS, vals, p.parasitics, BJT)
-    sel = (f_lin > 0.8 * p.f_min) & (f_lin < 1.2 * p.f_max)
+    sel = (beta >= p.beta_min) & (beta <= p.beta_max)
     m = np.zeros(len(i1))
     f = np.full(len(i1), np.nan)
     runs = np.zeros(len(i1), dtype=bool)
@@ -135,27 +134,31 @@ def _loaded_reference(p, min_margin):
         st = steady_state(COLPITTS, {k: v[sel] for k, v in bv.items()}, p.parasitics.stray, BJT)
     m[sel], f[sel], runs[sel] = st.margin, st.f_hz, st.starts & ~st.bursting
     ok = runs & (f >= p.f_min) & (f <= p.f_max) & (beta >= p.beta_min) & (beta <= p.beta_max)
-    ok &= m >= min_margin  # exactly the margin asked, not more
-    return set(zip(i1[ok].tolist(), i2[ok].tolist(), il[ok].tolist(), strict=True)), m, ok
+    return (i1, i2, il), m, ok
 
 
 @pytest.mark.xfail(
     strict=True,
-    reason="with the harmonic-balance frequency the loaded search keeps two designs this "
-    "brute force rejects (issue 11 note: to investigate, e.g. batch dependence of the "
-    "steady frequency); the marker must come off when it passes again",
+    reason="two designs of this cube, (C1, C2, L) = (82 pF, 150 pF, 330 uH) and (68 pF, "
+    "220 pF, 270 uH), have a harmonic-balance frequency 15-20 % below both neighbours in L "
+    "(ngspice, monotone in L: 1.203 and 1.305 MHz; the model: 1.018 and 1.017 MHz), so "
+    "the model's running frequency is not "
+    "monotone in L there and the search, exact under that assumption, does not reach them; "
+    "the marker must come off when picker.circuit.harmonic no longer gives these outliers",
 )
 def test_loaded_search_asks_exactly_the_start_up_margin_given():
     # min_margin set to one design's own margin: that design is kept, and the search equals
-    # the brute force whose margin check is written out above (catches a search demanding
-    # 5 % more start-up margin than asked).
+    # the brute force whose margin check is written out here (catches a search demanding
+    # 5 % more start-up margin than asked, and, since that margin is the design's own to
+    # the last bit, a margin that moves with the batch the design is evaluated in).
     tabs = _tables(c_range=(47e-12, 4.7e-9), l_range=(10e-6, 1e-3))
     p = Problem(COLPITTS, tabs, 0.97e6, 1.03e6, 0.1, 1.0, Parasitics())
-    _, m, ok0 = _loaded_reference(p, 0.0)
+    (i1, i2, il), m, ok0 = _loaded_reference(p)
     margins = np.sort(m[ok0 & np.isfinite(m) & (m > 1.2)])
     assert len(margins) > 20
     min_margin = float(margins[len(margins) // 3])
-    ref, _, _ = _loaded_reference(p, min_margin)
+    ok = ok0 & (m >= min_margin)  # exactly the margin asked, not more
+    ref = set(zip(i1[ok].tolist(), i2[ok].tolist(), il[ok].tolist(), strict=True))
     # with 5 % more margin demanded some of these would go: the test has teeth
     assert np.count_nonzero(ok0 & (m >= min_margin) & (m < 1.05 * min_margin)) > 0
     got = loaded_search(p, BJT, min_margin=min_margin)

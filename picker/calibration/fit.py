@@ -523,10 +523,17 @@ def _select_and_fit(
         if key not in fits:
             fits[key] = fit_parasitics(topology, vals, f, fit=key, loss="linear", **args)
         r = fits[key]
-        return NestedFit(r.fitted, r.weighted_sse, int(f.size))
+        est = {e.name: float(e.estimate) for e in r.parameters if e.fitted}
+        return NestedFit(r.fitted, r.weighted_sse, int(f.size), est)
 
+    # a capacitance a parasitic adds cannot be negative: tested one-sided (selection.py)
+    caps = [k for k in candidates if UNITS[k] == "F"]
     kept, steps, _ = choose_parasitics(
-        nested, candidates, alpha=alpha, known_sigma=bool(args["absolute_sigma"])
+        nested,
+        candidates,
+        alpha=alpha,
+        known_sigma=bool(args["absolute_sigma"]),
+        nonnegative=caps,
     )
     final = next(r for r in fits.values() if r.fitted == kept)
     if loss != "linear":

@@ -18,6 +18,18 @@ the section number is from memory). With sigmas known in absolute terms
 the residual variance needs no estimate and (ES) becomes the likelihood-ratio
 test ΔSSE ~ χ²(p_{K+q} − p_K) (Wilks, Ann. Math. Statist. 9, 1938).
 
+A candidate that cannot be negative (a shunt capacitance: a parasitic adds
+capacitance, it cannot take it away) is tested one-sided, against the
+alternative "it is positive": with one parameter added, F on (1, ν) degrees of
+freedom is the square of Student's t on ν (Draper & Smith 1998, ch. 6), so the
+one-sided p-value is p/2 when the estimate is positive and 1 − p/2 when it is
+negative (the same with χ²(1) = z² for known sigmas). The level is the same α:
+an unsupported shunt is still kept in at most α of calibrations, but never
+with a negative value, which would only absorb scatter along a direction the
+other parasitics nearly share (the likelihood-ratio test of a parameter on the
+boundary of its range has the half-χ²(1) null behind this; Self & Liang,
+JASA 82, 1987, from memory).
+
 A candidate the fit cannot separate from the kept ones (the identifiability
 check of :mod:`picker.calibration.diagnostics`), or that would leave no
 degree of freedom, is not added either; each step says why.
@@ -25,8 +37,8 @@ degree of freedom, is not added either; each step says why.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from collections.abc import Callable, Collection, Mapping, Sequence
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import stats
@@ -44,12 +56,14 @@ class NestedFit:
 
     ``fitted`` are the parasitics actually estimated (the identifiability
     check may hold some of those asked for), ``sse`` the weighted residual sum
-    of squares, ``n`` the number of units.
+    of squares, ``n`` the number of units, ``estimates`` the fitted values
+    (needed for the one-sided test of a candidate that cannot be negative).
     """
 
     fitted: tuple[str, ...]
     sse: float
     n: int
+    estimates: Mapping[str, float] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -108,8 +122,10 @@ def choose_parasitics(
     *,
     alpha: float = SELECT_ALPHA,
     known_sigma: bool = False,
+    nonnegative: Collection[str] = (),
 ) -> tuple[tuple[str, ...], tuple[SelectionStep, ...], NestedFit]:
-    """Forward selection of ``candidates`` in order (see the module docstring).
+    """Forward selection of ``candidates`` in order (see the module docstring); those in
+    ``nonnegative`` are tested one-sided.
 
     Returns the kept names (in order), one :class:`SelectionStep` per
     candidate, and the fit of the kept set.
@@ -176,6 +192,17 @@ def choose_parasitics(
             if known_sigma
             else f"F = {stat:.3g} on ({df[0]}, {df[1]}) d.f."
         )
+        est = bigger.estimates.get(name, float("nan"))
+        if name in nonnegative and df[0] == 1 and np.isfinite(est):
+            p = 0.5 * p if est > 0 else 1.0 - 0.5 * p  # one-sided: F(1, ν) = t², χ²(1) = z²
+            label += ", one-sided"
+            if est <= 0:
+                reason = (
+                    "it came out negative when fitted, and it cannot be: no evidence for "
+                    f"it ({label}, p {_fmt_p(p)}; extra-sum-of-squares test)"
+                )
+                steps.append(SelectionStep(name, False, test, stat, df, p, reason))
+                continue
         if np.isfinite(p) and p < alpha:
             kept = list(bigger.fitted)
             current = bigger

@@ -112,12 +112,13 @@ def _harmonics(
     res = np.full(w.size, np.inf)
     h = 1e-6
     for _ in range(_NEWTON):
-        v = base + (v_h @ rot[1:]).real  # (H1)
+        # einsum, not a BLAS product: each element's sums independent of the batch's size
+        v = base + np.einsum("em,mt->et", v_h, rot[1:]).real  # (H1)
         i = stage.output_current(params, ss, v)
         g = (stage.output_current(params, ss, v + h) - stage.output_current(params, ss, v - h)) / (
             2 * h
         )
-        i_n = 2.0 * (i @ rot[1:].conj().T) / _POINTS  # (H2)
+        i_n = 2.0 * np.einsum("et,mt->em", i, rot[1:].conj()) / _POINTS  # (H2)
         r = v_h - kern[:, 1:] * i_n  # (H4), n ≥ 2
         res = np.max(np.abs(r), axis=1) / a
         live = (res > _TOL) & np.isfinite(res)
@@ -146,8 +147,8 @@ def _harmonics(
         big = np.max(np.abs(dvh), axis=1)
         scale = np.minimum(1.0, 0.5 * a / np.maximum(big, 1e-300))  # at most a/2 a step
         v_h = v_h - scale[:, None] * dvh
-    v = base + (v_h @ rot[1:]).real
-    i1 = 2.0 * (stage.output_current(params, ss, v) @ rot[0].conj()) / _POINTS
+    v = base + np.einsum("em,mt->et", v_h, rot[1:]).real
+    i1 = 2.0 * np.einsum("et,t->e", stage.output_current(params, ss, v), rot[0].conj()) / _POINTS
     g1 = i1 / a  # the fundamental transconductance, complex
     phase = np.angle(b[:, 0] * g1 / (1.0 - z[:, 0] * y_in[:, 0] * g1))  # (H5)
     return phase, res <= 1e-6
@@ -169,17 +170,19 @@ def harmonic_frequency(
     f0, c0 = _harmonics(net, idx[sel], x0, a[sel], dv[sel])
     f1, c1 = _harmonics(net, idx[sel], x1, a[sel], dv[sel])
     good = c0 & c1
+    act = np.nonzero(good & ~(np.abs(f1) < 1e-9))[0]  # each element stops on its own residual
     for _ in range(_SECANT):
-        df = f1 - f0
-        fine = good & (df != 0) & np.isfinite(df)
-        x2 = np.where(fine, x1 - f1 * (x1 - x0) / np.where(fine, df, 1.0), x1)
-        x2 = np.clip(x2, x1 - _STEP * w[sel], x1 + _STEP * w[sel])
-        x0, f0 = x1, f1
-        x1 = x2
-        f1, c = _harmonics(net, idx[sel], x1, a[sel], dv[sel])
-        good &= c
-        if np.all(~good | (np.abs(f1) < 1e-9)):
+        if act.size == 0:
             break
+        xa0, xa1, fa0, fa1, wa = x0[act], x1[act], f0[act], f1[act], w[sel[act]]
+        df = fa1 - fa0
+        fine = (df != 0) & np.isfinite(df)
+        x2 = np.where(fine, xa1 - fa1 * (xa1 - xa0) / np.where(fine, df, 1.0), xa1)
+        x2 = np.clip(x2, xa1 - _STEP * wa, xa1 + _STEP * wa)
+        x0[act], f0[act], x1[act] = xa1, fa1, x2
+        f1[act], c = _harmonics(net, idx[sel[act]], x2, a[sel[act]], dv[sel[act]])
+        good[act] &= c
+        act = act[good[act] & ~(np.abs(f1[act]) < 1e-9)]
     conv = good & (np.abs(f1) < 1e-6)
     out[sel] = np.where(conv, x1, w[sel])
     ok[sel] = conv

@@ -230,23 +230,29 @@ def loop_compression(
     u, s = u_lo.copy(), s_lo.copy()
     fu = f_lo.copy()
     last = np.zeros(idx.size)  # +1: the high end moved last, −1: the low end
+    # each element stops on its own tolerance (a result independent of the other elements)
+    act = np.nonzero(valid)[0]
     for _ in range(40):
-        denom = f_hi - f_lo
-        u = np.where(denom != 0, u_hi - f_hi * (u_hi - u_lo) / np.where(denom != 0, denom, 1), u)
-        u = np.clip(u, np.minimum(u_lo, u_hi), np.maximum(u_lo, u_hi))
-        near = np.where(np.abs(u - u_lo) < np.abs(u - u_hi), s_lo, s_hi)
-        s, ok_s = pole_at(u, np.where(np.isfinite(near), near, 1j * w_cross))
-        valid &= ok_s | (np.abs(u_hi - u_lo) < 1e-9)
-        fu = s.real / s.imag
-        side = fu > 0  # the new point replaces the high end
-        # Illinois: halve the value of the end kept twice in a row
-        f_lo = np.where(side, np.where(last > 0, 0.5 * f_lo, f_lo), fu)
-        f_hi = np.where(side, fu, np.where(last < 0, 0.5 * f_hi, f_hi))
-        u_lo, s_lo = np.where(side, u_lo, u), np.where(side, s_lo, s)
-        u_hi, s_hi = np.where(side, u, u_hi), np.where(side, s, s_hi)
-        last = np.where(side, 1.0, -1.0)
-        if np.all((np.abs(fu) < 1e-10) | ~valid):
+        if act.size == 0:
             break
+        ul, uh, fl, fh = u_lo[act], u_hi[act], f_lo[act], f_hi[act]
+        denom = fh - fl
+        ua = np.where(denom != 0, uh - fh * (uh - ul) / np.where(denom != 0, denom, 1), u[act])
+        ua = np.clip(ua, np.minimum(ul, uh), np.maximum(ul, uh))
+        near = np.where(np.abs(ua - ul) < np.abs(ua - uh), s_lo[act], s_hi[act])
+        sa, ok_s = pole_at_some(act, ua, np.where(np.isfinite(near), near, 1j * w_cross[act]))
+        valid[act] &= ok_s | (np.abs(uh - ul) < 1e-9)
+        fa = sa.real / sa.imag
+        u[act], s[act], fu[act] = ua, sa, fa
+        side = fa > 0  # the new point replaces the high end
+        # Illinois: halve the value of the end kept twice in a row
+        la = last[act]
+        f_lo[act] = np.where(side, np.where(la > 0, 0.5 * fl, fl), fa)
+        f_hi[act] = np.where(side, fa, np.where(la < 0, 0.5 * fh, fh))
+        u_lo[act], s_lo[act] = np.where(side, ul, ua), np.where(side, s_lo[act], sa)
+        u_hi[act], s_hi[act] = np.where(side, ua, uh), np.where(side, sa, s_hi[act])
+        last[act] = np.where(side, 1.0, -1.0)
+        act = act[(np.abs(fa) >= 1e-10) & valid[act]]
     s_k, ok_k = pole_at(u + _STEP, s)
     k = s_k.real / _STEP
     valid &= ok_k & (k > 0) & (np.abs(fu) < 1e-6)

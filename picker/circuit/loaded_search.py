@@ -24,21 +24,36 @@ position's index range is found locally:
    the loop gain T at the window edges (the phase falls through zero at the
    oscillation frequency: φ(f_max) > 0 and φ(f_min) > 0 mean the crossing lies
    above the window; both < 0, below);
-3. run the full linear model on every design inside the range; on those it puts in
-   the window with a margin above 1, run the large-signal model and keep those that
+3. **the edges by the large-signal model** (what makes the pruning safe whatever
+   the steady-state pull): let F(j) be the *running frequency* of the design with
+   the solved part's j-th value: its steady frequency (:func:`board_state`) where
+   it starts, else its linear zero-phase frequency. F is continuous across the
+   start-up edge (at a margin of 1 the steady state has no compression, so the
+   steady frequency is the linear one). The design just outside the range on the
+   small-value side is evaluated; while F is not above f_max there (so that
+   design, or one further out, could run inside the window) the range grows by
+   that design and the next one out is evaluated; the same on the large-value
+   side with "not below f_min". A design whose F is not finite ends the walk
+   (as in step 2);
+4. run the large-signal model on every design of the range and keep those that
    run steady with their steady frequency in the window and their margin within
-   the bounds;
-4. the steady frequency differs from the linear one (the steady-state pull), so a
-   design whose linear frequency lies just outside the window may run inside it:
-   when the first pass saw a pull, steps 1-3 run again with the linear window
-   widened by :data:`PULL_SAFETY` times the largest pull seen (at most
-   :data:`MAX_WIDEN`). Assumption: no design's pull exceeds that.
+   the bounds.
 
-Assumption: for fixed outer parts the loaded frequency falls monotonically as
-the solved part (L or C3) grows, as the ideal one does. The result equals a
-brute-force full-model evaluation of every combination on the small spaces of
-tests/test_loaded.py (several amplifiers, a lossy inductor, capacitors
-comparable to the device capacitances).
+Why this is exact: under the assumption below (F monotone in the solved part),
+the design beyond each end of the range has F beyond the window, so every
+design further out has too, and none of them can be kept; every design inside
+the range is checked by the same model and rule as a brute force. Nothing is
+assumed about the size of the steady-state pull (the steady frequency of a
+heavily loaded, device-dominated design can move by tens of per cent from the
+linear one), and the large-signal model runs on at most two designs per outer
+combination beyond those of the range.
+
+Assumption: for fixed outer parts the running frequency F falls monotonically
+as the solved part (L or C3) grows, as the ideal one does. The result equals a
+brute-force large-signal evaluation of every combination on the small spaces of
+tests/test_loaded.py and tests/test_search_edges.py (several amplifiers, a lossy
+inductor, capacitors comparable to the device capacitances, designs pulled by
+more than 20 %).
 
 The loaded figures come from :func:`picker.circuit.loaded.loaded_nominal` and
 :func:`picker.circuit.loaded.board_state`; the ideal
@@ -49,7 +64,7 @@ search's own (:mod:`picker.core.search`).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, fields, replace
 from typing import Any
 
 import numpy as np
@@ -58,6 +73,7 @@ from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.loaded import board_state, loaded_nominal
 from picker.circuit.network import loop_gain
 from picker.circuit.stages import small_signal
+from picker.circuit.steady import SteadyState
 from picker.core.search import CHUNK as SEARCH_CHUNK
 from picker.core.search import (
     Designs,
@@ -72,11 +88,6 @@ from picker.tank.board import board_beta, board_frequency, board_values
 
 #: Outer combinations per chunk of the loaded search (bounds memory).
 OUTER_CHUNK = 1 << 15
-#: Step 4: the linear window is widened by this many times the largest steady-state
-#: pull |ln f_steady − ln f_linear| seen in the first pass (a safety factor of our own) ...
-PULL_SAFETY = 2.0
-#: ... and by at most this much (in ln f; 0.25 is about ±28 %).
-MAX_WIDEN = 0.25
 
 __all__ = ["LoadedSearch", "loaded_brute_force", "loaded_search"]
 
@@ -176,14 +187,16 @@ def _collect(
     keep: int,
     parts: dict[str, Any],
     window: tuple[float, float] | None = None,
+    state: SteadyState | None = None,
 ) -> None:
     """Both models on candidate index tuples; append feasible and low-margin ones to ``parts``.
 
-    The linear model (:func:`loaded_nominal`) sorts out the window (the search's
-    window ``problem.f_min..f_max``, which may be wider than the spec's ``window``)
-    and the start-up (margin > 1); the large-signal model (:func:`board_state`) then
-    decides, on what is left: runs steady, margin within ``margins``, steady
-    frequency within ``window`` (default: the problem's).
+    The large-signal model (:func:`board_state`, or ``state`` when the caller has it
+    already) decides: starts and runs steady, margin within ``margins``, steady
+    frequency within ``window`` (default: the problem's), feedback fraction within the
+    problem's. The linear model (:func:`loaded_nominal`) gives the counts of designs
+    whose linear frequency lies in the window (``in_window``) and the figures of the
+    low-margin ones.
     """
     f_lo, f_hi = window if window is not None else (problem.f_min, problem.f_max)
     m_lo, m_hi = margins
@@ -193,25 +206,20 @@ def _collect(
     f_l, m = loaded_nominal(problem.topology, vals, problem.parasitics, params)
     fb = (beta >= problem.beta_min) & (beta <= problem.beta_max)
     inw = fb & (f_l >= f_lo) & (f_l <= f_hi)
-    wide = fb & (f_l >= problem.f_min) & (f_l <= problem.f_max)
-    cand = np.flatnonzero(wide & (m > 1.0))
     ok = np.zeros(len(f_l), dtype=bool)
     f_s, m_s = f_l.copy(), m.copy()
-    if cand.size:
-        st = board_state(
-            problem.topology, {p: v[cand] for p, v in vals.items()}, problem.parasitics, params
+    if len(f_l):
+        st = (
+            state
+            if state is not None
+            else board_state(problem.topology, vals, problem.parasitics, params)
         )
-        f_s[cand], m_s[cand] = st.f_hz, st.margin
+        f_s, m_s = np.asarray(st.f_hz, dtype=float), np.asarray(st.margin, dtype=float)
         runs = np.asarray(st.runs, dtype=bool)
-        in_steady = (st.f_hz >= f_lo) & (st.f_hz <= f_hi)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            pull = np.abs(np.log(st.f_hz / f_l[cand]))
-        pull = pull[np.isfinite(pull)]
-        if pull.size:
-            parts["pull"] = max(parts["pull"], float(pull.max()))
-        ok[cand] = runs & in_steady & (st.margin >= m_lo) & ~(st.margin > m_hi)
-        parts["not_steady"] += int((~runs & (st.margin >= m_lo) & inw[cand]).sum())
-        parts["over_margin"] += int((runs & in_steady & (st.margin > m_hi)).sum())
+        in_steady = (f_s >= f_lo) & (f_s <= f_hi)
+        ok = fb & runs & in_steady & (m_s >= m_lo) & ~(m_s > m_hi)
+        parts["not_steady"] += int((~runs & (m_s >= m_lo) & inw).sum())
+        parts["over_margin"] += int((fb & runs & in_steady & (m_s > m_hi)).sum())
     parts["ok"].append(
         (Designs({p: i[ok] for p, i in idx.items()}, f_i[ok], beta[ok]), f_s[ok], m_s[ok])
     )
@@ -256,7 +264,7 @@ def _finish(topology: Topology, parts: dict[str, Any], keep: int) -> LoadedSearc
 
 
 def _new_parts() -> dict[str, Any]:
-    return {"ok": [], "low": [], "in_window": 0, "not_steady": 0, "over_margin": 0, "pull": 0.0}
+    return {"ok": [], "low": [], "in_window": 0, "not_steady": 0, "over_margin": 0}
 
 
 def loaded_search(
@@ -274,29 +282,40 @@ def loaded_search(
     combination, then the solved position ascending).
     """
     margins = (min_margin, math.inf if max_margin is None else max_margin)
-    window = (problem.f_min, problem.f_max)
-    parts = _walk(problem, params, margins, window, max_designs, keep)
-    pull = parts["pull"]
-    if pull > 0.0:  # step 4: widen the linear window by the pull seen, and search again
-        w = min(MAX_WIDEN, PULL_SAFETY * pull)
-        wide = replace(
-            problem, f_min=problem.f_min * math.exp(-w), f_max=problem.f_max * math.exp(w)
-        )
-        parts = _walk(wide, params, margins, window, max_designs, keep)
+    parts = _walk(problem, params, margins, max_designs, keep)
     return _finish(problem.topology, parts, keep)
+
+
+def _take_state(st: SteadyState, k: np.ndarray) -> SteadyState:
+    """The elements ``k`` of a 1-D :class:`SteadyState`."""
+    return SteadyState(**{f.name: getattr(st, f.name)[k] for f in fields(SteadyState)})
+
+
+def _running_frequency(
+    problem: Problem, params: AmplifierParams, vals: dict[str, np.ndarray]
+) -> tuple[np.ndarray, SteadyState]:
+    """F of step 3 (steady frequency where the design starts, else the linear zero-phase
+    frequency; Hz) and the large-signal state of designs ``vals`` (1-D)."""
+    st = board_state(problem.topology, vals, problem.parasitics, params)
+    f = np.asarray(st.f_hz, dtype=float)
+    lin = ~(np.asarray(st.starts, dtype=bool) & np.isfinite(f))
+    if lin.any():
+        f_l, _ = loaded_nominal(
+            problem.topology, {p: v[lin] for p, v in vals.items()}, problem.parasitics, params
+        )
+        f = f.copy()
+        f[lin] = f_l
+    return f, st
 
 
 def _walk(
     problem: Problem,
     params: AmplifierParams,
     margins: tuple[float, float],
-    window: tuple[float, float],
     max_designs: int,
     keep: int,
 ) -> dict[str, Any]:
-    """Steps 1-3 over ``problem``'s (search) window; the designs' steady frequency must lie
-    in ``window``."""
-    topo = problem.topology
+    """Steps 1-4 over ``problem``."""
     tabs = problem.tables
     outer = outer_enumeration(problem)
     solved = outer.solved
@@ -310,57 +329,39 @@ def _walk(
         flat = np.arange(start, min(start + chunk, n_outer), dtype=np.int64)
         idx = outer.index(flat)
         vals = {p: tabs[p].values[i] for p, i in idx.items()}
-        r = _estimated_ratio(problem, params, solved, vals)
-        # per-element windows: solve_interval's formulas are elementwise
-        lo, hi = solve_interval(
-            problem, solved, vals, f_min=problem.f_min / r, f_max=problem.f_max / r
-        )
-        a = np.searchsorted(sv, lo * (1 - 1e-9), side="left")
-        b = np.searchsorted(sv, hi * (1 + 1e-9), side="right")
-        b = np.maximum(a, b)
-        # step 2: walk each side outward until the next value is beyond the window
+        a, b = _linear_range(problem, params, solved, vals)
+        # step 3: the edges by the large-signal model; the designs it adds keep their state
+        a0, b0 = a.copy(), b.copy()
+        probed: list[tuple[np.ndarray, np.ndarray, SteadyState]] = []
         for low_side in (True, False):
-            want = 1 if low_side else -1
             open_ = (a > 0) if low_side else (b < ns)
             while open_.any():
                 sel = np.flatnonzero(open_)
                 j = a[sel] - 1 if low_side else b[sel]
                 probe = {p: v[sel] for p, v in vals.items()}
                 probe[solved] = sv[j]
-                code, sure = _side(problem, params, probe)
-                done = code == want
-                # the phase test disagrees with the side of the ideal frequency, and the
-                # phase is flat or unclear: ask the full model
-                f_i = board_frequency(topo, probe, problem.parasitics)
-                beyond_ideal = (f_i > problem.f_max) if low_side else (f_i < problem.f_min)
-                odd = beyond_ideal & ((code == UNCLEAR) | ((code == -want) & ~sure))
-                if odd.any():
-                    k = np.flatnonzero(odd)
-                    f_l, _ = loaded_nominal(
-                        topo, {p: v[k] for p, v in probe.items()}, problem.parasitics, params
-                    )
-                    beyond = (f_l > problem.f_max) if low_side else (f_l < problem.f_min)
-                    done[k] = ~np.isfinite(f_l) | beyond
-                grow = sel[~done]
-                open_[sel[done]] = False
+                f_run, st = _running_frequency(problem, params, probe)
+                with np.errstate(invalid="ignore"):
+                    inner = (f_run <= problem.f_max) if low_side else (f_run >= problem.f_min)
+                grow = inner & np.isfinite(f_run)
+                if grow.any():
+                    probed.append((sel[grow], j[grow], _take_state(st, np.flatnonzero(grow))))
+                open_[sel[~grow]] = False
+                g = sel[grow]
                 if low_side:
-                    a[grow] -= 1
-                    open_[grow] = a[grow] > 0
+                    a[g] -= 1
+                    open_[g] = a[g] > 0
                 else:
-                    b[grow] += 1
-                    open_[grow] = b[grow] < ns
+                    b[g] += 1
+                    open_[g] = b[g] < ns
         owner, js = expand_ranges(np.arange(len(flat)), a, b)
         if len(owner) == 0:
             continue
         cand = {p: i[owner].astype(np.int32) for p, i in idx.items()}
         cand[solved] = js.astype(np.int32)
-        # the phase test puts these beyond the window: no need for the full model
-        probe = {p: tabs[p].values[i] for p, i in cand.items()}
-        code, _ = _side(problem, params, probe)
-        inside = (code == INSIDE) | (code == UNCLEAR)
-        cand = {p: i[inside] for p, i in cand.items()}
+        state = _range_state(problem, params, cand, owner, js, a0, b0, probed)
         before = len(parts["ok"])
-        _collect(problem, cand, margins, params, keep, parts, window)
+        _collect(problem, cand, margins, params, keep, parts, None, state)
         found += sum(len(x[1]) for x in parts["ok"][before:])
         if found > max_designs:
             raise SpecError(
@@ -369,6 +370,91 @@ def _walk(
                 key="search.max_designs",
             )
     return parts
+
+
+def _range_state(
+    problem: Problem,
+    params: AmplifierParams,
+    cand: dict[str, np.ndarray],
+    owner: np.ndarray,
+    js: np.ndarray,
+    a0: np.ndarray,
+    b0: np.ndarray,
+    probed: list[tuple[np.ndarray, np.ndarray, SteadyState]],
+) -> SteadyState:
+    """The large-signal state of every design of the ranges (``cand``, in enumeration
+    order): computed for those of the linear ranges [a0, b0), taken from the edge walk
+    for the others (each design's state does not depend on its batch)."""
+    inner = (js >= a0[owner]) & (js < b0[owner])
+    k_new = np.flatnonzero(inner)
+    vals = {p: problem.tables[p].values[i[k_new]] for p, i in cand.items()}
+    st_new = board_state(problem.topology, vals, problem.parasitics, params)
+    if not probed:
+        return st_new
+    # each design's place in the concatenation [new, probed...], by its key (outer, j)
+    ns = int(js.max()) + 1  # every probed design lies in the ranges: j < ns
+    keys = [owner[k_new].astype(np.int64) * ns + js[k_new]]
+    states = [st_new]
+    for o, j, st in probed:
+        keys.append(o.astype(np.int64) * ns + j)
+        states.append(st)
+    k_all = np.concatenate(keys)
+    order = np.argsort(k_all, kind="stable")
+    pos = order[np.searchsorted(k_all[order], owner.astype(np.int64) * ns + js)]
+    return SteadyState(
+        **{
+            f.name: np.concatenate([np.asarray(getattr(x, f.name)) for x in states])[pos]
+            for f in fields(SteadyState)
+        }
+    )
+
+
+def _linear_range(
+    problem: Problem, params: AmplifierParams, solved: str, vals: dict[str, np.ndarray]
+) -> tuple[np.ndarray, np.ndarray]:
+    """Steps 1-2: per outer combination, the index range [a, b) of the solved position
+    whose linear frequency may lie in the window."""
+    topo = problem.topology
+    sv = problem.tables[solved].values
+    ns = len(sv)
+    r = _estimated_ratio(problem, params, solved, vals)
+    # per-element windows: solve_interval's formulas are elementwise
+    lo, hi = solve_interval(problem, solved, vals, f_min=problem.f_min / r, f_max=problem.f_max / r)
+    a = np.searchsorted(sv, lo * (1 - 1e-9), side="left")
+    b = np.searchsorted(sv, hi * (1 + 1e-9), side="right")
+    b = np.maximum(a, b)
+    # step 2: walk each side outward until the next value is beyond the window
+    for low_side in (True, False):
+        want = 1 if low_side else -1
+        open_ = (a > 0) if low_side else (b < ns)
+        while open_.any():
+            sel = np.flatnonzero(open_)
+            j = a[sel] - 1 if low_side else b[sel]
+            probe = {p: v[sel] for p, v in vals.items()}
+            probe[solved] = sv[j]
+            code, sure = _side(problem, params, probe)
+            done = code == want
+            # the phase test disagrees with the side of the ideal frequency, and the
+            # phase is flat or unclear: ask the full model
+            f_i = board_frequency(topo, probe, problem.parasitics)
+            beyond_ideal = (f_i > problem.f_max) if low_side else (f_i < problem.f_min)
+            odd = beyond_ideal & ((code == UNCLEAR) | ((code == -want) & ~sure))
+            if odd.any():
+                k = np.flatnonzero(odd)
+                f_l, _ = loaded_nominal(
+                    topo, {p: v[k] for p, v in probe.items()}, problem.parasitics, params
+                )
+                beyond = (f_l > problem.f_max) if low_side else (f_l < problem.f_min)
+                done[k] = ~np.isfinite(f_l) | beyond
+            grow = sel[~done]
+            open_[sel[done]] = False
+            if low_side:
+                a[grow] -= 1
+                open_[grow] = a[grow] > 0
+            else:
+                b[grow] += 1
+                open_[grow] = b[grow] < ns
+    return a, b
 
 
 def loaded_brute_force(

@@ -45,14 +45,18 @@ def tank_pole(w_est: np.ndarray, net: Network, idx: np.ndarray) -> tuple[np.ndar
     s1 = w_est * (-1e-3 + 1.01j)
     h0 = 1.0 / _t(s0, net, idx)
     h1 = 1.0 / _t(s1, net, idx)
+    # each element stops on its own step (a result independent of the other elements)
+    done = np.zeros(s0.shape, dtype=bool)
     for _ in range(30):
-        dh = h1 - h0
-        step = np.where(dh != 0, h1 * (s1 - s0) / np.where(dh != 0, dh, 1.0), 0.0)
-        s0, h0 = s1, h1
-        s1 = s1 - step
-        h1 = 1.0 / _t(s1, net, idx)
-        if np.all(np.abs(step) <= 1e-12 * np.abs(s1)):
+        live = np.nonzero(~done)[0]
+        if live.size == 0:
             break
+        dh = h1[live] - h0[live]
+        step = np.where(dh != 0, h1[live] * (s1[live] - s0[live]) / np.where(dh != 0, dh, 1.0), 0)
+        s0[live], h0[live] = s1[live], h1[live]
+        s1[live] = s1[live] - step
+        h1[live] = 1.0 / _t(s1[live], net, idx[live])
+        done[live] = np.abs(step) <= 1e-12 * np.abs(s1[live])
     ok = (
         np.isfinite(s1)
         & (np.abs(s1 - s0) <= 1e-9 * np.abs(s1))
@@ -84,19 +88,25 @@ def refine_zero_phase(
 ) -> np.ndarray:
     """Illinois (modified regula falsi; Dowell & Jarratt, BIT 11, 1971) on the phase
     of T over brackets [a, b], all elements at once."""
+    a, b, fa, fb = (np.array(x, dtype=float) for x in (a, b, fa, fb))
+    # each element stops on its own tolerance (a result independent of the other elements)
+    live = np.arange(b.shape[0])
     for _ in range(_MAXIT):
-        denom = fb - fa
-        safe = np.where(denom != 0, denom, 1.0)
-        c = np.where(denom != 0, b - fb * (b - a) / safe, 0.5 * (a + b))
-        c = np.clip(c, np.minimum(a, b), np.maximum(a, b))
-        fc = np.angle(_t(1j * c, net, idx))
-        flip = np.sign(fc) != np.sign(fb)
-        a = np.where(flip, b, a)
-        fa = np.where(flip, fb, 0.5 * fa)
-        step = np.abs(c - b)
-        b, fb = c, fc
-        if np.all((step <= _XTOL * b) | (np.abs(b - a) <= _XTOL * b) | (fc == 0)):
+        if live.size == 0:
             break
+        la, lb, lfa, lfb = a[live], b[live], fa[live], fb[live]
+        denom = lfb - lfa
+        safe = np.where(denom != 0, denom, 1.0)
+        c = np.where(denom != 0, lb - lfb * (lb - la) / safe, 0.5 * (la + lb))
+        c = np.clip(c, np.minimum(la, lb), np.maximum(la, lb))
+        fc = np.angle(_t(1j * c, net, idx[live]))
+        flip = np.sign(fc) != np.sign(lfb)
+        a[live] = np.where(flip, lb, la)
+        fa[live] = np.where(flip, lfb, 0.5 * lfa)
+        step = np.abs(c - lb)
+        b[live], fb[live] = c, fc
+        done = (step <= _XTOL * c) | (np.abs(c - a[live]) <= _XTOL * c) | (fc == 0)
+        live = live[~done]
     return b
 
 

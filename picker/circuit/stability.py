@@ -122,14 +122,19 @@ def pole_from_crossing(
     """The closed-loop pole at the actual gm, followed from the crossing: at g = 1/margin
     it sits at j·w_cross; g is raised to 1 in steps of at most a factor 1.5, each a
     secant solve from the pole of the step before (continuation). Returns (s, ok)."""
-    steps = max(int(np.ceil(np.log(max(float(np.max(margin, initial=1.0)), 1.0)) / np.log(1.5))), 1)
-    s = 1j * w_cross
+    # each element's own number of steps (a result independent of the other elements)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lm = np.log(np.maximum(np.where(np.isfinite(margin), margin, 1.0), 1.0))
+    steps = np.maximum(np.ceil(lm / np.log(1.5)), 1.0)
+    s = np.array(1j * w_cross, dtype=complex)
     ok = np.ones(idx.shape, dtype=bool)
-    for i in range(1, steps + 1):
-        g = margin ** (i / steps - 1.0)
-        s_new, ok_i = closed_loop_pole(net, idx, s, s * (1.0 + 1e-4) + 1e-4 * s.imag, g)
-        ok &= ok_i
-        s = np.where(ok_i, s_new, s)
+    for i in range(1, int(steps.max(initial=1.0)) + 1):
+        e = np.nonzero(steps >= i)[0]
+        g = margin[e] ** (i / steps[e] - 1.0)
+        se = s[e]
+        s_new, ok_i = closed_loop_pole(net, idx[e], se, se * (1.0 + 1e-4) + 1e-4 * se.imag, g)
+        ok[e] &= ok_i
+        s[e] = np.where(ok_i, s_new, se)
     return s, ok
 
 
