@@ -15,7 +15,7 @@ from __future__ import annotations
 import re
 from collections.abc import Callable, Mapping
 from dataclasses import replace
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -34,7 +34,6 @@ from picker.api.problem import (
 )
 from picker.api.results import Candidate, PartPick, SolveResult, given_design
 from picker.buyer.costing import cost_order, cost_rank
-from picker.circuit.loaded_search import LoadedSearch, loaded_search
 from picker.core.conditional import (
     Tally,
     applies,
@@ -54,6 +53,9 @@ from picker.spec.load import complete_spec
 from picker.spec.model import Spec
 from picker.tank.board import board_beta, board_frequency
 from picker.units import parse_quantity, parse_tolerance
+
+if TYPE_CHECKING:
+    from picker.circuit.loaded_search import LoadedSearch
 
 __all__ = ["evaluate", "solve", "summary"]
 
@@ -81,6 +83,9 @@ def _nominal_designs(spec: Spec, problem: Problem) -> tuple[Designs, LoadedSearc
             )
             return designs, None
         check_size(problem, max_designs=None, max_combinations=lim.max_combinations)
+        # the loaded model (its stages import scipy.special): only with an amplifier
+        from picker.circuit.loaded_search import loaded_search
+
         ls = loaded_search(
             problem,
             params,
