@@ -93,7 +93,7 @@ def estimate_order(mean: np.ndarray, f_nominal: np.ndarray, target: float) -> np
 BOUND_MARGIN_SE = 4.0
 #: Rows of the run's random numbers in each pilot stage (prefixes: the same boards for
 #: every design); a stage runs only when it is shorter than the run.
-PILOT_ROWS = (64, 512, 4096)
+PILOT_ROWS = (32, 512, 4096)
 #: The conditional top-up checks at most max(CAP_MIN, TOP_UP_CAP x m) designs in full.
 CAP_MIN = 4000
 #: Above this many designs admitted by the bound, the screen's filter runs before the pilots.
