@@ -13,7 +13,12 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from picker.core.conditional import conditional_counts, conditional_rows, integrated_positions
+from picker.core.conditional import (
+    conditional_counts,
+    conditional_rows,
+    integrated_codes,
+    integrated_positions,
+)
 from picker.core.montecarlo import Simulation
 from picker.core.pilot import pilot_estimates
 from picker.core.search import Problem, search
@@ -43,7 +48,9 @@ def test_pilot_is_least_squares_at_the_known_mean(rows, dist):
     u = np.random.default_rng(5).random((rows, sim.n_columns))
     integ = integrated_positions(sim, designs)
     assert set(integ.tolist()) == {"L"}
-    est, se = pilot_estimates(sim, designs, u, integ, workers=2)
+    names, codes = integrated_codes(sim, designs)
+    everything = np.arange(len(designs))
+    est, se = pilot_estimates(sim, designs, everything, u, names, codes, workers=2)
     y = conditional_rows(sim, designs, "L", u)  # (rows, designs)
     ctrl = [j for name, j in sim.columns().items() if name != "L"]
     a = np.column_stack([np.ones(rows), u[:, ctrl] - 0.5])
@@ -63,7 +70,8 @@ def test_pilot_upper_value_lies_above_the_full_estimate():
     u = np.random.default_rng(11).random((20000, sim.n_columns))
     integ = integrated_positions(sim, designs)
     full = conditional_counts(sim, designs, u, integrated=integ)
-    est, se = pilot_estimates(sim, designs, u[:32], integ)
+    names, codes = integrated_codes(sim, designs)
+    est, se = pilot_estimates(sim, designs, np.arange(len(designs)), u[:32], names, codes)
     upper = est + 6.0 * se
     # beyond the full run's own noise (four of its standard errors), none lies above
     assert np.mean(full.mean() > upper + 4 * full.std_error()) == 0.0

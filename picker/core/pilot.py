@@ -47,40 +47,49 @@ CELLS = 1 << 19
 def pilot_estimates(
     sim: Simulation,
     designs: Designs,
+    sel: np.ndarray,
     u: np.ndarray,
-    integrated: np.ndarray,
+    names: np.ndarray,
+    codes: np.ndarray,
     *,
     workers: int = 1,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Regression (control-variate) estimate of each design's yield on the rows of ``u``,
-    and its standard error, shapes (n,) (module docstring).
+    """Regression (control-variate) estimate of the yield of designs ``sel`` (indices
+    into ``designs``) on the rows of ``u``, and its standard error, shapes (len(sel),)
+    (module docstring).
 
-    ``integrated`` names the position each design integrates out (all non-empty:
-    the conditional estimator applies).
+    ``names[codes]`` is the position each design integrates out
+    (:func:`picker.core.conditional.integrated_codes`; all non-empty: the
+    conditional estimator applies). Designs are taken a chunk at a time (no copy
+    of five million designs).
     """
-    n, rows = len(designs), u.shape[0]
+    n, rows = len(sel), u.shape[0]
     est, se = np.zeros(n), np.zeros(n)
     cols = sim.columns()
     per = max(1, CELLS // max(rows, 1))
+    sel_codes = codes[sel]
     jobs: list[tuple[str, np.ndarray]] = []
-    for p in np.unique(integrated).tolist():
-        members = np.flatnonzero(integrated == p)
+    for c in np.unique(sel_codes).tolist():
+        members = np.flatnonzero(sel_codes == c)
+        p = str(names[c])
         jobs.extend((p, members[s : s + per]) for s in range(0, len(members), per))
+    del sel_codes
     fits = {p: _controls(u, [j for j in range(u.shape[1]) if j != cols[p]]) for p, _ in jobs}
 
     def run(job: tuple[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        p, sel = job
-        y = conditional_rows(sim, designs.take(sel), p, u)
+        p, at = job
+        y = conditional_rows(sim, designs.take(sel[at]), p, u)
         e, s = _regression(y, *fits[p])
-        return sel, e, s
+        return at, e, s
 
     if workers > 1 and len(jobs) > 1:
         with ThreadPoolExecutor(max_workers=workers) as pool:
-            results = list(pool.map(run, jobs))
+            for at, e, s in pool.map(run, jobs):
+                est[at], se[at] = e, s
     else:
-        results = [run(j) for j in jobs]
-    for sel, e, s in results:
-        est[sel], se[sel] = e, s
+        for job in jobs:
+            at, e, s = run(job)
+            est[at], se[at] = e, s
     return est, se
 
 

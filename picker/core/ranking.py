@@ -247,23 +247,39 @@ def rank_with_ties(
         near = screen[alive] >= floor()[0] - delta
         alive = alive[near]
         a_upper = None if a_upper is None else a_upper[near]
-    if a_upper is None:
-        a_upper = np.ones(len(alive))
+    if a_upper is None:  # float32 is enough to hold a bound of 1; the pilots make it float64
+        a_upper = np.ones(len(alive), dtype=np.float32)
     a_pilot: np.ndarray | None = None  # None: the screen (no pilot has run)
     cap = max(CAP_MIN, TOP_UP_CAP * m)
     for stage, rows in enumerate(PILOT_ROWS):
-        need = np.flatnonzero(a_upper > ceiling())  # the rest can only tie: no pilot
-        if rows >= samples or len(need) == 0 or len(need) * rows > cap * samples:
+        high = a_upper > ceiling()  # the rest can only tie: no pilot
+        n_need = int(high.sum())
+        if rows >= samples or n_need == 0 or n_need * rows > cap * samples:
             break  # a pilot dearer than checking the cap in full does not pay
+        every = n_need == len(alive)  # five million designs: no index copies
+        need = slice(None) if every else np.flatnonzero(high)
+        del high
         est, se = pilot_estimates(
-            sim, designs.take(alive[need]), u[:rows], names[codes[alive[need]]], workers=workers
+            sim, designs, alive[need], u[:rows], names, codes, workers=workers
         )
-        if a_pilot is None:
-            a_pilot = screen[alive]
-        a_pilot[need] = est
-        a_upper[need] = np.minimum(a_upper[need], est + PILOT_SE * se)
+        if a_pilot is None and every:
+            a_pilot = est
+        else:
+            if a_pilot is None:
+                a_pilot = screen[alive]
+            a_pilot[need] = est
+        upper = est + PILOT_SE * se
+        del se
+        if every:
+            np.minimum(a_upper, upper, out=upper)
+            a_upper = upper
+        else:
+            a_upper = a_upper.astype(np.float64)
+            a_upper[need] = np.minimum(a_upper[need], upper)
+        del upper
         if stage == 0:  # the best by pilot: y_N near its final value before eliminating
             check(by_pilot(alive[need], est, top))
+        del est
         ok = ~checked[alive] & can_reach(alive, a_upper, floor())
         alive, a_upper = alive[ok], a_upper[ok]
         a_pilot = a_pilot[ok]
