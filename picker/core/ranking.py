@@ -247,22 +247,27 @@ def rank_with_ties(
         near = screen[alive] >= floor()[0] - delta
         alive = alive[near]
         a_upper = None if a_upper is None else a_upper[near]
-    if a_upper is None:  # float32 is enough to hold a bound of 1; the pilots make it float64
-        a_upper = np.ones(len(alive), dtype=np.float32)
     a_pilot: np.ndarray | None = None  # None: the screen (no pilot has run)
     cap = max(CAP_MIN, TOP_UP_CAP * m)
+
+    def needing(upper: np.ndarray | None) -> tuple[slice | np.ndarray, int]:
+        """The designs in play whose upper value exceeds y_N + h_N (the rest can only
+        tie): a slice when it is every one (five million designs: no index copies)."""
+        c = ceiling()
+        if upper is None:  # every upper value 1
+            return (slice(None), len(alive)) if 1.0 > c else (np.zeros(0, dtype=np.int64), 0)
+        high = upper > c
+        k = int(high.sum())
+        return (slice(None), k) if k == len(alive) else (np.flatnonzero(high), k)
+
     for stage, rows in enumerate(PILOT_ROWS):
-        high = a_upper > ceiling()  # the rest can only tie: no pilot
-        n_need = int(high.sum())
+        need, n_need = needing(a_upper)
         if rows >= samples or n_need == 0 or n_need * rows > cap * samples:
             break  # a pilot dearer than checking the cap in full does not pay
-        every = n_need == len(alive)  # five million designs: no index copies
-        need = slice(None) if every else np.flatnonzero(high)
-        del high
         est, se = pilot_estimates(
             sim, designs, alive[need], u[:rows], names, codes, workers=workers
         )
-        if a_pilot is None and every:
+        if a_pilot is None and n_need == len(alive):
             a_pilot = est
         else:
             if a_pilot is None:
@@ -270,12 +275,9 @@ def rank_with_ties(
             a_pilot[need] = est
         upper = est + PILOT_SE * se
         del se
-        if every:
-            np.minimum(a_upper, upper, out=upper)
-            a_upper = upper
-        else:
-            a_upper = a_upper.astype(np.float64)
-            a_upper[need] = np.minimum(a_upper[need], upper)
+        if a_upper is None:
+            a_upper = np.ones(len(alive))
+        a_upper[need] = np.minimum(a_upper[need], upper)
         del upper
         if stage == 0:  # the best by pilot: y_N near its final value before eliminating
             check(by_pilot(alive[need], est, top))
@@ -286,16 +288,18 @@ def rank_with_ties(
     unresolved = 0
     while True:
         ok = ~checked[alive] & can_reach(alive, a_upper, floor())
-        alive, a_upper = alive[ok], a_upper[ok]
+        alive = alive[ok]
+        a_upper = None if a_upper is None else a_upper[ok]
         a_pilot = None if a_pilot is None else a_pilot[ok]
-        need = np.flatnonzero(a_upper > ceiling())
+        need, n_need = needing(a_upper)
         room = cap - len(c_idx)
-        if len(need) == 0 or room <= 0:
-            unresolved = len(need)
+        if n_need == 0 or room <= 0:
+            unresolved = n_need
             break
         # the gathered screen is freed before the check (40 MB at five million designs)
         sel = alive[need]
         nxt = by_pilot(sel, screen[sel] if a_pilot is None else a_pilot[need], min(m, room))
+        del sel
         check(nxt)
     o = estimate_order(c_tally.mean(), f_nom[c_idx], target)
     best = o[: min(top, len(o))]
