@@ -2,7 +2,9 @@
 
 ``picker --help`` loads none of numpy, scipy, pydantic, matplotlib or ortools;
 ``picker solve`` (ideal tank, table or JSON) loads no plotting (matplotlib), no CP-SAT
-(ortools), no ngspice runner and neither scipy.stats nor scipy.optimize (about a
+(ortools), no ngspice runner, no module of the loaded model (its amplifier stages,
+nodal network, loaded search and figures: only an ``[amplifier]`` section needs them)
+and neither scipy.stats nor scipy.optimize (about a
 second of imports between them on the benchmark machine): its intervals and quantiles
 come from scipy.special (tests/test_montecarlo.py and tests/test_distributions.py
 compare them with scipy.stats). Each check runs the command in a fresh interpreter and
@@ -70,5 +72,28 @@ def test_solve_imports_no_plots_cp_sat_ngspice_or_scipy_stats(fmt):
         "scipy.optimize",
         "picker.circuit.ngspice",
         "picker.report.plots",
+        "picker.circuit.stages",
+        "picker.circuit.network",
+        "picker.circuit.loaded",
+        "picker.circuit.loaded_search",
+        "picker.circuit.figures",
+        "picker.circuit.steady",
     ):
         assert not _loaded(mods, heavy), heavy
+
+
+def test_an_amplifier_spec_still_checks_its_stage(tmp_path):
+    """The other side of the lazy imports: with ``[amplifier]`` the stage registry loads
+    and names its stages (a made-up stage is refused with the list of real ones)."""
+    text = (ROOT / "demo_specs" / "colpitts_bjt.toml").read_text(encoding="utf-8")
+    spec = tmp_path / "bad_stage.toml"
+    spec.write_text(text.replace('stage = "common-emitter"', 'stage = "no-such-stage"'))
+    r = subprocess.run(
+        [sys.executable, "-m", "picker", "solve", str(spec)],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+        timeout=300,
+    )
+    assert r.returncode == 2
+    assert "common-emitter" in r.stderr and "no-such-stage" in r.stderr

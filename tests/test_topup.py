@@ -1,11 +1,14 @@
 """The top-up proves instead of over-checking (picker.core.ranking.conditional_rank).
 
 Brute-force reference: the conditional Monte Carlo of *every* feasible design on the
-same boards, ranked by the same rule; the ranking that checks only the designs whose
-proven yield bound can still reach the top N must give the same top N, in the same
-order. The bound itself must lie above every design's yield (checked against the
-estimate plus 4 standard errors, and against an exact closed form in a case where only
-L varies).
+same boards, ranked by the same rule. The ranking that checks only the designs whose
+upper value can still beat the N-th by more than the N-th's interval half-width (the
+rest are counted as ties, :data:`picker.core.ranking.TIE_RULE`) must rank every
+*separated* design as the brute force does: a design of the brute-force top N whose
+95 % interval lies wholly above the brute-force N-th's keeps its rank, and every design
+whose interval lies wholly above the N-th interval of the ranking is in its top N. The
+bound itself must lie above every design's yield (checked against the estimate plus 4
+standard errors, and against an exact closed form in a case where only L varies).
 """
 
 from __future__ import annotations
@@ -19,7 +22,7 @@ from hypothesis import strategies as st
 
 from picker.core.conditional import conditional_counts, integrated_positions, yield_upper_bound
 from picker.core.montecarlo import Simulation
-from picker.core.ranking import conditional_rank, estimate_order
+from picker.core.ranking import Ranking, estimate_order, rank_with_ties
 from picker.core.search import Designs, Problem, search
 from picker.parts.series import expand
 from picker.parts.table import uniform_table
@@ -38,9 +41,29 @@ def _problem(window: float, tol_c: float, tol_l: float, f0: float = 310e3) -> Pr
     )
 
 
-def _brute_top(sim: Simulation, designs: Designs, u: np.ndarray, top: int, f0: float):
+Z95 = 1.959963984540054  # the 97.5 % point of the standard normal (tables; from memory)
+
+
+def _assert_separated_same(sim, designs, u, *, m: int, top: int, f0: float) -> Ranking:
+    """The ranking with ties against checking every design (module docstring)."""
     t = conditional_counts(sim, designs, u)
-    return estimate_order(t.mean(), designs.f_nominal, f0)[:top]
+    mean, se = t.mean(), t.std_error()
+    lo, hi = mean - Z95 * se, mean + Z95 * se
+    want = estimate_order(mean, designs.f_nominal, f0)[:top]
+    r = rank_with_ties(sim, designs, u, m=m, top=top, target=f0)
+    got = r.checked[:top]
+    # the checked designs' figures are the brute force's (the same boards)
+    np.testing.assert_array_equal(r.tally.total, t.total[r.checked])
+    # separated from the brute-force N-th: the same design at the same rank
+    for k, i in enumerate(want):
+        if lo[i] > hi[want[-1]]:
+            assert got[k] == i, (k, i, got.tolist(), want.tolist())
+    # separated above the ranking's own N-th: in its top N
+    above = np.flatnonzero(lo > hi[got[-1]])
+    assert set(above.tolist()) <= set(got.tolist())
+    # ties and checked designs never exceed the designs
+    assert r.ties + r.unresolved + len(r.checked) <= len(designs)
+    return r
 
 
 @pytest.mark.parametrize("dist", ["uniform", "normal"])
@@ -50,12 +73,9 @@ def test_top_n_equals_checking_everything(dist, window, tol_c, tol_l):
     designs = search(p)
     sim = Simulation.simple(p, dist)
     u = np.random.default_rng(3).random((4000, 3))
-    top = 10
-    want = _brute_top(sim, designs, u, top, 310e3)
-    ranked, tally, _ = conditional_rank(sim, designs, u, m=5, top=top, target=310e3)
-    assert ranked[:top].tolist() == want.tolist()
-    # the bound proves most designs out: far fewer than all are checked
-    assert len(ranked) < len(designs)
+    r = _assert_separated_same(sim, designs, u, m=5, top=10, f0=310e3)
+    # the bound and the pilots prove most designs out: far fewer than all are checked
+    assert len(r.checked) < len(designs)
 
 
 def test_bound_lies_above_every_yield():
@@ -105,9 +125,7 @@ def test_top_n_equals_brute_force_on_random_spaces(window, tol_c, tol_l, f0, m, 
         return
     sim = Simulation.simple(p, "uniform")
     u = np.random.default_rng(seed).random((1000, 3))
-    want = _brute_top(sim, designs, u, top, f0)
-    ranked, _, _ = conditional_rank(sim, designs, u, m=m, top=top, target=f0)
-    assert ranked[: len(want)].tolist() == want.tolist()
+    _assert_separated_same(sim, designs, u, m=m, top=top, f0=f0)
 
 
 @settings(max_examples=30, deadline=None)

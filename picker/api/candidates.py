@@ -21,7 +21,6 @@ import numpy as np
 from picker.api.problem import amplifier_params_of, recentre_values
 from picker.api.results import Candidate, Miss, PartPick
 from picker.buyer.costing import cost_figures, design_costs, within_cost
-from picker.circuit.figures import nominal_figures, worst_margins
 from picker.core.montecarlo import Simulation, YieldEstimate, estimate_yield
 from picker.core.screen import corner_span
 from picker.core.search import Designs, Problem
@@ -183,6 +182,9 @@ def circuit_extras(
     vals = designs.values(pb)
     rating = {p: spec.parts[p].voltage_rating for p in pb.topology.positions}
     polar = {p: spec.parts[p].polarised for p in pb.topology.positions}
+    # the loaded model (its stages import scipy.special): only with an amplifier
+    from picker.circuit.figures import nominal_figures, worst_margins
+
     worst = worst_margins(sim, designs, u)
     out = []
     for r in range(len(designs)):

@@ -102,7 +102,12 @@ def result_dict(r: SolveResult) -> dict:
             "f_max_hz": s.frequency.f_max,
         },
         "feedback_window": {"min": s.feedback.min, "max": s.feedback.max},
-        "search": {"space_size": r.space_size, "feasible": r.feasible, "screened": r.screened},
+        "search": {
+            "space_size": r.space_size,
+            "feasible": r.feasible,
+            "screened": r.screened,
+            **({"ties": r.ties} if r.ties else {}),
+        },
         "monte_carlo": {
             "samples": r.samples,
             "seed": r.seed,

@@ -15,17 +15,20 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from picker.api.results import Miss
-from picker.circuit.loaded_search import LoadedSearch, loaded_search
 from picker.core.search import Designs, Problem, search
 from picker.errors import SpecError
 from picker.parts import series as series_mod
 from picker.spec.model import Spec
 from picker.tank.board import board_frequency
 from picker.units import format_percent, format_quantity
+
+if TYPE_CHECKING:
+    from picker.circuit.loaded_search import LoadedSearch
 
 __all__ = ["explain_infeasible", "explain_loaded_infeasible", "reach", "unreachable"]
 
@@ -241,6 +244,9 @@ def explain_loaded_infeasible(
             problem.beta_max,
             problem.parasitics,
         )
+        # the loaded model (its stages import scipy.special): only with an amplifier
+        from picker.circuit.loaded_search import loaded_search
+
         try:
             ls = loaded_search(
                 relaxed, params, min_margin=need, max_margin=amp.max_margin, max_designs=2_000_000

@@ -15,7 +15,7 @@ from __future__ import annotations
 import re
 from collections.abc import Callable, Mapping
 from dataclasses import replace
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -34,7 +34,6 @@ from picker.api.problem import (
 )
 from picker.api.results import Candidate, PartPick, SolveResult, given_design
 from picker.buyer.costing import cost_order, cost_rank
-from picker.circuit.loaded_search import LoadedSearch, loaded_search
 from picker.core.conditional import (
     Tally,
     applies,
@@ -44,7 +43,7 @@ from picker.core.conditional import (
 )
 from picker.core.montecarlo import Simulation, YieldEstimate, count_passing
 from picker.core.precision import refine, refine_tally, reorder
-from picker.core.ranking import conditional_rank, estimate_order, monte_carlo_rank
+from picker.core.ranking import TIE_RULE, estimate_order, monte_carlo_rank, rank_with_ties
 from picker.core.screen import screen_yield
 from picker.core.search import Designs, Problem, check_size, search
 from picker.errors import SpecError
@@ -54,6 +53,9 @@ from picker.spec.load import complete_spec
 from picker.spec.model import Spec
 from picker.tank.board import board_beta, board_frequency
 from picker.units import parse_quantity, parse_tolerance
+
+if TYPE_CHECKING:
+    from picker.circuit.loaded_search import LoadedSearch
 
 __all__ = ["evaluate", "solve", "summary"]
 
@@ -81,6 +83,9 @@ def _nominal_designs(spec: Spec, problem: Problem) -> tuple[Designs, LoadedSearc
             )
             return designs, None
         check_size(problem, max_designs=None, max_combinations=lim.max_combinations)
+        # the loaded model (its stages import scipy.special): only with an amplifier
+        from picker.circuit.loaded_search import loaded_search
+
         ls = loaded_search(
             problem,
             params,
@@ -271,7 +276,7 @@ def solve(
     With the ideal tank (and ``[cost] rank_by = "yield"``) the yields are
     conditional Monte Carlo estimates (:mod:`picker.core.conditional`) and the
     top-up checks only designs whose proven yield bound can still reach the
-    top N (:func:`picker.core.ranking.conditional_rank`); otherwise each board
+    top N (:func:`picker.core.ranking.rank_with_ties`); otherwise each board
     passes or fails (:func:`picker.core.ranking.monte_carlo_rank`). ``workers``
     threads share the Monte Carlo (default :func:`picker.core.conditional.default_workers`);
     the result does not depend on it. ``estimator="plain"`` forces pass/fail
@@ -393,16 +398,17 @@ def _conditional_solve(
     """The ranking, precision and result of :func:`solve` with the conditional estimator."""
     ys = spec.yield_
     target = spec.frequency.target
-    ranked, tally, screen = conditional_rank(
-        sim, designs, u, m=m, top=top, target=target, workers=workers
+    r = rank_with_ties(
+        sim, designs, u, m=m, top=top, target=target, workers=workers, confidence=ys.confidence
     )
+    ranked, tally, screen = r.checked, r.tally, r.screen
     keep = np.arange(min(top, len(ranked)))
     best, tally, screen = designs.take(ranked[keep]), tally.take(keep), screen[keep]
     tally, u, converged = _refined_tally(spec, sim, best, u, tally, seed, workers, progress)
     if converged is not None:
         order = estimate_order(tally.mean(), best.f_nominal, target)
         best, screen, tally = best.take(order), screen[order], tally.take(order)
-    return _ranked_result(
+    res = _ranked_result(
         spec,
         problem,
         sim,
@@ -418,6 +424,9 @@ def _conditional_solve(
         screened=len(ranked),
         estimated=estimates(tally, confidence=ys.confidence, method=ys.ci_method, seed=seed),
     )
+    # the stop rule's count: designs not checked in full that can only tie with the N-th
+    ties = {"count": r.ties, "unresolved": r.unresolved, "resolution": r.resolution}
+    return replace(res, ties={**ties, "rule": TIE_RULE})
 
 
 def _refined_tally(

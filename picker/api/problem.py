@@ -14,12 +14,11 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.loaded import LoadedModel
 from picker.core.montecarlo import REFERENCE_TEMPERATURE, PartVariation, Simulation
 from picker.core.sampling import uniform_matrix
 from picker.core.search import Problem
@@ -34,6 +33,9 @@ from picker.spec.production import candidate_values
 from picker.spec.stock import stock_table, unit_price
 from picker.tank.board import Parasitics, board_feedback_bounds
 from picker.units import format_percent, format_quantity
+
+if TYPE_CHECKING:
+    from picker.circuit.loaded import LoadedModel
 
 __all__ = [
     "amplifier_params_of",
@@ -543,6 +545,9 @@ def board_model_of(spec: Spec, problem: Problem) -> LoadedModel | None:
     params = amplifier_params_of(spec)
     if params is None or spec.amplifier is None:
         return None
+    # the loaded model (its stages import scipy.special): only with an amplifier
+    from picker.circuit.loaded import LoadedModel
+
     amp = spec.amplifier
     return LoadedModel(problem, params, amp.monte_carlo, max_margin=amp.max_margin)
 

@@ -119,6 +119,9 @@ class SolveResult:
     warnings: list[str] = field(default_factory=list)
     production: dict[str, Any] = field(default_factory=dict)
     plot_data: dict[str, Any] | None = None
+    #: The top-up's stop rule (conditional ranking only): designs not checked in full
+    #: that can only tie with the N-th (``count``, ``unresolved``, ``resolution``, ``rule``).
+    ties: dict[str, Any] = field(default_factory=dict)
 
     def __repr__(self) -> str:
         return export.summary_text(self)

@@ -5,7 +5,11 @@ Figures (printed, never asserted):
 1. ``picker solve`` as a command (a fresh interpreter, imports included) on the
    benchmark space of :mod:`picker.bench.search`, beside the naive full-cube numpy
    enumeration of the same space (feasibility only), timed in this run; the
-   command's peak resident memory (``resource.getrusage`` of the child).
+   command's peak resident memory (``resource.getrusage`` of the child), the
+   designs checked in full and those counted as ties by the top-up's stop rule,
+   and the load average when it ran (the machine may be shared). The child may
+   write bytecode caches (as an installed package has them), whatever
+   ``PYTHONDONTWRITEBYTECODE`` says, and a first run warms them.
 2. Every design of the probe demo's top 200 (it has 178 feasible) to a 95 %
    half-width of at most 0.1 %: ``picker.api.solve(..., precision=0.001)``
    (conditional Monte Carlo, normal interval) beside a plain vectorised Monte
@@ -17,7 +21,8 @@ Figures (printed, never asserted):
 4. The loaded (amplifier) model's Monte Carlo, 200 designs x 20,000 boards, with
    :class:`picker.circuit.loaded.LoadedModel` as it stands.
 
-Run: ``python -m picker.bench.yields [--quick]`` (also part of ``picker bench``).
+Run: ``python -m picker.bench.yields [--quick] [--only FIGURE]`` (also part of
+``picker bench``).
 """
 
 from __future__ import annotations
@@ -25,6 +30,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
 import subprocess
 import sys
 import tempfile
@@ -67,11 +73,13 @@ stray = "5 pF"
 """
 
 
-def _child(args: list[str]) -> tuple[float, float, str]:
-    """Run ``python -m picker ARGS`` in a fresh process: (seconds, peak RSS MB, stdout).
+def _child(args: list[str]) -> tuple[float, float, str, float]:
+    """Run ``python -m picker ARGS`` in a fresh process: (seconds, peak RSS MB, stdout,
+    CPU seconds).
 
-    The peak is the child's own ``ru_maxrss``, read through a small wrapper so
-    that other children of this process do not count.
+    The peak and the CPU time (user + system, both threads) are the child's own
+    ``getrusage``, read through a small wrapper so that other children of this
+    process do not count.
     """
     wrapper = (
         "import resource, runpy, sys, json, time\n"
@@ -81,16 +89,18 @@ def _child(args: list[str]) -> tuple[float, float, str]:
         "    runpy.run_module('picker', run_name='__main__')\n"
         "except SystemExit:\n"
         "    pass\n"
+        "ru = resource.getrusage(resource.RUSAGE_SELF)\n"
         "sys.stderr.write(json.dumps([time.perf_counter() - t, "
-        "resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0]) + '\\n')\n"
+        "ru.ru_maxrss / 1024.0, ru.ru_utime + ru.ru_stime]) + '\\n')\n"
     )
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
     t0 = time.perf_counter()
     r = subprocess.run(
-        [sys.executable, "-c", wrapper, json.dumps(args)], capture_output=True, text=True
+        [sys.executable, "-c", wrapper, json.dumps(args)], capture_output=True, text=True, env=env
     )
     wall = time.perf_counter() - t0
-    _, rss = json.loads(r.stderr.strip().splitlines()[-1])
-    return wall, float(rss), r.stdout
+    _, rss, cpu = json.loads(r.stderr.strip().splitlines()[-1])
+    return wall, float(rss), r.stdout, float(cpu)
 
 
 def command_vs_naive(quick: bool) -> dict[str, Any]:
@@ -105,15 +115,23 @@ def command_vs_naive(quick: bool) -> dict[str, Any]:
     rss = max(r[1] for r in runs)
     out = json.loads(runs[0][2])
     feasible = out["search"]["feasible"]
+    cpu0 = time.process_time()
     _, t_naive, complete = naive_full_cube(colpitts_problem(quick), 60.0)
+    cpu1 = time.process_time()
     _, t_naive2, _ = naive_full_cube(colpitts_problem(quick), 60.0)
+    naive_cpu = min(cpu1 - cpu0, time.process_time() - cpu1)
     return dict(
         solve_s=wall,
+        solve_runs=[r[0] for r in runs],
+        solve_cpu=min(r[3] for r in runs),
+        naive_cpu=naive_cpu,
         rss_mb=rss,
         feasible=feasible,
         checked=out["search"]["screened"],
+        ties=out["search"].get("ties", {}).get("count", 0),
         naive_s=min(t_naive, t_naive2),
         naive_complete=complete,
+        load=os.getloadavg()[0],
     )
 
 
@@ -217,7 +235,7 @@ def probe_precision(quick: bool) -> dict[str, Any]:
 
 def max_samples_rss() -> dict[str, Any]:
     """Figure 3: ``picker solve --samples 10000000`` on the probe demo, fresh process."""
-    wall, rss, _ = _child(
+    wall, rss, _, _ = _child(
         ["solve", str(DEMOS / "probe_exciter.toml"), "-f", "json", "--samples", "10000000"]
     )
     return dict(seconds=wall, rss_mb=rss)
@@ -247,16 +265,47 @@ def loaded_yield() -> dict[str, Any]:
     )
 
 
-def report(r: dict[str, Any]) -> str:
-    c, p, s, lm = r["command"], r["probe"], r["samples"], r["loaded"]
-    lines = [
-        "picker solve as a command, benchmark space (C1, C2 E192 1 pF-10 uF, L E24, 1 MHz ±1 %)",
+def command_report(c: dict[str, Any]) -> list[str]:
+    """The lines of figure 1."""
+    return [
+        "picker solve as a command, benchmark space (C1, C2 E192 1 pF-10 uF, L E24, 1 MHz ±1 %)"
+        f"; load average {c['load']:.1f}",
         f"  picker solve (fresh process)  {c['solve_s']:8.2f} s   "
-        f"({c['feasible']:,} feasible, {c['checked']:,} Monte Carlo checked; target <= 1.5 s)",
+        f"(best of {', '.join(f'{t:.2f}' for t in c['solve_runs'])}; target <= 1.5 s)",
+        f"    {c['feasible']:,} feasible, {c['checked']:,} checked in full, "
+        f"{c['ties']:,} counted as ties with the N-th (stop rule)",
         f"  naive full cube, same run     {c['naive_s']:8.2f} s   "
         f"({'measured' if c['naive_complete'] else 'extrapolated'})",
         f"  ratio naive / solve           {c['naive_s'] / c['solve_s']:8.2f} x  (target >= 1.5 x)",
         f"  peak RSS of the command       {c['rss_mb']:8.0f} MB  (target <= 500 MB)",
+        f"  CPU time (user + system)      {c['solve_cpu']:8.2f} s   command, "
+        f"{c['naive_cpu']:.2f} s naive cube: {c['naive_cpu'] / c['solve_cpu']:.2f} x "
+        "(less sensitive to the load)",
+    ]
+
+
+def report(r: dict[str, Any]) -> str:
+    lines = command_report(r["command"]) if "command" in r else []
+    if "probe" in r:
+        lines += probe_report(r["probe"])
+    if "samples" in r:
+        s = r["samples"]
+        lines.append(
+            f"picker solve --samples 10,000,000 (probe demo): {s['seconds']:.1f} s, "
+            f"peak RSS {s['rss_mb']:.0f} MB (target <= 500 MB)"
+        )
+    if "loaded" in r:
+        lm = r["loaded"]
+        lines.append(
+            f"loaded model (LoadedModel as it stands), {lm['designs']} designs x 20,000 boards: "
+            f"{lm['seconds']:.2f} s (target <= 3 s)"
+        )
+    return "\n".join(lines)
+
+
+def probe_report(p: dict[str, Any]) -> list[str]:
+    """The lines of figure 2."""
+    return [
         f"probe demo, all {p['designs']} designs to a 95 % half-width <= "
         f"{p['picker_half'] * 100:.3f} % (asked 0.1 %)",
         "  yields only, the same designs on both sides:",
@@ -274,27 +323,28 @@ def report(r: dict[str, Any]) -> str:
         "  top ten: "
         + ", ".join(f"{y * 100:.3f}" for y, _, _ in p["top10"])
         + f" %; {p['separated']} of 9 neighbours separated by their intervals",
-        f"picker solve --samples 10,000,000 (probe demo): {s['seconds']:.1f} s, "
-        f"peak RSS {s['rss_mb']:.0f} MB (target <= 500 MB)",
-        f"loaded model (LoadedModel as it stands), {lm['designs']} designs x 20,000 boards: "
-        f"{lm['seconds']:.2f} s (target <= 3 s)",
     ]
-    return "\n".join(lines)
 
 
-def run(quick: bool = False) -> dict[str, Any]:
-    return dict(
-        command=command_vs_naive(quick),
-        probe=probe_precision(quick),
-        samples=max_samples_rss(),
-        loaded=loaded_yield(),
-    )
+FIGURES = ("command", "probe", "samples", "loaded")
+
+
+def run(quick: bool = False, only: str | None = None) -> dict[str, Any]:
+    runners = {
+        "command": lambda: command_vs_naive(quick),
+        "probe": lambda: probe_precision(quick),
+        "samples": max_samples_rss,
+        "loaded": loaded_yield,
+    }
+    return {k: runners[k]() for k in FIGURES if only in (None, k)}
 
 
 def main(argv: list[str] | None = None) -> None:
     ap = argparse.ArgumentParser(prog="python -m picker.bench.yields", description=__doc__)
     ap.add_argument("--quick", action="store_true", help="smaller cases, for a fast look")
-    print(report(run(ap.parse_args(argv).quick)))
+    ap.add_argument("--only", choices=FIGURES, help="one figure only")
+    a = ap.parse_args(argv)
+    print(report(run(a.quick, a.only)))
 
 
 if __name__ == "__main__":  # pragma: no cover

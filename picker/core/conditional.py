@@ -192,6 +192,27 @@ def _block(
     sim: Simulation, sub: Designs, p: str, u: np.ndarray
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Σ Y, Σ Y² and the plain pass count of designs ``sub`` (all integrating ``p``) on rows ``u``."""
+    y, lo_d, hi_d = _probabilities(sim, sub, p, u)
+    t, i, var = sim.problem.tables[p], sub.idx[p], sim.parts[p]
+    d = distributions.deviation(
+        u[:, sim.columns()[p]], t.tol[i], var.distribution, grade=var.grade, lot=var.lot
+    )
+    ok = (d >= lo_d) & (d <= hi_d)
+    yt = np.ascontiguousarray(y.T)  # one design per contiguous row: its sum is its own
+    return yt.sum(axis=1), np.einsum("ij,ij->i", yt, yt), ok.sum(axis=0, dtype=np.int64)
+
+
+def conditional_rows(sim: Simulation, sub: Designs, p: str, u: np.ndarray) -> np.ndarray:
+    """The conditional pass probability Y of every board (row of ``u``) and design of
+    ``sub`` (all integrating ``p``), shape (rows, designs): what :func:`conditional_counts`
+    sums (the ranking's pilot regresses it on the rows' inputs)."""
+    return _probabilities(sim, sub, p, u)[0]
+
+
+def _probabilities(
+    sim: Simulation, sub: Designs, p: str, u: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Y (rows, designs) and the window [d_lo, d_hi] of ``p``'s deviation on each board."""
     problem = sim.problem
     cols = sim.columns()
     t = problem.tables[p]
@@ -226,12 +247,7 @@ def _block(
     y = distributions.probability(
         lo_d, hi_d, t.tol[i], var.distribution, grade=var.grade, lot=var.lot
     )
-    d = distributions.deviation(
-        u[:, cols[p]], t.tol[i], var.distribution, grade=var.grade, lot=var.lot
-    )
-    ok = (d >= lo_d) & (d <= hi_d)
-    yt = np.ascontiguousarray(y.T)  # one design per contiguous row: its sum is its own
-    return yt.sum(axis=1), np.einsum("ij,ij->i", yt, yt), ok.sum(axis=0, dtype=np.int64)
+    return y, lo_d, hi_d
 
 
 def _plain_block(

@@ -12,6 +12,8 @@ rank in the top N.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from picker.core.conditional import (
@@ -22,6 +24,8 @@ from picker.core.conditional import (
     integrated_codes,
 )
 from picker.core.montecarlo import Simulation, count_passing
+from picker.core.pilot import pilot_estimates
+from picker.core.sampling import normal_quantile
 from picker.core.screen import select_for_montecarlo
 from picker.core.search import Designs
 
@@ -89,14 +93,44 @@ def estimate_order(mean: np.ndarray, f_nominal: np.ndarray, target: float) -> np
 BOUND_MARGIN_SE = 4.0
 #: Rows of the run's random numbers in each pilot stage (prefixes: the same boards for
 #: every design); a stage runs only when it is shorter than the run.
-PILOT_ROWS = (64, 512, 4096)
+PILOT_ROWS = (32, 512, 4096)
 #: The conditional top-up checks at most max(CAP_MIN, TOP_UP_CAP x m) designs in full.
 CAP_MIN = 4000
 #: Above this many designs admitted by the bound, the screen's filter runs before the pilots.
 PILOT_ALL = 200_000
-#: A design leaves the top-up when a pilot estimate plus this many of its standard
-#: errors stays below the N-th yield (less the margin).
+#: A design's pilot upper value: its pilot estimate plus this many of its standard errors.
 PILOT_SE = 6.0
+
+#: The stop rule, as the JSON and README state it.
+TIE_RULE = (
+    "a design not checked in full is a tie with the N-th when its upper value (proven "
+    "bound, or pilot estimate plus 6 standard errors) reaches the N-th's estimate less "
+    "4 standard errors but not the upper end of the N-th's interval: checked in full it "
+    "could not be told apart from the N-th"
+)
+
+
+@dataclass(frozen=True)
+class Ranking:
+    """What :func:`rank_with_ties` found.
+
+    Attributes
+    ----------
+    checked : (k,) int, indices into the designs, in rank order (best first).
+    tally : the :class:`~picker.core.conditional.Tally` of those, same order.
+    screen : (k,) float, their screen yields, same order.
+    ties : designs not checked in full that are ties with the N-th (:data:`TIE_RULE`).
+    unresolved : designs the cap left unchecked although they might beat the N-th.
+    resolution : the half-width of the N-th's interval: no tie can beat the N-th
+        estimate by more.
+    """
+
+    checked: np.ndarray
+    tally: Tally
+    screen: np.ndarray
+    ties: int = 0
+    unresolved: int = 0
+    resolution: float = 0.0
 
 
 def conditional_rank(
@@ -108,46 +142,66 @@ def conditional_rank(
     top: int,
     target: float,
     workers: int = 1,
+    confidence: float = 0.95,
 ) -> tuple[np.ndarray, Tally, np.ndarray]:
+    """:func:`rank_with_ties` without the tie count: (checked, tally, screen)."""
+    r = rank_with_ties(
+        sim, designs, u, m=m, top=top, target=target, workers=workers, confidence=confidence
+    )
+    return r.checked, r.tally, r.screen
+
+
+def rank_with_ties(
+    sim: Simulation,
+    designs: Designs,
+    u: np.ndarray,
+    *,
+    m: int,
+    top: int,
+    target: float,
+    workers: int = 1,
+    confidence: float = 0.95,
+) -> Ranking:
     """Rank designs by conditional Monte Carlo yield (:mod:`picker.core.conditional`).
 
     The best ``m`` designs by screen are checked first (every board of ``u``).
-    Then a design may still enter the top N only if
+    With y_N the N-th best checked estimate, h_N the half-width of its interval
+    at ``confidence`` and the margin four standard errors (the largest of the
+    checked top N: the estimate of an unchecked design could exceed its yield
+    by that noise), every other design gets an upper value U:
 
-    1. its proven yield bound (:func:`picker.core.conditional.yield_upper_bound`)
-       reaches y_N − margin, y_N the N-th best checked estimate and the margin
-       four standard errors (the largest of the checked top N: the estimate of
-       an unchecked design could exceed its yield by that noise);
+    1. its proven yield bound (:func:`picker.core.conditional.yield_upper_bound`);
+       a design with U below y_N − margin is out;
     1b. only when more than :data:`PILOT_ALL` designs pass step 1: its screen
-       yield lies within the screen's largest error seen on the checked
+       yield must lie within the screen's largest error seen on the checked
        designs (plus four binomial standard errors) of y_N − margin, the
        calibrated filter of :func:`monte_carlo_rank` (a heuristic), which keeps
-       the pilots affordable on spaces of millions of designs; and
-    2. at every pilot stage (the conditional estimator on the first
-       :data:`PILOT_ROWS` boards; a stage runs only while it costs less than
-       checking the cap in full), its estimate plus :data:`PILOT_SE` of its
-       standard errors reaches y_N − margin too: a statistical elimination
-       (six standard errors) for flat spaces, where the proof of step 1 cannot
-       separate designs of nearly equal yield. After the first stage the best
-       N designs by pilot are checked, so y_N is close to its final value.
+       the pilots affordable on spaces of millions of designs;
+    2. at each pilot stage (:func:`picker.core.pilot.pilot_estimates` on the
+       first :data:`PILOT_ROWS` boards: the conditional estimator with the
+       boards' inputs as control variates; a stage runs only while it costs
+       less than checking the cap in full), U becomes the smaller of U and the
+       pilot estimate plus :data:`PILOT_SE` of its standard errors (a
+       statistical bound), and again a design below y_N − margin is out. After
+       the first stage the best N by pilot are checked, so y_N is close to its
+       final value.
 
-    The survivors are checked, highest pilot first, ``m`` at a time, until
-    none is left or max(:data:`CAP_MIN`, :data:`TOP_UP_CAP` × m) designs are checked (a flat space
-    whose designs cannot be told apart from the N-th at the run's own
-    precision; the benchmark space stops well below it). A design whose bound is unknown (1: drift, a Clapp design
-    integrating out C3) passes step 1 and meets step 2 like any other.
-
-    Returns
-    -------
-    checked : (k,) int, indices into ``designs`` in rank order (best first).
-    tally : the :class:`~picker.core.conditional.Tally` of those, same order.
-    screen : (k,) float, their screen yields, same order.
+    **Stop rule** (:data:`TIE_RULE`): a design whose U reaches y_N − margin but
+    not y_N + h_N could enter the top N only as a tie with the N-th (its
+    interval, checked in full, would overlap the N-th's), so it is counted as
+    a tie, not checked. Only designs with U above y_N + h_N go on to the next
+    pilot stage and then to full checks, highest pilot first, ``m`` at a time,
+    until none is left or max(:data:`CAP_MIN`, :data:`TOP_UP_CAP` × m) designs
+    are checked (the rest are counted as unresolved). A design whose bound is
+    unknown (1: drift, a Clapp design integrating out C3) passes step 1 and
+    meets step 2 like any other.
     """
     first, screen = select_for_montecarlo(sim, designs, m)
     first = np.sort(first)
     names, codes = integrated_codes(sim, designs)
     samples = u.shape[0]
     f_nom = designs.f_nominal
+    z = normal_quantile(confidence)
     # Memory (five million designs): the checked designs' sums live in small arrays
     # (at most the cap), the designs still in play in arrays aligned with ``alive``
     # (design order, filtered together), everything else in one byte or none.
@@ -155,15 +209,12 @@ def conditional_rank(
     c_idx = np.zeros(0, dtype=np.int64)
     c_tally = Tally(np.zeros(0), np.zeros(0), np.zeros(0, dtype=np.int64), samples, names[:0])
 
-    def count(sel: np.ndarray, uu: np.ndarray) -> Tally:
-        return conditional_counts(
-            sim, designs.take(sel), uu, integrated=names[codes[sel]], workers=workers
-        )
-
     def check(sel: np.ndarray) -> None:
         nonlocal c_idx, c_tally
         sel = np.sort(sel)
-        t = count(sel, u)
+        t = conditional_counts(
+            sim, designs.take(sel), u, integrated=names[codes[sel]], workers=workers
+        )
         checked[sel] = True
         c_idx = np.concatenate([c_idx, sel])
         c_tally = _joined(c_tally, t)
@@ -172,6 +223,9 @@ def conditional_rank(
 
     def floor() -> tuple[float, float]:
         return _floor(f_nom[c_idx], c_tally, top=top, target=target)
+
+    def ceiling() -> float:
+        return _ceiling(f_nom[c_idx], c_tally, top=top, target=target, z=z)
 
     def can_reach(sel: np.ndarray, value: np.ndarray | None, f: tuple[float, float]) -> np.ndarray:
         return _can_reach(f_nom, sel, value, f, target)
@@ -185,48 +239,79 @@ def conditional_rank(
         return sel[np.lexsort((sel, -pilot))][:k]
 
     check(first)
-    alive, a_bound = _bound_survivors(sim, designs, names, codes, checked, floor(), target)
+    alive, a_upper = _bound_survivors(sim, designs, names, codes, checked, floor(), target)
     if len(alive) > PILOT_ALL:  # step 1b: the screen's calibrated filter
         y = c_tally.mean()
         se = np.sqrt(np.maximum(y * (1 - y), 1.0 / samples) / samples)
         delta = float(np.max(np.abs(screen[c_idx] - y) + 4 * se))
         near = screen[alive] >= floor()[0] - delta
         alive = alive[near]
-        a_bound = None if a_bound is None else a_bound[near]
+        a_upper = None if a_upper is None else a_upper[near]
     a_pilot: np.ndarray | None = None  # None: the screen (no pilot has run)
-    a_upper: np.ndarray | None = None  # None: +inf
     cap = max(CAP_MIN, TOP_UP_CAP * m)
+
+    def needing(upper: np.ndarray | None) -> tuple[slice | np.ndarray, int]:
+        """The designs in play whose upper value exceeds y_N + h_N (the rest can only
+        tie): a slice when it is every one (five million designs: no index copies)."""
+        c = ceiling()
+        if upper is None:  # every upper value 1
+            return (slice(None), len(alive)) if 1.0 > c else (np.zeros(0, dtype=np.int64), 0)
+        high = upper > c
+        k = int(high.sum())
+        return (slice(None), k) if k == len(alive) else (np.flatnonzero(high), k)
+
     for stage, rows in enumerate(PILOT_ROWS):
-        if rows >= samples or len(alive) == 0 or len(alive) * rows > cap * samples:
+        need, n_need = needing(a_upper)
+        if rows >= samples or n_need == 0 or n_need * rows > cap * samples:
             break  # a pilot dearer than checking the cap in full does not pay
-        pt = count(alive, u[:rows])
-        a_pilot = pt.mean()
-        high = pt.mean() + PILOT_SE * pt.std_error()
-        a_upper = high.copy()
+        est, se = pilot_estimates(
+            sim, designs, alive[need], u[:rows], names, codes, workers=workers
+        )
+        if a_pilot is None and n_need == len(alive):
+            a_pilot = est
+        else:
+            if a_pilot is None:
+                a_pilot = screen[alive]
+            a_pilot[need] = est
+        upper = est + PILOT_SE * se
+        del se
+        if a_upper is None:
+            a_upper = np.ones(len(alive))
+        a_upper[need] = np.minimum(a_upper[need], upper)
+        del upper
         if stage == 0:  # the best by pilot: y_N near its final value before eliminating
-            best = by_pilot(alive, a_pilot, top)
-            check(best)
-            high[np.isin(alive, best)] = -np.inf
-        ok = can_reach(alive, high, floor())
-        alive, a_pilot, a_upper = alive[ok], a_pilot[ok], a_upper[ok]
-        a_bound = None if a_bound is None else a_bound[ok]
+            check(by_pilot(alive[need], est, top))
+        del est
+        ok = ~checked[alive] & can_reach(alive, a_upper, floor())
+        alive, a_upper = alive[ok], a_upper[ok]
+        a_pilot = a_pilot[ok]
+    unresolved = 0
     while True:
-        f = floor()
-        ok = ~checked[alive] & can_reach(alive, a_bound, f)
-        if a_upper is not None:
-            ok &= can_reach(alive, a_upper, f)
+        ok = ~checked[alive] & can_reach(alive, a_upper, floor())
         alive = alive[ok]
-        a_bound = None if a_bound is None else a_bound[ok]
-        a_pilot = None if a_pilot is None else a_pilot[ok]
         a_upper = None if a_upper is None else a_upper[ok]
+        a_pilot = None if a_pilot is None else a_pilot[ok]
+        need, n_need = needing(a_upper)
         room = cap - len(c_idx)
-        if len(alive) == 0 or room <= 0:
+        if n_need == 0 or room <= 0:
+            unresolved = n_need
             break
         # the gathered screen is freed before the check (40 MB at five million designs)
-        nxt = by_pilot(alive, screen[alive] if a_pilot is None else a_pilot, min(m, room))
+        sel = alive[need]
+        nxt = by_pilot(sel, screen[sel] if a_pilot is None else a_pilot[need], min(m, room))
+        del sel
         check(nxt)
     o = estimate_order(c_tally.mean(), f_nom[c_idx], target)
-    return c_idx[o], c_tally.take(o), screen[c_idx[o]]
+    best = o[: min(top, len(o))]
+    resolution = float(z * c_tally.std_error()[best[-1]]) if len(best) else 0.0
+    return Ranking(
+        c_idx[o],
+        c_tally.take(o),
+        screen[c_idx[o]],
+        ties=len(alive) - unresolved,
+        unresolved=unresolved,
+        resolution=resolution,
+    )
 
 
 def _joined(a: Tally, b: Tally) -> Tally:
@@ -251,6 +336,16 @@ def _floor(f_nominal: np.ndarray, t: Tally, *, top: int, target: float) -> tuple
     margin = BOUND_MARGIN_SE * float(np.max(t.std_error()[best]))
     last_err = abs(float(np.log(f_nominal[last] / target)))
     return float(y[last]) - margin, last_err if margin == 0 else np.inf
+
+
+def _ceiling(f_nominal: np.ndarray, t: Tally, *, top: int, target: float, z: float) -> float:
+    """y_N + h_N: the upper end of the N-th checked design's interval (−inf with fewer
+    than N checked: any design may still enter the top N, none is a mere tie)."""
+    y = t.mean()
+    if len(y) < top:
+        return -np.inf
+    last = estimate_order(y, f_nominal, target)[top - 1]
+    return float(y[last] + z * t.std_error()[last])
 
 
 def _can_reach(

@@ -222,6 +222,15 @@ def print_table(r: SolveResult, console: Console) -> None:
             markup=False,
             highlight=False,
         )
+    if r.ties.get("count"):  # the top-up's stop rule (picker.core.ranking.TIE_RULE)
+        console.print(
+            f"Note: {r.ties['count']:,} more designs were not checked in full: their upper "
+            f"values cannot beat the estimate of the design ranked {len(r.candidates)} by more "
+            f"than its interval half-width ({format_percent(r.ties['resolution'])}), so they "
+            "can only tie with it.",
+            markup=False,
+            highlight=False,
+        )
     if s.amplifier is not None:
         _print_cautions(r, console)
     print_production(r, console)

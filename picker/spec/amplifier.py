@@ -39,7 +39,6 @@ from pydantic import BaseModel, ConfigDict, ValidationInfo, field_validator, mod
 
 from picker import units
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.stages import STAGES, default_stage, small_signal, stage_names
 from picker.errors import SpecError
 
 _UNITS = {
@@ -99,6 +98,9 @@ class AmplifierSpec(BaseModel):
         """No ``stage``: the default stage of ``kind``; a ``stage`` and no ``kind``: its device."""
         if not isinstance(data, Mapping):
             return data
+        # the stage registry (its modules import scipy.special): only with an [amplifier]
+        from picker.circuit.stages import STAGES, default_stage
+
         data = dict(data)
         stage = data.get("stage")
         if "kind" not in data and isinstance(stage, str) and stage in STAGES:
@@ -113,6 +115,9 @@ class AmplifierSpec(BaseModel):
     @field_validator("stage", mode="before")
     @classmethod
     def _stage(cls, v: Any, info: ValidationInfo) -> str:
+        # the stage registry (its modules import scipy.special): only with an [amplifier]
+        from picker.circuit.stages import STAGES, stage_names
+
         if not isinstance(v, str) or v not in STAGES:
             raise ValueError(
                 f"expected an amplifier stage, one of {', '.join(stage_names())}; got {v!r}"
@@ -227,6 +232,8 @@ class AmplifierSpec(BaseModel):
             q_frequency=getattr(ind, "q_frequency", None) if q is not None else None,
             capacitor_esr=cap_esr,
         )
+        from picker.circuit.stages import small_signal  # the registry: see _default_stage
+
         try:
             small_signal(params)
         except ValueError as exc:  # bias network that cannot work, e.g. a divider below V_BE
