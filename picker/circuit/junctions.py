@@ -46,14 +46,24 @@ import numpy as np
 from picker.circuit.device import npn_transport, thermal_voltage
 from picker.circuit.network import Network, tank_stamps
 
-__all__ = ["HARMONICS", "KNEE_HARMONICS", "junction_balance", "port_matrix"]
+__all__ = [
+    "HARMONICS",
+    "KNEE_HARMONICS",
+    "KNEE_NEWTON",
+    "NEWTON",
+    "junction_balance",
+    "port_matrix",
+]
 
 #: Harmonics 1..HARMONICS carried in (J1).
 HARMONICS = 6
 #: Harmonics carried where the describing function finds the device saturated.
 KNEE_HARMONICS = 12
 _POINTS = 64  # time points over one period
-_NEWTON = 150
+#: Newton steps (a board near its start-up edge converges slowly).
+NEWTON = 150
+#: Newton steps where the device saturates (it converges early there or not at all).
+KNEE_NEWTON = 40
 _LIMIT = 2.0  # largest change of u or w at any instant in one Newton step, V
 _W_STEP = 0.03  # largest relative change of ω in one Newton step
 _BACK = 0.5 ** np.arange(12)  # the step fractions tried
@@ -292,12 +302,13 @@ def junction_balance(
     a: np.ndarray,
     dv: np.ndarray,
     n_harm: int = HARMONICS,
+    iterations: int = NEWTON,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """The steady frequency (rad/s) and the peak voltage at the tank top (V, half its
     peak-to-peak, harmonics included) of the two-junction harmonic balance (module docstring), from the describing function's
     ``w``, control amplitude ``a`` and bias shift ``dv`` (1-D, one per element of
     ``idx`` of ``net``, the network at rest), and a mask of the elements where Newton
-    converged (elsewhere ``w`` and NaN are returned)."""
+    converged within ``iterations`` Newton steps (elsewhere ``w`` and NaN are returned)."""
     stage, params, ss = net.stage, net.params, net.ss
     bias = stage.bias(params)
     out_w, out_top = w.astype(float).copy(), np.full(w.shape, np.nan)
@@ -342,7 +353,7 @@ def junction_balance(
     cw = np.minimum(both[:, k:] @ e, _START_VBC + knee[:, None] - v_bc0) @ proj.T
     om = w[sel].astype(float).copy()
     live = np.ones(m, dtype=bool)
-    done = _newton(bal, cu, cw, om, knee, live, _NEWTON)
+    done = _newton(bal, cu, cw, om, knee, live, iterations)
     good = done & (np.abs(cu[:, 1]) > 0.1 * a[sel])  # not the trivial (resting) solution
     zt = bal.z(om, everyone)
     pc, pb = bal.ports(bal.law(cu, cw, knee), om)

@@ -37,7 +37,13 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.envelope import SATURATED_BURST, bursting, startup_time
 from picker.circuit.harmonic import harmonic_frequency
-from picker.circuit.junctions import HARMONICS, KNEE_HARMONICS, junction_balance
+from picker.circuit.junctions import (
+    HARMONICS,
+    KNEE_HARMONICS,
+    KNEE_NEWTON,
+    NEWTON,
+    junction_balance,
+)
 from picker.circuit.large_signal import loop_compression, solve_drive
 from picker.circuit.network import Network
 from picker.circuit.oscillation import CHUNK
@@ -208,11 +214,14 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     w_df = w.copy()
     done = np.zeros(good.shape, dtype=bool)
     if stage.has_device_law and stage.device == "bjt":
-        for sat, n_harm in ((False, HARMONICS), (True, KNEE_HARMONICS)):
+        for sat, n_harm, steps in (
+            (False, HARMONICS, NEWTON),
+            (True, KNEE_HARMONICS, KNEE_NEWTON),
+        ):
             kn = np.nonzero(good & (drive.saturated == sat))[0]
             if kn.size:
                 w_kn, top_kn, ok_kn = junction_balance(
-                    net, sub[kn], w_df[kn], a[kn], drive.dv[kn], n_harm
+                    net, sub[kn], w_df[kn], a[kn], drive.dv[kn], n_harm, steps
                 )
                 w[kn] = np.where(ok_kn, w_kn, w[kn])
                 top[kn] = np.where(ok_kn, top_kn, top[kn])
