@@ -218,4 +218,3 @@ def npn_transport(
         g_r / br,
         g_f,
     )
-

@@ -213,7 +213,9 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     # saturation, else the describing function's frequency
     w_df = w.copy()
     done = np.zeros(good.shape, dtype=bool)
-    if stage.has_device_law and stage.device == "bjt":
+    # (only where the bias network sets the mean current: with gm or the bias current
+    # given, the mean current is held and the DC network of (J3) does not apply)
+    if stage.has_device_law and stage.device == "bjt" and np.isfinite(loop.r_dc):
         for sat, n_harm, steps in (
             (False, HARMONICS, NEWTON),
             (True, KNEE_HARMONICS, KNEE_NEWTON),
