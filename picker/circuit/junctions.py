@@ -29,12 +29,13 @@ shorts), so (J3) also carries the bias network's settled shift. The phase is fix
 the fundamental's sine coefficient of u (0), and ω takes its place among the unknowns.
 The start is the describing function's solution (:mod:`picker.circuit.large_signal`).
 
-Where it is used: :func:`picker.circuit.steady.steady_state` solves it for every board
-that runs, with :data:`KNEE_HARMONICS` where the describing function finds the device
-saturated. Where the collector is driven hard into the knee (drives of a hundred
-thermal voltages and more), Newton from the describing function's start mostly does
-not converge, even with 24 harmonics (the current pulses are a few hundredths of a
-period wide): not solved yet; the describing function's frequency stands there.
+Where it is used: :func:`picker.circuit.steady.steady_state` solves it where the
+describing function finds the device out of saturation (v_BC may still come near the
+junction's turn-on). Where the collector is driven hard into the knee (drives of a
+hundred thermal voltages and more), Newton from the describing function's start mostly
+does not converge, even with 12-24 harmonics and a continuation in the knee voltage
+(the current pulses are a few hundredths of a period wide): not solved yet; the
+describing function's frequency stands there.
 """
 
 from __future__ import annotations
@@ -46,24 +47,13 @@ import numpy as np
 from picker.circuit.device import npn_transport, thermal_voltage
 from picker.circuit.network import Network, tank_stamps
 
-__all__ = [
-    "HARMONICS",
-    "KNEE_HARMONICS",
-    "KNEE_NEWTON",
-    "NEWTON",
-    "junction_balance",
-    "port_matrix",
-]
+__all__ = ["HARMONICS", "NEWTON", "junction_balance", "port_matrix"]
 
 #: Harmonics 1..HARMONICS carried in (J1).
 HARMONICS = 6
-#: Harmonics carried where the describing function finds the device saturated.
-KNEE_HARMONICS = 12
 _POINTS = 64  # time points over one period
 #: Newton steps (a board near its start-up edge converges slowly).
 NEWTON = 150
-#: Newton steps where the device saturates (it converges early there or not at all).
-KNEE_NEWTON = 40
 _LIMIT = 2.0  # largest change of u or w at any instant in one Newton step, V
 _W_STEP = 0.03  # largest relative change of ω in one Newton step
 _BACK = 0.5 ** np.arange(12)  # the step fractions tried
