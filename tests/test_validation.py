@@ -3,8 +3,8 @@
 Reference data: ``tests/validation/large_signal.json`` — random designs over issue 11's
 ranges and what ngspice's transient of picker's netlist shows — and
 ``tests/validation/large_signal_holdout.json``, a second set drawn the same way from
-another seed and never looked at while the model was developed (the issue's targets are
-to hold on designs not seen), both measured by
+another seed before the two-junction harmonic balance was written and not used to choose
+anything in the model (the issue's targets are to hold on designs not seen), both measured by
 :mod:`picker.circuit.waveform` (written without the model; tested on synthetic waveforms in
 ``tests/test_waveform.py``). Regenerate with ``python scripts/make_validation.py`` (see
 ``tests/validation/README.md``). The targets below are issue 11's; the fast tests need no
