@@ -93,9 +93,11 @@ def _logu(rng: np.random.Generator, lo: float, hi: float) -> float:
     return float(math.exp(rng.uniform(math.log(lo), math.log(hi))))
 
 
-def draw(rng: np.random.Generator, index: int, *, bypass: bool = True) -> Design | None:
+def draw(
+    rng: np.random.Generator, index: int, *, bypass: bool = True, prefix: str = "d"
+) -> Design | None:
     """One random design over issue 11's ranges (None where the draw is not buildable);
-    ``bypass`` False leaves the emitter unbypassed."""
+    ``bypass`` False leaves the emitter unbypassed; its id is ``prefix`` and ``index``."""
     clapp = rng.uniform() < 0.3
     topo = get_topology("clapp" if clapp else "colpitts")
     f0 = _logu(rng, 20e3, 30e6)
@@ -145,17 +147,19 @@ def draw(rng: np.random.Generator, index: int, *, bypass: bool = True) -> Design
         inductor_q=_sig(_logu(rng, 20.0, 200.0), 2),
         **load,
     )
-    return Design(f"d{index:03d}", topo.name, values, stray, params)
+    return Design(f"{prefix}{index:03d}", topo.name, values, stray, params)
 
 
-def unbypassed(seed: int = SEED + 1, count: int = UNBYPASSED, first: int = COUNT) -> list[Design]:
+def unbypassed(
+    seed: int = SEED + 1, count: int = UNBYPASSED, first: int = COUNT, prefix: str = "d"
+) -> list[Design]:
     """``count`` seeded draws with an unbypassed emitter and a linear start-up margin of at
     least 0.3 (the quotas of :func:`select` keep few of them: degeneration lowers the
     margin below the marginal band), numbered from ``first``."""
     rng = np.random.default_rng(seed)
     out: list[Design] = []
     while len(out) < count:
-        d = draw(rng, first + len(out), bypass=False)
+        d = draw(rng, first + len(out), bypass=False, prefix=prefix)
         if (
             d is None
             or not transient_plan(d.topo, d.values, d.stray, d.params, max_cycles=LONGEST).resolved
@@ -166,7 +170,7 @@ def unbypassed(seed: int = SEED + 1, count: int = UNBYPASSED, first: int = COUNT
     return out
 
 
-def select(seed: int = SEED, count: int = COUNT) -> list[Design]:
+def select(seed: int = SEED, count: int = COUNT, prefix: str = "d") -> list[Design]:
     """``count`` seeded draws, kept by quota on the linear model's start-up margin."""
     rng = np.random.default_rng(seed)
     want = [round(share * count) for *_, share in QUOTAS]
@@ -178,7 +182,7 @@ def select(seed: int = SEED, count: int = COUNT) -> list[Design]:
         tries += 1
         if tries > 200 * count:
             raise RuntimeError("the quotas cannot be filled; widen the ranges")
-        d = draw(rng, len(out))
+        d = draw(rng, len(out), prefix=prefix)
         if (
             d is None
             or not transient_plan(d.topo, d.values, d.stray, d.params, max_cycles=LONGEST).resolved
@@ -199,8 +203,16 @@ def simulate_all(designs: list[Design]) -> list[dict[str, object]]:
         return list(pool.map(run_design, designs))
 
 
-def make() -> None:
-    designs = select() + unbypassed()
+def make(
+    path: Path = OUT,
+    seed: int = SEED,
+    count: int = COUNT,
+    extra: int = UNBYPASSED,
+    prefix: str = "d",
+) -> None:
+    """Draw ``count`` designs by quota and ``extra`` unbypassed ones from ``seed``, run
+    them in ngspice and write ``path``."""
+    designs = select(seed, count, prefix) + unbypassed(seed + 1, extra, count, prefix)
     t0 = time.perf_counter()
     answers = simulate_all(designs)
     wall = time.perf_counter() - t0
@@ -216,14 +228,14 @@ def make() -> None:
             "11's ranges and what ngspice's transient of picker's netlist shows, measured by "
             "picker.circuit.waveform. Made by scripts/make_validation.py; do not edit by hand."
         ),
-        "seed": SEED,
+        "seed": seed,
         "count": len(designs),
         "states": dict(sorted(states.items())),
         "designs": records,
     }
-    OUT.parent.mkdir(parents=True, exist_ok=True)
-    OUT.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n", encoding="utf-8")
-    print(f"wrote {OUT.relative_to(ROOT)}: {len(designs)} designs, states {data['states']}")
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n", encoding="utf-8")
+    print(f"wrote {path}: {len(designs)} designs, states {data['states']}")
     print(f"ngspice wall time {wall:.0f} s with {WORKERS} workers")
 
 
@@ -233,7 +245,7 @@ def stats(path: Path = OUT) -> None:
     model = [model_answer(d) for d in designs]
     wall = time.perf_counter() - t0
     acc = accuracy([d.topology for d in designs], model, answers)
-    print(f"steady_state against ngspice on {path.relative_to(ROOT)} ({wall:.1f} s for the model)")
+    print(f"steady_state against ngspice on {path} ({wall:.1f} s for the model)")
     print(accuracy_table(acc))
 
 
@@ -257,13 +269,18 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--stats", action="store_true", help="print the model's accuracy table")
     ap.add_argument("--check", type=int, metavar="N", help="re-simulate N committed designs")
+    ap.add_argument("--out", type=Path, default=OUT, help="the set's file (default: %(default)s)")
+    ap.add_argument("--seed", type=int, default=SEED, help="seed of the drawing")
+    ap.add_argument("--count", type=int, default=COUNT, help="designs drawn by quota")
+    ap.add_argument("--unbypassed", type=int, default=UNBYPASSED, help="unbypassed designs")
+    ap.add_argument("--prefix", default="d", help="prefix of the design ids")
     args = ap.parse_args(argv)
     if args.stats:
-        stats()
+        stats(args.out)
         return 0
     if args.check:
-        return check(args.check)
-    make()
+        return check(args.check, args.out)
+    make(args.out, args.seed, args.count, args.unbypassed, args.prefix)
     return 0
 
 

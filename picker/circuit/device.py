@@ -24,6 +24,13 @@ Antognetti, *Semiconductor Device Modeling with SPICE*, 2nd ed., ch. 2):
   model agree at any bias)                                           (D4)
 * thermal voltage V_T = k·T/q at SPICE's default temperature 27 °C     (D5)
 
+With the base-collector junction forward biased (saturation) the transport model of
+both junctions (Ebers & Moll, Proc. IRE 42, 1954; SPICE's Gummel-Poon model with
+qb = 1, Massobrio & Antognetti ch. 2) adds the reverse transport current
+i_R = IS·exp(V_BC/V_T):
+
+* I_C = i_F − i_R·(1 + 1/BR),  I_B = i_F/BF + i_R/BR,  i_F = IS·exp(V_BE/V_T)   (D6)
+
 All quantities are SI floats; functions are pure.
 """
 
@@ -31,6 +38,8 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+
+import numpy as np
 
 BOLTZMANN = 1.380649e-23  # J/K, SI 2019 exact
 ELEMENTARY_CHARGE = 1.602176634e-19  # C, SI 2019 exact
@@ -55,6 +64,7 @@ class GenericNPN:
     tf: float = 0.3e-9  # forward transit time, s
     cje: float = 5e-12  # base-emitter junction capacitance (constant, MJE = 0), F
     cjc: float = 3e-12  # base-collector junction capacitance (constant, MJC = 0), F
+    br: float = 1.0  # reverse current gain (SPICE's default)
     name: str = "PICKER_NPN"
 
     def model_card(self) -> str:
@@ -62,7 +72,7 @@ class GenericNPN:
         return (
             f".model {self.name} NPN (IS={self.is_:.6g} BF={self.bf:.6g} VAF={self.vaf:.6g} "
             f"TF={self.tf:.6g} CJE={self.cje:.6g} MJE=0 CJC={self.cjc:.6g} MJC=0 "
-            "BR=1 RB=0 RE=0 RC=0)"
+            f"BR={self.br:.6g} RB=0 RE=0 RC=0)"
         )
 
 
@@ -181,4 +191,30 @@ def npn_small_signal(
         c_pi=device.tf * bias.ic / vt + device.cje,
         c_mu=device.cjc,
         i_dc=bias.ic,
+    )
+
+
+def npn_transport(
+    i_f0: float, is_: float, br: float, beta: float, vt: float, u: np.ndarray, v_bc: np.ndarray
+) -> tuple[np.ndarray, ...]:
+    """Collector and base currents of the transport model (D6), vectorised.
+
+    ``u`` is V_BE's shift from the rest point, where the forward transport current is
+    ``i_f0`` (the Early factor at rest included, as in (D1)); ``v_bc`` is V_BC itself.
+    Returns (I_C, I_B, i_F, ∂I_C/∂u, ∂I_C/∂V_BC, ∂I_B/∂u, ∂I_B/∂V_BC, ∂i_F/∂u), A and S.
+    The exponents are capped at 700 (no overflow; far beyond any steady drive).
+    """
+    i_f = i_f0 * np.exp(np.minimum(u / vt, 700.0))
+    i_r = is_ * np.exp(np.minimum(v_bc / vt, 700.0))
+    k = 1.0 + 1.0 / br
+    g_f, g_r = i_f / vt, i_r / vt
+    return (
+        i_f - k * i_r,  # (D6)
+        i_f / beta + i_r / br,  # (D6)
+        i_f,
+        g_f,
+        -k * g_r,
+        g_f / beta,
+        g_r / br,
+        g_f,
     )

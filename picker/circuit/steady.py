@@ -17,8 +17,10 @@ The model, in three steps (each module states its method and sources):
    pole on the imaginary axis gives the steady frequency, the drive gives the
    amplitudes, the harmonics, the peak current and the dissipation.
    Where the device stays out of saturation, the frequency is then corrected by
-   harmonic balance of the junction (:mod:`picker.circuit.harmonic`): the device's
-   harmonic currents fed back through the network move the loop's phase balance.
+   harmonic balance of both junctions (:mod:`picker.circuit.junctions`; where that
+   does not converge, of the base-emitter junction alone, :mod:`picker.circuit.harmonic`):
+   the device's harmonic currents fed back through the network move the loop's phase
+   balance. Where the device saturates, the describing function's frequency stands.
 3. **Steadiness and start-up time** (:mod:`picker.circuit.envelope`): averaged
    envelope equations with the bias network's slow states.
 """
@@ -34,6 +36,7 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.envelope import SATURATED_BURST, bursting, startup_time
 from picker.circuit.harmonic import harmonic_frequency
+from picker.circuit.junctions import junction_balance
 from picker.circuit.large_signal import loop_compression, solve_drive
 from picker.circuit.network import Network
 from picker.circuit.oscillation import CHUNK
@@ -197,12 +200,24 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     a0 = 2.0 * (2.0 * KICK_FRACTION * loop.i_rest / pole0.imag) * np.abs(be0 / dt_ds)
     t_up = startup_time(stage, params, ss, loop, a0, a, pole0.real, c_star, ratio, c_b)
     good = ok & drive.ok
-    # harmonic balance of the junction where the device stays out of saturation (the
-    # device law of picker.circuit.harmonic has no knee): the frequency with the harmonics
-    hb = np.nonzero(good & ~drive.saturated)[0]
+    # harmonic balance of both junctions (picker.circuit.junctions) where the describing
+    # function finds the device out of saturation and the bias network sets the mean
+    # current (with gm or the bias current given, the mean current is held and the DC
+    # network of (J3) does not apply); where it does not converge, of the base-emitter
+    # junction alone (picker.circuit.harmonic); where the device saturates, the
+    # describing function's frequency
+    w_df = w.copy()
+    done = np.zeros(good.shape, dtype=bool)
+    if stage.has_device_law and stage.device == "bjt" and np.isfinite(loop.r_dc):
+        kn = np.nonzero(good & ~drive.saturated)[0]
+        if kn.size:
+            w_kn, top_kn, ok_kn = junction_balance(net, sub[kn], w_df[kn], a[kn], drive.dv[kn])
+            w[kn] = np.where(ok_kn, w_kn, w[kn])
+            top[kn] = np.where(ok_kn, top_kn, top[kn])
+            done[kn] = ok_kn
+    hb = np.nonzero(good & ~drive.saturated & ~done)[0]
     if hb.size and stage.has_device_law:
-        w_hb, _ = harmonic_frequency(net, sub[hb], w[hb], a[hb], drive.dv[hb])
-        w = w.copy()
+        w_hb, _ = harmonic_frequency(net, sub[hb], w_df[hb], a[hb], drive.dv[hb])
         w[hb] = w_hb
     out["f_hz"][sub] = np.where(ok, w / TWO_PI, np.nan)
     out["amplitude_v"][sub] = np.where(good, top, np.nan)
