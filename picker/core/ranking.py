@@ -22,6 +22,7 @@ from picker.core.conditional import (
     integrated_codes,
 )
 from picker.core.montecarlo import Simulation, count_passing
+from picker.core.sampling import Rows
 from picker.core.screen import select_for_montecarlo
 from picker.core.search import Designs
 
@@ -38,7 +39,7 @@ def rank_order(passed: np.ndarray, f_nominal: np.ndarray, target: float) -> np.n
 def monte_carlo_rank(
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     *,
     m: int,
     top: int,
@@ -102,7 +103,7 @@ PILOT_SE = 6.0
 def conditional_rank(
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     *,
     m: int,
     top: int,
@@ -155,7 +156,7 @@ def conditional_rank(
     c_idx = np.zeros(0, dtype=np.int64)
     c_tally = Tally(np.zeros(0), np.zeros(0), np.zeros(0, dtype=np.int64), samples, names[:0])
 
-    def count(sel: np.ndarray, uu: np.ndarray) -> Tally:
+    def count(sel: np.ndarray, uu: Rows) -> Tally:
         return conditional_counts(
             sim, designs.take(sel), uu, integrated=names[codes[sel]], workers=workers
         )
