@@ -22,6 +22,7 @@ from picker.api.problem import amplifier_params_of, recentre_values
 from picker.api.results import Candidate, Miss, PartPick
 from picker.buyer.costing import cost_figures, design_costs, within_cost
 from picker.core.montecarlo import Simulation, YieldEstimate, estimate_yield
+from picker.core.sampling import Rows
 from picker.core.screen import corner_span
 from picker.core.search import Designs, Problem
 from picker.production import figures as production
@@ -165,9 +166,7 @@ def _scaled_over_range(extra: dict[str, Any], r: float) -> dict[str, Any]:
 # ---------------------------------------------------------------- per-candidate extras
 
 
-def circuit_extras(
-    spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray
-) -> list[dict[str, Any]]:
+def circuit_extras(spec: Spec, sim: Simulation, designs: Designs, u: Rows) -> list[dict[str, Any]]:
     """Extra per-candidate figures of the circuit-aware model (JSON fields), one dict each.
 
     Empty without an ``[amplifier]`` section. Otherwise (:func:`picker.circuit.figures.nominal_figures`):
@@ -202,7 +201,7 @@ def circuit_extras(
 
 
 def production_extras(
-    spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray
+    spec: Spec, sim: Simulation, designs: Designs, u: Rows
 ) -> list[dict[str, Any]]:
     """Extra per-candidate figures of the production view (JSON fields), one dict each.
 
@@ -214,9 +213,7 @@ def production_extras(
     return production.extras(spec, sim, designs, u, recentre)
 
 
-def cost_extras(
-    spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray
-) -> list[dict[str, Any]]:
+def cost_extras(spec: Spec, sim: Simulation, designs: Designs, u: Rows) -> list[dict[str, Any]]:
     """Per-candidate ``cost`` {per_board, build, build_quantity, stock_ok, short}
     (:func:`picker.buyer.costing.cost_figures`)."""
     on_hand: dict[str, float] = {}
@@ -227,7 +224,7 @@ def cost_extras(
     return cost_figures(sim.problem, designs, spec.cost.build_quantity, on_hand)
 
 
-def extras(spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray) -> list[dict[str, Any]]:
+def extras(spec: Spec, sim: Simulation, designs: Designs, u: Rows) -> list[dict[str, Any]]:
     """Every per-candidate JSON figure: circuit, production and cost, merged per design."""
     out: list[dict[str, Any]] = [{} for _ in range(len(designs))]
     for hook in (circuit_extras, production_extras, cost_extras):

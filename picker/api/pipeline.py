@@ -44,6 +44,7 @@ from picker.core.conditional import (
 from picker.core.montecarlo import Simulation, YieldEstimate, count_passing
 from picker.core.precision import refine, refine_tally, reorder
 from picker.core.ranking import TIE_RULE, estimate_order, monte_carlo_rank, rank_with_ties
+from picker.core.sampling import Rows
 from picker.core.screen import screen_yield
 from picker.core.search import Designs, Problem, check_size, search
 from picker.errors import SpecError
@@ -99,7 +100,7 @@ def _nominal_designs(spec: Spec, problem: Problem) -> tuple[Designs, LoadedSearc
 
 
 def _rank(
-    spec: Spec, sim: Simulation, designs: Designs, u: np.ndarray, m: int, top: int
+    spec: Spec, sim: Simulation, designs: Designs, u: Rows, m: int, top: int
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[str], int]:
     """Monte Carlo ranking by yield, or by cost with ``[cost] rank_by = "cost"``.
 
@@ -137,11 +138,11 @@ def _refined(
     spec: Spec,
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     passed: np.ndarray,
     seed: int,
     progress: Progress | None,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, bool | None]:
+) -> tuple[np.ndarray, np.ndarray, Rows, bool | None]:
     """Precision on demand: more batches for ``designs`` until the CI is narrow enough.
 
     Returns (order, passed, u, converged); ``order`` re-ranks ``designs``.
@@ -209,7 +210,7 @@ def _ranked_result(
     problem: Problem,
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     passed: np.ndarray,
     screen: np.ndarray,
     *,
@@ -319,7 +320,7 @@ def solve(
             warnings=lumped_warnings(spec.frequency.f_max),
         )
     sim = simulation_of(spec, problem)
-    u = random_inputs(spec, sim, samples, seed)
+    u: Rows = random_inputs(spec, sim, samples, seed)
     workers = default_workers() if workers is None else max(1, int(workers))
     if estimator not in (None, "plain", "conditional"):
         raise ValueError(f"expected estimator None, 'plain' or 'conditional'; got {estimator!r}")
@@ -386,7 +387,7 @@ def _conditional_solve(
     problem: Problem,
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     *,
     m: int,
     top: int,
@@ -433,12 +434,12 @@ def _refined_tally(
     spec: Spec,
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     tally: Tally,
     seed: int,
     workers: int,
     progress: Progress | None,
-) -> tuple[Tally, np.ndarray, bool | None]:
+) -> tuple[Tally, Rows, bool | None]:
     """Precision on demand for the conditional estimator (:func:`picker.core.precision.refine_tally`)."""
     ys = spec.yield_
     if ys.precision is None:
@@ -511,7 +512,7 @@ def evaluate(
         np.asarray(board_beta(topo, vals, problem.parasitics), dtype=float),
     )
     sim = simulation_of(spec, problem)
-    u = random_inputs(spec, sim, samples, seed)
+    u: Rows = random_inputs(spec, sim, samples, seed)
     estimated = None
     if applies(sim):
         w = default_workers() if workers is None else max(1, int(workers))

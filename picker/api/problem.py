@@ -20,7 +20,7 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.core.montecarlo import REFERENCE_TEMPERATURE, PartVariation, Simulation
-from picker.core.sampling import uniform_matrix
+from picker.core.sampling import RandomRows, random_rows
 from picker.core.search import Problem
 from picker.errors import SpecError
 from picker.parts import series as series_mod
@@ -564,16 +564,16 @@ def simulation_of(spec: Spec, problem: Problem) -> Simulation:
     )
 
 
-def random_inputs(spec: Spec, sim: Simulation, samples: int, seed: int) -> np.ndarray:
-    """The run's common random numbers, shape (samples', sim.n_columns).
+def random_inputs(spec: Spec, sim: Simulation, samples: int, seed: int) -> RandomRows:
+    """The run's common random numbers, shape (samples', sim.n_columns), drawn on demand.
 
     ``[yield] sampling = "random"``: ``samples`` rows from a seeded
     generator; ``"sobol"``: scrambled Sobol points, ``samples`` rounded up to
-    a power of two (:func:`picker.core.sampling.uniform_matrix`). Callers take the
+    a power of two (:func:`picker.core.sampling.random_rows`: the rows of
+    ``uniform_matrix``, streamed in batches, never held whole). Callers take the
     actual count from ``u.shape[0]``.
     """
-    rng = np.random.default_rng(seed)
-    return uniform_matrix(samples, sim.n_columns, method=spec.yield_.sampling, rng=rng)
+    return random_rows(samples, sim.n_columns, method=spec.yield_.sampling, seed=seed)
 
 
 def with_run_settings(spec: Spec, precision: float | None, sampling: str | None) -> Spec:

@@ -25,6 +25,7 @@ from picker import api
 from picker.circuit.loaded import LoadedModel
 from picker.circuit.loaded_search import loaded_search
 from picker.core.montecarlo import Simulation, count_passing, sampled_values
+from picker.core.sampling import head
 from picker.core.search import Designs
 
 DEMO = Path(__file__).resolve().parents[2] / "demo_specs" / "colpitts_bjt.toml"
@@ -68,7 +69,7 @@ def main(designs: int = 200, samples: int = 20_000, full_samples: int = 40) -> d
     assert isinstance(fast, LoadedModel)
     summary = fast.fit_summary()
     # the per-board large-signal model on a slice of the same boards
-    sub = u[:full_samples]
+    sub = head(u, full_samples)
     full = LoadedModel(pb, model.params, "full", model.max_margin)
     vals = sampled_values(sim, d, sub)
     t, c = time.perf_counter(), time.process_time()

@@ -15,22 +15,94 @@ prints the feasible count, the time, the peak memory traced by ``tracemalloc``
 (numpy reports its buffers to it) and the process's peak resident set size
 (``resource.getrusage``). Figures are printed, never asserted.
 
-Run: ``python -m picker.bench.memory [--quick]``.
+A second part (``--samples-max``, also run by default) measures the
+resident peak of the command ``picker solve DEMO -f json`` on each bundled
+demo spec that has no ``[amplifier]`` (the loaded model is left out: at the
+maximum it runs for hours), once at the spec's default samples and once with
+``--samples`` at the maximum the spec accepts (10,000,000), each in a fresh
+process (its own peak, from ``os.wait4``), side by side in the same run. The
+Monte Carlo streams its boards in batches (:class:`picker.core.sampling.RandomRows`),
+so the two should be close; the drivers and the histogram use a bounded
+subsample of the run (:data:`picker.production.figures.EXTRAS_ROWS` rows).
+
+Run: ``python -m picker.bench.memory [--quick] [--samples-max [N]] [--demo NAME]``.
 """
 
 from __future__ import annotations
 
 import argparse
 import json
+import os
 import resource
 import subprocess
 import sys
 import time
 import tracemalloc
+from pathlib import Path
 from typing import Any
 
 from picker import api
 from picker.core.search import estimate_designs
+from picker.errors import PickerError
+from picker.spec.model import YieldSpec
+
+#: The bundled demo specs (a source checkout's ``demo_specs/``).
+DEMOS = Path(__file__).resolve().parents[2] / "demo_specs"
+
+
+def samples_maximum() -> int:
+    """The largest ``[yield] samples`` the spec accepts (its ``le`` bound)."""
+    for m in YieldSpec.model_fields["samples"].metadata:
+        if hasattr(m, "le"):
+            return int(m.le)
+    raise RuntimeError("[yield] samples has no upper bound")  # pragma: no cover
+
+
+def demo_specs(names: list[str] | None = None) -> list[Path]:
+    """The demo specs that load on their own and have no ``[amplifier]``."""
+    out = []
+    for path in sorted(DEMOS.glob("*.toml")):
+        if names and path.stem not in names:
+            continue
+        try:
+            spec = api.load_spec(path)
+        except (PickerError, ValueError):  # a plan, or a base spec a plan completes
+            continue
+        if spec.amplifier is None:
+            out.append(path)
+    return out
+
+
+def command_peak(path: Path, samples: int | None) -> dict[str, Any]:
+    """Run ``picker solve PATH -f json [--samples N]`` in a child; its wall time and peak RSS."""
+    cmd = [sys.executable, "-m", "picker", "solve", str(path), "-f", "json"]
+    if samples is not None:
+        cmd += ["--samples", str(samples)]
+    t = time.perf_counter()
+    child = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(child.pid, 0)  # this child's own rusage
+    seconds = time.perf_counter() - t
+    err = child.stderr.read().decode() if child.stderr else ""
+    child.returncode = os.waitstatus_to_exitcode(status)
+    if child.returncode not in (0, 1):
+        raise RuntimeError(f"{' '.join(cmd)} exited {child.returncode}: {err.strip()}")
+    return {"seconds": seconds, "rss_mb": usage.ru_maxrss / 1024.0}
+
+
+def samples_table(maximum: int, names: list[str] | None = None) -> None:
+    """Print each demo's peak RSS at its default samples beside the one at ``maximum``."""
+    print(
+        f"picker solve DEMO -f json: peak resident memory, default samples vs --samples {maximum:,}"
+    )
+    for path in demo_specs(names):
+        default = api.load_spec(path).yield_.samples
+        a = command_peak(path, None)
+        b = command_peak(path, maximum)
+        print(
+            f"  {path.stem:20s} {default:>9,} samples {a['rss_mb']:6.0f} MB ({a['seconds']:5.1f} s)"
+            f"   {maximum:,} samples {b['rss_mb']:6.0f} MB ({b['seconds']:6.1f} s)",
+            flush=True,
+        )
 
 
 def _spec(case: str, quick: bool) -> dict[str, Any]:
@@ -89,14 +161,31 @@ def main(argv: list[str] | None = None) -> None:
     ap = argparse.ArgumentParser(prog="python -m picker.bench.memory", description=__doc__)
     ap.add_argument("--quick", action="store_true", help="a tenth of the outer grid")
     ap.add_argument("--case", choices=("feasible", "outer"), help=argparse.SUPPRESS)
+    ap.add_argument(
+        "--samples-max",
+        nargs="?",
+        type=int,
+        const=0,
+        default=None,
+        metavar="N",
+        help="only the demo table, with --samples N (default: the maximum the spec accepts)",
+    )
+    ap.add_argument("--demo", action="append", help="only this demo (repeatable; file stem)")
     args = ap.parse_args(argv)
     if args.case:  # the child process
         sys.stdout.write(json.dumps(measure(args.case, args.quick)) + "\n")
         return
+    if args.samples_max is None:
+        _spaces(args.quick)
+    samples_table(args.samples_max or samples_maximum(), args.demo)
+
+
+def _spaces(quick: bool) -> None:
+    """The largest spaces the ``[search]`` limits accept (module docstring)."""
     for case in ("feasible", "outer"):
         cmd = [sys.executable, "-m", "picker.bench.memory", "--case", case]
         r = subprocess.run(
-            cmd + (["--quick"] if args.quick else []), capture_output=True, text=True, check=True
+            cmd + (["--quick"] if quick else []), capture_output=True, text=True, check=True
         )
         m = json.loads(r.stdout.strip().splitlines()[-1])
         print(

@@ -34,6 +34,7 @@ import numpy as np
 
 from picker.core.montecarlo import Simulation, binomial_interval, count_passing
 from picker.core.ranking import TOP_UP_CAP, monte_carlo_rank
+from picker.core.sampling import Rows
 from picker.core.screen import screen_yield
 from picker.core.search import Designs, Problem
 
@@ -116,7 +117,7 @@ def cost_figures(
 def cost_rank(
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     *,
     m: int,
     top: int,

@@ -23,7 +23,8 @@ from picker.circuit.amplitude import (
 from picker.circuit.loaded import LoadedModel
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.steady import SteadyState, steady_state
-from picker.core.montecarlo import Simulation, drift_factors, sampled_values, values_at
+from picker.core.montecarlo import ROWS, Simulation, drift_factors, sampled_values, values_at
+from picker.core.sampling import Rows, row_chunks
 from picker.core.search import Designs
 from picker.tank.base import Topology
 from picker.tank.board import Parasitics, board_values
@@ -183,25 +184,25 @@ def nominal_figures(
     }
 
 
-def worst_margins(sim: Simulation, designs: Designs, u: np.ndarray) -> np.ndarray:
+def worst_margins(sim: Simulation, designs: Designs, u: Rows) -> np.ndarray:
     """Smallest start-up margin over every simulated board and grid temperature, (n,).
 
     Uses the simulation's board model, a :class:`LoadedModel` (surrogate or full,
-    as the yield), one design at a time so memory stays bounded.
+    as the yield), one design and :data:`picker.core.montecarlo.ROWS` boards at a
+    time so memory stays bounded (``u`` may be a stream drawn batch by batch).
     """
     model = sim.model
     if not isinstance(model, LoadedModel):
         raise ValueError("worst_margins needs a simulation whose board model is a LoadedModel")
-    drift = drift_factors(sim, u)
-    out = np.empty(len(designs))
-    n_t = len(sim.temperatures) if drift else 1
-    for r in range(len(designs)):
-        d1 = designs.take(np.array([r]))
-        vals = sampled_values(sim, d1, u)
-        worst = math.inf
-        for i in range(n_t):
-            v = values_at(vals, drift, i)
-            _, m = model.response(v, d1)
-            worst = min(worst, float(np.min(m)))
-        out[r] = worst
+    out = np.full(len(designs), math.inf)
+    for uc in row_chunks(u, ROWS):
+        drift = drift_factors(sim, uc)
+        n_t = len(sim.temperatures) if drift else 1
+        for r in range(len(designs)):
+            d1 = designs.take(np.array([r]))
+            vals = sampled_values(sim, d1, uc)
+            for i in range(n_t):
+                v = values_at(vals, drift, i)
+                _, m = model.response(v, d1)
+                out[r] = min(out[r], float(np.min(m)))
     return out

@@ -48,7 +48,7 @@ from picker.core.montecarlo import (
     sampled_values,
     values_at,
 )
-from picker.core.sampling import normal_quantile
+from picker.core.sampling import Rows, normal_quantile, row_chunks
 from picker.core.screen import part_sigmas
 from picker.core.search import Designs, solve_interval
 from picker.parts import distributions
@@ -262,7 +262,7 @@ def _plain_block(
 def conditional_counts(
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     *,
     integrated: np.ndarray | None = None,
     workers: int = 1,
@@ -273,6 +273,12 @@ def conditional_counts(
     position each design integrates out; "" samples that design plainly
     (pass/fail). ``workers`` threads share the blocks of designs (numpy
     releases the GIL in its array loops); the result does not depend on it.
+
+    ``u`` is a matrix or a :class:`~picker.core.sampling.RandomRows` stream. The
+    rows come :data:`BATCH_CHUNKS` × :data:`ROWS` at a time (a stream is drawn
+    batch by batch, so memory does not grow with the samples) and every design
+    adds its sums chunk by chunk in row order over the fixed grid of
+    :data:`ROWS` rows: the figures are the same bits whatever the batch size.
     """
     n = len(designs)
     rows = u.shape[0]
@@ -290,26 +296,35 @@ def conditional_counts(
         for s in range(0, len(members), per):
             jobs.append((p, members[s : s + per]))
 
-    def run(job: tuple[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    def run(job: tuple[str, np.ndarray], batch: np.ndarray) -> None:
+        """Add the job's sums over the chunks of ``batch``, in row order."""
         p, sel = job
         sub = designs.take(sel)
-        out = [np.zeros(len(sel)), np.zeros(len(sel)), np.zeros(len(sel), dtype=np.int64)]
-        for r in range(0, rows, ROWS):
-            ur = u[r : r + ROWS]
+        for r in range(0, batch.shape[0], ROWS):
+            ur = batch[r : r + ROWS]
             got = _block(sim, sub, p, ur) if p else _plain_block(sim, sub, ur)
-            for acc, g in zip(out, got, strict=True):
-                acc += g
-        return sel, out[0], out[1], out[2]
+            for acc, g in zip((total, square, passed), got, strict=True):
+                acc[sel] += g  # each design in one job only: no two threads write it
 
+    pool = None
     if workers > 1 and len(jobs) > 1:
         shared_arena()
-        with ThreadPoolExecutor(max_workers=workers) as pool:
-            results = list(pool.map(run, jobs))
-    else:
-        results = [run(j) for j in jobs]
-    for sel, t1, t2, k in results:
-        total[sel], square[sel], passed[sel] = t1, t2, k
+        pool = ThreadPoolExecutor(max_workers=workers)
+    try:
+        for batch in row_chunks(u, BATCH_CHUNKS * ROWS):
+            if pool is None:
+                for job in jobs:
+                    run(job, batch)
+            else:
+                list(pool.map(run, jobs, [batch] * len(jobs)))
+    finally:
+        if pool is not None:
+            pool.shutdown()
     return Tally(total, square, passed, rows, integrated)
+
+
+#: Chunks of :data:`ROWS` rows drawn at once from a stream (2^18 rows: 2 MB per column).
+BATCH_CHUNKS = 16
 
 
 _ARENA = [False]

@@ -1,8 +1,10 @@
 """Monte Carlo yield with common random numbers.
 
-One matrix of uniform variates U, shape (samples, k), is drawn per run (from
+One matrix of uniform variates U, shape (samples, k), serves a run (from
 a seeded ``numpy.random.Generator`` or a scrambled Sobol sequence, see
-:mod:`picker.core.sampling`) and reused for every candidate, so differences between
+:mod:`picker.core.sampling`; a long run's U is a
+:class:`~picker.core.sampling.RandomRows` stream, drawn in batches and never
+held whole) and is reused for every candidate, so differences between
 candidates are not sampling noise (common random numbers; JCGM 101:2008 §7
 for Monte Carlo propagation of distributions).
 
@@ -30,7 +32,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 from scipy.special import betaincinv
 
-from picker.core.sampling import wilson_interval
+from picker.core.sampling import RandomRows, Rows, row_chunks, wilson_interval
 from picker.core.search import Designs, Problem
 from picker.parts import distributions
 from picker.parts.drift import Material, drift_factor
@@ -263,13 +265,23 @@ def values_at(
     return {p: (v * (1.0 + drift[p][i][:, None]) if p in drift else v) for p, v in vals.items()}
 
 
-def count_passing(sim: Simulation, designs: Designs, u: np.ndarray) -> np.ndarray:
-    """Passing boards per design, shape (n,) int64, evaluated in memory-bounded blocks."""
-    if u.shape[0] > ROWS:  # long runs in row chunks: integer counts add up exactly
-        return sum(
-            (count_passing(sim, designs, u[r : r + ROWS]) for r in range(0, u.shape[0], ROWS)),
-            np.zeros(len(designs), dtype=np.int64),
-        )
+def count_passing(sim: Simulation, designs: Designs, u: Rows) -> np.ndarray:
+    """Passing boards per design, shape (n,) int64, evaluated in memory-bounded blocks.
+
+    ``u`` is a matrix of variates or a :class:`~picker.core.sampling.RandomRows`
+    stream; either way the rows are taken :data:`ROWS` at a time (a stream is
+    drawn batch by batch, never whole), so memory does not grow with the samples.
+    """
+    if isinstance(u, RandomRows) or u.shape[0] > ROWS:
+        out = np.zeros(len(designs), dtype=np.int64)
+        for ur in row_chunks(u, ROWS):  # integer counts: they add up exactly
+            out += _count_block(sim, designs, ur)
+        return out
+    return _count_block(sim, designs, u)
+
+
+def _count_block(sim: Simulation, designs: Designs, u: np.ndarray) -> np.ndarray:
+    """:func:`count_passing` of at most :data:`ROWS` rows held as a matrix."""
     model = sim.model or ideal_model(sim.problem)
     drift = drift_factors(sim, u)
     n = len(designs)

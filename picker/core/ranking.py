@@ -25,7 +25,7 @@ from picker.core.conditional import (
 )
 from picker.core.montecarlo import Simulation, count_passing
 from picker.core.pilot import pilot_estimates
-from picker.core.sampling import normal_quantile
+from picker.core.sampling import Rows, head, normal_quantile
 from picker.core.screen import select_for_montecarlo
 from picker.core.search import Designs
 
@@ -42,7 +42,7 @@ def rank_order(passed: np.ndarray, f_nominal: np.ndarray, target: float) -> np.n
 def monte_carlo_rank(
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     *,
     m: int,
     top: int,
@@ -136,7 +136,7 @@ class Ranking:
 def conditional_rank(
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     *,
     m: int,
     top: int,
@@ -154,7 +154,7 @@ def conditional_rank(
 def rank_with_ties(
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     *,
     m: int,
     top: int,
@@ -265,7 +265,7 @@ def rank_with_ties(
         if rows >= samples or n_need == 0 or n_need * rows > cap * samples:
             break  # a pilot dearer than checking the cap in full does not pay
         est, se = pilot_estimates(
-            sim, designs, alive[need], u[:rows], names, codes, workers=workers
+            sim, designs, alive[need], head(u, rows), names, codes, workers=workers
         )
         if a_pilot is None and n_need == len(alive):
             a_pilot = est

@@ -11,13 +11,24 @@ doubling batches so that the running total stays a power of two. Scrambling
 (Owen-type, scipy's ``scramble=True``) makes the estimate unbiased and lets the
 binomial interval be used as for plain sampling (a conservative reading: the
 true error of a scrambled Sobol estimate is usually smaller).
+
+Streaming (:class:`RandomRows`): the run's matrix of variates is never held
+whole. Its row ``r`` is a fixed function of the seed, the column count and
+the method alone: the ``r``-th row of one seeded stream (PCG64 jumped ahead
+with ``advance``, or the scrambled Sobol engine moved on with
+``fast_forward``), exactly what ``uniform_matrix`` would have drawn. Any
+batch of rows, of any size, drawn in any order, is therefore the same
+numbers, and every sum over the rows is taken over a fixed grid of row chunks
+by its consumer, so the results do not depend on the batch size.
 """
 
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass
+from typing import TypeAlias
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -78,6 +89,201 @@ def uniform_matrix(
     raise ValueError(f"expected a sampling method, one of {', '.join(METHODS)}; got {method!r}")
 
 
+#: Up to this many variates (16 MB of floats) the rows of a stream are drawn once and
+#: kept; longer runs draw each batch again when it is needed (bounded memory).
+CACHE_VALUES = 1 << 21
+
+
+class RandomRows:
+    """The run's uniform variates as a (rows, columns) matrix drawn on demand, never whole.
+
+    Row ``r`` is the ``r``-th row of ``uniform_matrix(·, columns, method=method,
+    rng=numpy.random.default_rng(seed))`` (module docstring): the PCG64 stream
+    jumped ahead by ``r·columns`` draws (``numpy.random.PCG64.advance``) or the
+    scrambled Sobol engine moved on by ``r`` points
+    (``scipy.stats.qmc.Sobol.fast_forward``). A slice ``rows[a:b]`` is another
+    view of the same stream; :meth:`chunks` yields its rows in batches and
+    :meth:`array` draws it whole (for the callers that bound the rows first).
+
+    Parameters
+    ----------
+    columns : int
+        Variates per row.
+    rows : int
+        Rows of this view (its shape is ``(rows, columns)``).
+    seed : int
+        Seed of the stream.
+    method : {"random", "sobol"}
+    start : int
+        First row of the view in the stream.
+    """
+
+    __slots__ = ("_cache", "columns", "method", "seed", "start", "stop")
+
+    def __init__(
+        self,
+        columns: int,
+        rows: int,
+        *,
+        seed: int,
+        method: str = "random",
+        start: int = 0,
+        cache: np.ndarray | None = None,
+    ) -> None:
+        if method not in METHODS:
+            raise ValueError(
+                f"expected a sampling method, one of {', '.join(METHODS)}; got {method!r}"
+            )
+        if rows < 0 or start < 0 or columns < 1:
+            raise ValueError(f"expected rows >= 0, start >= 0, columns >= 1; got {rows, start}")
+        self.columns, self.seed, self.method = int(columns), int(seed), method
+        self.start, self.stop = int(start), int(start) + int(rows)
+        if cache is None and start == 0 and 0 < rows * columns <= CACHE_VALUES:
+            cache = self._draw(0, self.stop)
+            cache.flags.writeable = False  # shared by every view: nobody writes into it
+        self._cache = cache
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return (self.stop - self.start, self.columns)
+
+    def __len__(self) -> int:
+        return self.stop - self.start
+
+    def __repr__(self) -> str:
+        return (
+            f"RandomRows(columns={self.columns}, rows={len(self)}, seed={self.seed}, "
+            f"method={self.method!r}, start={self.start})"
+        )
+
+    def __getitem__(self, key: slice) -> RandomRows:
+        """Rows ``key`` of this view (a slice with step 1), as another view."""
+        if not isinstance(key, slice):
+            raise TypeError(f"expected a slice of rows, got {key!r}")
+        a, b, step = key.indices(len(self))
+        if step != 1:
+            raise ValueError("expected a slice of rows with step 1")
+        return self._view(self.start + a, max(b - a, 0))
+
+    def resized(self, rows: int) -> RandomRows:
+        """The view from the same first row with ``rows`` rows (longer or shorter)."""
+        return self._view(self.start, rows)
+
+    def _view(self, start: int, rows: int) -> RandomRows:
+        return RandomRows(
+            self.columns,
+            rows,
+            seed=self.seed,
+            method=self.method,
+            start=start,
+            cache=self._cache if self._cache is not None else _NO_CACHE,
+        )
+
+    def _cached(self, a: int, b: int) -> np.ndarray | None:
+        c = self._cache
+        if c is not None and c.shape[0] and b <= c.shape[0]:
+            return c[a:b]
+        return None
+
+    def _engine(self, a: int) -> np.random.Generator | object:
+        """A generator standing at row ``a`` of the stream."""
+        if self.method == "random":
+            bits = np.random.PCG64(self.seed)  # what default_rng(seed) wraps
+            if a:
+                bits.advance(a * self.columns)  # one 64-bit draw per double
+            return np.random.Generator(bits)
+        from scipy.stats import qmc  # scipy.stats costs ~0.5 s to import: only for Sobol
+
+        engine = qmc.Sobol(self.columns, scramble=True, rng=np.random.default_rng(self.seed))
+        if a:
+            engine.fast_forward(a)
+        return engine
+
+    def _next(self, engine: object, n: int) -> np.ndarray:
+        if isinstance(engine, np.random.Generator):
+            return _open_interval(engine.random((n, self.columns)))
+        with warnings.catch_warnings():  # pieces of a power-of-two run: balance is kept
+            warnings.simplefilter("ignore", UserWarning)
+            return _open_interval(engine.random(n))  # type: ignore[attr-defined]
+
+    def _draw(self, a: int, b: int) -> np.ndarray:
+        """Rows [a, b) of the stream (absolute row numbers)."""
+        return self._next(self._engine(a), b - a)
+
+    def array(self) -> np.ndarray:
+        """Every row of the view, shape (rows, columns): bound the rows first."""
+        got = self._cached(self.start, self.stop)
+        return got if got is not None else self._draw(self.start, self.stop)
+
+    def chunks(self, size: int) -> Iterator[np.ndarray]:
+        """The view's rows in order, ``size`` rows at a time (the last may be shorter).
+
+        The pieces start at rows 0, size, 2·size, ... of the view, whatever was
+        drawn before; the numbers are those of :meth:`array`.
+        """
+        size = max(1, int(size))
+        engine = None
+        for a in range(self.start, self.stop, size):
+            b = min(a + size, self.stop)
+            got = self._cached(a, b)
+            if got is None:
+                engine = self._engine(a) if engine is None else engine
+                got = self._next(engine, b - a)
+            yield got
+
+
+_NO_CACHE = np.zeros((0, 0))
+
+#: The run's variates: a whole matrix (tests, small runs) or a stream drawn on demand.
+Rows: TypeAlias = np.ndarray | RandomRows
+
+
+def random_rows(n: int, k: int, *, method: str = "random", seed: int) -> RandomRows:
+    """The stream of :func:`uniform_matrix` ``(n, k, method, default_rng(seed))``, drawn on demand.
+
+    ``n`` rows for random, ``sobol_size(n)`` for Sobol, as there.
+    """
+    if method == "sobol":
+        n = sobol_size(n)
+    return RandomRows(k, n, seed=seed, method=method)
+
+
+def row_chunks(u: Rows, size: int) -> Iterator[np.ndarray]:
+    """Rows of ``u`` (a matrix or a :class:`RandomRows`) in pieces of ``size`` rows."""
+    if isinstance(u, RandomRows):
+        yield from u.chunks(size)
+        return
+    for a in range(0, u.shape[0], max(1, int(size))):
+        yield u[a : a + size]
+
+
+def head(u: Rows, n: int) -> np.ndarray:
+    """The first ``n`` rows of ``u`` as a matrix (a bounded subsample of the run)."""
+    return u[:n].array() if isinstance(u, RandomRows) else u[:n]
+
+
+def batch_sizes(method: str, first: int, max_batch: int = 1 << 16) -> Iterator[int]:
+    """Sizes of the successive batches of :func:`uniform_batches` (endless).
+
+    ``"random"``: ``first``, then doubling up to ``max(max_batch, first)``;
+    ``"sobol"``: ``sobol_size(first)``, then the running total (doubling it).
+    """
+    if method == "random":
+        size = int(first)
+        while True:
+            yield size
+            size = min(2 * size, max(int(max_batch), int(first)))
+    elif method == "sobol":
+        size = sobol_size(first)
+        yield size
+        total = size
+        while True:
+            yield total
+            total *= 2
+    else:
+        raise ValueError(f"expected a sampling method, one of {', '.join(METHODS)}; got {method!r}")
+
+
 def uniform_batches(
     k: int,
     *,
@@ -94,23 +300,18 @@ def uniform_batches(
     4·first, ...; ``max_batch`` does not apply), so that after every batch the
     total is a power of two and the points stay balanced.
     """
+    sizes = batch_sizes(method, first, max_batch)
     if method == "random":
-        size = int(first)
-        while True:
+        for size in sizes:
             yield _open_interval(rng.random((size, int(k))))
-            size = min(2 * size, max(int(max_batch), int(first)))
-    elif method == "sobol":
+    else:
         from scipy.stats import qmc  # only for Sobol (slow import)
 
-        size = sobol_size(first)
         engine = qmc.Sobol(int(k), scramble=True, rng=rng)
+        size = next(sizes)
         yield _open_interval(engine.random_base2(size.bit_length() - 1))
-        total = size
-        while True:
-            yield _open_interval(engine.random(total))
-            total *= 2
-    else:
-        raise ValueError(f"expected a sampling method, one of {', '.join(METHODS)}; got {method!r}")
+        for size in sizes:
+            yield _open_interval(engine.random(size))
 
 
 def normal_quantile(confidence: float) -> float:

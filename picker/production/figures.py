@@ -4,13 +4,17 @@ The per-candidate figures that :func:`picker.api.candidates.production_extras`
 adds to the JSON, and the arrays the plots of the best design need. It prints
 nothing and writes no files; randomness comes in as the run's common random
 numbers ``u`` (samples on axis 0, columns of
-:meth:`~picker.core.montecarlo.Simulation.columns` on axis 1).
+:meth:`~picker.core.montecarlo.Simulation.columns` on axis 1), a matrix or a
+:class:`~picker.core.sampling.RandomRows` stream that is drawn in batches and
+never held whole (memory does not grow with the samples).
 
 Every yield here is counted by :func:`picker.core.montecarlo.count_passing` on the
 same rows of ``u`` (common random numbers), so the difference between two
 options is not sampling noise. The yield over temperature uses every row;
-the other analyses use at most :data:`EXTRAS_ROWS` rows of ``u``
-(:data:`TRIMMER_ROWS` for the trimmer search); the buy-tighter list
+the other analyses (the regression drivers ``drivers_mc``, the buy-tighter
+list, the histogram and sweep of the plots) use a bounded subsample, the
+first :data:`EXTRAS_ROWS` rows of ``u`` (:data:`TRIMMER_ROWS` for the trimmer
+search), whatever the run's sample count; the buy-tighter list
 (:mod:`picker.production.advice`) is made for the best
 :data:`TIGHTER_CANDIDATES` designs only and the trimmer advice for the best
 design only, which bounds their time.
@@ -35,6 +39,7 @@ from picker.core.montecarlo import (
 )
 from picker.core.precision import single
 from picker.core.propagation import TEMPERATURE, first_order_shares, temperature_std
+from picker.core.sampling import Rows, head
 from picker.core.screen import part_sigmas, temperature_terms
 from picker.core.search import Designs
 from picker.parts.drift import Material, envelope
@@ -151,7 +156,7 @@ def monte_carlo_drivers(
 def over_temperature(
     sim: Simulation,
     designs: Designs,
-    u: np.ndarray,
+    u: Rows,
     passed: np.ndarray,
     ys: YieldKeys,
     seed: int,
@@ -234,7 +239,7 @@ def worst_case_over_range(sim: Simulation, designs: Designs) -> tuple[np.ndarray
 
 
 def extras(
-    spec: ProductionSpec, sim: Simulation, designs: Designs, u: np.ndarray, recentre: Recentre
+    spec: ProductionSpec, sim: Simulation, designs: Designs, u: Rows, recentre: Recentre
 ) -> list[dict[str, Any]]:
     """Production figures of every candidate (best first), one JSON-ready dict each.
 
@@ -246,7 +251,7 @@ def extras(
     if n == 0:
         return []
     with_t = ys.temperature is not None
-    ux = u[:EXTRAS_ROWS]
+    ux = head(u, EXTRAS_ROWS)  # a bounded subsample of the run's rows
     shares = first_order(sim, designs, with_t)
     out: list[dict[str, Any]] = [
         {"drivers": {k: float(v[r]) for k, v in shares.items()}} for r in range(n)
@@ -270,18 +275,16 @@ def extras(
         out[r]["tighter"] = buy_tighter(spec, sim, d1, ux, fn)
         if r == 0 and ys.target is not None and passed[0] / u.shape[0] < ys.target:
             out[r]["tighter_plan"] = buy_plan(spec, sim, d1, ux, ys.target, fn)
-            advice = trimmer_advice(spec, sim, d1, u[:TRIMMER_ROWS], recentre)
+            advice = trimmer_advice(spec, sim, d1, head(u, TRIMMER_ROWS), recentre)
             if advice is not None:
                 out[r]["trimmer"] = advice
     return out
 
 
-def plot_inputs(
-    spec: ProductionSpec, sim: Simulation, designs: Designs, u: np.ndarray
-) -> dict[str, Any]:
+def plot_inputs(spec: ProductionSpec, sim: Simulation, designs: Designs, u: Rows) -> dict[str, Any]:
     """Arrays the plots of the best design need (not part of the JSON)."""
     with_t = spec.yield_.temperature is not None
-    ux = u[:EXTRAS_ROWS]
+    ux = head(u, EXTRAS_ROWS)  # a bounded subsample of the run's rows
     d1 = single(designs, 0)
     problem = sim.problem
     vals = sampled_values(sim, d1, ux)
