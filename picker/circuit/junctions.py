@@ -135,6 +135,14 @@ def _block(z: np.ndarray, n_harm: int) -> np.ndarray:
     return out
 
 
+def _rows(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """``a @ b`` row by row, with each row's rounding independent of the batch: BLAS
+    picks its kernel (and so its summation order) by the matrix's size, so a board's
+    figures would move in the last bit with the boards beside it; einsum's own loop
+    does not (common practice, no source)."""
+    return np.einsum("nk,km->nm", a, b)
+
+
 @dataclass(frozen=True)
 class _Balance:
     """One batch of (J1)-(J3): the network, the elements, the basis and the device."""
@@ -164,8 +172,8 @@ class _Balance:
             self.br,
             self.beta,
             self.vt,
-            cu @ self.e,
-            self.v_bc0 - knee[:, None] + cw @ self.e,
+            _rows(cu, self.e),
+            self.v_bc0 - knee[:, None] + _rows(cw, self.e),
         )
 
     def z(self, om: np.ndarray, rows: np.ndarray) -> np.ndarray:
@@ -177,8 +185,10 @@ class _Balance:
 
     def ports(self, cur: tuple[np.ndarray, ...], om: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Coefficients of p_C and p_B (J2), less their rest values."""
-        pc = cur[0] @ self.proj.T
-        pb = cur[1] @ self.proj.T + om[:, None] * ((self.tf * cur[2] @ self.proj.T) @ self.dmat.T)
+        pc = _rows(cur[0], self.proj.T)
+        pb = _rows(cur[1], self.proj.T) + om[:, None] * _rows(
+            _rows(self.tf * cur[2], self.proj.T), self.dmat.T
+        )
         pc[:, 0] -= self.rest[0]
         pb[:, 0] -= self.rest[1]
         return pc, pb
@@ -245,7 +255,8 @@ def _newton(
         d_om = step[:, 2].copy()
         step[:, 2] = 0.0
         dv = np.maximum(
-            np.max(np.abs(step[:, :k] @ bal.e), axis=1), np.max(np.abs(step[:, k:] @ bal.e), axis=1)
+            np.max(np.abs(_rows(step[:, :k], bal.e)), axis=1),
+            np.max(np.abs(_rows(step[:, k:], bal.e)), axis=1),
         )
         lim = np.minimum(1.0, _LIMIT / np.maximum(dv, 1e-300))
         lim = np.minimum(lim, _W_STEP * om[act] / np.maximum(np.abs(d_om), 1e-300))
@@ -340,7 +351,7 @@ def junction_balance(
     cu[:, 0], cu[:, 1] = dv[sel], a[sel]
     pc0, pb0 = bal.ports(bal.law(cu, np.zeros((m, k)), knee + 10.0), w[sel])
     both = np.einsum("nij,nj->ni", _block(z0[:, :, :2, :], n_harm), np.concatenate([pc0, pb0], 1))
-    cw = np.minimum(both[:, k:] @ e, _START_VBC + knee[:, None] - v_bc0) @ proj.T
+    cw = _rows(np.minimum(_rows(both[:, k:], e), _START_VBC + knee[:, None] - v_bc0), proj.T)
     om = w[sel].astype(float).copy()
     live = np.ones(m, dtype=bool)
     done = _newton(bal, cu, cw, om, knee, live, iterations)
@@ -352,7 +363,7 @@ def junction_balance(
     ph_b = pb[:, 1::2] - 1j * pb[:, 2::2]
     v_t = zt[:, 1:, 2, 0] * ph_c + zt[:, 1:, 2, 1] * ph_b
     theta = 2.0 * np.pi * np.arange(256) / 256
-    wave = (v_t @ np.exp(1j * np.outer(np.arange(1, n_harm + 1), theta))).real
+    wave = _rows(v_t, np.exp(1j * np.outer(np.arange(1, n_harm + 1), theta))).real
     top = 0.5 * (wave.max(axis=1) - wave.min(axis=1))
     out_w[sel] = np.where(good, om, w[sel])
     out_top[sel] = np.where(good, np.abs(top), np.nan)
