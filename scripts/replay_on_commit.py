@@ -288,8 +288,8 @@ MUTATIONS = (
     Mutation(
         "loaded search demands 5 % more start-up margin than asked",
         "picker/circuit/loaded_search.py",
-        "ok[cand] = runs & in_steady & (st.margin >= m_lo)",
-        "ok[cand] = runs & in_steady & (st.margin >= 1.05 * m_lo)",
+        "ok = fb & runs & in_steady & (m_s >= m_lo) & ~(m_s > m_hi)",
+        "ok = fb & runs & in_steady & (m_s >= 1.05 * m_lo) & ~(m_s > m_hi)",
         ("tests/test_search_edges.py", "-k", "loaded_search"),
     ),
 )

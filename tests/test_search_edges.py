@@ -137,15 +137,6 @@ def _loaded_reference(p):
     return (i1, i2, il), m, ok
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="two designs of this cube, (C1, C2, L) = (82 pF, 150 pF, 330 uH) and (68 pF, "
-    "220 pF, 270 uH), have a harmonic-balance frequency 15-20 % below both neighbours in L "
-    "(ngspice, monotone in L: 1.203 and 1.305 MHz; the model: 1.018 and 1.017 MHz), so "
-    "the model's running frequency is not "
-    "monotone in L there and the search, exact under that assumption, does not reach them; "
-    "the marker must come off when picker.circuit.harmonic no longer gives these outliers",
-)
 def test_loaded_search_asks_exactly_the_start_up_margin_given():
     # min_margin set to one design's own margin: that design is kept, and the search equals
     # the brute force whose margin check is written out here (catches a search demanding
