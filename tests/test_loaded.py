@@ -176,12 +176,6 @@ def _small_problem(
     return Problem(topology, tabs, f0 * (1 - window), f0 * (1 + window), 0.1, 1.0, PAR)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="known gap (README): with the per-design large-signal fit, two of these seven "
-    "designs are counted 59 and 48 boards of 3,000 above the per-board model (X7R drift, "
-    "three temperatures); not yet traced",
-)
 def test_board_model_surrogate_and_full_count_alike_with_drift():
     # Drift: the model receives the values at each temperature; an X7R C2 and a ferrite-like
     # tempco make the boards move. Same random numbers, two models: per-design counts must
@@ -200,6 +194,9 @@ def test_board_model_surrogate_and_full_count_alike_with_drift():
     # Measured before the corner check (the nominal verdict and offset taken for every
     # board): one design whose envelope is near the burst edge at nominal (46 % of its
     # boards burst) was counted 1586 against 823 passing boards; with it, every count equal.
+    # With the per-design board fit from the centre, axes and ++ pairs only (no corners), two
+    # designs were counted 59 and 48 boards above: their bursting (one a kink of the envelope
+    # eigenvalue, one an unsaturated corner) lay in the box's unsampled (+, −) corners.
     print(f"counts surrogate {a}, full {b}")
     assert np.max(np.abs(a - b)) <= 0.005 * 3000
 
@@ -392,7 +389,10 @@ def test_table_and_csv_show_loaded_columns(run_cli):
         "solve", str(DEMO_SPEC), "--format", "csv", "--samples", "1000", "--top", "3"
     )
     header = out.splitlines()[0].split(",")
-    assert header[-3:] == ["f_loaded_hz", "startup_margin", "startup_margin_worst"]
+    # the loaded columns, together and in this order (the results table may add columns
+    # after them, e.g. tied_with_previous)
+    i = header.index("f_loaded_hz")
+    assert header[i : i + 3] == ["f_loaded_hz", "startup_margin", "startup_margin_worst"]
 
 
 def test_no_amplifier_leaves_json_without_loaded_fields(run_cli):
