@@ -111,25 +111,31 @@ def _harmonics(
     v_h = np.zeros((w.size, m), dtype=complex)
     res = np.full(w.size, np.inf)
     h = 1e-6
+    # Newton runs only on the elements that took a step in the last iteration: an element
+    # that converged, or whose Jacobian failed, keeps its V_h (its step would be zero), so
+    # leaving it out changes no figure, only the work (most elements converge in a few
+    # iterations of the _NEWTON allowed).
+    act = np.arange(w.size)
     for _ in range(_NEWTON):
+        ka, aa = kern[act], a[act]
         # einsum, not a BLAS product: each element's sums independent of the batch's size
-        v = base + np.einsum("em,mt->et", v_h, rot[1:]).real  # (H1)
+        v = base[act] + np.einsum("em,mt->et", v_h[act], rot[1:]).real  # (H1)
         i = stage.output_current(params, ss, v)
         g = (stage.output_current(params, ss, v + h) - stage.output_current(params, ss, v - h)) / (
             2 * h
         )
         i_n = 2.0 * np.einsum("et,mt->em", i, rot[1:].conj()) / _POINTS  # (H2)
-        r = v_h - kern[:, 1:] * i_n  # (H4), n ≥ 2
-        res = np.max(np.abs(r), axis=1) / a
-        live = (res > _TOL) & np.isfinite(res)
+        r = v_h[act] - ka[:, 1:] * i_n  # (H4), n ≥ 2
+        res[act] = np.max(np.abs(r), axis=1) / aa
+        live = (res[act] > _TOL) & np.isfinite(res[act])
         if not live.any():
             break
         # ∂I_n/∂Re V_k and ∂I_n/∂Im V_k: Re(V_k·e^{jkθ}) = Re V_k·cos kθ − Im V_k·sin kθ
         d_re = 2.0 * np.einsum("et,nt,kt->enk", g, rot[1:].conj(), rot[1:].real) / _POINTS
         d_im = -2.0 * np.einsum("et,nt,kt->enk", g, rot[1:].conj(), rot[1:].imag) / _POINTS
-        jr = -kern[:, 1:, None] * d_re
-        ji = -kern[:, 1:, None] * d_im
-        jac = np.zeros((w.size, 2 * m, 2 * m))
+        jr = -ka[:, 1:, None] * d_re
+        ji = -ka[:, 1:, None] * d_im
+        jac = np.zeros((act.size, 2 * m, 2 * m))
         eye = np.eye(m)
         jac[:, :m, :m] = eye + jr.real
         jac[:, :m, m:] = ji.real
@@ -137,16 +143,18 @@ def _harmonics(
         jac[:, m:, m:] = eye + ji.imag
         rhs = np.concatenate([r.real, r.imag], axis=1)
         live &= np.all(np.isfinite(jac), axis=(1, 2))
-        step = np.zeros((w.size, 2 * m))
+        step = np.zeros((act.size, 2 * m))
         ok_j = live & (
             np.abs(np.linalg.det(np.where(live[:, None, None], jac, np.eye(2 * m)))) > 1e-12
         )
-        if ok_j.any():
-            step[ok_j] = np.linalg.solve(jac[ok_j], rhs[ok_j][..., None])[..., 0]
+        if not ok_j.any():
+            break
+        step[ok_j] = np.linalg.solve(jac[ok_j], rhs[ok_j][..., None])[..., 0]
         dvh = step[:, :m] + 1j * step[:, m:]
         big = np.max(np.abs(dvh), axis=1)
-        scale = np.minimum(1.0, 0.5 * a / np.maximum(big, 1e-300))  # at most a/2 a step
-        v_h = v_h - scale[:, None] * dvh
+        scale = np.minimum(1.0, 0.5 * aa / np.maximum(big, 1e-300))  # at most a/2 a step
+        v_h[act] = v_h[act] - scale[:, None] * dvh
+        act = act[ok_j]
     v = base + np.einsum("em,mt->et", v_h, rot[1:]).real
     i1 = 2.0 * np.einsum("et,t->e", stage.output_current(params, ss, v), rot[0].conj()) / _POINTS
     g1 = i1 / a  # the fundamental transconductance, complex
