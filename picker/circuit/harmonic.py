@@ -39,11 +39,9 @@ method.
 
 from __future__ import annotations
 
-from dataclasses import replace
-
 import numpy as np
 
-from picker.circuit.network import Network, tank_stamps
+from picker.circuit.network import Network, junction_free_stamps, nodal_matrix
 
 __all__ = ["HARMONICS", "harmonic_frequency", "port_responses"]
 
@@ -62,23 +60,10 @@ def port_responses(net: Network, idx: np.ndarray, s: np.ndarray) -> tuple[np.nda
     (out of output into common) and for a unit current drawn through the control port
     (out of input into common); the return ratio is T = gm·B/(1 − Z·y_pi), of the network without the junction's r_pi and diffusion capacitance
     (modified nodal analysis; Ho, Ruehli & Brennan, IEEE Trans. Circuits Syst. 22, 1975)."""
-    stage, params, ss = net.stage, net.params, net.ss
-    c_diff = stage.diffusion_capacitance(params, ss)
-    lin = replace(ss, r_pi=np.inf, c_pi=ss.c_pi - c_diff)
-    stamps = tank_stamps(stage, net.tank_admittances(s, idx))
-    stamps += stage.stamps(s, net.topology, params, lin)
+    stage = net.stage
     index = {node: i for i, node in enumerate(stage.nodes)}
     n, k = s.shape[0], len(index)
-    y = np.zeros((n, k, k), dtype=complex)
-    for st in stamps:
-        i, j = index.get(st.a), index.get(st.b)
-        if i is not None:
-            y[:, i, i] += st.y
-        if j is not None:
-            y[:, j, j] += st.y
-        if i is not None and j is not None:
-            y[:, i, j] -= st.y
-            y[:, j, i] -= st.y
+    y = nodal_matrix(junction_free_stamps(net, idx, s), stage.nodes, n)
     u = np.zeros((n, k, 2), dtype=complex)
     com = index.get(stage.common)
     u[:, index[stage.output], 0] -= 1.0  # the controlled source draws current out of output

@@ -165,6 +165,35 @@ def tank_stamps(stage: Stage, tank: tuple[Any, Any, Any]) -> list[Stamp]:
     ]
 
 
+def nodal_matrix(stamps: list[Stamp], nodes: tuple[str, ...], n: int) -> np.ndarray:
+    """The stacked nodal admittance matrix (n, k, k) of ``stamps`` over ``nodes`` (a
+    stamp's node not among them is ground); modified nodal analysis, Ho, Ruehli &
+    Brennan, IEEE Trans. Circuits Syst. 22, 1975."""
+    index = {node: i for i, node in enumerate(nodes)}
+    k = len(index)
+    y = np.zeros((n, k, k), dtype=complex)
+    for st in stamps:
+        i, j = index.get(st.a), index.get(st.b)
+        if i is not None:
+            y[:, i, i] += st.y
+        if j is not None:
+            y[:, j, j] += st.y
+        if i is not None and j is not None:
+            y[:, i, j] -= st.y
+            y[:, j, i] -= st.y
+    return y
+
+
+def junction_free_stamps(net: Network, idx: np.ndarray, s: np.ndarray) -> list[Stamp]:
+    """The stamps of ``net`` at ``s`` (one per element of ``idx``) without the junction's
+    r_pi and diffusion capacitance: the linear network the harmonic balances drive."""
+    stage, params, ss = net.stage, net.params, net.ss
+    c_diff = stage.diffusion_capacitance(params, ss)
+    lin = replace(ss, r_pi=np.inf, c_pi=ss.c_pi - c_diff)
+    stamps = tank_stamps(stage, net.tank_admittances(s, idx))
+    return stamps + stage.stamps(s, net.topology, params, lin)
+
+
 def _probe(
     topology: Topology, values: Mapping[str, Any], stray: Any, params: AmplifierParams, f_hz: Any
 ) -> tuple[Network, np.ndarray]:
@@ -208,16 +237,7 @@ def loop_gain_matrix(
     stamps += stage.stamps(s, topology, params, net.ss)
     index = {node: i for i, node in enumerate(stage.nodes)}
     n, k = s.shape[0], len(index)
-    y = np.zeros((n, k, k), dtype=complex)
-    for st in stamps:
-        i, j = index.get(st.a), index.get(st.b)
-        if i is not None:
-            y[:, i, i] += st.y
-        if j is not None:
-            y[:, j, j] += st.y
-        if i is not None and j is not None:
-            y[:, i, j] -= st.y
-            y[:, j, i] -= st.y
+    y = nodal_matrix(stamps, stage.nodes, n)
     u = np.zeros((n, k, 1), dtype=complex)
     u[:, index[stage.output], 0] += 1.0
     if stage.common in index:
