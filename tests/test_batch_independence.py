@@ -13,6 +13,7 @@ from __future__ import annotations
 from dataclasses import fields
 
 import numpy as np
+from amplifiers import BJT
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.oscillation import loaded_response
@@ -21,16 +22,6 @@ from picker.tank.clapp import CLAPP
 from picker.tank.colpitts import COLPITTS
 
 # Invented amplifiers (typical small-signal values, not check values themselves).
-BJT = AmplifierParams(
-    vcc=9.0,
-    r_c=1500.0,
-    r_b1=68e3,
-    r_b2=10e3,
-    r_e=2200.0,
-    c_e=47e-9,
-    c_block=10e-9,
-    inductor_q=50.0,
-)
 LOSSY = AmplifierParams(
     vcc=9.0, r_c=1500.0, r_b1=68e3, r_b2=10e3, r_e=2200.0, c_e=47e-9, c_block=10e-9, inductor_q=6.0
 )

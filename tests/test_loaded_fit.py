@@ -23,6 +23,7 @@ import math
 
 import numpy as np
 import pytest
+from amplifiers import BJT
 from conftest import DEMO
 
 from picker import api
@@ -41,16 +42,6 @@ from picker.tank.clapp import CLAPP
 from picker.tank.colpitts import COLPITTS
 
 # Invented amplifier (typical small-signal values, not a check value themselves).
-BJT = AmplifierParams(
-    vcc=9.0,
-    r_c=1500.0,
-    r_b1=68e3,
-    r_b2=10e3,
-    r_e=2200.0,
-    c_e=47e-9,
-    c_block=10e-9,
-    inductor_q=50.0,
-)
 PAR = Parasitics(stray=3e-12)
 #: the largest share of one design's boards the fast path may decide otherwise (docstring)
 MAX_DISAGREE = 0.01

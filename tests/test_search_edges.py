@@ -16,8 +16,8 @@ import math
 
 import numpy as np
 import pytest
+from amplifiers import BJT
 
-from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.loaded_search import loaded_search
 from picker.circuit.steady import steady_state
 from picker.core.montecarlo import Simulation, count_passing
@@ -28,16 +28,6 @@ from picker.tank.board import Parasitics, board_values
 from picker.tank.colpitts import COLPITTS
 
 # Invented small-signal amplifier (typical values, not a check value themselves).
-BJT = AmplifierParams(
-    vcc=9.0,
-    r_c=1500.0,
-    r_b1=68e3,
-    r_b2=10e3,
-    r_e=2200.0,
-    c_e=47e-9,
-    c_block=10e-9,
-    inductor_q=50.0,
-)
 
 
 def _tables(c_range=(100e-12, 10e-9), l_range=(10e-6, 1e-3)):
