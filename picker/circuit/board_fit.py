@@ -74,10 +74,10 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.envelope import SATURATED_BURST
+from picker.circuit.envelope import HURWITZ, SATURATED_BURST
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.steady import SteadyState, steady_state
-from picker.tank.base import TWO_PI, Topology
+from picker.tank.base import Topology
 from picker.tank.board import Parasitics, board_values
 
 __all__ = [
@@ -86,6 +86,7 @@ __all__ = [
     "EDGE_POINTS",
     "EDGE_SAFETY",
     "QUANTITIES",
+    "STEADY",
     "StateFn",
     "BoardFit",
     "fit_boards",
@@ -96,8 +97,10 @@ __all__ = [
 
 #: The large-signal model's signature: (topology, board values, stray, params) -> state.
 StateFn = Callable[[Topology, Mapping[str, Any], Any, AmplifierParams], SteadyState]
+#: The bursting conditions fitted (module docstring): a board runs steady where all are positive.
+STEADY = tuple(f"steady_{i + 1}" for i in range(HURWITZ))
 #: The fitted quantities, in the order of :attr:`BoardFit.coef`'s first axis.
-QUANTITIES = ("off_f", "off_m", "score")
+QUANTITIES = ("off_f", "off_m", *STEADY)
 #: Smallest half-width (ln v) an axis is fitted over (a part without spread).
 MIN_STEP = 1e-7
 #: Stage 2 runs unless the quadratic score stays this many times its own range over the
@@ -153,9 +156,13 @@ class BoardFit:
     """Coefficients of (F1) per design.
 
     ``anchor`` and ``h``: position -> box centre and half-width in ln v (c,);
-    ``coef`` (3, T, c), rows in :data:`QUANTITIES` order, terms as
+    ``coef`` (Q, T, c), rows in :data:`QUANTITIES` order, terms as
     :func:`monomials` (k, :data:`EDGE_DEGREE`) gives them (zero beyond degree 2 where
-    ``edge`` is False); ``ok`` (c,) marks designs the fit describes.
+    ``edge`` is False); ``edge`` (c,): the bursting verdict is decided board by board
+    (stage 2), elsewhere ``bursts`` (c,) holds it for the whole box; ``band``
+    (:data:`HURWITZ`, c): the burst band of each condition of :data:`STEADY`; ``live``
+    (:data:`HURWITZ`, c): the conditions not proven positive over the whole box (the
+    only ones checked board by board); ``ok`` (c,) marks designs the fit describes.
     """
 
     anchor: dict[str, np.ndarray]
@@ -163,6 +170,8 @@ class BoardFit:
     coef: np.ndarray
     edge: np.ndarray
     band: np.ndarray
+    live: np.ndarray
+    bursts: np.ndarray
     ok: np.ndarray
 
     def take(self, sel: Any) -> BoardFit:
@@ -171,35 +180,68 @@ class BoardFit:
             {p: a[sel] for p, a in self.h.items()},
             self.coef[:, :, sel],
             self.edge[sel],
-            self.band[sel],
+            self.band[:, sel],
+            self.live[:, sel],
+            self.bursts[sel],
             self.ok[sel],
         )
 
-    def quantity(self, name: str, vals: Mapping[str, np.ndarray]) -> np.ndarray:
-        """(F1) for quantity ``name`` on boards ``vals`` (position -> (samples, c))."""
-        r = QUANTITIES.index(name)
+    @staticmethod
+    def concat(parts: list[BoardFit]) -> BoardFit:
+        """The fits of ``parts`` side by side (designs in order)."""
+        pos = list(parts[0].anchor)
+        return BoardFit(
+            {p: np.concatenate([f.anchor[p] for f in parts]) for p in pos},
+            {p: np.concatenate([f.h[p] for f in parts]) for p in pos},
+            np.concatenate([f.coef for f in parts], axis=2),
+            np.concatenate([f.edge for f in parts]),
+            np.concatenate([f.band for f in parts], axis=1),
+            np.concatenate([f.live for f in parts], axis=1),
+            np.concatenate([f.bursts for f in parts]),
+            np.concatenate([f.ok for f in parts]),
+        )
+
+    def quantity(
+        self, name: str, vals: Mapping[str, np.ndarray], cols: np.ndarray | None = None
+    ) -> np.ndarray:
+        """(F1) for quantity ``name`` on boards ``vals`` (position -> (samples, c)), on the
+        designs ``cols`` only when given ((samples, len(cols)))."""
+        return self.quantities((name,), vals, cols)[0]
+
+    def quantities(
+        self,
+        names: tuple[str, ...],
+        vals: Mapping[str, np.ndarray],
+        cols: np.ndarray | None = None,
+    ) -> list[np.ndarray]:
+        """:meth:`quantity` of several quantities, the normalised deviations computed once."""
+        sel: Any = slice(None) if cols is None else cols
         pos = list(self.anchor)
         k = len(pos)
-        t = [np.log(vals[p] / self.anchor[p]) / self.h[p] for p in pos]
-        out = np.broadcast_to(self.coef[r, 0], t[0].shape).copy()
-        for i in range(k):
-            out += self.coef[r, 1 + i] * t[i]  # (F1), degree 1
+        t = [np.log(vals[p][:, sel] / self.anchor[p][sel]) / self.h[p][sel] for p in pos]
         terms = monomials(k, EDGE_DEGREE)
         n2 = len(monomials(k, 2))
-        for j, e in enumerate(terms[k + 1 : n2], start=k + 1):  # (F1), degree 2
-            i1, i2 = [i for i, ei in enumerate(e) for _ in range(ei)]
-            out += self.coef[r, j] * (t[i1] * t[i2])
-        cols = np.flatnonzero(self.edge)
-        if cols.size:  # (F1), degrees 3 .. EDGE_DEGREE, on the designs fitted with them
-            tc = [ti[:, cols] for ti in t]
-            extra = np.zeros(tc[0].shape)
-            for j, e in enumerate(terms[n2:], start=n2):
-                m = np.broadcast_to(self.coef[r, j, cols], tc[0].shape).copy()
-                for i in [i for i, ei in enumerate(e) for _ in range(ei)]:
-                    m *= tc[i]
-                extra += m
-            out[:, cols] += extra
-        return out
+        pairs = [t[i1] * t[i2] for i1, i2 in itertools.combinations_with_replacement(range(k), 2)]
+        ecols = np.flatnonzero(self.edge[sel])
+        outs = []
+        for name in names:
+            coef = self.coef[QUANTITIES.index(name)][:, sel]  # (T, c')
+            out = np.broadcast_to(coef[0], t[0].shape).copy()
+            for i in range(k):
+                out += coef[1 + i] * t[i]  # (F1), degree 1
+            for j, tt in enumerate(pairs, start=k + 1):  # (F1), degree 2
+                out += coef[j] * tt
+            if ecols.size:  # (F1), degrees 3 .. EDGE_DEGREE, on the designs fitted with them
+                tc = [ti[:, ecols] for ti in t]
+                extra = np.zeros(tc[0].shape)
+                for j, e in enumerate(terms[n2:], start=n2):
+                    m = np.broadcast_to(coef[j, ecols], tc[0].shape).copy()
+                    for i in [i for i, ei in enumerate(e) for _ in range(ei)]:
+                        m *= tc[i]
+                    extra += m
+                out[:, ecols] += extra
+            outs.append(out)
+        return outs
 
 
 def point_quantities(
@@ -207,10 +249,11 @@ def point_quantities(
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """The fitted quantities at evaluated points, and what the checks need.
 
-    Returns ``(off_f, off_m, score, good, saturated)``: ``off_f`` NaN where the board
-    does not start; ``score`` the bursting score of the module docstring (NaN where the
-    board does not start or the steady state was not found); ``good``: starts and a
-    steady state was found; ``saturated``: good and overdriven.
+    Returns ``(off_f, off_m, steady, good, saturated)``: ``off_f`` NaN where the board
+    does not start; ``steady`` (:data:`HURWITZ`, *shape) the conditions of
+    :data:`STEADY` (module docstring; NaN where the board does not start or the steady
+    state was not found); ``good``: starts and a steady state was found; ``saturated``:
+    good and overdriven.
     """
     with np.errstate(divide="ignore", invalid="ignore"):
         off_f = np.log(st.f_hz) - np.log(lin_f)
@@ -219,18 +262,19 @@ def point_quantities(
         saturated = good & st.overdriven
         t_relax = (params.r_e or 0.0) * (params.c_e or 0.0) / SATURATED_BURST
         relax = np.log(t_relax / st.startup_time_s)  # > 0: R_E·C_E > SATURATED_BURST·t_up
-        rate = st.envelope_rate / (TWO_PI * st.f_hz)  # > 0: the envelope grows
-        score = np.where(saturated, relax, rate)
-    score = np.where(good, score, np.nan)
+    steady = np.moveaxis(np.asarray(st.envelope_hurwitz, dtype=float), -1, 0).copy()
+    steady[:, saturated] = 1.0
+    steady[0][saturated] = -relax[saturated]
+    steady[:, ~good] = np.nan
     off_f = np.where(good, off_f, np.nan)
-    return off_f, off_m, score, good, saturated
+    return off_f, off_m, steady, good, saturated
 
 
 @dataclass(frozen=True)
 class _Points:
     """The models at points t (P, k) of the boxes of c designs."""
 
-    q: np.ndarray  # (3, P, c)
+    q: np.ndarray  # (Q, P, c)
     ok: np.ndarray  # (c,): the consistency checks of the module docstring hold
     good: np.ndarray  # (P, c)
     sat: np.ndarray  # (P, c)
@@ -253,12 +297,12 @@ def _evaluate(
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         lin = loaded_response(topology, bv, parasitics.stray, params)
         st = state(topology, bv, parasitics.stray, params)
-    off_f, off_m, score, good, sat = point_quantities(lin.f_hz, lin.margin, st, params)
+    off_f, off_m, steady, good, sat = point_quantities(lin.f_hz, lin.margin, st, params)
     with np.errstate(invalid="ignore"):
         ok = np.all(st.starts == (st.margin > 1.0), axis=0)
-        ok &= np.all(~good | (st.bursting == (score > 0.0)), axis=0)
+        ok &= np.all(~good | (st.bursting == ~np.all(steady > 0.0, axis=0)), axis=0)
         ok &= np.all(np.isfinite(off_m), axis=0)
-    return _Points(np.stack([off_f, off_m, score]), ok, good, sat)
+    return _Points(np.concatenate([off_f[None], off_m[None], steady]), ok, good, sat)
 
 
 def _least_squares(a_mat: np.ndarray, q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -309,9 +353,9 @@ def fit_boards(
     c = len(anchor[pos[0]])
     terms = monomials(k, EDGE_DEGREE)
     coef = np.zeros((len(QUANTITIES), len(terms), c))
-    band = np.zeros(c)
-    # stage 1: the centre, ±1 along each axis and +1 along each pair of axes; (F1) with
-    # d = 2 (exactly determined where every point is finite)
+    band = np.zeros((len(STEADY), c))
+    # stage 1: the centre, ±1 along each axis, +1 along each pair of axes and the corners;
+    # (F1) with d = 2 by least squares
     corners = np.array(list(itertools.product((-1.0, 1.0), repeat=k)))
     t1 = np.vstack(
         [np.zeros(k), np.repeat(np.eye(k), 2, axis=0) * np.tile([1.0, -1.0], k)[:, None]]
@@ -323,21 +367,26 @@ def fit_boards(
     a1 = _basis(t1, terms[:n2])
     sol, enough = _least_squares(a1, s1.q)
     coef[:, :n2] = np.swapaxes(sol, 1, 2)
-    resid1 = _residual(a1, s1.q, sol)[2]  # the quadratic's miss of the score at its points
+    resid1 = _residual(a1, s1.q, sol)[2:]  # the quadratics' miss of the conditions (B, c)
     ok = s1.ok & s1.good[0]
     sat0 = s1.sat[0]
     same = np.all(~s1.good | (s1.sat == sat0[None, :]), axis=0)
     with np.errstate(invalid="ignore"):
-        # the quadratic score's range over a grid of the box, widened by EDGE_SAFETY times
-        # its own width: stage 2 where zero lies in it
+        # each condition's quadratic over a grid of the box, widened by EDGE_SAFETY times
+        # its own width and BAND_FACTOR times its residual: proven positive (or negative)
+        # over the box where that range stays on one side of zero and so do the points
         grid = np.array(list(itertools.product(np.linspace(-1.0, 1.0, 5), repeat=k)))
-        on_grid = _basis(grid, terms[:n2]) @ coef[2, :n2]  # (G, c)
-        s_lo, s_hi = on_grid.min(axis=0), on_grid.max(axis=0)
+        on_grid = np.einsum("gt,btc->bgc", _basis(grid, terms[:n2]), coef[2:, :n2])
+        s_lo, s_hi = on_grid.min(axis=1), on_grid.max(axis=1)  # (B, c)
         pad = EDGE_SAFETY * (s_hi - s_lo) + BAND_FACTOR * resid1
-        sign_mixed = np.any(s1.q[2] > 0, axis=0) & np.any(s1.q[2] <= 0, axis=0)
-        edge = sign_mixed | ~((s_lo - pad > 0.0) | (s_hi + pad <= 0.0))
+        q_pts = s1.q[2:]  # (B, P, c)
+        positive = (s_lo - pad > 0.0) & np.all(q_pts > 0.0, axis=1)
+        negative = (s_hi + pad <= 0.0) & np.all(q_pts <= 0.0, axis=1)
+        bursts = np.any(negative, axis=0)
+        edge = ~(np.all(positive, axis=0) | bursts)
     edge |= ~enough | ~np.all(np.isfinite(s1.q), axis=(0, 1))
     edge &= ok
+    live = ~positive
     e = np.flatnonzero(edge)
     if e.size:  # stage 2: degree EDGE_DEGREE by least squares
         n_pts = int(np.ceil(EDGE_POINTS * len(terms)))
@@ -351,15 +400,14 @@ def fit_boards(
             params,
             state,
         )
-        qa = np.concatenate([s1.q[:, :, e], s2.q], axis=1)  # (3, P, n_e)
+        qa = np.concatenate([s1.q[:, :, e], s2.q], axis=1)  # (Q, P, n_e)
         a_mat = _basis(np.vstack([t1, extra]), terms)
         sol, enough2 = _least_squares(a_mat, qa)
-        band[e] = BAND_FACTOR * _residual(a_mat, qa, sol)[2]
+        band[:, e] = BAND_FACTOR * _residual(a_mat, qa, sol)[2:]
         coef[:, :, e] = np.swapaxes(sol, 1, 2)
         good = np.concatenate([s1.good[:, e], s2.good], axis=0)
         sat = np.concatenate([s1.sat[:, e], s2.sat], axis=0)
         ok[e] &= s2.ok & enough2
         same[e] &= np.all(~good | (sat == sat0[e][None, :]), axis=0)
     ok &= same & (edge | enough)
-    ok &= same
-    return BoardFit(anchor, h, coef, edge, band, ok)
+    return BoardFit(anchor, h, coef, edge, band, live, bursts & ~edge, ok)

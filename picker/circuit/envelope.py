@@ -56,7 +56,7 @@ from picker.circuit.large_signal import compression
 from picker.circuit.network import Network
 from picker.circuit.stages.base import BiasLoop, Stage
 
-__all__ = ["SATURATED_BURST", "bursting", "slow_network", "startup_time"]
+__all__ = ["HURWITZ", "SATURATED_BURST", "bursting", "hurwitz_conditions", "slow_network", "startup_time"]
 
 #: A saturated board bursts when its emitter time constant R_E·C_E exceeds this many
 #: start-up times. An empirical threshold, fitted on a development set of 24 random
@@ -66,6 +66,49 @@ __all__ = ["SATURATED_BURST", "bursting", "slow_network", "startup_time"]
 SATURATED_BURST = 120.0
 
 _POINTS = 48  # quadrature points of the start-up integral
+#: Routh-Hurwitz conditions kept per board (:func:`hurwitz_conditions`): the Jacobian of
+#: (E1)-(E2) is at most 5 × 5 (the amplitude and four DC nodes).
+HURWITZ = 5
+#: A board bursts when an eigenvalue's real part exceeds this many times k (:func:`bursting`).
+_BURST_RATE = 1e-6
+
+
+def hurwitz_conditions(m: np.ndarray) -> np.ndarray:
+    """Routh-Hurwitz conditions of stacked real matrices ``m`` (N, n, n), n ≤
+    :data:`HURWITZ`: an (N, :data:`HURWITZ`) array whose entries are all positive exactly
+    when every eigenvalue of the matrix has a negative real part.
+
+    The characteristic polynomial det(sI − m) = s^n + a_1·s^(n−1) + … + a_n by the
+    Leverrier-Faddeev recursion B_1 = I, a_k = −tr(m·B_k)/k, B_(k+1) = m·B_k + a_k·I
+    (Gantmacher, *The Theory of Matrices*, vol. 1, 1959, ch. IV §4). The Routh-Hurwitz
+    criterion (Gantmacher, vol. 2, ch. XV §6): every root lies in the open left
+    half-plane if and only if the leading principal minors Δ_1 … Δ_n of the Hurwitz
+    matrix H_ij = a_(2j−i) (a_0 = 1, a_k = 0 outside 0 … n) are positive. As
+    Δ_n = a_n·Δ_(n−1), the conditions returned are Δ_1 … Δ_(n−1) and a_n, padded
+    with 1. Unlike the largest real part of the eigenvalues (which bends sharply where
+    two eigenvalues meet), these are polynomials in the matrix's entries, so smooth
+    functions of the board's part values. Products per element by einsum.
+    """
+    count, n, _ = m.shape
+    eye = np.broadcast_to(np.eye(n), m.shape)
+    a = np.zeros((count, n + 1))
+    a[:, 0] = 1.0
+    b = eye.copy()
+    for k in range(1, n + 1):
+        mb = np.einsum("nij,njk->nik", m, b)
+        a[:, k] = -np.einsum("nii->n", mb) / k
+        b = mb + a[:, k, None, None] * eye
+    hur = np.zeros((count, n, n))
+    for i in range(n):
+        for j in range(n):
+            e = 2 * (j + 1) - (i + 1)
+            if 0 <= e <= n:
+                hur[:, i, j] = a[:, e]
+    out = np.ones((count, HURWITZ))
+    for i in range(1, n):
+        out[:, i - 1] = np.linalg.det(hur[:, :i, :i])
+    out[:, n - 1] = a[:, n]
+    return out
 
 
 def slow_network(
@@ -134,15 +177,18 @@ def bursting(
     c_star: np.ndarray,
     ratio: np.ndarray,
     w: np.ndarray,
-) -> tuple[np.ndarray, np.ndarray]:
-    """(bursting, largest real part of the eigenvalues, 1/s) of the envelope equation
-    (E1) coupled with the bias network's DC nodes (E2) at the steady state (drive ``a``,
-    bias shift ``dv``); partial derivatives of the device by central differences, the
-    eigenvalues by ``numpy.linalg.eigvals`` over the stack of Jacobians."""
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(bursting, largest real part of the eigenvalues, 1/s, Routh-Hurwitz conditions) of
+    the envelope equation (E1) coupled with the bias network's DC nodes (E2) at the steady
+    state (drive ``a``, bias shift ``dv``); partial derivatives of the device by central
+    differences, the eigenvalues by ``numpy.linalg.eigvals`` over the stack of Jacobians.
+    A board bursts where the largest real part exceeds 10⁻⁶·k; the conditions
+    (:func:`hurwitz_conditions` of (J − 10⁻⁶·k·I)/|k|, shape (n, :data:`HURWITZ`)) are all
+    positive exactly where it does not."""
     stage, params, ss = net.stage, net.params, net.ss
     n = a.size
     if n == 0 or math.isinf(loop.r_dc):  # the mean current is held: no slow bias state
-        return np.zeros(n, dtype=bool), np.full(n, -np.inf)
+        return np.zeros(n, dtype=bool), np.full(n, -np.inf), np.ones((n, HURWITZ))
     h_u, h_v = 1e-4, 1e-6
 
     def at(du: float, ddv: float) -> tuple[np.ndarray, np.ndarray]:
@@ -173,9 +219,13 @@ def bursting(
     jac[:, 1:, :] = np.linalg.solve(cr, rhs)
     ok = np.all(np.isfinite(jac), axis=(1, 2))
     lam = np.full(n, np.nan)
+    hur = np.full((n, HURWITZ), np.nan)
     if ok.any():
         lam[ok] = np.linalg.eigvals(jac[ok]).real.max(axis=1)
-    return ok & (lam > 1e-6 * k), lam
+        kk = k[ok][:, None, None]
+        shifted = (jac[ok] - _BURST_RATE * kk * np.eye(r + 1)) / np.abs(kk)
+        hur[ok] = hurwitz_conditions(shifted)
+    return ok & (lam > _BURST_RATE * k), lam, hur
 
 
 def startup_time(

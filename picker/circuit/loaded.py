@@ -85,7 +85,14 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.board_fit import EDGE_DEGREE, QUANTITIES, BoardFit, fit_boards, monomials
+from picker.circuit.board_fit import (
+    EDGE_DEGREE,
+    QUANTITIES,
+    STEADY,
+    BoardFit,
+    fit_boards,
+    monomials,
+)
 from picker.circuit.network import LoadedResponse
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.steady import SteadyState, steady_state
@@ -469,7 +476,8 @@ class LoadedModel:
             one = {p: np.ones(n) for p in pos}
             z = np.zeros((len(QUANTITIES), len(monomials(len(pos), EDGE_DEGREE)), n))
             no = np.zeros(n, dtype=bool)
-            return BoardFit(designs.values(pb), one, z, no, np.zeros(n), no)
+            b = np.zeros((len(STEADY), n))
+            return BoardFit(designs.values(pb), one, z, no, b, b > 0, no, no)
         lo = {p: vals[p].min(axis=0) for p in pos}
         hi = {p: vals[p].max(axis=0) for p in pos}
         box = np.stack([lo[p] for p in pos] + [hi[p] for p in pos], axis=1)
@@ -487,15 +495,7 @@ class LoadedModel:
             )
             for j, i in enumerate(missing):
                 self._fits[keys[i]] = got.take(slice(j, j + 1))
-        parts = [self._fits[key] for key in keys]
-        return BoardFit(
-            {p: np.concatenate([f.anchor[p] for f in parts]) for p in pos},
-            {p: np.concatenate([f.h[p] for f in parts]) for p in pos},
-            np.concatenate([f.coef for f in parts], axis=2),
-            np.concatenate([f.edge for f in parts]),
-            np.concatenate([f.band for f in parts]),
-            np.concatenate([f.ok for f in parts]),
-        )
+        return BoardFit.concat([self._fits[key] for key in keys])
 
     def fit_summary(self) -> dict[str, int]:
         """How the cached board fits went: ``fitted`` (design and box pairs), ``edge``
@@ -659,12 +659,11 @@ class LoadedModel:
             with np.errstate(divide="ignore", invalid="ignore"):
                 ln_f[near] = np.log(f_l) + off_f[near]
                 ln_m[near] = np.log(m_l) + off_m[near]
-        score = fit.quantity("score", vals)
+        burst, unsure = self._bursts(vals, fit)
         with np.errstate(invalid="ignore", over="ignore"):
-            counts = (ln_m > 0.0) & (ln_m <= top) & ~(score > 0.0)
+            counts = (ln_m > 0.0) & (ln_m <= top) & ~burst
             ok = counts & (ln_f >= lo) & (ln_f <= hi)
-        unsure = np.abs(score) < fit.band  # (A3) undecided: the large-signal model itself
-        if unsure.any():
+        if unsure.any():  # (A3) undecided: the large-signal model itself
             f_u, m_u, ok[unsure] = self._full({p: vals[p][unsure] for p in topo.positions})
             counts[unsure] = np.isfinite(f_u)
             with np.errstate(divide="ignore", invalid="ignore"):
@@ -674,6 +673,33 @@ class LoadedModel:
             return nan, nan, ok
         with np.errstate(over="ignore"):
             return np.where(counts, np.exp(ln_f), np.nan), np.exp(ln_m), ok
+
+    @staticmethod
+    def _bursts(vals: Mapping[str, np.ndarray], fit: BoardFit) -> tuple[np.ndarray, np.ndarray]:
+        """(A3) on every board: (bursts, undecided), each (samples, c). The designs the fit
+        decides for the whole box take its verdict; on the others (``fit.edge``) a board
+        bursts where a fitted condition of :data:`picker.circuit.board_fit.STEADY` lies
+        below minus its band, runs steady where every live one lies above its band, and is
+        undecided otherwise."""
+        shape = np.shape(next(iter(vals.values())))
+        burst = np.broadcast_to(fit.bursts, shape).copy()
+        unsure = np.zeros(shape, dtype=bool)
+        cols = np.flatnonzero(fit.edge)
+        if cols.size == 0:
+            return burst, unsure
+        live = fit.live[:, cols]
+        rows = [j for j in range(len(STEADY)) if live[j].any()]
+        sure_b = np.zeros((shape[0], cols.size), dtype=bool)
+        sure_s = np.ones((shape[0], cols.size), dtype=bool)
+        qs = fit.quantities(tuple(STEADY[j] for j in rows), vals, cols)
+        with np.errstate(invalid="ignore"):
+            for j, q in zip(rows, qs, strict=True):
+                band = fit.band[j, cols]
+                sure_b |= live[j] & (q < -band)
+                sure_s &= ~live[j] | (q > band)
+        burst[:, cols] = sure_b
+        unsure[:, cols] = ~sure_b & ~sure_s
+        return burst, unsure
 
     def __call__(self, vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
         if self.method == "full":

@@ -34,7 +34,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.envelope import SATURATED_BURST, bursting, startup_time
+from picker.circuit.envelope import HURWITZ, SATURATED_BURST, bursting, startup_time
 from picker.circuit.harmonic import harmonic_frequency
 from picker.circuit.junctions import junction_balance
 from picker.circuit.large_signal import loop_compression, solve_drive
@@ -82,6 +82,11 @@ class SteadyState:
     envelope_rate:
         largest real part of the eigenvalues of the envelope-and-bias equations at the
         steady state, 1/s (positive: bursting; NaN where it does not start).
+    envelope_hurwitz:
+        the Routh-Hurwitz conditions of those equations
+        (:func:`picker.circuit.envelope.hurwitz_conditions`), all positive exactly where
+        the board out of saturation runs steady; smooth in the part values, unlike
+        ``envelope_rate``; shape ``values.shape + (HURWITZ,)``, NaN where unknown.
     """
 
     starts: np.ndarray
@@ -96,6 +101,7 @@ class SteadyState:
     peak_current_a: np.ndarray
     dissipation_w: np.ndarray
     envelope_rate: np.ndarray
+    envelope_hurwitz: np.ndarray
 
     @property
     def runs(self) -> np.ndarray:
@@ -139,6 +145,7 @@ def steady_state(
         "peak_current_a": np.full(n, np.nan),
         "dissipation_w": np.full(n, np.nan),
         "envelope_rate": np.full(n, np.nan),
+        "envelope_hurwitz": np.full((n, HURWITZ), np.nan),
     }
     for a in range(0, n, CHUNK):
         _chunk(net, np.arange(a, min(a + CHUNK, n)), out)
@@ -186,7 +193,7 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     r_e_dc = loop.r_e * (1.0 + 1.0 / loop.beta)
     v_out = loop.v_out - (cur.mean - loop.i_rest) * (loop.r_out + r_e_dc)
     p_dev = v_out * cur.mean - 0.5 * a * ratio * c_star * ss.gm * a
-    burst, lam = bursting(net, sub, loop, a, drive.dv, k, c_star, ratio, w)
+    burst, lam, hur = bursting(net, sub, loop, a, drive.dv, k, c_star, ratio, w)
     # the bias settling time the start-up time compares with: R_E·C_E and the input
     # node's DC capacitance through R_th (:func:`picker.circuit.envelope.startup_time`)
     s_lo = 1e-3j * w
@@ -229,4 +236,5 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     relax = loop.r_e * loop.c_e > SATURATED_BURST * t_up
     out["bursting"][sub] = np.where(drive.saturated, relax, burst) & good
     out["envelope_rate"][sub] = np.where(good, lam, np.nan)
+    out["envelope_hurwitz"][sub] = np.where(good[:, None], hur, np.nan)
     out["startup_time_s"][sub] = np.where(good, t_up, np.nan)
