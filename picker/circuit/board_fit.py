@@ -106,7 +106,7 @@ MIN_STEP = 1e-7
 #: Stage 2 runs unless the quadratic score stays this many times its own range over the
 #: box away from zero (the quadratic misses the score by up to about a fifth of its range
 #: on the designs measured, see the module docstring).
-EDGE_SAFETY = 0.5
+EDGE_SAFETY = 0.1
 #: Stage 2's points: this many times its number of terms.
 EDGE_POINTS = 2.5
 #: Stage 2's degree.
@@ -221,26 +221,31 @@ class BoardFit:
         t = [np.log(vals[p][:, sel] / self.anchor[p][sel]) / self.h[p][sel] for p in pos]
         terms = monomials(k, EDGE_DEGREE)
         n2 = len(monomials(k, 2))
-        pairs = [t[i1] * t[i2] for i1, i2 in itertools.combinations_with_replacement(range(k), 2)]
+        coefs = [self.coef[QUANTITIES.index(name)][:, sel] for name in names]  # (T, c')
+        outs = [np.broadcast_to(c[0], t[0].shape).copy() for c in coefs]
+        tmp = np.empty(t[0].shape)
+
+        def add(m: np.ndarray, j: int) -> None:  # every quantity += its coefficient · m
+            for out, c in zip(outs, coefs, strict=True):
+                np.multiply(m, c[j], out=tmp)
+                out += tmp
+
+        for j, e in enumerate(terms[1:n2], start=1):  # (F1), degrees 1 and 2
+            ix = [i for i, ei in enumerate(e) for _ in range(ei)]
+            add(t[ix[0]] if len(ix) == 1 else t[ix[0]] * t[ix[1]], j)
         ecols = np.flatnonzero(self.edge[sel])
-        outs = []
-        for name in names:
-            coef = self.coef[QUANTITIES.index(name)][:, sel]  # (T, c')
-            out = np.broadcast_to(coef[0], t[0].shape).copy()
-            for i in range(k):
-                out += coef[1 + i] * t[i]  # (F1), degree 1
-            for j, tt in enumerate(pairs, start=k + 1):  # (F1), degree 2
-                out += coef[j] * tt
-            if ecols.size:  # (F1), degrees 3 .. EDGE_DEGREE, on the designs fitted with them
-                tc = [ti[:, ecols] for ti in t]
-                extra = np.zeros(tc[0].shape)
-                for j, e in enumerate(terms[n2:], start=n2):
-                    m = np.broadcast_to(coef[j, ecols], tc[0].shape).copy()
-                    for i in [i for i, ei in enumerate(e) for _ in range(ei)]:
-                        m *= tc[i]
-                    extra += m
-                out[:, ecols] += extra
-            outs.append(out)
+        if ecols.size:  # (F1), degrees 3 .. EDGE_DEGREE, on the designs fitted with them
+            tc = [ti[:, ecols] for ti in t]
+            extra = [np.zeros(tc[0].shape) for _ in names]
+            for j, e in enumerate(terms[n2:], start=n2):
+                ix = [i for i, ei in enumerate(e) for _ in range(ei)]
+                m = tc[ix[0]] * tc[ix[1]]
+                for i in ix[2:]:
+                    m *= tc[i]
+                for x, c in zip(extra, coefs, strict=True):
+                    x += m * c[j, ecols]
+            for out, x in zip(outs, extra, strict=True):
+                out[:, ecols] += x
         return outs
 
 
@@ -359,7 +364,6 @@ def fit_boards(
     corners = np.array(list(itertools.product((-1.0, 1.0), repeat=k)))
     t1 = np.vstack(
         [np.zeros(k), np.repeat(np.eye(k), 2, axis=0) * np.tile([1.0, -1.0], k)[:, None]]
-        + [np.eye(k)[i] + np.eye(k)[j] for i, j in itertools.combinations(range(k), 2)]
         + [corners]
     )
     s1 = _evaluate(topology, t1, anchor, h, parasitics, params, state)

@@ -56,7 +56,14 @@ from picker.circuit.large_signal import compression
 from picker.circuit.network import Network
 from picker.circuit.stages.base import BiasLoop, Stage
 
-__all__ = ["HURWITZ", "SATURATED_BURST", "bursting", "hurwitz_conditions", "slow_network", "startup_time"]
+__all__ = [
+    "HURWITZ",
+    "SATURATED_BURST",
+    "bursting",
+    "hurwitz_conditions",
+    "slow_network",
+    "startup_time",
+]
 
 #: A saturated board bursts when its emitter time constant R_E·C_E exceeds this many
 #: start-up times. An empirical threshold, fitted on a development set of 24 random

@@ -99,9 +99,10 @@ def bias_shift(
     """
     a = np.asarray(a, dtype=float)
     lo, hi = -a - 0.1, np.zeros_like(a)
+    mean = stage.mean_current(params, ss, a)
     for _ in range(_BIAS_STEPS):
         mid = 0.5 * (lo + hi)
-        i = stage.device_currents(params, ss, mid, a).mean - loop.i_rest
+        i = mean(mid) - loop.i_rest
         f = i if math.isinf(loop.r_dc) else mid + loop.r_dc * i
         up = f > 0
         lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)

@@ -43,7 +43,7 @@ fast closed form agrees with the generic nodal solver, and the netlist of
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, replace
 from typing import Any, ClassVar
 
@@ -317,6 +317,15 @@ class Stage:
         mean, harmonics 1-3 and peak (:class:`DeviceCurrents`), arrays of the broadcast
         shape of ``dv`` and ``a``."""
         raise NotImplementedError
+
+    def mean_current(
+        self, params: AmplifierParams, ss: SmallSignal, a: np.ndarray
+    ) -> Callable[[np.ndarray], np.ndarray]:
+        """ΔV ↦ the mean of :meth:`device_currents` (ΔV, ``a``) at the fixed drive ``a``:
+        what the bias shift's bisection evaluates forty times per drive. A stage may
+        compute once what does not depend on ΔV; the value must equal
+        ``device_currents(params, ss, dv, a).mean`` bit for bit."""
+        return lambda dv: self.device_currents(params, ss, dv, a).mean
 
     def output_current(self, params: AmplifierParams, ss: SmallSignal, v: np.ndarray) -> np.ndarray:
         """The device's output current at control voltage V_rest + ``v`` (V, any shape), A:

@@ -373,6 +373,23 @@ class CommonEmitter(Stage):
             peak=scale,
         )
 
+    def mean_current(
+        self, params: AmplifierParams, ss: SmallSignal, a: np.ndarray
+    ) -> Callable[[np.ndarray], np.ndarray]:
+        """The mean of :meth:`device_currents`, I_rest·e^{ΔV/V_T + x}·I0e(x) (A&S 9.6.34),
+        with I0e(x) computed once for the drive; the same operations in the same order, so
+        the same bits. A subclass with another device law falls back to the base class."""
+        if type(self).device_currents is not CommonEmitter.device_currents:
+            return super().mean_current(params, ss, a)
+        vt = thermal_voltage(params.temperature_c)
+        x = np.asarray(a, dtype=float) / vt
+        b0 = i0e(x)
+
+        def mean(dv: np.ndarray) -> np.ndarray:
+            return ss.i_dc * np.exp(np.asarray(dv, dtype=float) / vt + x) * b0
+
+        return mean
+
     def output_current(self, params: AmplifierParams, ss: SmallSignal, v: np.ndarray) -> np.ndarray:
         """i_C = I_rest·exp(v/V_T) (equation (D1) without the Early factor)."""
         vt = thermal_voltage(params.temperature_c)
