@@ -24,6 +24,7 @@ import numpy as np
 from picker import api
 from picker.circuit.loaded import LoadedModel
 from picker.circuit.loaded_search import loaded_search
+from picker.core.conditional import default_workers
 from picker.core.montecarlo import Simulation, count_passing, sampled_values
 from picker.core.sampling import head
 from picker.core.search import Designs
@@ -48,8 +49,13 @@ def designs_and_simulation(designs: int = 200) -> tuple[Simulation, Designs, api
     return sim, ls.designs.take(np.sort(order)), spec
 
 
-def main(designs: int = 200, samples: int = 20_000, full_samples: int = 40) -> dict[str, float]:
-    """Time the fast path and the per-board large-signal model; returns the figures."""
+def main(
+    designs: int = 200, samples: int = 20_000, full_samples: int = 40, workers: int | None = None
+) -> dict[str, float]:
+    """Time the fast path (``workers`` threads, default
+    :func:`picker.core.conditional.default_workers`) and the per-board large-signal model;
+    returns the figures."""
+    workers = default_workers() if workers is None else workers
     load = os.getloadavg()[0]
     sim, d, spec = designs_and_simulation(designs)
     pb = sim.problem
@@ -60,7 +66,7 @@ def main(designs: int = 200, samples: int = 20_000, full_samples: int = 40) -> d
         pb,
         sim.parts,
         sim.temperatures,
-        LoadedModel(pb, model.params, "surrogate", model.max_margin),
+        LoadedModel(pb, model.params, "surrogate", model.max_margin, workers=workers),
     )
     t, c = time.perf_counter(), time.process_time()
     passed = count_passing(fresh, d, u)
@@ -78,16 +84,19 @@ def main(designs: int = 200, samples: int = 20_000, full_samples: int = 40) -> d
     c_full = (time.process_time() - c) * samples / full_samples
     got = LoadedModel(pb, model.params, "surrogate", model.max_margin)(vals, d)
     differ = int((got != ref).sum())
+    gap = float(np.abs(got.mean(axis=0) - ref.mean(axis=0)).max())
     print(
-        f"loaded yield, {len(d)} designs x {samples:,} boards: {t_fast:.2f} s wall, {c_fast:.2f} s CPU (target <= 3 s); "
-        f"large-signal model on every board of the same designs: {t_full:.0f} s wall, {c_full:.0f} s CPU "
-        f"(timed on {full_samples} boards per design, scaled); "
-        f"{summary['edge']} designs fitted to degree 4 near the burst edge, {summary['full']} "
-        f"on the full model; load average {load:.1f}"
+        f"loaded yield, {len(d)} designs x {samples:,} boards: {t_fast:.2f} s wall, "
+        f"{c_fast:.2f} s CPU, {workers} worker(s) (target <= 3 s); large-signal model on every "
+        f"board of the same designs: {t_full:.0f} s wall, {c_full:.0f} s CPU (timed on "
+        f"{full_samples} boards per design, scaled), {t_full / t_fast:,.0f}x the fast path's "
+        f"wall time; {summary['edge']} designs fitted to degree 4 near the burst edge, "
+        f"{summary['full']} on the full model; load average {load:.1f}"
     )
     print(
         f"on the slice ({full_samples} x {len(d)} boards): {differ} boards decided otherwise "
-        f"than the per-board model; mean yield {passed.mean() / samples:.4f}"
+        f"than the per-board model, largest yield difference of a design {gap:.4f}; "
+        f"mean yield {passed.mean() / samples:.4f}"
     )
     return {
         "fast_seconds": t_fast,
@@ -95,6 +104,8 @@ def main(designs: int = 200, samples: int = 20_000, full_samples: int = 40) -> d
         "full_seconds": t_full,
         "full_cpu": c_full,
         "differ": differ,
+        "gap": gap,
+        "workers": workers,
         "load": load,
     }
 
@@ -104,5 +115,6 @@ if __name__ == "__main__":
     ap.add_argument("--designs", type=int, default=200)
     ap.add_argument("--samples", type=int, default=20_000)
     ap.add_argument("--full-samples", type=int, default=40)
+    ap.add_argument("--workers", type=int, default=None)
     a = ap.parse_args()
-    main(a.designs, a.samples, a.full_samples)
+    main(a.designs, a.samples, a.full_samples, a.workers)

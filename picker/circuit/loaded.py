@@ -79,6 +79,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Any
 
@@ -363,7 +364,8 @@ class LoadedModel:
     [f_min, f_max]. ``method`` "surrogate" uses the approximation (A1)-(A3) of the
     module docstring with (S1)-(S3) for the linear spread, the surrogate cached by the
     design's index tuple, the board fit by the design and its boards' box; "full" runs
-    the large-signal model on every board.
+    the large-signal model on every board. ``workers`` threads share the designs of a
+    board fit (the result is the same bit for bit with any number).
     :meth:`frequencies` gives the same boards' steady frequencies (the histogram and
     the spread drivers), :meth:`sensitivities` their first-order sensitivities.
     """
@@ -374,6 +376,7 @@ class LoadedModel:
         params: AmplifierParams,
         method: str = "surrogate",
         max_margin: float | None = None,
+        workers: int = 1,
     ) -> None:
         if method not in METHODS:
             raise ValueError(f"method must be one of {METHODS}, got {method!r}")
@@ -381,6 +384,7 @@ class LoadedModel:
         self.params = params
         self.method = method
         self.max_margin = max_margin
+        self.workers = max(1, workers)
         self._cache: dict[tuple[int, ...], np.ndarray] = {}
         self._nominal: dict[tuple[int, ...], tuple[bool, float, float]] = {}
         self._fits: dict[tuple[tuple[int, ...], bytes], BoardFit] = {}
@@ -484,15 +488,25 @@ class LoadedModel:
         keys = [(d, b.tobytes()) for d, b in zip(self._keys(designs), box, strict=True)]
         missing = [i for i, key in enumerate(keys) if key not in self._fits]
         if missing:
-            sel = np.asarray(missing)
-            got = fit_boards(
-                pb.topology,
-                {p: lo[p][sel] for p in pos},
-                {p: hi[p][sel] for p in pos},
-                pb.parasitics,
-                self.params,
-                state=_steady,
-            )
+
+            def run(sel: np.ndarray) -> BoardFit:
+                return fit_boards(
+                    pb.topology,
+                    {p: lo[p][sel] for p in pos},
+                    {p: hi[p][sel] for p in pos},
+                    pb.parasitics,
+                    self.params,
+                    state=_steady,
+                )
+
+            # each design is fitted on its own (every solver converges per element), so
+            # the designs may be shared between threads without changing a bit
+            shares = np.array_split(np.asarray(missing), min(self.workers, len(missing)))
+            if len(shares) > 1:
+                with ThreadPoolExecutor(max_workers=len(shares)) as pool:
+                    got = BoardFit.concat(list(pool.map(run, shares)))
+            else:
+                got = run(shares[0])
             for j, i in enumerate(missing):
                 self._fits[keys[i]] = got.take(slice(j, j + 1))
         return BoardFit.concat([self._fits[key] for key in keys])
