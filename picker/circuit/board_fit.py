@@ -12,51 +12,59 @@ source needed):
 
     q(t) ≈ Σ_α b_α·t^α,   |α| ≤ d                                                (F1)
 
-for three quantities q of the large-signal model, each measured *against the
+for the quantities q of the large-signal model, each measured *against the
 linear model* where that is what it corrects:
 
 - ``off_f`` = ln f_steady − ln f_linear (the steady state's pull on the frequency);
 - ``off_m`` = ln m_steady − ln m_linear (the Nyquist margin against the linear
   model's |T| at the zero-phase crossing);
-- ``score``, the bursting verdict as a continuous quantity, positive for a board that
-  bursts: the largest real part of the envelope-and-bias eigenvalues over ω
-  (:mod:`picker.circuit.envelope`, Lyapunov's indirect method) where the device stays
-  out of saturation, ln(R_E·C_E / (SATURATED_BURST·t_up)) where it saturates (the
-  relaxation rule of :data:`picker.circuit.envelope.SATURATED_BURST`).
+- ``steady_1`` … ``steady_5`` (:data:`STEADY`), the bursting verdict as continuous
+  quantities, all positive exactly where the board runs steady: where the device stays
+  out of saturation, the Routh-Hurwitz conditions of the envelope-and-bias Jacobian
+  (:func:`picker.circuit.envelope.hurwitz_conditions`, the field
+  ``envelope_hurwitz`` of :class:`picker.circuit.steady.SteadyState`); where it
+  saturates, −ln(R_E·C_E / (SATURATED_BURST·t_up)) (the relaxation rule of
+  :data:`picker.circuit.envelope.SATURATED_BURST`) and 1 for the rest. The
+  conditions are polynomials in the Jacobian's entries, so smooth across the box;
+  the largest real part of the eigenvalues, fitted before, bends sharply where two
+  eigenvalues meet (a square-root kink no polynomial follows), and on the loaded
+  benchmark (:mod:`picker.bench.loaded`) left 33,700 of 4,000,000 boards within its
+  band of the edge, to the large-signal model (134 with the conditions).
 
 Two stages per design:
 
-1. d = 2 by least squares from 1 + 2k + k(k − 1)/2 + 2^k points: the centre,
-   t_i = ±1 along each position, t_i = t_j = +1 for each pair and the 2^k corners of
-   the box. The corners are needed: without them (the quadratic exactly determined by
-   the other points) the drift test of tests/test_loaded.py counted two designs 59
-   and 48 boards of 3,000 too high, their bursting confined to unsampled (+, −)
-   corners (one a kink of the envelope eigenvalue, one a corner that leaves
-   saturation). The cross terms matter: on
-   a design of the demo ``colpitts_bjt.toml`` the frequency offset changes by 2e-3
-   in ln f across the ±5 % box; a quadratic without them misses it by 3e-5 (rms over
-   500 boards), with them by 1e-6.
-2. Where the bursting verdict may change inside the box (the score's sign differs
-   between the points, or the quadratic's range over a 5^k grid of the box, widened
-   on both sides by :data:`EDGE_SAFETY` times its width plus :data:`BAND_FACTOR`
-   times the quadratic's largest residual of the score at its points, holds zero) or
-   a stage-1 point does not start: d = :data:`EDGE_DEGREE` by least squares over
-   :data:`EDGE_POINTS` × the number of terms points (the stage-1 points and a
-   Halton sequence over the box; Halton 1960, Numer. Math. 2: radical
-   inverses in the first primes). The envelope's eigenvalue bends across the box,
-   with a kink where two eigenvalues trade places: on the demo's design with the
-   most bent score, least squares over 500 of its boards leave 1.4 % of them on the
-   wrong side of the burst edge with d = 2, 0.6 % with d = 3, none with d = 4.
+1. d = 2 by least squares from 1 + 2k + 2^k points: the centre, t_i = ±1 along each
+   position and the 2^k corners of the box (the corners fix the cross terms). The
+   corners are needed: without them (the quadratic exactly determined by the centre,
+   the axes and one point per pair) the drift test of tests/test_loaded.py counted two
+   designs 59 and 48 boards of 3,000 too high, their bursting confined to unsampled
+   (+, −) corners (one a kink of the envelope eigenvalue, one a corner that leaves
+   saturation). The cross terms matter: on a design of the demo ``colpitts_bjt.toml``
+   the frequency offset changes by 2e-3 in ln f across the ±5 % box; a quadratic
+   without them misses it by 3e-5 (rms over 500 boards), with them by 1e-6.
+2. Where the bursting verdict may change inside the box or a stage-1 point does not
+   start: d = :data:`EDGE_DEGREE` by least squares over :data:`EDGE_POINTS` × the
+   number of terms points (the stage-1 points and a Halton sequence over the box;
+   Halton 1960, Numer. Math. 2: radical inverses in the first primes). A condition is
+   proven positive (negative) over the box where it is so at every stage-1 point and
+   its quadratic's range over a 5^k grid of the box, widened on both sides by
+   :data:`EDGE_SAFETY` times its width plus :data:`BAND_FACTOR` times its largest
+   residual at the points, stays above (below) zero; a design whose conditions are
+   all proven positive runs steady on every board, one with a condition proven
+   negative bursts on every board, the others go to stage 2. On the benchmark's 32
+   designs that went there, the quadratic of a condition missed the degree-4 fit by
+   at most 1.4 % of the condition's range over a 9^3 grid of the box (median 0.8 %),
+   so :data:`EDGE_SAFETY` is seven times that.
 
-Where the score bends sharply (a kink where two envelope eigenvalues trade places is
-beyond any polynomial), the least squares leave residuals at their own points: the
-boards whose fitted score lies within :data:`BAND_FACTOR` times the largest of them
-of zero go through the large-signal model itself.
+On the stage-2 designs each board is decided by the fitted conditions that were not
+proven positive: it bursts where one lies below minus :data:`BAND_FACTOR` times that
+fit's largest residual at its own points, runs steady where all lie above it, and
+goes through the large-signal model itself in between.
 
 A design is fitted only where the fit can describe it: its box centre starts and
 runs without a numerical failure, every point that starts saturates alike (the
-score changes form across saturation), at every point "starts" agrees with
-"margin > 1" and "bursts" with "score > 0", and the least squares have at least as
+conditions change form across saturation), at every point "starts" agrees with
+"margin > 1" and "bursts" with "not every condition positive", and the least squares have at least as
 many finite points as terms. ``ok`` is False elsewhere, and
 :class:`picker.circuit.loaded.LoadedModel` runs the large-signal model on every
 board of those designs.
@@ -103,15 +111,15 @@ STEADY = tuple(f"steady_{i + 1}" for i in range(HURWITZ))
 QUANTITIES = ("off_f", "off_m", *STEADY)
 #: Smallest half-width (ln v) an axis is fitted over (a part without spread).
 MIN_STEP = 1e-7
-#: Stage 2 runs unless the quadratic score stays this many times its own range over the
-#: box away from zero (the quadratic misses the score by up to about a fifth of its range
-#: on the designs measured, see the module docstring).
+#: Stage 2 runs unless each condition's quadratic stays this many times its own range over
+#: the box away from zero (the quadratic misses the degree-4 fit by at most 1.4 % of the
+#: range on the designs measured, see the module docstring).
 EDGE_SAFETY = 0.1
 #: Stage 2's points: this many times its number of terms.
 EDGE_POINTS = 2.5
 #: Stage 2's degree.
 EDGE_DEGREE = 4
-#: The burst band: this many times the stage-2 fit's largest residual of the score.
+#: The burst band: this many times the stage-2 fit's largest residual of a condition.
 BAND_FACTOR = 2.0
 _PRIMES = (2, 3, 5, 7, 11, 13, 17, 19)
 

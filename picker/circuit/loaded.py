@@ -18,18 +18,21 @@ cautions, worst margin, the ``large_signal`` object) in :mod:`picker.circuit.fig
 
 The large-signal model per design, the linear model per board
 -------------------------------------------------------------
-The large-signal model costs one to a few milliseconds per board (2,500 to 3,700 s of
-CPU for 200 designs × 20,000 boards, measured by :mod:`picker.bench.loaded`), so by
+The large-signal model costs about half a millisecond to a few milliseconds per board
+(1,600 to 3,700 s of CPU for 200 designs × 20,000 boards, measured by
+:mod:`picker.bench.loaded`), so by
 default (``amplifier.monte_carlo = "surrogate"``) it runs only at a few points of the
 box the boards of each design span, and a polynomial carries it to every board
 (:mod:`picker.circuit.board_fit`, (F1) in t = ln(v/a)/h):
 
     ln f_steady(board) ≈ ln f_linear(board) + off_f(t)                        (A1)
     ln m(board)        ≈ ln m_linear(board) + off_m(t)                        (A2)
-    bursts(board)      ⇔ score(t) > 0                                         (A3)
+    bursts(board)      ⇔ min_j steady_j(t) ≤ 0                                (A3)
 
-off_f, off_m and score fitted per design: a quadratic from 1 + 2k + k(k − 1)/2 + 2^k
-points, raised to degree 4 by least squares where the burst edge may cross the box.
+off_f, off_m and the Routh-Hurwitz conditions steady_j of the envelope equations
+fitted per design: a quadratic from 1 + 2k + 2^k points, raised to degree 4 by least
+squares where the burst edge may cross the box; the boards within the degree-4 fit's
+residual band of the edge go through the large-signal model itself.
 The linear model itself carries the rest of the spread, through the expansions below.
 This is the issue's "large-signal model for the nominal offset, linear model for the
 spread", with the offset and the bursting verdict followed across the box instead of
@@ -640,7 +643,7 @@ class LoadedModel:
         ``want_f``) and pass mask by the approximation (module docstring): (S1)/(S2) of the
         linear model, then (S3) and the linear model itself on the boards within the
         surrogate's error band of an edge, plus the board fit's offsets (F1) and its
-        bursting score."""
+        bursting conditions (:meth:`_bursts`)."""
         pb = self.problem
         topo = pb.topology
         sur = self.surrogate(designs)
