@@ -23,7 +23,10 @@ maximum it runs for hours), once at the spec's default samples and once with
 process (its own peak, from ``os.wait4``), side by side in the same run. The
 Monte Carlo streams its boards in batches (:class:`picker.core.sampling.RandomRows`),
 so the two should be close; the drivers and the histogram use a bounded
-subsample of the run (:data:`picker.production.figures.EXTRAS_ROWS` rows).
+subsample of the run (:data:`picker.production.figures.EXTRAS_ROWS` rows). Beside
+them, the probe demo with ``--precision`` at a half-width so small it is never
+reached (:data:`TINY_PRECISION`: the option accepts any value above 0), so the
+top-up runs to ``[yield] max_samples``.
 
 Run: ``python -m picker.bench.memory [--quick] [--samples-max [N]] [--demo NAME]``.
 """
@@ -73,9 +76,15 @@ def demo_specs(names: list[str] | None = None) -> list[Path]:
     return out
 
 
-def command_peak(path: Path, samples: int | None) -> dict[str, Any]:
-    """Run ``picker solve PATH -f json [--samples N]`` in a child; its wall time and peak RSS."""
-    cmd = [sys.executable, "-m", "picker", "solve", str(path), "-f", "json"]
+#: ``--precision`` for the smallest-precision figure: the option accepts any half-width
+#: above 0, and one this small is never reached, so the run goes to ``[yield] max_samples``.
+TINY_PRECISION = "0.0001%"
+
+
+def command_peak(path: Path, samples: int | None, extra: tuple[str, ...] = ()) -> dict[str, Any]:
+    """Run ``picker solve PATH -f json [--samples N] [EXTRA]`` in a child; its wall time and
+    peak RSS."""
+    cmd = [sys.executable, "-m", "picker", "solve", str(path), "-f", "json", *extra]
     if samples is not None:
         cmd += ["--samples", str(samples)]
     t = time.perf_counter()
@@ -101,6 +110,15 @@ def samples_table(maximum: int, names: list[str] | None = None) -> None:
         print(
             f"  {path.stem:20s} {default:>9,} samples {a['rss_mb']:6.0f} MB ({a['seconds']:5.1f} s)"
             f"   {maximum:,} samples {b['rss_mb']:6.0f} MB ({b['seconds']:6.1f} s)",
+            flush=True,
+        )
+    probe = DEMOS / "probe_exciter.toml"
+    if names is None or probe.stem in names:
+        c = command_peak(probe, None, ("--precision", TINY_PRECISION))
+        cap = api.load_spec(probe).yield_.max_samples
+        print(
+            f"  {probe.stem:20s} --precision {TINY_PRECISION} (runs to max_samples, {cap:,} "
+            f"boards): {c['rss_mb']:6.0f} MB ({c['seconds']:5.1f} s) (target <= 500 MB)",
             flush=True,
         )
 
