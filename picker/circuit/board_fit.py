@@ -209,6 +209,41 @@ class BoardFit:
             np.concatenate([f.ok for f in parts]),
         )
 
+    @classmethod
+    def empty(cls, anchor: dict[str, np.ndarray]) -> BoardFit:
+        """A fit that describes none of the designs at ``anchor`` (no boards to span a box)."""
+        n = len(next(iter(anchor.values())))
+        z = np.zeros((len(QUANTITIES), len(monomials(len(anchor), EDGE_DEGREE)), n))
+        no = np.zeros(n, dtype=bool)
+        b = np.zeros((len(STEADY), n))
+        return cls(anchor, {p: np.ones(n) for p in anchor}, z, no, b, b > 0, no, no)
+
+    def verdicts(self, vals: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+        """(A3) of :mod:`picker.circuit.loaded` on every board: (bursts, undecided), each
+        (samples, c). The designs the fit decides for the whole box take its verdict; on
+        the others (``edge``) a board bursts where a fitted condition of :data:`STEADY`
+        lies below minus its band, runs steady where every live one lies above its band,
+        and is undecided otherwise."""
+        shape = np.shape(next(iter(vals.values())))
+        burst = np.broadcast_to(self.bursts, shape).copy()
+        unsure = np.zeros(shape, dtype=bool)
+        cols = np.flatnonzero(self.edge)
+        if cols.size == 0:
+            return burst, unsure
+        live = self.live[:, cols]
+        rows = [j for j in range(len(STEADY)) if live[j].any()]
+        sure_b = np.zeros((shape[0], cols.size), dtype=bool)
+        sure_s = np.ones((shape[0], cols.size), dtype=bool)
+        qs = self.quantities(tuple(STEADY[j] for j in rows), vals, cols)
+        with np.errstate(invalid="ignore"):
+            for j, q in zip(rows, qs, strict=True):
+                band = self.band[j, cols]
+                sure_b |= live[j] & (q < -band)
+                sure_s &= ~live[j] | (q > band)
+        burst[:, cols] = sure_b
+        unsure[:, cols] = ~sure_b & ~sure_s
+        return burst, unsure
+
     def quantity(
         self, name: str, vals: Mapping[str, np.ndarray], cols: np.ndarray | None = None
     ) -> np.ndarray:

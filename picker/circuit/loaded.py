@@ -89,14 +89,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.board_fit import (
-    EDGE_DEGREE,
-    QUANTITIES,
-    STEADY,
-    BoardFit,
-    fit_boards,
-    monomials,
-)
+from picker.circuit.board_fit import BoardFit, fit_boards
 from picker.circuit.network import LoadedResponse
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.steady import SteadyState, steady_state
@@ -478,13 +471,8 @@ class LoadedModel:
         design and its box, so repeated runs over the same boards fit once."""
         pb = self.problem
         pos = pb.topology.positions
-        n = len(designs)
         if vals[pos[0]].shape[0] == 0:
-            one = {p: np.ones(n) for p in pos}
-            z = np.zeros((len(QUANTITIES), len(monomials(len(pos), EDGE_DEGREE)), n))
-            no = np.zeros(n, dtype=bool)
-            b = np.zeros((len(STEADY), n))
-            return BoardFit(designs.values(pb), one, z, no, b, b > 0, no, no)
+            return BoardFit.empty(designs.values(pb))
         lo = {p: vals[p].min(axis=0) for p in pos}
         hi = {p: vals[p].max(axis=0) for p in pos}
         box = np.stack([lo[p] for p in pos] + [hi[p] for p in pos], axis=1)
@@ -643,7 +631,7 @@ class LoadedModel:
         ``want_f``) and pass mask by the approximation (module docstring): (S1)/(S2) of the
         linear model, then (S3) and the linear model itself on the boards within the
         surrogate's error band of an edge, plus the board fit's offsets (F1) and its
-        bursting conditions (:meth:`_bursts`)."""
+        bursting conditions (:meth:`picker.circuit.board_fit.BoardFit.verdicts`)."""
         pb = self.problem
         topo = pb.topology
         sur = self.surrogate(designs)
@@ -676,7 +664,7 @@ class LoadedModel:
             with np.errstate(divide="ignore", invalid="ignore"):
                 ln_f[near] = np.log(f_l) + off_f[near]
                 ln_m[near] = np.log(m_l) + off_m[near]
-        burst, unsure = self._bursts(vals, fit)
+        burst, unsure = fit.verdicts(vals)
         with np.errstate(invalid="ignore", over="ignore"):
             counts = (ln_m > 0.0) & (ln_m <= top) & ~burst
             ok = counts & (ln_f >= lo) & (ln_f <= hi)
@@ -690,33 +678,6 @@ class LoadedModel:
             return nan, nan, ok
         with np.errstate(over="ignore"):
             return np.where(counts, np.exp(ln_f), np.nan), np.exp(ln_m), ok
-
-    @staticmethod
-    def _bursts(vals: Mapping[str, np.ndarray], fit: BoardFit) -> tuple[np.ndarray, np.ndarray]:
-        """(A3) on every board: (bursts, undecided), each (samples, c). The designs the fit
-        decides for the whole box take its verdict; on the others (``fit.edge``) a board
-        bursts where a fitted condition of :data:`picker.circuit.board_fit.STEADY` lies
-        below minus its band, runs steady where every live one lies above its band, and is
-        undecided otherwise."""
-        shape = np.shape(next(iter(vals.values())))
-        burst = np.broadcast_to(fit.bursts, shape).copy()
-        unsure = np.zeros(shape, dtype=bool)
-        cols = np.flatnonzero(fit.edge)
-        if cols.size == 0:
-            return burst, unsure
-        live = fit.live[:, cols]
-        rows = [j for j in range(len(STEADY)) if live[j].any()]
-        sure_b = np.zeros((shape[0], cols.size), dtype=bool)
-        sure_s = np.ones((shape[0], cols.size), dtype=bool)
-        qs = fit.quantities(tuple(STEADY[j] for j in rows), vals, cols)
-        with np.errstate(invalid="ignore"):
-            for j, q in zip(rows, qs, strict=True):
-                band = fit.band[j, cols]
-                sure_b |= live[j] & (q < -band)
-                sure_s &= ~live[j] | (q > band)
-        burst[:, cols] = sure_b
-        unsure[:, cols] = ~sure_b & ~sure_s
-        return burst, unsure
 
     def __call__(self, vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
         if self.method == "full":
