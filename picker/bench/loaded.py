@@ -5,7 +5,11 @@ approximation: the large-signal model fitted per design over its boards' box) of
 designs × 20,000 boards (target ≤ 3 s), beside the large-signal model run on every
 board (``method = "full"``) of the same designs, timed in the same run on a slice of
 the boards (its cost is linear in the boards: the figure is scaled to 20,000) and
-compared board by board with the fast path on that slice.
+compared board by board with the fast path on that slice (boards decided otherwise, and
+the largest difference of a design's yield there). ``--workers`` threads share the board
+fit (default :func:`picker.core.conditional.default_workers`; the counts are the same
+with any number). Wall time depends on the machine's load; the CPU time printed beside
+it much less.
 
 The designs: the loaded-feasible set of the demo ``colpitts_bjt.toml`` (4.9 MHz,
 common-emitter BJT) with its parts widened to E24 and its window to ±3 % so that it
