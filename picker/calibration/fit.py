@@ -308,7 +308,7 @@ def fit_parasitics(
 
     def freq(params: Mapping[str, float]) -> np.ndarray:
         eff = apply_parasitics(topology, vals, params)
-        ideal = resonant_frequency(eff[topology.inductor], topology.c_series(eff) + eff["stray"])
+        ideal = resonant_frequency(topology.l_eff(eff), topology.c_series(eff) + eff["stray"])
         if model is None:
             return ideal
         # a board the model finds not oscillating on the optimiser's way: the ideal tank
