@@ -95,6 +95,9 @@ class Topology:
     coupled: ClassVar[bool] = False
     #: Coupling coefficient k of the inductors (0 for a tank with one inductor).
     coupling: float = 0.0
+    #: A typical tank of about 1.3 MHz, position -> value (SI; invented values, not a
+    #: design): what the stage conformance tests and examples build a circuit with.
+    typical: ClassVar[Mapping[str, float]]
     _instance: ClassVar[Topology | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:
