@@ -16,16 +16,18 @@ sets ``name`` (the word a spec's ``topology`` key takes), ``positions`` (every
 part position, in the order tables and reports show them), ``capacitors`` (the
 capacitors in the series chain the inductor resonates with), ``inductor``,
 and ``feedback_pair`` (the capacitors across the amplifier's output and
-input); ``trimmer_position`` if a trimmer may sit beside one of its capacitors.
+input), ``typical`` (a tank of about 1.3 MHz for the stage conformance tests);
+``trimmer_position`` if a trimmer may sit beside one of its capacitors.
 Defining the class registers it (``__init_subclass__``); add one import line
 to ``picker/tank/__init__.py`` so the registry sees the module. If the tank is
 not "an inductor against a series chain of capacitors", override the formulas
-below (:meth:`Topology.c_eff`, :meth:`Topology.frequency`,
-:meth:`Topology.sensitivities`, :meth:`Topology.beta`,
+below (:meth:`Topology.l_eff`, :meth:`Topology.c_eff`, :meth:`Topology.frequency`,
+:meth:`Topology.inductor_sensitivities`, :attr:`Topology.inductors`,
+:meth:`Topology.shunt_targets`, :meth:`Topology.end_capacitance`, :meth:`Topology.beta`,
 :meth:`Topology.feedback_bounds`, :meth:`Topology.solvable`,
 :meth:`Topology.solve_interval`) and the circuit methods after them
 (:meth:`Topology.pi_admittances`, :meth:`Topology.netlist_lines`, …), each
-with its source. Then write the
+with its source (:mod:`picker.tank.hartley` is the worked example). Then write the
 topology's own textbook test file, ``tests/test_<name>.py`` (the formula or a
 worked example from a book, as ``tests/test_topology.py`` does for Colpitts
 and Clapp). ``tests/test_tank_conformance.py`` runs over every registered
