@@ -210,3 +210,25 @@ def test_solve_puts_every_design_in_the_window_and_drift_runs():
         assert 0.1 <= (v["L2"] + m) / (v["L1"] + m) <= 0.6
         assert 0.0 < cand.yield_estimate <= 1.0
         assert "yield_over_temperature" in cand.extra
+
+
+def test_calibration_recovers_stray_and_l_scale_and_refuses_shunts():
+    # Units built from Hayt & Kemmerly's series-aiding sum with a known stray and
+    # inductance scale (exact frequencies, written out here): the fit returns them.
+    from picker.calibration.fit import fit_parasitics
+
+    k, stray, scale = 0.3, 6e-12, 1.04
+    topo = HARTLEY.configured(k)
+    rng = np.random.default_rng(9)
+    v = {
+        "L1": rng.choice([3.9e-6, 4.7e-6, 5.6e-6, 6.8e-6], 12),
+        "L2": rng.choice([1.5e-6, 1.8e-6, 2.2e-6], 12),
+        "C": rng.choice([150e-12, 220e-12, 330e-12, 470e-12], 12),
+    }
+    m = k * np.sqrt(v["L1"] * v["L2"])
+    f = 1 / (TWO_PI * np.sqrt(scale * (v["L1"] + v["L2"] + 2 * m) * (v["C"] + stray)))
+    res = fit_parasitics(topo, v, f, fit=("stray", "l_scale"))
+    got = {p.name: p.estimate for p in res.parameters}
+    assert_allclose([got["stray"], got["l_scale"]], [stray, scale], rtol=1e-6)
+    with pytest.raises(SpecError, match="no c2_shunt"):
+        fit_parasitics(topo, v, f, fit=("stray", "c2_shunt"))
