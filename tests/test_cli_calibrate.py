@@ -148,7 +148,7 @@ def test_plot_is_a_png(tmp_path):
     ("args", "key", "what"),
     [
         ((), "--topology", "say which tank"),
-        (("--topology", "hartley"), "--topology", "hartley"),
+        (("--topology", "armstrong"), "--topology", "armstrong"),
         (("--topology", "colpitts", "--fit", "stray,strays"), "--fit", "strays"),
         (("--topology", "colpitts", "--robust", "cauchy"), "--robust", "cauchy"),
         (("--topology", "colpitts", "--format", "csv"), "--format", "csv"),

@@ -41,6 +41,7 @@ BASES = {
         "colpitts_bjt.toml",
         "production_exciter.toml",
         "buyer_exciter.toml",  # stock positions, a parallel pair, [cost]
+        "hartley_beacon.toml",  # [tank] coupling, two inductors
     )
 }
 

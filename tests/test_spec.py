@@ -111,7 +111,7 @@ def _err(tmp_path, old, new):
             "parts.L",
             "holds no E6 value",
         ),
-        ('topology = "colpitts"', 'topology = "hartley"', "topology", "hartley"),
+        ('topology = "colpitts"', 'topology = "armstrong"', "topology", "armstrong"),
         ("min = 0.1\nmax = 0.5", "min = 0.5\nmax = 0.1", "feedback", "min <= max"),
         ("samples = 20000", 'samples = "many"', "yield.samples", "many"),
         ("top = 10", "top = 0", "report.top", "0"),

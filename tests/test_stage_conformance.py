@@ -46,8 +46,6 @@ from picker.tank.colpitts import COLPITTS
 
 EVERY_STAGE = [pytest.param(s, id=s.name) for s in STAGES.values()]
 EVERY_TOPOLOGY = [pytest.param(t, id=t.name) for t in TOPOLOGIES.values()]
-# The tank the typical designs are made for (Stage.typical_params): about 1.3 MHz.
-TYPICAL_TANK = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
 TWO_PI = 2 * math.pi
 
 
@@ -108,15 +106,10 @@ def test_ideal_stage_with_clapp_meets_the_three_reactance_condition(stage: Stage
 @pytest.mark.parametrize("topology", EVERY_TOPOLOGY)
 def test_closed_form_matches_the_generic_nodal_solver(stage, topology):
     # Reference: numpy.linalg.solve on the nodal matrix stamped element by element.
+    # Values spread about the topology's typical tank (Topology.typical), by a factor 1/3..3.
     rng = np.random.default_rng(23)
     n = 40
-    v = {
-        "C1": rng.uniform(300e-12, 3e-9, n),
-        "C2": rng.uniform(1e-9, 6e-9, n),
-        "C3": rng.uniform(100e-12, 1e-9, n),
-        "L": rng.uniform(2e-6, 50e-6, n),
-    }
-    v = {p: v[p] for p in topology.positions}
+    v = {p: x * 3.0 ** rng.uniform(-1, 1, n) for p, x in topology.typical.items()}
     f = rng.uniform(0.3e6, 10e6, n)
     params = stage.typical_params()
     fast = loop_gain(topology, v, 2e-12, params, f)
@@ -145,8 +138,7 @@ def test_typical_netlist_runs_in_ngspice_with_no_floating_node(stage, topology):
         ngspice_path()
     except SolverError as exc:
         pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
-    values = {**TYPICAL_TANK, "C3": 220e-12}
-    values = {p: values[p] for p in topology.positions}
+    values = dict(topology.typical)  # about 1.3 MHz, the typical designs' tank
     params = stage.typical_params()
     text = write_netlist(topology, values, 3e-12, params, title=f"{stage.name} {topology.name}")
     dangling = [node for node, k in _nodes(text).items() if k < 2 and node != "0"]

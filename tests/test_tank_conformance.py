@@ -6,19 +6,25 @@ A topology added to :mod:`picker.tank` is tested here without any change:
   (hypothesis);
 - its sensitivities equal central finite differences of ln f;
 - its frequency equals the eigenvalues of the LC state matrix of its own
-  SPICE netlist (``Topology.netlist_lines``), computed with scipy.linalg.
+  SPICE netlist (``Topology.netlist_lines``), computed with scipy.linalg;
+- its feedback fraction equals the voltage ratio of its own netlist driven at
+  its output end at the tank frequency.
+
+A topology with coupled inductors is checked at couplings 0, 0.5 and 0.99.
+Values are drawn per position by its unit, so nothing here names a position.
 """
 
 from __future__ import annotations
 
 import itertools
+from typing import Any
 
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
-from scipy.linalg import eigvals, solve
+from scipy.linalg import eigvals
 
 from picker.core.search import Problem, brute_force, search, solve_interval, sort_designs
 from picker.parts.series import expand
@@ -32,13 +38,16 @@ from picker.tank.board import (
     shunt_positions,
 )
 
-ALL = list(TOPOLOGIES.values())
-IDS = list(TOPOLOGIES)
+REGISTERED = list(TOPOLOGIES.values())
+ALL = [
+    t.configured(k) if k else t for t in REGISTERED for k in ((0, 0.5, 0.99) if t.coupled else (0,))
+]
+IDS = [f"{t.name}-k{t.coupling:g}" if t.coupled else t.name for t in ALL]
 SERIES = ["E3", "E6", "E12", "E24"]
 
 
 def test_registry_holds_colpitts_and_clapp_in_order():
-    assert IDS[:2] == ["colpitts", "clapp"]
+    assert list(TOPOLOGIES)[:2] == ["colpitts", "clapp"]
     for name, topo in TOPOLOGIES.items():
         assert get_topology(f" {name.upper()} ") is topo
         assert type(topo)() is topo  # one instance per topology
@@ -46,11 +55,13 @@ def test_registry_holds_colpitts_and_clapp_in_order():
 
 @pytest.mark.parametrize("topo", ALL, ids=IDS)
 def test_declared_facts_are_consistent(topo: Topology):
-    assert set(topo.positions) == {*topo.capacitors, topo.inductor}
+    assert set(topo.positions) == {*topo.capacitors, *topo.inductors}
+    assert topo.inductor in topo.inductors
     assert len(set(topo.positions)) == len(topo.positions)
-    assert set(topo.feedback_pair) <= set(topo.capacitors)
+    assert set(topo.feedback_pair) <= set(topo.positions)
+    assert set(topo.shunt_targets().values()) <= set(topo.capacitors) & set(topo.feedback_pair)
     assert {topo.unit(p) for p in topo.capacitors} == {"F"}
-    assert topo.unit(topo.inductor) == "H"
+    assert {topo.unit(p) for p in topo.inductors} == {"H"}
     with pytest.raises(KeyError):
         topo.unit("X9")
     assert topo.trimmer_position is None or topo.trimmer_position in topo.capacitors
@@ -66,67 +77,107 @@ def _round6(x: float) -> float:
     return float(f"{x:.6g}")
 
 
-def frequency_by_eigenvalues(topo: Topology, values: dict, par: Parasitics) -> float:
-    """ω/2π of the lossless tank from the eigenvalues of its state matrix (scipy.linalg).
-
-    The state equations of a linear LC circuit (Desoer & Kuh, *Basic Circuit
-    Theory*, 1969, the chapter on state equations), with node voltages v and
-    the inductor current i as the state: KCL at every node, C_n·dv/dt = -a·i,
-    and KVL around the inductor, L·di/dt = aᵀ·v, where C_n is the nodal
-    capacitance matrix (every capacitor stamped between its two nodes) and a
-    the inductor's incidence vector. The eigenvalues are ±jω. The circuit is
-    the topology's own SPICE netlist (``Topology.netlist_lines``, lossless,
-    with the stray where the netlist puts it), read back line by line; each
-    shunt is a capacitor in parallel with its feedback-pair capacitor, the
-    inductance is times ``l_scale``.
-    """
-    board = {**values, topo.inductor: values[topo.inductor] * par.l_scale}
+def _elements(topo: Topology, values: dict, par: Parasitics) -> list[tuple[str, str, str, float]]:
+    """The lossless netlist's element lines as (name, a, b, value), shunts added."""
+    board = {p: values[p] * (par.l_scale if p in topo.inductors else 1.0) for p in values}
     lines = topo.netlist_lines(board, par.stray, 0.0, {}, "out", "in")
     elements = [(name, a, b, float(v)) for name, a, b, v in (ln.split() for ln in lines)]
     for name, p in shunt_positions(topo).items():
         a, b = next((x[1], x[2]) for x in elements if x[0] == p)
         elements.append((name, a, b, getattr(par, name)))
-    nodes = sorted({n for _, a, b, _ in elements for n in (a, b)} - {"0"})
+    return elements
+
+
+def _matrices(elements: list[tuple[str, str, str, float]]) -> tuple[list[str], Any, Any, Any]:
+    """Nodes, nodal capacitance matrix C_n, inductor incidence A and inductance matrix L_m.
+
+    Every capacitor is stamped between its two nodes; inductor j carries its current
+    from its first node to its second (A[node, j] = ±1); a SPICE ``K`` line couples two
+    inductors with M = k·√(L_i·L_j) in L_m (dots at each inductor's first node, SPICE
+    convention).
+    """
+    nodes = sorted(
+        {n for name, a, b, _ in elements if name[0].upper() != "K" for n in (a, b)} - {"0"}
+    )
     k = {n: i for i, n in enumerate(nodes)}
+    inductors = [e for e in elements if e[0].upper().startswith("L")]
+    j_of = {e[0]: j for j, e in enumerate(inductors)}
     cn = np.zeros((len(nodes), len(nodes)))
-    inc = np.zeros(len(nodes))
-    l_val = 0.0
+    inc = np.zeros((len(nodes), len(inductors)))
+    lm = np.diag([e[3] for e in inductors])
     for name, a, b, v in elements:
-        if name.upper().startswith("L"):
-            l_val = v
-            for node, sign in ((a, 1.0), (b, -1.0)):  # i flows from a to b through the inductor
+        kind = name[0].upper()
+        if kind == "L":
+            for node, sign in ((a, 1.0), (b, -1.0)):
                 if node != "0":
-                    inc[k[node]] = sign
-            continue
-        assert name.upper().startswith("C"), f"a lossless tank has no {name}"
-        for x, y, sign in ((a, a, 1), (b, b, 1), (a, b, -1), (b, a, -1)):
-            if x != "0" and y != "0":
-                cn[k[x], k[y]] += sign * v
-    n = len(nodes)
-    state = np.zeros((n + 1, n + 1))
-    state[:n, n] = -solve(cn, inc)
-    state[n, :n] = inc / l_val
-    return float(np.max(np.abs(eigvals(state).imag)) / (2 * np.pi))
+                    inc[k[node], j_of[name]] = sign
+        elif kind == "K":
+            i, j = j_of[a], j_of[b]
+            lm[i, j] = lm[j, i] = v * np.sqrt(lm[i, i] * lm[j, j])
+        else:
+            assert kind == "C", f"a lossless tank has no {name}"
+            for x, y, sign in ((a, a, 1), (b, b, 1), (a, b, -1), (b, a, -1)):
+                if x != "0" and y != "0":
+                    cn[k[x], k[y]] += sign * v
+    return nodes, cn, inc, lm
+
+
+def frequency_by_eigenvalues(topo: Topology, values: dict, par: Parasitics) -> float:
+    """ω/2π of the lossless tank from the eigenvalues of its state equations (scipy.linalg).
+
+    The state equations of a linear LC circuit (Desoer & Kuh, *Basic Circuit
+    Theory*, 1969, the chapter on state equations), with node voltages v and
+    the inductor currents i as the state: KCL at every node, C_n·dv/dt = −A·i,
+    and KVL round every inductor, L_m·di/dt = Aᵀ·v. Written as the pencil
+    (J, B) with J = [[0, −A], [Aᵀ, 0]], B = diag(C_n, L_m), its finite
+    generalised eigenvalues are 0 and ±jω (a node with no capacitance to ground
+    gives infinite ones). The circuit is the topology's own SPICE netlist
+    (``Topology.netlist_lines``, lossless, with the stray where the netlist puts
+    it), read back line by line; each shunt is a capacitor in parallel with its
+    feedback-pair capacitor, every inductance is times ``l_scale``.
+    """
+    nodes, cn, inc, lm = _matrices(_elements(topo, values, par))
+    n, m = len(nodes), lm.shape[0]
+    j = np.zeros((n + m, n + m))
+    j[:n, n:] = -inc
+    j[n:, :n] = inc.T
+    b = np.zeros((n + m, n + m))
+    b[:n, :n] = cn
+    b[n:, n:] = lm
+    lam = eigvals(j, b)
+    lam = lam[np.isfinite(lam) & (np.abs(lam) < 1e14)]  # ω of any tank here is < 1e11
+    return float(np.max(np.abs(lam.imag)) / (2 * np.pi))
+
+
+def _draw(topo: Topology, rng: np.random.Generator, lo_h: float = -7, hi_h: float = -2) -> dict:
+    """Random part values by unit: capacitors 10 pF..100 nF, inductors 10^lo_h..10^hi_h H."""
+    return {
+        p: _round6(
+            10 ** rng.uniform(-11, -7) if topo.unit(p) == "F" else 10 ** rng.uniform(lo_h, hi_h)
+        )
+        for p in topo.positions
+    }
 
 
 @pytest.mark.parametrize("topo", ALL, ids=IDS)
 @pytest.mark.parametrize("seed", range(10))
 def test_frequency_equals_state_matrix_eigenvalues(topo: Topology, seed: int):
     rng = np.random.default_rng(seed)
-    values = {p: _round6(10 ** rng.uniform(-11, -7)) for p in topo.capacitors}
+    values = _draw(topo, rng)
     l_scale = float(rng.uniform(0.9, 1.1))
-    values[topo.inductor] = _round6(10 ** rng.uniform(-7, -2)) / l_scale
+    for p in topo.inductors:
+        values[p] = values[p] / l_scale
     par = Parasitics(
         stray=_round6(rng.choice([0.0, 10 ** rng.uniform(-12, -10)])),
         c1_shunt=float(rng.choice([0.0, 10 ** rng.uniform(-12, -10)])),
         c2_shunt=float(rng.choice([0.0, 10 ** rng.uniform(-12, -10)])),
         l_scale=l_scale,
     )
-    # eigenvalues of a well-conditioned 3x3 or 4x4 matrix: ~1e-12 relative; 1e-9 is loose
+    # eigenvalues of a well-conditioned 3x3 to 6x6 pencil: ~1e-12 relative; 1e-9 is loose
     assert_allclose(
         board_frequency(topo, values, par), frequency_by_eigenvalues(topo, values, par), rtol=1e-9
     )
-    ideal = {**values, topo.inductor: _round6(values[topo.inductor])}
+    ideal = {p: _round6(v) for p, v in values.items()}
     assert_allclose(
         topo.frequency(ideal), frequency_by_eigenvalues(topo, ideal, Parasitics()), rtol=1e-9
     )
@@ -143,8 +194,12 @@ def test_sensitivities_match_central_differences(topo: Topology):
         Parasitics(stray=3e-12, c1_shunt=5e-12, c2_shunt=8e-12, l_scale=1.07),
     ):
         for _ in range(10):
-            v = {p: float(10 ** rng.uniform(-11, -8)) for p in topo.capacitors}
-            v[topo.inductor] = float(10 ** rng.uniform(-6, -3))
+            v = {
+                p: float(
+                    10 ** rng.uniform(-11, -8) if topo.unit(p) == "F" else 10 ** rng.uniform(-6, -3)
+                )
+                for p in topo.positions
+            }
             s = board_sensitivities(topo, v, par)
             assert set(s) == set(topo.positions)
             h = 1e-6
@@ -162,14 +217,23 @@ def test_sensitivities_match_central_differences(topo: Topology):
 
 
 @pytest.mark.parametrize("topo", ALL, ids=IDS)
-def test_beta_is_the_capacitive_divider_ratio(topo: Topology):
-    # Sedra & Smith, Colpitts section: the divider returns C_out/C_in of the output voltage
-    out, inp = topo.feedback_pair
-    v = {p: 1e-9 * (i + 1) for i, p in enumerate(topo.capacitors)}
-    v[topo.inductor] = 1e-5
-    par = Parasitics(c1_shunt=2e-12, c2_shunt=7e-12)
-    assert_allclose(topo.beta(v), v[out] / v[inp], rtol=1e-15)
-    assert_allclose(board_beta(topo, v, par), (v[out] + 2e-12) / (v[inp] + 7e-12), rtol=1e-15)
+def test_beta_is_the_netlists_voltage_ratio_at_the_tank_frequency(topo: Topology):
+    # Drive the output end of the tank's own netlist with 1 V at the ideal tank frequency,
+    # the input end unloaded: v_in = −beta (the divider returns beta of the output with a
+    # further 180°; Sedra & Smith, Colpitts section, C1/C2 for a Colpitts). Nodal analysis
+    # at s = jω: Y = s·C_n + A·(s·L_m)⁻¹·Aᵀ, solved for every node but the driven one.
+    rng = np.random.default_rng(31)
+    for _ in range(10):
+        v = _draw(topo, rng, -7, -3)
+        par = Parasitics(c1_shunt=2e-12, c2_shunt=7e-12)
+        nodes, cn, inc, lm = _matrices(_elements(topo, v, par))
+        s = 2j * np.pi * float(board_frequency(topo, v, par))
+        y = s * cn + inc @ np.linalg.solve(s * lm, inc.T)
+        d = nodes.index("out")
+        rest = [i for i in range(len(nodes)) if i != d]
+        x = np.linalg.solve(y[np.ix_(rest, rest)], -y[rest, d])
+        v_in = x[rest.index(nodes.index("in"))]
+        assert_allclose(v_in, -float(board_beta(topo, v, par)), rtol=1e-7, atol=1e-9)
 
 
 # ---------------------------------------------------------------- the exact search
@@ -252,8 +316,18 @@ def test_solved_interval_brackets_the_window(topo: Topology):
     rng = np.random.default_rng(11)
     par = Parasitics(stray=4e-12, c1_shunt=3e-12, c2_shunt=9e-12, l_scale=1.05)
     for solved in topo.solvable():
-        v = {p: np.array([float(10 ** rng.uniform(-10, -8))]) for p in topo.capacitors}
-        v[topo.inductor] = np.array([float(10 ** rng.uniform(-6, -4))])
+        v = {
+            p: np.array(
+                [
+                    float(
+                        10 ** rng.uniform(-10, -8)
+                        if topo.unit(p) == "F"
+                        else 10 ** rng.uniform(-6, -4)
+                    )
+                ]
+            )
+            for p in topo.positions
+        }
         f0 = float(board_frequency(topo, v, par)[0])
         tabs = {p: uniform_table(np.array([1.0]), 0.01, "list") for p in topo.positions}
         pb = Problem(topo, tabs, 0.97 * f0, 1.02 * f0, 0.01, 100.0, par)

@@ -177,6 +177,11 @@ def _check_inputs(
     bad = [x for x in names if x not in PARAMETERS]
     if bad:
         raise SpecError(f"expected parasitics from {', '.join(PARAMETERS)}; got {', '.join(bad)}")
+    no = [x for x in names if x in ("c1_shunt", "c2_shunt") and x not in shunt_positions(topology)]
+    if no:
+        raise SpecError(
+            f"a {topology.name} tank has no {', '.join(no)}: its ends are not capacitors"
+        )
     if len(set(names)) != len(names):
         raise SpecError(f"each parasitic may be fitted once; got {', '.join(names)}")
     if not names:
@@ -308,7 +313,7 @@ def fit_parasitics(
 
     def freq(params: Mapping[str, float]) -> np.ndarray:
         eff = apply_parasitics(topology, vals, params)
-        ideal = resonant_frequency(eff[topology.inductor], topology.c_series(eff) + eff["stray"])
+        ideal = resonant_frequency(topology.l_eff(eff), topology.c_series(eff) + eff["stray"])
         if model is None:
             return ideal
         # a board the model finds not oscillating on the optimiser's way: the ideal tank

@@ -155,7 +155,7 @@ def capacitor_stress(
     return {
         k: abs(dc.get(k, math.nan)) + v
         for k, v in amplitude.across.items()
-        if k != topology.inductor
+        if k not in topology.inductors
     }
 
 

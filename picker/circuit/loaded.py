@@ -246,7 +246,7 @@ def fit_surrogate(
 def _ln_ideal(topology: Topology, vals: Mapping[str, np.ndarray], par: Parasitics) -> Any:
     """ln f of the ideal tank on board values: −ln 2π − ½·ln(L·C_eff) (Thomson's formula)."""
     bv = board_values(topology, vals, par)
-    lc = bv[topology.inductor] * topology.c_eff(bv, par.stray)
+    lc = topology.l_eff(bv) * topology.c_eff(bv, par.stray)
     return -math.log(2 * math.pi) - 0.5 * np.log(lc)
 
 

@@ -121,7 +121,8 @@ def bias_time_constant(
     """The slowest bias time constant read off the schematic, s (0.0 without a bias network).
 
     The largest of R_E·C_E, the base divider's Thevenin resistance with the tank's
-    capacitors to ground (C1 + C2), and C_B with the collector resistor: the RC products
+    capacitance to ground (``Topology.end_capacitance``: C1 + C2 of a Colpitts), and C_B
+    with the collector resistor: the RC products
     of the nodes that hold the stage's DC voltages (common practice, no source).
     """
     taus = [0.0]
@@ -131,7 +132,7 @@ def bias_time_constant(
         r_th = params.r_b1
         if params.r_b2 is not None:
             r_th = params.r_b1 * params.r_b2 / (params.r_b1 + params.r_b2)
-        taus.append(r_th * sum(float(values[p]) for p in topology.feedback_pair))
+        taus.append(r_th * float(topology.end_capacitance(values)))
     if params.c_block is not None and params.r_c is not None:
         taus.append(params.c_block * params.r_c)
     return max(taus)
@@ -154,7 +155,7 @@ def transient_plan(
       the loaded Q is lower, so the envelope is at least this fast for a loop gain
       margin of 2 and slower only for a margin close to 1);
     * the slowest bias time constant τ: R_E·C_E, the base divider's Thevenin
-      resistance with the tank's capacitors to ground (C1 + C2), and C_B with the
+      resistance with the tank's capacitance to ground (C1 + C2 of a Colpitts), and C_B with the
       collector resistor. A bursting oscillator comes and goes about once per few τ.
 
     cycles = 400 + 20·Q/π + 10·τ/T, at most ``max_cycles`` (the run then adds the

@@ -143,7 +143,7 @@ def run_calibrate(
     s = None
     if spec is not None:
         s = load_spec(spec)
-        topo = get_topology(s.topology)
+        topo = s.topo  # with its [tank] settings (a Hartley's coupling)
         if topology is not None and get_topology(topology).name != topo.name:
             raise SpecError(
                 f"--topology {topology} disagrees with the spec's topology {topo.name!r}",
@@ -169,6 +169,16 @@ def run_calibrate(
             "say which tank the units are: --topology colpitts|clapp or --spec SPEC.toml",
             key="--topology",
         )
+    if select:  # a shunt is a candidate only where the tank has a capacitor for it
+        names = tuple(
+            n for n in names if n not in ("c1_shunt", "c2_shunt") or n in topo.shunt_targets()
+        )
+    else:
+        for n in names:
+            if n in ("c1_shunt", "c2_shunt") and n not in topo.shunt_targets():
+                raise SpecError(
+                    f"a {topo.name} tank has no {n}: its ends are not capacitors", key="--fit"
+                )
 
     inputs = [measurements] + (spec_inputs(spec) if spec is not None else [])
     if report is not None:  # refused before the fit and the other files

@@ -203,7 +203,7 @@ def ideal_model(problem: Problem) -> BoardModel:
 
     def passes(vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
         bv = board_values(topo, vals, par)
-        lc = bv[topo.inductor] * topo.c_eff(bv, bv.get(STRAY, par.stray))
+        lc = topo.l_eff(bv) * topo.c_eff(bv, bv.get(STRAY, par.stray))
         return (lc >= lc_lo) & (lc <= lc_hi)
 
     return passes

@@ -281,7 +281,7 @@ def _needs(
     position: str | None,
 ) -> tuple[np.ndarray, ...]:
     """Each board's needed trimmer interval and centre (:func:`across_need`, :func:`series_need`)."""
-    l = values[topology.inductor]
+    l = topology.l_eff(values)
     if placement == "across" or position is None:
         return across_need(topology.c_eff(values, stray), l, f_min, f_max)
     others = [p for p in topology.capacitors if p != position]

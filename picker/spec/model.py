@@ -41,6 +41,7 @@ from picker.spec.production import check_part as check_production_keys
 from picker.spec.production import check_spec
 from picker.spec.production import parse_part_keys as parse_production_keys
 from picker.tank import TOPOLOGIES, Topology, get_topology, topology_names
+from picker.tank.base import MAX_COUPLING
 
 
 def _one_of(words: Sequence[str]) -> str:
@@ -393,6 +394,20 @@ class ParasiticsSpec(_Strict):
         return float(v)
 
 
+class TankSpec(_Strict):
+    """Facts of the tank that are not part values: the coupling k of two coupled
+    inductors (a Hartley tank's L1 and L2; 0 = separate coils, the default)."""
+
+    coupling: float = 0.0
+
+    @field_validator("coupling", mode="before")
+    @classmethod
+    def _coupling(cls, v: Any) -> float:
+        if isinstance(v, bool) or not isinstance(v, int | float) or not (0 <= v <= MAX_COUPLING):
+            raise ValueError(f"expected a coupling coefficient from 0 to {MAX_COUPLING}; got {v!r}")
+        return float(v)
+
+
 class YieldSpec(_Strict):
     """Monte Carlo settings."""
 
@@ -521,6 +536,7 @@ class Spec(_Strict):
     feedback: FeedbackSpec = FeedbackSpec()
     parts: dict[str, PartSpec]
     parasitics: ParasiticsSpec = ParasiticsSpec()
+    tank: TankSpec = TankSpec()
     yield_: YieldSpec = Field(YieldSpec(), alias="yield")
     report: ReportSpec = ReportSpec()
     search: SearchSpec = SearchSpec()
@@ -591,6 +607,22 @@ class Spec(_Strict):
         return self
 
     @model_validator(mode="after")
+    def _tank_keys(self) -> Spec:
+        topo = get_topology(self.topology)
+        if self.tank.coupling and not topo.coupled:
+            raise KeyedError(
+                "tank.coupling", f"a {self.topology} tank has one inductor; remove the coupling"
+            )
+        for name in ("c1_shunt", "c2_shunt"):
+            if getattr(self.parasitics, name) and name not in topo.shunt_targets():
+                raise KeyedError(
+                    f"parasitics.{name}",
+                    f"a {self.topology} tank has no capacitor at that end for a shunt to add to; "
+                    "put the board's capacitance in stray",
+                )
+        return self
+
+    @model_validator(mode="after")
     def _production_keys(self) -> Spec:
         check_spec(self)
         if self.amplifier is not None and self.parasitics.stray_tolerance > 0:
@@ -603,4 +635,5 @@ class Spec(_Strict):
 
     @property
     def topo(self) -> Topology:
-        return get_topology(self.topology)
+        topo = get_topology(self.topology)
+        return topo.configured(self.tank.coupling) if topo.coupled else topo

@@ -15,6 +15,7 @@ from picker.tank.base import TOPOLOGIES, Topology
 # that lists the topologies) keeps this order, so the imports are not sorted.
 from picker.tank import colpitts  # noqa: F401, I001  # isort: skip
 from picker.tank import clapp  # noqa: F401, I001  # isort: skip
+from picker.tank import hartley  # noqa: F401, I001  # isort: skip
 
 __all__ = [
     "TOPOLOGIES",

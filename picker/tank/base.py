@@ -16,16 +16,18 @@ sets ``name`` (the word a spec's ``topology`` key takes), ``positions`` (every
 part position, in the order tables and reports show them), ``capacitors`` (the
 capacitors in the series chain the inductor resonates with), ``inductor``,
 and ``feedback_pair`` (the capacitors across the amplifier's output and
-input); ``trimmer_position`` if a trimmer may sit beside one of its capacitors.
+input), ``typical`` (a tank of about 1.3 MHz for the stage conformance tests);
+``trimmer_position`` if a trimmer may sit beside one of its capacitors.
 Defining the class registers it (``__init_subclass__``); add one import line
 to ``picker/tank/__init__.py`` so the registry sees the module. If the tank is
 not "an inductor against a series chain of capacitors", override the formulas
-below (:meth:`Topology.c_eff`, :meth:`Topology.frequency`,
-:meth:`Topology.sensitivities`, :meth:`Topology.beta`,
+below (:meth:`Topology.l_eff`, :meth:`Topology.c_eff`, :meth:`Topology.frequency`,
+:meth:`Topology.inductor_sensitivities`, :attr:`Topology.inductors`,
+:meth:`Topology.shunt_targets`, :meth:`Topology.end_capacitance`, :meth:`Topology.beta`,
 :meth:`Topology.feedback_bounds`, :meth:`Topology.solvable`,
 :meth:`Topology.solve_interval`) and the circuit methods after them
 (:meth:`Topology.pi_admittances`, :meth:`Topology.netlist_lines`, …), each
-with its source. Then write the
+with its source (:mod:`picker.tank.hartley` is the worked example). Then write the
 topology's own textbook test file, ``tests/test_<name>.py`` (the formula or a
 worked example from a book, as ``tests/test_topology.py`` does for Colpitts
 and Clapp). ``tests/test_tank_conformance.py`` runs over every registered
@@ -42,6 +44,10 @@ from typing import Any, ClassVar
 import numpy as np
 
 TWO_PI = 2.0 * np.pi
+
+#: Largest coupling coefficient k of two coupled inductors: at k = 1 their inductance
+#: matrix is singular.
+MAX_COUPLING = 0.99
 
 #: Every registered topology by name, filled by :meth:`Topology.__init_subclass__`.
 TOPOLOGIES: dict[str, Topology] = {}
@@ -86,6 +92,14 @@ class Topology:
     inductor: ClassVar[str] = "L"
     feedback_pair: ClassVar[tuple[str, str]] = ("C1", "C2")
     trimmer_position: ClassVar[str | None] = None
+    #: Whether the tank has two magnetically coupled inductors (the spec's
+    #: ``[tank] coupling`` applies; :meth:`configured`).
+    coupled: ClassVar[bool] = False
+    #: Coupling coefficient k of the inductors (0 for a tank with one inductor).
+    coupling: float = 0.0
+    #: A typical tank of about 1.3 MHz, position -> value (SI; invented values, not a
+    #: design): what the stage conformance tests and examples build a circuit with.
+    typical: ClassVar[Mapping[str, float]]
     _instance: ClassVar[Topology | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:
@@ -104,14 +118,26 @@ class Topology:
     def __repr__(self) -> str:
         return f"{type(self).__name__}()"
 
-    def __reduce__(self) -> tuple[type[Topology], tuple[()]]:
+    def __reduce__(self) -> Any:
         return (type(self), ())
+
+    def configured(self, coupling: float | None = None) -> Topology:
+        """This topology with the spec's ``[tank]`` settings; a tank with one inductor
+        takes no coupling (a topology with ``coupled`` overrides this)."""
+        if coupling is not None and coupling != self.coupling:
+            raise ValueError(f"a {self.name} tank has one inductor: no coupling to set")
+        return self
 
     # ------------------------------------------------------------ positions
 
+    @property
+    def inductors(self) -> tuple[str, ...]:
+        """Every inductor position (the one ``inductor`` unless a topology has more)."""
+        return (self.inductor,)
+
     def unit(self, pos: str) -> str:
-        """SI unit of a part position: "F" for a capacitor, "H" for the inductor."""
-        if pos == self.inductor:
+        """SI unit of a part position: "F" for a capacitor, "H" for an inductor."""
+        if pos in self.inductors:
             return "H"
         if pos in self.capacitors:
             return "F"
@@ -127,9 +153,25 @@ class Topology:
         """Effective tank capacitance: the series chain plus stray across the tank."""
         return self.c_series(values) + stray
 
+    def l_eff(self, values: Mapping[str, Any]) -> Any:
+        """The inductance the capacitor chain resonates with, H (the inductor's value)."""
+        return values[self.inductor]
+
     def frequency(self, values: Mapping[str, Any], stray: Any = 0.0) -> Any:
         """Nominal oscillation frequency of the ideal tank, Hz (Thomson's formula)."""
-        return resonant_frequency(values[self.inductor], self.c_eff(values, stray))
+        return resonant_frequency(self.l_eff(values), self.c_eff(values, stray))
+
+    def shunt_targets(self) -> dict[str, str]:
+        """The position each board shunt parasitic sits in parallel with: ``c1_shunt``
+        across the feedback pair's output side, ``c2_shunt`` across its input side
+        (:mod:`picker.tank.board`). A tank whose pair is not capacitors returns {}."""
+        out, inp = self.feedback_pair
+        return {"c1_shunt": out, "c2_shunt": inp}
+
+    def end_capacitance(self, values: Mapping[str, Any]) -> Any:
+        """Capacitance from the tank's ends to the common node that holds the stage's DC
+        voltages, F: the feedback pair (C1 + C2) of a series-chain tank."""
+        return sum(np.asarray(values[p], dtype=float) for p in self.feedback_pair)
 
     def beta(self, values: Mapping[str, Any]) -> Any:
         """Feedback fraction beta = C_out / C_in of the feedback pair.
@@ -160,10 +202,16 @@ class Topology:
         """
         cs = self.c_series(values)
         ce = cs + stray
-        out = {self.inductor: np.broadcast_to(-0.5, np.shape(cs)).astype(float)}
+        out = self.inductor_sensitivities(values, np.shape(cs))
         for p in self.capacitors:
             out[p] = -0.5 * (cs / ce) * (cs / np.asarray(values[p]))
         return {p: out[p] for p in self.positions}
+
+    def inductor_sensitivities(
+        self, values: Mapping[str, Any], shape: tuple[int, ...]
+    ) -> dict[str, np.ndarray]:
+        """S of each inductor: f ∝ L^(-1/2) gives S_L = -1/2 (broadcast to ``shape``)."""
+        return {self.inductor: np.broadcast_to(-0.5, shape).astype(float)}
 
     # ------------------------------------------------------------ the exact search's solve
 
@@ -215,7 +263,7 @@ class Topology:
             return lo, hi
         if solved not in self.solvable():
             raise ValueError(f"{solved} is not solvable in a {self.name} tank")
-        lt = board[self.inductor]
+        lt = self.l_eff(board)
         cs_lo = 1.0 / (w_max * lt) - stray
         cs_hi = 1.0 / (w_min * lt) - stray
         a = sum(1.0 / board[p] for p in self.capacitors if p != solved)

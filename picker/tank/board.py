@@ -59,24 +59,22 @@ class Parasitics:
 
 
 def shunt_positions(topology: Topology) -> dict[str, str]:
-    """The position each shunt parasitic sits across: c1_shunt output side, c2_shunt input side."""
-    out, inp = topology.feedback_pair
-    return {"c1_shunt": out, "c2_shunt": inp}
+    """The position each shunt parasitic sits across: c1_shunt output side, c2_shunt input side
+    (:meth:`picker.tank.base.Topology.shunt_targets`; none for a tank whose ends are inductors)."""
+    return topology.shunt_targets()
 
 
 def board_shunt(topology: Topology, pos: str, par: Parasitics) -> float:
     """Capacitance the board adds across ``pos`` (0.0 where none), F."""
-    out, inp = topology.feedback_pair
-    if pos == out:
-        return par.c1_shunt
-    if pos == inp:
-        return par.c2_shunt
+    for name, at in topology.shunt_targets().items():
+        if pos == at:
+            return float(getattr(par, name))
     return 0.0
 
 
 def board_scale(topology: Topology, pos: str, par: Parasitics) -> float:
-    """Ratio of board to marked value of ``pos`` (``l_scale`` for the inductor, else 1.0)."""
-    return par.l_scale if pos == topology.inductor else 1.0
+    """Ratio of board to marked value of ``pos`` (``l_scale`` for an inductor, else 1.0)."""
+    return par.l_scale if pos in topology.inductors else 1.0
 
 
 def board_values(topology: Topology, values: Mapping[str, Any], par: Parasitics) -> dict[str, Any]:
@@ -137,13 +135,15 @@ def board_feedback_bounds(
     ``first`` holds marked output-side values;
     :meth:`picker.tank.base.Topology.feedback_bounds` on their board values,
     widened by the relative ``widen`` (board values), then less the input
-    side's shunt.
+    side's shunt and over its scale (an inductor's ``l_scale``).
     """
     out, inp = topology.feedback_pair
     fe = board_values(topology, {out: first}, par)[out]
     lo, hi = topology.feedback_bounds(fe, beta_min, beta_max)
     shunt = board_shunt(topology, inp, par)
-    return lo * (1 - widen) - shunt, hi * (1 + widen) - shunt
+    scale = board_scale(topology, inp, par)
+    lo, hi = lo * (1 - widen) - shunt, hi * (1 + widen) - shunt
+    return (lo, hi) if scale == 1.0 else (lo / scale, hi / scale)
 
 
 def board_interval(
@@ -201,14 +201,16 @@ def ideal_jacobian(
     across = shunt_positions(topology)
     cs = topology.c_series(eff)
     ct = cs + eff["stray"]
-    f = resonant_frequency(eff[topology.inductor], ct)
+    f = resonant_frequency(topology.l_eff(eff), ct)
     cols = []
     for name in names:
         if name == "stray":
             d = -f / (2.0 * ct)
         elif name in across:
             d = -f / (2.0 * ct) * (cs / eff[across[name]]) ** 2
-        else:  # l_scale
+        elif name != "l_scale":
+            raise ValueError(f"a {topology.name} tank has no parasitic {name}")
+        else:
             d = -f / (2.0 * float({**DEFAULTS, **parasitics}["l_scale"]))
         cols.append(np.broadcast_to(d, np.shape(f)))
     return np.stack(cols, axis=1) if cols else np.zeros((np.size(f), 0))

@@ -25,6 +25,7 @@ class Clapp(Topology):
     inductor = "L"
     feedback_pair = ("C1", "C2")
     trimmer_position = "C3"
+    typical = {"C1": 1e-9, "C2": 2.2e-9, "C3": 220e-12, "L": 22e-6}
 
 
 CLAPP = Clapp()

@@ -23,6 +23,7 @@ class Colpitts(Topology):
     capacitors = ("C1", "C2")
     inductor = "L"
     feedback_pair = ("C1", "C2")
+    typical = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
 
 
 COLPITTS = Colpitts()
