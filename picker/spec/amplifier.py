@@ -172,7 +172,16 @@ class AmplifierSpec(BaseModel):
 
     @model_validator(mode="after")
     def _consistent(self) -> AmplifierSpec:
-        if (self.r_load is None) == (self.choke is None):
+        # the stage registry (its modules import scipy.special): only with an [amplifier]
+        from picker.circuit.stages import STAGES
+
+        if not STAGES[self.stage].collector_load:
+            if self.r_load is not None or self.choke is not None:
+                raise ValueError(
+                    f"expected no collector load for the {self.stage} stage (its collector "
+                    "goes to the supply); got r_load or choke"
+                )
+        elif (self.r_load is None) == (self.choke is None):
             raise ValueError("expected exactly one collector load: r_load or choke")
         if self.r_bias_bottom is not None and self.r_bias_top is None:
             raise ValueError("r_bias_bottom needs r_bias_top (the resistor from the supply)")
