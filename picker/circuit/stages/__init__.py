@@ -17,6 +17,7 @@ from picker.circuit.stages.base import STAGES, Stage
 from picker.circuit.stages import common_emitter  # noqa: F401, I001  # isort: skip
 from picker.circuit.stages import common_source  # noqa: F401, I001  # isort: skip
 from picker.circuit.stages import common_collector  # noqa: F401, I001  # isort: skip
+from picker.circuit.stages import common_base  # noqa: F401, I001  # isort: skip
 
 __all__ = [
     "STAGES",
