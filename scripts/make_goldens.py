@@ -28,6 +28,7 @@ DEMO = ROOT / "demo_specs"
 GOLDEN = ROOT / "tests" / "goldens"
 
 SOLVABLE = [
+    "base_vhf",
     "buyer_exciter",
     "clapp_vfo",
     "colpitts_bjt",
@@ -37,7 +38,7 @@ SOLVABLE = [
     "production_exciter",
     "tone_source",
 ]
-AMPLIFIER = ["colpitts_bjt", "follower_vfo"]
+AMPLIFIER = ["base_vhf", "colpitts_bjt", "follower_vfo"]
 
 # name -> (arguments after "picker", output file the command writes or None)
 COMMANDS: dict[str, tuple[list[str], str | None]] = {}
