@@ -28,16 +28,18 @@ DEMO = ROOT / "demo_specs"
 GOLDEN = ROOT / "tests" / "goldens"
 
 SOLVABLE = [
+    "base_vhf",
     "buyer_exciter",
     "clapp_vfo",
     "colpitts_bjt",
+    "follower_vfo",
     "hartley_beacon",
     "plan_sensor_base",
     "probe_exciter",
     "production_exciter",
     "tone_source",
 ]
-AMPLIFIER = ["colpitts_bjt", "hartley_beacon"]
+AMPLIFIER = ["base_vhf", "colpitts_bjt", "follower_vfo", "hartley_beacon"]
 
 # name -> (arguments after "picker", output file the command writes or None)
 COMMANDS: dict[str, tuple[list[str], str | None]] = {}

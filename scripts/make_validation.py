@@ -53,6 +53,7 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.netlist import transient_plan
 from picker.circuit.oscillation import loaded_response
+from picker.circuit.stages import stage_of
 from picker.circuit.validation import (
     Design,
     accuracy,
@@ -94,10 +95,21 @@ def _logu(rng: np.random.Generator, lo: float, hi: float) -> float:
 
 
 def draw(
-    rng: np.random.Generator, index: int, *, bypass: bool = True, prefix: str = "d"
+    rng: np.random.Generator,
+    index: int,
+    *,
+    bypass: bool = True,
+    prefix: str = "d",
+    stage: str = "common-emitter",
 ) -> Design | None:
     """One random design over issue 11's ranges (None where the draw is not buildable);
-    ``bypass`` False leaves the emitter unbypassed; its id is ``prefix`` and ``index``."""
+    ``bypass`` False leaves the emitter unbypassed; its id is ``prefix`` and ``index``.
+
+    ``stage`` (issue 12) draws the same ranges for another bjt stage: the
+    common-collector one has no collector load and no emitter bypass, and its C1/C2
+    reaches down to 0.01 (the follower's gain gm·R_E = V_E/V_T is large, so only a
+    small C1/C2 makes it marginal); the common-base one has no emitter bypass and its
+    base bypassed by C_base = 20–200× C2."""
     clapp = rng.uniform() < 0.3
     topo = get_topology("clapp" if clapp else "colpitts")
     f0 = _logu(rng, 20e3, 30e6)
@@ -117,7 +129,7 @@ def draw(
     c_eff = 1.0 / (w * w * l) - stray
     if c_eff <= 5e-12:
         return None
-    rho = _logu(rng, 0.1, 2.0)  # C1/C2
+    rho = _logu(rng, 0.01 if stage == "common-collector" else 0.1, 2.0)  # C1/C2
     if clapp:
         share = rng.uniform(0.5, 0.9)  # C_eff/C3
         c3 = c_eff / share
@@ -127,7 +139,9 @@ def draw(
         c1 = c_eff * (1 + rho)  # C1·C2/(C1 + C2) = C1/(1 + rho) = C_eff with C2 = C1/rho
         values = {"C1": _sig(c1), "C2": _sig(c1 / rho), "L": l}
     choke = rng.uniform() < 0.3
-    if choke:
+    if stage == "common-collector":
+        load: dict[str, float] = {}
+    elif choke:
         load = {"l_choke": _sig(l * _logu(rng, 5.0, 50.0)), "r_choke": _sig(_logu(rng, 0.5, 10))}
     else:
         drop = _logu(rng, 0.02, 0.65) * (vcc - ve)  # across R_C: sets the gain gm·R_C
@@ -135,9 +149,12 @@ def draw(
     c_e = None
     if rng.uniform() >= 0.12:
         c_e = _sig(_logu(rng, 1.0, 2000.0) / (w * r_e))
-    if not bypass:
+    if not bypass or stage != "common-emitter":
         c_e = None
+    if stage == "common-base":
+        load["c_base"] = _sig(values["C2"] * _logu(rng, 20.0, 200.0))
     params = AmplifierParams(
+        stage=stage,
         vcc=vcc,
         r_b1=r_b1,
         r_b2=r_b2,
@@ -170,8 +187,21 @@ def unbypassed(
     return out
 
 
-def select(seed: int = SEED, count: int = COUNT, prefix: str = "d") -> list[Design]:
-    """``count`` seeded draws, kept by quota on the linear model's start-up margin."""
+def settling_cycles(d: Design) -> float:
+    """The stage's bias settling before the transient (:meth:`Stage.settling_time`) in
+    periods of the ideal tank: a common-base stage's bypassed base (R_th·C_base) or a
+    follower's blocking capacitor (R_th·C_B) can need far more than the plan's periods.
+    (A common-emitter draw the plan resolves always passes: its settling, five R_E·C_E,
+    is half of the plan's ten bias time constants.)"""
+    f0 = float(d.topo.frequency(d.values, d.stray))
+    return stage_of(d.params).settling_time(d.params) * f0
+
+
+def select(
+    seed: int = SEED, count: int = COUNT, prefix: str = "d", stage: str = "common-emitter"
+) -> list[Design]:
+    """``count`` seeded draws of ``stage``, kept by quota on the linear model's start-up
+    margin."""
     rng = np.random.default_rng(seed)
     want = [round(share * count) for *_, share in QUOTAS]
     want[-1] += count - sum(want)
@@ -182,10 +212,11 @@ def select(seed: int = SEED, count: int = COUNT, prefix: str = "d") -> list[Desi
         tries += 1
         if tries > 200 * count:
             raise RuntimeError("the quotas cannot be filled; widen the ranges")
-        d = draw(rng, len(out), prefix=prefix)
+        d = draw(rng, len(out), prefix=prefix, stage=stage)
         if (
             d is None
             or not transient_plan(d.topo, d.values, d.stray, d.params, max_cycles=LONGEST).resolved
+            or settling_cycles(d) > LONGEST
         ):
             continue
         m = float(loaded_response(d.topo, d.values, d.stray, d.params).margin)
@@ -197,9 +228,9 @@ def select(seed: int = SEED, count: int = COUNT, prefix: str = "d") -> list[Desi
     return out
 
 
-def simulate_all(designs: list[Design]) -> list[dict[str, object]]:
-    """ngspice's answer for each design, two processes at a time."""
-    with ThreadPoolExecutor(max_workers=WORKERS) as pool:
+def simulate_all(designs: list[Design], workers: int = WORKERS) -> list[dict[str, object]]:
+    """ngspice's answer for each design, ``workers`` processes at a time."""
+    with ThreadPoolExecutor(max_workers=workers) as pool:
         return list(pool.map(run_design, designs))
 
 
@@ -209,12 +240,16 @@ def make(
     count: int = COUNT,
     extra: int = UNBYPASSED,
     prefix: str = "d",
+    stage: str = "common-emitter",
+    workers: int = WORKERS,
 ) -> None:
-    """Draw ``count`` designs by quota and ``extra`` unbypassed ones from ``seed``, run
-    them in ngspice and write ``path``."""
-    designs = select(seed, count, prefix) + unbypassed(seed + 1, extra, count, prefix)
+    """Draw ``count`` designs of ``stage`` by quota and ``extra`` unbypassed ones (the
+    common-emitter stage's) from ``seed``, run them in ngspice and write ``path``."""
+    designs = select(seed, count, prefix, stage)
+    if extra:
+        designs += unbypassed(seed + 1, extra, count, prefix)
     t0 = time.perf_counter()
-    answers = simulate_all(designs)
+    answers = simulate_all(designs, workers)
     wall = time.perf_counter() - t0
     records = [
         {"design": design_to_dict(d), "ngspice": a} for d, a in zip(designs, answers, strict=True)
@@ -236,7 +271,7 @@ def make(
     path.parent.mkdir(parents=True, exist_ok=True)
     path.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n", encoding="utf-8")
     print(f"wrote {path}: {len(designs)} designs, states {data['states']}")
-    print(f"ngspice wall time {wall:.0f} s with {WORKERS} workers")
+    print(f"ngspice wall time {wall:.0f} s with {workers} workers")
 
 
 def stats(path: Path = OUT) -> None:
@@ -274,13 +309,15 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--count", type=int, default=COUNT, help="designs drawn by quota")
     ap.add_argument("--unbypassed", type=int, default=UNBYPASSED, help="unbypassed designs")
     ap.add_argument("--prefix", default="d", help="prefix of the design ids")
+    ap.add_argument("--stage", default="common-emitter", help="the bjt stage drawn (issue 12)")
+    ap.add_argument("--workers", type=int, default=WORKERS, help="ngspice processes at a time")
     args = ap.parse_args(argv)
     if args.stats:
         stats(args.out)
         return 0
     if args.check:
         return check(args.check, args.out)
-    make(args.out, args.seed, args.count, args.unbypassed, args.prefix)
+    make(args.out, args.seed, args.count, args.unbypassed, args.prefix, args.stage, args.workers)
     return 0
 
 

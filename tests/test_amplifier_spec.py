@@ -61,7 +61,7 @@ def test_to_params_takes_inductor_and_capacitor_loss_from_parts():
         ({"supply": "-9 V"}, "amplifier.supply", "positive"),
         ({"colector": "1k"}, "amplifier.colector", "unknown key"),
         ({"kind": "tube"}, "amplifier.kind", "bjt"),
-        ({"stage": "common-base"}, "amplifier.stage", "one of common-emitter, common-source"),
+        ({"stage": "common-plate"}, "amplifier.stage", "one of common-emitter, common-source"),
         ({"stage": ["common-emitter"]}, "amplifier.stage", "one of common-emitter"),
         ({"kind": "bjt", "stage": "common-source"}, "amplifier.stage", "kind = 'bjt'"),
     ],

@@ -13,7 +13,7 @@ from picker.circuit.amplifier import AmplifierParams, ideal_params
 from picker.circuit.amplitude import amplitude_estimate, capacitor_stress, cautions
 from picker.circuit.network import loop_gain, loop_gain_matrix
 from picker.circuit.oscillation import loaded_response
-from picker.circuit.stages import bias, small_signal
+from picker.circuit.stages import bias, get_stage, small_signal
 from picker.circuit.stages.common_emitter import bessel_ratio
 from picker.tank.base import TWO_PI
 from picker.tank.clapp import CLAPP
@@ -241,3 +241,11 @@ def test_stress_and_cautions():
     assert any("blocking" in m for m in cautions(COLPITTS, v, no_cb, {}))
     big = {"C1": 10e-6, "C2": 22e-6, "L": 1e-3}
     assert any("electrolytic" in m for m in cautions(COLPITTS, big, REAL, {}))
+
+
+def test_common_emitter_and_common_source_need_the_textbook_gain():
+    # Sedra & Smith, Microelectronic Circuits, Colpitts section: gm·R ≥ C2/C1 (the fet's
+    # common-source Colpitts is the same loop with r_pi = ∞)
+    v = {"C1": np.array([1e-9, 470e-12]), "C2": np.array([2.2e-9, 3.3e-9]), "L": 1e-6}
+    for name in ("common-emitter", "common-source"):
+        assert_allclose(get_stage(name).required_gain(COLPITTS, v), v["C2"] / v["C1"], rtol=1e-12)

@@ -51,6 +51,7 @@ class AmplifierParams:
     l_choke, r_choke: RF choke to the supply (inductance H, winding resistance ohm).
     r_b1, r_b2: base divider, supply-to-base and base-to-ground, ohm (r_b2 None: single R_B).
     r_e, c_e: emitter resistor and its bypass capacitor (c_e None: unbypassed, degeneration).
+    c_base: the base's bypass capacitor to ground (the common-base stage), F.
     c_block: DC-blocking capacitor collector → tank (None: missing; flagged where the
         tank's bridge passes DC, as in a Colpitts).
     inductor_esr: series loss resistance of the inductor, ohm.
@@ -84,6 +85,7 @@ class AmplifierParams:
     r_e: float | None = None
     c_e: float | None = None
     c_block: float | None = None
+    c_base: float | None = None
     inductor_esr: float = 0.0
     inductor_q: float | None = None
     q_frequency: float | None = None

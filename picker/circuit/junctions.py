@@ -72,13 +72,14 @@ def port_matrix(net: Network, idx: np.ndarray, s: np.ndarray) -> np.ndarray:
     n, k = s.shape[0], len(index)
     y = nodal_matrix(junction_free_stamps(net, idx, s), stage.nodes, n)
     u = np.zeros((n, k, 2), dtype=complex)
-    com = index[stage.common]
+    com = index.get(stage.common)  # None: the common node is the reference "0"
     u[:, index[stage.output], 0] -= 1.0
     u[:, index[stage.input], 1] -= 1.0
-    u[:, com, :] += 1.0
+    if com is not None:
+        u[:, com, :] += 1.0
     x = np.linalg.solve(y, u)
     b, c, t = x[:, index[stage.input], :], x[:, index[stage.output], :], x[:, index[stage.top], :]
-    return np.stack([b - x[:, com, :], b - c, t], axis=1)
+    return np.stack([b - (x[:, com, :] if com is not None else 0.0), b - c, t], axis=1)
 
 
 def _basis(n_harm: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

@@ -12,6 +12,7 @@ Example (every quantity accepts engineering strings; bare numbers are SI)::
     r_emitter = "1 kohm"
     c_emitter = "100 nF"         # omit: unbypassed emitter (degeneration)
     c_coupling = "10 nF"         # collector-to-tank blocking capacitor; omit: none (flagged)
+    c_base = "100 nF"            # base bypass to ground (the common-base stage's)
     min_margin = 2.0             # smallest acceptable start-up margin (default 2)
     max_margin = 20              # largest acceptable start-up margin (omit: no bound)
     monte_carlo = "surrogate"    # or "full": the loaded model on every simulated board
@@ -59,6 +60,7 @@ _UNITS = {
     "r_emitter": "ohm",
     "c_emitter": "F",
     "c_coupling": "F",
+    "c_base": "F",
 }
 _MAY_BE_ZERO = {"choke_resistance", "c_pi", "c_mu"}
 
@@ -88,6 +90,7 @@ class AmplifierSpec(BaseModel):
     r_emitter: float | None = None
     c_emitter: float | None = None
     c_coupling: float | None = None
+    c_base: float | None = None
     min_margin: float = 2.0
     max_margin: float | None = None
     monte_carlo: Literal["surrogate", "full"] = "surrogate"
@@ -172,7 +175,16 @@ class AmplifierSpec(BaseModel):
 
     @model_validator(mode="after")
     def _consistent(self) -> AmplifierSpec:
-        if (self.r_load is None) == (self.choke is None):
+        # the stage registry (its modules import scipy.special): only with an [amplifier]
+        from picker.circuit.stages import STAGES
+
+        if not STAGES[self.stage].collector_load:
+            if self.r_load is not None or self.choke is not None:
+                raise ValueError(
+                    f"expected no collector load for the {self.stage} stage (its collector "
+                    "goes to the supply); got r_load or choke"
+                )
+        elif (self.r_load is None) == (self.choke is None):
             raise ValueError("expected exactly one collector load: r_load or choke")
         if self.r_bias_bottom is not None and self.r_bias_top is None:
             raise ValueError("r_bias_bottom needs r_bias_top (the resistor from the supply)")
@@ -227,6 +239,7 @@ class AmplifierSpec(BaseModel):
             r_e=self.r_emitter,
             c_e=self.c_emitter,
             c_block=self.c_coupling,
+            c_base=self.c_base,
             inductor_esr=float(esr_l) if (q is None and esr_l) else 0.0,
             inductor_q=float(q) if q is not None else None,
             q_frequency=getattr(ind, "q_frequency", None) if q is not None else None,

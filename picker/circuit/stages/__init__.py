@@ -16,6 +16,8 @@ from picker.circuit.stages.base import STAGES, Stage
 # lists the stages) keeps this order, so the imports are not sorted.
 from picker.circuit.stages import common_emitter  # noqa: F401, I001  # isort: skip
 from picker.circuit.stages import common_source  # noqa: F401, I001  # isort: skip
+from picker.circuit.stages import common_collector  # noqa: F401, I001  # isort: skip
+from picker.circuit.stages import common_base  # noqa: F401, I001  # isort: skip
 
 __all__ = [
     "STAGES",

@@ -16,7 +16,13 @@ Every stage names four nodes (:attr:`Stage.nodes`) by their roles: ``output``
 (where the controlled source delivers its current), ``top`` (the tank's output
 end, which the output drives, possibly through a coupling capacitor),
 ``input`` (the tank's input end; the controlling voltage is input − common)
-and ``common``. "0" is ground (the AC ground of the supply too).
+and ``common``. "0" is the reference node of the small-signal network: the
+tank's common end (its two feedback capacitors meet there). For a stage with its
+emitter grounded through its bias parts that is ground (the AC ground of the
+supply too); a stage whose emitter is the tank's common end (the emitter follower,
+the common-base stage) names the emitter "0" and gives ground its own node, which
+nodal analysis allows (any node may be the reference; the return ratio and every
+voltage difference are the same).
 
 Adding an amplifier stage
 -------------------------
@@ -168,6 +174,9 @@ class Stage:
         so appear in the stress figures (a blocking capacitor).
     has_device_law : whether the stage implements :meth:`output_current` (the harmonic
         balance of :mod:`picker.circuit.harmonic` then corrects its steady frequency).
+    collector_load : whether the stage takes a collector (drain) load, the spec's
+        ``r_load`` or ``choke`` (an emitter follower's collector goes straight to the
+        supply: no load).
     """
 
     name: ClassVar[str]
@@ -179,6 +188,7 @@ class Stage:
     common: ClassVar[str] = "e"
     coupling_parts: ClassVar[tuple[str, ...]] = ()
     has_device_law: ClassVar[bool] = False
+    collector_load: ClassVar[bool] = True
     _instance: ClassVar[Stage | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:
@@ -203,7 +213,8 @@ class Stage:
     @property
     def nodes(self) -> tuple[str, ...]:
         """The stage's nodes in the order of the nodal matrix (ground excluded)."""
-        return tuple(dict.fromkeys((self.output, self.top, self.input, self.common)))
+        roles = (self.output, self.top, self.input, self.common)
+        return tuple(n for n in dict.fromkeys(roles) if n != "0")
 
     # ------------------------------------------------------------ bias and device values
 

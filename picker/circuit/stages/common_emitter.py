@@ -49,7 +49,7 @@ from picker.circuit.stages.base import (
 )
 from picker.tank.base import Topology
 
-__all__ = ["CommonEmitter", "bessel_ratio"]
+__all__ = ["CommonEmitter", "bessel_ratio", "solve_loop"]
 
 #: Largest drive x = V_be,peak/V_T the amplitude bisection searches (a swing far beyond
 #: any bias network: where even this cannot bring G_m down to gm/margin, the stage is
@@ -108,6 +108,58 @@ def _bias_shift(
     return gain
 
 
+def solve_loop(
+    s: np.ndarray,
+    tank: tuple[Any, Any, Any],
+    adm: tuple[Any, Any, Any, Any, Any, Any, Any],
+    gm: Any,
+    names: tuple[str, str, str, str] | None = None,
+) -> Any:
+    """Return ratio of the common-emitter network (and node voltages under ``names``).
+
+    Nodes c (output), t (tank top), b (input), e (common) over ground "0": the tank's
+    (Y_out t–0, Y_in b–0, Y_bridge t–b) and the branch admittances ``adm`` = (load c–0,
+    bias b–0, y_pi b–e, y_mu b–c, g_o c–e, y_e e–0 or None for a grounded emitter, y_cb
+    c–t or None for c and t one node); the controlled source gm·(v_b − v_e) from c to e.
+    Node t touches only c and b, so it is eliminated first (Schur complement); the
+    remaining symmetric system over (c, b, e) is solved by cofactors (Cramer's rule).
+    The test source injects −1 A at c and +1 A at e (vector u' = e_c − e_e);
+    T = −gm·(x_b − x_e) (Bode's return ratio, :mod:`picker.circuit.network`). Other
+    stages whose network has this shape after relabelling its nodes call it too.
+    """
+    y1, y2, ytb = tank
+    y_load, g_bias, y_pi, y_mu, g_o, y_e, y_cb = adm
+    if y_cb is None:  # c and t are one node
+        a = y_load + y_mu + g_o + y1 + ytb
+        d = -y_mu - ytb
+        bb = ytb + y2 + g_bias + y_pi + y_mu
+        ytt = None
+    else:
+        ytt = y_cb + y1 + ytb
+        a = y_load + y_cb + y_mu + g_o - y_cb * y_cb / ytt
+        d = -y_mu - y_cb * ytb / ytt
+        bb = ytb + y2 + g_bias + y_pi + y_mu - ytb * ytb / ytt
+    if y_e is None:  # grounded emitter: 2x2 over (c, b), source at c only
+        det = a * bb - d * d
+        xc, xb, xe = bb / det, -d / det, 0.0 * det
+    else:
+        e, f = -g_o + 0.0 * s, -y_pi
+        c = y_e + y_pi + g_o
+        k_cc = bb * c - f * f
+        k_cb = e * f - d * c
+        k_ce = d * f - bb * e
+        k_be = d * e - a * f
+        k_ee = a * bb - d * d
+        det = a * k_cc + d * k_cb + e * k_ce
+        xc, xb, xe = (k_cc - k_ce) / det, (k_cb - k_be) / det, (k_ce - k_ee) / det
+    t = -gm * (xb - xe)
+    if names is None:
+        return t
+    xt = xc if ytt is None else (y_cb * xc + ytb * xb) / ytt
+    c_, t_, b_, e_ = names
+    return t, {c_: xc, t_: xt, b_: xb, e_: xe}
+
+
 class CommonEmitter(Stage):
     """The common-emitter bjt stage (the project's generic NPN unless told otherwise)."""
 
@@ -117,6 +169,11 @@ class CommonEmitter(Stage):
     coupling_parts = ("CB",)
 
     # ------------------------------------------------------------ bias and device values
+
+    def collector_dc(self, params: AmplifierParams) -> float:
+        """DC resistance from the supply to the collector, ohm (the load resistor, or the
+        choke's winding)."""
+        return params.r_collector_dc
 
     def bias(self, params: AmplifierParams) -> BiasPoint | None:
         """DC bias point from the base divider (:func:`picker.circuit.device.bias_point`),
@@ -128,7 +185,7 @@ class CommonEmitter(Stage):
             r_b1=params.r_b1,
             r_b2=params.r_b2,
             r_e=params.r_e,
-            r_collector_dc=params.r_collector_dc,
+            r_collector_dc=self.collector_dc(params),
             device=params.effective_device(),
             temperature_c=params.temperature_c,
         )
@@ -251,45 +308,14 @@ class CommonEmitter(Stage):
         *,
         nodes: bool = False,
     ) -> Any:
-        """Closed-form loop gain T (and optionally node responses) by Schur elimination.
-
-        Node t (tank top) touches only c and b, so it is eliminated first; the
-        remaining symmetric system over (c, b, e) is solved by cofactors
-        (Cramer's rule). The test source injects −1 A at c and +1 A at e
-        (vector u' = e_c − e_e); T = −gm·(x_b − x_e).
-        """
+        """Closed-form loop gain T (and optionally node responses): :func:`solve_loop`
+        with the bleed resistor (if any) from the tank top to ground."""
         y1, y2, ytb = tank
         if self.needs_bleed(topology, params):
             y1 = y1 + 1.0 / params.r_bleed
-        y_load, g_bias, y_pi, y_mu, g_o, y_e, y_cb = self._admittances(s, params, ss)
-        if y_cb is None:  # c and t are one node
-            a = y_load + y_mu + g_o + y1 + ytb
-            d = -y_mu - ytb
-            bb = ytb + y2 + g_bias + y_pi + y_mu
-            ytt = None
-        else:
-            ytt = y_cb + y1 + ytb
-            a = y_load + y_cb + y_mu + g_o - y_cb * y_cb / ytt
-            d = -y_mu - y_cb * ytb / ytt
-            bb = ytb + y2 + g_bias + y_pi + y_mu - ytb * ytb / ytt
-        if y_e is None:  # grounded emitter: 2x2 over (c, b), source at c only
-            det = a * bb - d * d
-            xc, xb, xe = bb / det, -d / det, 0.0 * det
-        else:
-            e, f = -g_o + 0.0 * s, -y_pi
-            c = y_e + y_pi + g_o
-            k_cc = bb * c - f * f
-            k_cb = e * f - d * c
-            k_ce = d * f - bb * e
-            k_be = d * e - a * f
-            k_ee = a * bb - d * d
-            det = a * k_cc + d * k_cb + e * k_ce
-            xc, xb, xe = (k_cc - k_ce) / det, (k_cb - k_be) / det, (k_ce - k_ee) / det
-        t = -ss.gm * (xb - xe)
-        if not nodes:
-            return t
-        xt = xc if ytt is None else (y_cb * xc + ytb * xb) / ytt
-        return t, {self.output: xc, self.top: xt, self.input: xb, self.common: xe}
+        adm = self._admittances(s, params, ss)
+        names = (self.output, self.top, self.input, self.common)
+        return solve_loop(s, (y1, y2, ytb), adm, ss.gm, names if nodes else None)
 
     # ------------------------------------------------------------ large signal
 
@@ -342,7 +368,7 @@ class CommonEmitter(Stage):
             c_e=c_e,
             beta=dev.bf,
             v_out=b.vce,
-            r_out=params.r_collector_dc,
+            r_out=self.collector_dc(params),
             v_knee=V_CE_SAT,
         )
 
@@ -482,6 +508,17 @@ class CommonEmitter(Stage):
             lines.append(f"RB2 {self.input} 0 {g(params.r_b2)}")
         return lines
 
+    def model_card(self, params: AmplifierParams, bias: BiasPoint) -> str:
+        """The ``.model`` line of the device, made to reproduce the small-signal
+        capacitances the model uses: CJE = C_pi − TF·I_C/V_T (equation (D4)), TF reduced
+        where C_pi is smaller than the diffusion part, CJC = C_mu."""
+        dev = params.effective_device()
+        ss = self.small_signal(params)
+        vt = thermal_voltage(params.temperature_c)
+        cje = max(ss.c_pi - dev.tf * bias.ic / vt, 0.0)
+        tf = dev.tf if ss.c_pi >= dev.tf * bias.ic / vt else ss.c_pi * vt / bias.ic
+        return replace(dev, cje=cje, tf=tf, cjc=ss.c_mu).model_card()
+
     def netlist(
         self,
         topology: Topology,
@@ -497,13 +534,7 @@ class CommonEmitter(Stage):
         if bias is None:
             raise ValueError("netlist export needs the base bias network (r_b1, r_b2)")
         g = spice_number
-        dev = params.effective_device()
-        ss = self.small_signal(params)
-        vt = thermal_voltage(params.temperature_c)
-        # make the card reproduce the small-signal capacitances the model uses
-        cje = max(ss.c_pi - dev.tf * bias.ic / vt, 0.0)
-        tf = dev.tf if ss.c_pi >= dev.tf * bias.ic / vt else ss.c_pi * vt / bias.ic
-        card = replace(dev, cje=cje, tf=tf, cjc=ss.c_mu).model_card()
+        card = self.model_card(params, bias)
         col = self.output if params.c_block is not None else self.top
         bleed = params.r_bleed if self.needs_bleed(topology, params) else None
         lines = [

@@ -1,0 +1,279 @@
+"""The common-base stage: base decoupled to ground, the tank fed back from collector to emitter.
+
+The circuit (the common-base Colpitts usual at VHF; Sedra & Smith, *Microelectronic
+Circuits*, LC oscillators, and Razavi, *RF Microelectronics*, Colpitts oscillator,
+attributions from memory): the base divider R_B1 (supply) / R_B2 (ground) is bypassed
+to ground by C_base (``c_base``), so the base is at AC ground. The collector drives the
+tank top ``t`` through the DC-blocking capacitor C_B (``c_block``; without it ``t`` is
+the collector and the inductor feeds it from the supply); C1 runs from the tank top to
+the emitter, C2 from the emitter to the supply rail (AC ground; an ideal supply makes
+it the same as to ground), and the inductor (with C3 in series for a Clapp) from the
+tank top to the supply. The collector load (R_C, or a choke) goes to the supply; the
+emitter to ground through R_E.
+
+Picker's tank convention holds unchanged: C1 across the stage's output
+(collector–emitter), C2 across its input (base–emitter, the base being AC ground), L
+from output to input; the feedback fraction beta = C1/C2 sets how much of the
+collector–emitter swing reaches the emitter through the divider.
+
+Small-signal network. As for the emitter follower
+(:mod:`picker.circuit.stages.common_collector`), the tank's feedback capacitors meet at
+the emitter, so the emitter is the reference node "0" (nodal analysis may take any node
+as reference) and the base, the supply and ground (one AC node with an ideal base
+bypass) are node ``b``. Stamps: R_C (or the choke) c–b, C_B c–t, the bleed t–b, R_E and
+r_pi ∥ C_pi b–0, C_mu b–c, r_o c–0. Relabelled, this is the common-emitter network with
+a grounded emitter (:func:`picker.circuit.stages.common_emitter.solve_loop`): no load to
+the reference, the collector load beside C_mu, R_E in the bias position. The model's
+swing at the tank top is taken from the emitter (the swing across C1); the netlist's
+``t`` is measured to ground. The base bypass is taken as a short (the netlist has the
+real C_base).
+
+Start-up (derived here; checked numerically in tests/test_common_base.py). With an
+ideal device (β → ∞, no capacitance, r_o → ∞), no R_E, a lossless tank and the load R
+(collector to AC ground, across the bridge), the return ratio is
+T = −gm·Y_p/(Y1·Y2 + (Y1 + Y2)·Y_p), Y_p = G + jB the bridge with the load beside it,
+Y1 = jωC1, Y2 = jωC2. T = 1 is Y1·Y2/Y_p + Y1 + Y2 = −gm; its imaginary part,
+ω²·C1·C2·B/(G² + B²) + ω·(C1 + C2) = 0, gives in the high-Q limit (G ≪ |B|)
+B = −ω·C1·C2/(C1 + C2): the tank's own resonance (ω0² = (C1 + C2)/(L·C1·C2) for a
+Colpitts, Clapp's formula with C3); its real part, ω²·C1·C2·G/(G² + B²) = gm, then gives
+gm·R = (C1 + C2)²/(C1·C2) = (1 + beta)²/beta (:meth:`required_gain`):
+4 at C1 = C2, the textbook minimum of the common-base Colpitts (Razavi, *RF
+Microelectronics*, Colpitts oscillator: g_m·R_p ≥ 4, from memory). Unlike the
+common-emitter stage, the emitter's own input conductance (gm, the current the
+emitter draws) loads the divider, so the gain needed never falls below 4.
+
+Large signal: the bjt's exponential describing function on the base–emitter junction
+and the bias shift through the divider and R_E as for the common-emitter stage
+(:meth:`CommonEmitter.bias_loop`); the collector saturates when its swing pulls it
+below the base, as there.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.device import SmallSignal
+from picker.circuit.stages.base import KICK_FRACTION, StageNetlist, Stamp, need, spice_number
+from picker.circuit.stages.common_collector import rename_nodes
+from picker.circuit.stages.common_emitter import SHORT, CommonEmitter, solve_loop
+from picker.tank.base import Topology
+
+__all__ = ["CommonBase"]
+
+
+class CommonBase(CommonEmitter):
+    """The common-base bjt stage with divider bias and a bypassed base."""
+
+    name = "common-base"
+    device = "bjt"
+    default_for_device = False
+    output = "c"
+    top = "t"
+    input = "b"
+    common = "0"
+    coupling_parts = ("CB",)
+
+    # ------------------------------------------------------------ bias and device values
+
+    def collector_dc(self, params: AmplifierParams) -> float:
+        """The load's DC resistance (a ValueError for an emitter bypass, which would short
+        the emitter's feedback)."""
+        if params.c_e is not None:
+            raise ValueError(
+                "the common-base stage takes no emitter bypass (c_emitter): the tank feeds "
+                "the emitter"
+            )
+        return params.r_collector_dc
+
+    def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
+        """β → ∞, C_pi = C_mu = 0, r_o → ∞, no bias network, R_C = ``r_load``."""
+        return AmplifierParams(
+            kind=self.device,
+            stage=self.name,
+            gm=gm,
+            current_gain=math.inf,
+            r_o=math.inf,
+            c_pi=0.0,
+            c_mu=0.0,
+            r_c=r_load,
+        )
+
+    def typical_params(self) -> AmplifierParams:
+        """A 9 V stage at about 0.5 mA (invented values, not a real circuit)."""
+        return AmplifierParams(
+            kind=self.device,
+            stage=self.name,
+            vcc=9.0,
+            r_c=2200.0,
+            r_b1=47e3,
+            r_b2=10e3,
+            r_e=2200.0,
+            c_block=10e-9,
+            c_base=100e-9,
+            inductor_q=50.0,
+        )
+
+    # ------------------------------------------------------------ start-up
+
+    def required_gain(self, topology: Topology, values: Mapping[str, Any]) -> Any:
+        """(C1 + C2)²/(C1·C2) = (1 + β)²/β of the feedback pair (module docstring: derived
+        here, the high-Q limit of the edge; 4 at C1 = C2)."""
+        out, inp = topology.feedback_pair
+        c1, c2 = np.asarray(values[out]), np.asarray(values[inp])
+        return (c1 + c2) ** 2 / (c1 * c2)
+
+    # ------------------------------------------------------------ the small-signal network
+
+    def _branches(self, s: np.ndarray, params: AmplifierParams, ss: SmallSignal) -> dict[str, Any]:
+        """The stage's branch admittances at ``s`` by name."""
+        if params.l_choke is not None:
+            y_load = 1.0 / (params.r_choke + s * params.l_choke)
+        else:
+            y_load = 1.0 / need(params.r_c, "a collector load: r_c or l_choke") + 0.0 * s
+        return {
+            "load": y_load,
+            "re": (0.0 if params.r_e is None else 1.0 / params.r_e) + 0.0 * s,
+            "pi": 1.0 / ss.r_pi + s * ss.c_pi,
+            "mu": s * ss.c_mu,
+            "o": 1.0 / ss.r_o + 0.0 * s,
+            "cb": None if params.c_block is None else s * params.c_block,
+        }
+
+    def stamps(
+        self, s: np.ndarray, topology: Topology, params: AmplifierParams, ss: SmallSignal
+    ) -> list[Stamp]:
+        """Load (c–b), C_B (c–t; a 1 MS short without it), bleed (t–b), R_E (b–0), y_pi
+        (b–0), y_mu (b–c), g_o (c–0)."""
+        c, t, b = self.output, self.top, self.input
+        y = self._branches(s, params, ss)
+        out = [
+            Stamp(c, b, y["load"]),
+            Stamp(c, t, SHORT + 0 * s if y["cb"] is None else y["cb"]),
+            Stamp(b, "0", y["re"]),
+            Stamp(b, "0", y["pi"]),
+            Stamp(b, c, y["mu"]),
+            Stamp(c, "0", y["o"]),
+        ]
+        if self.needs_bleed(topology, params):
+            out.append(Stamp(t, b, 1.0 / params.r_bleed + 0 * s))
+        return out
+
+    def loop_gain(
+        self,
+        s: np.ndarray,
+        tank: tuple[Any, Any, Any],
+        topology: Topology,
+        params: AmplifierParams,
+        ss: SmallSignal,
+        *,
+        nodes: bool = False,
+    ) -> Any:
+        """:func:`solve_loop` on the relabelled network (module docstring); the bleed
+        (t–b) lies beside the tank's bridge."""
+        y1, y2, ytb = tank
+        if self.needs_bleed(topology, params):
+            ytb = ytb + 1.0 / params.r_bleed
+        y = self._branches(s, params, ss)
+        adm = (0.0 * s, y["re"], y["pi"], y["mu"] + y["load"], y["o"], None, y["cb"])
+        names = (self.output, self.top, self.input, self.common)
+        return solve_loop(s, (y1, y2, ytb), adm, ss.gm, names if nodes else None)
+
+    def loaded_tank(
+        self, topology: Topology, values: Mapping[str, Any], ss: SmallSignal
+    ) -> dict[str, Any]:
+        """C_pi across C2 (base–emitter, the base at AC ground); C_mu runs from the
+        collector to AC ground, beside the bridge, and is left to the root finder."""
+        return topology.with_end_capacitance(values, 0.0, ss.c_pi)
+
+    # ------------------------------------------------------------ DC voltages, cautions
+
+    def tank_top_dc(self, topology: Topology, params: AmplifierParams, vc: float) -> float:
+        """DC voltage of the tank top: the supply through the inductor (or, with C_B and a
+        bridge that blocks DC, through the bleed); without C_B, the collector's."""
+        if params.c_block is None and not topology.bridge_passes_dc:
+            return vc
+        return params.vcc
+
+    def dc_voltages(self, topology: Topology, params: AmplifierParams) -> dict[str, float]:
+        """The tank's parts from the emitter (the tank's common end), C2 from the emitter
+        to the supply rail; C_B between the collector and the tank top."""
+        b = self.bias(params)
+        if b is None:
+            return super().dc_voltages(topology, params)
+        top = self.tank_top_dc(topology, params, b.vc)
+        out = {k: abs(v) for k, v in topology.dc_across(top - b.ve, params.vcc - b.ve).items()}
+        if params.c_block is not None:
+            out["CB"] = abs(b.vc - top)
+        return out
+
+    def cautions(self, topology: Topology, params: AmplifierParams) -> list[str]:
+        """The inductor feeding the collector past its load (a Colpitts without C_B); no
+        base bypass; a bias that saturates the transistor."""
+        out = []
+        if params.c_block is None and topology.bridge_passes_dc:
+            out.append(
+                "no DC-blocking capacitor between collector and tank: L feeds the collector "
+                "from the supply, past the collector load (the bias point's V_C is then the "
+                "supply)"
+            )
+        if params.c_base is None:
+            out.append(
+                "no base bypass (c_base): the model takes the base as AC ground; the netlist "
+                "needs the capacitor"
+            )
+        b = self.bias(params)
+        if b is not None and b.saturated:
+            out.append("the bias network saturates the transistor (V_BC > 0.4 V)")
+        return out
+
+    # ------------------------------------------------------------ netlist
+
+    def settling_time(self, params: AmplifierParams) -> float:
+        """Five time constants R_th·C_base of the bypassed base (R_th = R_B1 ∥ R_B2)."""
+        if params.c_base is None or params.r_b1 is None:
+            return 0.0
+        r_th = params.r_b1 if params.r_b2 is None else 1.0 / (1 / params.r_b1 + 1 / params.r_b2)
+        return 5.0 * r_th * params.c_base
+
+    def netlist(
+        self,
+        topology: Topology,
+        values: Mapping[str, float],
+        stray: float,
+        r_l: float,
+        params: AmplifierParams,
+    ) -> StageNetlist:
+        """The generic NPN (as the common-emitter stage's netlist), the collector load and
+        C_B, the tank between the tank top ``t``, the emitter ``e`` and the supply rail,
+        the base divider with its bypass, R_E."""
+        bias = self.bias(params)
+        if bias is None:
+            raise ValueError("netlist export needs the base bias network (r_b1, r_b2)")
+        c_base = need(params.c_base, "a base bypass capacitor (c_base)")
+        g = spice_number
+        col = self.output if params.c_block is not None else self.top
+        tank = topology.netlist_lines(values, stray, r_l, params.capacitor_esr, self.top, "vcc")
+        lines = [
+            "* generic small-signal NPN: typical of the class (values from memory), not a real part",
+            "* common base: the base bypassed to ground, the tank from t to the emitter e",
+            *self.passive_lines(params, col),
+            *rename_nodes(tank, {"0": "e"}),
+        ]
+        if self.needs_bleed(topology, params):
+            lines.append(f"RBLEED {self.top} vcc {g(params.r_bleed)}")
+        lines += self.bias_lines(params, need(params.r_b1, "r_b1"))
+        lines.append(f"CBASE {self.input} 0 {g(c_base)}")
+        card = self.model_card(params, bias)
+        lines.append(f"Q1 {col} {self.input} e {card.split()[1]}")
+        lines.append(f"RE e 0 {g(need(params.r_e, 'r_e'))}")
+        return StageNetlist(
+            elements=lines,
+            models=[card],
+            kick=KICK_FRACTION * bias.ic,
+            top_dc=self.tank_top_dc(topology, params, bias.vc),
+        )

@@ -1,0 +1,73 @@
+"""The bias point of every registered bjt stage against ngspice's operating point (.op).
+
+For each stage's typical design (:meth:`Stage.typical_params`), the stage's own netlist
+lines (tank, bias network, device card) are run through ngspice's ``op`` analysis; the
+collector and base currents of Q1 and the base voltage must match the stage's bias
+solution (:meth:`Stage.bias`) to 1 % (issue 12's target). The outside reference is
+ngspice's DC solution of the same circuit.
+"""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import tempfile
+from pathlib import Path
+
+import pytest
+
+from picker.circuit.ngspice import ngspice_path
+from picker.circuit.stages import STAGES, Stage
+from picker.errors import SolverError
+from picker.tank.clapp import CLAPP
+from picker.tank.colpitts import COLPITTS
+
+BJT_STAGES = [pytest.param(s, id=s.name) for s in STAGES.values() if s.device == "bjt"]
+TANKS = [
+    pytest.param(COLPITTS, {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}, id="colpitts"),
+    pytest.param(CLAPP, {"C1": 1e-9, "C2": 2.2e-9, "C3": 220e-12, "L": 22e-6}, id="clapp"),
+]
+
+
+def _op(lines: list[str], models: list[str], node: str) -> dict[str, float]:
+    """Q1's collector and base currents and v(node) from ngspice's operating point."""
+    text = "\n".join(
+        [
+            "bias point",
+            *lines,
+            *models,
+            ".control",
+            "op",
+            "let icq = @q1[ic]",
+            "let ibq = @q1[ib]",
+            f"print icq ibq v({node})",
+            ".endc",
+            ".end",
+        ]
+    )
+    with tempfile.TemporaryDirectory(prefix="picker-op-") as tmp:
+        cir = Path(tmp) / "op.cir"
+        cir.write_text(text + "\n", encoding="utf-8")
+        out = subprocess.run(
+            [ngspice_path(), "-b", str(cir)], capture_output=True, text=True, timeout=60
+        ).stdout
+    found = dict(re.findall(r"^(\S+) = (\S+)$", out, flags=re.M))
+    return {k: float(v) for k, v in found.items()}
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("stage", BJT_STAGES)
+@pytest.mark.parametrize(("topology", "values"), TANKS)
+def test_bias_point_matches_ngspice_operating_point(stage: Stage, topology, values):
+    try:
+        ngspice_path()
+    except SolverError as exc:
+        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
+    params = stage.typical_params()
+    bias = stage.bias(params)
+    assert bias is not None
+    part = stage.netlist(topology, values, 0.0, 1.0, params)
+    op = _op(part.elements, part.models, stage.input)
+    assert abs(op["icq"] / bias.ic - 1) < 0.01
+    assert abs(op["ibq"] / bias.ib - 1) < 0.01
+    assert abs(op[f"v({stage.input})"] / bias.vb - 1) < 0.01
