@@ -85,9 +85,14 @@ def hurwitz_conditions(m: np.ndarray) -> np.ndarray:
     :data:`HURWITZ`: an (N, :data:`HURWITZ`) array whose entries are all positive exactly
     when every eigenvalue of the matrix has a negative real part.
 
-    The characteristic polynomial det(sI − m) = s^n + a_1·s^(n−1) + … + a_n by the
-    Leverrier-Faddeev recursion B_1 = I, a_k = −tr(m·B_k)/k, B_(k+1) = m·B_k + a_k·I
-    (Gantmacher, *The Theory of Matrices*, vol. 1, 1959, ch. IV §4). The Routh-Hurwitz
+    The characteristic polynomial det(sI − m) = Π (s − λ_i) = s^n + a_1·s^(n−1) + … + a_n,
+    its coefficients the elementary symmetric functions of the eigenvalues λ_i (Vieta;
+    multiplied out factor by factor from ``numpy.linalg.eigvals``). The Leverrier-Faddeev
+    recursion (Gantmacher, *The Theory of Matrices*, vol. 1, 1959, ch. IV §4), used at
+    first, loses every digit of a_n on stiff Jacobians (eigenvalues 10⁸ apart: the
+    emitter follower's bias nodes), giving a_n of either sign where every eigenvalue lies
+    well inside the left half-plane. The coefficients are symmetric polynomials in the
+    eigenvalues, so they stay smooth where two eigenvalues meet. The Routh-Hurwitz
     criterion (Gantmacher, vol. 2, ch. XV §6): every root lies in the open left
     half-plane if and only if the leading principal minors Δ_1 … Δ_n of the Hurwitz
     matrix H_ij = a_(2j−i) (a_0 = 1, a_k = 0 outside 0 … n) are positive. As
@@ -97,14 +102,12 @@ def hurwitz_conditions(m: np.ndarray) -> np.ndarray:
     functions of the board's part values. Products per element by einsum.
     """
     count, n, _ = m.shape
-    eye = np.broadcast_to(np.eye(n), m.shape)
-    a = np.zeros((count, n + 1))
-    a[:, 0] = 1.0
-    b = eye.copy()
-    for k in range(1, n + 1):
-        mb = np.einsum("nij,njk->nik", m, b)
-        a[:, k] = -np.einsum("nii->n", mb) / k
-        b = mb + a[:, k, None, None] * eye
+    lam = np.linalg.eigvals(m) if count else np.zeros((0, n), dtype=complex)
+    coef = np.zeros((count, n + 1), dtype=complex)
+    coef[:, 0] = 1.0
+    for i in range(n):  # multiply by (s − λ_i): a_k ← a_k − λ_i·a_(k−1)
+        coef[:, 1 : i + 2] = coef[:, 1 : i + 2] - lam[:, i, None] * coef[:, : i + 1]
+    a = coef.real  # the eigenvalues of a real matrix come in conjugate pairs
     hur = np.zeros((count, n, n))
     for i in range(n):
         for j in range(n):
