@@ -48,10 +48,6 @@ __all__ = ["CommonSource", "NMOS_NAME"]
 
 #: Name of the netlist's square-law NMOS card.
 NMOS_NAME = "PICKER_NMOS"
-#: Points per period of the midpoint rule for the square law's Fourier coefficients (the
-#: integrand is piecewise polynomial; 96 points give the coefficients to about 1e-4).
-QUADRATURE = 96
-_THETA = (np.arange(QUADRATURE) + 0.5) * (2.0 * np.pi / QUADRATURE)
 
 
 def _need_c_gs(params: AmplifierParams) -> float:
@@ -197,21 +193,36 @@ class CommonSource(CommonEmitter):
     def device_currents(
         self, params: AmplifierParams, ss: SmallSignal, dv: np.ndarray, a: np.ndarray
     ) -> DeviceCurrents:
-        """Square law with cut-off, i_D = K·max(V_ov + ΔV + a·cos θ, 0)², K = I_D/V_ov²
-        (Sedra & Smith, MOSFET chapter); mean and harmonics by the midpoint rule over
-        one period (:data:`QUADRATURE` points), the Fourier cosine coefficients
-        (1/π)∫ i·cos nθ dθ."""
+        """Square law with cut-off, i_D = K·max(V + a·cos θ, 0)², V = V_ov + ΔV, K =
+        I_D/V_ov² (Sedra & Smith, MOSFET chapter), its Fourier cosine coefficients in
+        closed form: the device conducts for |θ| < φ, cos φ = −V/a clipped to [−1, 1];
+        with (V + a·cos θ)² = (V² + a²/2) + 2Va·cos θ + (a²/2)·cos 2θ and
+        ∫₀^φ cos pθ·cos nθ dθ = (S(p − n) + S(p + n))/2, S(0) = φ, S(m) = sin(mφ)/m
+        (the conduction-angle analysis of Clarke & Hess, *Communication Circuits*,
+        large-signal transconductance, here for the square law), the mean is
+        (K/π)·[(V² + a²/2)·φ + 2Va·S(1) + (a²/2)·S(2)] and the n-th harmonic
+        (2K/π)·[(V² + a²/2)·S(n) + Va·(S(n−1) + S(n+1)) + (a²/4)·(S(|n−2|) + S(n+2))].
+        Unclipped (φ = π) they give K·(V² + a²/2), 2K·V·a, K·a²/2 and 0."""
         v_ov = self.overdrive(params, ss)
         k = ss.i_dc / (v_ov * v_ov)
         dv, a = np.broadcast_arrays(np.asarray(dv, dtype=float), np.asarray(a, dtype=float))
-        v = np.maximum(v_ov + dv[..., None] + a[..., None] * np.cos(_THETA), 0.0)
-        i = k * v * v
+        v = v_ov + dv
+        a = np.abs(a)
+        pos = a > 0.0
+        c = np.where(pos, -v / np.where(pos, a, 1.0), np.where(v > 0.0, -1.0, 1.0))
+        phi = np.arccos(np.clip(c, -1.0, 1.0))
+
+        def sn(m: int) -> np.ndarray:
+            return phi if m == 0 else np.sin(m * phi) / m
+
+        p0, va, q = v * v + 0.5 * a * a, v * a, 0.25 * a * a
+        two_k = 2.0 * k / np.pi
         return DeviceCurrents(
-            mean=i.mean(axis=-1),
-            h1=2.0 * (i * np.cos(_THETA)).mean(axis=-1),
-            h2=2.0 * (i * np.cos(2 * _THETA)).mean(axis=-1),
-            h3=2.0 * (i * np.cos(3 * _THETA)).mean(axis=-1),
-            peak=k * np.maximum(v_ov + dv + a, 0.0) ** 2,
+            mean=k / np.pi * (p0 * phi + 2.0 * va * sn(1) + 2.0 * q * sn(2)),
+            h1=two_k * (p0 * sn(1) + va * (sn(0) + sn(2)) + q * (sn(1) + sn(3))),
+            h2=two_k * (p0 * sn(2) + va * (sn(1) + sn(3)) + q * (sn(0) + sn(4))),
+            h3=two_k * (p0 * sn(3) + va * (sn(2) + sn(4)) + q * (sn(1) + sn(5))),
+            peak=k * np.maximum(v + a, 0.0) ** 2,
         )
 
     def output_current(self, params: AmplifierParams, ss: SmallSignal, v: np.ndarray) -> np.ndarray:
