@@ -32,12 +32,13 @@ SOLVABLE = [
     "clapp_vfo",
     "colpitts_bjt",
     "follower_vfo",
+    "jfet_follower_vfo",
     "plan_sensor_base",
     "probe_exciter",
     "production_exciter",
     "tone_source",
 ]
-AMPLIFIER = ["colpitts_bjt", "follower_vfo"]
+AMPLIFIER = ["colpitts_bjt", "follower_vfo", "jfet_follower_vfo"]
 
 # name -> (arguments after "picker", output file the command writes or None)
 COMMANDS: dict[str, tuple[list[str], str | None]] = {}
