@@ -25,6 +25,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 
 from picker.circuit.device import GENERIC_NPN, GenericNPN
+from picker.circuit.fet import FetCard
 
 __all__ = ["AmplifierParams", "ideal_params"]
 
@@ -63,6 +64,10 @@ class AmplifierParams:
         path), ohm.
     device: the NPN card for bias and device values (:data:`picker.circuit.device.GENERIC_NPN`).
     temperature_c: device temperature, °C (SPICE default 27).
+    fet: a fet's own SPICE-style parameters (:class:`picker.circuit.fet.FetCard`): the fet
+        stages then solve their bias from the gate network and R_S, and take gm, g_ds and
+        the gate capacitances from the card; ``None``: the fet is described by ``gm`` or
+        ``i_bias`` with ``overdrive_voltage`` and typed capacitances, with no bias solved.
     """
 
     kind: str = "bjt"
@@ -93,6 +98,7 @@ class AmplifierParams:
     r_bleed: float = 1e6
     device: GenericNPN = GENERIC_NPN
     temperature_c: float = 27.0
+    fet: FetCard | None = None
 
     def effective_device(self) -> GenericNPN:
         """The device card with ``current_gain`` and ``early_voltage`` applied."""

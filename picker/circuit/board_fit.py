@@ -370,10 +370,11 @@ def _least_squares(a_mat: np.ndarray, q: np.ndarray) -> tuple[np.ndarray, np.nda
 
 
 def _residual(a_mat: np.ndarray, q: np.ndarray, sol: np.ndarray) -> np.ndarray:
-    """Largest |fit − q| over the finite points, (3, c); ``sol`` (3, c, T)."""
+    """Largest |fit − q| over the finite points, (3, c); ``sol`` (3, c, T). An infinite
+    miss stays infinite (not the largest float, whose multiples would overflow)."""
     fitted = np.einsum("pi,rei->rpe", a_mat, sol)
     with np.errstate(invalid="ignore"):
-        return np.nan_to_num(np.abs(fitted - q), nan=0.0).max(axis=1)
+        return np.nan_to_num(np.abs(fitted - q), nan=0.0, posinf=np.inf).max(axis=1)
 
 
 def fit_boards(

@@ -22,6 +22,23 @@ Example (every quantity accepts engineering strings; bare numbers are SI)::
 default one of ``kind``, and a ``stage`` without ``kind`` sets ``kind`` to the stage's
 device type. A stage built from another device than ``kind`` is refused.
 
+A fet may be given by its own SPICE-style parameters instead: ``device`` names a
+generic class (:data:`picker.circuit.fet.FET_CLASSES`: "generic-njfet", an n-channel
+JFET, or "generic-nmos", an n-channel enhancement MOSFET; typical values, from memory)
+and ``idss`` (A, a JFET's), ``vto`` (V: a JFET's pinch-off voltage, negative, or a
+MOSFET's threshold), ``kp`` (A/V², a MOSFET's, W/L folded in) and ``lambda`` (1/V)
+replace the class's own values. The fet stages then solve their bias: the gate through
+the divider, or a single gate resistor to ground (``r_bias_bottom`` alone: a JFET's
+source self-bias), the source through ``r_emitter``::
+
+    [amplifier]
+    stage = "common-drain"
+    device = "generic-njfet"
+    idss = "12 mA"
+    vto = "-2 V"
+    r_bias_bottom = "1 Mohm"     # gate to ground
+    r_emitter = "470 ohm"        # source resistor
+
 Optional device keys: ``bias_current`` (A; bjt default: solved from the bias
 network), ``gm`` (S), ``current_gain``, ``early_voltage`` (V), ``r_out`` (ohm),
 ``c_pi``, ``c_mu`` (F), ``f_t`` (Hz), ``overdrive_voltage`` (V, fet). Without them
@@ -36,10 +53,18 @@ import math
 from collections.abc import Mapping
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, ValidationInfo, field_validator, model_validator
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    ValidationInfo,
+    field_validator,
+    model_validator,
+)
 
 from picker import units
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.fet import FET_CLASSES, FetCard, fet_class
 from picker.errors import SpecError
 
 _UNITS = {
@@ -61,6 +86,7 @@ _UNITS = {
     "c_emitter": "F",
     "c_coupling": "F",
     "c_base": "F",
+    "idss": "A",
 }
 _MAY_BE_ZERO = {"choke_resistance", "c_pi", "c_mu"}
 
@@ -91,6 +117,11 @@ class AmplifierSpec(BaseModel):
     c_emitter: float | None = None
     c_coupling: float | None = None
     c_base: float | None = None
+    device: str | None = None
+    idss: float | None = None
+    vto: float | None = None
+    kp: float | None = None
+    lambda_: float | None = Field(default=None, alias="lambda")
     min_margin: float = 2.0
     max_margin: float | None = None
     monte_carlo: Literal["surrogate", "full"] = "surrogate"
@@ -146,6 +177,44 @@ class AmplifierSpec(BaseModel):
             raise ValueError(f"expected a positive value in {unit}; got {v!r}")
         return x
 
+    @field_validator("device", mode="before")
+    @classmethod
+    def _device(cls, v: Any) -> str:
+        if not isinstance(v, str) or v not in FET_CLASSES:
+            raise ValueError(f"expected a fet class, one of {', '.join(FET_CLASSES)}; got {v!r}")
+        return v
+
+    @field_validator("vto", mode="before")
+    @classmethod
+    def _vto(cls, v: Any) -> float:
+        try:
+            x = units.parse_quantity(v, "V")
+        except SpecError as exc:
+            raise ValueError(exc.message) from None
+        if not math.isfinite(x) or x == 0 or abs(x) > 100:
+            raise ValueError(f"expected a non-zero voltage within ±100 V such as -2 V; got {v!r}")
+        return x
+
+    @field_validator("kp", mode="before")
+    @classmethod
+    def _kp(cls, v: Any) -> float:
+        if isinstance(v, bool) or not isinstance(v, int | float) or not 1e-6 <= v <= 100:
+            raise ValueError(
+                f"expected a transconductance parameter in A/V² between 1e-6 and 100 such "
+                f"as 0.1; got {v!r}"
+            )
+        return float(v)
+
+    @field_validator("lambda_", mode="before")
+    @classmethod
+    def _lambda(cls, v: Any) -> float:
+        if isinstance(v, bool) or not isinstance(v, int | float) or not 0 <= v <= 1:
+            raise ValueError(
+                f"expected a channel-length modulation in 1/V between 0 and 1 such as 0.01; "
+                f"got {v!r}"
+            )
+        return float(v)
+
     @field_validator("current_gain", mode="before")
     @classmethod
     def _gain(cls, v: Any) -> float:
@@ -186,14 +255,24 @@ class AmplifierSpec(BaseModel):
                 )
         elif (self.r_load is None) == (self.choke is None):
             raise ValueError("expected exactly one collector load: r_load or choke")
-        if self.r_bias_bottom is not None and self.r_bias_top is None:
-            raise ValueError("r_bias_bottom needs r_bias_top (the resistor from the supply)")
+        card_keys = [k for k in ("idss", "vto", "kp", "lambda_") if getattr(self, k) is not None]
+        if card_keys and self.device is None:
+            raise ValueError(
+                f"{card_keys[0].rstrip('_')} needs device (a fet class: {', '.join(FET_CLASSES)})"
+            )
+        if self.device is not None and self.kind != "fet":
+            raise ValueError(f"device names a fet class; got kind = {self.kind!r}")
+        if self.r_bias_bottom is not None and self.r_bias_top is None and self.device is None:
+            raise ValueError(
+                "r_bias_bottom needs r_bias_top (the resistor from the supply); a fet with "
+                "device may have a gate resistor alone"
+            )
         if self.c_emitter is not None and self.r_emitter is None:
             raise ValueError("c_emitter needs r_emitter (it bypasses the emitter resistor)")
         if self.kind == "bjt":
             if self.r_bias_top is None and self.gm is None and self.bias_current is None:
                 raise ValueError("a bjt needs its bias: r_bias_top (and r_bias_bottom), or gm")
-        else:
+        elif self.device is None:
             if self.gm is None and (self.bias_current is None or self.overdrive_voltage is None):
                 raise ValueError("a fet needs gm, or bias_current with overdrive_voltage")
             if self.c_mu is None or (self.c_pi is None and self.f_t is None):
@@ -218,7 +297,16 @@ class AmplifierSpec(BaseModel):
             for pos, p in parts.items()
             if getattr(p, "unit", None) == "F" and (esr := getattr(p, "esr", None))
         }
+        card: FetCard | None = None
+        if self.device is not None:
+            try:
+                card = fet_class(
+                    self.device, idss=self.idss, vto=self.vto, kp=self.kp, lam=self.lambda_
+                )
+            except ValueError as exc:
+                raise SpecError(str(exc), key="amplifier") from None
         params = AmplifierParams(
+            fet=card,
             kind=self.kind,
             stage=self.stage,
             vcc=self.supply,

@@ -17,7 +17,9 @@ from picker.circuit.stages.base import STAGES, Stage
 from picker.circuit.stages import common_emitter  # noqa: F401, I001  # isort: skip
 from picker.circuit.stages import common_source  # noqa: F401, I001  # isort: skip
 from picker.circuit.stages import common_collector  # noqa: F401, I001  # isort: skip
+from picker.circuit.stages import common_drain  # noqa: F401, I001  # isort: skip
 from picker.circuit.stages import common_base  # noqa: F401, I001  # isort: skip
+from picker.circuit.stages import common_gate  # noqa: F401, I001  # isort: skip
 
 __all__ = [
     "STAGES",

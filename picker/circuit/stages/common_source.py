@@ -13,6 +13,14 @@ Start-up: the common-emitter condition with r_pi = ∞ exactly, gm·R_D ≥ 1/β
 C2/C1 for a Colpitts tank (Sedra & Smith, Colpitts section, whose analysis
 neglects r_pi; the fet form is the same loop, e.g. Boylestad & Nashelsky, *Electronic
 Devices and Circuit Theory*, FET Colpitts oscillator, attribution [memory]).
+
+With a device card (``params.fet``, :class:`picker.circuit.fet.FetCard`: a JFET from IDSS,
+V_P and λ, or a MOSFET from V_T, KP and λ) the stage solves its own bias: the gate at
+the divider's Thevenin voltage (no gate current), or at 0 V through a single gate
+resistor to ground (``r_b2`` alone: the JFET's source self-bias), the source through R_S
+(:func:`picker.circuit.fet.square_law_bias`); gm = 2·I_D/u and g_ds = λ·k·u² at that
+point (equation (F3) there), C_gs and C_gd from the card unless given; the netlist
+writes the card itself.
 """
 
 from __future__ import annotations
@@ -24,6 +32,7 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import BiasPoint, SmallSignal
+from picker.circuit.fet import FetBias, FetCard, square_law_bias
 from picker.circuit.stages.base import (
     KICK_FRACTION,
     BiasLoop,
@@ -39,10 +48,6 @@ __all__ = ["CommonSource", "NMOS_NAME"]
 
 #: Name of the netlist's square-law NMOS card.
 NMOS_NAME = "PICKER_NMOS"
-#: Points per period of the midpoint rule for the square law's Fourier coefficients (the
-#: integrand is piecewise polynomial; 96 points give the coefficients to about 1e-4).
-QUADRATURE = 96
-_THETA = (np.arange(QUADRATURE) + 0.5) * (2.0 * np.pi / QUADRATURE)
 
 
 def _need_c_gs(params: AmplifierParams) -> float:
@@ -52,6 +57,13 @@ def _need_c_gs(params: AmplifierParams) -> float:
     return params.c_pi if params.c_pi is not None else 0.0
 
 
+def _card(params: AmplifierParams) -> FetCard:
+    """The device card, or a ValueError saying that the amplifier needs one."""
+    if params.fet is None:
+        raise ValueError("the amplifier needs a fet device card")
+    return params.fet
+
+
 class CommonSource(CommonEmitter):
     """The common-source fet stage (a square-law device described by its small-signal values)."""
 
@@ -59,13 +71,50 @@ class CommonSource(CommonEmitter):
     has_device_law = True
     device = "fet"
 
+    def gate_voltage(self, params: AmplifierParams) -> float:
+        """DC gate voltage: the divider's V_DD·R_B2/(R_B1 + R_B2) (no gate current), the
+        supply through R_B1 alone, or 0 V without R_B1 (a gate resistor to ground)."""
+        if params.r_b1 is None:
+            return 0.0
+        if params.r_b2 is None:
+            return params.vcc
+        return params.vcc * params.r_b2 / (params.r_b1 + params.r_b2)
+
+    def fet_bias(self, params: AmplifierParams) -> FetBias | None:
+        """The square-law bias point from the device card (``None`` without one, or where
+        the drain current or gm is given directly)."""
+        if params.fet is None or params.gm is not None or params.i_bias is not None:
+            return None
+        return square_law_bias(
+            params.fet,
+            v_g=self.gate_voltage(params),
+            r_s=params.r_e or 0.0,
+            v_dd=params.vcc,
+            r_d=self.collector_dc(params),
+        )
+
     def bias(self, params: AmplifierParams) -> BiasPoint | None:
-        """None: the drain current is given (``i_bias``), not solved from a bias network."""
-        return None
+        """The card's bias point (:meth:`fet_bias`) in the stage's terms (drain, gate, source
+        for collector, base, emitter; no gate current; "saturated" meaning the triode
+        region); None without a card: the drain current is then given (``i_bias``)."""
+        fb = self.fet_bias(params)
+        if fb is None:
+            return None
+        return BiasPoint(
+            ic=fb.i_d, ib=0.0, vbe=fb.vgs, vb=fb.vg, vc=fb.vd, ve=fb.vs, saturated=fb.triode
+        )
 
     def device_small_signal(self, params: AmplifierParams) -> SmallSignal:
         """gm as given, or 2·I_D/V_ov (square law, Sedra & Smith); r_o = V_A/I_D
-        (``early_voltage``; infinite without), r_pi = ∞, C_gs and C_gd as given."""
+        (``early_voltage``; infinite without), r_pi = ∞, C_gs and C_gd as given. With a
+        device card: gm = 2·I_D/u, r_o = 1/(λ·k·u²) at the solved bias (equation (F3) of
+        :mod:`picker.circuit.fet`), C_gs and C_gd from the card."""
+        fb = self.fet_bias(params)
+        if fb is not None and params.fet is not None:
+            card = params.fet
+            g_ds = card.lam * card.k * fb.u * fb.u
+            r_o = params.r_o if params.r_o is not None else (1.0 / g_ds if g_ds > 0 else math.inf)
+            return SmallSignal(2.0 * fb.i_d / fb.u, math.inf, r_o, card.cgs, card.cgd, fb.i_d)
         if params.gm is not None:
             gm = params.gm
             i_dc = params.i_bias if params.i_bias is not None else math.nan
@@ -113,6 +162,9 @@ class CommonSource(CommonEmitter):
         """V_ov = V_GS − V_th at rest: given, or 2·I_D/gm (square law); NaN when unknown."""
         if params.overdrive_voltage is not None:
             return params.overdrive_voltage
+        fb = self.fet_bias(params)
+        if fb is not None:
+            return fb.u
         return 2.0 * ss.i_dc / ss.gm
 
     def bias_loop(self, params: AmplifierParams, ss: SmallSignal) -> BiasLoop | None:
@@ -124,7 +176,7 @@ class CommonSource(CommonEmitter):
         if not (math.isfinite(ss.i_dc) and ss.i_dc > 0 and math.isfinite(v_ov)):
             return None
         r_s = params.r_e or 0.0
-        r_d = params.r_collector_dc if (params.r_c or params.l_choke) else 0.0
+        r_d = self.collector_dc(params) if (params.r_c or params.l_choke) else 0.0
         return BiasLoop(
             i_rest=ss.i_dc,
             gm_rest=2.0 * ss.i_dc / v_ov,
@@ -141,21 +193,36 @@ class CommonSource(CommonEmitter):
     def device_currents(
         self, params: AmplifierParams, ss: SmallSignal, dv: np.ndarray, a: np.ndarray
     ) -> DeviceCurrents:
-        """Square law with cut-off, i_D = K·max(V_ov + ΔV + a·cos θ, 0)², K = I_D/V_ov²
-        (Sedra & Smith, MOSFET chapter); mean and harmonics by the midpoint rule over
-        one period (:data:`QUADRATURE` points), the Fourier cosine coefficients
-        (1/π)∫ i·cos nθ dθ."""
+        """Square law with cut-off, i_D = K·max(V + a·cos θ, 0)², V = V_ov + ΔV, K =
+        I_D/V_ov² (Sedra & Smith, MOSFET chapter), its Fourier cosine coefficients in
+        closed form: the device conducts for |θ| < φ, cos φ = −V/a clipped to [−1, 1];
+        with (V + a·cos θ)² = (V² + a²/2) + 2Va·cos θ + (a²/2)·cos 2θ and
+        ∫₀^φ cos pθ·cos nθ dθ = (S(p − n) + S(p + n))/2, S(0) = φ, S(m) = sin(mφ)/m
+        (the conduction-angle analysis of Clarke & Hess, *Communication Circuits*,
+        large-signal transconductance, here for the square law), the mean is
+        (K/π)·[(V² + a²/2)·φ + 2Va·S(1) + (a²/2)·S(2)] and the n-th harmonic
+        (2K/π)·[(V² + a²/2)·S(n) + Va·(S(n−1) + S(n+1)) + (a²/4)·(S(|n−2|) + S(n+2))].
+        Unclipped (φ = π) they give K·(V² + a²/2), 2K·V·a, K·a²/2 and 0."""
         v_ov = self.overdrive(params, ss)
         k = ss.i_dc / (v_ov * v_ov)
         dv, a = np.broadcast_arrays(np.asarray(dv, dtype=float), np.asarray(a, dtype=float))
-        v = np.maximum(v_ov + dv[..., None] + a[..., None] * np.cos(_THETA), 0.0)
-        i = k * v * v
+        v = v_ov + dv
+        a = np.abs(a)
+        pos = a > 0.0
+        c = np.where(pos, -v / np.where(pos, a, 1.0), np.where(v > 0.0, -1.0, 1.0))
+        phi = np.arccos(np.clip(c, -1.0, 1.0))
+
+        def sn(m: int) -> np.ndarray:
+            return phi if m == 0 else np.sin(m * phi) / m
+
+        p0, va, q = v * v + 0.5 * a * a, v * a, 0.25 * a * a
+        two_k = 2.0 * k / np.pi
         return DeviceCurrents(
-            mean=i.mean(axis=-1),
-            h1=2.0 * (i * np.cos(_THETA)).mean(axis=-1),
-            h2=2.0 * (i * np.cos(2 * _THETA)).mean(axis=-1),
-            h3=2.0 * (i * np.cos(3 * _THETA)).mean(axis=-1),
-            peak=k * np.maximum(v_ov + dv + a, 0.0) ** 2,
+            mean=k / np.pi * (p0 * phi + 2.0 * va * sn(1) + 2.0 * q * sn(2)),
+            h1=two_k * (p0 * sn(1) + va * (sn(0) + sn(2)) + q * (sn(1) + sn(3))),
+            h2=two_k * (p0 * sn(2) + va * (sn(1) + sn(3)) + q * (sn(0) + sn(4))),
+            h3=two_k * (p0 * sn(3) + va * (sn(2) + sn(4)) + q * (sn(1) + sn(5))),
+            peak=k * np.maximum(v + a, 0.0) ** 2,
         )
 
     def output_current(self, params: AmplifierParams, ss: SmallSignal, v: np.ndarray) -> np.ndarray:
@@ -167,6 +234,21 @@ class CommonSource(CommonEmitter):
     def diffusion_capacitance(self, params: AmplifierParams, ss: SmallSignal) -> float:
         """0: C_gs is taken as fixed."""
         return 0.0
+
+    def headroom(self, params: AmplifierParams) -> float:
+        """V_DS − u at the solved bias: the drain may swing down to the triode edge
+        V_DS = V_GS − VTO (Sedra & Smith, MOSFET chapter); inf without a solved bias."""
+        fb = self.fet_bias(params)
+        return math.inf if fb is None else fb.vds - fb.u
+
+    def cautions(self, topology: Topology, params: AmplifierParams) -> list[str]:
+        """The common-emitter stage's blocking-capacitor caution; a bias in the triode
+        region (V_DS < V_GS − VTO)."""
+        out = [c for c in super().cautions(topology, params) if "saturates" not in c]
+        fb = self.fet_bias(params)
+        if fb is not None and fb.triode:
+            out.append("the bias puts the fet in its triode region (V_DS < V_GS - VTO)")
+        return out
 
     def drive_limit(
         self, params: AmplifierParams, ss: SmallSignal, margin: np.ndarray, ok: np.ndarray
@@ -194,6 +276,8 @@ class CommonSource(CommonEmitter):
         g_ds = 1/r_o, and KP = 2·I_D/(V_ov²·(1 + λ·V_DS)) (W = L) gives back I_D and
         gm = 2·I_D/V_ov.
         """
+        if params.fet is not None and params.gm is None and params.i_bias is None:
+            return self.card_netlist(topology, values, stray, r_l, params)
         if params.r_b1 is None:
             raise ValueError("netlist export needs the gate bias network (r_b1, r_b2)")
         ss = self.small_signal(params)
@@ -240,3 +324,64 @@ class CommonSource(CommonEmitter):
         else:
             top = v_g if topology.bridge_passes_dc else 0.0
         return StageNetlist(elements=lines, models=[card], kick=KICK_FRACTION * i_d, top_dc=top)
+
+    # ------------------------------------------------------------ with a device card
+
+    def gate_lines(self, params: AmplifierParams) -> list[str]:
+        """The gate's DC network: the divider (R_B1 from the supply), or a single gate
+        resistor R_G (``r_b2``) to ground."""
+        if params.r_b1 is not None:
+            return self.bias_lines(params, params.r_b1)
+        if params.r_b2 is not None:
+            return [f"RG {self.input} 0 {spice_number(params.r_b2)}"]
+        return []
+
+    def device_lines(self, params: AmplifierParams, d: str, g: str, s: str) -> list[str]:
+        """The fet (its card's element line) with C_gs and C_gd as explicit capacitors
+        (the card has none: the model's constant capacitances at any bias)."""
+        card = _card(params)
+        ss = self.small_signal(params)
+        lines = [card.instance(d, g, s)]
+        if ss.c_pi > 0:
+            lines.append(f"CGS {g} {s} {spice_number(ss.c_pi)}")
+        if ss.c_mu > 0:
+            lines.append(f"CGD {g} {d} {spice_number(ss.c_mu)}")
+        return lines
+
+    def card_netlist(
+        self,
+        topology: Topology,
+        values: Mapping[str, float],
+        stray: float,
+        r_l: float,
+        params: AmplifierParams,
+    ) -> StageNetlist:
+        """The fet from its own card (:meth:`picker.circuit.fet.FetCard.model_card`), the
+        drain load and C_B, the tank, the gate network, R_S and C_S."""
+        card = _card(params)
+        bias = self.bias(params)
+        if bias is None:
+            raise ValueError("netlist export of a fet card needs its bias (no gm or i_bias)")
+        g = spice_number
+        col = self.output if params.c_block is not None else self.top
+        src = self.common if params.r_e is not None else "0"
+        bleed = params.r_bleed if self.needs_bleed(topology, params) else None
+        lines = [
+            f"* {card.label} fet: typical of its class (values from memory), not a real part",
+            *self.passive_lines(params, col),
+            *topology.netlist_lines(
+                values, stray, r_l, params.capacitor_esr, self.top, self.input, bleed
+            ),
+            *self.gate_lines(params),
+            *self.device_lines(params, col, self.input, src),
+        ]
+        if params.r_e is not None:
+            lines.append(f"RE {self.common} 0 {g(params.r_e)}")
+            if params.c_e is not None:
+                lines.append(f"CE {self.common} 0 {g(params.c_e)}")
+        return StageNetlist(
+            elements=lines,
+            models=[card.model_card()],
+            kick=KICK_FRACTION * bias.ic,
+            top_dc=self.top_dc(topology, params, bias),
+        )
