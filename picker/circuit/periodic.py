@@ -1,0 +1,99 @@
+"""The steady state of boards by shooting on their own netlists: the figures steady_state needs.
+
+:func:`periodic_state` takes boards of a :class:`picker.circuit.network.Network` (one per
+element of ``idx``), writes each one's netlist lines (:meth:`picker.circuit.stages.base.Stage.netlist`,
+the very lines ngspice is given), reads them into a batch of circuits
+(:mod:`picker.circuit.transient`) and finds their periodic orbits by shooting
+(:mod:`picker.circuit.shooting`), starting from the circuit's own oscillating mode scaled
+to the describing function's amplitude and period. From the orbit it reads:
+
+* the frequency 1/T;
+* the peak voltage at the tank top, half its peak-to-peak (as the validation's
+  measurement reads ngspice's waveform);
+* the 2nd and 3rd harmonics of the tank top relative to the fundamental, dBc (the
+  discrete Fourier transform of the N samples of one period);
+* the peak collector current and the device's mean dissipation ⟨I_C·V_CE + I_B·V_BE⟩;
+* whether the orbit is unstable (a Floquet multiplier outside the unit circle).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from picker.circuit.device import thermal_voltage
+from picker.circuit.network import Network
+from picker.circuit.shooting import STEPS, oscillating_mode, periodic_orbit
+from picker.circuit.transient import build_circuit, dc_point, device
+from picker.tank.base import TWO_PI
+
+__all__ = ["PeriodicState", "periodic_state"]
+
+
+@dataclass(frozen=True)
+class PeriodicState:
+    """Figures of the orbits (1-D over the elements asked for; NaN where ``ok`` is false)."""
+
+    ok: np.ndarray
+    w: np.ndarray  # rad/s
+    top: np.ndarray  # V, half the peak-to-peak at the tank top
+    harmonics_dbc: np.ndarray  # (m, 2)
+    peak_current: np.ndarray  # A
+    dissipation: np.ndarray  # W
+    unstable: np.ndarray  # bool
+    multiplier: np.ndarray  # the largest non-trivial Floquet multiplier's modulus
+
+
+def periodic_state(
+    net: Network, idx: np.ndarray, w: np.ndarray, top: np.ndarray, *, steps: int = STEPS
+) -> PeriodicState:
+    """The periodic orbits of the boards ``idx`` of ``net`` (a bjt stage with its bias
+    network), from the describing function's frequency ``w`` (rad/s) and tank-top
+    amplitude ``top`` (V), one per element."""
+    stage, params = net.stage, net.params
+    topo = net.topology
+    lines = []
+    models: list[str] = []
+    for i in idx:
+        vals = {p: float(net.el[p][i]) for p in topo.positions}
+        part = stage.netlist(topo, vals, float(net.el["stray"][i]), float(net.el["r_l"][i]), params)
+        lines.append(part.elements)
+        models = part.models
+    circ = build_circuit(lines, models, stage.top, thermal_voltage(params.temperature_c))
+    m = idx.size
+    x_dc, ok_dc = dc_point(circ)
+    w = np.where(
+        np.isfinite(w) & (w > 0),
+        w,
+        TWO_PI * topo.frequency({p: net.el[p][idx] for p in topo.positions}, net.el["stray"][idx]),
+    )
+    _, vec = oscillating_mode(circ, x_dc, w)
+    ar = np.arange(m)
+    v_top = vec[ar, circ.top]
+    amp = np.where(np.isfinite(top) & (top > 0), top, 1.0)
+    x0 = x_dc + (vec * (amp / np.maximum(np.abs(v_top), 1e-300))[:, None]).real
+    x0 = np.where(np.isfinite(x0), x0, x_dc)
+    orb = periodic_orbit(circ, x0, TWO_PI / w, steps=steps)
+    ok = orb.ok & ok_dc
+    xs = orb.x[:-1]  # (N, m, n): one period
+    v = xs[:, ar, circ.top]
+    half = 0.5 * (v.max(axis=0) - v.min(axis=0))
+    spec = np.abs(np.fft.rfft(v, axis=0))  # (N/2 + 1, m)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        harm = 20.0 * np.log10(spec[2:4] / spec[1][None, :]).T
+    dev = device(circ, xs)
+    vce = dev["vbe"] - dev["vbc"]
+    p_dev = np.mean(dev["ic"] * vce + dev["ib"] * dev["vbe"], axis=0)
+    mu = np.abs(orb.multipliers[:, 0])
+    nan = np.nan
+    return PeriodicState(
+        ok=ok,
+        w=np.where(ok, TWO_PI / orb.period, nan),
+        top=np.where(ok, half, nan),
+        harmonics_dbc=np.where(ok[:, None], harm, nan),
+        peak_current=np.where(ok, dev["ic"].max(axis=0), nan),
+        dissipation=np.where(ok, p_dev, nan),
+        unstable=ok & orb.unstable,
+        multiplier=np.where(ok, mu, nan),
+    )
