@@ -25,7 +25,7 @@ import numpy as np
 from picker.circuit.device import thermal_voltage
 from picker.circuit.network import Network
 from picker.circuit.shooting import STEPS, oscillating_mode, periodic_orbit
-from picker.circuit.transient import build_circuit, dc_point, device
+from picker.circuit.transient import build_circuit, dc_point, dc_with_currents, device
 from picker.tank.base import TWO_PI
 
 __all__ = ["PeriodicState", "periodic_state"]
@@ -46,11 +46,19 @@ class PeriodicState:
 
 
 def periodic_state(
-    net: Network, idx: np.ndarray, w: np.ndarray, top: np.ndarray, *, steps: int = STEPS
+    net: Network,
+    idx: np.ndarray,
+    w: np.ndarray,
+    top: np.ndarray,
+    i_mean: np.ndarray,
+    *,
+    steps: int = STEPS,
 ) -> PeriodicState:
     """The periodic orbits of the boards ``idx`` of ``net`` (a bjt stage with its bias
-    network), from the describing function's frequency ``w`` (rad/s) and tank-top
-    amplitude ``top`` (V), one per element."""
+    network), from the describing function's frequency ``w`` (rad/s), tank-top
+    amplitude ``top`` (V) and mean collector current ``i_mean`` (A), one per element:
+    the start is the DC state with the transistor's mean currents (the bias shift) plus
+    the circuit's oscillating mode at that amplitude."""
     stage, params = net.stage, net.params
     topo = net.topology
     lines = []
@@ -70,9 +78,18 @@ def periodic_state(
     )
     _, vec = oscillating_mode(circ, x_dc, w)
     ar = np.arange(m)
+    # the mode's phase with the base-emitter voltage at its trough: the transistor is off
+    # at the start, whatever the amplitude
+    ve = np.concatenate([vec, np.zeros((m, 1))], axis=1)
+    v_be = ve[ar, circ.q[:, 1]] - ve[ar, circ.q[:, 2]]
+    vec = vec * (-np.conj(v_be) / np.maximum(np.abs(v_be), 1e-300))[:, None]
     v_top = vec[ar, circ.top]
     amp = np.where(np.isfinite(top) & (top > 0), top, 1.0)
-    x0 = x_dc + (vec * (amp / np.maximum(np.abs(v_top), 1e-300))[:, None]).real
+    beta = circ.card["BF"]
+    i_ok = np.isfinite(i_mean) & (i_mean > 0)
+    x_mid = dc_with_currents(circ, np.where(i_ok, i_mean, 0.0), np.where(i_ok, i_mean, 0.0) / beta)
+    x_mid = np.where(i_ok[:, None] & np.isfinite(x_mid), x_mid, x_dc)
+    x0 = x_mid + (vec * (amp / np.maximum(np.abs(v_top), 1e-300))[:, None]).real
     x0 = np.where(np.isfinite(x0), x0, x_dc)
     orb = periodic_orbit(circ, x0, TWO_PI / w, steps=steps)
     ok = orb.ok & ok_dc

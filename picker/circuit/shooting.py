@@ -47,11 +47,14 @@ __all__ = ["Orbit", "STEPS", "periodic_orbit", "oscillating_mode"]
 #: 0.1·(2π/N)², 6e-5 at N = 128, and is removed by Richardson extrapolation).
 STEPS = 128
 #: Periods integrated from the start before Newton.
-WARM = 12
+WARM = 40
 #: Newton steps on (S1) at most.
 ITERATIONS = 30
-_T_STEP = 0.05  # largest relative change of T in one Newton step
-_X_STEP = 1.0  # largest change of a node voltage in one Newton step, V
+#: A multiplier this close to 1 (a mode slower than ~1/FROZEN periods) is frozen.
+FROZEN = 1e-4
+_T_STEP = 0.05
+_BACKTRACK = 4  # step halvings tried  # largest relative change of T in one Newton step
+_X_STEP = 5.0  # largest change of a node voltage in one Newton step, V
 
 
 @dataclass(frozen=True)
@@ -92,6 +95,34 @@ def oscillating_mode(
     best = np.argmax(score, axis=1)
     ar = np.arange(circ.b.shape[0])
     return s[ar, best], vec[ar, :, best]
+
+
+def _without_frozen(mono: np.ndarray, vel: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """M with its *frozen* modes' multipliers set to 0: the modes other than the shift
+    along the orbit (the eigenvector nearest to the velocity ``vel``) whose multiplier
+    lies within :data:`FROZEN` of 1. Such a mode (the charge of a capacitor island
+    behind a megohm bleed, decaying over ~1e5 periods) does not settle in any transient
+    either; Newton's step along it is its residual over 1 − μ, which the orbit's other,
+    unsettled modes make huge. With μ = 0 the step along it is the residual itself
+    (one period of plain integration), which leaves it where the start put it. Also
+    the projector off the frozen modes (the residual that must vanish)."""
+    fin = np.all(np.isfinite(mono), axis=(1, 2)) & np.all(np.isfinite(vel), axis=1)
+    mono = np.where(fin[:, None, None], mono, 0.0)
+    vel = np.where(fin[:, None], vel, 1.0)
+    mu, vec = np.linalg.eig(mono)
+    inv = np.linalg.pinv(vec)
+    coef = np.abs(np.einsum("bij,bj->bi", inv, vel.astype(complex)))
+    norm = np.linalg.norm(vec, axis=1) * coef  # each mode's share of the velocity
+    trivial = np.argmax(norm, axis=1)
+    slow = np.abs(mu - 1.0) < FROZEN
+    slow[np.arange(mono.shape[0]), trivial] = False
+    eye = np.broadcast_to(np.eye(mono.shape[1]), mono.shape)
+    if not slow.any():
+        return mono, eye
+    out = np.einsum("bij,bj,bjk->bik", vec, np.where(slow, 0.0, mu), inv).real
+    proj = np.einsum("bij,bj,bjk->bik", vec, (~slow).astype(float), inv).real
+    some = np.asarray(slow.any(axis=1))[:, None, None]
+    return np.where(some, out, mono), np.where(some, proj, eye)
 
 
 def _start_at_crossing(circ: Circuit, xs: np.ndarray) -> np.ndarray:
@@ -137,7 +168,10 @@ def periodic_orbit(
         live[act[~run.ok]] = False
         r = run.x[-1] - x0[act]
         jac = np.zeros((act.size, n + 1, n + 1))
-        jac[:, :n, :n] = run.s[:, :, :n] - np.eye(n)[None]
+        vel = run.x[-1] - run.x[-2]  # along the orbit: the trivial multiplier's vector
+        m_eff, proj = _without_frozen(run.s[:, :, :n], vel)
+        jac[:, :n, :n] = m_eff - np.eye(n)[None]
+        r_live = np.einsum("bij,bj->bi", proj, r)
         jac[:, :n, n] = run.s[:, :, n]
         jac[np.arange(act.size), n, sub.top] = 1.0
         rhs = np.concatenate([-r, np.zeros((act.size, 1))], axis=1)
@@ -150,9 +184,27 @@ def periodic_orbit(
         dv = np.max(np.abs(step[:, :n]), axis=1)
         lim = np.minimum(1.0, _X_STEP / np.maximum(dv, 1e-300))
         lim = np.minimum(lim, _T_STEP * t[act] / np.maximum(np.abs(step[:, n]), 1e-300))
-        x0[act] += lim[:, None] * step[:, :n]
-        t[act] += lim * step[:, n]
-        small = (np.max(np.abs(r), axis=1) < 1e-7) & (np.abs(lim * step[:, n]) < 1e-9 * t[act])
+        # backtracking on the residual's norm (Dennis & Schnabel, *Numerical Methods for
+        # Unconstrained Optimization and Nonlinear Equations*, 1983, sec. 6.3), off the
+        # frozen modes
+        n0 = np.linalg.norm(r_live, axis=1)
+        frac = lim.copy()
+        todo = np.nonzero(good & (n0 > 1e-7))[0]
+        for _ in range(_BACKTRACK):
+            if todo.size == 0:
+                break
+            xt = x0[act[todo]] + frac[todo, None] * step[todo, :n]
+            tt = t[act[todo]] + frac[todo] * step[todo, n]
+            trial = integrate(sub.take(todo), xt, tt, steps)
+            rt = np.einsum("bij,bj->bi", proj[todo], trial.x[-1] - xt)
+            nt = np.where(trial.ok, np.linalg.norm(rt, axis=1), np.inf)
+            worse = ~(nt < n0[todo])
+            frac[todo[worse]] *= 0.5
+            todo = todo[worse]
+        x0[act] += frac[:, None] * step[:, :n]
+        t[act] += frac * step[:, n]
+        lim = frac
+        small = (np.max(np.abs(r_live), axis=1) < 1e-7) & (np.abs(lim * step[:, n]) < 1e-9 * t[act])
         done[act[small & good]] = True
     final = integrate(circ, x0, t, steps)
     v = final.x[:, ar, circ.top]
@@ -161,8 +213,13 @@ def periodic_orbit(
     mu = np.full((bsz, n - 1), np.nan, dtype=complex)
     fin = np.nonzero(np.all(np.isfinite(mono), axis=(1, 2)))[0]
     if fin.size:
-        ev = np.linalg.eigvals(mono[fin])
-        trivial = np.argmin(np.abs(ev - 1.0), axis=1)
+        # the trivial multiplier: the mode along the orbit (its eigenvector carries the
+        # velocity); with fixed steps it is 1 only up to the integration's error
+        ev, vec = np.linalg.eig(mono[fin])
+        vel = (final.x[-1] - final.x[-2])[fin].astype(complex)
+        share = np.abs(np.einsum("bij,bj->bi", np.linalg.pinv(vec), vel))
+        share *= np.linalg.norm(vec, axis=1)
+        trivial = np.argmax(share, axis=1)
         keep = np.ones(ev.shape, dtype=bool)
         keep[np.arange(fin.size), trivial] = False
         rest = ev[keep].reshape(fin.size, n - 1)

@@ -43,7 +43,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Circuit", "Period", "build_circuit", "dc_point", "device", "evaluate", "integrate"]
+__all__ = [
+    "Circuit",
+    "Period",
+    "build_circuit",
+    "dc_point",
+    "dc_with_currents",
+    "device",
+    "evaluate",
+    "integrate",
+]
 
 _EXP_CAP = 80.0  # exponent beyond which e^u continues linearly (no overflow in Newton)
 _V_STEP = 0.2  # largest change of a junction voltage in one Newton iteration, V
@@ -162,7 +171,7 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
     g = np.zeros((m, n + 1, n + 1))
     c = np.zeros((m, n + 1, n + 1))
     b = np.zeros((m, n + 1))
-    qi = np.zeros((m, 3), dtype=int)
+    qi = np.full((m, 3), n, dtype=int)  # no transistor: every terminal on ground
     tops = np.zeros(m, dtype=int)
     n_nodes = np.zeros(m, dtype=int)
     for r, (known, elems, nodes, inductors) in enumerate(parsed):
@@ -251,30 +260,23 @@ def evaluate(circ: Circuit, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.n
     jc[:, :n, :n] = circ.c
     cext = np.zeros((bsz, n + 1))
     qext = np.zeros((bsz, n + 1))
-    c_, b_, e_ = circ.q[:, 0], circ.q[:, 1], circ.q[:, 2]
-    # terminal currents into the device: collector I_C, base I_B, emitter −I_C − I_B;
-    # the diffusion charge between base and emitter
-    cext[ar, c_] += ic
-    cext[ar, b_] += ib
-    cext[ar, e_] -= ic + ib
-    qext[ar, b_] += qd
-    qext[ar, e_] -= qd
-    # ∂v_BE/∂(c, b, e) = (0, 1, −1); ∂v_BC/∂(c, b, e) = (−1, 1, 0)
-    dvbe = ((b_, 1.0), (e_, -1.0))
-    dvbc = ((b_, 1.0), (c_, -1.0))
-    for row, d in ((c_, dic), (b_, dib)):
-        for col, s in dvbe:
-            jg[ar, row, col] += s * d[0]
-            jg[ar, e_, col] -= s * d[0]
-        for col, s in dvbc:
-            jg[ar, row, col] += s * d[1]
-            jg[ar, e_, col] -= s * d[1]
-    for col, s in dvbe:
-        jc[ar, b_, col] += s * dqd[0]
-        jc[ar, e_, col] -= s * dqd[0]
-    for col, s in dvbc:
-        jc[ar, b_, col] += s * dqd[1]
-        jc[ar, e_, col] -= s * dqd[1]
+    # terminal currents into the device over (collector, base, emitter): I_C, I_B,
+    # −I_C − I_B; the diffusion charge (0, q_D, −q_D); ∂v_BE/∂(v_C, v_B, v_E) = (0, 1, −1),
+    # ∂v_BC/∂(v_C, v_B, v_E) = (−1, 1, 0)
+    zero = np.zeros(bsz)
+    cext[ar[:, None], circ.q] += np.stack([ic, ib, -ic - ib], axis=1)
+    qext[ar[:, None], circ.q] += np.stack([zero, qd, -qd], axis=1)
+
+    def by_node(d: tuple[np.ndarray, np.ndarray]) -> np.ndarray:
+        return np.stack([-d[1], d[0] + d[1], -d[0]], axis=1)  # (B, 3) over (c, b, e)
+
+    gc, gb = by_node(dic), by_node(dib)
+    qb = by_node(dqd)
+    loc_g = np.stack([gc, gb, -gc - gb], axis=1)
+    loc_c = np.stack([np.zeros_like(qb), qb, -qb], axis=1)
+    rows, cols = circ.q[:, :, None], circ.q[:, None, :]
+    jg[ar[:, None, None], rows, cols] += loc_g
+    jc[ar[:, None, None], rows, cols] += loc_c
     return cur + cext[:, :n], chg + qext[:, :n], jg[:, :n, :n], jc[:, :n, :n]
 
 
@@ -318,6 +320,20 @@ def dc_point(circ: Circuit, x: np.ndarray | None = None) -> tuple[np.ndarray, np
         x[act] += lim[:, None] * dx
         done[act[(lim == 1.0) & (np.max(np.abs(dx), axis=1) < 1e-12)]] = True
     return x, done
+
+
+def dc_with_currents(circ: Circuit, ic: np.ndarray, ib: np.ndarray) -> np.ndarray:
+    """The DC state of the circuits with the transistor replaced by its mean currents
+    ``ic`` (collector) and ``ib`` (base), A (B,): G·x = b − the currents it draws (the
+    capacitors' mean currents vanish over a period, so the averages of the node voltages
+    satisfy this; the bias shift of the coupling and bypass capacitors)."""
+    bsz, n = circ.b.shape
+    ar = np.arange(bsz)
+    inj = np.zeros((bsz, n + 1))
+    inj[ar, circ.q[:, 0]] -= ic
+    inj[ar, circ.q[:, 1]] -= ib
+    inj[ar, circ.q[:, 2]] += ic + ib
+    return np.linalg.solve(circ.g, (circ.b + inj[:, :n])[..., None])[..., 0]  # type: ignore[no-any-return]
 
 
 @dataclass(frozen=True)
