@@ -87,18 +87,18 @@ def test_sensitivities_match_central_differences():
     rng = np.random.default_rng(5)
     x0 = np.array([[8.0, 0.5, 3.9, 3.9, 3.3, 2e-3]]) + 0.01 * rng.standard_normal((1, 6))
     period = np.array([1.3e-5])
-    run = integrate(circ, x0, period, 200, sens=True)
+    run = integrate(circ, x0, period, 100, sens=True)
     for j in range(circ.size + 1):
         e = 1e-6
         if j < circ.size:
             dx = np.zeros_like(x0)
             dx[0, j] = e
-            fp = integrate(circ, x0 + dx, period, 200).x[-1]
-            fm = integrate(circ, x0 - dx, period, 200).x[-1]
+            fp = integrate(circ, x0 + dx, period, 100).x[-1]
+            fm = integrate(circ, x0 - dx, period, 100).x[-1]
             h = e
         else:
-            fp = integrate(circ, x0, period * (1 + e), 200).x[-1]
-            fm = integrate(circ, x0, period * (1 - e), 200).x[-1]
+            fp = integrate(circ, x0, period * (1 + e), 100).x[-1]
+            fm = integrate(circ, x0, period * (1 - e), 100).x[-1]
             h = e * period[0]
         fd = (fp - fm)[0] / (2 * h)
         # states' columns are dimensionless (rounding of the differences ~1e-8), the
@@ -119,6 +119,7 @@ def _shoot(d):
     )
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("k", [15, 19])
 def test_saturated_designs_against_ngspice(k):
     # d015, d019: the collector is pulled onto the base for part of each cycle; the
@@ -135,6 +136,7 @@ def test_saturated_designs_against_ngspice(k):
     assert not ps.unstable[0]  # steady in ngspice: every non-trivial multiplier inside
 
 
+@pytest.mark.slow
 def test_bursting_design_has_a_multiplier_outside_the_unit_circle():
     # d021 (Clapp, collector choke) bursts in ngspice; its orbit is unstable
     designs, answers = load_reference(DATA)

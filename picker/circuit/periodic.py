@@ -28,7 +28,11 @@ from picker.circuit.shooting import STEPS, oscillating_mode, periodic_orbit
 from picker.circuit.transient import build_circuit, dc_point, dc_with_currents, device
 from picker.tank.base import TWO_PI
 
-__all__ = ["PeriodicState", "periodic_state"]
+__all__ = ["REFINE", "PeriodicState", "periodic_state"]
+
+#: The converged orbit is solved again with this many times the steps (for the
+#: multipliers and the figures).
+REFINE = 4
 
 
 @dataclass(frozen=True)
@@ -53,6 +57,7 @@ def periodic_state(
     i_mean: np.ndarray,
     *,
     steps: int = STEPS,
+    refine: int = REFINE,
 ) -> PeriodicState:
     """The periodic orbits of the boards ``idx`` of ``net`` (a bjt stage with its bias
     network), from the describing function's frequency ``w`` (rad/s), tank-top
@@ -93,7 +98,25 @@ def periodic_state(
     x0 = np.where(np.isfinite(x0), x0, x_dc)
     orb = periodic_orbit(circ, x0, TWO_PI / w, steps=steps)
     ok = orb.ok & ok_dc
+    period, mult, unstable = orb.period, orb.multipliers, orb.unstable
     xs = orb.x[:-1]  # (N, m, n): one period
+    if refine > 1 and ok.any():
+        # the orbit again at refine × steps from the converged one: the multipliers of
+        # a saturated orbit move by several % between 128 and 512 steps a period
+        # (the trivial one, exactly 1 in the limit, shows the error), enough to flip
+        # the stability of a steady design
+        sel = np.nonzero(ok)[0]
+        fine = periodic_orbit(
+            circ.take(sel), orb.x[0, sel], orb.period[sel], steps=refine * steps, warm=0
+        )
+        ok[sel] = fine.ok
+        period = period.copy()
+        mult, unstable = mult.copy(), unstable.copy()
+        period[sel] = fine.period
+        mult[sel] = fine.multipliers
+        unstable[sel] = fine.unstable
+        xs = np.repeat(xs, refine, axis=0)  # the same shape for every element
+        xs[:, sel] = fine.x[:-1]
     v = xs[:, ar, circ.top]
     half = 0.5 * (v.max(axis=0) - v.min(axis=0))
     spec = np.abs(np.fft.rfft(v, axis=0))  # (N/2 + 1, m)
@@ -102,15 +125,15 @@ def periodic_state(
     dev = device(circ, xs)
     vce = dev["vbe"] - dev["vbc"]
     p_dev = np.mean(dev["ic"] * vce + dev["ib"] * dev["vbe"], axis=0)
-    mu = np.abs(orb.multipliers[:, 0])
+    mu = np.abs(mult[:, 0])
     nan = np.nan
     return PeriodicState(
         ok=ok,
-        w=np.where(ok, TWO_PI / orb.period, nan),
+        w=np.where(ok, TWO_PI / period, nan),
         top=np.where(ok, half, nan),
         harmonics_dbc=np.where(ok[:, None], harm, nan),
         peak_current=np.where(ok, dev["ic"].max(axis=0), nan),
         dissipation=np.where(ok, p_dev, nan),
-        unstable=ok & orb.unstable,
+        unstable=ok & unstable,
         multiplier=np.where(ok, mu, nan),
     )
