@@ -157,3 +157,20 @@ def test_shooting_against_a_fresh_ngspice_transient():
         pytest.fail(f"{exc} (this test does not skip; CI installs ngspice)")
     _, ps = _shoot(d)
     assert ps.w[0] / TWO_PI == pytest.approx(sim["f_hz"], rel=2e-3)
+
+
+@pytest.mark.slow
+def test_a_board_alone_and_in_a_batch_give_the_same_bits():
+    # every Newton (per step, per orbit) stops per element and every product is an
+    # einsum: a board's orbit does not depend on the boards beside it
+    designs, _ = load_reference(DATA)
+    d = designs[15]
+    vals = {p: np.array([v, v * 1.01, v * 0.99]) for p, v in d.values.items()}
+    net = Network.build(d.topo, vals, d.stray, d.params)
+    w, top, im = np.full(3, TWO_PI * 7.15e4), np.full(3, 3.3), np.full(3, np.nan)
+    both = periodic_state(net, np.array([0, 1, 2]), w, top, im)
+    alone = periodic_state(net, np.array([2]), w[:1], top[:1], im[:1])
+    assert both.ok.all()
+    assert both.w[2] == alone.w[0]
+    assert both.top[2] == alone.top[0]
+    assert both.multiplier[2] == alone.multiplier[0]
