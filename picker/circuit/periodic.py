@@ -14,6 +14,15 @@ to the describing function's amplitude and period. From the orbit it reads:
   discrete Fourier transform of the N samples of one period);
 * the peak collector current and the device's mean dissipation ⟨I_C·V_CE + I_B·V_BE⟩;
 * whether the orbit is unstable (a Floquet multiplier outside the unit circle).
+
+Status: not yet called by :func:`picker.circuit.steady.steady_state`. On the held-out
+validation set (``tests/validation/large_signal_holdout.json``, 60 designs) putting it
+in place of the describing function on the 18 saturated designs (17 converged) gives
+frequency within 2 % for 95.8 % of oscillating designs (91.7 % without), bursting
+precision 1.00 (0.67) at recall 0.40 (0.40), amplitude within ±30 % for 100 % (95.2 %),
+Clapp worst 1.1 % (2.6 %) (``scripts/shooting_stats.py``). It costs tens of seconds per
+design one at a time (numpy's per-call overhead on small matrices; a batch of designs
+shares it), too slow for the search and for the validation tests as they stand.
 """
 
 from __future__ import annotations
