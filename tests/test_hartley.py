@@ -139,7 +139,17 @@ def _ideal_loop_gain(w: float, v: dict, k: float, gm: float, r: float) -> comple
     return complex(-gm * x[1])
 
 
-@pytest.mark.parametrize("stage", [pytest.param(s, id=s.name) for s in STAGES.values()])
+# The stages whose ideal form drives the tank from a high-impedance control node: the
+# nodal analysis above (a transconductance across L1, sensing L2) is theirs. The
+# common-base and common-gate stages feed the tank back into the low-impedance emitter
+# (source), which loads it: their ideal loop does not run at ω0 nor with gain
+# gm·R·beta (their own start-up condition is tested in tests/test_common_base.py and
+# tests/test_common_gate.py on Colpitts tanks; on a Hartley tank they are not yet
+# checked against an independent analysis).
+HIGH_Z_INPUT = [s for s in STAGES.values() if s.name not in ("common-base", "common-gate")]
+
+
+@pytest.mark.parametrize("stage", [pytest.param(s, id=s.name) for s in HIGH_Z_INPUT])
 @pytest.mark.parametrize("k", [0.0, 0.3, 0.9])
 def test_ideal_stage_runs_at_the_tank_frequency_with_gain_gm_r_beta(stage: Stage, k: float):
     # The ideal stage (Stage.ideal_params) on a Hartley tank: the loop's zero-phase
