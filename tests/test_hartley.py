@@ -16,6 +16,9 @@ from __future__ import annotations
 
 import math
 import pickle
+import subprocess
+import sys
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -139,14 +142,14 @@ def _ideal_loop_gain(w: float, v: dict, k: float, gm: float, r: float) -> comple
     return complex(-gm * x[1])
 
 
-# The stages whose ideal form drives the tank from a high-impedance control node: the
-# nodal analysis above (a transconductance across L1, sensing L2) is theirs. The
-# common-base and common-gate stages feed the tank back into the low-impedance emitter
-# (source), which loads it: their ideal loop does not run at ω0 nor with gain
-# gm·R·beta (their own start-up condition is tested in tests/test_common_base.py and
-# tests/test_common_gate.py on Colpitts tanks; on a Hartley tank they are not yet
-# checked against an independent analysis).
-HIGH_Z_INPUT = [s for s in STAGES.values() if s.name not in ("common-base", "common-gate")]
+# The stages the spec accepts on a Hartley tank: those whose tank common end is at AC
+# ground (Stage.grounded_common), where the coil's tap returns through its bypass; the
+# nodal analysis above (a transconductance across L1, sensing L2) is their loop. The
+# followers, common-base and common-gate stages take the emitter (source) as the tank's
+# common end; their typical Hartley netlists ran at a few kHz in ngspice (a relaxation
+# through the tap bypass) against about 1.3 MHz modelled, so the spec refuses them
+# (test_spec_refuses_a_hartley_tank_on_an_emitter_tapped_stage).
+HIGH_Z_INPUT = [s for s in STAGES.values() if s.grounded_common]
 
 
 @pytest.mark.parametrize("stage", [pytest.param(s, id=s.name) for s in HIGH_Z_INPUT])
@@ -242,3 +245,44 @@ def test_calibration_recovers_stray_and_l_scale_and_refuses_shunts():
     assert_allclose([got["stray"], got["l_scale"]], [stray, scale], rtol=1e-6)
     with pytest.raises(SpecError, match="no c2_shunt"):
         fit_parasitics(topo, v, f, fit=("stray", "c2_shunt"))
+
+
+@pytest.mark.parametrize(
+    "stage", [s.name for s in STAGES.values() if not s.grounded_common and s.device == "bjt"]
+)
+def test_spec_refuses_a_hartley_tank_on_an_emitter_tapped_stage(tmp_path, stage):
+    # The refusal is one line naming the file and amplifier.stage, exit status 2 (the
+    # project's bad-input rule); the common-emitter demo itself is accepted.
+    demo = Path(__file__).resolve().parents[1] / "demo_specs" / "hartley_beacon.toml"
+    text = demo.read_text(encoding="utf-8")
+    assert 'stage = "common-emitter"' in text
+    lines = []
+    # keys the emitter-tapped stages refuse on their own account (a follower has no
+    # collector load; neither takes an emitter bypass), and the common-base base bypass
+    drop = (
+        ("stage =", "c_emitter", "r_load")
+        if stage == "common-collector"
+        else ("stage =", "c_emitter")
+    )
+    for line in text.splitlines():
+        if line.strip().startswith(drop):
+            continue
+        lines.append(line)
+        if line.strip() == "[amplifier]":
+            lines.append(f'stage = "{stage}"')
+            if stage == "common-base":
+                lines.append('c_base = "100 nF"')
+    bad = tmp_path / "bad.toml"
+    bad.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    run = subprocess.run(
+        [sys.executable, "-m", "picker", "solve", str(bad)],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert run.returncode == 2, run.stderr
+    assert run.stdout == ""
+    err = run.stderr.strip()
+    assert "\n" not in err and "Traceback" not in err
+    assert "amplifier.stage" in err and str(bad) in err and stage in err
+    assert "AC ground" in err

@@ -115,8 +115,11 @@ def hurwitz_conditions(m: np.ndarray) -> np.ndarray:
             if 0 <= e <= n:
                 hur[:, i, j] = a[:, e]
     out = np.ones((count, HURWITZ))
-    for i in range(1, n):
-        out[:, i - 1] = np.linalg.det(hur[:, :i, :i])
+    with np.errstate(over="ignore", invalid="ignore"):
+        # a stiff Jacobian (eigenvalues 10⁸ apart) can take a minor past the float range:
+        # its sign stays (±inf), and the board fit treats a non-finite point as unfitted
+        for i in range(1, n):
+            out[:, i - 1] = np.linalg.det(hur[:, :i, :i])
     out[:, n - 1] = a[:, n]
     return out
 

@@ -129,9 +129,9 @@ def _harmonics(
         rhs = np.concatenate([r.real, r.imag], axis=1)
         live &= np.all(np.isfinite(jac), axis=(1, 2))
         step = np.zeros((act.size, 2 * m))
-        ok_j = live & (
-            np.abs(np.linalg.det(np.where(live[:, None, None], jac, np.eye(2 * m)))) > 1e-12
-        )
+        with np.errstate(over="ignore"):  # a huge Jacobian's det overflows to inf: not singular
+            det = np.linalg.det(np.where(live[:, None, None], jac, np.eye(2 * m)))
+        ok_j = live & (np.abs(det) > 1e-12)
         if not ok_j.any():
             break
         step[ok_j] = np.linalg.solve(jac[ok_j], rhs[ok_j][..., None])[..., 0]

@@ -27,6 +27,7 @@ from pydantic import (
 )
 
 from picker import units
+from picker.circuit.stages import STAGES
 from picker.errors import KeyedError, SpecError
 from picker.parts import limits
 from picker.parts import series as series_mod
@@ -613,6 +614,14 @@ class Spec(_Strict):
             raise KeyedError(
                 "tank.coupling", f"a {self.topology} tank has one inductor; remove the coupling"
             )
+        if self.amplifier is not None and topo.needs_grounded_common:
+            if not STAGES[self.amplifier.stage].grounded_common:
+                fit = ", ".join(n for n, s in STAGES.items() if s.grounded_common)
+                raise KeyedError(
+                    "amplifier.stage",
+                    f"a {self.topology} tank is modelled only with a stage whose tank "
+                    f"common end is at AC ground ({fit}); got {self.amplifier.stage!r}",
+                )
         for name in ("c1_shunt", "c2_shunt"):
             if getattr(self.parasitics, name) and name not in topo.shunt_targets():
                 raise KeyedError(

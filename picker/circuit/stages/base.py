@@ -177,6 +177,12 @@ class Stage:
     collector_load : whether the stage takes a collector (drain) load, the spec's
         ``r_load`` or ``choke`` (an emitter follower's collector goes straight to the
         supply: no load).
+    grounded_common : whether the tank's common end (the stage's ``common`` node) is at
+        AC ground (common-emitter, common-source); False where it is the emitter
+        (source) that taps the tank (the followers, the common-base and common-gate
+        stages). A tank that returns an inner node to its common end
+        (:attr:`picker.tank.base.Topology.needs_grounded_common`) is modelled only with
+        a grounded common end.
     """
 
     name: ClassVar[str]
@@ -189,6 +195,7 @@ class Stage:
     coupling_parts: ClassVar[tuple[str, ...]] = ()
     has_device_law: ClassVar[bool] = False
     collector_load: ClassVar[bool] = True
+    grounded_common: ClassVar[bool] = True
     _instance: ClassVar[Stage | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:

@@ -70,6 +70,7 @@ class CommonBase(CommonEmitter):
     """The common-base bjt stage with divider bias and a bypassed base."""
 
     name = "common-base"
+    grounded_common = False
     device = "bjt"
     default_for_device = False
     output = "c"

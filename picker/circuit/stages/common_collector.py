@@ -86,6 +86,7 @@ class CommonCollector(CommonEmitter):
     """The emitter follower (common-collector bjt stage) with divider bias."""
 
     name = "common-collector"
+    grounded_common = False
     device = "bjt"
     default_for_device = False
     collector_load = False

@@ -55,6 +55,7 @@ class CommonDrain(CommonSource, CommonCollector):
     :class:`CommonSource` in the network of :class:`CommonCollector`."""
 
     name = "common-drain"
+    grounded_common = False
     device = "fet"
     has_device_law = True
     default_for_device = False

@@ -50,6 +50,7 @@ class CommonGate(CommonSource, CommonBase):
     network of :class:`CommonBase`."""
 
     name = "common-gate"
+    grounded_common = False
     device = "fet"
     has_device_law = True
     default_for_device = False
