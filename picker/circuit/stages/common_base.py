@@ -50,7 +50,6 @@ below the base, as there.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from typing import Any
 
@@ -90,19 +89,6 @@ class CommonBase(CommonEmitter):
                 "the emitter"
             )
         return params.r_collector_dc
-
-    def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
-        """β → ∞, C_pi = C_mu = 0, r_o → ∞, no bias network, R_C = ``r_load``."""
-        return AmplifierParams(
-            kind=self.device,
-            stage=self.name,
-            gm=gm,
-            current_gain=math.inf,
-            r_o=math.inf,
-            c_pi=0.0,
-            c_mu=0.0,
-            r_c=r_load,
-        )
 
     def typical_params(self) -> AmplifierParams:
         """A 9 V stage at about 0.5 mA (invented values, not a real circuit)."""
