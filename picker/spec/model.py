@@ -27,7 +27,6 @@ from pydantic import (
 )
 
 from picker import units
-from picker.circuit.stages import STAGES
 from picker.errors import KeyedError, SpecError
 from picker.parts import limits
 from picker.parts import series as series_mod
@@ -615,6 +614,9 @@ class Spec(_Strict):
                 "tank.coupling", f"a {self.topology} tank has one inductor; remove the coupling"
             )
         if self.amplifier is not None and topo.needs_grounded_common:
+            # the stage registry (its modules import scipy.special): only with an [amplifier]
+            from picker.circuit.stages import STAGES
+
             if not STAGES[self.amplifier.stage].grounded_common:
                 fit = ", ".join(n for n, s in STAGES.items() if s.grounded_common)
                 raise KeyedError(
