@@ -36,6 +36,20 @@ whose plan would need more than :data:`LONGEST` periods (a base divider or C_B·
 recovering over tens of thousands of periods: a burst that slow could not be seen) is
 left out, so every kept design is observed for at least ten of its slowest bias time
 constants. ngspice runs in two processes at a time.
+
+The other stages (issue 12; ``--stage NAME``, one process at a time with ``--workers 1``):
+the bjt ones as :func:`draw` says, the fet ones (common-source, common-drain,
+common-gate) as :func:`draw_fet` says: half self-biased n-channel JFETs drawn by IDSS,
+pinch-off and λ, half divider-biased enhancement MOSFETs drawn by threshold, KP and λ
+(:mod:`picker.circuit.fet`'s square-law card, written into the netlist), over the same
+frequencies, supplies, tanks, loads and quotas. ``--tank hartley`` draws Hartley tanks
+(:func:`_tank`) instead of Colpitts and Clapp: coupling k uniform in 0.3–0.99, L2/L1
+log-uniform in 0.05–2 (L1 across the output), L_eff = L1 + L2 + 2M from the same tank
+reactance range, C from the frequency; a draw whose C exceeds a twentieth of the tap
+bypass (:data:`picker.tank.hartley.TAP_BYPASS`, so below about 100 kHz few are kept) is
+left out. Only the stages whose tank common end is grounded take a Hartley
+(common-emitter, common-source); ``--stage common-emitter,common-source`` draws each
+design's stage at random.
 """
 
 from __future__ import annotations
@@ -51,6 +65,7 @@ from pathlib import Path
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.fet import fet_class
 from picker.circuit.netlist import transient_plan
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.stages import stage_of
@@ -64,6 +79,8 @@ from picker.circuit.validation import (
     run_design,
 )
 from picker.tank import get_topology
+from picker.tank.base import Topology
+from picker.tank.hartley import TAP_BYPASS
 
 ROOT = Path(__file__).resolve().parent.parent
 OUT = ROOT / "tests" / "validation" / "large_signal.json"
@@ -83,6 +100,8 @@ LONGEST = 6000
 WORKERS = 2
 #: Designs with an unbypassed emitter added after the quota draw (:func:`unbypassed`).
 UNBYPASSED = 8
+#: The fet stages (drawn by :func:`draw_fet`).
+FET_STAGES = ("common-source", "common-drain", "common-gate")
 
 
 def _sig(x: float, digits: int = 3) -> float:
@@ -94,6 +113,61 @@ def _logu(rng: np.random.Generator, lo: float, hi: float) -> float:
     return float(math.exp(rng.uniform(math.log(lo), math.log(hi))))
 
 
+def _tank(
+    rng: np.random.Generator, kind: str, w: float, rho_lo: float = 0.1, rho_hi: float = 2.0
+) -> tuple[Topology, dict[str, float], float] | None:
+    """The tank's values at ω = ``w``: ``kind`` "colpitts", "clapp" or "hartley"; C1/C2
+    log-uniform in ``rho_lo``–``rho_hi`` (None where the draw is not buildable)."""
+    x_l = _logu(rng, 30.0, 1500.0)
+    l = _sig(x_l / w)
+    stray = _sig(rng.uniform(1e-12, 5e-12), 2)
+    if kind == "hartley":
+        k = _sig(rng.uniform(0.3, 0.99), 2)
+        q = _logu(rng, 0.05, 2.0)  # L2/L1
+        l1 = _sig(l / (1 + q + 2 * k * math.sqrt(q)))
+        l2 = _sig(q * l1)
+        topo = get_topology("hartley").configured(k)
+        c = 1.0 / (w * w * float(topo.l_eff({"L1": l1, "L2": l2}))) - stray
+        if not 5e-12 < c <= TAP_BYPASS / 20:
+            return None
+        return topo, {"L1": l1, "L2": l2, "C": _sig(c)}, stray
+    topo = get_topology(kind)
+    c_eff = 1.0 / (w * w * l) - stray
+    if c_eff <= 5e-12:
+        return None
+    rho = _logu(rng, rho_lo, rho_hi)  # C1/C2
+    if kind == "clapp":
+        share = rng.uniform(0.5, 0.9)  # C_eff/C3
+        c3 = c_eff / share
+        c1 = (1 + rho) * c_eff / (1 - share)
+        return topo, {"C1": _sig(c1), "C2": _sig(c1 / rho), "C3": _sig(c3), "L": l}, stray
+    c1 = c_eff * (1 + rho)  # C1·C2/(C1 + C2) = C1/(1 + rho) = C_eff with C2 = C1/rho
+    return topo, {"C1": _sig(c1), "C2": _sig(c1 / rho), "L": l}, stray
+
+
+def _kind(rng: np.random.Generator, tank: str) -> str:
+    """The tank of one draw: a Hartley, or a Colpitts (70 %) or Clapp (30 %)."""
+    if tank == "hartley":
+        return "hartley"
+    return "clapp" if rng.uniform() < 0.3 else "colpitts"
+
+
+def _c_ref(values: dict[str, float]) -> float:
+    """The capacitor the coupling capacitor is scaled to: C1, or a Hartley's C."""
+    return values["C1"] if "C1" in values else values["C"]
+
+
+def _design(
+    index: int,
+    prefix: str,
+    topo: Topology,
+    values: dict[str, float],
+    stray: float,
+    params: AmplifierParams,
+) -> Design:
+    return Design(f"{prefix}{index:03d}", topo.name, values, stray, params, float(topo.coupling))
+
+
 def draw(
     rng: np.random.Generator,
     index: int,
@@ -101,6 +175,7 @@ def draw(
     bypass: bool = True,
     prefix: str = "d",
     stage: str = "common-emitter",
+    tank: str = "colpitts",
 ) -> Design | None:
     """One random design over issue 11's ranges (None where the draw is not buildable);
     ``bypass`` False leaves the emitter unbypassed; its id is ``prefix`` and ``index``.
@@ -109,9 +184,12 @@ def draw(
     common-collector one has no collector load and no emitter bypass, and its C1/C2
     reaches down to 0.01 (the follower's gain gm·R_E = V_E/V_T is large, so only a
     small C1/C2 makes it marginal); the common-base one has no emitter bypass and its
-    base bypassed by C_base = 20–200× C2."""
-    clapp = rng.uniform() < 0.3
-    topo = get_topology("clapp" if clapp else "colpitts")
+    base bypassed by C_base = 20–200× C2. A fet stage is drawn by :func:`draw_fet`;
+    ``tank`` "hartley" draws a Hartley tank (:func:`_tank`) in place of the Colpitts
+    or Clapp."""
+    if stage in FET_STAGES:
+        return draw_fet(rng, index, prefix=prefix, stage=stage, tank=tank)
+    kind = _kind(rng, tank)
     f0 = _logu(rng, 20e3, 30e6)
     w = 2 * math.pi * f0
     vcc = _sig(rng.uniform(5.0, 15.0), 2)
@@ -123,26 +201,18 @@ def draw(
     i_div = ib * rng.uniform(10.0, 40.0)
     r_b2 = _sig(vb / i_div)
     r_b1 = _sig((vcc - vb) / (i_div + ib))
-    x_l = _logu(rng, 30.0, 1500.0)
-    l = _sig(x_l / w)
-    stray = _sig(rng.uniform(1e-12, 5e-12), 2)
-    c_eff = 1.0 / (w * w * l) - stray
-    if c_eff <= 5e-12:
+    got = _tank(rng, kind, w, 0.01 if stage == "common-collector" else 0.1)
+    if got is None:
         return None
-    rho = _logu(rng, 0.01 if stage == "common-collector" else 0.1, 2.0)  # C1/C2
-    if clapp:
-        share = rng.uniform(0.5, 0.9)  # C_eff/C3
-        c3 = c_eff / share
-        c1 = (1 + rho) * c_eff / (1 - share)
-        values = {"C1": _sig(c1), "C2": _sig(c1 / rho), "C3": _sig(c3), "L": l}
-    else:
-        c1 = c_eff * (1 + rho)  # C1·C2/(C1 + C2) = C1/(1 + rho) = C_eff with C2 = C1/rho
-        values = {"C1": _sig(c1), "C2": _sig(c1 / rho), "L": l}
+    topo, values, stray = got
     choke = rng.uniform() < 0.3
     if stage == "common-collector":
         load: dict[str, float] = {}
     elif choke:
-        load = {"l_choke": _sig(l * _logu(rng, 5.0, 50.0)), "r_choke": _sig(_logu(rng, 0.5, 10))}
+        load = {
+            "l_choke": _sig(_inductance(values) * _logu(rng, 5.0, 50.0)),
+            "r_choke": _sig(_logu(rng, 0.5, 10)),
+        }
     else:
         drop = _logu(rng, 0.02, 0.65) * (vcc - ve)  # across R_C: sets the gain gm·R_C
         load = {"r_c": _sig(drop / ic)}
@@ -160,11 +230,110 @@ def draw(
         r_b2=r_b2,
         r_e=r_e,
         c_e=c_e,
-        c_block=_sig(values["C1"] * _logu(rng, 2.0, 200.0)),
+        c_block=_sig(_c_ref(values) * _logu(rng, 2.0, 200.0)),
         inductor_q=_sig(_logu(rng, 20.0, 200.0), 2),
         **load,
     )
-    return Design(f"{prefix}{index:03d}", topo.name, values, stray, params)
+    return _design(index, prefix, topo, values, stray, params)
+
+
+def _inductance(values: dict[str, float]) -> float:
+    """The tank's inductance a choke is scaled to: L, or a Hartley's L1 + L2."""
+    return values["L"] if "L" in values else values["L1"] + values["L2"]
+
+
+def draw_fet(
+    rng: np.random.Generator,
+    index: int,
+    *,
+    prefix: str = "d",
+    stage: str = "common-source",
+    tank: str = "colpitts",
+) -> Design | None:
+    """One random design of a fet ``stage`` (None where the draw is not buildable).
+
+    Half the draws are n-channel JFETs (:func:`picker.circuit.fet.fet_class`
+    "generic-njfet" with IDSS 2–30 mA log-uniform, pinch-off −0.8 to −6 V, λ
+    0.002–0.03 /V log-uniform), self-biased: the gate at 0 V through a gate resistor
+    of 100 kΩ–2.2 MΩ (tied straight to ground in the common-gate stage) and R_S set
+    for I_D = 10–70 % of IDSS (Shockley's law, V_GS = V_P·(1 − √(I_D/IDSS))); half are
+    enhancement MOSFETs ("generic-nmos" with threshold 0.8–3 V, KP 0.02–0.5 A/V², λ
+    0.005–0.05 /V), biased by a gate divider of Thevenin resistance 10–470 kΩ for
+    I_D = 0.5–10 mA with the source at 10–30 % of the supply. The capacitances are the
+    class's. The rest follows :func:`draw`: the drain load of the common-source and
+    common-gate stages (a resistor dropping 2–65 % of the supply above the source, or a
+    choke), the source bypass of the common-source stage, the gate bypass C_base =
+    20–200× C2 of a divider-biased common-gate stage; no drain load in the follower
+    (common-drain), whose C1/C2 reaches from 0.01 (a MOSFET's gm·R_S is large) to 4 (a
+    self-biased JFET's gm·R_S = 2·(1 − √(I_D/IDSS))/√(I_D/IDSS) is 0.4–3); the
+    common-gate stage's C1/C2 is 0.3–3 (its gain must exceed (C1 + C2)²/(C1·C2), at
+    least 4, which C1/C2 far from 1 raises beyond what a fet's gm·R_D gives). Draws whose
+    solved bias leaves less than 0.5 V between V_DS and the triode edge are left out.
+    """
+    kind = _kind(rng, tank)
+    f0 = _logu(rng, 20e3, 30e6)
+    w = 2 * math.pi * f0
+    vcc = _sig(rng.uniform(5.0, 15.0), 2)
+    gate: dict[str, float | None]
+    if rng.uniform() < 0.5:
+        idss = _sig(_logu(rng, 2e-3, 30e-3), 2)
+        vp = -_sig(rng.uniform(0.8, 6.0), 2)
+        card = fet_class("generic-njfet", idss=idss, vto=vp, lam=_sig(_logu(rng, 0.002, 0.03), 2))
+        ratio = rng.uniform(0.1, 0.7)  # I_D/IDSS
+        i_d = ratio * idss
+        v_s = -vp * (1.0 - math.sqrt(ratio))  # Shockley's law (picker.circuit.fet, F1)
+        r_g = _sig(_logu(rng, 100e3, 2.2e6), 2)
+        gate = {"r_b1": None, "r_b2": None if stage == "common-gate" else r_g}
+    else:
+        vt = _sig(rng.uniform(0.8, 3.0), 2)
+        kp = _sig(_logu(rng, 0.02, 0.5), 2)
+        card = fet_class("generic-nmos", vto=vt, kp=kp, lam=_sig(_logu(rng, 0.005, 0.05), 2))
+        i_d = _logu(rng, 0.5e-3, 10e-3)
+        v_s = max(rng.uniform(0.10, 0.30) * vcc, 0.3)
+        v_g = v_s + vt + math.sqrt(i_d / card.k)
+        r_th = _logu(rng, 10e3, 470e3)
+        if v_g >= 0.9 * vcc:
+            return None
+        gate = {"r_b1": _sig(r_th * vcc / v_g), "r_b2": _sig(r_th * vcc / (vcc - v_g))}
+    r_s = _sig(v_s / i_d)
+    rho_lo, rho_hi = {"common-drain": (0.01, 4.0), "common-gate": (0.3, 3.0)}.get(stage, (0.1, 2.0))
+    got = _tank(rng, kind, w, rho_lo, rho_hi)
+    if got is None:
+        return None
+    topo, values, stray = got
+    load: dict[str, float | None] = {}
+    if stage != "common-drain":
+        if rng.uniform() < 0.3:
+            load = {
+                "l_choke": _sig(_inductance(values) * _logu(rng, 5.0, 50.0)),
+                "r_choke": _sig(_logu(rng, 0.5, 10)),
+            }
+        else:
+            load = {"r_c": _sig(_logu(rng, 0.02, 0.65) * max(vcc - v_s, 0.0) / i_d)}
+    c_e = _sig(_logu(rng, 1.0, 2000.0) / (w * r_s)) if rng.uniform() >= 0.12 else None
+    if stage != "common-source":
+        c_e = None
+    if stage == "common-gate" and gate["r_b1"] is not None:
+        load["c_base"] = _sig(values["C2"] * _logu(rng, 20.0, 200.0))
+    params = AmplifierParams(
+        kind="fet",
+        stage=stage,
+        vcc=vcc,
+        r_e=r_s,
+        c_e=c_e,
+        c_block=_sig(_c_ref(values) * _logu(rng, 2.0, 200.0)),
+        inductor_q=_sig(_logu(rng, 20.0, 200.0), 2),
+        fet=card,
+        **gate,
+        **load,
+    )
+    try:
+        fb = stage_of(params).fet_bias(params)  # type: ignore[attr-defined]
+    except ValueError:  # cut off
+        return None
+    if fb is None or fb.vds - fb.u < 0.5:
+        return None
+    return _design(index, prefix, topo, values, stray, params)
 
 
 def unbypassed(
@@ -198,10 +367,16 @@ def settling_cycles(d: Design) -> float:
 
 
 def select(
-    seed: int = SEED, count: int = COUNT, prefix: str = "d", stage: str = "common-emitter"
+    seed: int = SEED,
+    count: int = COUNT,
+    prefix: str = "d",
+    stage: str = "common-emitter",
+    tank: str = "colpitts",
 ) -> list[Design]:
-    """``count`` seeded draws of ``stage``, kept by quota on the linear model's start-up
-    margin."""
+    """``count`` seeded draws of ``stage`` (a comma-separated list: each draw picks one
+    of them at random) in ``tank`` ("colpitts": Colpitts and Clapp; "hartley"), kept by
+    quota on the linear model's start-up margin."""
+    stages = stage.split(",")
     rng = np.random.default_rng(seed)
     want = [round(share * count) for *_, share in QUOTAS]
     want[-1] += count - sum(want)
@@ -212,7 +387,8 @@ def select(
         tries += 1
         if tries > 200 * count:
             raise RuntimeError("the quotas cannot be filled; widen the ranges")
-        d = draw(rng, len(out), prefix=prefix, stage=stage)
+        one = stages[int(rng.integers(len(stages)))] if len(stages) > 1 else stages[0]
+        d = draw(rng, len(out), prefix=prefix, stage=one, tank=tank)
         if (
             d is None
             or not transient_plan(d.topo, d.values, d.stray, d.params, max_cycles=LONGEST).resolved
@@ -242,10 +418,11 @@ def make(
     prefix: str = "d",
     stage: str = "common-emitter",
     workers: int = WORKERS,
+    tank: str = "colpitts",
 ) -> None:
     """Draw ``count`` designs of ``stage`` by quota and ``extra`` unbypassed ones (the
     common-emitter stage's) from ``seed``, run them in ngspice and write ``path``."""
-    designs = select(seed, count, prefix, stage)
+    designs = select(seed, count, prefix, stage, tank)
     if extra:
         designs += unbypassed(seed + 1, extra, count, prefix)
     t0 = time.perf_counter()
@@ -309,7 +486,17 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--count", type=int, default=COUNT, help="designs drawn by quota")
     ap.add_argument("--unbypassed", type=int, default=UNBYPASSED, help="unbypassed designs")
     ap.add_argument("--prefix", default="d", help="prefix of the design ids")
-    ap.add_argument("--stage", default="common-emitter", help="the bjt stage drawn (issue 12)")
+    ap.add_argument(
+        "--stage",
+        default="common-emitter",
+        help="the stage drawn, or a comma-separated list of them (issue 12)",
+    )
+    ap.add_argument(
+        "--tank",
+        default="colpitts",
+        choices=("colpitts", "hartley"),
+        help="colpitts: Colpitts and Clapp; hartley: Hartley tanks (issue 12)",
+    )
     ap.add_argument("--workers", type=int, default=WORKERS, help="ngspice processes at a time")
     args = ap.parse_args(argv)
     if args.stats:
@@ -317,7 +504,16 @@ def main(argv: list[str] | None = None) -> int:
         return 0
     if args.check:
         return check(args.check, args.out)
-    make(args.out, args.seed, args.count, args.unbypassed, args.prefix, args.stage, args.workers)
+    make(
+        args.out,
+        args.seed,
+        args.count,
+        args.unbypassed,
+        args.prefix,
+        args.stage,
+        args.workers,
+        args.tank,
+    )
     return 0
 
 

@@ -31,6 +31,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.fet import FetCard
 from picker.circuit.netlist import transient_plan, write_netlist
 from picker.circuit.ngspice import simulate
 from picker.circuit.steady import steady_state
@@ -58,37 +59,48 @@ _PARAM_FIELDS = tuple(f.name for f in fields(AmplifierParams) if f.name != "devi
 @dataclass(frozen=True)
 class Design:
     """One reference design: ``topology`` name, board ``values`` (F, H), ``stray`` (F),
-    the amplifier ``params`` and an ``id``."""
+    the amplifier ``params``, an ``id`` and the tank's ``coupling`` (a Hartley's k; 0
+    for the others)."""
 
     id: str
     topology: str
     values: dict[str, float]
     stray: float
     params: AmplifierParams
+    coupling: float = 0.0
 
     @property
     def topo(self) -> Topology:
-        """The registered topology."""
-        return get_topology(self.topology)
+        """The registered topology, configured with the design's coupling."""
+        topo = get_topology(self.topology)
+        return topo.configured(self.coupling) if self.coupling else topo
 
 
 def design_to_dict(d: Design) -> dict[str, Any]:
-    """JSON-ready form of a design (every AmplifierParams field but the device card)."""
+    """JSON-ready form of a design (every AmplifierParams field but the bjt's device card;
+    a fet's card as its fields; ``coupling`` only where it is not 0)."""
     p = asdict(d.params)
-    return {
+    out = {
         "id": d.id,
         "topology": d.topology,
         "values": dict(d.values),
         "stray": d.stray,
         "params": {k: p[k] for k in _PARAM_FIELDS},
     }
+    if d.coupling:
+        out["coupling"] = d.coupling
+    return out
 
 
 def design_from_dict(d: Mapping[str, Any]) -> Design:
     """The inverse of :func:`design_to_dict`."""
-    params = AmplifierParams(**{k: d["params"][k] for k in _PARAM_FIELDS if k in d["params"]})
+    kw = {k: d["params"][k] for k in _PARAM_FIELDS if k in d["params"]}
+    if kw.get("fet") is not None:
+        kw["fet"] = FetCard(**kw["fet"])
+    params = AmplifierParams(**kw)
     values = {k: float(v) for k, v in d["values"].items()}
-    return Design(str(d["id"]), str(d["topology"]), values, float(d["stray"]), params)
+    coupling = float(d.get("coupling", 0.0))
+    return Design(str(d["id"]), str(d["topology"]), values, float(d["stray"]), params, coupling)
 
 
 def run_design(d: Design, *, timeout: float = 120.0) -> dict[str, Any]:
