@@ -1,13 +1,16 @@
-"""The large-signal model against ngspice on the validation sets of the issue 12 stages.
+"""The large-signal model against ngspice on the validation sets of the issue 12 stages and tank.
 
-Reference data: ``tests/validation/stage_common_collector.json`` and
-``tests/validation/stage_common_base.json``, 24 random designs each drawn like the
-common-emitter set (``scripts/make_validation.py --stage NAME``: the same ranges and
-quotas on the start-up margin, the stage's own parts) and what ngspice's transient of
-picker's netlist shows, measured by :mod:`picker.circuit.waveform` (written without the
-model). Issue 11's targets are asserted per stage; a target a stage does not meet is a
-strict xfail naming it (README, "Amplifier stages", gives the figures), so it turns red
-the day it is met.
+Reference data in ``tests/validation/``: ``stage_common_collector.json``,
+``stage_common_base.json``, ``stage_common_source.json``, ``stage_common_drain.json``,
+``stage_common_gate.json`` (24 random designs each of that stage in Colpitts and Clapp
+tanks) and ``tank_hartley.json`` (24 random Hartley designs, common-emitter and
+common-source), drawn like the common-emitter set (``scripts/make_validation.py --stage
+NAME`` and ``--tank hartley``: the same ranges and quotas on the start-up margin, the
+stage's own parts; the fet stages with JFET and MOSFET cards) and what ngspice's
+transient of picker's netlist shows, measured by :mod:`picker.circuit.waveform` (written
+without the model). Issue 11's targets are asserted per set; a target a set does not
+meet is a strict xfail naming the measured figure and its likely cause (README,
+"Amplifier stages", gives the figures), so it turns red the day it is met.
 """
 
 from __future__ import annotations
@@ -23,12 +26,45 @@ DATA = Path(__file__).parent / "validation"
 SETS = {
     "common-collector": DATA / "stage_common_collector.json",
     "common-base": DATA / "stage_common_base.json",
+    "common-source": DATA / "stage_common_source.json",
+    "common-drain": DATA / "stage_common_drain.json",
+    "common-gate": DATA / "stage_common_gate.json",
+    "hartley": DATA / "tank_hartley.json",
 }
+#: The stages and tanks each set draws (a stage's set: that stage, Colpitts and Clapp).
+STAGES = {"hartley": {"common-emitter", "common-source"}}
+TANKS = {"hartley": {"hartley"}}
 UNMET = "issue 11's target is not met on this stage's set yet (README: Amplifier stages)"
 AMPLITUDE_NODE = (
     "the common-base model's amplitude is the swing across C1 (collector to emitter, its "
     "network's reference), ngspice's the tank top to ground: not yet the same quantity"
 )
+GATE_DIODE = (
+    "the JFET's gate junction is not modelled: its rectified gate current charges the gate "
+    "resistor and C2 (grid-leak bias), which in ngspice clamps the swing of the self-biased "
+    "JFET designs and squegs the overdriven ones"
+)
+FET_FREQUENCY = {
+    "common-source": "85.0 % (17 of 20); " + GATE_DIODE + " (cs002 squegs: no carrier in the "
+    "tail); the overdriven MOSFET designs cs007 (margin 11, -16 %), cs011, cs019 drift",
+    "common-drain": "83.3 % (15 of 18): the overdriven MOSFET followers cd002, cd019, cd022 "
+    "(margins 7-73) miss by 2.5-2.8 %",
+    "common-gate": "65.0 % (13 of 20): overdriven designs (margins 4-68: cg014, cg015, "
+    "cg020-cg023 at -3.5 to -22 %) run above the model's frequency; the Clapp cg004 "
+    "(unsettled) at -93 %",
+    "hartley": "75.0 % (15 of 20): hy022 squegs (" + GATE_DIODE + "); hy021 (a MOSFET at "
+    "margin 3.9, ngspice 41 kHz against 79 kHz ideal) and the bursting hy006/hy007 miss",
+}
+AMPLITUDE = {
+    "common-source": "77.8 % (14 of 18): " + GATE_DIODE + " (cs008 +305 %); overdriven "
+    "MOSFETs low (cs011 -33 %, cs019 -44 %)",
+    "common-drain": "47.1 % (8 of 17): " + GATE_DIODE + " (cd007 +375 %, cd016 +555 %); the "
+    "overdriven MOSFET followers low (cd022 -59 %)",
+    "common-gate": "57.9 % (11 of 19): the model is low on most overdriven designs (cg008 "
+    "-62 %, cg018 -62 %, cg016 -50 %)",
+    "hartley": "57.1 % (8 of 14): " + GATE_DIODE + " (hy012 +320 %, hy017 +87 %); low on "
+    "the overdriven (hy010 -47 %)",
+}
 
 
 @cache
@@ -38,31 +74,47 @@ def _acc(name: str) -> Accuracy:
     return accuracy([d.topology for d in designs], model, answers)
 
 
-def _stages(unmet: dict[str, str]) -> list[object]:
-    """Every stage's set, strict xfail (reason) for the ones named in ``unmet``."""
+def _sets(unmet: dict[str, str], names: list[str] | None = None) -> list[object]:
+    """Every set (or ``names``), strict xfail (reason) for the ones named in ``unmet``."""
     return [
         pytest.param(n, marks=pytest.mark.xfail(strict=True, reason=unmet[n])) if n in unmet else n
-        for n in sorted(SETS)
+        for n in sorted(SETS if names is None else names)
     ]
 
 
 @pytest.mark.parametrize("name", sorted(SETS))
-def test_set_holds_twenty_designs_of_its_stage_in_both_tanks(name):
+def test_set_holds_twenty_designs_of_its_stage_in_its_tanks(name):
     designs, answers = load_reference(SETS[name])
     assert len(designs) >= 20
-    assert {d.params.stage for d in designs} == {name}
-    assert {d.topology for d in designs} == {"colpitts", "clapp"}
+    assert {d.params.stage for d in designs} == STAGES.get(name, {name})
+    assert {d.topology for d in designs} == TANKS.get(name, {"colpitts", "clapp"})
     assert all(a["warnings"] == [] for a in answers)  # no floating node, no step failure
     states = [a["state"] for a in answers]
     assert states.count("none") >= 2 and states.count("steady") >= 10
+    fets = [d.params.fet for d in designs if d.params.kind == "fet"]
+    if fets:  # both fet kinds, each with its own card
+        assert {f.kind for f in fets if f is not None} == {"njf", "nmos"}
+        assert len({(f.vto, f.k) for f in fets if f is not None}) == len(fets)
 
 
-@pytest.mark.parametrize("name", _stages({"common-collector": UNMET, "common-base": UNMET}))
+@pytest.mark.parametrize(
+    "name",
+    _sets({"common-collector": UNMET, "common-base": UNMET, **FET_FREQUENCY}),
+)
 def test_frequency_within_2_percent_for_95_percent(name):
     assert _acc(name).freq_within_2pct >= 0.95
 
 
-@pytest.mark.parametrize("name", sorted(SETS))
+@pytest.mark.parametrize(
+    "name",
+    _sets(
+        {
+            "common-gate": "median 0.6 %: a third of the set is overdriven (margins 4-68), "
+            "where ngspice runs up to 29 % above the ideal tank frequency and the model "
+            "follows only part of the way"
+        }
+    ),
+)
 def test_frequency_median_error_at_most_0_3_percent(name):
     assert _acc(name).freq_median_error <= 0.003
 
@@ -72,17 +124,64 @@ def test_startup_right_for_98_percent(name):
     assert _acc(name).startup_right >= 0.98
 
 
-@pytest.mark.parametrize("name", _stages({"common-base": AMPLITUDE_NODE}))
+@pytest.mark.parametrize("name", _sets({"common-base": AMPLITUDE_NODE, **AMPLITUDE}))
 def test_amplitude_within_30_percent_for_90_percent_of_steady(name):
     assert _acc(name).amplitude_within_30pct >= 0.90
 
 
-@pytest.mark.parametrize("name", _stages({"common-collector": UNMET, "common-base": UNMET}))
+BURSTERS = ["common-collector", "common-base", "common-source", "hartley"]
+
+
+@pytest.mark.parametrize(
+    "name",
+    _sets(
+        {
+            "common-collector": UNMET,
+            "common-base": UNMET,
+            "common-source": "recall 0 (1 burster): cs002 squegs through its gate "
+            "junction's rectified current, which the model does not have",
+            "hartley": "precision and recall 0.75 (3 of 4): the squegging JFET hy022 is "
+            "missed, the MOSFET hy021 (steady in ngspice) flagged",
+        },
+        BURSTERS,
+    ),
+)
 def test_bursting_precision_and_recall_at_least_0_8(name):
     acc = _acc(name)
+    assert acc.bursting > 0
     assert acc.burst_precision >= 0.8 and acc.burst_recall >= 0.8
 
 
-@pytest.mark.parametrize("name", _stages({"common-collector": UNMET, "common-base": UNMET}))
+@pytest.mark.parametrize("name", sorted(set(SETS) - set(BURSTERS)))
+def test_no_bursting_predicted_where_ngspice_shows_none(name):
+    acc = _acc(name)
+    assert acc.bursting == 0
+    assert acc.burst_precision != acc.burst_precision  # NaN: the model flags none either
+
+
+CLAPPS = ["common-collector", "common-base", "common-source", "common-gate"]
+
+
+@pytest.mark.parametrize(
+    "name",
+    _sets(
+        {
+            "common-collector": UNMET,
+            "common-base": UNMET,
+            "common-gate": "92.8 %: cg004, an unsettled Clapp at margin 2, runs at the tank "
+            "frequency in ngspice; the model finds a 0.77 MHz root far from it",
+        },
+        CLAPPS,
+    ),
+)
 def test_clapp_within_half_a_percent(name):
+    assert _acc(name).clapp_oscillating > 0
     assert _acc(name).clapp_worst_error <= 0.005
+
+
+def test_no_clapp_follower_fet_starts_in_the_common_drain_set():
+    """The common-drain set's Clapps (3) all sit below start-up, in ngspice and the model:
+    the Clapp target has nothing to measure there (a follower's Clapp needs gm·R_S above
+    C2/C1 plus C3's share, which a self-biased JFET's 0.4-3 rarely gives)."""
+    acc = _acc("common-drain")
+    assert acc.clapp_oscillating == 0
