@@ -41,29 +41,33 @@ AMPLITUDE_NODE = (
 )
 GATE_DIODE = (
     "the JFET's gate junction is not modelled: its rectified gate current charges the gate "
-    "resistor and C2 (grid-leak bias), which in ngspice clamps the swing of the self-biased "
-    "JFET designs and squegs the overdriven ones"
+    "resistor and C2 (grid-leak bias), which in ngspice lowers the swing of some self-biased "
+    "JFET designs and squegs some overdriven ones"
 )
 FET_FREQUENCY = {
     "common-source": "85.0 % (17 of 20); " + GATE_DIODE + " (cs002 squegs: no carrier in the "
-    "tail); the overdriven MOSFET designs cs007 (margin 11, -16 %), cs011, cs019 drift",
+    "tail); the overdriven MOSFETs cs007 (margin 11, -16 %) and cs019 (margin 43, +2.2 %)",
     "common-drain": "83.3 % (15 of 18): the overdriven MOSFET followers cd002, cd019, cd022 "
     "(margins 7-73) miss by 2.5-2.8 %",
     "common-gate": "65.0 % (13 of 20): overdriven designs (margins 4-68: cg014, cg015, "
     "cg020-cg023 at -3.5 to -22 %) run above the model's frequency; the Clapp cg004 "
     "(unsettled) at -93 %",
     "hartley": "75.0 % (15 of 20): hy022 squegs (" + GATE_DIODE + "); hy021 (a MOSFET at "
-    "margin 3.9, ngspice 41 kHz against 79 kHz ideal) and the bursting hy006/hy007 miss",
+    "margin 3.9, ngspice 41 kHz against 79 kHz ideal), hy009 (margin 1.3, -8 %) and the "
+    "bursting hy006/hy007 miss",
 }
 AMPLITUDE = {
-    "common-source": "77.8 % (14 of 18): " + GATE_DIODE + " (cs008 +305 %); overdriven "
-    "MOSFETs low (cs011 -33 %, cs019 -44 %)",
-    "common-drain": "47.1 % (8 of 17): " + GATE_DIODE + " (cd007 +375 %, cd016 +555 %); the "
-    "overdriven MOSFET followers low (cd022 -59 %)",
+    "common-source": "77.8 % (14 of 18): the model is high on JFETs near IDSS (cs008 +305 %: "
+    "with the gate junction switched off, IS = 1e-40, ngspice swings 4.7 V against 1.8 V, "
+    "the model 7.4 V: " + GATE_DIODE + "); low on overdriven MOSFETs (cs011 -33 %, cs019 -44 %)",
+    "common-drain": "47.1 % (8 of 17): high on JFETs near IDSS (cd007 +375 %, half of it the "
+    "gate junction: 2.9 V in ngspice without it, model 6.4 V; cd016 +555 %, not diagnosed); "
+    "low on the overdriven MOSFET followers (cd022 -59 %)",
     "common-gate": "57.9 % (11 of 19): the model is low on most overdriven designs (cg008 "
     "-62 %, cg018 -62 %, cg016 -50 %)",
-    "hartley": "57.1 % (8 of 14): " + GATE_DIODE + " (hy012 +320 %, hy017 +87 %); low on "
-    "the overdriven (hy010 -47 %)",
+    "hartley": "57.1 % (8 of 14): high on JFETs (hy012 +320 %, not the gate junction: "
+    "ngspice gives the same 1.7 V without it; hy017 +87 %); low on the overdriven "
+    "(hy010 -47 %, hy023 -34 %)",
 }
 
 
