@@ -20,7 +20,15 @@ from pathlib import Path
 
 import pytest
 
-from picker.circuit.validation import Accuracy, accuracy, load_reference, model_answer
+from picker.circuit.netlist import write_netlist
+from picker.circuit.validation import (
+    Accuracy,
+    accuracy,
+    design_from_dict,
+    design_to_dict,
+    load_reference,
+    model_answer,
+)
 
 DATA = Path(__file__).parent / "validation"
 SETS = {
@@ -99,6 +107,24 @@ def test_set_holds_twenty_designs_of_its_stage_in_its_tanks(name):
     if fets:  # both fet kinds, each with its own card
         assert {f.kind for f in fets if f is not None} == {"njf", "nmos"}
         assert len({(f.vto, f.k) for f in fets if f is not None}) == len(fets)
+
+
+@pytest.mark.parametrize("name", ["common-source", "hartley"])
+def test_fet_cards_and_coupling_survive_the_file(name):
+    """A design read back from its file writes the netlist ngspice ran: the fet's own
+    ``.model`` card (its VTO as drawn) and a Hartley's K line with its k."""
+    designs, _ = load_reference(SETS[name])
+    for d in designs:
+        assert design_from_dict(design_to_dict(d)) == d
+        text = write_netlist(d.topo, d.values, d.stray, d.params, title=d.id, cycles=400)
+        if d.params.fet is not None:
+            assert f"VTO={d.params.fet.vto:.6g}" in text
+        if d.topology == "hartley":
+            assert 0.3 <= d.coupling <= 0.99
+            assert any(
+                line.startswith("K12 ") and float(line.split()[-1]) == d.coupling
+                for line in text.splitlines()
+            )
 
 
 @pytest.mark.parametrize(
