@@ -49,7 +49,8 @@ reactance range, C from the frequency; a draw whose C exceeds a twentieth of the
 bypass (:data:`picker.tank.hartley.TAP_BYPASS`, so below about 100 kHz few are kept) is
 left out. Only the stages whose tank common end is grounded take a Hartley
 (common-emitter, common-source); ``--stage common-emitter,common-source`` draws each
-design's stage at random.
+design's stage at random. ``--clapps N`` adds N Clapp designs of the stage after the
+quotas (:func:`clapps`), for a stage whose quota draw kept no Clapp that starts.
 """
 
 from __future__ import annotations
@@ -146,9 +147,10 @@ def _tank(
 
 
 def _kind(rng: np.random.Generator, tank: str) -> str:
-    """The tank of one draw: a Hartley, or a Colpitts (70 %) or Clapp (30 %)."""
-    if tank == "hartley":
-        return "hartley"
+    """The tank of one draw: a Hartley, a Clapp (``tank`` "clapp": :func:`clapps`), or a
+    Colpitts (70 %) or Clapp (30 %)."""
+    if tank in ("hartley", "clapp"):
+        return tank
     return "clapp" if rng.uniform() < 0.3 else "colpitts"
 
 
@@ -356,6 +358,28 @@ def unbypassed(
     return out
 
 
+def clapps(
+    seed: int, count: int, first: int, prefix: str = "d", stage: str = "common-drain"
+) -> list[Design]:
+    """``count`` seeded Clapp draws of ``stage`` with a linear start-up margin of at least
+    0.3, numbered from ``first`` (as :func:`unbypassed` adds unbypassed ones): a stage
+    whose quota draw kept only Clapps below start-up (the common-drain set's three) gets
+    Clapps that oscillate, so its Clapp figure has something to measure."""
+    rng = np.random.default_rng(seed)
+    out: list[Design] = []
+    while len(out) < count:
+        d = draw(rng, first + len(out), prefix=prefix, stage=stage, tank="clapp")
+        if (
+            d is None
+            or not transient_plan(d.topo, d.values, d.stray, d.params, max_cycles=LONGEST).resolved
+            or settling_cycles(d) > LONGEST
+        ):
+            continue
+        if float(loaded_response(d.topo, d.values, d.stray, d.params).margin) >= 0.3:
+            out.append(d)
+    return out
+
+
 def settling_cycles(d: Design) -> float:
     """The stage's bias settling before the transient (:meth:`Stage.settling_time`) in
     periods of the ideal tank: a common-base stage's bypassed base (R_th·C_base) or a
@@ -419,12 +443,16 @@ def make(
     stage: str = "common-emitter",
     workers: int = WORKERS,
     tank: str = "colpitts",
+    extra_clapps: int = 0,
 ) -> None:
-    """Draw ``count`` designs of ``stage`` by quota and ``extra`` unbypassed ones (the
-    common-emitter stage's) from ``seed``, run them in ngspice and write ``path``."""
+    """Draw ``count`` designs of ``stage`` by quota, ``extra`` unbypassed ones (the
+    common-emitter stage's) and ``extra_clapps`` Clapps (:func:`clapps`) from ``seed``,
+    run them in ngspice and write ``path``."""
     designs = select(seed, count, prefix, stage, tank)
     if extra:
         designs += unbypassed(seed + 1, extra, count, prefix)
+    if extra_clapps:
+        designs += clapps(seed + 2, extra_clapps, len(designs), prefix, stage)
     t0 = time.perf_counter()
     answers = simulate_all(designs, workers)
     wall = time.perf_counter() - t0
@@ -498,6 +526,9 @@ def main(argv: list[str] | None = None) -> int:
         help="colpitts: Colpitts and Clapp; hartley: Hartley tanks (issue 12)",
     )
     ap.add_argument("--workers", type=int, default=WORKERS, help="ngspice processes at a time")
+    ap.add_argument(
+        "--clapps", type=int, default=0, help="Clapp designs added after the quotas (issue 12)"
+    )
     args = ap.parse_args(argv)
     if args.stats:
         stats(args.out)
@@ -513,6 +544,7 @@ def main(argv: list[str] | None = None) -> int:
         args.stage,
         args.workers,
         args.tank,
+        args.clapps,
     )
     return 0
 
