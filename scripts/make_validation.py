@@ -489,11 +489,12 @@ def stats(path: Path = OUT) -> None:
     print(accuracy_table(acc))
 
 
-def check(n: int, path: Path = OUT) -> int:
-    """Re-simulate ``n`` committed designs (spread over the set); 1 on a disagreement."""
+def check(n: int, path: Path = OUT, workers: int = WORKERS) -> int:
+    """Re-simulate ``n`` committed designs (spread over the set; ``workers`` ngspice
+    processes at a time); 1 on a disagreement."""
     designs, answers = load_reference(path)
     picks = np.linspace(0, len(designs) - 1, n).round().astype(int)
-    fresh = simulate_all([designs[i] for i in picks])
+    fresh = simulate_all([designs[i] for i in picks], workers)
     bad = 0
     for i, a in zip(picks, fresh, strict=True):
         ref = answers[i]
@@ -534,7 +535,7 @@ def main(argv: list[str] | None = None) -> int:
         stats(args.out)
         return 0
     if args.check:
-        return check(args.check, args.out)
+        return check(args.check, args.out, args.workers)
     make(
         args.out,
         args.seed,
