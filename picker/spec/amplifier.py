@@ -64,6 +64,7 @@ from pydantic import (
 
 from picker import units
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.device import GENERIC_NPN, GENERIC_PNP
 from picker.circuit.fet import FET_CLASSES, FetCard, fet_class
 from picker.errors import SpecError
 
@@ -131,6 +132,7 @@ class AmplifierSpec(BaseModel):
     bias: Literal["divider", "base-resistor", "collector-feedback"] | None = None
     r_feedback: float | None = None
     r_emitter_unbypassed: float | None = None
+    polarity: Literal["npn", "pnp"] | None = None
 
     @model_validator(mode="before")
     @classmethod
@@ -337,6 +339,14 @@ class AmplifierSpec(BaseModel):
                     "r_emitter_unbypassed needs r_emitter and c_emitter (it sits in series "
                     "with the bypassed r_emitter; without c_emitter add it to r_emitter)"
                 )
+        if self.polarity is not None:
+            if self.kind != "bjt":
+                raise ValueError(f"polarity names a bjt's (npn, pnp); got kind = {self.kind!r}")
+            if self.polarity == "pnp" and "p-type" not in options:
+                raise ValueError(
+                    f"a pnp is modelled for the stages {_stages_with('p-type')}; got stage = "
+                    f"{self.stage!r}"
+                )
         if self.bias is not None:
             if self.kind != "bjt":
                 raise ValueError(f"bias names a bjt's bias network; got kind = {self.kind!r}")
@@ -418,6 +428,8 @@ class AmplifierSpec(BaseModel):
             # the bias-network details (picker.circuit.bias)
             r_feedback=self.r_feedback,
             r_e_unbypassed=self.r_emitter_unbypassed,
+            p_type=self.polarity == "pnp",
+            device=GENERIC_PNP if self.polarity == "pnp" else GENERIC_NPN,
         )
         from picker.circuit.stages import small_signal  # the registry: see _default_stage
 

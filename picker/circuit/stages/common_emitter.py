@@ -32,6 +32,7 @@ from scipy.special import i0e, i1e
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.bias import dc_loop, feedback_bias_point
 from picker.circuit.device import (
+    GENERIC_PNP,
     BiasPoint,
     SmallSignal,
     bias_point,
@@ -164,7 +165,7 @@ class CommonEmitter(Stage):
     has_device_law = True
     device = "bjt"
     coupling_parts = ("CB",)
-    options = frozenset({"collector-feedback", "emitter-split"})
+    options = frozenset({"collector-feedback", "emitter-split", "p-type"})
 
     # ------------------------------------------------------------ bias and device values
 
@@ -258,6 +259,8 @@ class CommonEmitter(Stage):
             out["collector-feedback-divider"] = replace(fb, r_b2=47e3, r_feedback=100e3)
         if "emitter-split" in self.options:
             out["emitter-split"] = replace(p, r_e_unbypassed=22.0)
+        if "p-type" in self.options:  # the generic PNP, the supply at −9 V
+            out["p-type"] = replace(p, p_type=True, device=GENERIC_PNP)
         return out
 
     # ------------------------------------------------------------ start-up
@@ -512,6 +515,12 @@ class CommonEmitter(Stage):
         b = self.bias(params)
         if b is not None and b.saturated:
             out.append("the bias network saturates the transistor (V_BC > 0.4 V)")
+        if params.p_type:
+            out.append(
+                "p-type device (PNP, p-channel): the supply is negative with respect to "
+                "ground, every DC voltage the negative of the n-type circuit's; turn "
+                "polarised capacitors round and check the supply's polarity before power-up"
+            )
         return out
 
     # ------------------------------------------------------------ netlist
