@@ -17,6 +17,7 @@ from pathlib import Path
 import pytest
 
 from picker.circuit.ngspice import ngspice_path
+from picker.circuit.polarity import mirror_netlist
 from picker.circuit.stages import STAGES, Stage
 from picker.errors import SolverError
 from picker.tank.clapp import CLAPP
@@ -71,3 +72,33 @@ def test_bias_point_matches_ngspice_operating_point(stage: Stage, topology, valu
     assert abs(op["icq"] / bias.ic - 1) < 0.01
     assert abs(op["ibq"] / bias.ib - 1) < 0.01
     assert abs(op[f"v({stage.input})"] / bias.vb - 1) < 0.01
+
+
+VARIANTS = [
+    pytest.param(s, name, id=f"{s.name}-{name}")
+    for s in STAGES.values()
+    if s.device == "bjt"
+    for name in s.typical_variants()
+]
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize(("stage", "variant"), VARIANTS)
+def test_bias_network_variants_match_ngspice_operating_point(stage: Stage, variant: str):
+    # the bias networks of picker.circuit.bias (a base resistor, collector feedback, the
+    # split emitter resistor) against ngspice's DC solution of the stage's own netlist
+    try:
+        ngspice_path()
+    except SolverError as exc:
+        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
+    params = stage.typical_variants()[variant]
+    bias = stage.bias(params)
+    assert bias is not None
+    part = stage.netlist(COLPITTS, {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}, 0.0, 1.0, params)
+    sign = 1.0
+    if params.p_type:  # the PNP's netlist is the mirror image: every DC value negated
+        part, sign = mirror_netlist(part), -1.0
+    op = _op(part.elements, part.models, stage.input)
+    assert abs(op["icq"] / (sign * bias.ic) - 1) < 0.01
+    assert abs(op["ibq"] / (sign * bias.ib) - 1) < 0.01
+    assert abs(op[f"v({stage.input})"] / (sign * bias.vb) - 1) < 0.01

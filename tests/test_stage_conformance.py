@@ -41,6 +41,7 @@ from picker.circuit.stages import (
     stage_names,
     stage_of,
 )
+from picker.circuit.steady import steady_state
 from picker.errors import SolverError
 from picker.tank import TOPOLOGIES
 from picker.tank.clapp import CLAPP
@@ -173,3 +174,61 @@ def test_typical_netlist_runs_in_ngspice_with_no_floating_node(stage, topology):
     # ngspice transient (≥ 60 steps per period, frequency from ~90 periods) against the
     # loaded model; 2 % as in tests/test_ngspice.py
     assert abs(sim.frequency_hz / float(model.f_hz) - 1) < 0.02
+
+
+# The bias-network options each stage models (Stage.options), by their typical designs
+# (Stage.typical_variants): the same closed-form and ngspice checks as above.
+VARIANT_PAIRS = [
+    pytest.param(s, t, name, id=f"{t.name}-{s.name}-{name}")
+    for t in (COLPITTS, CLAPP)
+    for s in STAGES.values()
+    for name in s.typical_variants()
+]
+
+
+def test_every_stage_option_has_a_typical_variant():
+    for stage in STAGES.values():
+        assert set(stage.options) <= {"collector-feedback", "emitter-split", "stopper", "p-type"}
+        names = " ".join(stage.typical_variants())
+        for option in stage.options:
+            assert option.split("-")[0] in names, (stage.name, option)
+
+
+@pytest.mark.parametrize(("stage", "topology", "variant"), VARIANT_PAIRS)
+def test_variant_closed_form_matches_the_generic_nodal_solver(stage, topology, variant):
+    rng = np.random.default_rng(29)
+    n = 40
+    v = {p: x * 3.0 ** rng.uniform(-1, 1, n) for p, x in topology.typical.items()}
+    f = rng.uniform(0.3e6, 10e6, n)
+    params = stage.typical_variants()[variant]
+    fast = loop_gain(topology, v, 2e-12, params, f)
+    full = loop_gain_matrix(topology, v, 2e-12, params, f)
+    assert_allclose(fast, full, rtol=1e-9, atol=1e-12)
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize(("stage", "topology", "variant"), VARIANT_PAIRS)
+def test_variant_netlist_runs_in_ngspice_at_the_model_frequency(stage, topology, variant):
+    try:
+        ngspice_path()
+    except SolverError as exc:
+        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
+    values = dict(topology.typical)
+    params = stage.typical_variants()[variant]
+    text = write_netlist(topology, values, 3e-12, params, title=f"{stage.name} {variant}")
+    dangling = [node for node, k in _nodes(text).items() if k < 2 and node != "0"]
+    assert dangling == []
+    sim = simulate(text)
+    assert sim.warnings == ()
+    # the large-signal model against the transient: a base resistor of megohms squegs
+    # with the Clapp tank (its slow bias loop) and the model says so; the transient then
+    # does not run steady at the tank's frequency (the waveform measurement may lock on
+    # the squegging itself); the steady ones at the loaded model's frequency
+    steady = steady_state(topology, {k: np.array([x]) for k, x in values.items()}, 3e-12, params)
+    model = loaded_response(topology, values, 3e-12, params)
+    on_f = abs(sim.frequency_hz / float(model.f_hz) - 1) < 0.02
+    if bool(steady.bursting[0]):
+        assert not (sim.waveform.state == "steady" and on_f)
+        return
+    assert bool(steady.starts[0]) and sim.waveform.state == "steady"
+    assert on_f  # ngspice transient against the loaded model, 2 %

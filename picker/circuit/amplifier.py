@@ -68,6 +68,18 @@ class AmplifierParams:
         stages then solve their bias from the gate network and R_S, and take gm, g_ds and
         the gate capacitances from the card; ``None``: the fet is described by ``gm`` or
         ``i_bias`` with ``overdrive_voltage`` and typed capacitances, with no bias solved.
+
+    Bias-network details (:mod:`picker.circuit.bias`; a stage takes those in its
+    :attr:`picker.circuit.stages.base.Stage.options`):
+
+    r_feedback: collector-to-base resistor, ohm: the collector-feedback bias (``r_b1``
+        is then absent; ``r_b2``, if present, still goes from the base to ground).
+    r_e_unbypassed: the part of ``r_e`` that ``c_e`` does not bypass, ohm: a resistor
+        in series between the emitter and the bypassed rest (r_e − r_e_unbypassed) ∥ C_E.
+    r_stopper: a resistor in series with the base (gate), between the tank's input end
+        and the device, ohm.
+    p_type: the device is the mirror image (PNP, p-channel): every voltage and current
+        of the n-type circuit negated, the supply at −vcc (:mod:`picker.circuit.polarity`).
     """
 
     kind: str = "bjt"
@@ -99,6 +111,11 @@ class AmplifierParams:
     device: GenericNPN = GENERIC_NPN
     temperature_c: float = 27.0
     fet: FetCard | None = None
+    # bias-network details (picker.circuit.bias), kept apart from the fields above
+    r_feedback: float | None = None
+    r_e_unbypassed: float | None = None
+    r_stopper: float | None = None
+    p_type: bool = False
 
     def effective_device(self) -> GenericNPN:
         """The device card with ``current_gain`` and ``early_voltage`` applied."""

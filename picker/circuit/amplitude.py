@@ -20,6 +20,7 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.network import LoadedResponse, Network
 from picker.circuit.oscillation import loaded_response
+from picker.circuit.polarity import mirror_voltages
 from picker.circuit.stages import stage_of
 from picker.tank.base import TWO_PI, Topology
 
@@ -134,7 +135,8 @@ def dc_voltages(topology: Topology, params: AmplifierParams) -> dict[str, float]
     through L, so C1 and C2 both carry V_B and C_B carries V_C − V_B. Clapp: C3
     blocks, the tank top is at 0 V through the bleed (with C_B) or at V_C (without C_B).
     """
-    return stage_of(params).dc_voltages(topology, params)
+    out = stage_of(params).dc_voltages(topology, params)
+    return mirror_voltages(out) if params.p_type else out  # picker.circuit.polarity
 
 
 def capacitor_stress(

@@ -78,6 +78,14 @@ class GenericNPN:
 
 GENERIC_NPN = GenericNPN()
 
+#: The generic small-signal PNP (the card of the mirrored NPN, :mod:`picker.circuit.polarity`):
+#: typical of the class of general-purpose small-signal PNPs in makers' data sheets and
+#: their SPICE models (from memory; not a real part): a lower Early voltage and somewhat
+#: larger junction capacitances than the NPN class.
+GENERIC_PNP = GenericNPN(
+    is_=1e-14, bf=150.0, vaf=50.0, tf=0.5e-9, cje=8e-12, cjc=5e-12, name="PICKER_PNP"
+)
+
 
 @dataclass(frozen=True)
 class BiasPoint:

@@ -25,6 +25,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.polarity import mirror_netlist
 from picker.circuit.stages import stage_of
 from picker.circuit.stages.base import spice_number
 from picker.tank.base import TWO_PI, Topology
@@ -276,6 +277,8 @@ def write_netlist(
     tstop = length if tstop is None else float(tstop)
     r_l = inductor_esr(topology, vals, stray, params)
     part = stage.netlist(topology, vals, stray, r_l, params)
+    if params.p_type:  # the mirror image of the n-type circuit (picker.circuit.polarity)
+        part = mirror_netlist(part)
     top = stage.top  # the tank top; also the collector when there is no blocking capacitor
     lines = [
         title.replace("\n", " "),

@@ -64,6 +64,7 @@ from pydantic import (
 
 from picker import units
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.device import GENERIC_NPN, GENERIC_PNP
 from picker.circuit.fet import FET_CLASSES, FetCard, fet_class
 from picker.errors import SpecError
 
@@ -89,6 +90,8 @@ _UNITS = {
     "idss": "A",
 }
 _MAY_BE_ZERO = {"choke_resistance", "c_pi", "c_mu"}
+# the bias-network details (picker.circuit.bias), a block of their own
+_BIAS_UNITS = {"r_feedback": "ohm", "r_emitter_unbypassed": "ohm"}
 
 
 class AmplifierSpec(BaseModel):
@@ -125,6 +128,11 @@ class AmplifierSpec(BaseModel):
     min_margin: float = 2.0
     max_margin: float | None = None
     monte_carlo: Literal["surrogate", "full"] = "surrogate"
+    # the bias-network details (picker.circuit.bias)
+    bias: Literal["divider", "base-resistor", "collector-feedback"] | None = None
+    r_feedback: float | None = None
+    r_emitter_unbypassed: float | None = None
+    polarity: Literal["npn", "pnp"] | None = None
 
     @model_validator(mode="before")
     @classmethod
@@ -174,6 +182,18 @@ class AmplifierSpec(BaseModel):
         except SpecError as exc:
             raise ValueError(exc.message) from None
         if not math.isfinite(x) or x < 0 or (x == 0 and name not in _MAY_BE_ZERO):
+            raise ValueError(f"expected a positive value in {unit}; got {v!r}")
+        return x
+
+    @field_validator(*_BIAS_UNITS, mode="before")
+    @classmethod
+    def _bias_quantity(cls, v: Any, info: ValidationInfo) -> float:
+        unit = _BIAS_UNITS[str(info.field_name)]
+        try:
+            x = units.parse_quantity(v, unit)
+        except SpecError as exc:
+            raise ValueError(exc.message) from None
+        if not math.isfinite(x) or x <= 0:
             raise ValueError(f"expected a positive value in {unit}; got {v!r}")
         return x
 
@@ -262,7 +282,12 @@ class AmplifierSpec(BaseModel):
             )
         if self.device is not None and self.kind != "fet":
             raise ValueError(f"device names a fet class; got kind = {self.kind!r}")
-        if self.r_bias_bottom is not None and self.r_bias_top is None and self.device is None:
+        if (
+            self.r_bias_bottom is not None
+            and self.r_bias_top is None
+            and self.device is None
+            and self.r_feedback is None
+        ):
             raise ValueError(
                 "r_bias_bottom needs r_bias_top (the resistor from the supply); a fet with "
                 "device may have a gate resistor alone"
@@ -270,13 +295,77 @@ class AmplifierSpec(BaseModel):
         if self.c_emitter is not None and self.r_emitter is None:
             raise ValueError("c_emitter needs r_emitter (it bypasses the emitter resistor)")
         if self.kind == "bjt":
-            if self.r_bias_top is None and self.gm is None and self.bias_current is None:
-                raise ValueError("a bjt needs its bias: r_bias_top (and r_bias_bottom), or gm")
+            if (
+                self.r_bias_top is None
+                and self.r_feedback is None
+                and self.gm is None
+                and self.bias_current is None
+            ):
+                raise ValueError(
+                    "a bjt needs its bias: r_bias_top (and r_bias_bottom), r_feedback, or gm"
+                )
         elif self.device is None:
             if self.gm is None and (self.bias_current is None or self.overdrive_voltage is None):
                 raise ValueError("a fet needs gm, or bias_current with overdrive_voltage")
             if self.c_mu is None or (self.c_pi is None and self.f_t is None):
                 raise ValueError("a fet needs c_mu (C_gd) and c_pi (C_gs) or f_t")
+        return self
+
+    @model_validator(mode="after")
+    def _bias_details(self) -> AmplifierSpec:
+        """The bias network's keys agree with each other, the ``bias`` word and the stage."""
+        from picker.circuit.stages import STAGES  # the registry: see _default_stage
+
+        options = STAGES[self.stage].options
+        if self.r_feedback is not None:
+            if self.kind != "bjt" or "collector-feedback" not in options:
+                raise ValueError(
+                    f"r_feedback (collector-to-base bias) is modelled for the stages "
+                    f"{_stages_with('collector-feedback')}; got stage = {self.stage!r}"
+                )
+            if self.r_bias_top is not None:
+                raise ValueError(
+                    "expected r_feedback (collector to base) or r_bias_top (supply to base), "
+                    "not both"
+                )
+        if self.r_emitter_unbypassed is not None:
+            if "emitter-split" not in options:
+                raise ValueError(
+                    f"r_emitter_unbypassed is modelled for the stages "
+                    f"{_stages_with('emitter-split')}; got stage = {self.stage!r}"
+                )
+            if self.r_emitter is None or self.c_emitter is None:
+                raise ValueError(
+                    "r_emitter_unbypassed needs r_emitter and c_emitter (it sits in series "
+                    "with the bypassed r_emitter; without c_emitter add it to r_emitter)"
+                )
+        if self.polarity is not None:
+            if self.kind != "bjt":
+                raise ValueError(f"polarity names a bjt's (npn, pnp); got kind = {self.kind!r}")
+            if self.polarity == "pnp" and "p-type" not in options:
+                raise ValueError(
+                    f"a pnp is modelled for the stages {_stages_with('p-type')}; got stage = "
+                    f"{self.stage!r}"
+                )
+        if self.bias is not None:
+            if self.kind != "bjt":
+                raise ValueError(f"bias names a bjt's bias network; got kind = {self.kind!r}")
+            found = (
+                "collector-feedback"
+                if self.r_feedback is not None
+                else "base-resistor"
+                if self.r_bias_bottom is None
+                else "divider"
+            )
+            if self.r_feedback is None and self.r_bias_top is None:
+                found = "none"
+            if found != self.bias:
+                need = {
+                    "divider": "r_bias_top and r_bias_bottom",
+                    "base-resistor": "r_bias_top without r_bias_bottom",
+                    "collector-feedback": "r_feedback (and optionally r_bias_bottom)",
+                }[self.bias]
+                raise ValueError(f"bias = {self.bias!r} expects {need}")
         return self
 
     def to_params(self, parts: Mapping[str, Any] | None = None) -> AmplifierParams:
@@ -324,7 +413,11 @@ class AmplifierSpec(BaseModel):
             r_choke=self.choke_resistance,
             r_b1=self.r_bias_top,
             r_b2=self.r_bias_bottom,
-            r_e=self.r_emitter,
+            r_e=(
+                self.r_emitter
+                if self.r_emitter is None or self.r_emitter_unbypassed is None
+                else self.r_emitter + self.r_emitter_unbypassed
+            ),
             c_e=self.c_emitter,
             c_block=self.c_coupling,
             c_base=self.c_base,
@@ -332,6 +425,11 @@ class AmplifierSpec(BaseModel):
             inductor_q=float(q) if q is not None else None,
             q_frequency=getattr(ind, "q_frequency", None) if q is not None else None,
             capacitor_esr=cap_esr,
+            # the bias-network details (picker.circuit.bias)
+            r_feedback=self.r_feedback,
+            r_e_unbypassed=self.r_emitter_unbypassed,
+            p_type=self.polarity == "pnp",
+            device=GENERIC_PNP if self.polarity == "pnp" else GENERIC_NPN,
         )
         from picker.circuit.stages import small_signal  # the registry: see _default_stage
 
@@ -340,3 +438,10 @@ class AmplifierSpec(BaseModel):
         except ValueError as exc:  # bias network that cannot work, e.g. a divider below V_BE
             raise SpecError(str(exc), key="amplifier") from None
         return params
+
+
+def _stages_with(option: str) -> str:
+    """The names of the stages that model ``option``, for a message."""
+    from picker.circuit.stages import STAGES  # the registry: see AmplifierSpec._default_stage
+
+    return ", ".join(n for n, st in STAGES.items() if option in st.options)

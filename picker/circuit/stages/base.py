@@ -177,6 +177,10 @@ class Stage:
     collector_load : whether the stage takes a collector (drain) load, the spec's
         ``r_load`` or ``choke`` (an emitter follower's collector goes straight to the
         supply: no load).
+    options : the bias-network details (:mod:`picker.circuit.bias`) the stage models:
+        "collector-feedback" (``r_feedback``), "emitter-split" (``r_e_unbypassed``),
+        "stopper" (``r_stopper``), "p-type" (``p_type``). Not inherited: a subclass that
+        changes the network declares its own (the spec refuses the others, one line).
     grounded_common : whether the tank's common end (the stage's ``common`` node) is at
         AC ground (common-emitter, common-source); False where it is the emitter
         (source) that taps the tank (the followers, the common-base and common-gate
@@ -196,11 +200,14 @@ class Stage:
     has_device_law: ClassVar[bool] = False
     collector_load: ClassVar[bool] = True
     grounded_common: ClassVar[bool] = True
+    options: ClassVar[frozenset[str]] = frozenset()
     _instance: ClassVar[Stage | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:
         super().__init_subclass__(**kwargs)
         cls._instance = None
+        if "options" not in cls.__dict__:  # not inherited (see the class docstring)
+            cls.options = frozenset()
         if "name" in cls.__dict__:
             if cls.name in STAGES:
                 raise ValueError(f"a stage named {cls.name!r} is already registered")
@@ -263,6 +270,11 @@ class Stage:
         circuit) that oscillates with a Colpitts tank of C1 = 1 nF, C2 = 2.2 nF,
         L = 22 µH; the conformance test writes its netlist."""
         raise NotImplementedError
+
+    def typical_variants(self) -> dict[str, AmplifierParams]:
+        """:meth:`typical_params` with each bias-network option of :attr:`options` (invented
+        values, not real circuits), by name; the conformance tests run over them too."""
+        return {}
 
     # ------------------------------------------------------------ start-up
 

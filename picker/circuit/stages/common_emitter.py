@@ -30,7 +30,9 @@ import numpy as np
 from scipy.special import i0e, i1e
 
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.bias import dc_loop, feedback_bias_point
 from picker.circuit.device import (
+    GENERIC_PNP,
     BiasPoint,
     SmallSignal,
     bias_point,
@@ -80,19 +82,15 @@ def _bias_shift(
     collector current the drive causes: the mean of exp(v_be/V_T) grows by I0(x), so
     the DC base-emitter voltage falls by V_T·ln I0(x) and the bias network
     (V_th, R_th, R_E) lets the current rise. DC loop, with I_C the mean collector
-    current: V_th − V_T·ln(I_C/(IS·I0(x))) = I_C·(R_th/β + R_E·(1 + 1/β)). Without a
-    bias network (gm given directly), the DC current is taken as fixed.
+    current: V_th − V_T·ln(I_C/(IS·I0(x))) = I_C·(R_th/β + R_E·(1 + 1/β)); any bias
+    network in the linear form (B2) of :mod:`picker.circuit.bias`. Without a bias
+    network (gm given directly), the DC current is taken as fixed.
     """
     if bias is None or params.gm is not None or params.i_bias is not None:
         return bessel_ratio
     dev = params.effective_device()
-    r_b1 = need(params.r_b1, "r_b1")
-    if params.r_b2 is None:
-        v_th, r_th = params.vcc, r_b1
-    else:
-        v_th = params.vcc * params.r_b2 / (r_b1 + params.r_b2)
-        r_th = r_b1 * params.r_b2 / (r_b1 + params.r_b2)
-    r_dc = r_th / dev.bf + (params.r_e or 0.0) * (1.0 + 1.0 / dev.bf)
+    r_col = params.r_collector_dc if params.r_feedback is not None else 0.0
+    v_th, r_dc, _ = dc_loop(params, r_col, dev.bf)
     ic0 = bias.ic
 
     def gain(x: Any) -> np.ndarray:
@@ -167,6 +165,7 @@ class CommonEmitter(Stage):
     has_device_law = True
     device = "bjt"
     coupling_parts = ("CB",)
+    options = frozenset({"collector-feedback", "emitter-split", "p-type"})
 
     # ------------------------------------------------------------ bias and device values
 
@@ -176,8 +175,19 @@ class CommonEmitter(Stage):
         return params.r_collector_dc
 
     def bias(self, params: AmplifierParams) -> BiasPoint | None:
-        """DC bias point from the base divider (:func:`picker.circuit.device.bias_point`),
-        or ``None`` without one."""
+        """DC bias point from the base divider or resistor
+        (:func:`picker.circuit.device.bias_point`), from the collector-feedback network
+        (:func:`picker.circuit.bias.feedback_bias_point`), or ``None`` without one."""
+        if params.r_feedback is not None:
+            return feedback_bias_point(
+                vcc=params.vcc,
+                r_f=params.r_feedback,
+                r_b2=params.r_b2,
+                r_e=params.r_e,
+                r_collector_dc=self.collector_dc(params),
+                device=params.effective_device(),
+                temperature_c=params.temperature_c,
+            )
         if params.r_b1 is None:
             return None
         return bias_point(
@@ -234,6 +244,25 @@ class CommonEmitter(Stage):
             inductor_q=50.0,
         )
 
+    def typical_variants(self) -> dict[str, AmplifierParams]:
+        """A single base resistor; collector feedback (R_F alone, and with R_B2 to ground:
+        about 2 mA and 1.6 mA); the emitter resistor split 22 Ω unbypassed + 2.18 kΩ
+        bypassed (invented values, not real circuits). Only those of the stage's own
+        :attr:`options` (a subclass inherits this method, not the options)."""
+        if not self.options:
+            return {}
+        p = self.typical_params()
+        fb = replace(p, r_b1=None, r_b2=None, r_feedback=220e3, r_c=2200.0, r_e=470.0)
+        out = {"base-resistor": replace(p, r_b1=1.5e6, r_b2=None)}
+        if "collector-feedback" in self.options:
+            out["collector-feedback"] = fb
+            out["collector-feedback-divider"] = replace(fb, r_b2=47e3, r_feedback=100e3)
+        if "emitter-split" in self.options:
+            out["emitter-split"] = replace(p, r_e_unbypassed=22.0)
+        if "p-type" in self.options:  # the generic PNP, the supply at −9 V
+            out["p-type"] = replace(p, p_type=True, device=GENERIC_PNP)
+        return out
+
     # ------------------------------------------------------------ start-up
 
     def required_gain(self, topology: Topology, values: Mapping[str, Any]) -> Any:
@@ -265,9 +294,17 @@ class CommonEmitter(Stage):
         g_pi = 1.0 / ss.r_pi  # 0 for r_pi = inf; arrays for a compressed device
         y_pi = g_pi + s * ss.c_pi
         y_mu = s * ss.c_mu
+        if params.r_feedback is not None:  # the collector-feedback resistor, also base–collector
+            y_mu = y_mu + 1.0 / params.r_feedback
         g_o = 1.0 / ss.r_o
+        y_e: Any
         if params.r_e is None:
             y_e = None
+        elif params.r_e_unbypassed is not None and params.c_e is not None:
+            # R_E1 in series with R_E2 ∥ C_E, R_E2 = r_e − R_E1 (series and parallel
+            # admittances; one branch, no inner node)
+            y_2 = 1.0 / (params.r_e - params.r_e_unbypassed) + s * params.c_e
+            y_e = y_2 / (1.0 + params.r_e_unbypassed * y_2)
         else:
             y_e = 1.0 / params.r_e + (s * params.c_e if params.c_e is not None else 0.0)
         y_cb = None if params.c_block is None else s * params.c_block
@@ -282,7 +319,9 @@ class CommonEmitter(Stage):
         self, s: np.ndarray, topology: Topology, params: AmplifierParams, ss: SmallSignal
     ) -> list[Stamp]:
         """Load (c–0), C_B (c–t; a 1 MS short without it), bleed (t–0), bias divider (b–0),
-        y_pi (b–e), y_mu (b–c), g_o (c–e), R_E ∥ C_E (e–0; a 1 MS short without R_E)."""
+        y_pi (b–e), y_mu (b–c; with the collector-feedback resistor R_F beside C_mu), g_o
+        (c–e), R_E ∥ C_E (e–0, with an unbypassed part R_E1 in series; a 1 MS short
+        without R_E)."""
         y_load, g_bias, y_pi, y_mu, g_o, y_e, y_cb = self._admittances(s, params, ss)
         c, t, b, e = self.output, self.top, self.input, self.common
         out = [
@@ -337,8 +376,9 @@ class CommonEmitter(Stage):
 
     def bias_loop(self, params: AmplifierParams, ss: SmallSignal) -> BiasLoop | None:
         """The base divider's Thevenin resistance R_th = R_B1 ∥ R_B2 and R_E around the
-        junction: r_dc = R_th/β + R_E·(1 + 1/β); with gm or the bias current given (no
-        bias solved), the mean current is held fixed (r_dc = inf)."""
+        junction: r_dc = R_th/β + R_E·(1 + 1/β); a collector-feedback network by (B3) of
+        :mod:`picker.circuit.bias`; with gm or the bias current given (no bias solved),
+        the mean current is held fixed (r_dc = inf)."""
         dev = params.effective_device()
         b = self.bias(params)
         r_e = params.r_e or 0.0
@@ -357,12 +397,12 @@ class CommonEmitter(Stage):
                 r_out=0.0,
                 v_knee=V_CE_SAT,
             )
-        r_b1 = need(params.r_b1, "r_b1")
-        r_th = r_b1 if params.r_b2 is None else r_b1 * params.r_b2 / (r_b1 + params.r_b2)
+        r_col = self.collector_dc(params) if params.r_feedback is not None else 0.0
+        _, r_dc, r_th = dc_loop(params, r_col, dev.bf)
         return BiasLoop(
             i_rest=b.ic,
             gm_rest=b.ic / vt,
-            r_dc=r_th / dev.bf + r_e * (1.0 + 1.0 / dev.bf),
+            r_dc=r_dc,
             r_th=r_th,
             r_e=r_e,
             c_e=c_e,
@@ -475,6 +515,12 @@ class CommonEmitter(Stage):
         b = self.bias(params)
         if b is not None and b.saturated:
             out.append("the bias network saturates the transistor (V_BC > 0.4 V)")
+        if params.p_type:
+            out.append(
+                "p-type device (PNP, p-channel): the supply is negative with respect to "
+                "ground, every DC voltage the negative of the n-type circuit's; turn "
+                "polarised capacitors round and check the supply's polarity before power-up"
+            )
         return out
 
     # ------------------------------------------------------------ netlist
@@ -500,12 +546,33 @@ class CommonEmitter(Stage):
             lines.append(f"CB {self.output} {self.top} {g(params.c_block)}")
         return lines
 
-    def bias_lines(self, params: AmplifierParams, r_b1: float) -> list[str]:
-        """The base (gate) divider."""
+    def bias_lines(self, params: AmplifierParams, r_b1: float | None) -> list[str]:
+        """The base (gate) divider, or the collector-feedback resistor RF (from the
+        collector, ``output``; the tank top without C_B) with R_B2."""
         g = spice_number
-        lines = [f"RB1 vcc {self.input} {g(r_b1)}"]
+        if params.r_feedback is not None:
+            col = self.output if params.c_block is not None else self.top
+            lines = [f"RF {col} {self.input} {g(params.r_feedback)}"]
+        else:
+            lines = [f"RB1 vcc {self.input} {g(need(r_b1, 'r_b1'))}"]
         if params.r_b2 is not None:
             lines.append(f"RB2 {self.input} 0 {g(params.r_b2)}")
+        return lines
+
+    def emitter_lines(self, params: AmplifierParams) -> list[str]:
+        """R_E and C_E from the emitter (source) to ground; with an unbypassed part, RE1
+        from the emitter to the inner node ``es`` and RE (the rest) ∥ CE from there."""
+        g = spice_number
+        r_e, e = need(params.r_e, "r_e"), self.common
+        if params.r_e_unbypassed is not None and params.c_e is not None:
+            return [
+                f"RE1 {e} es {g(params.r_e_unbypassed)}",
+                f"RE es 0 {g(r_e - params.r_e_unbypassed)}",
+                f"CE es 0 {g(params.c_e)}",
+            ]
+        lines = [f"RE {e} 0 {g(r_e)}"]
+        if params.c_e is not None:
+            lines.append(f"CE {e} 0 {g(params.c_e)}")
         return lines
 
     def model_card(self, params: AmplifierParams, bias: BiasPoint) -> str:
@@ -533,7 +600,6 @@ class CommonEmitter(Stage):
         bias = self.bias(params)
         if bias is None:
             raise ValueError("netlist export needs the base bias network (r_b1, r_b2)")
-        g = spice_number
         card = self.model_card(params, bias)
         col = self.output if params.c_block is not None else self.top
         bleed = params.r_bleed if self.needs_bleed(topology, params) else None
@@ -543,14 +609,12 @@ class CommonEmitter(Stage):
             *topology.netlist_lines(
                 values, stray, r_l, params.capacitor_esr, self.top, self.input, bleed
             ),
-            *self.bias_lines(params, need(params.r_b1, "r_b1")),
+            *self.bias_lines(params, params.r_b1),
         ]
         model = card.split()[1]
         if params.r_e is not None:
             lines.append(f"Q1 {col} {self.input} {self.common} {model}")
-            lines.append(f"RE {self.common} 0 {g(params.r_e)}")
-            if params.c_e is not None:
-                lines.append(f"CE {self.common} 0 {g(params.c_e)}")
+            lines += self.emitter_lines(params)
         else:
             lines.append(f"Q1 {col} {self.input} 0 {model}")
         return StageNetlist(
