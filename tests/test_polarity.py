@@ -142,16 +142,11 @@ def test_spec_polarity_key():
     assert not _spec({**AMP, "polarity": "npn"}).amplifier.to_params().p_type
     for amp, key, words in [
         ({**AMP, "polarity": "PNP-ish"}, "amplifier.polarity", "pnp"),
-        (
-            {k: v for k, v in AMP.items() if k != "r_load"}
-            | {"polarity": "pnp", "stage": "common-collector"},
-            "amplifier",
-            "modelled for the stages common-emitter",
-        ),
+        ({**AMP, "polarity": "p-channel"}, "amplifier", "expected polarity 'npn' or 'pnp'"),
         (
             {**AMP, "kind": "fet", "gm": "1 mS", "c_mu": "1p", "c_pi": "5p", "polarity": "pnp"},
             "amplifier",
-            "bjt",
+            "'n-channel' or 'p-channel' for kind = 'fet'",
         ),
     ]:
         with pytest.raises(SpecError) as info:

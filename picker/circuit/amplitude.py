@@ -20,7 +20,7 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.network import LoadedResponse, Network
 from picker.circuit.oscillation import loaded_response
-from picker.circuit.polarity import mirror_voltages
+from picker.circuit.polarity import P_TYPE_CAUTION, mirror_voltages
 from picker.circuit.stages import stage_of
 from picker.tank.base import TWO_PI, Topology
 
@@ -175,11 +175,14 @@ def cautions(
     * The stage's own (:meth:`picker.circuit.stages.base.Stage.cautions`): e.g. a
       Colpitts tank with no blocking capacitor puts the collector's DC voltage on
       the base through L.
+    * A p-type device: the supply's polarity (:data:`picker.circuit.polarity.P_TYPE_CAUTION`).
     * Peak voltage above DERATING_FRACTION of the rating (common practice, no source).
     * A part marked polarised, or a capacitance ≥ POLARISED_LIKELY_ABOVE (likely an
       electrolytic; common practice, no source), in the AC tank path.
     """
     out = stage_of(params).cautions(topology, params)
+    if params.p_type:  # every stage's (picker.circuit.polarity)
+        out.append(P_TYPE_CAUTION)
     for pos, v in stress.items():
         rating = (voltage_rating or {}).get(pos)
         if rating and v > DERATING_FRACTION * rating:

@@ -16,7 +16,8 @@ n-type stage with +V_CC, mirrored:
 * under drive, the mirrored waveform is −v(t): the same frequency, amplitude (peak),
   harmonic levels and steadiness.
 
-picker therefore models a p-type stage with the n-type equations and the same card,
+picker therefore models a p-type stage (every stage: the bipolar ones with a PNP, the
+fet ones with a p-channel JFET or MOSFET) with the n-type equations and the same card,
 and mirrors only what a user reads with a sign: the netlist (:func:`mirror_netlist`:
 the supply at −V_CC, the PNP/PJF/PMOS card, the kick and the measurement level
 negated) and the capacitors' DC voltages (:func:`mirror_voltages`).
@@ -37,7 +38,14 @@ from dataclasses import replace
 from picker.circuit.device import GENERIC_PNP
 from picker.circuit.stages.base import StageNetlist, spice_number
 
-__all__ = ["GENERIC_PNP", "mirror_netlist", "mirror_voltages"]
+__all__ = ["GENERIC_PNP", "P_TYPE_CAUTION", "mirror_netlist", "mirror_voltages"]
+
+#: The caution every p-type stage carries (:func:`picker.circuit.amplitude.cautions`).
+P_TYPE_CAUTION = (
+    "p-type device (PNP, p-channel): the supply is negative with respect to ground, every "
+    "DC voltage the negative of the n-type circuit's; turn polarised capacitors round and "
+    "check the supply's polarity before power-up"
+)
 
 _TYPES = {"NPN": "PNP", "NJF": "PJF", "NMOS": "PMOS"}
 
@@ -66,6 +74,7 @@ def mirror_netlist(part: StageNetlist) -> StageNetlist:
             line = f"{' '.join(words[:4])} {spice_number(-float(words[4]))}"
         elif words and words[0].startswith("*"):
             line = line.replace("NPN", "PNP").replace("n-channel", "p-channel")
+            line = line.replace(" fet:", " fet mirrored to p-channel:")
         elements.append(line)
     return replace(
         part,

@@ -132,7 +132,7 @@ class AmplifierSpec(BaseModel):
     bias: Literal["divider", "base-resistor", "collector-feedback"] | None = None
     r_feedback: float | None = None
     r_emitter_unbypassed: float | None = None
-    polarity: Literal["npn", "pnp"] | None = None
+    polarity: Literal["npn", "pnp", "n-channel", "p-channel"] | None = None
 
     @model_validator(mode="before")
     @classmethod
@@ -322,6 +322,7 @@ class AmplifierSpec(BaseModel):
                 raise ValueError(
                     f"r_feedback (collector-to-base bias) is modelled for the stages "
                     f"{_stages_with('collector-feedback')}; got stage = {self.stage!r}"
+                    f"{_refusal(self.stage, 'collector-feedback')}"
                 )
             if self.r_bias_top is not None:
                 raise ValueError(
@@ -333,6 +334,7 @@ class AmplifierSpec(BaseModel):
                 raise ValueError(
                     f"r_emitter_unbypassed is modelled for the stages "
                     f"{_stages_with('emitter-split')}; got stage = {self.stage!r}"
+                    f"{_refusal(self.stage, 'emitter-split')}"
                 )
             if self.r_emitter is None or self.c_emitter is None:
                 raise ValueError(
@@ -340,12 +342,22 @@ class AmplifierSpec(BaseModel):
                     "with the bypassed r_emitter; without c_emitter add it to r_emitter)"
                 )
         if self.polarity is not None:
-            if self.kind != "bjt":
-                raise ValueError(f"polarity names a bjt's (npn, pnp); got kind = {self.kind!r}")
-            if self.polarity == "pnp" and "p-type" not in options:
+            words = ("npn", "pnp") if self.kind == "bjt" else ("n-channel", "p-channel")
+            if self.polarity not in words:
                 raise ValueError(
-                    f"a pnp is modelled for the stages {_stages_with('p-type')}; got stage = "
-                    f"{self.stage!r}"
+                    f"expected polarity {words[0]!r} or {words[1]!r} for kind = {self.kind!r}; "
+                    f"got {self.polarity!r}"
+                )
+            if self.polarity == words[1] and "p-type" not in options:
+                raise ValueError(
+                    f"a {self.polarity} device is modelled for the stages "
+                    f"{_stages_with('p-type')}; got stage = {self.stage!r}"
+                )
+            mos = self.device is not None and _is_mosfet(self.device)
+            if self.polarity == "p-channel" and mos and self.vto is not None and self.vto > 0:
+                raise ValueError(
+                    f"expected a negative threshold vto for a p-channel enhancement MOSFET "
+                    f"(as ngspice's PMOS card takes it); got {self.vto:g} V"
                 )
         if self.bias is not None:
             if self.kind != "bjt":
@@ -388,10 +400,11 @@ class AmplifierSpec(BaseModel):
         }
         card: FetCard | None = None
         if self.device is not None:
+            vto = self.vto
+            if self.polarity == "p-channel" and vto is not None and _is_mosfet(self.device):
+                vto = -vto  # a PMOS card's threshold: the mirrored NMOS's is its negative
             try:
-                card = fet_class(
-                    self.device, idss=self.idss, vto=self.vto, kp=self.kp, lam=self.lambda_
-                )
+                card = fet_class(self.device, idss=self.idss, vto=vto, kp=self.kp, lam=self.lambda_)
             except ValueError as exc:
                 raise SpecError(str(exc), key="amplifier") from None
         params = AmplifierParams(
@@ -428,7 +441,7 @@ class AmplifierSpec(BaseModel):
             # the bias-network details (picker.circuit.bias)
             r_feedback=self.r_feedback,
             r_e_unbypassed=self.r_emitter_unbypassed,
-            p_type=self.polarity == "pnp",
+            p_type=self.polarity in ("pnp", "p-channel"),
             device=GENERIC_PNP if self.polarity == "pnp" else GENERIC_NPN,
         )
         from picker.circuit.stages import small_signal  # the registry: see _default_stage
@@ -438,6 +451,19 @@ class AmplifierSpec(BaseModel):
         except ValueError as exc:  # bias network that cannot work, e.g. a divider below V_BE
             raise SpecError(str(exc), key="amplifier") from None
         return params
+
+
+def _is_mosfet(device: str) -> bool:
+    """Whether the fet class ``device`` is a MOSFET (its ``vto`` a threshold)."""
+    return FET_CLASSES[device].kind == "nmos"
+
+
+def _refusal(stage: str, option: str) -> str:
+    """The stage's reason for not taking ``option``, as the tail of a message ("" if none)."""
+    from picker.circuit.stages import STAGES  # the registry: see AmplifierSpec._default_stage
+
+    reason = STAGES[stage].refusals.get(option)
+    return f" ({reason})" if reason else ""
 
 
 def _stages_with(option: str) -> str:

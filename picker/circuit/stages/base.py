@@ -181,6 +181,8 @@ class Stage:
         "collector-feedback" (``r_feedback``), "emitter-split" (``r_e_unbypassed``),
         "stopper" (``r_stopper``), "p-type" (``p_type``). Not inherited: a subclass that
         changes the network declares its own (the spec refuses the others, one line).
+    refusals : why the stage does not take an option, by option (the spec adds the reason
+        to its one-line refusal); inherited.
     grounded_common : whether the tank's common end (the stage's ``common`` node) is at
         AC ground (common-emitter, common-source); False where it is the emitter
         (source) that taps the tank (the followers, the common-base and common-gate
@@ -201,6 +203,7 @@ class Stage:
     collector_load: ClassVar[bool] = True
     grounded_common: ClassVar[bool] = True
     options: ClassVar[frozenset[str]] = frozenset()
+    refusals: ClassVar[Mapping[str, str]] = {}
     _instance: ClassVar[Stage | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:

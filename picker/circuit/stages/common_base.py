@@ -51,12 +51,14 @@ below the base, as there.
 from __future__ import annotations
 
 from collections.abc import Mapping
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.device import SmallSignal
+from picker.circuit.bias import dc_loop
+from picker.circuit.device import GENERIC_PNP, SmallSignal
 from picker.circuit.stages.base import KICK_FRACTION, StageNetlist, Stamp, need, spice_number
 from picker.circuit.stages.common_collector import rename_nodes
 from picker.circuit.stages.common_emitter import SHORT, CommonEmitter, solve_loop
@@ -77,6 +79,11 @@ class CommonBase(CommonEmitter):
     input = "b"
     common = "0"
     coupling_parts = ("CB",)
+    options = frozenset({"collector-feedback", "p-type"})
+    refusals = {
+        "emitter-split": "its emitter (source) resistor is the stage's input, fed by the "
+        "tank, and takes no bypass (c_emitter): all of it is unbypassed already",
+    }
 
     # ------------------------------------------------------------ bias and device values
 
@@ -105,6 +112,16 @@ class CommonBase(CommonEmitter):
             inductor_q=50.0,
         )
 
+    def typical_variants(self) -> dict[str, AmplifierParams]:
+        """Collector feedback R_F = 47 kΩ with R_B2 = 10 kΩ (about 0.33 mA; the base
+        node's resistance kept near the divider's, so its bypass settles as fast), and
+        the PNP stage at −9 V (invented values, not real circuits)."""
+        p = self.typical_params()
+        return {
+            "collector-feedback": replace(p, r_b1=None, r_feedback=47e3),
+            "p-type": replace(p, p_type=True, device=GENERIC_PNP),
+        }
+
     # ------------------------------------------------------------ start-up
 
     def required_gain(self, topology: Topology, values: Mapping[str, Any]) -> Any:
@@ -122,6 +139,8 @@ class CommonBase(CommonEmitter):
             y_load = 1.0 / (params.r_choke + s * params.l_choke)
         else:
             y_load = 1.0 / need(params.r_c, "a collector load: r_c or l_choke") + 0.0 * s
+        if params.r_feedback is not None:  # collector to the bypassed base: beside the load
+            y_load = y_load + 1.0 / params.r_feedback
         return {
             "load": y_load,
             "re": (0.0 if params.r_e is None else 1.0 / params.r_e) + 0.0 * s,
@@ -134,8 +153,9 @@ class CommonBase(CommonEmitter):
     def stamps(
         self, s: np.ndarray, topology: Topology, params: AmplifierParams, ss: SmallSignal
     ) -> list[Stamp]:
-        """Load (c–b), C_B (c–t; a 1 MS short without it), bleed (t–b), R_E (b–0), y_pi
-        (b–0), y_mu (b–c), g_o (c–0)."""
+        """Load (c–b; a collector-feedback resistor R_F beside it, both ends of R_F at AC
+        ground but the collector), C_B (c–t; a 1 MS short without it), bleed (t–b), R_E
+        (b–0), y_pi (b–0), y_mu (b–c), g_o (c–0)."""
         c, t, b = self.output, self.top, self.input
         y = self._branches(s, params, ss)
         out = [
@@ -221,8 +241,14 @@ class CommonBase(CommonEmitter):
     # ------------------------------------------------------------ netlist
 
     def settling_time(self, params: AmplifierParams) -> float:
-        """Five time constants R_th·C_base of the bypassed base (R_th = R_B1 ∥ R_B2)."""
-        if params.c_base is None or params.r_b1 is None:
+        """Five time constants R_th·C_base of the bypassed base (R_th = R_B1 ∥ R_B2; with
+        collector feedback R_B2 ∥ (R_F + R_C), :func:`picker.circuit.bias.dc_loop`)."""
+        if params.c_base is None:
+            return 0.0
+        if params.r_feedback is not None:
+            r_th = dc_loop(params, self.collector_dc(params), params.effective_device().bf)[2]
+            return 5.0 * r_th * params.c_base
+        if params.r_b1 is None:
             return 0.0
         r_th = params.r_b1 if params.r_b2 is None else 1.0 / (1 / params.r_b1 + 1 / params.r_b2)
         return 5.0 * r_th * params.c_base
@@ -253,7 +279,7 @@ class CommonBase(CommonEmitter):
         ]
         if self.needs_bleed(topology, params):
             lines.append(f"RBLEED {self.top} vcc {g(params.r_bleed)}")
-        lines += self.bias_lines(params, need(params.r_b1, "r_b1"))
+        lines += self.bias_lines(params, params.r_b1)
         lines.append(f"CBASE {self.input} 0 {g(c_base)}")
         card = self.model_card(params, bias)
         lines.append(f"Q1 {col} {self.input} e {card.split()[1]}")

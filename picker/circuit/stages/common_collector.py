@@ -57,12 +57,13 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.device import SmallSignal
+from picker.circuit.device import GENERIC_PNP, SmallSignal
 from picker.circuit.stages.base import KICK_FRACTION, StageNetlist, Stamp, need, spice_number
 from picker.circuit.stages.common_emitter import SHORT, CommonEmitter, solve_loop
 from picker.tank.base import Topology
@@ -95,6 +96,14 @@ class CommonCollector(CommonEmitter):
     input = "b"
     common = "0"
     coupling_parts = ("CB",)
+    options = frozenset({"p-type"})
+    refusals = {
+        "collector-feedback": "the follower's collector (drain) sits on the supply, so there "
+        "is no collector voltage to feed back to the base; use r_bias_top alone, a base "
+        "resistor",
+        "emitter-split": "the follower's emitter (source) resistor carries its output and "
+        "takes no bypass (c_emitter): all of it is unbypassed already",
+    }
 
     # ------------------------------------------------------------ bias and device values
 
@@ -138,6 +147,10 @@ class CommonCollector(CommonEmitter):
             c_block=22e-9,
             inductor_q=50.0,
         )
+
+    def typical_variants(self) -> dict[str, AmplifierParams]:
+        """The PNP follower: the generic PNP, the supply at −9 V (the mirror image)."""
+        return {"p-type": replace(self.typical_params(), p_type=True, device=GENERIC_PNP)}
 
     # ------------------------------------------------------------ start-up
 

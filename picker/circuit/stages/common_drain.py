@@ -39,6 +39,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from dataclasses import replace
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.fet import GENERIC_NMOS
@@ -65,6 +66,7 @@ class CommonDrain(CommonSource, CommonCollector):
     input = "b"
     common = "0"
     coupling_parts = ("CB",)
+    options = frozenset({"p-type"})
 
     def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
         """The fet as Sedra & Smith idealise it (C_gs = C_gd = 0, r_o → ∞, no bias
@@ -96,6 +98,10 @@ class CommonDrain(CommonSource, CommonCollector):
             inductor_q=50.0,
             fet=GENERIC_NMOS,
         )
+
+    def typical_variants(self) -> dict[str, AmplifierParams]:
+        """The p-channel follower at −9 V: the mirror image of the typical one."""
+        return {"p-type": replace(self.typical_params(), p_type=True)}
 
     def cautions(self, topology: Topology, params: AmplifierParams) -> list[str]:
         """A divider-biased gate (V_G above 0) with no blocking capacitor in a Colpitts

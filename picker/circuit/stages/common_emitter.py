@@ -515,12 +515,6 @@ class CommonEmitter(Stage):
         b = self.bias(params)
         if b is not None and b.saturated:
             out.append("the bias network saturates the transistor (V_BC > 0.4 V)")
-        if params.p_type:
-            out.append(
-                "p-type device (PNP, p-channel): the supply is negative with respect to "
-                "ground, every DC voltage the negative of the n-type circuit's; turn "
-                "polarised capacitors round and check the supply's polarity before power-up"
-            )
         return out
 
     # ------------------------------------------------------------ netlist

@@ -33,6 +33,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from dataclasses import replace
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.fet import GENERIC_NMOS
@@ -60,6 +61,7 @@ class CommonGate(CommonSource, CommonBase):
     input = "b"
     common = "0"
     coupling_parts = ("CB",)
+    options = frozenset({"p-type"})
 
     def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
         """The fet as Sedra & Smith idealise it (C_gs = C_gd = 0, r_o → ∞, no bias
@@ -97,6 +99,10 @@ class CommonGate(CommonSource, CommonBase):
     def gate_grounded(self, params: AmplifierParams) -> bool:
         """Whether the gate is tied straight to ground (no gate resistors)."""
         return params.r_b1 is None and params.r_b2 is None
+
+    def typical_variants(self) -> dict[str, AmplifierParams]:
+        """The p-channel stage at −9 V: the mirror image of the typical one."""
+        return {"p-type": replace(self.typical_params(), p_type=True)}
 
     def cautions(self, topology: Topology, params: AmplifierParams) -> list[str]:
         """The inductor feeding the drain past its load (a Colpitts without C_B); a gate

@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping
+from dataclasses import replace
 
 import numpy as np
 
@@ -70,6 +71,7 @@ class CommonSource(CommonEmitter):
     name = "common-source"
     has_device_law = True
     device = "fet"
+    options = frozenset({"emitter-split", "p-type"})
 
     def gate_voltage(self, params: AmplifierParams) -> float:
         """DC gate voltage: the divider's V_DD·R_B2/(R_B1 + R_B2) (no gate current), the
@@ -157,6 +159,16 @@ class CommonSource(CommonEmitter):
             c_block=10e-9,
             inductor_q=50.0,
         )
+
+    def typical_variants(self) -> dict[str, AmplifierParams]:
+        """The source resistor split 22 Ω unbypassed + 448 Ω bypassed (with R_D = 1 kΩ to
+        make up the gain the split takes), and the p-channel stage at −9 V (the mirror
+        image; invented values, not real circuits)."""
+        p = self.typical_params()
+        return {
+            "emitter-split": replace(p, r_e_unbypassed=22.0, r_c=1000.0),
+            "p-type": replace(p, p_type=True),
+        }
 
     def overdrive(self, params: AmplifierParams, ss: SmallSignal) -> float:
         """V_ov = V_GS − V_th at rest: given, or 2·I_D/gm (square law); NaN when unknown."""
@@ -332,9 +344,7 @@ class CommonSource(CommonEmitter):
         if ss.c_mu > 0:
             lines.append(f"CGD {self.input} {col} {g(ss.c_mu)}")
         if params.r_e is not None:
-            lines.append(f"RE {self.common} 0 {g(params.r_e)}")
-            if params.c_e is not None:
-                lines.append(f"CE {self.common} 0 {g(params.c_e)}")
+            lines += self.emitter_lines(params)
         if params.c_block is None:
             top = v_d
         else:
@@ -378,7 +388,6 @@ class CommonSource(CommonEmitter):
         bias = self.bias(params)
         if bias is None:
             raise ValueError("netlist export of a fet card needs its bias (no gm or i_bias)")
-        g = spice_number
         col = self.output if params.c_block is not None else self.top
         src = self.common if params.r_e is not None else "0"
         bleed = params.r_bleed if self.needs_bleed(topology, params) else None
@@ -392,9 +401,7 @@ class CommonSource(CommonEmitter):
             *self.device_lines(params, col, self.input, src),
         ]
         if params.r_e is not None:
-            lines.append(f"RE {self.common} 0 {g(params.r_e)}")
-            if params.c_e is not None:
-                lines.append(f"CE {self.common} 0 {g(params.c_e)}")
+            lines += self.emitter_lines(params)
         return StageNetlist(
             elements=lines,
             models=[card.model_card()],
