@@ -135,6 +135,7 @@ def test_p_type_operating_point_is_the_mirrored_n_type_and_the_model(stage, para
     assert "VCC vcc 0 DC -9" in text
     assert re.search(r"\.model \S+ (PNP|PJF|PMOS) ", text)
     assert not re.search(r"\.model \S+ (NPN|NJF|NMOS) ", text)
+    assert "PICKER_N" not in text  # the card's name follows its type, in both its lines
 
 
 def _lines(part):

@@ -64,11 +64,18 @@ def _mirror_model(line: str) -> str:
     return line
 
 
+def _rename_fet_model(line: str) -> str:
+    """A fet card's name as the p-channel one (PICKER_NJF → PICKER_PJF, PICKER_NMOS →
+    PICKER_PMOS), in its ``.model`` line and its element line alike."""
+    return re.sub(r"\bPICKER_N(JF|MOS)\b", r"PICKER_P\1", line)
+
+
 def mirror_netlist(part: StageNetlist) -> StageNetlist:
     """The stage's netlist of the p-type device: supply negated, cards mirrored, the kick
     and the tank top's DC level negated (the element lines otherwise unchanged)."""
     elements = []
     for line in part.elements:
+        line = _rename_fet_model(line)
         words = line.split()
         if words and words[0].upper() == "VCC" and len(words) == 5 and words[3] == "DC":
             line = f"{' '.join(words[:4])} {spice_number(-float(words[4]))}"
@@ -79,7 +86,7 @@ def mirror_netlist(part: StageNetlist) -> StageNetlist:
     return replace(
         part,
         elements=elements,
-        models=[_mirror_model(m) for m in part.models],
+        models=[_mirror_model(_rename_fet_model(m)) for m in part.models],
         kick=-part.kick,
         top_dc=-part.top_dc,
     )
