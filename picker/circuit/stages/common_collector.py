@@ -63,8 +63,16 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import SmallSignal
-from picker.circuit.stages.base import KICK_FRACTION, StageNetlist, Stamp, need, spice_number
+from picker.circuit.stages.base import (
+    KICK_FRACTION,
+    BiasLoop,
+    StageNetlist,
+    Stamp,
+    need,
+    spice_number,
+)
 from picker.circuit.stages.common_emitter import SHORT, CommonEmitter, solve_loop
+from picker.circuit.stages.slow import GROUND, SlowNetwork, build, lowfreq_capacitance
 from picker.tank.base import Topology
 
 __all__ = ["CommonCollector", "rename_nodes"]
@@ -201,12 +209,62 @@ class CommonCollector(CommonEmitter):
         names = (self.output, self.top, self.input, self.common)
         return solve_loop(s, tank, adm, ss.gm, names if nodes else None)
 
+    def probe(self, x: Mapping[str, Any]) -> Any:
+        """The emitter to ground, the node the netlist's transient measures (named ``t``
+        there): the emitter is the reference "0" and ground the collector's AC node ``c``,
+        so −v_c (the tank's grounded end ``t`` differs from ground by C_B's drop)."""
+        return -x[self.output]
+
     def loaded_tank(
         self, topology: Topology, values: Mapping[str, Any], ss: SmallSignal
     ) -> dict[str, Any]:
         """C_pi across C2 (base–emitter); C_mu runs from the base to AC ground, beside the
         inductor, and is left to the root finder."""
         return topology.with_end_capacitance(values, 0.0, ss.c_pi)
+
+    # ------------------------------------------------------------ large signal
+
+    def slow_network(
+        self,
+        topology: Topology,
+        params: AmplifierParams,
+        ss: SmallSignal,
+        loop: BiasLoop,
+        tank: tuple[Any, Any, Any],
+        s_lo: np.ndarray,
+    ) -> SlowNetwork:
+        """The DC nodes tank end ``g``, base ``b`` and emitter ``e``
+        (:func:`picker.circuit.stages.slow.build`; the collector sits on the supply, a
+        slow-signal ground): C_B g–ground (a short without it), the tank's C1 g–e and C2
+        b–e with C_pi, its bridge g–b (a short where it passes DC: the inductor), C_mu
+        b–ground, the divider's R_th b–ground, R_E e–ground, the bleed g–ground. The
+        emitter resistor with the divider's capacitors and C_B through R_th are the slow
+        states, in place of the common-emitter's R_E·C_E."""
+        y_out, y_in, y_br = tank
+        g, b, e, gnd = "g", "b", "e", GROUND
+        caps: list[tuple[str, str, Any]] = [
+            (g, e, lowfreq_capacitance(y_out, s_lo)),
+            (b, e, lowfreq_capacitance(y_in, s_lo) + ss.c_pi),
+            (b, gnd, ss.c_mu),
+        ]
+        shorts: list[tuple[str, str]] = []
+        if params.c_block is not None:
+            caps.append((g, gnd, params.c_block))
+        else:
+            shorts.append((g, gnd))
+        if topology.bridge_passes_dc:
+            shorts.append((g, b))
+        else:
+            caps.append((g, b, lowfreq_capacitance(y_br, s_lo)))
+        conds: list[tuple[str, str, Any]] = []
+        if math.isfinite(loop.r_th):
+            conds.append((b, gnd, 1.0 / loop.r_th))
+        if loop.r_e > 0:
+            conds.append((e, gnd, 1.0 / loop.r_e))
+        if self.needs_bleed(topology, params):
+            conds.append((g, gnd, 1.0 / params.r_bleed))
+        inj = {b: -1.0 / loop.beta, e: 1.0 + 1.0 / loop.beta}
+        return build((g, b, e), s_lo.size, caps, conds, shorts, inj, {b: 1.0, e: -1.0})
 
     # ------------------------------------------------------------ DC voltages, cautions
 
