@@ -24,7 +24,11 @@ SETS = {
     "common-collector": DATA / "stage_common_collector.json",
     "common-base": DATA / "stage_common_base.json",
 }
-UNMET = "issue 11's target is not met on this stage's set yet (README: Amplifier stages)"
+FREQ_CC = "unmet: 94.1 % within 2 % (16 of 17; the miss is the set's one burster, -3.5 %)"
+FREQ_CB = "unmet: 70 % within 2 % (14 of 20; saturated designs -2.9 to -8.3 %, a choke mode -81 %)"
+BURST_CC = "unmet: recall 0 (the one burster is saturated; no relaxation rule for the follower)"
+CLAPP_CC = "unmet: Clapp worst 1.7 % (2 oscillating Clapp designs, both above 1.5 %)"
+CLAPP_CB = "unmet: Clapp worst 81 % (a saturated Clapp with a collector choke, in the choke's mode)"
 
 
 @cache
@@ -53,7 +57,7 @@ def test_set_holds_twenty_designs_of_its_stage_in_both_tanks(name):
     assert states.count("none") >= 2 and states.count("steady") >= 10
 
 
-@pytest.mark.parametrize("name", _stages({"common-collector": UNMET, "common-base": UNMET}))
+@pytest.mark.parametrize("name", _stages({"common-collector": FREQ_CC, "common-base": FREQ_CB}))
 def test_frequency_within_2_percent_for_95_percent(name):
     assert _acc(name).freq_within_2pct >= 0.95
 
@@ -73,12 +77,12 @@ def test_amplitude_within_30_percent_for_90_percent_of_steady(name):
     assert _acc(name).amplitude_within_30pct >= 0.90
 
 
-@pytest.mark.parametrize("name", _stages({"common-collector": UNMET}))
+@pytest.mark.parametrize("name", _stages({"common-collector": BURST_CC}))
 def test_bursting_precision_and_recall_at_least_0_8(name):
     acc = _acc(name)
     assert acc.burst_precision >= 0.8 and acc.burst_recall >= 0.8
 
 
-@pytest.mark.parametrize("name", _stages({"common-collector": UNMET, "common-base": UNMET}))
+@pytest.mark.parametrize("name", _stages({"common-collector": CLAPP_CC, "common-base": CLAPP_CB}))
 def test_clapp_within_half_a_percent(name):
     assert _acc(name).clapp_worst_error <= 0.005

@@ -23,10 +23,10 @@ as reference) and the base, the supply and ground (one AC node with an ideal bas
 bypass) are node ``b``. Stamps: R_C (or the choke) c–b, C_B c–t, the bleed t–b, R_E and
 r_pi ∥ C_pi b–0, C_mu b–c, r_o c–0. Relabelled, this is the common-emitter network with
 a grounded emitter (:func:`picker.circuit.stages.common_emitter.solve_loop`): no load to
-the reference, the collector load beside C_mu, R_E in the bias position. The model's
-swing at the tank top is taken from the emitter (the swing across C1); the netlist's
-``t`` is measured to ground. The base bypass is taken as a short (the netlist has the
-real C_base).
+the reference, the collector load beside C_mu, R_E in the bias position. The amplitude
+the model reports is the tank top to ground, v_t − v_b (:meth:`CommonBase.probe`), the
+node the netlist's transient measures. The base bypass is taken as a short (the netlist
+has the real C_base).
 
 Start-up (derived here; checked numerically in tests/test_common_base.py). With an
 ideal device (β → ∞, no capacitance, r_o → ∞), no R_E, a lossless tank and the load R
@@ -45,7 +45,10 @@ emitter draws) loads the divider, so the gain needed never falls below 4.
 Large signal: the bjt's exponential describing function on the base–emitter junction
 and the bias shift through the divider and R_E as for the common-emitter stage
 (:meth:`CommonEmitter.bias_loop`); the collector saturates when its swing pulls it
-below the base, as there.
+below the base, as there. Steadiness: the envelope equations take the stage's own DC
+nodes (:meth:`CommonBase.slow_network`: the base bypass charged through R_th is the slow
+state) and, for saturated boards, the base bypass's recovery time
+(:meth:`CommonBase.relaxation_time`).
 """
 
 from __future__ import annotations
