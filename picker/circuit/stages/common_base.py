@@ -53,7 +53,6 @@ state) and, for saturated boards, the base bypass's recovery time
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from typing import Any
 
@@ -71,7 +70,13 @@ from picker.circuit.stages.base import (
 )
 from picker.circuit.stages.common_collector import rename_nodes
 from picker.circuit.stages.common_emitter import SHORT, CommonEmitter, solve_loop
-from picker.circuit.stages.slow import GROUND, SlowNetwork, build, lowfreq_capacitance
+from picker.circuit.stages.slow import (
+    GROUND,
+    Parts,
+    SlowNetwork,
+    divider_resistance,
+    lowfreq_capacitance,
+)
 from picker.tank.base import Topology
 
 __all__ = ["BASE_PULL", "CommonBase"]
@@ -225,32 +230,20 @@ class CommonBase(CommonEmitter):
         R_th, is the slow state the common-emitter layout does not have."""
         y_out, y_in, y_br = tank
         c, t, b, e, gnd = "c", "t", "b", "e", GROUND
-        caps: list[tuple[str, str, Any]] = [
-            (t, e, lowfreq_capacitance(y_out, s_lo)),
-            (e, gnd, lowfreq_capacitance(y_in, s_lo)),
-            (b, e, ss.c_pi),
-            (b, c, ss.c_mu),
-        ]
-        shorts: list[tuple[str, str]] = []
-        if params.c_block is not None:
-            caps.append((c, t, params.c_block))
-        else:
-            shorts.append((c, t))
-        if topology.bridge_passes_dc:
-            shorts.append((t, gnd))
-        else:
-            caps.append((t, gnd, lowfreq_capacitance(y_br, s_lo)))
+        parts = Parts()
+        parts.cap(t, e, lowfreq_capacitance(y_out, s_lo))
+        parts.cap(e, gnd, lowfreq_capacitance(y_in, s_lo))
+        parts.cap(b, e, ss.c_pi)
+        parts.cap(b, c, ss.c_mu)
+        parts.cap(c, t, params.c_block)
+        parts.cap(t, gnd, None if topology.bridge_passes_dc else lowfreq_capacitance(y_br, s_lo))
         if params.c_base is not None:
-            caps.append((b, gnd, params.c_base))
-        conds: list[tuple[str, str, Any]] = [(c, gnd, 1.0 / max(loop.r_out, 1e-3))]
-        if math.isfinite(loop.r_th):
-            conds.append((b, gnd, 1.0 / loop.r_th))
-        if loop.r_e > 0:
-            conds.append((e, gnd, 1.0 / loop.r_e))
+            parts.cap(b, gnd, params.c_base)
+        parts.conds.append((c, gnd, 1.0 / max(loop.r_out, 1e-3)))
+        parts.bias(loop, b, e)
         if self.needs_bleed(topology, params):
-            conds.append((t, gnd, 1.0 / params.r_bleed))
-        inj = {c: -1.0, b: -1.0 / loop.beta, e: 1.0 + 1.0 / loop.beta}
-        return build((c, t, b, e), s_lo.size, caps, conds, shorts, inj, {b: 1.0, e: -1.0})
+            parts.conds.append((t, gnd, 1.0 / params.r_bleed))
+        return parts.network((c, t, b, e), s_lo.size, loop, (c, b, e))
 
     def relaxation_time(self, params: AmplifierParams) -> float:
         """:data:`BASE_PULL`·R_th·C_base: the base bypass, pulled by the junctions' pulses
@@ -259,9 +252,9 @@ class CommonBase(CommonEmitter):
         (0 without a bypass). The base current is the emitter's over β, so the bypass is
         pulled less than a common-emitter's emitter bypass: its time constant counts for
         :data:`BASE_PULL` of one."""
-        if params.c_base is None or params.r_b1 is None:
+        r_th = divider_resistance(params)
+        if params.c_base is None or r_th is None:
             return 0.0
-        r_th = params.r_b1 if params.r_b2 is None else 1.0 / (1 / params.r_b1 + 1 / params.r_b2)
         return BASE_PULL * r_th * params.c_base
 
     # ------------------------------------------------------------ DC voltages, cautions
@@ -309,9 +302,9 @@ class CommonBase(CommonEmitter):
 
     def settling_time(self, params: AmplifierParams) -> float:
         """Five time constants R_th·C_base of the bypassed base (R_th = R_B1 ∥ R_B2)."""
-        if params.c_base is None or params.r_b1 is None:
+        r_th = divider_resistance(params)
+        if params.c_base is None or r_th is None:
             return 0.0
-        r_th = params.r_b1 if params.r_b2 is None else 1.0 / (1 / params.r_b1 + 1 / params.r_b2)
         return 5.0 * r_th * params.c_base
 
     def netlist(

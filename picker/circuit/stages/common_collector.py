@@ -72,7 +72,13 @@ from picker.circuit.stages.base import (
     spice_number,
 )
 from picker.circuit.stages.common_emitter import SHORT, CommonEmitter, solve_loop
-from picker.circuit.stages.slow import GROUND, SlowNetwork, build, lowfreq_capacitance
+from picker.circuit.stages.slow import (
+    GROUND,
+    Parts,
+    SlowNetwork,
+    divider_resistance,
+    lowfreq_capacitance,
+)
 from picker.tank.base import Topology
 
 __all__ = ["CommonCollector", "rename_nodes"]
@@ -242,29 +248,16 @@ class CommonCollector(CommonEmitter):
         states, in place of the common-emitter's R_E·C_E."""
         y_out, y_in, y_br = tank
         g, b, e, gnd = "g", "b", "e", GROUND
-        caps: list[tuple[str, str, Any]] = [
-            (g, e, lowfreq_capacitance(y_out, s_lo)),
-            (b, e, lowfreq_capacitance(y_in, s_lo) + ss.c_pi),
-            (b, gnd, ss.c_mu),
-        ]
-        shorts: list[tuple[str, str]] = []
-        if params.c_block is not None:
-            caps.append((g, gnd, params.c_block))
-        else:
-            shorts.append((g, gnd))
-        if topology.bridge_passes_dc:
-            shorts.append((g, b))
-        else:
-            caps.append((g, b, lowfreq_capacitance(y_br, s_lo)))
-        conds: list[tuple[str, str, Any]] = []
-        if math.isfinite(loop.r_th):
-            conds.append((b, gnd, 1.0 / loop.r_th))
-        if loop.r_e > 0:
-            conds.append((e, gnd, 1.0 / loop.r_e))
+        parts = Parts()
+        parts.cap(g, e, lowfreq_capacitance(y_out, s_lo))
+        parts.cap(b, e, lowfreq_capacitance(y_in, s_lo) + ss.c_pi)
+        parts.cap(b, gnd, ss.c_mu)
+        parts.cap(g, gnd, params.c_block)
+        parts.cap(g, b, None if topology.bridge_passes_dc else lowfreq_capacitance(y_br, s_lo))
+        parts.bias(loop, b, e)
         if self.needs_bleed(topology, params):
-            conds.append((g, gnd, 1.0 / params.r_bleed))
-        inj = {b: -1.0 / loop.beta, e: 1.0 + 1.0 / loop.beta}
-        return build((g, b, e), s_lo.size, caps, conds, shorts, inj, {b: 1.0, e: -1.0})
+            parts.conds.append((g, gnd, 1.0 / params.r_bleed))
+        return parts.network((g, b, e), s_lo.size, loop, (None, b, e))
 
     # ------------------------------------------------------------ DC voltages, cautions
 
@@ -306,9 +299,9 @@ class CommonCollector(CommonEmitter):
     def settling_time(self, params: AmplifierParams) -> float:
         """Five time constants R_th·C_B of the base's DC node (the blocking capacitor holds
         the base through the inductor; R_th = R_B1 ∥ R_B2)."""
-        if params.c_block is None or params.r_b1 is None:
+        r_th = divider_resistance(params)
+        if params.c_block is None or r_th is None:
             return 0.0
-        r_th = params.r_b1 if params.r_b2 is None else 1.0 / (1 / params.r_b1 + 1 / params.r_b2)
         return 5.0 * r_th * params.c_block
 
     def netlist(

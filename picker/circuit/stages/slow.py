@@ -31,7 +31,15 @@ if TYPE_CHECKING:  # types only: stages.base imports this module
     from picker.circuit.stages.base import BiasLoop, Stage
     from picker.tank.base import Topology
 
-__all__ = ["GROUND", "SlowNetwork", "build", "grounded_common", "lowfreq_capacitance"]
+__all__ = [
+    "GROUND",
+    "Parts",
+    "SlowNetwork",
+    "build",
+    "divider_resistance",
+    "grounded_common",
+    "lowfreq_capacitance",
+]
 
 #: The name of ground (and of the supply, an AC and slow-signal ground) in :func:`build`.
 GROUND = "gnd"
@@ -122,6 +130,58 @@ def grounded_common(
     inj = np.array([-1.0, 0.0, -1.0 / loop.beta, 1.0 + 1.0 / loop.beta])
     sense = np.array([0.0, 0.0, 1.0, -1.0])
     return SlowNetwork(cap, cond, proj, inj, sense)
+
+
+def divider_resistance(params: AmplifierParams) -> float | None:
+    """The base divider's Thevenin resistance R_th = R_B1 ∥ R_B2 (R_B1 alone without R_B2;
+    None without a divider): the source resistance the base's DC node sees (Thevenin's
+    theorem)."""
+    if params.r_b1 is None:
+        return None
+    return params.r_b1 if params.r_b2 is None else 1.0 / (1 / params.r_b1 + 1 / params.r_b2)
+
+
+class Parts:
+    """The named parts of a slow network as a stage lays them out, for :func:`build`."""
+
+    def __init__(self) -> None:
+        self.caps: list[tuple[str, str, Any]] = []
+        self.conds: list[tuple[str, str, Any]] = []
+        self.shorts: list[tuple[str, str]] = []
+
+    def cap(self, a: str, b: str, c: Any) -> None:
+        """A capacitor ``c`` between ``a`` and ``b``; ``None``: no capacitor there, a short
+        (a part that passes DC with no resistance: no blocking capacitor, an inductor)."""
+        if c is None:
+            self.shorts.append((a, b))
+        else:
+            self.caps.append((a, b, c))
+
+    def bias(self, loop: BiasLoop, base: str, emitter: str) -> None:
+        """The resistors that set the device's DC loop: the divider's R_th from the base
+        and R_E from the emitter, each to ground where present."""
+        if math.isfinite(loop.r_th):
+            self.conds.append((base, GROUND, 1.0 / loop.r_th))
+        if loop.r_e > 0:
+            self.conds.append((emitter, GROUND, 1.0 / loop.r_e))
+
+    def network(
+        self,
+        nodes: Sequence[str],
+        count: int,
+        loop: BiasLoop,
+        terminals: tuple[str | None, str, str],
+    ) -> SlowNetwork:
+        """:func:`build` with the device's terminal currents per unit rise of its mean
+        output current at ``terminals`` (collector or ``None`` where it sits on the supply,
+        base, emitter): −1, −1/β, +1 + 1/β (Kirchhoff's current law), and
+        ΔV = V_base − V_emitter."""
+        col, base, emitter = terminals
+        inj = {base: -1.0 / loop.beta, emitter: 1.0 + 1.0 / loop.beta}
+        if col is not None:
+            inj[col] = -1.0
+        sense = {base: 1.0, emitter: -1.0}
+        return build(nodes, count, self.caps, self.conds, self.shorts, inj, sense)
 
 
 def build(
