@@ -13,7 +13,8 @@ References, computed here from the part values (not from the model's bias loop):
   network; any circuits text, e.g. Hayt & Kemmerly, *Engineering Circuit Analysis*,
   source-free RC circuit). The common-base base bypass charges through R_th; the emitter
   follower's blocking capacitor (which holds the base through a Colpitts's inductor)
-  through R_th.
+  through R_th; a common-gate stage's gate bypass through its gate divider (a fet draws
+  no gate current, but the divider is still the bypass's only DC path).
 """
 
 from __future__ import annotations
@@ -55,12 +56,14 @@ def _reduced(slow):
 
 
 @pytest.mark.parametrize("tank", sorted(TANKS))
-@pytest.mark.parametrize("stage_name", ["common-emitter", "common-base", "common-collector"])
+@pytest.mark.parametrize(
+    "stage_name", ["common-emitter", "common-base", "common-collector", "common-gate"]
+)
 def test_dc_shift_of_the_control_voltage_is_the_bias_stability_loop(stage_name, tank):
     params, slow = _network(stage_name, tank)
     _, cond, inj, sense = _reduced(slow)
     dv = sense @ np.linalg.solve(cond, inj)  # per ampere of collector current
-    beta = params.effective_device().bf
+    beta = math.inf if params.kind == "fet" else params.effective_device().bf  # no gate current
     r_th = params.r_b1 * params.r_b2 / (params.r_b1 + params.r_b2)
     expected = -(r_th / beta + params.r_e * (1 + 1 / beta))  # Sedra & Smith, bias stability
     assert_allclose(dv, expected, rtol=1e-6)
@@ -73,6 +76,8 @@ def test_dc_shift_of_the_control_voltage_is_the_bias_stability_loop(stage_name, 
         ("common-base", "c_base", "clapp"),
         # a Clapp's C3 blocks the inductor's DC path: there C_B drains through the bleed
         ("common-collector", "c_block", "colpitts"),
+        # no gate current, but the gate's node still returns to ground through its divider
+        ("common-gate", "c_base", "colpitts"),
     ],
 )
 def test_a_large_bias_capacitor_sets_the_slowest_time_constant_through_r_th(stage_name, part, tank):

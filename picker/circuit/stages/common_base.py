@@ -240,7 +240,7 @@ class CommonBase(CommonEmitter):
         if params.c_base is not None:
             parts.cap(b, gnd, params.c_base)
         parts.conds.append((c, gnd, 1.0 / max(loop.r_out, 1e-3)))
-        parts.bias(loop, b, e)
+        parts.bias(loop, params, b, e)
         if self.needs_bleed(topology, params):
             parts.conds.append((t, gnd, 1.0 / params.r_bleed))
         return parts.network((c, t, b, e), s_lo.size, loop, (c, b, e))

@@ -55,8 +55,8 @@ common-emitter stage.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -128,17 +128,9 @@ class CommonCollector(CommonEmitter):
         return 0.0
 
     def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
-        """β → ∞, C_pi = C_mu = 0, r_o → ∞, no bias network, R_E = ``r_load``."""
-        return AmplifierParams(
-            kind=self.device,
-            stage=self.name,
-            gm=gm,
-            current_gain=math.inf,
-            r_o=math.inf,
-            c_pi=0.0,
-            c_mu=0.0,
-            r_e=r_load,
-        )
+        """The common-emitter stage's idealised device (β → ∞, C_pi = C_mu = 0, r_o → ∞, no
+        bias network) with the load moved to the emitter: R_E = ``r_load``."""
+        return replace(super().ideal_params(gm, r_load), r_c=None, r_e=r_load)
 
     def typical_params(self) -> AmplifierParams:
         """A 9 V follower at about 1.6 mA (invented values, not a real circuit)."""
@@ -254,7 +246,7 @@ class CommonCollector(CommonEmitter):
         parts.cap(b, gnd, ss.c_mu)
         parts.cap(g, gnd, params.c_block)
         parts.cap(g, b, None if topology.bridge_passes_dc else lowfreq_capacitance(y_br, s_lo))
-        parts.bias(loop, b, e)
+        parts.bias(loop, params, b, e)
         if self.needs_bleed(topology, params):
             parts.conds.append((g, gnd, 1.0 / params.r_bleed))
         return parts.network((g, b, e), s_lo.size, loop, (None, b, e))

@@ -157,11 +157,17 @@ class Parts:
         else:
             self.caps.append((a, b, c))
 
-    def bias(self, loop: BiasLoop, base: str, emitter: str) -> None:
+    def bias(self, loop: BiasLoop, params: AmplifierParams, base: str, emitter: str) -> None:
         """The resistors that set the device's DC loop: the divider's R_th from the base
-        and R_E from the emitter, each to ground where present."""
-        if math.isfinite(loop.r_th):
-            self.conds.append((base, GROUND, 1.0 / loop.r_th))
+        and R_E from the emitter, each to ground where present. A fet's loop holds no gate
+        current (R_th infinite in :class:`BiasLoop`), but its gate's DC node still
+        returns to ground through the gate resistors (:func:`divider_resistance`), or is
+        ground itself where there are none (a gate tied to ground)."""
+        r_th = loop.r_th if math.isfinite(loop.r_th) else divider_resistance(params)
+        if r_th is None:
+            self.shorts.append((base, GROUND))
+        else:
+            self.conds.append((base, GROUND, 1.0 / r_th))
         if loop.r_e > 0:
             self.conds.append((emitter, GROUND, 1.0 / loop.r_e))
 
