@@ -57,7 +57,8 @@ def _reduced(slow):
 
 @pytest.mark.parametrize("tank", sorted(TANKS))
 @pytest.mark.parametrize(
-    "stage_name", ["common-emitter", "common-base", "common-collector", "common-gate"]
+    "stage_name",
+    ["common-emitter", "common-base", "common-collector", "common-source", "common-gate"],
 )
 def test_dc_shift_of_the_control_voltage_is_the_bias_stability_loop(stage_name, tank):
     params, slow = _network(stage_name, tank)

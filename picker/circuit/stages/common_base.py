@@ -253,7 +253,7 @@ class CommonBase(CommonEmitter):
         pulled less than a common-emitter's emitter bypass: its time constant counts for
         :data:`BASE_PULL` of one."""
         r_th = divider_resistance(params)
-        if params.c_base is None or r_th is None:
+        if params.c_base is None or r_th is None or params.r_b1 is None:
             return 0.0
         return BASE_PULL * r_th * params.c_base
 
@@ -303,7 +303,7 @@ class CommonBase(CommonEmitter):
     def settling_time(self, params: AmplifierParams) -> float:
         """Five time constants R_th·C_base of the bypassed base (R_th = R_B1 ∥ R_B2)."""
         r_th = divider_resistance(params)
-        if params.c_base is None or r_th is None:
+        if params.c_base is None or r_th is None or params.r_b1 is None:
             return 0.0
         return 5.0 * r_th * params.c_base
 

@@ -292,7 +292,7 @@ class CommonCollector(CommonEmitter):
         """Five time constants R_th·C_B of the base's DC node (the blocking capacitor holds
         the base through the inductor; R_th = R_B1 ∥ R_B2)."""
         r_th = divider_resistance(params)
-        if params.c_block is None or r_th is None:
+        if params.c_block is None or r_th is None or params.r_b1 is None:
             return 0.0
         return 5.0 * r_th * params.c_block
 

@@ -95,7 +95,8 @@ def grounded_common(
     bypass C_E and R_E on the common node, the output's DC load, the divider's R_th on
     the input, the bleed on the top. Merged: output = top without a blocking
     capacitor, top = input where the bridge passes DC; the common node is dropped
-    without an emitter resistor (held at ground)."""
+    without an emitter resistor (held at ground). A bjt's results are those of the
+    layout written first inside :mod:`picker.circuit.envelope` (the goldens check it)."""
     y_out, y_in, y_br = tank
     n = s_lo.size
     cap = np.zeros((n, 4, 4))
@@ -111,8 +112,11 @@ def grounded_common(
     _stamp(cap, out_, None, tiny)
     _stamp(cap, com, None, loop.c_e if loop.c_e > 0 else tiny)
     _stamp(cond, out_, None, 1.0 / max(loop.r_out, 1e-3))
-    if math.isfinite(loop.r_th):
-        _stamp(cond, inp, None, 1.0 / loop.r_th)
+    # a fet's loop holds no gate current (R_th infinite) but its gate still returns to
+    # ground through its resistors
+    r_th = loop.r_th if math.isfinite(loop.r_th) else divider_resistance(params)
+    if r_th is not None:
+        _stamp(cond, inp, None, 1.0 / r_th)
     if loop.r_e > 0:
         _stamp(cond, com, None, 1.0 / loop.r_e)
     if stage.needs_bleed(topology, params):
@@ -133,12 +137,11 @@ def grounded_common(
 
 
 def divider_resistance(params: AmplifierParams) -> float | None:
-    """The base divider's Thevenin resistance R_th = R_B1 ∥ R_B2 (R_B1 alone without R_B2;
-    None without a divider): the source resistance the base's DC node sees (Thevenin's
-    theorem)."""
-    if params.r_b1 is None:
-        return None
-    return params.r_b1 if params.r_b2 is None else 1.0 / (1 / params.r_b1 + 1 / params.r_b2)
+    """The base (gate) divider's Thevenin resistance R_th = R_B1 ∥ R_B2 (the one resistor
+    where only one is given: a single base resistor, or a gate resistor to ground; None
+    without either): the source resistance the base's DC node sees (Thevenin's theorem)."""
+    r = [x for x in (params.r_b1, params.r_b2) if x is not None]
+    return 1.0 / sum(1.0 / x for x in r) if r else None
 
 
 class Parts:
