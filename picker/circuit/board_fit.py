@@ -84,6 +84,7 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.envelope import HURWITZ, SATURATED_BURST
 from picker.circuit.oscillation import loaded_response
+from picker.circuit.stages import stage_of
 from picker.circuit.steady import SteadyState, steady_state
 from picker.tank.base import Topology
 from picker.tank.board import Parasitics, board_values
@@ -308,8 +309,8 @@ def point_quantities(
         off_m = np.log(st.margin) - np.log(lin_m)
         good = st.starts & np.isfinite(st.amplitude_v) & np.isfinite(st.f_hz)
         saturated = good & st.overdriven
-        t_relax = (params.r_e or 0.0) * (params.c_e or 0.0) / SATURATED_BURST
-        relax = np.log(t_relax / st.startup_time_s)  # > 0: R_E·C_E > SATURATED_BURST·t_up
+        t_relax = stage_of(params).relaxation_time(params) / SATURATED_BURST
+        relax = np.log(t_relax / st.startup_time_s)  # > 0: τ_relax > SATURATED_BURST·t_up
     steady = np.moveaxis(np.asarray(st.envelope_hurwitz, dtype=float), -1, 0).copy()
     steady[:, saturated] = 1.0
     steady[0][saturated] = -relax[saturated]

@@ -9,11 +9,15 @@ compression c*, σ ≈ k·(c/c* − 1) with k = dσ/d ln c at c* (from the pole 
 :func:`picker.circuit.large_signal.loop_compression`; for a single tank mode
 k ≈ ω/(2·Q_L), so the envelope time constant of a board with margin m is
 about 2·Q_L/(ω·(m − 1))). The bias network adds slow states: the DC voltages of
-the stage's nodes (output, tank top, input, common), joined by the capacitors that
-hold them (the emitter bypass C_E, the blocking capacitor C_B, the tank's capacitors
-at low frequency, the inductor a short) and the resistors that set them (R_E, the
-divider's R_th, the output's DC load, the bleed), and driven by the device's mean
-currents (output −I, input −I/β, common +I·(1 + 1/β)):
+the stage's DC nodes, joined by the capacitors that hold them (the emitter bypass C_E,
+the blocking capacitor C_B, a base bypass, the tank's capacitors at low frequency, the
+inductor a short) and the resistors that set them (R_E, the divider's R_th, the
+output's DC load, the bleed), and driven by the device's mean currents (output −I,
+input −I/β, common +I·(1 + 1/β)). Each stage lays out its own
+(:meth:`picker.circuit.stages.base.Stage.slow_network`, :mod:`picker.circuit.stages.slow`):
+a grounded-emitter stage has the emitter bypass, the emitter follower the tank's end
+through C_B and R_E against the divider's capacitors, the common-base stage its base
+bypass through R_th:
 
     d ln a/dt = k·(c(a, ΔV)·N(a)/c* − 1),      ΔV = V_input − V_common        (E1)
     C·dV/dt = −G·V + j·(I(a, ΔV) − I_rest)                                      (E2)
@@ -30,7 +34,8 @@ Where the device saturates, the averaged equations leave out what drives the
 bursts (the base-collector junction conducts and pulls the input node down, which
 then recovers through the divider), so a saturated board is called bursting when its
 emitter time constant R_E·C_E exceeds :data:`SATURATED_BURST` start-up times (an
-empirical criterion, see its note).
+empirical criterion, see its note; the time constant is the stage's,
+:meth:`picker.circuit.stages.base.Stage.relaxation_time`).
 
 **Start-up time**: from the disturbance to 90 % of the steady amplitude. While the
 amplitude is small it grows at the linear pole's rate σ0; where the bias network
@@ -46,7 +51,6 @@ exciting the closed-loop pole through its residue.
 from __future__ import annotations
 
 import math
-from typing import Any
 
 import numpy as np
 
@@ -55,6 +59,7 @@ from picker.circuit.device import SmallSignal
 from picker.circuit.large_signal import compression
 from picker.circuit.network import Network
 from picker.circuit.stages.base import BiasLoop, Stage
+from picker.circuit.stages.slow import SlowNetwork
 
 __all__ = [
     "HURWITZ",
@@ -124,60 +129,15 @@ def hurwitz_conditions(m: np.ndarray) -> np.ndarray:
     return out
 
 
-def slow_network(
-    net: Network, idx: np.ndarray, loop: BiasLoop, w: np.ndarray
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """The bias network's DC nodes (output, top, input, common) as capacitances C and
-    conductances G (elements × nodes × nodes) and the node map P (nodes × reduced
-    nodes) that merges the nodes a short joins (no blocking capacitor: output = top; a
-    bridge that passes DC: top = input; no emitter resistor: common = ground).
-
-    The tank's parts at low frequency are capacitors (the inductor a short): each
+def slow_network(net: Network, idx: np.ndarray, loop: BiasLoop, w: np.ndarray) -> SlowNetwork:
+    """The bias network's DC nodes of the elements ``idx`` (:class:`SlowNetwork`), from the
+    stage (:meth:`picker.circuit.stages.base.Stage.slow_network`: each stage has its own
+    layout). The tank's parts at low frequency are capacitors (the inductor a short): each
     capacitance is Im Y(jω_s)/ω_s at ω_s = ω/1000 of its π admittances
-    (:meth:`picker.tank.base.Topology.pi_admittances`).
-    """
-    params, stage, topology = net.params, net.stage, net.topology
-    n = idx.size
+    (:meth:`picker.tank.base.Topology.pi_admittances`)."""
     s_lo = 1e-3j * w
-    y_out, y_in, y_br = net.tank_admittances(s_lo, idx)
-    cap = np.zeros((n, 4, 4))
-    cond = np.zeros((n, 4, 4))
-
-    def stamp(m: np.ndarray, a: int, b: int | None, y: Any) -> None:
-        m[:, a, a] += y
-        if b is not None:
-            m[:, b, b] += y
-            m[:, a, b] -= y
-            m[:, b, a] -= y
-
-    out_, top, inp, com = 0, 1, 2, 3
-    tiny = 1e-6 * (y_out.imag / s_lo.imag)  # a node with no capacitor of its own
-    stamp(cap, top, None, y_out.imag / s_lo.imag)
-    stamp(cap, inp, None, y_in.imag / s_lo.imag + net.ss.c_pi)
-    if not topology.bridge_passes_dc:
-        stamp(cap, top, inp, y_br.imag / s_lo.imag)
-    if params.c_block is not None:
-        stamp(cap, out_, top, params.c_block)
-    stamp(cap, out_, None, tiny)
-    stamp(cap, com, None, loop.c_e if loop.c_e > 0 else tiny)
-    stamp(cond, out_, None, 1.0 / max(loop.r_out, 1e-3))
-    if math.isfinite(loop.r_th):
-        stamp(cond, inp, None, 1.0 / loop.r_th)
-    if loop.r_e > 0:
-        stamp(cond, com, None, 1.0 / loop.r_e)
-    if stage.needs_bleed(topology, params):
-        stamp(cond, top, None, 1.0 / params.r_bleed)
-    group = [0, 1, 2, 3]
-    if params.c_block is None:
-        group[top] = group[out_]
-    if topology.bridge_passes_dc:
-        group[inp] = group[top]
-    keep = sorted(set(group[:3])) + ([3] if loop.r_e > 0 else [])
-    proj = np.zeros((4, len(keep)))
-    for node, g in enumerate(group):
-        if g in keep:
-            proj[node, keep.index(g)] = 1.0
-    return cap, cond, proj
+    tank = net.tank_admittances(s_lo, idx)
+    return net.stage.slow_network(net.topology, net.params, net.ss, loop, tank, s_lo)
 
 
 def bursting(
@@ -214,11 +174,12 @@ def bursting(
     cp, ip = at(0.0, h_v)
     cm, im = at(0.0, -h_v)
     c_v, i_v = (cp - cm) / (2 * h_v), (ip - im) / (2 * h_v)
-    cap, cond, proj = slow_network(net, idx, loop, w)
+    slow = slow_network(net, idx, loop, w)
+    cap, cond, proj = slow.cap, slow.cond, slow.proj
     r = proj.shape[1]
-    # current into each node per unit ΔI (output: −1, input: −1/β, common: +1 + 1/β)
-    inj = np.array([-1.0, 0.0, -1.0 / loop.beta, 1.0 + 1.0 / loop.beta])
-    sense = np.array([0.0, 0.0, 1.0, -1.0])  # ΔV = V_input − V_common
+    # current into each node per unit ΔI (output: −1, input: −1/β, common: +1 + 1/β) and
+    # ΔV = V_input − V_common, on the stage's own DC nodes
+    inj, sense = slow.inj, slow.sense
     cr = np.einsum("ia,nij,jb->nab", proj, cap, proj)
     gr = np.einsum("ia,nij,jb->nab", proj, cond, proj)
     inj_r = proj.T @ inj

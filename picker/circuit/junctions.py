@@ -78,7 +78,8 @@ def port_matrix(net: Network, idx: np.ndarray, s: np.ndarray) -> np.ndarray:
     if com is not None:
         u[:, com, :] += 1.0
     x = np.linalg.solve(y, u)
-    b, c, t = x[:, index[stage.input], :], x[:, index[stage.output], :], x[:, index[stage.top], :]
+    b, c = x[:, index[stage.input], :], x[:, index[stage.output], :]
+    t = stage.probe({node: x[:, i, :] for node, i in index.items()})  # as the netlist measures
     return np.stack([b - (x[:, com, :] if com is not None else 0.0), b - c, t], axis=1)
 
 

@@ -184,12 +184,12 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     ratio = np.abs(x[stage.output] - x[stage.common]) / np.abs(be)
     drive = solve_drive(stage, params, ss, loop, c_star, ratio)
     a = drive.a
-    top = a * np.abs(x[stage.top] / be)
+    top = a * np.abs(stage.probe(x) / be)
     cur = drive.currents
     harm = []
     for m, h in ((2, cur.h2), (3, cur.h3)):
         _, xm = dev.return_ratio(1j * m * w, sub, nodes=True)
-        harm.append(20.0 * np.log10(np.abs(h * xm[stage.top]) / top))
+        harm.append(20.0 * np.log10(np.abs(h * stage.probe(xm)) / top))
     r_e_dc = loop.r_e * (1.0 + 1.0 / loop.beta)
     v_out = loop.v_out - (cur.mean - loop.i_rest) * (loop.r_out + r_e_dc)
     p_dev = v_out * cur.mean - 0.5 * a * ratio * c_star * ss.gm * a
@@ -233,7 +233,7 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     out["peak_current_a"][sub] = np.where(good, cur.peak, np.nan)
     out["dissipation_w"][sub] = np.where(good & np.isfinite(v_out), np.maximum(p_dev, 0.0), np.nan)
     # saturated boards: the relaxation criterion (picker.circuit.envelope.SATURATED_BURST)
-    relax = loop.r_e * loop.c_e > SATURATED_BURST * t_up
+    relax = stage.relaxation_time(params) > SATURATED_BURST * t_up
     out["bursting"][sub] = np.where(drive.saturated, relax, burst) & good
     out["envelope_rate"][sub] = np.where(good, lam, np.nan)
     out["envelope_hurwitz"][sub] = np.where(good[:, None], hur, np.nan)

@@ -57,6 +57,7 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import BiasPoint, SmallSignal
+from picker.circuit.stages.slow import SlowNetwork, grounded_common
 from picker.tank.base import TWO_PI, Topology
 
 __all__ = [
@@ -323,6 +324,11 @@ class Stage:
         root finder's first estimate of the loaded frequency."""
         return topology.with_end_capacitance(values, ss.c_mu, ss.c_pi)
 
+    def probe(self, x: Mapping[str, Any]) -> Any:
+        """The tank top's voltage as the netlist's transient measures it (to ground), from
+        node voltages ``x`` referenced to the network's "0": ``x[top]`` where "0" is ground."""
+        return x[self.top]
+
     def needs_bleed(self, topology: Topology, params: AmplifierParams) -> bool:
         """Whether the tank top needs the bleed resistor ``r_bleed`` to ground for a
         DC path (a coupling capacitor on one side, a bridge that blocks DC on the other)."""
@@ -395,6 +401,28 @@ class Stage:
             c_mu=ss.c_mu + 0.0 * c,
             i_dc=ss.i_dc * d,
         )
+
+    def slow_network(
+        self,
+        topology: Topology,
+        params: AmplifierParams,
+        ss: SmallSignal,
+        loop: BiasLoop,
+        tank: tuple[Any, Any, Any],
+        s_lo: np.ndarray,
+    ) -> SlowNetwork:
+        """The bias network's DC nodes for the envelope equations of
+        :mod:`picker.circuit.envelope` (``tank``: the π admittances at the low frequency
+        ``s_lo``); by default those of a grounded common end
+        (:func:`picker.circuit.stages.slow.grounded_common`)."""
+        return grounded_common(self, topology, params, ss, loop, tank, s_lo)
+
+    def relaxation_time(self, params: AmplifierParams) -> float:
+        """The time constant through which a saturated board's bias recovers after the
+        device's junctions have pulled it (the bursting criterion of saturated boards,
+        :data:`picker.circuit.envelope.SATURATED_BURST`), s: R_E·C_E, the emitter bypass
+        charged by the emitter current's pulses and drained through R_E (0 without)."""
+        return (params.r_e or 0.0) * (params.c_e or 0.0)
 
     def headroom(self, params: AmplifierParams) -> float:
         """Largest peak swing at the output before the device saturates, V (inf: unknown)."""

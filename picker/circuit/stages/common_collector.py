@@ -55,7 +55,6 @@ common-emitter stage.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from dataclasses import replace
 from typing import Any
@@ -64,8 +63,22 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import GENERIC_PNP, SmallSignal
-from picker.circuit.stages.base import KICK_FRACTION, StageNetlist, Stamp, need, spice_number
+from picker.circuit.stages.base import (
+    KICK_FRACTION,
+    BiasLoop,
+    StageNetlist,
+    Stamp,
+    need,
+    spice_number,
+)
 from picker.circuit.stages.common_emitter import SHORT, CommonEmitter, solve_loop
+from picker.circuit.stages.slow import (
+    GROUND,
+    Parts,
+    SlowNetwork,
+    divider_resistance,
+    lowfreq_capacitance,
+)
 from picker.tank.base import Topology
 
 __all__ = ["CommonCollector", "rename_nodes"]
@@ -123,17 +136,9 @@ class CommonCollector(CommonEmitter):
         return 0.0
 
     def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
-        """β → ∞, C_pi = C_mu = 0, r_o → ∞, no bias network, R_E = ``r_load``."""
-        return AmplifierParams(
-            kind=self.device,
-            stage=self.name,
-            gm=gm,
-            current_gain=math.inf,
-            r_o=math.inf,
-            c_pi=0.0,
-            c_mu=0.0,
-            r_e=r_load,
-        )
+        """The common-emitter stage's idealised device (β → ∞, C_pi = C_mu = 0, r_o → ∞, no
+        bias network) with the load moved to the emitter: R_E = ``r_load``."""
+        return replace(super().ideal_params(gm, r_load), r_c=None, r_e=r_load)
 
     def typical_params(self) -> AmplifierParams:
         """A 9 V follower at about 1.6 mA (invented values, not a real circuit)."""
@@ -214,12 +219,49 @@ class CommonCollector(CommonEmitter):
         names = (self.output, self.top, self.input, self.common)
         return solve_loop(s, tank, adm, ss.gm, names if nodes else None)
 
+    def probe(self, x: Mapping[str, Any]) -> Any:
+        """The emitter to ground, the node the netlist's transient measures (named ``t``
+        there): the emitter is the reference "0" and ground the collector's AC node ``c``,
+        so −v_c (the tank's grounded end ``t`` differs from ground by C_B's drop)."""
+        return -x[self.output]
+
     def loaded_tank(
         self, topology: Topology, values: Mapping[str, Any], ss: SmallSignal
     ) -> dict[str, Any]:
         """C_pi across C2 (base–emitter); C_mu runs from the base to AC ground, beside the
         inductor, and is left to the root finder."""
         return topology.with_end_capacitance(values, 0.0, ss.c_pi)
+
+    # ------------------------------------------------------------ large signal
+
+    def slow_network(
+        self,
+        topology: Topology,
+        params: AmplifierParams,
+        ss: SmallSignal,
+        loop: BiasLoop,
+        tank: tuple[Any, Any, Any],
+        s_lo: np.ndarray,
+    ) -> SlowNetwork:
+        """The DC nodes tank end ``g``, base ``b`` and emitter ``e``
+        (:func:`picker.circuit.stages.slow.build`; the collector sits on the supply, a
+        slow-signal ground): C_B g–ground (a short without it), the tank's C1 g–e and C2
+        b–e with C_pi, its bridge g–b (a short where it passes DC: the inductor), C_mu
+        b–ground, the divider's R_th b–ground, R_E e–ground, the bleed g–ground. The
+        emitter resistor with the divider's capacitors and C_B through R_th are the slow
+        states, in place of the common-emitter's R_E·C_E."""
+        y_out, y_in, y_br = tank
+        g, b, e, gnd = "g", "b", "e", GROUND
+        parts = Parts()
+        parts.cap(g, e, lowfreq_capacitance(y_out, s_lo))
+        parts.cap(b, e, lowfreq_capacitance(y_in, s_lo) + ss.c_pi)
+        parts.cap(b, gnd, ss.c_mu)
+        parts.cap(g, gnd, params.c_block)
+        parts.cap(g, b, None if topology.bridge_passes_dc else lowfreq_capacitance(y_br, s_lo))
+        parts.bias(loop, params, b, e)
+        if self.needs_bleed(topology, params):
+            parts.conds.append((g, gnd, 1.0 / params.r_bleed))
+        return parts.network((g, b, e), s_lo.size, loop, (None, b, e))
 
     # ------------------------------------------------------------ DC voltages, cautions
 
@@ -261,9 +303,9 @@ class CommonCollector(CommonEmitter):
     def settling_time(self, params: AmplifierParams) -> float:
         """Five time constants R_th·C_B of the base's DC node (the blocking capacitor holds
         the base through the inductor; R_th = R_B1 ∥ R_B2)."""
-        if params.c_block is None or params.r_b1 is None:
+        r_th = divider_resistance(params)
+        if params.c_block is None or r_th is None or params.r_b1 is None:
             return 0.0
-        r_th = params.r_b1 if params.r_b2 is None else 1.0 / (1 / params.r_b1 + 1 / params.r_b2)
         return 5.0 * r_th * params.c_block
 
     def netlist(

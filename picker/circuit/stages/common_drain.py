@@ -37,7 +37,6 @@ its rest, which a follower's tank rarely does.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from dataclasses import replace
 
@@ -69,17 +68,10 @@ class CommonDrain(CommonSource, CommonCollector):
     options = frozenset({"p-type"})
 
     def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
-        """The fet as Sedra & Smith idealise it (C_gs = C_gd = 0, r_o → ∞, no bias
-        network), R_S = ``r_load``."""
-        return AmplifierParams(
-            kind=self.device,
-            stage=self.name,
-            gm=gm,
-            r_o=math.inf,
-            c_pi=0.0,
-            c_mu=0.0,
-            r_e=r_load,
-        )
+        """The common-source stage's idealised fet (as Sedra & Smith idealise it: C_gs =
+        C_gd = 0, r_o → ∞, no bias network) with the load moved to the source: R_S =
+        ``r_load``."""
+        return replace(super().ideal_params(gm, r_load), r_c=None, r_e=r_load)
 
     def typical_params(self) -> AmplifierParams:
         """A 9 V MOSFET follower at about 2.3 mA: the generic small-signal n-channel

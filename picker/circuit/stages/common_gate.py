@@ -31,7 +31,6 @@ V_GS − VTO.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from dataclasses import replace
 
@@ -62,19 +61,6 @@ class CommonGate(CommonSource, CommonBase):
     common = "0"
     coupling_parts = ("CB",)
     options = frozenset({"p-type"})
-
-    def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
-        """The fet as Sedra & Smith idealise it (C_gs = C_gd = 0, r_o → ∞, no bias
-        network), R_D = ``r_load``."""
-        return AmplifierParams(
-            kind=self.device,
-            stage=self.name,
-            gm=gm,
-            r_o=math.inf,
-            c_pi=0.0,
-            c_mu=0.0,
-            r_c=r_load,
-        )
 
     def typical_params(self) -> AmplifierParams:
         """A 9 V MOSFET stage at about 2.3 mA: the generic small-signal n-channel MOSFET,
