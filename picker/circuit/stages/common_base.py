@@ -326,8 +326,8 @@ class CommonBase(CommonEmitter):
         if params.c_base is None:
             return 0.0
         if params.r_feedback is not None:
-            r_th = dc_loop(params, self.collector_dc(params), params.effective_device().bf)[2]
-            return 5.0 * r_th * params.c_base
+            r_loop = dc_loop(params, self.collector_dc(params), params.effective_device().bf)[2]
+            return 5.0 * r_loop * params.c_base
         r_th = divider_resistance(params)
         if r_th is None or params.r_b1 is None:
             return 0.0
