@@ -19,7 +19,9 @@ currents (output −I, input −I/β, common +I·(1 + 1/β)):
     C·dV/dt = −G·V + j·(I(a, ΔV) − I_rest)                                      (E2)
 
 (V the node voltages' shifts from rest; I, c, N as in
-:mod:`picker.circuit.large_signal`, with the bias frozen at the state's ΔV). Its
+:mod:`picker.circuit.large_signal`, with the bias frozen at the state's ΔV; a JFET's
+gate junction adds its mean current I_G(a, ΔV) from the input node to the common node,
+:meth:`picker.circuit.stages.base.Stage.gate_current`). Its
 equilibrium is the steady state of :mod:`picker.circuit.large_signal`; the steady
 state is **bursting** (squegging) when the Jacobian of (E1)-(E2) there has an
 eigenvalue with a positive real part (Lyapunov's indirect method). The output node's
