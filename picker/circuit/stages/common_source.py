@@ -21,6 +21,11 @@ resistor to ground (``r_b2`` alone: the JFET's source self-bias), the source thr
 (:func:`picker.circuit.fet.square_law_bias`); gm = 2·I_D/u and g_ds = λ·k·u² at that
 point (equation (F3) there), C_gs and C_gd from the card unless given; the netlist
 writes the card itself.
+
+Large signal: the square law with cut-off (:meth:`CommonSource.device_currents`); a
+JFET's gate junction conducts once the swing passes |V_GS| and its rectified current,
+returned through the gate and source resistors, shifts the bias (grid-leak bias:
+:meth:`CommonSource.gate_leak`), which clamps a self-biased JFET's swing.
 """
 
 from __future__ import annotations
