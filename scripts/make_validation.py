@@ -12,6 +12,7 @@ Usage::
     python scripts/make_validation.py            # draw, simulate, write tests/validation/large_signal.json
     python scripts/make_validation.py --stats    # the model's accuracy on the committed set (a table)
     python scripts/make_validation.py --check 5  # re-simulate 5 committed designs, compare
+    python scripts/make_validation.py --redo d003,d007  # re-simulate two designs in place
 
 The drawing (seeded, :data:`SEED`) covers picker issue 11's ranges: ideal tank frequency
 20 kHz–30 MHz (log-uniform); common-emitter Colpitts and Clapp (about 30 % Clapp); supply
@@ -506,6 +507,28 @@ def check(n: int, path: Path = OUT, workers: int = WORKERS) -> int:
     return 1 if bad else 0
 
 
+def redo(ids: list[str], path: Path = OUT) -> None:
+    """Re-simulate the designs ``ids`` of the set at ``path`` (one ngspice process) and
+    write their new ngspice records in place; the other records stay as they are."""
+    data = json.loads(path.read_text(encoding="utf-8"))
+    designs, _ = load_reference(path)
+    found = {d.id: i for i, d in enumerate(designs)}
+    missing = [i for i in ids if i not in found]
+    if missing:
+        raise SystemExit(f"{path}: no design {', '.join(missing)}")
+    for name in ids:
+        i = found[name]
+        old = data["designs"][i]["ngspice"]
+        new = run_design(designs[i])
+        data["designs"][i]["ngspice"] = new
+        print(f"{name}: {old['state']} {old['f_hz']} -> {new['state']} {new['f_hz']}")
+    states: dict[str, int] = {}
+    for r in data["designs"]:
+        states[str(r["ngspice"]["state"])] = states.get(str(r["ngspice"]["state"]), 0) + 1
+    data["states"] = dict(sorted(states.items()))
+    path.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n", encoding="utf-8")
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--stats", action="store_true", help="print the model's accuracy table")
@@ -528,6 +551,9 @@ def main(argv: list[str] | None = None) -> int:
     )
     ap.add_argument("--workers", type=int, default=WORKERS, help="ngspice processes at a time")
     ap.add_argument(
+        "--redo", metavar="IDS", help="re-simulate these designs (comma-separated ids) in place"
+    )
+    ap.add_argument(
         "--clapps", type=int, default=0, help="Clapp designs added after the quotas (issue 12)"
     )
     args = ap.parse_args(argv)
@@ -536,6 +562,9 @@ def main(argv: list[str] | None = None) -> int:
         return 0
     if args.check:
         return check(args.check, args.out, args.workers)
+    if args.redo:
+        redo([i.strip() for i in args.redo.split(",") if i.strip()], args.out)
+        return 0
     make(
         args.out,
         args.seed,

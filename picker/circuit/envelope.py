@@ -23,7 +23,9 @@ bypass through R_th:
     C·dV/dt = −G·V + j·(I(a, ΔV) − I_rest)                                      (E2)
 
 (V the node voltages' shifts from rest; I, c, N as in
-:mod:`picker.circuit.large_signal`, with the bias frozen at the state's ΔV). Its
+:mod:`picker.circuit.large_signal`, with the bias frozen at the state's ΔV; a JFET's
+gate junction adds its mean current I_G(a, ΔV) from the input node to the common node,
+:meth:`picker.circuit.stages.base.Stage.gate_current`). Its
 equilibrium is the steady state of :mod:`picker.circuit.large_signal`; the steady
 state is **bursting** (squegging) when the Jacobian of (E1)-(E2) there has an
 eigenvalue with a positive real part (Lyapunov's indirect method). The output node's
@@ -177,6 +179,7 @@ def bursting(
     slow = slow_network(net, idx, loop, w)
     cap, cond, proj = slow.cap, slow.cond, slow.proj
     r = proj.shape[1]
+    g_u, g_v = _junction_rates(stage, params, ss, a, dv, h_u, h_v)
     # current into each node per unit ΔI (output: −1, input: −1/β, common: +1 + 1/β) and
     # ΔV = V_input − V_common, on the stage's own DC nodes
     inj, sense = slow.inj, slow.sense
@@ -190,6 +193,10 @@ def bursting(
     rhs = np.zeros((n, r, r + 1))
     rhs[:, :, 0] = i_u[:, None] * inj_r[None, :]  # (E2)
     rhs[:, :, 1:] = -gr + (i_v[:, None, None] * inj_r[None, :, None]) * sense_r[None, None, :]
+    if g_u is not None and g_v is not None:  # an input junction: from input to common
+        gate_r = -sense_r  # the junction's current leaves the input for the common node
+        rhs[:, :, 0] += g_u[:, None] * gate_r[None, :]
+        rhs[:, :, 1:] += (g_v[:, None, None] * gate_r[None, :, None]) * sense_r[None, None, :]
     jac[:, 1:, :] = np.linalg.solve(cr, rhs)
     ok = np.all(np.isfinite(jac), axis=(1, 2))
     lam = np.full(n, np.nan)
@@ -200,6 +207,29 @@ def bursting(
         shifted = (jac[ok] - _BURST_RATE * kk * np.eye(r + 1)) / np.abs(kk)
         hur[ok] = hurwitz_conditions(shifted)
     return ok & (lam > _BURST_RATE * k), lam, hur
+
+
+def _junction_rates(
+    stage: Stage,
+    params: AmplifierParams,
+    ss: SmallSignal,
+    a: np.ndarray,
+    dv: np.ndarray,
+    h_u: float,
+    h_v: float,
+) -> tuple[np.ndarray | None, np.ndarray | None]:
+    """∂I_G/∂ln a and ∂I_G/∂ΔV of the stage's input junction (a JFET's gate junction,
+    :meth:`picker.circuit.stages.base.Stage.gate_current`) at the steady state, by
+    central differences; (None, None) where the stage has none. Its current leaves the
+    input node and enters the common node in (E2), as the bias shift has it."""
+    at_u = [stage.gate_current(params, ss, a * math.exp(d)) for d in (h_u, -h_u)]
+    if at_u[0] is None or at_u[1] is None:
+        return None, None
+    junction = stage.gate_current(params, ss, a)
+    assert junction is not None
+    g_u = (at_u[0](dv) - at_u[1](dv)) / (2 * h_u)
+    g_v = (junction(dv + h_v) - junction(dv - h_v)) / (2 * h_v)
+    return g_u, g_v
 
 
 def startup_time(

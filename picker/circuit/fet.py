@@ -35,6 +35,9 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, replace
 
+import numpy as np
+from scipy.special import i0e
+
 __all__ = [
     "FET_CLASSES",
     "FetBias",
@@ -42,8 +45,15 @@ __all__ = [
     "GENERIC_NJFET",
     "GENERIC_NMOS",
     "fet_class",
+    "gate_junction_mean",
     "square_law_bias",
 ]
+
+#: The JFET card's gate junction saturation current IS, A (written into its ``.model``
+#: line; SPICE's emission coefficient N = 1).
+JFET_IS = 1e-14
+#: Thermal voltage kT/q at 27 °C, V (SPICE's nominal temperature).
+VT_NOMINAL = 1.380649e-23 * 300.15 / 1.602176634e-19
 
 #: Device kinds of a card: SPICE's n-channel JFET and n-channel MOSFET.
 FET_KINDS = ("njf", "nmos")
@@ -86,7 +96,7 @@ class FetCard:
         if self.kind == "njf":
             return (
                 f".model {self.name} NJF (VTO={g} BETA={self.k:.6g} LAMBDA={self.lam:.6g} "
-                "CGS=0 CGD=0 IS=1e-14)"
+                f"CGS=0 CGD=0 IS={JFET_IS:g})"
             )
         return (
             f".model {self.name} NMOS (LEVEL=1 VTO={g} KP={2 * self.k:.6g} "
@@ -199,3 +209,21 @@ def square_law_bias(card: FetCard, *, v_g: float, r_s: float, v_dd: float, r_d: 
             break
         f = max(f_new, 1e-3)
     return FetBias(i_d=i_d, u=u, vg=v_g, vs=i_d * r_s, vd=v_dd - i_d * r_d)
+
+
+def gate_junction_mean(v_gs: np.ndarray, a: np.ndarray, i_s: float = JFET_IS) -> np.ndarray:
+    """Mean forward current of a JFET's gate-source junction driven by v_gs + a·cos θ, A.
+
+    The junction is SPICE's gate diode, I_G = IS·(exp(v/V_T) − 1) (Massobrio &
+    Antognetti, *Semiconductor Device Modeling with SPICE*, 2nd ed., JFET gate
+    junctions; N = 1), and the mean of exp(x·cos θ) over a period is I0(x) (Abramowitz
+    & Stegun 9.6.19), so the mean is IS·(exp(v_gs/V_T)·I0(a/V_T) − 1): the rectified
+    gate current of grid-leak (gate-leak) bias (Clarke & Hess, *Communication
+    Circuits: Analysis and Design*, 1971, the exponential junction driven by a cosine,
+    mean current I_S·e^{V/V_T}·I0(x); attribution from memory). I0 is taken as
+    e^x·i0e(x) in the exponent, which is clipped at 200 (far beyond any bias the
+    bisection keeps) so that no value overflows.
+    """
+    x = np.abs(np.asarray(a, dtype=float)) / VT_NOMINAL
+    expo = np.asarray(v_gs, dtype=float) / VT_NOMINAL + x + np.log(i0e(x))
+    return i_s * (np.exp(np.minimum(expo, 200.0)) - 1.0)

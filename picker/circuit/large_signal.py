@@ -14,6 +14,9 @@ Analysis and Design*, 1971):
    The mean emitter current is held by R_E and the base by its divider, so the DC
    control voltage falls by ΔV = −r_dc·(I − I_rest) (:class:`BiasLoop`); solved for I
    and ΔV at each drive a (the self-biasing of class-C oscillators; Clarke & Hess).
+   A JFET's gate junction adds its rectified current, returned through the gate and
+   source resistors (grid-leak bias: the stage's ``mean_current``,
+   :meth:`picker.circuit.stages.common_source.CommonSource.gate_leak`).
 3. The device seen by the fundamental is compressed: gm, g_pi and the diffusion
    capacitance by c = h1/(a·gm_rest), r_o by the mean current
    (:meth:`picker.circuit.stages.base.Stage.compressed`).

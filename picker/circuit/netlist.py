@@ -121,18 +121,17 @@ def bias_time_constant(
 ) -> float:
     """The slowest bias time constant read off the schematic, s (0.0 without a bias network).
 
-    The largest of R_E·C_E, the base divider's Thevenin resistance with the tank's
-    capacitance to ground (``Topology.end_capacitance``: C1 + C2 of a Colpitts), and C_B
+    The largest of R_E·C_E, the base divider's Thevenin resistance (or a lone gate or
+    base resistor's) with the tank's capacitance to ground (``Topology.end_capacitance``: C1 + C2 of a Colpitts), and C_B
     with the collector resistor: the RC products
     of the nodes that hold the stage's DC voltages (common practice, no source).
     """
     taus = [0.0]
     if params.r_e is not None and params.c_e is not None:
         taus.append(params.r_e * params.c_e)
-    if params.r_b1 is not None:
-        r_th = params.r_b1
-        if params.r_b2 is not None:
-            r_th = params.r_b1 * params.r_b2 / (params.r_b1 + params.r_b2)
+    r_bias = [r for r in (params.r_b1, params.r_b2) if r is not None]
+    if r_bias:  # the divider, or a lone gate (base) resistor: a JFET's self-bias
+        r_th = 1.0 / sum(1.0 / r for r in r_bias)
         taus.append(r_th * float(topology.end_capacitance(values)))
     if params.c_block is not None and params.r_c is not None:
         taus.append(params.c_block * params.r_c)
@@ -156,7 +155,7 @@ def transient_plan(
       the loaded Q is lower, so the envelope is at least this fast for a loop gain
       margin of 2 and slower only for a margin close to 1);
     * the slowest bias time constant τ: R_E·C_E, the base divider's Thevenin
-      resistance with the tank's capacitance to ground (C1 + C2 of a Colpitts), and C_B with the
+      resistance (or a lone gate resistor's: a JFET's self-bias) with the tank's capacitance to ground (C1 + C2 of a Colpitts), and C_B with the
       collector resistor. A bursting oscillator comes and goes about once per few τ.
 
     cycles = 400 + 20·Q/π + 10·τ/T, at most ``max_cycles`` (the run then adds the

@@ -366,6 +366,15 @@ class Stage:
         ``device_currents(params, ss, dv, a).mean`` bit for bit."""
         return lambda dv: self.device_currents(params, ss, dv, a).mean
 
+    def gate_current(
+        self, params: AmplifierParams, ss: SmallSignal, a: np.ndarray
+    ) -> Callable[[np.ndarray], np.ndarray] | None:
+        """ΔV ↦ the mean current of a junction from the input to the common node (a
+        JFET's gate junction) at drive ``a``, A; ``None`` (the default) where the input
+        draws no such current or the stage counts it in :meth:`mean_current` (a bjt's
+        base current)."""
+        return None
+
     def output_current(self, params: AmplifierParams, ss: SmallSignal, v: np.ndarray) -> np.ndarray:
         """The device's output current at control voltage V_rest + ``v`` (V, any shape), A:
         the law :meth:`device_currents` takes the harmonics of, for the harmonic correction

@@ -90,6 +90,11 @@ class CommonGate(CommonSource, CommonBase):
         """The p-channel stage at −9 V: the mirror image of the typical one."""
         return {"p-type": replace(self.typical_params(), p_type=True)}
 
+    def gate_dc_resistance(self, params: AmplifierParams) -> float:
+        """0 with the gate tied to ground, else the gate network's (as the common-source
+        stage's): the gate junction's rectified current then moves only the source."""
+        return 0.0 if self.gate_grounded(params) else super().gate_dc_resistance(params)
+
     def cautions(self, topology: Topology, params: AmplifierParams) -> list[str]:
         """The inductor feeding the drain past its load (a Colpitts without C_B); a gate
         network with no bypass; a bias in the triode region."""

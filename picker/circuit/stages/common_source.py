@@ -21,6 +21,11 @@ resistor to ground (``r_b2`` alone: the JFET's source self-bias), the source thr
 (:func:`picker.circuit.fet.square_law_bias`); gm = 2·I_D/u and g_ds = λ·k·u² at that
 point (equation (F3) there), C_gs and C_gd from the card unless given; the netlist
 writes the card itself.
+
+Large signal: the square law with cut-off (:meth:`CommonSource.device_currents`); a
+JFET's gate junction conducts once the swing passes |V_GS| and its rectified current,
+returned through the gate and source resistors, shifts the bias (grid-leak bias:
+:meth:`CommonSource.gate_leak`), which clamps a self-biased JFET's swing.
 """
 
 from __future__ import annotations
@@ -33,7 +38,7 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import BiasPoint, SmallSignal
-from picker.circuit.fet import FetBias, FetCard, square_law_bias
+from picker.circuit.fet import FetBias, FetCard, gate_junction_mean, square_law_bias
 from picker.circuit.stages.base import (
     KICK_FRACTION,
     BiasLoop,
@@ -180,8 +185,10 @@ class CommonSource(CommonEmitter):
         return 2.0 * ss.i_dc / ss.gm
 
     def bias_loop(self, params: AmplifierParams, ss: SmallSignal) -> BiasLoop | None:
-        """The gate sits at the divider's voltage (no gate current), so only the source
-        resistor R_S acts on the mean current: r_dc = R_S, β = inf; the knee is the
+        """The gate sits at the divider's voltage (no drain current reaches it), so only
+        the source resistor R_S acts on the mean drain current: r_dc = R_S, β = inf;
+        r_th the gate's DC resistance for a JFET (its gate junction's current returns
+        through it), inf for a MOSFET; the knee is the
         triode edge V_DS = V_GS − V_th (Sedra & Smith, MOSFET chapter). ``None`` where
         the drain current is unknown."""
         v_ov = self.overdrive(params, ss)
@@ -189,11 +196,15 @@ class CommonSource(CommonEmitter):
             return None
         r_s = params.r_e or 0.0
         r_d = self.collector_dc(params) if (params.r_c or params.l_choke) else 0.0
+        # a JFET's gate junction injects current at the gate, which returns through the
+        # gate's DC resistance (:meth:`gate_leak`); a MOSFET's gate draws none
+        junction = self.gate_current(params, ss, np.zeros(1)) is not None
         return BiasLoop(
             i_rest=ss.i_dc,
             gm_rest=2.0 * ss.i_dc / v_ov,
             r_dc=r_s,
-            r_th=math.inf,
+            # (a gate tied to ground: a milliohm, so the slow network's node stays finite)
+            r_th=max(self.gate_dc_resistance(params), 1e-3) if junction else math.inf,
             r_e=r_s,
             c_e=params.c_e or 0.0,
             beta=math.inf,
@@ -229,13 +240,66 @@ class CommonSource(CommonEmitter):
         self, params: AmplifierParams, ss: SmallSignal, a: np.ndarray
     ) -> Callable[[np.ndarray], np.ndarray]:
         """The mean of :meth:`device_currents` alone (three of its six S terms), by the
-        same operations in the same order, so equal to it bit for bit."""
+        same operations in the same order, so equal to it bit for bit; for a JFET card
+        with a source resistor, plus its gate junction's share (:meth:`gate_leak`)."""
 
         def mean(dv: np.ndarray) -> np.ndarray:
             k, _, _, p0, va, q, sn = self._conduction(params, ss, dv, a, 3)
             return k / np.pi * (p0 * sn[0] + 2.0 * va * sn[1] + 2.0 * q * sn[2])
 
-        return mean
+        leak = self.gate_leak(params, ss, a)
+        if leak is None:
+            return mean
+        return lambda dv: mean(dv) + leak(dv)
+
+    def gate_dc_resistance(self, params: AmplifierParams) -> float:
+        """The DC resistance from the gate to ground, ohm: the divider's R_B1·R_B2/(R_B1 +
+        R_B2), R_B1 or the gate resistor R_G (``r_b2``) alone, 1 TΩ (a floating gate)
+        without either. A bleed resistor reaching the gate through the inductor is left
+        out (the clamp level moves only with ln R, :meth:`gate_leak`)."""
+        r1, r2 = params.r_b1, params.r_b2
+        if r1 is not None and r2 is not None:
+            return r1 * r2 / (r1 + r2)
+        return r1 if r1 is not None else (r2 if r2 is not None else 1e12)
+
+    def gate_current(
+        self, params: AmplifierParams, ss: SmallSignal, a: np.ndarray
+    ) -> Callable[[np.ndarray], np.ndarray] | None:
+        """ΔV ↦ the JFET gate junction's mean forward current I_G at drive ``a``
+        (:func:`picker.circuit.fet.gate_junction_mean` at V_GS = V_GS,rest + ΔV), A;
+        ``None`` without a JFET card or without its solved bias."""
+        card = params.fet
+        if card is None or card.kind != "njf" or self.fet_bias(params) is None:
+            return None
+        v_rest = card.vto + self.overdrive(params, ss)
+        return lambda dv: gate_junction_mean(v_rest + dv, a)
+
+    def gate_leak(
+        self, params: AmplifierParams, ss: SmallSignal, a: np.ndarray
+    ) -> Callable[[np.ndarray], np.ndarray] | None:
+        """ΔV ↦ I_G·(1 + R_G/R_S): the JFET gate junction's share of the bias shift's
+        mean current at drive ``a`` (``None`` without a JFET card, or without a source
+        resistor, where the bias shift holds ΔV = 0).
+
+        The junction's mean forward current I_G (:meth:`gate_current`) flows from the
+        gate through the source resistor: it lowers the gate through the gate's DC
+        resistance R_G (:meth:`gate_dc_resistance`) by R_G·I_G and raises the source by
+        R_S·I_G, so the bias shift ΔV = −R_S·(I_D − I_rest) − (R_S + R_G)·I_G
+        (:func:`picker.circuit.large_signal.bias_shift` with r_dc = R_S) takes
+        I_D + I_G·(1 + R_G/R_S) as its mean current. This is grid-leak (gate-leak) bias:
+        at large drive the gate's DC level settles where the junction conducts only
+        near the positive peak, V_GS,dc + a ≈ V_T·ln(|V_G|/(R_G·IS)), a few tenths of a
+        volt (Clarke & Hess, *Communication Circuits: Analysis and Design*, 1971,
+        self-bias of a driven junction; the grid-leak bias of valve oscillators;
+        attribution from memory). The junction's fundamental current, which loads the
+        gate (about R_G/2 for a grid leak), is left out.
+        """
+        r_s = params.r_e or 0.0
+        junction = self.gate_current(params, ss, a)
+        if junction is None or r_s <= 0.0:
+            return None
+        scale = 1.0 + self.gate_dc_resistance(params) / r_s
+        return lambda dv: scale * junction(dv)
 
     def _conduction(
         self, params: AmplifierParams, ss: SmallSignal, dv: np.ndarray, a: np.ndarray, terms: int
