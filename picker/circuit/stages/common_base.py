@@ -57,6 +57,7 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import SmallSignal
+from picker.circuit.loads import output_admittance
 from picker.circuit.stages.base import KICK_FRACTION, StageNetlist, Stamp, need, spice_number
 from picker.circuit.stages.common_collector import rename_nodes
 from picker.circuit.stages.common_emitter import SHORT, CommonEmitter, solve_loop
@@ -118,12 +119,8 @@ class CommonBase(CommonEmitter):
 
     def _branches(self, s: np.ndarray, params: AmplifierParams, ss: SmallSignal) -> dict[str, Any]:
         """The stage's branch admittances at ``s`` by name."""
-        if params.l_choke is not None:
-            y_load = 1.0 / (params.r_choke + s * params.l_choke)
-        else:
-            y_load = 1.0 / need(params.r_c, "a collector load: r_c or l_choke") + 0.0 * s
         return {
-            "load": y_load,
+            "load": output_admittance(params, s),  # the collector load and the next stage
             "re": (0.0 if params.r_e is None else 1.0 / params.r_e) + 0.0 * s,
             "pi": 1.0 / ss.r_pi + s * ss.c_pi,
             "mu": s * ss.c_mu,
