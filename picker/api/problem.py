@@ -561,6 +561,7 @@ def simulation_of(spec: Spec, problem: Problem) -> Simulation:
         temperature_grid_of(spec, parts),
         board_model_of(spec, problem),
         stray_tol=spec.parasitics.stray_tolerance,
+        coupling_tol=spec.tank.coupling_tolerance,
     )
 
 

@@ -399,12 +399,25 @@ class TankSpec(_Strict):
     inductors (a Hartley tank's L1 and L2; 0 = separate coils, the default)."""
 
     coupling: float = 0.0
+    #: Half-width of the board-to-board spread of k (absolute, uniform in k ± it, in the
+    #: Monte Carlo; 0 = every board has the same k).
+    coupling_tolerance: float = 0.0
 
     @field_validator("coupling", mode="before")
     @classmethod
     def _coupling(cls, v: Any) -> float:
         if isinstance(v, bool) or not isinstance(v, int | float) or not (0 <= v <= MAX_COUPLING):
             raise ValueError(f"expected a coupling coefficient from 0 to {MAX_COUPLING}; got {v!r}")
+        return float(v)
+
+    @field_validator("coupling_tolerance", mode="before")
+    @classmethod
+    def _coupling_tolerance(cls, v: Any) -> float:
+        if isinstance(v, bool) or not isinstance(v, int | float) or not (0 <= v <= MAX_COUPLING):
+            raise ValueError(
+                f"expected a spread of k (plus or minus, absolute) from 0 to {MAX_COUPLING} "
+                f"such as 0.02; got {v!r}"
+            )
         return float(v)
 
 
@@ -613,6 +626,17 @@ class Spec(_Strict):
             raise KeyedError(
                 "tank.coupling", f"a {self.topology} tank has one inductor; remove the coupling"
             )
+        if self.tank.coupling_tolerance and not topo.coupled:
+            raise KeyedError(
+                "tank.coupling_tolerance",
+                f"a {self.topology} tank has one inductor; remove the coupling_tolerance",
+            )
+        k, t = self.tank.coupling, self.tank.coupling_tolerance
+        if t and not (k - t >= 0 and k + t <= MAX_COUPLING):
+            raise KeyedError(
+                "tank.coupling_tolerance",
+                f"expected k ± tolerance within 0 to {MAX_COUPLING}; got {k:g} ± {t:g}",
+            )
         if self.amplifier is not None and topo.needs_grounded_common:
             # the stage registry (its modules import scipy.special): only with an [amplifier]
             from picker.circuit.stages import STAGES
@@ -641,6 +665,12 @@ class Spec(_Strict):
                 "parasitics.stray_tolerance",
                 "a spread of the stray is simulated with the ideal tank only; the loaded "
                 "model ([amplifier]) takes one stray: remove stray_tolerance or [amplifier]",
+            )
+        if self.amplifier is not None and self.tank.coupling_tolerance > 0:
+            raise KeyedError(
+                "tank.coupling_tolerance",
+                "a spread of k is simulated with the ideal tank only; the loaded model "
+                "([amplifier]) takes one k: remove coupling_tolerance or [amplifier]",
             )
         return self
 
