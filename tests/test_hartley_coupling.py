@@ -130,3 +130,88 @@ def test_default_is_no_spread_and_bad_keys_are_one_line():
     }
     with pytest.raises(SpecError, match="tank.coupling_tolerance.*one inductor"):
         api.spec_from_dict(colpitts)
+
+
+# ---------------------------------------------------------------- the tapped-coil form
+
+TAPPED = {
+    "topology": "hartley",
+    "frequency": {"target": "2.3265 MHz", "window": "±1.2 %"},
+    "feedback": {"min": 0.05, "max": 0.9},
+    "parts": {"C": {"values": ["390 pF"], "tolerance": "1 %"}, "L1": {"q": 80}},
+    "tank": {"coupling": 0.4, "tapped_coil": "12 uH", "tap": 0.25, "coil_tolerance": "3 %"},
+    "yield": {"samples": 20000, "seed": 8},
+}
+
+
+def _sections(total: float, t: float, k: float) -> tuple[float, float]:
+    """Turns-squared sections of one coil (inductance ∝ N², from memory): L1 = a·(1 − t)²,
+    L2 = a·t², M = k·a·t·(1 − t), and L1 + L2 + 2M = the whole coil."""
+    a = total / ((1 - t) ** 2 + t**2 + 2 * k * t * (1 - t))
+    return a * (1 - t) ** 2, a * t**2
+
+
+def test_tapped_coil_expands_into_its_two_sections_moving_together():
+    s = api.spec_from_dict(TAPPED)
+    l1, l2 = _sections(12e-6, 0.25, 0.4)
+    assert s.parts["L1"].values == (pytest.approx(l1, rel=1e-12),)
+    assert s.parts["L2"].values == (pytest.approx(l2, rel=1e-12),)
+    assert s.parts["L1"].tolerance == pytest.approx(0.03) and s.parts["L1"].q == 80
+    assert l1 + l2 + 2 * 0.4 * math.sqrt(l1 * l2) == pytest.approx(12e-6, rel=1e-12)
+    got = api.evaluate(s, {"L1": l1, "L2": l2, "C": 390e-12}).candidates[0]
+    # independent Monte Carlo: the whole coil one part (both sections by one factor), C ±1 %
+    rng = np.random.default_rng(77)
+    n = 400_000
+    g = 1 + rng.uniform(-0.03, 0.03, n)
+    c = 390e-12 * (1 + rng.uniform(-0.01, 0.01, n))
+    f = _f(l1 * g, l2 * g, c, 0.4)
+    ref = float(np.mean((f >= s.frequency.f_min) & (f <= s.frequency.f_max)))
+    # the sections drawn apart would yield visibly more (their spreads partly cancel)
+    g2 = 1 + rng.uniform(-0.03, 0.03, n)
+    f_apart = _f(l1 * g, l2 * g2, c, 0.4)
+    apart = float(np.mean((f_apart >= s.frequency.f_min) & (f_apart <= s.frequency.f_max)))
+    se = math.sqrt(ref * (1 - ref) / got.yield_.samples)
+    assert apart > ref + 10 * se
+    assert abs(got.yield_.estimate - ref) < 4 * se + 0.002
+    # first order: the coil is one input named L1, S = −½ (f ∝ coil^(−1/2)), C's −½
+    share = (0.5 * 0.03) ** 2 / ((0.5 * 0.03) ** 2 + (0.5 * 0.01) ** 2)
+    assert got.extra["drivers"]["L1"] == pytest.approx(share, rel=1e-9)
+    assert got.extra["drivers"]["L2"] == 0.0
+    assert abs(got.extra["drivers_mc"]["shares"]["L1"] - share) < 0.01
+
+
+@pytest.mark.parametrize(
+    ("tank", "parts", "key"),
+    [
+        ({"tapped_coil": "12 uH", "tap": 1.2, "coil_tolerance": "3 %"}, {}, "tank.tap"),
+        ({"tapped_coil": "12 uH", "coil_tolerance": "3 %"}, {}, "tank.tap"),
+        ({"tapped_coil": "12 pF", "tap": 0.3, "coil_tolerance": "3 %"}, {}, "tank.tapped_coil"),
+        ({"tapped_coil": "12 uH", "tap": 0.3}, {}, "tank.coil_tolerance"),
+        ({"tap": 0.3}, {}, "tank.tap"),
+        (
+            {"tapped_coil": "12 uH", "tap": 0.3, "coil_tolerance": "3 %"},
+            {"L2": {"values": ["1 uH"]}},
+            "parts.L2",
+        ),
+    ],
+)
+def test_tapped_coil_refusals_are_one_line_naming_the_key(tank, parts, key):
+    d = copy.deepcopy(TAPPED)
+    d["tank"] = {"coupling": 0.4, **tank}
+    d["parts"] = {"C": TAPPED["parts"]["C"], **parts}
+    if "tapped_coil" not in tank:  # the sections given as parts, as usual
+        d["parts"].update({"L1": {"values": ["9 uH"]}, "L2": {"values": ["1 uH"]}})
+    with pytest.raises(SpecError) as info:
+        api.spec_from_dict(d)
+    assert key in str(info.value) and "\n" not in str(info.value)
+
+
+def test_tapped_coil_on_a_tank_with_one_inductor_is_refused():
+    d = {
+        **TAPPED,
+        "topology": "colpitts",
+        "parts": {"C1": TAPPED["parts"]["C"], "C2": TAPPED["parts"]["C"]},
+        "tank": {"tapped_coil": "12 uH", "tap": 0.3, "coil_tolerance": "3 %"},
+    }
+    with pytest.raises(SpecError, match="tank.tapped_coil.*one inductor"):
+        api.spec_from_dict(d)

@@ -25,7 +25,7 @@ confidence interval from ``scipy.stats.binomtest(...).proportion_ci``
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -92,6 +92,9 @@ class Simulation:
     #: Half-width of the board-to-board spread of a coupled tank's k: each board's k is
     #: uniform in k ± coupling_tol (0: the tank's one k for every board).
     coupling_tol: float = 0.0
+    #: Positions that are one part with another (position -> the one whose tolerance
+    #: variate it takes): the two sections of a tapped coil move together.
+    shared: Mapping[str, str] = field(default_factory=dict)
 
     @classmethod
     def simple(cls, problem: Problem, distribution: str = "uniform") -> Simulation:
@@ -240,7 +243,8 @@ def sampled_values(
         i = designs.idx[p]
         var = sim.parts[p]
         if t.second is None:
-            out[p] = t.values[i][None, :] * (1.0 + _deviation(var, u[:, cols[p]], t.tol[i]))
+            col = u[:, cols[sim.shared.get(p, p)]]  # a section of a tapped coil: its coil's
+            out[p] = t.values[i][None, :] * (1.0 + _deviation(var, col, t.tol[i]))
         else:
             b = t.second[i]
             a = t.values[i] - b

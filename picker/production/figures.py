@@ -92,6 +92,8 @@ def first_order(sim: Simulation, designs: Designs, with_temperature: bool) -> di
         s_stray, sig_stray = _stray_terms(sim, designs)
         sens = {**sens, STRAY: s_stray}
         sigmas = {**sigmas, STRAY: sig_stray}
+    for p, q in sim.shared.items():  # a tapped coil's sections: one input, named by q
+        sens = {**sens, q: np.asarray(sens[q]) + sens[p], p: 0.0 * np.asarray(sens[p])}
     if sim.coupling_tol > 0:  # k as one more input: ∂ln f/∂k and σ_k = t/√3 (GUM 4.3.7)
         problem = sim.problem
         bv = board_values(problem.topology, designs.values(problem), problem.parasitics)
@@ -142,6 +144,8 @@ def monte_carlo_drivers(
     inputs = {p: np.log(vals[p][:, 0] / nominal[p][0]) for p in topo.positions}
     if STRAY in vals:  # ln f is linear in the stray itself (C_t = C_s + stray), not in its log
         inputs[STRAY] = vals[STRAY][:, 0] / problem.parasitics.stray - 1.0
+    for p in sim.shared:  # moves with its coil: one input (the regression's share is q's)
+        inputs[p] = np.zeros_like(inputs[p])
     if COUPLING in vals:  # ln f against k itself (k may be 0: no log)
         inputs[COUPLING] = vals[COUPLING][:, 0] - topo.coupling
     ln_f = np.log(board_frequencies(sim, d1, vals)[:, 0])

@@ -40,6 +40,7 @@ from picker.spec.fields import (
 from picker.spec.production import check_part as check_production_keys
 from picker.spec.production import check_spec
 from picker.spec.production import parse_part_keys as parse_production_keys
+from picker.spec.tank import TankSpec, expand_tapped_coil
 from picker.tank import TOPOLOGIES, Topology, get_topology, topology_names
 from picker.tank.base import MAX_COUPLING
 
@@ -394,33 +395,6 @@ class ParasiticsSpec(_Strict):
         return float(v)
 
 
-class TankSpec(_Strict):
-    """Facts of the tank that are not part values: the coupling k of two coupled
-    inductors (a Hartley tank's L1 and L2; 0 = separate coils, the default)."""
-
-    coupling: float = 0.0
-    #: Half-width of the board-to-board spread of k (absolute, uniform in k ± it, in the
-    #: Monte Carlo; 0 = every board has the same k).
-    coupling_tolerance: float = 0.0
-
-    @field_validator("coupling", mode="before")
-    @classmethod
-    def _coupling(cls, v: Any) -> float:
-        if isinstance(v, bool) or not isinstance(v, int | float) or not (0 <= v <= MAX_COUPLING):
-            raise ValueError(f"expected a coupling coefficient from 0 to {MAX_COUPLING}; got {v!r}")
-        return float(v)
-
-    @field_validator("coupling_tolerance", mode="before")
-    @classmethod
-    def _coupling_tolerance(cls, v: Any) -> float:
-        if isinstance(v, bool) or not isinstance(v, int | float) or not (0 <= v <= MAX_COUPLING):
-            raise ValueError(
-                f"expected a spread of k (plus or minus, absolute) from 0 to {MAX_COUPLING} "
-                f"such as 0.02; got {v!r}"
-            )
-        return float(v)
-
-
 class YieldSpec(_Strict):
     """Monte Carlo settings."""
 
@@ -566,6 +540,13 @@ class Spec(_Strict):
         topo = d.get("topology")
         if isinstance(topo, str):
             d["topology"] = topo.strip().lower()
+        name = d.get("topology")
+        if isinstance(name, str) and name in TOPOLOGIES:
+            t = get_topology(name)
+            if t.coupled:  # the tapped-coil form: [tank] tapped_coil, tap, coil_tolerance
+                d = expand_tapped_coil(d, t.feedback_pair)
+            elif isinstance(d.get("tank"), dict) and "tapped_coil" in d["tank"]:
+                raise KeyedError("tank.tapped_coil", f"a {name} tank has one inductor")
         parts = d.get("parts")
         if (
             isinstance(parts, dict)
