@@ -36,6 +36,7 @@ from picker.circuit.stages import STAGES
 from picker.circuit.steady import steady_state
 from picker.errors import SolverError, SpecError
 from picker.spec.amplifier import AmplifierSpec
+from picker.tank.clapp import CLAPP
 from picker.tank.colpitts import COLPITTS
 
 TWO_PI = 2 * math.pi
@@ -184,41 +185,66 @@ def test_series_load_bias_drop_matches_ngspice_operating_point():
     assert _v_c_op(text) == pytest.approx(b.vc, rel=0.01)  # issue 12's 1 % bias target
 
 
-# (stage, params change, what ngspice shows): designs of about 1.3 MHz whose next stage or
-# series load moves the margin; the model's start-up decision, steadiness, frequency and
-# amplitude against ngspice's transient of the same netlist
+# (stage, tank, params change, what ngspice shows, amplitude tolerance): designs of about
+# 1.3-2.6 MHz whose next stage or series load moves the margin; the model's start-up
+# decision, steadiness, frequency and amplitude against ngspice's transient of the same
+# netlist. The amplitude is compared for the common-emitter and emitter-follower designs
+# only: the common-base and common-gate model gives the swing across C1 where the netlist
+# probes the tank top to ground, and the fet stages' amplitude is the large-signal
+# model's own accuracy (10-15 % here), not the load's (tests/test_stage_validation.py).
+CB, CG = STAGES["common-base"], STAGES["common-gate"]
+CC, CD = STAGES["common-collector"], STAGES["common-drain"]
 DESIGNS = [
-    pytest.param(CE, {"r_next": 4.7e3, "c_next": 47e-12}, "steady", id="ce-next-stage"),
+    pytest.param(CE, COLPITTS, {"r_next": 4.7e3, "c_next": 47e-12}, "steady", 0.05, id="ce"),
     # near the edge: margin 1.15 (starts) and 0.86 (does not) by the model
-    pytest.param(CE, {"r_next": 390.0}, "steady", id="ce-next-stage-near-edge"),
-    pytest.param(CE, {"r_next": 270.0}, "none", id="ce-next-stage-kills"),
+    pytest.param(CE, COLPITTS, {"r_next": 390.0}, "steady", 0.05, id="ce-near-edge"),
+    pytest.param(CE, COLPITTS, {"r_next": 270.0}, "none", None, id="ce-kills"),
     pytest.param(
-        CE, {"r_c": 1000.0, "l_choke": 47e-6, "r_choke": 4.0}, "steady", id="ce-series-choke"
+        CE, COLPITTS, {"r_c": 1e3, "l_choke": 47e-6, "r_choke": 4.0}, "steady", 0.05, id="ce-series"
     ),
     pytest.param(
-        CE, {"r_c": 1000.0, "l_choke": 220e-6, "r_choke": 4.0}, "bursting", id="ce-series-bursts"
+        CE,
+        COLPITTS,
+        {"r_c": 1e3, "l_choke": 220e-6, "r_choke": 4.0},
+        "bursting",
+        None,
+        id="ce-bursts",
     ),
+    pytest.param(CE, CLAPP, {"r_next": 2.2e3, "c_next": 22e-12}, "steady", 0.05, id="ce-clapp"),
+    pytest.param(CC, COLPITTS, {"r_next": 2.2e3, "c_next": 22e-12}, "steady", 0.05, id="cc"),
+    pytest.param(CB, COLPITTS, {"r_next": 4.7e3, "c_next": 10e-12}, "steady", None, id="cb"),
     pytest.param(
-        STAGES["common-collector"], {"r_next": 2.2e3, "c_next": 22e-12}, "steady", id="cc-next"
+        CB,
+        COLPITTS,
+        {"r_c": 680.0, "l_choke": 47e-6, "r_choke": 3.0},
+        "steady",
+        None,
+        id="cb-series",
     ),
+    pytest.param(CS, COLPITTS, {"r_next": 1.5e3}, "steady", None, id="cs"),
+    pytest.param(CG, COLPITTS, {"r_next": 3.3e3}, "steady", None, id="cg"),
+    pytest.param(CD, COLPITTS, {"r_next": 2.2e3}, "steady", None, id="cd"),
 ]
 
 
 @pytest.mark.ngspice
-@pytest.mark.parametrize(("stage", "change", "state"), DESIGNS)
-def test_loads_in_ngspice_start_as_the_model_says_at_its_frequency(stage, change, state):
+@pytest.mark.parametrize(("stage", "tank", "change", "state", "amp_tol"), DESIGNS)
+def test_loads_in_ngspice_start_as_the_model_says_at_its_frequency(
+    stage, tank, change, state, amp_tol
+):
     _ngspice()
-    values = dict(COLPITTS.typical)
+    values = dict(tank.typical)
     params: AmplifierParams = replace(stage.typical_params(), **change)
-    model = loaded_response(COLPITTS, values, 3e-12, params)
-    steady = steady_state(COLPITTS, values, 3e-12, params)
+    model = loaded_response(tank, values, 3e-12, params)
+    steady = steady_state(tank, values, 3e-12, params)
     assert (float(model.margin) > 1.0) == (state != "none") == bool(steady.starts)
     assert bool(steady.bursting) == (state == "bursting")
-    sim = simulate(write_netlist(COLPITTS, values, 3e-12, params, title=stage.name))
+    sim = simulate(write_netlist(tank, values, 3e-12, params, title=stage.name))
     assert sim.warnings == ()
     assert sim.waveform.state == state
     if state != "none":  # start-up frequency within 2 %, as tests/test_ngspice.py
         assert abs(sim.frequency_hz / float(model.f_hz) - 1) < 0.02
-    if state == "steady":  # measured: 0.003 % and 1 % on these designs
+    if state == "steady":  # measured: at most 0.04 % on these designs
         assert abs(sim.frequency_hz / float(steady.f_hz) - 1) < 0.002
-        assert abs(sim.waveform.amplitude_v / float(steady.amplitude_v) - 1) < 0.05
+    if amp_tol is not None:  # measured: at most 1 %
+        assert abs(sim.waveform.amplitude_v / float(steady.amplitude_v) - 1) < amp_tol
