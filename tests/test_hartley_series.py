@@ -147,7 +147,8 @@ BASE = {
 
 
 def test_spec_and_solve_put_every_design_in_the_window_with_the_chain():
-    spec = spec_from_dict(BASE)
+    data = {**BASE, "yield": {**BASE["yield"], "temperature": ["-10 °C", "50 °C"]}}
+    spec = spec_from_dict(data)
     assert spec.topo is SERIES_HARTLEY.configured(0.3)
     assert get_topology("Hartley-Series") is SERIES_HARTLEY
     res = solve(spec, top=5)
@@ -160,5 +161,6 @@ def test_spec_and_solve_put_every_design_in_the_window_with_the_chain():
         f = 1 / (TWO_PI * math.sqrt((v["L1"] + v["L2"] + 2 * m) * cs))
         assert abs(f / 3.5e6 - 1) <= 0.01
         assert 0.1 <= (v["L2"] + m) / (v["L1"] + m) <= 0.6
+        assert 0.0 < cand.yield_estimate <= 1.0 and "yield_over_temperature" in cand.extra
     with pytest.raises(SpecError, match="parts"):
         spec_from_dict({**BASE, "parts": {p: BASE["parts"][p] for p in ("L1", "L2", "C")}})
