@@ -54,7 +54,7 @@ def test_to_params_takes_inductor_and_capacitor_loss_from_parts():
     ("change", "key", "words"),
     [
         ({"r_load": "10 nF"}, "amplifier.r_load", "resistance"),
-        ({"choke": "100 uH"}, "amplifier", "exactly one collector load"),
+        ({"next_stage_c": "10 pF"}, "amplifier", "next_stage_c needs next_stage_r"),
         ({"min_margin": 0.5}, "amplifier.min_margin", "between 1 and 100"),
         ({"max_margin": 2.0}, "amplifier.max_margin", "above min_margin (2)"),
         ({"max_margin": True}, "amplifier.max_margin", "such as 20"),

@@ -114,6 +114,8 @@ def _matrices(elements: list[tuple[str, str, str, float]]) -> tuple[list[str], A
         elif kind == "K":
             i, j = j_of[a], j_of[b]
             lm[i, j] = lm[j, i] = v * np.sqrt(lm[i, i] * lm[j, j])
+        elif kind == "R":  # a DC hold (the series Hartley's): open at the carrier
+            assert v >= 1e8, f"a lossless tank has no {name} but a DC hold"
         else:
             assert kind == "C", f"a lossless tank has no {name}"
             for x, y, sign in ((a, a, 1), (b, b, 1), (a, b, -1), (b, a, -1)):
@@ -135,6 +137,13 @@ def frequency_by_eigenvalues(topo: Topology, values: dict, par: Parasitics) -> f
     (``Topology.netlist_lines``, lossless, with the stray where the netlist puts
     it), read back line by line; each shunt is a capacitor in parallel with its
     feedback-pair capacitor, every inductance is times ``l_scale``.
+
+    The pencil is first equilibrated, (D·J·D, D·B·D) with D = diag(B)^(−1/2), which leaves
+    its eigenvalues unchanged (a congruence of both matrices): a chain with a floating
+    inner node beside the 100 nF tap bypass (the series-capacitor Hartley) otherwise
+    gives the tank's eigenvalue only to ~5e-9. Its infinite eigenvalues (nodes with no
+    capacitance of their own to ground) then come out as ~4e12 rad/s or more; the tanks
+    drawn here ring below 1e9 rad/s, so those above 1e11 are dropped.
     """
     nodes, cn, inc, lm = _matrices(_elements(topo, values, par))
     n, m = len(nodes), lm.shape[0]
@@ -144,8 +153,10 @@ def frequency_by_eigenvalues(topo: Topology, values: dict, par: Parasitics) -> f
     b = np.zeros((n + m, n + m))
     b[:n, :n] = cn
     b[n:, n:] = lm
-    lam = eigvals(j, b)
-    lam = lam[np.isfinite(lam) & (np.abs(lam) < 1e14)]  # ω of any tank here is < 1e11
+    diag = np.diag(b)
+    d = np.where(diag > 0, 1.0 / np.sqrt(np.where(diag > 0, diag, 1.0)), 1.0)
+    lam = eigvals(d[:, None] * j * d[None, :], d[:, None] * b * d[None, :])
+    lam = lam[np.isfinite(lam) & (np.abs(lam) < 1e11)]  # ω of any tank here is < 1e9
     return float(np.max(np.abs(lam.imag)) / (2 * np.pi))
 
 

@@ -67,6 +67,16 @@ def build_candidates(
         at = replace(problem, parasitics=replace(problem.parasitics, stray=edge))
         lo_e, hi_e = corner_span(at, designs)
         lo, hi = np.minimum(lo, lo_e), np.maximum(hi, hi_e)
+    k, dk = problem.topology.coupling, spec.tank.coupling_tolerance
+    for edge in (k - dk, k + dk) if dk > 0 else ():  # k's own two corners, with the stray's
+        for st_e in (st - dst, st + dst) if dst > 0 else (st,):
+            at = replace(
+                problem,
+                topology=problem.topology.configured(edge),
+                parasitics=replace(problem.parasitics, stray=st_e),
+            )
+            lo_e, hi_e = corner_span(at, designs)
+            lo, hi = np.minimum(lo, lo_e), np.maximum(hi, hi_e)
     vals = designs.values(problem)
     sens = board_sensitivities(problem.topology, vals, problem.parasitics)
     target = spec.frequency.target

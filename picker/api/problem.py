@@ -552,6 +552,14 @@ def board_model_of(spec: Spec, problem: Problem) -> LoadedModel | None:
     return LoadedModel(problem, params, amp.monte_carlo, max_margin=amp.max_margin)
 
 
+def _sections(spec: Spec) -> dict[str, str]:
+    """A tapped coil's input-side section takes the output side's variate (one part)."""
+    if spec.tank.tapped_coil is None:
+        return {}
+    out, inp = spec.topo.feedback_pair
+    return {inp: out}
+
+
 def simulation_of(spec: Spec, problem: Problem) -> Simulation:
     """How the spec's boards vary: per-position distributions, drift, board model."""
     parts = part_variations(spec, problem)
@@ -561,6 +569,8 @@ def simulation_of(spec: Spec, problem: Problem) -> Simulation:
         temperature_grid_of(spec, parts),
         board_model_of(spec, problem),
         stray_tol=spec.parasitics.stray_tolerance,
+        coupling_tol=spec.tank.coupling_tolerance,
+        shared=_sections(spec),
     )
 
 

@@ -49,7 +49,8 @@ class AmplifierParams:
     f_t: transition frequency, Hz (gives c_pi = gm/(2π f_T) − c_mu when c_pi is None).
     overdrive_voltage: fet V_GS − V_th, V (gm = 2·I_D/V_ov, square law; Sedra & Smith).
     r_c: collector load resistor to the supply, ohm.
-    l_choke, r_choke: RF choke to the supply (inductance H, winding resistance ohm).
+    l_choke, r_choke: RF choke to the supply (inductance H, winding resistance ohm); with
+        ``r_c`` too, the resistor sits in series with the choke (:mod:`picker.circuit.loads`).
     r_b1, r_b2: base divider, supply-to-base and base-to-ground, ohm (r_b2 None: single R_B).
     r_e, c_e: emitter resistor and its bypass capacitor (c_e None: unbypassed, degeneration).
     c_base: the base's bypass capacitor to ground (the common-base stage), F.
@@ -64,6 +65,9 @@ class AmplifierParams:
         path), ohm.
     device: the NPN card for bias and device values (:data:`picker.circuit.device.GENERIC_NPN`).
     temperature_c: device temperature, °C (SPICE default 27).
+    r_next, c_next, c_next_coupling: the next stage's input across the output (ohm, its
+        parallel capacitance F or None) through the coupling capacitor (F)
+        (:mod:`picker.circuit.loads`); ``r_next`` None: no external load.
     fet: a fet's own SPICE-style parameters (:class:`picker.circuit.fet.FetCard`): the fet
         stages then solve their bias from the gate network and R_S, and take gm, g_ds and
         the gate capacitances from the card; ``None``: the fet is described by ``gm`` or
@@ -116,6 +120,10 @@ class AmplifierParams:
     r_e_unbypassed: float | None = None
     r_stopper: float | None = None
     p_type: bool = False
+    # the external load (the next stage) across the output: picker.circuit.loads
+    r_next: float | None = None
+    c_next: float | None = None
+    c_next_coupling: float = 100e-9
 
     def effective_device(self) -> GenericNPN:
         """The device card with ``current_gain`` and ``early_voltage`` applied."""
@@ -128,9 +136,10 @@ class AmplifierParams:
 
     @property
     def r_collector_dc(self) -> float:
-        """DC resistance from the supply to the collector, ohm."""
+        """DC resistance from the supply to the collector, ohm (a resistor in series with
+        the choke adds to its winding resistance)."""
         if self.l_choke is not None:
-            return self.r_choke
+            return self.r_choke + (self.r_c or 0.0)
         if self.r_c is None:
             raise ValueError("the amplifier needs a collector load: r_c or l_choke")
         return self.r_c

@@ -135,6 +135,9 @@ def bias_time_constant(
         taus.append(r_th * float(topology.end_capacitance(values)))
     if params.c_block is not None and params.r_c is not None:
         taus.append(params.c_block * params.r_c)
+    if params.r_next is not None:  # the next stage's coupling capacitor (picker.circuit.loads)
+        r_dc = (params.r_c or 0.0) + (params.r_choke if params.l_choke is not None else 0.0)
+        taus.append(params.c_next_coupling * (params.r_next + r_dc))
     return max(taus)
 
 
@@ -220,9 +223,9 @@ def verify_plan(
     period = 1.0 / full.f0
     tau = bias_time_constant(topology, vals, params)
     if params.l_choke is not None:
-        if params.r_choke <= 0:  # a lossless choke rings on: no shorter plan
+        if params.r_collector_dc <= 0:  # a lossless choke rings on: no shorter plan
             return full
-        tau = max(tau, 2.0 * params.l_choke / params.r_choke)
+        tau = max(tau, 2.0 * params.l_choke / params.r_collector_dc)
     t_kick = kick_time(full.f0)
     settle = max(SETTLE_TAUS * tau, MIN_SETTLE * period) * max(1.0, m / OVERDRIVE_SETTLE)
     tail = t_kick + 2.0 * t_s + settle

@@ -25,7 +25,7 @@ confidence interval from ``scipy.stats.binomtest(...).proportion_ci``
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -36,7 +36,7 @@ from picker.core.sampling import RandomRows, Rows, row_chunks, wilson_interval
 from picker.core.search import Designs, Problem
 from picker.parts import distributions
 from picker.parts.drift import Material, drift_factor
-from picker.tank.base import TWO_PI
+from picker.tank.base import COUPLING, TWO_PI
 from picker.tank.board import board_frequency, board_values
 
 #: Boards evaluated per block (samples x candidates); bounds memory.
@@ -89,6 +89,12 @@ class Simulation:
     #: Half-width (F) of the board-to-board spread of the stray capacitance: each
     #: board's stray is uniform in stray ± stray_tol (0: one stray for every board).
     stray_tol: float = 0.0
+    #: Half-width of the board-to-board spread of a coupled tank's k: each board's k is
+    #: uniform in k ± coupling_tol (0: the tank's one k for every board).
+    coupling_tol: float = 0.0
+    #: Positions that are one part with another (position -> the one whose tolerance
+    #: variate it takes): the two sections of a tapped coil move together.
+    shared: Mapping[str, str] = field(default_factory=dict)
 
     @classmethod
     def simple(cls, problem: Problem, distribution: str = "uniform") -> Simulation:
@@ -109,6 +115,8 @@ class Simulation:
                 cols[f"{p}@T"] = len(cols)
         if self.stray_tol > 0:  # last, so specs without it draw the same numbers as before
             cols[STRAY] = len(cols)
+        if self.coupling_tol > 0:  # after the stray's, for the same reason
+            cols[COUPLING] = len(cols)
         return cols
 
     @property
@@ -223,7 +231,9 @@ def sampled_values(
 
     A parallel pair's two parts each get their own deviation (column "P#2").
     With ``sim.stray_tol`` the dict also holds each board's stray capacitance
-    under the key :data:`STRAY`, shape (samples, 1).
+    under the key :data:`STRAY`, shape (samples, 1); with ``sim.coupling_tol`` each
+    board's coupling k under :data:`picker.tank.base.COUPLING` (the topology's
+    formulas take it from there), shape (samples, 1).
     ``positions`` limits the result to those positions (default: all).
     """
     cols = sim.columns()
@@ -233,7 +243,8 @@ def sampled_values(
         i = designs.idx[p]
         var = sim.parts[p]
         if t.second is None:
-            out[p] = t.values[i][None, :] * (1.0 + _deviation(var, u[:, cols[p]], t.tol[i]))
+            col = u[:, cols[sim.shared.get(p, p)]]  # a section of a tapped coil: its coil's
+            out[p] = t.values[i][None, :] * (1.0 + _deviation(var, col, t.tol[i]))
         else:
             b = t.second[i]
             a = t.values[i] - b
@@ -243,6 +254,9 @@ def sampled_values(
     if sim.stray_tol > 0:  # uniform in stray ± stray_tol (GUM JCGM 100:2008, 4.3.7)
         st = sim.problem.parasitics.stray + sim.stray_tol * (2.0 * u[:, cols[STRAY]] - 1.0)
         out[STRAY] = st[:, None]
+    if sim.coupling_tol > 0:  # uniform in k ± coupling_tol, as the stray
+        k = sim.problem.topology.coupling + sim.coupling_tol * (2.0 * u[:, cols[COUPLING]] - 1.0)
+        out[COUPLING] = k[:, None]
     return out
 
 

@@ -56,6 +56,7 @@ from picker.production.advice import (
     yield_function,
 )
 from picker.production.drivers import board_frequencies, model_sensitivities, regression_fit
+from picker.tank.base import COUPLING
 from picker.tank.board import board_frequency, board_values
 
 #: Rows of u used for drivers, buy-tighter and plot figures (2^17, a Sobol block).
@@ -91,6 +92,14 @@ def first_order(sim: Simulation, designs: Designs, with_temperature: bool) -> di
         s_stray, sig_stray = _stray_terms(sim, designs)
         sens = {**sens, STRAY: s_stray}
         sigmas = {**sigmas, STRAY: sig_stray}
+    for p, q in sim.shared.items():  # a tapped coil's sections: one input, named by q
+        sens = {**sens, q: np.asarray(sens[q]) + sens[p], p: 0.0 * np.asarray(sens[p])}
+    if sim.coupling_tol > 0:  # k as one more input: ∂ln f/∂k and σ_k = t/√3 (GUM 4.3.7)
+        problem = sim.problem
+        bv = board_values(problem.topology, designs.values(problem), problem.parasitics)
+        s_k = np.broadcast_to(problem.topology.coupling_sensitivity(bv), (len(designs),))
+        sens = {**sens, COUPLING: s_k}
+        sigmas = {**sigmas, COUPLING: np.full(len(designs), sim.coupling_tol / np.sqrt(3.0))}
     return first_order_shares(sens, sigmas, t_std)
 
 
@@ -135,6 +144,10 @@ def monte_carlo_drivers(
     inputs = {p: np.log(vals[p][:, 0] / nominal[p][0]) for p in topo.positions}
     if STRAY in vals:  # ln f is linear in the stray itself (C_t = C_s + stray), not in its log
         inputs[STRAY] = vals[STRAY][:, 0] / problem.parasitics.stray - 1.0
+    for p in sim.shared:  # moves with its coil: one input (the regression's share is q's)
+        inputs[p] = np.zeros_like(inputs[p])
+    if COUPLING in vals:  # ln f against k itself (k may be 0: no log)
+        inputs[COUPLING] = vals[COUPLING][:, 0] - topo.coupling
     ln_f = np.log(board_frequencies(sim, d1, vals)[:, 0])
     t_worst = None
     drift = drift_factors(sim, u)
@@ -204,7 +217,8 @@ def worst_case_over_range(sim: Simulation, designs: Designs) -> tuple[np.ndarray
     drift added: at each temperature of the grid every part is set to
     nominal·(1 ± t)·(1 + d), with d at the low or high edge of its material's
     drift envelope there (:func:`picker.parts.drift.envelope`), in all 2^k
-    combinations, with the stray at stray ± ``sim.stray_tol``; a part without a
+    combinations, with the stray at stray ± ``sim.stray_tol`` and a coupled tank's k at
+    k ± ``sim.coupling_tol`` (f falls as k grows); a part without a
     material does not drift. The board
     frequency is monotone in each part value, so its extremes lie at these
     corners; the grid holds both ends of the range and every material's
@@ -221,6 +235,8 @@ def worst_case_over_range(sim: Simulation, designs: Designs) -> tuple[np.ndarray
     k = len(topo.positions)
     par = problem.parasitics
     strays = {par.stray - sim.stray_tol, par.stray + sim.stray_tol}  # its own two corners
+    kc, dk = topo.coupling, sim.coupling_tol
+    tanks = [topo.configured(e) for e in sorted({kc - dk, kc + dk})] if dk > 0 else [topo]
     for i in range(len(sim.temperatures)):
         for corner in range(2**k):
             v = {}
@@ -229,9 +245,10 @@ def worst_case_over_range(sim: Simulation, designs: Designs) -> tuple[np.ndarray
                 d = float(env[p][int(up)][i]) if p in env else 0.0
                 v[p] = vals[p] * (1.0 + (tols[p] if up else -tols[p])) * (1.0 + d)
             for st in sorted(strays):
-                f = board_frequency(topo, v, replace(par, stray=st))
-                lo = np.minimum(lo, f)
-                hi = np.maximum(hi, f)
+                for tank in tanks:  # k's two corners where it spreads
+                    f = board_frequency(tank, v, replace(par, stray=st))
+                    lo = np.minimum(lo, f)
+                    hi = np.maximum(hi, f)
     return lo, hi
 
 

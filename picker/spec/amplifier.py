@@ -7,6 +7,7 @@ Example (every quantity accepts engineering strings; bare numbers are SI)::
     stage = "common-emitter"     # the configuration (omit: the device type's default stage)
     supply = "9 V"
     r_load = "2.2 kohm"          # collector resistor ... or: choke = "100 uH", choke_resistance = "2 ohm"
+                                 # (both r_load and choke: the resistor in series with the choke)
     r_bias_top = "47 kohm"       # supply to base
     r_bias_bottom = "10 kohm"    # base to ground (omit for a single base resistor)
     r_emitter = "1 kohm"
@@ -43,6 +44,14 @@ Optional device keys: ``bias_current`` (A; bjt default: solved from the bias
 network), ``gm`` (S), ``current_gain``, ``early_voltage`` (V), ``r_out`` (ohm),
 ``c_pi``, ``c_mu`` (F), ``f_t`` (Hz), ``overdrive_voltage`` (V, fet). Without them
 a bjt uses the project's generic small-signal NPN (:mod:`picker.circuit.device`).
+The next stage's input may load the output (the collector or drain; a follower's
+emitter or source), through a coupling capacitor, so it takes no DC
+(:mod:`picker.circuit.loads`)::
+
+    next_stage_r = "4.7 kohm"    # the next stage's input resistance
+    next_stage_c = "10 pF"       # its input capacitance, in parallel (optional)
+    next_stage_coupling = "100 nF"  # the coupling capacitor (default 100 nF)
+
 Inductor loss (``q``, ``q_frequency``, ``esr``) and capacitor ``esr`` live in the
 per-part tables and reach the model through :meth:`AmplifierSpec.to_params`.
 """
@@ -88,6 +97,10 @@ _UNITS = {
     "c_coupling": "F",
     "c_base": "F",
     "idss": "A",
+    # the next stage across the output (picker.circuit.loads)
+    "next_stage_r": "ohm",
+    "next_stage_c": "F",
+    "next_stage_coupling": "F",
 }
 _MAY_BE_ZERO = {"choke_resistance", "c_pi", "c_mu"}
 # the bias-network details (picker.circuit.bias), a block of their own
@@ -133,6 +146,10 @@ class AmplifierSpec(BaseModel):
     r_feedback: float | None = None
     r_emitter_unbypassed: float | None = None
     polarity: Literal["npn", "pnp", "n-channel", "p-channel"] | None = None
+    # the next stage across the output (picker.circuit.loads)
+    next_stage_r: float | None = None
+    next_stage_c: float | None = None
+    next_stage_coupling: float = 100e-9
 
     @model_validator(mode="before")
     @classmethod
@@ -273,8 +290,12 @@ class AmplifierSpec(BaseModel):
                     f"expected no collector load for the {self.stage} stage (its collector "
                     "goes to the supply); got r_load or choke"
                 )
-        elif (self.r_load is None) == (self.choke is None):
-            raise ValueError("expected exactly one collector load: r_load or choke")
+        elif self.r_load is None and self.choke is None:
+            raise ValueError(
+                "expected a collector load: r_load, choke, or both (the resistor in series "
+                "with the choke)"
+            )
+        self._check_next_stage()
         card_keys = [k for k in ("idss", "vto", "kp", "lambda_") if getattr(self, k) is not None]
         if card_keys and self.device is None:
             raise ValueError(
@@ -380,6 +401,15 @@ class AmplifierSpec(BaseModel):
                 raise ValueError(f"bias = {self.bias!r} expects {need}")
         return self
 
+    def _check_next_stage(self) -> None:
+        """The next stage's keys hang together (a ValueError naming the key)."""
+        if self.next_stage_r is None:
+            for key in ("next_stage_c", "next_stage_coupling"):
+                if key in self.model_fields_set:
+                    raise ValueError(
+                        f"{key} needs next_stage_r (the next stage's input resistance)"
+                    )
+
     def to_params(self, parts: Mapping[str, Any] | None = None) -> AmplifierParams:
         """The core-model description, with inductor and capacitor loss from the part tables.
 
@@ -443,6 +473,9 @@ class AmplifierSpec(BaseModel):
             r_e_unbypassed=self.r_emitter_unbypassed,
             p_type=self.polarity in ("pnp", "p-channel"),
             device=GENERIC_PNP if self.polarity == "pnp" else GENERIC_NPN,
+            r_next=self.next_stage_r,
+            c_next=self.next_stage_c,
+            c_next_coupling=self.next_stage_coupling,
         )
         from picker.circuit.stages import small_signal  # the registry: see _default_stage
 

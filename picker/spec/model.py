@@ -40,6 +40,7 @@ from picker.spec.fields import (
 from picker.spec.production import check_part as check_production_keys
 from picker.spec.production import check_spec
 from picker.spec.production import parse_part_keys as parse_production_keys
+from picker.spec.tank import TankSpec, expand_tapped_coil
 from picker.tank import TOPOLOGIES, Topology, get_topology, topology_names
 from picker.tank.base import MAX_COUPLING
 
@@ -394,20 +395,6 @@ class ParasiticsSpec(_Strict):
         return float(v)
 
 
-class TankSpec(_Strict):
-    """Facts of the tank that are not part values: the coupling k of two coupled
-    inductors (a Hartley tank's L1 and L2; 0 = separate coils, the default)."""
-
-    coupling: float = 0.0
-
-    @field_validator("coupling", mode="before")
-    @classmethod
-    def _coupling(cls, v: Any) -> float:
-        if isinstance(v, bool) or not isinstance(v, int | float) or not (0 <= v <= MAX_COUPLING):
-            raise ValueError(f"expected a coupling coefficient from 0 to {MAX_COUPLING}; got {v!r}")
-        return float(v)
-
-
 class YieldSpec(_Strict):
     """Monte Carlo settings."""
 
@@ -553,6 +540,13 @@ class Spec(_Strict):
         topo = d.get("topology")
         if isinstance(topo, str):
             d["topology"] = topo.strip().lower()
+        name = d.get("topology")
+        if isinstance(name, str) and name in TOPOLOGIES:
+            t = get_topology(name)
+            if t.coupled:  # the tapped-coil form: [tank] tapped_coil, tap, coil_tolerance
+                d = expand_tapped_coil(d, t.feedback_pair)
+            elif isinstance(d.get("tank"), dict) and "tapped_coil" in d["tank"]:
+                raise KeyedError("tank.tapped_coil", f"a {name} tank has one inductor")
         parts = d.get("parts")
         if (
             isinstance(parts, dict)
@@ -613,6 +607,17 @@ class Spec(_Strict):
             raise KeyedError(
                 "tank.coupling", f"a {self.topology} tank has one inductor; remove the coupling"
             )
+        if self.tank.coupling_tolerance and not topo.coupled:
+            raise KeyedError(
+                "tank.coupling_tolerance",
+                f"a {self.topology} tank has one inductor; remove the coupling_tolerance",
+            )
+        k, t = self.tank.coupling, self.tank.coupling_tolerance
+        if t and not (k - t >= 0 and k + t <= MAX_COUPLING):
+            raise KeyedError(
+                "tank.coupling_tolerance",
+                f"expected k ± tolerance within 0 to {MAX_COUPLING}; got {k:g} ± {t:g}",
+            )
         if self.amplifier is not None and topo.needs_grounded_common:
             # the stage registry (its modules import scipy.special): only with an [amplifier]
             from picker.circuit.stages import STAGES
@@ -641,6 +646,12 @@ class Spec(_Strict):
                 "parasitics.stray_tolerance",
                 "a spread of the stray is simulated with the ideal tank only; the loaded "
                 "model ([amplifier]) takes one stray: remove stray_tolerance or [amplifier]",
+            )
+        if self.amplifier is not None and self.tank.coupling_tolerance > 0:
+            raise KeyedError(
+                "tank.coupling_tolerance",
+                "a spread of k is simulated with the ideal tank only; the loaded model "
+                "([amplifier]) takes one k: remove coupling_tolerance or [amplifier]",
             )
         return self
 

@@ -16,6 +16,7 @@ from picker.tank.base import TOPOLOGIES, Topology
 from picker.tank import colpitts  # noqa: F401, I001  # isort: skip
 from picker.tank import clapp  # noqa: F401, I001  # isort: skip
 from picker.tank import hartley  # noqa: F401, I001  # isort: skip
+from picker.tank import hartley_series  # noqa: F401, I001  # isort: skip
 
 __all__ = [
     "TOPOLOGIES",

@@ -49,6 +49,10 @@ TWO_PI = 2.0 * np.pi
 #: matrix is singular.
 MAX_COUPLING = 0.99
 
+#: Key of a board's own coupling k in a values mapping (the Monte Carlo's sampled k of a
+#: tank with coupled inductors, ``[tank] coupling_tolerance``); absent: the topology's own.
+COUPLING = "coupling"
+
 #: Every registered topology by name, filled by :meth:`Topology.__init_subclass__`.
 TOPOLOGIES: dict[str, Topology] = {}
 
@@ -211,6 +215,11 @@ class Topology:
         for p in self.capacitors:
             out[p] = -0.5 * (cs / ce) * (cs / np.asarray(values[p]))
         return {p: out[p] for p in self.positions}
+
+    def coupling_sensitivity(self, values: Mapping[str, Any]) -> Any:
+        """∂ln f/∂k, the frequency's sensitivity to the coupling k of coupled inductors
+        (per unit of k, not of ln k: k may be 0); 0 for a tank with one inductor."""
+        return 0.0 * np.asarray(values[self.inductor], dtype=float)
 
     def inductor_sensitivities(
         self, values: Mapping[str, Any], shape: tuple[int, ...]

@@ -45,7 +45,7 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from picker.tank.base import MAX_COUPLING, TOPOLOGIES, Topology
+from picker.tank.base import COUPLING, MAX_COUPLING, TOPOLOGIES, Topology
 
 __all__ = [
     "HARTLEY",
@@ -152,14 +152,22 @@ class Hartley(Topology):
     # ------------------------------------------------------------ formulas
 
     def mutual(self, values: Mapping[str, Any]) -> Any:
-        """M = k·√(L1·L2), H."""
+        """M = k·√(L1·L2), H; k is the board's own where ``values`` holds one (key
+        :data:`picker.tank.base.COUPLING`, the Monte Carlo's sampled k), else the tank's."""
         out, inp = self.feedback_pair
-        return mutual_inductance(values[out], values[inp], self.coupling)
+        return mutual_inductance(values[out], values[inp], values.get(COUPLING, self.coupling))
 
     def l_eff(self, values: Mapping[str, Any]) -> Any:
         """L1 + L2 + 2M, H (equation (H1))."""
         out, inp = self.feedback_pair
-        return hartley_inductance(values[out], values[inp], self.coupling)
+        return np.asarray(values[out], dtype=float) + values[inp] + 2.0 * self.mutual(values)
+
+    def coupling_sensitivity(self, values: Mapping[str, Any]) -> Any:
+        """∂ln f/∂k = −√(L1·L2)/L_eff: from (H1), ∂L_eff/∂k = 2·√(L1·L2) and
+        f ∝ L_eff^(−1/2) (derived here; central differences in tests/test_hartley_coupling.py)."""
+        out, inp = self.feedback_pair
+        root = np.sqrt(np.asarray(values[out], dtype=float) * np.asarray(values[inp], dtype=float))
+        return -root / self.l_eff(values)
 
     def beta(self, values: Mapping[str, Any]) -> Any:
         """beta = (L2 + M)/(L1 + M) (equation (H2))."""

@@ -62,6 +62,7 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.bias import dc_loop
 from picker.circuit.device import GENERIC_PNP, SmallSignal
+from picker.circuit.loads import output_admittance
 from picker.circuit.stages.base import (
     KICK_FRACTION,
     BiasLoop,
@@ -162,10 +163,7 @@ class CommonBase(CommonEmitter):
 
     def _branches(self, s: np.ndarray, params: AmplifierParams, ss: SmallSignal) -> dict[str, Any]:
         """The stage's branch admittances at ``s`` by name."""
-        if params.l_choke is not None:
-            y_load = 1.0 / (params.r_choke + s * params.l_choke)
-        else:
-            y_load = 1.0 / need(params.r_c, "a collector load: r_c or l_choke") + 0.0 * s
+        y_load = output_admittance(params, s)  # the collector load and the next stage
         if params.r_feedback is not None:  # collector to the bypassed base: beside the load
             y_load = y_load + 1.0 / params.r_feedback
         return {

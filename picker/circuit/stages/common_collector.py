@@ -63,6 +63,7 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import GENERIC_PNP, SmallSignal
+from picker.circuit.loads import next_stage_admittance, next_stage_lines
 from picker.circuit.stages.base import (
     KICK_FRACTION,
     BiasLoop,
@@ -174,6 +175,7 @@ class CommonCollector(CommonEmitter):
         (1/R_E), bias to the reference (none), y_pi, y_mu with the divider beside it
         (b–c), g_o, no emitter branch (the emitter is the reference), C_B (c–t)."""
         y_re = 1.0 / need(params.r_e, "an emitter resistor (r_e)") + 0.0 * s
+        y_re = y_re + next_stage_admittance(params, s)  # the next stage beside R_E
         g_bias = sum(1.0 / r for r in (params.r_b1, params.r_b2) if r is not None)
         y_pi = 1.0 / ss.r_pi + s * ss.c_pi
         y_mu = s * ss.c_mu + g_bias
@@ -190,6 +192,7 @@ class CommonCollector(CommonEmitter):
         g_bias = sum(1.0 / r for r in (params.r_b1, params.r_b2) if r is not None)
         out = [
             Stamp(c, "0", 1.0 / need(params.r_e, "an emitter resistor (r_e)") + 0 * s),
+            Stamp(c, "0", next_stage_admittance(params, s)),  # the next stage
             Stamp(c, t, SHORT + 0 * s if y_cb is None else y_cb),
             Stamp(b, c, g_bias + 0 * s),
             Stamp(b, "0", 1.0 / ss.r_pi + s * ss.c_pi),
@@ -340,6 +343,7 @@ class CommonCollector(CommonEmitter):
         card = self.model_card(params, bias)
         lines.append(f"Q1 vcc {self.input} {emitter} {card.split()[1]}")
         lines.append(f"RE {emitter} 0 {g(need(params.r_e, 'r_e'))}")
+        lines += next_stage_lines(params, emitter)
         return StageNetlist(
             elements=lines, models=[card], kick=KICK_FRACTION * bias.ic, top_dc=bias.ve
         )

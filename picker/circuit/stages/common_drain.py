@@ -45,6 +45,7 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import SmallSignal
 from picker.circuit.fet import GENERIC_NMOS
+from picker.circuit.loads import next_stage_lines
 from picker.circuit.stages.base import KICK_FRACTION, StageNetlist, spice_number
 from picker.circuit.stages.common_collector import CommonCollector, rename_nodes
 from picker.circuit.stages.common_source import CommonSource
@@ -161,6 +162,7 @@ class CommonDrain(CommonSource, CommonCollector):
         if params.r_e is None:
             raise ValueError("the common-drain stage needs a source resistor (r_emitter)")
         lines.append(f"RE {source} 0 {g(params.r_e)}")
+        lines += next_stage_lines(params, source)
         return StageNetlist(
             elements=lines, models=[card.model_card()], kick=KICK_FRACTION * bias.ic, top_dc=bias.ve
         )

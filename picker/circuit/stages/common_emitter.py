@@ -39,6 +39,7 @@ from picker.circuit.device import (
     npn_small_signal,
     thermal_voltage,
 )
+from picker.circuit.loads import load_lines, output_admittance
 from picker.circuit.stages.base import (
     KICK_FRACTION,
     BiasLoop,
@@ -283,10 +284,7 @@ class CommonEmitter(Stage):
         self, s: np.ndarray, params: AmplifierParams, ss: SmallSignal
     ) -> tuple[Any, float, Any, Any, float, Any, Any]:
         """The stage's branch admittances at ``s``: load, bias, y_pi, y_mu, g_o, y_e, y_cb."""
-        if params.l_choke is not None:
-            y_load = 1.0 / (params.r_choke + s * params.l_choke)
-        else:
-            y_load = 1.0 / need(params.r_c, "a collector load: r_c or l_choke") + 0.0 * s
+        y_load = output_admittance(params, s)  # the collector load and the next stage
         g_bias = 0.0
         for r in (params.r_b1, params.r_b2):
             if r is not None:
@@ -526,16 +524,11 @@ class CommonEmitter(Stage):
         return 0.0
 
     def passive_lines(self, params: AmplifierParams, col: str) -> list[str]:
-        """Supply, collector load (resistor or choke) and C_B, in netlist order."""
+        """Supply, collector load (:func:`picker.circuit.loads.load_lines`) and C_B, in
+        netlist order."""
         g = spice_number
         lines = [f"VCC vcc 0 DC {g(params.vcc)}"]
-        if params.l_choke is not None:
-            if params.r_choke > 0:
-                lines += [f"LCH vcc nch {g(params.l_choke)}", f"RCH nch {col} {g(params.r_choke)}"]
-            else:
-                lines += [f"LCH vcc {col} {g(params.l_choke)}"]
-        else:
-            lines.append(f"RC vcc {col} {g(need(params.r_c, 'r_c'))}")
+        lines += load_lines(params, col)  # the collector load and the next stage
         if params.c_block is not None:
             lines.append(f"CB {self.output} {self.top} {g(params.c_block)}")
         return lines
