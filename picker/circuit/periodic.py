@@ -36,11 +36,11 @@ import numpy as np
 
 from picker.circuit.device import thermal_voltage
 from picker.circuit.network import Network
-from picker.circuit.shooting import STEPS, oscillating_mode, periodic_orbit
-from picker.circuit.transient import build_circuit, dc_point, dc_with_currents, device
+from picker.circuit.shooting import STEPS, WARM, oscillating_mode, periodic_orbit
+from picker.circuit.transient import Circuit, build_circuit, dc_point, dc_with_currents, device
 from picker.tank.base import TWO_PI
 
-__all__ = ["REFINE", "PeriodicState", "periodic_state"]
+__all__ = ["REFINE", "PeriodicState", "board_lines", "periodic_circuits", "periodic_state"]
 
 #: The converged orbit is solved again with this many times the steps (for the
 #: multipliers and the figures).
@@ -61,21 +61,9 @@ class PeriodicState:
     multiplier: np.ndarray  # the largest non-trivial Floquet multiplier's modulus
 
 
-def periodic_state(
-    net: Network,
-    idx: np.ndarray,
-    w: np.ndarray,
-    top: np.ndarray,
-    i_mean: np.ndarray,
-    *,
-    steps: int = STEPS,
-    refine: int = REFINE,
-) -> PeriodicState:
-    """The periodic orbits of the boards ``idx`` of ``net`` (a bjt stage with its bias
-    network), from the describing function's frequency ``w`` (rad/s), tank-top
-    amplitude ``top`` (V) and mean collector current ``i_mean`` (A), one per element:
-    the start is the DC state with the transistor's mean currents (the bias shift) plus
-    the circuit's oscillating mode at that amplitude."""
+def board_lines(net: Network, idx: np.ndarray) -> tuple[list[list[str]], list[str]]:
+    """The netlist element lines of the boards ``idx`` of ``net`` (the lines ngspice is
+    given, :meth:`picker.circuit.stages.base.Stage.netlist`) and the model cards."""
     stage, params = net.stage, net.params
     topo = net.topology
     lines = []
@@ -85,14 +73,52 @@ def periodic_state(
         part = stage.netlist(topo, vals, float(net.el["stray"][i]), float(net.el["r_l"][i]), params)
         lines.append(part.elements)
         models = part.models
-    circ = build_circuit(lines, models, stage.top, thermal_voltage(params.temperature_c))
-    m = idx.size
-    x_dc, ok_dc = dc_point(circ)
+    return lines, models
+
+
+def periodic_state(
+    net: Network,
+    idx: np.ndarray,
+    w: np.ndarray,
+    top: np.ndarray,
+    i_mean: np.ndarray,
+    *,
+    steps: int = STEPS,
+    refine: int = REFINE,
+    warm: int = WARM,
+) -> PeriodicState:
+    """The periodic orbits of the boards ``idx`` of ``net`` (a bjt stage with its bias
+    network), from the describing function's frequency ``w`` (rad/s), tank-top
+    amplitude ``top`` (V) and mean collector current ``i_mean`` (A), one per element
+    (:func:`periodic_circuits`; where ``w`` is not finite, the ideal tank's)."""
+    topo = net.topology
+    lines, models = board_lines(net, idx)
+    circ = build_circuit(lines, models, net.stage.top, thermal_voltage(net.params.temperature_c))
     w = np.where(
         np.isfinite(w) & (w > 0),
         w,
         TWO_PI * topo.frequency({p: net.el[p][idx] for p in topo.positions}, net.el["stray"][idx]),
     )
+    return periodic_circuits(circ, w, top, i_mean, steps=steps, refine=refine, warm=warm)
+
+
+def periodic_circuits(
+    circ: Circuit,
+    w: np.ndarray,
+    top: np.ndarray,
+    i_mean: np.ndarray,
+    *,
+    steps: int = STEPS,
+    refine: int = REFINE,
+    warm: int = WARM,
+) -> PeriodicState:
+    """The periodic orbits of a batch of circuits (:func:`picker.circuit.transient.build_circuit`)
+    from the frequencies ``w`` (rad/s), tank-top amplitudes ``top`` (V) and mean
+    collector currents ``i_mean`` (A) of the describing function, one per element: the
+    start is the DC state with the transistor's mean currents (the bias shift) plus the
+    circuit's oscillating mode at that amplitude."""
+    m = circ.b.shape[0]
+    x_dc, ok_dc = dc_point(circ)
     _, vec = oscillating_mode(circ, x_dc, w)
     ar = np.arange(m)
     # the mode's phase with the base-emitter voltage at its trough: the transistor is off
@@ -108,7 +134,7 @@ def periodic_state(
     x_mid = np.where(i_ok[:, None] & np.isfinite(x_mid), x_mid, x_dc)
     x0 = x_mid + (vec * (amp / np.maximum(np.abs(v_top), 1e-300))[:, None]).real
     x0 = np.where(np.isfinite(x0), x0, x_dc)
-    orb = periodic_orbit(circ, x0, TWO_PI / w, steps=steps)
+    orb = periodic_orbit(circ, x0, TWO_PI / w, steps=steps, warm=warm)
     ok = orb.ok & ok_dc
     period, mult, unstable = orb.period, orb.multipliers, orb.unstable
     xs = orb.x[:-1]  # (N, m, n): one period
@@ -119,7 +145,7 @@ def periodic_state(
         # the stability of a steady design
         sel = np.nonzero(ok)[0]
         fine = periodic_orbit(
-            circ.take(sel), orb.x[0, sel], orb.period[sel], steps=refine * steps, warm=0
+            circ.take(sel), orb.x[0, sel], orb.period[sel], steps=refine * steps, warm=0, retry=0
         )
         ok[sel] = fine.ok
         period = period.copy()
