@@ -36,7 +36,7 @@ import numpy as np
 
 from picker.circuit.device import thermal_voltage
 from picker.circuit.network import Network
-from picker.circuit.shooting import STEPS, WARM, oscillating_mode, periodic_orbit
+from picker.circuit.shooting import RETRY_WARM, STEPS, WARM, oscillating_mode, periodic_orbit
 from picker.circuit.transient import Circuit, build_circuit, dc_point, dc_with_currents, device
 from picker.tank.base import TWO_PI
 
@@ -86,6 +86,7 @@ def periodic_state(
     steps: int = STEPS,
     refine: int = REFINE,
     warm: int = WARM,
+    retry: int = RETRY_WARM,
 ) -> PeriodicState:
     """The periodic orbits of the boards ``idx`` of ``net`` (a bjt stage with its bias
     network), from the describing function's frequency ``w`` (rad/s), tank-top
@@ -99,7 +100,9 @@ def periodic_state(
         w,
         TWO_PI * topo.frequency({p: net.el[p][idx] for p in topo.positions}, net.el["stray"][idx]),
     )
-    return periodic_circuits(circ, w, top, i_mean, steps=steps, refine=refine, warm=warm)
+    return periodic_circuits(
+        circ, w, top, i_mean, steps=steps, refine=refine, warm=warm, retry=retry
+    )
 
 
 def periodic_circuits(
@@ -111,6 +114,7 @@ def periodic_circuits(
     steps: int = STEPS,
     refine: int = REFINE,
     warm: int = WARM,
+    retry: int = RETRY_WARM,
 ) -> PeriodicState:
     """The periodic orbits of a batch of circuits (:func:`picker.circuit.transient.build_circuit`)
     from the frequencies ``w`` (rad/s), tank-top amplitudes ``top`` (V) and mean
@@ -134,7 +138,7 @@ def periodic_circuits(
     x_mid = np.where(i_ok[:, None] & np.isfinite(x_mid), x_mid, x_dc)
     x0 = x_mid + (vec * (amp / np.maximum(np.abs(v_top), 1e-300))[:, None]).real
     x0 = np.where(np.isfinite(x0), x0, x_dc)
-    orb = periodic_orbit(circ, x0, TWO_PI / w, steps=steps, warm=warm)
+    orb = periodic_orbit(circ, x0, TWO_PI / w, steps=steps, warm=warm, retry=retry)
     ok = orb.ok & ok_dc
     period, mult, unstable = orb.period, orb.multipliers, orb.unstable
     xs = orb.x[:-1]  # (N, m, n): one period

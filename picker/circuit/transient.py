@@ -286,11 +286,18 @@ def evaluate(circ: Circuit, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.n
     i_f, g_f, g_r, kq = dv["i_f"], dv["g_f"], dv["g_r"], dv["kq"]
     # ∂(I_C, I_B)/∂(V_BE, V_BC) and ∂q_D/∂(V_BE, V_BC)
     dic_bc = -g_r * kq - (i_f - dv["i_r"]) / p["VAF"] - g_r / p["BR"]
-    dcur = np.stack([g_f * kq, dic_bc, g_f / p["BF"], g_r / p["BR"]], axis=1).reshape(bsz, 2, 2)
-    dq = np.stack([p["TF"] * g_f * kq, -p["TF"] * i_f / p["VAF"]], axis=1)
-    cur = np.einsum("bij,bj->bi", circ.g, x) + np.einsum(
-        "bik,bk->bi", circ.scatter, np.stack([dv["ic"], dv["ib"]], axis=1)
-    )
+    dcur = np.empty((bsz, 2, 2))
+    dcur[:, 0, 0] = g_f * kq
+    dcur[:, 0, 1] = dic_bc
+    dcur[:, 1, 0] = g_f / p["BF"]
+    dcur[:, 1, 1] = g_r / p["BR"]
+    dq = np.empty((bsz, 2))
+    dq[:, 0] = p["TF"] * g_f * kq
+    dq[:, 1] = -p["TF"] * i_f / p["VAF"]
+    dev = np.empty((bsz, 2))
+    dev[:, 0] = dv["ic"]
+    dev[:, 1] = dv["ib"]
+    cur = np.einsum("bij,bj->bi", circ.g, x) + np.einsum("bik,bk->bi", circ.scatter, dev)
     chg = np.einsum("bij,bj->bi", circ.c, x) + circ.charge_at * dv["qd"][:, None]
     jg = circ.g + np.einsum("bik,bkl,bjl->bij", circ.scatter, dcur, circ.gather)
     jc = circ.c + np.einsum("bi,bl,bjl->bij", circ.charge_at, dq, circ.gather)
@@ -382,22 +389,27 @@ def _solve_step(
     x = x_guess.copy()
     bsz = x.shape[0]
     done = np.zeros(bsz, dtype=bool)
+    failed = ~np.all(np.isfinite(x), axis=1)
+    x[failed] = 0.0  # evaluated, never moved, reported not ok
+    done |= failed
     ha = (alpha / h)[:, None]
     for _ in range(_NEWTON):
-        xe = np.where(done[:, None], np.nan_to_num(x), x)
-        cur, chg, jg, jc = evaluate(circ, xe)
+        cur, chg, jg, jc = evaluate(circ, x)
         r = ha * chg + cur + hist
         jac = ha[:, :, None] * jc + jg
         dx = -np.linalg.solve(jac, r[..., None])[..., 0]
+        fin = np.all(np.isfinite(dx), axis=1)
+        failed |= ~done & ~fin
+        done |= failed
+        dx[~fin] = 0.0  # a failed element's state stays finite (and is not used)
         lim = _damping(circ, x, dx)
         move = ~done
         x = np.where(move[:, None], x + lim[:, None] * dx, x)
-        fin = np.all(np.isfinite(dx), axis=1)
-        done |= move & (((lim == 1.0) & np.all(np.abs(dx) <= tol, axis=1)) | ~fin)
+        done |= move & (lim == 1.0) & np.all(np.abs(dx) <= tol, axis=1)
         if done.all():
             break
-    ok = np.all(np.isfinite(x), axis=1) & done
-    return x, ok
+    x[failed] = np.nan
+    return x, done & ~failed
 
 
 def integrate(
