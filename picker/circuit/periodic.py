@@ -15,17 +15,12 @@ to the describing function's amplitude and period. From the orbit it reads:
 * the peak collector current and the device's mean dissipation ⟨I_C·V_CE + I_B·V_BE⟩;
 * whether the orbit is unstable (a Floquet multiplier outside the unit circle).
 
-Status: not yet called by :func:`picker.circuit.steady.steady_state`. Put in place of
-the describing function on the saturated designs (frequency, amplitude, and the Floquet
-verdict for bursting where Newton converged; ``scripts/shooting_stats.py``), measured
-on the validation sets (``tests/validation/``): main set (136 designs; 35 saturated,
-30 converged): frequency within 2 % for 95.2 % of the oscillating designs (90.5 %
-without), bursting precision 0.80 (0.78) and recall 0.80 (0.70), amplitude within
-±30 % for 100 % (96.7 %), Clapp worst 3.6 % (3.6 %: d100, not saturated); held-out set
-(60 designs; 18 saturated, 17 converged): 95.8 % (91.7 %), precision 1.00 (0.67),
-recall 0.40 (0.40), amplitude 100 % (95.2 %), Clapp worst 1.1 % (2.6 %). It costs tens of seconds per
-design one at a time (numpy's per-call overhead on small matrices; a batch of designs
-shares it), too slow for the search and for the validation tests as they stand.
+Where it is used: :mod:`picker.circuit.nominal_orbit` runs it on the designs whose
+describing function saturates, for the reported designs of ``solve`` and ``evaluate``
+and for the validation statistics (:func:`picker.circuit.validation.model_answers`).
+Speed (``python -m picker.bench.shooting``): the saturated designs of the validation
+sets in batches of one netlist shape, under a second of CPU per design; one design
+per call with the former 40-period warm-up, several seconds.
 """
 
 from __future__ import annotations
