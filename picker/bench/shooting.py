@@ -5,7 +5,7 @@ The designs of the committed validation sets (``tests/validation/large_signal.js
 are the designs the pipeline shoots (:mod:`picker.circuit.nominal_orbit`). Timed, one
 core, CPU seconds per design:
 
-* the pipeline's path: every saturated design of a set in one batch
+* the pipeline's path: every saturated design in one call, batched by netlist shape
   (:func:`picker.circuit.nominal_orbit.board_orbits`: five warm-up periods from the
   describing function's start, a 40-period retry only where Newton fails);
 * the reference path: one design per call after a 40-period warm-up
@@ -82,8 +82,9 @@ def main(reference: int = 3) -> dict[str, float]:
     t_ref = (time.process_time() - t) / max(min(reference, len(nets)), 1)
     print(
         f"periodic orbit of {len(nets)} saturated validation designs: {per:.2f} s per design "
-        f"in one batch (target <= 1.5 s), {conv} converged; reference (one design per call, "
-        f"40-period warm-up) on {min(reference, len(nets))}: {t_ref:.2f} s per design, "
+        f"in batches of one netlist shape (target <= 1.5 s), {conv} converged; reference "
+        f"(one design per call, 40-period warm-up) on {min(reference, len(nets))}: "
+        f"{t_ref:.2f} s per design, "
         f"{ref_conv} converged; ratio {t_ref / per:.1f}x; largest frequency difference where "
         f"both converged {diff:.1e}"
     )

@@ -19,8 +19,8 @@ Where it is used: :mod:`picker.circuit.nominal_orbit` runs it on the designs who
 describing function saturates, for the reported designs of ``solve`` and ``evaluate``
 and for the validation statistics (:func:`picker.circuit.validation.model_answers`).
 Speed (``python -m picker.bench.shooting``): the saturated designs of the validation
-sets in batches of one netlist shape, under a second of CPU per design; one design
-per call with the former 40-period warm-up, several seconds.
+sets in batches of one netlist shape, about a second of CPU per design; one design
+per call with the former 40-period warm-up, about four times that.
 """
 
 from __future__ import annotations
