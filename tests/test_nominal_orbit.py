@@ -150,3 +150,15 @@ def test_solve_reports_the_nominal_orbit(tmp_path):
         assert ls["envelope"] == ("bursting" if o.bursting else "steady")
         assert c.extra["f_loaded_hz"] == o.f_hz
     assert shot >= 2
+
+
+@pytest.mark.slow
+def test_solve_with_orbits_is_the_same_with_one_or_two_workers(tmp_path):
+    # the orbits are solved once, in the caller's thread, on the reported designs (one
+    # batch per netlist shape, each orbit converging on its own): the result does not
+    # depend on the Monte Carlo's threads
+    spec, _, _ = _saturated_spec(tmp_path)
+    one = api.solve(spec, samples=300, top=3, workers=1).to_dict()
+    two = api.solve(spec, samples=300, top=3, workers=2).to_dict()
+    assert one == two
+    assert any(c["large_signal"]["overdriven"] for c in one["candidates"])
