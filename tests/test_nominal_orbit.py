@@ -162,3 +162,15 @@ def test_solve_with_orbits_is_the_same_with_one_or_two_workers(tmp_path):
     two = api.solve(spec, samples=300, top=3, workers=2).to_dict()
     assert one == two
     assert any(c["large_signal"]["overdriven"] for c in one["candidates"])
+
+
+@pytest.mark.slow
+def test_evaluate_reproduces_solve_with_orbits(tmp_path):
+    # evaluate(spec, candidate) shoots the one design alone; solve shot it beside the
+    # other reported designs: the same orbit, so the same large_signal object and count
+    spec, _, _ = _saturated_spec(tmp_path)
+    res = api.solve(spec, samples=300, top=3)
+    for c in res.candidates:
+        e = api.evaluate(spec, c, samples=300).candidates[0]
+        assert e.extra["large_signal"] == c.extra["large_signal"]
+        assert e.yield_.passed == c.yield_.passed

@@ -161,7 +161,9 @@ def periodic_circuits(
         harm = 20.0 * np.log10(spec[2:4] / spec[1][None, :]).T
     dev = device(circ, xs)
     vce = dev["vbe"] - dev["vbc"]
-    p_dev = np.mean(dev["ic"] * vce + dev["ib"] * dev["vbe"], axis=0)
+    # the mean over each element's own contiguous row: numpy's pairwise summation then
+    # adds the same terms in the same order whatever the batch beside it
+    p_dev = np.ascontiguousarray((dev["ic"] * vce + dev["ib"] * dev["vbe"]).T).mean(axis=1)
     mu = np.abs(mult[:, 0])
     nan = np.nan
     return PeriodicState(
