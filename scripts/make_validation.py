@@ -77,7 +77,7 @@ from picker.circuit.validation import (
     accuracy_table,
     design_to_dict,
     load_reference,
-    model_answer,
+    model_answers,
     run_design,
 )
 from picker.tank import get_topology
@@ -483,7 +483,7 @@ def make(
 def stats(path: Path = OUT) -> None:
     designs, answers = load_reference(path)
     t0 = time.perf_counter()
-    model = [model_answer(d) for d in designs]
+    model = model_answers(designs)
     wall = time.perf_counter() - t0
     acc = accuracy([d.topology for d in designs], model, answers)
     print(f"steady_state against ngspice on {path} ({wall:.1f} s for the model)")

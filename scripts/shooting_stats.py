@@ -6,7 +6,9 @@ where the describing function finds the transistor saturated, the periodic orbit
 design's own netlist by shooting (:func:`picker.circuit.periodic.periodic_state`) puts its
 frequency, its amplitude and its Floquet stability in place of the model's (where Newton
 converged). Both tables are printed (:func:`picker.circuit.validation.accuracy_table`).
-Slow: tens of seconds per saturated design (one process).
+One design per call (about a second or more per saturated design); the pipeline's
+batched answer is :func:`picker.circuit.validation.model_answers`
+(``python scripts/make_validation.py --stats``).
 
 Usage::
 

@@ -14,6 +14,7 @@ ngspice, the marked one re-runs a few designs in ngspice and checks the data rep
 from __future__ import annotations
 
 import math
+from functools import cache
 from pathlib import Path
 
 import numpy as np
@@ -21,12 +22,14 @@ import pytest
 
 from picker.circuit.ngspice import ngspice_path
 from picker.circuit.validation import (
+    Accuracy,
     ModelAnswer,
     accuracy,
     design_from_dict,
     design_to_dict,
     load_reference,
     model_answer,
+    model_answers,
     run_design,
 )
 from picker.errors import SolverError
@@ -35,10 +38,17 @@ DATA = Path(__file__).parent / "validation" / "large_signal.json"
 HOLDOUT = Path(__file__).parent / "validation" / "large_signal_holdout.json"
 #: each set and the fewest designs it must hold
 SETS = {"main": (DATA, 120), "holdout": (HOLDOUT, 50)}
-OLD_MODEL = (
-    "issue 11's target is not met yet by the large-signal model (README: measured accuracy "
-    "against ngspice); remove this marker once it is"
-)
+#: Issue 11's targets the model (the pipeline's: the describing function, and the
+#: periodic orbit where the transistor saturates) does not meet yet, per set, with the
+#: figure measured (README: measured accuracy against ngspice); each marker must come
+#: off once the target is met (strict xfail)
+UNMET_BURSTING = {
+    "holdout": "bursting recall 0.40 on the held-out set (2 of its 5 bursting designs found)",
+}
+UNMET_CLAPP = {
+    "main": "Clapp worst frequency error 3.6 % on the main set (d100, out of saturation)",
+    "holdout": "Clapp worst frequency error 1.1 % on the held-out set",
+}
 
 
 @pytest.fixture(scope="module", params=sorted(SETS))
@@ -48,11 +58,27 @@ def reference(request):
     return designs, answers, least
 
 
-@pytest.fixture(scope="module")
-def acc(reference):
-    designs, answers, _ = reference
-    model = [model_answer(d) for d in designs]
-    return accuracy([d.topology for d in designs], model, answers)
+@cache
+def _acc(name: str) -> Accuracy:
+    designs, answers = load_reference(SETS[name][0])
+    return accuracy([d.topology for d in designs], model_answers(designs), answers)
+
+
+def _sets(unmet: dict[str, str]) -> list[object]:
+    """Every set, strict xfail (reason) for the ones named in ``unmet``."""
+    return [
+        pytest.param(n, marks=pytest.mark.xfail(strict=True, reason=unmet[n])) if n in unmet else n
+        for n in sorted(SETS)
+    ]
+
+
+def test_model_answer_is_the_batch_answer():
+    # one design alone (model_answer) and in the set's batch (model_answers): the same
+    # figures, the orbit included (d015 saturates; its orbit is shot in both)
+    designs, _ = load_reference(DATA)
+    alone = model_answer(designs[15])
+    batch = model_answers(designs[13:17])[2]
+    assert alone == batch
 
 
 # ------------------------------------------------------------ the statistics code itself
@@ -133,30 +159,39 @@ def test_set_covers_issue_11_ranges(reference):
 # states the measured figure), so the marker must come off as soon as the model meets it.
 
 
-@pytest.mark.xfail(strict=True, reason=OLD_MODEL)
-def test_frequency_within_2_percent_for_95_percent(acc):
+@pytest.mark.parametrize("name", sorted(SETS))
+def test_frequency_within_2_percent_for_95_percent(name):
+    acc = _acc(name)
     assert acc.freq_within_2pct >= 0.95
 
 
-def test_frequency_median_error_at_most_0_3_percent(acc):
+@pytest.mark.parametrize("name", sorted(SETS))
+def test_frequency_median_error_at_most_0_3_percent(name):
+    acc = _acc(name)
     assert acc.freq_median_error <= 0.003
 
 
-def test_startup_right_for_98_percent(acc):
+@pytest.mark.parametrize("name", sorted(SETS))
+def test_startup_right_for_98_percent(name):
+    acc = _acc(name)
     assert acc.startup_right >= 0.98
 
 
-@pytest.mark.xfail(strict=True, reason=OLD_MODEL)
-def test_bursting_precision_and_recall_at_least_0_8(acc):
+@pytest.mark.parametrize("name", _sets(UNMET_BURSTING))
+def test_bursting_precision_and_recall_at_least_0_8(name):
+    acc = _acc(name)
     assert acc.burst_precision >= 0.8 and acc.burst_recall >= 0.8
 
 
-def test_amplitude_within_30_percent_for_90_percent_of_steady(acc):
+@pytest.mark.parametrize("name", sorted(SETS))
+def test_amplitude_within_30_percent_for_90_percent_of_steady(name):
+    acc = _acc(name)
     assert acc.amplitude_within_30pct >= 0.90
 
 
-@pytest.mark.xfail(strict=True, reason=OLD_MODEL)
-def test_clapp_within_half_a_percent(acc):
+@pytest.mark.parametrize("name", _sets(UNMET_CLAPP))
+def test_clapp_within_half_a_percent(name):
+    acc = _acc(name)
     assert acc.clapp_worst_error <= 0.005
 
 

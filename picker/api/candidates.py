@@ -195,6 +195,7 @@ def circuit_extras(spec: Spec, sim: Simulation, designs: Designs, u: Rows) -> li
     from picker.circuit.figures import nominal_figures, worst_margins
 
     worst = worst_margins(sim, designs, u)
+    orbits = getattr(sim.model, "orbits", lambda d: [None] * len(d))(designs)
     out = []
     for r in range(len(designs)):
         fig = nominal_figures(
@@ -204,6 +205,7 @@ def circuit_extras(spec: Spec, sim: Simulation, designs: Designs, u: Rows) -> li
             params,
             voltage_rating=rating,
             polarised=polar,
+            orbit=orbits[r],
         )
         fig["startup_margin_worst"] = float(worst[r])
         out.append(fig)

@@ -166,6 +166,22 @@ def _refined(
     return order, passed[order], u, converged
 
 
+def _with_orbits(
+    spec: Spec, sim: Simulation, designs: Designs, u: Rows, passed: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """The reported designs with their nominal orbits (:mod:`picker.circuit.nominal_orbit`:
+    the steady frequency shifted by the orbit's offset, the bursting verdict the orbit's):
+    where any of them has one, their boards counted again and the designs re-ranked.
+
+    Returns (order, passed); ``order`` re-ranks ``designs``."""
+    refine_orbits = getattr(sim.model, "refine_orbits", None)
+    if refine_orbits is None or not refine_orbits(designs):
+        return np.arange(len(designs)), passed
+    passed = count_passing(sim, designs, u)
+    order = reorder(passed, designs, spec.frequency.target)
+    return order, passed[order]
+
+
 def summary(
     spec: Spec,
     sim: Simulation,
@@ -340,8 +356,10 @@ def solve(
         )
     ranked, passed, screen, notes, screened = _rank(spec, sim, designs, u, m, top)
     best = designs.take(ranked[:top])
-    order, passed, u, converged = _refined(spec, sim, best, u, passed[:top], seed, progress)
+    order, passed = _with_orbits(spec, sim, best, u, passed[:top])
     best, screen = best.take(order), screen[:top][order]
+    order, passed, u, converged = _refined(spec, sim, best, u, passed, seed, progress)
+    best, screen = best.take(order), screen[order]
     if spec.cost.rank_by == "cost" and not notes:
         order = cost_order(problem, best, passed)
         best, screen, passed = best.take(order), screen[order], passed[order]
@@ -522,6 +540,9 @@ def evaluate(
         ys = spec.yield_
         estimated = estimates(tally, confidence=ys.confidence, method=ys.ci_method, seed=seed)
     else:
+        refine_orbits = getattr(sim.model, "refine_orbits", None)
+        if refine_orbits is not None:
+            refine_orbits(designs)
         passed = count_passing(sim, designs, u)
         _, passed, u, converged = _refined(spec, sim, designs, u, passed, seed, progress)
     screen = screen_yield(sim, designs)

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -21,6 +22,7 @@ from picker.circuit.amplitude import (
     cautions,
 )
 from picker.circuit.loaded import LoadedModel
+from picker.circuit.nominal_orbit import NominalOrbit
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.steady import SteadyState, steady_state
 from picker.core.montecarlo import ROWS, Simulation, drift_factors, sampled_values, values_at
@@ -134,6 +136,7 @@ def nominal_figures(
     *,
     voltage_rating: Mapping[str, float | None] | None = None,
     polarised: Mapping[str, bool] | None = None,
+    orbit: NominalOrbit | None = None,
 ) -> dict[str, Any]:
     """Loaded-model figures of one design at its marked values (JSON-ready scalars).
 
@@ -143,7 +146,9 @@ def nominal_figures(
     ``peak_voltage_v`` (position -> peak V across each capacitor, None where the
     bias point is unknown), ``cautions`` (:func:`picker.circuit.amplitude.cautions` plus
     :func:`bursting_caution`) and ``large_signal`` (:func:`large_signal`).
-    ``startup_margin`` is the large-signal model's margin.
+    ``startup_margin`` is the large-signal model's margin. With the design's nominal
+    ``orbit`` (:mod:`picker.circuit.nominal_orbit`), its frequency, amplitude,
+    harmonics, peak current, dissipation and Floquet verdict replace the model's.
     """
     pos = topology.positions
     board = board_values(topology, {p: np.array([float(values[p])]) for p in pos}, parasitics)
@@ -153,6 +158,16 @@ def nominal_figures(
         amp = amplitude_estimate(topology, board, st_, params, res)
         stress = capacitor_stress(topology, board, st_, params, amp)
         ls = steady_state(topology, board, st_, params)
+    if orbit is not None:
+        ls = replace(
+            ls,
+            f_hz=np.array([orbit.f_hz]),
+            amplitude_v=np.array([orbit.amplitude_v]),
+            bursting=np.array([orbit.bursting]),
+            harmonics_dbc=np.array([orbit.harmonics_dbc]),
+            peak_current_a=np.array([orbit.peak_current_a]),
+            dissipation_w=np.array([orbit.dissipation_w]),
+        )
     f_lin = float(res.f_hz[0])
     f_ss = float(ls.f_hz[0])
     f = f_ss if bool(ls.starts[0]) and math.isfinite(f_ss) else f_lin

@@ -81,7 +81,7 @@ Axis convention: samples on axis 0, designs on axis 1.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Any
@@ -90,18 +90,25 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.board_fit import BoardFit, fit_boards
-from picker.circuit.network import LoadedResponse
-from picker.circuit.oscillation import loaded_response
+from picker.circuit.nominal_orbit import NominalOrbit, nominal_orbits
 from picker.circuit.steady import SteadyState, steady_state
+from picker.circuit.surrogate import (
+    SURROGATE_STEP,
+    Surrogate,
+    fit_surrogate,
+    loaded_nominal,
+    surrogate_logs,
+    surrogate_response,
+)
 from picker.core.search import Designs, Problem
 from picker.tank.base import Topology
-from picker.tank.board import Parasitics, board_frequency, board_sensitivities, board_values
+from picker.tank.board import Parasitics, board_sensitivities, board_values
 
-#: Central-difference step in ln x for the surrogate's sensitivities.
-SURROGATE_STEP = 0.01
 #: Smallest error band (in ln f and ln margin) of the surrogate's edge test.
 BAND_FLOOR = 1e-12
 METHODS = ("surrogate", "full")
+#: Designs per call that get the nominal orbit (:meth:`LoadedModel.refine_orbits`).
+ORBIT_DESIGNS = 20
 
 __all__ = [
     "METHODS",
@@ -115,180 +122,6 @@ __all__ = [
     "surrogate_logs",
     "surrogate_response",
 ]
-
-
-def loaded_nominal(
-    topology: Topology,
-    values: Mapping[str, np.ndarray],
-    parasitics: Parasitics,
-    params: AmplifierParams,
-) -> LoadedResponse:
-    """Loaded frequency (Hz) and start-up margin of boards with *marked* values ``values``.
-
-    The parasitics are applied first (:func:`picker.tank.board.board_values`:
-    shunts across C1 and C2, inductance scale), the stray goes across L.
-    Unpacks as ``f_loaded, margin``; shapes follow ``values``.
-    """
-    bv = board_values(
-        topology, {p: np.asarray(values[p], dtype=float) for p in topology.positions}, parasitics
-    )
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        return loaded_response(topology, bv, parasitics.stray, params)
-
-
-# ----------------------------------------------------------------------------- surrogate
-
-
-@dataclass(frozen=True)
-class Surrogate:
-    """Per-design coefficients of (S1), (S2) and (S3); every array has shape (n,).
-
-    ``nominal`` holds the marked values the expansion is taken at, ``k`` and
-    ``m`` the log-sensitivities of the ratio and the margin per position, ``q``
-    the second-order coefficients of ln r per monomial (p, q) with p <= q in
-    position order (½·∂²ln r/∂ln x_p² on the diagonal, ∂²ln r/∂ln x_p∂ln x_q off
-    it), ``valid`` marks designs the surrogate may be used for.
-    """
-
-    nominal: dict[str, np.ndarray]
-    ln_r0: np.ndarray
-    k: dict[str, np.ndarray]
-    ln_m0: np.ndarray
-    m: dict[str, np.ndarray]
-    q: dict[tuple[str, str], np.ndarray]
-    valid: np.ndarray
-
-    def take(self, sel: Any) -> Surrogate:
-        return Surrogate(
-            {p: a[sel] for p, a in self.nominal.items()},
-            self.ln_r0[sel],
-            {p: a[sel] for p, a in self.k.items()},
-            self.ln_m0[sel],
-            {p: a[sel] for p, a in self.m.items()},
-            {pq: a[sel] for pq, a in self.q.items()},
-            self.valid[sel],
-        )
-
-    def row(self, j: int) -> np.ndarray:
-        """All coefficients of design ``j`` as one vector (see :meth:`from_rows`)."""
-        head = [self.ln_r0[j], self.ln_m0[j], float(self.valid[j])]
-        k = [self.k[p][j] for p in self.k]
-        m = [self.m[p][j] for p in self.m]
-        return np.array(head + k + m + [v[j] for v in self.q.values()])
-
-    @classmethod
-    def from_rows(
-        cls, positions: Sequence[str], nominal: dict[str, np.ndarray], rows: np.ndarray
-    ) -> Surrogate:
-        k = len(positions)
-        pairs = _pairs(positions)
-        return cls(
-            nominal,
-            rows[:, 0],
-            {p: rows[:, 3 + i] for i, p in enumerate(positions)},
-            rows[:, 1],
-            {p: rows[:, 3 + k + i] for i, p in enumerate(positions)},
-            {pq: rows[:, 3 + 2 * k + i] for i, pq in enumerate(pairs)},
-            rows[:, 2] > 0.5,
-        )
-
-
-def _pairs(positions: Sequence[str]) -> list[tuple[str, str]]:
-    return [(p, q) for i, p in enumerate(positions) for q in positions[i:]]
-
-
-def fit_surrogate(
-    topology: Topology,
-    nominal: Mapping[str, np.ndarray],
-    parasitics: Parasitics,
-    params: AmplifierParams,
-    *,
-    step: float = SURROGATE_STEP,
-) -> Surrogate:
-    """Coefficients of (S1)-(S3) by finite differences of the full model.
-
-    One call of :func:`loaded_nominal` on n·(2k + 1 + k(k−1)/2) boards (k
-    positions): the nominal point, x_i·exp(±h) for each position (central
-    differences for K_i, M_i and the diagonal second derivatives) and
-    (x_i·exp(h), x_j·exp(h)) for each pair (the mixed derivative
-    [g(+i,+j) − g(+i) − g(+j) + g(0)]/h², first order in h).
-    """
-    pos = topology.positions
-    nom = {p: np.asarray(nominal[p], dtype=float).reshape(-1) for p in pos}
-    k = len(pos)
-    cross = [(i, j) for i in range(k) for j in range(i + 1, k)]
-    scale = np.ones((2 * k + 1 + len(cross), 1, k))
-    for i in range(k):
-        scale[1 + 2 * i, 0, i] = math.exp(step)
-        scale[2 + 2 * i, 0, i] = math.exp(-step)
-    for c, (i, j) in enumerate(cross):
-        scale[2 * k + 1 + c, 0, i] = scale[2 * k + 1 + c, 0, j] = math.exp(step)
-    probe = {p: (nom[p][None, :] * scale[:, :, i]) for i, p in enumerate(pos)}
-    f_l, marg = loaded_nominal(topology, probe, parasitics, params)
-    f_i = board_frequency(topology, probe, parasitics)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ln_r = np.log(f_l / f_i)
-        ln_m = np.log(marg)
-    ok = np.all(np.isfinite(ln_r) & np.isfinite(ln_m), axis=0)
-    ln_r = np.where(ok, ln_r, 0.0)
-    ln_m = np.where(ok, ln_m, 0.0)
-    kk = {p: (ln_r[1 + 2 * i] - ln_r[2 + 2 * i]) / (2 * step) for i, p in enumerate(pos)}
-    mm = {p: (ln_m[1 + 2 * i] - ln_m[2 + 2 * i]) / (2 * step) for i, p in enumerate(pos)}
-    qq = {}
-    for i, p in enumerate(pos):
-        qq[(p, p)] = 0.5 * (ln_r[1 + 2 * i] + ln_r[2 + 2 * i] - 2 * ln_r[0]) / step**2
-    for c, (i, j) in enumerate(cross):
-        g = ln_r[2 * k + 1 + c] - ln_r[1 + 2 * i] - ln_r[1 + 2 * j] + ln_r[0]
-        qq[(pos[i], pos[j])] = g / step**2
-    return Surrogate(nom, ln_r[0], kk, ln_m[0], mm, {pq: qq[pq] for pq in _pairs(pos)}, ok)
-
-
-def _ln_ideal(topology: Topology, vals: Mapping[str, np.ndarray], par: Parasitics) -> Any:
-    """ln f of the ideal tank on board values: −ln 2π − ½·ln(L·C_eff) (Thomson's formula)."""
-    bv = board_values(topology, vals, par)
-    lc = topology.l_eff(bv) * topology.c_eff(bv, par.stray)
-    return -math.log(2 * math.pi) - 0.5 * np.log(lc)
-
-
-def surrogate_logs(
-    topology: Topology,
-    sur: Surrogate,
-    vals: Mapping[str, np.ndarray],
-    parasitics: Parasitics,
-    *,
-    second_order: bool = False,
-) -> tuple[np.ndarray, np.ndarray]:
-    """ln f_loaded by (S1) (or (S3) with ``second_order``) and ln margin by (S2).
-
-    ``vals``: position -> marked values (with tolerance and drift) whose last axis
-    runs over the designs of ``sur`` (e.g. (samples, c)). Only meaningful where
-    ``sur.valid``.
-    """
-    pos = topology.positions
-    ln_f = _ln_ideal(topology, vals, parasitics)
-    ln_f += sur.ln_r0
-    ln_m = np.broadcast_to(sur.ln_m0, ln_f.shape).copy()
-    x = {}
-    for p in pos:
-        lnd = np.log(vals[p] / sur.nominal[p])
-        ln_f += sur.k[p] * lnd
-        ln_m += sur.m[p] * lnd
-        x[p] = lnd
-    if second_order:
-        for (p, q), c in sur.q.items():
-            ln_f += c * x[p] * x[q]
-    return ln_f, ln_m
-
-
-def surrogate_response(
-    topology: Topology,
-    sur: Surrogate,
-    vals: Mapping[str, np.ndarray],
-    parasitics: Parasitics,
-) -> tuple[np.ndarray, np.ndarray]:
-    """Loaded frequency (Hz) and margin of sampled boards by (S1)/(S2), each (samples, c)."""
-    ln_f, ln_m = surrogate_logs(topology, sur, vals, parasitics)
-    return np.exp(ln_f), np.exp(ln_m)
 
 
 @dataclass(frozen=True)
@@ -351,6 +184,19 @@ def nominal_offsets(
     )
 
 
+@dataclass(frozen=True)
+class Fix:
+    """The nominal orbits of designs (c,): ``has`` one, its ``shift`` (O1) and ``burst`` (O2)
+    (:mod:`picker.circuit.nominal_orbit`)."""
+
+    has: np.ndarray
+    shift: np.ndarray
+    burst: np.ndarray
+
+    def take(self, sel: Any) -> Fix:
+        return Fix(self.has[sel], self.shift[sel], self.burst[sel])
+
+
 class LoadedModel:
     """The Monte Carlo board model with the loaded oscillator (a :data:`BoardModel`).
 
@@ -384,6 +230,7 @@ class LoadedModel:
         self._cache: dict[tuple[int, ...], np.ndarray] = {}
         self._nominal: dict[tuple[int, ...], tuple[bool, float, float]] = {}
         self._fits: dict[tuple[tuple[int, ...], bytes], BoardFit] = {}
+        self._orbits: dict[tuple[int, ...], NominalOrbit | None] = {}
 
     @property
     def ln_max_margin(self) -> float:
@@ -430,14 +277,50 @@ class LoadedModel:
             np.array([r[2] for r in rows], dtype=float),
         )
 
+    def refine_orbits(self, designs: Designs, limit: int = ORBIT_DESIGNS) -> bool:
+        """The nominal orbits (:func:`picker.circuit.nominal_orbit.nominal_orbits`, (O1)-(O2))
+        of the first ``limit`` of ``designs``, cached; from then on every board of those
+        designs is shifted and judged by them. Whether any of them has one."""
+        keys = self._keys(designs)[:limit]
+        missing = [i for i, key in enumerate(keys) if key not in self._orbits]
+        if missing:
+            pb = self.problem
+            sub = designs.take(np.asarray(missing))
+            got = nominal_orbits(pb.topology, sub.values(pb), pb.parasitics, self.params)
+            for i, o in zip(missing, got, strict=True):
+                self._orbits[keys[i]] = o
+        return any(self._orbits[key] is not None for key in keys)
+
+    def orbits(self, designs: Designs) -> list[NominalOrbit | None]:
+        """The nominal orbit of each design (None where it has none or was not refined)."""
+        return [self._orbits.get(key) for key in self._keys(designs)]
+
+    def _fix(self, designs: Designs) -> Fix | None:
+        """(has an orbit, its shift (O1), its verdict (O2)) per design, or None."""
+        if not any(o is not None for o in self._orbits.values()):
+            return None
+        got = self.orbits(designs)
+        return Fix(
+            np.array([o is not None for o in got], dtype=bool),
+            np.array([o.shift if o is not None else 0.0 for o in got]),
+            np.array([o is not None and o.bursting for o in got], dtype=bool),
+        )
+
     # ------------------------------------------------------------------ the full model
 
-    def _full(self, vals: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Steady frequency (NaN where it does not count), margin and pass mask, full model."""
+    def _full(
+        self, vals: Mapping[str, np.ndarray], fix: Fix | None = None
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Steady frequency (NaN where it does not count), margin and pass mask, full model
+        (with the nominal orbits' (O1)-(O2) on the designs in ``fix``)."""
         pb = self.problem
         st = board_state(pb.topology, vals, pb.parasitics, self.params)
-        counts = np.asarray(st.runs, dtype=bool) & ~(st.margin > self._max())
-        f = np.where(counts, st.f_hz, np.nan)
+        burst, f_hz = np.asarray(st.bursting, dtype=bool), st.f_hz
+        if fix is not None:
+            burst = np.where(fix.has, fix.burst, burst)
+            f_hz = f_hz * np.exp(fix.shift)
+        counts = np.asarray(st.starts, dtype=bool) & ~burst & ~(st.margin > self._max())
+        f = np.where(counts, f_hz, np.nan)
         return f, st.margin, counts & (f >= pb.f_min) & (f <= pb.f_max)
 
     def _max(self) -> float:
@@ -452,17 +335,20 @@ class LoadedModel:
         """(f, margin, pass) of every board: :meth:`_approx` on the designs the board fit
         describes (:attr:`picker.circuit.board_fit.BoardFit.ok`), :meth:`_full` on the others."""
         fit = self.fit(vals, designs)
+        fix = self._fix(designs)
         if fit.ok.all():
-            return self._approx(vals, designs, fit, want_f)
+            return self._approx(vals, designs, fit, want_f, fix)
         shape = np.shape(vals[self.problem.topology.inductor])
         f, m = np.full(shape, np.nan), np.full(shape, np.nan)
         ok = np.zeros(shape, dtype=bool)
         a, b = np.flatnonzero(fit.ok), np.flatnonzero(~fit.ok)
         if a.size:
             sub = {p: v[:, a] for p, v in vals.items()}
-            f[:, a], m[:, a], ok[:, a] = self._approx(sub, designs.take(a), fit.take(a), want_f)
+            fa = fix.take(a) if fix is not None else None
+            f[:, a], m[:, a], ok[:, a] = self._approx(sub, designs.take(a), fit.take(a), want_f, fa)
         if b.size:
-            f[:, b], m[:, b], ok[:, b] = self._full({p: v[:, b] for p, v in vals.items()})
+            fb = fix.take(b) if fix is not None else None
+            f[:, b], m[:, b], ok[:, b] = self._full({p: v[:, b] for p, v in vals.items()}, fb)
         return f, m, ok
 
     def fit(self, vals: Mapping[str, np.ndarray], designs: Designs) -> BoardFit:
@@ -521,7 +407,7 @@ class LoadedModel:
         """Steady frequency (Hz, NaN where the board does not count for a reason other than
         its frequency) and start-up margin of every board, (samples, c)."""
         if self.method == "full":
-            f, m, _ = self._full(vals)
+            f, m, _ = self._full(vals, self._fix(designs))
             return f, m
         f, m, _ = self._split(vals, designs, True)
         return f, m
@@ -625,18 +511,26 @@ class LoadedModel:
         return out
 
     def _approx(
-        self, vals: Mapping[str, np.ndarray], designs: Designs, fit: BoardFit, want_f: bool
+        self,
+        vals: Mapping[str, np.ndarray],
+        designs: Designs,
+        fit: BoardFit,
+        want_f: bool,
+        fix: Fix | None = None,
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Steady f (NaN where not counted; all NaN unless ``want_f``), margin (NaN unless
         ``want_f``) and pass mask by the approximation (module docstring): (S1)/(S2) of the
         linear model, then (S3) and the linear model itself on the boards within the
         surrogate's error band of an edge, plus the board fit's offsets (F1) and its
-        bursting conditions (:meth:`picker.circuit.board_fit.BoardFit.verdicts`)."""
+        bursting conditions (:meth:`picker.circuit.board_fit.BoardFit.verdicts`); on the
+        designs in ``fix``, the nominal orbit's shift (O1) and verdict (O2) in their place."""
         pb = self.problem
         topo = pb.topology
         sur = self.surrogate(designs)
         band_f, band_f2, band_m, _, _ = self._calibrate(vals, sur)
         off_f = fit.quantity("off_f", vals)
+        if fix is not None:
+            off_f = off_f + fix.shift[None, :]
         off_m = fit.quantity("off_m", vals)
         ln_f, ln_m = surrogate_logs(topo, sur, vals, pb.parasitics)
         ln_f += off_f
@@ -665,6 +559,9 @@ class LoadedModel:
                 ln_f[near] = np.log(f_l) + off_f[near]
                 ln_m[near] = np.log(m_l) + off_m[near]
         burst, unsure = fit.verdicts(vals)
+        if fix is not None:
+            burst = np.where(fix.has[None, :], fix.burst[None, :], burst)
+            unsure = unsure & ~fix.has[None, :]
         with np.errstate(invalid="ignore", over="ignore"):
             counts = (ln_m > 0.0) & (ln_m <= top) & ~burst
             ok = counts & (ln_f >= lo) & (ln_f <= hi)
@@ -681,5 +578,5 @@ class LoadedModel:
 
     def __call__(self, vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
         if self.method == "full":
-            return self._full(vals)[2]
+            return self._full(vals, self._fix(designs))[2]
         return self._split(vals, designs, False)[2]

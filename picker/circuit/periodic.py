@@ -15,17 +15,12 @@ to the describing function's amplitude and period. From the orbit it reads:
 * the peak collector current and the device's mean dissipation ⟨I_C·V_CE + I_B·V_BE⟩;
 * whether the orbit is unstable (a Floquet multiplier outside the unit circle).
 
-Status: not yet called by :func:`picker.circuit.steady.steady_state`. Put in place of
-the describing function on the saturated designs (frequency, amplitude, and the Floquet
-verdict for bursting where Newton converged; ``scripts/shooting_stats.py``), measured
-on the validation sets (``tests/validation/``): main set (136 designs; 35 saturated,
-30 converged): frequency within 2 % for 95.2 % of the oscillating designs (90.5 %
-without), bursting precision 0.80 (0.78) and recall 0.80 (0.70), amplitude within
-±30 % for 100 % (96.7 %), Clapp worst 3.6 % (3.6 %: d100, not saturated); held-out set
-(60 designs; 18 saturated, 17 converged): 95.8 % (91.7 %), precision 1.00 (0.67),
-recall 0.40 (0.40), amplitude 100 % (95.2 %), Clapp worst 1.1 % (2.6 %). It costs tens of seconds per
-design one at a time (numpy's per-call overhead on small matrices; a batch of designs
-shares it), too slow for the search and for the validation tests as they stand.
+Where it is used: :mod:`picker.circuit.nominal_orbit` runs it on the designs whose
+describing function saturates, for the reported designs of ``solve`` and ``evaluate``
+and for the validation statistics (:func:`picker.circuit.validation.model_answers`).
+Speed (``python -m picker.bench.shooting``): the saturated designs of the validation
+sets in batches of one netlist shape, about a second of CPU per design; one design
+per call with the former 40-period warm-up, about four times that.
 """
 
 from __future__ import annotations
@@ -36,11 +31,11 @@ import numpy as np
 
 from picker.circuit.device import thermal_voltage
 from picker.circuit.network import Network
-from picker.circuit.shooting import STEPS, oscillating_mode, periodic_orbit
-from picker.circuit.transient import build_circuit, dc_point, dc_with_currents, device
+from picker.circuit.shooting import RETRY_WARM, STEPS, WARM, oscillating_mode, periodic_orbit
+from picker.circuit.transient import Circuit, build_circuit, dc_point, dc_with_currents, device
 from picker.tank.base import TWO_PI
 
-__all__ = ["REFINE", "PeriodicState", "periodic_state"]
+__all__ = ["REFINE", "PeriodicState", "board_lines", "periodic_circuits", "periodic_state"]
 
 #: The converged orbit is solved again with this many times the steps (for the
 #: multipliers and the figures).
@@ -61,6 +56,31 @@ class PeriodicState:
     multiplier: np.ndarray  # the largest non-trivial Floquet multiplier's modulus
 
 
+def board_lines(net: Network, idx: np.ndarray) -> tuple[list[list[str]], list[str]]:
+    """The netlist element lines of the boards ``idx`` of ``net`` (the lines ngspice is
+    given, :meth:`picker.circuit.stages.base.Stage.netlist`) and the model cards."""
+    stage, params = net.stage, net.params
+    topo = net.topology
+    # a position's line is named after the position (a plug-in's "Ka" for a capacitor):
+    # its SPICE letter is put in front where the name does not start with it
+    letter = {p: "C" if topo.unit(p) == "F" else "L" for p in topo.positions}
+    lines = []
+    models: list[str] = []
+    for i in idx:
+        vals = {p: float(net.el[p][i]) for p in topo.positions}
+        part = stage.netlist(topo, vals, float(net.el["stray"][i]), float(net.el["r_l"][i]), params)
+        own = []
+        for line in part.elements:
+            name = line.split(maxsplit=1)[0] if line.strip() else ""
+            pos = next((p for p in topo.positions if name in (p, p + "1")), None)
+            if pos is not None and not name.upper().startswith(letter[pos]):
+                line = letter[pos] + line
+            own.append(line)
+        lines.append(own)
+        models = part.models
+    return lines, models
+
+
 def periodic_state(
     net: Network,
     idx: np.ndarray,
@@ -70,29 +90,44 @@ def periodic_state(
     *,
     steps: int = STEPS,
     refine: int = REFINE,
+    warm: int = WARM,
+    retry: int = RETRY_WARM,
 ) -> PeriodicState:
     """The periodic orbits of the boards ``idx`` of ``net`` (a bjt stage with its bias
     network), from the describing function's frequency ``w`` (rad/s), tank-top
-    amplitude ``top`` (V) and mean collector current ``i_mean`` (A), one per element:
-    the start is the DC state with the transistor's mean currents (the bias shift) plus
-    the circuit's oscillating mode at that amplitude."""
-    stage, params = net.stage, net.params
+    amplitude ``top`` (V) and mean collector current ``i_mean`` (A), one per element
+    (:func:`periodic_circuits`; where ``w`` is not finite, the ideal tank's)."""
     topo = net.topology
-    lines = []
-    models: list[str] = []
-    for i in idx:
-        vals = {p: float(net.el[p][i]) for p in topo.positions}
-        part = stage.netlist(topo, vals, float(net.el["stray"][i]), float(net.el["r_l"][i]), params)
-        lines.append(part.elements)
-        models = part.models
-    circ = build_circuit(lines, models, stage.top, thermal_voltage(params.temperature_c))
-    m = idx.size
-    x_dc, ok_dc = dc_point(circ)
+    lines, models = board_lines(net, idx)
+    circ = build_circuit(lines, models, net.stage.top, thermal_voltage(net.params.temperature_c))
     w = np.where(
         np.isfinite(w) & (w > 0),
         w,
         TWO_PI * topo.frequency({p: net.el[p][idx] for p in topo.positions}, net.el["stray"][idx]),
     )
+    return periodic_circuits(
+        circ, w, top, i_mean, steps=steps, refine=refine, warm=warm, retry=retry
+    )
+
+
+def periodic_circuits(
+    circ: Circuit,
+    w: np.ndarray,
+    top: np.ndarray,
+    i_mean: np.ndarray,
+    *,
+    steps: int = STEPS,
+    refine: int = REFINE,
+    warm: int = WARM,
+    retry: int = RETRY_WARM,
+) -> PeriodicState:
+    """The periodic orbits of a batch of circuits (:func:`picker.circuit.transient.build_circuit`)
+    from the frequencies ``w`` (rad/s), tank-top amplitudes ``top`` (V) and mean
+    collector currents ``i_mean`` (A) of the describing function, one per element: the
+    start is the DC state with the transistor's mean currents (the bias shift) plus the
+    circuit's oscillating mode at that amplitude."""
+    m = circ.b.shape[0]
+    x_dc, ok_dc = dc_point(circ)
     _, vec = oscillating_mode(circ, x_dc, w)
     ar = np.arange(m)
     # the mode's phase with the base-emitter voltage at its trough: the transistor is off
@@ -108,7 +143,7 @@ def periodic_state(
     x_mid = np.where(i_ok[:, None] & np.isfinite(x_mid), x_mid, x_dc)
     x0 = x_mid + (vec * (amp / np.maximum(np.abs(v_top), 1e-300))[:, None]).real
     x0 = np.where(np.isfinite(x0), x0, x_dc)
-    orb = periodic_orbit(circ, x0, TWO_PI / w, steps=steps)
+    orb = periodic_orbit(circ, x0, TWO_PI / w, steps=steps, warm=warm, retry=retry)
     ok = orb.ok & ok_dc
     period, mult, unstable = orb.period, orb.multipliers, orb.unstable
     xs = orb.x[:-1]  # (N, m, n): one period
@@ -119,7 +154,7 @@ def periodic_state(
         # the stability of a steady design
         sel = np.nonzero(ok)[0]
         fine = periodic_orbit(
-            circ.take(sel), orb.x[0, sel], orb.period[sel], steps=refine * steps, warm=0
+            circ.take(sel), orb.x[0, sel], orb.period[sel], steps=refine * steps, warm=0, retry=0
         )
         ok[sel] = fine.ok
         period = period.copy()
@@ -136,7 +171,9 @@ def periodic_state(
         harm = 20.0 * np.log10(spec[2:4] / spec[1][None, :]).T
     dev = device(circ, xs)
     vce = dev["vbe"] - dev["vbc"]
-    p_dev = np.mean(dev["ic"] * vce + dev["ib"] * dev["vbe"], axis=0)
+    # the mean over each element's own contiguous row: numpy's pairwise summation then
+    # adds the same terms in the same order whatever the batch beside it
+    p_dev = np.ascontiguousarray((dev["ic"] * vce + dev["ib"] * dev["vbe"]).T).mean(axis=1)
     mu = np.abs(mult[:, 0])
     nan = np.nan
     return PeriodicState(

@@ -41,17 +41,34 @@ import numpy as np
 
 from picker.circuit.transient import Circuit, evaluate, integrate
 
-__all__ = ["Orbit", "STEPS", "UNSTABLE_MARGIN", "periodic_orbit", "oscillating_mode"]
+__all__ = [
+    "Orbit",
+    "RETRY_WARM",
+    "STEPS",
+    "WARM",
+    "UNSTABLE_MARGIN",
+    "periodic_orbit",
+    "oscillating_mode",
+]
 
 #: Time steps per period (BDF2; the frequency's discretisation error is about
 #: 0.1·(2π/N)², 6e-5 at N = 128, and is removed by Richardson extrapolation).
 STEPS = 128
-#: Periods integrated from the start before Newton.
-WARM = 40
+#: Periods integrated from the start before Newton: the start (the describing
+#: function's bias point, amplitude and period) is near the orbit, so a few periods
+#: let the fast transients die and Newton takes the slow ones (the bias network).
+WARM = 5
+#: Periods integrated from the start before Newton again where Newton failed after
+#: :data:`WARM` (a start too far from the orbit for Newton).
+RETRY_WARM = 40
 #: Newton steps on (S1) at most.
 ITERATIONS = 30
-#: How far outside the unit circle a multiplier must lie to call the orbit unstable.
-UNSTABLE_MARGIN = 0.01
+#: How far outside the unit circle a multiplier must lie to call the orbit unstable:
+#: twice the integration's error on the multipliers at the refined 512 steps a period
+#: (the trivial multiplier, exactly 1 in the limit, comes out about 1 % off there, and
+#: which eigenvalue is the trivial one is decided from the eigenvectors, so an error of
+#: that size can land on the largest non-trivial one).
+UNSTABLE_MARGIN = 0.02
 #: A multiplier this close to 1 (a mode slower than ~1/FROZEN periods) is frozen.
 FROZEN = 1e-4
 _T_STEP = 0.05
@@ -148,9 +165,32 @@ def periodic_orbit(
     steps: int = STEPS,
     warm: int = WARM,
     iterations: int = ITERATIONS,
+    retry: int = RETRY_WARM,
 ) -> Orbit:
     """Newton on (S1)-(S2) for each circuit from ``x_start`` (B, n) and ``period`` (B,),
-    after ``warm`` periods of plain integration; each element stops on its own."""
+    after ``warm`` periods of plain integration; each element stops on its own. Where
+    Newton fails, once more from ``x_start`` after ``retry`` periods (if more than
+    ``warm``)."""
+    orb = _orbit(circ, x_start, period, steps, warm, iterations)
+    bad = np.nonzero(~orb.ok)[0]
+    if bad.size == 0 or retry <= warm:
+        return orb
+    again = _orbit(circ.take(bad), x_start[bad], period[bad], steps, retry, iterations)
+    fix = bad[again.ok]
+    if fix.size == 0:
+        return orb
+    period, x, mult, ok = orb.period.copy(), orb.x.copy(), orb.multipliers.copy(), orb.ok.copy()
+    period[fix] = again.period[again.ok]
+    x[:, fix] = again.x[:, again.ok]
+    mult[fix] = again.multipliers[again.ok]
+    ok[fix] = True
+    return Orbit(period, x, mult, ok)
+
+
+def _orbit(
+    circ: Circuit, x_start: np.ndarray, period: np.ndarray, steps: int, warm: int, iterations: int
+) -> Orbit:
+    """:func:`periodic_orbit` with one warm-up."""
     bsz, n = x_start.shape
     x0 = x_start.copy()
     t = period.astype(float).copy()

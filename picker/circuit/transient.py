@@ -47,6 +47,7 @@ __all__ = [
     "Circuit",
     "Period",
     "build_circuit",
+    "charge",
     "dc_point",
     "dc_with_currents",
     "device",
@@ -80,6 +81,13 @@ class Circuit:
     card: dict[str, float]
     vt: float
     n_nodes: np.ndarray  # (B,) node-voltage unknowns (the rest are inductor currents)
+    #: (B, n, 2): ∂(V_BE, V_BC)/∂x, the transistor's junction voltages from x
+    gather: np.ndarray
+    #: (B, n, 2): where I_C and I_B enter the rows of x (+1 at the collector or the
+    #: base, −1 at the emitter)
+    scatter: np.ndarray
+    #: (B, n): where the diffusion charge q_D sits (+1 at the base, −1 at the emitter)
+    charge_at: np.ndarray
 
     @property
     def size(self) -> int:
@@ -96,6 +104,9 @@ class Circuit:
             self.card,
             self.vt,
             self.n_nodes[rows],
+            self.gather[rows],
+            self.scatter[rows],
+            self.charge_at[rows],
         )
 
 
@@ -204,7 +215,26 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
                     b[r, j] += sign * known[p]
         for i in range(len(nodes) + len(inductors), n):  # padding: x_i = 0
             g[r, i, i] = 1.0
-    return Circuit(g[:, :n, :n], c[:, :n, :n], b[:, :n], qi, tops, card, vt, n_nodes)
+    # the transistor's incidence over (collector, base, emitter); ground (index n) drops
+    inc = np.zeros((m, n + 1, 3))
+    inc[np.arange(m)[:, None], qi, np.arange(3)[None, :]] = 1.0
+    inc = inc[:, :n]
+    gather = inc @ np.array([[0.0, -1.0], [1.0, 1.0], [-1.0, 0.0]])  # V_BE, V_BC
+    scatter = inc @ np.array([[1.0, 0.0], [0.0, 1.0], [-1.0, -1.0]])  # I_C, I_B
+    charge_at = inc[:, :, 1] - inc[:, :, 2]
+    return Circuit(
+        g[:, :n, :n],
+        c[:, :n, :n],
+        b[:, :n],
+        qi,
+        tops,
+        card,
+        vt,
+        n_nodes,
+        gather,
+        scatter,
+        charge_at,
+    )
 
 
 def _exp(u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -213,71 +243,74 @@ def _exp(u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return e * (1.0 + np.maximum(u - _EXP_CAP, 0.0)), e
 
 
-def device(circ: Circuit, x: np.ndarray) -> dict[str, np.ndarray]:
-    """The transistor's (T2)-(T3) at states x (..., B, n): V_BE, V_BC, I_C, I_B, q_D
-    and the exponentials' derivatives."""
-    xe = np.concatenate([x, np.zeros(x.shape[:-1] + (1,))], axis=-1)
-    ar = np.arange(circ.q.shape[0])
-    vc, vb, ve = (xe[..., ar, circ.q[:, k]] for k in range(3))
-    vbe, vbc = vb - ve, vb - vc
-    p = circ.card
-    vt = circ.vt
+def _terms(
+    card: dict[str, float], vt: float, vbe: np.ndarray, vbc: np.ndarray
+) -> dict[str, np.ndarray]:
+    """(T2)-(T3) at junction voltages ``vbe``, ``vbc``."""
     ef, dff = _exp(vbe / vt)
     er, dfr = _exp(vbc / vt)
-    i_f, i_r = p["IS"] * (ef - 1.0), p["IS"] * (er - 1.0)
-    kq = 1.0 - vbc / p["VAF"]  # 1/q_b (T3)
+    i_f, i_r = card["IS"] * (ef - 1.0), card["IS"] * (er - 1.0)
+    kq = 1.0 - vbc / card["VAF"]  # 1/q_b (T3)
     return {
         "vbe": vbe,
         "vbc": vbc,
         "i_f": i_f,
         "i_r": i_r,
-        "g_f": p["IS"] * dff / vt,
-        "g_r": p["IS"] * dfr / vt,
+        "g_f": card["IS"] * dff / vt,
+        "g_r": card["IS"] * dfr / vt,
         "kq": kq,
-        "ic": (i_f - i_r) * kq - i_r / p["BR"],
-        "ib": i_f / p["BF"] + i_r / p["BR"],
-        "qd": p["TF"] * i_f * kq,
+        "ic": (i_f - i_r) * kq - i_r / card["BR"],
+        "ib": i_f / card["BF"] + i_r / card["BR"],
+        "qd": card["TF"] * i_f * kq,
     }
 
 
+def device(circ: Circuit, x: np.ndarray) -> dict[str, np.ndarray]:
+    """The transistor's (T2)-(T3) at states x (..., B, n): V_BE, V_BC, I_C, I_B, q_D
+    and the exponentials' derivatives."""
+    v = np.einsum("...bi,bik->...bk", x, circ.gather)
+    return _terms(circ.card, circ.vt, v[..., 0], v[..., 1])
+
+
 def evaluate(circ: Circuit, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """I(x), Q(x) of (T1) and their Jacobians ∂I/∂x, ∂Q/∂x for x (B, n)."""
-    bsz, n = x.shape
-    ar = np.arange(bsz)
+    """I(x), Q(x) of (T1) and their Jacobians ∂I/∂x, ∂Q/∂x for x (B, n).
+
+    The transistor enters through :attr:`Circuit.gather` (its V_BE, V_BC from x) and
+    :attr:`Circuit.scatter` (its I_C, I_B into the rows of x; the emitter takes
+    −I_C − I_B), each an einsum over the batch, so that no array is built element by
+    element at each call."""
+    bsz = x.shape[0]
     p = circ.card
-    dv = device(circ, x)
-    i_f, i_r, g_f, g_r, kq = dv["i_f"], dv["i_r"], dv["g_f"], dv["g_r"], dv["kq"]
-    ic, ib, qd = dv["ic"], dv["ib"], dv["qd"]
-    # derivatives by (v_BE, v_BC)
-    dic = (g_f * kq, -g_r * kq - (i_f - i_r) / p["VAF"] - g_r / p["BR"])
-    dib = (g_f / p["BF"], g_r / p["BR"])
-    dqd = (p["TF"] * g_f * kq, -p["TF"] * i_f / p["VAF"])
-    cur = np.einsum("bij,bj->bi", circ.g, x)
-    chg = np.einsum("bij,bj->bi", circ.c, x)
-    jg = np.zeros((bsz, n + 1, n + 1))
-    jc = np.zeros((bsz, n + 1, n + 1))
-    jg[:, :n, :n] = circ.g
-    jc[:, :n, :n] = circ.c
-    cext = np.zeros((bsz, n + 1))
-    qext = np.zeros((bsz, n + 1))
-    # terminal currents into the device over (collector, base, emitter): I_C, I_B,
-    # −I_C − I_B; the diffusion charge (0, q_D, −q_D); ∂v_BE/∂(v_C, v_B, v_E) = (0, 1, −1),
-    # ∂v_BC/∂(v_C, v_B, v_E) = (−1, 1, 0)
-    zero = np.zeros(bsz)
-    cext[ar[:, None], circ.q] += np.stack([ic, ib, -ic - ib], axis=1)
-    qext[ar[:, None], circ.q] += np.stack([zero, qd, -qd], axis=1)
+    v = np.einsum("bi,bik->bk", x, circ.gather)
+    dv = _terms(p, circ.vt, v[:, 0], v[:, 1])
+    i_f, g_f, g_r, kq = dv["i_f"], dv["g_f"], dv["g_r"], dv["kq"]
+    # ∂(I_C, I_B)/∂(V_BE, V_BC) and ∂q_D/∂(V_BE, V_BC)
+    dic_bc = -g_r * kq - (i_f - dv["i_r"]) / p["VAF"] - g_r / p["BR"]
+    dcur = np.empty((bsz, 2, 2))
+    dcur[:, 0, 0] = g_f * kq
+    dcur[:, 0, 1] = dic_bc
+    dcur[:, 1, 0] = g_f / p["BF"]
+    dcur[:, 1, 1] = g_r / p["BR"]
+    dq = np.empty((bsz, 2))
+    dq[:, 0] = p["TF"] * g_f * kq
+    dq[:, 1] = -p["TF"] * i_f / p["VAF"]
+    dev = np.empty((bsz, 2))
+    dev[:, 0] = dv["ic"]
+    dev[:, 1] = dv["ib"]
+    cur = np.einsum("bij,bj->bi", circ.g, x) + np.einsum("bik,bk->bi", circ.scatter, dev)
+    chg = np.einsum("bij,bj->bi", circ.c, x) + circ.charge_at * dv["qd"][:, None]
+    jg = circ.g + np.einsum("bik,bkl,bjl->bij", circ.scatter, dcur, circ.gather)
+    jc = circ.c + np.einsum("bi,bl,bjl->bij", circ.charge_at, dq, circ.gather)
+    return cur, chg, jg, jc
 
-    def by_node(d: tuple[np.ndarray, np.ndarray]) -> np.ndarray:
-        return np.stack([-d[1], d[0] + d[1], -d[0]], axis=1)  # (B, 3) over (c, b, e)
 
-    gc, gb = by_node(dic), by_node(dib)
-    qb = by_node(dqd)
-    loc_g = np.stack([gc, gb, -gc - gb], axis=1)
-    loc_c = np.stack([np.zeros_like(qb), qb, -qb], axis=1)
-    rows, cols = circ.q[:, :, None], circ.q[:, None, :]
-    jg[ar[:, None, None], rows, cols] += loc_g
-    jc[ar[:, None, None], rows, cols] += loc_c
-    return cur + cext[:, :n], chg + qext[:, :n], jg[:, :n, :n], jc[:, :n, :n]
+def charge(circ: Circuit, x: np.ndarray) -> np.ndarray:
+    """Q(x) of (T1) alone, for x (B, n)."""
+    v = np.einsum("bi,bik->bk", x, circ.gather)
+    p = circ.card
+    ef, _ = _exp(v[:, 0] / circ.vt)
+    qd = p["TF"] * p["IS"] * (ef - 1.0) * (1.0 - v[:, 1] / p["VAF"])
+    return np.einsum("bij,bj->bi", circ.c, x) + circ.charge_at * qd[:, None]  # type: ignore[no-any-return]
 
 
 def _damping(circ: Circuit, x: np.ndarray, dx: np.ndarray) -> np.ndarray:
@@ -285,22 +318,16 @@ def _damping(circ: Circuit, x: np.ndarray, dx: np.ndarray) -> np.ndarray:
     (Nagel, *SPICE2*, UCB/ERL M520, 1975, sec. on convergence: above the critical voltage
     V_crit = V_T·ln(V_T/(√2·IS)) a junction's rise is cut to V_T·ln(1 + ΔV/V_T)), the
     whole step scaled to the tightest junction, and at most :data:`_V_STEP` on either."""
-    bsz = dx.shape[0]
-    z = np.zeros((bsz, 1))
-    xe = np.concatenate([x, z], axis=1)
-    de = np.concatenate([dx, z], axis=1)
-    ar = np.arange(bsz)
     vt = circ.vt
     v_crit = vt * np.log(vt / (np.sqrt(2.0) * circ.card["IS"]))
-    frac = np.ones(bsz)
-    for hi, lo in ((1, 2), (1, 0)):  # V_BE, V_BC
-        v = xe[ar, circ.q[:, hi]] - xe[ar, circ.q[:, lo]]
-        d = de[ar, circ.q[:, hi]] - de[ar, circ.q[:, lo]]
-        rise = (v + d > v_crit) & (d > 2.0 * vt)
-        cut = np.where(rise, vt * np.log1p(np.maximum(d, 0.0) / vt), np.abs(d))
-        cut = np.minimum(cut, _V_STEP)
-        frac = np.minimum(frac, np.where(np.abs(d) > cut, cut / np.maximum(np.abs(d), 1e-300), 1.0))
-    return frac
+    v = np.einsum("bi,bik->bk", x, circ.gather)  # (V_BE, V_BC)
+    d = np.einsum("bi,bik->bk", dx, circ.gather)
+    rise = (v + d > v_crit) & (d > 2.0 * vt)
+    ad = np.abs(d)
+    cut = np.minimum(np.where(rise, vt * np.log1p(np.maximum(d, 0.0) / vt), ad), _V_STEP)
+    with np.errstate(invalid="ignore"):
+        frac = np.where(ad > cut, cut / np.maximum(ad, 1e-300), 1.0)
+    return np.minimum(1.0, frac.min(axis=1))  # type: ignore[no-any-return]
 
 
 def dc_point(circ: Circuit, x: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
@@ -354,27 +381,35 @@ def _solve_step(
     hist: np.ndarray,
     tol: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Newton on α·Q(x)/h + I(x) + hist = 0 per element; the solution and a mask."""
+    """Newton on α·Q(x)/h + I(x) + hist = 0 per element; the solution and a mask.
+
+    Every element is evaluated at every iteration (one call over the whole batch costs
+    what a call over part of it does), but an element's state stops moving once its own
+    Newton has converged, so its result does not depend on the others."""
     x = x_guess.copy()
     bsz = x.shape[0]
     done = np.zeros(bsz, dtype=bool)
+    failed = ~np.all(np.isfinite(x), axis=1)
+    x[failed] = 0.0  # evaluated, never moved, reported not ok
+    done |= failed
+    ha = (alpha / h)[:, None]
     for _ in range(_NEWTON):
-        act = np.nonzero(~done)[0]
-        if act.size == 0:
-            break
-        sub = circ.take(act)
-        cur, chg, jg, jc = evaluate(sub, x[act])
-        ha = alpha / h[act]
-        r = ha[:, None] * chg + cur + hist[act]
-        jac = ha[:, None, None] * jc + jg
+        cur, chg, jg, jc = evaluate(circ, x)
+        r = ha * chg + cur + hist
+        jac = ha[:, :, None] * jc + jg
         dx = -np.linalg.solve(jac, r[..., None])[..., 0]
-        lim = _damping(sub, x[act], dx)
-        x[act] += lim[:, None] * dx
         fin = np.all(np.isfinite(dx), axis=1)
-        done[act[(lim == 1.0) & np.all(np.abs(dx) <= tol[act], axis=1)]] = True
-        done[act[~fin]] = True
-    ok = np.all(np.isfinite(x), axis=1) & done
-    return x, ok
+        failed |= ~done & ~fin
+        done |= failed
+        dx[~fin] = 0.0  # a failed element's state stays finite (and is not used)
+        lim = _damping(circ, x, dx)
+        move = ~done
+        x = np.where(move[:, None], x + lim[:, None] * dx, x)
+        done |= move & (lim == 1.0) & np.all(np.abs(dx) <= tol, axis=1)
+        if done.all():
+            break
+    x[failed] = np.nan
+    return x, done & ~failed
 
 
 def integrate(
@@ -410,7 +445,7 @@ def integrate(
         c_hist.append(jc1)
         chg_hist.append(chg1)
     else:
-        chg_hist.append(evaluate(circ, x1)[1])
+        chg_hist.append(charge(circ, x1))
     for k in range(1, steps):
         # BDF2: (3·Q − 4·Q_k + Q_{k−1})/(2h) + I − b = 0
         hist = (-2.0 * chg_hist[-1] + 0.5 * chg_hist[-2]) / h[:, None] - circ.b
@@ -420,13 +455,15 @@ def integrate(
         xk, okk = _solve_step(circ, guess, 1.5, h, hist, tol)
         ok &= okk
         xs[k + 1] = xk
-        cur1, chg1, jg1, jc1 = evaluate(circ, xk)
         if sens:
+            cur1, chg1, jg1, jc1 = evaluate(circ, xk)
             jac = 1.5 / h[:, None, None] * jc1 + jg1
             rhs = np.einsum("bij,bjk->bik", 2.0 / h[:, None, None] * c_hist[-1], s_now)
             rhs -= np.einsum("bij,bjk->bik", 0.5 / h[:, None, None] * c_hist[-2], s_prev)
             rhs[:, :, n] -= (cur1 - circ.b) / h[:, None] / steps
             s_prev, s_now = s_now, np.linalg.solve(jac, rhs)
             c_hist = [c_hist[-1], jc1]
+        else:
+            chg1 = charge(circ, xk)
         chg_hist = [chg_hist[-1], chg1]
     return Period(xs, s_now if sens else None, ok)

@@ -33,7 +33,9 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.fet import FetCard
 from picker.circuit.netlist import transient_plan, write_netlist
+from picker.circuit.network import Network
 from picker.circuit.ngspice import simulate
+from picker.circuit.nominal_orbit import board_orbits
 from picker.circuit.steady import steady_state
 from picker.files import read_text
 from picker.tank import get_topology
@@ -49,6 +51,7 @@ __all__ = [
     "design_to_dict",
     "load_reference",
     "model_answer",
+    "model_answers",
     "run_design",
 ]
 
@@ -144,18 +147,35 @@ class ModelAnswer:
 
 
 def model_answer(d: Design) -> ModelAnswer:
-    """:func:`picker.circuit.steady.steady_state` of one design."""
-    topo = d.topo
-    st = steady_state(topo, d.values, d.stray, d.params)
-    starts = bool(np.asarray(st.starts))
-    return ModelAnswer(
-        starts=starts,
-        bursting=bool(np.asarray(st.bursting)) and starts,
-        f_hz=float(np.asarray(st.f_hz)),
-        f_ideal_hz=float(topo.frequency(d.values, d.stray)),
-        amplitude_v=float(np.asarray(st.amplitude_v)),
-        margin=float(np.asarray(st.margin)),
-    )
+    """:func:`model_answers` of one design."""
+    return model_answers([d])[0]
+
+
+def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
+    """The answer of the pipeline's model for each design, as ``solve`` reports it for a
+    candidate at its nominal values: :func:`picker.circuit.steady.steady_state`, and where
+    it finds the transistor saturated, the periodic orbit of the design's own netlist
+    (:func:`picker.circuit.nominal_orbit.board_orbits`: its frequency, amplitude and
+    Floquet verdict; the saturated designs are shot in one batch)."""
+    nets = [Network.build(d.topo, d.values, d.stray, d.params) for d in designs]
+    orbits = board_orbits(nets)
+    out = []
+    for d, orb in zip(designs, orbits, strict=True):
+        topo = d.topo
+        st = steady_state(topo, d.values, d.stray, d.params)
+        starts = bool(np.asarray(st.starts))
+        o = orb[0]
+        out.append(
+            ModelAnswer(
+                starts=starts,
+                bursting=(bool(np.asarray(st.bursting)) if o is None else o.bursting) and starts,
+                f_hz=float(np.asarray(st.f_hz)) if o is None else o.f_hz,
+                f_ideal_hz=float(topo.frequency(d.values, d.stray)),
+                amplitude_v=float(np.asarray(st.amplitude_v)) if o is None else o.amplitude_v,
+                margin=float(np.asarray(st.margin)),
+            )
+        )
+    return out
 
 
 @dataclass(frozen=True)
