@@ -25,6 +25,7 @@ from typing import Any
 import pytest
 
 from picker.api import evaluate, solve, spec_from_dict
+from picker.circuit.netlist import write_netlist
 from picker.tank import TOPOLOGIES, get_topology
 from picker.tank.base import Topology
 
@@ -140,3 +141,36 @@ def test_loaded_circuit_model_matches(renamed: Topology) -> None:
     assert ref.extra["f_loaded_hz"] is not None
     assert got.extra["f_loaded_hz"] == ref.extra["f_loaded_hz"]
     assert got.extra["startup_margin"] == ref.extra["startup_margin"]
+
+
+def test_netlist_names_each_part_by_its_spice_letter(renamed: Topology) -> None:
+    """A position whose name does not begin with its element's letter is written with the
+    letter in front (SPICE reads an element's kind from its first letter: a line "Ka …"
+    would be a coupling element; SPICE3 manual, element conventions). The renamed netlist
+    is then the Colpitts netlist with its parts' names mapped, line for line. Bug caught:
+    the tank's lines named after the position as it is."""
+    data = copy.deepcopy(BASE)
+    data["amplifier"] = {
+        "kind": "bjt",
+        "supply": "9 V",
+        "r_load": "1 kohm",
+        "r_bias_top": "47 kohm",
+        "r_bias_bottom": "10 kohm",
+        "r_emitter": "1 kohm",
+        "c_emitter": "100 nF",
+        "c_coupling": "10 nF",
+    }
+    values = {"C1": 470e-12, "C2": 1e-9, "L": 56e-6}
+    ref_spec, got_spec = spec_from_dict(data), spec_from_dict(_renamed_spec(data))
+    assert ref_spec.amplifier is not None and got_spec.amplifier is not None
+    params = ref_spec.amplifier.to_params()
+    ref = write_netlist(get_topology("colpitts"), values, 5e-12, params)
+    got = write_netlist(renamed, {RENAME[p]: v for p, v in values.items()}, 5e-12, params)
+    got_lines = got.replace("renamed-colpitts", "colpitts").splitlines()
+    mapped = [
+        line.replace("CKa ", "C1 ").replace("CKb ", "C2 ").replace("Lt1 ", "L1 ")
+        for line in got_lines
+    ]
+    assert mapped == ref.replace("renamed-colpitts", "colpitts").splitlines()
+    assert any(line.startswith("CKa ") for line in got_lines)
+    assert not any(line.startswith(("Ka ", "Kb ")) for line in got_lines)

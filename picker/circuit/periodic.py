@@ -61,22 +61,12 @@ def board_lines(net: Network, idx: np.ndarray) -> tuple[list[list[str]], list[st
     given, :meth:`picker.circuit.stages.base.Stage.netlist`) and the model cards."""
     stage, params = net.stage, net.params
     topo = net.topology
-    # a position's line is named after the position (a plug-in's "Ka" for a capacitor):
-    # its SPICE letter is put in front where the name does not start with it
-    letter = {p: "C" if topo.unit(p) == "F" else "L" for p in topo.positions}
     lines = []
     models: list[str] = []
     for i in idx:
         vals = {p: float(net.el[p][i]) for p in topo.positions}
         part = stage.netlist(topo, vals, float(net.el["stray"][i]), float(net.el["r_l"][i]), params)
-        own = []
-        for line in part.elements:
-            name = line.split(maxsplit=1)[0] if line.strip() else ""
-            pos = next((p for p in topo.positions if name in (p, p + "1")), None)
-            if pos is not None and not name.upper().startswith(letter[pos]):
-                line = letter[pos] + line
-            own.append(line)
-        lines.append(own)
+        lines.append(list(part.elements))
         models = part.models
     return lines, models
 

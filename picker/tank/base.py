@@ -62,6 +62,14 @@ def resonant_frequency(l: Any, c_eff: Any) -> Any:
     return 1.0 / (TWO_PI * np.sqrt(np.asarray(l) * np.asarray(c_eff)))
 
 
+def spice_name(position: str, letter: str) -> str:
+    """The SPICE element name of ``position``'s part: the name itself where it begins with
+    the element's letter (``letter``: "C" or "L"), else the letter in front (a plug-in's
+    capacitor "Ka" is written "CKa": SPICE reads an element's kind from its first letter,
+    and a line "Ka …" would be a coupling; the SPICE3 manual's element conventions)."""
+    return position if position[:1].upper() == letter else letter + position
+
+
 def series_capacitance(*caps: Any) -> Any:
     """Capacitors in series: 1 / Σ(1/Ci)."""
     inv = sum(1.0 / np.asarray(c, dtype=float) for c in caps)
@@ -409,13 +417,14 @@ class Topology:
 
         lines: list[str] = []
 
-        def cap(name: str, a: str, b: str) -> None:
-            r = capacitor_esr.get(name, 0.0)
+        def cap(pos: str, a: str, b: str) -> None:
+            r = capacitor_esr.get(pos, 0.0)
+            name = spice_name(pos, "C")
             if r:
-                lines.append(f"{name} {a} n{name} {g(values[name])}")
+                lines.append(f"{name} {a} n{name} {g(values[pos])}")
                 lines.append(f"R{name}ESR n{name} {b} {g(r)}")
             else:
-                lines.append(f"{name} {a} {b} {g(values[name])}")
+                lines.append(f"{name} {a} {b} {g(values[pos])}")
 
         out, inp = self.feedback_pair
         cap(out, out_node, "0")
@@ -428,7 +437,7 @@ class Topology:
         if bleed is not None:
             lines.append(f"RBLEED {out_node} 0 {g(bleed)}")
         ind = self.inductor
-        name = f"{ind}1"
+        name = f"{spice_name(ind, 'L')}1"
         if r_l > 0:
             lines += [f"{name} {node} nl {g(values[ind])}", f"RLESR nl {in_node} {g(r_l)}"]
         else:

@@ -45,7 +45,7 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from picker.tank.base import COUPLING, MAX_COUPLING, TOPOLOGIES, Topology
+from picker.tank.base import COUPLING, MAX_COUPLING, TOPOLOGIES, Topology, spice_name
 
 __all__ = [
     "HARTLEY",
@@ -336,22 +336,23 @@ class Hartley(Topology):
         out, inp = self.feedback_pair
         l1, l2 = float(values[out]), float(values[inp])
         lines: list[str] = []
+        l_out, l_in = spice_name(out, "L"), spice_name(inp, "L")
         for name, a, b, lv, r in (
-            (out, out_node, "tap", l1, r_l),
-            (inp, "tap", in_node, l2, r_l * l2 / l1),
+            (l_out, out_node, "tap", l1, r_l),
+            (l_in, "tap", in_node, l2, r_l * l2 / l1),
         ):
             if r > 0:
                 lines += [f"{name} {a} n{name} {g(lv)}", f"R{name}ESR n{name} {b} {g(r)}"]
             else:
                 lines.append(f"{name} {a} {b} {g(lv)}")
         if self.coupling > 0:
-            lines.append(f"K12 {out} {inp} {g(self.coupling)}")
+            lines.append(f"K12 {l_out} {l_in} {g(self.coupling)}")
         lines.append(f"CTAP tap 0 {g(TAP_BYPASS)}")
         node = out_node
         chain = self.capacitors
         for k, c in enumerate(chain):
             nxt = in_node if k == len(chain) - 1 else f"m{k + 1}"
-            elem = "CT" if c == "C" else c
+            elem = "CT" if c == "C" else spice_name(c, "C")
             r = capacitor_esr.get(c, 0.0)
             if r:
                 lines += [
