@@ -311,10 +311,7 @@ class CommonBase(CommonEmitter):
                 "no base bypass (c_base): the model takes the base as AC ground; the netlist "
                 "needs the capacitor"
             )
-        b = self.bias(params)
-        if b is not None and b.saturated:
-            out.append("the bias network saturates the transistor (V_BC > 0.4 V)")
-        return out
+        return out + self.bias_cautions(params)
 
     # ------------------------------------------------------------ netlist
 

@@ -296,10 +296,7 @@ class CommonCollector(CommonEmitter):
                 "no DC-blocking capacitor at the tank's grounded end: L shorts the base to "
                 "ground and the follower has no bias"
             )
-        b = self.bias(params)
-        if b is not None and b.saturated:
-            out.append("the bias network saturates the transistor (V_BC > 0.4 V)")
-        return out
+        return out + self.bias_cautions(params)
 
     # ------------------------------------------------------------ netlist
 

@@ -120,10 +120,7 @@ class CommonDrain(CommonSource, CommonCollector):
                 "no DC-blocking capacitor at the tank's grounded end: L takes the gate to "
                 "ground and the divider's bias is lost"
             )
-        fb = self.fet_bias(params)
-        if fb is not None and fb.triode:
-            out.append("the bias puts the fet in its triode region (V_DS < V_GS - VTO)")
-        return out
+        return out + self.bias_cautions(params)
 
     def netlist(
         self,

@@ -510,10 +510,15 @@ class CommonEmitter(Stage):
                 "no DC-blocking capacitor between collector and tank: L puts the collector's DC "
                 "voltage on the base and the bias point is lost"
             )
+        return out + self.bias_cautions(params)
+
+    def bias_cautions(self, params: AmplifierParams) -> list[str]:
+        """The solved bias's caution, shared by the stages built on this one: a bias
+        network that saturates the transistor."""
         b = self.bias(params)
         if b is not None and b.saturated:
-            out.append("the bias network saturates the transistor (V_BC > 0.4 V)")
-        return out
+            return ["the bias network saturates the transistor (V_BC > 0.4 V)"]
+        return []
 
     # ------------------------------------------------------------ netlist
 

@@ -109,10 +109,7 @@ class CommonGate(CommonSource, CommonBase):
                 "no gate bypass (c_base): the model takes the gate as AC ground; the netlist "
                 "needs the capacitor"
             )
-        fb = self.fet_bias(params)
-        if fb is not None and fb.triode:
-            out.append("the bias puts the fet in its triode region (V_DS < V_GS - VTO)")
-        return out
+        return out + self.bias_cautions(params)
 
     def settling_time(self, params: AmplifierParams) -> float:
         """Five time constants of the bypassed gate (R_th·C_base), none with the gate

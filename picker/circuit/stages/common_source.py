@@ -333,14 +333,12 @@ class CommonSource(CommonEmitter):
         fb = self.fet_bias(params)
         return math.inf if fb is None else fb.vds - fb.u
 
-    def cautions(self, topology: Topology, params: AmplifierParams) -> list[str]:
-        """The common-emitter stage's blocking-capacitor caution; a bias in the triode
-        region (V_DS < V_GS − VTO)."""
-        out = [c for c in super().cautions(topology, params) if "saturates" not in c]
+    def bias_cautions(self, params: AmplifierParams) -> list[str]:
+        """A bias in the fet's triode region (V_DS < V_GS − VTO), for every fet stage."""
         fb = self.fet_bias(params)
         if fb is not None and fb.triode:
-            out.append("the bias puts the fet in its triode region (V_DS < V_GS - VTO)")
-        return out
+            return ["the bias puts the fet in its triode region (V_DS < V_GS - VTO)"]
+        return []
 
     def drive_limit(
         self, params: AmplifierParams, ss: SmallSignal, margin: np.ndarray, ok: np.ndarray
