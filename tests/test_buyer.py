@@ -277,6 +277,46 @@ def test_rank_by_cost_falls_back_with_a_warning(tmp_path):
     assert ys == sorted(ys, reverse=True)
 
 
+def test_rank_by_cost_puts_designs_the_orbit_pushed_below_the_floor_last(tmp_path, monkeypatch):
+    # The periodic orbit recounts the reported designs after cost_rank chose them (a
+    # saturated design found bursting passes no board): the cheapest design, so
+    # recounted, must not stay first as if it met the floor.
+    import picker.api.pipeline as pipeline
+
+    floor = 0.7
+    extra = f'[cost]\nrank_by = "cost"\nmin_yield = "{floor * 100:g} %"\n'
+    spec = load_spec(_write(tmp_path, STOCK_PARTS, extra))
+    plain = solve(spec, top=3)
+    cheapest = tuple(plain.candidates[0].part_ids.values())
+
+    def orbit_finds_the_cheapest_bursting(spec, sim, designs, u, passed):
+        out = passed.copy()
+        out[0] = 0  # cost_rank's first design: no board passes
+        return np.arange(len(designs)), out
+
+    monkeypatch.setattr(pipeline, "_with_orbits", orbit_finds_the_cheapest_bursting)
+    res = solve(spec, top=3)
+    ids = [tuple(c.part_ids.values()) for c in res.candidates]
+    assert ids[-1] == cheapest and ids[:2] == [
+        tuple(c.part_ids.values()) for c in plain.candidates[1:3]
+    ]
+    assert res.candidates[-1].yield_estimate == 0
+    assert any("fell below the yield floor" in w for w in res.warnings)
+    assert not any("fell below" in w for w in plain.warnings)
+
+
+@pytest.mark.parametrize("k", [0, 69, 70, 80, 95, 100])
+def test_below_floor_is_the_interval_low_end_of_scipy(k):
+    # Wilson (1927) and Clopper-Pearson (1934) low ends as scipy.stats.binomtest gives them
+    from picker.buyer.costing import below_floor
+
+    for method in ("wilson", "exact"):
+        low = stats.binomtest(k, 100).proportion_ci(0.95, method=method).low
+        for floor in (0.6, 0.7):
+            got = below_floor(np.array([k]), 100, floor, 0.95, method)
+            assert bool(got[0]) == (low < floor)
+
+
 # ---------------------------------------------------------------------------
 # parallel pairs
 

@@ -33,7 +33,7 @@ from picker.api.problem import (
     with_run_settings,
 )
 from picker.api.results import Candidate, PartPick, SolveResult, given_design
-from picker.buyer.costing import cost_order, cost_rank
+from picker.buyer.costing import below_floor, cost_order, cost_rank
 from picker.core.conditional import (
     Tally,
     applies,
@@ -361,8 +361,19 @@ def solve(
     order, passed, u, converged = _refined(spec, sim, best, u, passed, seed, progress)
     best, screen = best.take(order), screen[order]
     if spec.cost.rank_by == "cost" and not notes:
-        order = cost_order(problem, best, passed)
+        # the orbit's recount (and the refinement) may have moved a design chosen by
+        # cost_rank below the floor: those go after the ones that still meet it
+        floor = spec.cost.min_yield if spec.cost.min_yield is not None else ys.target
+        assert floor is not None  # the spec's load refuses rank_by = "cost" without a floor
+        below = below_floor(passed, u.shape[0], floor, ys.confidence, ys.ci_method)
+        order = cost_order(problem, best, passed, ~below)
         best, screen, passed = best.take(order), screen[order], passed[order]
+        if below.any():
+            notes = [
+                f"{int(below.sum())} of the designs chosen by cost fell below the yield floor "
+                f"{floor * 100:.4g} % when counted with the periodic orbit; listed after "
+                "those that meet it"
+            ]
     res = _ranked_result(
         spec,
         problem,

@@ -203,8 +203,30 @@ def cost_rank(
     return ranked, got, scr, False, len(ranked)
 
 
-def cost_order(problem: Problem, designs: Designs, passed: np.ndarray) -> np.ndarray:
-    """Cheapest first (unpriced last), then more passing boards, then input order."""
+def cost_order(
+    problem: Problem, designs: Designs, passed: np.ndarray, meets: np.ndarray | None = None
+) -> np.ndarray:
+    """Cheapest first (unpriced last), then more passing boards, then input order.
+
+    ``meets`` (bool per design, optional): the designs whose yield interval still lies at
+    or above the floor come first, cheapest first; the rest follow, by passing boards
+    (a design counted again after :func:`cost_rank` chose it, by a finer model such as
+    the periodic orbit, may have fallen below the floor: it is not the cheapest answer)."""
     c = design_costs(problem, designs)
     key = np.where(np.isfinite(c), c, np.inf)
-    return np.lexsort((np.arange(len(designs)), -passed, key))
+    if meets is None:
+        return np.lexsort((np.arange(len(designs)), -passed, key))
+    ok = np.asarray(meets, dtype=bool)
+    key = np.where(ok, key, np.inf)
+    return np.lexsort((np.arange(len(designs)), -passed, key, ~ok))
+
+
+def below_floor(
+    passed: np.ndarray, boards: int, floor: float, confidence: float, method: str
+) -> np.ndarray:
+    """Bool per design: the interval's low end of ``passed`` of ``boards`` is below ``floor``."""
+    lows = {
+        k: binomial_interval(k, boards, confidence, method)[0]
+        for k in {int(v) for v in np.asarray(passed).tolist()}
+    }
+    return np.array([lows[int(v)] < floor for v in np.asarray(passed).tolist()], dtype=bool)
