@@ -180,6 +180,35 @@ def test_tapped_coil_expands_into_its_two_sections_moving_together():
     assert abs(got.extra["drivers_mc"]["shares"]["L1"] - share) < 0.01
 
 
+def test_screen_takes_a_tapped_coil_as_one_part():
+    # The first-order screen (GUM 5.1.2; 5.2.2 with r = 1 for the sections, which share one
+    # variate): f ∝ (coil·C_eff)^(−1/2), so σ_lnf² = (½σ_coil)² + (½·C/(C + stray)·σ_C)²,
+    # σ = t/√3 for a rectangular spread (GUM 4.3.7). Taken apart, the sections' terms
+    # would add in quadrature to less.
+    from picker.api.problem import build_problem, simulation_of
+    from picker.core.screen import sigma_lnf
+    from picker.core.search import search
+
+    spec = api.spec_from_dict(
+        {
+            **TAPPED,
+            "parts": {
+                **TAPPED["parts"],
+                "C": {"values": ["330 pF", "390 pF", "470 pF"], "tolerance": "1 %"},
+            },
+        }
+    )
+    problem = build_problem(spec)
+    designs = search(problem)
+    assert len(designs) >= 1
+    c = designs.values(problem)["C"]
+    stray = spec.parasitics.stray
+    s_c = 0.5 * c / (c + stray)
+    want = np.sqrt((0.5 * 0.03 / math.sqrt(3)) ** 2 + (s_c * 0.01 / math.sqrt(3)) ** 2)
+    got = sigma_lnf(simulation_of(spec, problem), designs)
+    np.testing.assert_allclose(got, want, rtol=1e-9)  # exact arithmetic on both sides
+
+
 @pytest.mark.parametrize(
     ("tank", "parts", "key"),
     [

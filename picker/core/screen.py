@@ -41,14 +41,24 @@ def part_sigmas(sim: Simulation, designs: Designs) -> dict[str, np.ndarray]:
 
 
 def sigma_lnf(sim: Simulation, designs: Designs, extra_var: float | np.ndarray = 0.0) -> np.ndarray:
-    """First-order standard deviation of ln f for every design, shape (n,)."""
+    """First-order standard deviation of ln f for every design, shape (n,).
+
+    The sections of a tapped coil (:attr:`picker.core.montecarlo.Simulation.shared`)
+    are one part: fully correlated, their sensitivities add (JCGM 100:2008, 5.2.2 with
+    r = 1)."""
     problem = sim.problem
     vals = designs.values(problem)
     sens = board_sensitivities(problem.topology, vals, problem.parasitics)
     sigs = part_sigmas(sim, designs)
-    var = np.zeros(len(designs)) + extra_var
+    # positions that are one part (a tapped coil's sections, Simulation.shared) take one
+    # variate: their terms add before squaring, Σ over parts of (Σ_sections S_i·σ_i)²
+    parts: dict[str, np.ndarray] = {}
     for p, s in sens.items():
-        var = var + (s * sigs[p]) ** 2
+        q = sim.shared.get(p, p)
+        parts[q] = parts.get(q, 0.0) + s * sigs[p]
+    var = np.zeros(len(designs)) + extra_var
+    for term in parts.values():
+        var = var + term**2
     return np.sqrt(var)
 
 
