@@ -37,7 +37,7 @@ All quantities are SI floats; functions are pure.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -85,6 +85,49 @@ GENERIC_NPN = GenericNPN()
 GENERIC_PNP = GenericNPN(
     is_=1e-14, bf=150.0, vaf=50.0, tf=0.5e-9, cje=8e-12, cjc=5e-12, name="PICKER_PNP"
 )
+
+
+#: A generic small-signal RF NPN: typical of the class of VHF/UHF small-signal NPNs in makers'
+#: data sheets and their SPICE models (transition frequency of several GHz at a few mA;
+#: values from memory, not a real part).
+GENERIC_RF_NPN = GenericNPN(
+    is_=2e-16, bf=100.0, vaf=40.0, tf=15e-12, cje=1.0e-12, cjc=0.6e-12, name="PICKER_RFNPN"
+)
+
+#: The generic bipolar classes by the spec's ``device`` word, with the polarity each is
+#: written as (a PNP class's card is the mirrored NPN's: :mod:`picker.circuit.polarity`).
+BJT_CLASSES: dict[str, tuple[GenericNPN, str]] = {
+    "generic-npn": (GENERIC_NPN, "npn"),
+    "generic-pnp": (GENERIC_PNP, "pnp"),
+    "generic-rf-npn": (GENERIC_RF_NPN, "npn"),
+}
+
+#: The card parameters a spec may give for a bjt (SPICE Gummel-Poon names, lower case;
+#: ``is_`` for IS), with the range each is accepted in and its unit.
+BJT_CARD_KEYS: dict[str, tuple[float, float, str]] = {
+    "is_": (1e-19, 1e-9, "A"),
+    "bf": (1.0, 10_000.0, ""),
+    "br": (0.01, 1_000.0, ""),
+    "vaf": (1.0, 10_000.0, "V"),
+    "tf": (0.0, 1e-6, "s"),
+    "cje": (0.0, 1e-9, "F"),
+    "cjc": (0.0, 1e-9, "F"),
+}
+
+
+def bjt_card(name: str, **given: float | None) -> GenericNPN:
+    """The bipolar class ``name`` with the given card parameters (``BJT_CARD_KEYS``) in
+    place of its own; a ValueError names an unknown class or key."""
+    if name not in BJT_CLASSES:
+        raise ValueError(f"expected a bjt class, one of {', '.join(BJT_CLASSES)}; got {name!r}")
+    unknown = sorted(set(given) - set(BJT_CARD_KEYS))
+    if unknown:
+        raise ValueError(f"expected bjt card keys {', '.join(BJT_CARD_KEYS)}; got {unknown[0]}")
+    card = BJT_CLASSES[name][0]
+    for key, value in given.items():
+        if value is not None:
+            card = replace(card, **{key: float(value)})  # type: ignore[arg-type]
+    return card
 
 
 @dataclass(frozen=True)

@@ -40,6 +40,12 @@ source self-bias), the source through ``r_emitter``::
     r_bias_bottom = "1 Mohm"     # gate to ground
     r_emitter = "470 ohm"        # source resistor
 
+A bjt's own card: ``device`` names a bipolar class (:data:`picker.circuit.device.BJT_CLASSES`:
+"generic-npn", "generic-pnp", "generic-rf-npn"; typical values, from memory) and the
+Gummel-Poon keys ``is``, ``bf``, ``br``, ``vaf``, ``tf``, ``cje``, ``cjc`` replace the
+class's own (:data:`picker.circuit.device.BJT_CARD_KEYS`); the bias, the models and the
+netlist all take the card.
+
 Optional device keys: ``bias_current`` (A; bjt default: solved from the bias
 network), ``gm`` (S), ``current_gain``, ``early_voltage`` (V), ``r_out`` (ohm),
 ``c_pi``, ``c_mu`` (F), ``f_t`` (Hz), ``overdrive_voltage`` (V, fet). Without them
@@ -73,7 +79,7 @@ from pydantic import (
 
 from picker import units
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.device import GENERIC_NPN, GENERIC_PNP
+from picker.circuit.device import BJT_CARD_KEYS, BJT_CLASSES, GENERIC_NPN, GENERIC_PNP, bjt_card
 from picker.circuit.fet import FET_CLASSES, FetCard, fet_class
 from picker.errors import SpecError
 
@@ -138,6 +144,14 @@ class AmplifierSpec(BaseModel):
     vto: float | None = None
     kp: float | None = None
     lambda_: float | None = Field(default=None, alias="lambda")
+    # a bjt's own card (SPICE Gummel-Poon names; picker.circuit.device.BJT_CARD_KEYS)
+    is_: float | None = Field(default=None, alias="is")
+    bf: float | None = None
+    br: float | None = None
+    vaf: float | None = None
+    tf: float | None = None
+    cje: float | None = None
+    cjc: float | None = None
     min_margin: float = 2.0
     max_margin: float | None = None
     monte_carlo: Literal["surrogate", "full"] = "surrogate"
@@ -161,6 +175,11 @@ class AmplifierSpec(BaseModel):
         from picker.circuit.stages import STAGES, default_stage
 
         data = dict(data)
+        device = data.get("device")
+        if isinstance(device, str) and device in BJT_CLASSES:  # a bjt class: kind, polarity
+            data.setdefault("kind", "bjt")
+            if data.get("kind") == "bjt":
+                data.setdefault("polarity", BJT_CLASSES[device][1])
         stage = data.get("stage")
         if "kind" not in data and isinstance(stage, str) and stage in STAGES:
             data["kind"] = STAGES[stage].device
@@ -217,9 +236,28 @@ class AmplifierSpec(BaseModel):
     @field_validator("device", mode="before")
     @classmethod
     def _device(cls, v: Any) -> str:
-        if not isinstance(v, str) or v not in FET_CLASSES:
-            raise ValueError(f"expected a fet class, one of {', '.join(FET_CLASSES)}; got {v!r}")
+        if not isinstance(v, str) or (v not in FET_CLASSES and v not in BJT_CLASSES):
+            raise ValueError(
+                f"expected a device class, one of {', '.join([*BJT_CLASSES, *FET_CLASSES])}; "
+                f"got {v!r}"
+            )
         return v
+
+    @field_validator(*BJT_CARD_KEYS, mode="before")
+    @classmethod
+    def _bjt_card(cls, v: Any, info: ValidationInfo) -> float:
+        name = str(info.field_name)
+        lo, hi, unit = BJT_CARD_KEYS[name]
+        try:
+            x = units.parse_quantity(v, unit) if unit else v
+        except SpecError as exc:
+            raise ValueError(exc.message) from None
+        if isinstance(x, bool) or not isinstance(x, int | float) or not lo <= x <= hi:
+            raise ValueError(
+                f"expected the card's {name.rstrip('_').upper()} from {lo:g} to {hi:g}"
+                f"{' ' + unit if unit else ''}; got {v!r}"
+            )
+        return float(x)
 
     @field_validator("vto", mode="before")
     @classmethod
@@ -297,16 +335,19 @@ class AmplifierSpec(BaseModel):
             )
         self._check_next_stage()
         card_keys = [k for k in ("idss", "vto", "kp", "lambda_") if getattr(self, k) is not None]
-        if card_keys and self.device is None:
+        if card_keys and self.device not in FET_CLASSES:
             raise ValueError(
                 f"{card_keys[0].rstrip('_')} needs device (a fet class: {', '.join(FET_CLASSES)})"
             )
-        if self.device is not None and self.kind != "fet":
+        if self.device in FET_CLASSES and self.kind != "fet":
             raise ValueError(f"device names a fet class; got kind = {self.kind!r}")
+        if self.device in BJT_CLASSES and self.kind != "bjt":
+            raise ValueError(f"device names a bjt class; got kind = {self.kind!r}")
+        self._check_bjt_card()
         if (
             self.r_bias_bottom is not None
             and self.r_bias_top is None
-            and self.device is None
+            and self.device not in FET_CLASSES
             and self.r_feedback is None
         ):
             raise ValueError(
@@ -325,7 +366,7 @@ class AmplifierSpec(BaseModel):
                 raise ValueError(
                     "a bjt needs its bias: r_bias_top (and r_bias_bottom), r_feedback, or gm"
                 )
-        elif self.device is None:
+        elif self.device not in FET_CLASSES:
             if self.gm is None and (self.bias_current is None or self.overdrive_voltage is None):
                 raise ValueError("a fet needs gm, or bias_current with overdrive_voltage")
             if self.c_mu is None or (self.c_pi is None and self.f_t is None):
@@ -374,7 +415,7 @@ class AmplifierSpec(BaseModel):
                     f"a {self.polarity} device is modelled for the stages "
                     f"{_stages_with('p-type')}; got stage = {self.stage!r}"
                 )
-            mos = self.device is not None and _is_mosfet(self.device)
+            mos = self.device in FET_CLASSES and _is_mosfet(str(self.device))
             if self.polarity == "p-channel" and mos and self.vto is not None and self.vto > 0:
                 raise ValueError(
                     f"expected a negative threshold vto for a p-channel enhancement MOSFET "
@@ -401,6 +442,35 @@ class AmplifierSpec(BaseModel):
                 raise ValueError(f"bias = {self.bias!r} expects {need}")
         return self
 
+    def _check_bjt_card(self) -> None:
+        """A bjt's card keys: a bjt's only, and not beside the typed values they set."""
+        if self.device in BJT_CLASSES and self.polarity != BJT_CLASSES[self.device][1]:
+            raise ValueError(
+                f"device {self.device!r} is a {BJT_CLASSES[self.device][1]} class; got "
+                f"polarity = {self.polarity!r}"
+            )
+        given = [k for k in BJT_CARD_KEYS if getattr(self, k) is not None]
+        if not given:
+            return
+        word = given[0].rstrip("_")
+        if self.kind != "bjt":
+            raise ValueError(f"{word} is a bjt card parameter; got kind = {self.kind!r}")
+        clashes = {
+            "bf": ("current_gain",),
+            "vaf": ("early_voltage", "r_out"),
+            "tf": ("c_pi", "f_t"),
+            "cje": ("c_pi", "f_t"),
+            "cjc": ("c_mu",),
+            "is_": ("gm", "bias_current"),
+        }
+        for key in given:
+            for typed in clashes.get(key, ()):
+                if getattr(self, typed) is not None:
+                    raise ValueError(
+                        f"expected the card's {key.rstrip('_')} or the typed {typed}, not both "
+                        f"({typed} would override the card)"
+                    )
+
     def _check_next_stage(self) -> None:
         """The next stage's keys hang together (a ValueError naming the key)."""
         if self.next_stage_r is None:
@@ -409,6 +479,16 @@ class AmplifierSpec(BaseModel):
                     raise ValueError(
                         f"{key} needs next_stage_r (the next stage's input resistance)"
                     )
+
+    def _bjt_device(self) -> Any:
+        """The bjt's card: the class named by ``device`` (else the generic NPN or PNP of
+        the polarity) with the card keys given in place of its own."""
+        name = self.device if self.device in BJT_CLASSES else None
+        if name is None:
+            name = "generic-pnp" if self.polarity == "pnp" else "generic-npn"
+        card = bjt_card(name, **{k: getattr(self, k) for k in BJT_CARD_KEYS})
+        default = GENERIC_PNP if self.polarity == "pnp" else GENERIC_NPN
+        return default if card == default else card
 
     def to_params(self, parts: Mapping[str, Any] | None = None) -> AmplifierParams:
         """The core-model description, with inductor and capacitor loss from the part tables.
@@ -429,12 +509,14 @@ class AmplifierSpec(BaseModel):
             if getattr(p, "unit", None) == "F" and (esr := getattr(p, "esr", None))
         }
         card: FetCard | None = None
-        if self.device is not None:
+        if self.device in FET_CLASSES:
             vto = self.vto
             if self.polarity == "p-channel" and vto is not None and _is_mosfet(self.device):
                 vto = -vto  # a PMOS card's threshold: the mirrored NMOS's is its negative
             try:
-                card = fet_class(self.device, idss=self.idss, vto=vto, kp=self.kp, lam=self.lambda_)
+                card = fet_class(
+                    str(self.device), idss=self.idss, vto=vto, kp=self.kp, lam=self.lambda_
+                )
             except ValueError as exc:
                 raise SpecError(str(exc), key="amplifier") from None
         params = AmplifierParams(
@@ -472,7 +554,7 @@ class AmplifierSpec(BaseModel):
             r_feedback=self.r_feedback,
             r_e_unbypassed=self.r_emitter_unbypassed,
             p_type=self.polarity in ("pnp", "p-channel"),
-            device=GENERIC_PNP if self.polarity == "pnp" else GENERIC_NPN,
+            device=self._bjt_device(),
             r_next=self.next_stage_r,
             c_next=self.next_stage_c,
             c_next_coupling=self.next_stage_coupling,
