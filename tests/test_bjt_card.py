@@ -173,3 +173,38 @@ def test_bad_card_keys_are_one_line_naming_the_key(amp, key, words):
         _spec(**amp)
     assert err.value.key == key and words in err.value.message
     assert "\n" not in str(err.value)
+
+
+FET_SPEC = {
+    "kind": "fet",
+    "stage": "common-drain",
+    "device": "generic-njfet",
+    "r_bias_bottom": "1 Mohm",
+    "r_emitter": "470 ohm",
+}
+
+
+def _fet_spec(**amp):
+    d = copy.deepcopy(SPEC)
+    d["amplifier"] = {"supply": "9 V", **FET_SPEC, **amp}
+    return spec_from_dict(d)
+
+
+def test_fet_card_gate_capacitances_reach_the_model_and_the_netlist():
+    # the fet counterparts of the card's capacitances: cgs and cgd in place of the class's
+    params = _fet_spec(cgs="6.8 pF", cgd="0.5 pF").amplifier.to_params()
+    stage = STAGES["common-drain"]
+    ss = stage.small_signal(params)
+    assert (ss.c_pi, ss.c_mu) == (pytest.approx(6.8e-12), pytest.approx(0.5e-12))
+    lines = stage.netlist(COLPITTS, VALUES, 0.0, 1.0, params).elements
+    caps = {ln.split()[0]: float(ln.split()[3]) for ln in lines if ln.startswith(("CGS", "CGD"))}
+    assert caps == {"CGS": pytest.approx(6.8e-12), "CGD": pytest.approx(0.5e-12)}
+    generic = stage.small_signal(_fet_spec().amplifier.to_params())
+    assert generic.c_pi != pytest.approx(6.8e-12)
+
+
+@pytest.mark.parametrize("typed", [{"c_pi": "5 pF"}, {"c_mu": "1 pF"}, {"gm": "10 mS"}])
+def test_fet_card_refuses_typed_values_it_would_ignore(typed):
+    with pytest.raises(SpecError) as err:
+        _fet_spec(**typed)
+    assert "not both" in err.value.message and "\n" not in str(err.value)

@@ -133,6 +133,8 @@ def fet_class(
     vto: float | None = None,
     kp: float | None = None,
     lam: float | None = None,
+    cgs: float | None = None,
+    cgd: float | None = None,
 ) -> FetCard:
     """The generic class ``name`` with the given parameters in place of its own.
 
@@ -160,6 +162,10 @@ def fet_class(
         card = replace(card, vto=v, k=card.k if kp is None else kp / 2.0)
     if lam is not None:
         card = replace(card, lam=lam)
+    if cgs is not None:
+        card = replace(card, cgs=cgs)
+    if cgd is not None:
+        card = replace(card, cgd=cgd)
     return card
 
 

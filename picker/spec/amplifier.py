@@ -103,12 +103,14 @@ _UNITS = {
     "c_coupling": "F",
     "c_base": "F",
     "idss": "A",
+    "cgs": "F",
+    "cgd": "F",
     # the next stage across the output (picker.circuit.loads)
     "next_stage_r": "ohm",
     "next_stage_c": "F",
     "next_stage_coupling": "F",
 }
-_MAY_BE_ZERO = {"choke_resistance", "c_pi", "c_mu"}
+_MAY_BE_ZERO = {"choke_resistance", "c_pi", "c_mu", "cgs", "cgd"}
 # the bias-network details (picker.circuit.bias), a block of their own
 _BIAS_UNITS = {"r_feedback": "ohm", "r_emitter_unbypassed": "ohm"}
 
@@ -144,6 +146,8 @@ class AmplifierSpec(BaseModel):
     vto: float | None = None
     kp: float | None = None
     lambda_: float | None = Field(default=None, alias="lambda")
+    cgs: float | None = None
+    cgd: float | None = None
     # a bjt's own card (SPICE Gummel-Poon names; picker.circuit.device.BJT_CARD_KEYS)
     is_: float | None = Field(default=None, alias="is")
     bf: float | None = None
@@ -334,13 +338,24 @@ class AmplifierSpec(BaseModel):
                 "with the choke)"
             )
         self._check_next_stage()
-        card_keys = [k for k in ("idss", "vto", "kp", "lambda_") if getattr(self, k) is not None]
+        card_keys = [
+            k
+            for k in ("idss", "vto", "kp", "lambda_", "cgs", "cgd")
+            if getattr(self, k) is not None
+        ]
         if card_keys and self.device not in FET_CLASSES:
             raise ValueError(
                 f"{card_keys[0].rstrip('_')} needs device (a fet class: {', '.join(FET_CLASSES)})"
             )
         if self.device in FET_CLASSES and self.kind != "fet":
             raise ValueError(f"device names a fet class; got kind = {self.kind!r}")
+        if self.device in FET_CLASSES:
+            typed = [k for k in ("c_pi", "c_mu", "f_t", "gm") if getattr(self, k) is not None]
+            if typed:
+                raise ValueError(
+                    f"expected the fet's card (device, cgs, cgd) or the typed {typed[0]}, not "
+                    f"both (with device the card sets gm and the gate capacitances)"
+                )
         if self.device in BJT_CLASSES and self.kind != "bjt":
             raise ValueError(f"device names a bjt class; got kind = {self.kind!r}")
         self._check_bjt_card()
@@ -515,7 +530,13 @@ class AmplifierSpec(BaseModel):
                 vto = -vto  # a PMOS card's threshold: the mirrored NMOS's is its negative
             try:
                 card = fet_class(
-                    str(self.device), idss=self.idss, vto=vto, kp=self.kp, lam=self.lambda_
+                    str(self.device),
+                    idss=self.idss,
+                    vto=vto,
+                    kp=self.kp,
+                    lam=self.lambda_,
+                    cgs=self.cgs,
+                    cgd=self.cgd,
                 )
             except ValueError as exc:
                 raise SpecError(str(exc), key="amplifier") from None
