@@ -549,7 +549,13 @@ def board_model_of(spec: Spec, problem: Problem) -> LoadedModel | None:
     from picker.circuit.loaded import LoadedModel
 
     amp = spec.amplifier
-    return LoadedModel(problem, params, amp.monte_carlo, max_margin=amp.max_margin)
+    return LoadedModel(
+        problem,
+        params,
+        amp.monte_carlo,
+        max_margin=amp.max_margin,
+        stray_tol=spec.parasitics.stray_tolerance,
+    )
 
 
 def _sections(spec: Spec) -> dict[str, str]:

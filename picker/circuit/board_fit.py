@@ -219,12 +219,18 @@ class BoardFit:
         b = np.zeros((len(STEADY), n))
         return cls(anchor, {p: np.ones(n) for p in anchor}, z, no, b, b > 0, no, no)
 
-    def verdicts(self, vals: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    def verdicts(
+        self, vals: Mapping[str, np.ndarray], shift: np.ndarray | None = None
+    ) -> tuple[np.ndarray, np.ndarray]:
         """(A3) of :mod:`picker.circuit.loaded` on every board: (bursts, undecided), each
         (samples, c). The designs the fit decides for the whole box take its verdict; on
         the others (``edge``) a board bursts where a fitted condition of :data:`STEADY`
         lies below minus its band, runs steady where every live one lies above its band,
-        and is undecided otherwise."""
+        and is undecided otherwise. ``shift`` (:data:`HURWITZ`, samples, c), optional, is
+        added to the fitted conditions (what an input outside the fit moves them by: a
+        board's own stray, (X1) of :mod:`picker.circuit.loaded`), and the band widened by
+        its size: the boards it may carry across the edge are left undecided (the
+        large-signal model decides them)."""
         shape = np.shape(next(iter(vals.values())))
         burst = np.broadcast_to(self.bursts, shape).copy()
         unsure = np.zeros(shape, dtype=bool)
@@ -239,6 +245,9 @@ class BoardFit:
         with np.errstate(invalid="ignore"):
             for j, q in zip(rows, qs, strict=True):
                 band = self.band[j, cols]
+                if shift is not None:  # shifted, the band widened by the shift (undecided)
+                    q = q + shift[j][:, cols]
+                    band = band + np.abs(shift[j][:, cols])
                 sure_b |= live[j] & (q < -band)
                 sure_s &= ~live[j] | (q > band)
         burst[:, cols] = sure_b

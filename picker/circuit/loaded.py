@@ -75,6 +75,25 @@ where the board lies more than twice that error from an edge (f_min, f_max, marg
 ``max_margin``); (S3) for the rest where it lies more than twice its own corner error
 from the edge; the linear model itself for what is left.
 
+A board's own stray
+-------------------
+With ``[parasitics] stray_tolerance`` each board draws its own stray (key
+:data:`picker.core.montecarlo.STRAY`). The full large-signal model takes it as it is;
+the approximation adds it through a quadratic in d = stray − stray0 fitted to the
+large-signal model at the design's marked values and stray0 − t, stray0, stray0 + t
+(t = ``stray_tolerance``):
+
+    ln f += a_f·d + b_f·d²,   ln m += a_m·d + b_m·d²                               (X1)
+
+with the ideal tank's part of ln f taken at each board's own stray exactly (Thomson's
+formula in (S1)) and (X1) fitted to what is left, ln f_steady − ln f_ideal; the board
+fit's bursting conditions (A3) take their own quadratic in d likewise.
+
+Quadratic, not linear: where the device compresses, the stray moves the steady
+frequency through the drive as well as through the tank (on the demo colpitts_bjt.toml
+the slope changes by a factor of two between 1 and 7 pF). tests/test_loaded_stray.py
+checks the yields against the large-signal model on every board.
+
 Axis convention: samples on axis 0, designs on axis 1.
 """
 
@@ -83,13 +102,13 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.board_fit import BoardFit, fit_boards
+from picker.circuit.board_fit import BoardFit, fit_boards, point_quantities
 from picker.circuit.nominal_orbit import NominalOrbit, nominal_orbits
 from picker.circuit.steady import SteadyState, steady_state
 from picker.circuit.surrogate import (
@@ -100,9 +119,10 @@ from picker.circuit.surrogate import (
     surrogate_logs,
     surrogate_response,
 )
+from picker.core.montecarlo import STRAY
 from picker.core.search import Designs, Problem
 from picker.tank.base import Topology
-from picker.tank.board import Parasitics, board_sensitivities, board_values
+from picker.tank.board import Parasitics, board_frequency, board_sensitivities, board_values
 
 #: Smallest error band (in ln f and ln margin) of the surrogate's edge test.
 BAND_FLOOR = 1e-12
@@ -157,12 +177,15 @@ def board_state(
     params: AmplifierParams,
 ) -> SteadyState:
     """The large-signal model (:func:`picker.circuit.steady.steady_state`) of boards with
-    *marked* values ``values``: the parasitics applied first, as :func:`loaded_nominal`."""
+    *marked* values ``values``: the parasitics applied first, as :func:`loaded_nominal`;
+    a board's own stray (key :data:`picker.core.montecarlo.STRAY`, ``[parasitics]
+    stray_tolerance``) in place of the spec's where ``values`` holds one."""
     bv = board_values(
         topology, {p: np.asarray(values[p], dtype=float) for p in topology.positions}, parasitics
     )
+    stray = np.asarray(values[STRAY], dtype=float) if STRAY in values else parasitics.stray
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        return steady_state(topology, bv, parasitics.stray, params)
+        return steady_state(topology, bv, stray, params)
 
 
 def nominal_offsets(
@@ -219,6 +242,7 @@ class LoadedModel:
         method: str = "surrogate",
         max_margin: float | None = None,
         workers: int = 1,
+        stray_tol: float = 0.0,
     ) -> None:
         if method not in METHODS:
             raise ValueError(f"method must be one of {METHODS}, got {method!r}")
@@ -227,10 +251,12 @@ class LoadedModel:
         self.method = method
         self.max_margin = max_margin
         self.workers = max(1, workers)
+        self.stray_tol = stray_tol
         self._cache: dict[tuple[int, ...], np.ndarray] = {}
         self._nominal: dict[tuple[int, ...], tuple[bool, float, float]] = {}
         self._fits: dict[tuple[tuple[int, ...], bytes], BoardFit] = {}
         self._orbits: dict[tuple[int, ...], NominalOrbit | None] = {}
+        self._slopes: dict[tuple[int, ...], tuple[float, ...]] = {}
 
     @property
     def ln_max_margin(self) -> float:
@@ -306,6 +332,67 @@ class LoadedModel:
             np.array([o is not None and o.bursting for o in got], dtype=bool),
         )
 
+    # ------------------------------------------------------------------ a board's own stray
+
+    def stray_terms(self, designs: Designs) -> np.ndarray:
+        """Per design (2·(2 + HURWITZ), c): the coefficients (a, b) of (X1), the quadratic
+        in the board's stray deviation d through the large-signal model (:func:`board_state`)
+        at the design's marked values and the stray stray0 − t, stray0, stray0 + t
+        (t = ``stray_tol``): a = (L₊ − L₋)/(2t), b = (L₊ − 2L₀ + L₋)/(2t²), for
+        L = ln f_steady − ln f_ideal (the ideal tank takes each board's stray exactly),
+        ln m and each bursting condition of the board fit
+        (:func:`picker.circuit.board_fit.point_quantities`), in that order. Cached per design."""
+        pb = self.problem
+        keys = self._keys(designs)
+        missing = [i for i, key in enumerate(keys) if key not in self._slopes]
+        if missing:
+            sub = designs.take(np.asarray(missing)).values(pb)
+            st, t = pb.parasitics.stray, self.stray_tol
+            logs = []
+            for x in (st - t, st, st + t):
+                par = replace(pb.parasitics, stray=x)
+                bs = board_state(pb.topology, sub, par, self.params)
+                lin_f, lin_m = loaded_nominal(pb.topology, sub, par, self.params)
+                _, _, steady, _, _ = point_quantities(lin_f, lin_m, bs, self.params)
+                ideal = np.log(board_frequency(pb.topology, sub, par))
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    logs.append(
+                        np.concatenate([[np.log(bs.f_hz) - ideal, np.log(bs.margin)], steady])
+                    )
+            lo, mid, hi = logs
+            with np.errstate(invalid="ignore"):
+                a = (hi - lo) / (2 * t)
+                b = (hi - 2 * mid + lo) / (2 * t * t)
+            coef = np.stack([a, b], axis=1).reshape(-1, len(missing))  # (2·Q, n) a, b pairs
+            for j, i in enumerate(missing):
+                self._slopes[keys[i]] = tuple(float(v) for v in coef[:, j])
+        rows = [self._slopes[key] for key in keys]
+        return np.array(rows, dtype=float).reshape(len(keys), -1).T
+
+    def _stray_shift(
+        self, vals: Mapping[str, np.ndarray], designs: Designs
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+        """(Δln f, Δln m, Δ bursting conditions) of every board from its own stray: (X1)
+        of the module docstring, (samples, c) and (HURWITZ, samples, c); None where the
+        boards share the spec's stray."""
+        if STRAY not in vals or self.stray_tol <= 0:
+            return None
+        coef = self.stray_terms(designs)  # rows: a_0, b_0, a_1, b_1, ...
+        d = np.asarray(vals[STRAY], dtype=float) - self.problem.parasitics.stray
+        with np.errstate(invalid="ignore"):
+            out = [
+                np.nan_to_num(d * coef[2 * q][None, :] + d * d * coef[2 * q + 1][None, :])
+                for q in range(coef.shape[0] // 2)
+            ]
+        return out[0], out[1], np.stack(out[2:])
+
+    def _boards(self, vals: Mapping[str, np.ndarray]) -> Mapping[str, np.ndarray]:
+        """``vals`` with a board's own stray broadcast to the positions' (samples, c)."""
+        if STRAY not in vals:
+            return vals
+        shape = np.shape(vals[self.problem.topology.inductor])
+        return {**vals, STRAY: np.broadcast_to(np.asarray(vals[STRAY], dtype=float), shape)}
+
     # ------------------------------------------------------------------ the full model
 
     def _full(
@@ -336,12 +423,13 @@ class LoadedModel:
         describes (:attr:`picker.circuit.board_fit.BoardFit.ok`), :meth:`_full` on the others."""
         fit = self.fit(vals, designs)
         fix = self._fix(designs)
-        if fit.ok.all():
+        use = fit.ok
+        if use.all():
             return self._approx(vals, designs, fit, want_f, fix)
         shape = np.shape(vals[self.problem.topology.inductor])
         f, m = np.full(shape, np.nan), np.full(shape, np.nan)
         ok = np.zeros(shape, dtype=bool)
-        a, b = np.flatnonzero(fit.ok), np.flatnonzero(~fit.ok)
+        a, b = np.flatnonzero(use), np.flatnonzero(~use)
         if a.size:
             sub = {p: v[:, a] for p, v in vals.items()}
             fa = fix.take(a) if fix is not None else None
@@ -406,6 +494,7 @@ class LoadedModel:
     ) -> tuple[np.ndarray, np.ndarray]:
         """Steady frequency (Hz, NaN where the board does not count for a reason other than
         its frequency) and start-up margin of every board, (samples, c)."""
+        vals = self._boards(vals)
         if self.method == "full":
             f, m, _ = self._full(vals, self._fix(designs))
             return f, m
@@ -535,6 +624,20 @@ class LoadedModel:
         ln_f, ln_m = surrogate_logs(topo, sur, vals, pb.parasitics)
         ln_f += off_f
         ln_m += off_m
+        extra = self._stray_shift(vals, designs)
+        ex_f, ex_m = (extra[0], extra[1]) if extra is not None else (0.0 * ln_f, 0.0 * ln_m)
+
+        def own_ideal(sel: np.ndarray) -> Any:
+            """The ideal tank's ln f at the boards' own stray less at the spec's (0 without
+            one): the linear model below runs at the spec's stray."""
+            if extra is None:
+                return 0.0
+            v = {p: vals[p][sel] for p in topo.positions}
+            own = board_frequency(topo, {**v, STRAY: vals[STRAY][sel]}, pb.parasitics)
+            return np.log(own) - np.log(board_frequency(topo, v, pb.parasitics))
+
+        ln_f += ex_f
+        ln_m += ex_m
         lo, hi, top = math.log(pb.f_min), math.log(pb.f_max), self.ln_max_margin
         # tier 2: (S3) for the boards (S1) cannot decide
         with np.errstate(invalid="ignore"):
@@ -544,7 +647,7 @@ class LoadedModel:
         if rows.size:
             v = {p: vals[p][rows, cols] for p in topo.positions}
             lf2, _ = surrogate_logs(topo, sur.take(cols), v, pb.parasitics, second_order=True)
-            ln_f[rows, cols] = lf2 + off_f[rows, cols]
+            ln_f[rows, cols] = lf2 + off_f[rows, cols] + ex_f[rows, cols]
         with np.errstate(invalid="ignore"):
             near = np.abs(ln_f - lo) < band_f2
             near |= np.abs(ln_f - hi) < band_f2
@@ -556,9 +659,9 @@ class LoadedModel:
                 topo, {p: vals[p][near] for p in topo.positions}, pb.parasitics, self.params
             )
             with np.errstate(divide="ignore", invalid="ignore"):
-                ln_f[near] = np.log(f_l) + off_f[near]
-                ln_m[near] = np.log(m_l) + off_m[near]
-        burst, unsure = fit.verdicts(vals)
+                ln_f[near] = np.log(f_l) + off_f[near] + ex_f[near] + own_ideal(near)
+                ln_m[near] = np.log(m_l) + off_m[near] + ex_m[near]
+        burst, unsure = fit.verdicts(vals, None if extra is None else extra[2])
         if fix is not None:
             burst = np.where(fix.has[None, :], fix.burst[None, :], burst)
             unsure = unsure & ~fix.has[None, :]
@@ -566,7 +669,7 @@ class LoadedModel:
             counts = (ln_m > 0.0) & (ln_m <= top) & ~burst
             ok = counts & (ln_f >= lo) & (ln_f <= hi)
         if unsure.any():  # (A3) undecided: the large-signal model itself
-            f_u, m_u, ok[unsure] = self._full({p: vals[p][unsure] for p in topo.positions})
+            f_u, m_u, ok[unsure] = self._full({p: v[unsure] for p, v in vals.items()})
             counts[unsure] = np.isfinite(f_u)
             with np.errstate(divide="ignore", invalid="ignore"):
                 ln_f[unsure], ln_m[unsure] = np.log(f_u), np.log(m_u)
@@ -577,6 +680,7 @@ class LoadedModel:
             return np.where(counts, np.exp(ln_f), np.nan), np.exp(ln_m), ok
 
     def __call__(self, vals: dict[str, np.ndarray], designs: Designs) -> np.ndarray:
+        boards = self._boards(vals)
         if self.method == "full":
-            return self._full(vals, self._fix(designs))[2]
-        return self._split(vals, designs, False)[2]
+            return self._full(boards, self._fix(designs))[2]
+        return self._split(boards, designs, False)[2]

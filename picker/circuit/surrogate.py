@@ -161,9 +161,11 @@ def fit_surrogate(
 
 
 def _ln_ideal(topology: Topology, vals: Mapping[str, np.ndarray], par: Parasitics) -> Any:
-    """ln f of the ideal tank on board values: −ln 2π − ½·ln(L·C_eff) (Thomson's formula)."""
+    """ln f of the ideal tank on board values: −ln 2π − ½·ln(L·C_eff) (Thomson's formula);
+    a board's own stray (key ``"stray"``, ``[parasitics] stray_tolerance``) where ``vals``
+    holds one."""
     bv = board_values(topology, vals, par)
-    lc = topology.l_eff(bv) * topology.c_eff(bv, par.stray)
+    lc = topology.l_eff(bv) * topology.c_eff(bv, vals.get("stray", par.stray))
     return -math.log(2 * math.pi) - 0.5 * np.log(lc)
 
 

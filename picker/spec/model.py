@@ -641,12 +641,6 @@ class Spec(_Strict):
     @model_validator(mode="after")
     def _production_keys(self) -> Spec:
         check_spec(self)
-        if self.amplifier is not None and self.parasitics.stray_tolerance > 0:
-            raise KeyedError(
-                "parasitics.stray_tolerance",
-                "a spread of the stray is simulated with the ideal tank only; the loaded "
-                "model ([amplifier]) takes one stray: remove stray_tolerance or [amplifier]",
-            )
         if self.amplifier is not None and self.tank.coupling_tolerance > 0:
             raise KeyedError(
                 "tank.coupling_tolerance",
