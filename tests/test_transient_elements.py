@@ -167,3 +167,20 @@ def test_saturated_orbit_matches_ngspice_frequency(name, design):
     assert abs(float(np.asarray(st.f_hz)) / ref["f_hz"] - 1) > 2e-3  # the fast model is not
     assert orbit.amplitude_v == pytest.approx(ref["amplitude_v"], rel=0.06)
     assert not orbit.bursting
+
+
+@pytest.mark.slow
+def test_follower_orbit_unstable_by_a_flip_is_not_called_bursting():
+    # cc010: its orbit has a real multiplier near -1.3 (the period doubles beside it);
+    # ngspice runs it steady, its envelope alternating by under 1 %, at the orbit's
+    # frequency and amplitude
+    designs, answers = load_reference(DATA / "stage_common_collector.json")
+    k = [d.id for d in designs].index("cc010")
+    d, ref = designs[k], answers[k]
+    assert ref["state"] == "steady"
+    (orbit,) = board_orbits([Network.build(d.topo, d.values, d.stray, d.params)])[0]
+    assert orbit is not None
+    assert orbit.multiplier > 1.2  # outside the unit circle: unstable as a period-1 orbit
+    assert not orbit.bursting
+    assert orbit.f_hz == pytest.approx(ref["f_hz"], rel=2e-3)
+    assert orbit.amplitude_v == pytest.approx(ref["amplitude_v"], rel=0.06)
