@@ -11,7 +11,7 @@ nominal offset, linear model for the spread" applied once more:
 
     ln f_steady(board) ≈ ln f_fast(board) + [ln f_orbit − ln f_fast](nominal)     (O1)
     bursts(board)      ⇔ the nominal orbit has a Floquet multiplier outside
-                         the unit circle                                         (O2)
+                         the unit circle, not only real negative ones           (O2)
 
 with f_fast the Monte Carlo's own steady frequency (:mod:`picker.circuit.loaded`,
 (A1)-(A3)). (O1) assumes the describing function's error moves little across the
@@ -20,13 +20,15 @@ depends on how hard the device saturates); tests/test_nominal_orbit.py bounds it
 validation designs by shooting every board. (O2) freezes the verdict at nominal: the
 fast model's own verdict on saturated boards (the relaxation rule) is the weaker one
 (bursting precision 0.78 and recall 0.70 on the main validation set against 0.80 and
-0.80 with the orbit), so the orbit's verdict wins for every board of the design.
+0.80 with the orbit), so the orbit's verdict wins for every board of the design. An
+orbit unstable only by real negative multipliers (a flip,
+:mod:`picker.circuit.periodic`) doubles its period nearby and does not burst.
 
 Only designs whose nominal drive saturates get an orbit (elsewhere harmonic balance of
-the junctions already holds the frequency to about 0.1 %), only for the bjt stages whose
-netlist :func:`picker.circuit.transient.build_circuit` reads (the transistor's
-terminals off the supply), and only where shooting converges; elsewhere (O1)-(O2) do
-not apply and the fast model stands.
+the junctions already holds the frequency to about 0.1 %), only for the bjt stages (every
+one: :func:`picker.circuit.transient.build_circuit` reads the follower's collector on the
+supply and the Hartley tank's coupled coils), and only where shooting converges;
+elsewhere (O1)-(O2) do not apply and the fast model stands.
 """
 
 from __future__ import annotations
@@ -137,7 +139,7 @@ def board_orbits(nets: Sequence[Network]) -> list[list[NominalOrbit | None]]:
             f = float(ps.w[j]) / TWO_PI
             out[k][i] = NominalOrbit(
                 shift=math.log(f) - math.log(f0),
-                bursting=bool(ps.unstable[j]),
+                bursting=bool(ps.unstable[j]) and not bool(ps.flip[j]),
                 multiplier=float(ps.multiplier[j]),
                 f_hz=f,
                 amplitude_v=float(ps.top[j]),

@@ -13,7 +13,14 @@ to the describing function's amplitude and period. From the orbit it reads:
 * the 2nd and 3rd harmonics of the tank top relative to the fundamental, dBc (the
   discrete Fourier transform of the N samples of one period);
 * the peak collector current and the device's mean dissipation ⟨I_C·V_CE + I_B·V_BE⟩;
-* whether the orbit is unstable (a Floquet multiplier outside the unit circle).
+* whether the orbit is unstable (a Floquet multiplier outside the unit circle), and
+  whether only by a flip: every multiplier outside is real and negative, so a small
+  deviation changes sign each period and the oscillation settles on an orbit of twice
+  the period beside this one (a period-doubling or flip bifurcation: Guckenheimer &
+  Holmes, *Nonlinear Oscillations, Dynamical Systems, and Bifurcations of Vector
+  Fields*, 1983, sec. 3.5 [memory]); its envelope alternates a little from cycle to
+  cycle rather than bursting (the follower cc010 of the validation set: multiplier
+  −1.3, steady in ngspice at the orbit's frequency and amplitude).
 
 Where it is used: :mod:`picker.circuit.nominal_orbit` runs it on the designs whose
 describing function saturates, for the reported designs of ``solve`` and ``evaluate``
@@ -31,7 +38,14 @@ import numpy as np
 
 from picker.circuit.device import thermal_voltage
 from picker.circuit.network import Network
-from picker.circuit.shooting import RETRY_WARM, STEPS, WARM, oscillating_mode, periodic_orbit
+from picker.circuit.shooting import (
+    RETRY_WARM,
+    STEPS,
+    UNSTABLE_MARGIN,
+    WARM,
+    oscillating_mode,
+    periodic_orbit,
+)
 from picker.circuit.transient import Circuit, build_circuit, dc_point, dc_with_currents, device
 from picker.tank.base import TWO_PI
 
@@ -53,6 +67,7 @@ class PeriodicState:
     peak_current: np.ndarray  # A
     dissipation: np.ndarray  # W
     unstable: np.ndarray  # bool
+    flip: np.ndarray  # bool: unstable only by real negative multipliers (module docstring)
     multiplier: np.ndarray  # the largest non-trivial Floquet multiplier's modulus
 
 
@@ -165,6 +180,9 @@ def periodic_circuits(
     # adds the same terms in the same order whatever the batch beside it
     p_dev = np.ascontiguousarray((dev["ic"] * vce + dev["ib"] * dev["vbe"]).T).mean(axis=1)
     mu = np.abs(mult[:, 0])
+    out = np.abs(mult) > 1.0 + UNSTABLE_MARGIN  # NaN (not converged) compares False
+    negative = (mult.imag == 0.0) & (mult.real < 0.0)
+    flip = out.any(axis=1) & np.all(~out | negative, axis=1)
     nan = np.nan
     return PeriodicState(
         ok=ok,
@@ -174,5 +192,6 @@ def periodic_circuits(
         peak_current=np.where(ok, dev["ic"].max(axis=0), nan),
         dissipation=np.where(ok, p_dev, nan),
         unstable=ok & unstable,
+        flip=ok & unstable & flip,
         multiplier=np.where(ok, mu, nan),
     )

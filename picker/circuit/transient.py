@@ -14,7 +14,15 @@ ground, are known) and the inductors' currents, and the circuit is
 
 with C the capacitances (and the inductances on the inductor rows), G the conductances
 and the inductors' incidence, b the supply's terms, i_Q and q_D the transistor's
-terminal currents and diffusion charge. The transistor is SPICE's Gummel-Poon model
+terminal currents and diffusion charge. A coupling line ``K`` joins two inductors'
+rows as SPICE's K element does (Nagel, *SPICE2*, UCB/ERL M520, 1975, the mutual
+inductor; both currents counted into each inductor's first node):
+
+    L1·di1/dt + M·di2/dt = v_1,   M·di1/dt + L2·di2/dt = v_2,   M = k·√(L1·L2)       (T4)
+
+A transistor terminal may sit on the supply (the follower's collector): its voltage is
+known, so it enters the junction voltages as a constant and the current into it drops
+out of x (the source supplies it). The transistor is SPICE's Gummel-Poon model
 with the card's parameters (no high injection, no leakage currents, no base resistance;
 constant junction capacitances, MJE = MJC = 0), as ngspice evaluates it (Massobrio &
 Antognetti, *Semiconductor Device Modeling with SPICE*, 2nd ed., ch. 2, eqs. of the
@@ -88,6 +96,8 @@ class Circuit:
     scatter: np.ndarray
     #: (B, n): where the diffusion charge q_D sits (+1 at the base, −1 at the emitter)
     charge_at: np.ndarray
+    #: (B, 2): the part of (V_BE, V_BC) from known nodes (a terminal on the supply)
+    v_known: np.ndarray
 
     @property
     def size(self) -> int:
@@ -107,6 +117,7 @@ class Circuit:
             self.gather[rows],
             self.scatter[rows],
             self.charge_at[rows],
+            self.v_known[rows],
         )
 
 
@@ -150,8 +161,9 @@ def _stamp(
 
 def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: float) -> Circuit:
     """The batch of circuits (T1) of netlists' element lines (one list per circuit: R, C,
-    L, a DC source V to ground, one bjt Q; current sources, the start-up kick, are left
-    out) and their one ``.model`` card; ``top`` names the tank-top node."""
+    L, K couplings (T4), a DC source V to ground, one bjt Q, whose terminals may sit on
+    ground or the source's node; current sources, the start-up kick, are left out) and
+    their one ``.model`` card; ``top`` names the tank-top node."""
     card = _card(models)
     parsed = []
     for lines in netlists:
@@ -166,23 +178,29 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
                 if f[2] != "0":
                     raise ValueError(f"source {f[0]} is not to ground")
                 known[f[1]] = _value(f[-1])
-            elif kind in "RCLQ":
+            elif kind in "RCLQK":
                 elems.append(f)
             elif kind != "I":
                 raise ValueError(f"element {f[0]} is not simulated here")
         nodes: list[str] = []
         for f in elems:
-            for nd in f[1:4] if f[0][0].upper() == "Q" else f[1:3]:
+            kind = f[0][0].upper()
+            for nd in f[1:4] if kind == "Q" else [] if kind == "K" else f[1:3]:
                 if nd not in known and nd not in nodes:
                     nodes.append(nd)
         inductors = [f for f in elems if f[0][0].upper() == "L"]
         parsed.append((known, elems, nodes, inductors))
+        names = {f[0].upper() for f in inductors}
+        for f in elems:
+            if f[0][0].upper() == "K" and not (f[1].upper() in names and f[2].upper() in names):
+                raise ValueError(f"coupling {f[0]} names an inductor the netlist lacks")
     n = max(len(p[2]) + len(p[3]) for p in parsed)
     m = len(parsed)
     g = np.zeros((m, n + 1, n + 1))
     c = np.zeros((m, n + 1, n + 1))
     b = np.zeros((m, n + 1))
     qi = np.full((m, 3), n, dtype=int)  # no transistor: every terminal on ground
+    vq = np.zeros((m, 3))  # the known voltages of the terminals off x (ground, supply)
     tops = np.zeros(m, dtype=int)
     n_nodes = np.zeros(m, dtype=int)
     for r, (known, elems, nodes, inductors) in enumerate(parsed):
@@ -198,9 +216,7 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
                 _stamp(c[r], None, idx, known, f[1], f[2], _value(f[3]))
             elif kind == "Q":
                 qi[r] = [idx.get(nd, n) for nd in f[1:4]]
-                for nd in f[1:4]:
-                    if nd in known and known[nd] != 0.0:
-                        raise ValueError("a transistor terminal on the supply is not simulated")
+                vq[r] = [known.get(nd, 0.0) for nd in f[1:4]]
                 _stamp(c[r], None, idx, known, f[2], f[3], card["CJE"])
                 _stamp(c[r], None, idx, known, f[2], f[1], card["CJC"])
         for k, f in enumerate(inductors):
@@ -213,6 +229,13 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
                     g[r, j, idx[p]] -= sign
                 else:
                     b[r, j] += sign * known[p]
+        row = {f[0].upper(): len(nodes) + k for k, f in enumerate(inductors)}
+        for f in elems:
+            if f[0][0].upper() == "K":  # (T4): M on the two inductors' rows
+                j1, j2 = row[f[1].upper()], row[f[2].upper()]
+                mut = _value(f[3]) * np.sqrt(c[r, j1, j1] * c[r, j2, j2])
+                c[r, j1, j2] += mut
+                c[r, j2, j1] += mut
         for i in range(len(nodes) + len(inductors), n):  # padding: x_i = 0
             g[r, i, i] = 1.0
     # the transistor's incidence over (collector, base, emitter); ground (index n) drops
@@ -222,6 +245,7 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
     gather = inc @ np.array([[0.0, -1.0], [1.0, 1.0], [-1.0, 0.0]])  # V_BE, V_BC
     scatter = inc @ np.array([[1.0, 0.0], [0.0, 1.0], [-1.0, -1.0]])  # I_C, I_B
     charge_at = inc[:, :, 1] - inc[:, :, 2]
+    v_known = np.stack([vq[:, 1] - vq[:, 2], vq[:, 1] - vq[:, 0]], axis=1)
     return Circuit(
         g[:, :n, :n],
         c[:, :n, :n],
@@ -234,6 +258,7 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
         gather,
         scatter,
         charge_at,
+        v_known,
     )
 
 
@@ -265,10 +290,16 @@ def _terms(
     }
 
 
+def _junctions(circ: Circuit, x: np.ndarray) -> np.ndarray:
+    """(V_BE, V_BC) (..., B, 2) at states x (..., B, n): :attr:`Circuit.gather` on x plus
+    the known terminals' part."""
+    return np.einsum("...bi,bik->...bk", x, circ.gather) + circ.v_known  # type: ignore[no-any-return]
+
+
 def device(circ: Circuit, x: np.ndarray) -> dict[str, np.ndarray]:
     """The transistor's (T2)-(T3) at states x (..., B, n): V_BE, V_BC, I_C, I_B, q_D
     and the exponentials' derivatives."""
-    v = np.einsum("...bi,bik->...bk", x, circ.gather)
+    v = _junctions(circ, x)
     return _terms(circ.card, circ.vt, v[..., 0], v[..., 1])
 
 
@@ -281,7 +312,7 @@ def evaluate(circ: Circuit, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.n
     element at each call."""
     bsz = x.shape[0]
     p = circ.card
-    v = np.einsum("bi,bik->bk", x, circ.gather)
+    v = _junctions(circ, x)
     dv = _terms(p, circ.vt, v[:, 0], v[:, 1])
     i_f, g_f, g_r, kq = dv["i_f"], dv["g_f"], dv["g_r"], dv["kq"]
     # ∂(I_C, I_B)/∂(V_BE, V_BC) and ∂q_D/∂(V_BE, V_BC)
@@ -306,7 +337,7 @@ def evaluate(circ: Circuit, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.n
 
 def charge(circ: Circuit, x: np.ndarray) -> np.ndarray:
     """Q(x) of (T1) alone, for x (B, n)."""
-    v = np.einsum("bi,bik->bk", x, circ.gather)
+    v = _junctions(circ, x)
     p = circ.card
     ef, _ = _exp(v[:, 0] / circ.vt)
     qd = p["TF"] * p["IS"] * (ef - 1.0) * (1.0 - v[:, 1] / p["VAF"])
@@ -320,7 +351,7 @@ def _damping(circ: Circuit, x: np.ndarray, dx: np.ndarray) -> np.ndarray:
     whole step scaled to the tightest junction, and at most :data:`_V_STEP` on either."""
     vt = circ.vt
     v_crit = vt * np.log(vt / (np.sqrt(2.0) * circ.card["IS"]))
-    v = np.einsum("bi,bik->bk", x, circ.gather)  # (V_BE, V_BC)
+    v = _junctions(circ, x)
     d = np.einsum("bi,bik->bk", dx, circ.gather)
     rise = (v + d > v_crit) & (d > 2.0 * vt)
     ad = np.abs(d)
@@ -346,6 +377,17 @@ def dc_point(circ: Circuit, x: np.ndarray | None = None) -> tuple[np.ndarray, np
         lim = _damping(sub, x[act], dx)
         x[act] += lim[:, None] * dx
         done[act[(lim == 1.0) & (np.max(np.abs(dx), axis=1) < 1e-12)]] = True
+    # on a stiff network (a choke in the collector and the coils of a Hartley tank: the
+    # condition number ~1e5) Newton's step stalls at round-off a little above 1e-12; such
+    # a point is accepted at the integrator's own tolerance (:func:`integrate`)
+    act = np.nonzero(~done)[0]
+    if act.size:
+        sub = circ.take(act)
+        cur, _, jg, _ = evaluate(sub, x[act])
+        dx = np.linalg.solve(jg, (sub.b - cur)[..., None])[..., 0]
+        tol = np.where(np.arange(n)[None, :] < sub.n_nodes[:, None], 1e-9, 1e-13)
+        near = (_damping(sub, x[act], dx) == 1.0) & np.all(np.abs(dx) <= tol, axis=1)
+        done[act[near]] = True
     return x, done
 
 
