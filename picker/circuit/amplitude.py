@@ -99,7 +99,7 @@ def amplitude_estimate(
     t, x = net.return_ratio(s, nodes=True)
     v_be, clipped = stage.drive_limit(params, ss, margin, ok)
     v_be = np.where(ok, v_be, 0.0)
-    vbe_resp = x[stage.input] - x[stage.common]
+    vbe_resp = x[stage.control(params)] - x[stage.common]
     node = {k: np.abs(v / vbe_resp) * v_be for k, v in x.items()}
     cplx = {k: v / vbe_resp * v_be for k, v in x.items()}
     _, _, y_bridge = net.tank_admittances(s)

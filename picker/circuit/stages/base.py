@@ -58,6 +58,7 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import BiasPoint, SmallSignal
 from picker.circuit.stages.slow import SlowNetwork, grounded_common
+from picker.circuit.stages.stopper import INNER
 from picker.tank.base import TWO_PI, Topology
 
 __all__ = [
@@ -233,6 +234,16 @@ class Stage:
         """The stage's nodes in the order of the nodal matrix (ground excluded)."""
         roles = (self.output, self.top, self.input, self.common)
         return tuple(n for n in dict.fromkeys(roles) if n != "0")
+
+    def network_nodes(self, params: AmplifierParams) -> tuple[str, ...]:
+        """:attr:`nodes`, and the inner base (gate) node behind a stopper
+        (:mod:`picker.circuit.stages.stopper`) where ``params`` has one."""
+        return self.nodes + ((INNER,) if params.r_stopper is not None else ())
+
+    def control(self, params: AmplifierParams) -> str:
+        """The node of the device's own base (gate), whose voltage to ``common`` drives the
+        junction: ``input``, or the inner node behind a stopper."""
+        return INNER if params.r_stopper is not None else self.input
 
     # ------------------------------------------------------------ bias and device values
 

@@ -80,6 +80,7 @@ from picker.circuit.stages.slow import (
     divider_resistance,
     lowfreq_capacitance,
 )
+from picker.circuit.stages.stopper import stopper_lines
 from picker.tank.base import Topology
 
 __all__ = ["BASE_PULL", "CommonBase"]
@@ -107,7 +108,7 @@ class CommonBase(CommonEmitter):
     input = "b"
     common = "0"
     coupling_parts = ("CB",)
-    options = frozenset({"collector-feedback", "p-type"})
+    options = frozenset({"collector-feedback", "stopper", "p-type"})
     refusals = {
         "emitter-split": "its emitter (source) resistor is the stage's input, fed by the "
         "tank, and takes no bypass (c_emitter): all of it is unbypassed already",
@@ -148,6 +149,7 @@ class CommonBase(CommonEmitter):
         return {
             "collector-feedback": replace(p, r_b1=None, r_feedback=47e3),
             "p-type": replace(p, p_type=True, device=GENERIC_PNP),
+            "stopper": replace(p, r_stopper=100.0),
         }
 
     # ------------------------------------------------------------ start-up
@@ -357,7 +359,9 @@ class CommonBase(CommonEmitter):
         lines += self.bias_lines(params, params.r_b1)
         lines.append(f"CBASE {self.input} 0 {g(c_base)}")
         card = self.model_card(params, bias)
-        lines.append(f"Q1 {col} {self.input} e {card.split()[1]}")
+        stop, base = stopper_lines(params, self.input)  # between the bypassed base and the device
+        lines += stop
+        lines.append(f"Q1 {col} {base} e {card.split()[1]}")
         lines.append(f"RE e 0 {g(need(params.r_e, 'r_e'))}")
         return StageNetlist(
             elements=lines,

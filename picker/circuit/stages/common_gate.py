@@ -60,7 +60,7 @@ class CommonGate(CommonSource, CommonBase):
     input = "b"
     common = "0"
     coupling_parts = ("CB",)
-    options = frozenset({"p-type"})
+    options = frozenset({"stopper", "p-type"})
 
     def typical_params(self) -> AmplifierParams:
         """A 9 V MOSFET stage at about 2.3 mA: the generic small-signal n-channel MOSFET,
@@ -88,7 +88,8 @@ class CommonGate(CommonSource, CommonBase):
 
     def typical_variants(self) -> dict[str, AmplifierParams]:
         """The p-channel stage at −9 V: the mirror image of the typical one."""
-        return {"p-type": replace(self.typical_params(), p_type=True)}
+        p = self.typical_params()
+        return {"p-type": replace(p, p_type=True), "stopper": replace(p, r_stopper=220.0)}
 
     def gate_dc_resistance(self, params: AmplifierParams) -> float:
         """0 with the gate tied to ground, else the gate network's (as the common-source

@@ -48,6 +48,7 @@ from picker.circuit.stages.base import (
     spice_number,
 )
 from picker.circuit.stages.common_emitter import CommonEmitter
+from picker.circuit.stages.stopper import stopper_lines
 from picker.tank.base import Topology
 
 __all__ = ["CommonSource", "NMOS_NAME"]
@@ -76,7 +77,7 @@ class CommonSource(CommonEmitter):
     name = "common-source"
     has_device_law = True
     device = "fet"
-    options = frozenset({"emitter-split", "p-type"})
+    options = frozenset({"emitter-split", "stopper", "p-type"})
 
     def gate_voltage(self, params: AmplifierParams) -> float:
         """DC gate voltage: the divider's V_DD·R_B2/(R_B1 + R_B2) (no gate current), the
@@ -173,6 +174,7 @@ class CommonSource(CommonEmitter):
         return {
             "emitter-split": replace(p, r_e_unbypassed=22.0, r_c=1000.0),
             "p-type": replace(p, p_type=True),
+            "stopper": replace(p, r_stopper=220.0),
         }
 
     def overdrive(self, params: AmplifierParams, ss: SmallSignal) -> float:
@@ -399,12 +401,13 @@ class CommonSource(CommonEmitter):
                 values, stray, r_l, params.capacitor_esr, self.top, self.input, bleed
             ),
             *self.bias_lines(params, r_b1),
-            f"M1 {col} {self.input} {src} {src} {NMOS_NAME} W=10u L=10u",
         ]
+        stop, gate = stopper_lines(params, self.input)  # a gate stopper
+        lines += [*stop, f"M1 {col} {gate} {src} {src} {NMOS_NAME} W=10u L=10u"]
         if ss.c_pi > 0:
-            lines.append(f"CGS {self.input} {src} {g(ss.c_pi)}")
+            lines.append(f"CGS {gate} {src} {g(ss.c_pi)}")
         if ss.c_mu > 0:
-            lines.append(f"CGD {self.input} {col} {g(ss.c_mu)}")
+            lines.append(f"CGD {gate} {col} {g(ss.c_mu)}")
         if params.r_e is not None:
             lines += self.emitter_lines(params)
         if params.c_block is None:
@@ -426,10 +429,12 @@ class CommonSource(CommonEmitter):
 
     def device_lines(self, params: AmplifierParams, d: str, g: str, s: str) -> list[str]:
         """The fet (its card's element line) with C_gs and C_gd as explicit capacitors
-        (the card has none: the model's constant capacitances at any bias)."""
+        (the card has none: the model's constant capacitances at any bias); a gate
+        stopper from ``g`` to the fet's own gate."""
         card = _card(params)
         ss = self.small_signal(params)
-        lines = [card.instance(d, g, s)]
+        stop, g = stopper_lines(params, g)  # a gate stopper: the fet's gate behind it
+        lines = [*stop, card.instance(d, g, s)]
         if ss.c_pi > 0:
             lines.append(f"CGS {g} {s} {spice_number(ss.c_pi)}")
         if ss.c_mu > 0:
