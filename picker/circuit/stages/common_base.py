@@ -144,7 +144,8 @@ class CommonBase(CommonEmitter):
     def typical_variants(self) -> dict[str, AmplifierParams]:
         """Collector feedback R_F = 47 kΩ with R_B2 = 10 kΩ (about 0.33 mA; the base
         node's resistance kept near the divider's, so its bypass settles as fast), and
-        the PNP stage at −9 V (invented values, not real circuits)."""
+        the PNP stage at −9 V, and a 100 Ω stopper between the bypassed base and the
+        transistor (invented values, not real circuits)."""
         p = self.typical_params()
         return {
             "collector-feedback": replace(p, r_b1=None, r_feedback=47e3),

@@ -156,7 +156,8 @@ class CommonCollector(CommonEmitter):
         )
 
     def typical_variants(self) -> dict[str, AmplifierParams]:
-        """The PNP follower: the generic PNP, the supply at −9 V (the mirror image)."""
+        """The PNP follower: the generic PNP, the supply at −9 V (the mirror image); a 100 Ω
+        base stopper (invented values, not real circuits)."""
         p = self.typical_params()
         return {
             "p-type": replace(p, p_type=True, device=GENERIC_PNP),

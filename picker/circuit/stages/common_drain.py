@@ -96,7 +96,8 @@ class CommonDrain(CommonSource, CommonCollector):
         )
 
     def typical_variants(self) -> dict[str, AmplifierParams]:
-        """The p-channel follower at −9 V: the mirror image of the typical one."""
+        """The p-channel follower at −9 V: the mirror image of the typical one; a 220 Ω gate
+        stopper (invented values, not real circuits)."""
         p = self.typical_params()
         return {"p-type": replace(p, p_type=True), "stopper": replace(p, r_stopper=220.0)}
 

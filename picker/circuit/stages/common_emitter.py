@@ -251,7 +251,8 @@ class CommonEmitter(Stage):
     def typical_variants(self) -> dict[str, AmplifierParams]:
         """A single base resistor; collector feedback (R_F alone, and with R_B2 to ground:
         about 2 mA and 1.6 mA); the emitter resistor split 22 Ω unbypassed + 2.18 kΩ
-        bypassed (invented values, not real circuits). Only those of the stage's own
+        bypassed; a 100 Ω base stopper (invented values, not real circuits). Only those of
+        the stage's own
         :attr:`options` (a subclass inherits this method, not the options)."""
         if not self.options:
             return {}

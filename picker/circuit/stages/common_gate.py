@@ -87,7 +87,8 @@ class CommonGate(CommonSource, CommonBase):
         return params.r_b1 is None and params.r_b2 is None
 
     def typical_variants(self) -> dict[str, AmplifierParams]:
-        """The p-channel stage at −9 V: the mirror image of the typical one."""
+        """The p-channel stage at −9 V: the mirror image of the typical one; a 220 Ω stopper
+        between the grounded gate and the fet (invented values, not real circuits)."""
         p = self.typical_params()
         return {"p-type": replace(p, p_type=True), "stopper": replace(p, r_stopper=220.0)}
 

@@ -168,8 +168,8 @@ class CommonSource(CommonEmitter):
 
     def typical_variants(self) -> dict[str, AmplifierParams]:
         """The source resistor split 22 Ω unbypassed + 448 Ω bypassed (with R_D = 1 kΩ to
-        make up the gain the split takes), and the p-channel stage at −9 V (the mirror
-        image; invented values, not real circuits)."""
+        make up the gain the split takes), the p-channel stage at −9 V (the mirror image)
+        and a 220 Ω gate stopper (invented values, not real circuits)."""
         p = self.typical_params()
         return {
             "emitter-split": replace(p, r_e_unbypassed=22.0, r_c=1000.0),
