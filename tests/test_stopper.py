@@ -265,3 +265,13 @@ def test_bad_stopper_names_the_file_and_key(value, words):
         _spec({**AMP, "r_stopper": value})
     msg = str(info.value)
     assert msg.startswith("demo.toml: amplifier.r_stopper") and words in msg and "\n" not in msg
+
+
+def test_a_stopper_design_carries_its_caution():
+    from picker.circuit.amplitude import cautions
+    from picker.circuit.stages.stopper import STOPPER_CAUTION
+
+    tank = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
+    p = STAGES["common-emitter"].typical_params()
+    assert STOPPER_CAUTION not in cautions(COLPITTS, tank, p, {})
+    assert STOPPER_CAUTION in cautions(COLPITTS, tank, replace(p, r_stopper=47.0), {})
