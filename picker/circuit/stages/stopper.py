@@ -62,15 +62,14 @@ __all__ = ["INNER", "STOPPER_CAUTION", "inner_stamps", "stopper_lines", "stopper
 #: The inner base (gate) node: the device's own control terminal behind the stopper.
 INNER = "bs"
 
-#: What the model leaves out with a stopper (measured in ngspice on random designs with
-#: stoppers of 22-470 Ω, README "Base (gate) stopper"): the saturated (overdriven) boards'
-#: steady state is the describing function's, which carries only the fundamental of the
-#: base current through the stopper.
+#: What the model leaves out with a stopper (measured in ngspice, README "Base (gate)
+#: stopper"): the saturated (overdriven) boards' steady state is the describing function's,
+#: which carries only the fundamental of the base current through the stopper.
 STOPPER_CAUTION = (
-    "base (gate) stopper: where the model marks a board overdriven (the device saturates), "
-    "its steady frequency and amplitude leave out the base current's harmonics through the "
-    "stopper (measured up to 0.5 % and 15 % off in ngspice, emitter followers); verify those "
-    "in ngspice"
+    "base (gate) stopper: on a board the model marks overdriven (the device saturates), the "
+    "fast model leaves out the base current's harmonics through the stopper: its steady "
+    "frequency was up to 0.5 % off in ngspice and its amplitude further off than without "
+    "the stopper; verify such boards in ngspice"
 )
 
 
