@@ -58,11 +58,11 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import BiasPoint, SmallSignal
 from picker.circuit.stages.slow import SlowNetwork, grounded_common
-from picker.circuit.stages.stopper import INNER
 from picker.tank.base import TWO_PI, Topology
 
 __all__ = [
     "STAGES",
+    "INNER",
     "BiasLoop",
     "DeviceCurrents",
     "KICK_FRACTION",
@@ -77,6 +77,10 @@ __all__ = [
 #: half an ideal period into the tank top (also the disturbance the start-up time of
 #: :mod:`picker.circuit.envelope` starts from).
 KICK_FRACTION = 0.2
+
+#: The inner base (gate) node behind a base stopper: the device's own control terminal
+#: (:mod:`picker.circuit.stages.stopper`).
+INNER = "bs"
 
 #: Every registered stage by name, filled by :meth:`Stage.__init_subclass__`.
 STAGES: dict[str, Stage] = {}

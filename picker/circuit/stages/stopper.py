@@ -46,21 +46,16 @@ I_B·R_S adds R_S to the base's Thevenin resistance (:func:`picker.circuit.bias.
 from __future__ import annotations
 
 from dataclasses import replace
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import SmallSignal
-
-if TYPE_CHECKING:  # the stage base class imports this module
-    from picker.circuit.stages.base import Stage, Stamp
-    from picker.tank.base import Topology
+from picker.circuit.stages.base import INNER, Stage, Stamp
+from picker.tank.base import Topology
 
 __all__ = ["INNER", "STOPPER_CAUTION", "inner_stamps", "stopper_lines", "stopper_return_ratio"]
-
-#: The inner base (gate) node: the device's own control terminal behind the stopper.
-INNER = "bs"
 
 #: What the model leaves out with a stopper (measured in ngspice, README "Base (gate)
 #: stopper"): the saturated (overdriven) boards' steady state is the describing function's,
@@ -93,8 +88,6 @@ def inner_stamps(
     and coupling parts; a collector-feedback resistor stays at the outer base), then
     G = 1/R_S from ``input`` to b', y_π b'–``common``, y_μ b'–``output``, g_o
     ``output``–``common``."""
-    from picker.circuit.stages.base import Stamp
-
     bare = replace(ss, r_pi=np.inf, c_pi=0.0, c_mu=0.0, r_o=np.inf)
     y_pi, y_mu, g_o = _device_admittances(s, ss)
     b, c, e = stage.input, stage.output, stage.common
