@@ -93,9 +93,12 @@ class CommonGate(CommonSource, CommonBase):
         return {"p-type": replace(p, p_type=True), "stopper": replace(p, r_stopper=220.0)}
 
     def gate_dc_resistance(self, params: AmplifierParams) -> float:
-        """0 with the gate tied to ground, else the gate network's (as the common-source
-        stage's): the gate junction's rectified current then moves only the source."""
-        return 0.0 if self.gate_grounded(params) else super().gate_dc_resistance(params)
+        """0 with the gate tied to ground (a gate stopper's resistance, if any), else the
+        gate network's (as the common-source stage's): the gate junction's rectified
+        current then moves only the source (and drops across the stopper)."""
+        if self.gate_grounded(params):
+            return params.r_stopper or 0.0
+        return super().gate_dc_resistance(params)
 
     def cautions(self, topology: Topology, params: AmplifierParams) -> list[str]:
         """The inductor feeding the drain past its load (a Colpitts without C_B); a gate

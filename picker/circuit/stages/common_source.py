@@ -258,11 +258,13 @@ class CommonSource(CommonEmitter):
         """The DC resistance from the gate to ground, ohm: the divider's R_B1·R_B2/(R_B1 +
         R_B2), R_B1 or the gate resistor R_G (``r_b2``) alone, 1 TΩ (a floating gate)
         without either. A bleed resistor reaching the gate through the inductor is left
-        out (the clamp level moves only with ln R, :meth:`gate_leak`)."""
+        out (the clamp level moves only with ln R, :meth:`gate_leak`). A gate stopper
+        carries the junction's current too: its resistance adds."""
         r1, r2 = params.r_b1, params.r_b2
+        r_s = params.r_stopper or 0.0
         if r1 is not None and r2 is not None:
-            return r1 * r2 / (r1 + r2)
-        return r1 if r1 is not None else (r2 if r2 is not None else 1e12)
+            return r1 * r2 / (r1 + r2) + r_s
+        return (r1 if r1 is not None else (r2 if r2 is not None else 1e12)) + r_s
 
     def gate_current(
         self, params: AmplifierParams, ss: SmallSignal, a: np.ndarray
