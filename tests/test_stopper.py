@@ -157,8 +157,10 @@ def test_steady_state_with_a_stopper_matches_ngspice_transient(name, tank, r_s):
     st = steady_state(COLPITTS, {k: np.array([v]) for k, v in tank.items()}, STRAY, params)
     sim = simulate(write_netlist(COLPITTS, tank, STRAY, params, title=f"{name} stopper"))
     assert sim.waveform.state == "steady" and bool(st.runs[0])
-    # measured: frequency within 0.05 %, amplitude within 1 % (ce −0.6 %, cd +0.2 %)
-    assert abs(float(st.f_hz[0]) / sim.frequency_hz - 1) < 2e-3
+    # measured: frequency within 0.05 % (ce +0.002 %, cd −0.05 %), amplitude within 1 %
+    # (ce −0.6 %, cd +0.2 %); the describing function alone, without the harmonic balance
+    # of the junction behind the stopper, is 0.23 % off on ce
+    assert abs(float(st.f_hz[0]) / sim.frequency_hz - 1) < 1e-3
     assert abs(float(st.amplitude_v[0]) / sim.amplitude_v - 1) < 0.05
     # the stopper moves the steady frequency by more (the model without it misses)
     bare = steady_state(
