@@ -5,7 +5,8 @@ log-uniform: about 5-45 MHz) and a stopper (22-470 Ω, log-uniform) on the stage
 design (:meth:`picker.circuit.stages.base.Stage.typical_params`), keeps those the model
 starts, runs each netlist's transient in ngspice and prints one JSON line per design:
 the model's and ngspice's steady frequency and amplitude, the margin, the states. With
-``--bare`` the same draws run without the stopper (the model's own error there).
+``--bare`` the same draws run without the stopper (the model's own error there); with
+``--overdriven`` only the designs whose device the model finds saturated are kept.
 
     python scripts/stopper_survey.py --seed 11 --stages common-emitter,common-source --count 5
 
@@ -38,6 +39,9 @@ def main() -> None:
     ap.add_argument("--stages", default=",".join(STAGES))
     ap.add_argument("--count", type=int, default=4)
     ap.add_argument("--bare", action="store_true", help="the same draws without the stopper")
+    ap.add_argument(
+        "--overdriven", action="store_true", help="keep only the designs the model saturates"
+    )
     args = ap.parse_args()
     rng = np.random.default_rng(args.seed)
     for name in args.stages.split(","):
@@ -51,7 +55,7 @@ def main() -> None:
             r_s = _log_uniform(rng, 22.0, 470.0)
             params = replace(stage.typical_params(), r_stopper=None if args.bare else r_s)
             st = steady_state(COLPITTS, {k: np.array([v]) for k, v in tank.items()}, 3e-12, params)
-            if not st.starts[0]:
+            if not st.starts[0] or (args.overdriven and not st.overdriven[0]):
                 continue
             kept += 1
             t0 = time.time()

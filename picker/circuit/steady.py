@@ -217,7 +217,11 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     w_df = w.copy()
     done = np.zeros(good.shape, dtype=bool)
     if stage.has_device_law and stage.device == "bjt" and np.isfinite(loop.r_dc):
-        kn = np.nonzero(good & ~drive.saturated)[0]
+        # with a base stopper, saturated boards too where the stage says the balance holds
+        # there: the describing function leaves out the base current's harmonics through
+        # the stopper (picker.circuit.stages.stopper)
+        sat = params.r_stopper is not None and stage.saturated_balance
+        kn = np.nonzero(good & (~drive.saturated | sat))[0]
         if kn.size:
             w_kn, top_kn, ok_kn = junction_balance(net, sub[kn], w_df[kn], a[kn], drive.dv[kn])
             w[kn] = np.where(ok_kn, w_kn, w[kn])

@@ -189,6 +189,10 @@ class Stage:
         changes the network declares its own (the spec refuses the others, one line).
     refusals : why the stage does not take an option, by option (the spec adds the reason
         to its one-line refusal); inherited.
+    saturated_balance : whether the harmonic balance of both junctions
+        (:mod:`picker.circuit.junctions`) is taken on boards whose device saturates when the
+        stage has a base stopper (:mod:`picker.circuit.stages.stopper`; the describing
+        function leaves out the base current's harmonics through it).
     grounded_common : whether the tank's common end (the stage's ``common`` node) is at
         AC ground (common-emitter, common-source); False where it is the emitter
         (source) that taps the tank (the followers, the common-base and common-gate
@@ -210,6 +214,7 @@ class Stage:
     grounded_common: ClassVar[bool] = True
     options: ClassVar[frozenset[str]] = frozenset()
     refusals: ClassVar[Mapping[str, str]] = {}
+    saturated_balance: ClassVar[bool] = True
     _instance: ClassVar[Stage | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:

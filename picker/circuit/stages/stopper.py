@@ -57,14 +57,15 @@ from picker.tank.base import Topology
 
 __all__ = ["INNER", "STOPPER_CAUTION", "inner_stamps", "stopper_lines", "stopper_return_ratio"]
 
-#: What the model leaves out with a stopper (measured in ngspice, README "Base (gate)
-#: stopper"): the saturated (overdriven) boards' steady state is the describing function's,
-#: which carries only the fundamental of the base current through the stopper.
+#: The saturated (overdriven) boards' steady state with a stopper (measured in ngspice,
+#: README "Base (gate) stopper"): the harmonic balance of the junctions behind the stopper
+#: where :attr:`picker.circuit.stages.base.Stage.saturated_balance`, else the describing
+#: function, which carries only the fundamental of the base current through the stopper.
 STOPPER_CAUTION = (
     "base (gate) stopper: on a board the model marks overdriven (the device saturates), the "
-    "fast model leaves out the base current's harmonics through the stopper: its steady "
-    "frequency was up to 0.5 % off in ngspice and its amplitude further off than without "
-    "the stopper; verify such boards in ngspice"
+    "fast model's steady state behind the stopper was measured within 0.1 % in frequency "
+    "(emitter follower, common emitter) and 0.4 % (common base) of ngspice, its amplitude "
+    "less certain; verify such boards in ngspice"
 )
 
 
