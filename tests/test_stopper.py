@@ -1,7 +1,7 @@
 """The base (gate) stopper (picker.circuit.stages.stopper) on every stage, against ngspice.
 
 - the small-signal model: the closed-loop natural frequency (the start-up pole) of each
-  stage with a stopper at about 15-25 MHz, where the stopper moves it by 4-25 %, against
+  stage with a stopper at about 15-19 MHz, where the stopper moves it by 2.4-34 %, against
   the pole ngspice's own AC analysis of the stage's netlist gives (a current source into
   the tank top, the pole fitted to 1/Z near the resonance); the closed form against the
   generic nodal solver with the inner node kept is in tests/test_stage_conformance.py
