@@ -22,6 +22,7 @@ from picker.circuit.network import LoadedResponse, Network
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.polarity import P_TYPE_CAUTION, mirror_voltages
 from picker.circuit.stages import stage_of
+from picker.circuit.stages.stopper import STOPPER_CAUTION
 from picker.tank.base import TWO_PI, Topology
 
 __all__ = [
@@ -99,7 +100,7 @@ def amplitude_estimate(
     t, x = net.return_ratio(s, nodes=True)
     v_be, clipped = stage.drive_limit(params, ss, margin, ok)
     v_be = np.where(ok, v_be, 0.0)
-    vbe_resp = x[stage.input] - x[stage.common]
+    vbe_resp = x[stage.control(params)] - x[stage.common]
     node = {k: np.abs(v / vbe_resp) * v_be for k, v in x.items()}
     cplx = {k: v / vbe_resp * v_be for k, v in x.items()}
     _, _, y_bridge = net.tank_admittances(s)
@@ -176,6 +177,8 @@ def cautions(
       Colpitts tank with no blocking capacitor puts the collector's DC voltage on
       the base through L.
     * A p-type device: the supply's polarity (:data:`picker.circuit.polarity.P_TYPE_CAUTION`).
+    * A base stopper: what the large-signal model leaves out
+      (:data:`picker.circuit.stages.stopper.STOPPER_CAUTION`).
     * Peak voltage above DERATING_FRACTION of the rating (common practice, no source).
     * A part marked polarised, or a capacitance ≥ POLARISED_LIKELY_ABOVE (likely an
       electrolytic; common practice, no source), in the AC tank path.
@@ -183,6 +186,8 @@ def cautions(
     out = stage_of(params).cautions(topology, params)
     if params.p_type:  # every stage's (picker.circuit.polarity)
         out.append(P_TYPE_CAUTION)
+    if params.r_stopper is not None:  # every stage's (picker.circuit.stages.stopper)
+        out.append(STOPPER_CAUTION)
     for pos, v in stress.items():
         rating = (voltage_rating or {}).get(pos)
         if rating and v > DERATING_FRACTION * rating:

@@ -79,8 +79,18 @@ def dc_loop(params: AmplifierParams, r_collector: float, beta: float) -> tuple[f
     ``r_collector`` is the DC resistance from the supply to the collector. R_th is the
     DC resistance from the base to AC ground: R_B1 ∥ R_B2 for a divider; for collector
     feedback R_B2 ∥ (R_F + R_C) (the collector node taken through its load), the slow
-    input node's resistance the envelope equations use.
+    input node's resistance the envelope equations use. A base stopper R_S (in series with
+    the base at the device) carries the base current too: R_th + R_S and r_dc + R_S/β.
     """
+    v, r_dc, r_th = _dc_loop(params, r_collector, beta)
+    r_s = params.r_stopper or 0.0
+    return v, r_dc + r_s / beta, r_th + r_s
+
+
+def _dc_loop(
+    params: AmplifierParams, r_collector: float, beta: float
+) -> tuple[float, float, float]:
+    """:func:`dc_loop` without a base stopper."""
     r_e = r_emitter_dc(params) * (1.0 + 1.0 / beta)
     if params.r_feedback is not None:  # (B3)
         r_f = params.r_feedback
@@ -112,6 +122,7 @@ def feedback_bias_point(
     r_collector_dc: float,
     device: GenericNPN = GENERIC_NPN,
     temperature_c: float = SPICE_TNOM_C,
+    r_base: float = 0.0,
 ) -> BiasPoint:
     """Solve the DC bias of a collector-feedback stage with equations (D1), (D2).
 
@@ -121,7 +132,9 @@ def feedback_bias_point(
     :func:`picker.circuit.device.bias_point`), I_B = I_C·/BF, V_E = (I_C + I_B)·R_E,
     V_B = V_BE + V_E, the feedback current I_F = I_B + V_B/R_B2 and
     V_C = V_CC − (I_C + I_F)·R_C; V_BE is the root of V_C − I_F·R_F − V_B = 0, which
-    falls monotonically with V_BE (brentq on [0.2, 1.2] V).
+    falls monotonically with V_BE (brentq on [0.2, 1.2] V). ``r_base``: a resistor in
+    series with the base at the device (a base stopper): the node where R_F and R_B2 meet
+    sits I_B·r_base above the device's base V_B.
     """
     vt = thermal_voltage(temperature_c)
     re = r_e or 0.0
@@ -133,20 +146,20 @@ def feedback_bias_point(
         ic = icc
         for _ in range(30):  # fixed point on the Early factor
             vb = vbe + (ib + ic) * re
-            vc = vcc - (ic + ib + vb * g2) * r_collector_dc
+            vc = vcc - (ic + ib + (vb + ib * r_base) * g2) * r_collector_dc
             ic_new = icc * (1.0 - (vb - vc) / device.vaf)  # (D1)
             if abs(ic_new - ic) <= 1e-12 * abs(ic):
                 ic = ic_new
                 break
             ic = ic_new
         vb = vbe + (ib + ic) * re
-        i_f = ib + vb * g2
+        i_f = ib + (vb + ib * r_base) * g2
         vc = vcc - (ic + i_f) * r_collector_dc
         return ic, ib, vb, vc, i_f
 
     def residual(vbe: float) -> float:
-        _, _, vb, vc, i_f = currents(vbe)
-        return vc - i_f * r_f - vb
+        _, ib, vb, vc, i_f = currents(vbe)
+        return vc - i_f * r_f - vb - ib * r_base
 
     lo, hi = 0.2, 1.2
     if residual(lo) <= 0.0:

@@ -156,6 +156,7 @@ def bias_point(
     r_collector_dc: float,
     device: GenericNPN = GENERIC_NPN,
     temperature_c: float = SPICE_TNOM_C,
+    r_base: float = 0.0,
 ) -> BiasPoint:
     """Solve the DC bias of a divider-biased common-emitter stage with equations (D1), (D2).
 
@@ -171,6 +172,9 @@ def bias_point(
     r_collector_dc:
         DC resistance from the supply to the collector (the load resistor, or the winding
         resistance of an RF choke), ohm.
+    r_base:
+        A resistor in series with the base at the device (a base stopper), ohm: the base
+        current's drop across it adds to R_th's. ``vb`` is then the device's own base.
 
     Returns
     -------
@@ -203,7 +207,7 @@ def bias_point(
 
     def residual(vbe: float) -> float:
         _, ib, vb, _ = currents(vbe)
-        return v_th - ib * r_th - vb
+        return v_th - ib * (r_th + r_base) - vb
 
     lo, hi = 0.2, 1.2
     if residual(lo) <= 0.0:

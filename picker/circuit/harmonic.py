@@ -61,17 +61,19 @@ def port_responses(net: Network, idx: np.ndarray, s: np.ndarray) -> tuple[np.nda
     (out of input into common); the return ratio is T = gm·B/(1 − Z·y_pi), of the network without the junction's r_pi and diffusion capacitance
     (modified nodal analysis; Ho, Ruehli & Brennan, IEEE Trans. Circuits Syst. 22, 1975)."""
     stage = net.stage
-    index = {node: i for i, node in enumerate(stage.nodes)}
+    nodes = stage.network_nodes(net.params)  # with a base stopper, its inner node
+    ctrl = stage.control(net.params)  # the device's own base
+    index = {node: i for i, node in enumerate(nodes)}
     n, k = s.shape[0], len(index)
-    y = nodal_matrix(junction_free_stamps(net, idx, s), stage.nodes, n)
+    y = nodal_matrix(junction_free_stamps(net, idx, s), nodes, n)
     u = np.zeros((n, k, 2), dtype=complex)
     com = index.get(stage.common)
     u[:, index[stage.output], 0] -= 1.0  # the controlled source draws current out of output
-    u[:, index[stage.input], 1] -= 1.0  # the port draws current out of input
+    u[:, index[ctrl], 1] -= 1.0  # the port draws current out of the device's base
     if com is not None:
         u[:, com, :] += 1.0
     x = np.linalg.solve(y, u)
-    v = x[:, index[stage.input], :] - (x[:, com, :] if com is not None else 0.0)
+    v = x[:, index[ctrl], :] - (x[:, com, :] if com is not None else 0.0)
     return v[:, 0], v[:, 1]
 
 

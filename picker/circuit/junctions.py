@@ -68,17 +68,19 @@ def port_matrix(net: Network, idx: np.ndarray, s: np.ndarray) -> np.ndarray:
     the network without the junction's r_pi and diffusion capacitance (modified nodal
     analysis; Ho, Ruehli & Brennan, IEEE Trans. Circuits Syst. 22, 1975)."""
     stage = net.stage
-    index = {node: i for i, node in enumerate(stage.nodes)}
+    nodes = stage.network_nodes(net.params)  # with a base stopper, its inner node
+    ctrl = stage.control(net.params)  # the device's own base
+    index = {node: i for i, node in enumerate(nodes)}
     n, k = s.shape[0], len(index)
-    y = nodal_matrix(junction_free_stamps(net, idx, s), stage.nodes, n)
+    y = nodal_matrix(junction_free_stamps(net, idx, s), nodes, n)
     u = np.zeros((n, k, 2), dtype=complex)
     com = index.get(stage.common)  # None: the common node is the reference "0"
     u[:, index[stage.output], 0] -= 1.0
-    u[:, index[stage.input], 1] -= 1.0
+    u[:, index[ctrl], 1] -= 1.0
     if com is not None:
         u[:, com, :] += 1.0
     x = np.linalg.solve(y, u)
-    b, c = x[:, index[stage.input], :], x[:, index[stage.output], :]
+    b, c = x[:, index[ctrl], :], x[:, index[stage.output], :]
     t = stage.probe({node: x[:, i, :] for node, i in index.items()})  # as the netlist measures
     return np.stack([b - (x[:, com, :] if com is not None else 0.0), b - c, t], axis=1)
 

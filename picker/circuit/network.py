@@ -48,11 +48,19 @@ from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.device import SmallSignal
 from picker.circuit.stages import Stage, stage_of
 from picker.circuit.stages.base import Stamp
+from picker.circuit.stages.stopper import inner_stamps, stopper_return_ratio
 from picker.tank.base import TWO_PI, Topology
 
 _SS_FIELDS = tuple(f.name for f in fields(SmallSignal))
 
-__all__ = ["LoadedResponse", "Network", "loop_gain", "loop_gain_matrix", "tank_stamps"]
+__all__ = [
+    "LoadedResponse",
+    "Network",
+    "device_stamps",
+    "loop_gain",
+    "loop_gain_matrix",
+    "tank_stamps",
+]
 
 
 @dataclass(frozen=True)
@@ -150,6 +158,10 @@ class Network:
         closed form; with ``nodes``, ``(T, {node: voltage for a unit test current})``."""
         tank = self.tank_admittances(s, sl)
         ss = self.device_at(sl)
+        if self.params.r_stopper is not None:  # the base stopper: its inner node eliminated
+            return stopper_return_ratio(
+                self.stage, s, tank, self.topology, self.params, ss, nodes=nodes
+            )
         return self.stage.loop_gain(s, tank, self.topology, self.params, ss, nodes=nodes)
 
 
@@ -191,7 +203,18 @@ def junction_free_stamps(net: Network, idx: np.ndarray, s: np.ndarray) -> list[S
     c_diff = stage.diffusion_capacitance(params, ss)
     lin = replace(ss, r_pi=np.inf, c_pi=ss.c_pi - c_diff)
     stamps = tank_stamps(stage, net.tank_admittances(s, idx))
-    return stamps + stage.stamps(s, net.topology, params, lin)
+    return stamps + device_stamps(stage, s, net.topology, params, lin)
+
+
+def device_stamps(
+    stage: Stage, s: np.ndarray, topology: Topology, params: AmplifierParams, ss: SmallSignal
+) -> list[Stamp]:
+    """The stage's stamps; with a base stopper, with its inner node kept
+    (:func:`picker.circuit.stages.stopper.inner_stamps`; the nodes are then
+    :meth:`picker.circuit.stages.base.Stage.network_nodes`)."""
+    if params.r_stopper is not None:
+        return inner_stamps(stage, s, topology, params, ss)
+    return stage.stamps(s, topology, params, ss)
 
 
 def _probe(
@@ -234,15 +257,16 @@ def loop_gain_matrix(
     net, s = _probe(topology, values, stray, params, f_hz)
     stage = net.stage
     stamps = tank_stamps(stage, net.tank_admittances(s))
-    stamps += stage.stamps(s, topology, params, net.ss)
-    index = {node: i for i, node in enumerate(stage.nodes)}
+    stamps += device_stamps(stage, s, topology, params, net.ss)
+    nodes = stage.network_nodes(params)
+    index = {node: i for i, node in enumerate(nodes)}
     n, k = s.shape[0], len(index)
-    y = nodal_matrix(stamps, stage.nodes, n)
+    y = nodal_matrix(stamps, nodes, n)
     u = np.zeros((n, k, 1), dtype=complex)
     u[:, index[stage.output], 0] += 1.0
     if stage.common in index:
         u[:, index[stage.common], 0] -= 1.0
     x = np.linalg.solve(y, u)[..., 0]
-    v_in = x[:, index[stage.input]]
+    v_in = x[:, index[stage.control(params)]]
     v_common = x[:, index[stage.common]] if stage.common in index else 0.0
     return (-stage.transconductance(net.ss) * (v_in - v_common)).reshape(net.shape)

@@ -180,7 +180,8 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     dev = net.with_device(stage.compressed(params, ss, c_all, np.ones(net.size)))
     w = np.where(ok, w, pole0.imag)
     _, x = dev.return_ratio(1j * w, sub, nodes=True)
-    be = x[stage.input] - x[stage.common]
+    ctrl = stage.control(params)  # the device's own base (behind a stopper)
+    be = x[ctrl] - x[stage.common]
     ratio = np.abs(x[stage.output] - x[stage.common]) / np.abs(be)
     drive = solve_drive(stage, params, ss, loop, c_star, ratio)
     a = drive.a
@@ -203,7 +204,7 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     t0 = net.return_ratio(pole0, sub, nodes=True)
     t1 = net.return_ratio(pole0 * (1 + 1e-6), sub)
     dt_ds = (t1 - t0[0]) / (pole0 * 1e-6)
-    be0 = t0[1][stage.input] - t0[1][stage.common]
+    be0 = t0[1][ctrl] - t0[1][stage.common]
     a0 = 2.0 * (2.0 * KICK_FRACTION * loop.i_rest / pole0.imag) * np.abs(be0 / dt_ds)
     t_up = startup_time(stage, params, ss, loop, a0, a, pole0.real, c_star, ratio, c_b)
     good = ok & drive.ok
@@ -216,7 +217,11 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     w_df = w.copy()
     done = np.zeros(good.shape, dtype=bool)
     if stage.has_device_law and stage.device == "bjt" and np.isfinite(loop.r_dc):
-        kn = np.nonzero(good & ~drive.saturated)[0]
+        # with a base stopper, saturated boards too where the stage says the balance holds
+        # there: the describing function leaves out the base current's harmonics through
+        # the stopper (picker.circuit.stages.stopper)
+        sat = params.r_stopper is not None and stage.saturated_balance
+        kn = np.nonzero(good & (~drive.saturated | sat))[0]
         if kn.size:
             w_kn, top_kn, ok_kn = junction_balance(net, sub[kn], w_df[kn], a[kn], drive.dv[kn])
             w[kn] = np.where(ok_kn, w_kn, w[kn])

@@ -14,6 +14,7 @@ Example (every quantity accepts engineering strings; bare numbers are SI)::
     c_emitter = "100 nF"         # omit: unbypassed emitter (degeneration)
     c_coupling = "10 nF"         # collector-to-tank blocking capacitor; omit: none (flagged)
     c_base = "100 nF"            # base bypass to ground (the common-base stage's)
+    r_stopper = "100 ohm"        # base (gate) stopper in series at the device; omit: none
     min_margin = 2.0             # smallest acceptable start-up margin (default 2)
     max_margin = 20              # largest acceptable start-up margin (omit: no bound)
     monte_carlo = "surrogate"    # or "full": the loaded model on every simulated board
@@ -112,7 +113,7 @@ _UNITS = {
 }
 _MAY_BE_ZERO = {"choke_resistance", "c_pi", "c_mu", "cgs", "cgd"}
 # the bias-network details (picker.circuit.bias), a block of their own
-_BIAS_UNITS = {"r_feedback": "ohm", "r_emitter_unbypassed": "ohm"}
+_BIAS_UNITS = {"r_feedback": "ohm", "r_emitter_unbypassed": "ohm", "r_stopper": "ohm"}
 
 
 class AmplifierSpec(BaseModel):
@@ -163,6 +164,7 @@ class AmplifierSpec(BaseModel):
     bias: Literal["divider", "base-resistor", "collector-feedback"] | None = None
     r_feedback: float | None = None
     r_emitter_unbypassed: float | None = None
+    r_stopper: float | None = None
     polarity: Literal["npn", "pnp", "n-channel", "p-channel"] | None = None
     # the next stage across the output (picker.circuit.loads)
     next_stage_r: float | None = None
@@ -418,6 +420,12 @@ class AmplifierSpec(BaseModel):
                     "r_emitter_unbypassed needs r_emitter and c_emitter (it sits in series "
                     "with the bypassed r_emitter; without c_emitter add it to r_emitter)"
                 )
+        if self.r_stopper is not None and "stopper" not in options:
+            raise ValueError(
+                f"r_stopper (base or gate stopper) is modelled for the stages "
+                f"{_stages_with('stopper')}; got stage = {self.stage!r}"
+                f"{_refusal(self.stage, 'stopper')}"
+            )
         if self.polarity is not None:
             words = ("npn", "pnp") if self.kind == "bjt" else ("n-channel", "p-channel")
             if self.polarity not in words:
@@ -574,6 +582,7 @@ class AmplifierSpec(BaseModel):
             # the bias-network details (picker.circuit.bias)
             r_feedback=self.r_feedback,
             r_e_unbypassed=self.r_emitter_unbypassed,
+            r_stopper=self.r_stopper,
             p_type=self.polarity in ("pnp", "p-channel"),
             device=self._bjt_device(),
             r_next=self.next_stage_r,

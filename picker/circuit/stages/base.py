@@ -62,6 +62,7 @@ from picker.tank.base import TWO_PI, Topology
 
 __all__ = [
     "STAGES",
+    "INNER",
     "BiasLoop",
     "DeviceCurrents",
     "KICK_FRACTION",
@@ -76,6 +77,10 @@ __all__ = [
 #: half an ideal period into the tank top (also the disturbance the start-up time of
 #: :mod:`picker.circuit.envelope` starts from).
 KICK_FRACTION = 0.2
+
+#: The inner base (gate) node behind a base stopper: the device's own control terminal
+#: (:mod:`picker.circuit.stages.stopper`).
+INNER = "bs"
 
 #: Every registered stage by name, filled by :meth:`Stage.__init_subclass__`.
 STAGES: dict[str, Stage] = {}
@@ -184,6 +189,10 @@ class Stage:
         changes the network declares its own (the spec refuses the others, one line).
     refusals : why the stage does not take an option, by option (the spec adds the reason
         to its one-line refusal); inherited.
+    saturated_balance : whether the harmonic balance of both junctions
+        (:mod:`picker.circuit.junctions`) is taken on boards whose device saturates when the
+        stage has a base stopper (:mod:`picker.circuit.stages.stopper`; the describing
+        function leaves out the base current's harmonics through it).
     grounded_common : whether the tank's common end (the stage's ``common`` node) is at
         AC ground (common-emitter, common-source); False where it is the emitter
         (source) that taps the tank (the followers, the common-base and common-gate
@@ -205,6 +214,7 @@ class Stage:
     grounded_common: ClassVar[bool] = True
     options: ClassVar[frozenset[str]] = frozenset()
     refusals: ClassVar[Mapping[str, str]] = {}
+    saturated_balance: ClassVar[bool] = True
     _instance: ClassVar[Stage | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:
@@ -233,6 +243,16 @@ class Stage:
         """The stage's nodes in the order of the nodal matrix (ground excluded)."""
         roles = (self.output, self.top, self.input, self.common)
         return tuple(n for n in dict.fromkeys(roles) if n != "0")
+
+    def network_nodes(self, params: AmplifierParams) -> tuple[str, ...]:
+        """:attr:`nodes`, and the inner base (gate) node behind a stopper
+        (:mod:`picker.circuit.stages.stopper`) where ``params`` has one."""
+        return self.nodes + ((INNER,) if params.r_stopper is not None else ())
+
+    def control(self, params: AmplifierParams) -> str:
+        """The node of the device's own base (gate), whose voltage to ``common`` drives the
+        junction: ``input``, or the inner node behind a stopper."""
+        return INNER if params.r_stopper is not None else self.input
 
     # ------------------------------------------------------------ bias and device values
 

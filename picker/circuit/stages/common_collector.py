@@ -80,6 +80,7 @@ from picker.circuit.stages.slow import (
     divider_resistance,
     lowfreq_capacitance,
 )
+from picker.circuit.stages.stopper import stopper_lines
 from picker.tank.base import Topology
 
 __all__ = ["CommonCollector", "rename_nodes"]
@@ -110,7 +111,7 @@ class CommonCollector(CommonEmitter):
     input = "b"
     common = "0"
     coupling_parts = ("CB",)
-    options = frozenset({"p-type"})
+    options = frozenset({"stopper", "p-type"})
     refusals = {
         "collector-feedback": "the follower's collector (drain) sits on the supply, so there "
         "is no collector voltage to feed back to the base; use r_bias_top alone, a base "
@@ -155,8 +156,13 @@ class CommonCollector(CommonEmitter):
         )
 
     def typical_variants(self) -> dict[str, AmplifierParams]:
-        """The PNP follower: the generic PNP, the supply at −9 V (the mirror image)."""
-        return {"p-type": replace(self.typical_params(), p_type=True, device=GENERIC_PNP)}
+        """The PNP follower: the generic PNP, the supply at −9 V (the mirror image); a 100 Ω
+        base stopper (invented values, not real circuits)."""
+        p = self.typical_params()
+        return {
+            "p-type": replace(p, p_type=True, device=GENERIC_PNP),
+            "stopper": replace(p, r_stopper=100.0),
+        }
 
     # ------------------------------------------------------------ start-up
 
@@ -338,7 +344,9 @@ class CommonCollector(CommonEmitter):
                 lines.append(f"RBLEED g 0 {g(params.r_bleed)}")
         lines += self.bias_lines(params, need(params.r_b1, "r_b1"))
         card = self.model_card(params, bias)
-        lines.append(f"Q1 vcc {self.input} {emitter} {card.split()[1]}")
+        stop, base = stopper_lines(params, self.input)  # a base stopper: the base behind it
+        lines += stop
+        lines.append(f"Q1 vcc {base} {emitter} {card.split()[1]}")
         lines.append(f"RE {emitter} 0 {g(need(params.r_e, 'r_e'))}")
         lines += next_stage_lines(params, emitter)
         return StageNetlist(

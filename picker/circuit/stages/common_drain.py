@@ -69,7 +69,7 @@ class CommonDrain(CommonSource, CommonCollector):
     input = "b"
     common = "0"
     coupling_parts = ("CB",)
-    options = frozenset({"p-type"})
+    options = frozenset({"stopper", "p-type"})
 
     def ideal_params(self, gm: float, r_load: float) -> AmplifierParams:
         """The common-source stage's idealised fet (as Sedra & Smith idealise it: C_gs =
@@ -96,8 +96,10 @@ class CommonDrain(CommonSource, CommonCollector):
         )
 
     def typical_variants(self) -> dict[str, AmplifierParams]:
-        """The p-channel follower at −9 V: the mirror image of the typical one."""
-        return {"p-type": replace(self.typical_params(), p_type=True)}
+        """The p-channel follower at −9 V: the mirror image of the typical one; a 220 Ω gate
+        stopper (invented values, not real circuits)."""
+        p = self.typical_params()
+        return {"p-type": replace(p, p_type=True), "stopper": replace(p, r_stopper=220.0)}
 
     def gate_current(
         self, params: AmplifierParams, ss: SmallSignal, a: np.ndarray

@@ -50,6 +50,7 @@ from picker.circuit.stages.base import (
     need,
     spice_number,
 )
+from picker.circuit.stages.stopper import stopper_lines
 from picker.tank.base import Topology
 
 __all__ = ["CommonEmitter", "bessel_ratio", "solve_loop"]
@@ -166,7 +167,7 @@ class CommonEmitter(Stage):
     has_device_law = True
     device = "bjt"
     coupling_parts = ("CB",)
-    options = frozenset({"collector-feedback", "emitter-split", "p-type"})
+    options = frozenset({"collector-feedback", "emitter-split", "stopper", "p-type"})
 
     # ------------------------------------------------------------ bias and device values
 
@@ -188,6 +189,7 @@ class CommonEmitter(Stage):
                 r_collector_dc=self.collector_dc(params),
                 device=params.effective_device(),
                 temperature_c=params.temperature_c,
+                r_base=params.r_stopper or 0.0,
             )
         if params.r_b1 is None:
             return None
@@ -199,6 +201,7 @@ class CommonEmitter(Stage):
             r_collector_dc=self.collector_dc(params),
             device=params.effective_device(),
             temperature_c=params.temperature_c,
+            r_base=params.r_stopper or 0.0,
         )
 
     def device_small_signal(self, params: AmplifierParams) -> SmallSignal:
@@ -248,7 +251,8 @@ class CommonEmitter(Stage):
     def typical_variants(self) -> dict[str, AmplifierParams]:
         """A single base resistor; collector feedback (R_F alone, and with R_B2 to ground:
         about 2 mA and 1.6 mA); the emitter resistor split 22 Ω unbypassed + 2.18 kΩ
-        bypassed (invented values, not real circuits). Only those of the stage's own
+        bypassed; a 100 Ω base stopper (invented values, not real circuits). Only those of
+        the stage's own
         :attr:`options` (a subclass inherits this method, not the options)."""
         if not self.options:
             return {}
@@ -260,6 +264,8 @@ class CommonEmitter(Stage):
             out["collector-feedback-divider"] = replace(fb, r_b2=47e3, r_feedback=100e3)
         if "emitter-split" in self.options:
             out["emitter-split"] = replace(p, r_e_unbypassed=22.0)
+        if "stopper" in self.options:  # 100 Ω in series with the base, at the device
+            out["stopper"] = replace(p, r_stopper=100.0)
         if "p-type" in self.options:  # the generic PNP, the supply at −9 V
             out["p-type"] = replace(p, p_type=True, device=GENERIC_PNP)
         return out
@@ -604,11 +610,13 @@ class CommonEmitter(Stage):
             *self.bias_lines(params, params.r_b1),
         ]
         model = card.split()[1]
+        stop, base = stopper_lines(params, self.input)  # a base stopper: the base behind it
+        lines += stop
         if params.r_e is not None:
-            lines.append(f"Q1 {col} {self.input} {self.common} {model}")
+            lines.append(f"Q1 {col} {base} {self.common} {model}")
             lines += self.emitter_lines(params)
         else:
-            lines.append(f"Q1 {col} {self.input} 0 {model}")
+            lines.append(f"Q1 {col} {base} 0 {model}")
         return StageNetlist(
             elements=lines,
             models=[card],

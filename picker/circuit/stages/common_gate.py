@@ -60,7 +60,7 @@ class CommonGate(CommonSource, CommonBase):
     input = "b"
     common = "0"
     coupling_parts = ("CB",)
-    options = frozenset({"p-type"})
+    options = frozenset({"stopper", "p-type"})
 
     def typical_params(self) -> AmplifierParams:
         """A 9 V MOSFET stage at about 2.3 mA: the generic small-signal n-channel MOSFET,
@@ -87,13 +87,18 @@ class CommonGate(CommonSource, CommonBase):
         return params.r_b1 is None and params.r_b2 is None
 
     def typical_variants(self) -> dict[str, AmplifierParams]:
-        """The p-channel stage at −9 V: the mirror image of the typical one."""
-        return {"p-type": replace(self.typical_params(), p_type=True)}
+        """The p-channel stage at −9 V: the mirror image of the typical one; a 220 Ω stopper
+        between the grounded gate and the fet (invented values, not real circuits)."""
+        p = self.typical_params()
+        return {"p-type": replace(p, p_type=True), "stopper": replace(p, r_stopper=220.0)}
 
     def gate_dc_resistance(self, params: AmplifierParams) -> float:
-        """0 with the gate tied to ground, else the gate network's (as the common-source
-        stage's): the gate junction's rectified current then moves only the source."""
-        return 0.0 if self.gate_grounded(params) else super().gate_dc_resistance(params)
+        """0 with the gate tied to ground (a gate stopper's resistance, if any), else the
+        gate network's (as the common-source stage's): the gate junction's rectified
+        current then moves only the source (and drops across the stopper)."""
+        if self.gate_grounded(params):
+            return params.r_stopper or 0.0
+        return super().gate_dc_resistance(params)
 
     def cautions(self, topology: Topology, params: AmplifierParams) -> list[str]:
         """The inductor feeding the drain past its load (a Colpitts without C_B); a gate

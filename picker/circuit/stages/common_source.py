@@ -48,6 +48,7 @@ from picker.circuit.stages.base import (
     spice_number,
 )
 from picker.circuit.stages.common_emitter import CommonEmitter
+from picker.circuit.stages.stopper import stopper_lines
 from picker.tank.base import Topology
 
 __all__ = ["CommonSource", "NMOS_NAME"]
@@ -76,7 +77,7 @@ class CommonSource(CommonEmitter):
     name = "common-source"
     has_device_law = True
     device = "fet"
-    options = frozenset({"emitter-split", "p-type"})
+    options = frozenset({"emitter-split", "stopper", "p-type"})
 
     def gate_voltage(self, params: AmplifierParams) -> float:
         """DC gate voltage: the divider's V_DD·R_B2/(R_B1 + R_B2) (no gate current), the
@@ -167,12 +168,13 @@ class CommonSource(CommonEmitter):
 
     def typical_variants(self) -> dict[str, AmplifierParams]:
         """The source resistor split 22 Ω unbypassed + 448 Ω bypassed (with R_D = 1 kΩ to
-        make up the gain the split takes), and the p-channel stage at −9 V (the mirror
-        image; invented values, not real circuits)."""
+        make up the gain the split takes), the p-channel stage at −9 V (the mirror image)
+        and a 220 Ω gate stopper (invented values, not real circuits)."""
         p = self.typical_params()
         return {
             "emitter-split": replace(p, r_e_unbypassed=22.0, r_c=1000.0),
             "p-type": replace(p, p_type=True),
+            "stopper": replace(p, r_stopper=220.0),
         }
 
     def overdrive(self, params: AmplifierParams, ss: SmallSignal) -> float:
@@ -256,11 +258,13 @@ class CommonSource(CommonEmitter):
         """The DC resistance from the gate to ground, ohm: the divider's R_B1·R_B2/(R_B1 +
         R_B2), R_B1 or the gate resistor R_G (``r_b2``) alone, 1 TΩ (a floating gate)
         without either. A bleed resistor reaching the gate through the inductor is left
-        out (the clamp level moves only with ln R, :meth:`gate_leak`)."""
+        out (the clamp level moves only with ln R, :meth:`gate_leak`). A gate stopper
+        carries the junction's current too: its resistance adds."""
         r1, r2 = params.r_b1, params.r_b2
+        r_s = params.r_stopper or 0.0
         if r1 is not None and r2 is not None:
-            return r1 * r2 / (r1 + r2)
-        return r1 if r1 is not None else (r2 if r2 is not None else 1e12)
+            return r1 * r2 / (r1 + r2) + r_s
+        return (r1 if r1 is not None else (r2 if r2 is not None else 1e12)) + r_s
 
     def gate_current(
         self, params: AmplifierParams, ss: SmallSignal, a: np.ndarray
@@ -399,12 +403,13 @@ class CommonSource(CommonEmitter):
                 values, stray, r_l, params.capacitor_esr, self.top, self.input, bleed
             ),
             *self.bias_lines(params, r_b1),
-            f"M1 {col} {self.input} {src} {src} {NMOS_NAME} W=10u L=10u",
         ]
+        stop, gate = stopper_lines(params, self.input)  # a gate stopper
+        lines += [*stop, f"M1 {col} {gate} {src} {src} {NMOS_NAME} W=10u L=10u"]
         if ss.c_pi > 0:
-            lines.append(f"CGS {self.input} {src} {g(ss.c_pi)}")
+            lines.append(f"CGS {gate} {src} {g(ss.c_pi)}")
         if ss.c_mu > 0:
-            lines.append(f"CGD {self.input} {col} {g(ss.c_mu)}")
+            lines.append(f"CGD {gate} {col} {g(ss.c_mu)}")
         if params.r_e is not None:
             lines += self.emitter_lines(params)
         if params.c_block is None:
@@ -426,10 +431,12 @@ class CommonSource(CommonEmitter):
 
     def device_lines(self, params: AmplifierParams, d: str, g: str, s: str) -> list[str]:
         """The fet (its card's element line) with C_gs and C_gd as explicit capacitors
-        (the card has none: the model's constant capacitances at any bias)."""
+        (the card has none: the model's constant capacitances at any bias); a gate
+        stopper from ``g`` to the fet's own gate."""
         card = _card(params)
         ss = self.small_signal(params)
-        lines = [card.instance(d, g, s)]
+        stop, g = stopper_lines(params, g)  # a gate stopper: the fet's gate behind it
+        lines = [*stop, card.instance(d, g, s)]
         if ss.c_pi > 0:
             lines.append(f"CGS {g} {s} {spice_number(ss.c_pi)}")
         if ss.c_mu > 0:
