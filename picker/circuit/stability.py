@@ -86,6 +86,7 @@ from picker.circuit.oscillation import CHUNK, refine_zero_phase, tank_pole
 from picker.tank.base import TWO_PI, Topology
 
 __all__ = [
+    "CROSS_SATURATION",
     "Startup",
     "closed_loop_pole",
     "pole_from_crossing",
@@ -99,6 +100,9 @@ _LOCAL = np.linspace(-12.0, 12.0, 33)  # around an open-loop pole, in its half-b
 _SECANT_IT = 40
 _TURN = 0.5  # largest turn of the phase of T over a grid interval, rad
 _SPLITS = 10
+#: How much more a mode's gain is compressed by another mode's amplitude than by its own
+#: (the cubic's cross- over self-saturation, (M1) of the module docstring).
+CROSS_SATURATION = 2.0
 
 
 @dataclass(frozen=True)
@@ -253,8 +257,8 @@ def running_mode(col: np.ndarray, growth: np.ndarray, excess: np.ndarray, n: int
     e_max = np.full(n, -np.inf)
     np.maximum.at(e_max, col[good], excess[good])
     # the largest e of the element's *other* modes is e_max unless the mode holds it;
-    # a mode holding e_max is never invaded (e_max > 2·e_max is false for e ≥ 0)
-    stable = good & ~(e_max[col] > 2.0 * excess)
+    # a mode holding e_max is never invaded (e_max > 2·e_max is false for e > 0)
+    stable = good & ~(e_max[col] > CROSS_SATURATION * excess)
     best = np.full(n, -np.inf)
     np.maximum.at(best, col[stable], growth[stable])
     pick = np.full(n, -1)
