@@ -34,7 +34,7 @@ mode is chosen by the two-mode theory of an oscillator whose modes share one sat
 device (van der Pol, "The nonlinear theory of electric oscillations", Proc. IRE 22,
 1934, oscillations of a system with two degrees of freedom [memory for the section];
 the same mode competition as in Lamb's theory of the multimode laser, Phys. Rev. 134,
-A1429, 1964). With the device's current compressing as i(v) = g1·(v − c·v³) (the
+A1429, 1964 [memory]). With the device's current compressing as i(v) = g1·(v − c·v³) (the
 leading terms of any smooth odd compression) and its input v = A_i·cos ω_i t +
 A_j·cos ω_j t (incommensurate ω_i, ω_j), the component of i at ω_i is
 g1·A_i·(1 − c·(3/4·A_i² + 3/2·A_j²)): the other mode compresses a mode's gain twice as
@@ -56,10 +56,10 @@ amplitude compresses the gain, the other modes no longer grow (M1). So
                        other mode invades by (M1)                              (M2)
 
 (M2) is the cubic approximation: a bipolar junction's exponential law with its bias
-current held by R_E compresses a second mode less (the mean incremental
-transconductance stays I_C/V_T), and two modes may then run together (ngspice shows
-both on the common-base Clapp cb003 of tests/validation/; the fastest-growing one is
-the tank's, as (M2) says); a square-law device compresses it more. The margin keeps its
+current held by R_E compresses a second mode less (the mean of the incremental
+transconductance i_C(t)/V_T stays I_C/V_T, derived here), and two modes may then run
+together (ngspice shows both on the common-base Clapp cb003 of tests/validation/; the
+fastest-growing one is the tank's, as (M2) says). The margin keeps its
 meaning (the gm factor at which the last pole pair leaves the right half-plane); the
 start-up pole and its crossing are those of the mode (M2) picks.
 
