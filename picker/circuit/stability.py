@@ -27,6 +27,42 @@ in opposite directions there is no net encirclement and the circuit is stable
 (tests/test_stability.py builds one and checks it against the eigenvalues of a
 state matrix).
 
+**Which mode the oscillator runs in.** Where more than one pole pair lies in the
+right half-plane (a collector choke's resonance or a low mode beside the tank's), each
+pair is followed from its own crossing k (T_k > 1, d_k = +1) to the actual gm, and the
+mode is chosen by the two-mode theory of an oscillator whose modes share one saturating
+device (van der Pol, "The nonlinear theory of electric oscillations", Proc. IRE 22,
+1934, oscillations of a system with two degrees of freedom [memory for the section];
+the same mode competition as in Lamb's theory of the multimode laser, Phys. Rev. 134,
+A1429, 1964 [memory]). With the device's current compressing as i(v) = g1·(v − c·v³) (the
+leading terms of any smooth odd compression) and its input v = A_i·cos ω_i t +
+A_j·cos ω_j t (incommensurate ω_i, ω_j), the component of i at ω_i is
+g1·A_i·(1 − c·(3/4·A_i² + 3/2·A_j²)): the other mode compresses a mode's gain twice as
+much as the mode itself does (the cross-saturation factor 2, derived here and checked
+by a discrete Fourier transform in tests/test_mode_competition.py). Mode i alone settles
+where 3/4·c·A_i² = 1 − 1/m_i = e_i (its *excess gain*; m_i = T_k of its crossing, the
+factor gm may fall by before that mode stops growing); a small mode j then sees the gain
+g1·(1 − 2·e_i) and grows on it iff m_j·(1 − 2·e_i) > 1, i.e.
+
+    mode j invades mode i's steady state  ⇔  e_j > 2·e_i                      (M1)
+
+A mode whose steady state no other mode invades is a stable single-mode state; at
+least one exists (the mode of the largest e). Among the stable states the oscillator
+reaches the one whose mode grows fastest from the start-up disturbance (the largest
+real part of the pole at the actual gm): it takes the device's gain first and, once its
+amplitude compresses the gain, the other modes no longer grow (M1). So
+
+    the running mode = the fastest-growing (largest Re s) of the modes that no
+                       other mode invades by (M1)                              (M2)
+
+(M2) is the cubic approximation: a bipolar junction's exponential law with its bias
+current held by R_E compresses a second mode less (the mean of the incremental
+transconductance i_C(t)/V_T stays I_C/V_T, derived here), and two modes may then run
+together (ngspice shows both on the common-base Clapp cb003 of tests/validation/; the
+fastest-growing one is the tank's, as (M2) says). The margin keeps its
+meaning (the gm factor at which the last pole pair leaves the right half-plane); the
+start-up pole and its crossing are those of the mode (M2) picks.
+
 The crossings are found on a grid of frequencies: a geometric grid over
 0.05 … 20 times the ideal tank frequency, refined around each open-loop pole
 (the tank's, and the strongest peak of |T| on the coarse grid, e.g. a collector
@@ -49,13 +85,24 @@ from picker.circuit.network import Network
 from picker.circuit.oscillation import CHUNK, refine_zero_phase, tank_pole
 from picker.tank.base import TWO_PI, Topology
 
-__all__ = ["Startup", "closed_loop_pole", "pole_from_crossing", "startup", "startup_chunk"]
+__all__ = [
+    "CROSS_SATURATION",
+    "Startup",
+    "closed_loop_pole",
+    "pole_from_crossing",
+    "running_mode",
+    "startup",
+    "startup_chunk",
+]
 
 _COARSE = np.geomspace(0.05, 20.0, 121)  # multiples of the ideal tank frequency
 _LOCAL = np.linspace(-12.0, 12.0, 33)  # around an open-loop pole, in its half-bandwidths
 _SECANT_IT = 40
 _TURN = 0.5  # largest turn of the phase of T over a grid interval, rad
 _SPLITS = 10
+#: How much more a mode's gain is compressed by another mode's amplitude than by its own
+#: (the cubic's cross- over self-saturation, (M1) of the module docstring).
+CROSS_SATURATION = 2.0
 
 
 @dataclass(frozen=True)
@@ -65,10 +112,11 @@ class Startup:
     ``starts``: a pole pair lies in the right half-plane (N1). ``margin``: see the module
     docstring (for a board that does not start: the largest T_k ≤ 1 whose crossing
     would start it, 0 where none). ``w_cross``: the zero-phase frequency (rad/s) of the
-    crossing that sets the margin (NaN where none). ``pole``: the closed-loop natural
-    frequency near that crossing at the actual gm (complex, rad/s; NaN where not
-    found); its real part is the start-up growth rate. ``pairs``: the number of pole
-    pairs in the right half-plane.
+    crossing of the mode the board runs in ((M2); where one mode grows, the crossing
+    that sets the margin; for a board that does not start, the crossing that would
+    start it; NaN where none). ``pole``: that mode's closed-loop natural frequency at
+    the actual gm (complex, rad/s; NaN where not found); its real part is the start-up
+    growth rate. ``pairs``: the number of pole pairs in the right half-plane.
     """
 
     starts: np.ndarray
@@ -196,6 +244,29 @@ def _crossings(
     return col[k], w, tk, d
 
 
+def running_mode(col: np.ndarray, growth: np.ndarray, excess: np.ndarray, n: int) -> np.ndarray:
+    """The index of the mode each of ``n`` elements runs in by (M2) of the module
+    docstring, -1 where it has none.
+
+    The modes are flat arrays: ``col`` the element each belongs to, ``growth`` its
+    growth rate (Re s at the actual gm; NaN for a mode not found, which is left out)
+    and ``excess`` its excess gain e = 1 − 1/m. Mode i is a stable single-mode state
+    unless another mode j of its element has e_j > 2·e_i (M1); of the stable states
+    the fastest-growing is chosen (ties: the first)."""
+    good = np.isfinite(growth) & np.isfinite(excess)
+    e_max = np.full(n, -np.inf)
+    np.maximum.at(e_max, col[good], excess[good])
+    # the largest e of the element's *other* modes is e_max unless the mode holds it;
+    # a mode holding e_max is never invaded (e_max > 2·e_max is false for e > 0)
+    stable = good & ~(e_max[col] > CROSS_SATURATION * excess)
+    best = np.full(n, -np.inf)
+    np.maximum.at(best, col[stable], growth[stable])
+    pick = np.full(n, -1)
+    hit = np.nonzero(stable & (growth == best[col]))[0][::-1]  # the first of equals wins
+    pick[col[hit]] = hit
+    return pick
+
+
 def startup_chunk(net: Network, idx: np.ndarray) -> Startup:
     """:class:`Startup` of the elements ``idx`` of ``net`` (see the module docstring)."""
     n = idx.size
@@ -231,10 +302,17 @@ def startup_chunk(net: Network, idx: np.ndarray) -> Startup:
     margin = np.where(has, tpad[rows, jj], 0.0)
     w_cross = np.where(has, wpad[rows, jj], np.nan)
     pole = np.full(n, np.nan + 0j)
-    live = np.nonzero(starts & has & np.isfinite(w_cross))[0]
-    if live.size:
-        s, ok = pole_from_crossing(net, idx[live], w_cross[live], margin[live])
-        pole[live] = np.where(ok & (s.real > 0), s, np.nan)
+    # the growing modes: each crossing into the right half-plane below gm (T_k > 1,
+    # d_k = +1) followed to the actual gm; the board runs in the mode (M2) picks
+    cand = np.nonzero((starts & has)[col] & (d > 0) & (tk > 1.0) & np.isfinite(w))[0]
+    if cand.size:
+        cc = col[cand]
+        s, ok = pole_from_crossing(net, idx[cc], w[cand], tk[cand])
+        s = np.where(ok & (s.real > 0), s, np.nan)
+        pick = running_mode(cc, s.real, 1.0 - 1.0 / tk[cand], n)
+        mine = pick >= 0
+        pole[mine] = s[pick[mine]]
+        w_cross = np.where(mine, w[cand][np.maximum(pick, 0)], w_cross)
     return Startup(starts & has, margin, w_cross, pole, pairs)
 
 
