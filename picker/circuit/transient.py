@@ -24,7 +24,11 @@ q_b = 1/(1 − V_BC/VAF)):
     i_F = IS·(e^{V_BE/V_T} − 1),  i_R = IS·(e^{V_BC/V_T} − 1)                       (T2)
     I_C = (i_F − i_R)/q_b − i_R/BR,  I_B = i_F/BF + i_R/BR,  q_D = TF·i_F/q_b          (T3)
 
-plus the junction capacitances CJE (base-emitter) and CJC (base-collector) in C.
+plus the junction capacitances CJE (base-emitter) and CJC (base-collector) in C. A fet
+(``J`` with an NJF/PJF card, ``M`` with an NMOS/PMOS level-1 card) takes the
+transistor's place through :attr:`Circuit.law` (:mod:`picker.circuit.transient_devices`:
+drain, gate, source where collector, base, emitter are; its terminal on the supply is
+an unknown held at the supply's voltage by its own row).
 
 Integration (:func:`integrate`): fixed steps h, the first by the trapezoidal rule, the
 rest by the second-order backward differentiation formula (BDF2, Gear's method:
