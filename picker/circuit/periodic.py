@@ -98,8 +98,8 @@ def periodic_state(
     warm: int = WARM,
     retry: int = RETRY_WARM,
 ) -> PeriodicState:
-    """The periodic orbits of the boards ``idx`` of ``net`` (a bjt stage with its bias
-    network), from the describing function's frequency ``w`` (rad/s), tank-top
+    """The periodic orbits of the boards ``idx`` of ``net`` (a bjt or fet stage with its
+    bias network), from the describing function's frequency ``w`` (rad/s), tank-top
     amplitude ``top`` (V) and mean collector current ``i_mean`` (A), one per element
     (:func:`periodic_circuits`; where ``w`` is not finite, the ideal tank's)."""
     topo = net.topology

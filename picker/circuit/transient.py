@@ -20,9 +20,10 @@ inductor; both currents counted into each inductor's first node):
 
     L1·di1/dt + M·di2/dt = v_1,   M·di1/dt + L2·di2/dt = v_2,   M = k·√(L1·L2)       (T4)
 
-A transistor terminal may sit on the supply (the follower's collector): its voltage is
-known, so it enters the junction voltages as a constant and the current into it drops
-out of x (the source supplies it). The transistor is SPICE's Gummel-Poon model
+A bipolar transistor's terminal may sit on the supply (the follower's collector): its
+voltage is known, so it enters the junction voltages as a constant and the current into
+it drops out of x (the source supplies it); a fet's terminal on the supply is an unknown
+held at the supply's voltage by its own row. The transistor is SPICE's Gummel-Poon model
 with the card's parameters (no high injection, no leakage currents, no base resistance;
 constant junction capacitances, MJE = MJC = 0), as ngspice evaluates it (Massobrio &
 Antognetti, *Semiconductor Device Modeling with SPICE*, 2nd ed., ch. 2, eqs. of the
@@ -32,7 +33,11 @@ q_b = 1/(1 − V_BC/VAF)):
     i_F = IS·(e^{V_BE/V_T} − 1),  i_R = IS·(e^{V_BC/V_T} − 1)                       (T2)
     I_C = (i_F − i_R)/q_b − i_R/BR,  I_B = i_F/BF + i_R/BR,  q_D = TF·i_F/q_b          (T3)
 
-plus the junction capacitances CJE (base-emitter) and CJC (base-collector) in C.
+plus the junction capacitances CJE (base-emitter) and CJC (base-collector) in C. A fet
+(``J`` with an NJF/PJF card, ``M`` with an NMOS/PMOS level-1 card) takes the
+transistor's place through :attr:`Circuit.law` (:mod:`picker.circuit.transient_devices`:
+drain, gate, source where collector, base, emitter are; its terminal on the supply is
+an unknown held at the supply's voltage by its own row).
 
 Integration (:func:`integrate`): fixed steps h, the first by the trapezoidal rule, the
 rest by the second-order backward differentiation formula (BDF2, Gear's method:
@@ -50,6 +55,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+
+from picker.circuit.transient_devices import FET_TYPES, FetLaw, fet_law
 
 __all__ = [
     "Circuit",
@@ -96,8 +103,11 @@ class Circuit:
     scatter: np.ndarray
     #: (B, n): where the diffusion charge q_D sits (+1 at the base, −1 at the emitter)
     charge_at: np.ndarray
-    #: (B, 2): the part of (V_BE, V_BC) from known nodes (a terminal on the supply)
+    #: (B, 2): the part of (V_BE, V_BC) from known nodes (a bjt's terminal on the supply)
     v_known: np.ndarray
+    #: a fet's equations (:mod:`picker.circuit.transient_devices`; drain, gate and
+    #: source in the places of collector, base and emitter), None for the bjt
+    law: FetLaw | None = None
 
     @property
     def size(self) -> int:
@@ -118,6 +128,7 @@ class Circuit:
             self.scatter[rows],
             self.charge_at[rows],
             self.v_known[rows],
+            None if self.law is None else self.law.take(rows),
         )
 
 
@@ -159,12 +170,23 @@ def _stamp(
                 rhs[i] += y * known[o]
 
 
-def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: float) -> Circuit:
+def build_circuit(
+    netlists: list[list[str]],
+    models: list[str],
+    top: str,
+    vt: float,
+    *,
+    cards: list[list[str]] | None = None,
+) -> Circuit:
     """The batch of circuits (T1) of netlists' element lines (one list per circuit: R, C,
-    L, K couplings (T4), a DC source V to ground, one bjt Q, whose terminals may sit on
-    ground or the source's node; current sources, the start-up kick, are left out) and
-    their one ``.model`` card; ``top`` names the tank-top node."""
-    card = _card(models)
+    L, a DC source V to ground, one bjt Q or one fet J or M; current sources, the start-up
+    kick, are left out) and their one ``.model`` card; ``top`` names the tank-top node.
+    A batch of fets may give each circuit its own card: ``cards``, one list per circuit,
+    in place of ``models``."""
+    law_of: list[FetLaw] = []
+    first = cards[0] if cards else models
+    fet = len(first) == 1 and first[0].split()[2].upper() in FET_TYPES
+    card = {"BF": np.inf, "IS": 1e-14} if fet else _card(models)
     parsed = []
     for lines in netlists:
         known: dict[str, float] = {"0": 0.0}
@@ -178,18 +200,29 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
                 if f[2] != "0":
                     raise ValueError(f"source {f[0]} is not to ground")
                 known[f[1]] = _value(f[-1])
-            elif kind in "RCLQK":
+            elif kind in ("RCLJMK" if fet else "RCLQK"):
                 elems.append(f)
             elif kind != "I":
                 raise ValueError(f"element {f[0]} is not simulated here")
+        # a fet's terminal on the supply: the node is an unknown held at the supply's
+        # voltage by its own row (x_i = V; the source's current is not needed)
+        pinned = {
+            nd: known[nd]
+            for f in elems
+            if f[0][0].upper() in "JM"
+            for nd in f[1:4]
+            if nd != "0" and nd in known
+        }
+        for nd in pinned:
+            del known[nd]
         nodes: list[str] = []
         for f in elems:
             kind = f[0][0].upper()
-            for nd in f[1:4] if kind == "Q" else [] if kind == "K" else f[1:3]:
+            for nd in f[1:4] if kind in "QJM" else [] if kind == "K" else f[1:3]:
                 if nd not in known and nd not in nodes:
                     nodes.append(nd)
         inductors = [f for f in elems if f[0][0].upper() == "L"]
-        parsed.append((known, elems, nodes, inductors))
+        parsed.append((known, elems, nodes, inductors, pinned))
         names = {f[0].upper() for f in inductors}
         for f in elems:
             if f[0][0].upper() == "K" and not (f[1].upper() in names and f[2].upper() in names):
@@ -200,10 +233,11 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
     c = np.zeros((m, n + 1, n + 1))
     b = np.zeros((m, n + 1))
     qi = np.full((m, 3), n, dtype=int)  # no transistor: every terminal on ground
-    vq = np.zeros((m, 3))  # the known voltages of the terminals off x (ground, supply)
+    vq = np.zeros((m, 3))  # the known voltages of a bjt's terminals off x (ground, supply)
     tops = np.zeros(m, dtype=int)
     n_nodes = np.zeros(m, dtype=int)
-    for r, (known, elems, nodes, inductors) in enumerate(parsed):
+    held = np.zeros((m, n), dtype=bool)
+    for r, (known, elems, nodes, inductors, pinned) in enumerate(parsed):
         idx = {nd: i for i, nd in enumerate(nodes)}
         n_nodes[r] = len(nodes)
         tops[r] = idx[top]
@@ -219,6 +253,11 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
                 vq[r] = [known.get(nd, 0.0) for nd in f[1:4]]
                 _stamp(c[r], None, idx, known, f[2], f[3], card["CJE"])
                 _stamp(c[r], None, idx, known, f[2], f[1], card["CJC"])
+            elif kind in "JM":
+                law_of.append(fet_law((models if cards is None else cards[r])[0], f))
+                qi[r] = [idx.get(nd, n) for nd in f[1:4]]
+                _stamp(c[r], None, idx, known, f[2], f[3], float(law_of[-1].cgs[0]))
+                _stamp(c[r], None, idx, known, f[2], f[1], float(law_of[-1].cgd[0]))
         for k, f in enumerate(inductors):
             j = len(nodes) + k
             a, bb = f[1], f[2]
@@ -238,6 +277,10 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
                 c[r, j2, j1] += mut
         for i in range(len(nodes) + len(inductors), n):  # padding: x_i = 0
             g[r, i, i] = 1.0
+        for nd, v in pinned.items():  # a supply node: x_i = V
+            i = idx[nd]
+            g[r, i], c[r, i], b[r, i], g[r, i, i] = 0.0, 0.0, v, 1.0
+            held[r, i] = True
     # the transistor's incidence over (collector, base, emitter); ground (index n) drops
     inc = np.zeros((m, n + 1, 3))
     inc[np.arange(m)[:, None], qi, np.arange(3)[None, :]] = 1.0
@@ -246,6 +289,8 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
     scatter = inc @ np.array([[1.0, 0.0], [0.0, 1.0], [-1.0, -1.0]])  # I_C, I_B
     charge_at = inc[:, :, 1] - inc[:, :, 2]
     v_known = np.stack([vq[:, 1] - vq[:, 2], vq[:, 1] - vq[:, 0]], axis=1)
+    scatter[held] = 0.0  # the supply takes the device's current
+    charge_at[held] = 0.0
     return Circuit(
         g[:, :n, :n],
         c[:, :n, :n],
@@ -259,7 +304,17 @@ def build_circuit(netlists: list[list[str]], models: list[str], top: str, vt: fl
         scatter,
         charge_at,
         v_known,
+        _stack(law_of, m),
     )
+
+
+def _stack(laws: list[FetLaw], m: int) -> FetLaw | None:
+    """The batch's fets (None for a bjt batch), one per circuit of ``m``."""
+    if not laws:
+        return None
+    if len(laws) != m:
+        raise ValueError("expected one fet in every circuit of the batch")
+    return FetLaw.stack(laws)
 
 
 def _exp(u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -292,7 +347,7 @@ def _terms(
 
 def _junctions(circ: Circuit, x: np.ndarray) -> np.ndarray:
     """(V_BE, V_BC) (..., B, 2) at states x (..., B, n): :attr:`Circuit.gather` on x plus
-    the known terminals' part."""
+    the known terminals' part (a fet's: (V_GS, V_GD), its supply terminal held in x)."""
     return np.einsum("...bi,bik->...bk", x, circ.gather) + circ.v_known  # type: ignore[no-any-return]
 
 
@@ -300,6 +355,8 @@ def device(circ: Circuit, x: np.ndarray) -> dict[str, np.ndarray]:
     """The transistor's (T2)-(T3) at states x (..., B, n): V_BE, V_BC, I_C, I_B, q_D
     and the exponentials' derivatives."""
     v = _junctions(circ, x)
+    if circ.law is not None:  # a fet: V_GS, V_GD, I_D, I_G (picker.circuit.transient_devices)
+        return circ.law.terms(circ.vt, v[..., 0], v[..., 1])
     return _terms(circ.card, circ.vt, v[..., 0], v[..., 1])
 
 
@@ -310,9 +367,25 @@ def evaluate(circ: Circuit, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.n
     :attr:`Circuit.scatter` (its I_C, I_B into the rows of x; the emitter takes
     −I_C − I_B), each an einsum over the batch, so that no array is built element by
     element at each call."""
-    bsz = x.shape[0]
-    p = circ.card
     v = _junctions(circ, x)
+    dev, qd, dcur, dq = _device_block(circ, v)
+    cur = np.einsum("bij,bj->bi", circ.g, x) + np.einsum("bik,bk->bi", circ.scatter, dev)
+    chg = np.einsum("bij,bj->bi", circ.c, x) + circ.charge_at * qd[:, None]
+    jg = circ.g + np.einsum("bik,bkl,bjl->bij", circ.scatter, dcur, circ.gather)
+    jc = circ.c + np.einsum("bi,bl,bjl->bij", circ.charge_at, dq, circ.gather)
+    return cur, chg, jg, jc
+
+
+def _device_block(
+    circ: Circuit, v: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The transistor at controlling voltages v (B, 2): its currents (B, 2), charge
+    (B,), and their derivatives ∂(I_C, I_B)/∂v (B, 2, 2), ∂q_D/∂v (B, 2)."""
+    bsz = v.shape[0]
+    if circ.law is not None:  # a fet (picker.circuit.transient_devices): no charge
+        t = circ.law.terms(circ.vt, v[:, 0], v[:, 1])
+        return np.stack([t["ic"], t["ib"]], axis=1), t["qd"], t["dcur"], np.zeros((bsz, 2))
+    p = circ.card
     dv = _terms(p, circ.vt, v[:, 0], v[:, 1])
     i_f, g_f, g_r, kq = dv["i_f"], dv["g_f"], dv["g_r"], dv["kq"]
     # ∂(I_C, I_B)/∂(V_BE, V_BC) and ∂q_D/∂(V_BE, V_BC)
@@ -328,15 +401,13 @@ def evaluate(circ: Circuit, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.n
     dev = np.empty((bsz, 2))
     dev[:, 0] = dv["ic"]
     dev[:, 1] = dv["ib"]
-    cur = np.einsum("bij,bj->bi", circ.g, x) + np.einsum("bik,bk->bi", circ.scatter, dev)
-    chg = np.einsum("bij,bj->bi", circ.c, x) + circ.charge_at * dv["qd"][:, None]
-    jg = circ.g + np.einsum("bik,bkl,bjl->bij", circ.scatter, dcur, circ.gather)
-    jc = circ.c + np.einsum("bi,bl,bjl->bij", circ.charge_at, dq, circ.gather)
-    return cur, chg, jg, jc
+    return dev, dv["qd"], dcur, dq
 
 
 def charge(circ: Circuit, x: np.ndarray) -> np.ndarray:
     """Q(x) of (T1) alone, for x (B, n)."""
+    if circ.law is not None:  # a fet: constant capacitances only
+        return np.einsum("bij,bj->bi", circ.c, x)  # type: ignore[no-any-return]
     v = _junctions(circ, x)
     p = circ.card
     ef, _ = _exp(v[:, 0] / circ.vt)
@@ -350,8 +421,11 @@ def _damping(circ: Circuit, x: np.ndarray, dx: np.ndarray) -> np.ndarray:
     V_crit = V_T·ln(V_T/(√2·IS)) a junction's rise is cut to V_T·ln(1 + ΔV/V_T)), the
     whole step scaled to the tightest junction, and at most :data:`_V_STEP` on either."""
     vt = circ.vt
+    if circ.law is not None:  # a fet's own junctions (picker.circuit.transient_devices)
+        v = np.einsum("bi,bik->bk", x, circ.gather)
+        return circ.law.limit(vt, v, np.einsum("bi,bik->bk", dx, circ.gather))
     v_crit = vt * np.log(vt / (np.sqrt(2.0) * circ.card["IS"]))
-    v = _junctions(circ, x)
+    v = _junctions(circ, x)  # (V_BE, V_BC)
     d = np.einsum("bi,bik->bk", dx, circ.gather)
     rise = (v + d > v_crit) & (d > 2.0 * vt)
     ad = np.abs(d)
@@ -367,6 +441,9 @@ def dc_point(circ: Circuit, x: np.ndarray | None = None) -> tuple[np.ndarray, np
     bsz, n = circ.b.shape
     x = np.zeros((bsz, n)) if x is None else x.copy()
     done = np.zeros(bsz, dtype=bool)
+    # a fet's bias network of small conductances leaves Newton's step at the rounding
+    # level of its node voltages (~1e-12 V): its tolerance is the transient's, 1e-9 V
+    tol = 1e-12 if circ.law is None else 1e-9
     for _ in range(200):
         act = np.nonzero(~done)[0]
         if act.size == 0:
@@ -376,7 +453,7 @@ def dc_point(circ: Circuit, x: np.ndarray | None = None) -> tuple[np.ndarray, np
         dx = np.linalg.solve(jg, (sub.b - cur)[..., None])[..., 0]
         lim = _damping(sub, x[act], dx)
         x[act] += lim[:, None] * dx
-        done[act[(lim == 1.0) & (np.max(np.abs(dx), axis=1) < 1e-12)]] = True
+        done[act[(lim == 1.0) & (np.max(np.abs(dx), axis=1) < tol)]] = True
     # on a stiff network (a choke in the collector and the coils of a Hartley tank: the
     # condition number ~1e5) Newton's step stalls at round-off a little above 1e-12; such
     # a point is accepted at the integrator's own tolerance (:func:`integrate`)
@@ -385,8 +462,8 @@ def dc_point(circ: Circuit, x: np.ndarray | None = None) -> tuple[np.ndarray, np
         sub = circ.take(act)
         cur, _, jg, _ = evaluate(sub, x[act])
         dx = np.linalg.solve(jg, (sub.b - cur)[..., None])[..., 0]
-        tol = np.where(np.arange(n)[None, :] < sub.n_nodes[:, None], 1e-9, 1e-13)
-        near = (_damping(sub, x[act], dx) == 1.0) & np.all(np.abs(dx) <= tol, axis=1)
+        tol_n = np.where(np.arange(n)[None, :] < sub.n_nodes[:, None], 1e-9, 1e-13)
+        near = (_damping(sub, x[act], dx) == 1.0) & np.all(np.abs(dx) <= tol_n, axis=1)
         done[act[near]] = True
     return x, done
 
@@ -396,13 +473,8 @@ def dc_with_currents(circ: Circuit, ic: np.ndarray, ib: np.ndarray) -> np.ndarra
     ``ic`` (collector) and ``ib`` (base), A (B,): G·x = b − the currents it draws (the
     capacitors' mean currents vanish over a period, so the averages of the node voltages
     satisfy this; the bias shift of the coupling and bypass capacitors)."""
-    bsz, n = circ.b.shape
-    ar = np.arange(bsz)
-    inj = np.zeros((bsz, n + 1))
-    inj[ar, circ.q[:, 0]] -= ic
-    inj[ar, circ.q[:, 1]] -= ib
-    inj[ar, circ.q[:, 2]] += ic + ib
-    return np.linalg.solve(circ.g, (circ.b + inj[:, :n])[..., None])[..., 0]  # type: ignore[no-any-return]
+    inj = -np.einsum("bik,bk->bi", circ.scatter, np.stack([ic, ib], axis=1))
+    return np.linalg.solve(circ.g, (circ.b + inj)[..., None])[..., 0]  # type: ignore[no-any-return]
 
 
 @dataclass(frozen=True)

@@ -28,7 +28,9 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.netlist import TransientPlan, verify_plan, write_netlist
+from picker.circuit.network import Network
 from picker.circuit.ngspice import SimulationResult, simulate
+from picker.circuit.nominal_orbit import NominalOrbit, board_orbits
 from picker.circuit.steady import SteadyState, steady_state
 from picker.tank.base import Topology
 
@@ -55,6 +57,15 @@ def _figures(st: SteadyState, i: int) -> dict[str, Any]:
         "startup_time_s": _num(st.startup_time_s[i]),
         "margin": _num(st.margin[i]),
     }
+
+
+def _with_orbit(fig: dict[str, Any], orb: NominalOrbit | None) -> dict[str, Any]:
+    """The board's figures with its periodic orbit's frequency, amplitude and Floquet
+    verdict where it has one."""
+    if orb is None:
+        return fig
+    envelope = "bursting" if orb.bursting else "steady"
+    return {**fig, "f_hz": orb.f_hz, "amplitude_v": orb.amplitude_v, "envelope": envelope}
 
 
 def _batch(
@@ -221,11 +232,15 @@ def check_boards(
 
     with ThreadPoolExecutor(max_workers=max(1, workers)) as pool:
         sims = list(pool.map(run, jobs))
+    # the boards where solve's table takes the periodic orbit (picker.circuit.nominal_orbit:
+    # a saturated drive) get the orbit's figures beside ngspice, as the table gives them
+    arr = {p: np.array([v[p] for v in vals]) for p in topology.positions}
+    orbits = board_orbits([Network.build(topology, arr, stray, params)])[0]
     return [
         BoardCheck(
             label=label,
             values=v,
-            model=_figures(st, i),
+            model=_with_orbit(_figures(st, i), orbits[i]),
             sim=sim,
             window=window,
             cycles=plan.cycles,
