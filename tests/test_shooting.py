@@ -20,7 +20,7 @@ import numpy as np
 import pytest
 
 from picker.circuit.network import Network
-from picker.circuit.periodic import periodic_state
+from picker.circuit.periodic import SUPPLY_LINK, periodic_state, supply_linked
 from picker.circuit.steady import steady_state
 from picker.circuit.transient import build_circuit, integrate
 from picker.circuit.validation import load_reference, run_design
@@ -29,6 +29,7 @@ from picker.tank.base import TWO_PI
 
 CARD = ".model QN NPN (IS=1e-14 BF=150 VAF=100 TF=3e-10 CJE=5e-12 CJC=3e-12 BR=1)"
 DATA = Path(__file__).parent / "validation" / "large_signal.json"
+FOLLOWER = Path(__file__).parent / "validation" / "stage_common_collector.json"
 R, L, C = 50.0, 1e-3, 1e-9
 
 
@@ -145,6 +146,55 @@ def test_bursting_design_has_a_multiplier_outside_the_unit_circle():
     _, ps = _shoot(d)
     assert bool(ps.ok[0])
     assert ps.unstable[0] and ps.multiplier[0] > 1.05
+
+
+def test_a_collector_on_the_supply_is_linked_to_it():
+    # the emitter follower's netlist puts the collector on VCC; the circuit reader
+    # simulates a transistor on unknown nodes only, so the orbit's lines link it
+    lines = ["VCC vcc 0 DC 9", "RB1 vcc b 10000", "RB2 b 0 4700", "Q1 vcc b t QN", "RE t 0 470"]
+    with pytest.raises(ValueError, match="supply"):
+        build_circuit([lines], [CARD], "t", 0.025852)
+    linked = supply_linked(lines)
+    assert linked[:3] == lines[:3] and linked[-1] == lines[-1]
+    assert linked[3].split() == ["RQ1_1", "vcc", "Q1_1", f"{SUPPLY_LINK:g}"]
+    assert linked[4].split() == ["Q1", "Q1_1", "b", "t", "QN"]
+    circ = build_circuit([linked], [CARD], "t", 0.025852)
+    assert circ.q[0, 0] != circ.b.shape[1]  # the collector is an unknown, not ground
+    # lines without a terminal on a source come back as they were
+    assert supply_linked(lines[:3] + lines[4:]) == lines[:3] + lines[4:]
+
+
+@pytest.mark.slow
+def test_saturated_follower_against_ngspice():
+    # cc001: an emitter-follower Clapp (collector on the supply) whose emitter swing
+    # reaches the supply; the describing function is 1.6 % below ngspice's carrier
+    designs, answers = load_reference(FOLLOWER)
+    k = [d.id for d in designs].index("cc001")
+    d, ref = designs[k], answers[k]
+    assert ref["state"] == "steady"
+    st, ps = _shoot(d)
+    assert bool(ps.ok[0])
+    assert float(st.f_hz) / ref["f_hz"] - 1 < -0.01  # what the orbit is for
+    assert ps.w[0] / TWO_PI == pytest.approx(ref["f_hz"], rel=1e-3)
+    assert ps.top[0] == pytest.approx(ref["amplitude_v"], rel=0.06)
+    assert not ps.unstable[0]
+
+
+@pytest.mark.slow
+def test_a_flip_is_not_bursting():
+    # cc010: an emitter-follower Colpitts, steady in ngspice (envelope modulation under
+    # 1 %), whose orbit has a real multiplier beyond -1: a flip to an orbit of twice the
+    # period, whose envelope at the carrier stays as steady (Kuznetsov, *Elements of
+    # Applied Bifurcation Theory*, ch. 4); it is not counted as bursting
+    designs, answers = load_reference(FOLLOWER)
+    k = [d.id for d in designs].index("cc010")
+    d, ref = designs[k], answers[k]
+    assert ref["state"] == "steady" and ref["modulation"] < 0.01
+    _, ps = _shoot(d)
+    assert bool(ps.ok[0])
+    assert ps.multiplier[0] > 1.1  # outside the unit circle, yet:
+    assert not ps.unstable[0]
+    assert ps.w[0] / TWO_PI == pytest.approx(ref["f_hz"], rel=1e-3)
 
 
 @pytest.mark.ngspice

@@ -23,10 +23,12 @@ fast model's own verdict on saturated boards (the relaxation rule) is the weaker
 0.80 with the orbit), so the orbit's verdict wins for every board of the design.
 
 Only designs whose nominal drive saturates get an orbit (elsewhere harmonic balance of
-the junctions already holds the frequency to about 0.1 %), only for the bjt stages whose
-netlist :func:`picker.circuit.transient.build_circuit` reads (the transistor's
-terminals off the supply), and only where shooting converges; elsewhere (O1)-(O2) do
-not apply and the fast model stands.
+the junctions already holds the frequency to about 0.1 %), only for the bjt stages
+(the emitter follower's collector, on the supply, is linked to it by 1 mΩ:
+:func:`picker.circuit.periodic.supply_linked`), and only where shooting converges;
+elsewhere (O1)-(O2) do not apply and the fast model stands. (O2)'s verdict leaves out a
+flip (a real multiplier below −1): it doubles the period but keeps the envelope steady
+(:func:`picker.circuit.periodic.periodic_circuits`).
 """
 
 from __future__ import annotations

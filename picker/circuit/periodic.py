@@ -13,7 +13,8 @@ to the describing function's amplitude and period. From the orbit it reads:
 * the 2nd and 3rd harmonics of the tank top relative to the fundamental, dBc (the
   discrete Fourier transform of the N samples of one period);
 * the peak collector current and the device's mean dissipation ⟨I_C·V_CE + I_B·V_BE⟩;
-* whether the orbit is unstable (a Floquet multiplier outside the unit circle).
+* whether the orbit is unstable in its envelope (a Floquet multiplier outside the unit
+  circle, a flip to twice the period left out: it keeps the envelope steady).
 
 Where it is used: :mod:`picker.circuit.nominal_orbit` runs it on the designs whose
 describing function saturates, for the reported designs of ``solve`` and ``evaluate``
@@ -31,15 +32,33 @@ import numpy as np
 
 from picker.circuit.device import thermal_voltage
 from picker.circuit.network import Network
-from picker.circuit.shooting import RETRY_WARM, STEPS, WARM, oscillating_mode, periodic_orbit
+from picker.circuit.shooting import (
+    RETRY_WARM,
+    STEPS,
+    UNSTABLE_MARGIN,
+    WARM,
+    oscillating_mode,
+    periodic_orbit,
+)
 from picker.circuit.transient import Circuit, build_circuit, dc_point, dc_with_currents, device
 from picker.tank.base import TWO_PI
 
-__all__ = ["REFINE", "PeriodicState", "board_lines", "periodic_circuits", "periodic_state"]
+__all__ = [
+    "REFINE",
+    "SUPPLY_LINK",
+    "PeriodicState",
+    "board_lines",
+    "periodic_circuits",
+    "periodic_state",
+    "supply_linked",
+]
 
 #: The converged orbit is solved again with this many times the steps (for the
 #: multipliers and the figures).
 REFINE = 4
+#: A multiplier counts as real where its imaginary part is below this fraction of its
+#: modulus (an eigenvalue of a real matrix: exactly real up to rounding).
+FLIP_IMAG = 1e-6
 
 
 @dataclass(frozen=True)
@@ -56,9 +75,37 @@ class PeriodicState:
     multiplier: np.ndarray  # the largest non-trivial Floquet multiplier's modulus
 
 
+#: Resistance between the supply and a transistor terminal on it, Ω (:func:`board_lines`).
+SUPPLY_LINK = 1e-3
+
+
+def supply_linked(lines: list[str]) -> list[str]:
+    """Element lines with each transistor terminal that sits on a DC source's node (the
+    emitter follower's collector on the supply) moved to a node of its own, joined to
+    the source by :data:`SUPPLY_LINK`: the circuit reader
+    (:func:`picker.circuit.transient.build_circuit`) simulates a transistor whose
+    terminals are unknowns only. The link drops I_C·1 mΩ, a few µV at the stages'
+    currents, against a supply of volts: far below anything the orbit resolves (the
+    card's own collector resistance RC is 0, as in the netlist ngspice runs)."""
+    sources = {ln.split()[1] for ln in lines if ln[:1].upper() == "V"}
+    out: list[str] = []
+    for ln in lines:
+        f = ln.split()
+        if f and f[0][:1].upper() == "Q" and sources.intersection(f[1:4]):
+            for k in (1, 2, 3):
+                if f[k] in sources:
+                    node = f"{f[0]}_{k}"
+                    out.append(f"R{node} {f[k]} {node} {SUPPLY_LINK:g}")
+                    f[k] = node
+            ln = " ".join(f)
+        out.append(ln)
+    return out
+
+
 def board_lines(net: Network, idx: np.ndarray) -> tuple[list[list[str]], list[str]]:
     """The netlist element lines of the boards ``idx`` of ``net`` (the lines ngspice is
-    given, :meth:`picker.circuit.stages.base.Stage.netlist`) and the model cards."""
+    given, :meth:`picker.circuit.stages.base.Stage.netlist`, a transistor terminal on the
+    supply linked to it by :func:`supply_linked`) and the model cards."""
     stage, params = net.stage, net.params
     topo = net.topology
     lines = []
@@ -66,7 +113,7 @@ def board_lines(net: Network, idx: np.ndarray) -> tuple[list[list[str]], list[st
     for i in idx:
         vals = {p: float(net.el[p][i]) for p in topo.positions}
         part = stage.netlist(topo, vals, float(net.el["stray"][i]), float(net.el["r_l"][i]), params)
-        lines.append(list(part.elements))
+        lines.append(supply_linked(list(part.elements)))
         models = part.models
     return lines, models
 
@@ -165,6 +212,14 @@ def periodic_circuits(
     # adds the same terms in the same order whatever the batch beside it
     p_dev = np.ascontiguousarray((dev["ic"] * vce + dev["ib"] * dev["vbe"]).T).mean(axis=1)
     mu = np.abs(mult[:, 0])
+    # a real multiplier below −1 (a flip) leads to an orbit of twice the period whose
+    # envelope at the carrier is as steady as this one's (the period-doubling, or flip,
+    # bifurcation of the period map: Kuznetsov, *Elements of Applied Bifurcation Theory*,
+    # ch. 4); the envelope modulates (bursts) only through a multiplier beyond +1 or a
+    # complex pair outside the unit circle (the Neimark-Sacker bifurcation, ibid.)
+    flip = (mult.real < 0.0) & (np.abs(mult.imag) <= FLIP_IMAG * np.abs(mult))
+    grows = np.abs(mult) > 1.0 + UNSTABLE_MARGIN
+    unstable = unstable & np.any(grows & ~flip, axis=1)
     nan = np.nan
     return PeriodicState(
         ok=ok,
