@@ -12,7 +12,8 @@
   amplitude, where the balance must give the linear loop's zero-phase frequency, found
   here by scipy's brentq on the generic solver's phase.
 - A heavily pulled board of the validation set (d104: margin 1.19, the ideal formula 23 %
-  off) against ngspice's carrier and amplitude, read from tests/validation/large_signal.json.
+  off) against ngspice's carrier and amplitude, read from tests/validation/large_signal.json;
+  likewise two boards the describing function calls saturated (d020, d059).
 """
 
 from __future__ import annotations
@@ -116,3 +117,20 @@ def test_heavily_pulled_board_against_ngspice():
     # issue 11's 2 % on the frequency and ±30 % on the amplitude (half the peak-to-peak)
     assert float(st.f_hz) == pytest.approx(sim["f_hz"], rel=0.02)
     assert float(st.amplitude_v) == pytest.approx(sim["amplitude_v"], rel=0.3)
+
+
+@pytest.mark.parametrize("did", ["d020", "d059"])
+def test_saturated_board_whose_balance_converges_against_ngspice(did):
+    # the describing function calls these saturated (its swing reaches the knee) and gave
+    # d020 (a Clapp) -0.31 % and twice ngspice's amplitude, d059 1.25x it; the balance of
+    # both junctions converges on them and is taken (their orbits do not converge)
+    data = json.loads(DATA.read_text(encoding="utf-8"))
+    rec = next(r for r in data["designs"] if r["design"]["id"] == did)
+    d = design_from_dict(rec["design"])
+    sim = rec["ngspice"]
+    assert sim["state"] == "steady"
+    st = steady_state(d.topo, d.values, d.stray, d.params)
+    assert bool(st.overdriven)  # still flagged: the orbit is tried on it
+    # issue 11's Clapp 0.5 % on the frequency, ±15 % on the amplitude
+    assert float(st.f_hz) == pytest.approx(sim["f_hz"], rel=0.002)
+    assert float(st.amplitude_v) == pytest.approx(sim["amplitude_v"], rel=0.15)

@@ -29,6 +29,7 @@ from picker.tank.base import TWO_PI
 
 CARD = ".model QN NPN (IS=1e-14 BF=150 VAF=100 TF=3e-10 CJE=5e-12 CJC=3e-12 BR=1)"
 DATA = Path(__file__).parent / "validation" / "large_signal.json"
+FOLLOWER = Path(__file__).parent / "validation" / "stage_common_collector.json"
 R, L, C = 50.0, 1e-3, 1e-9
 
 
@@ -145,6 +146,21 @@ def test_bursting_design_has_a_multiplier_outside_the_unit_circle():
     _, ps = _shoot(d)
     assert bool(ps.ok[0])
     assert ps.unstable[0] and ps.multiplier[0] > 1.05
+
+
+@pytest.mark.slow
+def test_saturated_follower_against_ngspice():
+    # cc001: an emitter-follower Clapp (collector on the supply) whose emitter swing
+    # reaches the supply; the describing function alone was 1.6 % below ngspice's carrier
+    designs, answers = load_reference(FOLLOWER)
+    k = [d.id for d in designs].index("cc001")
+    d, ref = designs[k], answers[k]
+    assert ref["state"] == "steady"
+    _, ps = _shoot(d)
+    assert bool(ps.ok[0])
+    assert ps.w[0] / TWO_PI == pytest.approx(ref["f_hz"], rel=1e-3)
+    assert ps.top[0] == pytest.approx(ref["amplitude_v"], rel=0.06)
+    assert not ps.unstable[0]
 
 
 @pytest.mark.ngspice

@@ -71,8 +71,10 @@ BURST_CC = (
     "largest multiplier 1.015 at 512 steps a period, 0.86 at 1024-2048)"
 )
 CLAPP_CC = (
-    "unmet: Clapp worst 1.7 % (2 oscillating Clapps: cc016, unsettled and not saturated, "
-    "-1.7 %; cc001 -0.02 % with the periodic orbit)"
+    "unmet: Clapp worst 1.7 % (cc016, unsettled in ngspice: its periodic orbit, 108.9 kHz as "
+    "the describing function's, is unstable, multiplier 1.08, and ngspice's carrier wanders "
+    "about 109-111 kHz with the emitter swinging up to the supply; cc001 is 0.02 % off with "
+    "the orbit)"
 )
 CLAPP_CB = (
     "unmet: Clapp worst 1.4 % (cb003, a saturated Clapp with a collector choke: in ngspice "

@@ -16,11 +16,12 @@ The model, in three steps (each module states its method and sources):
    charge storage) with the bias shift; the compression that puts the closed-loop
    pole on the imaginary axis gives the steady frequency, the drive gives the
    amplitudes, the harmonics, the peak current and the dissipation.
-   Where the device stays out of saturation, the frequency is then corrected by
-   harmonic balance of both junctions (:mod:`picker.circuit.junctions`; where that
-   does not converge, of the base-emitter junction alone, :mod:`picker.circuit.harmonic`):
-   the device's harmonic currents fed back through the network move the loop's phase
-   balance. Where the device saturates, the describing function's frequency stands.
+   The frequency and amplitude are then corrected by harmonic balance of both
+   junctions (:mod:`picker.circuit.junctions`): the device's harmonic currents fed back
+   through the network move the loop's phase balance, and the base-collector junction
+   is what saturates the transistor. Where that does not converge, out of saturation
+   the base-emitter junction alone (:mod:`picker.circuit.harmonic`) corrects the
+   frequency; in saturation the describing function's frequency stands.
 3. **Steadiness and start-up time** (:mod:`picker.circuit.envelope`): averaged
    envelope equations with the bias network's slow states.
 """
@@ -208,19 +209,19 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     a0 = 2.0 * (2.0 * KICK_FRACTION * loop.i_rest / pole0.imag) * np.abs(be0 / dt_ds)
     t_up = startup_time(stage, params, ss, loop, a0, a, pole0.real, c_star, ratio, c_b)
     good = ok & drive.ok
-    # harmonic balance of both junctions (picker.circuit.junctions) where the describing
-    # function finds the device out of saturation and the bias network sets the mean
-    # current (with gm or the bias current given, the mean current is held and the DC
-    # network of (J3) does not apply); where it does not converge, of the base-emitter
-    # junction alone (picker.circuit.harmonic); where the device saturates, the
-    # describing function's frequency
+    # harmonic balance of both junctions (picker.circuit.junctions) where the bias
+    # network sets the mean current (with gm or the bias current given, the mean current
+    # is held and the DC network of (J3) does not apply), the saturated boards included:
+    # saturation is the base-collector junction conducting, which (J1)-(J3) carry; where
+    # it does not converge, of the base-emitter junction alone (picker.circuit.harmonic)
+    # out of saturation, and the describing function's frequency in it
     w_df = w.copy()
     done = np.zeros(good.shape, dtype=bool)
     if stage.has_device_law and stage.device == "bjt" and np.isfinite(loop.r_dc):
-        # with a base stopper, saturated boards too where the stage says the balance holds
-        # there: the describing function leaves out the base current's harmonics through
-        # the stopper (picker.circuit.stages.stopper)
-        sat = params.r_stopper is not None and stage.saturated_balance
+        # saturated boards too (the balance carries the base-collector junction, which is
+        # what saturation is); with a base stopper only where the stage says the balance
+        # holds there (picker.circuit.stages.stopper)
+        sat = params.r_stopper is None or stage.saturated_balance
         kn = np.nonzero(good & (~drive.saturated | sat))[0]
         if kn.size:
             w_kn, top_kn, ok_kn = junction_balance(net, sub[kn], w_df[kn], a[kn], drive.dv[kn])
