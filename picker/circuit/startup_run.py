@@ -16,52 +16,55 @@ intermittent oscillation, where a grid-leak bias whose time constant is long aga
 the envelope's rise blocks the oscillator; the condition there is the same race
 between the envelope's growth and the bias capacitor's charge). The averaged envelope
 equations of :mod:`picker.circuit.envelope` linearise about the orbit and cannot see
-it; on the validation sets the designs that burst in ngspice with a stable orbit are
-all saturated (d003, d035 on the main set, h003, h017 on the held-out set).
+it; on the validation sets the designs that burst in ngspice with a stable orbit (or
+none found) are all saturated (d003, d035 on the main set, h003, h017 on the held-out
+set).
 
 So, where the orbit is stable (or where shooting did not converge), the start-up is
 run: the design's own circuit (:mod:`picker.circuit.transient`, the integrator
-shooting uses) from its DC point plus its oscillating mode at :data:`START_FRACTION`
-of the describing function's amplitude, period by period at :data:`STEPS` steps a
-period, for the start-up time and :data:`HORIZON` bias time constants (R_E·C_E, the
+shooting uses) from its DC point and the netlist's start-up kick
+(:data:`picker.circuit.stages.base.KICK_FRACTION` of the collector current for half a
+period into the tank top, taken as one backward-Euler step of the circuit linearised
+at rest), period by period at :data:`STEPS` steps a period, for the start-up time and :data:`HORIZON` bias time constants (R_E·C_E, the
 stage's :meth:`picker.circuit.stages.base.Stage.relaxation_time`), between
 :data:`MIN_PERIODS` and :data:`MAX_PERIODS` periods. It **collapses** when, after the
-amplitude at the tank top has once grown :data:`RISEN` times over the start's, it falls
+amplitude at the tank top has once reached :data:`RISEN` of the expected one, it falls
 below :data:`COLLAPSE` of that largest value: the measurement's own definition of a
 burst (the envelope's low percentile below 0.2 of its high one,
 :mod:`picker.circuit.waveform`), applied to the start-up's first burst. Once the
 oscillation has died the circuit is back near its rest state with C_E discharging,
 so the start repeats: one collapse means the bursts recur.
+
+Found on the validation sets: d035, h003, h017; no steady design collapses. d003 is
+still missed: from the kick (and from its mode at 1 % or 0.01 % of its amplitude) it
+settles, from its mode at 0.13 % it collapses: it lies on the edge of the orbit's basin,
+where the start decides.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from picker.circuit.shooting import oscillating_mode
-from picker.circuit.transient import Circuit, dc_point, integrate
+from picker.circuit.stages.base import KICK_FRACTION
+from picker.circuit.transient import Circuit, dc_point, device, evaluate, integrate
 
-__all__ = ["COLLAPSE", "HORIZON", "MAX_PERIODS", "STEPS", "startup_collapses"]
+__all__ = ["COLLAPSE", "HORIZON", "MAX_PERIODS", "RISEN", "STEPS", "startup_collapses"]
 
 #: Time steps a period (BDF2): coarser than shooting's, as the question is whether the
 #: amplitude falls by a factor of five, not the orbit's frequency to 0.1 %.
 STEPS = 32
-#: The start: the oscillating mode at this fraction of the describing function's
-#: amplitude at the tank top (a small disturbance; the growth from it takes a few
-#: start-up pole time constants).
-START_FRACTION = 0.01
-#: Bias time constants run beyond twice the start-up time. On the validation sets the
-#: collapse of every hard squegger came within 1.2 R_E·C_E of the start (d035, the
-#: latest; d003, h003, h017 within 0.65).
+#: Bias time constants run beyond twice the start-up time. In runs from a 10 mV start
+#: the collapse of every hard squegger of the validation sets came within 1.2 R_E·C_E
+#: of the start (d035, the latest; d003, h003, h017 within 0.65).
 HORIZON = 2.0
-#: Fewest and most periods run (the latest collapse on the validation sets came at
-#: period 80, h003's; twice that bounds the cost of a steady design's run).
+#: Fewest and most periods run (the latest collapse in those runs came at period 80,
+#: h003's; twice that bounds the cost of a steady design's run).
 MIN_PERIODS = 20
 MAX_PERIODS = 160
-#: The oscillation has started once its amplitude has grown this many times over the
-#: start's (the describing function's amplitude of a saturated design can be off by a
-#: factor of two, so the test does not ask for the steady amplitude itself).
-RISEN = 10.0
+#: The oscillation has started once its amplitude has reached this fraction of the
+#: expected one (the orbit's, or the describing function's, which can be off by a
+#: factor of two on a saturated design: the test does not ask for the amplitude itself).
+RISEN = 0.1
 #: A burst: the amplitude falls below this fraction of its largest value so far.
 COLLAPSE = 0.2
 
@@ -79,12 +82,17 @@ def startup_collapses(
     five-fold fall of the amplitude, which such a residual does not make."""
     m = circ.b.shape[0]
     x_dc, _ = dc_point(circ)
-    _, vec = oscillating_mode(circ, x_dc, w)
     ar = np.arange(m)
-    v_top = np.abs(vec[ar, circ.top])
     full = np.where(np.isfinite(top) & (top > 0), top, 1.0)
-    x = x_dc + (vec * (START_FRACTION * full / np.maximum(v_top, 1e-300))[:, None]).real
     period = 2.0 * np.pi / w
+    # the netlist's kick: KICK_FRACTION of the collector current for half a period into
+    # the tank top, as one backward-Euler step of the circuit linearised at rest
+    _, _, jg, jc = evaluate(circ, x_dc)
+    i_c = np.abs(device(circ, x_dc[None])["ic"][0])
+    half = 0.5 * period
+    src = np.zeros_like(x_dc)
+    src[ar, circ.top] = KICK_FRACTION * i_c
+    x = x_dc + np.linalg.solve(jc / half[:, None, None] + jg, src[:, :, None])[:, :, 0]
     periods = np.clip(np.ceil(horizon_s / period), MIN_PERIODS, MAX_PERIODS).astype(int)
     peak = np.zeros(m)
     risen = np.zeros(m, dtype=bool)
@@ -103,6 +111,6 @@ def startup_collapses(
         live[act[~good]] = False
         x[act] = run.x[-1]
         peak[act] = np.maximum(peak[act], a)
-        risen[act] |= a >= RISEN * START_FRACTION * full[act]
+        risen[act] |= a >= RISEN * full[act]
         collapse[act] = good & risen[act] & (a < COLLAPSE * peak[act])
     return collapse & ok, ok
