@@ -166,6 +166,10 @@ BURSTERS = ["common-collector", "common-base", "common-source", "hartley"]
     _sets(
         {
             "common-collector": BURST_CC,
+            "common-base": "recall 0 (1 burster): cb011 (margin 84, saturated, no orbit found) "
+            "was flagged by the stage's relaxation rule; the start-up run from rest "
+            "(picker.circuit.startup_run), which now decides where shooting fails, does not "
+            "collapse on it (1,000 periods tried)",
             "common-source": "recall 0 (1 burster): cs002 (margin 65) squegs through its "
             "gate junction's rectified current; the envelope equations do not find it",
             "hartley": "precision 0.71 (5 of 7), recall 0.83 (5 of 6): the model flags the "
