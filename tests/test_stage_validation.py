@@ -169,6 +169,10 @@ BURSTERS = ["common-collector", "common-base", "common-source", "hartley"]
     _sets(
         {
             "common-collector": BURST_CC,
+            "common-base": "recall 0 (1 burster): cb011 (margin 84, saturated, no orbit found) "
+            "was flagged by the stage's relaxation rule; the start-up run from rest "
+            "(picker.circuit.startup_run), which now decides where shooting fails, does not "
+            "collapse on it (1,000 periods tried)",
             "common-source": "recall 0 (1 burster): cs002 (margin 65) squegs in ngspice "
             "through its gate junction's rectified current; the periodic orbit of its "
             "netlist is found stable (largest Floquet multiplier 0.84) at ngspice's "

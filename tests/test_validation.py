@@ -42,9 +42,7 @@ SETS = {"main": (DATA, 120), "holdout": (HOLDOUT, 50)}
 #: periodic orbit where the transistor saturates) does not meet yet, per set, with the
 #: figure measured (README: measured accuracy against ngspice); each marker must come
 #: off once the target is met (strict xfail)
-UNMET_BURSTING = {
-    "holdout": "bursting recall 0.40 on the held-out set (2 of its 5 bursting designs found)",
-}
+UNMET_BURSTING: dict[str, str] = {}
 UNMET_CLAPP = {
     "main": "Clapp worst frequency error 3.6 % on the main set (d100, bursting: ngspice never "
     "holds the model's 728 kHz steady state; its bursts stay above half their peak for under ten "

@@ -12,6 +12,7 @@ nominal offset, linear model for the spread" applied once more:
     ln f_steady(board) ≈ ln f_fast(board) + [ln f_orbit − ln f_fast](nominal)     (O1)
     bursts(board)      ⇔ the nominal orbit has a Floquet multiplier outside
                          the unit circle, not only real negative ones           (O2)
+                         or the nominal design's start-up from rest collapses    (O3)
 
 with f_fast the Monte Carlo's own steady frequency (:mod:`picker.circuit.loaded`,
 (A1)-(A3)). (O1) assumes the describing function's error moves little across the
@@ -23,6 +24,11 @@ fast model's own verdict on saturated boards (the relaxation rule) is the weaker
 0.80 with the orbit), so the orbit's verdict wins for every board of the design. An
 orbit unstable only by real negative multipliers (a flip,
 :mod:`picker.circuit.periodic`) doubles its period nearby and does not burst.
+(O3) (:mod:`picker.circuit.startup_run`) adds the bursts a locally stable orbit hides:
+the start-up overshoot charges the emitter bypass past the point where the loop gain
+drops below 1 (hard squegging); it is run on the bjt stages where the orbit is stable,
+and where shooting fails it gives the verdict alone (with the describing function's
+figures). It was measured on the bjt validation sets only, so the fet stages keep (O2).
 
 Only designs whose nominal drive saturates get an orbit (elsewhere harmonic balance of
 the junctions already holds the frequency to about 0.1 %), only for the stages whose
@@ -53,6 +59,7 @@ from picker.circuit.amplitude import OVERDRIVE_MARGIN
 from picker.circuit.device import thermal_voltage
 from picker.circuit.network import Network
 from picker.circuit.periodic import board_lines, periodic_circuits
+from picker.circuit.startup_run import HORIZON, startup_collapses
 from picker.circuit.steady import steady_state
 from picker.circuit.transient import build_circuit
 from picker.tank.base import TWO_PI, Topology
@@ -67,7 +74,10 @@ class NominalOrbit:
 
     ``shift`` = ln f_orbit − ln f_fast ((O1)); ``bursting`` the Floquet verdict ((O2));
     ``multiplier`` the largest non-trivial multiplier's modulus; the rest the steady
-    figures of the orbit (as :class:`picker.circuit.steady.SteadyState` names them)."""
+    figures of the orbit (as :class:`picker.circuit.steady.SteadyState` names them).
+    ``converged`` is False where shooting failed but the start-up run
+    (:mod:`picker.circuit.startup_run`) gave the verdict: the figures are then the
+    describing function's (``shift`` 0, ``multiplier`` NaN)."""
 
     shift: float
     bursting: bool
@@ -77,6 +87,7 @@ class NominalOrbit:
     harmonics_dbc: tuple[float, float]
     peak_current_a: float
     dissipation_w: float
+    converged: bool = True
 
 
 def nominal_orbits(
@@ -103,7 +114,20 @@ def board_orbits(nets: Sequence[Network]) -> list[list[NominalOrbit | None]]:
     and starts their shooting; the boards whose netlists share a transistor card, a tank
     top and a temperature are shot in one batch (each converges on its own)."""
     out: list[list[NominalOrbit | None]] = [[None] * net.size for net in nets]
-    groups: dict[tuple[Any, ...], list[tuple[int, int, list[str], float, float, list[str]]]] = {}
+    # (network, board, netlist lines, f_fast, amplitude, the fet's own card, start-up
+    # horizon (None: no start-up run), the describing function's harmonics, peak current
+    # and dissipation)
+    Row = tuple[
+        int,
+        int,
+        list[str],
+        float,
+        float,
+        list[str],
+        float | None,
+        tuple[float, float, float, float],
+    ]
+    groups: dict[tuple[Any, ...], list[Row]] = {}
     models: dict[tuple[Any, ...], list[str]] = {}
     for k, net in enumerate(nets):
         if net.size == 0 or net.stage.device not in ("bjt", "fet"):
@@ -113,6 +137,11 @@ def board_orbits(nets: Sequence[Network]) -> list[list[NominalOrbit | None]]:
             st = steady_state(net.topology, el, net.el["stray"], net.params)
         f_fast = np.asarray(st.f_hz, dtype=float).reshape(-1)
         amp = np.asarray(st.amplitude_v, dtype=float).reshape(-1)
+        t_up = np.asarray(st.startup_time_s, dtype=float).reshape(-1)
+        harm = np.asarray(st.harmonics_dbc, dtype=float).reshape(-1, 2)
+        i_pk = np.asarray(st.peak_current_a, dtype=float).reshape(-1)
+        p_dev = np.asarray(st.dissipation_w, dtype=float).reshape(-1)
+        tau = net.stage.relaxation_time(net.params)
         over = np.asarray(st.overdriven).reshape(-1)
         if net.stage.device == "fet":
             # a fet overdriven as the caution calls it (:data:`OVERDRIVE_MARGIN`): far
@@ -142,7 +171,12 @@ def board_orbits(nets: Sequence[Network]) -> list[list[NominalOrbit | None]]:
             shape = tuple(sorted(line.split()[0] for line in ln if not line.startswith("*")))
             key = (tuple(cards), net.stage.top, thermal_voltage(net.params.temperature_c), shape)
             models[key] = cards
-            groups.setdefault(key, []).append((k, i, ln, float(f_fast[i]), float(amp[i]), card))
+            # (O3) for the bjt stages, where it was measured (tests/validation); not the fet's
+            horizon = None if fet else 2.0 * float(np.nan_to_num(t_up[i])) + HORIZON * tau
+            fast = (float(harm[i, 0]), float(harm[i, 1]), float(i_pk[i]), float(p_dev[i]))
+            groups.setdefault(key, []).append(
+                (k, i, ln, float(f_fast[i]), float(amp[i]), card, horizon, fast)
+            )
     for key, rows in groups.items():
         try:
             circ = build_circuit(
@@ -161,13 +195,41 @@ def board_orbits(nets: Sequence[Network]) -> list[list[NominalOrbit | None]]:
                 np.array([r[4] for r in rows]),
                 np.full(len(rows), math.nan),
             )
-        for j, (k, i, _, f0, _, _) in enumerate(rows):
+        unstable = ps.ok & ps.unstable & ~ps.flip  # (O2): a flip does not burst
+        # (O3): where the orbit is stable or was not found, the start-up from rest
+        run = np.flatnonzero(~unstable & np.array([r[6] is not None for r in rows]))
+        collapse = np.zeros(len(rows), dtype=bool)
+        ran = np.zeros(len(rows), dtype=bool)
+        if run.size:
+            w_fast = np.array([TWO_PI * r[3] for r in rows])
+            a_fast = np.array([r[4] for r in rows])
+            with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+                got, fine = startup_collapses(
+                    circ.take(run),
+                    np.where(ps.ok, ps.w, w_fast)[run],
+                    np.where(ps.ok, ps.top, a_fast)[run],
+                    np.array([float(rows[j][6] or 0.0) for j in run]),
+                )
+            collapse[run], ran[run] = got, fine
+        for j, (k, i, _, f0, a0, _, _, fast) in enumerate(rows):
             if not bool(ps.ok[j]):
+                if ran[j]:
+                    out[k][i] = NominalOrbit(
+                        shift=0.0,
+                        bursting=bool(collapse[j]),
+                        multiplier=math.nan,
+                        f_hz=f0,
+                        amplitude_v=a0,
+                        harmonics_dbc=(fast[0], fast[1]),
+                        peak_current_a=fast[2],
+                        dissipation_w=fast[3],
+                        converged=False,
+                    )
                 continue
             f = float(ps.w[j]) / TWO_PI
             out[k][i] = NominalOrbit(
                 shift=math.log(f) - math.log(f0),
-                bursting=bool(ps.unstable[j]) and not bool(ps.flip[j]),
+                bursting=bool(unstable[j] or collapse[j]),
                 multiplier=float(ps.multiplier[j]),
                 f_hz=f,
                 amplitude_v=float(ps.top[j]),
