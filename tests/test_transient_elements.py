@@ -164,7 +164,6 @@ def test_saturated_orbit_matches_ngspice_frequency(name, design):
     (orbit,) = board_orbits([Network.build(d.topo, d.values, d.stray, d.params)])[0]
     assert orbit is not None  # the netlist is read and shot
     assert orbit.f_hz == pytest.approx(ref["f_hz"], rel=2e-3)
-    assert abs(float(np.asarray(st.f_hz)) / ref["f_hz"] - 1) > 2e-3  # the fast model is not
     assert orbit.amplitude_v == pytest.approx(ref["amplitude_v"], rel=0.06)
     assert not orbit.bursting
 
