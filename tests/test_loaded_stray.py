@@ -101,3 +101,15 @@ def test_solve_runs_with_a_stray_spread(demo):
     # the same designs with one stray yield otherwise (common random numbers per run)
     assert [c.yield_estimate for c in res.candidates] != [c.yield_estimate for c in res0.candidates]
     assert all(math.isfinite(c.yield_estimate) for c in res.candidates)
+
+
+def test_stray_share_in_the_drivers_is_the_yield_models(demo):
+    # the stray's first-order share of the spread (the drivers table) takes the loaded
+    # model's slope: it agrees with the Monte Carlo boards' own regression share (GUM
+    # 5.1.2 against a least-squares fit of ln f over the same boards); on this small-C
+    # design the ideal tank's slope alone gave 0.74 against the boards' 0.31
+    spec, *_ = demo
+    c = api.evaluate(spec, {"C1": "39p", "C2": "100p", "L": "33u"}).candidates[0]
+    first, boards = c.extra["drivers"]["stray"], c.extra["drivers_mc"]["shares"]["stray"]
+    assert boards > 0.2  # the stray matters on this design
+    assert abs(first - boards) < 0.08, (first, boards)

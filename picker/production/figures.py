@@ -104,7 +104,8 @@ def first_order(sim: Simulation, designs: Designs, with_temperature: bool) -> di
 
 
 def _stray_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndarray]:
-    """S = ∂ln f/∂ln stray = −stray/(2·C_t) and σ_rel = stray_tol/(√3·stray), shape (n,).
+    """S = ∂ln f/∂ln stray = −stray/(2·C_t) and σ_rel = stray_tol/(√3·stray), shape (n,);
+    with the loaded model, S takes its large-signal slope (:meth:`LoadedModel.stray_terms`).
 
     C_t = C_s + stray is the tank's total capacitance (f ∝ (L·C_t)^(-1/2),
     :func:`picker.tank.board.ideal_jacobian`); a uniform spread over ±t has
@@ -115,6 +116,11 @@ def _stray_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndar
     bv = board_values(topo, designs.values(problem), par)
     c_t = np.asarray(topo.c_eff(bv, par.stray), dtype=float)
     s = -par.stray / (2.0 * c_t)
+    terms = getattr(sim.model, "stray_terms", None)
+    if terms is not None and getattr(sim.model, "stray_tol", 0.0) > 0:
+        # the loaded model: the large-signal model's own slope beyond the ideal tank's
+        # ((X1) of picker.circuit.loaded), so the share is the yield model's
+        s = s + par.stray * np.nan_to_num(terms(designs)[0])
     sig = np.full(len(designs), sim.stray_tol / (np.sqrt(3.0) * par.stray))
     return s, sig
 
