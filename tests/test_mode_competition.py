@@ -164,8 +164,9 @@ def test_common_base_clapp_with_a_choke_runs_in_the_tank_mode_as_in_ngspice():
 def test_common_gate_clapp_runs_in_its_low_mode_in_ngspice():
     """cg004: a low mode (0.84 MHz, margin 2.1) and the tank's (10.8 MHz, margin 1.07)
     both grow; the low mode grows five times faster and holds twice the tank's excess
-    gain. In ngspice the low mode runs and the tank's dies (what remains near the tank
-    frequency is the low mode's 12th harmonic); the model starts in the low mode."""
+    gain. In ngspice the low mode runs (0.829 MHz, the set's record, read at the
+    waveform's fundamental) and the tank's dies (what remains near the tank frequency is
+    the low mode's 13th harmonic); the model starts in the low mode."""
     d, _ = _design("stage_common_gate.json", "cg004")
     plan = transient_plan(d.topo, d.values, d.stray, d.params)
     text = write_netlist(d.topo, d.values, d.stray, d.params, title=d.id, cycles=plan.cycles)

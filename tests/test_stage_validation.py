@@ -50,7 +50,8 @@ TANKS = {"hartley": {"hartley"}}
 #: The fet stages' overdriven designs (the steady state's flag or a margin above 5) take
 #: their frequency, amplitude and bursting verdict from the periodic orbit of their own
 #: netlist (picker.circuit.nominal_orbit): common-source 80 → 100 % within 2 %,
-#: common-drain 87 → 100 %, common-gate 65 → 95 %; amplitude 89.5 → 100 % and
+#: common-drain 87 → 100 %, common-gate 65 → 95 % (100 % once cg004 was read at its
+#: fundamental, below); amplitude 89.5 → 100 % and
 #: 82.6 → 100 %.
 FET_FREQUENCY = {
     "hartley": "50.0 % (10 of 20): four of the six bursters (hy001, hy002, hy012, hy015: the "
@@ -208,10 +209,6 @@ CLAPPS = ["common-collector", "common-base", "common-source", "common-drain", "c
         {
             "common-collector": CLAPP_CC,
             "common-base": CLAPP_CB,
-            "common-gate": "92.3 %: cg004's record (10.78 MHz) is measured near the tank "
-            "frequency, where ngspice shows only the 12th harmonic of the low mode the Clapp "
-            "runs in (0.89 MHz, tests/test_mode_competition.py); the model and the periodic "
-            "orbit of its netlist run in that mode (0.83 MHz)",
         },
         CLAPPS,
     ),

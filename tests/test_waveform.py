@@ -140,3 +140,68 @@ def test_envelope_state_thresholds():
     assert envelope_state(burst, 1e-3)[0] == "bursting"  # p2 = 0.1 < 0.2·p98
     assert envelope_state(np.full(100, 1e-4), 1e-3)[0] == "none"
     assert envelope_state(np.geomspace(1.0, 0.1, 100), 1e-3)[0] == "none"  # dies away
+
+
+# ------------------------------------------------- a stronger, lower oscillation (harmonics)
+
+
+def test_clipped_low_oscillation_is_read_at_its_fundamental_not_at_a_harmonic_near_the_hint():
+    # a board running in a low mode at f1 (clipped) whose tank, twelve times higher,
+    # only rings at the low mode's 12th harmonic (a locked line at -26 dB): the hint is
+    # the tank frequency, so every line in [hint/2, 2·hint] is a harmonic of f1 (the 7th
+    # to the 23rd); the board runs at f1
+    f1 = 1.0123e6 / 12
+    t = _time(80 * 12)
+    a, c = 2.0, 1.2
+    v = np.clip(a * np.sin(2 * np.pi * f1 * t), -c, c) + 0.05 * np.sin(
+        2 * np.pi * 12 * f1 * t + 0.4
+    )
+    m = measure(t, v, f_hint=12 * f1)
+    assert m.state == "steady"
+    assert m.f_hz == pytest.approx(f1, rel=1e-5)
+    # the fundamental's peak and the 3rd harmonic of the clipped sine (Fourier series above)
+    b1, b3 = clipped_sine_harmonic(1, a, c), clipped_sine_harmonic(3, a, c)
+    assert m.fundamental_v == pytest.approx(b1, rel=5e-3)
+    assert m.harmonics_dbc[1] == pytest.approx(20 * math.log10(abs(b3) / b1), abs=0.1)
+
+
+def test_mode_entrained_at_a_multiple_of_a_stronger_one_is_a_harmonic_of_it():
+    # two modes locked 5:1, the lower one 10 dB stronger: a waveform of period 1/f1
+    f1 = F / 5
+    t = _time(400)
+    v = np.sin(2 * np.pi * f1 * t) + 0.3 * np.sin(2 * np.pi * 5 * f1 * t + 0.7)
+    m = measure(t, v, f_hint=F)
+    assert m.state == "steady"
+    assert m.f_hz == pytest.approx(f1, rel=1e-5)
+    assert m.fundamental_v == pytest.approx(1.0, rel=2e-3)  # the band holds f1 alone
+    assert m.harmonics_dbc[0] < -60 and m.harmonics_dbc[1] < -60  # no 2nd, no 3rd
+
+
+def test_two_independent_tones_the_carrier_near_the_hint_stays_the_carrier():
+    # a stronger tone at F/7.1 (7.1 is not a whole number: no harmonic relation, the
+    # carrier's phase drifts by 0.1 of the low tone's period a low period) and the
+    # carrier at F: the carrier is read, with its own amplitude
+    t = _time(300)
+    v = np.sin(2 * np.pi * F / 7.1 * t) + 0.3 * np.sin(2 * np.pi * F * t)
+    m = measure(t, v, f_hint=F)
+    assert m.state == "steady"
+    assert m.f_hz == pytest.approx(F, rel=1e-5)
+    assert m.fundamental_v == pytest.approx(0.3, rel=5e-3)
+
+
+def test_burst_carrier_stays_the_carrier_beside_a_stronger_bias_swing_at_the_burst_rate():
+    # a squegging oscillator: the carrier on for 40 periods in 100, and the tank top's
+    # bias swinging with the bursts (1.5 V at the burst rate F/100, a line stronger than
+    # the carrier's); the whole record repeats every 100 carrier periods, so the carrier
+    # is a multiple of the burst rate, locked to it, but it is the carrier inside the
+    # bursts that is the oscillation (picker issue 11)
+    t = _time(3000)
+    gate = ((t * F) % 100.0) < 40.0
+    bias = 1.5 * np.sin(2 * np.pi * F / 100 * t)
+    v = bias + np.where(gate, 1.0, 1e-4) * np.sin(2 * np.pi * F * t)
+    spec = np.abs(np.fft.rfft((v - v.mean()) * np.hanning(v.size)))
+    f = np.fft.rfftfreq(v.size, 1 / FS)
+    assert f[np.argmax(spec)] < 0.02 * F  # the strongest line is the bias swing's
+    m = measure(t, v, f_hint=F)
+    assert m.state == "bursting"
+    assert m.f_hz == pytest.approx(F, rel=1e-4)

@@ -10,7 +10,12 @@ Method
 1. The samples are put on a uniform grid (linear interpolation; a SPICE transient has a
    variable time step).
 2. The carrier's spectral peak is found in a Hann-windowed spectrum of the settled tail
-   (optionally searched only within a factor of two of a hint).
+   (optionally searched only within a factor of two of a hint). Where that line is a
+   harmonic of a stronger, lower one — phase-locked to it at a whole multiple, as the
+   harmonics of a clipped oscillation running below the hint's window are, or a second
+   mode entrained at a multiple of the first — the waveform is periodic at the lower
+   one, and that fundamental is the carrier (a bench engineer reads the period of the
+   waveform); a burst's carrier stays the carrier (:func:`_fundamental`).
 3. The waveform is band-passed around that peak (Butterworth, run forwards and backwards
    so it adds no phase: ``scipy.signal.sosfiltfilt``), and the analytic signal
    z = x + j·H{x} is formed (``scipy.signal.hilbert``; Gabor, "Theory of communication",
@@ -47,6 +52,7 @@ from scipy import ndimage, signal
 
 __all__ = [
     "BURST_RATIO",
+    "LOCKED",
     "STEADY_MODULATION",
     "WaveformMeasurement",
     "envelope_state",
@@ -57,6 +63,8 @@ __all__ = [
 BURST_RATIO = 0.2
 #: "steady" when the envelope's modulation (max − min)/(max + min) is below this.
 STEADY_MODULATION = 0.1
+#: Phase-locking value at or above which a line is a harmonic of a stronger, lower one.
+LOCKED = 0.9
 #: Main-lobe half-width, in bins, over which each harmonic's power is summed.
 _LOBE = 4
 
@@ -150,26 +158,86 @@ def _uniform(time: np.ndarray, v: np.ndarray) -> tuple[np.ndarray, np.ndarray, f
     return tu, np.interp(tu, t, x), dt
 
 
-def _peak_frequency(x: np.ndarray, dt: float, f_hint: float | None) -> float:
-    """Frequency of the largest peak of the Hann-windowed spectrum of ``x``, Hz
-    (within [f_hint/2, 2·f_hint] when a hint is given; above five cycles of the record
-    otherwise), refined by a parabola through the peak bin and its neighbours."""
+def _spectrum(x: np.ndarray, dt: float) -> tuple[np.ndarray, np.ndarray]:
+    """Magnitude of the Hann-windowed spectrum of ``x`` (mean removed) and its
+    frequencies, Hz."""
     spec = np.abs(np.fft.rfft((x - x.mean()) * np.hanning(x.size)))
-    f = np.fft.rfftfreq(x.size, dt)
-    if f_hint is not None:
-        band = (f >= 0.5 * f_hint) & (f <= 2.0 * f_hint)
-    else:
-        band = f >= 5.0 / (x.size * dt)
+    return spec, np.fft.rfftfreq(x.size, dt)
+
+
+def _peak_in(spec: np.ndarray, f: np.ndarray, band: np.ndarray) -> tuple[float, float]:
+    """(frequency, magnitude) of the largest peak of ``spec`` within ``band``, the
+    frequency refined by a parabola through the log-magnitude of the peak bin and its
+    neighbours (NaN, 0 where the band is empty)."""
     if not np.any(band):
-        return float("nan")
+        return float("nan"), 0.0
     idx = np.nonzero(band)[0]
     k = int(idx[np.argmax(spec[idx])])
     if 0 < k < spec.size - 1:  # parabolic interpolation of the log-magnitude peak
         a, b, c = np.log(spec[k - 1 : k + 2] + 1e-300)
         den = a - 2 * b + c
         shift = 0.5 * (a - c) / den if den != 0 else 0.0
-        return float((k + shift) * (f[1] - f[0]))
-    return float(f[k])
+        return float((k + shift) * (f[1] - f[0])), float(spec[k])
+    return float(f[k]), float(spec[k])
+
+
+def _peak_frequency(x: np.ndarray, dt: float, f_hint: float | None) -> float:
+    """Frequency of the largest peak of the Hann-windowed spectrum of ``x``, Hz
+    (within [f_hint/2, 2·f_hint] when a hint is given; above five cycles of the record
+    otherwise), refined by a parabola through the peak bin and its neighbours."""
+    spec, f = _spectrum(x, dt)
+    if f_hint is not None:
+        band = (f >= 0.5 * f_hint) & (f <= 2.0 * f_hint)
+    else:
+        band = f >= 5.0 / (x.size * dt)
+    return _peak_in(spec, f, band)[0]
+
+
+def _analytic(x: np.ndarray, fs: float, lo: float, hi: float, pad: int) -> np.ndarray:
+    """The analytic signal of ``x`` band-passed to [lo, hi] Hz (4th-order Butterworth,
+    run forwards and backwards: no phase added)."""
+    sos = signal.butter(4, [lo, hi], btype="bandpass", fs=fs, output="sos")
+    y = signal.sosfiltfilt(sos, x, padlen=min(pad, x.size - 1))
+    # (transform length rounded up to a fast FFT size; the zeros added lie past the end)
+    return signal.hilbert(y, N=sp_fft.next_fast_len(y.size))[: y.size]
+
+
+def _fundamental(x: np.ndarray, dt: float, f_pk: float) -> float:
+    """The fundamental of a periodic waveform whose line at ``f_pk`` is one of its
+    harmonics, Hz; ``f_pk`` itself where it is not.
+
+    The strongest line of the whole spectrum (above five cycles of the record) is the
+    candidate fundamental f₁ when it lies below ``f_pk``/1.5 and is stronger than the
+    line at ``f_pk``, and ``f_pk`` is within a quarter of f₁ of a multiple n·f₁. The
+    line at ``f_pk`` is then a harmonic of f₁ when their phases are locked: the
+    phase-locking value |⟨exp(j·(φₙ − n·φ₁))⟩| of the two narrow-band analytic signals
+    (f₁ ± 30 %, f_pk ± 0.3·f₁) is at least :data:`LOCKED` (Lachaux et al., "Measuring
+    phase synchrony in brain signals", Hum. Brain Mapp. 8 (1999)). Two tones that run
+    independently (incommensurate, or a burst rate and the carrier inside the bursts)
+    drift apart in phase and are not locked; a clipped oscillation whose n-th harmonic
+    falls near the hint, or a second mode entrained at a multiple of the first, is.
+    """
+    spec, f = _spectrum(x, dt)
+    f_1, mag_1 = _peak_in(spec, f, (f >= 5.0 / (x.size * dt)) & (f <= f_pk / 1.5))
+    mag_pk = float(spec[int(round(f_pk / (f[1] - f[0])))])
+    if not np.isfinite(f_1) or f_1 <= 0 or mag_1 <= mag_pk:
+        return f_pk
+    k = int(round(f_1 / (f[1] - f[0])))
+    if not spec[k - 1] < spec[k] > spec[k + 1]:  # the band's edge, not a line
+        return f_pk
+    n = int(round(f_pk / f_1))
+    if n < 2 or abs(f_pk / f_1 - n) > 0.25:
+        return f_pk
+    fs = 1.0 / dt
+    pad = int(5 * fs / f_1)
+    x0 = x - x.mean()
+    z1 = _analytic(x0, fs, 0.7 * f_1, 1.3 * f_1, pad)
+    zn = _analytic(x0, fs, f_pk - 0.3 * f_1, f_pk + 0.3 * f_1, pad)
+    # leave out two fundamental periods at each end, where the narrow filters ring
+    edge = min(int(2 * fs / f_1), x.size // 4)
+    phi = np.angle(zn) - n * np.unwrap(np.angle(z1))
+    plv = float(np.abs(np.mean(np.exp(1j * phi[edge : x.size - edge]))))
+    return f_1 if plv >= LOCKED else f_pk
 
 
 def _erode(mask: np.ndarray, k: int) -> np.ndarray:
@@ -197,6 +265,40 @@ def _harmonics(x: np.ndarray, dt: float, f_c: float) -> tuple[float, float]:
     p1 = power[0]
     out = [10.0 * np.log10(p / p1) if p1 > 0 and p > 0 else float("nan") for p in power[1:]]
     return float(out[0]), float(out[1])
+
+
+@dataclass(frozen=True)
+class _Band:
+    """The waveform band-passed around a line at ``f`` (0.6–1.4·f): its analytic signal
+    ``z``, envelope ``env``, the tail samples ``sel`` the state is read over, the samples
+    per period, and the envelope's state, modulation and 2nd/98th percentiles."""
+
+    z: np.ndarray
+    env: np.ndarray
+    sel: np.ndarray
+    period: float
+    state: str
+    modulation: float
+    low: float
+    high: float
+
+    @classmethod
+    def of(cls, x: np.ndarray, tail: np.ndarray, fs: float, f: float, noise_v: float) -> _Band:
+        # band-pass around the line (4th-order Butterworth band, zero phase), then the
+        # analytic signal: envelope |z| and phase arg z
+        # (padded by 20 periods, so the filter's start and end transients stay short)
+        period = fs / f  # samples per period
+        z = _analytic(x, fs, 0.6 * f, 1.4 * f, int(20 * period))
+        # the envelope: |z| averaged over three periods (cycle-to-cycle ripple of a
+        # distorted waveform is not a change of amplitude)
+        env = ndimage.uniform_filter1d(np.abs(z), size=max(int(3 * period), 1), mode="nearest")
+        # leave out the last ten periods: the filter's and the transform's end effects
+        edge = int(np.ceil(10.0 * period))
+        sel = tail.copy()
+        if np.count_nonzero(sel) > 2 * edge + 16:
+            sel[-edge:] = False
+        state, mod, lo, hi = envelope_state(env[sel], noise_v)
+        return cls(z, env, sel, period, state, mod, lo, hi)
 
 
 def measure(
@@ -243,24 +345,18 @@ def measure(
         return WaveformMeasurement(
             "none", nan, swing, nan, nan, nan, nan, nan, (nan, nan), float(t0)
         )
-    # band-pass around the carrier (4th-order Butterworth band, zero phase), then the
-    # analytic signal: envelope |z| and phase arg z
-    # (padded by 20 carrier periods, so the filter's start and end transients stay short)
-    sos = signal.butter(4, [0.6 * f_pk, 1.4 * f_pk], btype="bandpass", fs=fs, output="sos")
-    period = 1.0 / (f_pk * dt)  # samples per carrier period
-    pad = min(int(20 * period), x.size - 1)
-    y = signal.sosfiltfilt(sos, x - x[tail].mean(), padlen=pad)
-    # (transform length rounded up to a fast FFT size; the zeros added lie past the end)
-    z = signal.hilbert(y, N=sp_fft.next_fast_len(y.size))[: y.size]
-    # the envelope: |z| averaged over three carrier periods (cycle-to-cycle ripple of a
-    # distorted waveform is not a change of amplitude)
-    env = ndimage.uniform_filter1d(np.abs(z), size=max(int(3 * period), 1), mode="nearest")
-    # leave out the last ten carrier periods: the filter's and the transform's end effects
-    edge = int(np.ceil(10.0 * period))
-    sel = tail.copy()
-    if np.count_nonzero(sel) > 2 * edge + 16:
-        sel[-edge:] = False
-    state, mod, lo, hi = envelope_state(env[sel], noise_v)
+    band = _Band.of(x - x[tail].mean(), tail, fs, f_pk, noise_v)
+    if band.state != "bursting":
+        # the line found may be a harmonic of a stronger, lower oscillation: the board
+        # runs at that one's fundamental (a burst's carrier stays the carrier: the bias
+        # swinging at the burst rate is not the oscillation)
+        f_1 = _fundamental(xt, dt, f_pk)
+        if f_1 != f_pk:
+            low = _Band.of(x - x[tail].mean(), tail, fs, f_1, noise_v)
+            if low.state != "none":
+                band = low
+    z, env, sel, period = band.z, band.env, band.sel, band.period
+    state, mod, lo, hi = band.state, band.modulation, band.low, band.high
     fundamental = float(np.median(env[sel]))
     if state == "none":
         return WaveformMeasurement(
