@@ -233,8 +233,9 @@ def _fundamental(x: np.ndarray, dt: float, f_pk: float) -> float:
     x0 = x - x.mean()
     z1 = _analytic(x0, fs, 0.7 * f_1, 1.3 * f_1, pad)
     zn = _analytic(x0, fs, f_pk - 0.3 * f_1, f_pk + 0.3 * f_1, pad)
-    # leave out two fundamental periods at each end, where the narrow filters ring
-    edge = min(int(2 * fs / f_1), x.size // 4)
+    # leave out five fundamental periods at each end, where the narrow filters ring (a
+    # phase error of the fundamental counts n times)
+    edge = min(int(5 * fs / f_1), x.size // 4)
     phi = np.angle(zn) - n * np.unwrap(np.angle(z1))
     plv = float(np.abs(np.mean(np.exp(1j * phi[edge : x.size - edge]))))
     return f_1 if plv >= LOCKED else f_pk
