@@ -33,6 +33,7 @@ from picker.circuit.ngspice import transient
 from picker.circuit.stability import CROSS_SATURATION, running_mode
 from picker.circuit.steady import steady_state
 from picker.circuit.validation import load_reference
+from picker.circuit.waveform import measure
 
 DATA = Path(__file__).parent / "validation"
 TWO_PI = 2.0 * math.pi
@@ -185,5 +186,10 @@ def test_common_gate_clapp_runs_in_its_low_mode_in_ngspice():
     f_run = f[np.argmax(spec)]
     tank = (f > 0.8 * plan.f0) & (f < 1.2 * plan.f0)
     assert spec[tank].max() < 0.05 * spec.max()  # the tank's mode has died
+    # the waveform measurement, hinted at the tank frequency, reads the running mode (the
+    # spectrum's strongest line here, within one bin), not its harmonic near the hint
+    wave = measure(run.time, run.v, f_hint=plan.f0, tail_start=plan.tail_start)
+    assert wave.state == "steady"
+    assert wave.f_hz == pytest.approx(f_run, abs=f[1])
     st = steady_state(d.topo, d.values, d.stray, d.params)
     assert float(st.f_start_hz) == pytest.approx(f_run, rel=0.1)
