@@ -63,7 +63,9 @@ __all__ = [
 BURST_RATIO = 0.2
 #: "steady" when the envelope's modulation (max − min)/(max + min) is below this.
 STEADY_MODULATION = 0.1
-#: Phase-locking value at or above which a line is a harmonic of a stronger, lower one.
+#: Phase-locking value at or above which a line is a harmonic of a stronger, lower one
+#: (picker's threshold, not a standard: 0.99-1.00 on the locked ngspice records, below
+#: 0.1 for two independent tones that drift a cycle apart over the record).
 LOCKED = 0.9
 #: Main-lobe half-width, in bins, over which each harmonic's power is summed.
 _LOBE = 4
