@@ -94,6 +94,7 @@ def _orbits(ids: tuple[str, ...]) -> dict[str, object]:
 OFF = ("hy004", "hy005", "hy010", "hy022")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("ident", OFF)
 def test_orbit_holds_hartley_designs_the_describing_function_misses(ident):
     """The orbit's carrier within 0.3 % of ngspice's (the issue's median target; measured
