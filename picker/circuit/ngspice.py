@@ -28,8 +28,8 @@ from picker.errors import SolverError
 
 __all__ = [
     "CONFIRMED_STATES",
-    "REFINE",
     "REFINE_CARRIER",
+    "STEP_REFINE",
     "WARNING_PATTERNS",
     "SimulationResult",
     "Transient",
@@ -44,8 +44,9 @@ __all__ = [
 ]
 
 #: How much finer :func:`simulate` (``confirm=True``) steps to confirm a burst or an
-#: unsettled envelope (the project's choice, no source; see :func:`refine_step`).
-REFINE = 5
+#: unsettled envelope, and again where the finer run disagrees and still wanders (the
+#: project's choice, no source; see :func:`refine_step`).
+STEP_REFINE = (5, 25)
 #: States of the envelope that :func:`simulate` (``confirm=True``) confirms at a finer step.
 CONFIRMED_STATES = ("bursting", "unsettled")
 #: A confirming run that moves the carrier by more than this (relative) replaces the first.
@@ -80,7 +81,7 @@ class SimulationResult:
     own ``.meas`` results; ``warnings`` the lines of its output that mention a floating
     node, a missing DC path, a singular matrix or a too-small time step.
 
-    ``step_refined`` is 1 when the run is the netlist's own, or the factor (:data:`REFINE`)
+    ``step_refined`` is 1 when the run is the netlist's own, or the factor (:data:`STEP_REFINE`)
     its step was refined by when a confirming run (:func:`simulate` with ``confirm``)
     disagreed with it; ``coarse`` is then the measurement at the netlist's own step.
     """
@@ -264,12 +265,13 @@ def simulate(
     ``t_kick``; the tail defaults to the second half of the run).
 
     With ``confirm``, a run whose envelope bursts or stays unsettled
-    (:data:`CONFIRMED_STATES`) is run again with a :data:`REFINE` times finer step
-    (:func:`refine_step`; ``timeout`` scaled alike): where the two disagree (another
-    state, or the carrier moved by more than :data:`REFINE_CARRIER`) the burst was the
-    trapezoidal rule's, not the circuit's, and the finer run is returned
-    (``step_refined``, with the first run's measurement as ``coarse``). Steady boards and
-    boards that do not start pay nothing.
+    (:data:`CONFIRMED_STATES`) is run again with a five times finer step
+    (:data:`STEP_REFINE`, :func:`refine_step`; ``timeout`` scaled alike): where the two
+    disagree (another state, or the carrier moved by more than :data:`REFINE_CARRIER`)
+    the burst was the trapezoidal rule's, not the circuit's, and the finer run is
+    returned (``step_refined``, with the first run's measurement as ``coarse``); where
+    the finer run disagrees and its envelope is still unsettled, it is checked the same way
+    at a 25 times finer step (a burst seen at two steps is the circuit's). Steady boards and boards that do not start pay nothing.
 
     Raises
     ------
@@ -277,14 +279,22 @@ def simulate(
         ngspice missing, exiting with an error, timing out, or writing no data.
     """
     first = _simulate_once(netlist, node, timeout, f_hint, tail_start, t_kick)
-    if not confirm or first.waveform.state not in CONFIRMED_STATES:
+    best, factor = first, 1
+    for finer in STEP_REFINE if confirm else ():
+        # a burst is confirmed by a finer run that bursts too; an envelope that still
+        # wanders at the finer step is looked at once more
+        wanted = CONFIRMED_STATES if factor == 1 else ("unsettled",)
+        if best.waveform.state not in wanted:
+            break
+        fine = _simulate_once(
+            refine_step(netlist, finer), node, timeout * finer, f_hint, tail_start, t_kick
+        )
+        if not step_disagrees(best.waveform, fine.waveform):
+            break  # two steps agree: the coarser of them stands
+        best, factor = fine, finer
+    if factor == 1:
         return first
-    fine = _simulate_once(
-        refine_step(netlist, REFINE), node, timeout * REFINE, f_hint, tail_start, t_kick
-    )
-    if not step_disagrees(first.waveform, fine.waveform):
-        return first
-    return replace(fine, step_refined=REFINE, coarse=first.waveform)
+    return replace(best, step_refined=factor, coarse=first.waveform)
 
 
 def step_note(sim: SimulationResult) -> dict[str, Any]:
