@@ -361,6 +361,17 @@ def verify_text(checks: list[DesignCheck], seconds: float) -> str:
             "caution: some transients are shorter than the predicted settling and several "
             "slow time constants; a slow burst may not show"
         )
+    refined = [
+        f"{c.rank} {b.label} ({b.sim.coarse.state} at the netlist's step)"
+        for c in checks
+        for b in c.boards
+        if b.sim.coarse is not None
+    ]
+    if refined:
+        lines.append(
+            "note: read at a finer step, the netlist's own burst or wandered (the integration's "
+            "artefact): " + ", ".join(refined)
+        )
     return "\n".join(lines) + "\n"
 
 
