@@ -225,6 +225,7 @@ def test_reference_data_reproduce_in_ngspice(reference):
             assert fresh["f_hz"] == pytest.approx(ref["f_hz"], rel=1e-4), designs[i].id
             # the reference was read from ngspice's text output (times to 6 digits), runs now
             # from its binary raw file: the peak-to-peak of an unsettled envelope moves 2 %
-            # (d036), of the others at most 0.1 %
+            # (d036, unsettled before its record was read at a finer step), of the others at
+            # most 0.1 %
             rel = 0.03 if state == "unsettled" else 0.01
             assert fresh["amplitude_v"] == pytest.approx(ref["amplitude_v"], rel=rel)
