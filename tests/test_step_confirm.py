@@ -15,7 +15,6 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
-import numpy as np
 import pytest
 
 from picker.circuit.netlist import transient_plan, write_netlist
@@ -96,8 +95,10 @@ def test_artefact_record_bursts_only_at_the_netlist_step():
     # the committed record is the finer run, and says what the netlist's step showed
     assert record["state"] == "steady"
     assert record["f_hz"] == pytest.approx(sim.waveform.f_hz, rel=1e-4)
-    assert record["step_refined"] == step_note(sim)["step_refined"]
-    assert np.isfinite(record["step_refined"]["f_hz_at_netlist_step"])
+    note, fresh = record["step_refined"], step_note(sim)["step_refined"]
+    assert note["factor"] == fresh["factor"] == STEP_REFINE[0]
+    assert note["state_at_netlist_step"] == "bursting"
+    assert note["f_hz_at_netlist_step"] == pytest.approx(fresh["f_hz_at_netlist_step"], rel=1e-4)
 
 
 @pytest.mark.ngspice
