@@ -38,6 +38,15 @@ recovering over tens of thousands of periods: a burst that slow could not be see
 left out, so every kept design is observed for at least ten of its slowest bias time
 constants. ngspice runs in two processes at a time.
 
+Step confirmation: a transient that bursts or stays unsettled is run again with a step
+five times finer (:func:`picker.circuit.ngspice.simulate` with ``confirm``; the trapezoidal
+rule does not damp, and at 60 steps per period it can ring on the transistor's switching
+and make a steady oscillator burst). Where the two runs disagree (another state, or the
+carrier moved by more than 0.1 %) the finer run is the record (where it still wanders,
+"unsettled", a 25 times finer run is checked the same way), and its ``step_refined``
+says what the netlist's own step showed. Steady designs and those that do not start are
+not re-run.
+
 The other stages (issue 12; ``--stage NAME``, one process at a time with ``--workers 1``):
 the bjt ones as :func:`draw` says, the fet ones (common-source, common-drain,
 common-gate) as :func:`draw_fet` says: half self-biased n-channel JFETs drawn by IDSS,
@@ -432,7 +441,13 @@ def select(
 def simulate_all(designs: list[Design], workers: int = WORKERS) -> list[dict[str, object]]:
     """ngspice's answer for each design, ``workers`` processes at a time."""
     with ThreadPoolExecutor(max_workers=workers) as pool:
-        return list(pool.map(run_design, designs))
+        return list(pool.map(confirmed, designs))
+
+
+def confirmed(d: Design) -> dict[str, object]:
+    """ngspice's answer for ``d``, a burst or an unsettled envelope confirmed at a finer
+    step (:func:`picker.circuit.validation.run_design` with ``confirm``)."""
+    return run_design(d, confirm=True)
 
 
 def make(
@@ -519,9 +534,10 @@ def redo(ids: list[str], path: Path = OUT) -> None:
     for name in ids:
         i = found[name]
         old = data["designs"][i]["ngspice"]
-        new = run_design(designs[i])
+        new = confirmed(designs[i])
         data["designs"][i]["ngspice"] = new
-        print(f"{name}: {old['state']} {old['f_hz']} -> {new['state']} {new['f_hz']}")
+        note = " (step refined)" if "step_refined" in new else ""
+        print(f"{name}: {old['state']} {old['f_hz']} -> {new['state']} {new['f_hz']}{note}")
     states: dict[str, int] = {}
     for r in data["designs"]:
         states[str(r["ngspice"]["state"])] = states.get(str(r["ngspice"]["state"]), 0) + 1

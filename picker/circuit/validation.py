@@ -34,7 +34,7 @@ from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.fet import FetCard
 from picker.circuit.netlist import transient_plan, write_netlist
 from picker.circuit.network import Network
-from picker.circuit.ngspice import simulate
+from picker.circuit.ngspice import simulate, step_note
 from picker.circuit.nominal_orbit import board_orbits
 from picker.circuit.steady import steady_state
 from picker.files import read_text
@@ -106,16 +106,27 @@ def design_from_dict(d: Mapping[str, Any]) -> Design:
     return Design(str(d["id"]), str(d["topology"]), values, float(d["stray"]), params, coupling)
 
 
-def run_design(d: Design, *, timeout: float = 120.0) -> dict[str, Any]:
+def run_design(d: Design, *, timeout: float = 120.0, confirm: bool = False) -> dict[str, Any]:
     """ngspice's answer for one design: the netlist's transient (length from
-    :func:`picker.circuit.netlist.transient_plan`) measured at the tank top."""
+    :func:`picker.circuit.netlist.transient_plan`) measured at the tank top.
+
+    With ``confirm`` (``scripts/make_validation.py``), a burst or an unsettled envelope is
+    confirmed at a finer step (:func:`picker.circuit.ngspice.simulate`); where the finer
+    run disagrees it is the answer, with ``step_refined`` saying what the netlist's own
+    step showed (:func:`picker.circuit.ngspice.step_note`)."""
     topo = d.topo
     plan = transient_plan(topo, d.values, d.stray, d.params)
     text = write_netlist(topo, d.values, d.stray, d.params, title=d.id, cycles=plan.cycles)
     sim = simulate(
-        text, timeout=timeout, f_hint=plan.f0, tail_start=plan.tail_start, t_kick=plan.t_kick
+        text,
+        timeout=timeout,
+        f_hint=plan.f0,
+        tail_start=plan.tail_start,
+        t_kick=plan.t_kick,
+        confirm=confirm,
     )
     return {
+        **step_note(sim),
         **sim.waveform.to_dict(),
         "cycles": plan.cycles,
         "tstop_s": plan.tstop,

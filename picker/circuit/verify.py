@@ -9,6 +9,10 @@ in parallel ngspice processes, measures each waveform with
 the amplitude, the envelope state, the start-up time) and sets the model's answer
 (:func:`picker.circuit.steady.steady_state`) beside it.
 
+A board whose transient bursts or stays unsettled is run again at a five times finer step
+(:func:`picker.circuit.ngspice.simulate` with ``confirm``): where that run disagrees, the
+burst was the trapezoidal rule's and the finer run counts (``step_refined`` in the JSON).
+
 A board passes when in ngspice it **starts**, runs **steady** (not bursting, not
 unsettled) and its carrier lies **in the window**; :attr:`BoardCheck.verdict` says which
 of the three fail. ``picker solve --verify`` and ``picker evaluate --verify`` (through
@@ -29,7 +33,7 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.netlist import TransientPlan, verify_plan, write_netlist
 from picker.circuit.network import Network
-from picker.circuit.ngspice import SimulationResult, simulate
+from picker.circuit.ngspice import SimulationResult, simulate, step_note
 from picker.circuit.nominal_orbit import NominalOrbit, board_orbits
 from picker.circuit.steady import SteadyState, steady_state
 from picker.tank.base import Topology
@@ -188,6 +192,7 @@ class BoardCheck:
                 "cycles": self.cycles,
                 "long_enough": self.resolved,
                 "warnings": list(self.sim.warnings),
+                **step_note(self.sim),
             },
             "model_minus_ngspice": diff,
             "in_window": self.in_window,
@@ -227,7 +232,12 @@ def check_boards(
     def run(job: tuple[str, dict[str, float], TransientPlan, str]) -> SimulationResult:
         _, _, plan, text = job
         return simulate(
-            text, timeout=timeout, f_hint=plan.f0, tail_start=plan.tail_start, t_kick=plan.t_kick
+            text,
+            timeout=timeout,
+            f_hint=plan.f0,
+            tail_start=plan.tail_start,
+            t_kick=plan.t_kick,
+            confirm=True,
         )
 
     with ThreadPoolExecutor(max_workers=max(1, workers)) as pool:

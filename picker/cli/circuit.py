@@ -179,6 +179,10 @@ def _window_note(f: float | None, lo: float, hi: float, target: float) -> tuple[
     return text.replace("%", " %"), fig
 
 
+def _finite(x: float) -> float | None:
+    return x if math.isfinite(x) else None
+
+
 def simulate(
     spec_path: Path = typer.Argument(..., metavar="SPEC", help="The spec file (TOML)."),
     set_: list[str] = typer.Option(
@@ -201,6 +205,7 @@ def simulate(
     start-up time, and a verdict: ok, or what fails (does not start, bursts, unsettled,
     outside the window).
     """
+    from picker.circuit.ngspice import step_note
     from picker.circuit.verify import check_boards
     from picker.units import format_quantity
 
@@ -233,6 +238,7 @@ def simulate(
             "harmonics_dbc": wave.to_dict()["harmonics_dbc"],
             "cycles": check.cycles,
             "warnings": list(sim.warnings),
+            **step_note(sim),
         },
         "window": {"f_min_hz": lo, "f_max_hz": hi, **(window_fig or {})},
         "verdict": check.verdict,
@@ -272,6 +278,12 @@ def simulate(
         lines.append(
             f"caution: the transient ({check.cycles} periods) is shorter than the predicted "
             "settling and several slow time constants; a slow burst may not show"
+        )
+    if sim.coarse is not None:
+        lines.append(
+            f"note: at the netlist's own step ngspice showed {sim.coarse.state} "
+            f"({hz(_finite(sim.coarse.f_hz))}); at a {sim.step_refined}x finer step "
+            f"{wave.state}: the integration's artefact, the finer run is reported"
         )
     lines += [f"ngspice: {w}" for w in sim.warnings]
     typer.echo("\n".join(lines))
@@ -348,6 +360,17 @@ def verify_text(checks: list[DesignCheck], seconds: float) -> str:
         lines.append(
             "caution: some transients are shorter than the predicted settling and several "
             "slow time constants; a slow burst may not show"
+        )
+    refined = [
+        f"{c.rank} {b.label} ({b.sim.coarse.state} at the netlist's step)"
+        for c in checks
+        for b in c.boards
+        if b.sim.coarse is not None
+    ]
+    if refined:
+        lines.append(
+            "note: read at a finer step, the netlist's own burst or wandered (the integration's "
+            "artefact): " + ", ".join(refined)
         )
     return "\n".join(lines) + "\n"
 
