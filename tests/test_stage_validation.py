@@ -73,8 +73,10 @@ BURST_CC = (
 CLAPP_CC = (
     "unmet: Clapp worst 1.7 % (cc016, unsettled in ngspice: its periodic orbit, 108.9 kHz as "
     "the describing function's, is unstable, multiplier 1.08, and ngspice's carrier wanders "
-    "about 109-111 kHz with the emitter swinging up to the supply; cc001 is 0.02 % off with "
-    "the orbit)"
+    "about 109-111 kHz with the emitter swinging up to the supply; the model calls it steady "
+    "and unsaturated, so neither the orbit nor the run from rest (picker.circuit.burst_carrier, "
+    "which reads 110.68 kHz, -0.06 %, when made to run on it) is used; cc001 is 0.02 % off "
+    "with the orbit)"
 )
 CLAPP_CB = (
     "unmet: Clapp worst 1.4 % (cb003, a saturated Clapp with a collector choke: in ngspice "

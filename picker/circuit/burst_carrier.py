@@ -191,13 +191,13 @@ def burst_carriers(circ: Circuit, w: np.ndarray, bias_tau_s: np.ndarray) -> list
             tails[j].append(v[:, col])
             f_chunks[j].append(_chunk_carrier(v[:, col], float(h[j]), 1.0 / period[j])[1])
             fc = np.array(f_chunks[j])
-            k = fc.size
+            # a chunk without a burst in it (h003's and h019's bursts come about a
+            # hundred periods apart) reads no carrier: the spread is over the others
+            fin = fc[np.isfinite(fc)]
             sem = np.inf
-            if k > 1 and np.isfinite(fc).all():
-                sem = float(np.std(fc, ddof=1) / np.sqrt(k) / np.mean(fc))
-            # a chunk without a burst in it (h019's bursts come 107 periods apart) reads
-            # no carrier: the run goes on to MAX_CHUNKS
-            if k >= MAX_CHUNKS or (k >= MIN_CHUNKS and sem <= SPREAD):
+            if fin.size > 1:
+                sem = float(np.std(fin, ddof=1) / np.sqrt(fin.size) / np.mean(fin))
+            if fc.size >= MAX_CHUNKS or (fin.size >= MIN_CHUNKS and sem <= SPREAD):
                 state, f, amp = _chunk_carrier(
                     np.concatenate(tails[j]), float(h[j]), 1.0 / period[j]
                 )
