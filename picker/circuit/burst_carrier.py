@@ -1,8 +1,10 @@
 """The carrier of a design that does not hold its periodic orbit: its own circuit run from rest.
 
-Where the periodic orbit of a design's netlist is unstable (a Floquet multiplier outside
-the unit circle, :mod:`picker.circuit.periodic`) or its start-up from rest collapses
-(:mod:`picker.circuit.startup_run`), the board never settles on that orbit: it comes
+Where the model calls a design bursting (its periodic orbit is unstable, a Floquet
+multiplier outside the unit circle, :mod:`picker.circuit.periodic`; its start-up from
+rest collapses, :mod:`picker.circuit.startup_run`; or, unsaturated, its averaged
+envelope equations are unstable, :mod:`picker.circuit.envelope`), the board never
+settles on the steady solution: it comes
 and goes in bursts, or its envelope wanders, and the carrier inside the bursts chirps
 (on the main validation set's d100 from about 800 kHz as a burst grows to 700 kHz as it
 rings down, around an orbit at 728 kHz). No single-orbit figure gives what an
@@ -18,8 +20,8 @@ circuit linearised at rest, as :mod:`picker.circuit.startup_run` starts it), by 
 trapezoidal rule (ngspice's default method; Nagel, *SPICE2*, UCB/ERL M520, 1975) at a
 fixed :data:`STEPS` steps a period, each step solved by the integrator's damped Newton
 iteration, and the tank top's waveform is measured by
-:func:`picker.circuit.waveform.measure` over the run after a warm-up of the bias network;
-its carrier is corrected for the trapezoidal rule's frequency warping
+:func:`picker.circuit.waveform.measure` over the run after a warm-up of the bias network
+(:func:`burst_carriers`); its carrier is corrected for the trapezoidal rule's frequency warping
 (:func:`picker.circuit.ngspice.trapezoid_frequency`, the same correction the reference
 records get).
 
@@ -78,10 +80,8 @@ __all__ = [
 
 #: Time steps a period (trapezoidal rule; module docstring).
 STEPS = 64
-#: Warm-up before the measured tail: the bias network's slowest time constant, within
-#: these bounds, periods.
-WARM_PERIODS = (50, 200)
-#: The tail is run in chunks of this many periods ...
+#: The run goes in chunks of this many periods: one chunk of warm-up (two where the
+#: bias network's slowest time constant is longer than a chunk), then the measured ones ...
 CHUNK = 100
 #: ... at least this many, at most :data:`MAX_CHUNKS`, and stops once the standard error
 #: of the chunks' mean carrier is below :data:`SPREAD` of it (the burst-to-burst chirp's
