@@ -43,17 +43,10 @@ SETS = {"main": (DATA, 120), "holdout": (HOLDOUT, 50)}
 #: figure measured (README: measured accuracy against ngspice); each marker must come
 #: off once the target is met (strict xfail)
 UNMET_BURSTING: dict[str, str] = {}
-UNMET_CLAPP = {
-    "main": "Clapp worst frequency error 3.6 % on the main set (d100, bursting at the netlist's "
-    "step, at a 5x finer one and with Gear, 755.86, 755.79 and 753.41 kHz: ngspice never "
-    "holds the model's 728 kHz steady state; its bursts stay above half their peak for under ten "
-    "carrier periods while the carrier chirps from 810 kHz, growing, to 610 kHz, ringing down: "
-    "756 kHz is read inside them)",
-    "holdout": "Clapp worst frequency error 1.1 % on the held-out set (h019, bursting: its "
-    "periodic orbit, 1.2572 MHz as the model's, is unstable, multiplier 1.63; inside the "
-    "bursts the carrier runs from about 1.30 MHz, growing, to 1.255 MHz, ringing down: 1.2706 MHz "
-    "is read)",
-}
+#: met on both sets since a design the model calls bursting takes the carrier of its own
+#: circuit run from rest (picker.circuit.burst_carrier): d100 from -3.6 % to +0.2 %, h019
+#: from -1.1 % to +0.16 %
+UNMET_CLAPP: dict[str, str] = {}
 
 
 @pytest.fixture(scope="module", params=sorted(SETS))

@@ -24,13 +24,14 @@ from __future__ import annotations
 import json
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import asdict, dataclass, fields
+from dataclasses import asdict, dataclass, fields, replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.burst_carrier import network_carriers
 from picker.circuit.fet import FetCard
 from picker.circuit.netlist import transient_plan, write_netlist
 from picker.circuit.network import Network
@@ -167,7 +168,11 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
     candidate at its nominal values: :func:`picker.circuit.steady.steady_state`, and where
     it finds the transistor saturated, the periodic orbit of the design's own netlist
     (:func:`picker.circuit.nominal_orbit.board_orbits`: its frequency, amplitude and
-    Floquet verdict; the saturated designs are shot in one batch)."""
+    Floquet verdict; the saturated designs are shot in one batch). Where the model calls
+    a design that starts bursting, the orbit (or the steady state) is one the board never
+    holds: its carrier and amplitude are those of its own circuit run from rest and
+    measured as ngspice's record is (:func:`picker.circuit.burst_carrier.network_carriers`;
+    the verdict stays the model's)."""
     nets = [Network.build(d.topo, d.values, d.stray, d.params) for d in designs]
     orbits = board_orbits(nets)
     out = []
@@ -186,6 +191,10 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
                 margin=float(np.asarray(st.margin)),
             )
         )
+    runs = network_carriers(nets, [a.bursting for a in out], [a.f_hz for a in out])
+    for k, r in enumerate(runs):
+        if r is not None and math.isfinite(r.f_hz):
+            out[k] = replace(out[k], f_hz=r.f_hz, amplitude_v=r.amplitude_v)
     return out
 
 

@@ -1,0 +1,68 @@
+"""The run from rest that gives a bursting design's carrier (picker/circuit/burst_carrier.py).
+
+Its accuracy against ngspice on the bursting and unsettled Clapps is asserted by the
+validation sets' Clapp target (tests/test_validation.py, tests/test_stage_validation.py),
+which read the model's answers through it. Here: the integrator and the warping
+correction against the lossless LC tank's closed form, and that a design's run does not
+depend on the designs batched beside it.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from picker.circuit import burst_carrier as bc
+from picker.circuit.network import Network
+from picker.circuit.transient import build_circuit
+from picker.circuit.validation import load_reference
+
+DATA = Path(__file__).parent / "validation"
+
+
+def _lc(l_h: float, c_f: float):
+    # a tank alone: no transistor in the netlist (its terminals sit on ground, no current)
+    card = [".model QX NPN (IS=1e-14 BF=100)"]
+    return build_circuit([[f"L1 t 0 {l_h:g}", f"C1 t 0 {c_f:g}"]], card, "t", 0.025)
+
+
+@pytest.mark.parametrize("steps", [16, 64])
+def test_lossless_tank_carrier_against_closed_form(steps):
+    # f = 1/(2π√(LC)) (Hayt & Kemmerly, Engineering Circuit Analysis, the parallel LC
+    # circuit); the trapezoidal rule keeps a lossless tank's amplitude and runs it at
+    # tan(ω_d·h/2) = ω·h/2 (Oppenheim & Schafer, Discrete-Time Signal Processing, the
+    # bilinear transformation), which the correction undoes
+    l_h, c_f = 10e-6, 1e-9
+    f0 = 1.0 / (2.0 * math.pi * math.sqrt(l_h * c_f))
+    circ = _lc(l_h, c_f)
+    h = np.array([1.0 / (f0 * steps)])
+    x0 = np.array([[1.0, 0.0]])
+    v, _, _ = bc._run(circ, x0, x0, h, 100 * steps)
+    assert np.max(np.abs(v)) == pytest.approx(1.0, rel=1e-3)  # no numerical damping
+    state, f, amp = bc._chunk_carrier(v[:, 0], float(h[0]), f0)
+    assert state != "none"
+    assert f == pytest.approx(f0, rel=2e-4)
+    assert amp == pytest.approx(1.0, rel=1e-3)
+    # the warping the correction removes: (ω·h)²/12, 1.3 % at 16 steps a period
+    raw = math.atan(math.pi * f0 * h[0]) / (math.pi * h[0])
+    assert abs(raw / f0 - 1.0) > (0.01 if steps == 16 else 5e-4)
+
+
+def test_a_run_does_not_depend_on_its_batch(monkeypatch):
+    # a short run (two chunks of five periods) of h017 alone and beside h003, both
+    # bursting Colpitts of the held-out set with the same netlist shape
+    monkeypatch.setattr(bc, "CHUNK", 5)
+    monkeypatch.setattr(bc, "MIN_CHUNKS", 1)
+    monkeypatch.setattr(bc, "MAX_CHUNKS", 1)
+    designs, _ = load_reference(DATA / "large_signal_holdout.json")
+    pick = [d for d in designs if d.id in ("h003", "h017")]
+    nets = [Network.build(d.topo, d.values, d.stray, d.params) for d in pick]
+    f = [float(d.topo.frequency(d.values, d.stray)) for d in pick]
+    both = bc.network_carriers(nets, [True, True], f)
+    alone = bc.network_carriers(nets[1:], [True], f[1:])
+    assert both[1] is not None and alone[0] is not None
+    assert both[1] == alone[0]
+    assert math.isfinite(alone[0].amplitude_v) and alone[0].amplitude_v > 0
