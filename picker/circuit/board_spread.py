@@ -41,7 +41,14 @@ StateFn = Callable[[Topology, Mapping[str, np.ndarray], Parasitics], SteadyState
 #: The same with the parasitics fixed: (topology, marked values) -> SteadyState.
 TankFn = Callable[[Topology, Mapping[str, np.ndarray]], SteadyState]
 
-__all__ = ["SPREADS", "by_coupling", "spread_centre", "spread_point", "spread_terms"]
+__all__ = [
+    "SPREADS",
+    "by_coupling",
+    "spread_centre",
+    "spread_point",
+    "spread_shift",
+    "spread_terms",
+]
 
 
 def spread_centre(topology: Topology, parasitics: Parasitics, key: str) -> float:
@@ -111,3 +118,24 @@ def spread_terms(
         a = (hi - lo) / (2 * tol)
         b = (hi - 2 * mid + lo) / (2 * tol * tol)
     return np.stack([a, b], axis=1).reshape(-1, lo.shape[-1])
+
+
+def spread_shift(
+    terms: Mapping[str, np.ndarray], dev: Mapping[str, np.ndarray]
+) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """(Δln f, Δln m, Δ bursting conditions) of boards by (X1) summed over the spreads:
+    ``terms[key]`` the coefficients of :func:`spread_terms` of the designs (2·Q, c),
+    ``dev[key]`` the boards' deviations x − x0, (samples, c); shapes (samples, c) and
+    (HURWITZ, samples, c). None without spreads."""
+    out: list[np.ndarray] = []
+    for key, coef in terms.items():
+        d = np.asarray(dev[key], dtype=float)
+        with np.errstate(invalid="ignore"):
+            got = [
+                np.nan_to_num(d * coef[2 * q][None, :] + d * d * coef[2 * q + 1][None, :])
+                for q in range(coef.shape[0] // 2)
+            ]
+        out = got if not out else [a + b for a, b in zip(out, got, strict=True)]
+    if not out:
+        return None
+    return out[0], out[1], np.stack(out[2:])

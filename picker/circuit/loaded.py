@@ -91,11 +91,10 @@ with the ideal tank's part of ln f taken at each board's own stray and k exactly
 board fit's bursting conditions (A3) take their own quadratic in d likewise
 (:mod:`picker.circuit.board_spread`).
 
-Quadratic, not linear: where the device compresses, the stray moves the steady
-frequency through the drive as well as through the tank (on the demo colpitts_bjt.toml
-the slope changes by a factor of two between 1 and 7 pF); k moves the feedback fraction
-(L2 + M)/(L1 + M) and so the drive. tests/test_loaded_stray.py and
-tests/test_loaded_coupling.py check the yields against the large-signal model on every board.
+Quadratic, not linear: the stray moves the steady frequency through the drive as well
+(its slope changes twofold from 1 to 7 pF on colpitts_bjt.toml); k moves (L2 + M)/(L1 + M) and
+so the drive. tests/test_loaded_stray.py and tests/test_loaded_coupling.py check the
+yields against the large-signal model on every board.
 
 Axis convention: samples on axis 0, designs on axis 1.
 """
@@ -112,7 +111,13 @@ import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.board_fit import BoardFit, fit_boards
-from picker.circuit.board_spread import SPREADS, by_coupling, spread_centre, spread_terms
+from picker.circuit.board_spread import (
+    SPREADS,
+    by_coupling,
+    spread_centre,
+    spread_shift,
+    spread_terms,
+)
 from picker.circuit.nominal_orbit import NominalOrbit, nominal_orbits
 from picker.circuit.steady import SteadyState, steady_state
 from picker.circuit.surrogate import (
@@ -376,26 +381,18 @@ class LoadedModel:
         """The spreads the boards ``vals`` draw of their own."""
         return [key for key in SPREADS if key in vals and self.spread_tol(key) > 0]
 
-    def _stray_shift(
+    def _spread_shift(
         self, vals: Mapping[str, np.ndarray], designs: Designs
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
-        """(Δln f, Δln m, Δ bursting conditions) of every board from its own stray and k:
-        (X1) of the module docstring summed over the spreads, (samples, c) and (HURWITZ,
-        samples, c); None where the boards share the spec's."""
-        out: list[np.ndarray] = []
-        for key in self._spreads(vals):
-            coef = self.spread_terms(designs, key)  # rows: a_0, b_0, a_1, b_1, ...
-            x0 = spread_centre(self.problem.topology, self.problem.parasitics, key)
-            d = np.asarray(vals[key], dtype=float) - x0
-            with np.errstate(invalid="ignore"):
-                terms = [
-                    np.nan_to_num(d * coef[2 * q][None, :] + d * d * coef[2 * q + 1][None, :])
-                    for q in range(coef.shape[0] // 2)
-                ]
-            out = terms if not out else [a + b for a, b in zip(out, terms, strict=True)]
-        if not out:
-            return None
-        return out[0], out[1], np.stack(out[2:])
+        """(Δln f, Δln m, Δ bursting conditions) of every board from its own stray and k
+        (:func:`picker.circuit.board_spread.spread_shift`); None where the boards share the
+        spec's."""
+        pb = self.problem
+        own = self._spreads(vals)
+        return spread_shift(
+            {key: self.spread_terms(designs, key) for key in own},
+            {key: vals[key] - spread_centre(pb.topology, pb.parasitics, key) for key in own},
+        )
 
     def _boards(self, vals: Mapping[str, np.ndarray]) -> Mapping[str, np.ndarray]:
         """``vals`` with a board's own stray and k broadcast to the positions' (samples, c)."""
@@ -639,7 +636,7 @@ class LoadedModel:
         ln_f, ln_m = surrogate_logs(topo, sur, vals, pb.parasitics)
         ln_f += off_f
         ln_m += off_m
-        extra = self._stray_shift(vals, designs)
+        extra = self._spread_shift(vals, designs)
         ex_f, ex_m = (extra[0], extra[1]) if extra is not None else (0.0 * ln_f, 0.0 * ln_m)
 
         def own_ideal(sel: np.ndarray) -> Any:
