@@ -15,20 +15,17 @@
 from __future__ import annotations
 
 import math
-import re
-import subprocess
-import tempfile
 import tomllib
 from dataclasses import replace
 from pathlib import Path
 
 import pytest
+from ngspice_op import need_ngspice, ngspice_op
 from numpy.testing import assert_allclose
 
-from picker.circuit.ngspice import ngspice_path
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.stages import STAGES
-from picker.errors import SolverError, SpecError
+from picker.errors import SpecError
 from picker.spec.load import spec_from_dict
 from picker.tank.colpitts import COLPITTS
 
@@ -91,26 +88,8 @@ def test_collector_feedback_worked_example():
 def _op(params, vcc: float) -> dict[str, float]:
     """ngspice's operating point of the stage's own netlist at supply ``vcc``."""
     part = CE.netlist(COLPITTS, TANK, 0.0, 1.0, replace(params, vcc=vcc))
-    text = "\n".join(
-        [
-            "bias",
-            *part.elements,
-            *part.models,
-            ".control",
-            "op",
-            "let icq = @q1[ic]",
-            "print icq v(b) v(e)",
-            ".endc",
-            ".end",
-        ]
-    )
-    with tempfile.TemporaryDirectory(prefix="picker-op-") as tmp:
-        cir = Path(tmp) / "op.cir"
-        cir.write_text(text + "\n", encoding="utf-8")
-        out = subprocess.run(
-            [ngspice_path(), "-b", str(cir)], capture_output=True, text=True, timeout=60
-        ).stdout
-    return {k: float(v) for k, v in re.findall(r"^(\S+) = (\S+)$", out, flags=re.M)}
+    probes = {"icq": "@q1[ic]"}
+    return ngspice_op(part.elements, part.models, lets=probes, prints=["v(b)", "v(e)"])
 
 
 @pytest.mark.ngspice
@@ -128,10 +107,7 @@ def test_linear_dc_loop_matches_ngspice_operating_points(kw):
     # (B2): V_BE = V_th' − r_dc·I_C, so between two supplies V_BE changes by
     # ΔV_th' − r_dc·ΔI_C; ngspice's two operating points (Early effect off, so the loop
     # is linear) give the slope the large-signal model's bias shift uses
-    try:
-        ngspice_path()
-    except SolverError as exc:
-        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
+    need_ngspice()
     p = _flat(**kw)
     loop = CE.bias_loop(p, CE.small_signal(p))
     a, b = _op(p, 9.0), _op(p, 10.0)

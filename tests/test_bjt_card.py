@@ -16,16 +16,13 @@ from __future__ import annotations
 
 import copy
 import re
-import subprocess
-import tempfile
 from dataclasses import replace
-from pathlib import Path
 
 import pytest
+from ngspice_op import ngspice_op
 
 from picker.api import spec_from_dict
 from picker.circuit.device import BJT_CLASSES, bjt_card
-from picker.circuit.ngspice import ngspice_path
 from picker.circuit.polarity import mirror_netlist
 from picker.circuit.stages import STAGES
 from picker.errors import SpecError
@@ -81,29 +78,8 @@ def _spec(**amp):
 
 def _op(lines: list[str], models: list[str]) -> dict[str, float]:
     """Q1's collector current, gm and C_pi from ngspice's operating point."""
-    text = "\n".join(
-        [
-            "card op",
-            *lines,
-            *models,
-            ".control",
-            "op",
-            "let icq = @q1[ic]",
-            "let gmq = @q1[gm]",
-            "let cpiq = @q1[cpi]",
-            "print icq gmq cpiq",
-            ".endc",
-            ".end",
-        ]
-    )
-    with tempfile.TemporaryDirectory(prefix="picker-card-") as tmp:
-        cir = Path(tmp) / "op.cir"
-        cir.write_text(text + "\n", encoding="utf-8")
-        out = subprocess.run(
-            [ngspice_path(), "-b", str(cir)], capture_output=True, text=True, timeout=60
-        ).stdout
-    found = dict(re.findall(r"^(\S+) = (\S+)$", out, flags=re.M))
-    return {k: float(v) for k, v in found.items()}
+    probes = {"icq": "@q1[ic]", "gmq": "@q1[gm]", "cpiq": "@q1[cpi]"}
+    return ngspice_op(lines, models, lets=probes, title="card op")
 
 
 def test_card_keys_reach_the_netlist_card():

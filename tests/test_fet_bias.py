@@ -12,21 +12,17 @@ code); ngspice's DC solution of the stage's own netlist lines (issue 12's 1 % ta
 from __future__ import annotations
 
 import math
-import re
-import subprocess
-import tempfile
 from dataclasses import replace
-from pathlib import Path
 
 import pytest
+from ngspice_op import need_ngspice, ngspice_op
 from numpy.testing import assert_allclose
 
 from picker.circuit.fet import GENERIC_NJFET, GENERIC_NMOS, FetCard, square_law_bias
 from picker.circuit.netlist import write_netlist
-from picker.circuit.ngspice import ngspice_path, simulate
+from picker.circuit.ngspice import simulate
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.stages import STAGES, Stage
-from picker.errors import SolverError
 from picker.tank.clapp import CLAPP
 from picker.tank.colpitts import COLPITTS
 
@@ -90,37 +86,15 @@ TANKS = [
 
 def _op(lines: list[str], models: list[str], device: str, nodes: list[str]) -> dict[str, float]:
     """The fet's drain current and the node voltages from ngspice's operating point."""
-    text = "\n".join(
-        [
-            "bias point",
-            *lines,
-            *models,
-            ".control",
-            "op",
-            f"let idq = @{device}[id]",
-            f"print idq {' '.join(f'v({n})' for n in nodes)}",
-            ".endc",
-            ".end",
-        ]
-    )
-    with tempfile.TemporaryDirectory(prefix="picker-op-") as tmp:
-        cir = Path(tmp) / "op.cir"
-        cir.write_text(text + "\n", encoding="utf-8")
-        out = subprocess.run(
-            [ngspice_path(), "-b", str(cir)], capture_output=True, text=True, timeout=60
-        ).stdout
-    found = dict(re.findall(r"^(\S+) = (\S+)$", out, flags=re.M))
-    return {k: float(v) for k, v in found.items()}
+    prints = [f"v({n})" for n in nodes]
+    return ngspice_op(lines, models, lets={"idq": f"@{device}[id]"}, prints=prints)
 
 
 @pytest.mark.ngspice
 @pytest.mark.parametrize(("stage", "params"), CARD_DESIGNS)
 @pytest.mark.parametrize(("topology", "values"), TANKS)
 def test_fet_bias_point_matches_ngspice_operating_point(stage: Stage, params, topology, values):
-    try:
-        ngspice_path()
-    except SolverError as exc:
-        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
+    need_ngspice()
     bias = stage.bias(params)
     assert bias is not None
     part = stage.netlist(topology, values, 0.0, 1.0, params)
@@ -146,10 +120,7 @@ def test_fet_card_netlist_starts_as_the_model_says_at_its_frequency(
     # model starts (margin above 1.2) oscillates within 2 % of the model's frequency (as
     # tests/test_stage_conformance.py); one it does not start (margin below 0.8) stays quiet (ngspice's
     # residue of the start-up kick, not a frequency: simulate's flag reads a slow drift as one)
-    try:
-        ngspice_path()
-    except SolverError as exc:
-        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
+    need_ngspice()
     model = loaded_response(topology, values, 3e-12, params)
     margin = float(model.margin)
     assert margin > 1.2 or margin < 0.8  # the designs are chosen away from the edge

@@ -18,23 +18,20 @@ References (computed here, never by importing the code under test):
 from __future__ import annotations
 
 import math
-import re
-import subprocess
-import tempfile
 from dataclasses import replace
-from pathlib import Path
 
 import numpy as np
 import pytest
+from ngspice_op import need_ngspice, ngspice_op
 from numpy.testing import assert_allclose
 
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.netlist import write_netlist
-from picker.circuit.ngspice import ngspice_path, simulate
+from picker.circuit.ngspice import simulate
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.stages import STAGES
 from picker.circuit.steady import steady_state
-from picker.errors import SolverError, SpecError
+from picker.errors import SpecError
 from picker.spec.amplifier import AmplifierSpec
 from picker.tank.clapp import CLAPP
 from picker.tank.colpitts import COLPITTS
@@ -154,30 +151,16 @@ def test_bad_next_stage_or_load_is_one_line_naming_the_key(change, words):
 # ------------------------------------------------------------ ngspice
 
 
-def _ngspice() -> None:
-    try:
-        ngspice_path()
-    except SolverError as exc:
-        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
-
-
 def _v_c_op(text: str) -> float:
     """v(c) from ngspice's operating point of the netlist's element lines."""
     body = [ln for ln in text.splitlines()[1:] if ln and not ln.startswith((".tran", ".meas"))]
     body = [ln for ln in body if ln.lower() not in (".end", ".control", ".endc")]
-    deck = "\n".join(["op", *body, ".control", "op", "print v(c)", ".endc", ".end"])
-    with tempfile.TemporaryDirectory(prefix="picker-op-") as tmp:
-        cir = Path(tmp) / "op.cir"
-        cir.write_text(deck + "\n", encoding="utf-8")
-        out = subprocess.run(
-            [ngspice_path(), "-b", str(cir)], capture_output=True, text=True, timeout=60
-        ).stdout
-    return float(re.findall(r"^v\(c\) = (\S+)$", out, flags=re.M)[0])
+    return ngspice_op(body, prints=["v(c)"])["v(c)"]
 
 
 @pytest.mark.ngspice
 def test_series_load_bias_drop_matches_ngspice_operating_point():
-    _ngspice()
+    need_ngspice()
     p = replace(CE.typical_params(), r_c=1000.0, l_choke=100e-6, r_choke=5.0, r_next=2.2e3)
     text = write_netlist(COLPITTS, dict(COLPITTS.typical), 2e-12, p, title="op")
     b = CE.bias(p)
@@ -232,7 +215,7 @@ DESIGNS = [
 def test_loads_in_ngspice_start_as_the_model_says_at_its_frequency(
     stage, tank, change, state, amp_tol
 ):
-    _ngspice()
+    need_ngspice()
     values = dict(tank.typical)
     params: AmplifierParams = replace(stage.typical_params(), **change)
     model = loaded_response(tank, values, 3e-12, params)

@@ -10,24 +10,22 @@ frequency and amplitude, and both at the model's; the spec's key.
 
 from __future__ import annotations
 
-import re
-import subprocess
-import tempfile
 import tomllib
 from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 import pytest
+from ngspice_op import need_ngspice, ngspice_op
 from numpy.testing import assert_allclose
 
 from picker.circuit.device import GENERIC_PNP
 from picker.circuit.netlist import write_netlist
-from picker.circuit.ngspice import ngspice_path, simulate
+from picker.circuit.ngspice import simulate
 from picker.circuit.polarity import mirror_netlist
 from picker.circuit.stages import STAGES
 from picker.circuit.steady import steady_state
-from picker.errors import SolverError, SpecError
+from picker.errors import SpecError
 from picker.spec.load import spec_from_dict
 from picker.tank.clapp import CLAPP
 from picker.tank.colpitts import COLPITTS
@@ -37,26 +35,9 @@ PNP = replace(CE.typical_params(), device=GENERIC_PNP, p_type=True)
 NPN = replace(PNP, p_type=False)  # the mirrored circuit: the same card as an NPN
 
 
-def _run(text: str) -> dict[str, float]:
-    with tempfile.TemporaryDirectory(prefix="picker-pol-") as tmp:
-        cir = Path(tmp) / "op.cir"
-        cir.write_text(text + "\n", encoding="utf-8")
-        out = subprocess.run(
-            [ngspice_path(), "-b", str(cir)], capture_output=True, text=True, timeout=60
-        ).stdout
-    return {k: float(v) for k, v in re.findall(r"^(\S+) = (\S+)$", out, flags=re.M)}
-
-
 def _op(lines: list[str], models: list[str]) -> dict[str, float]:
-    probe = [".control", "op", "let icq = @q1[ic]", "print icq v(b) v(c) v(e)", ".endc", ".end"]
-    return _run("\n".join(["op", *lines, *models, *probe]))
-
-
-def _ngspice() -> None:
-    try:
-        ngspice_path()
-    except SolverError as exc:
-        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
+    probes = {"icq": "@q1[ic]"}
+    return ngspice_op(lines, models, lets=probes, prints=["v(b)", "v(c)", "v(e)"])
 
 
 def test_mirror_netlist_writes_the_p_type_cards_and_a_negative_supply():
@@ -70,7 +51,7 @@ def test_mirror_netlist_writes_the_p_type_cards_and_a_negative_supply():
 
 @pytest.mark.ngspice
 def test_pnp_operating_point_is_the_mirrored_npn_and_the_model():
-    _ngspice()
+    need_ngspice()
     npn = CE.netlist(COLPITTS, COLPITTS.typical, 0.0, 1.0, NPN)
     pnp = mirror_netlist(npn)
     a, b = _op(npn.elements, npn.models), _op(pnp.elements, pnp.models)
@@ -83,7 +64,7 @@ def test_pnp_operating_point_is_the_mirrored_npn_and_the_model():
 @pytest.mark.ngspice
 @pytest.mark.parametrize("topology", [COLPITTS, CLAPP], ids=["colpitts", "clapp"])
 def test_pnp_transient_equals_the_mirrored_npn_and_the_model(topology):
-    _ngspice()
+    need_ngspice()
     values = dict(topology.typical)
     s_npn = simulate(write_netlist(topology, values, 3e-12, NPN))
     s_pnp = simulate(write_netlist(topology, values, 3e-12, PNP))
@@ -101,7 +82,7 @@ def test_pnp_transient_equals_the_mirrored_npn_and_the_model(topology):
 def test_pmos_card_mirrors_with_its_threshold_negated():
     # a source follower: NMOS at +9 V against the mirrored PMOS at −9 V (ngspice's PMOS
     # takes a negative VTO for an enhancement device)
-    _ngspice()
+    need_ngspice()
     model = ".model PICKER_NMOS NMOS (LEVEL=1 VTO=1 KP=0.02 LAMBDA=0.01)"
     lines = ["VCC vcc 0 DC 9", "RG vcc b 1e6", "RB b 0 1e6", "M1 vcc b e e PICKER_NMOS"]
     lines += ["RE e 0 470"]
@@ -110,9 +91,8 @@ def test_pmos_card_mirrors_with_its_threshold_negated():
     part = StageNetlist(elements=lines, models=[model], kick=0.0, top_dc=0.0)
     mirrored = mirror_netlist(part)
     assert "PMOS" in mirrored.models[0] and "VTO=-1" in mirrored.models[0]
-    probe = [".control", "op", "print v(e)", ".endc", ".end"]
-    a = _run("\n".join(["n", *part.elements, *part.models, *probe]))
-    b = _run("\n".join(["p", *mirrored.elements, *mirrored.models, *probe]))
+    a = ngspice_op(part.elements, part.models, prints=["v(e)"], title="n")
+    b = ngspice_op(mirrored.elements, mirrored.models, prints=["v(e)"], title="p")
     assert a["v(e)"] > 0.5
     assert_allclose(b["v(e)"], -a["v(e)"], rtol=1e-5)
 

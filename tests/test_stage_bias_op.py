@@ -9,17 +9,11 @@ ngspice's DC solution of the same circuit.
 
 from __future__ import annotations
 
-import re
-import subprocess
-import tempfile
-from pathlib import Path
-
 import pytest
+from ngspice_op import need_ngspice, ngspice_op
 
-from picker.circuit.ngspice import ngspice_path
 from picker.circuit.polarity import mirror_netlist
 from picker.circuit.stages import STAGES, Stage
-from picker.errors import SolverError
 from picker.tank.clapp import CLAPP
 from picker.tank.colpitts import COLPITTS
 
@@ -32,38 +26,15 @@ TANKS = [
 
 def _op(lines: list[str], models: list[str], node: str) -> dict[str, float]:
     """Q1's collector and base currents and v(node) from ngspice's operating point."""
-    text = "\n".join(
-        [
-            "bias point",
-            *lines,
-            *models,
-            ".control",
-            "op",
-            "let icq = @q1[ic]",
-            "let ibq = @q1[ib]",
-            f"print icq ibq v({node})",
-            ".endc",
-            ".end",
-        ]
-    )
-    with tempfile.TemporaryDirectory(prefix="picker-op-") as tmp:
-        cir = Path(tmp) / "op.cir"
-        cir.write_text(text + "\n", encoding="utf-8")
-        out = subprocess.run(
-            [ngspice_path(), "-b", str(cir)], capture_output=True, text=True, timeout=60
-        ).stdout
-    found = dict(re.findall(r"^(\S+) = (\S+)$", out, flags=re.M))
-    return {k: float(v) for k, v in found.items()}
+    probes = {"icq": "@q1[ic]", "ibq": "@q1[ib]"}
+    return ngspice_op(lines, models, lets=probes, prints=[f"v({node})"], title="bias point")
 
 
 @pytest.mark.ngspice
 @pytest.mark.parametrize("stage", BJT_STAGES)
 @pytest.mark.parametrize(("topology", "values"), TANKS)
 def test_bias_point_matches_ngspice_operating_point(stage: Stage, topology, values):
-    try:
-        ngspice_path()
-    except SolverError as exc:
-        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
+    need_ngspice()
     params = stage.typical_params()
     bias = stage.bias(params)
     assert bias is not None
@@ -87,10 +58,7 @@ VARIANTS = [
 def test_bias_network_variants_match_ngspice_operating_point(stage: Stage, variant: str):
     # the bias networks of picker.circuit.bias (a base resistor, collector feedback, the
     # split emitter resistor) against ngspice's DC solution of the stage's own netlist
-    try:
-        ngspice_path()
-    except SolverError as exc:
-        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
+    need_ngspice()
     params = stage.typical_variants()[variant]
     bias = stage.bias(params)
     assert bias is not None

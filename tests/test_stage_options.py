@@ -26,37 +26,29 @@ from __future__ import annotations
 
 import math
 import re
-import subprocess
-import tempfile
 import tomllib
 from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 import pytest
+from ngspice_op import need_ngspice, ngspice_op
 from numpy.testing import assert_allclose
 
 from picker.circuit.fet import GENERIC_NJFET
 from picker.circuit.netlist import write_netlist
-from picker.circuit.ngspice import ngspice_path, simulate
+from picker.circuit.ngspice import simulate
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.polarity import P_TYPE_CAUTION, mirror_netlist
 from picker.circuit.stages import STAGES
 from picker.circuit.steady import steady_state
-from picker.errors import SolverError, SpecError
+from picker.errors import SpecError
 from picker.spec.load import spec_from_dict
 from picker.tank.colpitts import COLPITTS
 
 TANK = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}
 OTHERS = ["common-collector", "common-base", "common-source", "common-drain", "common-gate"]
 VT27 = 1.380649e-23 * 300.15 / 1.602176634e-19  # k·T/q at 27 °C (SI 2019 constants)
-
-
-def _ngspice() -> None:
-    try:
-        ngspice_path()
-    except SolverError as exc:
-        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
 
 
 def _nodes(lines: list[str]) -> list[str]:
@@ -80,18 +72,8 @@ def _op(lines: list[str], models: list[str]) -> dict[str, float]:
     (``dev``: Q1's collector current, J1's or M1's drain current)."""
     device = next(w.split()[0].lower() for w in lines if w[:2].upper() in ("Q1", "J1", "M1"))
     current = "ic" if device == "q1" else "id"
-    probe = " ".join(f"v({n})" for n in _nodes(lines))
-    text = "\n".join(
-        ["op", *lines, *models, ".control", "op", f"let dev = @{device}[{current}]"]
-        + [f"print dev {probe}", ".endc", ".end"]
-    )
-    with tempfile.TemporaryDirectory(prefix="picker-opt-") as tmp:
-        cir = Path(tmp) / "op.cir"
-        cir.write_text(text + "\n", encoding="utf-8")
-        out = subprocess.run(
-            [ngspice_path(), "-b", str(cir)], capture_output=True, text=True, timeout=60
-        ).stdout
-    return {k: float(v) for k, v in re.findall(r"^(\S+) = (\S+)$", out, flags=re.M)}
+    probe = [f"v({n})" for n in _nodes(lines)]
+    return ngspice_op(lines, models, lets={"dev": f"@{device}[{current}]"}, prints=probe)
 
 
 def _p_type_cases():
@@ -118,7 +100,7 @@ def _p_type_cases():
 @pytest.mark.ngspice
 @pytest.mark.parametrize(("stage", "params"), _p_type_cases())
 def test_p_type_operating_point_is_the_mirrored_n_type_and_the_model(stage, params):
-    _ngspice()
+    need_ngspice()
     assert "p-type" in stage.options
     n = stage.netlist(COLPITTS, TANK, 0.0, 1.0, replace(params, p_type=False))
     a, b = _op(n.elements, n.models), _op(*_lines(mirror_netlist(n)))
@@ -145,7 +127,7 @@ def _lines(part):
 @pytest.mark.ngspice
 @pytest.mark.parametrize("name", OTHERS)
 def test_p_type_transient_equals_the_n_type_and_the_model(name):
-    _ngspice()
+    need_ngspice()
     stage = STAGES[name]
     p = stage.typical_variants()["p-type"]
     n = replace(p, p_type=False)
@@ -185,7 +167,7 @@ def test_base_resistor_meets_the_emitter_bias_closed_form(name, r_b):
 @pytest.mark.ngspice
 @pytest.mark.parametrize(("name", "r_b"), BASE_RESISTOR)
 def test_base_resistor_bias_matches_ngspice_operating_point(name, r_b):
-    _ngspice()
+    need_ngspice()
     stage = STAGES[name]
     p = replace(stage.typical_params(), r_b1=r_b, r_b2=None)
     b = stage.bias(p)

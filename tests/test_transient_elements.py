@@ -12,34 +12,24 @@ answers of saturated validation designs of the follower and the Hartley tank (``
 from __future__ import annotations
 
 import math
-import re
-import subprocess
-import tempfile
 from pathlib import Path
 
 import numpy as np
 import pytest
 import scipy.linalg
+from ngspice_op import need_ngspice, ngspice_op
 
 from picker.circuit.device import thermal_voltage
 from picker.circuit.network import Network
-from picker.circuit.ngspice import ngspice_path, transient
+from picker.circuit.ngspice import transient
 from picker.circuit.nominal_orbit import board_orbits
 from picker.circuit.steady import steady_state
 from picker.circuit.transient import build_circuit, dc_point, device, integrate
 from picker.circuit.validation import load_reference
-from picker.errors import SolverError
 
 CARD = ".model QN NPN (IS=1e-14 BF=150 VAF=100 TF=3e-10 CJE=5e-12 CJC=3e-12 BR=1)"
 VT = thermal_voltage(27.0)  # ngspice's default temperature
 DATA = Path(__file__).parent / "validation"
-
-
-def _ngspice() -> str:
-    try:
-        return ngspice_path()
-    except SolverError as exc:
-        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
 
 
 @pytest.mark.parametrize(("k", "sign"), [(0.0, 1), (0.5, 1), (0.95, 1), (0.5, -1), (0.95, -1)])
@@ -70,7 +60,7 @@ def test_coupling_to_a_missing_inductor_is_refused():
 def test_coupled_coil_ring_down_matches_ngspice():
     # a charged tank L1-C1 coupled (k = 0.7) to a loaded secondary L2-C2-R2: the energy
     # beats between the two and decays; 1 V on C1 at t = 0, every current zero
-    _ngspice()
+    need_ngspice()
     elems = [
         "VCC vcc 0 DC 0",
         "C1 t 0 1e-9",
@@ -99,26 +89,8 @@ def test_coupled_coil_ring_down_matches_ngspice():
 
 def _op(lines: list[str], models: list[str]) -> dict[str, float]:
     """Q1's collector current and v(b), v(e) from ngspice's operating point."""
-    text = "\n".join(
-        [
-            "follower bias",
-            *lines,
-            *models,
-            ".control",
-            "op",
-            "let icq = @q1[ic]",
-            "print icq v(b) v(e)",
-            ".endc",
-            ".end",
-        ]
-    )
-    with tempfile.TemporaryDirectory(prefix="picker-op-") as tmp:
-        cir = Path(tmp) / "op.cir"
-        cir.write_text(text + "\n", encoding="utf-8")
-        out = subprocess.run(
-            [_ngspice(), "-b", str(cir)], capture_output=True, text=True, timeout=60
-        ).stdout
-    return {k: float(v) for k, v in re.findall(r"^(\S+) = (\S+)$", out, flags=re.M)}
+    probes = {"icq": "@q1[ic]"}
+    return ngspice_op(lines, models, lets=probes, prints=["v(b)", "v(e)"])
 
 
 @pytest.mark.ngspice

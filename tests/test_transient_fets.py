@@ -11,16 +11,14 @@ measured by picker.circuit.waveform), where the describing function is off by up
 
 from __future__ import annotations
 
-import re
-import subprocess
-import tempfile
 from pathlib import Path
 
 import numpy as np
 import pytest
+from ngspice_op import need_ngspice, ngspice_op
 
 from picker.circuit.network import Network
-from picker.circuit.ngspice import ngspice_path, transient
+from picker.circuit.ngspice import transient
 from picker.circuit.nominal_orbit import board_orbits
 from picker.circuit.transient import build_circuit, dc_point, integrate
 from picker.circuit.transient_devices import fet_law, spice_value
@@ -65,13 +63,6 @@ CASES = {
 NODES = ("d", "g", "s")
 
 
-def _need_ngspice() -> None:
-    try:
-        ngspice_path()
-    except Exception as exc:  # noqa: BLE001
-        pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
-
-
 def _lines(name: str) -> tuple[list[str], str, float, dict[str, float]]:
     lines, card, vdd, ic = CASES[name]
     return [ln.format(vdd=vdd) for ln in lines], card, vdd, ic
@@ -94,23 +85,14 @@ def _index(lines: list[str], card: str, node: str) -> int:
 
 
 def _ngspice_op(lines: list[str], card: str) -> dict[str, float]:
-    text = "\n".join(
-        ["op", *lines, card, ".control", "op", "print " + " ".join(f"v({n})" for n in NODES)]
-        + [".endc", ".end"]
-    )
-    with tempfile.TemporaryDirectory(prefix="picker-op-") as tmp:
-        cir = Path(tmp) / "op.cir"
-        cir.write_text(text + "\n", encoding="utf-8")
-        out = subprocess.run(
-            [ngspice_path(), "-b", str(cir)], capture_output=True, text=True, timeout=60
-        ).stdout
-    return {k: float(v) for k, v in re.findall(r"^v\((\w+)\) = (\S+)$", out, flags=re.M)}
+    op = ngspice_op(lines, [card], prints=[f"v({n})" for n in NODES])
+    return {n: op[f"v({n})"] for n in NODES}
 
 
 @pytest.mark.ngspice
 @pytest.mark.parametrize("name", sorted(CASES))
 def test_operating_point_matches_ngspice(name):
-    _need_ngspice()
+    need_ngspice()
     lines, card, _, _ = _lines(name)
     circ = build_circuit([_numeric(lines)], [card], "d", VT)
     x, ok = dc_point(circ)
@@ -124,7 +106,7 @@ def test_operating_point_matches_ngspice(name):
 @pytest.mark.ngspice
 @pytest.mark.parametrize("name", sorted(CASES))
 def test_transient_from_a_forward_biased_junction_matches_ngspice(name):
-    _need_ngspice()
+    need_ngspice()
     lines, card, _, ic = _lines(name)
     t_end = 2e-6
     circ = build_circuit([_numeric(lines)], [card], "d", VT)

@@ -555,6 +555,7 @@ def board_model_of(spec: Spec, problem: Problem) -> LoadedModel | None:
         amp.monte_carlo,
         max_margin=amp.max_margin,
         stray_tol=spec.parasitics.stray_tolerance,
+        coupling_tol=spec.tank.coupling_tolerance,
     )
 
 

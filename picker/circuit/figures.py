@@ -8,7 +8,7 @@ module gathers JSON-ready scalars, the ``large_signal`` object and the bursting 
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import Any
 
@@ -204,7 +204,7 @@ def nominal_figures(
 
 def burst_readings(
     topology: Topology,
-    values: list[Mapping[str, float]],
+    values: Sequence[Mapping[str, float]],
     parasitics: Parasitics,
     params: AmplifierParams,
     figures: list[dict[str, Any]],

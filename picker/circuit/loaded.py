@@ -75,24 +75,26 @@ where the board lies more than twice that error from an edge (f_min, f_max, marg
 ``max_margin``); (S3) for the rest where it lies more than twice its own corner error
 from the edge; the linear model itself for what is left.
 
-A board's own stray
--------------------
+A board's own stray and coupling
+--------------------------------
 With ``[parasitics] stray_tolerance`` each board draws its own stray (key
-:data:`picker.core.montecarlo.STRAY`). The full large-signal model takes it as it is;
-the approximation adds it through a quadratic in d = stray − stray0 fitted to the
-large-signal model at the design's marked values and stray0 − t, stray0, stray0 + t
-(t = ``stray_tolerance``):
+:data:`picker.core.montecarlo.STRAY`), with ``[tank] coupling_tolerance`` its own coupling
+k of the coils (key :data:`picker.tank.base.COUPLING`). The full large-signal model takes
+them as they are (one call per distinct k, :func:`picker.circuit.board_spread.by_coupling`);
+the approximation adds each through a quadratic in d = x − x0 fitted to the large-signal
+model at the design's marked values and x0 − t, x0, x0 + t (t its tolerance):
 
     ln f += a_f·d + b_f·d²,   ln m += a_m·d + b_m·d²                               (X1)
 
-with the ideal tank's part of ln f taken at each board's own stray exactly (Thomson's
-formula in (S1)) and (X1) fitted to what is left, ln f_steady − ln f_ideal; the board
-fit's bursting conditions (A3) take their own quadratic in d likewise.
+with the ideal tank's part of ln f taken at each board's own stray and k exactly
+(Thomson's formula in (S1)) and (X1) fitted to what is left, ln f_steady − ln f_ideal; the
+board fit's bursting conditions (A3) take their own quadratic in d likewise
+(:mod:`picker.circuit.board_spread`).
 
-Quadratic, not linear: where the device compresses, the stray moves the steady
-frequency through the drive as well as through the tank (on the demo colpitts_bjt.toml
-the slope changes by a factor of two between 1 and 7 pF). tests/test_loaded_stray.py
-checks the yields against the large-signal model on every board.
+Quadratic, not linear: the stray moves the steady frequency through the drive as well
+(its slope changes twofold from 1 to 7 pF on colpitts_bjt.toml); k moves (L2 + M)/(L1 + M) and
+so the drive. tests/test_loaded_stray.py and tests/test_loaded_coupling.py check the
+yields against the large-signal model on every board.
 
 Axis convention: samples on axis 0, designs on axis 1.
 """
@@ -102,13 +104,20 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.board_fit import BoardFit, fit_boards, point_quantities
+from picker.circuit.board_fit import BoardFit, fit_boards
+from picker.circuit.board_spread import (
+    SPREADS,
+    by_coupling,
+    spread_centre,
+    spread_shift,
+    spread_terms,
+)
 from picker.circuit.nominal_orbit import NominalOrbit, nominal_orbits
 from picker.circuit.steady import SteadyState, steady_state
 from picker.circuit.surrogate import (
@@ -121,7 +130,7 @@ from picker.circuit.surrogate import (
 )
 from picker.core.montecarlo import STRAY
 from picker.core.search import Designs, Problem
-from picker.tank.base import Topology
+from picker.tank.base import COUPLING, Topology
 from picker.tank.board import Parasitics, board_frequency, board_sensitivities, board_values
 
 #: Smallest error band (in ln f and ln margin) of the surrogate's edge test.
@@ -179,7 +188,12 @@ def board_state(
     """The large-signal model (:func:`picker.circuit.steady.steady_state`) of boards with
     *marked* values ``values``: the parasitics applied first, as :func:`loaded_nominal`;
     a board's own stray (key :data:`picker.core.montecarlo.STRAY`, ``[parasitics]
-    stray_tolerance``) in place of the spec's where ``values`` holds one."""
+    stray_tolerance``) and coupling k (key :data:`picker.tank.base.COUPLING`) in place of
+    the spec's where ``values`` holds them."""
+    if COUPLING in values:
+        return by_coupling(
+            topology, values, lambda tank, v: board_state(tank, v, parasitics, params)
+        )
     bv = board_values(
         topology, {p: np.asarray(values[p], dtype=float) for p in topology.positions}, parasitics
     )
@@ -243,6 +257,7 @@ class LoadedModel:
         max_margin: float | None = None,
         workers: int = 1,
         stray_tol: float = 0.0,
+        coupling_tol: float = 0.0,
     ) -> None:
         if method not in METHODS:
             raise ValueError(f"method must be one of {METHODS}, got {method!r}")
@@ -252,11 +267,12 @@ class LoadedModel:
         self.max_margin = max_margin
         self.workers = max(1, workers)
         self.stray_tol = stray_tol
+        self.coupling_tol = coupling_tol
         self._cache: dict[tuple[int, ...], np.ndarray] = {}
         self._nominal: dict[tuple[int, ...], tuple[bool, float, float]] = {}
         self._fits: dict[tuple[tuple[int, ...], bytes], BoardFit] = {}
         self._orbits: dict[tuple[int, ...], NominalOrbit | None] = {}
-        self._slopes: dict[tuple[int, ...], tuple[float, ...]] = {}
+        self._slopes: dict[tuple[str, tuple[int, ...]], tuple[float, ...]] = {}
 
     @property
     def ln_max_margin(self) -> float:
@@ -332,66 +348,62 @@ class LoadedModel:
             np.array([o is not None and o.bursting for o in got], dtype=bool),
         )
 
-    # ------------------------------------------------------------------ a board's own stray
+    # ------------------------------------------------------------------ a board's own stray and k
 
-    def stray_terms(self, designs: Designs) -> np.ndarray:
-        """Per design (2·(2 + HURWITZ), c): the coefficients (a, b) of (X1), the quadratic
-        in the board's stray deviation d through the large-signal model (:func:`board_state`)
-        at the design's marked values and the stray stray0 − t, stray0, stray0 + t
-        (t = ``stray_tol``): a = (L₊ − L₋)/(2t), b = (L₊ − 2L₀ + L₋)/(2t²), for
-        L = ln f_steady − ln f_ideal (the ideal tank takes each board's stray exactly),
-        ln m and each bursting condition of the board fit
-        (:func:`picker.circuit.board_fit.point_quantities`), in that order. Cached per design."""
+    def spread_tol(self, key: str) -> float:
+        """The tolerance of the spread ``key`` (:data:`picker.circuit.board_spread.SPREADS`)."""
+        return self.stray_tol if key == STRAY else self.coupling_tol
+
+    def spread_terms(self, designs: Designs, key: str) -> np.ndarray:
+        """Per design (2·(2 + HURWITZ), c): the coefficients (a, b) of (X1) for the spread
+        ``key`` (:func:`picker.circuit.board_spread.spread_terms`, through
+        :func:`board_state`). Cached per design."""
         pb = self.problem
-        keys = self._keys(designs)
-        missing = [i for i, key in enumerate(keys) if key not in self._slopes]
+        keys = [(key, k) for k in self._keys(designs)]
+        missing = [i for i, k in enumerate(keys) if k not in self._slopes]
         if missing:
             sub = designs.take(np.asarray(missing)).values(pb)
-            st, t = pb.parasitics.stray, self.stray_tol
-            logs = []
-            for x in (st - t, st, st + t):
-                par = replace(pb.parasitics, stray=x)
-                bs = board_state(pb.topology, sub, par, self.params)
-                lin_f, lin_m = loaded_nominal(pb.topology, sub, par, self.params)
-                _, _, steady, _, _ = point_quantities(lin_f, lin_m, bs, self.params)
-                ideal = np.log(board_frequency(pb.topology, sub, par))
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    logs.append(
-                        np.concatenate([[np.log(bs.f_hz) - ideal, np.log(bs.margin)], steady])
-                    )
-            lo, mid, hi = logs
-            with np.errstate(invalid="ignore"):
-                a = (hi - lo) / (2 * t)
-                b = (hi - 2 * mid + lo) / (2 * t * t)
-            coef = np.stack([a, b], axis=1).reshape(-1, len(missing))  # (2·Q, n) a, b pairs
+            coef = spread_terms(
+                pb.topology,
+                pb.parasitics,
+                self.params,
+                sub,
+                key,
+                self.spread_tol(key),
+                lambda tank, v, par: board_state(tank, v, par, self.params),
+            )
             for j, i in enumerate(missing):
                 self._slopes[keys[i]] = tuple(float(v) for v in coef[:, j])
-        rows = [self._slopes[key] for key in keys]
+        rows = [self._slopes[k] for k in keys]
         return np.array(rows, dtype=float).reshape(len(keys), -1).T
 
-    def _stray_shift(
+    def _spreads(self, vals: Mapping[str, np.ndarray]) -> list[str]:
+        """The spreads the boards ``vals`` draw of their own."""
+        return [key for key in SPREADS if key in vals and self.spread_tol(key) > 0]
+
+    def _spread_shift(
         self, vals: Mapping[str, np.ndarray], designs: Designs
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
-        """(Δln f, Δln m, Δ bursting conditions) of every board from its own stray: (X1)
-        of the module docstring, (samples, c) and (HURWITZ, samples, c); None where the
-        boards share the spec's stray."""
-        if STRAY not in vals or self.stray_tol <= 0:
-            return None
-        coef = self.stray_terms(designs)  # rows: a_0, b_0, a_1, b_1, ...
-        d = np.asarray(vals[STRAY], dtype=float) - self.problem.parasitics.stray
-        with np.errstate(invalid="ignore"):
-            out = [
-                np.nan_to_num(d * coef[2 * q][None, :] + d * d * coef[2 * q + 1][None, :])
-                for q in range(coef.shape[0] // 2)
-            ]
-        return out[0], out[1], np.stack(out[2:])
+        """(Δln f, Δln m, Δ bursting conditions) of every board from its own stray and k
+        (:func:`picker.circuit.board_spread.spread_shift`); None where the boards share the
+        spec's."""
+        pb = self.problem
+        own = self._spreads(vals)
+        return spread_shift(
+            {key: self.spread_terms(designs, key) for key in own},
+            {key: vals[key] - spread_centre(pb.topology, pb.parasitics, key) for key in own},
+        )
 
     def _boards(self, vals: Mapping[str, np.ndarray]) -> Mapping[str, np.ndarray]:
-        """``vals`` with a board's own stray broadcast to the positions' (samples, c)."""
-        if STRAY not in vals:
+        """``vals`` with a board's own stray and k broadcast to the positions' (samples, c)."""
+        own = [key for key in SPREADS if key in vals]
+        if not own:
             return vals
         shape = np.shape(vals[self.problem.topology.inductor])
-        return {**vals, STRAY: np.broadcast_to(np.asarray(vals[STRAY], dtype=float), shape)}
+        out = dict(vals)
+        for key in own:
+            out[key] = np.broadcast_to(np.asarray(vals[key], dtype=float), shape)
+        return out
 
     # ------------------------------------------------------------------ the full model
 
@@ -624,16 +636,17 @@ class LoadedModel:
         ln_f, ln_m = surrogate_logs(topo, sur, vals, pb.parasitics)
         ln_f += off_f
         ln_m += off_m
-        extra = self._stray_shift(vals, designs)
+        extra = self._spread_shift(vals, designs)
         ex_f, ex_m = (extra[0], extra[1]) if extra is not None else (0.0 * ln_f, 0.0 * ln_m)
 
         def own_ideal(sel: np.ndarray) -> Any:
-            """The ideal tank's ln f at the boards' own stray less at the spec's (0 without
-            one): the linear model below runs at the spec's stray."""
+            """The ideal tank's ln f at the boards' own stray and k less at the spec's (0
+            without them): the linear model below runs at the spec's."""
             if extra is None:
                 return 0.0
             v = {p: vals[p][sel] for p in topo.positions}
-            own = board_frequency(topo, {**v, STRAY: vals[STRAY][sel]}, pb.parasitics)
+            mine = {key: vals[key][sel] for key in self._spreads(vals)}
+            own = board_frequency(topo, {**v, **mine}, pb.parasitics)
             return np.log(own) - np.log(board_frequency(topo, v, pb.parasitics))
 
         ln_f += ex_f

@@ -98,14 +98,14 @@ def first_order(sim: Simulation, designs: Designs, with_temperature: bool) -> di
         problem = sim.problem
         bv = board_values(problem.topology, designs.values(problem), problem.parasitics)
         s_k = np.broadcast_to(problem.topology.coupling_sensitivity(bv), (len(designs),))
-        sens = {**sens, COUPLING: s_k}
+        sens = {**sens, COUPLING: s_k + _loaded_slope(sim, designs, COUPLING)}
         sigmas = {**sigmas, COUPLING: np.full(len(designs), sim.coupling_tol / np.sqrt(3.0))}
     return first_order_shares(sens, sigmas, t_std)
 
 
 def _stray_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndarray]:
     """S = ∂ln f/∂ln stray = −stray/(2·C_t) and σ_rel = stray_tol/(√3·stray), shape (n,);
-    with the loaded model, S takes its large-signal slope (:meth:`LoadedModel.stray_terms`).
+    with the loaded model, S takes its large-signal slope (:meth:`LoadedModel.spread_terms`).
 
     C_t = C_s + stray is the tank's total capacitance (f ∝ (L·C_t)^(-1/2),
     :func:`picker.tank.board.ideal_jacobian`); a uniform spread over ±t has
@@ -116,13 +116,21 @@ def _stray_terms(sim: Simulation, designs: Designs) -> tuple[np.ndarray, np.ndar
     bv = board_values(topo, designs.values(problem), par)
     c_t = np.asarray(topo.c_eff(bv, par.stray), dtype=float)
     s = -par.stray / (2.0 * c_t)
-    terms = getattr(sim.model, "stray_terms", None)
-    if terms is not None and getattr(sim.model, "stray_tol", 0.0) > 0:
-        # the loaded model: the large-signal model's own slope beyond the ideal tank's
-        # ((X1) of picker.circuit.loaded), so the share is the yield model's
-        s = s + par.stray * np.nan_to_num(terms(designs)[0])
+    s = s + par.stray * _loaded_slope(sim, designs, STRAY)
     sig = np.full(len(designs), sim.stray_tol / (np.sqrt(3.0) * par.stray))
     return s, sig
+
+
+def _loaded_slope(sim: Simulation, designs: Designs, key: str) -> Any:
+    """With the loaded model, the large-signal model's own slope ∂L/∂x beyond the ideal
+    tank's for a board's own stray or k (``key``; a of (X1) in
+    :mod:`picker.circuit.board_spread`, L = ln f_steady − ln f_ideal), so the share is the
+    yield model's; 0 with the ideal tank, (n,) otherwise."""
+    terms = getattr(sim.model, "spread_terms", None)
+    tol = getattr(sim.model, "spread_tol", None)
+    if terms is None or tol is None or tol(key) <= 0:
+        return 0.0
+    return np.nan_to_num(terms(designs, key)[0])
 
 
 def _worst_drift_index(sim: Simulation, d1: Designs) -> int:

@@ -641,12 +641,6 @@ class Spec(_Strict):
     @model_validator(mode="after")
     def _production_keys(self) -> Spec:
         check_spec(self)
-        if self.amplifier is not None and self.tank.coupling_tolerance > 0:
-            raise KeyedError(
-                "tank.coupling_tolerance",
-                "a spread of k is simulated with the ideal tank only; the loaded model "
-                "([amplifier]) takes one k: remove coupling_tolerance or [amplifier]",
-            )
         return self
 
     @property
