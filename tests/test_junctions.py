@@ -28,7 +28,7 @@ from numpy.testing import assert_allclose
 from scipy.optimize import brentq
 
 from picker.circuit.device import GENERIC_NPN, npn_transport, thermal_voltage
-from picker.circuit.junctions import port_matrix
+from picker.circuit.junctions import HARMONICS, TRUNCATION, harmonics_for_drive, port_matrix
 from picker.circuit.network import Network, loop_gain_matrix
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.stages import get_stage
@@ -134,3 +134,18 @@ def test_saturated_board_whose_balance_converges_against_ngspice(did):
     # issue 11's Clapp 0.5 % on the frequency, ±15 % on the amplitude
     assert float(st.f_hz) == pytest.approx(sim["f_hz"], rel=0.002)
     assert float(st.amplitude_v) == pytest.approx(sim["amplitude_v"], rel=0.15)
+
+
+@pytest.mark.parametrize("x", [0.5, 3.0, 8.0, 10.0, 11.0, 12.0, 14.0, 26.0, 80.0])
+def test_harmonics_for_drive_follows_the_pulse_spectrum(x):
+    # the exponential junction's current under a drive x·cos θ is e^{x·cos θ}; its Fourier
+    # coefficients by the FFT of samples (no Bessel function; their closed form 2·I_n(x)/I_0(x)
+    # over the mean is Clarke & Hess's, Communication Circuits). The balance must carry
+    # twice the harmonics exactly where the first one left out exceeds a tenth of the mean
+    n = 1024
+    theta = 2.0 * np.pi * np.arange(n) / n
+    c = np.abs(np.fft.rfft(np.exp(x * (np.cos(theta) - 1.0))))
+    left_out = 2.0 * c[HARMONICS + 1] / c[0]
+    want = 2 * HARMONICS if left_out > TRUNCATION else HARMONICS
+    assert int(harmonics_for_drive(np.array([x]))[0]) == want
+    assert int(harmonics_for_drive(np.array([-x]))[0]) == want  # the drive's sign

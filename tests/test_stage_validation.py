@@ -140,7 +140,7 @@ def test_fet_cards_and_coupling_survive_the_file(name):
 
 @pytest.mark.parametrize(
     "name",
-    _sets({"common-base": FREQ_CB, **FET_FREQUENCY}),
+    _sets(FET_FREQUENCY),
 )
 def test_frequency_within_2_percent_for_95_percent(name):
     assert _acc(name).freq_within_2pct >= 0.95
@@ -175,10 +175,6 @@ BURSTERS = ["common-source", "hartley"]
     "name",
     _sets(
         {
-            "common-source": "recall 0 (1 burster): cs002 (margin 65) squegs in ngspice "
-            "through its gate junction's rectified current; the periodic orbit of its "
-            "netlist is found stable (largest Floquet multiplier 0.84) at ngspice's "
-            "carrier (-0.02 %)",
         },
         BURSTERS,
     ),

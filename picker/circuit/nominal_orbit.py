@@ -26,17 +26,21 @@ orbit unstable only by real negative multipliers (a flip,
 :mod:`picker.circuit.periodic`) doubles its period nearby and does not burst.
 (O3) (:mod:`picker.circuit.startup_run`) adds the bursts a locally stable orbit hides:
 the start-up overshoot charges the emitter bypass past the point where the loop gain
-drops below 1 (hard squegging); it is run on the bjt stages where the orbit is stable,
-and where shooting fails it gives the verdict alone (with the describing function's
-figures). It was measured on the bjt validation sets only, so the fet stages keep (O2).
+drops below 1 (hard squegging); it is run where the orbit is stable, and where
+shooting fails it gives the verdict alone (with the describing function's figures). A
+fet's run lasts the slowest bias time constant of its schematic
+(:func:`picker.circuit.netlist.bias_time_constant`: a self-biased JFET's gate resistor
+with the tank's capacitance), as the gate junction's rectified current pumps the gate
+negative there (grid-leak squegging: cs002 of the common-source set, whose orbit is
+stable, multiplier 0.84, collapses from rest as in ngspice, within 30 periods).
 
 Only designs whose nominal drive saturates get an orbit (on a Hartley tank, every design
 that starts: its ends are coils, so the device's harmonic currents reach the control
 terminal through the tank's capacitor nearly unfiltered, and the describing function
 with harmonic balance of a few harmonics missed by up to 18 % out of saturation, 144 %
 on a MOSFET whose waveform is far from a sine; on the Hartley validation set the orbit
-holds every steady design it converges on within 0.55 % of ngspice, tests/test_stage_validation.py) (elsewhere harmonic balance of
-the junctions already holds the frequency to about 0.1 %), only for the stages whose
+holds every steady design it converges on within 0.55 % of ngspice,
+tests/test_stage_validation.py) (elsewhere harmonic balance of the junctions already holds the frequency to about 0.1 %), only for the stages whose
 netlist :func:`picker.circuit.transient.build_circuit` reads (every bjt stage: the
 follower's collector on the supply, the Hartley tank's coupled coils; the fet stages,
 JFET and MOSFET, the source follower's drain on the supply included), and only where
@@ -62,6 +66,7 @@ import numpy as np
 from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.amplitude import OVERDRIVE_MARGIN
 from picker.circuit.device import thermal_voltage
+from picker.circuit.netlist import bias_time_constant
 from picker.circuit.network import Network
 from picker.circuit.periodic import PeriodicState, board_lines, periodic_circuits
 from picker.circuit.shooting import STEPS
@@ -213,8 +218,15 @@ def board_orbits(nets: Sequence[Network]) -> list[list[NominalOrbit | None]]:
             models[key] = cards
             if net.topology.coupled:
                 coupled.add(key)
-            # (O3) for the bjt stages, where it was measured (tests/validation); not the fet's
-            horizon = None if fet else 2.0 * float(np.nan_to_num(t_up[i])) + HORIZON * tau
+            # (O3): a fet's bias recovers through its gate network too (a self-biased
+            # JFET's gate resistor with the tank's capacitance, charged by the gate
+            # junction's rectified current: grid-leak squegging), so its run takes the
+            # slowest bias time constant of the schematic
+            slow = tau
+            if fet:
+                vals = {p: float(net.el[p][i]) for p in net.topology.positions}
+                slow = max(tau, bias_time_constant(net.topology, vals, net.params))
+            horizon = 2.0 * float(np.nan_to_num(t_up[i])) + HORIZON * slow
             fast = (float(harm[i, 0]), float(harm[i, 1]), float(i_pk[i]), float(p_dev[i]))
             groups.setdefault(key, []).append(
                 (k, i, ln, float(f_fast[i]), float(amp[i]), card, horizon, fast)

@@ -35,7 +35,9 @@ burst (the envelope's low percentile below 0.2 of its high one,
 oscillation has died the circuit is back near its rest state with C_E discharging,
 so the start repeats: one collapse means the bursts recur.
 
-Found on the validation sets: d035, h003, h017; no steady design collapses. d003 is
+Found on the validation sets: d035, h003, h017, and the JFET cs002 (its gate junction's
+rectified current charges the gate network, as a grid leak does); no steady design
+collapses. d003 is
 still missed: from the kick (and from its mode at 1 % or 0.01 % of its amplitude) it
 settles, from its mode at 0.13 % it collapses: it lies on the edge of the orbit's basin,
 where the start decides.

@@ -35,9 +35,10 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.device import thermal_voltage
 from picker.circuit.envelope import HURWITZ, SATURATED_BURST, bursting, startup_time
 from picker.circuit.harmonic import harmonic_frequency
-from picker.circuit.junctions import junction_balance
+from picker.circuit.junctions import harmonics_for_drive, junction_balance
 from picker.circuit.large_signal import loop_compression, solve_drive
 from picker.circuit.network import Network
 from picker.circuit.oscillation import CHUNK
@@ -223,11 +224,16 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
         # holds there (picker.circuit.stages.stopper)
         sat = params.r_stopper is None or stage.saturated_balance
         kn = np.nonzero(good & (~drive.saturated | sat))[0]
-        if kn.size:
-            w_kn, top_kn, ok_kn = junction_balance(net, sub[kn], w_df[kn], a[kn], drive.dv[kn])
-            w[kn] = np.where(ok_kn, w_kn, w[kn])
-            top[kn] = np.where(ok_kn, top_kn, top[kn])
-            done[kn] = ok_kn
+        # as many harmonics as the drive's current pulses need (harmonics_for_drive)
+        need = harmonics_for_drive(a[kn] / thermal_voltage(params.temperature_c))
+        for n_harm in np.unique(need):
+            g = kn[need == n_harm]
+            w_g, top_g, ok_g = junction_balance(
+                net, sub[g], w_df[g], a[g], drive.dv[g], n_harm=int(n_harm)
+            )
+            w[g] = np.where(ok_g, w_g, w[g])
+            top[g] = np.where(ok_g, top_g, top[g])
+            done[g] = ok_g
     hb = np.nonzero(good & ~drive.saturated & ~done)[0]
     if hb.size and stage.has_device_law:
         w_hb, _ = harmonic_frequency(net, sub[hb], w_df[hb], a[hb], drive.dv[hb])
