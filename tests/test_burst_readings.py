@@ -50,6 +50,7 @@ def test_only_bursting_designs_run_and_their_figures_take_the_run(monkeypatch):
     assert out[1]["large_signal"]["f_hz"] == 1234.5 and out[1]["f_loaded_hz"] == 1234.5
     assert out[1]["large_signal"]["amplitude_v"] == 7.25
     assert out[1]["large_signal"]["carrier_from"] == "run from rest"
+    assert out[1]["large_signal"]["carrier_spread"] == 1e-4
     # the others keep their figures
     assert out[0]["large_signal"]["f_hz"] == 1.5e6 and out[0]["f_loaded_hz"] == 1.5e6
     assert out[0]["large_signal"]["carrier_from"] == "steady state"

@@ -216,7 +216,11 @@ def burst_readings(
     an oscilloscope reads inside its bursts is that run's, measured as ngspice's transient
     is. ``large_signal.f_hz``, ``large_signal.amplitude_v`` and ``f_loaded_hz`` take the
     run's figures, and ``large_signal.carrier_from`` says where they come from ("run from
-    rest", or "steady state" where no run was made). The bursting verdict stays the model's.
+    rest", or "steady state" where no run was made) and ``large_signal.carrier_spread`` the
+    run's relative standard error of the carrier over its chunks. A burst's carrier chirps
+    and its bursts may come irregularly: on some designs a small change of the run's step
+    moves the reading by several per cent, more than this spread says (README, "Bursting
+    designs"). The bursting verdict stays the model's.
     This costs hundreds of carrier periods of integration per bursting design (tens of
     seconds), so only bursting designs pay it.
     """
@@ -239,6 +243,7 @@ def burst_readings(
         ls = dict(f.get("large_signal") or {})
         if r is not None and math.isfinite(r.f_hz):
             ls.update(f_hz=r.f_hz, amplitude_v=r.amplitude_v, carrier_from="run from rest")
+            ls["carrier_spread"] = _finite(r.spread)
             f["f_loaded_hz"] = r.f_hz
         elif ls:
             ls["carrier_from"] = "steady state"

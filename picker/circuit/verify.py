@@ -31,6 +31,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
+from picker.circuit.burst_carrier import network_carriers
 from picker.circuit.netlist import TransientPlan, verify_plan, write_netlist
 from picker.circuit.network import Network
 from picker.circuit.ngspice import SimulationResult, simulate, step_note
@@ -245,12 +246,30 @@ def check_boards(
     # the boards where solve's table takes the periodic orbit (picker.circuit.nominal_orbit:
     # a saturated drive) get the orbit's figures beside ngspice, as the table gives them
     arr = {p: np.array([v[p] for v in vals]) for p in topology.positions}
-    orbits = board_orbits([Network.build(topology, arr, stray, params)])[0]
+    net = Network.build(topology, arr, stray, params)
+    orbits = board_orbits([net])[0]
+    models = [_with_orbit(_figures(st, i), orbits[i]) for i in range(len(jobs))]
+    # a board the model calls bursting: its carrier and amplitude from its own circuit run
+    # from rest, as solve and evaluate report them (picker.circuit.figures.burst_readings)
+    burst = [m["envelope"] == "bursting" and m["f_hz"] is not None for m in models]
+    if any(burst):
+        idx = [i for i, b in enumerate(burst) if b]
+        sub = {p: arr[p][idx] for p in topology.positions}
+        one = [
+            Network.build(topology, {p: sub[p][[k]] for p in sub}, stray, params)
+            for k in range(len(idx))
+        ]
+        runs = network_carriers(one, [True] * len(idx), [float(models[i]["f_hz"]) for i in idx])
+        for i, r in zip(idx, runs, strict=True):
+            if r is not None and math.isfinite(r.f_hz):
+                models[i] = {**models[i], "f_hz": r.f_hz, "amplitude_v": r.amplitude_v}
+                models[i]["carrier_from"] = "run from rest"
+                models[i]["carrier_spread"] = r.spread if math.isfinite(r.spread) else None
     return [
         BoardCheck(
             label=label,
             values=v,
-            model=_with_orbit(_figures(st, i), orbits[i]),
+            model=models[i],
             sim=sim,
             window=window,
             cycles=plan.cycles,

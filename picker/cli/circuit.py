@@ -263,7 +263,7 @@ def simulate(
         parts,
         f"{'':22}{'model':>16}{'ngspice':>16}",
         f"{'frequency (ideal)':22}{hz(model['f_ideal_hz']):>16}",
-        f"{'carrier (loaded)':22}{hz(model['f_loaded_hz']):>16}{hz(f_sim):>16}",
+        f"{'carrier (loaded)':22}{hz(ls['f_hz'] or model['f_loaded_hz']):>16}{hz(f_sim):>16}",
         f"{'amplitude, tank top':22}{volts(ls['amplitude_v']):>16}{amp_sim:>16}",
         f"{'start-up margin':22}{model['startup_margin']:>16.3g}"
         f"{'oscillates' if sim.oscillating else 'does not start':>16}",
@@ -283,7 +283,8 @@ def simulate(
         lines.append(
             f"note: at the netlist's own step ngspice showed {sim.coarse.state} "
             f"({hz(_finite(sim.coarse.f_hz))}); at a {sim.step_refined}x finer step "
-            f"{wave.state}: the integration's artefact, the finer run is reported"
+            f"{wave.state} at {hz(f_sim)}: the two disagree (the "
+            "trapezoidal rule's error at the netlist's step), so the finer run is reported"
         )
     lines += [f"ngspice: {w}" for w in sim.warnings]
     typer.echo("\n".join(lines))
@@ -369,8 +370,8 @@ def verify_text(checks: list[DesignCheck], seconds: float) -> str:
     ]
     if refined:
         lines.append(
-            "note: read at a finer step, the netlist's own burst or wandered (the integration's "
-            "artefact): " + ", ".join(refined)
+            "note: read at a finer step where the netlist's own step disagreed with it (the "
+            "trapezoidal rule's error): " + ", ".join(refined)
         )
     return "\n".join(lines) + "\n"
 
