@@ -189,6 +189,22 @@ def test_two_independent_tones_the_carrier_near_the_hint_stays_the_carrier():
     assert m.fundamental_v == pytest.approx(0.3, rel=5e-3)
 
 
+def test_a_bursting_start_up_is_timed_to_the_first_burst():
+    # silent until 300 periods after the kick, then bursts of 40 periods in 100 whose
+    # envelope rises linearly over their first 20 periods: 90 % of the bursts' height is
+    # reached 18 periods into the first burst (the gaps hold the envelope's median, so
+    # timing against it reads the kick's instant instead)
+    t = _time(3000)
+    n = t * F - 300.0
+    ramp = np.clip(n % 100.0 / 20.0, 0.0, 1.0)
+    env = np.where((n >= 0) & (n % 100.0 < 40.0), np.maximum(ramp, 1e-4), 1e-4)
+    v = env * np.sin(2 * np.pi * F * t)
+    m = measure(t, v, f_hint=F)
+    assert m.state == "bursting"
+    # the band-pass's envelope follows the ramp within a few periods
+    assert m.startup_time_s * F == pytest.approx(318.0, abs=4.0)
+
+
 def test_burst_carrier_stays_the_carrier_beside_a_stronger_bias_swing_at_the_burst_rate():
     # a squegging oscillator: the carrier on for 40 periods in 100, and the tank top's
     # bias swinging with the bursts (1.5 V at the burst rate F/100, a line stronger than

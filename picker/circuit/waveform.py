@@ -84,7 +84,7 @@ class WaveformMeasurement:
     modulation: (max − min)/(max + min) of the envelope over the tail.
     envelope_low, envelope_high: 2nd and 98th percentiles of the envelope over the tail, V.
     startup_time_s: from ``t_kick`` to the envelope's first reaching 90 % of its settled
-        value, s.
+        value (where it bursts, of the bursts' height: the first burst's crest), s.
     harmonics_dbc: (2nd, 3rd) harmonic relative to the fundamental, dBc.
     tail_start_s: where the analysed tail begins, s.
     """
@@ -374,9 +374,12 @@ def measure(
     if np.count_nonzero(kept) >= 16:
         inside = kept
     f_c = float(np.sum(dphi[inside]) / (np.count_nonzero(inside) * dt) / (2.0 * np.pi))
-    # start-up: first time the envelope reaches 90 % of its settled value
+    # start-up: first time the envelope reaches 90 % of its settled value; a bursting
+    # envelope's median lies in the gaps, so there the bursts' height (its 98th
+    # percentile) is the settled value: the time to the first burst's crest
     after = t >= t_kick
-    reach = np.nonzero(after & (env >= 0.9 * fundamental))[0]
+    settled = hi if state == "bursting" else fundamental
+    reach = np.nonzero(after & (env >= 0.9 * settled))[0]
     startup = float(t[reach[0]] - t_kick) if reach.size else nan
     return WaveformMeasurement(
         state=state,
