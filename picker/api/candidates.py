@@ -182,9 +182,7 @@ def circuit_extras(spec: Spec, sim: Simulation, designs: Designs, u: Rows) -> li
     Empty without an ``[amplifier]`` section. Otherwise (:func:`picker.circuit.figures.nominal_figures`):
     ``f_ideal_hz``, ``f_loaded_hz``, ``startup_margin`` (nominal),
     ``startup_margin_worst`` (smallest over every Monte Carlo board and
-    temperature), ``amplitude_v``, ``overdriven``, ``peak_voltage_v``, ``cautions``; a
-    design the model calls bursting reads its carrier from its circuit run from rest
-    (:func:`picker.circuit.figures.burst_readings`).
+    temperature), ``amplitude_v``, ``overdriven``, ``peak_voltage_v``, ``cautions``.
     """
     params = amplifier_params_of(spec)
     if params is None:
@@ -194,7 +192,7 @@ def circuit_extras(spec: Spec, sim: Simulation, designs: Designs, u: Rows) -> li
     rating = {p: spec.parts[p].voltage_rating for p in pb.topology.positions}
     polar = {p: spec.parts[p].polarised for p in pb.topology.positions}
     # the loaded model (its stages import scipy.special): only with an amplifier
-    from picker.circuit.figures import burst_readings, nominal_figures, worst_margins
+    from picker.circuit.figures import nominal_figures, worst_margins
 
     worst = worst_margins(sim, designs, u)
     orbits = getattr(sim.model, "orbits", lambda d: [None] * len(d))(designs)
@@ -211,8 +209,7 @@ def circuit_extras(spec: Spec, sim: Simulation, designs: Designs, u: Rows) -> li
         )
         fig["startup_margin_worst"] = float(worst[r])
         out.append(fig)
-    marked = [{p: float(v[r]) for p, v in vals.items()} for r in range(len(designs))]
-    return burst_readings(pb.topology, marked, pb.parasitics, params, out)
+    return out
 
 
 def production_extras(

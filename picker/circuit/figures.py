@@ -8,7 +8,7 @@ module gathers JSON-ready scalars, the ``large_signal`` object and the bursting 
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from dataclasses import replace
 from typing import Any
 
@@ -21,9 +21,7 @@ from picker.circuit.amplitude import (
     capacitor_stress,
     cautions,
 )
-from picker.circuit.burst_carrier import network_carriers
 from picker.circuit.loaded import LoadedModel
-from picker.circuit.network import Network
 from picker.circuit.nominal_orbit import NominalOrbit
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.steady import SteadyState, steady_state
@@ -36,7 +34,6 @@ from picker.tank.board import Parasitics, board_values
 __all__ = [
     "HARMONICS",
     "bursting_caution",
-    "burst_readings",
     "inductor_q",
     "large_signal",
     "nominal_figures",
@@ -200,56 +197,6 @@ def nominal_figures(
         "cautions": notes,
         "large_signal": large_signal(ls),
     }
-
-
-def burst_readings(
-    topology: Topology,
-    values: Sequence[Mapping[str, float]],
-    parasitics: Parasitics,
-    params: AmplifierParams,
-    figures: list[dict[str, Any]],
-) -> list[dict[str, Any]]:
-    """``figures`` (from :func:`nominal_figures`, one per design of ``values``) where the
-    designs the large-signal model calls bursting read their carrier and amplitude from
-    their own circuit run from rest (:func:`picker.circuit.burst_carrier.network_carriers`,
-    run in one batch): a bursting board never holds the steady solution, so the frequency
-    an oscilloscope reads inside its bursts is that run's, measured as ngspice's transient
-    is. ``large_signal.f_hz``, ``large_signal.amplitude_v`` and ``f_loaded_hz`` take the
-    run's figures, and ``large_signal.carrier_from`` says where they come from ("run from
-    rest", or "steady state" where no run was made) and ``large_signal.carrier_spread`` the
-    run's relative standard error of the carrier over its chunks. A burst's carrier chirps
-    and its bursts may come irregularly: on some designs a small change of the run's step
-    moves the reading by several per cent, more than this spread says (README, "Bursting
-    designs"). The bursting verdict stays the model's.
-    This costs hundreds of carrier periods of integration per bursting design (tens of
-    seconds), so only bursting designs pay it.
-    """
-    out = [dict(f) for f in figures]
-    run = []
-    for f in out:
-        ls = f.get("large_signal") or {}
-        run.append(bool(ls.get("starts")) and ls.get("envelope") == "bursting")
-    nets: list[Network] = []
-    f_exp: list[float] = []
-    for vals, f, go in zip(values, out, run, strict=True):
-        if go:
-            marked = {p: np.array([float(vals[p])]) for p in topology.positions}
-            board = board_values(topology, marked, parasitics)
-            nets.append(Network.build(topology, board, parasitics.stray, params))
-            f_exp.append(float(f["large_signal"].get("f_hz") or f.get("f_ideal_hz") or math.nan))
-    got = iter(network_carriers(nets, [True] * len(nets), f_exp) if nets else [])
-    for f, go in zip(out, run, strict=True):
-        r = next(got) if go else None
-        ls = dict(f.get("large_signal") or {})
-        if r is not None and math.isfinite(r.f_hz):
-            ls.update(f_hz=r.f_hz, amplitude_v=r.amplitude_v, carrier_from="run from rest")
-            ls["carrier_spread"] = _finite(r.spread)
-            f["f_loaded_hz"] = r.f_hz
-        elif ls:
-            ls["carrier_from"] = "steady state"
-        if ls:
-            f["large_signal"] = ls
-    return out
 
 
 def worst_margins(sim: Simulation, designs: Designs, u: Rows) -> np.ndarray:
