@@ -91,7 +91,9 @@ def _orbits(ids: tuple[str, ...]) -> dict[str, object]:
 #: more than 2 %: a MOSFET near start-up (hy004, margin 1.3), a bjt at margin 10
 #: (hy005), the MOSFET whose waveform is far from a sine (hy010, its carrier 41 kHz
 #: against the ideal tank's 80 kHz) and hy022, whose first shot does not converge.
-OFF = ("hy004", "hy005", "hy010", "hy022")
+#: the steady designs the fast model alone misses by more than 2 % (hy005, +17.8 % once,
+#: is +0.23 % since the two-junction balance carries twelve harmonics where the drive needs them)
+OFF = ("hy004", "hy010", "hy022")
 
 
 @pytest.mark.slow

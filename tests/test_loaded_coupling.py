@@ -80,7 +80,10 @@ def test_fitted_k_terms_follow_the_large_signal_model_between_the_fit_points(dem
         tank = pb.topology.configured(K0 + d)
         st = _state(tank, pb, params, vals)
         l_ref = np.log(st.f_hz) - np.log(board_frequency(tank, vals, pb.parasitics))
-        assert np.all(np.abs(l0 + coef[0] * d + coef[1] * d * d - l_ref) < 2e-4)
+        # measured at most 2.5e-4 (the third design, since the two-junction balance carries
+        # twelve harmonics on strongly driven boards; 1.2e-4 before): 5e-4 is a thirtieth of
+        # the demo's ±1.5 % window, and a missing k term is off by 1e-2
+        assert np.all(np.abs(l0 + coef[0] * d + coef[1] * d * d - l_ref) < 5e-4)
         m_ref = np.log(st.margin)
         m_fit = np.log(st0.margin) + coef[2] * d + coef[3] * d * d
         assert np.all(np.abs(m_fit - m_ref) < 0.01)
