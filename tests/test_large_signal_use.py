@@ -383,3 +383,36 @@ def test_every_design_bursting_or_over_max_margin_is_explained(demo, monkeypatch
     r = api.solve(spec, samples=SAMPLES)
     assert r.status == "infeasible" and r.feasible == 0
     assert any("burst or do not start in the large-signal model" in a for a in r.advice)
+
+
+def test_a_window_of_bursting_designs_is_not_widened(demo, monkeypatch):
+    """When the window's designs start but burst (or fail to start) in the large-signal
+    model, the explanation blames the stage and searches no widened windows: on a
+    Hartley spec with a 10 µF emitter bypass (squegging) the widened searches cost a
+    minute of large-signal balance and ended in advice that blamed the window."""
+    import picker.circuit.loaded_search as ls_mod
+    from picker.api.misses import explain_loaded_infeasible
+
+    spec, pb, _ = demo
+    params = spec.amplifier.to_params(spec.parts)
+    found = loaded_search(pb, params, min_margin=spec.amplifier.min_margin)
+    none = np.zeros(0, dtype=np.int64)
+    every_one_bursts = replace(
+        found,
+        designs=found.designs.take(none),
+        f_loaded=found.f_loaded[none],
+        margin=found.margin[none],
+        low_margin=found.low_margin.take(none),
+        low_margin_f=found.low_margin_f[none],
+        low_margin_m=found.low_margin_m[none],
+        not_steady=len(found.designs),
+    )
+
+    def widened(*args, **kwargs):
+        raise AssertionError("a widened window was searched")
+
+    monkeypatch.setattr(ls_mod, "loaded_search", widened)
+    misses, advice = explain_loaded_infeasible(spec, pb, every_one_bursts)
+    assert misses == []
+    assert any("burst or do not start in the large-signal model" in a for a in advice)
+    assert not any("no design near the window starts" in a for a in advice)
