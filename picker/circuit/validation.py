@@ -175,9 +175,9 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
     measured as ngspice's record is (:func:`picker.circuit.burst_carrier.network_carriers`).
     Where that run, measured as the record is, does not burst (it settles, or its
     envelope wanders without gaps: "steady" or "unsettled", which ngspice's records count
-    as not bursting too), the verdict is the run's, not bursting: the orbit's instability (or the collapse of the short start-up run) said only
-    that the board does not hold that orbit, not that it bursts. The common-base set's cb003
-    is the case: its tank-mode orbit is unstable because the collector choke's mode
+    as not bursting too), the verdict is the run's, not bursting: the orbit's
+    instability (or the collapse of the short start-up run) said only that the board
+    does not hold that orbit, not that it bursts. The common-base set's cb003 is the case: its tank-mode orbit is unstable because the collector choke's mode
     (23.4 kHz) invades it, and the two modes lock 5:1 into a waveform that repeats at the
     choke mode's period (ngspice: steady; the run: +0.37 %, no gaps). ``solve`` and
     ``evaluate`` do not make the run (tens of seconds a design) and keep the orbit's
