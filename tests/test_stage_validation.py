@@ -22,6 +22,8 @@ from pathlib import Path
 import pytest
 
 from picker.circuit.netlist import write_netlist
+from picker.circuit.network import Network
+from picker.circuit.nominal_orbit import board_orbits
 from picker.circuit.validation import (
     Accuracy,
     accuracy,
@@ -64,21 +66,20 @@ FET_FREQUENCY = {
     "828 kHz with Gear; tests/validation/README.md)",
 }
 AMPLITUDE: dict[str, str] = {}
-NOBURST_CB = (
-    "unmet: the model flags cb003 as bursting (a saturated Clapp with a collector choke); "
-    "ngspice runs it steady in its choke's mode, 23.4 kHz, with the tank's mode phase-locked "
-    "at its 5th harmonic (its run from rest, measured as the record is, reads +0.37 %); the "
-    "set's one recorded burster, cb011, was the trapezoidal rule's artefact and runs steady "
-    "at a 5x finer step and with Gear (tests/test_step_confirm.py)"
-)
-CLAPP_CC = (
-    "unmet: Clapp worst 2.0 % (cc016, unsettled in ngspice at the netlist's step and a 5x finer one: its periodic orbit, 108.9 kHz as "
-    "the describing function's, is unstable, multiplier 1.08, and ngspice's carrier wanders "
-    "about 109-111 kHz with the emitter swinging up to the supply; the model calls it steady "
-    "and unsaturated, so neither the orbit nor the run from rest (picker.circuit.burst_carrier, "
-    "which reads 110.68 kHz, -0.06 %, when made to run on it) is used; cc001 is 0.02 % off "
-    "with the orbit)"
-)
+#: met on the common-base set since a design the model flags takes the verdict of its own
+#: circuit run from rest where that run does not burst (picker.circuit.validation.
+#: model_answers): cb003 (a saturated Clapp with a collector choke, whose tank-mode orbit
+#: is unstable) was the one false flag; ngspice runs it steady in its choke's mode,
+#: 23.4 kHz, with the tank's mode phase-locked at its 5th harmonic, and its run from rest,
+#: measured as the record is, shows no burst (+0.37 %; "unsettled" over its 800 measured
+#: periods, a wandering envelope without gaps, which the statistics count as not bursting,
+#: as they count ngspice's)
+#: met on the common-collector set since every follower that starts takes the periodic
+#: orbit of its netlist (picker.circuit.stages.base.Stage.orbit_on_start): cc016 (Clapp,
+#: "unsettled" in ngspice, -2.0 % with the describing function, which called it steady
+#: and unsaturated at 3.66 V against ngspice's 6.31 V) has an unstable orbit, so it takes
+#: its run from rest: -0.33 % and +0.2 % in amplitude, not bursting (the run is
+#: "unsettled" too); the set's Clapp worst is 0.33 %, its worst 0.60 % (cc000)
 #: met on the common-base set: cb003 (a saturated Clapp with a collector choke, flagged
 #: bursting by the model) takes the carrier of its run from rest (picker.circuit.burst_carrier),
 #: measured as its record is, at the waveform's fundamental (the choke's mode, 23.4 kHz):
@@ -181,7 +182,7 @@ def test_bursting_precision_and_recall_at_least_0_8(name):
 
 @pytest.mark.parametrize(
     "name",
-    _sets({"common-base": NOBURST_CB}, sorted(set(SETS) - set(BURSTERS))),
+    _sets({}, sorted(set(SETS) - set(BURSTERS))),
 )
 def test_no_bursting_predicted_where_ngspice_shows_none(name):
     acc = _acc(name)
@@ -194,13 +195,22 @@ CLAPPS = ["common-collector", "common-base", "common-source", "common-drain", "c
 
 @pytest.mark.parametrize(
     "name",
-    _sets(
-        {
-            "common-collector": CLAPP_CC,
-        },
-        CLAPPS,
-    ),
+    _sets({}, CLAPPS),
 )
 def test_clapp_within_half_a_percent(name):
     assert _acc(name).clapp_oscillating > 0
     assert _acc(name).clapp_worst_error <= 0.005
+
+
+def test_an_unsaturated_follower_takes_the_orbit_of_its_netlist():
+    """Every emitter follower that starts is shot (Stage.orbit_on_start), saturated or not:
+    cc002 (a Colpitts at a start-up margin of 3.2, which the describing function finds out
+    of saturation) gets an orbit, stable, within 0.05 % of ngspice's carrier in its record
+    (measured 0.008 %); a rule that shot only saturated followers gives it none."""
+    designs, answers = load_reference(SETS["common-collector"])
+    k = next(i for i, d in enumerate(designs) if d.id == "cc002")
+    d, ngspice = designs[k], answers[k]
+    assert ngspice["state"] == "steady"
+    orbit = board_orbits([Network.build(d.topo, d.values, d.stray, d.params)])[0][0]
+    assert orbit is not None and not orbit.bursting
+    assert orbit.f_hz == pytest.approx(float(ngspice["f_hz"]), rel=5e-4)

@@ -40,7 +40,14 @@ terminal through the tank's capacitor nearly unfiltered, and the describing func
 with harmonic balance of a few harmonics missed by up to 18 % out of saturation, 144 %
 on a MOSFET whose waveform is far from a sine; on the Hartley validation set the orbit
 holds every steady design it converges on within 0.55 % of ngspice,
-tests/test_stage_validation.py) (elsewhere harmonic balance of the junctions already holds the frequency to about 0.1 %), only for the stages whose
+tests/test_stage_validation.py; and on an emitter follower, every design that starts,
+:attr:`picker.circuit.stages.base.Stage.orbit_on_start`: the emitter is both the output
+and the return of the base junction, so the device's current pulses into C1 reach the
+junction's drive directly; the follower Clapp cc016 of the common-collector set, which
+the describing function called steady and unsaturated at 3.66 V against ngspice's 6.31 V
+and 2.0 % low in frequency, has an unstable orbit there and so takes its run from rest,
+0.33 % from ngspice's carrier; the set's other followers move by at most 0.23 %, each
+toward ngspice's carrier or not at all) (elsewhere harmonic balance of the junctions already holds the frequency to about 0.1 %), only for the stages whose
 netlist :func:`picker.circuit.transient.build_circuit` reads (every bjt stage: the
 follower's collector on the supply, the Hartley tank's coupled coils; the fet stages,
 JFET and MOSFET, the source follower's drain on the supply included), and only where
@@ -190,8 +197,9 @@ def board_orbits(nets: Sequence[Network]) -> list[list[NominalOrbit | None]]:
             # above start-up the square law is cut off for most of the cycle although
             # the describing function finds no saturation (the knee)
             over = over | (np.asarray(st.margin).reshape(-1) > OVERDRIVE_MARGIN)
-        if net.topology.coupled:
-            # a tank of coupled coils (Hartley): every board that starts (module docstring)
+        if net.topology.coupled or net.stage.orbit_on_start:
+            # a tank of coupled coils (Hartley), an emitter follower: every board that
+            # starts (module docstring)
             over = np.asarray(st.starts).reshape(-1).copy()
         sel = np.flatnonzero(
             np.asarray(st.starts).reshape(-1)

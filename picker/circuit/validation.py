@@ -166,13 +166,23 @@ def model_answer(d: Design) -> ModelAnswer:
 def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
     """The answer of the pipeline's model for each design, as ``solve`` reports it for a
     candidate at its nominal values: :func:`picker.circuit.steady.steady_state`, and where
-    it finds the transistor saturated, the periodic orbit of the design's own netlist
+    it finds the transistor saturated (on a Hartley tank and an emitter follower, where it
+    starts), the periodic orbit of the design's own netlist
     (:func:`picker.circuit.nominal_orbit.board_orbits`: its frequency, amplitude and
     Floquet verdict; the saturated designs are shot in one batch). Where the model calls
     a design that starts bursting, the orbit (or the steady state) is one the board never
     holds: its carrier and amplitude are those of its own circuit run from rest and
-    measured as ngspice's record is (:func:`picker.circuit.burst_carrier.network_carriers`;
-    the verdict stays the model's)."""
+    measured as ngspice's record is (:func:`picker.circuit.burst_carrier.network_carriers`).
+    Where that run, measured as the record is, does not burst (it settles, or its
+    envelope wanders without gaps: "steady" or "unsettled", which ngspice's records count
+    as not bursting too), the verdict is the run's, not bursting: the orbit's
+    instability (or the collapse of the short start-up run) said only that the board
+    does not hold that orbit, not that it bursts. The common-base set's cb003 is the case: its tank-mode orbit is unstable because the collector choke's mode
+    (23.4 kHz) invades it, and the two modes lock 5:1 into a waveform that repeats at the
+    choke mode's period (ngspice: steady; the run: +0.37 %, no gaps). ``solve`` and
+    ``evaluate`` do not make the run (tens of seconds a design) and keep the orbit's
+    verdict (README, "Circuit-aware model"). A run that shows no carrier (it failed, or
+    collapsed and stays quiet: cs002 of the common-source set) is not taken."""
     nets = [Network.build(d.topo, d.values, d.stray, d.params) for d in designs]
     orbits = board_orbits(nets)
     out = []
@@ -194,7 +204,12 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
     runs = network_carriers(nets, [a.bursting for a in out], [a.f_hz for a in out])
     for k, r in enumerate(runs):
         if r is not None and math.isfinite(r.f_hz):
-            out[k] = replace(out[k], f_hz=r.f_hz, amplitude_v=r.amplitude_v)
+            out[k] = replace(
+                out[k],
+                f_hz=r.f_hz,
+                amplitude_v=r.amplitude_v,
+                bursting=r.state not in ("steady", "unsettled"),
+            )
     return out
 
 

@@ -199,6 +199,12 @@ class Stage:
         stages). A tank that returns an inner node to its common end
         (:attr:`picker.tank.base.Topology.needs_grounded_common`) is modelled only with
         a grounded common end.
+    orbit_on_start : whether every design that starts takes the periodic orbit of its
+        netlist at its nominal values (:mod:`picker.circuit.nominal_orbit`), saturated or
+        not: a stage whose control junction sits across a tank capacitor whose other end
+        is the output (the emitter follower: the device's current pulses flow straight
+        into C1 at the emitter, which is also the junction's return), where the
+        describing function's sine at the junction misses the drive.
     """
 
     name: ClassVar[str]
@@ -215,6 +221,7 @@ class Stage:
     options: ClassVar[frozenset[str]] = frozenset()
     refusals: ClassVar[Mapping[str, str]] = {}
     saturated_balance: ClassVar[bool] = True
+    orbit_on_start: ClassVar[bool] = False
     _instance: ClassVar[Stage | None] = None
 
     def __init_subclass__(cls, **kwargs: Any) -> None:

@@ -106,6 +106,7 @@ class CommonCollector(CommonEmitter):
     device = "bjt"
     default_for_device = False
     collector_load = False
+    orbit_on_start = True
     output = "c"
     top = "t"
     input = "b"

@@ -64,6 +64,10 @@ class CommonDrain(CommonSource, CommonCollector):
     has_device_law = True
     default_for_device = False
     collector_load = False
+    # the source follower keeps the fet stages' rule (an overdriven drive or a margin above
+    # OVERDRIVE_MARGIN takes the orbit): its set meets every target with it, and the orbit
+    # on every start was not measured there
+    orbit_on_start = False
     output = "c"
     top = "t"
     input = "b"
