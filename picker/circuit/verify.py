@@ -250,7 +250,10 @@ def check_boards(
     orbits = board_orbits([net])[0]
     models = [_with_orbit(_figures(st, i), orbits[i]) for i in range(len(jobs))]
     # a board the model calls bursting: its carrier and amplitude from its own circuit run
-    # from rest, as solve and evaluate report them (picker.circuit.figures.burst_readings)
+    # from rest, measured as ngspice's run is; where that run does not burst (it settles,
+    # or its envelope wanders without gaps), its envelope too, as the validation's answers
+    # take it (picker.circuit.validation.model_answers): the orbit's instability said only
+    # that the board does not hold that orbit
     burst = [m["envelope"] == "bursting" and m["f_hz"] is not None for m in models]
     if any(burst):
         idx = [i for i, b in enumerate(burst) if b]
@@ -264,6 +267,8 @@ def check_boards(
             if r is not None and math.isfinite(r.f_hz):
                 models[i] = {**models[i], "f_hz": r.f_hz, "amplitude_v": r.amplitude_v}
                 models[i]["carrier_from"] = "run from rest"
+                if r.state in ("steady", "unsettled"):
+                    models[i]["envelope"] = r.state
                 models[i]["carrier_spread"] = r.spread if math.isfinite(r.spread) else None
     return [
         BoardCheck(
