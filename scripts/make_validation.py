@@ -42,8 +42,8 @@ Step confirmation: a transient that bursts or stays unsettled is run again with 
 five times finer (:func:`picker.circuit.ngspice.simulate` with ``confirm``; the trapezoidal
 rule does not damp, and at 60 steps per period it can ring on the transistor's switching
 and make a steady oscillator burst). Where the two runs disagree (another state, or the
-carrier moved by more than 0.1 %) the finer run is the record (where it still wanders,
-"unsettled", a 25 times finer run is checked the same way), and its ``step_refined``
+carrier moved by more than 0.1 %) the finer run is the record (where it still bursts or
+wanders, a 25 times finer run is checked the same way), and its ``step_refined``
 says what the netlist's own step showed. Steady designs and those that do not start are
 not re-run.
 

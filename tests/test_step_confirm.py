@@ -64,6 +64,54 @@ def test_a_finer_run_disagrees_on_another_state_or_a_moved_carrier():
     assert not step_disagrees(_wave("none", math.nan), _wave("none", math.nan))
 
 
+def _fake_runs(monkeypatch, readings):
+    """Make :func:`simulate` see ``readings`` (factor -> (state, carrier)) instead of
+    running ngspice; returns the factors it ran, in order."""
+    import picker.circuit.ngspice as ng
+
+    ran: list[int] = []
+
+    def once(netlist, node, timeout, f_hint, tail_start, t_kick):
+        (tran,) = [line.split() for line in netlist.splitlines() if line.startswith(".tran")]
+        factor = round(1e-6 / float(tran[4]))
+        ran.append(factor)
+        state, f = readings[factor]
+        return SimulationResult(f, 1.0, 1.0, True, {}, (), node, _wave(state, f))
+
+    monkeypatch.setattr(ng, "_simulate_once", once)
+    return ran
+
+
+DECK = "t\nR1 a 0 1k\n.tran 1e-06 0.001 0 1e-06\n.end\n"
+
+
+def test_a_moved_burst_is_checked_again_at_25x(monkeypatch):
+    """A burst whose carrier moved at 5x is run once more at 25x, and the 25x run is the
+    answer where it moved again (the Hartley set's hy001: 999.6 kHz at the netlist's step,
+    1028.5 kHz at 5x, 995.1 kHz at 25x and 125x); a 25x run that agrees with 5x leaves 5x
+    standing; a burst the same at 5x is not run at 25x."""
+    ran = _fake_runs(
+        monkeypatch,
+        {1: ("bursting", 999.6e3), 5: ("bursting", 1028.5e3), 25: ("bursting", 995.1e3)},
+    )
+    sim = simulate(DECK, confirm=True)
+    assert ran == [1, 5, 25]
+    assert sim.step_refined == 25 and sim.waveform.f_hz == 995.1e3
+    assert sim.coarse is not None and sim.coarse.f_hz == 999.6e3
+    ran = _fake_runs(
+        monkeypatch,
+        {1: ("bursting", 999.6e3), 5: ("bursting", 1028.5e3), 25: ("bursting", 1028.6e3)},
+    )
+    sim = simulate(DECK, confirm=True)
+    assert ran == [1, 5, 25] and sim.step_refined == 5 and sim.waveform.f_hz == 1028.5e3
+    ran = _fake_runs(monkeypatch, {1: ("bursting", 999.6e3), 5: ("bursting", 999.7e3)})
+    sim = simulate(DECK, confirm=True)
+    assert ran == [1, 5] and sim.step_refined == 1
+    ran = _fake_runs(monkeypatch, {1: ("bursting", 999.6e3), 5: ("steady", 1000e3)})
+    sim = simulate(DECK, confirm=True)
+    assert ran == [1, 5] and sim.step_refined == 5 and sim.waveform.state == "steady"
+
+
 def _artefact():
     designs, answers = load_reference(DATA / ARTEFACT[0])
     i = [d.id for d in designs].index(ARTEFACT[1])
