@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import copy
 import tomllib
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -27,7 +28,7 @@ from picker.circuit.board_fit import point_quantities
 from picker.circuit.loaded import LoadedModel, loaded_nominal
 from picker.circuit.loaded_search import loaded_search
 from picker.circuit.steady import steady_state
-from picker.core.montecarlo import sampled_values
+from picker.core.montecarlo import STRAY, sampled_values
 from picker.core.sampling import head
 from picker.tank.base import COUPLING
 from picker.tank.board import board_frequency, board_values
@@ -145,3 +146,35 @@ def test_k_share_in_the_drivers_is_the_yield_models(demo):
     assert boards > 0.5  # k drives most of this design's spread
     assert abs(first - boards) < 0.03, (first, boards)
     assert 0.0 < c.yield_estimate < 1.0
+
+
+def test_the_stray_and_k_terms_add(demo):
+    # board_spread leaves out the cross term of the two spreads (the stray moves C_eff, k
+    # moves L_eff): at the four corners (stray ± 1 pF, k ± t) the sum of the two fitted
+    # quadratics against the large-signal model itself. Measured 3.6e-5 in ln f and 3.4e-5
+    # in ln m at most on the three designs (the k term alone reaches 1.9e-3 in ln f);
+    # the bound is the between-points tolerance of the k fit above
+    _, pb, params, designs = demo
+    s0, ts = float(pb.parasitics.stray), 1e-12
+    model = LoadedModel(pb, params, coupling_tol=T, stray_tol=ts)
+    ck = model.spread_terms(designs, COUPLING)
+    cs = model.spread_terms(designs, STRAY)
+    vals = designs.values(pb)
+
+    def logs(k, s):
+        tank, par = pb.topology.configured(k), replace(pb.parasitics, stray=s)
+        bv = board_values(tank, {p: vals[p] for p in tank.positions}, par)
+        with np.errstate(all="ignore"):
+            st = steady_state(tank, bv, s, params)
+        return np.log(st.f_hz) - np.log(board_frequency(tank, vals, par)), np.log(st.margin)
+
+    l0, m0 = logs(K0, s0)
+    for dk in (-T, T):
+        for ds in (-ts, ts):
+            l_ref, m_ref = logs(K0 + dk, s0 + ds)
+            l_fit = l0 + ck[0] * dk + ck[1] * dk * dk + cs[0] * ds + cs[1] * ds * ds
+            m_fit = m0 + ck[2] * dk + ck[3] * dk * dk + cs[2] * ds + cs[3] * ds * ds
+            assert np.all(np.abs(l_fit - l_ref) < 5e-4)
+            assert np.all(np.abs(m_fit - m_ref) < 0.01)
+            # teeth: leaving out the k terms misses by more than the bound
+            assert np.max(np.abs(l_fit - ck[0] * dk - ck[1] * dk * dk - l_ref)) > 5e-4

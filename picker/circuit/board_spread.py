@@ -14,7 +14,10 @@ quadratic in d = x − x0 per design, fitted to the large-signal model at x0 −
 (the central-difference quadratic through three points), for L = ln f_steady − ln f_ideal,
 ln m and each bursting condition of the board fit
 (:func:`picker.circuit.board_fit.point_quantities`). The two spreads add: their cross term
-is left out (the stray moves C_eff, k moves L_eff, and each is a few per cent of f at most).
+is left out (the stray moves C_eff, k moves L_eff, and each is a few per cent of f at most;
+on the Hartley demo with k = 0.3 ± 0.1 and the stray 3 ± 1 pF the sum misses the
+large-signal model at the four corners by at most 3.6e-5 in ln f and 3.4e-5 in ln m, where
+the k term alone reaches 1.9e-3: ``tests/test_loaded_coupling.py``).
 """
 
 from __future__ import annotations
