@@ -383,6 +383,12 @@ def test_every_design_bursting_or_over_max_margin_is_explained(demo, monkeypatch
     r = api.solve(spec, samples=SAMPLES)
     assert r.status == "infeasible" and r.feasible == 0
     assert any("burst or do not start in the large-signal model" in a for a in r.advice)
+    # the misses name the bursting designs, lowest margin (nearest to steady) first
+    said = [m for m in r.misses if m.failed.endswith("bursts in the large-signal model")]
+    assert said and len(said) <= 5
+    assert all("below the minimum" in m.failed for m in r.misses if m not in said)
+    margins = [float(m.failed.split()[2].rstrip(",")) for m in said]
+    assert margins == sorted(margins) and margins[0] >= spec.amplifier.min_margin
 
 
 def test_a_window_of_bursting_designs_is_not_widened(demo, monkeypatch):
@@ -413,6 +419,8 @@ def test_a_window_of_bursting_designs_is_not_widened(demo, monkeypatch):
 
     monkeypatch.setattr(ls_mod, "loaded_search", widened)
     misses, advice = explain_loaded_infeasible(spec, pb, every_one_bursts)
-    assert misses == []
+    # only the designs the search kept as unsteady are named, none by frequency
+    assert len(misses) == len(found.unsteady)
+    assert all(m.failed.endswith("in the large-signal model") for m in misses)
     assert any("burst or do not start in the large-signal model" in a for a in advice)
     assert not any("no design near the window starts" in a for a in advice)

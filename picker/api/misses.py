@@ -218,6 +218,26 @@ def explain_loaded_infeasible(
             f"{loaded.in_window:,} designs run in the window but none starts with a margin of "
             f"{need:g} (best {best:.3g}): {gain}"
         )
+    u, u_f, u_m, u_starts = (
+        loaded.unsteady,
+        loaded.unsteady_f,
+        loaded.unsteady_m,
+        loaded.unsteady_starts,
+    )
+    if u is not None and u_f is not None and u_m is not None and u_starts is not None:
+        # the window's designs that pass the small-signal start-up test but burst (or do
+        # not start) in the large-signal model, nearest to running steady (lowest margin)
+        # first
+        def unsteady(what: str) -> Callable[[float, float], str]:
+            return lambda f, m: f"start-up margin {m:.3g}, but it {what} in the large-signal model"
+
+        for r, starts in enumerate(u_starts):
+            misses += rows(
+                u.take(np.array([r])),
+                u_f[[r]],
+                u_m[[r]],
+                unsteady("bursts" if starts else "does not start"),
+            )
     if loaded.not_steady:  # the large-signal model's verdict (picker.circuit.steady)
         advice.append(
             f"{loaded.not_steady:,} designs in the window pass the small-signal start-up test "

@@ -104,7 +104,10 @@ class LoadedSearch:
     ``low_margin_f`` and ``low_margin_m``. ``f_loaded`` and ``margin`` of the
     feasible designs are the large-signal model's (steady frequency).
     ``not_steady`` counts designs the linear model passes but that do not start or
-    that burst in the large-signal model; ``over_margin`` those whose margin exceeds
+    that burst in the large-signal model, and ``unsteady`` holds up to ``keep`` of them,
+    lowest margin first (the nearest to running steady), with their linear frequency
+    ``unsteady_f``, margin ``unsteady_m`` and whether they start (``unsteady_starts``;
+    those that start burst); ``over_margin`` counts those whose margin exceeds
     ``max_margin``.
     """
 
@@ -117,6 +120,10 @@ class LoadedSearch:
     low_margin_m: np.ndarray
     not_steady: int = 0
     over_margin: int = 0
+    unsteady: Designs | None = None
+    unsteady_f: np.ndarray | None = None
+    unsteady_m: np.ndarray | None = None
+    unsteady_starts: np.ndarray | None = None
 
 
 ABOVE, INSIDE, BELOW, UNCLEAR = 1, 0, -1, 2
@@ -218,7 +225,21 @@ def _collect(
         runs = np.asarray(st.runs, dtype=bool)
         in_steady = (f_s >= f_lo) & (f_s <= f_hi)
         ok = fb & runs & in_steady & (m_s >= m_lo) & ~(m_s > m_hi)
-        parts["not_steady"] += int((~runs & (m_s >= m_lo) & inw).sum())
+        unsteady = np.flatnonzero(~runs & (m_s >= m_lo) & inw)
+        parts["not_steady"] += int(unsteady.size)
+        if unsteady.size:
+            unsteady = unsteady[np.argsort(m_s[unsteady], kind="stable")[:keep]]
+            starts = np.asarray(st.starts, dtype=bool)[unsteady]
+            parts["unsteady"].append(
+                (
+                    Designs(
+                        {p: i[unsteady] for p, i in idx.items()}, f_i[unsteady], beta[unsteady]
+                    ),
+                    f_l[unsteady],
+                    m_s[unsteady],
+                    starts,
+                )
+            )
         parts["over_margin"] += int((fb & runs & in_steady & (m_s > m_hi)).sum())
     parts["ok"].append(
         (Designs({p: i[ok] for p, i in idx.items()}, f_i[ok], beta[ok]), f_s[ok], m_s[ok])
@@ -250,6 +271,9 @@ def _finish(topology: Topology, parts: dict[str, Any], keep: int) -> LoadedSearc
     d, f, m = cat(parts["ok"])
     ld, lf, lm = cat(parts["low"])
     order = np.lexsort((np.arange(len(lm)), -lm))[:keep]
+    ud, uf, um = cat(parts["unsteady"])
+    us = np.concatenate([x[3] for x in parts["unsteady"]]) if parts["unsteady"] else uf > 0
+    u_order = np.lexsort((np.arange(len(um)), um))[:keep]
     return LoadedSearch(
         d,
         f,
@@ -260,11 +284,22 @@ def _finish(topology: Topology, parts: dict[str, Any], keep: int) -> LoadedSearc
         lm[order],
         parts["not_steady"],
         parts["over_margin"],
+        ud.take(u_order),
+        uf[u_order],
+        um[u_order],
+        us[u_order],
     )
 
 
 def _new_parts() -> dict[str, Any]:
-    return {"ok": [], "low": [], "in_window": 0, "not_steady": 0, "over_margin": 0}
+    return {
+        "ok": [],
+        "low": [],
+        "unsteady": [],
+        "in_window": 0,
+        "not_steady": 0,
+        "over_margin": 0,
+    }
 
 
 def loaded_search(
