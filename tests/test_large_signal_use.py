@@ -424,3 +424,4 @@ def test_a_window_of_bursting_designs_is_not_widened(demo, monkeypatch):
     assert all(m.failed.endswith("in the large-signal model") for m in misses)
     assert any("burst or do not start in the large-signal model" in a for a in advice)
     assert not any("no design near the window starts" in a for a in advice)
+    assert not any("denser series" in a for a in advice)  # the parts are not at fault

@@ -291,8 +291,11 @@ def explain_loaded_infeasible(
                 f"widen the frequency window to about ±{format_percent(need_w * 1.01)} "
                 "(the closest design that starts, by its loaded frequency)"
             )
+    # denser series bring more designs near the target: no help where the window's only
+    # fault is the stage (they burst or do not start in the large-signal model)
+    stage_only = loaded.not_steady and not len(loaded.low_margin)
     for pos, part in spec.parts.items():
-        if part.series:
+        if part.series and not stage_only:
             denser = series_mod.denser(part.series)
             if denser:
                 advice.append(f"use a denser series for {pos} ({denser} instead of {part.series})")
