@@ -108,6 +108,14 @@ class BurstCarrier:
     periods: int
     spread: float
 
+    @property
+    def clears_burst(self) -> bool:
+        """Whether the run, measured as ngspice's records are, does not burst: it settles,
+        or its envelope wanders without gaps ("unsettled", which the validation's
+        statistics count as not bursting for ngspice too); the model's bursting flag
+        then said only that the board does not hold its orbit."""
+        return self.state in ("steady", "unsettled")
+
 
 def _kick(circ: Circuit, period: np.ndarray) -> np.ndarray:
     """The DC point plus the netlist's start-up kick (as

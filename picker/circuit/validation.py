@@ -208,7 +208,7 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
                 out[k],
                 f_hz=r.f_hz,
                 amplitude_v=r.amplitude_v,
-                bursting=r.state not in ("steady", "unsettled"),
+                bursting=not r.clears_burst,
             )
     return out
 

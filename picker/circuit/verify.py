@@ -267,7 +267,7 @@ def check_boards(
             if r is not None and math.isfinite(r.f_hz):
                 models[i] = {**models[i], "f_hz": r.f_hz, "amplitude_v": r.amplitude_v}
                 models[i]["carrier_from"] = "run from rest"
-                if r.state in ("steady", "unsettled"):
+                if r.clears_burst:
                     models[i]["envelope"] = r.state
                 models[i]["carrier_spread"] = r.spread if math.isfinite(r.spread) else None
     return [
