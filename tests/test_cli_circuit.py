@@ -106,6 +106,7 @@ def test_simulate_table_says_window_and_verdict(spec, capsys):
     assert "window 1.2513 MHz to 1.3287 MHz:" in out
     assert "inside the window" in out and "verdict: ok" in out
     assert "envelope" in out and "steady" in out and "start-up time" in out
+    assert "bursting board's carrier" not in out  # the caution is for bursting boards only
 
 
 @pytest.mark.ngspice

@@ -26,6 +26,16 @@ from picker.cli.options import check_format, parse_assignments, spec_inputs, uni
 from picker.errors import InfeasibleError, SpecError
 from picker.files import atomic_write, check_output
 
+#: Printed where a board bursts: its carrier is what the bursts average to, and on short,
+#: irregular bursts that moves with the simulator's step and the run's length
+#: (tests/validation/README.md: the Hartley set's hy015 read 790-1114 kHz, hy016
+#: 66.6-72.7 kHz, in ngspice runs of one netlist).
+BURST_CARRIER_CAUTION = (
+    "caution: a bursting board's carrier is an average over its bursts; where they are short "
+    "and irregular it moves by several per cent with the simulator's step and the run's "
+    "length: read it as a rough figure (a board that bursts fails anyway)"
+)
+
 if TYPE_CHECKING:
     from picker.api.results import SolveResult
     from picker.api.verify import DesignCheck
@@ -279,6 +289,8 @@ def simulate(
             f"caution: the transient ({check.cycles} periods) is shorter than the predicted "
             "settling and several slow time constants; a slow burst may not show"
         )
+    if "bursting" in (wave.state, ls["envelope"]):
+        lines.append(BURST_CARRIER_CAUTION)
     if sim.coarse is not None:
         lines.append(
             f"note: at the netlist's own step ngspice showed {sim.coarse.state} "
@@ -357,6 +369,12 @@ def verify_text(checks: list[DesignCheck], seconds: float) -> str:
         for i, b in enumerate(c.boards):
             lines.append(_board_row(str(c.rank) if i == 0 else "", b))
     lines += [f"design {c.rank}: {c.verdict}" for c in checks]
+    if any(
+        "bursting" in (b.sim.waveform.state, b.model.get("envelope"))
+        for c in checks
+        for b in c.boards
+    ):
+        lines.append(BURST_CARRIER_CAUTION)
     if any(not b.resolved for c in checks for b in c.boards):
         lines.append(
             "caution: some transients are shorter than the predicted settling and several "
