@@ -57,7 +57,10 @@ frequencies, supplies, tanks, loads and quotas. ``--tank hartley`` draws Hartley
 log-uniform in 0.05–2 (L1 across the output), L_eff = L1 + L2 + 2M from the same tank
 reactance range, C from the frequency; a draw whose C exceeds a twentieth of the tap
 bypass (:data:`picker.tank.hartley.TAP_BYPASS`, so below about 100 kHz few are kept) is
-left out. Only the stages whose tank common end is grounded take a Hartley
+left out. ``--tank hartley-series`` draws the series-capacitor Hartley the same way, the
+chain's series capacitance taking the Hartley's C and split into C and C_S with C_S/C
+log-uniform in 0.05-1 (a padder smaller than C). Only the stages whose tank common end
+is grounded take a Hartley
 (common-emitter, common-source); ``--stage common-emitter,common-source`` draws each
 design's stage at random. ``--clapps N`` adds N Clapp designs of the stage after the
 quotas (:func:`clapps`), for a stage whose quota draw kept no Clapp that starts.
@@ -127,18 +130,27 @@ def _logu(rng: np.random.Generator, lo: float, hi: float) -> float:
 def _tank(
     rng: np.random.Generator, kind: str, w: float, rho_lo: float = 0.1, rho_hi: float = 2.0
 ) -> tuple[Topology, dict[str, float], float] | None:
-    """The tank's values at ω = ``w``: ``kind`` "colpitts", "clapp" or "hartley"; C1/C2
-    log-uniform in ``rho_lo``–``rho_hi`` (None where the draw is not buildable)."""
+    """The tank's values at ω = ``w``: ``kind`` "colpitts", "clapp", "hartley" or
+    "hartley-series"; C1/C2 log-uniform in ``rho_lo``–``rho_hi`` (None where the draw is
+    not buildable)."""
     x_l = _logu(rng, 30.0, 1500.0)
     l = _sig(x_l / w)
     stray = _sig(rng.uniform(1e-12, 5e-12), 2)
-    if kind == "hartley":
+    if kind in ("hartley", "hartley-series"):
         k = _sig(rng.uniform(0.3, 0.99), 2)
         q = _logu(rng, 0.05, 2.0)  # L2/L1
         l1 = _sig(l / (1 + q + 2 * k * math.sqrt(q)))
         l2 = _sig(q * l1)
-        topo = get_topology("hartley").configured(k)
+        topo = get_topology(kind).configured(k)
         c = 1.0 / (w * w * float(topo.l_eff({"L1": l1, "L2": l2}))) - stray
+        if kind == "hartley-series":
+            # the chain's series capacitance c split into C and C_S = u·C:
+            # 1/c = 1/C + 1/(u·C), so C = c·(1 + 1/u)
+            u = _logu(rng, 0.05, 1.0)
+            c_main = c * (1.0 + 1.0 / u)
+            if not (5e-12 < u * c_main and c_main <= TAP_BYPASS / 20):
+                return None
+            return topo, {"L1": l1, "L2": l2, "C": _sig(c_main), "CS": _sig(u * c_main)}, stray
         if not 5e-12 < c <= TAP_BYPASS / 20:
             return None
         return topo, {"L1": l1, "L2": l2, "C": _sig(c)}, stray
@@ -159,7 +171,7 @@ def _tank(
 def _kind(rng: np.random.Generator, tank: str) -> str:
     """The tank of one draw: a Hartley, a Clapp (``tank`` "clapp": :func:`clapps`), or a
     Colpitts (70 %) or Clapp (30 %)."""
-    if tank in ("hartley", "clapp"):
+    if tank in ("hartley", "hartley-series", "clapp"):
         return tank
     return "clapp" if rng.uniform() < 0.3 else "colpitts"
 
@@ -419,7 +431,7 @@ def select(
     tries = 0
     while len(out) < count:
         tries += 1
-        if tries > 200 * count:
+        if tries > 2000 * count:  # the series Hartley keeps about one draw in 26
             raise RuntimeError("the quotas cannot be filled; widen the ranges")
         one = stages[int(rng.integers(len(stages)))] if len(stages) > 1 else stages[0]
         d = draw(rng, len(out), prefix=prefix, stage=one, tank=tank)
@@ -562,8 +574,8 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument(
         "--tank",
         default="colpitts",
-        choices=("colpitts", "hartley"),
-        help="colpitts: Colpitts and Clapp; hartley: Hartley tanks (issue 12)",
+        choices=("colpitts", "hartley", "hartley-series"),
+        help="colpitts: Colpitts and Clapp; hartley, hartley-series: Hartley tanks (issue 12)",
     )
     ap.add_argument("--workers", type=int, default=WORKERS, help="ngspice processes at a time")
     ap.add_argument(

@@ -16,6 +16,7 @@ meet is a strict xfail naming the measured figure and its likely cause (README,
 
 from __future__ import annotations
 
+import warnings
 from functools import cache
 from pathlib import Path
 
@@ -218,3 +219,59 @@ def test_an_unsaturated_follower_takes_the_orbit_of_its_netlist():
     orbit = board_orbits([Network.build(d.topo, d.values, d.stray, d.params)])[0][0]
     assert orbit is not None and not orbit.bursting
     assert orbit.f_hz == pytest.approx(float(ngspice["f_hz"]), rel=5e-4)
+
+
+# ---------------------------------------------------------------- the series-capacitor Hartley
+
+#: 24 random series-capacitor Hartley designs, common-emitter and common-source, drawn as the
+#: Hartley set is (``--tank hartley-series``; tests/validation/README.md). The model misses
+#: this tank: its targets are strict xfails, and every such design carries a caution
+#: (picker.tank.base.Topology.model_caution).
+SERIES_HARTLEY_SET = DATA / "tank_hartley_series.json"
+
+
+@cache
+def _series_acc() -> Accuracy:
+    designs, answers = load_reference(SERIES_HARTLEY_SET)
+    with warnings.catch_warnings():
+        # the start-up pole search divides by a return ratio of zero and the bias solve by
+        # a zero determinant on the six designs it gives no frequency (NaN, a miss below)
+        warnings.simplefilter("ignore", RuntimeWarning)
+        model = model_answers(designs)
+    return accuracy([d.topology for d in designs], model, answers)
+
+
+def test_series_hartley_set_is_drawn_and_starts_right():
+    designs, answers = load_reference(SERIES_HARTLEY_SET)
+    assert len(designs) == 24 and {d.topology for d in designs} == {"hartley-series"}
+    assert {d.params.stage for d in designs} == {"common-emitter", "common-source"}
+    assert all(a["warnings"] == [] for a in answers)
+    assert _series_acc().startup_right >= 0.98
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="45.0 % within 2 % (9 of 20 oscillating), median 4.2 %: the start-up pole search "
+    "gives no frequency on hs002, hs004, hs005, hs008, hs010 and hs014 (it finds the "
+    "crossing, so the margin and start-up are right, but not the pole); hs007 runs in "
+    "ngspice at 72.1 kHz, half the model's 144 kHz, with its 2nd harmonic 0.8 dB below; "
+    "hs003 +4.5 %, and the bursters hs009 +8.8 %, hs011 -3.9 %, hs018 -5.8 %",
+)
+def test_series_hartley_frequency_within_2_percent_for_95_percent():
+    acc = _series_acc()
+    assert acc.freq_within_2pct >= 0.95 and acc.freq_median_error <= 0.003
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="bursting precision 0.83, recall 0.50 (10 bursters in ngspice): the five the "
+    "model gives no frequency (hs002, hs005, hs008, hs010, hs014) are not flagged",
+)
+def test_series_hartley_bursting_precision_and_recall_at_least_0_8():
+    acc = _series_acc()
+    assert acc.burst_precision >= 0.8 and acc.burst_recall >= 0.8
+
+
+@pytest.mark.xfail(strict=True, reason="amplitude within ±30 % for 77.8 % of 9 steady designs")
+def test_series_hartley_amplitude_within_30_percent_for_90_percent_of_steady():
+    assert _series_acc().amplitude_within_30pct >= 0.90

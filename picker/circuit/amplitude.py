@@ -176,6 +176,8 @@ def cautions(
     * The stage's own (:meth:`picker.circuit.stages.base.Stage.cautions`): e.g. a
       Colpitts tank with no blocking capacitor puts the collector's DC voltage on
       the base through L.
+    * The tank's, where its model's validation found it wanting
+      (:attr:`picker.tank.base.Topology.model_caution`).
     * A p-type device: the supply's polarity (:data:`picker.circuit.polarity.P_TYPE_CAUTION`).
     * A base stopper: what the large-signal model leaves out
       (:data:`picker.circuit.stages.stopper.STOPPER_CAUTION`).
@@ -184,6 +186,8 @@ def cautions(
       electrolytic; common practice, no source), in the AC tank path.
     """
     out = stage_of(params).cautions(topology, params)
+    if topology.model_caution:  # the tank's (picker.tank.base.Topology.model_caution)
+        out.append(topology.model_caution)
     if params.p_type:  # every stage's (picker.circuit.polarity)
         out.append(P_TYPE_CAUTION)
     if params.r_stopper is not None:  # every stage's (picker.circuit.stages.stopper)

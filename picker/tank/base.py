@@ -107,6 +107,10 @@ class Topology:
     #: Whether the tank has two magnetically coupled inductors (the spec's
     #: ``[tank] coupling`` applies; :meth:`configured`).
     coupled: ClassVar[bool] = False
+    #: What the circuit model's validation found wanting on this tank, printed with every
+    #: design that has an amplifier (:func:`picker.circuit.amplitude.cautions`); None where
+    #: nothing is known to be wrong.
+    model_caution: ClassVar[str | None] = None
     #: Whether the tank returns an inner node to its common end (the Hartley coil's tap
     #: through its bypass): modelled only with a stage whose common end is at AC ground
     #: (:attr:`picker.circuit.stages.base.Stage.grounded_common`; the spec refuses the

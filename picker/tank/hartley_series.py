@@ -44,6 +44,11 @@ class SeriesHartley(Hartley):
     positions: ClassVar[tuple[str, ...]] = ("L1", "L2", "C", "CS")
     capacitors: ClassVar[tuple[str, ...]] = ("C", "CS")
     typical = {"L1": 10e-6, "L2": 4.7e-6, "C": 10e-9, "CS": 1.1e-9}
+    model_caution = (
+        "the series-capacitor Hartley's large-signal model misses ngspice on many boards "
+        "(24 random designs: 45 % within 2 % in frequency, some running at about half the "
+        "model's frequency with a strong 2nd harmonic); check the design with --verify"
+    )
 
     def _bridge(
         self, s: Any, values: Mapping[str, Any], stray: Any, esr: Mapping[str, float]
