@@ -251,9 +251,10 @@ def test_series_hartley_set_is_drawn_and_starts_right():
 
 @pytest.mark.xfail(
     strict=True,
-    reason="45.0 % within 2 % (9 of 20 oscillating), median 4.2 %: the start-up pole search "
-    "gives no frequency on hs002, hs004, hs005, hs008, hs010 and hs014 (it finds the "
-    "crossing, so the margin and start-up are right, but not the pole); hs007 runs in "
+    reason="45.0 % within 2 % (9 of 20 oscillating), median 4.2 %: on hs002, hs004, hs005, "
+    "hs008, hs010 and hs014 the start-up pole pair, followed from its crossing to the "
+    "actual gm, meets the real axis (a relaxation: no frequency; the margin and start-up, "
+    "from the crossing, are right); hs007 runs in "
     "ngspice at 72.1 kHz, half the model's 144 kHz, with its 2nd harmonic 0.8 dB below; "
     "hs003 +4.5 %, and the bursters hs009 +8.8 %, hs011 -3.9 %, hs018 -5.8 %",
 )
