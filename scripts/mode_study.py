@@ -384,7 +384,7 @@ def table(records: list[dict[str, Any]], seed: int = SEED) -> str:
         "# Mode study: which mode runs where two modes grow",
         "",
         "Made by `scripts/mode_study.py` (seed "
-        f"{seed}; regenerate with `python scripts/mode_study.py`, about 10 minutes of ngspice "
+        f"{seed}; regenerate with `python scripts/mode_study.py`, about 6 minutes of ngspice "
         "for the main set; the holdout: `--seed 20261204 --per-stage 15 --stages "
         "common-base,common-gate --out tests/validation/mode_study_holdout.json`; the table "
         "alone from the JSON with `--table` and the same `--out`). Designs drawn as "
