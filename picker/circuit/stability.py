@@ -59,7 +59,11 @@ amplitude compresses the gain, the other modes no longer grow (M1). So
 current held by R_E compresses a second mode less (the mean of the incremental
 transconductance i_C(t)/V_T stays I_C/V_T, derived here), and two modes may then run
 together (ngspice shows both on the common-base Clapp cb003 of tests/validation/; the
-fastest-growing one is the tank's, as (M2) says). The margin keeps its
+fastest-growing one is the tank's, as (M2) says; the record reads the choke's). A study of
+91 random designs with two growing modes run in ngspice (tests/validation/mode_study*.md,
+scripts/mode_study.py) found (M2) right on 67 and "the largest margin wins" on 65
+(bipolar 40 and 40 of 55, fet 27 and 25 of 36; common-base 20 and 20 of 35): neither
+rule is the better, and (M2) is kept. The margin keeps its
 meaning (the gm factor at which the last pole pair leaves the right half-plane); the
 start-up pole and its crossing are those of the mode (M2) picks.
 
