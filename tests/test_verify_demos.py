@@ -109,6 +109,10 @@ def test_demo_top_picks_run_steady_at_the_predicted_frequency(stem: str) -> None
         elif label.endswith("nominal") and not b.in_window:
             bad.append(row + " (outside the window)")
     for c, b in zip(picks, checks[::3], strict=True):
-        # the table's prediction (the golden's f_loaded_hz) is the model's nominal answer
-        assert b.model["f_hz"] == pytest.approx(c["f_loaded_hz"], rel=1e-6)
+        # the table's prediction (the golden's f_loaded_hz) is the model's nominal answer,
+        # except where the board's orbit did not converge and --verify shows its run from
+        # rest instead (picker.circuit.burst_carrier.run_hint; solve does not make the run):
+        # there the two readings of one circuit agree within the carrier tolerance
+        tol = F_TOL if b.model.get("carrier_from") == "run from rest" else 1e-6
+        assert b.model["f_hz"] == pytest.approx(c["f_loaded_hz"], rel=tol)
     assert not bad, "\n".join(bad)

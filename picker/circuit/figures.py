@@ -24,7 +24,6 @@ from picker.circuit.amplitude import (
 from picker.circuit.loaded import LoadedModel
 from picker.circuit.nominal_orbit import NominalOrbit
 from picker.circuit.oscillation import loaded_response
-from picker.circuit.stability import startup
 from picker.circuit.steady import SteadyState, steady_state
 from picker.core.montecarlo import ROWS, Simulation, drift_factors, sampled_values, values_at
 from picker.core.sampling import Rows, row_chunks
@@ -196,9 +195,7 @@ def nominal_figures(
     burst = bursting_caution(ls, params)
     if burst:
         notes.append(burst)
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        pairs = int(startup(topology, board, st_, params)[1].pairs[0])
-    if pairs >= 2:
+    if int(ls.pairs[0]) >= 2:
         notes.append(MODES_CAUTION)
     if bool(amp.overdriven[0]):
         notes.append(

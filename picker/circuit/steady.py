@@ -89,6 +89,11 @@ class SteadyState:
         (:func:`picker.circuit.envelope.hurwitz_conditions`), all positive exactly where
         the board out of saturation runs steady; smooth in the part values, unlike
         ``envelope_rate``; shape ``values.shape + (HURWITZ,)``, NaN where unknown.
+    pairs:
+        int: the pole pairs of the linearised loop in the right half-plane at the
+        actual gm (:func:`picker.circuit.stability.startup_chunk`); two or more: two
+        modes grow at start-up, and which one the board keeps is less certain
+        (:data:`picker.circuit.figures.MODES_CAUTION`).
     """
 
     starts: np.ndarray
@@ -104,6 +109,7 @@ class SteadyState:
     dissipation_w: np.ndarray
     envelope_rate: np.ndarray
     envelope_hurwitz: np.ndarray
+    pairs: np.ndarray
 
     @property
     def runs(self) -> np.ndarray:
@@ -148,6 +154,7 @@ def steady_state(
         "dissipation_w": np.full(n, np.nan),
         "envelope_rate": np.full(n, np.nan),
         "envelope_hurwitz": np.full((n, HURWITZ), np.nan),
+        "pairs": np.zeros(n, dtype=np.int64),
     }
     for a in range(0, n, CHUNK):
         _chunk(net, np.arange(a, min(a + CHUNK, n)), out)
@@ -162,6 +169,7 @@ def _chunk(net: Network, idx: np.ndarray, out: dict[str, np.ndarray]) -> None:
     st = startup_chunk(net, idx)
     out["starts"][idx] = st.starts
     out["margin"][idx] = st.margin
+    out["pairs"][idx] = st.pairs
     out["f_start_hz"][idx] = np.where(st.starts, st.pole.imag / TWO_PI, np.nan)
     stage, params, ss = net.stage, net.params, net.ss
     loop = stage.bias_loop(params, ss)

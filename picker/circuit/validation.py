@@ -31,7 +31,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.burst_carrier import network_carriers
+from picker.circuit.burst_carrier import network_carriers, run_bursts, run_hint
 from picker.circuit.fet import FetCard
 from picker.circuit.netlist import transient_plan, write_netlist
 from picker.circuit.network import Network
@@ -182,7 +182,12 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
     choke mode's period (ngspice: steady; the run: +0.37 %, no gaps). ``solve`` and
     ``evaluate`` do not make the run (tens of seconds a design) and keep the orbit's
     verdict (README, "Circuit-aware model"). A run that shows no carrier (it failed, or
-    collapsed and stays quiet: cs002 of the common-source set) is not taken."""
+    collapsed and stays quiet: cs002 of the common-source set) is not taken. A design that
+    starts but has no steady solution (its start-up pole pair meets the real axis: a
+    relaxation, six designs of the series-capacitor Hartley set) gets the same run, scaled
+    by the tank's ideal frequency, and its state is the run's; so does a design whose
+    orbit shooting did not converge (its figures would be the describing function's),
+    keeping the start-up run's verdict (:func:`picker.circuit.burst_carrier.run_hint`)."""
     nets = [Network.build(d.topo, d.values, d.stray, d.params) for d in designs]
     orbits = board_orbits(nets)
     out = []
@@ -201,14 +206,19 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
                 margin=float(np.asarray(st.margin)),
             )
         )
-    runs = network_carriers(nets, [a.bursting for a in out], [a.f_hz for a in out])
+    converged = [orb[0] is None or orb[0].converged for orb in orbits]
+    hints = [
+        run_hint(a.starts, a.bursting, a.f_hz, a.f_ideal_hz, converged=c)
+        for a, c in zip(out, converged, strict=True)
+    ]
+    runs = network_carriers(nets, [h is not None for h in hints], [h or 0.0 for h in hints])
     for k, r in enumerate(runs):
         if r is not None and math.isfinite(r.f_hz):
             out[k] = replace(
                 out[k],
                 f_hz=r.f_hz,
                 amplitude_v=r.amplitude_v,
-                bursting=not r.clears_burst,
+                bursting=run_bursts(out[k].bursting, not math.isfinite(out[k].f_hz), r),
             )
     return out
 

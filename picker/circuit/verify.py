@@ -31,7 +31,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.burst_carrier import network_carriers
+from picker.circuit.burst_carrier import network_carriers, run_bursts, run_hint
 from picker.circuit.netlist import TransientPlan, verify_plan, write_netlist
 from picker.circuit.network import Network
 from picker.circuit.ngspice import SimulationResult, simulate, step_note
@@ -254,20 +254,33 @@ def check_boards(
     # or its envelope wanders without gaps), its envelope too, as the validation's answers
     # take it (picker.circuit.validation.model_answers): the orbit's instability said only
     # that the board does not hold that orbit
-    burst = [m["envelope"] == "bursting" and m["f_hz"] is not None for m in models]
-    if any(burst):
-        idx = [i for i, b in enumerate(burst) if b]
+    # a board that starts but has no steady solution (a relaxation) or whose orbit did not
+    # converge gets the same run (run_hint); the envelope as run_bursts reads it
+    hints = [
+        run_hint(
+            bool(m["starts"]),
+            m["envelope"] == "bursting",
+            math.nan if m["f_hz"] is None else float(m["f_hz"]),
+            float(topology.frequency(v, stray)),
+            converged=o is None or o.converged,
+        )
+        for m, v, o in zip(models, vals, orbits, strict=True)
+    ]
+    if any(h is not None for h in hints):
+        idx = [i for i, h in enumerate(hints) if h is not None]
         sub = {p: arr[p][idx] for p in topology.positions}
         one = [
             Network.build(topology, {p: sub[p][[k]] for p in sub}, stray, params)
             for k in range(len(idx))
         ]
-        runs = network_carriers(one, [True] * len(idx), [float(models[i]["f_hz"]) for i in idx])
+        runs = network_carriers(one, [True] * len(idx), [float(hints[i] or 0.0) for i in idx])
         for i, r in zip(idx, runs, strict=True):
             if r is not None and math.isfinite(r.f_hz):
+                relaxes = models[i]["f_hz"] is None
+                was = models[i]["envelope"] == "bursting"
                 models[i] = {**models[i], "f_hz": r.f_hz, "amplitude_v": r.amplitude_v}
                 models[i]["carrier_from"] = "run from rest"
-                if r.clears_burst:
+                if run_bursts(was, relaxes, r) != was or relaxes:
                     models[i]["envelope"] = r.state
                 models[i]["carrier_spread"] = r.spread if math.isfinite(r.spread) else None
     return [
