@@ -264,7 +264,7 @@ def test_series_hartley_set_is_drawn_and_starts_right():
     reason="65.0 % within 2 % (13 of 20 oscillating), median 1.5 %: hs007 runs in ngspice at "
     "72.2 kHz, half the model's 144.9 kHz, with its 2nd harmonic 0.8 dB below (the run from "
     "rest reads either line); hs004, steady in ngspice, relaxes in the model (no steady "
-    "solution; its run from rest, -4.3 %, wanders); and the bursters hs002 +4.5 %, hs008 "
+    "solution; its run from rest, -4.3 %, wanders: 104-123 kHz with its step); and the bursters hs002 +4.5 %, hs008 "
     "-10.5 %, hs009 +8.8 %, hs011 -3.9 %, hs018 -5.8 % (a burst's carrier is a statistic "
     "of the record, not a converged figure)",
 )
