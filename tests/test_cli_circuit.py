@@ -107,6 +107,7 @@ def test_simulate_table_says_window_and_verdict(spec, capsys):
     assert "inside the window" in out and "verdict: ok" in out
     assert "envelope" in out and "steady" in out and "start-up time" in out
     assert "bursting board's carrier" not in out  # the caution is for bursting boards only
+    assert "run from rest" not in out  # a steady board's model column is its steady solution
 
 
 @pytest.mark.ngspice

@@ -68,6 +68,8 @@ def test_a_board_called_bursting_takes_its_run_from_rest(monkeypatch, run_state)
     # and run length, tests/validation/README.md), and only there
     text = verify_text([DesignCheck(1, [check])], 1.0)
     assert (BURST_CARRIER_CAUTION in text) == (run_state == "bursting")
+    # and says where the model's column comes from, naming the board
+    assert "come from the board's own circuit run from rest" in text and "1 nominal" in text
 
 
 def test_run_hint_picks_bursting_and_relaxing_designs():

@@ -35,6 +35,13 @@ BURST_CARRIER_CAUTION = (
     "and irregular it moves by several per cent with the simulator's step and the run's "
     "length: read it as a rough figure (a board that bursts fails anyway)"
 )
+#: The note beside a model column read from the board's own circuit run from rest
+#: (picker.circuit.burst_carrier.run_hint) rather than from its steady solution.
+RUN_FROM_REST_NOTE = (
+    "note: the model's carrier and amplitude{which} come from the board's own circuit run "
+    "from rest (the steady solution bursts there, does not exist, or its orbit did not "
+    "converge), measured as ngspice's run is"
+)
 
 if TYPE_CHECKING:
     from picker.api.results import SolveResult
@@ -291,6 +298,8 @@ def simulate(
         )
     if "bursting" in (wave.state, ls["envelope"]):
         lines.append(BURST_CARRIER_CAUTION)
+    if ls.get("carrier_from") == "run from rest":
+        lines.append(RUN_FROM_REST_NOTE.format(which=""))
     if sim.coarse is not None:
         lines.append(
             f"note: at the netlist's own step ngspice showed {sim.coarse.state} "
@@ -380,6 +389,14 @@ def verify_text(checks: list[DesignCheck], seconds: float) -> str:
             "caution: some transients are shorter than the predicted settling and several "
             "slow time constants; a slow burst may not show"
         )
+    ran = [
+        f"{c.rank} {b.label}"
+        for c in checks
+        for b in c.boards
+        if b.model.get("carrier_from") == "run from rest"
+    ]
+    if ran:
+        lines.append(RUN_FROM_REST_NOTE.format(which=" of " + ", ".join(ran)))
     refined = [
         f"{c.rank} {b.label} ({b.sim.coarse.state} at the netlist's step)"
         for c in checks
