@@ -249,13 +249,12 @@ def check_boards(
     net = Network.build(topology, arr, stray, params)
     orbits = board_orbits([net])[0]
     models = [_with_orbit(_figures(st, i), orbits[i]) for i in range(len(jobs))]
-    # a board the model calls bursting: its carrier and amplitude from its own circuit run
-    # from rest, measured as ngspice's run is; where that run does not burst (it settles,
-    # or its envelope wanders without gaps), its envelope too, as the validation's answers
-    # take it (picker.circuit.validation.model_answers): the orbit's instability said only
-    # that the board does not hold that orbit
-    # a board that starts but has no steady solution (a relaxation) or whose orbit did not
-    # converge gets the same run (run_hint); the envelope as run_bursts reads it
+    # a board the model calls bursting, one that starts with no steady solution (a
+    # relaxation) and one whose orbit did not converge (run_hint): its carrier and amplitude
+    # from its own circuit run from rest, measured as ngspice's run is, as the validation's
+    # answers take them (picker.circuit.validation.model_answers); its envelope is the
+    # run's where the verdict changes (run_bursts: the orbit's instability said only that
+    # the board does not hold that orbit) and, for a relaxation, always
     hints = [
         run_hint(
             bool(m["starts"]),
@@ -280,7 +279,7 @@ def check_boards(
                 was = models[i]["envelope"] == "bursting"
                 models[i] = {**models[i], "f_hz": r.f_hz, "amplitude_v": r.amplitude_v}
                 models[i]["carrier_from"] = "run from rest"
-                if run_bursts(was, relaxes, r) != was or relaxes:
+                if relaxes or run_bursts(was, relaxes, r) != was:
                     models[i]["envelope"] = r.state
                 models[i]["carrier_spread"] = r.spread if math.isfinite(r.spread) else None
     return [
