@@ -59,10 +59,13 @@ reactance range, C from the frequency; a draw whose C exceeds a twentieth of the
 bypass (:data:`picker.tank.hartley.TAP_BYPASS`, so below about 100 kHz few are kept) is
 left out. ``--tank hartley-series`` draws the series-capacitor Hartley the same way, the
 chain's series capacitance taking the Hartley's C and split into C and C_S with C_S/C
-log-uniform in 0.05-1 (a padder smaller than C). Only the stages whose tank common end
-is grounded take a Hartley
-(common-emitter, common-source); ``--stage common-emitter,common-source`` draws each
-design's stage at random. ``--clapps N`` adds N Clapp designs of the stage after the
+log-uniform in 0.05-1 (a padder smaller than C). L2/L1 plays C1/C2's part: its range
+is half the stage's lower C1/C2 bound to its upper one (0.05-2 for the common-emitter and
+common-source stages; 0.005-2 for the emitter follower, whose gain gm·R_E is large).
+``--stage common-emitter,common-source`` draws each design's stage at random;
+``--balanced`` keeps at most an equal share of the designs for each stage (the
+emitter-tapped Hartley set: common-collector, common-drain, common-base, common-gate, six
+each). ``--clapps N`` adds N Clapp designs of the stage after the
 quotas (:func:`clapps`), for a stage whose quota draw kept no Clapp that starts.
 """
 
@@ -138,7 +141,7 @@ def _tank(
     stray = _sig(rng.uniform(1e-12, 5e-12), 2)
     if kind in ("hartley", "hartley-series"):
         k = _sig(rng.uniform(0.3, 0.99), 2)
-        q = _logu(rng, 0.05, 2.0)  # L2/L1
+        q = _logu(rng, rho_lo / 2, rho_hi)  # L2/L1, beta's analogue: 0.05-2 by default
         l1 = _sig(l / (1 + q + 2 * k * math.sqrt(q)))
         l2 = _sig(q * l1)
         topo = get_topology(kind).configured(k)
@@ -179,6 +182,11 @@ def _kind(rng: np.random.Generator, tank: str) -> str:
 def _c_ref(values: dict[str, float]) -> float:
     """The capacitor the coupling capacitor is scaled to: C1, or a Hartley's C."""
     return values["C1"] if "C1" in values else values["C"]
+
+
+def _c_base_ref(values: dict[str, float]) -> float:
+    """The capacitor a base (gate) bypass is scaled to: C2, or a Hartley's C."""
+    return values["C2"] if "C2" in values else values["C"]
 
 
 def _design(
@@ -246,7 +254,7 @@ def draw(
     if not bypass or stage != "common-emitter":
         c_e = None
     if stage == "common-base":
-        load["c_base"] = _sig(values["C2"] * _logu(rng, 20.0, 200.0))
+        load["c_base"] = _sig(_c_base_ref(values) * _logu(rng, 20.0, 200.0))
     params = AmplifierParams(
         stage=stage,
         vcc=vcc,
@@ -338,7 +346,7 @@ def draw_fet(
     if stage != "common-source":
         c_e = None
     if stage == "common-gate" and gate["r_b1"] is not None:
-        load["c_base"] = _sig(values["C2"] * _logu(rng, 20.0, 200.0))
+        load["c_base"] = _sig(_c_base_ref(values) * _logu(rng, 20.0, 200.0))
     params = AmplifierParams(
         kind="fet",
         stage=stage,
@@ -418,11 +426,16 @@ def select(
     prefix: str = "d",
     stage: str = "common-emitter",
     tank: str = "colpitts",
+    balanced: bool = False,
 ) -> list[Design]:
     """``count`` seeded draws of ``stage`` (a comma-separated list: each draw picks one
     of them at random) in ``tank`` ("colpitts": Colpitts and Clapp; "hartley"), kept by
-    quota on the linear model's start-up margin."""
+    quota on the linear model's start-up margin; ``balanced`` keeps at most
+    ceil(count / number of stages) designs of each stage (a stage whose draws the plan
+    or the quotas rarely keep still gets its share)."""
     stages = stage.split(",")
+    share = math.ceil(count / len(stages)) if balanced else count
+    per_stage = dict.fromkeys(stages, 0)
     rng = np.random.default_rng(seed)
     want = [round(share * count) for *_, share in QUOTAS]
     want[-1] += count - sum(want)
@@ -441,10 +454,13 @@ def select(
             or settling_cycles(d) > LONGEST
         ):
             continue
+        if per_stage[one] >= share:
+            continue
         m = float(loaded_response(d.topo, d.values, d.stray, d.params).margin)
         for k, (lo, hi, _) in enumerate(QUOTAS):
             if lo <= m < hi and have[k] < want[k]:
                 have[k] += 1
+                per_stage[one] += 1
                 out.append(d)
                 break
     return out
@@ -472,11 +488,12 @@ def make(
     workers: int = WORKERS,
     tank: str = "colpitts",
     extra_clapps: int = 0,
+    balanced: bool = False,
 ) -> None:
     """Draw ``count`` designs of ``stage`` by quota, ``extra`` unbypassed ones (the
     common-emitter stage's) and ``extra_clapps`` Clapps (:func:`clapps`) from ``seed``,
     run them in ngspice and write ``path``."""
-    designs = select(seed, count, prefix, stage, tank)
+    designs = select(seed, count, prefix, stage, tank, balanced)
     if extra:
         designs += unbypassed(seed + 1, extra, count, prefix)
     if extra_clapps:
@@ -584,6 +601,11 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument(
         "--clapps", type=int, default=0, help="Clapp designs added after the quotas (issue 12)"
     )
+    ap.add_argument(
+        "--balanced",
+        action="store_true",
+        help="with several stages, at most an equal share of the designs for each",
+    )
     args = ap.parse_args(argv)
     if args.stats:
         stats(args.out)
@@ -603,6 +625,7 @@ def main(argv: list[str] | None = None) -> int:
         args.workers,
         args.tank,
         args.clapps,
+        args.balanced,
     )
     return 0
 

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 import re
+import warnings
 from collections import Counter
 
 import numpy as np
@@ -49,13 +50,11 @@ from picker.tank.colpitts import COLPITTS
 
 EVERY_STAGE = [pytest.param(s, id=s.name) for s in STAGES.values()]
 EVERY_TOPOLOGY = [pytest.param(t, id=t.name) for t in TOPOLOGIES.values()]
-# Every (stage, tank) pair the spec accepts: a tank that returns an inner node to its
-# common end (the Hartley tap) only with a stage whose common end is at AC ground.
+# Every (stage, tank) pair: the spec accepts each.
 MODELLED_PAIRS = [
     pytest.param(s, t, id=f"{t.name}-{s.name}")
     for t in TOPOLOGIES.values()
     for s in STAGES.values()
-    if s.grounded_common or not t.needs_grounded_common
 ]
 TWO_PI = 2 * math.pi
 
@@ -155,6 +154,32 @@ def _nodes(netlist: str) -> Counter[str]:
     return count
 
 
+def _steady(topology, values, params):
+    with warnings.catch_warnings():
+        # the start-up pole search divides by a return ratio of zero where the pole pair
+        # meets the real axis
+        warnings.simplefilter("ignore", RuntimeWarning)
+        return steady_state(topology, values, 3e-12, params)
+
+
+def _tank_for(stage, topology, params) -> dict[str, float]:
+    """The topology's typical tank (about 1.3 MHz); a coupled tank's with the coil's input
+    section cut (L2 × q, L1 = L_eff − L2 at the typical tank's k = 0, so f stays) to the
+    first q of 1, 0.5, 0.3, 0.2, 0.1 where the linear start-up margin is at most 5: the
+    emitter follower's gain gm·R_E is some hundred, and on the typical Hartley tank
+    (margin 29) it squegs in ngspice, its bursts' envelope relaxing at about 4 kHz."""
+    values = dict(topology.typical)
+    if not topology.coupled:
+        return values
+    out, inp = topology.feedback_pair
+    total = values[out] + values[inp]
+    for q in (1.0, 0.5, 0.3, 0.2, 0.1):
+        trial = {**values, inp: values[inp] * q, out: total - values[inp] * q}
+        if float(loaded_response(topology, trial, 3e-12, params).margin) <= 5:
+            return trial
+    raise AssertionError(f"{stage.name} on {topology.name}: no q brings the margin to 5")
+
+
 @pytest.mark.ngspice
 @pytest.mark.parametrize(("stage", "topology"), MODELLED_PAIRS)
 def test_typical_netlist_runs_in_ngspice_with_no_floating_node(stage, topology):
@@ -162,18 +187,30 @@ def test_typical_netlist_runs_in_ngspice_with_no_floating_node(stage, topology):
         ngspice_path()
     except SolverError as exc:
         pytest.fail(f"{exc} (these tests do not skip; CI installs ngspice)")
-    values = dict(topology.typical)  # about 1.3 MHz, the typical designs' tank
     params = stage.typical_params()
+    values = _tank_for(stage, topology, params)
     text = write_netlist(topology, values, 3e-12, params, title=f"{stage.name} {topology.name}")
     dangling = [node for node, k in _nodes(text).items() if k < 2 and node != "0"]
     assert dangling == []  # every node joins at least two elements
     sim = simulate(text)
     assert sim.warnings == ()  # ngspice: no floating node, DC path, singular matrix
     assert sim.oscillating
-    model = loaded_response(topology, values, 3e-12, params)
-    # ngspice transient (≥ 60 steps per period, frequency from ~90 periods) against the
-    # loaded model; 2 % as in tests/test_ngspice.py
-    assert abs(sim.frequency_hz / float(model.f_hz) - 1) < 0.02
+    if not topology.coupled:
+        model = float(loaded_response(topology, values, 3e-12, params).f_hz)
+        # ngspice transient (≥ 60 steps per period, frequency from ~90 periods) against the
+        # loaded model; 2 % as in tests/test_ngspice.py
+        assert abs(sim.frequency_hz / model - 1) < 0.02
+        return
+    # a Hartley: the large-signal model (the describing function), as its coils pass the
+    # device's harmonics to the control terminal and move the carrier off the start-up
+    # pole (the common-gate stage on the typical tank, margin 3.7: 2.7 % below it). Its
+    # bursting verdict must be ngspice's (bursting or wandering), and the carrier within
+    # 2 % of its frequency (measured: within 1.8 % on every pair; most of these typical
+    # Hartleys burst in ngspice, and the model says so)
+    st = _steady(topology, values, params)
+    assert bool(st.starts)
+    assert bool(st.bursting) == (sim.waveform.state in ("bursting", "unsettled"))
+    assert abs(sim.frequency_hz / float(st.f_hz) - 1) < 0.02
 
 
 # The bias-network options each stage models (Stage.options), by their typical designs

@@ -42,10 +42,19 @@ SETS = {
     "common-drain": DATA / "stage_common_drain.json",
     "common-gate": DATA / "stage_common_gate.json",
     "hartley": DATA / "tank_hartley.json",
+    "hartley-tapped": DATA / "tank_hartley_tapped.json",
 }
 #: The stages and tanks each set draws (a stage's set: that stage, Colpitts and Clapp).
-STAGES = {"hartley": {"common-emitter", "common-source"}}
-TANKS = {"hartley": {"hartley"}}
+STAGES = {
+    "hartley": {"common-emitter", "common-source"},
+    "hartley-tapped": {"common-collector", "common-drain", "common-base", "common-gate"},
+}
+TANKS = {"hartley": {"hartley"}, "hartley-tapped": {"hartley"}}
+#: The fewest steady records a set holds: ten, but the emitter-tapped Hartley set (24
+#: designs of the four stages whose emitter or source sits on the coil's tap, six each,
+#: drawn by quota on the start-up margin as the others) bursts in ngspice on 12 of its 20
+#: oscillating designs and runs steady on 8.
+STEADY_LEAST = {"hartley-tapped": 8}
 #: The fet and Hartley sets were redrawn after the transient plan began to count a lone
 #: gate resistor's time constant (a self-biased JFET's gate network): the records made
 #: before it could end before the gate had settled. The figures below are on the redrawn
@@ -70,6 +79,12 @@ FET_FREQUENCY = {
     "set's d100 by 2-4 % again, so the records stay at the plan's length "
     "(tests/validation/README.md)",
 }
+FET_FREQUENCY["hartley-tapped"] = (
+    "80.0 % (16 of 20): the four misses burst in ngspice, three emitter followers (ht007 "
+    "+3.5 %, ht009 +7.6 %, ht011 +2.3 %) and a common-base design (ht014 -18.2 %), their "
+    "carriers the model's run from rest (picker.circuit.burst_carrier); every steady design "
+    "is within 1.1 % (ht004 +1.08 %), the median 0.28 %"
+)
 AMPLITUDE: dict[str, str] = {}
 #: met on the common-base set since a design the model flags takes the verdict of its own
 #: circuit run from rest where that run does not burst (picker.circuit.validation.
@@ -126,14 +141,14 @@ def test_set_holds_twenty_designs_of_its_stage_in_its_tanks(name):
     assert {d.topology for d in designs} == TANKS.get(name, {"colpitts", "clapp"})
     assert all(a["warnings"] == [] for a in answers)  # no floating node, no step failure
     states = [a["state"] for a in answers]
-    assert states.count("none") >= 2 and states.count("steady") >= 10
+    assert states.count("none") >= 2 and states.count("steady") >= STEADY_LEAST.get(name, 10)
     fets = [d.params.fet for d in designs if d.params.kind == "fet"]
     if fets:  # both fet kinds, each with its own card
         assert {f.kind for f in fets if f is not None} == {"njf", "nmos"}
         assert len({(f.vto, f.k) for f in fets if f is not None}) == len(fets)
 
 
-@pytest.mark.parametrize("name", ["common-source", "hartley"])
+@pytest.mark.parametrize("name", ["common-source", "hartley", "hartley-tapped"])
 def test_fet_cards_and_coupling_survive_the_file(name):
     """A design read back from its file writes the netlist ngspice ran: the fet's own
     ``.model`` card (its VTO as drawn) and a Hartley's K line with its k."""
@@ -181,7 +196,7 @@ def test_amplitude_within_30_percent_for_90_percent_of_steady(name):
 #: each (cc013, cb011), the trapezoidal rule's: at a 5x finer step, and with Gear, both run
 #: steady (tests/validation/README.md, tests/test_step_confirm.py), so they are checked for
 #: no bursting.
-BURSTERS = ["common-source", "hartley"]
+BURSTERS = ["common-source", "hartley", "hartley-tapped"]
 
 
 @pytest.mark.parametrize(

@@ -618,17 +618,6 @@ class Spec(_Strict):
                 "tank.coupling_tolerance",
                 f"expected k ± tolerance within 0 to {MAX_COUPLING}; got {k:g} ± {t:g}",
             )
-        if self.amplifier is not None and topo.needs_grounded_common:
-            # the stage registry (its modules import scipy.special): only with an [amplifier]
-            from picker.circuit.stages import STAGES
-
-            if not STAGES[self.amplifier.stage].grounded_common:
-                fit = ", ".join(n for n, s in STAGES.items() if s.grounded_common)
-                raise KeyedError(
-                    "amplifier.stage",
-                    f"a {self.topology} tank is modelled only with a stage whose tank "
-                    f"common end is at AC ground ({fit}); got {self.amplifier.stage!r}",
-                )
         for name in ("c1_shunt", "c2_shunt"):
             if getattr(self.parasitics, name) and name not in topo.shunt_targets():
                 raise KeyedError(

@@ -111,11 +111,6 @@ class Topology:
     #: design that has an amplifier (:func:`picker.circuit.amplitude.cautions`); None where
     #: nothing is known to be wrong.
     model_caution: ClassVar[str | None] = None
-    #: Whether the tank returns an inner node to its common end (the Hartley coil's tap
-    #: through its bypass): modelled only with a stage whose common end is at AC ground
-    #: (:attr:`picker.circuit.stages.base.Stage.grounded_common`; the spec refuses the
-    #: other stages).
-    needs_grounded_common: ClassVar[bool] = False
     #: Coupling coefficient k of the inductors (0 for a tank with one inductor).
     coupling: float = 0.0
     #: A typical tank of about 1.3 MHz, position -> value (SI; invented values, not a

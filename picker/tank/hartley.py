@@ -106,7 +106,6 @@ class Hartley(Topology):
     inductor: ClassVar[str] = "L1"
     feedback_pair: ClassVar[tuple[str, str]] = ("L1", "L2")
     coupled = True
-    needs_grounded_common = True
     typical = {"L1": 10e-6, "L2": 4.7e-6, "C": 1e-9}
     _variants: ClassVar[dict[float, Topology]] = {}
 

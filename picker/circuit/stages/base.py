@@ -196,9 +196,9 @@ class Stage:
     grounded_common : whether the tank's common end (the stage's ``common`` node) is at
         AC ground (common-emitter, common-source); False where it is the emitter
         (source) that taps the tank (the followers, the common-base and common-gate
-        stages). A tank that returns an inner node to its common end
-        (:attr:`picker.tank.base.Topology.needs_grounded_common`) is modelled only with
-        a grounded common end.
+        stages). A Hartley coil's tap returns to the common end through its bypass
+        (:data:`picker.tank.hartley.TAP_BYPASS`): to ground here, to the emitter (source)
+        in the others, as in the emitter-follower Hartley whose emitter sits on the tap.
     orbit_on_start : whether every design that starts takes the periodic orbit of its
         netlist at its nominal values (:mod:`picker.circuit.nominal_orbit`), saturated or
         not: a stage whose control junction sits across a tank capacitor whose other end
