@@ -35,13 +35,21 @@ SOLVABLE = [
     "colpitts_bjt",
     "follower_vfo",
     "hartley_beacon",
+    "hartley_follower_vfo",
     "jfet_follower_vfo",
     "plan_sensor_base",
     "probe_exciter",
     "production_exciter",
     "tone_source",
 ]
-AMPLIFIER = ["base_vhf", "colpitts_bjt", "follower_vfo", "hartley_beacon", "jfet_follower_vfo"]
+AMPLIFIER = [
+    "base_vhf",
+    "colpitts_bjt",
+    "follower_vfo",
+    "hartley_beacon",
+    "hartley_follower_vfo",
+    "jfet_follower_vfo",
+]
 
 # name -> (arguments after "picker", output file the command writes or None)
 COMMANDS: dict[str, tuple[list[str], str | None]] = {}

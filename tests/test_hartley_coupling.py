@@ -180,6 +180,29 @@ def test_tapped_coil_expands_into_its_two_sections_moving_together():
     assert abs(got.extra["drivers_mc"]["shares"]["L1"] - share) < 0.01
 
 
+def test_buying_a_tapped_coil_tighter_tightens_the_whole_coil():
+    # The coil is one part: "buy tighter" offers it once (named L1, as the drivers name
+    # it), never its section L2 alone, and its next class moves both sections by one
+    # factor. Reference: an independent Monte Carlo of the design with the whole coil at
+    # the offered tolerance (uniform, as above), C ±1 %.
+    s = api.spec_from_dict(TAPPED)
+    l1, l2 = _sections(12e-6, 0.25, 0.4)
+    got = api.evaluate(s, {"L1": l1, "L2": l2, "C": 390e-12}).candidates[0]
+    changes = got.extra["tighter"]
+    assert "L2" not in {c["position"] for c in changes}
+    coil = next(c for c in changes if c["position"] == "L1" and c["kind"] == "tolerance")
+    tol = float(coil["to"])
+    assert tol < 0.03
+    rng = np.random.default_rng(78)
+    n = 400_000
+    g = 1 + rng.uniform(-tol, tol, n)
+    c = 390e-12 * (1 + rng.uniform(-0.01, 0.01, n))
+    f = _f(l1 * g, l2 * g, c, 0.4)
+    ref = float(np.mean((f >= s.frequency.f_min) & (f <= s.frequency.f_max)))
+    se = math.sqrt(ref * (1 - ref) / got.yield_.samples)
+    assert abs(coil["yield_after"] - ref) < 4 * se + 0.002
+
+
 def test_screen_takes_a_tapped_coil_as_one_part():
     # The first-order screen (GUM 5.1.2; 5.2.2 with r = 1 for the sections, which share one
     # variate): f ∝ (coil·C_eff)^(−1/2), so σ_lnf² = (½σ_coil)² + (½·C/(C + stray)·σ_C)²,

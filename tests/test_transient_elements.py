@@ -24,7 +24,7 @@ from picker.circuit.network import Network
 from picker.circuit.ngspice import transient
 from picker.circuit.nominal_orbit import board_orbits
 from picker.circuit.steady import steady_state
-from picker.circuit.transient import build_circuit, dc_point, device, integrate
+from picker.circuit.transient import build_circuit, dc_point, device, integrate, solve_each
 from picker.circuit.validation import load_reference
 
 CARD = ".model QN NPN (IS=1e-14 BF=150 VAF=100 TF=3e-10 CJE=5e-12 CJC=3e-12 BR=1)"
@@ -155,3 +155,23 @@ def test_follower_orbit_unstable_by_a_flip_is_not_called_bursting():
     assert not orbit.bursting
     assert orbit.f_hz == pytest.approx(ref["f_hz"], rel=2e-3)
     assert orbit.amplitude_v == pytest.approx(ref["amplitude_v"], rel=0.06)
+
+
+def test_a_singular_board_fails_alone_in_a_batch_solve():
+    # A batch of Newton matrices where one is singular (a board whose step degenerates):
+    # numpy.linalg.solve raises for the whole batch; solve_each gives the others their
+    # exact solutions (checked element by element with numpy.linalg.solve) and NaN for
+    # the singular one, which the integrator then reports as a failed step.
+    rng = np.random.default_rng(5)
+    a = rng.normal(size=(4, 3, 3)) + 3 * np.eye(3)
+    a[2] = [[1.0, 2.0, 3.0], [2.0, 4.0, 6.0], [0.0, 1.0, 1.0]]  # rank 2
+    b = rng.normal(size=(4, 3, 1))
+    with pytest.raises(np.linalg.LinAlgError):
+        np.linalg.solve(a, b)
+    got = solve_each(a, b)
+    assert np.isnan(got[2]).all()
+    for i in (0, 1, 3):
+        assert np.allclose(got[i], np.linalg.solve(a[i], b[i]), rtol=1e-12, atol=0)
+    # a regular batch is numpy's own answer
+    ok = np.delete(a, 2, axis=0), np.delete(b, 2, axis=0)
+    assert np.array_equal(solve_each(*ok), np.linalg.solve(*ok))

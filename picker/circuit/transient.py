@@ -68,6 +68,7 @@ __all__ = [
     "device",
     "evaluate",
     "integrate",
+    "solve_each",
 ]
 
 _EXP_CAP = 80.0  # exponent beyond which e^u continues linearly (no overflow in Newton)
@@ -487,6 +488,22 @@ class Period:
     ok: np.ndarray
 
 
+def solve_each(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """``numpy.linalg.solve`` over a batch (a: (B, n, n), b: (B, n, k)), NaN for an
+    element whose matrix is singular instead of an error for the whole batch (a board
+    whose Newton or sensitivity matrix degenerates fails alone, as a failed step does)."""
+    try:
+        return np.linalg.solve(a, b)  # type: ignore[no-any-return]
+    except np.linalg.LinAlgError:
+        out = np.full(b.shape, np.nan)
+        for i in range(b.shape[0]):
+            try:
+                out[i] = np.linalg.solve(a[i], b[i])
+            except np.linalg.LinAlgError:
+                pass
+        return out
+
+
 def _solve_step(
     circ: Circuit,
     x_guess: np.ndarray,
@@ -511,7 +528,7 @@ def _solve_step(
         cur, chg, jg, jc = evaluate(circ, x)
         r = ha * chg + cur + hist
         jac = ha[:, :, None] * jc + jg
-        dx = -np.linalg.solve(jac, r[..., None])[..., 0]
+        dx = -solve_each(jac, r[..., None])[..., 0]
         fin = np.all(np.isfinite(dx), axis=1)
         failed |= ~done & ~fin
         done |= failed
@@ -555,7 +572,7 @@ def integrate(
         jac = 2.0 / h[:, None, None] * jc1 + jg1
         rhs = -np.einsum("bij,bjk->bik", -2.0 / h[:, None, None] * jc0 + jg0, s_now)
         rhs[:, :, n] -= (cur1 + cur0 - 2.0 * circ.b) / h[:, None] / steps
-        s_prev, s_now = s_now, np.linalg.solve(jac, rhs)
+        s_prev, s_now = s_now, solve_each(jac, rhs)
         c_hist.append(jc1)
         chg_hist.append(chg1)
     else:
@@ -575,7 +592,7 @@ def integrate(
             rhs = np.einsum("bij,bjk->bik", 2.0 / h[:, None, None] * c_hist[-1], s_now)
             rhs -= np.einsum("bij,bjk->bik", 0.5 / h[:, None, None] * c_hist[-2], s_prev)
             rhs[:, :, n] -= (cur1 - circ.b) / h[:, None] / steps
-            s_prev, s_now = s_now, np.linalg.solve(jac, rhs)
+            s_prev, s_now = s_now, solve_each(jac, rhs)
             c_hist = [c_hist[-1], jc1]
         else:
             chg1 = charge(circ, xk)

@@ -174,6 +174,8 @@ def _current(
     prices: dict[str, dict[float | str, float]] = {}
     counts: dict[str, int] = {}
     for p in sim.problem.topology.positions:
+        if p in sim.shared:  # a tapped coil's section: bought with its coil (one part)
+            continue
         t = sim.problem.tables[p]
         i = int(d1.idx[p][0])
         tols[p] = _tol_key(float(t.tol[i]))
@@ -203,15 +205,20 @@ def yield_function(spec: ProductionSpec, sim: Simulation, d1: Designs, u: np.nda
     cache: dict[tuple[tuple[tuple[str, float], ...], tuple[tuple[str, str], ...]], float] = {}
     n = u.shape[0]
     fallback = spec.yield_.distribution
+    sections: dict[str, list[str]] = {}
+    for q, p in sim.shared.items():  # a tapped coil's sections, by their coil's position
+        sections.setdefault(p, []).append(q)
 
     def fn(tol_over: dict[str, float], mat_over: dict[str, str]) -> float:
         key = (tuple(sorted(tol_over.items())), tuple(sorted(mat_over.items())))
         if key not in cache:
             s = sim
             for p, t in tol_over.items():
-                s = with_tolerance(s, d1, p, float(t), fallback)
+                for q in (p, *sections.get(p, ())):  # a coil's sections move with it
+                    s = with_tolerance(s, d1, q, float(t), fallback)
             for p, m in mat_over.items():
-                s = with_material(s, p, m)
+                for q in (p, *sections.get(p, ())):
+                    s = with_material(s, q, m)
             cache[key] = float(count_passing(s, d1, u)[0]) / n
         return cache[key]
 
