@@ -4,8 +4,9 @@ Reference data in ``tests/validation/``: ``stage_common_collector.json``,
 ``stage_common_base.json``, ``stage_common_source.json``, ``stage_common_drain.json``,
 ``stage_common_gate.json`` (24 random designs each of that stage in Colpitts and Clapp
 tanks; the common-drain set 6 more Clapps, as its quota draw kept only Clapps below
-start-up) and ``tank_hartley.json`` (24 random Hartley designs, common-emitter and
-common-source), drawn like the common-emitter set (``scripts/make_validation.py --stage
+start-up), ``tank_hartley.json`` (24 random Hartley designs, common-emitter and
+common-source) and ``tank_hartley_tapped.json`` (24 random Hartley designs of the four
+stages whose emitter or source sits on the coil's tap, six each), drawn like the common-emitter set (``scripts/make_validation.py --stage
 NAME`` and ``--tank hartley``: the same ranges and quotas on the start-up margin, the
 stage's own parts; the fet stages with JFET and MOSFET cards) and what ngspice's
 transient of picker's netlist shows, measured by :mod:`picker.circuit.waveform` (written
