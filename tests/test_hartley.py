@@ -275,8 +275,8 @@ def test_an_emitter_tapped_stage_returns_the_coils_tap_to_its_emitter(stage):
 )
 def test_spec_takes_a_hartley_tank_on_an_emitter_tapped_stage(tmp_path, stage):
     # The bipolar Hartley demo turned into the follower or the common-base stage: the spec
-    # is accepted and solve runs (exit 0, designs found, or 1, none meets the spec; 2 would
-    # be a refusal), every candidate carrying its circuit figures.
+    # is accepted and solve runs (exit 0, designs found, or 1, none meets the spec, as both
+    # do here with the demo's common-emitter bias; 2 would be a refusal).
     demo = Path(__file__).resolve().parents[1] / "demo_specs" / "hartley_beacon.toml"
     text = demo.read_text(encoding="utf-8")
     assert 'stage = "common-emitter"' in text
@@ -306,6 +306,4 @@ def test_spec_takes_a_hartley_tank_on_an_emitter_tapped_stage(tmp_path, stage):
     )
     assert run.returncode in (0, 1), run.stderr
     assert "Traceback" not in run.stderr
-    if run.returncode == 0:
-        got = json.loads(run.stdout)
-        assert got["candidates"] and all("circuit" in c for c in got["candidates"])
+    assert json.loads(run.stdout)  # one JSON object (candidates or nearest misses)
