@@ -24,7 +24,7 @@ from picker.circuit.amplitude import (
 from picker.circuit.loaded import LoadedModel
 from picker.circuit.nominal_orbit import NominalOrbit
 from picker.circuit.oscillation import loaded_response
-from picker.circuit.steady import SteadyState, steady_state
+from picker.circuit.steady import SteadyState, envelope_of, steady_state
 from picker.core.montecarlo import ROWS, Simulation, drift_factors, sampled_values, values_at
 from picker.core.sampling import Rows, row_chunks
 from picker.core.search import Designs
@@ -80,8 +80,8 @@ def large_signal(st: SteadyState, r: int = 0) -> dict[str, Any]:
 
     ``starts`` (bool), ``f_hz`` (steady frequency, None where it does not start),
     ``f_start_hz`` (frequency of the growing pole pair at start-up), ``amplitude_v``
-    (peak at the tank's output node), ``envelope`` ("steady" or "bursting"; None
-    where it does not start), ``startup_time_s`` and ``harmonics_dbc`` {"h2", "h3"}
+    (peak at the tank's output node), ``envelope`` ("steady", "bursting" or
+    :data:`picker.circuit.steady.NO_STEADY_STATE`; None where it does not start), ``startup_time_s`` and ``harmonics_dbc`` {"h2", "h3"}
     (None where the model gives none), ``overdriven``, and ``peak_current_a`` /
     ``dissipation_w`` when the model provides them.
     """
@@ -91,7 +91,7 @@ def large_signal(st: SteadyState, r: int = 0) -> dict[str, Any]:
         "f_hz": _finite(float(st.f_hz[r])) if starts else None,
         "f_start_hz": _finite(float(st.f_start_hz[r])) if starts else None,
         "amplitude_v": float(st.amplitude_v[r]) if starts else 0.0,
-        "envelope": ("bursting" if bool(st.bursting[r]) else "steady") if starts else None,
+        "envelope": envelope_of(starts, bool(st.bursting[r]), float(st.f_hz[r])),
         "startup_time_s": _finite(float(st.startup_time_s[r])) if starts else None,
         "harmonics_dbc": {
             k: (_finite(float(st.harmonics_dbc[r, i])) if starts else None)
@@ -140,6 +140,14 @@ MODES_CAUTION = (
     "the choke with a resistor across it (common practice)"
 )
 
+#: The caution for a design that starts with no steady solution (:data:`NO_STEADY_STATE`).
+NO_STEADY_CAUTION = (
+    "starts, but the model finds no steady oscillation (the start-up pole pair meets the "
+    "real axis before the drive compresses it: a relaxation or a waveform far from a sine), "
+    "so it gives no loaded frequency and its boards do not count towards yield; run --verify "
+    "to see what the board does in ngspice and in its own circuit run from rest"
+)
+
 
 def nominal_figures(
     topology: Topology,
@@ -154,7 +162,8 @@ def nominal_figures(
     """Loaded-model figures of one design at its marked values (JSON-ready scalars).
 
     Keys: ``f_ideal_hz``, ``f_loaded_hz`` (the steady frequency of the large-signal
-    model; where it does not start, the linear model's; None where neither oscillates),
+    model; where it does not start, the linear model's; None where neither oscillates
+    and where it starts with no steady solution),
     ``startup_margin``, ``amplitude_v`` (peak at the tank top), ``overdriven``,
     ``peak_voltage_v`` (position -> peak V across each capacitor, None where the
     bias point is unknown), ``cautions`` (:func:`picker.circuit.amplitude.cautions` plus
@@ -184,7 +193,10 @@ def nominal_figures(
         )
     f_lin = float(res.f_hz[0])
     f_ss = float(ls.f_hz[0])
-    f = f_ss if bool(ls.starts[0]) and math.isfinite(f_ss) else f_lin
+    # a design that starts with no steady solution has no loaded frequency: its start-up
+    # pole's (the linear model's) is not where the board runs (hs004 of the series-capacitor
+    # Hartley set: 161.7 kHz linear, ngspice 130.3 kHz)
+    f = f_lin if not bool(ls.starts[0]) else f_ss
     m = float(ls.margin[0])
     scal = {p: float(v[0]) for p, v in board.items()}
     peaks = {k: float(v[0]) for k, v in stress.items()}
@@ -195,6 +207,8 @@ def nominal_figures(
     burst = bursting_caution(ls, params)
     if burst:
         notes.append(burst)
+    if bool(ls.starts[0]) and not math.isfinite(f_ss):
+        notes.append(NO_STEADY_CAUTION)
     if int(ls.pairs[0]) >= 2:
         notes.append(MODES_CAUTION)
     if bool(amp.overdriven[0]):

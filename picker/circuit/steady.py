@@ -28,6 +28,7 @@ The model, in three steps (each module states its method and sources):
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -46,7 +47,31 @@ from picker.circuit.stability import startup_chunk
 from picker.circuit.stages.base import KICK_FRACTION
 from picker.tank.base import TWO_PI, Topology
 
-__all__ = ["SteadyState", "steady_state"]
+__all__ = ["NO_STEADY_STATE", "SteadyState", "envelope_of", "steady_state"]
+
+#: The envelope verdict of a board that starts but has no steady solution: the start-up
+#: pole pair, followed from the crossing to the actual gm, meets the real axis before the
+#: drive can compress it (a relaxation, or a waveform far from a sine; the series-capacitor
+#: Hartley with a small C_S: :func:`picker.circuit.burst_carrier.run_hint`). A name of
+#: our own.
+NO_STEADY_STATE = "no steady state"
+
+
+def envelope_of(starts: bool, bursting: bool, f_hz: float) -> str | None:
+    """The large-signal model's verdict on one board, as the JSON's ``envelope`` gives it:
+    None where it does not start, :data:`NO_STEADY_STATE` where it starts with no steady
+    frequency (``f_hz`` NaN), else "bursting" or "steady".
+
+    >>> envelope_of(True, False, float("nan"))
+    'no steady state'
+    >>> envelope_of(True, True, 1e6), envelope_of(False, False, float("nan"))
+    ('bursting', None)
+    """
+    if not starts:
+        return None
+    if not math.isfinite(f_hz):
+        return NO_STEADY_STATE
+    return "bursting" if bursting else "steady"
 
 
 @dataclass(frozen=True)

@@ -36,7 +36,7 @@ from picker.circuit.netlist import TransientPlan, verify_plan, write_netlist
 from picker.circuit.network import Network
 from picker.circuit.ngspice import SimulationResult, simulate, step_note
 from picker.circuit.nominal_orbit import NominalOrbit, board_orbits
-from picker.circuit.steady import SteadyState, steady_state
+from picker.circuit.steady import SteadyState, envelope_of, steady_state
 from picker.tank.base import Topology
 
 __all__ = ["BoardCheck", "board_plans", "check_boards", "model_figures", "verdict"]
@@ -58,7 +58,7 @@ def _figures(st: SteadyState, i: int) -> dict[str, Any]:
         "starts": starts,
         "f_hz": _num(st.f_hz[i]),
         "amplitude_v": _num(st.amplitude_v[i]),
-        "envelope": None if not starts else ("bursting" if bursting else "steady"),
+        "envelope": envelope_of(starts, bursting, float(st.f_hz[i])),
         "startup_time_s": _num(st.startup_time_s[i]),
         "margin": _num(st.margin[i]),
     }

@@ -104,7 +104,8 @@ def _figures(
 
     As ``solve`` reports them (:func:`picker.circuit.figures.nominal_figures`):
     ``f_loaded_hz`` is the large-signal model's steady frequency (the linear model's
-    where it does not start) and ``startup_margin`` the large-signal model's margin.
+    where it does not start; None where it starts with no steady solution) and
+    ``startup_margin`` the large-signal model's margin.
     """
     from picker.circuit.amplitude import amplitude_estimate, capacitor_stress
     from picker.circuit.oscillation import loaded_response
@@ -115,7 +116,8 @@ def _figures(
     stress = capacitor_stress(topo, board, stray, params, amp)
     ls = steady_state(topo, board, stray, params)
     f_ss = float(ls.f_hz)
-    f = f_ss if bool(ls.starts) and math.isfinite(f_ss) else float(res.f_hz)
+    # no loaded frequency where it starts with no steady solution (as nominal_figures)
+    f = f_ss if bool(ls.starts) else float(res.f_hz)
     return {
         "f_ideal_hz": float(topo.frequency(board, stray)),
         "f_loaded_hz": f if math.isfinite(f) else None,

@@ -23,6 +23,7 @@ Shapes: sampled inputs are (samples,) for one design.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Protocol, runtime_checkable
@@ -83,6 +84,8 @@ class RegressionFit:
         Normalised squared standardised coefficients; they sum to one.
     r2 : float
         Coefficient of determination of the linear fit.
+
+    All three are NaN where fewer than two boards oscillate (no spread to apportion).
     """
 
     coef: dict[str, float]
@@ -111,9 +114,9 @@ def regression_fit(inputs: Mapping[str, np.ndarray], ln_f: np.ndarray) -> Regres
     rows = np.isfinite(y) & np.all(np.isfinite(x), axis=1)  # boards that oscillate
     if not rows.all():
         x, y = x[rows], y[rows]
-    if y.size < 2:
-        zero = {k: 0.0 for k in names}
-        return RegressionFit(zero, dict(zero), 1.0)
+    if y.size < 2:  # fewer than two boards oscillate: there is no spread to apportion
+        none = {k: math.nan for k in names}
+        return RegressionFit(none, dict(none), math.nan)
     xc = x - x.mean(axis=0)
     yc = y - y.mean()
     keep = xc.std(axis=0) > 0  # a constant input explains nothing

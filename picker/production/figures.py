@@ -22,6 +22,7 @@ design only, which bounds their time.
 
 from __future__ import annotations
 
+import math
 from dataclasses import replace
 from typing import Any
 
@@ -141,6 +142,10 @@ def _worst_drift_index(sim: Simulation, d1: Designs) -> int:
     return int(np.argmax(per_t))
 
 
+def _finite_or_none(x: float) -> float | None:
+    return x if math.isfinite(x) else None
+
+
 def monte_carlo_drivers(
     sim: Simulation, d1: Designs, u: np.ndarray, with_temperature: bool
 ) -> dict[str, Any]:
@@ -171,7 +176,11 @@ def monte_carlo_drivers(
         inputs[TEMPERATURE] = ln_ft - ln_f
         ln_f, t_worst = ln_ft, float(sim.temperatures[i])
     fit = regression_fit(inputs, ln_f)
-    out: dict[str, Any] = {"shares": fit.shares, "r2": fit.r2}
+    # null where fewer than two boards oscillate (regression_fit: no spread to apportion)
+    out: dict[str, Any] = {
+        "shares": {k: _finite_or_none(v) for k, v in fit.shares.items()},
+        "r2": _finite_or_none(fit.r2),
+    }
     if t_worst is not None:
         out["temperature_c"] = t_worst
     return out

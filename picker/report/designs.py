@@ -88,7 +88,8 @@ def _print_cautions(r: SolveResult, console: Console) -> None:
             seen.setdefault(text, []).append(c.rank)
     console.print(
         "f loaded: the steady frequency of the loaded model (transistor, bias network, "
-        "losses); error is against it. runs: steady or bursting (large-signal model); only "
+        "losses); error is against it (against f ideal where there is none). runs: steady, "
+        "bursting or no steady state (large-signal model); only "
         "boards that start and run steady count towards yield. margin: loop gain at "
         "start-up, nominal (worst board).",
         markup=False,
@@ -211,8 +212,15 @@ def print_table(r: SolveResult, console: Console) -> None:
         highlight=False,
     )
     print_fitted(console, design_columns(r))
-    if any(not c.in_window for c in r.candidates):
+    out = [c for c in r.candidates if not c.in_window]
+    none = [c for c in out if r.spec.amplifier is not None and c.extra.get("f_loaded_hz") is None]
+    if len(out) > len(none):
         console.print("Note: the nominal frequency lies outside the window.")
+    if none:
+        console.print(
+            "Note: a design with no loaded frequency (it does not start, or the model finds "
+            "no steady state) counts as outside the window."
+        )
     if any(not c.feedback_ok for c in r.candidates):
         console.print("Note: '!' marks a feedback fraction outside the feedback window.")
     if any(ties(r)):

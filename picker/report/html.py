@@ -314,7 +314,8 @@ def _circuit(r: SolveResult) -> str:
     )
     return (
         "<h2>Circuit</h2><p class='note'>f loaded: the loaded model (transistor, bias "
-        "network, losses); error is against the loaded frequency. margin: loop gain at "
+        "network, losses); error is against the loaded frequency (against f ideal where "
+        "there is none). margin: loop gain at "
         "start-up, nominal (worst board).</p>"
         + (f"<h3>Cautions (circuit model)</h3><ul>{items}</ul>" if items else "")
     )

@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import contextlib
 import io
+import math
 import os
 from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
@@ -283,6 +284,10 @@ def plot_yield_vs_tolerance(
     return _finish(fig, own, path)
 
 
+def _or_nan(x: float | None) -> float:
+    return math.nan if x is None else float(x)
+
+
 def plot_drivers(
     shares: Mapping[str, float],
     path: str | Path | None = None,
@@ -313,10 +318,13 @@ def plot_drivers(
     fig, ax, own = _axes(ax, (_SIZE[0], max(2.4, 0.55 * len(names) + 1.4)))
     y = np.arange(len(names))
     ax.barh(y, vals, color=_IN, label="first order")
-    cv = np.array([float(confirm.get(k, np.nan)) * 100 for k in names]) if confirm else None
+    # a Monte Carlo share is None (NaN) where fewer than two boards oscillate
+    cv = np.array([float(_or_nan(confirm.get(k))) * 100 for k in names]) if confirm else None
     for i, (yi, v) in enumerate(zip(y, vals, strict=True)):
         right = v if cv is None or not np.isfinite(cv[i]) else max(v, cv[i])
-        label = f"{v:.1f} %" if cv is None else f"{v:.1f} % (MC {cv[i]:.1f} %)"
+        label = f"{v:.1f} %"
+        if cv is not None and np.isfinite(cv[i]):
+            label += f" (MC {cv[i]:.1f} %)"
         ax.text(float(right) + 2.5, float(yi), label, va="center", fontsize=9)
     if cv is not None:
         ax.plot(cv, y, "D", color=_OUT, ms=6, label="Monte Carlo", zorder=3)

@@ -99,11 +99,18 @@ def print_drivers(x: dict, console: Console) -> None:
     mc = (x.get("drivers_mc") or {}).get("shares", {})
     r2 = (x.get("drivers_mc") or {}).get("r2")
     console.print("\n[bold]What drives the frequency spread[/bold] (share of the variance of ln f)")
+    if mc and all(v is None for v in mc.values()):
+        _say(console, "  none: fewer than two simulated boards oscillate steadily")
+        return
     keys = sorted(sh, key=lambda k: (-sh[k], k))
     cols = [
         Col("input", [plain(k) for k in keys], justify="left", essential=True),
         Col("first order", [_pct(sh[k]) for k in keys], essential=True),
-        Col("Monte Carlo", [_pct(mc[k]) if k in mc else "—" for k in keys], essential=True),
+        Col(
+            "Monte Carlo",
+            [_pct(mc[k]) if mc.get(k) is not None else "—" for k in keys],
+            essential=True,
+        ),
     ]
     print_fitted(console, cols)
     notes = []
