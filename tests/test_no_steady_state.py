@@ -158,3 +158,12 @@ def test_evaluate_table_names_the_verdict_and_prints_no_fitted_drivers(run_cli, 
     assert "a design with no loaded frequency" in out
     assert "R²" not in out  # no regression was fitted
     assert "fewer than two simulated boards oscillate" in out
+
+
+def test_evaluate_report_page_shows_the_verdict(run_cli, tmp_path: Path):
+    page = tmp_path / "relaxing.html"
+    code, _, err = _evaluate(run_cli, tmp_path, "--report", str(page))
+    assert code in (0, 1), err
+    html = page.read_text(encoding="utf-8")
+    assert "<th>runs</th>" in html
+    assert f">{NO_STEADY_STATE}</td>" in html

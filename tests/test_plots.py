@@ -96,3 +96,26 @@ def test_histogram_ticks_name_the_window_edges(f_min, target, f_max):
         (t.get_window_extent() for t in ax.get_xticklabels() if t.get_text()), key=lambda b: b.x0
     )
     assert all(a.x1 <= b.x0 for a, b in zip(boxes, boxes[1:], strict=False))
+
+
+def test_drivers_of_a_design_where_no_board_oscillates_show_no_bars_but_say_why():
+    """The Monte Carlo shares are None where fewer than two boards oscillate
+    (picker.production.drivers.regression_fit); the first-order shares are then zero. The
+    plot draws no 0.0 % labels and says there is nothing to apportion."""
+    shares = {"L": 0.0, "C1": 0.0, "C2": 0.0}
+    fig = plot_drivers(shares, confirm={"L": None, "C1": None, "C2": None})
+    texts = [t.get_text() for t in fig.axes[0].texts]
+    assert not any("%" in t for t in texts)
+    assert any("no spread to apportion" in t for t in texts)
+    # with shares to show, the labels are back (and a missing MC share is just left out)
+    fig = plot_drivers({"L": 0.9, "C1": 0.1, "C2": 0.0}, confirm={"L": 0.88, "C1": None})
+    texts = [t.get_text() for t in fig.axes[0].texts]
+    assert "90.0 % (MC 88.0 %)" in texts and "10.0 %" in texts
+
+
+def test_histogram_of_boards_that_never_run_has_no_share_ticks():
+    f = np.full(500, np.nan)
+    fig = plot_histogram(f, 117e3, 143e3, 130e3)
+    ax = fig.axes[0]
+    assert list(ax.get_yticks()) == []
+    assert any("500 boards do not run steady" in t.get_text() for t in ax.texts)

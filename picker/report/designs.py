@@ -69,8 +69,9 @@ def _span(c: Candidate, target: float) -> str:
     return f"{signed_pct(lo)}..{signed_pct(hi)}"
 
 
-def _envelope(c: Candidate) -> str:
-    """The run verdict of the large-signal model: "steady", "bursting" or "no start"."""
+def run_verdict(c: Candidate) -> str:
+    """The run verdict of the large-signal model: "steady", "bursting", "no steady state"
+    or "no start"."""
     ls = c.extra.get("large_signal") or {}
     return ls.get("envelope") or "no start"
 
@@ -137,7 +138,7 @@ def design_columns(r: SolveResult) -> list[Col]:
                 priority=2,
             )
         )
-        cols.append(Col("runs", [_envelope(c) for c in cs], priority=2))
+        cols.append(Col("runs", [run_verdict(c) for c in cs], priority=2))
     else:
         cols.append(Col("f nominal", [_hz(c.f_nominal_hz) for c in cs], priority=2))
     if any(_cost_of(c) is not None for c in cs):

@@ -38,6 +38,7 @@ from picker.files import atomic_write
 
 # matplotlib comes with the plots: this module is imported only when a report is asked for
 from picker.report.calibration import print_table as print_calibration
+from picker.report.designs import run_verdict
 from picker.report.plan import print_table as print_plan
 from picker.report.plots import plot_residuals, png_bytes, result_figures
 from picker.report.production import print_production
@@ -208,7 +209,7 @@ def _design_table(r: SolveResult, shown: set[int] | None = None) -> str:
     priced = any((c.extra.get("cost") or {}).get("per_board") is not None for c in r.candidates)
     ids = any(pp.part_id for c in r.candidates for pp in c.parts.values())
     head = ["#", *positions, "f nominal" if not loaded else "f ideal"]
-    head += ["f loaded", "start-up margin (worst)"] if loaded else []
+    head += ["f loaded", "runs", "start-up margin (worst)"] if loaded else []
     head += ["error", "beta", f"yield ({s.yield_.confidence * 100:g} % CI)", "worst case 25 °C"]
     if over:
         t = s.yield_.temperature
@@ -229,6 +230,7 @@ def _design_table(r: SolveResult, shown: set[int] | None = None) -> str:
         if loaded:
             fl = c.extra.get("f_loaded_hz")
             row.append("none" if fl is None else format_quantity(fl, "Hz", digits=6))
+            row.append(run_verdict(c))
             m, w = c.extra.get("startup_margin"), c.extra.get("startup_margin_worst")
             row.append("—" if m is None or w is None else f"{m:.2f} ({w:.2f})")
         row += [
@@ -248,7 +250,7 @@ def _design_table(r: SolveResult, shown: set[int] | None = None) -> str:
                 "?" if x is None else f"{x:.4g}" + ("" if cost.get("stock_ok", 1) else " short")
             )
         rows.append(row)
-    numeric = set(range(1, len(head)))
+    numeric = set(range(1, len(head))) - ({head.index("runs")} if loaded else set())
     out = _table(head, rows, numeric).replace("<table>", '<table class="wide">', 1)
     notes = []
     if any(tie):
@@ -315,7 +317,8 @@ def _circuit(r: SolveResult) -> str:
     return (
         "<h2>Circuit</h2><p class='note'>f loaded: the loaded model (transistor, bias "
         "network, losses); error is against the loaded frequency (against f ideal where "
-        "there is none). margin: loop gain at "
+        "there is none). runs: steady, bursting or no steady state (large-signal model); "
+        "only boards that start and run steady count towards yield. margin: loop gain at "
         "start-up, nominal (worst board).</p>"
         + (f"<h3>Cautions (circuit model)</h3><ul>{items}</ul>" if items else "")
     )

@@ -192,6 +192,8 @@ def plot_histogram(
     ax.set_xlabel("board frequency")
     ax.set_ylabel("share of boards per bin")
     ax.yaxis.set_major_formatter(PercentFormatter(decimals=1))
+    if f.size == 0:  # no board runs: an empty axis has no shares to mark
+        ax.set_yticks([])
 
     def to_dev(x: ArrayLike) -> np.ndarray:
         return (np.asarray(x, dtype=float) / target - 1.0) * 100.0
@@ -320,7 +322,19 @@ def plot_drivers(
     ax.barh(y, vals, color=_IN, label="first order")
     # a Monte Carlo share is None (NaN) where fewer than two boards oscillate
     cv = np.array([float(_or_nan(confirm.get(k))) * 100 for k in names]) if confirm else None
-    for i, (yi, v) in enumerate(zip(y, vals, strict=True)):
+    if cv is not None and not np.any(np.isfinite(cv)) and not np.any(vals > 0):
+        # no board oscillates (the Monte Carlo shares are None): no bars, and say why
+        ax.text(
+            0.5,
+            0.5,
+            "no simulated board oscillates steadily:\nno spread to apportion",
+            transform=ax.transAxes,
+            ha="center",
+            va="center",
+            fontsize=10,
+        )
+        cv, vals = None, np.array([])
+    for i, (yi, v) in enumerate(zip(y[: vals.size], vals, strict=True)):
         right = v if cv is None or not np.isfinite(cv[i]) else max(v, cv[i])
         label = f"{v:.1f} %"
         if cv is not None and np.isfinite(cv[i]):
