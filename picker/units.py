@@ -56,6 +56,7 @@ __all__ = [
     "PREFIXES",
     "format_percent",
     "format_quantity",
+    "json_number",
     "parse_fraction",
     "parse_quantity",
     "parse_tolerance",
@@ -672,3 +673,20 @@ def format_percent(x: float, digits: int = 3) -> str:
     '0.25 %'
     """
     return f"{_fmt(float(x) * 100.0, digits)} %"
+
+
+def json_number(x: object) -> float | None:
+    """An SI value as the JSON output writes it: a float, or None (null) where it is missing or not finite.
+
+    JSON has no NaN or infinity, so every machine-readable output passes its
+    numbers through this one helper; a NumPy scalar or 0-d array becomes a float.
+
+    Examples
+    --------
+    >>> json_number(np.float64(2.5e-9)), json_number(float("nan")), json_number(None)
+    (2.5e-09, None, None)
+    """
+    if x is None:
+        return None
+    v = float(np.asarray(x))
+    return v if math.isfinite(v) else None

@@ -124,9 +124,15 @@ COMMANDS["consolidate_plan_demo_bom.csv"] = (
 SIMULATE_MODEL = """
 import json, sys
 from pathlib import Path
-from picker.cli.circuit import _design, _figures
-spec, topo, values, board, stray, params = _design(Path(sys.argv[1]), [])
-print(json.dumps(_figures(topo, board, stray, params), sort_keys=True))
+try:
+    from picker.cli.circuit import _design, _model_figures
+    spec, topo, values, board, par, params = _design(Path(sys.argv[1]), [])
+    out = _model_figures(topo, values, par, params)
+except ImportError:  # before _model_figures (1126a75 and older)
+    from picker.cli.circuit import _design, _figures
+    spec, topo, values, board, stray, params = _design(Path(sys.argv[1]), [])
+    out = _figures(topo, board, stray, params)
+print(json.dumps(out, sort_keys=True))
 """
 SIMULATE_MODEL_OLD = SIMULATE_MODEL.replace("picker.cli.circuit", "picker.cli_circuit")
 

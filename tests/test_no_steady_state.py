@@ -18,12 +18,14 @@ import warnings
 from pathlib import Path
 
 import numpy as np
+import pytest
 from conftest import write_spec
 
 from picker.circuit.figures import nominal_figures
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.steady import NO_STEADY_STATE, steady_state
 from picker.circuit.validation import load_reference
+from picker.core.propagation import first_order_shares
 from picker.production.drivers import regression_fit
 from picker.tank.board import Parasitics
 
@@ -77,6 +79,21 @@ def test_regression_has_no_shares_when_no_board_oscillates():
     y = np.full(50, np.nan)
     y[3] = 0.0
     assert math.isnan(regression_fit(x, y).r2)
+
+
+def test_first_order_shares_are_nan_where_the_model_has_no_slope():
+    # var(ln f) ≈ Σ (S_i·σ_i)² (first-order propagation, GUM JCGM 100:2008 eq. 10):
+    # (0.5·0.02)² = 1e-4 and (0.5·0.01)² = 2.5e-5, shares 0.8 and 0.2 (by hand)
+    nan = math.nan
+    sh = first_order_shares(
+        {"L": [-0.5, nan, -0.5], "C": [-0.5, -0.3, -0.5]},
+        {"L": [0.02, 0.02, 0.0], "C": [0.01, 0.01, 0.0]},
+    )
+    assert sh["L"][0] == pytest.approx(0.8) and sh["C"][0] == pytest.approx(0.2)
+    # a NaN slope (no steady frequency): no shares, not zeros
+    assert math.isnan(sh["L"][1]) and math.isnan(sh["C"][1])
+    # no spread at all stays "no spread": zeros
+    assert sh["L"][2] == 0.0 and sh["C"][2] == 0.0
 
 
 SPEC = """
@@ -149,6 +166,9 @@ def test_evaluate_reports_no_steady_state_in_json(run_cli, tmp_path: Path):
     assert c["yield"]["passed"] == 0
     assert c["drivers_mc"]["r2"] is None
     assert all(v is None for v in c["drivers_mc"]["shares"].values())
+    # nor a first-order one: the model has no frequency, so no slope to apportion
+    assert set(c["drivers"]) == {"L1", "L2", "C", "CS"}
+    assert all(v is None for v in c["drivers"].values())
 
 
 def test_evaluate_table_names_the_verdict_and_prints_no_fitted_drivers(run_cli, tmp_path: Path):

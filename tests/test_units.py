@@ -19,6 +19,7 @@ from picker.errors import SpecError
 from picker.units import (
     format_percent,
     format_quantity,
+    json_number,
     parse_fraction,
     parse_quantity,
     parse_tolerance,
@@ -376,3 +377,17 @@ def test_parse_tolerance_only_raises_spec_error(text):
         assert exc.key == "k"
     else:
         assert 0 <= lo < 1 and hi >= 0
+
+
+def test_json_number_nulls_what_json_cannot_write():
+    # RFC 8259 section 6: JSON numbers have no NaN or infinity, so these become null;
+    # a NumPy scalar or 0-d array must come out as a plain float of the same value.
+    import json
+
+    for bad in (math.nan, math.inf, -math.inf, np.float64("nan"), np.array(np.inf), None):
+        assert json_number(bad) is None
+    for x in (np.float64(2.5e-9), np.array(-1.25), np.float32(0.5), 7, 0.0):
+        v = json_number(x)
+        assert type(v) is float and v == float(x)
+    # the text JSON writes for it is the float's own, not NumPy's repr
+    assert json.dumps(json_number(np.float64(0.1))) == "0.1"

@@ -19,7 +19,7 @@ import math
 from typing import TYPE_CHECKING, Any
 
 from picker import __version__
-from picker.units import format_percent, format_quantity
+from picker.units import format_percent, format_quantity, json_number
 
 if TYPE_CHECKING:  # the result types import this module
     from picker.api.results import Candidate, PartPick, SolveResult
@@ -169,13 +169,6 @@ def rank_text(rank: int, tied: bool) -> str:
 # ---------------------------------------------------------------- rows
 
 
-def _num(x: Any) -> float | None:
-    if x is None:
-        return None
-    x = float(x)
-    return x if math.isfinite(x) else None
-
-
 #: Columns of the loaded model (with an ``[amplifier]`` section), as the results CSV names them.
 LOADED_COLUMNS = ("f_loaded_hz", "startup_margin", "startup_margin_worst")
 
@@ -266,7 +259,7 @@ def design_rows(r: SolveResult) -> list[list[Any]]:
         for p in topo.positions:
             pp = c.parts[p]
             row += [pp.value, pp.tolerance, _material(r, p, pp.part_id), pp.part_id]
-            row.append(_num(pp.price))
+            row.append(json_number(pp.price))
             if r.spec.parts[p].parallel:
                 row += (
                     [
@@ -300,7 +293,7 @@ def design_rows(r: SolveResult) -> list[list[Any]]:
         row.append(tied)
         if over:
             wc = c.extra.get("worst_case_over_range") or {}
-            row += [_num(wc.get("f_low_hz")), _num(wc.get("f_high_hz"))]
+            row += [json_number(wc.get("f_low_hz")), json_number(wc.get("f_high_hz"))]
         rows.append(row)
     return rows
 

@@ -30,6 +30,7 @@ from picker.core.sampling import Rows, row_chunks
 from picker.core.search import Designs
 from picker.tank.base import Topology
 from picker.tank.board import Parasitics, board_values
+from picker.units import json_number
 
 __all__ = [
     "HARMONICS",
@@ -71,10 +72,6 @@ def inductor_q(
     return math.inf if esr <= 0 else w * l_ / esr
 
 
-def _finite(x: float) -> float | None:
-    return float(x) if math.isfinite(x) else None
-
-
 def large_signal(st: SteadyState, r: int = 0) -> dict[str, Any]:
     """The JSON ``large_signal`` object of board ``r`` of ``st`` (1-D arrays).
 
@@ -88,13 +85,13 @@ def large_signal(st: SteadyState, r: int = 0) -> dict[str, Any]:
     starts = bool(st.starts[r])
     out: dict[str, Any] = {
         "starts": starts,
-        "f_hz": _finite(float(st.f_hz[r])) if starts else None,
-        "f_start_hz": _finite(float(st.f_start_hz[r])) if starts else None,
+        "f_hz": json_number(st.f_hz[r]) if starts else None,
+        "f_start_hz": json_number(st.f_start_hz[r]) if starts else None,
         "amplitude_v": float(st.amplitude_v[r]) if starts else 0.0,
         "envelope": envelope_of(starts, bool(st.bursting[r]), float(st.f_hz[r])),
-        "startup_time_s": _finite(float(st.startup_time_s[r])) if starts else None,
+        "startup_time_s": json_number(st.startup_time_s[r]) if starts else None,
         "harmonics_dbc": {
-            k: (_finite(float(st.harmonics_dbc[r, i])) if starts else None)
+            k: (json_number(st.harmonics_dbc[r, i]) if starts else None)
             for i, k in enumerate(HARMONICS)
         },
         "overdriven": bool(st.overdriven[r]),
@@ -102,7 +99,7 @@ def large_signal(st: SteadyState, r: int = 0) -> dict[str, Any]:
     for attr, key in OPTIONAL.items():
         v = getattr(st, attr, None)
         if v is not None:
-            out[key] = _finite(float(np.asarray(v)[r])) if starts else None
+            out[key] = json_number(np.asarray(v)[r]) if starts else None
     return out
 
 
@@ -219,11 +216,11 @@ def nominal_figures(
         )
     return {
         "f_ideal_hz": float(topology.frequency(board, st_)[0]),
-        "f_loaded_hz": f if math.isfinite(f) else None,
+        "f_loaded_hz": json_number(f),
         "startup_margin": m,
         "amplitude_v": float(amp.tank[0]),
         "overdriven": bool(amp.overdriven[0]),
-        "peak_voltage_v": {k: (v if math.isfinite(v) else None) for k, v in peaks.items()},
+        "peak_voltage_v": {k: json_number(v) for k, v in peaks.items()},
         "cautions": notes,
         "large_signal": large_signal(ls),
     }

@@ -38,16 +38,12 @@ from picker.circuit.ngspice import SimulationResult, simulate, step_note
 from picker.circuit.nominal_orbit import NominalOrbit, board_orbits
 from picker.circuit.steady import SteadyState, envelope_of, steady_state
 from picker.tank.base import Topology
+from picker.units import json_number
 
 __all__ = ["BoardCheck", "board_plans", "check_boards", "model_figures", "verdict"]
 
 #: Parallel ngspice processes (the target machine has two cores).
 WORKERS = 2
-
-
-def _num(x: Any) -> float | None:
-    v = float(np.asarray(x))
-    return v if math.isfinite(v) else None
 
 
 def _figures(st: SteadyState, i: int) -> dict[str, Any]:
@@ -56,11 +52,11 @@ def _figures(st: SteadyState, i: int) -> dict[str, Any]:
     bursting = bool(st.bursting[i])
     return {
         "starts": starts,
-        "f_hz": _num(st.f_hz[i]),
-        "amplitude_v": _num(st.amplitude_v[i]),
+        "f_hz": json_number(st.f_hz[i]),
+        "amplitude_v": json_number(st.amplitude_v[i]),
         "envelope": envelope_of(starts, bursting, float(st.f_hz[i])),
-        "startup_time_s": _num(st.startup_time_s[i]),
-        "margin": _num(st.margin[i]),
+        "startup_time_s": json_number(st.startup_time_s[i]),
+        "margin": json_number(st.margin[i]),
     }
 
 
@@ -281,7 +277,7 @@ def check_boards(
                 models[i]["carrier_from"] = "run from rest"
                 if relaxes or run_bursts(was, relaxes, r) != was:
                     models[i]["envelope"] = r.state
-                models[i]["carrier_spread"] = r.spread if math.isfinite(r.spread) else None
+                models[i]["carrier_spread"] = json_number(r.spread)
     return [
         BoardCheck(
             label=label,

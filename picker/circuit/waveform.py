@@ -50,6 +50,8 @@ import numpy as np
 from scipy import fft as sp_fft
 from scipy import ndimage, signal
 
+from picker.units import json_number
+
 __all__ = [
     "BURST_RATIO",
     "LOCKED",
@@ -107,10 +109,7 @@ class WaveformMeasurement:
 
     def to_dict(self) -> dict[str, object]:
         """Plain JSON-ready numbers (NaN as None)."""
-
-        def num(x: float) -> float | None:
-            return None if not np.isfinite(x) else float(x)
-
+        num = json_number
         return {
             "state": self.state,
             "f_hz": num(self.f_hz),

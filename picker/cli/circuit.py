@@ -50,6 +50,7 @@ if TYPE_CHECKING:
     from picker.circuit.verify import BoardCheck
     from picker.spec.model import Spec
     from picker.tank.base import Topology
+    from picker.tank.board import Parasitics
 
 # The numeric modules (numpy, scipy, the solver; picker.units uses numpy) are imported
 # inside the commands, so that the command line starts without them.
@@ -57,9 +58,9 @@ if TYPE_CHECKING:
 
 def _design(
     spec_path: Path, sets: list[str]
-) -> tuple[Spec, Topology, dict[str, float], dict[str, Any], float, AmplifierParams]:
+) -> tuple[Spec, Topology, dict[str, float], dict[str, Any], Parasitics, AmplifierParams]:
     """The spec, its topology, the part values (``--set`` or the top design), the board
-    values (parasitics applied), the stray capacitance and the amplifier."""
+    values (parasitics applied), the parasitics and the amplifier."""
     from picker import api
     from picker.tank.board import board_values  # numpy: not at start-up
 
@@ -94,38 +95,30 @@ def _design(
     params = spec.amplifier.to_params(spec.parts)
     par = api.parasitics_of(spec)
     board = board_values(topo, values, par)  # the parts as the board sees them
-    return spec, topo, values, board, float(par.stray), params
+    return spec, topo, values, board, par, params
 
 
-def _figures(
-    topo: Topology, board: Mapping[str, Any], stray: float, params: AmplifierParams
+#: The loaded model's figures ``simulate`` prints beside the transient's.
+_MODEL_KEYS = (
+    "f_ideal_hz",
+    "f_loaded_hz",
+    "startup_margin",
+    "amplitude_v",
+    "overdriven",
+    "peak_voltage_v",
+)
+
+
+def _model_figures(
+    topo: Topology, values: Mapping[str, float], par: Parasitics, params: AmplifierParams
 ) -> dict[str, Any]:
-    """The loaded model's figures of one board: frequencies, margin, amplitude, stress.
+    """The loaded model's figures of one design as ``solve`` reports them
+    (:func:`picker.circuit.figures.nominal_figures`), less its cautions and large-signal
+    object: ``simulate``'s transient check gives the run's own."""
+    from picker.circuit.figures import nominal_figures
 
-    As ``solve`` reports them (:func:`picker.circuit.figures.nominal_figures`):
-    ``f_loaded_hz`` is the large-signal model's steady frequency (the linear model's
-    where it does not start; None where it starts with no steady solution) and
-    ``startup_margin`` the large-signal model's margin.
-    """
-    from picker.circuit.amplitude import amplitude_estimate, capacitor_stress
-    from picker.circuit.oscillation import loaded_response
-    from picker.circuit.steady import steady_state
-
-    res = loaded_response(topo, board, stray, params)
-    amp = amplitude_estimate(topo, board, stray, params, res)
-    stress = capacitor_stress(topo, board, stray, params, amp)
-    ls = steady_state(topo, board, stray, params)
-    f_ss = float(ls.f_hz)
-    # no loaded frequency where it starts with no steady solution (as nominal_figures)
-    f = f_ss if bool(ls.starts) else float(res.f_hz)
-    return {
-        "f_ideal_hz": float(topo.frequency(board, stray)),
-        "f_loaded_hz": f if math.isfinite(f) else None,
-        "startup_margin": float(ls.margin),
-        "amplitude_v": float(amp.tank),
-        "overdriven": bool(amp.overdriven),
-        "peak_voltage_v": {k: float(v) for k, v in stress.items()},
-    }
+    figures = nominal_figures(topo, values, par, params)
+    return {k: figures[k] for k in _MODEL_KEYS}
 
 
 def _netlist_text(
@@ -171,7 +164,8 @@ def netlist(
         check_output(
             output, force=force, inputs=spec_inputs(spec_path)
         )  # before the solve, not after
-    spec, topo, values, board, stray, params = _design(spec_path, set_)
+    spec, topo, values, board, par, params = _design(spec_path, set_)
+    stray = float(par.stray)
     text = _netlist_text(spec, spec_path, topo, values, board, stray, params)
     if output is None:
         sys.stdout.write(text)
@@ -198,10 +192,6 @@ def _window_note(f: float | None, lo: float, hi: float, target: float) -> tuple[
     return text.replace("%", " %"), fig
 
 
-def _finite(x: float) -> float | None:
-    return x if math.isfinite(x) else None
-
-
 def simulate(
     spec_path: Path = typer.Argument(..., metavar="SPEC", help="The spec file (TOML)."),
     set_: list[str] = typer.Option(
@@ -226,13 +216,14 @@ def simulate(
     """
     from picker.circuit.ngspice import step_note
     from picker.circuit.verify import check_boards
-    from picker.units import format_quantity
+    from picker.units import format_quantity, json_number
 
     fmt = check_format(fmt, ("table", "json"))
     if not 0 < timeout <= 3600:  # also refuses nan
         raise SpecError(f"expected seconds between 0 and 3600; got {timeout}", key="--timeout")
-    spec, topo, values, board, stray, params = _design(spec_path, set_)
-    model = _figures(topo, board, stray, params)
+    spec, topo, values, board, par, params = _design(spec_path, set_)
+    stray = float(par.stray)
+    model = _model_figures(topo, values, par, params)
     lo, hi, target = spec.frequency.f_min, spec.frequency.f_max, spec.frequency.target
     try:
         (check,) = check_boards(
@@ -243,6 +234,7 @@ def simulate(
     sim, wave = check.sim, check.sim.waveform
     f_sim = check.f_sim
     note, window_fig = _window_note(f_sim, lo, hi, target)
+    wave_json = wave.to_dict()
     out = {
         "parts": {p: {"value": values[p]} for p in topo.positions},
         **model,
@@ -250,11 +242,11 @@ def simulate(
         "simulated": {
             "oscillating": sim.oscillating,
             "f_hz": f_sim,
-            "amplitude_v": wave.amplitude_v,
+            "amplitude_v": wave_json["amplitude_v"],
             "envelope": wave.state,
-            "modulation": None if not math.isfinite(wave.modulation) else wave.modulation,
-            "startup_time_s": wave.to_dict()["startup_time_s"],
-            "harmonics_dbc": wave.to_dict()["harmonics_dbc"],
+            "modulation": wave_json["modulation"],
+            "startup_time_s": wave_json["startup_time_s"],
+            "harmonics_dbc": wave_json["harmonics_dbc"],
             "cycles": check.cycles,
             "warnings": list(sim.warnings),
             **step_note(sim),
@@ -305,7 +297,7 @@ def simulate(
     if sim.coarse is not None:
         lines.append(
             f"note: at the netlist's own step ngspice showed {sim.coarse.state} "
-            f"({hz(_finite(sim.coarse.f_hz))}); at a {sim.step_refined}x finer step "
+            f"({hz(json_number(sim.coarse.f_hz))}); at a {sim.step_refined}x finer step "
             f"{wave.state} at {hz(f_sim)}: the two disagree (the "
             "trapezoidal rule's error at the netlist's step), so the finer run is reported"
         )

@@ -31,10 +31,16 @@ TEMPERATURE = "temperature"
 
 
 def _normalise(var: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """Shares of the total: 0 where there is no spread, NaN where the total is not finite."""
     total = sum(var.values())
     with np.errstate(invalid="ignore", divide="ignore"):
         return {
-            k: np.where(total > 0, v / np.where(total > 0, total, 1.0), 0.0) for k, v in var.items()
+            k: np.where(
+                np.isfinite(total),
+                np.where(total > 0, v / np.where(total > 0, total, 1.0), 0.0),
+                np.nan,
+            )
+            for k, v in var.items()
         }
 
 
@@ -77,7 +83,9 @@ def first_order_shares(
     """Each position's (and temperature's) share of var(ln f), first order.
 
     Same parameters as :func:`first_order_variances`. The shares sum to one
-    for every candidate (all zero for a candidate with no spread at all).
+    for every candidate (all zero for a candidate with no spread at all; all NaN
+    where a sensitivity is NaN, as the loaded model's is for a design with no
+    steady frequency).
 
     Returns
     -------

@@ -38,6 +38,7 @@ from picker.parts.drift import get_material
 from picker.production import tighter, trimmer
 from picker.production.tighter import YieldFn
 from picker.tank.board import board_beta, board_scale, board_shunt, board_values
+from picker.units import json_number
 
 #: ``recentre(position) -> values`` the trimmer advice may re-centre a position to, (n,) float.
 Recentre = Callable[[str], np.ndarray]
@@ -402,7 +403,7 @@ def trimmer_advice(
         "share": best.share,
         "trimmer": None if t is None else {"min_f": t.c_min, "max_f": t.c_max},
         "tunable": best.tunable,
-        "required_f": [float(x) if np.isfinite(x) else None for x in best.required],
+        "required_f": [json_number(x) for x in best.required],
         "recentre": {"position": pos, "from": float(marked[pos]), "to": float(new)},
         "temperatures_c": [float(x) for x in sim.temperatures],
     }

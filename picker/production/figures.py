@@ -22,7 +22,6 @@ design only, which bounds their time.
 
 from __future__ import annotations
 
-import math
 from dataclasses import replace
 from typing import Any
 
@@ -59,6 +58,7 @@ from picker.production.advice import (
 from picker.production.drivers import board_frequencies, model_sensitivities, regression_fit
 from picker.tank.base import COUPLING
 from picker.tank.board import board_frequency, board_values
+from picker.units import json_number
 
 #: Rows of u used for drivers, buy-tighter and plot figures (2^17, a Sobol block).
 EXTRAS_ROWS = 1 << 17
@@ -142,10 +142,6 @@ def _worst_drift_index(sim: Simulation, d1: Designs) -> int:
     return int(np.argmax(per_t))
 
 
-def _finite_or_none(x: float) -> float | None:
-    return x if math.isfinite(x) else None
-
-
 def monte_carlo_drivers(
     sim: Simulation, d1: Designs, u: np.ndarray, with_temperature: bool
 ) -> dict[str, Any]:
@@ -178,8 +174,8 @@ def monte_carlo_drivers(
     fit = regression_fit(inputs, ln_f)
     # null where fewer than two boards oscillate (regression_fit: no spread to apportion)
     out: dict[str, Any] = {
-        "shares": {k: _finite_or_none(v) for k, v in fit.shares.items()},
-        "r2": _finite_or_none(fit.r2),
+        "shares": {k: json_number(v) for k, v in fit.shares.items()},
+        "r2": json_number(fit.r2),
     }
     if t_worst is not None:
         out["temperature_c"] = t_worst
@@ -294,7 +290,7 @@ def extras(
     ux = head(u, EXTRAS_ROWS)  # a bounded subsample of the run's rows
     shares = first_order(sim, designs, with_t)
     out: list[dict[str, Any]] = [
-        {"drivers": {k: float(v[r]) for k, v in shares.items()}} for r in range(n)
+        {"drivers": {k: json_number(v[r]) for k, v in shares.items()}} for r in range(n)
     ]
     for r in range(n):
         out[r]["drivers_mc"] = monte_carlo_drivers(sim, single(designs, r), ux, with_t)

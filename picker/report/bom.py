@@ -54,7 +54,7 @@ from picker.errors import SpecError
 from picker.files import atomic_write, csv_safe
 from picker.report.csvfile import BOM, CSV_LINE_END
 from picker.spec.stock import StockList, load_stock, unit_price
-from picker.units import format_percent, format_quantity
+from picker.units import format_percent, format_quantity, json_number
 
 if TYPE_CHECKING:  # the plan runner pulls in ortools: only for the type
     from picker.api.plan import PlanRun
@@ -80,17 +80,17 @@ UNIT = {"C": "F", "L": "H"}
 
 def _num(x: float) -> float | int | None:
     """A JSON-ready number: None for NaN/inf, ints kept whole, prices without float noise."""
-    if x is None or not math.isfinite(x):
-        return None
-    if float(x).is_integer() and abs(x) < 2**53:
-        return int(x)
-    return float(x)
+    v = json_number(x)
+    if v is not None and v.is_integer() and abs(v) < 2**53:
+        return int(v)
+    return v
 
 
 def _price(x: float | None) -> float | None:
     # 1e-9 of a currency unit is far below any real price step; it removes
     # float noise such as 2.0000000000000004 from unit price x quantity
-    return None if x is None or not math.isfinite(x) else round(float(x), 9)
+    v = json_number(x)
+    return None if v is None else round(v, 9)
 
 
 def _described(stocks: Sequence[StockList]) -> tuple[list[str], dict[str, dict[str, str]]]:

@@ -19,7 +19,7 @@ from rich.table import Table
 
 from picker.calibration.result import CalibrationResult, format_parameter
 from picker.report.text import plain
-from picker.units import format_quantity
+from picker.units import format_quantity, json_number
 
 __all__ = [
     "SHOWN_OUTLIERS",
@@ -40,11 +40,6 @@ TABLE_UNITS = 50
 WORST_UNITS = 10
 #: Outlier ids named in a large batch's summary.
 SHOWN_OUTLIERS = 10
-
-
-def _num(x: float) -> float | None:
-    x = float(x)
-    return x if math.isfinite(x) else None
 
 
 def parameter_text(unit: str, x: float, digits: int = 4) -> str:
@@ -74,14 +69,14 @@ def result_dict(
         "topology": r.topology,
         "units": len(r.unit_ids),
         "loss": r.loss,
-        "f_scale": _num(r.f_scale) if r.f_scale is not None else None,
+        "f_scale": json_number(r.f_scale) if r.f_scale is not None else None,
         "fitted": list(r.fitted),
         "parameters": {
             p.name: {
-                "estimate": _num(p.estimate),
-                "std_error": _num(p.std_error),
-                "ci_low": _num(p.ci_low),
-                "ci_high": _num(p.ci_high),
+                "estimate": json_number(p.estimate),
+                "std_error": json_number(p.std_error),
+                "ci_low": json_number(p.ci_low),
+                "ci_high": json_number(p.ci_high),
                 "unit": p.unit,
                 "fitted": p.fitted,
             }
@@ -89,7 +84,7 @@ def result_dict(
         },
         "confidence": r.confidence,
         "dof": r.dof,
-        "residual_scale": _num(r.residual_scale),
+        "residual_scale": json_number(r.residual_scale),
         "residual_scale_unit": "sigma" if r.sigma is not None else "ppm",
         "residuals": [_residual(r, i, rows) for i in range(len(r.unit_ids))]
         if with_residuals
@@ -99,9 +94,9 @@ def result_dict(
                 "parasitic": st.name,
                 "kept": st.kept,
                 "test": st.test or None,
-                "statistic": _num(st.statistic),
+                "statistic": json_number(st.statistic),
                 "df": list(st.df),
-                "p_value": _num(st.p_value),
+                "p_value": json_number(st.p_value),
                 "reason": st.reason,
             }
             for st in r.selection
@@ -109,7 +104,7 @@ def result_dict(
         "identifiable": r.identifiable,
         "combinations": {k: dict(v) for k, v in r.aliases.items()},
         "outliers": list(r.outliers),
-        "outlier_threshold": _num(r.outlier_threshold),
+        "outlier_threshold": json_number(r.outlier_threshold),
         "notes": [*r.notes, *extra_notes],
     }
 
@@ -118,11 +113,11 @@ def _residual(r: CalibrationResult, i: int, rows: Sequence[int] | None) -> dict[
     return {
         "unit": r.unit_ids[i],
         **({"row": int(rows[i])} if rows is not None else {}),
-        "f_measured_hz": _num(r.f_measured[i]),
-        "f_fitted_hz": _num(r.f_fitted[i]),
-        "residual_hz": _num(r.residual_hz[i]),
-        "residual_ppm": _num(r.residual_ppm[i]),
-        "studentized": _num(r.studentized[i]),
+        "f_measured_hz": json_number(r.f_measured[i]),
+        "f_fitted_hz": json_number(r.f_fitted[i]),
+        "residual_hz": json_number(r.residual_hz[i]),
+        "residual_ppm": json_number(r.residual_ppm[i]),
+        "studentized": json_number(r.studentized[i]),
     }
 
 

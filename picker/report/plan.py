@@ -24,20 +24,16 @@ from picker.buyer.model import PlanSummary
 from picker.report.bom import bom_rows, plan_currency, plan_designators, plan_stocks
 from picker.report.designs import candidate_dict
 from picker.report.text import Col, pct, pct_range, plain, print_fitted
-from picker.units import format_percent, format_quantity
+from picker.units import format_percent, format_quantity, json_number
 
 __all__ = ["plan_dict", "print_table"]
-
-
-def _num(x: float | None) -> float | None:
-    return float(x) if x is not None and math.isfinite(x) else None
 
 
 def _summary(s: PlanSummary) -> dict[str, Any]:
     return {
         "choice": dict(s.choice),
         "distinct_parts": s.distinct_parts,
-        "cost": _num(round(s.cost, 9)),
+        "cost": json_number(round(s.cost, 9)),
         "yield_loss": s.yield_loss,
         "stock_ok": s.stock_ok,
         "unpriced_parts": list(s.unpriced),
@@ -57,10 +53,10 @@ def plan_dict(run: PlanRun) -> dict[str, Any]:
         "build_quantity": ps.build_quantity,
         "priorities": list(r.priorities),
         "distinct_parts": r.plan.distinct_parts if r.plan else None,
-        "cost": _num(round(r.plan.cost, 9)) if r.plan else None,
+        "cost": json_number(round(r.plan.cost, 9)) if r.plan else None,
         "objective": dict(r.objective),
         "bounds": dict(r.bounds),
-        "saving": {k: v if k == "parts" else _num(round(v, 9)) for k, v in r.saving.items()},
+        "saving": {k: v if k == "parts" else json_number(round(v, 9)) for k, v in r.saving.items()},
         "baseline": _summary(r.baseline),
         "eligible_candidates": dict(r.eligible),
         # no timings in JSON (same plan, same bytes)

@@ -102,10 +102,15 @@ def print_drivers(x: dict, console: Console) -> None:
     if mc and all(v is None for v in mc.values()):
         _say(console, "  none: fewer than two simulated boards oscillate steadily")
         return
-    keys = sorted(sh, key=lambda k: (-sh[k], k))
+    # a first-order share is None where the nominal design has no steady frequency
+    keys = sorted(sh, key=lambda k: (-(sh[k] if sh[k] is not None else mc.get(k) or 0.0), k))
     cols = [
         Col("input", [plain(k) for k in keys], justify="left", essential=True),
-        Col("first order", [_pct(sh[k]) for k in keys], essential=True),
+        Col(
+            "first order",
+            [_pct(sh[k]) if sh[k] is not None else "—" for k in keys],
+            essential=True,
+        ),
         Col(
             "Monte Carlo",
             [_pct(mc[k]) if mc.get(k) is not None else "—" for k in keys],
