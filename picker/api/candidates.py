@@ -217,7 +217,8 @@ def production_extras(
 ) -> list[dict[str, Any]]:
     """Extra per-candidate figures of the production view (JSON fields), one dict each.
 
-    ``drivers`` (name -> first-order variance share), ``drivers_mc``,
+    ``drivers`` (name -> first-order variance share; None where the nominal design has no
+    steady frequency), ``drivers_mc``,
     ``yield_over_temperature``, ``tighter`` (best few), ``tighter_plan`` and
     ``trimmer`` (best design, below the yield target): see :mod:`picker.production.figures`.
     """
