@@ -8,6 +8,7 @@ example frequency (1.047686 MHz) for a formatting case.
 
 from __future__ import annotations
 
+import json
 import math
 
 import numpy as np
@@ -382,8 +383,6 @@ def test_parse_tolerance_only_raises_spec_error(text):
 def test_json_number_nulls_what_json_cannot_write():
     # RFC 8259 section 6: JSON numbers have no NaN or infinity, so these become null;
     # a NumPy scalar or 0-d array must come out as a plain float of the same value.
-    import json
-
     for bad in (math.nan, math.inf, -math.inf, np.float64("nan"), np.array(np.inf), None):
         assert json_number(bad) is None
     for x in (np.float64(2.5e-9), np.array(-1.25), np.float32(0.5), 7, 0.0):

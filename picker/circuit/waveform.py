@@ -109,17 +109,16 @@ class WaveformMeasurement:
 
     def to_dict(self) -> dict[str, object]:
         """Plain JSON-ready numbers (NaN as None)."""
-        num = json_number
         return {
             "state": self.state,
-            "f_hz": num(self.f_hz),
-            "amplitude_v": num(self.amplitude_v),
-            "fundamental_v": num(self.fundamental_v),
-            "modulation": num(self.modulation),
-            "envelope_low_v": num(self.envelope_low),
-            "envelope_high_v": num(self.envelope_high),
-            "startup_time_s": num(self.startup_time_s),
-            "harmonics_dbc": [num(h) for h in self.harmonics_dbc],
+            "f_hz": json_number(self.f_hz),
+            "amplitude_v": json_number(self.amplitude_v),
+            "fundamental_v": json_number(self.fundamental_v),
+            "modulation": json_number(self.modulation),
+            "envelope_low_v": json_number(self.envelope_low),
+            "envelope_high_v": json_number(self.envelope_high),
+            "startup_time_s": json_number(self.startup_time_s),
+            "harmonics_dbc": [json_number(h) for h in self.harmonics_dbc],
         }
 
 
