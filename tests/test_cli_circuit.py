@@ -99,9 +99,12 @@ def test_netlist_without_output_goes_to_stdout(spec, tmp_path, capsys):
 
 
 @pytest.mark.ngspice
-def test_simulate_table_says_window_and_verdict(spec, capsys):
+def test_simulate_table_says_window_and_verdict(spec, capsys, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "80")
     assert _run(["simulate", str(spec), *SETS]) in (0, None)
     out = capsys.readouterr().out
+    assert max(len(line) for line in out.splitlines()) <= 80  # an 80-column terminal
+    out = " ".join(out.split())  # the long lines wrap at the width
     # the window is 1.29 MHz ± 3 %: 1.2513 MHz to 1.3287 MHz
     assert "window 1.2513 MHz to 1.3287 MHz:" in out
     assert "inside the window" in out and "verdict: ok" in out

@@ -67,9 +67,16 @@ def test_a_board_called_bursting_takes_its_run_from_rest(monkeypatch, run_state)
     # (ngspice's reading of hy015 of the Hartley set moved over 790-1114 kHz with its step
     # and run length, tests/validation/README.md), and only there
     text = verify_text([DesignCheck(1, [check])], 1.0)
-    assert (BURST_CARRIER_CAUTION in text) == (run_state == "bursting")
+    flat = " ".join(text.split())  # the notes wrap at the width
+    assert (BURST_CARRIER_CAUTION in flat) == (run_state == "bursting")
     # and says where the model's column comes from, naming the board
-    assert "come from the board's own circuit run from rest" in text and "1 nominal" in text
+    assert "come from the board's own circuit run from rest" in flat and "1 nominal" in flat
+    # an 80-column terminal gets the tables whole: no line wider, no figure broken
+    narrow = verify_text([DesignCheck(1, [check])], 1.0, width=80)
+    assert max(len(line) for line in narrow.splitlines()) <= 80
+    f_text = f"{m['f_hz'] / 1e6:.6g} MHz"  # the demo runs near 4.9 MHz
+    row = next(line for line in narrow.splitlines() if "nominal" in line and "MHz" in line)
+    assert f_text in row and f"{100 * (m['f_hz'] / check.f_sim - 1.0):+.2f} %" in row
 
 
 def test_run_hint_picks_bursting_and_relaxing_designs():

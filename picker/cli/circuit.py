@@ -21,6 +21,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import typer
+from rich.console import Console
 
 from picker.cli.options import check_format, parse_assignments, spec_inputs, unit_of
 from picker.errors import InfeasibleError, SpecError
@@ -44,6 +45,8 @@ RUN_FROM_REST_NOTE = (
 )
 
 if TYPE_CHECKING:
+    from rich.console import JustifyMethod
+
     from picker.api.results import SolveResult
     from picker.api.verify import DesignCheck
     from picker.circuit.amplifier import AmplifierParams
@@ -302,7 +305,17 @@ def simulate(
             "trapezoidal rule's error at the netlist's step), so the finer run is reported"
         )
     lines += [f"ngspice: {w}" for w in sim.warnings]
-    typer.echo("\n".join(lines))
+    typer.echo(_fit(lines, Console().width))
+
+
+def _fit(lines: list[str], width: int) -> str:
+    """``lines`` joined, each wider than ``width`` wrapped at its words (rest indented)."""
+    import textwrap
+
+    return "\n".join(
+        textwrap.fill(line, width, subsequent_indent="  ") if len(line) > width else line
+        for line in lines
+    )
 
 
 # ---------------------------------------------------------------- --verify of solve/evaluate
@@ -332,7 +345,8 @@ def verify_dict(checks: list[DesignCheck], seconds: float) -> dict[str, Any]:
     }
 
 
-def _board_row(rank: str, b: BoardCheck) -> str:
+def _board_cells(b: BoardCheck) -> tuple[list[str], list[str]]:
+    """One board's cells of the two ``--verify`` tables: (frequency, waveform)."""
     from picker.units import format_quantity
 
     def hz(x: float | None) -> str:
@@ -343,35 +357,19 @@ def _board_row(rank: str, b: BoardCheck) -> str:
 
     f_model, f_sim = b.model["f_hz"], b.f_sim
     diff = "-" if f_model is None or f_sim is None else f"{f_model / f_sim - 1:+.2%}"
-    where = {None: "-", True: "in", False: "out"}[b.in_window]
     wave = b.sim.waveform
     amp_sim = volts(wave.amplitude_v) if b.sim.oscillating else "-"
     start = wave.startup_time_s
     start_text = "-" if not math.isfinite(start) else format_quantity(start, "s", digits=3)
     return (
-        f"{rank:>4}  {b.label:11} {hz(f_model):>13} {hz(f_sim):>13} {diff.replace('%', ' %'):>9}"
-        f"  {where:6} {volts(b.model['amplitude_v']):>9} {amp_sim:>9}  {wave.state:9}"
-        f" {start_text:>9}  {b.verdict}"
+        [hz(f_model), hz(f_sim), diff.replace("%", " %"), b.verdict],
+        [volts(b.model["amplitude_v"]), amp_sim, wave.state, start_text],
     )
 
 
-def verify_text(checks: list[DesignCheck], seconds: float) -> str:
-    """The ``--verify`` table: model against ngspice per board, a verdict per design."""
-    from picker.circuit.verify import WORKERS
-
-    boards = sum(len(c.boards) for c in checks)
-    per = len(checks[0].boards) if checks else 0
-    what = "nominal and the two tolerance corners" if per == 3 else "nominal"
-    lines = [
-        f"ngspice check of the top {len(checks)}: {what} ({boards} transients, "
-        f"{WORKERS} processes, {seconds:.1f} s)",
-        f"{'rank':>4}  {'board':11} {'f model':>13} {'f ngspice':>13} {'model-sim':>9}"
-        f"  {'window':6} {'amp model':>9} {'amp sim':>9}  {'envelope':9} {'start-up':>9}  verdict",
-    ]
-    for c in checks:
-        for i, b in enumerate(c.boards):
-            lines.append(_board_row(str(c.rank) if i == 0 else "", b))
-    lines += [f"design {c.rank}: {c.verdict}" for c in checks]
+def _notes(checks: list[DesignCheck]) -> list[str]:
+    """The cautions and notes under the ``--verify`` tables."""
+    lines = []
     if any(
         "bursting" in (b.sim.waveform.state, b.model.get("envelope"))
         for c in checks
@@ -402,7 +400,63 @@ def verify_text(checks: list[DesignCheck], seconds: float) -> str:
             "note: read at a finer step where the netlist's own step disagreed with it (the "
             "trapezoidal rule's error): " + ", ".join(refined)
         )
-    return "\n".join(lines) + "\n"
+    return lines
+
+
+#: Columns of the two ``--verify`` tables after rank and board (header, justification).
+#: Whether a board lands in the window is in its verdict ("below the window"); JSON has
+#: ``in_window`` too.
+_FREQUENCY_COLUMNS: tuple[tuple[str, JustifyMethod], ...] = (
+    ("f model", "right"),
+    ("f ngspice", "right"),
+    ("model\n− sim", "right"),
+    ("verdict", "left"),
+)
+_WAVEFORM_COLUMNS: tuple[tuple[str, JustifyMethod], ...] = (
+    ("amplitude\nmodel", "right"),
+    ("amplitude\nngspice", "right"),
+    ("envelope\n(ngspice)", "left"),
+    ("start-up\n(ngspice)", "right"),
+)
+
+
+def verify_text(checks: list[DesignCheck], seconds: float, width: int | None = None) -> str:
+    """The ``--verify`` check as text ``width`` columns wide (100 when None): the model
+    against ngspice per board in two tables (frequency and verdict; amplitude, envelope
+    and start-up), a verdict per design, then the cautions."""
+    import io
+
+    from rich.table import Table
+
+    from picker.circuit.verify import WORKERS
+
+    width = width or 100
+    boards = sum(len(c.boards) for c in checks)
+    per = len(checks[0].boards) if checks else 0
+    what = "nominal and the two tolerance corners" if per == 3 else "nominal"
+    stream = io.StringIO()
+    console = Console(file=stream, width=width, highlight=False, color_system=None)
+    console.print(
+        f"ngspice check of the top {len(checks)}: {what} ({boards} transients, "
+        f"{WORKERS} processes, {seconds:.1f} s)"
+    )
+    for title, columns, part in (
+        ("Frequency", _FREQUENCY_COLUMNS, 0),
+        ("Waveform", _WAVEFORM_COLUMNS, 1),
+    ):
+        table = Table(title=title, title_justify="left")
+        table.add_column("#", justify="right", no_wrap=True)
+        table.add_column("board", no_wrap=True)
+        for name, justify in columns:
+            # the figures stay whole; the verdict wraps (its words are the cell's breaks)
+            table.add_column(name, justify=justify, no_wrap=name != "verdict")
+        for c in checks:
+            for i, b in enumerate(c.boards):
+                table.add_row(str(c.rank) if i == 0 else "", b.label, *_board_cells(b)[part])
+        console.print(table)
+    text = "".join(line.rstrip() + "\n" for line in stream.getvalue().splitlines())
+    lines = [f"design {c.rank}: {c.verdict}" for c in checks] + _notes(checks)
+    return text + _fit(lines, width) + "\n"
 
 
 def register(app: typer.Typer) -> None:

@@ -9,7 +9,8 @@ from __future__ import annotations
 
 import json
 import sys
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
+from functools import partial
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, NamedTuple
 
@@ -109,14 +110,17 @@ def _write_report(
     sys.stderr.write(f"picker: wrote {report}\n")
 
 
-def _verify(result: SolveResult, count: int | None) -> tuple[dict[str, Any], str] | None:
-    """``--verify``: the ngspice check of the top designs (JSON object, table text)."""
+def _verify(
+    result: SolveResult, count: int | None
+) -> tuple[dict[str, Any], Callable[[int | None], str]] | None:
+    """``--verify``: the ngspice check of the top designs (JSON object, and the tables as
+    text for a given width)."""
     if count is None or not result.candidates:
         return None
     from picker.cli.circuit import run_verify, verify_dict, verify_text
 
     checks, seconds = run_verify(result, count)
-    return verify_dict(checks, seconds), verify_text(checks, seconds)
+    return verify_dict(checks, seconds), partial(verify_text, checks, seconds)
 
 
 def _html_as_report(
@@ -145,7 +149,7 @@ def _emit(
     output: Path | None,
     force: bool,
     inputs: Iterable[Path],
-    verify: tuple[dict[str, Any], str] | None = None,
+    verify: tuple[dict[str, Any], Callable[[int | None], str]] | None = None,
 ) -> None:
     """Write the result as ``fmt`` to ``output``, or to stdout (with ``--verify``'s check:
     under ``ngspice_check`` in JSON, as a table after the table, on stderr beside CSV)."""
@@ -161,14 +165,14 @@ def _emit(
     elif fmt == "csv":
         text = report.to_csv(result)
         if verify is not None:
-            sys.stderr.write(verify[1])
+            sys.stderr.write(verify[1](Console(stderr=True).width))
     else:
         text = None
     if output is not None:
         if text is None:
             text = report.table_text(result, width=None)
             if verify is not None:
-                text += "\n" + verify[1]
+                text += "\n" + verify[1](None)
         elif fmt == "csv":  # a file: with a byte-order mark, so spreadsheets read UTF-8
             text = BOM + text
         _wrote([atomic_write(output, text, force=force, inputs=inputs)])
@@ -176,9 +180,10 @@ def _emit(
     if text is not None:
         sys.stdout.write(text)
     else:
-        report.print_table(result, Console(highlight=False))
+        console = Console(highlight=False)
+        report.print_table(result, console)
         if verify is not None:
-            sys.stdout.write("\n" + verify[1])
+            sys.stdout.write("\n" + verify[1](console.width))
 
 
 _FORMAT_HELP = "table, json or csv (default: from the -o file's extension, else table)."
@@ -259,7 +264,7 @@ def _after_run(
     checked = _verify(result, vcount)
     if run.html_only:  # -o FILE.html: the page is the output; a --verify table goes to stderr
         if checked is not None:
-            sys.stderr.write(checked[1])
+            sys.stderr.write(checked[1](Console(stderr=True).width))
     else:
         _emit(result, run.fmt, run.output, force, spec_inputs(spec), checked)
 
@@ -298,7 +303,9 @@ def solve(
     bom: Path | None = _BOM_OPT,
     report: Path | None = _REPORT_OPT,
     verify: bool = _VERIFY_OPT,
-    verify_top: int = typer.Option(5, "--verify-top", min=1, max=50, help=VERIFY_TOP_HELP),
+    verify_top: int = typer.Option(
+        5, "--verify-top", min=1, max=50, metavar="N", show_default=False, help=VERIFY_TOP_HELP
+    ),
 ) -> None:
     """Search every standard-value design in the window and rank them by yield."""
     from picker import api
