@@ -177,6 +177,13 @@ def netlist(
     typer.echo(f"wrote {output}")
 
 
+def _shown(x: float | None, unit: str, digits: int = 6) -> str:
+    """``x`` in engineering text, "-" where it is missing or not finite."""
+    from picker.units import format_quantity
+
+    return "-" if x is None or not math.isfinite(x) else format_quantity(x, unit, digits=digits)
+
+
 def _window_note(f: float | None, lo: float, hi: float, target: float) -> tuple[str, Any]:
     """The simulated carrier against the window: a line of text and the JSON figures."""
     if f is None:
@@ -262,13 +269,13 @@ def simulate(
         return
 
     def hz(x: float | None) -> str:
-        return "-" if x is None else format_quantity(x, "Hz")
+        return _shown(x, "Hz")
 
     def sec(x: float | None) -> str:
-        return "-" if x is None or not math.isfinite(x) else format_quantity(x, "s")
+        return _shown(x, "s")
 
     def volts(x: float | None) -> str:
-        return "-" if x is None or not math.isfinite(x) else format_quantity(x, "V")
+        return _shown(x, "V")
 
     ls = check.model
     parts = "  ".join(f"{p} {format_quantity(values[p], topo.unit(p))}" for p in topo.positions)
@@ -347,20 +354,19 @@ def verify_dict(checks: list[DesignCheck], seconds: float) -> dict[str, Any]:
 
 def _board_cells(b: BoardCheck) -> tuple[list[str], list[str]]:
     """One board's cells of the two ``--verify`` tables: (frequency, waveform)."""
-    from picker.units import format_quantity
 
     def hz(x: float | None) -> str:
-        return "-" if x is None else format_quantity(x, "Hz")
+        return _shown(x, "Hz")
 
     def volts(x: float | None) -> str:
-        return "-" if x is None or not math.isfinite(x) else format_quantity(x, "V", digits=3)
+        return _shown(x, "V", digits=3)
 
     f_model, f_sim = b.model["f_hz"], b.f_sim
     diff = "-" if f_model is None or f_sim is None else f"{f_model / f_sim - 1:+.2%}"
     wave = b.sim.waveform
     amp_sim = volts(wave.amplitude_v) if b.sim.oscillating else "-"
     start = wave.startup_time_s
-    start_text = "-" if not math.isfinite(start) else format_quantity(start, "s", digits=3)
+    start_text = _shown(start, "s", digits=3)
     return (
         [hz(f_model), hz(f_sim), diff.replace("%", " %"), b.verdict],
         [volts(b.model["amplitude_v"]), amp_sim, wave.state, start_text],
