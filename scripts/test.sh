@@ -36,6 +36,11 @@ python3 -m venv "$VENV"
 "$VENV/bin/ruff" format --check picker tests scripts
 "$VENV/bin/mypy"
 # Run from a scratch folder so the tests import the installed package, not the source tree.
+# The tests run on as many processes as the machine has cores (pytest-xdist;
+# PICKER_TEST_WORKERS overrides), a whole test file to each process at a time so a
+# file's shared fixtures are computed once.
 ROOT="$(pwd)"
+WORKERS="${PICKER_TEST_WORKERS:-$(nproc 2>/dev/null || echo 1)}"
 cd "$(mktemp -d)"
-"$ROOT/$VENV/bin/python" -m pytest "$ROOT/tests" -c "$ROOT/pyproject.toml" --rootdir "$ROOT" "$@"
+"$ROOT/$VENV/bin/python" -m pytest "$ROOT/tests" -c "$ROOT/pyproject.toml" --rootdir "$ROOT" \
+  -n "$WORKERS" --dist loadfile "$@"
