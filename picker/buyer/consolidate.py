@@ -21,7 +21,9 @@ before the model is built (a channel with none left makes the plan infeasible,
 and says so), and so are the candidates the exact reductions of
 :mod:`picker.buyer.reductions` rule out (stock-impossible, dominated, and, with
 parts first, those outside every fewest-parts cover, whose size the branch and
-bound of :mod:`picker.buyer.partcover` proves and adds as ``Σ u[p] ≥ k``).
+bound of :mod:`picker.buyer.partcover` proves and adds as ``Σ u[p] ≥ k``; when no
+plan inside those covers fits the stock, the fewest is above k and the filter
+is dropped: a plan of more parts may use any candidate).
 
 Lexicographic objective: **sequential solves**. The first priority is
 minimised; its optimum is fixed as a constraint (``==`` when proven optimal,
@@ -230,14 +232,19 @@ def consolidate(
         if choice is not None:
             budget = max(budget, 0.5)
         solver, st = model.solve(model.objectives[prio], time_limit=budget, workers=workers)
-        if st == cp_model.INFEASIBLE and choice is None and info.get("cover_filter"):
-            # no fewest-parts cover fits the stock: more parts are needed; drop the filter
+        if choice is None and info.get("cover_filter") and _no_plan_of_fewest(solver, st, lower):
+            # No plan inside a fewest-parts cover fits the stock: more parts are needed,
+            # and a plan with more parts may use candidates outside every such cover
+            # (the filter is exact only for plans of the fewest parts), so drop it.
+            found = model.choice(solver) if st == cp_model.OPTIMAL else None
             model = PlanModel(
                 channels, info["undominated_candidates"], catalogue, build_qty, stock_on_hand
             )
             assert lower is not None  # the cover filter is on only after a proven bound
             lower += 1
             model.m.add(model.objectives["parts"] >= lower)
+            if found is not None:
+                model.hint(found)
             info = {**info, "cover_filter": False, "parts_lower_bound": lower}
             solver, st = model.solve(model.objectives[prio], time_limit=budget, workers=workers)
         if st == cp_model.INFEASIBLE and choice is None:
@@ -317,6 +324,19 @@ def consolidate(
         counts,
         {k: v for k, v in info.items() if k != "undominated_candidates"},
     )
+
+
+def _no_plan_of_fewest(
+    solver: cp_model.CpSolver, status: cp_model.CpSolverStatus, fewest: int | None
+) -> bool:
+    """Has the fewest-parts solve inside the covers proven that no plan of ``fewest`` parts fits?
+
+    Infeasible, or optimal above ``fewest``: every plan of that many parts lies inside
+    one of the covers, so none exists.
+    """
+    if status == cp_model.INFEASIBLE:
+        return True
+    return status == cp_model.OPTIMAL and fewest is not None and solver.objective_value > fewest
 
 
 def _scaled_value(model: PlanModel, prio: str, choice: dict[str, int]) -> int:

@@ -354,22 +354,18 @@ def verify_dict(checks: list[DesignCheck], seconds: float) -> dict[str, Any]:
 
 def _board_cells(b: BoardCheck) -> tuple[list[str], list[str]]:
     """One board's cells of the two ``--verify`` tables: (frequency, waveform)."""
-
-    def hz(x: float | None) -> str:
-        return _shown(x, "Hz")
-
-    def volts(x: float | None) -> str:
-        return _shown(x, "V", digits=3)
-
     f_model, f_sim = b.model["f_hz"], b.f_sim
     diff = "-" if f_model is None or f_sim is None else f"{f_model / f_sim - 1:+.2%}"
     wave = b.sim.waveform
-    amp_sim = volts(wave.amplitude_v) if b.sim.oscillating else "-"
-    start = wave.startup_time_s
-    start_text = _shown(start, "s", digits=3)
+    amp_sim = _shown(wave.amplitude_v, "V", digits=3) if b.sim.oscillating else "-"
     return (
-        [hz(f_model), hz(f_sim), diff.replace("%", " %"), b.verdict],
-        [volts(b.model["amplitude_v"]), amp_sim, wave.state, start_text],
+        [_shown(f_model, "Hz"), _shown(f_sim, "Hz"), diff.replace("%", " %"), b.verdict],
+        [
+            _shown(b.model["amplitude_v"], "V", digits=3),
+            amp_sim,
+            wave.state,
+            _shown(wave.startup_time_s, "s", digits=3),
+        ],
     )
 
 
