@@ -36,11 +36,13 @@ python3 -m venv "$VENV"
 "$VENV/bin/ruff" format --check picker tests scripts
 "$VENV/bin/mypy"
 # Run from a scratch folder so the tests import the installed package, not the source tree.
-# The tests run on as many processes as the machine has cores (pytest-xdist;
-# PICKER_TEST_WORKERS overrides), a whole test file to each process at a time so a
-# file's shared fixtures are computed once.
+# The tests run on two processes, or one on a one-core machine (pytest-xdist;
+# PICKER_TEST_WORKERS overrides: a container may report the host's cores, not its
+# own, and each process holds a few hundred MB), a whole test file to each process
+# at a time so a file's shared fixtures are computed once.
 ROOT="$(pwd)"
-WORKERS="${PICKER_TEST_WORKERS:-$(nproc 2>/dev/null || echo 1)}"
+CORES="$(nproc 2>/dev/null || echo 1)"
+WORKERS="${PICKER_TEST_WORKERS:-$(( CORES < 2 ? CORES : 2 ))}"
 cd "$(mktemp -d)"
 "$ROOT/$VENV/bin/python" -m pytest "$ROOT/tests" -c "$ROOT/pyproject.toml" --rootdir "$ROOT" \
   -n "$WORKERS" --dist loadfile "$@"
