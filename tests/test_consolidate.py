@@ -377,3 +377,37 @@ def test_fewest_parts_cover_short_of_stock_falls_back():
     # ch0 on S (0.9) and ch1 on B (0.7), or ch0 on A (0.8) and ch1 on S (0.9)
     assert res.plan.choice == {"ch0": 1, "ch1": 0}
     assert res.plan.stock_ok
+
+
+def test_a_time_limited_plan_inside_the_covers_is_not_called_optimal(monkeypatch):
+    """The case of _STOCK_BREAKS_THE_COVER with the fewest-parts solve stopped by the
+    time limit (its status forced to FEASIBLE; the solver's figures are its own): its
+    4-part plan lies inside the 3-part covers, where the cost stage cannot reach the
+    cheapest 4-part plan, so the result may not claim to be optimal, and its parts
+    bound is what is proven outside the covers (no plan of 3 parts: 4)."""
+    from ortools.sat.python import cp_model
+
+    from picker.buyer.model import PlanModel
+
+    real = PlanModel.solve
+    calls = []
+
+    def first_call_stopped(self, objective, **kw):
+        solver, status = real(self, objective, **kw)
+        calls.append(status)
+        if len(calls) == 1 and status == cp_model.OPTIMAL:
+            status = cp_model.FEASIBLE
+        return solver, status
+
+    monkeypatch.setattr(PlanModel, "solve", first_call_stopped)
+    inst = _STOCK_BREAKS_THE_COVER
+    channels, catalogue = _to_model(inst)
+    res = consolidate(
+        channels, build_qty=inst["build"], catalogue=catalogue, priorities=("parts", "cost")
+    )
+    assert res.reductions["cover_filter"]  # the filter was on for the stopped solve
+    assert calls[0] == cp_model.OPTIMAL  # inside the covers the solver had proven 4
+    assert res.status == "feasible"
+    assert res.objective["parts"] == 4 and res.bounds["parts"] == 4
+    # the plan is a real one: its figures are the plan's own
+    assert res.plan.distinct_parts == 4 and res.plan.stock_ok

@@ -275,7 +275,16 @@ def consolidate(
         else:
             model.m.add(obj <= value)
             bound = math.ceil(solver.best_objective_bound - 1e-9)
-            if prio == "parts" and lower is not None:
+            narrowed = info.get("cover_filter") and lower is not None and value > lower
+            if narrowed:
+                # Stopped by the time limit inside the covers with a plan above k: the
+                # solver's bound holds inside the covers only (above k there it proves
+                # only that no plan of k parts exists), and the later priorities would
+                # search inside the covers, exact only for plans of k parts.
+                assert lower is not None
+                bound = lower + 1 if bound > lower else lower
+                status = "feasible"
+            elif prio == "parts" and lower is not None:
                 bound = max(bound, lower)  # proven by the cover search
             if bound < value:
                 status = "feasible"
