@@ -144,7 +144,8 @@ c_coupling = "93.9 nF"
 samples = 500
 seed = 1
 """
-#: hs004 of the set (steady in ngspice at 130.3 kHz, no steady state in the model)
+#: hs004 of the set (no steady state in the model; in ngspice a pulse train repeating at
+#: 32.3 kHz, a quarter of the tank's 127 kHz)
 HS004 = ["L1=420u", "L2=124u", "C=3.24n", "CS=3.05n"]
 
 

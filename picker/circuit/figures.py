@@ -192,7 +192,7 @@ def nominal_figures(
     f_ss = float(ls.f_hz[0])
     # a design that starts with no steady solution has no loaded frequency: its start-up
     # pole's (the linear model's) is not where the board runs (hs004 of the series-capacitor
-    # Hartley set: 161.7 kHz linear, ngspice 130.3 kHz)
+    # Hartley set: 161.7 kHz linear; in ngspice a pulse train repeating at 32.3 kHz)
     f = f_lin if not bool(ls.starts[0]) else f_ss
     m = float(ls.margin[0])
     scal = {p: float(v[0]) for p, v in board.items()}

@@ -54,6 +54,7 @@ from picker.units import json_number
 
 __all__ = [
     "BURST_RATIO",
+    "COMB",
     "LOCKED",
     "STEADY_MODULATION",
     "WaveformMeasurement",
@@ -69,6 +70,14 @@ STEADY_MODULATION = 0.1
 #: (picker's threshold, not a standard: 0.99-1.00 on the locked ngspice records, below
 #: 0.1 for two independent tones that drift a cycle apart over the record).
 LOCKED = 0.9
+#: A line at the carrier's 1/n is the waveform's fundamental only where the lines next to
+#: the carrier's, one such spacing away, hold at least this fraction of its magnitude
+#: (−10 dB; picker's threshold, not a standard: :func:`_fundamental`) ...
+COMB = 10.0 ** (-10.0 / 20.0)
+#: ... for n up to this ...
+_COMB_ORDER = 8
+#: ... each line found within this fraction of where it is expected.
+_COMB_SLACK = 0.015
 #: Main-lobe half-width, in bins, over which each harmonic's power is summed.
 _LOBE = 4
 
@@ -206,28 +215,70 @@ def _fundamental(x: np.ndarray, dt: float, f_pk: float) -> float:
     """The fundamental of a periodic waveform whose line at ``f_pk`` is one of its
     harmonics, Hz; ``f_pk`` itself where it is not.
 
-    The strongest line of the whole spectrum (above five cycles of the record) is the
-    candidate fundamental f₁ when it lies below ``f_pk``/1.5 and is stronger than the
-    line at ``f_pk``, and ``f_pk`` is within a quarter of f₁ of a multiple n·f₁. The
-    line at ``f_pk`` is then a harmonic of f₁ when their phases are locked: the
-    phase-locking value |⟨exp(j·(φₙ − n·φ₁))⟩| of the two narrow-band analytic signals
-    (f₁ ± 30 %, f_pk ± 0.3·f₁) is at least :data:`LOCKED` (Lachaux et al., "Measuring
-    phase synchrony in brain signals", Hum. Brain Mapp. 8 (1999)). Two tones that run
-    independently (incommensurate, or a burst rate and the carrier inside the bursts)
-    drift apart in phase and are not locked; a clipped oscillation whose n-th harmonic
-    falls near the hint, or a second mode entrained at a multiple of the first, is.
+    Two kinds of line are candidate fundamentals f₁ (above five cycles of the record),
+    each where ``f_pk`` lies within a quarter of f₁ of a multiple n·f₁, n ≥ 2:
+
+    * the strongest line of the whole spectrum below ``f_pk``/1.5, where it is stronger
+      than the line at ``f_pk`` (a clipped oscillation running below the hint's window);
+    * a line at ``f_pk``/n, however weak, where the waveform's lines next to ``f_pk``,
+      at ``f_pk`` ± f₁, hold at least :data:`COMB` of its magnitude: a comb of
+      comparable harmonics spaced f₁, as a relaxation's pulse train makes (the
+      series-capacitor Hartley hs004 of the validation sets: lines at 2-4 × 32.5 kHz
+      within 4 dB of each other, the fundamental itself 17 dB below them). A spur at
+      half the carrier (an orbit beside a period doubling, whose lines at ½ and 3/2 of
+      the carrier are weak) is not such a comb.
+
+    The lowest candidate whose n-th harmonic is phase-locked to it is the fundamental
+    (or, where it is itself a harmonic of a lower one by the same rules, that one):
+    the phase-locking value |⟨exp(j·(φₙ − n·φ₁))⟩| of the two narrow-band analytic
+    signals (f₁ ± 30 %, f_pk ± 0.3·f₁) is at least :data:`LOCKED` (Lachaux et al.,
+    "Measuring phase synchrony in brain signals", Hum. Brain Mapp. 8 (1999)). Two tones
+    that run independently (incommensurate, or a burst rate and the carrier inside the
+    bursts) drift apart in phase and are not locked; a clipped oscillation whose n-th
+    harmonic falls near the hint, or a second mode entrained at a multiple of the first,
+    is.
     """
     spec, f = _spectrum(x, dt)
-    f_1, mag_1 = _peak_in(spec, f, (f >= 5.0 / (x.size * dt)) & (f <= f_pk / 1.5))
-    mag_pk = float(spec[int(round(f_pk / (f[1] - f[0])))])
-    if not np.isfinite(f_1) or f_1 <= 0 or mag_1 <= mag_pk:
-        return f_pk
+    df = f[1] - f[0]
+    lowest = 5.0 / (x.size * dt)
+    k_pk = int(round(f_pk / df))
+    mag_pk = float(spec[k_pk])
+    candidates: list[float] = []
+    f_1, mag_1 = _peak_in(spec, f, (f >= lowest) & (f <= f_pk / 1.5))
+    if np.isfinite(f_1) and f_1 > 0 and mag_1 > mag_pk:
+        candidates.append(f_1)
+    for n in range(2, _COMB_ORDER + 1):
+        f_n = f_pk / n
+        if f_n < lowest:
+            break
+        near = np.abs(f - f_n) <= max(_COMB_SLACK * f_n, 2.0 * df)
+        line, _ = _peak_in(spec, f, near)
+        if not np.isfinite(line):
+            continue
+        side = max(
+            _peak_in(spec, f, np.abs(f - (f_pk + s * line)) <= max(_COMB_SLACK * line, 2.0 * df))[1]
+            for s in (-1.0, 1.0)
+        )
+        if side >= COMB * mag_pk:
+            candidates.append(line)
+    for f_1 in sorted(candidates):
+        if _locked(x, dt, f_1, f_pk, spec, f):
+            # f₁ may in turn be a harmonic of a lower line (a comb found from its 2nd)
+            return _fundamental(x, dt, f_1)
+    return f_pk
+
+
+def _locked(
+    x: np.ndarray, dt: float, f_1: float, f_pk: float, spec: np.ndarray, f: np.ndarray
+) -> bool:
+    """Whether ``f_pk`` is a harmonic of a line at ``f_1`` phase-locked to it
+    (:func:`_fundamental`)."""
     k = int(round(f_1 / (f[1] - f[0])))
     if not spec[k - 1] < spec[k] > spec[k + 1]:  # the band's edge, not a line
-        return f_pk
+        return False
     n = int(round(f_pk / f_1))
     if n < 2 or abs(f_pk / f_1 - n) > 0.25:
-        return f_pk
+        return False
     fs = 1.0 / dt
     pad = int(5 * fs / f_1)
     x0 = x - x.mean()
@@ -238,7 +289,7 @@ def _fundamental(x: np.ndarray, dt: float, f_pk: float) -> float:
     edge = min(int(5 * fs / f_1), x.size // 4)
     phi = np.angle(zn) - n * np.unwrap(np.angle(z1))
     plv = float(np.abs(np.mean(np.exp(1j * phi[edge : x.size - edge]))))
-    return f_1 if plv >= LOCKED else f_pk
+    return plv >= LOCKED
 
 
 def _erode(mask: np.ndarray, k: int) -> np.ndarray:
@@ -348,9 +399,10 @@ def measure(
         )
     band = _Band.of(x - x[tail].mean(), tail, fs, f_pk, noise_v)
     if band.state != "bursting":
-        # the line found may be a harmonic of a stronger, lower oscillation: the board
-        # runs at that one's fundamental (a burst's carrier stays the carrier: the bias
-        # swinging at the burst rate is not the oscillation)
+        # the line found may be a harmonic of a lower one, the waveform's fundamental:
+        # the board runs at that one (a burst's carrier stays the carrier: the bias
+        # swinging at the burst rate is not the oscillation, nor is the repetition of
+        # bursts a few carrier periods long, picker issue 11's definition)
         f_1 = _fundamental(xt, dt, f_pk)
         if f_1 != f_pk:
             low = _Band.of(x - x[tail].mean(), tail, fs, f_1, noise_v)

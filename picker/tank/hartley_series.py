@@ -48,8 +48,8 @@ class SeriesHartley(Hartley):
         "the series-capacitor Hartley's large-signal model misses ngspice on many boards "
         "(24 random designs: 65 % within 2 % in frequency with the run from rest that "
         "--verify makes; solve does not make it and gives no frequency for a design that "
-        "relaxes with no steady solution; some run at half the model's frequency with a "
-        "strong 2nd harmonic); check the design with --verify"
+        "relaxes with no steady solution; some run as pulse trains far below the tank's "
+        "frequency); check the design with --verify"
     )
 
     def _bridge(
