@@ -17,7 +17,6 @@ import pytest
 
 from picker.circuit import burst_carrier as bc
 from picker.circuit.network import Network
-from picker.circuit.periodic import board_lines
 from picker.circuit.transient import build_circuit
 from picker.circuit.validation import load_reference
 
@@ -67,34 +66,3 @@ def test_a_run_does_not_depend_on_its_batch(monkeypatch):
     assert both[1] is not None and alone[0] is not None
     assert both[1] == alone[0]
     assert math.isfinite(alone[0].amplitude_v) and alone[0].amplitude_v > 0
-
-
-def test_a_relaxation_runs_the_records_length_and_is_read_over_its_second_half(monkeypatch):
-    # a relaxing design's run (network_carriers' ``relaxing``) lasts the validation
-    # record's length and is measured over its second half, as the record is; here in
-    # chunks of five periods: 60 periods are 12 chunks, six of warm-up and six measured.
-    # Fails if the length is ignored (the default stops at 4-5 chunks once the spread is
-    # small, as SPREAD = 1 makes it at once) or the warm-up is not half the run.
-    monkeypatch.setattr(bc, "CHUNK", 5)
-    monkeypatch.setattr(bc, "SPREAD", 1.0)
-    seen: list[int] = []
-    real = bc._chunk_carrier
-
-    def spy(v, h, f_hint):
-        seen.append(v.size)
-        return real(v, h, f_hint)
-
-    monkeypatch.setattr(bc, "_chunk_carrier", spy)
-    designs, _ = load_reference(DATA / "large_signal_holdout.json")
-    (d,) = [d for d in designs if d.id == "h017"]
-    net = Network.build(d.topo, d.values, d.stray, d.params)
-    f = float(d.topo.frequency(d.values, d.stray))
-    lines, cards = board_lines(net, np.array([0]))
-    circ = build_circuit(lines, cards, net.stage.top, 0.025)
-    w = np.array([2 * math.pi * f])
-    (free,) = bc.burst_carriers(circ, w, np.array([0.0]), steps=16)
-    assert free.periods in (20, 25)  # warm-up of one chunk, three measured
-    seen.clear()
-    (fixed,) = bc.burst_carriers(circ, w, np.array([0.0]), steps=16, periods=np.array([60]))
-    assert fixed.periods == 60
-    assert max(seen) == 6 * 5 * 16  # the last six chunks, read together

@@ -36,16 +36,6 @@ the netlist's step to a quarter of it, 752.7 kHz with Gear's method; cc016:
 110.66-111.07 kHz). On h019 any window of 100 periods or more after the first 100 read
 within 0.22 % of ngspice, on cc016 within 0.15 %; d100's bursts (about 48 periods apart,
 eight above half their peak) scatter by 0.6 % burst to burst in ngspice's record.
-
-A design that relaxes (no steady solution) is run finer and longer: at
-:data:`RELAX_STEPS` steps a period of its tank, for its validation record's length, read
-over the second half (:func:`network_carriers`). Its period is set by fast edges between
-slow charging, and it may be several times the tank's; on the series Hartley set's six
-such designs this moved the run from 3 of 6 within 2 % of ngspice (hs004, a pulse train
-at 32.35 kHz, -2.7 %) to 6 of 6 (hs004 -0.05 %). A burster's carrier still depends on
-the window it is read over: hs008 reads -1.8 % over the run's whole
-chunks (4,000 periods) and -10.4 % over the record's 3,907, as ngspice's bursters move
-with their step (tests/validation/README.md).
 """
 
 from __future__ import annotations
@@ -58,7 +48,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.device import thermal_voltage
-from picker.circuit.netlist import bias_time_constant, transient_plan
+from picker.circuit.netlist import bias_time_constant
 from picker.circuit.network import Network
 from picker.circuit.ngspice import trapezoid_frequency
 from picker.circuit.periodic import board_lines
@@ -81,7 +71,6 @@ __all__ = [
     "CHUNK",
     "MAX_CHUNKS",
     "MIN_CHUNKS",
-    "RELAX_STEPS",
     "SPREAD",
     "STEPS",
     "BurstCarrier",
@@ -102,12 +91,6 @@ CHUNK = 100
 MIN_CHUNKS = 3
 MAX_CHUNKS = 8
 SPREAD = 1.5e-3
-#: Time steps a period for a design that relaxes (no steady solution, :func:`run_hint`):
-#: its period is set by fast edges between slow charging, which the trapezoidal rule at
-#: 64 steps a period of the tank puts late; on the series Hartley set's hs004 (a pulse
-#: train at a quarter of the tank's frequency, 32.35 kHz in ngspice) the run over the
-#: record's length read -3.0 % at 64 steps, -1.1 % at 128 and -0.04 % at 256.
-RELAX_STEPS = 256
 #: Newton's tolerance on a node voltage, V, and on an inductor current, A (the shooting
 #: integrator's: with ngspice's VNTOL of 1 µV in its place cc016's carrier moved from
 #: 0.06 % to 1.9 % below ngspice's, its wandering envelope following the error).
@@ -182,38 +165,19 @@ def _chunk_carrier(v: np.ndarray, h: float, f_hint: float) -> tuple[str, float, 
     return got.state, f, got.amplitude_v
 
 
-def burst_carriers(
-    circ: Circuit,
-    w: np.ndarray,
-    bias_tau_s: np.ndarray,
-    *,
-    steps: int = STEPS,
-    periods: np.ndarray | None = None,
-) -> list[BurstCarrier]:
-    """Run each circuit of the batch ``circ`` from rest (module docstring) at ``steps``
-    steps a period of its expected frequency ``w`` (rad/s) and measure its tank top: a
-    warm-up of one or two chunks of :data:`CHUNK` periods (two where ``bias_tau_s``, its
-    slowest bias time constant, s, exceeds one chunk), then chunks until the standard
-    error of the chunks' carriers is below :data:`SPREAD` of their mean (at least
-    :data:`MIN_CHUNKS`, at most :data:`MAX_CHUNKS`); the carrier and amplitude are
-    measured over all the chunks after the warm-up together. Where ``periods`` gives an
-    element a length (> 0, in periods), it runs that long instead (in whole chunks) and
-    is measured over the second half, as a validation record is
-    (:func:`picker.circuit.netlist.transient_plan`). Each element's run depends on it
-    alone (its Newton iteration stops on its own; an element that has stopped leaves the
-    batch)."""
+def burst_carriers(circ: Circuit, w: np.ndarray, bias_tau_s: np.ndarray) -> list[BurstCarrier]:
+    """Run each circuit of the batch ``circ`` from rest (module docstring) at the step
+    of its expected frequency ``w`` (rad/s) and measure its tank top: a warm-up of one
+    or two chunks of :data:`CHUNK` periods (two where ``bias_tau_s``, its slowest bias
+    time constant, s, exceeds one chunk), then chunks until the standard error of the
+    chunks' carriers is below :data:`SPREAD` of their mean (at least :data:`MIN_CHUNKS`,
+    at most :data:`MAX_CHUNKS`); the carrier and amplitude are measured over all the
+    chunks after the warm-up together. Each element's run depends on it alone (its
+    Newton iteration stops on its own; an element that has stopped leaves the batch)."""
     m = circ.b.shape[0]
     period = 2.0 * np.pi / np.asarray(w, dtype=float)
-    h = period / steps
+    h = period / STEPS
     warm = np.where(np.asarray(bias_tau_s) > CHUNK * period, 2, 1)
-    least, most = np.full(m, MIN_CHUNKS), np.full(m, MAX_CHUNKS)
-    if periods is not None:
-        # a fixed length: the first half of its chunks warms up, the rest is measured
-        total = np.ceil(np.asarray(periods, dtype=float) / CHUNK).astype(int)
-        fixed = total > 0
-        warm = np.where(fixed, np.maximum(total // 2, 1), warm)
-        least = np.where(fixed, np.maximum(total - warm, 1), least)
-        most = np.where(fixed, least, most)
     x = _kick(circ, period)
     x_prev = x.copy()
     tails: list[list[np.ndarray]] = [[] for _ in range(m)]
@@ -225,7 +189,7 @@ def burst_carriers(
     done = 0
     while live.any():
         act = np.flatnonzero(live)
-        v, x[act], x_prev[act] = _run(circ.take(act), x[act], x_prev[act], h[act], CHUNK * steps)
+        v, x[act], x_prev[act] = _run(circ.take(act), x[act], x_prev[act], h[act], CHUNK * STEPS)
         done += 1
         for col, j in enumerate(act.tolist()):
             if not np.all(np.isfinite(v[:, col])):
@@ -243,7 +207,7 @@ def burst_carriers(
             sem = np.inf
             if fin.size > 1:
                 sem = float(np.std(fin, ddof=1) / np.sqrt(fin.size) / np.mean(fin))
-            if fc.size >= most[j] or (fin.size >= least[j] and sem <= SPREAD):
+            if fc.size >= MAX_CHUNKS or (fin.size >= MIN_CHUNKS and sem <= SPREAD):
                 state, f, amp = _chunk_carrier(
                     np.concatenate(tails[j]), float(h[j]), 1.0 / period[j]
                 )
@@ -272,9 +236,8 @@ def run_hint(
       followed from the crossing to the actual gm, meets the real axis before the drive
       can compress it, a relaxation; the series-capacitor Hartley with a small C_S,
       :mod:`picker.tank.hartley_series`). It takes the tank's ideal frequency; on the
-      series set's six such designs the run (at :data:`RELAX_STEPS` over the record's
-      length, :func:`network_carriers`) reads 0.25 to 0.95 of it, and its state is the
-      run's (:func:`run_bursts`)."""
+      series set's six such designs the run reads 0.36 to 0.98 of it, and its state is
+      the run's (:func:`run_bursts`)."""
     if not starts:
         return None
     if not math.isfinite(f_hz):
@@ -296,26 +259,16 @@ def run_bursts(bursting: bool, relaxing: bool, run: BurstCarrier) -> bool:
 
 
 def network_carriers(
-    nets: Sequence[Network],
-    run: Sequence[bool],
-    f_hz: Sequence[float],
-    relaxing: Sequence[bool] | None = None,
+    nets: Sequence[Network], run: Sequence[bool], f_hz: Sequence[float]
 ) -> list[BurstCarrier | None]:
     """:func:`burst_carriers` of the first board of each network of ``nets`` flagged in
     ``run`` (``f_hz``: its expected frequency, the step's scale), None for the others and
-    where the netlist is one the transient reader does not simulate. A board flagged in
-    ``relaxing`` (it starts with no steady solution, :func:`run_hint`: ``f_hz`` is then
-    the tank's ideal frequency, not its own) runs at :data:`RELAX_STEPS` for the
-    validation record's length and is measured over its second half, as its record is:
-    a relaxation's period can be several times the tank's, and its bias settles over many
-    of those (on hs004 the chunked reading at 256 steps was -1.4 %, the record's
-    reading -0.04 %). The boards whose netlists share a transistor card, a tank top, a
-    temperature, a shape and that treatment run in one batch (as
-    :func:`picker.circuit.nominal_orbit.board_orbits` groups them: no circuit is padded to
-    another's size, so a design's run is the same alone or beside others)."""
+    where the netlist is one the transient reader does not simulate. The boards whose
+    netlists share a transistor card, a tank top, a temperature and a shape run in one
+    batch (as :func:`picker.circuit.nominal_orbit.board_orbits` groups them: no circuit
+    is padded to another's size, so a design's run is the same alone or beside others)."""
     out: list[BurstCarrier | None] = [None] * len(nets)
     groups: dict[tuple[Any, ...], list[tuple[int, list[str], list[str]]]] = {}
-    relax = [False] * len(nets) if relaxing is None else list(relaxing)
     for k, (net, go, f) in enumerate(zip(nets, run, f_hz, strict=True)):
         if not go or net.size == 0 or not math.isfinite(f) or f <= 0:
             continue
@@ -330,7 +283,6 @@ def network_carriers(
             net.stage.top,
             thermal_voltage(net.params.temperature_c),
             shape,
-            bool(relax[k]),
         )
         groups.setdefault(key, []).append((k, lines[0], cards))
     for key, rows in groups.items():
@@ -352,22 +304,8 @@ def network_carriers(
                 for r in rows
             ]
         )
-        slow = bool(key[5])
-        length = None
-        if slow:
-            length = np.array(
-                [
-                    transient_plan(
-                        nets[r[0]].topology,
-                        _values(nets[r[0]]),
-                        float(nets[r[0]].el["stray"][0]),
-                        nets[r[0]].params,
-                    ).cycles
-                    for r in rows
-                ]
-            )
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            got = burst_carriers(circ, w, tau, steps=RELAX_STEPS if slow else STEPS, periods=length)
+            got = burst_carriers(circ, w, tau)
         for r, g in zip(rows, got, strict=True):
             out[r[0]] = g
     return out
