@@ -226,15 +226,21 @@ def test_burst_carrier_stays_the_carrier_beside_a_stronger_bias_swing_at_the_bur
 # ------------------------------------- a pulse train: a comb of harmonics, a weak fundamental
 
 
+def _comb(t: np.ndarray, f1: float) -> np.ndarray:
+    """A relaxation's pulse train: harmonics 2-8 of f1 within 8 dB of each other, the
+    fundamental 17 dB below the strongest (the 3rd)."""
+    amps = {1: 0.14, 2: 0.64, 3: 1.0, 4: 0.95, 5: 0.74, 6: 0.6, 7: 0.5, 8: 0.4}
+    return sum(a * np.sin(2 * np.pi * m * f1 * t + 0.3 * m) for m, a in amps.items())
+
+
 def test_a_comb_of_comparable_harmonics_is_read_at_its_spacing_though_its_fundamental_is_weak():
     # a relaxation's pulse train: harmonics 2-8 of f1 within 8 dB of each other, the
     # fundamental itself 17 dB below the strongest (the 3rd); the hint is the 4th, so the
     # line found in [hint/2, 2·hint] is the 3rd, and the waveform repeats at f1 (its lines
     # are whole multiples of f1, built so here)
     f1 = F / 4.1
-    amps = {1: 0.14, 2: 0.64, 3: 1.0, 4: 0.95, 5: 0.74, 6: 0.6, 7: 0.5, 8: 0.4}
     t = _time(4.1 * 200)
-    v = sum(a * np.sin(2 * np.pi * m * f1 * t + 0.3 * m) for m, a in amps.items())
+    v = _comb(t, f1)
     m = measure(t, v, f_hint=4 * f1)
     assert m.state == "steady"
     # the 2nd harmonic, 13 dB above the fundamental, leaks through the band-pass's upper
@@ -252,9 +258,8 @@ def test_a_pulse_train_running_before_the_kick_has_no_start_up_time():
     # the kick, so there is no start-up to time; reading the first sample after the kick
     # would give the grid's step (the series Hartley set's hs004 read 5.6 ps so)
     f1 = F / 4.1
-    amps = {1: 0.14, 2: 0.64, 3: 1.0, 4: 0.95, 5: 0.74, 6: 0.6, 7: 0.5, 8: 0.4}
     t = _time(4.1 * 200)
-    v = sum(a * np.sin(2 * np.pi * m * f1 * t + 0.3 * m) for m, a in amps.items())
+    v = _comb(t, f1)
     m = measure(t, v, f_hint=4 * f1, t_kick=1 / F + 0.3 / FS)
     assert m.state == "steady"
     assert math.isnan(m.startup_time_s)
