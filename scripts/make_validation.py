@@ -13,6 +13,7 @@ Usage::
     python scripts/make_validation.py --stats    # the model's accuracy on the committed set (a table)
     python scripts/make_validation.py --check 5  # re-simulate 5 committed designs, compare
     python scripts/make_validation.py --redo d003,d007  # re-simulate two designs in place
+    python scripts/make_validation.py --reruns   # how firmly ngspice pins each burster's carrier
 
 The drawing (seeded, :data:`SEED`) covers picker issue 11's ranges: ideal tank frequency
 20 kHz–30 MHz (log-uniform); common-emitter Colpitts and Clapp (about 30 % Clapp); supply
@@ -85,6 +86,7 @@ from picker.circuit.amplifier import AmplifierParams
 from picker.circuit.fet import fet_class
 from picker.circuit.netlist import transient_plan
 from picker.circuit.oscillation import loaded_response
+from picker.circuit.reference_spread import drift, wants_rerun
 from picker.circuit.stages import stage_of
 from picker.circuit.validation import (
     Design,
@@ -93,6 +95,7 @@ from picker.circuit.validation import (
     design_to_dict,
     load_reference,
     model_answers,
+    rerun_design,
     run_design,
 )
 from picker.tank import get_topology
@@ -474,8 +477,29 @@ def simulate_all(designs: list[Design], workers: int = WORKERS) -> list[dict[str
 
 def confirmed(d: Design) -> dict[str, object]:
     """ngspice's answer for ``d``, a burst or an unsettled envelope confirmed at a finer
-    step (:func:`picker.circuit.validation.run_design` with ``confirm``)."""
-    return run_design(d, confirm=True)
+    step (:func:`picker.circuit.validation.run_design` with ``confirm``); a record that
+    bursts, wanders or was confirmed at a finer step also gets its reruns
+    (:func:`picker.circuit.validation.rerun_design`: how firmly ngspice pins its carrier)."""
+    record = run_design(d, confirm=True)
+    if wants_rerun(record):
+        record["reruns"] = rerun_design(d)
+    return record
+
+
+def reruns(path: Path = OUT, workers: int = WORKERS) -> None:
+    """Add the reruns to every record of the set at ``path`` that wants them and has none
+    (``workers`` designs at a time); the records themselves stay as they are."""
+    data = json.loads(path.read_text(encoding="utf-8"))
+    designs, answers = load_reference(path)
+    todo = [i for i, a in enumerate(answers) if wants_rerun(a) and "reruns" not in a]
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        got = list(pool.map(rerun_design, [designs[i] for i in todo]))
+    for i, runs in zip(todo, got, strict=True):
+        data["designs"][i]["ngspice"]["reruns"] = runs
+        rec = data["designs"][i]["ngspice"]
+        rec_drift = drift(rec)
+        print(f"{designs[i].id}: {rec['state']} {rec['f_hz']}, reruns within {rec_drift:.2%}")
+    path.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n", encoding="utf-8")
 
 
 def make(
@@ -599,6 +623,12 @@ def main(argv: list[str] | None = None) -> int:
         "--redo", metavar="IDS", help="re-simulate these designs (comma-separated ids) in place"
     )
     ap.add_argument(
+        "--reruns",
+        action="store_true",
+        help="run each bursting, wandering or step-refined record again (finer step, Gear's "
+        "method, each half of the tail) and store the readings",
+    )
+    ap.add_argument(
         "--clapps", type=int, default=0, help="Clapp designs added after the quotas (issue 12)"
     )
     ap.add_argument(
@@ -612,6 +642,9 @@ def main(argv: list[str] | None = None) -> int:
         return 0
     if args.check:
         return check(args.check, args.out, args.workers)
+    if args.reruns:
+        reruns(args.out, args.workers)
+        return 0
     if args.redo:
         redo([i.strip() for i in args.redo.split(",") if i.strip()], args.out)
         return 0

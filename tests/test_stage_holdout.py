@@ -65,6 +65,15 @@ def test_frequency_within_2_percent_for_95_percent_median_at_most_0_3_percent():
     assert acc.freq_median_error <= 0.003
 
 
+def test_frequency_within_2_percent_for_95_percent_of_settled_references():
+    # over the designs whose ngspice carrier holds within 1 % when the record is run
+    # again (picker.circuit.reference_spread): every record here holds, so the figure is
+    # the plain one's (x004 and x011 are the model's misses)
+    acc = _acc()
+    assert acc.settled >= 60
+    assert acc.freq_within_2pct_settled >= 0.95
+
+
 def test_startup_right_for_98_percent():
     assert _acc().startup_right >= 0.98
 

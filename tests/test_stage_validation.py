@@ -180,6 +180,17 @@ def test_frequency_within_2_percent_for_95_percent(name):
     assert _acc(name).freq_within_2pct >= 0.95
 
 
+@pytest.mark.parametrize("name", sorted(SETS))
+def test_frequency_within_2_percent_for_95_percent_of_settled_references(name):
+    # over the designs whose ngspice carrier holds within 1 % when the record is run
+    # again (finer step, Gear, each half of the tail: picker.circuit.reference_spread);
+    # not one of issue 11's targets: it tells the model's misses from the reference's
+    # (every miss of the two Hartley sets drifts by 2-91 % in ngspice)
+    acc = _acc(name)
+    assert acc.settled >= 14
+    assert acc.freq_within_2pct_settled >= 0.95
+
+
 @pytest.mark.parametrize(
     "name",
     _sets({}),
@@ -297,6 +308,19 @@ def test_series_hartley_set_is_drawn_and_starts_right():
 def test_series_hartley_frequency_within_2_percent_for_95_percent():
     acc = _series_acc()
     assert acc.freq_within_2pct >= 0.95 and acc.freq_median_error <= 0.003
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="92.3 % within 2 % (12 of the 13 designs whose ngspice carrier holds within 1 % "
+    "when run again), median 0.34 %: hs004 relaxes in the model (no steady solution) and "
+    "its run from rest reads -2.7 % against ngspice's pulse train at 32.35 kHz, which "
+    "ngspice holds within 0.7 %; the other six misses (hs002, hs008, hs009, hs011, hs017, "
+    "hs018) drift by 3.5-640 % in ngspice (picker.circuit.reference_spread)",
+)
+def test_series_hartley_frequency_within_2_percent_for_95_percent_of_settled_references():
+    acc = _series_acc()
+    assert acc.freq_within_2pct_settled >= 0.95 and acc.freq_median_settled <= 0.003
 
 
 def test_series_hartley_bursting_precision_and_recall_at_least_0_8():

@@ -21,6 +21,7 @@ import numpy as np
 import pytest
 
 from picker.circuit.ngspice import ngspice_path
+from picker.circuit.reference_spread import RERUNS, WINDOWS
 from picker.circuit.validation import (
     Accuracy,
     ModelAnswer,
@@ -88,6 +89,14 @@ def _m(starts, f, f_ideal, amp, bursting=False):
     )
 
 
+def _reruns(f_hz: float) -> dict[str, dict[str, dict[str, object]]]:
+    """Reruns of a record that read 1 MHz everywhere but ``f_hz`` over the second half
+    of the finer trapezoidal run's tail."""
+    runs = {n: {w: {"state": "bursting", "f_hz": 1.0e6} for w in WINDOWS} for n, _, _ in RERUNS}
+    runs["trap_x5"]["second_half"]["f_hz"] = f_hz
+    return runs
+
+
 def test_statistics_on_a_hand_made_set():
     # five designs whose figures are worked out by hand below
     topologies = ["colpitts", "colpitts", "clapp", "colpitts", "clapp"]
@@ -102,9 +111,9 @@ def test_statistics_on_a_hand_made_set():
     sim = [
         {"state": "steady", "f_hz": 1.0e6, "amplitude_v": 1.0},
         {"state": "steady", "f_hz": 1.0e6, "amplitude_v": 1.0},
-        {"state": "bursting", "f_hz": 1.0e6, "amplitude_v": 3.0},
+        {"state": "bursting", "f_hz": 1.0e6, "amplitude_v": 3.0, "reruns": _reruns(1.004e6)},
         {"state": "none", "f_hz": None, "amplitude_v": 0.0},
-        {"state": "bursting", "f_hz": 1.0e6, "amplitude_v": 2.0},
+        {"state": "bursting", "f_hz": 1.0e6, "amplitude_v": 2.0, "reruns": _reruns(1.03e6)},
     ]
     a = accuracy(topologies, model, sim)
     assert a.designs == 5 and a.oscillating == 4 and a.steady == 2 and a.bursting == 2
@@ -118,6 +127,11 @@ def test_statistics_on_a_hand_made_set():
     assert a.amplitude_within_30pct == pytest.approx(1 / 2)  # steady: 1 ok, 2 not
     assert a.clapp_oscillating == 2 and math.isinf(a.clapp_worst_error)
     assert a.ideal_closer == 2  # designs 2 and 5
+    # settled references: the steady designs 1 and 2 (not run again) and design 3 (its
+    # reruns within 0.4 %); design 5's drift 3 % by its reruns; errors {0.01, 0.05, 0.003}
+    assert a.settled == 3
+    assert a.freq_within_2pct_settled == pytest.approx(2 / 3)
+    assert a.freq_median_settled == pytest.approx(0.01)
 
 
 def test_design_round_trip(reference):
@@ -161,6 +175,17 @@ def test_set_covers_issue_11_ranges(reference):
 def test_frequency_within_2_percent_for_95_percent(name):
     acc = _acc(name)
     assert acc.freq_within_2pct >= 0.95
+
+
+@pytest.mark.parametrize("name", sorted(SETS))
+def test_frequency_within_2_percent_for_95_percent_of_settled_references(name):
+    # over the designs whose ngspice carrier holds within 1 % when the record is run
+    # again (finer step, Gear, each half of the tail: picker.circuit.reference_spread);
+    # not one of issue 11's targets: it tells the model's misses from the reference's
+    # (main: d036, d052 and d053 drift by 5-12 % in ngspice, d003 is the model's miss)
+    acc = _acc(name)
+    assert acc.settled >= 45
+    assert acc.freq_within_2pct_settled >= 0.95
 
 
 @pytest.mark.parametrize("name", sorted(SETS))
