@@ -214,9 +214,15 @@ def _analytic(x: np.ndarray, fs: float, lo: float, hi: float, pad: int) -> np.nd
     return signal.hilbert(y, N=sp_fft.next_fast_len(y.size))[: y.size]
 
 
-def _fundamental(x: np.ndarray, dt: float, f_pk: float) -> float:
+def _fundamental(
+    x: np.ndarray,
+    dt: float,
+    f_pk: float,
+    spectrum: tuple[np.ndarray, np.ndarray] | None = None,
+) -> float:
     """The fundamental of a periodic waveform whose line at ``f_pk`` is one of its
-    harmonics, Hz; ``f_pk`` itself where it is not.
+    harmonics, Hz; ``f_pk`` itself where it is not (``spectrum``: x's, :func:`_spectrum`,
+    where the caller has it: the recursion below passes it down).
 
     Two kinds of line are candidate fundamentals f₁ (above five cycles of the record),
     each where ``f_pk`` lies within a quarter of f₁ of a multiple n·f₁, n ≥ 2:
@@ -241,7 +247,7 @@ def _fundamental(x: np.ndarray, dt: float, f_pk: float) -> float:
     harmonic falls near the hint, or a second mode entrained at a multiple of the first,
     is.
     """
-    spec, f = _spectrum(x, dt)
+    spec, f = _spectrum(x, dt) if spectrum is None else spectrum  # (x's, passed down)
     df = f[1] - f[0]
     lowest = 5.0 / (x.size * dt)
     k_pk = int(round(f_pk / df))
@@ -267,7 +273,7 @@ def _fundamental(x: np.ndarray, dt: float, f_pk: float) -> float:
     for f_1 in sorted(candidates):
         if _locked(x, dt, f_1, f_pk, spec, f):
             # f₁ may in turn be a harmonic of a lower line (a comb found from its 2nd)
-            return _fundamental(x, dt, f_1)
+            return _fundamental(x, dt, f_1, (spec, f))
     return f_pk
 
 
