@@ -66,3 +66,23 @@ def test_a_run_does_not_depend_on_its_batch(monkeypatch):
     assert both[1] is not None and alone[0] is not None
     assert both[1] == alone[0]
     assert math.isfinite(alone[0].amplitude_v) and alone[0].amplitude_v > 0
+
+
+def test_a_relaxing_board_runs_at_the_finer_step(monkeypatch):
+    # a board flagged relaxing (no steady solution) runs at RELAX_STEPS, in a batch of
+    # its own; the others at STEPS; each board's period sets its step either way
+    designs, _ = load_reference(DATA / "large_signal_holdout.json")
+    pick = [d for d in designs if d.id in ("h003", "h017")]
+    nets = [Network.build(d.topo, d.values, d.stray, d.params) for d in pick]
+    f = [float(d.topo.frequency(d.values, d.stray)) for d in pick]
+    seen = []
+
+    def fake(circ, w, tau, *, steps):
+        seen.append((steps, [round(x / (2 * math.pi)) for x in w]))
+        return [bc.BurstCarrier("steady", x / (2 * math.pi), 1.0, 100, 0.0) for x in w]
+
+    monkeypatch.setattr(bc, "burst_carriers", fake)
+    got = bc.network_carriers(nets, [True, True], f, [False, True])
+    assert sorted(seen) == sorted([(bc.STEPS, [round(f[0])]), (bc.RELAX_STEPS, [round(f[1])])])
+    assert bc.RELAX_STEPS > bc.STEPS
+    assert [g.f_hz for g in got if g is not None] == pytest.approx(f)

@@ -49,8 +49,9 @@ def test_a_board_called_bursting_takes_its_run_from_rest(monkeypatch, run_state)
     def orbits(nets):
         return [[_orbit(f0)] for _ in nets]
 
-    def runs(nets, bursting, f_hint):
+    def runs(nets, bursting, f_hint, relaxing):
         calls.append(list(bursting))
+        assert relaxing == [False]  # the orbit exists: the usual step
         return [BurstCarrier(run_state, 1.01 * f0, 2.5, 400, 1e-3) for _ in nets]
 
     monkeypatch.setattr(verify, "board_orbits", orbits)
@@ -107,8 +108,9 @@ def test_a_relaxing_board_takes_its_run_from_rest_and_its_state(monkeypatch):
     (d,) = [d for d in designs if d.id == "hs002"]
     hints = []
 
-    def runs(nets, go, f_hint):
+    def runs(nets, go, f_hint, relaxing):
         hints.extend(f for f, g in zip(f_hint, go, strict=True) if g)
+        assert relaxing == [True]  # no steady solution: the finer step of a relaxation
         return [BurstCarrier("steady", 0.4 * f_hint[0], 20.0, 400, 1e-3) for _ in nets]
 
     monkeypatch.setattr(verify, "board_orbits", lambda nets: [[None] for _ in nets])

@@ -36,6 +36,16 @@ the netlist's step to a quarter of it, 752.7 kHz with Gear's method; cc016:
 110.66-111.07 kHz). On h019 any window of 100 periods or more after the first 100 read
 within 0.22 % of ngspice, on cc016 within 0.15 %; d100's bursts (about 48 periods apart,
 eight above half their peak) scatter by 0.6 % burst to burst in ngspice's record.
+
+A design that relaxes (no steady solution, :func:`run_hint`) runs at twice the steps,
+:data:`RELAX_STEPS`: its period is set by fast edges between slow charging and can be
+several times the tank's. On the series Hartley set's hs004 (a pulse train at a quarter
+of the tank's frequency) the run read -2.7 % at 64 steps and -1.1 % at 128; on the nine
+relaxing designs of the series and tapped Hartley sets, 4 of 9 were within 2 % of ngspice
+at 64 steps and 7 of 9 at 128 (hs002 +4.5 to +0.24 %, ht007 +3.5 to +0.11 %). Every
+burster keeps 64: at 128 the main set's Clapp d100, whose reference ngspice holds within
+0.08 %, read -2.40 % instead of +0.21 % (its bursts come in two kinds, and the finer run
+followed the other kind).
 """
 
 from __future__ import annotations
@@ -71,6 +81,7 @@ __all__ = [
     "CHUNK",
     "MAX_CHUNKS",
     "MIN_CHUNKS",
+    "RELAX_STEPS",
     "SPREAD",
     "STEPS",
     "BurstCarrier",
@@ -91,6 +102,16 @@ CHUNK = 100
 MIN_CHUNKS = 3
 MAX_CHUNKS = 8
 SPREAD = 1.5e-3
+#: Time steps a period for a design that relaxes (no steady solution, :func:`run_hint`):
+#: its period is set by fast edges between slow charging, which the trapezoidal rule at
+#: 64 steps a period of the tank puts late. On the series Hartley set's hs004 (a pulse
+#: train at a quarter of the tank's frequency, 32.35 kHz in ngspice, which holds it within
+#: 0.7 % at a finer step and with Gear's method) the run read -2.7 % at 64 steps and -1.1 %
+#: at 128; over the record's whole length at 256 steps it read -0.04 %, but on a board one
+#: rounding away (``--verify`` of the design's values as a spec) that step resolved the
+#: ringing between the pulses well enough to read as bursts of it (+263 %), where 128
+#: reads the board's pulse train (-1.17 %).
+RELAX_STEPS = 128
 #: Newton's tolerance on a node voltage, V, and on an inductor current, A (the shooting
 #: integrator's: with ngspice's VNTOL of 1 µV in its place cc016's carrier moved from
 #: 0.06 % to 1.9 % below ngspice's, its wandering envelope following the error).
@@ -165,18 +186,21 @@ def _chunk_carrier(v: np.ndarray, h: float, f_hint: float) -> tuple[str, float, 
     return got.state, f, got.amplitude_v
 
 
-def burst_carriers(circ: Circuit, w: np.ndarray, bias_tau_s: np.ndarray) -> list[BurstCarrier]:
-    """Run each circuit of the batch ``circ`` from rest (module docstring) at the step
-    of its expected frequency ``w`` (rad/s) and measure its tank top: a warm-up of one
-    or two chunks of :data:`CHUNK` periods (two where ``bias_tau_s``, its slowest bias
-    time constant, s, exceeds one chunk), then chunks until the standard error of the
-    chunks' carriers is below :data:`SPREAD` of their mean (at least :data:`MIN_CHUNKS`,
-    at most :data:`MAX_CHUNKS`); the carrier and amplitude are measured over all the
-    chunks after the warm-up together. Each element's run depends on it alone (its
-    Newton iteration stops on its own; an element that has stopped leaves the batch)."""
+def burst_carriers(
+    circ: Circuit, w: np.ndarray, bias_tau_s: np.ndarray, *, steps: int = STEPS
+) -> list[BurstCarrier]:
+    """Run each circuit of the batch ``circ`` from rest (module docstring) at ``steps``
+    steps a period of its expected frequency ``w`` (rad/s) and measure its tank top: a
+    warm-up of one or two chunks of :data:`CHUNK` periods (two where ``bias_tau_s``, its
+    slowest bias time constant, s, exceeds one chunk), then chunks until the standard
+    error of the chunks' carriers is below :data:`SPREAD` of their mean (at least
+    :data:`MIN_CHUNKS`, at most :data:`MAX_CHUNKS`); the carrier and amplitude are
+    measured over all the chunks after the warm-up together. Each element's run depends
+    on it alone (its Newton iteration stops on its own; an element that has stopped
+    leaves the batch)."""
     m = circ.b.shape[0]
     period = 2.0 * np.pi / np.asarray(w, dtype=float)
-    h = period / STEPS
+    h = period / steps
     warm = np.where(np.asarray(bias_tau_s) > CHUNK * period, 2, 1)
     x = _kick(circ, period)
     x_prev = x.copy()
@@ -189,7 +213,7 @@ def burst_carriers(circ: Circuit, w: np.ndarray, bias_tau_s: np.ndarray) -> list
     done = 0
     while live.any():
         act = np.flatnonzero(live)
-        v, x[act], x_prev[act] = _run(circ.take(act), x[act], x_prev[act], h[act], CHUNK * STEPS)
+        v, x[act], x_prev[act] = _run(circ.take(act), x[act], x_prev[act], h[act], CHUNK * steps)
         done += 1
         for col, j in enumerate(act.tolist()):
             if not np.all(np.isfinite(v[:, col])):
@@ -236,8 +260,9 @@ def run_hint(
       followed from the crossing to the actual gm, meets the real axis before the drive
       can compress it, a relaxation; the series-capacitor Hartley with a small C_S,
       :mod:`picker.tank.hartley_series`). It takes the tank's ideal frequency; on the
-      series set's six such designs the run reads 0.36 to 0.98 of it, and its state is
-      the run's (:func:`run_bursts`)."""
+      series set's six such designs the run (at :data:`RELAX_STEPS`) reads 0.25 to 0.97
+      of it, on the tapped set's three 0.42 to 0.82, and its state is the run's
+      (:func:`run_bursts`)."""
     if not starts:
         return None
     if not math.isfinite(f_hz):
@@ -259,16 +284,22 @@ def run_bursts(bursting: bool, relaxing: bool, run: BurstCarrier) -> bool:
 
 
 def network_carriers(
-    nets: Sequence[Network], run: Sequence[bool], f_hz: Sequence[float]
+    nets: Sequence[Network],
+    run: Sequence[bool],
+    f_hz: Sequence[float],
+    relaxing: Sequence[bool] | None = None,
 ) -> list[BurstCarrier | None]:
     """:func:`burst_carriers` of the first board of each network of ``nets`` flagged in
     ``run`` (``f_hz``: its expected frequency, the step's scale), None for the others and
-    where the netlist is one the transient reader does not simulate. The boards whose
-    netlists share a transistor card, a tank top, a temperature and a shape run in one
-    batch (as :func:`picker.circuit.nominal_orbit.board_orbits` groups them: no circuit
-    is padded to another's size, so a design's run is the same alone or beside others)."""
+    where the netlist is one the transient reader does not simulate. A board flagged in
+    ``relaxing`` (it starts with no steady solution, :func:`run_hint`) runs at
+    :data:`RELAX_STEPS`. The boards whose netlists share a transistor card, a tank top, a
+    temperature, a shape and a step run in one batch (as
+    :func:`picker.circuit.nominal_orbit.board_orbits` groups them: no circuit is padded to
+    another's size, so a design's run is the same alone or beside others)."""
     out: list[BurstCarrier | None] = [None] * len(nets)
     groups: dict[tuple[Any, ...], list[tuple[int, list[str], list[str]]]] = {}
+    relax = [False] * len(nets) if relaxing is None else list(relaxing)
     for k, (net, go, f) in enumerate(zip(nets, run, f_hz, strict=True)):
         if not go or net.size == 0 or not math.isfinite(f) or f <= 0:
             continue
@@ -283,6 +314,7 @@ def network_carriers(
             net.stage.top,
             thermal_voltage(net.params.temperature_c),
             shape,
+            RELAX_STEPS if relax[k] else STEPS,
         )
         groups.setdefault(key, []).append((k, lines[0], cards))
     for key, rows in groups.items():
@@ -305,7 +337,7 @@ def network_carriers(
             ]
         )
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            got = burst_carriers(circ, w, tau)
+            got = burst_carriers(circ, w, tau, steps=int(key[5]))
         for r, g in zip(rows, got, strict=True):
             out[r[0]] = g
     return out

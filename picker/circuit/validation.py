@@ -229,7 +229,12 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
         run_hint(a.starts, a.bursting, a.f_hz, a.f_ideal_hz, converged=c)
         for a, c in zip(out, converged, strict=True)
     ]
-    runs = network_carriers(nets, [h is not None for h in hints], [h or 0.0 for h in hints])
+    runs = network_carriers(
+        nets,
+        [h is not None for h in hints],
+        [h or 0.0 for h in hints],
+        [not math.isfinite(a.f_hz) for a in out],
+    )
     for k, r in enumerate(runs):
         if r is not None and math.isfinite(r.f_hz):
             out[k] = replace(

@@ -268,7 +268,12 @@ def check_boards(
             Network.build(topology, {p: sub[p][[k]] for p in sub}, stray, params)
             for k in range(len(idx))
         ]
-        runs = network_carriers(one, [True] * len(idx), [float(hints[i] or 0.0) for i in idx])
+        runs = network_carriers(
+            one,
+            [True] * len(idx),
+            [float(hints[i] or 0.0) for i in idx],
+            [models[i]["f_hz"] is None for i in idx],
+        )
         for i, r in zip(idx, runs, strict=True):
             if r is not None and math.isfinite(r.f_hz):
                 relaxes = models[i]["f_hz"] is None
