@@ -78,6 +78,8 @@ def test_gear_rerun_sets_the_method_before_the_analysis_and_refines_the_step():
     (tran,) = [x.split() for x in lines if x.startswith(".tran")]
     assert float(tran[1]) == pytest.approx(5e-9) and float(tran[4]) == pytest.approx(5e-9)
     assert _with_method(deck, "trap", 1) == deck
+    with pytest.raises(SolverError, match="no .tran"):
+        _with_method("t\nR1 a 0 1k\n.end\n", "gear", 1)
 
 
 @pytest.mark.parametrize("path", SETS, ids=[p.stem for p in SETS])

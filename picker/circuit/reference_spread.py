@@ -37,6 +37,7 @@ import numpy as np
 
 from picker.circuit.ngspice import refine_step, transient, trapezoid_frequency
 from picker.circuit.waveform import measure
+from picker.errors import SolverError
 
 __all__ = ["RERUNS", "SETTLED", "WINDOWS", "drift", "rerun", "wants_rerun"]
 
@@ -64,7 +65,7 @@ def _with_method(netlist: str, method: str, factor: int) -> str:
     if method == "gear":
         head, sep, rest = text.partition("\n.tran")
         if not sep:
-            raise ValueError("the netlist has no .tran line")
+            raise SolverError("the netlist has no .tran line to run again")
         text = head + "\n.options method=gear" + sep + rest
     return text
 
@@ -102,8 +103,11 @@ def rerun(
         run = transient(_with_method(netlist, method, factor), timeout=timeout * factor)
         stop = float(run.time[-1])
         mid = 0.5 * (tail_start + stop)
-        spans = {"tail": (tail_start, stop), "first_half": (tail_start, mid)}
-        spans["second_half"] = (mid, stop)
+        spans = {
+            "tail": (tail_start, stop),
+            "first_half": (tail_start, mid),
+            "second_half": (mid, stop),
+        }
         out[name] = {w: _read(run.time, run.v, f_hint, t_kick, *spans[w]) for w in WINDOWS}
     return out
 
