@@ -39,3 +39,30 @@ def test_divider_uses_its_thevenin_resistance():
     params = _jfet_params(r_b1=300e3, r_b2=600e3, c_e=None)
     r_th = 300e3 * 600e3 / 900e3
     assert bias_time_constant(topo, VALUES, params) == pytest.approx(r_th * 3.2e-9)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="known gap, not mended yet: the plan leaves out the collector coupling "
+    "capacitor C_B, which the tank's coils join to the gate's DC node; counting it "
+    "lengthens the validation transients, so every set has to be redrawn with it "
+    "(README, 'How firmly ngspice pins each record')",
+)
+def test_hartley_gate_node_holds_the_coupling_capacitor():
+    # A common-source series-Hartley board: the coils join the tank top, the tap and the
+    # gate into one DC node, held by the tap bypass (CTAP, 100 nF in the netlist) and by
+    # C_B, whose other end is the drain, AC-grounded through R_C (a few hundred ohms
+    # against the divider's tens of kilohms). The drain's DC step at start-up reaches the
+    # gate through C_B and decays with R_th·(C_tap + C_B) (an RC product read off the
+    # schematic: common practice, no source). Measured in ngspice on the series Hartley
+    # set's hs021 (these part values): its carrier still fell by 0.44 % between the two
+    # halves of the record's tail, and settled 1.4 % below the record when run four times
+    # as long (tests/validation/README.md).
+    topo = get_topology("hartley-series")
+    values = {"L1": 585e-6, "L2": 102e-6, "C": 4.52e-9, "CS": 2.88e-9}
+    base = get_stage("common-source").typical_params()
+    params = dataclasses.replace(
+        base, r_b1=26.4e3, r_b2=25.5e3, r_c=199.0, c_block=861e-9, r_e=374.0, c_e=110e-9
+    )
+    r_th = 26.4e3 * 25.5e3 / (26.4e3 + 25.5e3)
+    assert bias_time_constant(topo, values, params) >= 0.9 * r_th * (100e-9 + 861e-9)
