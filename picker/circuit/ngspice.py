@@ -29,10 +29,12 @@ from picker.errors import SolverError
 __all__ = [
     "CONFIRMED_STATES",
     "REFINE_CARRIER",
+    "SETTLING_DRIFT",
     "STEP_REFINE",
     "WARNING_PATTERNS",
     "SimulationResult",
     "Transient",
+    "carrier_drift",
     "ngspice_path",
     "read_raw",
     "refine_step",
@@ -51,6 +53,10 @@ STEP_REFINE = (5, 25)
 CONFIRMED_STATES = ("bursting", "unsettled")
 #: A confirming run that moves the carrier by more than this (relative) replaces the first.
 REFINE_CARRIER = 1e-3
+#: A steady run whose carrier moves by more than this (relative) from the first half of
+#: its measured tail to the second has not settled (the same tenth of a per cent as
+#: :data:`REFINE_CARRIER`; the project's choice, no source).
+SETTLING_DRIFT = 1e-3
 
 WARNING_PATTERNS = ("floating", "no dc path", "singular matrix", "timestep too small")
 
@@ -84,6 +90,11 @@ class SimulationResult:
     ``step_refined`` is 1 when the run is the netlist's own, or the factor (:data:`STEP_REFINE`)
     its step was refined by when a confirming run (:func:`simulate` with ``confirm``)
     disagreed with it; ``coarse`` is then the measurement at the netlist's own step.
+
+    ``carrier_drift`` is, for a steady run, the carrier over the second half of the
+    measured tail relative to the first, minus one (:func:`carrier_drift`); NaN
+    otherwise. Beyond :data:`SETTLING_DRIFT` the board's bias was still settling when
+    the run ended, and the carrier read is not its final one.
     """
 
     frequency_hz: float
@@ -96,6 +107,7 @@ class SimulationResult:
     waveform: WaveformMeasurement
     step_refined: int = 1
     coarse: WaveformMeasurement | None = None
+    carrier_drift: float = math.nan
 
 
 def ngspice_path() -> str:
@@ -326,6 +338,35 @@ def step_disagrees(coarse: WaveformMeasurement, fine: WaveformMeasurement) -> bo
     return abs(fine.f_hz / coarse.f_hz - 1.0) > REFINE_CARRIER
 
 
+def carrier_drift(
+    time: np.ndarray,
+    v: np.ndarray,
+    wave: WaveformMeasurement,
+    f_hint: float | None,
+    t_kick: float = 0.0,
+) -> float:
+    """How far the carrier moved across the measured tail of a run: its reading over the
+    tail's second half relative to its first, minus one (each read as ``wave`` was,
+    :func:`picker.circuit.waveform.measure`, and corrected for the trapezoidal rule's
+    warping at its own step); NaN where a half shows no oscillation.
+
+    A steady board whose bias is still settling keeps moving: the series-capacitor
+    Hartley set's hs021 moved −0.44 % across its record's tail and settled 1.4 % below
+    the record in a run four times as long (tests/validation/README.md)."""
+    t0 = float(wave.tail_start_s)
+    stop = float(time[-1])
+    mid = 0.5 * (t0 + stop)
+    f = []
+    for start, end in ((t0, mid), (mid, stop)):
+        keep = time <= end
+        half = measure(time[keep], v[keep], f_hint=f_hint, tail_start=start, t_kick=t_kick)
+        if not half.oscillating or not math.isfinite(half.f_hz):
+            return math.nan
+        step = float(np.median(np.diff(time[keep & (time >= start)])))
+        f.append(trapezoid_frequency(half.f_hz, step))
+    return f[1] / f[0] - 1.0
+
+
 def _simulate_once(
     netlist: str,
     node: str,
@@ -343,7 +384,9 @@ def _simulate_once(
         t0 = float(wave.tail_start_s)
         step = float(np.median(np.diff(time[time >= t0])))
         wave = replace(wave, f_hz=trapezoid_frequency(wave.f_hz, step))
+    drift = carrier_drift(time, v, wave, f_hint, t_kick) if wave.state == "steady" else math.nan
     return SimulationResult(
+        carrier_drift=drift,
         frequency_hz=wave.f_hz,
         amplitude_v=_peak(time, v, 0.9 * tstop, tstop),
         early_amplitude_v=_peak(time, v, 0.4 * tstop, 0.5 * tstop),

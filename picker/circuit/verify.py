@@ -189,6 +189,7 @@ class BoardCheck:
                 "cycles": self.cycles,
                 "long_enough": self.resolved,
                 "warnings": list(self.sim.warnings),
+                "carrier_drift": json_number(self.sim.carrier_drift),
                 **step_note(self.sim),
             },
             "model_minus_ngspice": diff,

@@ -36,6 +36,15 @@ BURST_CARRIER_CAUTION = (
     "and irregular it moves by several per cent with the simulator's step and the run's "
     "length: read it as a rough figure (a board that bursts fails anyway)"
 )
+#: Printed where ngspice's steady carrier still moved across the measured tail by more
+#: than picker.circuit.ngspice.SETTLING_DRIFT (tests/validation/README.md: the series
+#: Hartley set's hs021 moved -0.44 % across its record's tail and settled 1.4 % lower).
+SETTLING_CAUTION = (
+    "caution: ngspice's carrier still moved by {drift} from the first half of the measured "
+    "tail to the second{where}: the bias was still settling when the run ended (a slow time "
+    "constant, such as the collector coupling capacitor charging through the base divider), "
+    "so the carrier read is not the board's final one"
+)
 #: The note beside a model column read from the board's own circuit run from rest
 #: (picker.circuit.burst_carrier.run_hint) rather than from its steady solution.
 RUN_FROM_REST_NOTE = (
@@ -259,6 +268,7 @@ def simulate(
             "harmonics_dbc": wave_json["harmonics_dbc"],
             "cycles": check.cycles,
             "warnings": list(sim.warnings),
+            "carrier_drift": json_number(sim.carrier_drift),
             **step_note(sim),
         },
         "window": {"f_min_hz": lo, "f_max_hz": hi, **(window_fig or {})},
@@ -302,6 +312,8 @@ def simulate(
         )
     if "bursting" in (wave.state, ls["envelope"]):
         lines.append(BURST_CARRIER_CAUTION)
+    if _unsettled(sim):
+        lines.append(SETTLING_CAUTION.format(drift=_percent(sim.carrier_drift), where=""))
     if ls.get("carrier_from") == "run from rest":
         lines.append(RUN_FROM_REST_NOTE.format(which=""))
     if sim.coarse is not None:
@@ -313,6 +325,20 @@ def simulate(
         )
     lines += [f"ngspice: {w}" for w in sim.warnings]
     typer.echo(_fit(lines, Console().width))
+
+
+def _unsettled(sim: Any) -> bool:
+    """Whether ngspice's steady carrier still moved across the measured tail by more than
+    :data:`picker.circuit.ngspice.SETTLING_DRIFT`."""
+    from picker.circuit.ngspice import SETTLING_DRIFT
+
+    drift = float(sim.carrier_drift)
+    return drift == drift and abs(drift) > SETTLING_DRIFT
+
+
+def _percent(x: float) -> str:
+    """A relative change as a signed percentage, e.g. "-0.44 %"."""
+    return f"{100.0 * x:+.2f} %"
 
 
 def _fit(lines: list[str], width: int) -> str:
@@ -391,6 +417,16 @@ def _notes(checks: list[DesignCheck]) -> list[str]:
     ]
     if ran:
         lines.append(RUN_FROM_REST_NOTE.format(which=" of " + ", ".join(ran)))
+    drifting = [
+        f"{c.rank} {b.label} {_percent(b.sim.carrier_drift)}"
+        for c in checks
+        for b in c.boards
+        if _unsettled(b.sim)
+    ]
+    if drifting:
+        lines.append(
+            SETTLING_CAUTION.format(drift="more than 0.1 %", where=" (" + ", ".join(drifting) + ")")
+        )
     refined = [
         f"{c.rank} {b.label} ({b.sim.coarse.state} at the netlist's step)"
         for c in checks
