@@ -19,16 +19,13 @@ import math
 
 import numpy as np
 import pytest
-from test_verify_demos import DEMOS, golden_candidates
+from test_verify_demos import DEMOS, golden_candidates, top_board
 
-from picker.api import load_spec
-from picker.api.problem import parasitics_of
 from picker.api.verify import DesignCheck
 from picker.circuit import verify
 from picker.circuit.ngspice import SETTLING_DRIFT, carrier_drift
 from picker.circuit.waveform import measure
 from picker.cli.circuit import verify_text
-from picker.tank.board import board_values
 
 FS = 200e3  # samples per second: 200 a period at 1 kHz
 T_END = 2.0  # s; the tail is its second half
@@ -82,11 +79,7 @@ def test_no_oscillation_in_a_half_gives_nan():
 def test_verify_warns_where_ngspice_had_not_settled(monkeypatch, drift):
     # ngspice runs the demo's top board (steady, settled); its drift is then replaced by
     # hs021's (-0.44 %) or by one below SETTLING_DRIFT, to see the table's note follow it
-    spec = load_spec(DEMOS / "colpitts_bjt.toml")
-    topo, par = spec.topo, parasitics_of(spec)
-    params = spec.amplifier.to_params(spec.parts)
-    c = golden_candidates("colpitts_bjt")[0]
-    board = board_values(topo, {p: part["value"] for p, part in c["parts"].items()}, par)
+    topo, par, params, board, _ = top_board("colpitts_bjt")
     (check,) = verify.check_boards(topo, [("nominal", board)], float(par.stray), params)
     assert check.sim.waveform.state == "steady"
     # the demo's own board has settled: its carrier moved by far less than the threshold

@@ -61,6 +61,16 @@ def golden_candidates(stem: str) -> list[dict[str, Any]]:
     return list(json.loads(text[text.index("{") :])["candidates"])
 
 
+def top_board(stem: str) -> tuple[Any, Any, Any, dict[str, float], dict[str, Any]]:
+    """The demo's topology, parasitics, amplifier parameters, its committed top design's
+    board values (parasitics applied) and that candidate's golden JSON."""
+    spec = load_spec(DEMOS / f"{stem}.toml")
+    topo, par = spec.topo, parasitics_of(spec)
+    c = golden_candidates(stem)[0]
+    board = board_values(topo, {p: part["value"] for p, part in c["parts"].items()}, par)
+    return topo, par, spec.amplifier.to_params(spec.parts), board, c
+
+
 def corner(c: dict[str, Any], direction: int) -> dict[str, float]:
     """Part values at the corner that moves the frequency ``direction`` (−1 down, +1 up)."""
     out = {}

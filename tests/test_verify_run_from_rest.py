@@ -13,16 +13,13 @@ from __future__ import annotations
 import math
 
 import pytest
-from test_verify_demos import DEMOS, golden_candidates
+from test_verify_demos import top_board
 
-from picker.api import load_spec
-from picker.api.problem import parasitics_of
 from picker.api.verify import DesignCheck
 from picker.circuit import verify
 from picker.circuit.burst_carrier import BurstCarrier
 from picker.circuit.nominal_orbit import NominalOrbit
 from picker.cli.circuit import BURST_CARRIER_CAUTION, verify_text
-from picker.tank.board import board_values
 
 pytestmark = pytest.mark.ngspice
 
@@ -38,11 +35,7 @@ def _orbit(f_hz: float) -> NominalOrbit:
 
 @pytest.mark.parametrize("run_state", ["unsettled", "steady", "bursting"])
 def test_a_board_called_bursting_takes_its_run_from_rest(monkeypatch, run_state):
-    spec = load_spec(DEMOS / "colpitts_bjt.toml")
-    topo, par = spec.topo, parasitics_of(spec)
-    params = spec.amplifier.to_params(spec.parts)
-    c = golden_candidates("colpitts_bjt")[0]
-    board = board_values(topo, {p: part["value"] for p, part in c["parts"].items()}, par)
+    topo, par, params, board, c = top_board("colpitts_bjt")
     f0 = float(c["f_loaded_hz"])
     calls = []
 
