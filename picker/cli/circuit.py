@@ -231,7 +231,8 @@ def simulate(
     frequency (from the phase slope, right on clipped or bursting waveforms), the
     amplitude at the tank top, the envelope (steady, bursting, unsettled or none), the
     start-up time, and a verdict: ok, or what fails (does not start, bursts, unsettled,
-    outside the window).
+    outside the window). A caution follows where ngspice's steady carrier still moved by
+    more than 0.1 % across the measured tail (the bias had not settled).
     """
     from picker.circuit.ngspice import step_note
     from picker.circuit.verify import check_boards
