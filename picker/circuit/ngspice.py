@@ -37,6 +37,7 @@ __all__ = [
     "carrier_drift",
     "ngspice_path",
     "read_raw",
+    "read_window",
     "refine_step",
     "simulate",
     "step_disagrees",
@@ -338,6 +339,26 @@ def step_disagrees(coarse: WaveformMeasurement, fine: WaveformMeasurement) -> bo
     return abs(fine.f_hz / coarse.f_hz - 1.0) > REFINE_CARRIER
 
 
+def read_window(
+    time: np.ndarray,
+    v: np.ndarray,
+    f_hint: float | None,
+    t_kick: float,
+    start: float,
+    stop: float,
+) -> tuple[str, float]:
+    """The envelope state and the carrier of ``v`` read from ``start`` to ``stop``, s
+    (:func:`picker.circuit.waveform.measure`, the carrier corrected for the trapezoidal
+    rule's warping at the window's typical step; NaN where it does not oscillate)."""
+    keep = time <= stop
+    t = time[keep]
+    w = measure(t, v[keep], f_hint=f_hint, tail_start=start, t_kick=t_kick)
+    if not (w.oscillating and math.isfinite(w.f_hz)):
+        return w.state, math.nan
+    step = float(np.median(np.diff(t[t >= start])))
+    return w.state, trapezoid_frequency(w.f_hz, step)
+
+
 def carrier_drift(
     time: np.ndarray,
     v: np.ndarray,
@@ -347,8 +368,7 @@ def carrier_drift(
 ) -> float:
     """How far the carrier moved across the measured tail of a run: its reading over the
     tail's second half relative to its first, minus one (each read as ``wave`` was,
-    :func:`picker.circuit.waveform.measure`, and corrected for the trapezoidal rule's
-    warping at its own step); NaN where a half shows no oscillation.
+    :func:`read_window`); NaN where a half shows no oscillation.
 
     A steady board whose bias is still settling keeps moving: the series-capacitor
     Hartley set's hs021 moved −0.44 % across its record's tail and settled 1.4 % below
@@ -356,15 +376,9 @@ def carrier_drift(
     t0 = float(wave.tail_start_s)
     stop = float(time[-1])
     mid = 0.5 * (t0 + stop)
-    f = []
-    for start, end in ((t0, mid), (mid, stop)):
-        keep = time <= end
-        half = measure(time[keep], v[keep], f_hint=f_hint, tail_start=start, t_kick=t_kick)
-        if not half.oscillating or not math.isfinite(half.f_hz):
-            return math.nan
-        step = float(np.median(np.diff(time[keep & (time >= start)])))
-        f.append(trapezoid_frequency(half.f_hz, step))
-    return f[1] / f[0] - 1.0
+    first = read_window(time, v, f_hint, t_kick, t0, mid)[1]
+    second = read_window(time, v, f_hint, t_kick, mid, stop)[1]
+    return second / first - 1.0
 
 
 def _simulate_once(

@@ -35,8 +35,7 @@ from typing import Any
 
 import numpy as np
 
-from picker.circuit.ngspice import refine_step, transient, trapezoid_frequency
-from picker.circuit.waveform import measure
+from picker.circuit.ngspice import read_window, refine_step, transient
 from picker.errors import SolverError
 
 __all__ = ["RERUNS", "SETTLED", "WINDOWS", "drift", "rerun", "wants_rerun"]
@@ -73,16 +72,11 @@ def _with_method(netlist: str, method: str, factor: int) -> str:
 def _read(
     time: np.ndarray, v: np.ndarray, f_hint: float, t_kick: float, start: float, stop: float
 ) -> dict[str, Any]:
-    """State and carrier (corrected for the trapezoidal rule's warping at the typical
-    step) of ``v`` read from ``start`` to ``stop``, s."""
-    keep = time <= stop
-    t = time[keep]
-    w = measure(t, v[keep], f_hint=f_hint, tail_start=start, t_kick=t_kick)
-    f = None
-    if w.oscillating and math.isfinite(w.f_hz):
-        step = float(np.median(np.diff(t[t >= start])))
-        f = trapezoid_frequency(w.f_hz, step)
-    return {"state": w.state, "f_hz": f}
+    """State and carrier of ``v`` read from ``start`` to ``stop``, s
+    (:func:`picker.circuit.ngspice.read_window`; the carrier None where it does not
+    oscillate)."""
+    state, f = read_window(time, v, f_hint, t_kick, start, stop)
+    return {"state": state, "f_hz": f if math.isfinite(f) else None}
 
 
 def rerun(
