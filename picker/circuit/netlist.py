@@ -121,22 +121,35 @@ def bias_time_constant(
 ) -> float:
     """The slowest bias time constant read off the schematic, s (0.0 without a bias network).
 
-    The largest of R_E·C_E, the base divider's Thevenin resistance (or a lone gate or
-    base resistor's) with the tank's capacitance to ground (``Topology.end_capacitance``: C1 + C2 of a Colpitts), and C_B
-    with the collector resistor: the RC products
-    of the nodes that hold the stage's DC voltages (common practice, no source).
+    The largest of R_E·C_E, the input's DC node, C_B with the collector resistor, and
+    the next stage's coupling capacitor with its resistance: the RC products of the
+    nodes that hold the stage's DC voltages (common practice, no source). The input's
+    DC node is charged through the base divider's Thevenin resistance R_th (or a lone
+    gate or base resistor's) and holds the tank's capacitance to ground
+    (``Topology.end_capacitance``: C1 + C2 of a Colpitts, the tap bypass of a Hartley).
+    Where the tank's coil joins C_B to that node as well
+    (:meth:`~picker.circuit.stages.base.Stage.blocking_joins_input`: a common-emitter or
+    common-source stage on a Colpitts or a Hartley), the node's two capacitors are
+    counted by the open-circuit time-constant method (the sum, over the capacitors, of
+    each one's capacitance times the resistance it sees with the others open: Gray,
+    Hurst, Lewis & Meyer, *Analysis and Design of Analog Integrated Circuits*, the
+    zero-value time-constant analysis; from memory), R_th·C_end + (R_th + R_dc)·C_B,
+    R_dc the collector's DC resistance to the supply (R_C, the choke's winding, or both).
     """
     taus = [0.0]
     if params.r_e is not None and params.c_e is not None:
         taus.append(params.r_e * params.c_e)
+    r_dc = (params.r_c or 0.0) + (params.r_choke if params.l_choke is not None else 0.0)
     r_bias = [r for r in (params.r_b1, params.r_b2) if r is not None]
     if r_bias:  # the divider, or a lone gate (base) resistor: a JFET's self-bias
         r_th = 1.0 / sum(1.0 / r for r in r_bias)
-        taus.append(r_th * float(topology.end_capacitance(values)))
+        tau_in = r_th * float(topology.end_capacitance(values))
+        if params.c_block is not None and stage_of(params).blocking_joins_input(topology, params):
+            tau_in += (r_th + r_dc) * params.c_block
+        taus.append(tau_in)
     if params.c_block is not None and params.r_c is not None:
         taus.append(params.c_block * params.r_c)
     if params.r_next is not None:  # the next stage's coupling capacitor (picker.circuit.loads)
-        r_dc = (params.r_c or 0.0) + (params.r_choke if params.l_choke is not None else 0.0)
         taus.append(params.c_next_coupling * (params.r_next + r_dc))
     return max(taus)
 
@@ -157,9 +170,11 @@ def transient_plan(
     * the tank's envelope time constant 2Q/ω = Q/π periods (the unloaded inductor Q;
       the loaded Q is lower, so the envelope is at least this fast for a loop gain
       margin of 2 and slower only for a margin close to 1);
-    * the slowest bias time constant τ: R_E·C_E, the base divider's Thevenin
-      resistance (or a lone gate resistor's: a JFET's self-bias) with the tank's capacitance to ground (C1 + C2 of a Colpitts), and C_B with the
-      collector resistor. A bursting oscillator comes and goes about once per few τ.
+    * the slowest bias time constant τ (:func:`bias_time_constant`): R_E·C_E, the
+      base divider's Thevenin resistance (or a lone gate resistor's: a JFET's
+      self-bias) with the input's DC node (the tank's capacitance to ground, and C_B
+      where the coil joins it), and C_B with the collector resistor. A bursting
+      oscillator comes and goes about once per few τ.
 
     cycles = 400 + 20·Q/π + 10·τ/T, at most ``max_cycles`` (the run then adds the
     stage's own settling, five R_E·C_E). Common practice, no source: twenty envelope

@@ -361,6 +361,12 @@ class Stage:
         DC path (a coupling capacitor on one side, a bridge that blocks DC on the other)."""
         return False
 
+    def blocking_joins_input(self, topology: Topology, params: AmplifierParams) -> bool:
+        """Whether the coupling capacitor C_B belongs to the input's DC node: it sits
+        between the output and the tank top, and the tank's bridge passes DC to the
+        input (:func:`picker.circuit.netlist.bias_time_constant` then counts it)."""
+        return False
+
     # ------------------------------------------------------------ large signal
 
     def drive_limit(

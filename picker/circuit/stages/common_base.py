@@ -322,6 +322,11 @@ class CommonBase(CommonEmitter):
 
     # ------------------------------------------------------------ netlist
 
+    def blocking_joins_input(self, topology: Topology, params: AmplifierParams) -> bool:
+        """C_B joins the collector to the tank top, whose coil leads to the emitter (held
+        by the device), not to the bypassed base: its bias node is the base's alone."""
+        return False
+
     def settling_time(self, params: AmplifierParams) -> float:
         """Five time constants R_th·C_base of the bypassed base (R_th = R_B1 ∥ R_B2; with
         collector feedback R_B2 ∥ (R_F + R_C), :func:`picker.circuit.bias.dc_loop`)."""

@@ -307,6 +307,11 @@ class CommonCollector(CommonEmitter):
 
     # ------------------------------------------------------------ netlist
 
+    def blocking_joins_input(self, topology: Topology, params: AmplifierParams) -> bool:
+        """C_B holds the base from ground (the inductor joins it to the base): the base's
+        settling with it is :meth:`settling_time`'s, not the collector side's."""
+        return False
+
     def settling_time(self, params: AmplifierParams) -> float:
         """Five time constants R_th·C_B of the base's DC node (the blocking capacitor holds
         the base through the inductor; R_th = R_B1 ∥ R_B2)."""

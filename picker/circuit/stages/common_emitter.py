@@ -319,6 +319,11 @@ class CommonEmitter(Stage):
         tank top with no DC path: the bleed resistor gives it one."""
         return params.c_block is not None and not topology.bridge_passes_dc
 
+    def blocking_joins_input(self, topology: Topology, params: AmplifierParams) -> bool:
+        """C_B on the collector side and a bridge that passes DC (a Colpitts' or a
+        Hartley's coil): the coil joins C_B to the base's DC node."""
+        return params.c_block is not None and topology.bridge_passes_dc
+
     def stamps(
         self, s: np.ndarray, topology: Topology, params: AmplifierParams, ss: SmallSignal
     ) -> list[Stamp]:
