@@ -10,17 +10,14 @@ depend on the designs batched beside it.
 from __future__ import annotations
 
 import math
-from pathlib import Path
 
 import numpy as np
 import pytest
+from pinned import pinned
 
 from picker.circuit import burst_carrier as bc
 from picker.circuit.network import Network
 from picker.circuit.transient import build_circuit
-from picker.circuit.validation import load_reference
-
-DATA = Path(__file__).parent / "validation"
 
 
 def _lc(l_h: float, c_f: float):
@@ -57,8 +54,7 @@ def test_a_run_does_not_depend_on_its_batch(monkeypatch):
     monkeypatch.setattr(bc, "CHUNK", 5)
     monkeypatch.setattr(bc, "MIN_CHUNKS", 1)
     monkeypatch.setattr(bc, "MAX_CHUNKS", 1)
-    designs, _ = load_reference(DATA / "large_signal_holdout.json")
-    pick = [d for d in designs if d.id in ("h003", "h017")]
+    pick = [pinned(i)[0] for i in ("h003", "h017")]
     nets = [Network.build(d.topo, d.values, d.stray, d.params) for d in pick]
     f = [float(d.topo.frequency(d.values, d.stray)) for d in pick]
     both = bc.network_carriers(nets, [True, True], f)
@@ -71,8 +67,7 @@ def test_a_run_does_not_depend_on_its_batch(monkeypatch):
 def test_a_relaxing_board_runs_at_the_finer_step(monkeypatch):
     # a board flagged relaxing (no steady solution) runs at RELAX_STEPS, in a batch of
     # its own; the others at STEPS; each board's period sets its step either way
-    designs, _ = load_reference(DATA / "large_signal_holdout.json")
-    pick = [d for d in designs if d.id in ("h003", "h017")]
+    pick = [pinned(i)[0] for i in ("h003", "h017")]
     nets = [Network.build(d.topo, d.values, d.stray, d.params) for d in pick]
     f = [float(d.topo.frequency(d.values, d.stray)) for d in pick]
     seen = []

@@ -26,21 +26,13 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from pinned import pinned
 
 from picker.circuit.netlist import write_netlist
 from picker.circuit.network import Network
 from picker.circuit.nominal_orbit import board_orbits
 from picker.circuit.stability import startup
 from picker.circuit.steady import steady_state
-from picker.circuit.validation import Design, load_reference
-
-SET = Path(__file__).parent / "validation" / "tank_hartley.json"
-
-
-@cache
-def _set() -> dict[str, tuple[Design, dict[str, object]]]:
-    designs, answers = load_reference(SET)
-    return {d.id: (d, a) for d, a in zip(designs, answers, strict=True)}
 
 
 def _pz_poles(netlist: str) -> np.ndarray:
@@ -69,7 +61,7 @@ def test_startup_pole_equals_ngspice_pole_zero_analysis(ident):
     Tolerance 0.2 %: ``.pz`` solves the same linearised circuit (measured 3e-8 to 6e-4
     apart, the largest on hy018, whose bjt capacitances ngspice takes at its own
     operating point), ten times below the 2 % frequency target."""
-    d, _ = _set()[ident]
+    d, _ = pinned(ident)
     text = write_netlist(d.topo, d.values, d.stray, d.params, title=d.id, cycles=400)
     poles = _pz_poles(text)
     right = poles[poles.real > 0]
@@ -83,7 +75,7 @@ def test_startup_pole_equals_ngspice_pole_zero_analysis(ident):
 
 @cache
 def _orbits(ids: tuple[str, ...]) -> dict[str, object]:
-    nets = [Network.build(d.topo, d.values, d.stray, d.params) for d, _ in (_set()[i] for i in ids)]
+    nets = [Network.build(d.topo, d.values, d.stray, d.params) for d, _ in (pinned(i) for i in ids)]
     return {i: o[0] for i, o in zip(ids, board_orbits(nets), strict=True)}
 
 
@@ -102,7 +94,7 @@ def test_orbit_holds_hartley_designs_the_describing_function_misses(ident):
     """The orbit's carrier within 0.3 % of ngspice's (the issue's median target; measured
     0.02-0.22 %) and its amplitude within 5 % (measured 0.1 % or less), where the fast
     model alone is more than 2 % off (so the test fails if the orbit is not used)."""
-    d, rec = _set()[ident]
+    d, rec = pinned(ident)
     assert rec["state"] == "steady"
     f_sim, a_sim = float(rec["f_hz"]), float(rec["amplitude_v"])  # type: ignore[arg-type]
     fast = steady_state(d.topo, d.values, d.stray, d.params)

@@ -12,19 +12,18 @@
   amplitude, where the balance must give the linear loop's zero-phase frequency, found
   here by scipy's brentq on the generic solver's phase.
 - A heavily pulled board of the validation set (d104: margin 1.19, the ideal formula 23 %
-  off) against ngspice's carrier and amplitude, read from tests/validation/large_signal.json;
+  off) against ngspice's carrier and amplitude, pinned in tests/validation/pinned.json;
   likewise two boards the describing function calls saturated (d020, d059).
 """
 
 from __future__ import annotations
 
-import json
 from dataclasses import replace
-from pathlib import Path
 
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
+from pinned import pinned
 from scipy.optimize import brentq
 
 from picker.circuit.device import GENERIC_NPN, npn_transport, thermal_voltage
@@ -33,14 +32,12 @@ from picker.circuit.network import Network, loop_gain_matrix
 from picker.circuit.oscillation import loaded_response
 from picker.circuit.stages import get_stage
 from picker.circuit.steady import steady_state
-from picker.circuit.validation import design_from_dict
 from picker.tank.base import TWO_PI
 from picker.tank.colpitts import COLPITTS
 
 CE = get_stage("common-emitter")
 TANK = {"C1": 1e-9, "C2": 2.2e-9, "L": 22e-6}  # typical_params' tank (stage docstring)
 STRAY = 3e-12
-DATA = Path(__file__).parent / "validation" / "large_signal.json"
 
 
 def test_transport_law_is_ebers_moll():
@@ -107,10 +104,7 @@ def test_small_drive_gives_the_linear_zero_phase_frequency():
 
 
 def test_heavily_pulled_board_against_ngspice():
-    data = json.loads(DATA.read_text(encoding="utf-8"))
-    rec = next(r for r in data["designs"] if r["design"]["id"] == "d104")
-    d = design_from_dict(rec["design"])
-    sim = rec["ngspice"]
+    d, sim = pinned("d104")
     st = steady_state(d.topo, d.values, d.stray, d.params)
     ideal = float(d.topo.frequency(d.values, d.stray))
     assert abs(ideal / sim["f_hz"] - 1) > 0.2  # the ideal formula is far off here
@@ -124,10 +118,7 @@ def test_saturated_board_whose_balance_converges_against_ngspice(did):
     # the describing function calls these saturated (its swing reaches the knee) and gave
     # d020 (a Clapp) -0.31 % and twice ngspice's amplitude, d059 1.25x it; the balance of
     # both junctions converges on them and is taken (their orbits do not converge)
-    data = json.loads(DATA.read_text(encoding="utf-8"))
-    rec = next(r for r in data["designs"] if r["design"]["id"] == did)
-    d = design_from_dict(rec["design"])
-    sim = rec["ngspice"]
+    d, sim = pinned(did)
     assert sim["state"] == "steady"
     st = steady_state(d.topo, d.values, d.stray, d.params)
     assert bool(st.overdriven)  # still flagged: the orbit is tried on it

@@ -10,11 +10,11 @@ itself is checked against ngspice here and in tests/test_shooting.py).
 from __future__ import annotations
 
 import math
-from pathlib import Path
 
 import numpy as np
 import pytest
 from conftest import DEMO, write_spec
+from pinned import pinned
 
 from picker import api
 from picker.circuit.loaded import LoadedModel
@@ -23,27 +23,23 @@ from picker.circuit.network import Network
 from picker.circuit.nominal_orbit import board_orbits
 from picker.circuit.periodic import periodic_state
 from picker.circuit.steady import steady_state
-from picker.circuit.validation import load_reference
 from picker.core.montecarlo import PartVariation, Simulation, count_passing, sampled_values
 from picker.core.sampling import uniform_matrix
 from picker.tank.base import TWO_PI
 from picker.tank.board import board_values
 
-DATA = Path(__file__).parent / "validation" / "large_signal.json"
-
 
 @pytest.mark.slow
-@pytest.mark.parametrize("k", [15, 19])
-def test_offset_approximation_on_boards_around_nominal(k):
+@pytest.mark.parametrize("ident", ["d015", "d019"])
+def test_offset_approximation_on_boards_around_nominal(ident):
     # d015, d019: saturated, the describing function 8.8 % and 3.5 % off ngspice. Six
     # boards with every part within ±5 % of nominal: the fast model shifted by the
     # nominal orbit's offset (O1) within 0.6 % of each board's own orbit, where the
     # fast model alone is more than 2 % off
-    designs, answers = load_reference(DATA)
-    d = designs[k]
+    d, ref = pinned(ident)
     nom = board_orbits([Network.build(d.topo, d.values, d.stray, d.params)])[0][0]
     assert nom is not None and not nom.bursting
-    assert nom.f_hz == pytest.approx(answers[k]["f_hz"], rel=2e-3)  # ngspice
+    assert nom.f_hz == pytest.approx(ref["f_hz"], rel=2e-3)  # ngspice
     pos = d.topo.positions
     dev = np.random.default_rng(3).uniform(-0.05, 0.05, (6, len(pos)))
     vals = {p: d.values[p] * np.exp(dev[:, i]) for i, p in enumerate(pos)}
@@ -62,12 +58,9 @@ def test_start_up_from_rest_finds_a_burst_the_stable_orbit_hides():
     # steady. The start-up from rest (O3, picker.circuit.startup_run) collapses on d035
     # only; without it, or with a collapse threshold far off the measurement's 0.2,
     # the verdicts fail
-    designs, answers = load_reference(DATA)
-    assert (answers[35]["state"], answers[19]["state"]) == ("bursting", "steady")
-    nets = [
-        Network.build(designs[k].topo, designs[k].values, designs[k].stray, designs[k].params)
-        for k in (35, 19)
-    ]
+    (d35, r35), (d19, r19) = pinned("d035"), pinned("d019")
+    assert (r35["state"], r19["state"]) == ("bursting", "steady")
+    nets = [Network.build(d.topo, d.values, d.stray, d.params) for d in (d35, d19)]
     burst, steady = (o[0] for o in board_orbits(nets))
     assert burst is not None and steady is not None
     assert burst.converged and burst.multiplier < 1.0 and burst.bursting
@@ -75,13 +68,12 @@ def test_start_up_from_rest_finds_a_burst_the_stable_orbit_hides():
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("k", [87, 103])
-def test_lightly_driven_orbit_against_ngspice(k):
+@pytest.mark.parametrize("ident", ["d087", "d103"])
+def test_lightly_driven_orbit_against_ngspice(ident):
     # d087, d103: start-up margin 1.02 and 1.05, steady in ngspice; the orbit of a barely
     # driven circuit is near-sinusoidal, its frequency ngspice's to 0.02 % and its
     # amplitude within the waveform measurement's 6 % (tests/test_shooting.py)
-    designs, answers = load_reference(DATA)
-    d, ref = designs[k], answers[k]
+    d, ref = pinned(ident)
     assert ref["state"] == "steady"
     st = steady_state(d.topo, d.values, d.stray, d.params)
     assert float(st.margin) < 1.05

@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from pinned import pinned
 
 from picker.circuit.network import Network
 from picker.circuit.periodic import periodic_state
@@ -28,7 +29,6 @@ from picker.errors import SolverError
 from picker.tank.base import TWO_PI
 
 CARD = ".model QN NPN (IS=1e-14 BF=150 VAF=100 TF=3e-10 CJE=5e-12 CJC=3e-12 BR=1)"
-DATA = Path(__file__).parent / "validation" / "large_signal.json"
 FOLLOWER = Path(__file__).parent / "validation" / "stage_common_collector.json"
 R, L, C = 50.0, 1e-3, 1e-9
 
@@ -77,8 +77,7 @@ def test_monodromy_of_a_series_rlc_has_the_natural_frequencies():
 
 
 def test_sensitivities_match_central_differences():
-    designs, _ = load_reference(DATA)
-    d = designs[15]
+    d, _ = pinned("d015")
     net = Network.build(d.topo, d.values, d.stray, d.params)
     vals = {p: float(net.el[p][0]) for p in d.topo.positions}
     part = net.stage.netlist(
@@ -121,12 +120,11 @@ def _shoot(d):
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("k", [15, 19])
-def test_saturated_designs_against_ngspice(k):
+@pytest.mark.parametrize("ident", ["d015", "d019"])
+def test_saturated_designs_against_ngspice(ident):
     # d015, d019: the collector is pulled onto the base for part of each cycle; the
     # describing function's frequency is 8.8 % and 3.5 % off ngspice's
-    designs, answers = load_reference(DATA)
-    d, ref = designs[k], answers[k]
+    d, ref = pinned(ident)
     assert ref["state"] == "steady"
     st, ps = _shoot(d)
     assert bool(ps.ok[0])
@@ -140,8 +138,7 @@ def test_saturated_designs_against_ngspice(k):
 @pytest.mark.slow
 def test_bursting_design_has_a_multiplier_outside_the_unit_circle():
     # d021 (Clapp, collector choke) bursts in ngspice; its orbit is unstable
-    designs, answers = load_reference(DATA)
-    d, ref = designs[21], answers[21]
+    d, ref = pinned("d021")
     assert ref["state"] == "bursting"
     _, ps = _shoot(d)
     assert bool(ps.ok[0])
@@ -165,8 +162,7 @@ def test_saturated_follower_against_ngspice():
 
 @pytest.mark.ngspice
 def test_shooting_against_a_fresh_ngspice_transient():
-    designs, _ = load_reference(DATA)
-    d = designs[15]
+    d, _ = pinned("d015")
     try:
         sim = run_design(d)
     except SolverError as exc:
@@ -179,8 +175,7 @@ def test_shooting_against_a_fresh_ngspice_transient():
 def test_a_board_alone_and_in_a_batch_give_the_same_bits():
     # every Newton (per step, per orbit) stops per element and every product is an
     # einsum: a board's orbit does not depend on the boards beside it
-    designs, _ = load_reference(DATA)
-    d = designs[15]
+    d, _ = pinned("d015")
     vals = {p: np.array([v, v * 1.01, v * 0.99]) for p, v in d.values.items()}
     net = Network.build(d.topo, vals, d.stray, d.params)
     w, top, im = np.full(3, TWO_PI * 7.15e4), np.full(3, 3.3), np.full(3, np.nan)

@@ -18,6 +18,7 @@ import numpy as np
 import pytest
 import scipy.linalg
 from ngspice_op import need_ngspice, ngspice_op
+from pinned import pinned
 
 from picker.circuit.device import thermal_voltage
 from picker.circuit.network import Network
@@ -118,18 +119,14 @@ def test_emitter_follower_dc_point_matches_ngspice_operating_point():
 
 @pytest.mark.slow
 @pytest.mark.parametrize(
-    ("name", "design"),
+    "design",
     [
-        # the follower's collector on the supply: the describing function 0.60 % off
-        ("stage_common_collector.json", "cc003"),
-        # a common-emitter Hartley (k = K12's coupling): the describing function 0.57 % off
-        ("tank_hartley.json", "hy007"),
+        "cc003",  # the follower's collector on the supply: the describing function 0.60 % off
+        "hy007",  # a common-emitter Hartley (k = K12's coupling): the describing function 0.57 % off
     ],
 )
-def test_saturated_orbit_matches_ngspice_frequency(name, design):
-    designs, answers = load_reference(DATA / name)
-    k = [d.id for d in designs].index(design)
-    d, ref = designs[k], answers[k]
+def test_saturated_orbit_matches_ngspice_frequency(design):
+    d, ref = pinned(design)
     assert ref["state"] == "steady"
     st = steady_state(d.topo, d.values, d.stray, d.params)
     assert bool(np.asarray(st.overdriven))  # saturated: the orbit applies

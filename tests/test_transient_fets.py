@@ -11,21 +11,18 @@ measured by picker.circuit.waveform), where the describing function is off by up
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import numpy as np
 import pytest
 from ngspice_op import need_ngspice, ngspice_op
+from pinned import pinned
 
 from picker.circuit.network import Network
 from picker.circuit.ngspice import transient
 from picker.circuit.nominal_orbit import board_orbits
 from picker.circuit.transient import build_circuit, dc_point, integrate
 from picker.circuit.transient_devices import fet_law, spice_value
-from picker.circuit.validation import load_reference
 
 VT = 0.025852  # kT/q at 27 °C, ngspice's default temperature
-DATA = Path(__file__).parent / "validation"
 
 JFET = [
     "VDD vdd 0 DC {vdd}",
@@ -148,7 +145,8 @@ def test_card_parameters_reach_the_law():
 
 
 OVERDRIVEN = {
-    # the fast model's frequency error before the orbit, from the table of the set
+    # the fast model's frequency error before the orbit, from the table of the set (the
+    # designs pinned in tests/validation/pinned.json)
     "common_source": ["cs005", "cs013", "cs019"],  # -16 %, +6.8 %, +17 %
     "common_drain": ["cd001", "cd009"],  # -2.5 %, +2.6 %; amplitude +39 %, -31 %
     "common_gate": ["cg015", "cg021", "cg022"],  # -17 %, -18 %, -22 %
@@ -158,20 +156,17 @@ OVERDRIVEN = {
 @pytest.mark.slow
 @pytest.mark.parametrize("stage", sorted(OVERDRIVEN))
 def test_orbits_of_overdriven_fet_designs_match_ngspice(stage):
-    designs, answers = load_reference(DATA / f"stage_{stage}.json")
-    pick = [k for k, d in enumerate(designs) if d.id in OVERDRIVEN[stage]]
-    nets = [Network.build(designs[k].topo, designs[k].values, designs[k].stray, designs[k].params)
-            for k in pick]  # fmt: skip
-    orbits = board_orbits(nets)
-    for k, orb in zip(pick, orbits, strict=True):
-        o, ref = orb[0], answers[k]
-        assert ref["state"] == "steady" and o is not None, designs[k].id
+    pick = [pinned(i) for i in OVERDRIVEN[stage]]
+    orbits = board_orbits([Network.build(d.topo, d.values, d.stray, d.params) for d, _ in pick])
+    for (d, ref), orb in zip(pick, orbits, strict=True):
+        o = orb[0]
+        assert ref["state"] == "steady" and o is not None, d.id
         # ngspice's frequency from 20 periods of a 60-steps-a-period trapezoidal run
         # (corrected for its warping as for a sine); on these distorted waveforms the
         # record is itself off by up to 0.8 % (cg021: 38875 Hz recorded, 38558 Hz from
         # the same netlist at a 4× finer step; the orbit gives 38558 Hz), so 1 %, against
         # the describing function's 16-22 % misses
-        assert o.f_hz == pytest.approx(ref["f_hz"], rel=1e-2), designs[k].id
+        assert o.f_hz == pytest.approx(ref["f_hz"], rel=1e-2), d.id
         # ngspice reads the peak-to-peak over the run's last tenth
-        assert o.amplitude_v == pytest.approx(ref["amplitude_v"], rel=0.08), designs[k].id
-        assert not o.bursting, designs[k].id
+        assert o.amplitude_v == pytest.approx(ref["amplitude_v"], rel=0.08), d.id
+        assert not o.bursting, d.id

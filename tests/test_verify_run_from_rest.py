@@ -91,14 +91,9 @@ def test_a_relaxing_board_takes_its_run_from_rest_and_its_state(monkeypatch):
     run's state, whatever it is; ngspice's reading (bursting, 184 kHz in the record) is
     its own. Fails if the relaxing board is left without a model frequency, or if its
     run's state is dropped because the steady state never called it bursting."""
-    from pathlib import Path
+    from pinned import pinned
 
-    from picker.circuit.validation import load_reference
-
-    designs, answers = load_reference(
-        Path(__file__).parent / "validation" / "tank_hartley_series.json"
-    )
-    (d,) = [d for d in designs if d.id == "hs002"]
+    d, _ = pinned("hs002")
     hints = []
 
     def runs(nets, go, f_hint, relaxing):
