@@ -25,8 +25,7 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from test_verify_demos import DEMOS, golden_candidates
-from typer.testing import CliRunner
+from test_verify_demos import simulate_top
 
 from picker.api.verify import DesignCheck
 from picker.circuit import verify
@@ -35,7 +34,6 @@ from picker.circuit.ngspice import SETTLING_DRIFT, SimulationResult, simulate
 from picker.circuit.validation import load_reference
 from picker.circuit.waveform import WaveformMeasurement
 from picker.cli.circuit import verify_text
-from picker.cli.main import app
 
 SERIES_SET = Path(__file__).parent / "validation" / "tank_hartley_series.json"
 PLAN = TransientPlan(f0=1e5, cycles=700, tstop=7e-3, t_kick=1e-5, tail_start=3e-3, resolved=True)
@@ -162,11 +160,7 @@ def test_simulate_reports_the_longer_run(hs021, monkeypatch):
         return [dataclasses.replace(c, sim=b.sim, lengthened=b.lengthened, planned=b.planned)]
 
     monkeypatch.setattr(verify, "check_boards", lengthened)
-    c = golden_candidates("colpitts_bjt")[0]
-    sets = [a for p, part in c["parts"].items() for a in ("--set", f"{p}={part['value']!r}")]
-    spec = str(DEMOS / "colpitts_bjt.toml")
-    runner = CliRunner()
-    text = runner.invoke(app, ["simulate", spec, *sets])
+    text = simulate_top("colpitts_bjt")
     assert text.exit_code == 0, text.output
     flat = " ".join(text.output.split())
     off = f"{100 * (b.planned.frequency_hz / b.f_sim - 1):+.2f} %"
@@ -174,7 +168,7 @@ def test_simulate_reports_the_longer_run(hs021, monkeypatch):
     assert f"kHz, {off})" in flat
     assert f"moved by {100 * b.planned.carrier_drift:+.2f} % across the planned run" in flat
     assert "the bias was still settling when the run ended" not in flat  # settled now
-    js = runner.invoke(app, ["simulate", spec, *sets, "--format", "json"])
+    js = simulate_top("colpitts_bjt", "--format", "json")
     assert js.exit_code == 0, js.output
     assert json.loads(js.output)["simulated"]["lengthened"]["factor"] == b.lengthened
 

@@ -32,6 +32,7 @@ import math
 from collections.abc import Callable, Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
+from functools import partial
 from typing import Any
 
 import numpy as np
@@ -252,27 +253,14 @@ def settled_run(
     plan's measured span (``tstop − tail_start``) at its end and ``timeout`` scaled
     alike; a run that bursts or wanders ends the lengthening too (it counts: the longer
     run shows more of the board)."""
-    sim = simulate(
-        text,
-        timeout=timeout,
-        f_hint=plan.f0,
-        tail_start=plan.tail_start,
-        t_kick=plan.t_kick,
-        confirm=True,
-    )
-    planned, factor = sim, 1
     span = plan.tstop - plan.tail_start
+    run = partial(simulate, f_hint=plan.f0, t_kick=plan.t_kick, confirm=True)
+    sim = run(text, timeout=timeout, tail_start=plan.tail_start)
+    planned, factor = sim, 1
     while sim.drifting and factor < LONGEST_RUN:
         factor = min(factor * LENGTHEN, LONGEST_RUN)
         tstop = plan.tstop * factor
-        sim = simulate(
-            longer(tstop),
-            timeout=timeout * factor,
-            f_hint=plan.f0,
-            tail_start=tstop - span,
-            t_kick=plan.t_kick,
-            confirm=True,
-        )
+        sim = run(longer(tstop), timeout=timeout * factor, tail_start=tstop - span)
     return sim, factor, (None if factor == 1 else planned)
 
 
