@@ -229,7 +229,11 @@ def simulate(
     ),
     fmt: str = typer.Option("table", "--format", metavar="FORMAT", help="table or json."),
     timeout: float = typer.Option(
-        120.0, "--timeout", metavar="SECONDS", help="Seconds to allow ngspice."
+        120.0,
+        "--timeout",
+        metavar="SECONDS",
+        help="Seconds to allow ngspice for the planned run (a run made N times as long "
+        "because the carrier had not settled gets N times as many).",
     ),
 ) -> None:
     """Simulate the oscillator in ngspice and compare with the model and the window.
