@@ -15,11 +15,12 @@ integral of the frequency: textbook calculus, no source needed).
 from __future__ import annotations
 
 import dataclasses
+import json
 import math
 
 import numpy as np
 import pytest
-from test_verify_demos import DEMOS, golden_candidates, top_board
+from test_verify_demos import simulate_top, top_board
 
 from picker.api.verify import DesignCheck
 from picker.circuit import verify
@@ -96,12 +97,6 @@ def test_verify_warns_where_ngspice_had_not_settled(monkeypatch, drift):
 @pytest.mark.ngspice
 def test_simulate_warns_where_ngspice_had_not_settled(monkeypatch):
     # `picker simulate` on the demo's top design, its ngspice drift replaced by hs021's
-    import json
-
-    from typer.testing import CliRunner
-
-    from picker.cli.main import app
-
     real = verify.check_boards
 
     def drifting(*args, **kwargs):
@@ -111,14 +106,10 @@ def test_simulate_warns_where_ngspice_had_not_settled(monkeypatch):
         ]
 
     monkeypatch.setattr(verify, "check_boards", drifting)
-    c = golden_candidates("colpitts_bjt")[0]
-    sets = [a for p, part in c["parts"].items() for a in ("--set", f"{p}={part['value']!r}")]
-    spec = str(DEMOS / "colpitts_bjt.toml")
-    runner = CliRunner()
-    text = runner.invoke(app, ["simulate", spec, *sets])
+    text = simulate_top("colpitts_bjt")
     assert text.exit_code == 0, text.output
     flat = " ".join(text.output.split())
     assert "moved by -0.44 % from the first half of the measured tail to the second" in flat
-    js = runner.invoke(app, ["simulate", spec, *sets, "--format", "json"])
+    js = simulate_top("colpitts_bjt", "--format", "json")
     assert js.exit_code == 0, js.output
     assert json.loads(js.output)["simulated"]["carrier_drift"] == pytest.approx(-4.4e-3)

@@ -71,6 +71,18 @@ def top_board(stem: str) -> tuple[Any, Any, Any, dict[str, float], dict[str, Any
     return topo, par, spec.amplifier.to_params(spec.parts), board, c
 
 
+def simulate_top(stem: str, *options: str) -> Any:
+    """``picker simulate`` of the demo's committed top design (its values given with
+    ``--set``, so no solve runs first): the CLI runner's result."""
+    from typer.testing import CliRunner
+
+    from picker.cli.main import app
+
+    c = golden_candidates(stem)[0]
+    sets = [a for p, part in c["parts"].items() for a in ("--set", f"{p}={part['value']!r}")]
+    return CliRunner().invoke(app, ["simulate", str(DEMOS / f"{stem}.toml"), *sets, *options])
+
+
 def corner(c: dict[str, Any], direction: int) -> dict[str, float]:
     """Part values at the corner that moves the frequency ``direction`` (−1 down, +1 up)."""
     out = {}

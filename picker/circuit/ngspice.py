@@ -110,6 +110,13 @@ class SimulationResult:
     coarse: WaveformMeasurement | None = None
     carrier_drift: float = math.nan
 
+    @property
+    def drifting(self) -> bool:
+        """Whether the steady carrier still moved across the measured tail by more than
+        :data:`SETTLING_DRIFT` (the bias had not settled)."""
+        d = self.carrier_drift
+        return math.isfinite(d) and abs(d) > SETTLING_DRIFT
+
 
 def ngspice_path() -> str:
     """Path of the ngspice executable, or a SolverError saying how to get it."""

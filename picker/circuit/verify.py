@@ -13,6 +13,12 @@ A board whose transient bursts or stays unsettled is run again at a five times f
 (:func:`picker.circuit.ngspice.simulate` with ``confirm``): where that run disagrees, the
 burst was the trapezoidal rule's and the finer run counts (``step_refined`` in the JSON).
 
+A board whose steady carrier still moves across the measured tail (the bias had not
+settled: :attr:`picker.circuit.ngspice.SimulationResult.drifting`, a slow time constant
+the plan undercounts) is run again :data:`LENGTHEN` times as long, its tail read over the
+same span at the new end, until it settles or the run is :data:`LONGEST_RUN` times the
+plan's: the longest run counts (``lengthened`` in the JSON, with the planned run's reading).
+
 A board passes when in ngspice it **starts**, runs **steady** (not bursting, not
 unsettled) and its carrier lies **in the window**; :attr:`BoardCheck.verdict` says which
 of the three fail. ``picker solve --verify`` and ``picker evaluate --verify`` (through
@@ -23,9 +29,10 @@ tolerance corners; ``picker simulate`` checks one board.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
+from functools import partial
 from typing import Any
 
 import numpy as np
@@ -40,10 +47,24 @@ from picker.circuit.steady import SteadyState, envelope_of, steady_state
 from picker.tank.base import Topology
 from picker.units import json_number
 
-__all__ = ["BoardCheck", "board_plans", "check_boards", "model_figures", "verdict"]
+__all__ = [
+    "BoardCheck",
+    "board_plans",
+    "check_boards",
+    "model_figures",
+    "settled_run",
+    "verdict",
+]
 
 #: Parallel ngspice processes (the target machine has two cores).
 WORKERS = 2
+#: A board whose steady carrier drifts is run this many times as long (again, up to
+#: :data:`LONGEST_RUN`). The bias settles exponentially with its slow time constant τ, so
+#: moving the tail later by Δt takes the drift read there down by e^(−Δt/τ): four times a
+#: run that ended near τ cuts it about twentyfold (a choice of the project, no source).
+LENGTHEN = 4
+#: The longest run, as a multiple of the plan's.
+LONGEST_RUN = 16
 
 
 def _figures(st: SteadyState, i: int) -> dict[str, Any]:
@@ -133,7 +154,9 @@ class BoardCheck:
     values (F, H); ``model`` is :func:`model_figures`; ``sim`` the simulation (the
     measurement is ``sim.waveform``); ``window`` the frequency window (Hz) or None;
     ``cycles`` and ``resolved`` the transient's length in carrier periods and whether it
-    was as long as wanted (:class:`picker.circuit.netlist.TransientPlan`).
+    was as long as wanted (:class:`picker.circuit.netlist.TransientPlan`); ``lengthened``
+    how many times the plan's length the run that counts lasted (1: as planned; more where
+    the planned run's carrier still drifted), and ``planned`` the planned run then.
     """
 
     label: str
@@ -143,6 +166,8 @@ class BoardCheck:
     window: tuple[float, float] | None
     cycles: int
     resolved: bool
+    lengthened: int = 1
+    planned: SimulationResult | None = None
 
     @property
     def state(self) -> str:
@@ -191,11 +216,52 @@ class BoardCheck:
                 "warnings": list(self.sim.warnings),
                 "carrier_drift": json_number(self.sim.carrier_drift),
                 **step_note(self.sim),
+                **self.lengthened_note(),
             },
             "model_minus_ngspice": diff,
             "in_window": self.in_window,
             "verdict": self.verdict,
         }
+
+    def lengthened_note(self) -> dict[str, Any]:
+        """``{"lengthened": ...}`` where the run that counts is longer than planned: the
+        factor and what the planned run read; empty otherwise."""
+        if self.planned is None:
+            return {}
+        return {
+            "lengthened": {
+                "factor": self.lengthened,
+                "f_hz_planned": json_number(self.planned.frequency_hz),
+                "carrier_drift_planned": json_number(self.planned.carrier_drift),
+            }
+        }
+
+
+def settled_run(
+    text: str,
+    plan: TransientPlan,
+    longer: Callable[[float], str],
+    *,
+    timeout: float,
+) -> tuple[SimulationResult, int, SimulationResult | None]:
+    """ngspice's run of ``text`` (planned by ``plan``), lengthened while its steady
+    carrier drifts: ``(run that counts, its length as a multiple of the plan's, the
+    planned run or None where it counts)``.
+
+    ``longer(tstop)`` writes the same netlist stopping at ``tstop``. Each longer run is
+    :data:`LENGTHEN` times the last, up to :data:`LONGEST_RUN` times the plan, with the
+    plan's measured span (``tstop − tail_start``) at its end and ``timeout`` scaled
+    alike; a run that bursts or wanders ends the lengthening too (it counts: the longer
+    run shows more of the board)."""
+    span = plan.tstop - plan.tail_start
+    run = partial(simulate, f_hint=plan.f0, t_kick=plan.t_kick, confirm=True)
+    sim = run(text, timeout=timeout, tail_start=plan.tail_start)
+    planned, factor = sim, 1
+    while sim.drifting and factor < LONGEST_RUN:
+        factor = min(factor * LENGTHEN, LONGEST_RUN)
+        tstop = plan.tstop * factor
+        sim = run(longer(tstop), timeout=timeout * factor, tail_start=tstop - span)
+    return sim, factor, (None if factor == 1 else planned)
 
 
 def check_boards(
@@ -227,19 +293,18 @@ def check_boards(
         text = write_netlist(topology, v, stray, params, title=label, tstop=plan.tstop)
         jobs.append((label, v, plan, text))
 
-    def run(job: tuple[str, dict[str, float], TransientPlan, str]) -> SimulationResult:
-        _, _, plan, text = job
-        return simulate(
-            text,
-            timeout=timeout,
-            f_hint=plan.f0,
-            tail_start=plan.tail_start,
-            t_kick=plan.t_kick,
-            confirm=True,
-        )
+    def run(
+        job: tuple[str, dict[str, float], TransientPlan, str],
+    ) -> tuple[SimulationResult, int, SimulationResult | None]:
+        label, v, plan, text = job
+
+        def longer(tstop: float) -> str:
+            return write_netlist(topology, v, stray, params, title=label, tstop=tstop)
+
+        return settled_run(text, plan, longer, timeout=timeout)
 
     with ThreadPoolExecutor(max_workers=max(1, workers)) as pool:
-        sims = list(pool.map(run, jobs))
+        outcomes = list(pool.map(run, jobs))
     # the boards where solve's table takes the periodic orbit (picker.circuit.nominal_orbit:
     # a saturated drive) get the orbit's figures beside ngspice, as the table gives them
     arr = {p: np.array([v[p] for v in vals]) for p in topology.positions}
@@ -291,8 +356,12 @@ def check_boards(
             model=models[i],
             sim=sim,
             window=window,
-            cycles=plan.cycles,
+            cycles=math.ceil(plan.tstop * factor * plan.f0) if factor > 1 else plan.cycles,
             resolved=plan.resolved,
+            lengthened=factor,
+            planned=planned,
         )
-        for i, ((label, v, plan, _), sim) in enumerate(zip(jobs, sims, strict=True))
+        for i, ((label, v, plan, _), (sim, factor, planned)) in enumerate(
+            zip(jobs, outcomes, strict=True)
+        )
     ]

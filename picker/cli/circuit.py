@@ -45,6 +45,13 @@ SETTLING_CAUTION = (
     "constant, such as the collector coupling capacitor charging through the base divider), "
     "so the carrier read is not the board's final one"
 )
+#: The note where a board's planned run still drifted and a longer run is reported
+#: (picker.circuit.verify.settled_run).
+LENGTHENED_NOTE = (
+    "note: ngspice's carrier still moved by {drift} across the planned run's measured "
+    "tail (the bias was settling), so {what} run {longer}, and the longer run's tail, read "
+    "over the same span, is reported"
+)
 #: The note beside a model column read from the board's own circuit run from rest
 #: (picker.circuit.burst_carrier.run_hint) rather than from its steady solution.
 RUN_FROM_REST_NOTE = (
@@ -222,7 +229,11 @@ def simulate(
     ),
     fmt: str = typer.Option("table", "--format", metavar="FORMAT", help="table or json."),
     timeout: float = typer.Option(
-        120.0, "--timeout", metavar="SECONDS", help="Seconds to allow ngspice."
+        120.0,
+        "--timeout",
+        metavar="SECONDS",
+        help="Seconds to allow ngspice for the planned run (a run made N times as long "
+        "because the carrier had not settled gets N times as many).",
     ),
 ) -> None:
     """Simulate the oscillator in ngspice and compare with the model and the window.
@@ -231,8 +242,10 @@ def simulate(
     frequency (from the phase slope, right on clipped or bursting waveforms), the
     amplitude at the tank top, the envelope (steady, bursting, unsettled or none), the
     start-up time, and a verdict: ok, or what fails (does not start, bursts, unsettled,
-    outside the window). A caution follows where ngspice's steady carrier still moved by
-    more than 0.1 % across the measured tail (the bias had not settled).
+    outside the window). Where ngspice's steady carrier still moved by more than 0.1 %
+    across the measured tail (the bias had not settled), the board is run again four and
+    then sixteen times as long, and the longer run is reported with a note; a caution
+    follows where even that run has not settled.
     """
     from picker.circuit.ngspice import step_note
     from picker.circuit.verify import check_boards
@@ -271,6 +284,7 @@ def simulate(
             "warnings": list(sim.warnings),
             "carrier_drift": json_number(sim.carrier_drift),
             **step_note(sim),
+            **check.lengthened_note(),
         },
         "window": {"f_min_hz": lo, "f_max_hz": hi, **(window_fig or {})},
         "verdict": check.verdict,
@@ -313,8 +327,19 @@ def simulate(
         )
     if "bursting" in (wave.state, ls["envelope"]):
         lines.append(BURST_CARRIER_CAUTION)
-    if _unsettled(sim):
-        lines.append(SETTLING_CAUTION.format(drift=_percent(sim.carrier_drift), where=""))
+    if check.planned is not None:
+        lines.append(
+            LENGTHENED_NOTE.format(
+                drift=_percent(check.planned.carrier_drift),
+                what="the board was",
+                longer=f"{check.lengthened} times as long (the planned run read "
+                f"{hz(json_number(check.planned.frequency_hz))}, "
+                f"{_percent(check.planned.frequency_hz / sim.frequency_hz - 1.0)})",
+            )
+        )
+    if sim.drifting:
+        where = "" if check.planned is None else f" of the run {check.lengthened} times as long"
+        lines.append(SETTLING_CAUTION.format(drift=_percent(sim.carrier_drift), where=where))
     if ls.get("carrier_from") == "run from rest":
         lines.append(RUN_FROM_REST_NOTE.format(which=""))
     if sim.coarse is not None:
@@ -326,15 +351,6 @@ def simulate(
         )
     lines += [f"ngspice: {w}" for w in sim.warnings]
     typer.echo(_fit(lines, Console().width))
-
-
-def _unsettled(sim: Any) -> bool:
-    """Whether ngspice's steady carrier still moved across the measured tail by more than
-    :data:`picker.circuit.ngspice.SETTLING_DRIFT`."""
-    from picker.circuit.ngspice import SETTLING_DRIFT
-
-    drift = float(sim.carrier_drift)
-    return drift == drift and abs(drift) > SETTLING_DRIFT
 
 
 def _percent(x: float) -> str:
@@ -418,11 +434,26 @@ def _notes(checks: list[DesignCheck]) -> list[str]:
     ]
     if ran:
         lines.append(RUN_FROM_REST_NOTE.format(which=" of " + ", ".join(ran)))
+    longer = [
+        f"{c.rank} {b.label}: {b.lengthened} times, the planned run read "
+        f"{_percent(b.planned.frequency_hz / b.sim.frequency_hz - 1.0)}"
+        for c in checks
+        for b in c.boards
+        if b.planned is not None
+    ]
+    if longer:
+        lines.append(
+            LENGTHENED_NOTE.format(
+                drift="more than 0.1 %",
+                what="these boards were",
+                longer="longer (" + ", ".join(longer) + ")",
+            )
+        )
     drifting = [
         f"{c.rank} {b.label} {_percent(b.sim.carrier_drift)}"
         for c in checks
         for b in c.boards
-        if _unsettled(b.sim)
+        if b.sim.drifting
     ]
     if drifting:
         lines.append(
