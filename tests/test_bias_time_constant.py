@@ -82,14 +82,11 @@ def _slowest_tau(r_th: float, c_end: float, c_b: float, r_dc: float) -> float:
     return float(1.0 / rates.min())
 
 
-def test_colpitts_collector_choke_counts_the_coupling_capacitor():
-    # A common-emitter Colpitts with a choke load: C_B joins the collector (the choke's
-    # winding resistance to the supply) to the tank top, the inductor joins the top to
-    # the base, so the base node's slow time constant takes C_B with R_th + R_choke.
-    topo = get_topology("colpitts")
-    base = get_stage("common-emitter").typical_params()
-    params = dataclasses.replace(
-        base,
+def _choke_loaded():
+    """The common-emitter stage with a divider of 47k/10k, a 100 µH choke of 2 Ω, C_B of
+    10 nF and R_E·C_E = 1 µs (an invented board)."""
+    return dataclasses.replace(
+        get_stage("common-emitter").typical_params(),
         r_b1=47e3,
         r_b2=10e3,
         r_c=None,
@@ -99,6 +96,14 @@ def test_colpitts_collector_choke_counts_the_coupling_capacitor():
         r_e=1e3,
         c_e=1e-9,
     )
+
+
+def test_colpitts_collector_choke_counts_the_coupling_capacitor():
+    # A common-emitter Colpitts with a choke load: C_B joins the collector (the choke's
+    # winding resistance to the supply) to the tank top, the inductor joins the top to
+    # the base, so the base node's slow time constant takes C_B with R_th + R_choke.
+    topo = get_topology("colpitts")
+    params = _choke_loaded()
     r_th = 47e3 * 10e3 / 57e3
     want = _slowest_tau(r_th, 1e-9 + 2.2e-9, 10e-9, 2.0)
     assert bias_time_constant(topo, VALUES, params) == pytest.approx(want, rel=2e-3)
@@ -109,17 +114,6 @@ def test_clapp_bridge_keeps_the_coupling_capacitor_off_the_base():
     # base node, whose time constant stays R_th·(C1 + C2).
     topo = get_topology("clapp")
     values = {**VALUES, "C3": 100e-12}
-    base = get_stage("common-emitter").typical_params()
-    params = dataclasses.replace(
-        base,
-        r_b1=47e3,
-        r_b2=10e3,
-        r_c=None,
-        l_choke=100e-6,
-        r_choke=2.0,
-        c_block=10e-9,
-        r_e=1e3,
-        c_e=1e-9,
-    )
+    params = _choke_loaded()
     r_th = 47e3 * 10e3 / 57e3
     assert bias_time_constant(topo, values, params) == pytest.approx(r_th * 3.2e-9)
