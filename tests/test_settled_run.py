@@ -8,8 +8,10 @@ plan), reading the plan's span at the end of the longer run.
 The loop is checked with a stand-in for ngspice whose drift is scripted; the physics
 with ngspice on the series Hartley set's hs021, a common-source board whose gate node
 holds the collector coupling capacitor (861 nF) through the coils, charged through a
-divider of 13 kΩ: a time constant of about 12.6 ms, which the transient plan undercounts
-(tests/test_bias_time_constant.py). Its planned run, read 2.6 ms in, still drifts. The
+divider of 13 kΩ: a time constant of about 12.6 ms (tests/test_bias_time_constant.py).
+The plan's measured tail starts after two such constants, and its planned run still
+drifts there (by -0.32 %; before the plan counted C_B it took the constant as 1.3 ms and
+the planned run, drifting by -0.28 %, read 2.7 % above the settled carrier). The
 reference for the settled carrier is ngspice's own run 24 times the plan's length, read
 over its last span (an RC settling is exponential, so 24 plans, 156 ms or twelve time
 constants, leave a drift far below what either run can resolve: common practice, no
@@ -198,10 +200,12 @@ def test_hs021_is_run_until_its_bias_settles(hs021):
         tail_start=tstop - (plan.tstop - plan.tail_start),
         t_kick=plan.t_kick,
     )
-    # 0.02 %: both runs are settled (drift under 0.1 % over the span, ten times finer
-    # than the planned run's error of about 2.7 % measured when this was written)
+    # 0.02 %: both runs are settled (drift under 0.1 % over the span); the planned run is
+    # measurably off: 0.30 % measured 2026-12-04 with C_B in the plan (83.56 against
+    # 83.31 kHz; about 2.7 % before the plan counted C_B), so a lengthening that did not
+    # move the reading, or a reference read too early, fails here
     assert b.f_sim == pytest.approx(ref.frequency_hz, rel=2e-4)
-    assert abs(b.planned.frequency_hz / ref.frequency_hz - 1.0) > 10 * SETTLING_DRIFT
+    assert abs(b.planned.frequency_hz / ref.frequency_hz - 1.0) > 2 * SETTLING_DRIFT
     note = b.to_dict()["ngspice"]["lengthened"]
     assert note["factor"] == b.lengthened
     assert note["f_hz_planned"] == pytest.approx(b.planned.frequency_hz)

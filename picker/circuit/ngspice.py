@@ -378,7 +378,7 @@ def carrier_drift(
     :func:`read_window`); NaN where a half shows no oscillation.
 
     A steady board whose bias is still settling keeps moving: the series-capacitor
-    Hartley set's hs021 moved −0.44 % across its record's tail and settled 1.4 % below
+    Hartley set's hs021, as first drawn, moved −0.44 % across its record's tail and settled 1.4 % below
     the record in a run four times as long (tests/validation/README.md)."""
     t0 = float(wave.tail_start_s)
     stop = float(time[-1])

@@ -38,7 +38,8 @@ BURST_CARRIER_CAUTION = (
 )
 #: Printed where ngspice's steady carrier still moved across the measured tail by more
 #: than picker.circuit.ngspice.SETTLING_DRIFT (tests/validation/README.md: the series
-#: Hartley set's hs021 moved -0.44 % across its record's tail and settled 1.4 % lower).
+#: Hartley set's hs021, as first drawn, moved -0.44 % across its record's tail and settled
+#: 1.4 % lower).
 SETTLING_CAUTION = (
     "caution: ngspice's carrier still moved by {drift} from the first half of the measured "
     "tail to the second{where}: the bias was still settling when the run ended (a slow time "
