@@ -4,7 +4,8 @@ The golden files in ``tests/goldens/`` pin what picker prints, so a change meant
 to move code without changing behaviour can be shown to change nothing:
 ``tests/test_goldens.py`` reruns the same commands and compares them character for
 character, every number to 1e-9 relative (:func:`same`: the last digits of a float
-differ between processors) and the version field aside.
+differ between processors; the few goldens of :data:`LOOSE`, whose orbits settle only to
+the shooting's tolerance, more loosely) and the version field aside.
 
 Regenerate after an intended change of output::
 
@@ -203,18 +204,48 @@ NUMBER = re.compile(r"[-+]?(?:\d+\.\d*|\.\d+|\d+)(?:[eE][-+]?\d+)?")
 RTOL = 1e-9
 
 
-def same(expected: str, got: str) -> bool:
+#: Goldens whose figures come from periodic orbits that settle only to the shooting's
+#: tolerance, where the processor's rounding decides the last Newton steps: the Hartley
+#: beacon demo's solve output, on two machines with the same code and packages, differed
+#: by up to 7.7e-7 relative in a loaded frequency and 2.6e-5 in a harmonic, enough to
+#: move one board of 5,000 across the window's edge (yields 0.7056 and 0.7058) and a
+#: printed frequency's last digit (3.5552 and 3.55521 MHz, the shorter padded by one more
+#: space in its table cell). Runs of spaces count as one there, and their numbers are compared
+#: to :data:`LOOSE_RTOL` relative, :data:`LOOSE_ATOL` absolute (a share: one board in
+#: 5,000 is 2e-4) or one unit in the last printed digit of the shorter, whichever is
+#: widest.
+LOOSE = frozenset(f"solve_hartley_beacon.{ext}" for ext in ("json", "csv", "txt"))
+LOOSE_RTOL = 1e-4
+LOOSE_ATOL = 5e-4
+
+
+def _last_digit(text: str) -> float:
+    """One unit in the last printed digit of the number ``text`` (1 for an integer)."""
+    mant, _, exp = text.lower().partition("e")
+    places = len(mant.partition(".")[2])
+    return float(10.0 ** (int(exp or 0) - places))
+
+
+def same(expected: str, got: str, *, loose: bool = False) -> bool:
     """Whether ``got`` is the golden ``expected``: every character outside the numbers
-    identical, every number equal to :data:`RTOL` relative (module docstring)."""
+    identical, every number equal to :data:`RTOL` relative (module docstring), or with
+    ``loose`` to the tolerances of :data:`LOOSE`."""
     if expected == got:
         return True
     e_parts, g_parts = NUMBER.split(expected), NUMBER.split(got)
+    if loose:  # a number printed a digit shorter is padded by one more space
+        e_parts = [re.sub(" +", " ", p) for p in e_parts]
+        g_parts = [re.sub(" +", " ", p) for p in g_parts]
     if e_parts != g_parts:
         return False
     for a, b in zip(NUMBER.findall(expected), NUMBER.findall(got), strict=True):
         if a != b:
             x, y = float(a), float(b)
-            if abs(x - y) > RTOL * max(abs(x), abs(y)):
+            tol = RTOL * max(abs(x), abs(y))
+            if loose:
+                unit = max(_last_digit(a), _last_digit(b))  # the shorter's
+                tol = max(LOOSE_RTOL * max(abs(x), abs(y)), LOOSE_ATOL, unit)
+            if abs(x - y) > tol:
                 return False
     return True
 
@@ -231,7 +262,9 @@ def main(argv: list[str]) -> int:
         text = run(name)
         path = GOLDEN / name
         if check:
-            if not path.exists() or not same(path.read_text(encoding="utf-8"), text):
+            if not path.exists() or not same(
+                path.read_text(encoding="utf-8"), text, loose=name in LOOSE
+            ):
                 print(f"differs: {name}")
                 bad += 1
         else:

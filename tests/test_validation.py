@@ -26,6 +26,7 @@ from picker.circuit.validation import (
     Accuracy,
     ModelAnswer,
     accuracy,
+    accuracy_table,
     design_from_dict,
     design_to_dict,
     load_reference,
@@ -55,11 +56,15 @@ UNMET_BURSTING: dict[str, str] = {
 #: met on both sets as first drawn since a design the model calls bursting takes the
 #: carrier of its own circuit run from rest (picker.circuit.burst_carrier): d100 from
 #: -3.6 % to +0.2 %, h019 from -1.1 % to +0.16 % (ids of the sets as first drawn)
+#: Not strict: the main set's worst Clapps are bursters whose carriers the model reads from
+#: its own run from rest, and that reading moves with rounding between machines
+#: (Accuracy), so the figure may come under 0.5 % on one machine and not on another; the
+#: Clapps ngspice does not record as bursting have a strict test of their own below
 UNMET_CLAPP: dict[str, str] = {
-    "main": "1.36 % since the redraw with C_B in the plan: d098, a Clapp whose bursts die "
-    "out completely between them (modulation 0.9999998), reads 2.6239 MHz in the model's "
-    "run from rest against ngspice's 2.5888 MHz (2.5883 at a five times finer step, 2.5900 "
-    "with Gear); every other Clapp is within 0.21 %",
+    "main": "measured 1.36 % (d098, +1.36 %; a Clapp whose bursts die out completely "
+    "between them) on the machine of 2026-12-04's first session and 0.53 % (d087, a "
+    "burster; d098 -0.09 %) on the next machine, the same code; every Clapp ngspice does "
+    "not record as bursting within 0.5 %",
 }
 
 
@@ -76,10 +81,13 @@ def _acc(name: str) -> Accuracy:
     return accuracy([d.topology for d in designs], model_answers(designs), answers)
 
 
-def _sets(unmet: dict[str, str]) -> list[object]:
-    """Every set, strict xfail (reason) for the ones named in ``unmet``."""
+def _sets(unmet: dict[str, str], *, strict: bool = True) -> list[object]:
+    """Every set, xfail (reason; strict unless ``strict`` is False) for the ones named in
+    ``unmet``."""
     return [
-        pytest.param(n, marks=pytest.mark.xfail(strict=True, reason=unmet[n])) if n in unmet else n
+        pytest.param(n, marks=pytest.mark.xfail(strict=strict, reason=unmet[n]))
+        if n in unmet
+        else n
         for n in sorted(SETS)
     ]
 
@@ -145,6 +153,21 @@ def test_statistics_on_a_hand_made_set():
     assert a.settled == 3
     assert a.freq_within_2pct_settled == pytest.approx(2 / 3)
     assert a.freq_median_settled == pytest.approx(0.01)
+
+
+def test_clapp_figure_with_bursters_left_out():
+    # three Clapps worked by hand: steady 0.2 % off, unsettled 0.4 % off, bursting 1 % off
+    # (and a Colpitts 3 % off, which neither Clapp figure counts)
+    topologies = ["clapp", "clapp", "clapp", "colpitts"]
+    model = [_m(True, f, 1.0e6, 1.0) for f in (1.002e6, 0.996e6, 1.01e6, 1.03e6)]
+    sim = [
+        {"state": st, "f_hz": 1.0e6, "amplitude_v": 1.0}
+        for st in ("steady", "unsettled", "bursting", "steady")
+    ]
+    a = accuracy(topologies, model, sim)
+    assert a.clapp_oscillating == 3 and a.clapp_worst_error == pytest.approx(0.01)
+    assert a.clapp_unburst == 2 and a.clapp_worst_unburst == pytest.approx(0.004)
+    assert "Clapp worst, bursters left out (2)" in accuracy_table(a)
 
 
 def test_design_round_trip(reference):
@@ -228,10 +251,20 @@ def test_amplitude_within_30_percent_for_90_percent_of_steady(name):
     assert acc.amplitude_within_30pct >= 0.90
 
 
-@pytest.mark.parametrize("name", _sets(UNMET_CLAPP))
+@pytest.mark.parametrize("name", _sets(UNMET_CLAPP, strict=False))
 def test_clapp_within_half_a_percent(name):
     acc = _acc(name)
     assert acc.clapp_worst_error <= 0.005
+
+
+@pytest.mark.parametrize("name", sorted(SETS))
+def test_clapp_within_half_a_percent_where_ngspice_does_not_burst(name):
+    # the Clapp target over the Clapps ngspice does not record as bursting: their model
+    # carriers are the describing function's or the orbit's, which do not move between
+    # machines as a burst's run from rest does (Accuracy)
+    acc = _acc(name)
+    assert acc.clapp_unburst >= 15
+    assert acc.clapp_worst_unburst <= 0.005
 
 
 # ------------------------------------------------------------ the data reproduce

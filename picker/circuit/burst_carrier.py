@@ -45,7 +45,12 @@ relaxing designs of the series and tapped Hartley sets, 4 of 9 were within 2 % o
 at 64 steps and 7 of 9 at 128 (hs002 +4.5 to +0.24 %, ht007 +3.5 to +0.11 %). Every
 burster keeps 64: at 128 the main set's Clapp d100, whose reference ngspice holds within
 0.08 %, read -2.40 % instead of +0.21 % (its bursts come in two kinds, and the finer run
-followed the other kind).
+followed the other kind). That was one machine's reading: on another, with the same code,
+d100 (d087 of the set as redrawn) read +0.53 % at 64 steps and +0.03 % at 128, and a kick
+larger by one part in 10⁹ moved them to +0.82 % and -0.12 %. A burst is a chaotic
+relaxation, so its carrier here moves with rounding by up to about 1.5 % (d098 of the
+redrawn main set: +1.36 % on the first machine, -0.09 % on the second), more than the
+run's own chunk spread says (:class:`picker.circuit.validation.Accuracy`).
 """
 
 from __future__ import annotations

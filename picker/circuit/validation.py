@@ -248,7 +248,16 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
 
 @dataclass(frozen=True)
 class Accuracy:
-    """The figures of :func:`accuracy` (shares are fractions; errors are relative)."""
+    """The figures of :func:`accuracy` (shares are fractions; errors are relative).
+
+    ``clapp_worst_unburst`` is the Clapp figure over the Clapps ngspice does not record as
+    bursting (``clapp_unburst`` of them). A burster's carrier in the model is read from
+    its own circuit run from rest (:mod:`picker.circuit.burst_carrier`), and bursts are
+    sensitive to rounding: the same code read the main set's d098 +1.36 % on one machine
+    and -0.09 % on another (d087 within 0.21 % and +0.53 %), and a kick 10⁻⁹ larger moves
+    d087's reading from +0.53 to +0.82 %. So the Clapp target over the bursters is not a
+    figure one machine's run can settle to 0.5 %; the one over the others is.
+    """
 
     designs: int
     oscillating: int
@@ -266,6 +275,8 @@ class Accuracy:
     freq_median_settled: float
     clapp_worst_error: float
     clapp_oscillating: int
+    clapp_worst_unburst: float
+    clapp_unburst: int
     ideal_closer: int
 
 
@@ -285,6 +296,7 @@ def accuracy(
     errors = []
     settled = []
     clapp = []
+    clapp_unburst = []  # the Clapps ngspice does not record as bursting
     ideal_closer = 0
     for topo, m, s, o in zip(topologies, model, sim, osc, strict=True):
         if not o:
@@ -298,6 +310,8 @@ def accuracy(
             settled.append(err)
         if topo == "clapp":
             clapp.append(err)
+            if s["state"] != "bursting":
+                clapp_unburst.append(err)
         if abs(m.f_ideal_hz / f_sim - 1.0) < err:
             ideal_closer += 1
     e = np.array(errors)
@@ -332,6 +346,8 @@ def accuracy(
         freq_median_settled=float(np.median(es)) if es.size else math.nan,
         clapp_worst_error=max(clapp) if clapp else math.nan,
         clapp_oscillating=len(clapp),
+        clapp_worst_unburst=max(clapp_unburst) if clapp_unburst else math.nan,
+        clapp_unburst=len(clapp_unburst),
         ideal_closer=ideal_closer,
     )
 
@@ -396,6 +412,11 @@ def accuracy_table(acc: Accuracy) -> str:
             f"Clapp worst frequency error ({acc.clapp_oscillating})",
             pct(acc.clapp_worst_error),
             "clapp_worst_error",
+        ),
+        (
+            f"Clapp worst, bursters left out ({acc.clapp_unburst})",
+            pct(acc.clapp_worst_unburst),
+            None,
         ),
         ("ideal formula closer than the model", str(acc.ideal_closer), None),
     ]
