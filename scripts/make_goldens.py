@@ -205,8 +205,9 @@ RTOL = 1e-9
 
 
 #: Goldens whose figures come from periodic orbits that settle only to the shooting's
-#: tolerance, where the processor's rounding decides the last Newton steps: the Hartley
-#: beacon demo's solve output, on two machines with the same code and packages, differed
+#: tolerance (likely, not shown: the processor's rounding then decides the last Newton
+#: steps along the orbit's frozen modes): the Hartley beacon demo's solve output, on two
+#: machines with the same code, differed
 #: by up to 7.7e-7 relative in a loaded frequency and 2.6e-5 in a harmonic, enough to
 #: move one board of 5,000 across the window's edge (yields 0.7056 and 0.7058) and a
 #: printed frequency's last digit (3.5552 and 3.55521 MHz, the shorter padded by one more
