@@ -81,3 +81,61 @@ def test_a_relaxing_board_runs_at_the_finer_step(monkeypatch):
     assert sorted(seen) == sorted([(bc.STEPS, [round(f[0])]), (bc.RELAX_STEPS, [round(f[1])])])
     assert bc.RELAX_STEPS > bc.STEPS
     assert [g.f_hz for g in got if g is not None] == pytest.approx(f)
+
+
+def _r(state: str, f: float, amp: float = 1.0) -> bc.BurstCarrier:
+    return bc.BurstCarrier(state, f, amp, 300, 1e-3)
+
+
+def test_the_runs_vote_and_the_median_run_on_the_majority_side_gives_the_figures():
+    # worked by hand: five of the six runs that show a carrier burst, so the design bursts;
+    # its figures are the middle one of those five by carrier (1.00, amplitude 3), and the
+    # five span (1.02 - 0.97) / 1.00 = 5 %; the run without a carrier (state "none") and
+    # the steady one at 1.5 take no part in the figure
+    runs = [
+        _r("bursting", 1.02, 1.0),
+        _r("bursting", 0.98, 2.0),
+        _r("none", math.nan, math.nan),
+        _r("bursting", 1.00, 3.0),
+        _r("steady", 1.50, 4.0),
+        _r("bursting", 0.97, 5.0),
+        _r("bursting", 1.01, 6.0),
+    ]
+    got = bc._vote(runs)
+    assert (got.state, got.f_hz, got.amplitude_v, got.runs) == ("bursting", 1.00, 3.0, 6)
+    assert got.kick_spread == pytest.approx(0.05)
+    # four of seven clear the burst (steady or unsettled): the verdict is theirs, and the
+    # figure the lower of their two middle carriers (1.1 of 1.0, 1.1, 1.2, 1.3)
+    runs = [_r("unsettled", f) for f in (1.3, 1.1, 1.0)] + [_r("steady", 1.2)]
+    runs += [_r("bursting", f) for f in (0.5, 0.6, 0.7)]
+    got = bc._vote(runs)
+    assert (got.state, got.f_hz, got.runs) == ("unsettled", 1.1, 7)
+    assert got.clears_burst and got.kick_spread == pytest.approx(0.3 / 1.1)
+    # a tie keeps the burst (it must not clear the model's verdict on half the runs)
+    got = bc._vote([_r("bursting", 2.0), _r("steady", 1.0), _r("bursting", 3.0), _r("steady", 4.0)])
+    assert (got.state, got.f_hz) == ("bursting", 2.0)
+    # no run shows a carrier: the figures stay NaN
+    assert not math.isfinite(bc._vote([_r("none", math.nan)] * 3).f_hz)
+
+
+def test_each_design_runs_kicks_times_with_kicks_parts_per_million_apart(monkeypatch):
+    # the batch handed to the single runs: each design's circuit KICKS times in a row,
+    # the first with the netlist's own kick (scale 1), the next ones KICK_STEP apart
+    seen = {}
+
+    def single(circ, w, tau, steps, scale):
+        seen.update(w=w.copy(), tau=tau.copy(), scale=scale.copy(), steps=steps)
+        return [_r("bursting", float(x) * (1.0 + s)) for x, s in zip(w, scale - 1.0, strict=True)]
+
+    monkeypatch.setattr(bc, "_single_runs", single)
+    circ = _lc(10e-6, 1e-9).take(np.array([0, 0]))
+    got = bc.burst_carriers(circ, np.array([1.0, 2.0]), np.array([0.0, 5.0]))
+    k = bc.KICKS
+    assert k >= 5 and k % 2 == 1 and 0 < bc.KICK_STEP <= 1e-5
+    assert seen["w"].tolist() == [1.0] * k + [2.0] * k
+    assert seen["tau"].tolist() == [0.0] * k + [5.0] * k
+    assert seen["scale"][:k] == pytest.approx(1.0 + bc.KICK_STEP * np.arange(k), abs=0)
+    assert seen["scale"][0] == 1.0 and seen["steps"] == bc.STEPS
+    # each design's figure is the median of its own runs
+    mid = bc.KICK_STEP * (k - 1) / 2
+    assert [g.f_hz for g in got] == pytest.approx([1.0 + mid, 2.0 * (1.0 + mid)], rel=1e-12)

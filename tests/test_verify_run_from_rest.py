@@ -45,7 +45,7 @@ def test_a_board_called_bursting_takes_its_run_from_rest(monkeypatch, run_state)
     def runs(nets, bursting, f_hint, relaxing):
         calls.append(list(bursting))
         assert relaxing == [False]  # the orbit exists: the usual step
-        return [BurstCarrier(run_state, 1.01 * f0, 2.5, 400, 1e-3) for _ in nets]
+        return [BurstCarrier(run_state, 1.01 * f0, 2.5, 400, 1e-3, 4e-3, 7) for _ in nets]
 
     monkeypatch.setattr(verify, "board_orbits", orbits)
     monkeypatch.setattr(verify, "network_carriers", runs)
@@ -54,6 +54,7 @@ def test_a_board_called_bursting_takes_its_run_from_rest(monkeypatch, run_state)
     m = check.model
     assert m["f_hz"] == pytest.approx(1.01 * f0) and m["amplitude_v"] == 2.5
     assert m["carrier_from"] == "run from rest" and m["carrier_spread"] == 1e-3
+    assert m["carrier_kick_spread"] == 4e-3  # the runs' own scatter, beside the chunks'
     # a run that does not burst clears the orbit's flag; one that bursts keeps it
     assert m["envelope"] == ("bursting" if run_state == "bursting" else run_state)
     assert check.state == "steady"  # ngspice's own reading of the demo's board is untouched
@@ -110,3 +111,14 @@ def test_a_relaxing_board_takes_its_run_from_rest_and_its_state(monkeypatch):
     assert m["starts"] and m["f_hz"] == pytest.approx(0.4 * f_tank)
     assert m["envelope"] == "steady" and m["carrier_from"] == "run from rest"
     assert check.state == "bursting"  # ngspice, as recorded (tests/validation/)
+
+
+def test_simulate_s_note_gives_the_runs_spread_only_where_the_model_says_it():
+    """``simulate``'s note on a model column from the run from rest names how far apart
+    the runs with kicks a hair apart read (picker.circuit.burst_carrier.KICKS): 0.0123
+    prints as 1.23 %; a column without the figure (or NaN) adds nothing."""
+    from picker.cli.circuit import _kick_spread
+
+    assert "span 1.23 %" in _kick_spread({"carrier_kick_spread": 0.0123})
+    assert _kick_spread({"carrier_kick_spread": math.nan}) == ""
+    assert _kick_spread({}) == ""

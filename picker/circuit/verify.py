@@ -349,6 +349,7 @@ def check_boards(
                 if relaxes or run_bursts(was, relaxes, r) != was:
                     models[i]["envelope"] = r.state
                 models[i]["carrier_spread"] = json_number(r.spread)
+                models[i]["carrier_kick_spread"] = json_number(r.kick_spread)
     return [
         BoardCheck(
             label=label,

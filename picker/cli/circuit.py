@@ -342,7 +342,7 @@ def simulate(
         where = "" if check.planned is None else f" of the run {check.lengthened} times as long"
         lines.append(SETTLING_CAUTION.format(drift=_percent(sim.carrier_drift), where=where))
     if ls.get("carrier_from") == "run from rest":
-        lines.append(RUN_FROM_REST_NOTE.format(which=""))
+        lines.append(RUN_FROM_REST_NOTE.format(which="") + _kick_spread(ls))
     if sim.coarse is not None:
         lines.append(
             f"note: at the netlist's own step ngspice showed {sim.coarse.state} "
@@ -352,6 +352,18 @@ def simulate(
         )
     lines += [f"ngspice: {w}" for w in sim.warnings]
     typer.echo(_fit(lines, Console().width))
+
+
+def _kick_spread(model: dict[str, Any]) -> str:
+    """How far apart the runs from rest read (picker.circuit.burst_carrier.KICKS), as a
+    clause for the note, or nothing where the model column does not say."""
+    spread = model.get("carrier_kick_spread")
+    if not isinstance(spread, float) or not math.isfinite(spread):
+        return ""
+    return (
+        "; the median of runs whose kicks differ by parts per million, whose carriers "
+        f"span {100.0 * spread:.2f} % (a burst's course is chaotic)"
+    )
 
 
 def _percent(x: float) -> str:
