@@ -80,8 +80,8 @@ FET_KINDS = {"hartley": {"nmos"}}
 FET_FREQUENCY = {
     "hartley": "90.0 % (18 of 20) on the set as redrawn with C_B in the transient plan "
     "(50.0 % before every Hartley design took the periodic orbit and the bursting ones the "
-    "carrier of their run from rest, picker.circuit.burst_carrier): the bursters hy014 "
-    "(-16.2 %) and hy015 (-2.0 %), whose ngspice carrier inside their short bursts has no "
+    "carrier of their run from rest, picker.circuit.burst_carrier; the median of seven runs "
+    "since 2026-12-05): the bursters hy014 (-16.0 %) and hy015 (-2.2 %), whose ngspice carrier inside their short bursts has no "
     "converged value: run again at a finer step, with Gear and over each half of the tail, "
     "ngspice holds neither within 1 % (19.8 and 6.3 %, picker.circuit.reference_spread; "
     "they are the designs hy015 and hy016 of the set as first drawn, whose readings spread "
@@ -89,14 +89,15 @@ FET_FREQUENCY = {
     "other kicks); over the 17 designs ngspice does hold, 100 %",
 }
 FET_FREQUENCY["hartley-tapped"] = (
-    "85.0 % (17 of 20): the three misses burst in ngspice, two emitter followers (ht009 "
-    "+7.6 %, ht011 +2.3 %) and a common-base design (ht014 -18.2 %), their carriers the "
-    "model's run from rest (picker.circuit.burst_carrier); every steady design is within "
-    "1.1 % (ht004 +1.08 %). ngspice does not hold these three within 1 % when their "
-    "netlists run again (picker.circuit.reference_spread: 15.2, 2.0 and 18.9 %): ht014 "
-    "reads 240.8 kHz over its record's tail and 195.3 kHz over each half of it at every "
-    "step and method (the model 196.9), ht009 99.3 kHz over its tail and 106.8-114.4 kHz "
-    "over its halves (the model 106.8); over the 14 designs ngspice does hold, 100 %"
+    "85.0 % (17 of 20): the three misses burst in ngspice, two common-base designs (ht008 "
+    "+2.6 %, ht014 -18.2 %) and an emitter follower (ht009 +7.6 %), their carriers the "
+    "median of the model's seven runs from rest (picker.circuit.burst_carrier; with one "
+    "run, ht011 +2.3 % missed where ht008 did not); every steady design is within 1.1 % "
+    "(ht004 +1.08 %). ngspice does not hold these three within 1 % when their netlists run "
+    "again (picker.circuit.reference_spread: 12.8, 15.2 and 18.9 %): ht014 reads 240.8 kHz "
+    "over its record's tail and 195.3 kHz over each half of it at every step and method "
+    "(the model 196.9), ht009 99.3 kHz over its tail and 106.8-114.4 kHz over its halves "
+    "(the model 106.8); over the 14 designs ngspice does hold, 100 %"
 )
 AMPLITUDE: dict[str, str] = {}
 #: met on the common-base set since a design the model flags takes the verdict of its own
