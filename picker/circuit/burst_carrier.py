@@ -129,12 +129,13 @@ RELAX_STEPS = 128
 #: netlist's): a burst is a chaotic relaxation, so each run, however slightly its start
 #: differs, follows its own sequence of bursts, and one run's carrier moves with rounding
 #: (module docstring). Seven runs whose kicks differ by parts per million sample that
-#: scatter, and their median steadies it: on the main set's four bursters d078, d087,
-#: d093 and d098 single runs read from -2.56 to +1.01 % of ngspice's carrier (d087
-#: -2.56 to +0.81 %), and the median of seven moved by at most 0.52 % (d078; the Clapps
-#: d087 and d098 by 0.17 and 0.30 %) when every kick moved by one part in 10⁹, against
-#: single runs that moved by up to 2.6 %. The runs go in one batch, so seven cost about
-#: 1.7 times one (160 s against 97 s for those four designs).
+#: scatter, and their median steadies it (``python -m picker.bench.burst``, the main
+#: set's four bursters d078, d087, d093 and d098, 2026-12-05): with every kick larger by
+#: one part in 10⁹ one run's carrier moved by up to 0.76 % (d098, -0.09 to +0.67 % of
+#: ngspice's), the median of seven by up to 0.24 % (d087, +0.30 to +0.54 %); the seven
+#: runs of d087 and d098 spanned 3.6 and 3.9 %. It steadies the figure, it does not pin
+#: it: d087's median still crossed 0.5 % when nudged. The runs go in one batch, so seven
+#: cost about 1.5 times one (171 s of CPU against 116 s for those four designs).
 KICKS = 7
 KICK_STEP = 1e-6
 #: Newton's tolerance on a node voltage, V, and on an inductor current, A (the shooting

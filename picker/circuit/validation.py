@@ -257,8 +257,8 @@ class Accuracy:
     and -0.09 % on another (d087 within 0.21 % and +0.53 %), and a kick 10⁻⁹ larger moves
     d087's reading from +0.53 to +0.82 %. The model now takes the median of seven runs
     whose kicks differ by parts per million (:data:`picker.circuit.burst_carrier.KICKS`):
-    d098 +0.25 % and d087 +0.30 % on the second machine, but a median of seven still lands
-    beyond 0.5 % on about 9 % of draws resampled from their single runs. So the Clapp
+    d098 +0.25 % and d087 +0.30 % on the second machine, but with every kick larger by
+    10⁻⁹ d087's median read +0.54 % (``python -m picker.bench.burst``). So the Clapp
     target over the bursters is not a figure one machine's run can settle to 0.5 %; the
     one over the others is.
     """
