@@ -171,16 +171,16 @@ class BurstCarrier:
         return self.state in ("steady", "unsettled")
 
 
-def _kick(circ: Circuit, period: np.ndarray, scale: np.ndarray | None = None) -> np.ndarray:
+def _kick(circ: Circuit, period: np.ndarray, scale: np.ndarray) -> np.ndarray:
     """The DC point plus the netlist's start-up kick (as
     :mod:`picker.circuit.startup_run` starts its run), each element's kick times its
-    ``scale`` (1 where None)."""
+    ``scale``."""
     m = circ.b.shape[0]
     x_dc, _ = dc_point(circ)
     _, _, jg, jc = evaluate(circ, x_dc)
     i_c = np.abs(device(circ, x_dc[None])["ic"][0])
     src = np.zeros_like(x_dc)
-    src[np.arange(m), circ.top] = KICK_FRACTION * i_c * (1.0 if scale is None else scale)
+    src[np.arange(m), circ.top] = KICK_FRACTION * i_c * scale
     lin = jc / (0.5 * period)[:, None, None] + jg
     return x_dc + np.linalg.solve(lin, src[:, :, None])[:, :, 0]  # type: ignore[no-any-return]
 
