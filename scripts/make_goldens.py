@@ -256,7 +256,13 @@ def names() -> list[str]:
 
 
 def main(argv: list[str]) -> int:
-    check = "--check" in argv
+    if argv not in ([], ["--check"]):
+        # anything else (``--help`` too) prints the usage and writes nothing: a mistyped
+        # flag must not overwrite the goldens
+        print("usage: python scripts/make_goldens.py [--check]")
+        print("  no flag: rewrite tests/goldens/; --check: compare only, exit 1 on a difference")
+        return 0 if argv in (["--help"], ["-h"]) else 2
+    check = argv == ["--check"]
     GOLDEN.mkdir(parents=True, exist_ok=True)
     bad = 0
     for name in names():

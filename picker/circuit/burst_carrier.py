@@ -73,7 +73,7 @@ from picker.circuit.netlist import bias_time_constant
 from picker.circuit.network import Network
 from picker.circuit.ngspice import trapezoid_frequency
 from picker.circuit.periodic import board_lines
-from picker.circuit.stages.base import KICK_FRACTION
+from picker.circuit.startup_run import start_kick
 
 # the integrator's own damped Newton step and junction limiting (one step of any
 # implicit rule: α·Q(x)/h + I(x) + history = 0), not re-implemented here
@@ -82,8 +82,6 @@ from picker.circuit.transient import (
     _damping,
     _solve_step,
     build_circuit,
-    dc_point,
-    device,
     evaluate,
 )
 from picker.circuit.waveform import measure
@@ -169,20 +167,6 @@ class BurstCarrier:
         statistics count as not bursting for ngspice too); the model's bursting flag
         then said only that the board does not hold its orbit."""
         return self.state in ("steady", "unsettled")
-
-
-def _kick(circ: Circuit, period: np.ndarray, scale: np.ndarray) -> np.ndarray:
-    """The DC point plus the netlist's start-up kick (as
-    :mod:`picker.circuit.startup_run` starts its run), each element's kick times its
-    ``scale``."""
-    m = circ.b.shape[0]
-    x_dc, _ = dc_point(circ)
-    _, _, jg, jc = evaluate(circ, x_dc)
-    i_c = np.abs(device(circ, x_dc[None])["ic"][0])
-    src = np.zeros_like(x_dc)
-    src[np.arange(m), circ.top] = KICK_FRACTION * i_c * scale
-    lin = jc / (0.5 * period)[:, None, None] + jg
-    return x_dc + np.linalg.solve(lin, src[:, :, None])[:, :, 0]  # type: ignore[no-any-return]
 
 
 def _run(
@@ -273,7 +257,7 @@ def _single_runs(
     period = 2.0 * np.pi / np.asarray(w, dtype=float)
     h = period / steps
     warm = np.where(np.asarray(bias_tau_s) > CHUNK * period, 2, 1)
-    x = _kick(circ, period, scale)
+    x = start_kick(circ, period, scale)
     x_prev = x.copy()
     tails: list[list[np.ndarray]] = [[] for _ in range(m)]
     f_chunks: list[list[float]] = [[] for _ in range(m)]

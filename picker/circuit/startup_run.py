@@ -50,7 +50,15 @@ import numpy as np
 from picker.circuit.stages.base import KICK_FRACTION
 from picker.circuit.transient import Circuit, dc_point, device, evaluate, integrate
 
-__all__ = ["COLLAPSE", "HORIZON", "MAX_PERIODS", "RISEN", "STEPS", "startup_collapses"]
+__all__ = [
+    "COLLAPSE",
+    "HORIZON",
+    "MAX_PERIODS",
+    "RISEN",
+    "STEPS",
+    "start_kick",
+    "startup_collapses",
+]
 
 #: Time steps a period (BDF2): coarser than shooting's, as the question is whether the
 #: amplitude falls by a factor of five, not the orbit's frequency to 0.1 %.
@@ -71,6 +79,22 @@ RISEN = 0.1
 COLLAPSE = 0.2
 
 
+def start_kick(circ: Circuit, period: np.ndarray, scale: np.ndarray) -> np.ndarray:
+    """The state each circuit of the batch ``circ`` starts from (M, N): its DC point plus
+    the netlist's kick, :data:`picker.circuit.stages.base.KICK_FRACTION` of the collector
+    current for half a ``period`` (s) into the tank top, taken as one backward-Euler step
+    of the circuit linearised at rest; each element's kick times its ``scale`` (the runs
+    from rest of :mod:`picker.circuit.burst_carrier` start a hair apart)."""
+    m = circ.b.shape[0]
+    x_dc, _ = dc_point(circ)
+    _, _, jg, jc = evaluate(circ, x_dc)
+    i_c = np.abs(device(circ, x_dc[None])["ic"][0])
+    src = np.zeros_like(x_dc)
+    src[np.arange(m), circ.top] = KICK_FRACTION * i_c * scale
+    lin = jc / (0.5 * period)[:, None, None] + jg
+    return x_dc + np.linalg.solve(lin, src[:, :, None])[:, :, 0]  # type: ignore[no-any-return]
+
+
 def startup_collapses(
     circ: Circuit, w: np.ndarray, top: np.ndarray, horizon_s: np.ndarray
 ) -> tuple[np.ndarray, np.ndarray]:
@@ -83,18 +107,9 @@ def startup_collapses(
     step, a choke's DC node) goes on from its last iterate: the verdict asks for a
     five-fold fall of the amplitude, which such a residual does not make."""
     m = circ.b.shape[0]
-    x_dc, _ = dc_point(circ)
-    ar = np.arange(m)
     full = np.where(np.isfinite(top) & (top > 0), top, 1.0)
     period = 2.0 * np.pi / w
-    # the netlist's kick: KICK_FRACTION of the collector current for half a period into
-    # the tank top, as one backward-Euler step of the circuit linearised at rest
-    _, _, jg, jc = evaluate(circ, x_dc)
-    i_c = np.abs(device(circ, x_dc[None])["ic"][0])
-    half = 0.5 * period
-    src = np.zeros_like(x_dc)
-    src[ar, circ.top] = KICK_FRACTION * i_c
-    x = x_dc + np.linalg.solve(jc / half[:, None, None] + jg, src[:, :, None])[:, :, 0]
+    x = start_kick(circ, period, np.ones(m))
     periods = np.clip(np.ceil(horizon_s / period), MIN_PERIODS, MAX_PERIODS).astype(int)
     peak = np.zeros(m)
     risen = np.zeros(m, dtype=bool)
