@@ -104,6 +104,9 @@ def test_the_runs_vote_and_the_median_run_on_the_majority_side_gives_the_figures
     got = bc._vote(runs)
     assert (got.state, got.f_hz, got.amplitude_v, got.runs) == ("bursting", 1.00, 3.0, 6)
     assert got.kick_spread == pytest.approx(0.05)
+    # the range is the bursting side's (0.97 to 1.02), not the steady run's 1.50; a span
+    # of 5 % is above SPLIT (2 %), so the runs count as split
+    assert (got.f_low_hz, got.f_high_hz) == (0.97, 1.02) and got.split
     # four of seven clear the burst (steady or unsettled): the verdict is theirs, and the
     # figure the lower of their two middle carriers (1.1 of 1.0, 1.1, 1.2, 1.3)
     runs = [_r("unsettled", f) for f in (1.3, 1.1, 1.0)] + [_r("steady", 1.2)]
@@ -111,6 +114,10 @@ def test_the_runs_vote_and_the_median_run_on_the_majority_side_gives_the_figures
     got = bc._vote(runs)
     assert (got.state, got.f_hz, got.runs) == ("unsettled", 1.1, 7)
     assert got.clears_burst and got.kick_spread == pytest.approx(0.3 / 1.1)
+    assert (got.f_low_hz, got.f_high_hz) == (1.0, 1.3)
+    # runs within 2 % of each other have not split (1.0 to 1.019: 1.9 %)
+    got = bc._vote([_r("bursting", f) for f in (1.0, 1.01, 1.019)])
+    assert got.kick_spread == pytest.approx(0.019 / 1.01) and not got.split
     # a tie keeps the burst (it must not clear the model's verdict on half the runs)
     got = bc._vote([_r("bursting", 2.0), _r("steady", 1.0), _r("bursting", 3.0), _r("steady", 4.0)])
     assert (got.state, got.f_hz) == ("bursting", 2.0)

@@ -14,6 +14,7 @@ ngspice, the marked one re-runs a few designs in ngspice and checks the data rep
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from functools import cache
 from pathlib import Path
 
@@ -302,3 +303,24 @@ def test_reference_data_reproduce_in_ngspice(reference):
             # most 0.1 %
             rel = 0.03 if state == "unsettled" else 0.01
             assert fresh["amplitude_v"] == pytest.approx(ref["amplitude_v"], rel=rel)
+
+
+def test_split_runs_counted_against_their_range():
+    # worked by hand against ngspice at 1.00 MHz, four designs whose runs from rest split:
+    # 0.95-1.05 MHz covers it; 1.10-1.20 MHz misses (1.10 / 1.02 = 1.078 MHz); 0.90-0.97
+    # MHz misses (0.97 * 1.02 = 0.989 MHz); 1.015-1.03 MHz covers it within the 2 %
+    # allowance (1.015 / 1.02 = 0.995 MHz). A fifth design without a range is not
+    # counted, and the shares still score f_hz, the median run.
+    ranges = [(0.95e6, 1.05e6), (1.10e6, 1.20e6), (0.90e6, 0.97e6), (1.015e6, 1.03e6)]
+    model = [
+        replace(_m(True, 0.5 * (lo + hi), 1.0e6, 1.0), f_low_hz=lo, f_high_hz=hi)
+        for lo, hi in ranges
+    ]
+    model.append(_m(True, 1.0e6, 1.0e6, 1.0))
+    sim = [{"state": "bursting", "f_hz": 1.0e6, "amplitude_v": 1.0}] * 5
+    a = accuracy(["colpitts"] * 5, model, sim)
+    assert (a.split, a.split_covered) == (4, 2)
+    assert a.freq_within_2pct == pytest.approx(2 / 5)  # medians 1.0, 1.15, 0.935, 1.0225, 1.0
+    assert "runs split, ngspice within 2 % of range (4)" in accuracy_table(a)
+    # a set with no split design prints the table as before (no such row)
+    assert "runs split" not in accuracy_table(accuracy(["colpitts"], model[4:], sim[:1]))

@@ -74,6 +74,38 @@ def test_a_board_called_bursting_takes_its_run_from_rest(monkeypatch, run_state)
     assert f_text in row and f"{100 * (m['f_hz'] / check.f_sim - 1.0):+.2f} %" in row
 
 
+def test_runs_that_split_give_the_carrier_as_their_range(monkeypatch):
+    # seven runs whose carriers span 8 % (above SPLIT, 2 %): the JSON carries their
+    # range, and the notes say the carrier is that range, naming the board; one that
+    # spans 1 % (below SPLIT) carries no range and no such note
+    topo, par, params, board, c = top_board("colpitts_bjt")
+    f0 = float(c["f_loaded_hz"])
+    checks = {}
+    for span in (0.08, 0.01):
+        lo, hi = 0.97 * f0, (0.97 + span) * f0
+
+        def runs(nets, bursting, f_hint, relaxing, lo=lo, hi=hi, span=span):
+            return [BurstCarrier("bursting", f0, 2.5, 400, 1e-3, span, 7, lo, hi) for _ in nets]
+
+        monkeypatch.setattr(verify, "board_orbits", lambda nets: [[_orbit(f0)] for _ in nets])
+        monkeypatch.setattr(verify, "network_carriers", runs)
+        (checks[span],) = verify.check_boards(topo, [("nominal", board)], float(par.stray), params)
+    m = checks[0.08].model
+    assert (m["carrier_low_hz"], m["carrier_high_hz"]) == (0.97 * f0, 1.05 * f0)
+    assert checks[0.01].model["carrier_low_hz"] is None
+    flat = " ".join(verify_text([DesignCheck(1, [checks[0.08]])], 1.0).split())
+    assert "the runs from rest split between courses" in flat and "1 nominal" in flat
+    assert f"{0.97 * f0 / 1e6:.4g} MHz to {1.05 * f0 / 1e6:.4g} MHz" in flat
+    flat = " ".join(verify_text([DesignCheck(1, [checks[0.01]])], 1.0).split())
+    assert "split between courses" not in flat
+    # simulate's note: the same range, in its clause on the runs' span
+    from picker.cli.circuit import _kick_spread
+
+    clause = _kick_spread(m)
+    assert "span 8.00 %" in clause and "the board's carrier is their range" in clause
+    assert "their range" not in _kick_spread(checks[0.01].model)
+
+
 def test_run_hint_picks_bursting_and_relaxing_designs():
     """Which designs get a run from rest, and the frequency that scales it."""
     from picker.circuit.burst_carrier import run_hint

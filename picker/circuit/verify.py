@@ -350,6 +350,9 @@ def check_boards(
                     models[i]["envelope"] = r.state
                 models[i]["carrier_spread"] = json_number(r.spread)
                 models[i]["carrier_kick_spread"] = json_number(r.kick_spread)
+                # runs that split give the board's carrier as their range (SPLIT)
+                models[i]["carrier_low_hz"] = json_number(r.f_low_hz) if r.split else None
+                models[i]["carrier_high_hz"] = json_number(r.f_high_hz) if r.split else None
     return [
         BoardCheck(
             label=label,

@@ -311,6 +311,7 @@ def simulate(
         f"{'':22}{'model':>16}{'ngspice':>16}",
         f"{'frequency (ideal)':22}{hz(model['f_ideal_hz']):>16}",
         f"{'carrier (loaded)':22}{hz(ls['f_hz'] or model['f_loaded_hz']):>16}{hz(f_sim):>16}",
+        *([f"{'  runs split, range':22}{_split_range(ls)}"] if _split_range(ls) else []),
         f"{'amplitude, tank top':22}{volts(ls['amplitude_v']):>16}{amp_sim:>16}",
         f"{'start-up margin':22}{model['startup_margin']:>16.3g}"
         f"{'oscillates' if sim.oscillating else 'does not start':>16}",
@@ -360,10 +361,28 @@ def _kick_spread(model: dict[str, Any]) -> str:
     spread = model.get("carrier_kick_spread")
     if not isinstance(spread, float) or not math.isfinite(spread):
         return ""
-    return (
+    clause = (
         "; the median of runs whose kicks differ by parts per million, whose carriers "
         f"span {100.0 * spread:.2f} % (a burst's course is chaotic)"
     )
+    span = _split_range(model)
+    if span:
+        from picker.circuit.burst_carrier import SPLIT
+
+        clause += (
+            f"; above {100.0 * SPLIT:.0f} % the runs have split between courses, and the "
+            f"board's carrier is their range, {span}, not the median"
+        )
+    return clause
+
+
+def _split_range(model: Mapping[str, Any]) -> str:
+    """The range of the runs from rest where they split (picker.circuit.burst_carrier.SPLIT),
+    e.g. "3.286 MHz to 3.561 MHz", or nothing."""
+    lo, hi = model.get("carrier_low_hz"), model.get("carrier_high_hz")
+    if not isinstance(lo, float) or not isinstance(hi, float):
+        return ""
+    return f"{_shown(lo, 'Hz', 4)} to {_shown(hi, 'Hz', 4)}"
 
 
 def _percent(x: float) -> str:
@@ -447,6 +466,20 @@ def _notes(checks: list[DesignCheck]) -> list[str]:
     ]
     if ran:
         lines.append(RUN_FROM_REST_NOTE.format(which=" of " + ", ".join(ran)))
+    split = [
+        f"{c.rank} {b.label} {_split_range(b.model)}"
+        for c in checks
+        for b in c.boards
+        if _split_range(b.model)
+    ]
+    if split:
+        from picker.circuit.burst_carrier import SPLIT
+
+        lines.append(
+            f"note: the runs from rest split between courses (their carriers span more than "
+            f"{100.0 * SPLIT:.0f} %) on {', '.join(split)}: the carrier is that range, not "
+            "the model column's median"
+        )
     longer = [
         f"{c.rank} {b.label}: {b.lengthened} times, the planned run read "
         f"{_percent(b.planned.frequency_hz / b.sim.frequency_hz - 1.0)}"
