@@ -106,6 +106,31 @@ def test_runs_that_split_give_the_carrier_as_their_range(monkeypatch):
     assert "their range" not in _kick_spread(checks[0.01].model)
 
 
+@pytest.mark.parametrize("run_state", ["bursting", "unsettled"])
+def test_a_distorted_board_takes_its_run_and_the_run_s_burst(monkeypatch, run_state):
+    # a board the describing function calls steady far from a sine, no orbit shot (here
+    # the demo's board, flagged by a stand-in for distorted): --verify makes the run at the
+    # model's frequency and takes its carrier; a burst in the run sets the model's envelope
+    # to bursting, a run that does not burst leaves it steady (fails if verify leaves the
+    # distorted flag out of run_hint or run_bursts)
+    topo, par, params, board, c = top_board("colpitts_bjt")
+    f0 = float(c["f_loaded_hz"])
+    asked = []
+
+    def runs(nets, bursting, f_hint, relaxing):
+        asked.append(f_hint)
+        return [BurstCarrier(run_state, 0.9 * f0, 3.0, 400, 1e-3, 1e-3, 7) for _ in nets]
+
+    monkeypatch.setattr(verify, "board_orbits", lambda nets: [[None] for _ in nets])
+    monkeypatch.setattr(verify, "distorted", lambda shot, starts, bursting, harm: not shot)
+    monkeypatch.setattr(verify, "network_carriers", runs)
+    (check,) = verify.check_boards(topo, [("nominal", board)], float(par.stray), params)
+    m = check.model
+    assert len(asked) == 1 and asked[0][0] == pytest.approx(f0, rel=0.02)  # the model's f
+    assert m["f_hz"] == pytest.approx(0.9 * f0) and m["carrier_from"] == "run from rest"
+    assert m["envelope"] == ("bursting" if run_state == "bursting" else "steady")
+
+
 def test_run_hint_picks_bursting_and_relaxing_designs():
     """Which designs get a run from rest, and the frequency that scales it."""
     from picker.circuit.burst_carrier import run_hint
@@ -115,6 +140,28 @@ def test_run_hint_picks_bursting_and_relaxing_designs():
     assert run_hint(True, False, 1e6, 1.2e6) is None  # steady: the model's figures stand
     assert run_hint(False, False, math.nan, 1.2e6) is None  # does not start: nothing to run
     assert run_hint(True, False, math.nan, math.nan) is None  # no scale to run it at
+    # steady far outside the describing function's premise: run at the model's frequency
+    assert run_hint(True, False, 1e6, 1.2e6, distorted=True) == 1e6
+
+
+def test_a_distorted_design_is_one_the_describing_function_calls_steady_far_from_a_sine():
+    """burst_carrier.distorted: no orbit shot, starts, called steady, and a harmonic above
+    DISTORTED_DBC (-6 dBc: half the fundamental's amplitude); the run's burst then sets
+    its verdict both ways, where an ordinary steady design's run can only clear one."""
+    from picker.circuit.burst_carrier import distorted, run_bursts
+
+    assert distorted(False, True, False, [-2.4, -5.7])  # h010's describing function
+    assert distorted(False, True, False, [-30.0, -5.9])  # the 3rd harmonic counts too
+    assert not distorted(False, True, False, [-6.1, -12.0])  # below the line
+    assert not distorted(True, True, False, [-2.4, -5.7])  # the orbit was shot: its figures
+    assert not distorted(False, False, False, [-2.4, -5.7])  # does not start
+    assert not distorted(False, True, True, [-2.4, -5.7])  # already called bursting
+    assert not distorted(False, True, False, [math.nan, math.nan])
+    burst = BurstCarrier("bursting", 1e6, 1.0, 400, 1e-3)
+    calm = BurstCarrier("unsettled", 1e6, 1.0, 400, 1e-3)
+    assert run_bursts(False, False, burst, distorted=True)
+    assert not run_bursts(False, False, calm, distorted=True)
+    assert not run_bursts(False, False, burst)  # a steady verdict the run cannot overturn
 
 
 def test_a_relaxing_board_takes_its_run_from_rest_and_its_state(monkeypatch):

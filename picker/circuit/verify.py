@@ -38,7 +38,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.amplifier import AmplifierParams
-from picker.circuit.burst_carrier import network_carriers, run_bursts, run_hint
+from picker.circuit.burst_carrier import distorted, network_carriers, run_bursts, run_hint
 from picker.circuit.netlist import TransientPlan, verify_plan, write_netlist
 from picker.circuit.network import Network
 from picker.circuit.ngspice import SimulationResult, simulate, step_note
@@ -317,6 +317,12 @@ def check_boards(
     # answers take them (picker.circuit.validation.model_answers); its envelope is the
     # run's where the verdict changes (run_bursts: the orbit's instability said only that
     # the board does not hold that orbit) and, for a relaxation, always
+    # and one the describing function calls steady far outside its premise (distorted)
+    harm = np.asarray(st.harmonics_dbc, dtype=float).reshape(len(vals), -1)
+    warped = [
+        distorted(o is not None, bool(m["starts"]), m["envelope"] == "bursting", harm[i])
+        for i, (m, o) in enumerate(zip(models, orbits, strict=True))
+    ]
     hints = [
         run_hint(
             bool(m["starts"]),
@@ -324,8 +330,9 @@ def check_boards(
             math.nan if m["f_hz"] is None else float(m["f_hz"]),
             float(topology.frequency(v, stray)),
             converged=o is None or o.converged,
+            distorted=warped[i],
         )
-        for m, v, o in zip(models, vals, orbits, strict=True)
+        for i, (m, v, o) in enumerate(zip(models, vals, orbits, strict=True))
     ]
     if any(h is not None for h in hints):
         idx = [i for i, h in enumerate(hints) if h is not None]
@@ -346,7 +353,7 @@ def check_boards(
                 was = models[i]["envelope"] == "bursting"
                 models[i] = {**models[i], "f_hz": r.f_hz, "amplitude_v": r.amplitude_v}
                 models[i]["carrier_from"] = "run from rest"
-                if relaxes or run_bursts(was, relaxes, r) != was:
+                if relaxes or run_bursts(was, relaxes, r, distorted=warped[i]) != was:
                     models[i]["envelope"] = r.state
                 models[i]["carrier_spread"] = json_number(r.spread)
                 models[i]["carrier_kick_spread"] = json_number(r.kick_spread)
