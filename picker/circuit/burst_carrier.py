@@ -245,8 +245,8 @@ def _vote(runs: Sequence[BurstCarrier]) -> BurstCarrier:
     amplitude, periods and chunk spread are those of the median run by carrier on the
     majority's side (the lower of the two middle ones for an even count), and
     ``kick_spread`` the range of the carriers on that side over their median
-    (``f_low_hz`` to ``f_high_hz``). NaN figures
-    and state "none" where no run shows a carrier."""
+    (``f_low_hz`` to ``f_high_hz``). NaN figures and state "none" where no run shows a
+    carrier."""
     shown = [r for r in runs if math.isfinite(r.f_hz)]
     if not shown:
         return runs[0]
