@@ -371,7 +371,7 @@ def _kick_spread(model: dict[str, Any]) -> str:
         from picker.circuit.burst_carrier import SPLIT
 
         clause += (
-            f"; above {100.0 * SPLIT:.0f} % the runs have split between courses, and the "
+            f"; above {100.0 * SPLIT:.0f}\u00a0% the runs have split between courses, and the "
             f"board's carrier is their range, {span}, not the median"
         )
     return clause
@@ -468,7 +468,7 @@ def _notes(checks: list[DesignCheck]) -> list[str]:
     if ran:
         lines.append(RUN_FROM_REST_NOTE.format(which=" of " + ", ".join(ran)))
     split = [
-        f"{c.rank} {b.label} {_split_range(b.model)}"
+        f"{c.rank} {b.label} ({_split_range(b.model)})"
         for c in checks
         for b in c.boards
         if _split_range(b.model)
@@ -477,8 +477,9 @@ def _notes(checks: list[DesignCheck]) -> list[str]:
         from picker.circuit.burst_carrier import SPLIT
 
         lines.append(
+            # a no-break space keeps the figure with its unit when the note wraps
             f"note: the runs from rest split between courses (their carriers span more than "
-            f"{100.0 * SPLIT:.0f} %) on {', '.join(split)}: the carrier is that range, not "
+            f"{100.0 * SPLIT:.0f}\u00a0%) on {', '.join(split)}: the carrier is that range, not "
             "the model column's median"
         )
     longer = [
