@@ -21,6 +21,8 @@ from picker.circuit.reference_spread import (
     WINDOWS,
     _with_method,
     drift,
+    span,
+    span_error,
     wants_rerun,
 )
 from picker.circuit.validation import load_reference, rerun_design
@@ -58,6 +60,31 @@ def test_drift_is_the_farthest_reading_from_the_record():
     assert math.isinf(drift(_record(readings)))
     # a record never run again has no drift
     assert math.isnan(drift({"state": "steady", "f_hz": 1.0e6}))
+
+
+def test_span_of_the_readings_and_the_distance_from_it():
+    n = len(RERUNS) * len(WINDOWS)
+    # by hand: readings from 0.90 MHz to 1.10 MHz around a 1 MHz record; one rerun window
+    # shows no oscillation and does not narrow or widen the span
+    readings: list[float | None] = [1.0e6] * n
+    readings[0], readings[5], readings[7] = 0.90e6, 1.10e6, None
+    rec = _record(readings)
+    assert span(rec) == (0.90e6, 1.10e6)
+    assert span_error(1.05e6, rec) == 0.0  # inside the span
+    assert span_error(0.90e6, rec) == 0.0  # on its end
+    # above: counted from the upper end, 1.122 / 1.10 - 1 = 2.0 %
+    assert span_error(1.122e6, rec) == pytest.approx(0.02, rel=1e-9)
+    # below: counted from the lower end, 1 - 0.8775 / 0.90 = 2.5 %
+    assert span_error(0.8775e6, rec) == pytest.approx(0.025, rel=1e-9)
+    # a record never run again spans its own reading: the plain relative error
+    one = {"state": "steady", "f_hz": 2.0e6}
+    assert span(one) == (2.0e6, 2.0e6)
+    assert span_error(2.03e6, one) == pytest.approx(0.015, rel=1e-9)
+    assert span_error(1.97e6, one) == pytest.approx(0.015, rel=1e-9)
+    # no frequency from the model, or a record that does not oscillate: no agreement
+    assert math.isinf(span_error(math.nan, one))
+    assert math.isinf(span_error(1.0e6, {"state": "none", "f_hz": None}))
+    assert all(math.isnan(x) for x in span({"state": "none", "f_hz": None}))
 
 
 def test_which_records_are_run_again():

@@ -199,6 +199,22 @@ def test_frequency_within_2_percent_for_95_percent_of_settled_references(name):
     assert acc.freq_within_2pct_settled >= 0.95
 
 
+@pytest.mark.parametrize("name", sorted(SETS))
+def test_frequency_within_2_percent_of_ngspice_s_span_for_95_percent(name):
+    # the frequency targets with each reference taken as the span of ngspice's own
+    # readings of it: the record's and its reruns' (finer step, Gear, each half of the
+    # tail; picker.circuit.reference_spread.span_error). A burster whose carrier ngspice
+    # reads 844-1098 kHz is not a reference one figure can be held to 2 % of; a model
+    # figure inside that span agrees with ngspice as well as ngspice agrees with itself.
+    # Measured 100 % on every set; on the two Hartley sets every miss of the plain share
+    # lies inside its record's span (hy014 -16.0 % in a span of -19.8 to +12.9 %; ht014
+    # -18.2 % in -18.9 to +0.3 %)
+    acc = _acc(name)
+    assert acc.freq_within_2pct_span >= 0.95
+    assert acc.freq_median_span <= 0.003
+    assert acc.freq_within_2pct_span >= acc.freq_within_2pct
+
+
 @pytest.mark.parametrize(
     "name",
     _sets({}),
@@ -312,6 +328,19 @@ def test_series_hartley_set_is_drawn_and_starts_right():
 def test_series_hartley_frequency_within_2_percent_for_95_percent():
     acc = _series_acc()
     assert acc.freq_within_2pct >= 0.95 and acc.freq_median_error <= 0.003
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="85.0 % within 2 % of ngspice's span (17 of 20), median 0.0 %: hs006 (-8.2 %) "
+    "lies inside its record's span (-8.2 to +2.3 %), but hs008 (-9.5 %), hs010 (-3.7 %) "
+    "and hs016 (-27.7 %) lie below every reading ngspice gives of them (spans 0 to +9.5 %, "
+    "0 to +7.9 %, -18.4 to 0 %): the model's runs from rest read these bursters lower "
+    "than ngspice at any step or method",
+)
+def test_series_hartley_frequency_within_2_percent_of_ngspice_s_span_for_95_percent():
+    acc = _series_acc()
+    assert acc.freq_within_2pct_span >= 0.95 and acc.freq_median_span <= 0.003
 
 
 def test_series_hartley_frequency_within_2_percent_for_95_percent_of_settled_references():

@@ -158,6 +158,12 @@ def test_statistics_on_a_hand_made_set():
     assert a.settled == 3
     assert a.freq_within_2pct_settled == pytest.approx(2 / 3)
     assert a.freq_median_settled == pytest.approx(0.01)
+    # against the span of ngspice's readings: design 3's reruns read 1.000-1.004 MHz, so
+    # its 0.997 MHz is 1 - 0.997/1.000 = 0.3 % below it; design 5's read 1.00-1.03 MHz,
+    # but the model does not start it (inf); designs 1 and 2 were not run again (1 % and
+    # 5 %). Errors {0.01, 0.05, 0.003, inf}: 2 of 4 within 2 %, median 0.03
+    assert a.freq_within_2pct_span == pytest.approx(2 / 4)
+    assert a.freq_median_span == pytest.approx(0.03)
 
 
 def test_clapp_figure_with_bursters_left_out():
@@ -233,6 +239,19 @@ def test_frequency_within_2_percent_for_95_percent_of_settled_references(name):
 
 
 @pytest.mark.parametrize("name", sorted(SETS))
+def test_frequency_within_2_percent_of_ngspice_s_span_for_95_percent(name):
+    # the frequency targets with each reference taken as the span of ngspice's own
+    # readings of it (record and reruns: picker.circuit.reference_spread.span_error);
+    # measured 98.1 % (main: d043 and d044 fall inside their records' spans; d002 and
+    # d125 stay misses) and 98.0 % (holdout), medians 0.0 %
+    acc = _acc(name)
+    assert acc.freq_within_2pct_span >= 0.95
+    assert acc.freq_median_span <= 0.003
+    # the span can only widen a reference: never fewer hits than against the record
+    assert acc.freq_within_2pct_span >= acc.freq_within_2pct
+
+
+@pytest.mark.parametrize("name", sorted(SETS))
 def test_frequency_median_error_at_most_0_3_percent(name):
     acc = _acc(name)
     assert acc.freq_median_error <= 0.003
@@ -303,6 +322,22 @@ def test_reference_data_reproduce_in_ngspice(reference):
             # most 0.1 %
             rel = 0.03 if state == "unsettled" else 0.01
             assert fresh["amplitude_v"] == pytest.approx(ref["amplitude_v"], rel=rel)
+
+
+def test_a_model_figure_inside_ngspice_s_span_agrees_with_it():
+    # worked by hand: three bursters ngspice reads at 1 MHz in the record and 0.95-1.08
+    # MHz over its reruns. The model's 1.06 MHz is 6 % off the record but inside the span;
+    # 0.92 MHz is 1 - 0.92/0.95 = 3.2 % below it; 1.09 MHz is 1.09/1.08 - 1 = 0.93 % above.
+    sim = [{"state": "bursting", "f_hz": 1.0e6, "amplitude_v": 1.0, "reruns": _reruns(1.0e6)}]
+    sim[0]["reruns"]["trap_x1"]["tail"]["f_hz"] = 0.95e6
+    sim[0]["reruns"]["gear_x5"]["first_half"]["f_hz"] = 1.08e6
+    model = [_m(True, f, 1.0e6, 1.0, bursting=True) for f in (1.06e6, 0.92e6, 1.09e6)]
+    a = accuracy(["colpitts"] * 3, model, sim * 3)
+    assert a.freq_within_2pct == 0.0  # 6 %, 8 % and 9 % off the record
+    assert a.freq_within_2pct_span == pytest.approx(2 / 3)
+    assert a.freq_median_span == pytest.approx(1.09 / 1.08 - 1.0)
+    table = accuracy_table(a)
+    assert "within 2 % of ngspice's span" in table and "66.7 %" in table
 
 
 def test_split_runs_counted_against_their_range():

@@ -38,7 +38,7 @@ import numpy as np
 from picker.circuit.ngspice import read_window, refine_step, transient
 from picker.errors import SolverError
 
-__all__ = ["RERUNS", "SETTLED", "WINDOWS", "drift", "rerun", "wants_rerun"]
+__all__ = ["RERUNS", "SETTLED", "WINDOWS", "drift", "rerun", "span", "span_error", "wants_rerun"]
 
 #: The runs (name, integration method, step divisor) each record is read from again.
 RERUNS: tuple[tuple[str, str, int], ...] = (
@@ -122,3 +122,47 @@ def drift(record: Mapping[str, Any]) -> float:
                 return math.inf
             worst = max(worst, abs(float(f) / float(f_rec) - 1.0))
     return worst
+
+
+def span(record: Mapping[str, Any]) -> tuple[float, float]:
+    """The lowest and highest carrier ngspice reads for ``record``: its own reading and
+    every rerun's reading that oscillates (``record["reruns"]``, :func:`rerun`), Hz.
+
+    A record not run again (a steady record whose two steps agreed) spans its own
+    reading. NaN, NaN where the record does not oscillate.
+    """
+    f_rec = record.get("f_hz")
+    if f_rec is None or not float(f_rec) > 0:
+        return math.nan, math.nan
+    reads = [float(f_rec)]
+    for run in (record.get("reruns") or {}).values():
+        for reading in run.values():
+            f = reading.get("f_hz")
+            if f is not None and float(f) > 0:
+                reads.append(float(f))
+    return min(reads), max(reads)
+
+
+def span_error(f_hz: float, record: Mapping[str, Any]) -> float:
+    """The relative distance of ``f_hz`` from the span of ngspice's readings of
+    ``record`` (:func:`span`): 0 inside it, else ``|f_hz / end - 1|`` to the nearer end;
+    inf where ``f_hz`` is not a frequency or the record does not oscillate.
+
+    A reference ngspice itself reads over a span (a burster whose carrier moves with the
+    step, the method and the part of the tail) is an uncertain reference; a model figure
+    anywhere in that span agrees with it as well as ngspice agrees with itself, and the
+    2 % the model is held to is counted from the span's nearer end. Comparing a result
+    with a reference that carries its own uncertainty by letting the two allowances add
+    is proficiency-testing practice (ISO 13528's E_n score, which adds expanded
+    uncertainties in quadrature; the standard's clause is from memory). Adding the span
+    outright is more lenient than quadrature; picker does so because the span is a range
+    of readings, not a standard uncertainty, so there is no deviation to combine.
+    """
+    lo, hi = span(record)
+    if not (math.isfinite(f_hz) and f_hz > 0 and math.isfinite(lo)):
+        return math.inf
+    if f_hz > hi:
+        return f_hz / hi - 1.0
+    if f_hz < lo:
+        return 1.0 - f_hz / lo
+    return 0.0
