@@ -146,3 +146,57 @@ def test_each_design_runs_kicks_times_with_kicks_parts_per_million_apart(monkeyp
     # each design's figure is the median of its own runs
     mid = bc.KICK_STEP * (k - 1) / 2
     assert [g.f_hz for g in got] == pytest.approx([1.0 + mid, 2.0 * (1.0 + mid)], rel=1e-12)
+
+
+def _pulse_gaps(t: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """Times between falling crossings of halfway from the median down to the minimum, s
+    (written here, apart from scripts/same_window.py)."""
+    below = v < 0.5 * (np.median(v) + v.min())
+    edges = t[1:][below[1:] & ~below[:-1]]
+    return np.diff(edges)
+
+
+@pytest.mark.ngspice
+def test_a_pulse_train_run_from_rest_follows_ngspice_pulse_by_pulse():
+    # hs008 of the series-capacitor Hartley set (tests/validation/tank_hartley_series.json)
+    # runs in ngspice as a pulse train, one ring at about 600 kHz per pulse, the pulses
+    # 7 us apart after the kick and drawing out to 17.07 us as the bias settles; its
+    # carrier reading picks one line of that comb and is the model's largest miss on the
+    # set. The model's circuit run from rest (the whole waveform, waveform_from_rest)
+    # against ngspice's transient of picker's netlist of the same design and length: the
+    # same gaps, pulse by pulse (measured within 0.8 % each but the first, which the two
+    # kicks shape: ngspice's is a current pulse, the model's one backward-Euler step). A
+    # circuit that differs from the netlist (a coupling or a capacitor left out, a bias
+    # network that charges at another rate) draws the gaps out differently.
+    from pathlib import Path
+
+    from picker.circuit.netlist import write_netlist
+    from picker.circuit.ngspice import transient
+    from picker.circuit.validation import load_reference
+
+    designs, _ = load_reference(Path(__file__).parent / "validation" / "tank_hartley_series.json")
+    d = next(x for x in designs if x.id == "hs008")
+    f0 = float(d.topo.frequency(d.values, d.stray))
+    net = Network.build(d.topo, d.values, d.stray, d.params)
+    periods = 250
+    with np.errstate(all="ignore"):
+        t, v = bc.waveform_from_rest(net, f0, periods)
+    assert t.shape == v.shape == (periods * bc.RELAX_STEPS,)
+    assert t[0] == pytest.approx(1.0 / (f0 * bc.RELAX_STEPS), rel=1e-12)
+    deck = write_netlist(d.topo, d.values, d.stray, d.params, title="hs008", cycles=periods)
+    run = transient(deck)
+    ref = _pulse_gaps(run.time, run.v)
+    got = _pulse_gaps(t, v)
+    # ngspice's deck runs on past the model's 250 periods (its kick comes later, and its
+    # stop time has room for the measurement): the gaps both runs hold, from the kicks
+    n = min(ref.size, got.size)
+    assert n >= 20  # the pulse train the record shows
+    np.testing.assert_allclose(got[1:n], ref[1:n], rtol=0.01)
+
+
+def test_a_waveform_from_rest_needs_a_frequency_and_a_length():
+    d, _ = pinned("d015")
+    net = Network.build(d.topo, d.values, d.stray, d.params)
+    for f_hz, periods in ((0.0, 10), (math.nan, 10), (1.0e6, 0)):
+        with pytest.raises(ValueError, match="positive"):
+            bc.waveform_from_rest(net, f_hz, periods)

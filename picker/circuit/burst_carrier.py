@@ -102,6 +102,7 @@ __all__ = [
     "distorted",
     "network_carriers",
     "run_bursts",
+    "waveform_from_rest",
     "run_hint",
 ]
 
@@ -470,3 +471,39 @@ def network_carriers(
 def _values(net: Network) -> dict[str, float]:
     """The first board's values of ``net`` by position."""
     return {p: float(np.asarray(net.el[p]).reshape(-1)[0]) for p in net.topology.positions}
+
+
+def waveform_from_rest(
+    net: Network, f_hz: float, periods: int, *, steps: int = RELAX_STEPS
+) -> tuple[np.ndarray, np.ndarray]:
+    """The tank top's waveform of the first board of ``net`` run from rest once, from the
+    netlist's kick (:func:`picker.circuit.startup_run.start_kick`), by the trapezoidal
+    rule at ``steps`` steps a period of ``f_hz`` for ``periods`` periods, as
+    :func:`burst_carriers` runs it but kept whole: (time, s; voltage, V), each of
+    ``periods * steps`` samples, the first a step after the kick's start. For putting
+    beside ngspice's transient of the same netlist over the same windows
+    (``scripts/same_window.py``).
+
+    Raises
+    ------
+    ValueError
+        A netlist the transient reader does not simulate, or ``f_hz`` or ``periods``
+        not positive.
+    """
+    if not (math.isfinite(f_hz) and f_hz > 0 and periods > 0 and steps > 0):
+        raise ValueError("expected a positive frequency, period count and step count")
+    lines, cards = board_lines(net, np.array([0]))
+    fet = net.stage.device == "fet"
+    circ = build_circuit(
+        [lines[0]],
+        [] if fet else cards,
+        net.stage.top,
+        thermal_voltage(net.params.temperature_c),
+        cards=[cards] if fet else None,
+    )
+    period = np.array([1.0 / f_hz])
+    h = period / steps
+    x = start_kick(circ, period, np.ones(1))
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        v, _, _ = _run(circ, x, x.copy(), h, periods * steps)
+    return h[0] * np.arange(1, periods * steps + 1), v[:, 0]
