@@ -5,8 +5,8 @@ A burster's carrier reading depends on the part of the run it is read over (pick
 (``picker.circuit.burst_carrier.waveform_from_rest``: its circuit from the netlist's
 kick, trapezoidal rule at 128 steps a period of the ideal tank frequency) beside
 ngspice's transient of picker's netlist of the same design and length, and reads both
-with ``picker.circuit.waveform.measure`` over the same windows (quarters of the run after
-its first twentieth, then its second half). Where the tank top is a pulse train, it also
+with ``picker.circuit.waveform.measure`` over the same windows (parts of the model's run,
+each run timed from its kick). Where the tank top is a pulse train, it also
 prints the median interval between the pulses' falling edges (crossings of halfway
 between the median and the minimum), which is the spacing of the comb of lines a carrier
 reading picks one of.
@@ -36,8 +36,8 @@ from picker.circuit.ngspice import transient
 from picker.circuit.validation import load_reference
 from picker.circuit.waveform import measure
 
-#: The windows, as fractions of the run's length.
-WINDOWS = ((0.05, 0.25), (0.25, 0.5), (0.5, 0.75), (0.75, 1.0), (0.5, 1.0))
+#: The windows, as fractions of the model's run (both runs timed from their kicks).
+WINDOWS = ((0.1, 0.4), (0.1, 0.5), (0.2, 0.5), (0.3, 0.7), (0.1, 0.9), (0.2, 1.0), (0.5, 1.0))
 
 
 def pulse_interval(t: np.ndarray, v: np.ndarray) -> float:
@@ -50,8 +50,16 @@ def pulse_interval(t: np.ndarray, v: np.ndarray) -> float:
     return float(np.median(np.diff(edges))) if edges.size >= 3 else float("nan")
 
 
-def _read(t: np.ndarray, v: np.ndarray, f0: float, a: float, b: float) -> str:
-    sel = (t >= a * t[-1]) & (t <= b * t[-1])
+def kick_delay(netlist: str) -> float:
+    """The start-up kick's delay in picker's netlist (its IKICK pulse), s."""
+    for line in netlist.splitlines():
+        if line.startswith("IKICK"):
+            return float(line.split("PULSE(", 1)[1].split()[2])
+    raise ValueError("the netlist has no start-up kick")
+
+
+def _read(t: np.ndarray, v: np.ndarray, f0: float, a: float, b: float, span: float) -> str:
+    sel = (t >= a * span) & (t <= b * span)
     got = measure(t[sel] - t[sel][0], v[sel], f_hint=f0, tail_start=0.0)
     return f"{got.state:9} {got.f_hz / 1e3:9.2f} kHz"
 
@@ -78,16 +86,17 @@ def main(argv: list[str] | None = None) -> int:
             d.topo, d.values, d.stray, d.params, title=d.id, cycles=args.periods
         )
         run = transient(netlist, timeout=600.0)
+        tn = run.time - kick_delay(netlist)
         print(
             f"{did}: ideal tank {f0 / 1e3:.2f} kHz, record {rec['state']} at "
             f"{(rec['f_hz'] or float('nan')) / 1e3:.2f} kHz; {args.periods} periods"
         )
         for a, b in WINDOWS:
             print(
-                f"  {a:.2f}-{b:.2f}  model {_read(tm, vm, f0, a, b)} | "
-                f"ngspice {_read(run.time, run.v, f0, a, b)}"
+                f"  {a:.2f}-{b:.2f}  model {_read(tm, vm, f0, a, b, tm[-1])} | "
+                f"ngspice {_read(tn, run.v, f0, a, b, tm[-1])}"
             )
-        pm, pn = pulse_interval(tm, vm), pulse_interval(run.time, run.v)
+        pm, pn = pulse_interval(tm, vm), pulse_interval(tn, run.v)
         print(
             f"  pulse interval, median: model {pm * 1e6:.3f} us, ngspice {pn * 1e6:.3f} us "
             f"({pm / pn - 1:+.2%})"

@@ -158,7 +158,7 @@ def _pulse_gaps(t: np.ndarray, v: np.ndarray) -> np.ndarray:
 
 @pytest.mark.ngspice
 def test_a_pulse_train_run_from_rest_follows_ngspice_pulse_by_pulse():
-    # hs008 of the series-capacitor Hartley set (tests/validation/tank_hartley_series.json)
+    # hs008 of the series-capacitor Hartley set as redrawn (tests/validation/pinned.json)
     # runs in ngspice as a pulse train, one ring at about 600 kHz per pulse, the pulses
     # 7 us apart after the kick and drawing out to 17.07 us as the bias settles; its
     # carrier reading picks one line of that comb and is the model's largest miss on the
@@ -168,14 +168,11 @@ def test_a_pulse_train_run_from_rest_follows_ngspice_pulse_by_pulse():
     # kicks shape: ngspice's is a current pulse, the model's one backward-Euler step). A
     # circuit that differs from the netlist (a coupling or a capacitor left out, a bias
     # network that charges at another rate) draws the gaps out differently.
-    from pathlib import Path
-
     from picker.circuit.netlist import write_netlist
     from picker.circuit.ngspice import transient
-    from picker.circuit.validation import load_reference
 
-    designs, _ = load_reference(Path(__file__).parent / "validation" / "tank_hartley_series.json")
-    d = next(x for x in designs if x.id == "hs008")
+    d, record = pinned("hs008")
+    assert record["state"] == "bursting"
     f0 = float(d.topo.frequency(d.values, d.stray))
     net = Network.build(d.topo, d.values, d.stray, d.params)
     periods = 250

@@ -23,6 +23,13 @@ designs whose reference is *settled*: ngspice's reading holds within 1 % when th
 is run again at a finer step, by another method and read over each half of its tail
 (:mod:`picker.circuit.reference_spread`). It is not one of issue 11's targets; it says
 which misses are the model's and which are the reference's.
+
+And the frequency targets once more over every design that oscillates, each reference
+taken as the *span* of ngspice's own readings of it (its record and its reruns): a model
+figure inside the span agrees with ngspice as well as ngspice agrees with itself, and
+the 2 % is counted from the span's nearer end
+(:func:`picker.circuit.reference_spread.span_error`). For a steady record not run
+again the span is its one reading, so the figure is the plain one.
 """
 
 from __future__ import annotations
