@@ -74,6 +74,7 @@ from picker.circuit.network import Network
 from picker.circuit.ngspice import trapezoid_frequency
 from picker.circuit.periodic import board_lines
 from picker.circuit.startup_run import start_kick
+from picker.circuit.steady import DISTORTED_DBC, distorted
 
 # the integrator's own damped Newton step and junction limiting (one step of any
 # implicit rule: α·Q(x)/h + I(x) + history = 0), not re-implemented here
@@ -322,34 +323,6 @@ def _single_runs(
     return [o if o is not None else BurstCarrier("none", np.nan, np.nan, 0, np.nan) for o in out]
 
 
-#: A design the describing function calls steady, with no orbit shot (it does not find
-#: the drive saturated), but whose waveform it puts this far from a sine (its 2nd or 3rd
-#: harmonic at the tank top above this, dBc: half the fundamental's amplitude), lies
-#: outside the one-harmonic balance's premise, and it gets the run from rest too
-#: (:func:`run_hint`, ``distorted``). The project's choice, no source. On the held-out
-#: set's h010 (a Colpitts with a 112 Ω collector resistor; 2nd harmonic -2.4 dBc, start-up
-#: pole at 2.3 times the tank's frequency) the describing function reads 177.2 kHz,
-#: steady, where ngspice's board bursts at 158.2 kHz; its run from rest bursts at
-#: +0.14 %. The eight steady designs of the main and held-out sets above the line (-2.4
-#: to -6.0 dBc) run steady or unsettled from rest, none bursting; no design of the
-#: common-base, common-source, common-gate and stage hold-out sets crosses it (on the
-#: Hartley and follower sets every design that starts is shot; 2026-12-05).
-DISTORTED_DBC = -6.0
-
-
-def distorted(orbit_shot: bool, starts: bool, bursting: bool, harmonics_dbc: Any) -> bool:
-    """Whether a design's describing function lies outside its premise
-    (:data:`DISTORTED_DBC`): no orbit was shot for it, it starts, it is called steady, and
-    its largest harmonic at the tank top is above the line."""
-    h = np.asarray(harmonics_dbc, dtype=float)
-    return (
-        not orbit_shot
-        and starts
-        and not bursting
-        and bool(np.any(np.isfinite(h) & (h > DISTORTED_DBC)))
-    )
-
-
 def run_hint(
     starts: bool,
     bursting: bool,
@@ -357,7 +330,7 @@ def run_hint(
     f_ideal_hz: float,
     *,
     converged: bool = True,
-    distorted: bool = False,
+    warped: bool = False,
 ) -> float | None:
     """The frequency a design's run from rest is scaled by (its step and length), or None
     where the model's own figures stand.
@@ -379,7 +352,7 @@ def run_hint(
       series set's six such designs the run (at :data:`RELAX_STEPS`) reads 0.25 to 0.97
       of it, on the tapped set's three 0.42 to 0.82, and its state is the run's
       (:func:`run_bursts`);
-    * one the describing function calls steady far outside its premise (``distorted``,
+    * one the describing function calls steady far outside its premise (``warped``,
       :func:`distorted`): the run may show a burst it misses (the run takes its
       frequency), and where it does not, its carrier is still the closer one (on the
       eight steady such designs of the main and held-out sets the runs read within
@@ -389,21 +362,19 @@ def run_hint(
         return None
     if not math.isfinite(f_hz):
         return f_ideal_hz if math.isfinite(f_ideal_hz) and f_ideal_hz > 0 else None
-    return f_hz if bursting or not converged or distorted else None
+    return f_hz if bursting or not converged or warped else None
 
 
-def run_bursts(
-    bursting: bool, relaxing: bool, run: BurstCarrier, *, distorted: bool = False
-) -> bool:
+def run_bursts(bursting: bool, relaxing: bool, run: BurstCarrier, *, warped: bool = False) -> bool:
     """The model's bursting verdict once ``run`` (the design's run from rest,
     :func:`run_hint`) is made: a relaxing design (no steady solution) takes the run's
     state; otherwise a run measured, as ngspice's records are, as not bursting (it
     settles, or its envelope wanders without gaps) clears the verdict, and one that
     bursts keeps it (an unconverged orbit's design that the start-up run calls steady
     stays steady: cb011 of the common-base set runs steady in ngspice, while its run
-    from rest reads as bursting with a spread of 3.5 %). A ``distorted`` design
+    from rest reads as bursting with a spread of 3.5 %). A ``warped`` design
     (:func:`distorted`, called steady) bursts where its run bursts."""
-    if relaxing or distorted:
+    if relaxing or warped:
         return run.state == "bursting"
     return bursting and not run.clears_burst
 

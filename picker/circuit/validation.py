@@ -244,7 +244,7 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
         )
     converged = [orb[0] is None or orb[0].converged for orb in orbits]
     hints = [
-        run_hint(a.starts, a.bursting, a.f_hz, a.f_ideal_hz, converged=c, distorted=w)
+        run_hint(a.starts, a.bursting, a.f_hz, a.f_ideal_hz, converged=c, warped=w)
         for a, c, w in zip(out, converged, warped, strict=True)
     ]
     runs = network_carriers(
@@ -260,7 +260,7 @@ def model_answers(designs: Sequence[Design]) -> list[ModelAnswer]:
                 f_hz=r.f_hz,
                 amplitude_v=r.amplitude_v,
                 bursting=run_bursts(
-                    out[k].bursting, not math.isfinite(out[k].f_hz), r, distorted=warped[k]
+                    out[k].bursting, not math.isfinite(out[k].f_hz), r, warped=warped[k]
                 ),
                 f_low_hz=r.f_low_hz if r.split else math.nan,
                 f_high_hz=r.f_high_hz if r.split else math.nan,

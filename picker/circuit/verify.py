@@ -330,7 +330,7 @@ def check_boards(
             math.nan if m["f_hz"] is None else float(m["f_hz"]),
             float(topology.frequency(v, stray)),
             converged=o is None or o.converged,
-            distorted=warped[i],
+            warped=warped[i],
         )
         for i, (m, v, o) in enumerate(zip(models, vals, orbits, strict=True))
     ]
@@ -353,7 +353,7 @@ def check_boards(
                 was = models[i]["envelope"] == "bursting"
                 models[i] = {**models[i], "f_hz": r.f_hz, "amplitude_v": r.amplitude_v}
                 models[i]["carrier_from"] = "run from rest"
-                if relaxes or run_bursts(was, relaxes, r, distorted=warped[i]) != was:
+                if relaxes or run_bursts(was, relaxes, r, warped=warped[i]) != was:
                     models[i]["envelope"] = r.state
                 models[i]["carrier_spread"] = json_number(r.spread)
                 models[i]["carrier_kick_spread"] = json_number(r.kick_spread)
