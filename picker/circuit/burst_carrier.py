@@ -103,8 +103,8 @@ __all__ = [
     "distorted",
     "network_carriers",
     "run_bursts",
-    "waveform_from_rest",
     "run_hint",
+    "waveform_from_rest",
 ]
 
 #: Time steps a period (trapezoidal rule; module docstring).
