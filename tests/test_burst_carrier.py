@@ -72,7 +72,7 @@ def test_a_relaxing_board_runs_at_the_finer_step(monkeypatch):
     f = [float(d.topo.frequency(d.values, d.stray)) for d in pick]
     seen = []
 
-    def fake(circ, w, tau, *, steps):
+    def fake(circ, w, tau, *, steps, look_hz):
         seen.append((steps, [round(x / (2 * math.pi)) for x in w]))
         return [bc.BurstCarrier("steady", x / (2 * math.pi), 1.0, 100, 0.0) for x in w]
 
@@ -81,6 +81,37 @@ def test_a_relaxing_board_runs_at_the_finer_step(monkeypatch):
     assert sorted(seen) == sorted([(bc.STEPS, [round(f[0])]), (bc.RELAX_STEPS, [round(f[1])])])
     assert bc.RELAX_STEPS > bc.STEPS
     assert [g.f_hz for g in got if g is not None] == pytest.approx(f)
+
+
+def test_the_run_is_read_where_ngspice_s_transient_is_read(monkeypatch):
+    # hs008 (series-capacitor Hartley, a pulse train): its orbit runs at about half its
+    # tank's ideal frequency, so a reading looked for around the orbit's frequency and one
+    # looked for around the ideal frequency search different bands (a factor of two each
+    # way) and can pick different lines of the pulse train's comb. The run steps by the
+    # frequency it is handed, but is read around the frequency ngspice's record is read
+    # around, the transient plan's f0 (the ideal tank frequency with its stray)
+    from picker.circuit.netlist import transient_plan
+
+    d = pinned("hs008")[0]
+    net = Network.build(d.topo, d.values, d.stray, d.params)
+    f0 = transient_plan(d.topo, d.values, d.stray, d.params).f0
+    seen = {}
+
+    def fake(circ, w, tau, *, steps, look_hz):
+        seen.update(w=w.copy(), look=np.asarray(look_hz).copy())
+        return [bc.BurstCarrier("bursting", 1.0, 1.0, 100, 0.0) for _ in w]
+
+    monkeypatch.setattr(bc, "burst_carriers", fake)
+    bc.network_carriers([net], [True], [0.5 * f0])
+    assert seen["w"].tolist() == pytest.approx([math.pi * f0])  # the step: the hint
+    assert seen["look"].tolist() == pytest.approx([f0], rel=1e-12)  # the reading: f0
+    # f0 itself: the series-capacitor Hartley's ideal frequency, 1/(2π·sqrt(L_eq·C_eq))
+    # with L_eq = L1 + L2 + 2k·sqrt(L1·L2) (aiding coupling) and the tank capacitor in
+    # series with C_S (Terman, Radio Engineers' Handbook, coupled coils in series)
+    v = d.values
+    l_eq = v["L1"] + v["L2"] + 2.0 * d.coupling * math.sqrt(v["L1"] * v["L2"])
+    c_eq = v["C"] * v["CS"] / (v["C"] + v["CS"]) + d.stray
+    assert f0 == pytest.approx(1.0 / (2.0 * math.pi * math.sqrt(l_eq * c_eq)), rel=1e-9)
 
 
 def _r(state: str, f: float, amp: float = 1.0) -> bc.BurstCarrier:
@@ -130,8 +161,8 @@ def test_each_design_runs_kicks_times_with_kicks_parts_per_million_apart(monkeyp
     # the first with the netlist's own kick (scale 1), the next ones KICK_STEP apart
     seen = {}
 
-    def single(circ, w, tau, steps, scale):
-        seen.update(w=w.copy(), tau=tau.copy(), scale=scale.copy(), steps=steps)
+    def single(circ, w, tau, steps, scale, look_hz):
+        seen.update(w=w.copy(), tau=tau.copy(), scale=scale.copy(), steps=steps, look=look_hz)
         return [_r("bursting", float(x) * (1.0 + s)) for x, s in zip(w, scale - 1.0, strict=True)]
 
     monkeypatch.setattr(bc, "_single_runs", single)
@@ -143,6 +174,8 @@ def test_each_design_runs_kicks_times_with_kicks_parts_per_million_apart(monkeyp
     assert seen["tau"].tolist() == [0.0] * k + [5.0] * k
     assert seen["scale"][:k] == pytest.approx(1.0 + bc.KICK_STEP * np.arange(k), abs=0)
     assert seen["scale"][0] == 1.0 and seen["steps"] == bc.STEPS
+    # with no frequency to look at given, the carrier is looked for at w's
+    assert seen["look"].tolist() == pytest.approx([1.0 / (2 * math.pi)] * k + [1.0 / math.pi] * k)
     # each design's figure is the median of its own runs
     mid = bc.KICK_STEP * (k - 1) / 2
     assert [g.f_hz for g in got] == pytest.approx([1.0 + mid, 2.0 * (1.0 + mid)], rel=1e-12)

@@ -50,8 +50,8 @@ def _runs(kicks: int, nudge: float) -> Iterator[None]:
     """``KICKS`` set to ``kicks`` and every kick times 1 + ``nudge``, for the block."""
     keep_k, keep_single = burst_carrier.KICKS, burst_carrier._single_runs
 
-    def nudged(circ: Any, w: Any, tau: Any, steps: int, scale: np.ndarray) -> Any:
-        return keep_single(circ, w, tau, steps, scale * (1.0 + nudge))
+    def nudged(circ: Any, w: Any, tau: Any, steps: int, scale: np.ndarray, look: Any) -> Any:
+        return keep_single(circ, w, tau, steps, scale * (1.0 + nudge), look)
 
     burst_carrier.KICKS = kicks
     burst_carrier._single_runs = nudged  # type: ignore[assignment]
