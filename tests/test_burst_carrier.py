@@ -106,8 +106,9 @@ def test_the_run_is_read_where_ngspice_s_transient_is_read(monkeypatch):
     assert seen["w"].tolist() == pytest.approx([math.pi * f0])  # the step: the hint
     assert seen["look"].tolist() == pytest.approx([f0], rel=1e-12)  # the reading: f0
     # f0 itself: the series-capacitor Hartley's ideal frequency, 1/(2π·sqrt(L_eq·C_eq))
-    # with L_eq = L1 + L2 + 2k·sqrt(L1·L2) (aiding coupling) and the tank capacitor in
-    # series with C_S (Terman, Radio Engineers' Handbook, coupled coils in series)
+    # with L_eq = L1 + L2 + 2k·sqrt(L1·L2) (coils in series aiding: Hayt & Kemmerly,
+    # Engineering Circuit Analysis, magnetically coupled circuits) and C in series with
+    # C_S, plus the stray across the chain (Clapp, Proc. IRE 36 (1948))
     v = d.values
     l_eq = v["L1"] + v["L2"] + 2.0 * d.coupling * math.sqrt(v["L1"] * v["L2"])
     c_eq = v["C"] * v["CS"] / (v["C"] + v["CS"]) + d.stray
