@@ -82,7 +82,7 @@ from typing import Any
 import numpy as np
 
 from picker.circuit.device import thermal_voltage
-from picker.circuit.netlist import bias_time_constant
+from picker.circuit.netlist import bias_time_constant, transient_plan
 from picker.circuit.network import Network
 from picker.circuit.ngspice import trapezoid_frequency
 from picker.circuit.periodic import board_lines
@@ -471,12 +471,12 @@ def _values(net: Network) -> dict[str, float]:
 
 
 def _ideal_hz(net: Network) -> float:
-    """The first board's ideal tank frequency with its stray (Hz): where ngspice's
-    transient of its netlist is read (:func:`picker.circuit.netlist.transient_plan`'s
-    ``f0``), and so where its run's carrier is looked for, so that both runs are read
-    alike."""
+    """The first board's ideal tank frequency with its stray (Hz), taken from the plan of
+    ngspice's transient of its netlist (:func:`picker.circuit.netlist.transient_plan`'s
+    ``f0``), where that transient is read: its run's carrier is looked for there too, so
+    that both runs are read alike."""
     stray = float(np.asarray(net.el["stray"]).reshape(-1)[0])
-    return float(net.topology.frequency(_values(net), stray))
+    return transient_plan(net.topology, _values(net), stray, net.params).f0
 
 
 def waveform_from_rest(
