@@ -340,6 +340,35 @@ def test_a_model_figure_inside_ngspice_s_span_agrees_with_it():
     assert "within 2 % of ngspice's span" in table and "66.7 %" in table
 
 
+def test_start_up_time_scored_where_both_have_one():
+    # worked by hand against records that start up in 10 µs: the model's 12 µs is 20 %
+    # off, 6 µs 40 %, 10.5 µs 5 %; a model without a start-up time (NaN), a record
+    # without one (None: the envelope there before the kick), a record that does not
+    # oscillate and a model that does not start are not timed. Errors {0.2, 0.4, 0.05}:
+    # 2 of 3 within 30 %, median 0.2
+    t_model = [12e-6, 6e-6, 10.5e-6, math.nan, 10e-6, 10e-6, 10e-6]
+    t_sim = [10e-6, 10e-6, 10e-6, 10e-6, None, 10e-6, 10e-6]
+    states = ["steady", "bursting", "steady", "steady", "bursting", "none", "steady"]
+    starts = [True] * 6 + [False]
+    model = [
+        replace(_m(go, 1.0e6, 1.0e6, 1.0), startup_time_s=t)
+        for go, t in zip(starts, t_model, strict=True)
+    ]
+    sim = [
+        {"state": st, "f_hz": 1.0e6, "amplitude_v": 1.0, "startup_time_s": t}
+        for st, t in zip(states, t_sim, strict=True)
+    ]
+    a = accuracy(["colpitts"] * 7, model, sim)
+    assert a.timed == 3
+    assert a.startup_time_within_30pct == pytest.approx(2 / 3)
+    assert a.startup_time_median_error == pytest.approx(0.2)
+    table = accuracy_table(a)
+    assert "start-up time within ±30 % (3 timed)" in table and "66.7 %" in table
+    # records without the key (older files) time nothing
+    bare = [{k: v for k, v in r.items() if k != "startup_time_s"} for r in sim]
+    assert accuracy(["colpitts"] * 7, model, bare).timed == 0
+
+
 def test_split_runs_counted_against_their_range():
     # worked by hand against ngspice at 1.00 MHz, four designs whose runs from rest split:
     # 0.95-1.05 MHz covers it; 1.10-1.20 MHz misses (1.10 / 1.02 = 1.078 MHz); 0.90-0.97

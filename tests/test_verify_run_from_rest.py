@@ -45,7 +45,10 @@ def test_a_board_called_bursting_takes_its_run_from_rest(monkeypatch, run_state)
     def runs(nets, bursting, f_hint, relaxing):
         calls.append(list(bursting))
         assert relaxing == [False]  # the orbit exists: the usual step
-        return [BurstCarrier(run_state, 1.01 * f0, 2.5, 400, 1e-3, 4e-3, 7) for _ in nets]
+        return [
+            BurstCarrier(run_state, 1.01 * f0, 2.5, 400, 1e-3, 4e-3, 7, startup_time_s=3.3e-5)
+            for _ in nets
+        ]
 
     monkeypatch.setattr(verify, "board_orbits", orbits)
     monkeypatch.setattr(verify, "network_carriers", runs)
@@ -55,6 +58,9 @@ def test_a_board_called_bursting_takes_its_run_from_rest(monkeypatch, run_state)
     assert m["f_hz"] == pytest.approx(1.01 * f0) and m["amplitude_v"] == 2.5
     assert m["carrier_from"] == "run from rest" and m["carrier_spread"] == 1e-3
     assert m["carrier_kick_spread"] == 4e-3  # the runs' own scatter, beside the chunks'
+    # the start-up time is the run's too (read as ngspice's is), not the describing
+    # function's start-up pole's
+    assert m["startup_time_s"] == 3.3e-5
     # a run that does not burst clears the orbit's flag; one that bursts keeps it
     assert m["envelope"] == ("bursting" if run_state == "bursting" else run_state)
     assert check.state == "steady"  # ngspice's own reading of the demo's board is untouched

@@ -175,7 +175,9 @@ class BurstCarrier:
     standard error of the carrier over the tail's chunks (relative); where several runs
     with kicks a hair apart vote (:func:`burst_carriers`), the range of the carriers on
     the majority's side over the figure (relative; NaN for one run), the lowest and
-    highest of those carriers (Hz) and how many runs showed a carrier."""
+    highest of those carriers (Hz) and how many runs showed a carrier; and the start-up
+    time, s, read from the whole run as ngspice's is (:func:`_startup_time`; NaN where
+    that reading has none)."""
 
     state: str
     f_hz: float
@@ -186,6 +188,7 @@ class BurstCarrier:
     runs: int = 1
     f_low_hz: float = math.nan
     f_high_hz: float = math.nan
+    startup_time_s: float = math.nan
 
     @property
     def split(self) -> bool:
@@ -235,6 +238,19 @@ def _chunk_carrier(v: np.ndarray, h: float, f_hint: float) -> tuple[str, float, 
     got = measure(t, v, f_hint=f_hint, tail_start=0.0)
     f = trapezoid_frequency(got.f_hz, h) if got.oscillating else float("nan")
     return got.state, f, got.amplitude_v
+
+
+def _startup_time(v: np.ndarray, h: float, period: float, f_hint: float, tail: int) -> float:
+    """The start-up time, s, of a whole run ``v`` from rest (warm-up and tail, sampled
+    every ``h``; its last ``tail`` samples the measured tail), read as ngspice's record
+    is (:attr:`picker.circuit.waveform.WaveformMeasurement.startup_time_s`: from the kick
+    to the envelope's first reaching 90 % of its settled value, or of the bursts' height
+    where it bursts). The run starts from the state at the end of the netlist's kick, half
+    a ``period`` after the kick began (:func:`picker.circuit.startup_run.start_kick`), and
+    its first sample is a step later; ngspice's time runs from the kick's start."""
+    t = 0.5 * period + h * np.arange(1, v.size + 1)
+    got = measure(t, v, f_hint=f_hint, tail_start=float(t[v.size - tail]), t_kick=0.0)
+    return got.startup_time_s
 
 
 def burst_carriers(
@@ -303,8 +319,9 @@ def _single_runs(
     exceeds one chunk), then chunks until the standard error of the chunks' carriers is
     below :data:`SPREAD` of their mean (at least :data:`MIN_CHUNKS`, at most
     :data:`MAX_CHUNKS`); the carrier and amplitude are measured over all the chunks after
-    the warm-up together. Each element's run depends on it alone (its Newton iteration
-    stops on its own; an element that has stopped leaves the batch)."""
+    the warm-up together, and the start-up time over the whole run (:func:`_startup_time`).
+    Each element's run depends on it alone (its Newton iteration stops on its own; an
+    element that has stopped leaves the batch)."""
     m = circ.b.shape[0]
     period = 2.0 * np.pi / np.asarray(w, dtype=float)
     h = period / steps
@@ -312,6 +329,7 @@ def _single_runs(
     x = start_kick(circ, period, scale)
     x_prev = x.copy()
     tails: list[list[np.ndarray]] = [[] for _ in range(m)]
+    heads: list[list[np.ndarray]] = [[] for _ in range(m)]  # the warm-up, for the start-up
     f_chunks: list[list[float]] = [[] for _ in range(m)]
     out: list[BurstCarrier | None] = [None] * m
     live = np.all(np.isfinite(x), axis=1)
@@ -328,6 +346,7 @@ def _single_runs(
                 live[j] = False
                 continue
             if done <= warm[j]:
+                heads[j].append(v[:, col])
                 continue
             tails[j].append(v[:, col])
             f_chunks[j].append(_chunk_carrier(v[:, col], float(h[j]), float(look_hz[j]))[1])
@@ -339,10 +358,12 @@ def _single_runs(
             if fin.size > 1:
                 sem = float(np.std(fin, ddof=1) / np.sqrt(fin.size) / np.mean(fin))
             if fc.size >= MAX_CHUNKS or (fin.size >= MIN_CHUNKS and sem <= SPREAD):
-                state, f, amp = _chunk_carrier(
-                    np.concatenate(tails[j]), float(h[j]), float(look_hz[j])
-                )
-                out[j] = BurstCarrier(state, f, amp, done * CHUNK, sem)
+                whole = np.concatenate(heads[j] + tails[j])
+                span = sum(c.size for c in tails[j])
+                hj, fj = float(h[j]), float(look_hz[j])
+                state, f, amp = _chunk_carrier(whole[-span:], hj, fj)
+                t_up = _startup_time(whole, hj, float(period[j]), fj, span)
+                out[j] = BurstCarrier(state, f, amp, done * CHUNK, sem, startup_time_s=t_up)
                 live[j] = False
     return [o if o is not None else BurstCarrier("none", np.nan, np.nan, 0, np.nan) for o in out]
 

@@ -314,7 +314,9 @@ def check_boards(
     # a board the model calls bursting, one that starts with no steady solution (a
     # relaxation) and one whose orbit did not converge (run_hint): its carrier and amplitude
     # from its own circuit run from rest, measured as ngspice's run is, as the validation's
-    # answers take them (picker.circuit.validation.model_answers); its envelope is the
+    # answers take them (picker.circuit.validation.model_answers), and its start-up time
+    # too (read from the whole run as ngspice's is: the describing function's start-up
+    # pole says nothing of a burst's first crest); its envelope is the
     # run's where the verdict changes (run_bursts: the orbit's instability said only that
     # the board does not hold that orbit) and, for a relaxation, always
     # and one the describing function calls steady far outside its premise (distorted)
@@ -351,7 +353,12 @@ def check_boards(
             if r is not None and math.isfinite(r.f_hz):
                 relaxes = models[i]["f_hz"] is None
                 was = models[i]["envelope"] == "bursting"
-                models[i] = {**models[i], "f_hz": r.f_hz, "amplitude_v": r.amplitude_v}
+                models[i] = {
+                    **models[i],
+                    "f_hz": r.f_hz,
+                    "amplitude_v": r.amplitude_v,
+                    "startup_time_s": json_number(r.startup_time_s),
+                }
                 models[i]["carrier_from"] = "run from rest"
                 if relaxes or run_bursts(was, relaxes, r, warped=warped[i]) != was:
                     models[i]["envelope"] = r.state

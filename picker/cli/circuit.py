@@ -56,7 +56,8 @@ LENGTHENED_NOTE = (
 #: The note beside a model column read from the board's own circuit run from rest
 #: (picker.circuit.burst_carrier.run_hint) rather than from its steady solution.
 RUN_FROM_REST_NOTE = (
-    "note: the model's carrier and amplitude{which} come from the board's own circuit run "
+    "note: the model's carrier, amplitude and start-up time{which} come from the board's "
+    "own circuit run "
     "from rest (the steady solution bursts there, does not exist, its orbit did not "
     "converge, or its waveform is too far from a sine for the steady solution), measured "
     "as ngspice's run is"
