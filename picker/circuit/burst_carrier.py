@@ -507,9 +507,10 @@ def waveform_from_rest(
     netlist's kick (:func:`picker.circuit.startup_run.start_kick`), by the trapezoidal
     rule at ``steps`` steps a period of ``f_hz`` for ``periods`` periods, as
     :func:`burst_carriers` runs it but kept whole: (time, s; voltage, V), each of
-    ``periods * steps`` samples, the first a step after the kick's start. For putting
-    beside ngspice's transient of the same netlist over the same windows
-    (``scripts/same_window.py``).
+    ``periods * steps`` samples, the first a step after the run's start (the state at the
+    kick's end: half a period after the kick began, which :func:`_startup_time` adds and
+    this time axis does not). For putting beside ngspice's transient of the same netlist
+    over the same windows (``scripts/same_window.py``).
 
     Raises
     ------
