@@ -1,0 +1,102 @@
+"""The describing function's start-up time against ngspice's records, by start-up margin.
+
+Over every committed validation set (``tests/validation/*.json`` but the mode studies and
+the pinned records), the designs the describing function
+(``picker.circuit.steady.steady_state``) calls steady with a frequency, a waveform not far
+from a sine (``picker.circuit.burst_carrier.distorted``) and a start-up time, and that
+ngspice records steady with a start-up time. These are the designs whose start-up time
+``solve`` and ``evaluate`` report from the describing function (a burster's, or a
+distorted design's, comes from its run from rest in ``simulate`` and the validation). It
+prints the share within ±30 % of the record's start-up time, the median error and the
+median ratio (model / ngspice), by margin band and on either side of the overdrive
+caution's threshold (``picker.circuit.amplitude.OVERDRIVE_MARGIN``).
+
+Usage::
+
+    python scripts/startup_by_margin.py [--json OUT]
+
+About 40 s of CPU.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import warnings
+from pathlib import Path
+
+import numpy as np
+
+from picker.circuit.amplitude import OVERDRIVE_MARGIN
+from picker.circuit.burst_carrier import distorted
+from picker.circuit.steady import steady_state
+from picker.circuit.validation import load_reference
+
+ROOT = Path(__file__).resolve().parent.parent
+SKIP = ("mode_study", "pinned")
+BANDS = ((1.0, 3.0), (3.0, 6.0), (6.0, 20.0), (20.0, math.inf))
+
+
+def timed_designs() -> list[dict[str, object]]:
+    """One row per design timed both ways: set, id, stage, margin, both start-up times."""
+    rows: list[dict[str, object]] = []
+    for path in sorted((ROOT / "tests" / "validation").glob("*.json")):
+        if any(s in path.stem for s in SKIP):
+            continue
+        designs, records = load_reference(path)
+        for d, rec in zip(designs, records, strict=True):
+            st = steady_state(d.topo, d.values, d.stray, d.params)
+            if not bool(np.asarray(st.starts)) or bool(np.asarray(st.bursting)):
+                continue
+            if not math.isfinite(float(np.asarray(st.f_hz))):
+                continue
+            if distorted(False, True, False, st.harmonics_dbc):
+                continue
+            model = float(np.asarray(st.startup_time_s))
+            ref = rec.get("startup_time_s")
+            if rec["state"] != "steady" or not ref or not math.isfinite(model):
+                continue
+            rows.append(
+                {
+                    "set": path.stem,
+                    "id": d.id,
+                    "stage": d.params.stage,
+                    "margin": float(np.asarray(st.margin)),
+                    "model_s": model,
+                    "ngspice_s": float(ref),
+                }
+            )
+    return rows
+
+
+def _line(label: str, ratio: np.ndarray) -> str:
+    if ratio.size == 0:
+        return f"{label:22} {0:4}"
+    within = float(np.mean(np.abs(ratio - 1.0) <= 0.3))
+    err = float(np.median(np.abs(ratio - 1.0)))
+    return f"{label:22} {ratio.size:4} {within:9.1%} {err:9.1%} {float(np.median(ratio)):9.2f}"
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n", 1)[0])
+    ap.add_argument("--json", type=Path, help="also write the rows to this file")
+    args = ap.parse_args(argv)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        rows = timed_designs()
+    m = np.array([float(r["margin"]) for r in rows])  # type: ignore[arg-type]
+    ratio = np.array([float(r["model_s"]) / float(r["ngspice_s"]) for r in rows])  # type: ignore[arg-type]
+    print(f"{'margin':22} {'n':>4} {'±30 %':>9} {'med. err':>9} {'med. ratio':>9}")
+    for lo, hi in BANDS:
+        print(_line(f"{lo:g} to {hi:g}", ratio[(m >= lo) & (m < hi)]))
+    print(_line(f"at most {OVERDRIVE_MARGIN:g}", ratio[m <= OVERDRIVE_MARGIN]))
+    print(_line(f"above {OVERDRIVE_MARGIN:g}", ratio[m > OVERDRIVE_MARGIN]))
+    print(_line("all", ratio))
+    if args.json:
+        args.json.write_text(json.dumps(rows, indent=1), encoding="utf-8")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
