@@ -24,6 +24,7 @@ import argparse
 import json
 import math
 import warnings
+from dataclasses import asdict, dataclass
 from pathlib import Path
 
 import numpy as np
@@ -38,9 +39,22 @@ SKIP = ("mode_study", "pinned")
 BANDS = ((1.0, 3.0), (3.0, 6.0), (6.0, 20.0), (20.0, math.inf))
 
 
-def timed_designs() -> list[dict[str, object]]:
-    """One row per design timed both ways: set, id, stage, margin, both start-up times."""
-    rows: list[dict[str, object]] = []
+@dataclass(frozen=True)
+class Timed:
+    """A design timed both ways: its set and id, stage, start-up margin, the describing
+    function's start-up time and the record's, s."""
+
+    set: str
+    id: str
+    stage: str
+    margin: float
+    model_s: float
+    ngspice_s: float
+
+
+def timed_designs() -> list[Timed]:
+    """Every design timed both ways (module docstring), set by set."""
+    rows: list[Timed] = []
     for path in sorted((ROOT / "tests" / "validation").glob("*.json")):
         if any(s in path.stem for s in SKIP):
             continue
@@ -57,16 +71,8 @@ def timed_designs() -> list[dict[str, object]]:
             ref = rec.get("startup_time_s")
             if rec["state"] != "steady" or not ref or not math.isfinite(model):
                 continue
-            rows.append(
-                {
-                    "set": path.stem,
-                    "id": d.id,
-                    "stage": d.params.stage,
-                    "margin": float(np.asarray(st.margin)),
-                    "model_s": model,
-                    "ngspice_s": float(ref),
-                }
-            )
+            margin = float(np.asarray(st.margin))
+            rows.append(Timed(path.stem, d.id, str(d.params.stage), margin, model, float(ref)))
     return rows
 
 
@@ -85,8 +91,8 @@ def main(argv: list[str] | None = None) -> int:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
         rows = timed_designs()
-    m = np.array([float(r["margin"]) for r in rows])  # type: ignore[arg-type]
-    ratio = np.array([float(r["model_s"]) / float(r["ngspice_s"]) for r in rows])  # type: ignore[arg-type]
+    m = np.array([r.margin for r in rows])
+    ratio = np.array([r.model_s / r.ngspice_s for r in rows])
     print(f"{'margin':22} {'n':>4} {'±30 %':>9} {'med. err':>9} {'med. ratio':>9}")
     for lo, hi in BANDS:
         print(_line(f"{lo:g} to {hi:g}", ratio[(m >= lo) & (m < hi)]))
@@ -94,7 +100,7 @@ def main(argv: list[str] | None = None) -> int:
     print(_line(f"above {OVERDRIVE_MARGIN:g}", ratio[m > OVERDRIVE_MARGIN]))
     print(_line("all", ratio))
     if args.json:
-        args.json.write_text(json.dumps(rows, indent=1), encoding="utf-8")
+        args.json.write_text(json.dumps([asdict(r) for r in rows], indent=1), encoding="utf-8")
     return 0
 
 
