@@ -141,10 +141,21 @@ def _acc(name: str) -> Accuracy:
     return _accuracy_of(SETS[name])
 
 
+#: Sets whose expected failure is not strict: the figure lies on the target's edge and a
+#: burster's carrier there moves with the machine's rounding (picker.circuit.burst_carrier,
+#: KICKS). The Hartley set's 2 % share: 90.0 % on the machine of 2026-12-04/05 (hy015
+#: -2.2 %), and met (at least 95 %) in a fresh-clone CI run on another machine on 2026-12-05 with
+#: the same code, which a strict marker turned into a failure.
+ON_THE_EDGE = frozenset({"hartley"})
+
+
 def _sets(unmet: dict[str, str], names: list[str] | None = None) -> list[object]:
-    """Every set (or ``names``), strict xfail (reason) for the ones named in ``unmet``."""
+    """Every set (or ``names``), xfail (reason) for the ones named in ``unmet``: strict
+    but for those of :data:`ON_THE_EDGE`."""
     return [
-        pytest.param(n, marks=pytest.mark.xfail(strict=True, reason=unmet[n])) if n in unmet else n
+        pytest.param(n, marks=pytest.mark.xfail(strict=n not in ON_THE_EDGE, reason=unmet[n]))
+        if n in unmet
+        else n
         for n in sorted(SETS if names is None else names)
     ]
 
