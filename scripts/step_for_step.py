@@ -21,7 +21,6 @@ About 2 to 5 minutes of CPU a set (the runs from rest of its refined records).
 from __future__ import annotations
 
 import argparse
-import json
 import math
 import warnings
 from pathlib import Path
@@ -44,14 +43,13 @@ def main(argv: list[str] | None = None) -> int:
     hits_final = hits_coarse = total = 0
     print(f"{'set':22} {'id':6} {'step':>5} {'vs confirmed':>13} {'vs netlist step':>16}")
     for path in args.sets:
-        designs, _ = load_reference(path)
-        raw = json.loads(path.read_text(encoding="utf-8"))["designs"]
-        pick = [i for i, r in enumerate(raw) if r["ngspice"].get("step_refined")]
+        designs, records = load_reference(path)
+        pick = [i for i, r in enumerate(records) if r.get("step_refined")]
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
             got = model_answers([designs[i] for i in pick])
         for i, answer in zip(pick, got, strict=True):
-            rec = raw[i]["ngspice"]
+            rec = records[i]
             refined = rec["step_refined"]
             final = _rel(answer.f_hz, rec["f_hz"])
             coarse = _rel(answer.f_hz, refined["f_hz_at_netlist_step"])
